@@ -1,0 +1,1 @@
+"""divides: is a drainage divide stable or moving?"""
