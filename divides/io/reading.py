@@ -14,7 +14,6 @@ import rasterio.errors
 from affine import Affine
 from rasterio.enums import MaskFlags
 from rasterio.windows import Window
-from rasterio.windows import transform as window_transform
 
 from divides.errors import (
     BandError,
@@ -185,7 +184,8 @@ def read_dem(
         data = data.astype(np.float64 if wide else np.float32, copy=False)
         data[extra_invalid] = np.nan
 
-    sub_transform = grid if window is None else window_transform(window, grid)
+    # Composed here with `@`: rasterio.windows.transform still uses affine's deprecated `*`.
+    sub_transform = grid if window is None else grid @ Affine.translation(window.col_off, window.row_off)
     try:
         dem = Dem.from_array(
             data,
