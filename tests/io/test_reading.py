@@ -388,3 +388,36 @@ def test_bad_cell_size(write_geotiff, bad) -> None:
     path = write_geotiff("c.tif", _terrain())
     with pytest.raises(GridError, match="cell_size must be"):
         read_dem(path, cell_size=bad)
+
+
+# ------------------------------------------------------------------ the shipped demo DEM
+DEMO = Path(__file__).resolve().parents[2] / "demo"
+
+
+def test_demo_uplands_reads_as_a_small_projected_dem() -> None:
+    path = DEMO / "uplands.tif"
+    assert path.stat().st_size < 300 * 1024  # the demo must stay small
+    dem = read_dem(path)
+    assert dem.shape == (200, 240) and dem.cell_size_m == (30.0, 30.0)
+    assert dem.crs.to_epsg() == 32630 and not dem.geographic
+    assert dem.elevation.dtype == np.float32 and dem.valid.all()
+    with rasterio.open(path) as src:  # stored compressed, as rasterio reports
+        assert src.compression is not None
+
+
+def test_demo_generator_rewrites_the_same_grid(tmp_path: Path) -> None:
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("make_demo_dem", DEMO / "make_demo_dem.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    out = module.write_uplands(tmp_path / "again.tif")
+    fresh, shipped = read_dem(out), read_dem(DEMO / "uplands.tif")
+    # Elevations are rounded to centimetres; allow one step for libm differences across platforms.
+    np.testing.assert_allclose(fresh.elevation, shipped.elevation, rtol=0, atol=0.0101)
+    assert fresh.transform == shipped.transform and fresh.crs == shipped.crs
+    # A ridge between two basins: every row's crest is well inside, both edges far below it.
+    z = shipped.elevation
+    crest = z.argmax(axis=1)
+    assert np.all((crest > 60) & (crest < 180))
+    assert np.all(z.max(axis=1) - z[:, 0] > 250) and np.all(z.max(axis=1) - z[:, -1] > 200)
