@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 import warnings
 from collections.abc import Sequence
 from typing import Any
@@ -131,7 +132,7 @@ def read_dem(
             )
         crs = src.crs if georeferenced else None
         if crs is None and cell_size is None:
-            what = "no CRS" if georeferenced else "no georeference (no geotransform and no CRS)"
+            what = "no CRS" if georeferenced else "no georeference (no geotransform: pixel coordinates only)"
             raise CrsError(
                 f"DEM '{name}' has {what}, so its cell size in metres is unknown; "
                 "give the cell size in metres (cell_size= / --cell-size)"
@@ -276,6 +277,7 @@ def _reason(exc: BaseException, name: str) -> str:
     for prefix in (f"'{name}'", name):
         if text.startswith(prefix):
             text = text[len(prefix) :].lstrip(" :,")
+    text = re.sub(r"^band \d+: ", "", text)  # the caller names the band already
     text = text.rstrip(".") or "unknown error"
     return text if len(text) <= 200 else text[:197] + "..."
 
