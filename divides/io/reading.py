@@ -166,7 +166,9 @@ def read_dem(
             "band_count": src.count,
             "source_dtype": dtype.name,
             "source_shape": (height, width),
-            "window": None if window is None else (int(window.row_off), int(window.col_off), int(window.height), int(window.width)),
+            "window": None
+            if window is None
+            else (int(window.row_off), int(window.col_off), int(window.height), int(window.width)),
             "georeferenced": georeferenced,
             "band_unit": src.units[index - 1] or None,
         }
@@ -294,7 +296,9 @@ def _choose_band(src: Any, band: Any, name: str) -> int:
     if isinstance(band, bool) or not isinstance(band, (int, np.integer)):
         raise BandError(f"band must be an integer from 1 to {count} for DEM '{name}'; got {band!r}")
     if not 1 <= int(band) <= count:
-        raise BandError(f"band {int(band)} does not exist in DEM '{name}', which has {count} band(s) numbered 1 to {count}")
+        raise BandError(
+            f"band {int(band)} does not exist in DEM '{name}', which has {count} band(s) numbered 1 to {count}"
+        )
     return int(band)
 
 
