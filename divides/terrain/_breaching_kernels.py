@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["pit_candidates", "depression_seeds", "breach_kernel"]
+__all__ = ["all_finite", "pit_candidates", "depression_seeds", "breach_kernel"]
 
 # 8-neighbour offsets (row, col).
 _DR = np.array([-1, -1, -1, 0, 0, 1, 1, 1], dtype=np.int64)
@@ -30,6 +30,15 @@ def _grow(a, n):
     out = np.empty(n, a.dtype)
     out[: a.size] = a
     return out
+
+
+@njit(cache=True)
+def all_finite(z, valid):
+    """True if every valid cell is finite (no temporary the size of the grid)."""
+    for i in range(z.size):
+        if valid[i] and not np.isfinite(z[i]):
+            return False
+    return True
 
 
 @njit(cache=True)

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from divides.errors import ParameterError
-from divides.terrain._breaching_kernels import breach_kernel, depression_seeds, pit_candidates
+from divides.terrain._breaching_kernels import all_finite, breach_kernel, depression_seeds, pit_candidates
 
 __all__ = ["BreachResult", "breach_depressions", "DEFAULT_MAX_LENGTH_CELLS", "DEFAULT_MAX_DEPTH_M"]
 
@@ -84,8 +84,10 @@ def _row_sizes(value: Any, name: str, rows: int) -> np.ndarray:
         raise ParameterError(f"`{name}` must be per-row metres of shape ({rows},); got a scalar {value!r}")
     if arr.shape != (rows,):
         raise ParameterError(f"`{name}` must have shape ({rows},) (one value per row); got {arr.shape}")
-    if not np.all(np.isfinite(arr)) or np.any(arr <= 0):
-        raise ParameterError(f"`{name}` must be finite and > 0 metres in every row; got min {np.nanmin(arr)!r}")
+    bad = ~(np.isfinite(arr) & (arr > 0))
+    if bad.any():
+        row = int(np.argmax(bad))
+        raise ParameterError(f"`{name}` must be finite and > 0 metres in every row; row {row} has {arr[row]!r}")
     return np.ascontiguousarray(arr)
 
 
@@ -203,7 +205,7 @@ def breach_depressions(
     max_depth = _limit(max_depth_m, "max_depth_m", DEFAULT_MAX_DEPTH_M)
 
     orig = np.ascontiguousarray(arr).ravel()
-    if not np.all(np.isfinite(orig[valid_f])):
+    if not all_finite(orig, valid_f):
         raise ParameterError("`z` has non-finite values on cells marked valid; mark them invalid in `valid`")
     surf = orig.copy()  # input stays untouched
 

@@ -398,6 +398,7 @@ def test_defaults_are_reported_and_float32_kept():
         (dict(max_depth_m="deep"), "max_depth_m"),
         (dict(dx=np.full(4, 1.0)), "dx"),
         (dict(dy=np.full(5, -1.0)), "dy"),
+        (dict(dx=np.full(5, np.nan)), "dx"),
         (dict(cell_area=np.ones(3)), "cell_area"),
         (dict(valid=np.ones((5, 4), bool)), "valid"),
         (dict(outlets=np.ones((5, 5), np.uint8)), "outlets"),
