@@ -104,6 +104,7 @@ class Dem:
         vertical_unit: str = "m",
         valid_range: tuple[float, float] | None = VALID_RANGE_M,
         path: str | None = None,
+        copy: bool = True,
     ) -> Dem:
         """Wrap an in-memory elevation array.
 
@@ -131,6 +132,9 @@ class Dem:
             Plausible elevation range in metres; None disables the check.
         path : str, optional
             Where the data came from, for reports.
+        copy : bool
+            False lets the DEM take over ``z`` (modified in place) when it is
+            already float32/float64, saving one copy of a large grid.
 
         Returns
         -------
@@ -172,14 +176,14 @@ class Dem:
                 "give a CRS, or a cell size in metres (--cell-size / cell_size=)"
             )
 
-        elevation = np.array(arr, dtype=dtype, copy=True)
+        elevation = np.array(arr, dtype=dtype, copy=copy or arr.dtype != dtype)
         # Flip south-up / east-to-west grids so every array is north-up, west-to-east.
         if transform.e > 0:
             elevation = elevation[::-1]
-            transform = transform * Affine.translation(0, rows) * Affine.scale(1, -1)
+            transform = transform @ Affine.translation(0, rows) @ Affine.scale(1, -1)
         if transform.a < 0:
             elevation = elevation[:, ::-1]
-            transform = transform * Affine.translation(cols, 0) * Affine.scale(-1, 1)
+            transform = transform @ Affine.translation(cols, 0) @ Affine.scale(-1, 1)
         elevation = np.ascontiguousarray(elevation)
 
         valid = np.isfinite(elevation)

@@ -199,6 +199,7 @@ def read_dem(
             vertical_scale=scale,
             vertical_unit=vertical_unit,
             path=name,
+            copy=False,  # the array was read for this DEM alone
         )
     except DividesError as exc:
         raise type(exc)(f"DEM '{name}': {exc}") from None

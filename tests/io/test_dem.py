@@ -23,7 +23,6 @@ FOOT = 0.3048  # international foot, exact by the 1959 agreement (NIST SP 811)
 # dem.py flips south-up/east-to-west grids with Affine `*`, which affine 3.0 deprecates in
 # favour of `@` (PendingDeprecationWarning, an error in this test run). Drop this filter
 # once dem.py composes transforms with `@`.
-FLIPS = pytest.mark.filterwarnings("ignore:Use `@` matmul:PendingDeprecationWarning")
 
 HYPOTHESIS = settings(max_examples=60, deadline=None, database=None)
 
@@ -151,7 +150,6 @@ def test_input_array_is_not_modified() -> None:
 
 
 # ------------------------------------------------------------------ orientation
-@FLIPS
 def test_south_up_grid_is_flipped_to_north_up() -> None:
     z = _ramp()
     south_up = Affine(30.0, 0, 1000.0, 0, 30.0, 5000.0)  # row 0 is the southern row
@@ -163,7 +161,6 @@ def test_south_up_grid_is_flipped_to_north_up() -> None:
     assert (x, y) == pytest.approx(rasterio.transform.xy(south_up, 4, 2, offset="center"))
 
 
-@FLIPS
 def test_east_to_west_grid_is_flipped() -> None:
     z = _ramp()
     mirrored = Affine(-30.0, 0, 1000.0, 0, -30.0, 5000.0)
@@ -183,7 +180,6 @@ transforms = st.builds(
 )
 
 
-@FLIPS
 @HYPOTHESIS
 @given(t=transforms, rows=st.integers(3, 30), cols=st.integers(3, 30), data=st.data())
 def test_rowcol_inverts_xy_and_agrees_with_rasterio(t: Affine, rows: int, cols: int, data) -> None:

@@ -28,7 +28,6 @@ FOOT = 0.3048  # NIST SP 811, international foot
 
 # dem.py flips south-up grids with Affine `*`, deprecated in affine 3.0 (PendingDeprecationWarning,
 # an error in this run); drop this filter once dem.py composes transforms with `@`.
-FLIPS = pytest.mark.filterwarnings("ignore:Use `@` matmul:PendingDeprecationWarning")
 
 
 def _terrain(rows: int = 20, cols: int = 30, dtype=np.float32) -> np.ndarray:
@@ -121,7 +120,6 @@ def test_matplotlib_jacksboro_dem_through_a_geotiff(write_geotiff) -> None:
 
 
 # ------------------------------------------------------------------ orientation
-@FLIPS
 def test_south_up_file_equals_the_north_up_one(write_geotiff) -> None:
     z = _terrain()
     north_up = read_dem(write_geotiff("n.tif", z, crs=UTM, transform=T30))

@@ -1,0 +1,308 @@
+"""Numba kernels for D8 routing, flat resolution and graph traversals.
+
+Conventions: flat indices ``i = row * cols + col``; ``rec[i] == i`` at outlets
+and invalid cells; direction codes 0-7 follow ``D_ROW``/``D_COL`` of the fill
+kernels (E, SE, S, SW, W, NW, N, NE), 8 = drains off the grid (outlet),
+255 = invalid cell. Code 9 marks, transiently, a cell with no downslope
+neighbour that flat resolution must route.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from divides.terrain._fill_kernels import D_COL, D_ROW, grow
+
+OUTLET = 8
+PENDING = 9
+INVALID = 255
+
+
+@njit(cache=True)
+def row_distances(dx, dy):
+    """Distance (m) to each of the 8 neighbours and to itself, per row: shape (rows, 9)."""
+    rows = dx.size
+    out = np.zeros((rows, 9), dtype=np.float64)
+    for r in range(rows):
+        diag = math.sqrt(dx[r] * dx[r] + dy[r] * dy[r])
+        for k in range(8):
+            if D_ROW[k] == 0:
+                out[r, k] = dx[r]
+            elif D_COL[k] == 0:
+                out[r, k] = dy[r]
+            else:
+                out[r, k] = diag
+    return out
+
+
+@njit(cache=True)
+def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
+    """Steepest-descent receiver of every cell (O'Callaghan & Mark 1984).
+
+    Non-outlet valid cells are interior and have only valid neighbours (cells on
+    the edge or next to nodata are outlets), so no bounds checks are needed.
+    Cells with no lower neighbour get ``code = PENDING`` for flat resolution.
+
+    Returns the number of pending cells.
+    """
+    off = np.empty(8, dtype=np.int64)
+    for k in range(8):
+        off[k] = D_ROW[k] * cols + D_COL[k]
+    inv = np.empty(8, dtype=np.float64)
+    n_pending = 0
+    for r in range(rows):
+        for k in range(8):
+            inv[k] = 1.0 / dist[r, k]
+        for c in range(cols):
+            i = r * cols + c
+            rec[i] = i
+            if not valid[i]:
+                code[i] = INVALID
+                continue
+            if outlets[i]:
+                code[i] = OUTLET
+                continue
+            zi = z[i]
+            best = 0.0
+            best_k = -1
+            for k in range(8):
+                s = (zi - z[i + off[k]]) * inv[k]
+                if s > best:
+                    best = s
+                    best_k = k
+            if best_k < 0:
+                code[i] = PENDING
+                n_pending += 1
+            else:
+                code[i] = best_k
+                rec[i] = i + off[best_k]
+    return n_pending
+
+
+@njit(cache=True)
+def resolve_flats(z, rows, cols, dist, rec, code):
+    """Route cells on flats so that flow converges (Barnes, Lehman & Mulla 2014).
+
+    Each flat (connected pending cells of equal elevation) gets two gradients
+    by breadth-first search: away from higher terrain (distance from the
+    flat's cells next to higher ground) and toward lower terrain (distance
+    from cells next to an already-draining cell of the same elevation). The
+    combined mask ``2 * toward + (max_away - away)`` strictly decreases along
+    some neighbour of every flat cell, so steepest descent on it reaches an
+    exit without loops, and flow bends away from the flat's higher rim
+    instead of running in parallel lines.
+
+    Pending cells are interior (outlets take the edges), so neighbours need
+    no bounds checks. Returns the number of pending cells left without an
+    exit (0 on a filled surface); those stay pending for the caller.
+    """
+    n = rows * cols
+    off = np.empty(8, dtype=np.int64)
+    for k in range(8):
+        off[k] = D_ROW[k] * cols + D_COL[k]
+    n_pending = 0
+    for i in range(n):
+        if code[i] == PENDING:
+            n_pending += 1
+    pending = np.empty(n_pending, dtype=np.int64)
+    j = 0
+    for i in range(n):
+        if code[i] == PENDING:
+            pending[j] = i
+            j += 1
+    label = np.zeros(n, dtype=np.int32)
+    mask = np.zeros(n, dtype=np.int32)
+    queue = np.empty(n_pending, dtype=np.int64)  # each BFS enqueues a cell at most once
+    # 1. label the flats (8-connected pending cells of equal elevation)
+    n_labels = 0
+    for s in pending:
+        if label[s] != 0:
+            continue
+        n_labels += 1
+        label[s] = n_labels
+        head = 0
+        queue[0] = s
+        tail = 1
+        while head < tail:
+            i = queue[head]
+            head += 1
+            for k in range(8):
+                nb = i + off[k]
+                if code[nb] == PENDING and label[nb] == 0 and z[nb] == z[i]:
+                    label[nb] = n_labels
+                    queue[tail] = nb
+                    tail += 1
+    # 2. gradient away from higher terrain: BFS from flat cells next to higher ground
+    away_max = np.zeros(n_labels + 1, dtype=np.int32)
+    tail = 0
+    for i in pending:
+        for k in range(8):
+            if z[i + off[k]] > z[i]:
+                mask[i] = 1
+                queue[tail] = i
+                tail += 1
+                break
+    head = 0
+    while head < tail:
+        i = queue[head]
+        head += 1
+        if mask[i] > away_max[label[i]]:
+            away_max[label[i]] = mask[i]
+        for k in range(8):
+            nb = i + off[k]
+            if code[nb] == PENDING and mask[nb] == 0 and z[nb] == z[i]:
+                mask[nb] = mask[i] + 1
+                queue[tail] = nb
+                tail += 1
+    # Invert it (largest at the higher rim) so the labels can be dropped; pending
+    # 8-neighbours of equal elevation always share a flat, so z equality suffices below.
+    for i in pending:
+        mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
+    # 3. gradient toward lower terrain: BFS from cells beside a draining cell of equal elevation
+    toward = label
+    for i in pending:
+        toward[i] = 0
+    tail = 0
+    for i in pending:
+        for k in range(8):
+            nb = i + off[k]
+            if code[nb] != PENDING and z[nb] == z[i]:
+                toward[i] = 1
+                queue[tail] = i
+                tail += 1
+                break
+    head = 0
+    while head < tail:
+        i = queue[head]
+        head += 1
+        for k in range(8):
+            nb = i + off[k]
+            if code[nb] == PENDING and toward[nb] == 0 and z[nb] == z[i]:
+                toward[nb] = toward[i] + 1
+                queue[tail] = nb
+                tail += 1
+    for i in pending:
+        mask[i] = 2 * toward[i] + mask[i] if toward[i] > 0 else -1
+    # 4. steepest descent on the mask; draining neighbours of equal elevation count as 0.
+    # Receivers are set first and codes after, so every cell sees its neighbours' pending state.
+    n_stuck = 0
+    for i in pending:
+        if mask[i] < 0:
+            n_stuck += 1
+            continue
+        r = i // cols
+        best = 0.0
+        best_k = -1
+        for k in range(8):
+            nb = i + off[k]
+            if z[nb] != z[i]:
+                continue
+            if code[nb] == PENDING:
+                m_nb = mask[nb]
+                if m_nb < 0:
+                    continue
+            else:
+                m_nb = 0
+            s = (mask[i] - m_nb) / dist[r, k]
+            if s > best:
+                best = s
+                best_k = k
+        if best_k < 0:
+            n_stuck += 1
+        else:
+            rec[i] = i + off[best_k]
+            toward[i] = best_k  # no longer needed as a distance; holds the direction
+    for i in pending:
+        if rec[i] != i:
+            code[i] = toward[i]
+    return n_stuck
+
+
+@njit(cache=True)
+def topological_order(rec, valid, n_valid):
+    """Valid cells ordered so that every receiver comes before its donors.
+
+    Depth-first from each outlet over donor lists (Braun & Willett 2013): each
+    cell's upstream area is then a contiguous run starting at the cell, and
+    cells adjacent in the order are mostly adjacent on the ground, which
+    keeps later traversals cache-friendly. Returns an array of ``n_valid``
+    cells, or fewer if the receiver graph has a cycle (cells on a cycle are
+    never reached from an outlet).
+    """
+    n = rec.size
+    start = np.zeros(n + 1, dtype=rec.dtype)
+    for i in range(n):
+        if valid[i] and rec[i] != i:
+            start[rec[i] + 1] += 1
+    for i in range(n):
+        start[i + 1] += start[i]
+    cursor = start[:-1].copy()
+    donors = np.empty(start[n], dtype=rec.dtype)
+    for i in range(n):
+        if valid[i] and rec[i] != i:
+            r = rec[i]
+            donors[cursor[r]] = i
+            cursor[r] += 1
+    cursor = cursor[:0]  # release early: the traversal needs only start and donors
+    order = np.empty(n_valid, dtype=rec.dtype)
+    stack = np.empty(n_valid, dtype=rec.dtype)
+    k = 0
+    for o in range(n):
+        if not valid[o] or rec[o] != o:
+            continue
+        stack[0] = o
+        top = 1
+        while top > 0:
+            top -= 1
+            i = stack[top]
+            order[k] = i
+            k += 1
+            for j in range(start[i], start[i + 1]):
+                stack[top] = donors[j]
+                top += 1
+    return order[:k].copy() if k < n_valid else order
+
+
+@njit(cache=True)
+def accumulate_down(order, rec, values, out):
+    """out[i] = sum of ``values`` over i and every cell upstream of i."""
+    for j in range(order.size):
+        i = order[j]
+        out[i] = values[i]
+    for j in range(order.size - 1, -1, -1):
+        i = order[j]
+        r = rec[i]
+        if r != i:
+            out[r] += out[i]
+
+
+@njit(cache=True)
+def integrate_up(order, rec, dist, integrand, start, out):
+    """out[i] = out[rec[i]] + integrand[i] * dist[i]; ``start`` at outlets."""
+    for j in range(order.size):
+        i = order[j]
+        r = rec[i]
+        if r == i:
+            out[i] = start[i]
+        else:
+            out[i] = out[r] + integrand[i] * dist[i]
+
+
+@njit(cache=True)
+def propagate_up(order, rec, values, out):
+    """out[i] = values[outlet of i]: copy each outlet's value to its whole basin."""
+    for j in range(order.size):
+        i = order[j]
+        r = rec[i]
+        out[i] = values[i] if r == i else out[r]
+
+
+@njit(cache=True)
+def receiver_distance(rec, code, cols, dist, out):
+    """Distance (m) from each cell to its receiver (0 at outlets and invalid cells)."""
+    for i in range(rec.size):
+        k = code[i]
+        out[i] = dist[i // cols, k] if k < 8 else 0.0
