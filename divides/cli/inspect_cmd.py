@@ -1,0 +1,244 @@
+"""``divides inspect``: what a DEM is, and how it drains.
+
+numpy, rasterio and numba are imported inside the functions, not here, so
+that ``divides --help`` does not pay for them.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+import typer
+
+from divides.cli import options as opt
+
+__all__ = ["inspect", "inspect_report", "format_report", "SCHEMA", "TOP_BASINS"]
+
+#: Identifies the layout of ``divides inspect --json``.
+SCHEMA = "divides.inspect/1"
+
+#: How many of the largest basins are listed.
+TOP_BASINS = 5
+
+
+def inspect(
+    dem: opt.DemArgument,
+    json_output: opt.JsonOption = False,
+    quiet: opt.QuietOption = False,
+    band: opt.BandOption = None,
+    bounds: opt.BoundsOption = None,
+    vertical_unit: opt.VerticalUnitOption = "m",
+    cell_size: opt.CellSizeOption = None,
+    sea_level: opt.SeaLevelOption = None,
+    conditioning: opt.ConditioningOption = "fill",
+) -> None:
+    """Describe a DEM: its grid, georeference, elevations, and how it drains.
+
+    Prints the CRS, grid size, cell size in metres, bounds, share of valid
+    cells, elevation range, what conditioning changed, the number of outlets
+    and the largest basins with their outlets.
+    \f
+    With ``--json`` one JSON object is printed on stdout, with the keys:
+
+    ``schema``
+        ``"divides.inspect/1"``.
+    ``path``, ``band``
+        The DEM file and the band read.
+    ``crs``, ``crs_kind``, ``crs_unit``
+        The CRS as text (null without one); ``"projected"``, ``"geographic"``
+        or ``"none"``; the unit of its coordinates (``"metre"``, ``"degree"``…; null without CRS).
+    ``shape``, ``n_cells``
+        ``[rows, cols]`` and ``rows * cols``.
+    ``cell_size_m``, ``cell_width_range_m``, ``cell_height_range_m``
+        Median ``[dx, dy]`` in metres, and ``[min, max]`` of the width and the
+        height across rows (they differ on geographic grids only).
+    ``bounds``
+        ``[left, bottom, right, top]`` in CRS units.
+    ``valid_share``
+        Fraction (0–1) of the cells holding an elevation.
+    ``elevation_m``, ``vertical_unit``
+        ``[min, max]`` in metres; the unit the file stores them in.
+    ``conditioning``
+        ``method``, ``sea_level_m``, ``filled_cells``, ``filled_area_m2``,
+        ``filled_volume_m3``, ``carved_cells``, ``carved_volume_m3``.
+    ``n_outlets``
+        Cells that drain off the DEM (each one is the outlet of a basin).
+    ``largest_basins``
+        Up to five objects, largest first: ``id`` (1 = largest, as in
+        ``FlowGraph.basins()``), ``area_km2``, ``share`` (fraction of the valid
+        area), ``outlet`` (``[x, y]`` of the outlet cell centre, CRS units).
+    """
+    read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
+    flow = opt.route_options(conditioning=conditioning, sea_level=sea_level)
+    with opt.quiet_warnings(quiet):
+        report = inspect_report(read, flow)
+    # Everything is computed before anything is printed: a failure prints no partial output.
+    typer.echo(json.dumps(report, indent=2, allow_nan=False) if json_output else format_report(report))
+
+
+def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top: int = TOP_BASINS) -> dict[str, Any]:
+    """Read and route a DEM and gather what ``divides inspect`` prints.
+
+    Parameters
+    ----------
+    read : DemOptions
+        The DEM and how to read it.
+    flow_options : RouteOptions
+        Conditioning and sea level for the routing.
+    top : int
+        Number of largest basins to list.
+
+    Returns
+    -------
+    dict
+        JSON-ready; keys as documented in :func:`inspect`.
+    """
+    import numpy as np
+
+    import divides
+
+    dem = divides.read_dem(read.path, **read.read_kwargs())
+    graph = divides.route(dem, **flow_options.route_kwargs())
+
+    crs = dem.crs
+    if crs is None:
+        kind, unit = "none", None
+    elif crs.is_geographic:
+        kind, unit = "geographic", crs.units_factor[0]
+    else:
+        kind, unit = "projected", crs.linear_units_factor[0]
+
+    described = dem.describe()
+    valid_area = float(np.sum(dem.cell_area_grid()))
+    outlets = graph.outlets
+    labels = graph.basins().ravel()
+    area = graph.area.ravel()
+    # Rank by the basin ids themselves (1 = largest) so the listing agrees with basins().
+    ids = labels[outlets]
+    chosen = np.argsort(ids, kind="stable")[:top]
+    rows, cols = np.divmod(outlets[chosen], dem.shape[1])
+    xs, ys = dem.xy(rows, cols)
+    basins = [
+        {
+            "id": int(ids[k]),
+            "area_km2": float(area[outlets[k]]) / 1e6,
+            "share": float(area[outlets[k]]) / valid_area,
+            "outlet": [float(x), float(y)],
+        }
+        for k, x, y in zip(chosen, xs, ys, strict=True)
+    ]
+
+    conditioned = graph.conditioned.summary()
+    return {
+        "schema": SCHEMA,
+        "path": dem.path,
+        "band": dem.meta.get("band", read.band),
+        "crs": described["crs"],
+        "crs_kind": kind,
+        "crs_unit": unit,
+        "shape": described["shape"],
+        "n_cells": dem.size,
+        "cell_size_m": described["cell_size_m"],
+        "cell_width_range_m": [float(np.min(dem.dx)), float(np.max(dem.dx))],
+        "cell_height_range_m": [float(np.min(dem.dy)), float(np.max(dem.dy))],
+        "bounds": [float(b) for b in described["bounds"]],
+        "valid_share": described["valid_share"],
+        "elevation_m": described["elevation_m"],
+        "vertical_unit": dem.vertical_unit,
+        "conditioning": {
+            "method": conditioned["method"],
+            "sea_level_m": flow_options.sea_level,
+            "filled_cells": int(conditioned["filled_cells"]),
+            "filled_area_m2": float(conditioned["filled_area_m2"]),
+            "filled_volume_m3": float(conditioned["filled_volume_m3"]),
+            "carved_cells": int(conditioned["carved_cells"]),
+            "carved_volume_m3": float(conditioned["carved_volume_m3"]),
+        },
+        "n_outlets": int(outlets.size),
+        "largest_basins": basins,
+    }
+
+
+def _num(value: float) -> str:
+    """A short number: whole with thousands separators from 1000 up, else 4 significant digits."""
+    return f"{value:,.0f}" if abs(value) >= 1000 else f"{value:.4g}"
+
+
+def _range(lo: float, hi: float, unit: str) -> str:
+    return f"{_num(lo)} {unit}" if lo == hi else f"{_num(lo)} to {_num(hi)} {unit}"
+
+
+def format_report(report: dict[str, Any]) -> str:
+    """The plain-text form of :func:`inspect_report`'s result (aligned, no colour).
+
+    Parameters
+    ----------
+    report : dict
+        As returned by :func:`inspect_report`.
+
+    Returns
+    -------
+    str
+        Several lines, without a trailing newline.
+    """
+    rows, cols = report["shape"]
+    kind, unit = report["crs_kind"], report["crs_unit"]
+    if kind == "none":
+        crs_text = "none (local grid; cell size from --cell-size)"
+    else:
+        crs = report["crs"]
+        if len(crs) > 60:  # a long WKT: its first quoted string is the CRS name
+            crs = crs.split('"')[1] if '"' in crs else crs[:57] + "..."
+        crs_text = f"{crs} ({kind}, unit {unit})"
+
+    dx_lo, dx_hi = report["cell_width_range_m"]
+    dy_lo, dy_hi = report["cell_height_range_m"]
+    if dx_lo == dx_hi and dy_lo == dy_hi:
+        cell_text = f"{_num(dx_lo)} x {_num(dy_lo)} m"
+    else:
+        cell_text = f"width {_range(dx_lo, dx_hi, 'm')}, height {_range(dy_lo, dy_hi, 'm')} (varies across rows)"
+
+    # Ten significant digits keep a projected metre or about 1e-4 degree (≈10 m).
+    bounds_text = ", ".join(f"{v:.10g}" for v in report["bounds"])
+    bounds_text += f" (left, bottom, right, top{'' if unit is None else '; ' + unit})"
+
+    zmin, zmax = report["elevation_m"]
+    z_text = f"{zmin:.2f} to {zmax:.2f} m"
+    if report["vertical_unit"] != "m":
+        z_text += f" (stored in {report['vertical_unit']}, converted)"
+
+    cond = report["conditioning"]
+    cond_text = (
+        f"{cond['method']}: {cond['filled_cells']:,} cells raised, "
+        f"{_num(cond['filled_area_m2'] / 1e6)} km², {_num(cond['filled_volume_m3'])} m³"
+    )
+    if cond["method"] == "breach":
+        cond_text += f"; {cond['carved_cells']:,} cells lowered, {_num(cond['carved_volume_m3'])} m³"
+    if cond["sea_level_m"] is not None:
+        cond_text += f"; sea level {cond['sea_level_m']:g} m"
+
+    lines = [
+        ("DEM", report["path"] + ("" if report["band"] in (None, 1) else f" (band {report['band']})")),
+        ("CRS", crs_text),
+        ("Grid", f"{rows:,} rows x {cols:,} cols = {report['n_cells']:,} cells"),
+        ("Cell size", cell_text),
+        ("Bounds", bounds_text),
+        ("Valid cells", f"{100 * report['valid_share']:.2f} %"),
+        ("Elevation", z_text),
+        ("Conditioning", cond_text),
+        ("Outlets", f"{report['n_outlets']:,}"),
+    ]
+    width = max(len(label) for label, _ in lines) + 2
+    out = [f"{label:<{width}}{value}" for label, value in lines]
+
+    basins = report["largest_basins"]
+    out.append(f"Largest basins ({len(basins)})")
+    table = [("id", "area km²", "share", "outlet x", "outlet y")]
+    for b in basins:
+        x, y = b["outlet"]
+        table.append((str(b["id"]), _num(b["area_km2"]), f"{100 * b['share']:.1f} %", f"{x:.10g}", f"{y:.10g}"))
+    widths = [max(len(row[i]) for row in table) for i in range(len(table[0]))]
+    for row in table:
+        out.append("  " + "  ".join(cell.rjust(w) for cell, w in zip(row, widths, strict=True)))
+    return "\n".join(out)
