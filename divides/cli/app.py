@@ -142,8 +142,10 @@ def run(argv: Sequence[str] | None = None) -> int:
     except BrokenPipeError:
         # The reader went away (`divides inspect ... | head`): stop quietly;
         # point stdout at devnull so that the interpreter's final flush cannot fail again.
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):  # stdout is not a real file
+            pass
         return EXIT_INTERNAL
     except Exception as exc:
         try:

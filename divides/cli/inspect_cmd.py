@@ -166,7 +166,8 @@ def _num(value: float) -> str:
 
 
 def _range(lo: float, hi: float, unit: str) -> str:
-    return f"{_num(lo)} {unit}" if lo == hi else f"{_num(lo)} to {_num(hi)} {unit}"
+    low, high = _num(lo), _num(hi)
+    return f"{low} {unit}" if low == high else f"{low} to {high} {unit}"
 
 
 def format_report(report: dict[str, Any]) -> str:
