@@ -75,6 +75,30 @@ class FlowGraph:
         idx = self.order
         return idx[self.receivers[idx] == idx]
 
+    @cached_property
+    def order_position(self) -> np.ndarray:
+        """Flat array: position of each cell in :attr:`order` (-1 for invalid cells)."""
+        pos = np.full(self.receivers.size, -1, dtype=self.receivers.dtype)
+        pos[self.order] = np.arange(self.order.size, dtype=self.receivers.dtype)
+        return pos
+
+    @cached_property
+    def upstream_count(self) -> np.ndarray:
+        """Flat array: number of cells draining through each cell, itself included.
+
+        The order is depth-first, so the cells upstream of ``i`` are exactly
+        ``order[order_position[i] : order_position[i] + upstream_count[i]]``.
+        """
+        counts = self.accumulate(self.dem.valid.astype(np.float64)).ravel()
+        return counts.astype(self.receivers.dtype)
+
+    def upstream_cells(self, i: int) -> np.ndarray:
+        """Flat indices of the cells draining through cell ``i`` (itself first)."""
+        p = int(self.order_position[i])
+        if p < 0:
+            return np.empty(0, dtype=self.order.dtype)
+        return self.order[p: p + int(self.upstream_count[i])]
+
     # ------------------------------------------------------------------ traversals
     def _flat_field(self, values: np.ndarray | float, name: str) -> np.ndarray:
         arr = np.asarray(values, dtype=np.float64)
