@@ -254,3 +254,14 @@ def test_quiet_silences_warnings(capsys, monkeypatch):
     out = capsys.readouterr()
     assert out.err == ""
     assert out.out.lstrip().startswith("{")
+
+
+def test_option_choices_match_the_library():
+    # options.py repeats these lists so that --help need not import rasterio or scipy;
+    # the library's own lists are the reference.
+    from divides.cli import options
+    from divides.io.reading import VERTICAL_UNITS
+    from divides.terrain.conditioning import CONDITIONING_METHODS
+
+    assert options.VERTICAL_UNIT_CHOICES == tuple(VERTICAL_UNITS)
+    assert options.CONDITIONING_CHOICES == tuple(CONDITIONING_METHODS)
