@@ -1,34 +1,48 @@
 """divides: is a drainage divide stable or moving?
 
 The public entry points are listed in ``__all__``; see the user guide in ``docs/``.
+Names are imported on first use (PEP 562), so ``import divides`` and the command
+line's ``--help`` stay fast.
 """
 
-from divides.assess.sides import common_base_level, parse_side, resolve_side, resolve_sides
-from divides.errors import DividesError
-from divides.io.dem import Dem
-from divides.io.reading import read_dem
-from divides.terrain import Conditioned, FlowGraph, condition, route
-from divides.terrain.channels import Channels, extract_channels
-from divides.terrain.divide_lines import Divide, divide_between, divide_network
+from __future__ import annotations
+
+import importlib
+from typing import Any
 
 __version__ = "0.1.0"
 
-__all__ = [
-    "Channels",
-    "Conditioned",
-    "Dem",
-    "Divide",
-    "DividesError",
-    "FlowGraph",
-    "__version__",
-    "common_base_level",
-    "condition",
-    "divide_between",
-    "divide_network",
-    "extract_channels",
-    "parse_side",
-    "read_dem",
-    "resolve_side",
-    "resolve_sides",
-    "route",
-]
+# public name -> module that defines it
+_EXPORTS = {
+    "DividesError": "divides.errors",
+    "Dem": "divides.io.dem",
+    "read_dem": "divides.io.reading",
+    "Conditioned": "divides.terrain.conditioning",
+    "condition": "divides.terrain.conditioning",
+    "FlowGraph": "divides.terrain.routing",
+    "route": "divides.terrain.routing",
+    "Channels": "divides.terrain.channels",
+    "extract_channels": "divides.terrain.channels",
+    "Divide": "divides.terrain.divide_lines",
+    "divide_between": "divides.terrain.divide_lines",
+    "divide_network": "divides.terrain.divide_lines",
+    "parse_side": "divides.assess.sides",
+    "resolve_side": "divides.assess.sides",
+    "resolve_sides": "divides.assess.sides",
+    "common_base_level": "divides.assess.sides",
+}
+
+__all__ = sorted([*_EXPORTS, "__version__"])
+
+
+def __getattr__(name: str) -> Any:
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'divides' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return __all__

@@ -18,6 +18,7 @@ __all__ = [
     "ParameterError",
     "SideError",
     "OutputError",
+    "InternalError",
     "DividesWarning",
     "ConditioningWarning",
 ]
@@ -57,6 +58,10 @@ class SideError(InputError):
 
 class OutputError(DividesError, OSError):
     """An output location cannot be written."""
+
+
+class InternalError(RuntimeError):
+    """A broken invariant inside `divides` (a bug, not a user mistake): exit code 1."""
 
 
 class DividesWarning(UserWarning):

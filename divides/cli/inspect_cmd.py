@@ -64,6 +64,8 @@ def inspect(
         ``filled_volume_m3``, ``carved_cells``, ``carved_volume_m3``.
     ``n_outlets``
         Cells that drain off the DEM (each one is the outlet of a basin).
+    ``n_outlets_draining_others``
+        Outlets that drain at least one other cell (the rest are one-cell basins on the edge).
     ``largest_basins``
         Up to five objects, largest first: ``id`` (1 = largest, as in
         ``FlowGraph.basins()``), ``area_km2``, ``share`` (fraction of the valid
@@ -156,6 +158,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
             "carved_volume_m3": float(conditioned["carved_volume_m3"]),
         },
         "n_outlets": int(outlets.size),
+        "n_outlets_draining_others": int(np.count_nonzero(graph.upstream_count[outlets] > 1)),
         "largest_basins": basins,
     }
 
@@ -228,7 +231,7 @@ def format_report(report: dict[str, Any]) -> str:
         ("Valid cells", f"{100 * report['valid_share']:.2f} %"),
         ("Elevation", z_text),
         ("Conditioning", cond_text),
-        ("Outlets", f"{report['n_outlets']:,}"),
+        ("Outlets", f"{report['n_outlets']:,} ({report['n_outlets_draining_others']:,} draining more than their own cell)"),
     ]
     width = max(len(label) for label, _ in lines) + 2
     out = [f"{label:<{width}}{value}" for label, value in lines]

@@ -7,7 +7,7 @@ from functools import cached_property
 
 import numpy as np
 
-from divides.errors import DividesError, GridError
+from divides.errors import GridError, InternalError
 from divides.io.dem import Dem
 from divides.terrain import _routing_kernels as _k
 from divides.terrain.conditioning import Conditioned, condition
@@ -256,11 +256,11 @@ def route(
     if n_flat:
         n_stuck = _k.resolve_flats(z, rows, cols, dist, rec, code)
         if n_stuck:
-            raise DividesError(f"internal: {n_stuck} cell(s) on flats found no exit after conditioning")
+            raise InternalError(f"{n_stuck} cell(s) on flats found no exit after conditioning")
     n_valid = int(np.count_nonzero(valid))
     order = _k.topological_order(rec, valid, n_valid)
     if order.size != n_valid:
-        raise DividesError("internal: the receiver graph has a cycle")
+        raise InternalError("the receiver graph has a cycle")
     area = np.zeros(n, dtype=np.float64)
     cell_area = np.repeat(dem.cell_area, cols)
     cell_area[~valid] = 0.0

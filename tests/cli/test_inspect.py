@@ -158,6 +158,8 @@ def test_json_largest_basins_against_a_recount(capsys, reference):
     assert [b["share"] for b in basins] == pytest.approx(largest / valid_area, rel=1e-12)
     areas = [b["area_km2"] for b in basins]
     assert areas == sorted(areas, reverse=True)
+    # outlets that drain more than themselves = trees of the receiver graph with 2+ cells (scipy)
+    assert report["n_outlets_draining_others"] == int(np.count_nonzero(sizes > 1))
 
     inverse = ~reference["transform"]
     for b in basins:
