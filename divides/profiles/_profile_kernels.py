@@ -1,0 +1,156 @@
+"""Numba kernels for river profiles: χ, disorder, optimal segmentation."""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+
+@njit(cache=True)
+def chi_trapezoid(down, step, integrand, keep):
+    """χ along a network, receivers first: χ = χ(down) + ½ (f + f_down) · step.
+
+    Cells not kept are NaN; a kept cell whose downstream cell is not kept (or
+    which is an outlet) is a base-level node with χ = 0.
+    """
+    m = down.size
+    chi = np.full(m, np.nan)
+    for k in range(m):
+        if not keep[k]:
+            continue
+        d = down[k]
+        if d < 0 or not keep[d]:
+            chi[k] = 0.0
+        else:
+            chi[k] = chi[d] + 0.5 * (integrand[k] + integrand[d]) * step[k]
+    return chi
+
+
+@njit(cache=True)
+def first_downstream_value(order, rec, is_target, values, out):
+    """out[i] = values of the first target cell on the flow path from i (i included); NaN if none."""
+    for j in range(order.size):
+        i = order[j]
+        if is_target[i]:
+            out[i] = values[i]
+        else:
+            r = rec[i]
+            out[i] = np.nan if r == i else out[r]
+
+
+@njit(cache=True)
+def disorder_sorted(z_sorted):
+    """Disorder of elevations sorted by χ: Σ|Δz| / (max z − min z) − 1 (Hergarten et al. 2016)."""
+    n = z_sorted.size
+    if n < 2:
+        return 0.0
+    total = 0.0
+    lo = z_sorted[0]
+    hi = z_sorted[0]
+    for i in range(1, n):
+        total += abs(z_sorted[i] - z_sorted[i - 1])
+        if z_sorted[i] < lo:
+            lo = z_sorted[i]
+        if z_sorted[i] > hi:
+            hi = z_sorted[i]
+    if hi <= lo:
+        return 0.0
+    return total / (hi - lo) - 1.0
+
+
+@njit(cache=True)
+def optimal_partition(x, y, min_len, max_segments):
+    """Least-squares piecewise-linear fits with 1 … max_segments segments (dynamic programming).
+
+    Segments are independent straight lines over consecutive points, each at
+    least ``min_len`` points long. Prefix sums make each segment's misfit O(1),
+    so the table costs O(K N²).
+
+    Returns
+    -------
+    sse : (K,) best total squared misfit for k + 1 segments (inf where impossible)
+    starts : (K, K) start index of each segment of the best k + 1 partition
+    """
+    n = x.size
+    sx = np.zeros(n + 1)
+    sy = np.zeros(n + 1)
+    sxx = np.zeros(n + 1)
+    sxy = np.zeros(n + 1)
+    syy = np.zeros(n + 1)
+    for i in range(n):
+        sx[i + 1] = sx[i] + x[i]
+        sy[i + 1] = sy[i] + y[i]
+        sxx[i + 1] = sxx[i] + x[i] * x[i]
+        sxy[i + 1] = sxy[i] + x[i] * y[i]
+        syy[i + 1] = syy[i] + y[i] * y[i]
+
+    def seg_sse(a, b):  # points a .. b-1
+        m = b - a
+        mx = (sx[b] - sx[a]) / m
+        my = (sy[b] - sy[a]) / m
+        cxx = (sxx[b] - sxx[a]) - m * mx * mx
+        cxy = (sxy[b] - sxy[a]) - m * mx * my
+        cyy = (syy[b] - syy[a]) - m * my * my
+        if cxx <= 1e-300:
+            return max(cyy, 0.0)
+        return max(cyy - cxy * cxy / cxx, 0.0)
+
+    K = max_segments
+    inf = np.inf
+    cost = np.full((K, n + 1), inf)
+    back = np.full((K, n + 1), -1, dtype=np.int64)
+    for b in range(min_len, n + 1):
+        cost[0, b] = seg_sse(0, b)
+    for k in range(1, K):
+        for b in range((k + 1) * min_len, n + 1):
+            best = inf
+            arg = -1
+            for a in range(k * min_len, b - min_len + 1):
+                prev = cost[k - 1, a]
+                if prev == inf:
+                    continue
+                c = prev + seg_sse(a, b)
+                if c < best:
+                    best = c
+                    arg = a
+            cost[k, b] = best
+            back[k, b] = arg
+    sse = np.full(K, inf)
+    starts = np.full((K, K), -1, dtype=np.int64)
+    for k in range(K):
+        sse[k] = cost[k, n]
+        if sse[k] == inf:
+            continue
+        b = n
+        for j in range(k, -1, -1):
+            a = back[j, b] if j > 0 else 0
+            starts[k, j] = a
+            b = a
+    return sse, starts
+
+
+@njit(cache=True)
+def longest_upstream_path(order, rec, dist):
+    """Length (m) of the longest flow path from each cell up to a divide (0 on heads)."""
+    out = np.zeros(rec.size)
+    for j in range(order.size - 1, -1, -1):
+        i = order[j]
+        r = rec[i]
+        if r != i:
+            length = out[i] + dist[i]
+            if length > out[r]:
+                out[r] = length
+    return out
+
+
+@njit(cache=True)
+def network_root(down, keep):
+    """For each kept node (receivers first), the base node of its network (-1 if not kept)."""
+    m = down.size
+    root = np.full(m, -1, dtype=np.int64)
+    for k in range(m):
+        if not keep[k]:
+            continue
+        d = down[k]
+        root[k] = k if (d < 0 or not keep[d]) else root[d]
+    return root

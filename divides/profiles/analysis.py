@@ -1,0 +1,281 @@
+"""River profiles of both sides of a divide: χ, θ, streams, ksn and knickpoints, in one pass."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from divides.assess.sides import BaseLevel, Sides
+from divides.errors import ParameterError
+from divides.profiles import _profile_kernels as _k
+from divides.profiles.chi import ChiWeights, integrate_chi
+from divides.profiles.concavity import (
+    REFERENCE_THETA,
+    ConcavityEstimate,
+    concavity_by_collinearity,
+    concavity_by_slope_area,
+)
+from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of
+from divides.profiles.segments import Segmentation, segment_profile
+from divides.profiles.steepness import stream_slopes
+from divides.profiles.streams import longest_path_streams
+from divides.terrain.channels import Channels
+
+__all__ = ["Stream", "ProfileAnalysis", "analyse_profiles", "network_concavity"]
+
+
+@dataclass(frozen=True, eq=False)
+class Stream:
+    """One stream (trunk or tributary) of a side, downstream to upstream.
+
+    Attributes
+    ----------
+    side : str
+        ``"a"`` or ``"b"``.
+    nodes : ndarray of int
+        Channel positions, downstream first (a tributary starts at its junction).
+    segmentation : Segmentation
+        Fit of z against χ over ``nodes``.
+    """
+
+    side: str
+    nodes: np.ndarray
+    segmentation: Segmentation
+
+
+@dataclass(frozen=True, eq=False)
+class ProfileAnalysis:
+    """χ, concavity, steepness and knickpoints of the channels on both sides.
+
+    Per-cell arrays are aligned with ``channels.cells``.
+
+    Attributes
+    ----------
+    theta : float
+        Concavity used for χ and ksn.
+    theta_source : str
+        ``"user"``, ``"reference"`` or ``"collinearity"``.
+    concavity : dict of ConcavityEstimate
+        ``"a"``, ``"b"``, ``"both"`` (collinearity) and ``"slope_area"`` (both sides).
+    chi : ndarray
+        χ (m) of channel cells at or above the base level; NaN elsewhere.
+    side : ndarray of int8
+        1 for side a, 2 for side b, 0 for other channel cells.
+    ksn, ksn_se : ndarray
+        ksn (m^(2θ)) of each cell's χ–z segment and its standard error.
+    ksn_slope_area : ndarray
+        S · A^θ with S the smoothed channel gradient, for comparison.
+    streams : list of Stream
+    knickpoints : list of dict
+        Significant knickpoints (see :func:`divides.profiles.knickpoints.breaks_of`
+        for the keys), plus ``side``, ``cell``, ``x``, ``y``, ``elevation_m``,
+        ``area_m2``, ``distance_to_divide_m``.
+    n_candidate_breaks : int
+        Breaks found by segmentation before significance and artefact filters.
+    """
+
+    channels: Channels
+    base: BaseLevel
+    theta: float
+    theta_source: str
+    a0: float
+    concavity: dict
+    chi: np.ndarray
+    side: np.ndarray
+    ksn: np.ndarray
+    ksn_se: np.ndarray
+    ksn_slope_area: np.ndarray
+    streams: list = field(repr=False)
+    knickpoints: list = field(default_factory=list)
+    n_candidate_breaks: int = 0
+    weights: dict = field(default_factory=dict)
+
+    def median_ksn(self, side: str) -> float:
+        """Median ksn over the side's channel cells (NaN if none)."""
+        sel = (self.side == (1 if side == "a" else 2)) & np.isfinite(self.ksn)
+        return float(np.median(self.ksn[sel])) if sel.any() else float("nan")
+
+    def grid(self, values: np.ndarray) -> np.ndarray:
+        """A per-channel-cell array put on the DEM grid (NaN off the channels)."""
+        flow = self.channels.flow
+        out = np.full(flow.receivers.size, np.nan)
+        out[self.channels.cells] = values
+        return out.reshape(flow.shape)
+
+    def summary(self) -> dict:
+        """JSON-ready figures."""
+        return {
+            "theta": {"value": self.theta, "source": self.theta_source,
+                      **{k: v.to_dict() for k, v in self.concavity.items()}},
+            "ksn": {"a": _none(self.median_ksn("a")), "b": _none(self.median_ksn("b"))},
+            "n_streams": len(self.streams),
+            "n_knickpoints": len(self.knickpoints),
+            "n_candidate_breaks": self.n_candidate_breaks,
+            "weights": self.weights,
+        }
+
+
+def _none(v: float) -> float | None:
+    return float(v) if np.isfinite(v) else None
+
+
+def analyse_profiles(
+    channels: Channels,
+    sides: Sides,
+    base: BaseLevel,
+    *,
+    theta: float | str = REFERENCE_THETA,
+    a0: float = 1.0,
+    weights: ChiWeights | None = None,
+    min_nodes: int = 8,
+    max_segments: int = 6,
+    vertical_resolution_m: float = 1.0,
+    n_boot: int = 100,
+    seed: int = 0,
+) -> ProfileAnalysis:
+    """Analyse the river profiles of both sides of a divide.
+
+    Parameters
+    ----------
+    channels : Channels
+    sides : Sides
+    base : BaseLevel
+        Common base level; only channels at or above it are analysed.
+    theta : float or "auto"
+        Concavity for χ and ksn. ``"auto"`` uses the collinearity estimate of
+        both sides together (falling back to the reference 0.45 when it cannot
+        be made); the default is the reference value 0.45 (common practice).
+    a0 : float
+        Reference area (m²).
+    weights : ChiWeights, optional
+        Runoff, erodibility and uplift weighting of χ.
+    min_nodes, max_segments : int
+        Segmentation limits (nodes per segment, segments per stream).
+    vertical_resolution_m : float
+        Steps smaller than this are not knickpoints (DEM vertical resolution).
+    n_boot : int
+        Bootstrap resamples for the concavity intervals.
+    seed : int
+        Random seed.
+
+    Returns
+    -------
+    ProfileAnalysis
+    """
+    if not (np.isfinite(vertical_resolution_m) and vertical_resolution_m >= 0):
+        raise ParameterError(f"vertical resolution must be >= 0 m; got {vertical_resolution_m!r}")
+    flow = channels.flow
+    down, step = channels.down, channels.step
+    area = channels.area if weights is None or weights.discharge is None else \
+        weights.discharge.ravel()[channels.cells]
+    factor = 1.0 if weights is None else weights.factor
+    if not np.isscalar(factor):
+        factor = np.asarray(factor).ravel()[channels.cells]
+    z = channels.elevation - base.elevation_m
+    keep = base.kept_a | base.kept_b
+    side = np.where(base.kept_a, 1, np.where(base.kept_b, 2, 0)).astype(np.int8)
+    groups = channels.link
+    # Each network that crosses the base level separately (e.g. the many basins draining
+    # off one DEM edge) has its own χ = 0 node; concavity is about the shape of profiles,
+    # so each network is measured from its own base node.
+    root = _k.network_root(down, keep)
+    z_own = np.where(root >= 0, z - z[np.maximum(root, 0)], np.nan)
+
+    conc = {}
+    for name, sel in (("a", base.kept_a), ("b", base.kept_b), ("both", keep)):
+        conc[name] = concavity_by_collinearity(down, step, area, z_own, sel, groups, a0=a0, weight=factor,
+                                               n_boot=n_boot, seed=seed)
+
+    if isinstance(theta, str):
+        if theta != "auto":
+            raise ParameterError(f"theta must be a number or 'auto'; got {theta!r}")
+        if np.isfinite(conc["both"].value):
+            theta_value, source = conc["both"].value, "collinearity"
+        else:
+            theta_value, source = REFERENCE_THETA, "reference"
+    else:
+        theta_value, source = float(theta), ("user" if float(theta) != REFERENCE_THETA else "reference")
+
+    chi = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=keep, weight=factor)
+
+    ksn = np.full(channels.size, np.nan)
+    ksn_se = np.full(channels.size, np.nan)
+    slope_all = _channel_slopes(channels, keep)
+    with np.errstate(invalid="ignore"):
+        ksn_sa = slope_all * (area / a0) ** theta_value
+    streams: list[Stream] = []
+    candidates: list[tuple[str, np.ndarray, dict]] = []
+    for side_name, kept in (("a", base.kept_a), ("b", base.kept_b)):
+        for nodes, tributary in longest_path_streams(down, step, kept):
+            if nodes.size < 2:
+                continue  # a lone base node: nothing to fit
+            seg = segment_profile(chi[nodes], z[nodes], min_nodes=min_nodes, max_segments=max_segments)
+            streams.append(Stream(side_name, nodes, seg))
+            first = 1 if tributary else 0  # a tributary's junction node belongs to the stream it joins
+            own = nodes[first:]
+            which = seg.segment_of(np.arange(first, nodes.size))
+            ksn[own] = seg.slope[which]
+            ksn_se[own] = seg.slope_se[which]
+            for brk in breaks_of(seg, chi[nodes], z[nodes], min_nodes=min_nodes):
+                candidates.append((side_name, nodes, brk))
+
+    conc["slope_area"] = concavity_by_slope_area(area[keep], slope_all[keep])
+
+    raw = flow.dem.elevation.ravel()
+    cond = flow.conditioned.surface.ravel()
+    longest = _k.longest_upstream_path(flow.order, flow.receivers, flow.distance)
+    knickpoints = []
+    for side_name, nodes, brk in candidates:
+        pos = int(nodes[brk["node"]])
+        cell = int(channels.cells[pos])
+        if brk["p_value"] >= KNICKPOINT_ALPHA:
+            continue
+        if abs(float(cond[cell]) - float(raw[cell])) > 1e-6:
+            continue  # inside a filled or breached reach: an artefact of conditioning
+        if brk["kind"] == "step" and abs(brk["step_m"]) < vertical_resolution_m:
+            continue
+        r, c = divmod(cell, flow.shape[1])
+        x, y = flow.dem.xy(r, c)
+        knickpoints.append({
+            **brk, "side": side_name, "position": pos, "cell": cell, "x": float(x), "y": float(y),
+            "elevation_m": float(raw[cell]), "area_m2": float(channels.area[pos]),
+            "distance_to_divide_m": float(longest[cell]),
+        })
+    return ProfileAnalysis(
+        channels=channels, base=base, theta=float(theta_value), theta_source=source, a0=float(a0),
+        concavity=conc, chi=chi, side=side, ksn=ksn, ksn_se=ksn_se, ksn_slope_area=ksn_sa, streams=streams,
+        knickpoints=knickpoints, n_candidate_breaks=len(candidates),
+        weights={} if weights is None else weights.description,
+    )
+
+
+
+def _channel_slopes(channels: Channels, keep: np.ndarray) -> np.ndarray:
+    """Smoothed channel gradient of every kept cell, stream by stream (NaN elsewhere)."""
+    slope = np.full(channels.size, np.nan)
+    half_window = 3.0 * float(np.max(channels.flow.dem.cell_size_m))
+    dist, z = channels.distance_upstream, channels.elevation
+    for nodes, tributary in longest_path_streams(channels.down, channels.step, keep):
+        if nodes.size >= 3:
+            first = 1 if tributary else 0
+            slope[nodes[first:]] = stream_slopes(dist[nodes], z[nodes], half_window_m=half_window)[first:]
+    return slope
+
+
+def network_concavity(channels: Channels, *, a0: float = 1.0, n_boot: int = 100, seed: int = 0) -> dict:
+    """Concavity of a DEM's whole channel network, each outlet's network from its own outlet.
+
+    Returns
+    -------
+    dict
+        ``"collinearity"`` and ``"slope_area"`` :class:`ConcavityEstimate` objects.
+    """
+    keep = np.ones(channels.size, dtype=bool)
+    root = _k.network_root(channels.down, keep)
+    z = channels.elevation - channels.elevation[root]
+    return {
+        "collinearity": concavity_by_collinearity(channels.down, channels.step, channels.area, z, keep,
+                                                  channels.link, a0=a0, n_boot=n_boot, seed=seed),
+        "slope_area": concavity_by_slope_area(channels.area, _channel_slopes(channels, keep)),
+    }
