@@ -30,6 +30,9 @@ _EXPORTS = {
     "resolve_side": "divides.assess.sides",
     "resolve_sides": "divides.assess.sides",
     "common_base_level": "divides.assess.sides",
+    "assess": "divides.assess.assessment",
+    "Assessment": "divides.assess.assessment",
+    "AssessConfig": "divides.config",
 }
 
 __all__ = sorted([*_EXPORTS, "__version__"])

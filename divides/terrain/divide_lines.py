@@ -84,13 +84,13 @@ class Divide:
         """Total number of vertices."""
         return int(sum(line.row.size for line in self.lines))
 
-    def nearest_cells(self, line: DivideLine, dem: Dem) -> tuple[np.ndarray, np.ndarray]:
-        """Flat index of the nearest a-cell and b-cell on the divide to each vertex of ``line``."""
+    def nearest_cells(self, row: np.ndarray, col: np.ndarray, dem: Dem) -> tuple[np.ndarray, np.ndarray]:
+        """Flat index of the nearest a-cell and b-cell on the divide to points at grid coordinates (row, col)."""
         cols = dem.shape[1]
         out = []
         for cells in (self.cells_a, self.cells_b):
             r, c = np.divmod(cells, cols)
-            _, j = cKDTree(np.column_stack([r, c])).query(np.column_stack([line.row, line.col]))
+            _, j = cKDTree(np.column_stack([r, c])).query(np.column_stack([row, col]))
             out.append(cells[j])
         return out[0], out[1]
 

@@ -1,0 +1,458 @@
+"""`assess`: the whole question for one divide, from DEM to verdict."""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import ndimage
+
+from divides.assess.contrasts import Contrast, block_bootstrap_mean, compute_contrasts, unique_points
+from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
+from divides.assess.points import DividePoints, sample_divide
+from divides.assess.rate import PLAUSIBLE_MM_PER_YR, Calibration, calibrate, migration_rate, step_celerity
+from divides.assess.sides import BaseLevel, Sides, common_base_level, parse_side, resolve_sides
+from divides.assess.verdict import CAUTION, Verdict, decide
+from divides.config import AssessConfig
+from divides.errors import SideError
+from divides.io.dem import Dem
+from divides.profiles.analysis import ProfileAnalysis, analyse_profiles
+from divides.profiles.chi import ChiWeights, chi_weights
+from divides.terrain.channels import Channels, extract_channels
+from divides.terrain.divide_lines import Divide, divide_between
+from divides.terrain.routing import FlowGraph, route
+
+__all__ = ["Assessment", "assess", "SCHEMA"]
+
+SCHEMA = "divides.assessment/1"
+
+
+@dataclass(eq=False)
+class Assessment:
+    """Everything the verdict on one divide rests on.
+
+    Attributes
+    ----------
+    config : AssessConfig
+    dem, flow, channels, sides, base, divide, profiles, points :
+        The intermediate results (see their classes).
+    contrasts : list of Contrast
+    verdict : Verdict
+    calibration : Calibration
+    rate : dict or None
+        ``low``, ``best``, ``high`` migration rate (mm/yr) toward the victim, and flags.
+    knickpoints : list of dict
+        Significant knickpoints with their arrival times at the divide.
+    equilibrium : EquilibriumDivide
+    robustness : list of dict
+        Each perturbed re-run: what was changed and the verdict it gave.
+    automatic : dict
+        Parameters chosen by the tool (θ, thresholds, spacing...).
+    """
+
+    config: AssessConfig
+    dem: Dem
+    flow: FlowGraph
+    channels: Channels
+    sides: Sides
+    base: BaseLevel
+    divide: Divide
+    profiles: ProfileAnalysis
+    points: DividePoints
+    contrasts: list
+    verdict: Verdict
+    calibration: Calibration
+    rate: dict | None
+    knickpoints: list
+    equilibrium: EquilibriumDivide
+    robustness: list = field(default_factory=list)
+    automatic: dict = field(default_factory=dict)
+
+    @property
+    def summary(self) -> dict:
+        """The ``summary.json`` document (schema ``divides.assessment/1``)."""
+        return self.to_dict()
+
+    def to_dict(self) -> dict:
+        """JSON-ready summary following the output contract of the design."""
+        dem = self.dem
+        theta_est = self.profiles.concavity.get("both")
+        theta_ci = theta_est.ci95 if (theta_est is not None and self.profiles.theta_source == "collinearity") \
+            else (None, None)
+        sides = {}
+        for name, side, kept in (("a", self.sides.a, self.base.kept_a), ("b", self.sides.b, self.base.kept_b)):
+            sides[name] = {
+                "spec": side.spec.text,
+                "area_km2": side.area_m2 / 1e6,
+                "n_channel_heads": int(np.count_nonzero(kept & (self.channels.n_donors == 0))),
+                "base_level_m": self.base.elevation_m,
+                "lowest_channel_m": self.base.lowest_a_m if name == "a" else self.base.lowest_b_m,
+                "snapped_points": side.snapped,
+            }
+        rate = None if self.rate is None else {k: self.rate[k] for k in ("low", "best", "high")}
+        return _clean({
+            "schema": SCHEMA,
+            "dem": {"path": dem.path, "crs": None if dem.crs is None else dem.crs.to_string(),
+                    "shape": list(dem.shape), "cell_size_m": list(dem.cell_size_m), "geographic": dem.geographic},
+            "parameters": {**self.config.to_dict(), **self.automatic},
+            "sides": sides,
+            "divide": {**self.divide.summary(), "n_samples": self.points.size, "saddles": self.divide.saddles},
+            "profiles": {
+                "theta": {"value": self.profiles.theta, "ci95": list(theta_ci),
+                          "method": self.profiles.theta_source},
+                "ksn": {"a": self.profiles.median_ksn("a"), "b": self.profiles.median_ksn("b")},
+                "concavity": {k: v.to_dict() for k, v in self.profiles.concavity.items()},
+                "n_streams": len(self.profiles.streams),
+            },
+            "contrasts": [c.to_dict() for c in self.contrasts],
+            "knickpoints": [
+                {k: kp[k] for k in ("side", "x", "y", "elevation_m", "distance_to_divide_m", "arrival_years",
+                                    "kind", "delta_ksn", "step_m", "p_value", "chi", "area_m2")}
+                for kp in self.knickpoints
+            ],
+            "equilibrium": self.equilibrium.summary(),
+            "robustness": {"share_kept": self.verdict.robustness_share, "runs": self.robustness},
+            "calibration": {"source": self.calibration.source, "notes": self.calibration.notes},
+            "conditioning": self.flow.conditioned.summary(),
+            "verdict": {
+                "moves_toward": self.verdict.moves_toward,
+                "aggressor": self.verdict.aggressor,
+                "confidence": self.verdict.confidence,
+                "rate_mm_per_yr": rate,
+                "basis": self.verdict.basis,
+                "long_run_tendency": self.verdict.long_run,
+                "rate_flags": [] if self.rate is None else self.rate["flags"],
+                "text": self.verdict.text,
+                "caution": CAUTION,
+            },
+        })
+
+
+def _clean(obj):
+    """Recursively turn numpy scalars into Python numbers and NaN/inf into None."""
+    if isinstance(obj, dict):
+        return {str(k): _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _clean(obj.tolist())
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return float(obj) if np.isfinite(obj) else None
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
+
+
+@dataclass(frozen=True)
+class _Core:
+    """One pass of the analysis (shared by the main run and the robustness re-runs)."""
+
+    flow: FlowGraph
+    channels: Channels
+    sides: Sides
+    base: BaseLevel
+    divide: Divide
+    profiles: ProfileAnalysis
+    points: DividePoints
+    contrasts: list
+    spacing_m: float
+    reference_area_m2: float
+    block_points: int
+
+
+def _core(
+    dem: Dem,
+    side_a: str,
+    side_b: str,
+    config: AssessConfig,
+    *,
+    lonlat: bool,
+    theta: float | str,
+    channel_area_m2: float | None,
+    weights_fn,
+    n_boot_theta: int,
+    flow: FlowGraph | None = None,
+) -> _Core:
+    if flow is None:
+        flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m)
+    channels = extract_channels(flow, threshold_m2=channel_area_m2)
+    sides = resolve_sides(flow, parse_side(side_a, lonlat=lonlat), parse_side(side_b, lonlat=lonlat),
+                          snap_radius_m=config.snap_radius_m)
+    base = common_base_level(channels, sides, elevation_m=config.base_level_m)
+    divide = divide_between(dem, sides.a.mask, sides.b.mask)
+    if not divide.lines:
+        raise SideError("the two sides touch only at isolated cells: no divide line could be traced")
+    weights = weights_fn(flow)
+    profiles = analyse_profiles(channels, sides, base, theta=theta, a0=config.a0_m2, weights=weights,
+                                vertical_resolution_m=max(config.dem_error_m, 0.0), n_boot=n_boot_theta,
+                                seed=config.seed)
+    cell = float(np.max(dem.cell_size_m))
+    spacing = config.divide_spacing_m or 2.0 * cell
+    reference = config.reference_area_m2 or channels.threshold.value_m2
+    points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
+                           reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
+                           relief_radius_m=config.relief_radius_m)
+    block_points = max(1, int(round((config.block_m or 10 * spacing) / spacing)))
+    contrasts = compute_contrasts(points, block_points=block_points, n_boot=config.n_bootstrap,
+                                  base_level_m=base.elevation_m, seed=config.seed)
+    return _Core(flow, channels, sides, base, divide, profiles, points, contrasts, spacing, reference, block_points)
+
+
+def _correlated_noise(shape: tuple[int, int], sigma: float, rng: np.random.Generator, length_cells: float = 2.0):
+    """Gaussian noise with standard deviation ``sigma`` correlated over a few cells."""
+    white = rng.standard_normal(shape)
+    smooth = ndimage.gaussian_filter(white, length_cells, mode="reflect")
+    sd = float(smooth.std()) or 1.0
+    return smooth * (sigma / sd)
+
+
+def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn) -> tuple[list[dict], float]:
+    """Re-run on perturbed inputs; return each run and the share keeping the main verdict."""
+    main = decide(core.contrasts).moves_toward
+    theta = core.profiles.theta
+    est = core.profiles.concavity.get("both")
+    if core.profiles.theta_source == "collinearity" and est is not None and np.all(np.isfinite(est.ci95)):
+        theta_lo, theta_hi = est.ci95
+    else:
+        theta_lo, theta_hi = max(theta - 0.1, 0.05), theta + 0.1  # common practice: θ known to about ±0.1
+    threshold = core.channels.threshold.value_m2
+    runs: list[tuple[str, dict]] = []
+    rng = np.random.default_rng(config.seed + 1)
+    for i in range(config.n_noise_runs if config.dem_error_m > 0 else 0):
+        runs.append((f"DEM noise σ = {config.dem_error_m:g} m (#{i + 1})", {"noise": i}))
+    runs += [(f"θ = {theta_lo:.2f}", {"theta": float(theta_lo)}), (f"θ = {theta_hi:.2f}", {"theta": float(theta_hi)}),
+             (f"channel area × ½ = {threshold / 2:.3g} m²", {"area": threshold / 2}),
+             (f"channel area × 2 = {threshold * 2:.3g} m²", {"area": threshold * 2})]
+    quick = dataclasses.replace(config, n_bootstrap=max(100, config.n_bootstrap // 4))
+    results = []
+    for label, change in runs:
+        run_dem = dem
+        flow = core.flow
+        if "noise" in change:
+            z = dem.elevation + _correlated_noise(dem.shape, config.dem_error_m, rng).astype(dem.elevation.dtype)
+            run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
+            flow = None
+        try:
+            run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
+                        channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
+                        flow=flow)
+            verdict = decide(run.contrasts).moves_toward
+        except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
+            verdict = f"failed: {exc}"
+        results.append({"change": label, "moves_toward": verdict, "kept": verdict == main})
+    share = sum(r["kept"] for r in results) / len(results) if results else 1.0
+    return results, float(share)
+
+
+def _side_samples(core: _Core, side: str, metric_values: np.ndarray, idx: np.ndarray, rng, n: int) -> np.ndarray:
+    """Block-bootstrap samples of a side's mean of a near-divide metric."""
+    vals = metric_values[idx]
+    vals = vals[np.isfinite(vals)]
+    if vals.size == 0:
+        return np.full(n, np.nan)
+    return block_bootstrap_mean(vals, block=core.block_points, n_boot=n, rng=rng)
+
+
+def _ksn_samples(profiles: ProfileAnalysis, side: str, rng, n: int) -> np.ndarray:
+    """Bootstrap over streams of the side's median ksn."""
+    code = 1 if side == "a" else 2
+    streams = [s for s in profiles.streams if s.side == side]
+    if not streams:
+        return np.full(n, np.nan)
+    values = [profiles.ksn[s.nodes][profiles.side[s.nodes] == code] for s in streams]
+    values = [v[np.isfinite(v)] for v in values]
+    values = [v for v in values if v.size]
+    if not values:
+        return np.full(n, np.nan)
+    out = np.empty(n)
+    for i in range(n):
+        pick = rng.integers(0, len(values), len(values))
+        out[i] = np.median(np.concatenate([values[j] for j in pick]))
+    return out
+
+
+def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
+    rng = np.random.default_rng(config.seed + 2)
+    n = 500
+    ksn_a = _ksn_samples(core.profiles, "a", rng, n)
+    ksn_b = _ksn_samples(core.profiles, "b", rng, n)
+    dated = None
+    if config.knickpoint_age_years is not None and core.profiles.knickpoints:
+        dated = max(core.profiles.knickpoints, key=lambda k: abs(k["t_slope"]) + abs(k["t_step"]))
+    cal = calibrate(ksn_a=ksn_a, ksn_b=ksn_b, n=config.n, erosion_rate_a_mm_yr=config.erosion_rate_a_mm_yr,
+                    erosion_rate_b_mm_yr=config.erosion_rate_b_mm_yr, erodibility=config.erodibility,
+                    knickpoint=dated, knickpoint_age_years=config.knickpoint_age_years)
+    rate = None
+    if cal.available:
+        grad_a, grad_b = core.points.values["hillslope_gradient"]
+        idx = unique_points(core.points, "hillslope_gradient")
+        tan_a = _side_samples(core, "a", grad_a, idx, rng, n)
+        tan_b = _side_samples(core, "b", grad_b, idx, rng, n)
+        v = migration_rate(cal.erosion_a, cal.erosion_b, tan_a, tan_b) * 1e3  # mm/yr toward b
+        toward = verdict.moves_toward if verdict.moves_toward in ("a", "b") else ("b" if np.nanmedian(v) >= 0 else "a")
+        v = v if toward == "b" else -v
+        lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
+        flags = []
+        if best <= 0:
+            flags.append("the erosion rates do not make the aggressor erode faster: rate and verdict disagree")
+        if not (PLAUSIBLE_MM_PER_YR[0] <= abs(best) <= PLAUSIBLE_MM_PER_YR[1]):
+            flags.append(f"implausible: measured divide migration rates span {PLAUSIBLE_MM_PER_YR[0]}–"
+                         f"{PLAUSIBLE_MM_PER_YR[1]} mm/yr (He et al. 2024)")
+        rate = {"low": lo, "best": best, "high": hi, "toward": toward, "flags": flags,
+                "erosion_a_mm_yr": float(np.nanmedian(cal.erosion_a) * 1e3),
+                "erosion_b_mm_yr": float(np.nanmedian(cal.erosion_b) * 1e3)}
+    knickpoints = []
+    chi_top = {}
+    for s in core.profiles.streams:
+        top = float(np.nanmax(core.profiles.chi[s.nodes]))
+        for node in s.nodes:
+            chi_top[int(node)] = max(chi_top.get(int(node), -np.inf), top)
+    for kp in core.profiles.knickpoints:
+        arrival = None
+        if cal.k is not None:
+            remaining = chi_top.get(kp["position"], kp["chi"]) - kp["chi"]
+            speed = cal.k * float(step_celerity(kp["ksn_below"], kp["ksn_above"], config.n)) * config.a0_m2 ** (
+                config.n * core.profiles.theta)
+            years = remaining / speed
+            lo, best, hi = (float(x) for x in np.nanpercentile(years, [2.5, 50, 97.5]))
+            arrival = {"low": lo, "best": best, "high": hi}
+        knickpoints.append({**kp, "arrival_years": arrival})
+    return cal, rate, knickpoints
+
+
+def _fmt(v: float, unit: str) -> str:
+    if unit == "m/m":
+        return f"{v:.3f}"
+    if abs(v) >= 100:
+        return f"{v:,.0f} {unit}"
+    return f"{v:.3g} {unit}".strip()
+
+
+def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
+          equilibrium: EquilibriumDivide, cal: Calibration) -> str:
+    names = {"a": f"side a ({sides.a.spec.text})", "b": f"side b ({sides.b.spec.text})"}
+    by = {c.metric: c for c in contrasts}
+    lines = []
+    if verdict.moves_toward in ("a", "b"):
+        victim, aggressor = verdict.moves_toward, verdict.aggressor
+        strength = "strong" if verdict.confidence >= 0.8 else "moderate" if verdict.confidence >= 0.5 else "weak"
+        if verdict.basis == "near-divide":
+            lines.append(f"The divide is moving toward {names[victim]}: {names[aggressor]} is the aggressor, "
+                         f"eroding headward into {names[victim]} (confidence {verdict.confidence:.2f}, {strength}).")
+            lines.append(f"{len(verdict.agreeing)} of 4 near-divide measures agree"
+                         + (f" and {len(verdict.disagreeing)} disagree" if verdict.disagreeing else "") + ".")
+        else:
+            lines.append(f"No near-divide measure shows present motion, but χ points toward {names[victim]}: "
+                         f"a long-run tendency for {names[aggressor]} to gain ground "
+                         f"(confidence {verdict.confidence:.2f}, {strength}).")
+    elif verdict.moves_toward == "stable":
+        lines.append(f"No measure differs significantly across the divide: it appears stable "
+                     f"(confidence {verdict.confidence:.2f}).")
+    else:
+        lines.append("The evidence conflicts: near-divide measures point both ways, so the direction is "
+                     "undetermined.")
+    for c in contrasts:
+        if not np.isfinite(c.difference):
+            lines.append(f"- {c.metric.replace('_', ' ')}: not enough points on both sides.")
+            continue
+        sense = "no significant difference" if c.moves_toward == "none" else f"points toward side {c.moves_toward}"
+        lines.append(f"- {c.metric.replace('_', ' ')}: a {_fmt(c.a, c.unit)}, b {_fmt(c.b, c.unit)}, "
+                     f"difference {_fmt(c.difference, c.unit)} (95 % interval {_fmt(c.ci95[0], c.unit)} to "
+                     f"{_fmt(c.ci95[1], c.unit)}); {sense} (rule: divide moves toward {c.rule}).")
+    chi = by.get("chi")
+    if chi is not None and verdict.basis == "near-divide" and verdict.long_run not in ("none", verdict.moves_toward):
+        lines.append(f"χ alone points the other way (toward side {verdict.long_run}): the present motion may "
+                     "reverse in the long run, or uplift, erodibility or climate differ across the divide.")
+    if verdict.robustness_share is not None:
+        lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed DEM, θ and channel "
+                     "threshold kept this verdict.")
+    if rate is not None:
+        lines.append(f"Migration rate toward side {rate['toward']}: {rate['best']:.3g} mm/yr "
+                     f"(95 % interval {rate['low']:.3g} to {rate['high']:.3g}) from {cal.source}.")
+        lines += [f"Note: {f}." for f in rate["flags"]]
+    else:
+        lines.append("No rate: give a measured erosion rate of either side (--erosion-rate-a/-b, mm/yr), an "
+                     "erodibility K, or the age of a knickpoint to turn steepness into rates and years.")
+    timed = [k for k in knickpoints if k["arrival_years"] is not None]
+    if knickpoints:
+        lines.append(f"{len(knickpoints)} significant knickpoint(s) are migrating up the channels"
+                     + (f"; the nearest arrival at a channel head is in about {min(k['arrival_years']['best'] for k in timed):,.0f} "
+                        "years" if timed else "") + ". When they reach the divide the contrasts above will change.")
+    eq = equilibrium.summary()
+    if eq["median_distance_m"] is not None:
+        lines.append(f"Equilibrium divide (first-order): about {eq['median_distance_m']:,.0f} m "
+                     f"from the present divide, toward side {eq['toward']}.")
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+def assess(
+    dem: Dem,
+    side_a: str,
+    side_b: str,
+    *,
+    lonlat: bool = False,
+    runoff: np.ndarray | None = None,
+    erodibility_raster: np.ndarray | None = None,
+    uplift_raster: np.ndarray | None = None,
+    **options,
+) -> Assessment:
+    """Assess whether the divide between two sides of a DEM is stable or moving.
+
+    Parameters
+    ----------
+    dem : Dem
+    side_a, side_b : str
+        Side SPECs: an edge (``north``, ``south``, ``east``, ``west``) or points ``x,y;x,y``.
+    lonlat : bool
+        SPEC points are longitude,latitude.
+    runoff, erodibility_raster, uplift_raster : ndarray, optional
+        Rasters on the DEM grid weighting χ (see :func:`divides.profiles.chi_weights`).
+    **options
+        Any field of :class:`divides.config.AssessConfig` (``theta``, ``channel_area_m2``,
+        ``reference_area_m2``, ``base_level_m``, ``dem_error_m``, ``erosion_rate_a_mm_yr`` …).
+
+    Returns
+    -------
+    Assessment
+        ``result.summary`` is the ``summary.json`` document; ``result.verdict`` the verdict.
+    """
+    config = AssessConfig.from_options(**options)
+
+    def weights_fn(flow: FlowGraph) -> ChiWeights | None:
+        if runoff is None and erodibility_raster is None and uplift_raster is None:
+            return None
+        return chi_weights(flow, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster, n=config.n)
+
+    core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
+                 channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100)
+    runs, share = ([], None)
+    if config.robustness:
+        runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn)
+    verdict = decide(core.contrasts, robustness_share=share)
+    cal, rate, knickpoints = _rate_and_timing(core, config, verdict)
+    equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
+                                     reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
+    verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
+                                                      equilibrium, cal))
+    automatic = {
+        "theta_used": core.profiles.theta,
+        "theta_source": core.profiles.theta_source,
+        "channel_area_used_m2": core.channels.threshold.value_m2,
+        "channel_area_source": core.channels.threshold.source,
+        "channel_area_reason": core.channels.threshold.reason,
+        "reference_area_used_m2": core.reference_area_m2,
+        "base_level_used_m": core.base.elevation_m,
+        "base_level_source": core.base.source,
+        "divide_spacing_used_m": core.spacing_m,
+        "block_points": core.block_points,
+        "lonlat": lonlat,
+        "weights": core.profiles.weights,
+    }
+    return Assessment(config=config, dem=dem, flow=core.flow, channels=core.channels, sides=core.sides,
+                      base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
+                      contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
+                      knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic)

@@ -1,0 +1,206 @@
+"""Sample points along a divide and the metrics read on each side of each point."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import ndimage
+
+from divides.assess import _assess_kernels as _k
+from divides.terrain.divide_lines import Divide
+from divides.terrain.routing import FlowGraph
+
+__all__ = ["DividePoints", "sample_divide", "upstream_mean", "gradient_magnitude", "local_relief", "METRICS"]
+
+#: Metric name -> (unit, which side the divide moves toward).
+#: Willett et al. (2014) for χ; Forte & Whipple (2018) for the near-divide metrics;
+#: Scherler & Schwanghart (2020) for hillslope relief.
+METRICS = {
+    "chi": ("m", "higher"),
+    "channel_elevation": ("m", "higher"),
+    "hillslope_gradient": ("m/m", "lower"),
+    "local_relief": ("m", "lower"),
+    "hillslope_relief": ("m", "lower"),
+}
+
+
+def gradient_magnitude(flow: FlowGraph) -> np.ndarray:
+    """Topographic gradient (m/m) of the raw DEM by central differences (NaN at nodata)."""
+    dem = flow.dem
+    z = np.where(dem.valid, dem.elevation, np.nan).astype(np.float64)
+    gy, gx = np.gradient(z)
+    return np.hypot(gx / dem.dx[:, None], gy / dem.dy[:, None])
+
+
+def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
+    """Maximum minus minimum elevation in a square window of half-width ``radius_m`` (m)."""
+    dem = flow.dem
+    k = max(1, int(round(radius_m / float(np.median(dem.dy)))))
+    kx = max(1, int(round(radius_m / float(np.median(dem.dx)))))
+    z = dem.elevation.astype(np.float64)
+    hi = ndimage.maximum_filter(np.where(dem.valid, z, -np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+    lo = ndimage.minimum_filter(np.where(dem.valid, z, np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+    relief = hi - lo
+    relief[~dem.valid | ~np.isfinite(relief)] = np.nan
+    return relief
+
+
+def upstream_mean(flow: FlowGraph, field_: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """Mean of a field over the cells draining through each of ``cells`` (NaN values skipped).
+
+    Each cell's upstream area is a contiguous run of the depth-first order, so
+    one prefix sum over the order answers every query in O(1).
+    """
+    values = np.asarray(field_, dtype=np.float64).ravel()[flow.order]
+    good = np.isfinite(values)
+    csum = np.concatenate([[0.0], np.cumsum(np.where(good, values, 0.0))])
+    ccount = np.concatenate([[0], np.cumsum(good)])
+    cells = np.asarray(cells, dtype=np.int64)
+    out = np.full(cells.size, np.nan)
+    ok = cells >= 0
+    p = flow.order_position[cells[ok]].astype(np.int64)
+    c = flow.upstream_count[cells[ok]].astype(np.int64)
+    n = ccount[p + c] - ccount[p]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out[ok] = np.where(n > 0, (csum[p + c] - csum[p]) / n, np.nan)
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class DividePoints:
+    """Points along a divide with the metrics of both sides.
+
+    Attributes
+    ----------
+    x, y : ndarray
+        Point coordinates (DEM CRS).
+    line, distance_m : ndarray
+        Divide line of each point and distance along it (m).
+    elevation_m : ndarray
+        Divide elevation at the point.
+    cell_a, cell_b : ndarray of int
+        Nearest divide cell on each side.
+    head_a, head_b : ndarray of int
+        First channel cell on each side's flow path (-1 if none).
+    ref_a, ref_b : ndarray of int
+        First cell reaching the reference area on each side's flow path (-1 if none).
+    values : dict
+        Metric name -> (values on side a, values on side b), one per point (NaN when unavailable).
+    normal : ndarray, shape (N, 2)
+        Unit normal (dx, dy in metres, east and north) pointing from side a into side b.
+    """
+
+    x: np.ndarray
+    y: np.ndarray
+    line: np.ndarray
+    distance_m: np.ndarray
+    elevation_m: np.ndarray
+    cell_a: np.ndarray
+    cell_b: np.ndarray
+    head_a: np.ndarray
+    head_b: np.ndarray
+    ref_a: np.ndarray
+    ref_b: np.ndarray
+    normal: np.ndarray
+    values: dict = field(default_factory=dict)
+
+    @property
+    def size(self) -> int:
+        """Number of points."""
+        return int(self.x.size)
+
+
+def sample_divide(
+    flow: FlowGraph,
+    divide: Divide,
+    *,
+    spacing_m: float,
+    channel_area_m2: float,
+    reference_area_m2: float,
+    chi_grid: np.ndarray,
+    relief_radius_m: float,
+) -> DividePoints:
+    """Sample a divide every ``spacing_m`` and read each metric on both sides.
+
+    On each side the flow path from the nearest divide cell is followed down
+    to the first channel cell (χ, and the hillslope relief: divide elevation
+    minus that cell's elevation; Scherler & Schwanghart 2020) and to the first
+    cell reaching the reference area (its elevation, and the mean gradient and
+    local relief of everything upstream of it; Forte & Whipple 2018).
+
+    Parameters
+    ----------
+    flow : FlowGraph
+    divide : Divide
+    spacing_m : float
+        Distance between points along each line (m).
+    channel_area_m2, reference_area_m2 : float
+        Channel threshold and the area at which near-divide metrics are read.
+    chi_grid : ndarray
+        χ on the DEM grid (NaN off the counted channels).
+    relief_radius_m : float
+        Half-width of the local-relief window.
+    """
+    dem = flow.dem
+    cols = dem.shape[1]
+    parts = {k: [] for k in ("row", "col", "line", "dist", "z", "ca", "cb", "nx", "ny")}
+    for li, line in enumerate(divide.lines):
+        if line.distance_m.size < 2 or line.length_m <= 0:
+            continue
+        d = np.arange(0.5 * min(spacing_m, line.length_m), line.length_m, spacing_m)
+        if d.size == 0:
+            continue
+        row = np.interp(d, line.distance_m, line.row)
+        col = np.interp(d, line.distance_m, line.col)
+        # direction of the line, in metres east/north; b lies to the right of the walking direction
+        drow = np.gradient(np.interp(d, line.distance_m, line.row))
+        dcol = np.gradient(np.interp(d, line.distance_m, line.col))
+        rows_i = np.clip(np.round(row).astype(int), 0, dem.shape[0] - 1)
+        east = dcol * dem.dx[rows_i]
+        north = -drow * dem.dy[rows_i]
+        norm = np.hypot(east, north)
+        norm[norm == 0] = 1.0
+        ca, cb = divide.nearest_cells(row, col, dem)
+        parts["row"].append(row)
+        parts["col"].append(col)
+        parts["line"].append(np.full(d.size, li))
+        parts["dist"].append(d)
+        parts["z"].append(np.interp(d, line.distance_m, line.elevation_m))
+        parts["ca"].append(ca)
+        parts["cb"].append(cb)
+        parts["nx"].append(north / norm)  # right-hand normal of (east, north) is (north, -east)
+        parts["ny"].append(-east / norm)
+    if not parts["row"]:
+        raise ValueError("the divide has no line long enough to sample")
+    cat = {k: np.concatenate(v) for k, v in parts.items()}
+    x, y = dem.xy(cat["row"], cat["col"])
+    area = flow.area.ravel()
+    rec = flow.receivers
+    heads, refs = {}, {}
+    for s, cells in (("a", cat["ca"]), ("b", cat["cb"])):
+        cells = cells.astype(np.int64)
+        heads[s] = _k.walk_to_area(cells, rec, area, float(channel_area_m2))
+        refs[s] = _k.walk_to_area(cells, rec, area, float(reference_area_m2))
+    z = dem.elevation.ravel().astype(np.float64)
+    chi_flat = chi_grid.ravel()
+    gradient = gradient_magnitude(flow)
+    relief = local_relief(flow, relief_radius_m)
+    values = {}
+
+    def at(arr, cells):
+        out = np.full(cells.size, np.nan)
+        ok = cells >= 0
+        out[ok] = arr[cells[ok]]
+        return out
+
+    values["chi"] = (at(chi_flat, heads["a"]), at(chi_flat, heads["b"]))
+    values["channel_elevation"] = (at(z, refs["a"]), at(z, refs["b"]))
+    values["hillslope_gradient"] = (upstream_mean(flow, gradient, refs["a"]), upstream_mean(flow, gradient, refs["b"]))
+    values["local_relief"] = (upstream_mean(flow, relief, refs["a"]), upstream_mean(flow, relief, refs["b"]))
+    values["hillslope_relief"] = (cat["z"] - at(z, heads["a"]), cat["z"] - at(z, heads["b"]))
+    return DividePoints(
+        x=np.asarray(x), y=np.asarray(y), line=cat["line"], distance_m=cat["dist"], elevation_m=cat["z"],
+        cell_a=cat["ca"], cell_b=cat["cb"], head_a=heads["a"], head_b=heads["b"], ref_a=refs["a"],
+        ref_b=refs["b"], normal=np.column_stack([cat["nx"], cat["ny"]]), values=values,
+    )

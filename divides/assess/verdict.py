@@ -1,0 +1,117 @@
+"""The verdict: combining across-divide contrasts into a direction and a confidence."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from divides.assess.contrasts import Contrast
+
+__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION"]
+
+#: Metrics of the present state of the divide (Forte & Whipple 2018; Scherler & Schwanghart 2020).
+NEAR_DIVIDE_METRICS = ("channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")
+
+#: The caution every verdict carries.
+CAUTION = (
+    "This is a screening result from a DEM, not a site investigation: verify it in the field, and let "
+    "local codes and licensed professionals decide on any hazard, infrastructure or land-use question."
+)
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """Which way the divide moves, how sure we are, and why.
+
+    Attributes
+    ----------
+    moves_toward : str
+        ``"a"`` or ``"b"`` (the victim side), ``"stable"`` or ``"undetermined"``.
+    aggressor : str or None
+        The side eroding into the other.
+    confidence : float
+        0–1; see :func:`decide` for how it is built.
+    basis : str
+        ``"near-divide"`` (present motion), ``"chi"`` (long-run tendency only),
+        ``"none"`` (stable) or ``"conflict"``.
+    long_run : str
+        Direction χ alone indicates: ``"a"``, ``"b"`` or ``"none"``.
+    agreeing, disagreeing : tuple of str
+        Near-divide metrics pointing with and against the verdict.
+    robustness_share : float or None
+        Share of perturbed re-runs that kept ``moves_toward`` (None when not run).
+    text : str
+        The verdict in plain words (filled in by the assessment).
+    """
+
+    moves_toward: str
+    aggressor: str | None
+    confidence: float
+    basis: str
+    long_run: str
+    agreeing: tuple = ()
+    disagreeing: tuple = ()
+    robustness_share: float | None = None
+    text: str = ""
+    notes: list = field(default_factory=list)
+
+
+def _other(side: str) -> str:
+    return "b" if side == "a" else "a"
+
+
+def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) -> Verdict:
+    """Combine the contrasts by the documented rule.
+
+    Rule
+    ----
+    1. Near-divide metrics (channel elevation at the reference area, mean
+       upstream gradient, local relief, hillslope relief) speak for the
+       present motion; χ for the long-run tendency (Forte & Whipple 2018).
+    2. If the significant near-divide metrics all point one way, or one way
+       by at least three to one, that is the direction. Any closer split is
+       ``"undetermined"``.
+    3. If no near-divide metric is significant but χ is, the direction is χ's,
+       flagged as a long-run tendency only, with a low confidence.
+    4. If nothing is significant, the divide is ``"stable"``.
+
+    Confidence
+    ----------
+    Direction from near-divide metrics: 0.35 + 0.15 per agreeing metric
+    − 0.15 per disagreeing one, +0.05 if χ agrees, −0.15 if χ disagrees;
+    χ alone: 0.4; stable: 0.7; undetermined: 0. The result, kept in 0–0.97,
+    is multiplied by the share of robustness re-runs that kept the same
+    verdict (by 0.8 when robustness was not checked), so a verdict that a
+    plausible change of input overturns cannot keep a high confidence.
+    """
+    by_name = {c.metric: c for c in contrasts}
+    chi = by_name.get("chi")
+    long_run = chi.moves_toward if chi is not None else "none"
+    votes = {"a": [], "b": []}
+    for name in NEAR_DIVIDE_METRICS:
+        c = by_name.get(name)
+        if c is not None and c.moves_toward in votes:
+            votes[c.moves_toward].append(name)
+    n_a, n_b = len(votes["a"]), len(votes["b"])
+    if n_a or n_b:
+        major = "a" if n_a > n_b else "b"
+        n_major, n_minor = max(n_a, n_b), min(n_a, n_b)
+        if n_minor == 0 or n_major >= 3 * n_minor:
+            score = 0.35 + 0.15 * n_major - 0.15 * n_minor
+            if long_run == major:
+                score += 0.05
+            elif long_run == _other(major):
+                score -= 0.15
+            toward, basis = major, "near-divide"
+            agreeing, disagreeing = tuple(votes[major]), tuple(votes[_other(major)])
+        else:
+            toward, basis, score = "undetermined", "conflict", 0.0
+            agreeing, disagreeing = tuple(votes["a"]), tuple(votes["b"])
+    elif long_run in ("a", "b"):
+        toward, basis, score, agreeing, disagreeing = long_run, "chi", 0.4, (), ()
+    else:
+        toward, basis, score, agreeing, disagreeing = "stable", "none", 0.7, (), ()
+    score = min(max(score, 0.0), 0.97)
+    score *= 0.8 if robustness_share is None else robustness_share
+    aggressor = _other(toward) if toward in ("a", "b") else None
+    return Verdict(toward, aggressor, round(float(score), 3), basis, long_run, agreeing, disagreeing,
+                   robustness_share)

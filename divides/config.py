@@ -1,0 +1,146 @@
+"""Every tunable parameter of an assessment, with defaults, units and validation."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field, fields
+
+from divides.errors import ParameterError
+
+__all__ = ["AssessConfig"]
+
+
+def _positive(name: str, value: float | None, *, allow_none: bool = True, allow_zero: bool = False) -> None:
+    if value is None:
+        if allow_none:
+            return
+        raise ParameterError(f"{name} is required")
+    if not isinstance(value, (int, float)) or isinstance(value, bool) or not math.isfinite(value) or \
+            value < 0 or (value == 0 and not allow_zero):
+        raise ParameterError(f"{name} must be a {'non-negative' if allow_zero else 'positive'} number; got {value!r}")
+
+
+@dataclass(frozen=True)
+class AssessConfig:
+    """Parameters of :func:`divides.assess`. SI units (m, m², years) unless the name says otherwise.
+
+    Attributes
+    ----------
+    theta : float or "auto"
+        Concavity m/n for χ and ksn; "auto" estimates it by collinearity; default 0.45 (common practice).
+    n : float
+        Slope exponent of the stream-power law (1 unless known otherwise).
+    a0_m2 : float
+        Reference drainage area of χ (1 m², so the χ–z slope is ksn).
+    channel_area_m2 : float or None
+        Channel threshold; None reads it from slope–area data.
+    reference_area_m2 : float or None
+        Drainage area at which near-divide metrics are read; None = the channel threshold.
+    base_level_m : float or None
+        Common base level; None = the higher of the sides' lowest channel cells.
+    dem_error_m : float
+        Vertical standard error of the DEM (m), used for robustness noise and as the
+        least step height of a knickpoint.
+    relief_radius_m : float
+        Half-width of the square window of local relief.
+    divide_spacing_m : float or None
+        Spacing of divide sample points; None = two cells.
+    block_m : float or None
+        Block length of the bootstrap along the divide; None = 10 sample spacings.
+    n_bootstrap : int
+        Bootstrap resamples of each contrast.
+    robustness : bool
+        Re-run on perturbed inputs (DEM noise, θ interval, threshold ×½ and ×2).
+    n_noise_runs : int
+        DEM-noise re-runs in the robustness check.
+    erosion_rate_a_mm_yr, erosion_rate_b_mm_yr : float or None
+        Measured erosion rates (mm/yr) calibrating K (one) or given directly (both).
+    erodibility : float or None
+        K of E = K ksn^n in SI units (m^(1-2m)/yr for n = 1), if known.
+    knickpoint_age_years : float or None
+        Age of the most significant knickpoint, to calibrate K from its travel in χ.
+    sea_level_m : float or None
+        Cells at or below it are outlets.
+    conditioning : str
+        "fill" or "breach".
+    snap_radius_m : float or None
+        Snapping radius of side points; None = five cells.
+    seed : int
+        Random seed of every bootstrap and perturbation.
+    """
+
+    theta: float | str = 0.45
+    n: float = 1.0
+    a0_m2: float = 1.0
+    channel_area_m2: float | None = None
+    reference_area_m2: float | None = None
+    base_level_m: float | None = None
+    dem_error_m: float = 1.0
+    relief_radius_m: float = 500.0
+    divide_spacing_m: float | None = None
+    block_m: float | None = None
+    n_bootstrap: int = 400
+    robustness: bool = True
+    n_noise_runs: int = 3
+    erosion_rate_a_mm_yr: float | None = None
+    erosion_rate_b_mm_yr: float | None = None
+    erodibility: float | None = None
+    knickpoint_age_years: float | None = None
+    sea_level_m: float | None = None
+    conditioning: str = "fill"
+    snap_radius_m: float | None = None
+    seed: int = 0
+    extra: dict = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        if isinstance(self.theta, str):
+            if self.theta != "auto":
+                raise ParameterError(f"theta must be a number between 0 and 2 or 'auto'; got {self.theta!r}")
+        elif not (isinstance(self.theta, (int, float)) and math.isfinite(self.theta) and 0 < self.theta <= 2):
+            raise ParameterError(f"theta must be a number between 0 and 2 or 'auto'; got {self.theta!r}")
+        _positive("n (slope exponent)", self.n, allow_none=False)
+        if not 0.5 <= self.n <= 4:
+            raise ParameterError(f"n (slope exponent) must be between 0.5 and 4; got {self.n!r}")
+        _positive("a0 (reference area, m²)", self.a0_m2, allow_none=False)
+        for name in ("channel_area_m2", "reference_area_m2", "divide_spacing_m", "block_m", "erodibility",
+                     "knickpoint_age_years", "snap_radius_m"):
+            _positive(name, getattr(self, name))
+        _positive("dem_error_m", self.dem_error_m, allow_none=False, allow_zero=True)
+        _positive("relief_radius_m", self.relief_radius_m, allow_none=False)
+        for name in ("erosion_rate_a_mm_yr", "erosion_rate_b_mm_yr"):
+            value = getattr(self, name)
+            _positive(name, value)
+            if value is not None and value > 1000:
+                raise ParameterError(f"{name} = {value} mm/yr is not an erosion rate (accepted: 0 < rate <= 1000 mm/yr)")
+        for name in ("base_level_m", "sea_level_m"):
+            value = getattr(self, name)
+            if value is not None and not (isinstance(value, (int, float)) and math.isfinite(value)):
+                raise ParameterError(f"{name} must be a finite elevation in metres; got {value!r}")
+        if not isinstance(self.n_bootstrap, int) or self.n_bootstrap < 50:
+            raise ParameterError(f"n_bootstrap must be a whole number >= 50; got {self.n_bootstrap!r}")
+        if not isinstance(self.n_noise_runs, int) or self.n_noise_runs < 0:
+            raise ParameterError(f"n_noise_runs must be a whole number >= 0; got {self.n_noise_runs!r}")
+        if self.conditioning not in ("fill", "breach"):
+            raise ParameterError(f"conditioning must be 'fill' or 'breach'; got {self.conditioning!r}")
+        if not isinstance(self.seed, int) or isinstance(self.seed, bool):
+            raise ParameterError(f"seed must be a whole number; got {self.seed!r}")
+        calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \
+            (self.erosion_rate_a_mm_yr is not None or self.erosion_rate_b_mm_yr is not None)
+        if calibrations > 1:
+            raise ParameterError("give one calibration of erosion: erosion rate(s), erodibility K, "
+                                 "or a knickpoint age — not several")
+
+    @classmethod
+    def from_options(cls, **options) -> AssessConfig:
+        """Build from keyword options, refusing unknown names with the list of accepted ones."""
+        names = {f.name for f in fields(cls)} - {"extra"}
+        unknown = sorted(set(options) - names)
+        if unknown:
+            raise ParameterError(f"unknown option(s) {', '.join(unknown)}; accepted: {', '.join(sorted(names))}")
+        return cls(**options)
+
+    def to_dict(self) -> dict:
+        """JSON-ready parameters."""
+        out = asdict(self)
+        out.pop("extra")
+        return out
