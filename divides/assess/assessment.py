@@ -74,6 +74,17 @@ class Assessment:
         """The ``summary.json`` document (schema ``divides.assessment/1``)."""
         return self.to_dict()
 
+    def write(self, out_dir, *, overwrite: bool = False, progress=None):
+        """Write every output (summary.json, verdict.txt, report.html, figures, layers, rasters, tables).
+
+        Writing is atomic: files go to a temporary directory beside ``out_dir``
+        that replaces it only when everything is written. An existing
+        ``out_dir`` is refused unless ``overwrite``. Returns the output path.
+        """
+        from divides.report.writer import write_assessment
+
+        return write_assessment(self, out_dir, overwrite=overwrite, progress=progress)
+
     def to_dict(self) -> dict:
         """JSON-ready summary following the output contract of the design."""
         dem = self.dem
