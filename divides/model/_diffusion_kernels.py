@@ -1,4 +1,4 @@
-"""Numba kernel for implicit linear hillslope diffusion (Douglas alternating-direction scheme).
+"""Numba kernel for implicit linear hillslope diffusion (backward Euler, conjugate gradients).
 
 Cell kinds (uint8): ``ACTIVE`` cells are updated; ``FIXED`` cells hold their
 value (Dirichlet: outlets at base level); ``WALL`` and ``INVALID`` cells take
@@ -8,6 +8,7 @@ their four edge neighbours exist, so no bounds checks are needed.
 
 from __future__ import annotations
 
+import numpy as np
 from numba import njit
 
 ACTIVE = 0
@@ -17,26 +18,41 @@ INVALID = 3
 
 
 @njit(cache=True, inline="always")
-def _open(kind_a, kind_b):
-    """A face conducts when both sides take part (active or fixed)."""
-    return kind_a <= FIXED and kind_b <= FIXED
+def _conducts(kind_nb):
+    """A face of an active cell conducts when the neighbour takes part (active or fixed)."""
+    return kind_nb <= FIXED
 
 
 @njit(cache=True)
-def douglas_step(z, kind, rows, cols, gx, gy, inv_area, dt, y1, cp, line_c, line_d):
-    """One step of dz/dt = (1/A) div(D grad z) by the Douglas ADI scheme.
+def active_cells(kind):
+    """Flat indices of the active cells."""
+    count = 0
+    for i in range(kind.size):
+        if kind[i] == ACTIVE:
+            count += 1
+    out = np.empty(count, dtype=np.int64)
+    k = 0
+    for i in range(kind.size):
+        if kind[i] == ACTIVE:
+            out[k] = i
+            k += 1
+    return out
 
-    With Lx, Ly the east-west and north-south parts of the finite-volume
-    operator, the scheme solves
 
-        (I - dt Lx) y1 = z + dt Ly z
-        (I - dt Ly) z' = y1 - dt Ly z
+@njit(cache=True)
+def backward_euler_step(z, kind, active, cols, gx, gy, area, dt, rtol, max_iter, r, p, q, diag):
+    """One backward-Euler step of A dz/dt = div(D grad z), solved by conjugate gradients.
 
-    so that ``z' - z = dt (Lx y1 + Ly z')``: unconditionally stable, its
-    steady state is exactly the discrete steady state, and each Fourier
-    mode is damped by a factor in (0, 1] (no sign-flipping oscillation).
-    Both systems are tridiagonal (Thomas algorithm); the north-south sweep
-    runs across all columns at once so memory is read row by row.
+    For each active cell i (area A_i) the new surface z' satisfies
+
+        A_i (z'_i - z_i) = dt * sum over conducting faces f of g_f (z'_nb - z'_i)
+
+    with g_f the face conductance (m²/yr) and fixed neighbours at their
+    value. Multiplied through by the areas the system is symmetric positive
+    definite, so it is solved matrix-free by conjugate gradients with a
+    Jacobi (diagonal) preconditioner, starting from z. Backward Euler damps
+    every mode monotonically and its fixed point with any operator-split
+    source is the exact discrete steady state, whatever the step.
 
     Parameters
     ----------
@@ -44,103 +60,122 @@ def douglas_step(z, kind, rows, cols, gx, gy, inv_area, dt, y1, cp, line_c, line
         Elevations (rows * cols), updated in place.
     kind : uint8[:]
         ACTIVE / FIXED / WALL / INVALID per cell.
+    active : int64[:]
+        Flat indices of the active cells.
+    cols : int
+        Grid width.
     gx : float64[:]
-        Per row: conductance D dy / dx of an east-west face (m²/yr).
+        Per row: conductance of an east-west face, D dy / dx.
     gy : float64[:]
-        Per row r < rows - 1: conductance D w / d of the face between rows r
-        and r + 1 (face width w, centre distance d).
-    inv_area : float64[:]
-        Per row: 1 / cell area (1/m²).
+        Per row r < rows - 1: conductance of the face between rows r and r + 1.
+    area : float64[:]
+        Per row: cell area (m²).
     dt : float
         Time step (years).
-    y1, cp : float64[:]
+    rtol : float
+        Stop when every cell's preconditioned residual (an elevation
+        correction, m) is below ``rtol * max(1, max |z|)``.
+    max_iter : int
+        Iteration cap.
+    r, p, q, diag : float64[:]
         Work arrays of rows * cols.
-    line_c, line_d : float64[:]
-        Work arrays of at least ``cols``.
 
     Returns
     -------
     outflow : float
         Volume (m³) leaving the active cells through faces with fixed cells.
+    iterations : int
+        Conjugate-gradient iterations taken.
     """
+    n_act = active.size
+    zmax = 1.0
+    for k in range(n_act):
+        v = abs(z[active[k]])
+        if v > zmax:
+            zmax = v
+    tol = rtol * zmax
+    # Residual of the start z: rhs - M z = -dt * sum g (z_i - z_nb); diagonal; p = 0 off the active set.
+    rs = 0.0
+    worst = 0.0
+    for k in range(n_act):
+        i = active[k]
+        row = i // cols
+        d = area[row]
+        flux = 0.0
+        g = dt * gx[row]
+        if _conducts(kind[i - 1]):
+            d += g
+            flux += g * (z[i - 1] - z[i])
+        if _conducts(kind[i + 1]):
+            d += g
+            flux += g * (z[i + 1] - z[i])
+        g = dt * gy[row - 1]
+        if _conducts(kind[i - cols]):
+            d += g
+            flux += g * (z[i - cols] - z[i])
+        g = dt * gy[row]
+        if _conducts(kind[i + cols]):
+            d += g
+            flux += g * (z[i + cols] - z[i])
+        diag[i] = d
+        r[i] = flux
+        s = flux / d
+        p[i] = s
+        rs += flux * s
+        if abs(s) > worst:
+            worst = abs(s)
+    for k in range(kind.size):
+        if kind[k] != ACTIVE:
+            p[k] = 0.0
+            q[k] = 0.0
+    iterations = 0
+    while worst > tol and iterations < max_iter:
+        iterations += 1
+        # q = M p (fixed and wall neighbours hold p = 0, so they only add to the diagonal)
+        pq = 0.0
+        for k in range(n_act):
+            i = active[k]
+            row = i // cols
+            v = diag[i] * p[i]
+            g = dt * gx[row]
+            if kind[i - 1] == ACTIVE:
+                v -= g * p[i - 1]
+            if kind[i + 1] == ACTIVE:
+                v -= g * p[i + 1]
+            if kind[i - cols] == ACTIVE:
+                v -= dt * gy[row - 1] * p[i - cols]
+            if kind[i + cols] == ACTIVE:
+                v -= dt * gy[row] * p[i + cols]
+            q[i] = v
+            pq += p[i] * v
+        if pq <= 0.0:
+            break  # converged to round-off (p vanished)
+        alpha = rs / pq
+        rs_new = 0.0
+        worst = 0.0
+        for k in range(n_act):
+            i = active[k]
+            z[i] += alpha * p[i]
+            r[i] -= alpha * q[i]
+            s = r[i] / diag[i]
+            rs_new += r[i] * s
+            if abs(s) > worst:
+                worst = abs(s)
+        beta = rs_new / rs if rs > 0.0 else 0.0
+        rs = rs_new
+        for k in range(n_act):
+            i = active[k]
+            p[i] = r[i] / diag[i] + beta * p[i]
     outflow = 0.0
-    # --- east-west implicit sweep, row by row
-    for r in range(rows):
-        base = r * cols
-        for c in range(cols):
-            i = base + c
-            if kind[i] != ACTIVE:
-                y1[i] = z[i]
-                line_c[c] = 0.0
-                line_d[c] = z[i]
-                continue
-            s = dt * inv_area[r]
-            aw = s * gx[r] if _open(kind[i], kind[i - 1]) else 0.0
-            ae = s * gx[r] if _open(kind[i], kind[i + 1]) else 0.0
-            ly = 0.0
-            if _open(kind[i], kind[i - cols]):
-                ly += gy[r - 1] * (z[i - cols] - z[i])
-            if _open(kind[i], kind[i + cols]):
-                ly += gy[r] * (z[i + cols] - z[i])
-            rhs = z[i] + s * ly
-            # Thomas forward sweep: previous row entry (c - 1) is already reduced.
-            denom = 1.0 + aw + ae
-            if aw != 0.0:  # (products with a zero coefficient are skipped: invalid cells hold NaN)
-                denom -= aw * line_c[c - 1]
-                rhs += aw * line_d[c - 1]
-            line_c[c] = ae / denom
-            line_d[c] = rhs / denom
-        # back substitution (sub/super diagonals are -aw, -ae)
-        y1[base + cols - 1] = line_d[cols - 1]
-        for c in range(cols - 2, -1, -1):
-            y1[base + c] = line_d[c] + line_c[c] * y1[base + c + 1] if line_c[c] != 0.0 else line_d[c]
-        for c in range(1, cols - 1):
-            i = base + c
-            if kind[i] != ACTIVE:
-                continue
-            if kind[i - 1] == FIXED:
-                outflow += dt * gx[r] * (y1[i] - y1[i - 1])
-            if kind[i + 1] == FIXED:
-                outflow += dt * gx[r] * (y1[i] - y1[i + 1])
-    # --- north-south implicit sweep, all columns at once (forward over rows)
-    for r in range(rows):
-        base = r * cols
-        for c in range(cols):
-            i = base + c
-            if kind[i] != ACTIVE:
-                cp[i] = 0.0
-                y1[i] = z[i]  # identity row: z' = z
-                continue
-            s = dt * inv_area[r]
-            rhs = y1[i]
-            denom = 1.0
-            if _open(kind[i], kind[i - cols]):
-                an = s * gy[r - 1]
-                rhs += an * (y1[i - cols] - z[i - cols] + z[i])
-                denom += an * (1.0 - cp[i - cols])
-            a_s = 0.0
-            if _open(kind[i], kind[i + cols]):
-                a_s = s * gy[r]
-                rhs -= a_s * (z[i + cols] - z[i])
-                denom += a_s
-            cp[i] = a_s / denom
-            y1[i] = rhs / denom
-    # back substitution over rows, writing z'; y1 now holds the reduced right-hand sides
-    for r in range(rows - 1, -1, -1):
-        base = r * cols
-        for c in range(cols):
-            i = base + c
-            if kind[i] != ACTIVE:
-                continue
-            z[i] = y1[i] + cp[i] * z[i + cols] if cp[i] != 0.0 else y1[i]
-    for r in range(1, rows - 1):
-        base = r * cols
-        for c in range(cols):
-            i = base + c
-            if kind[i] != ACTIVE:
-                continue
-            if kind[i - cols] == FIXED:
-                outflow += dt * gy[r - 1] * (z[i] - z[i - cols])
-            if kind[i + cols] == FIXED:
-                outflow += dt * gy[r] * (z[i] - z[i + cols])
-    return outflow
+    for k in range(n_act):
+        i = active[k]
+        row = i // cols
+        if kind[i - 1] == FIXED:
+            outflow += dt * gx[row] * (z[i] - z[i - 1])
+        if kind[i + 1] == FIXED:
+            outflow += dt * gx[row] * (z[i] - z[i + 1])
+        if kind[i - cols] == FIXED:
+            outflow += dt * gy[row - 1] * (z[i] - z[i - cols])
+        if kind[i + cols] == FIXED:
+            outflow += dt * gy[row] * (z[i] - z[i + cols])
+    return outflow, iterations

@@ -263,9 +263,9 @@ def simulate(
        active cell is uplifted and eroded by the implicit stream-power step
        (Braun & Willett 2013; Newton iteration for n != 1, Braun & Deal 2023);
        cells left in filled depressions are uplifted but not eroded;
-    3. hillslope diffusion is applied by an implicit alternating-direction
-       step (operator splitting), outlets fixed (Dirichlet) and no flux
-       across closed edges.
+    3. hillslope diffusion is applied by a backward-Euler step (operator
+       splitting; see :func:`~divides.model.diffusion.diffusion_step`),
+       outlets fixed (Dirichlet) and no flux across closed edges.
 
     Outlets are the cells of open edges and the cells next to nodata (held
     at their starting elevation). A closed edge is represented by its
