@@ -102,8 +102,11 @@ def ridge_surface(
     relief_f = _check_positive(relief, "relief", "m")
     if not (math.isfinite(float(noise)) and float(noise) >= 0):
         raise ParameterError(f"`noise` must be a number of metres >= 0; got {noise!r}")
-    u = np.arange(cols) / (cols - 1)  # 0 at the west edge cells, 1 at the east
-    profile = np.where(u <= crest, u / crest, (1.0 - u) / (1.0 - crest)) * relief_f
+    # Fractions of each flank counted from its own edge, so a centred ridge is exactly mirror-symmetric.
+    c = np.arange(cols, dtype=np.float64)
+    west = c / (crest * (cols - 1))
+    east = c[::-1] / ((1.0 - crest) * (cols - 1))
+    profile = np.minimum(west, east) * relief_f
     z = np.repeat(profile[None, :], rows, axis=0)
     rng = np.random.default_rng(seed)
     z[:, 1:-1] += float(noise) * rng.random((rows, cols - 2))
