@@ -18,6 +18,7 @@ from divides.errors import ParameterError
 
 __all__ = [
     "EDGES",
+    "check_positive",
     "EdgeCondition",
     "open_edge",
     "closed_edge",
@@ -29,6 +30,23 @@ __all__ = [
 EDGES: tuple[str, ...] = ("north", "south", "west", "east")
 
 History = Callable[[float], float]
+
+
+def check_positive(value: Any, name: str, unit: str) -> float:
+    """Validate a positive, finite number; return it as a float.
+
+    Raises
+    ------
+    ParameterError
+        Naming the parameter, the bad value and the unit expected.
+    """
+    try:
+        v = float(value)
+    except (TypeError, ValueError) as exc:
+        raise ParameterError(f"`{name}` must be a positive number ({unit}); got {value!r}") from exc
+    if not (math.isfinite(v) and v > 0):
+        raise ParameterError(f"`{name}` must be a positive number ({unit}); got {value!r}")
+    return v
 
 
 def _table(value: Any, name: str) -> tuple[np.ndarray, np.ndarray]:

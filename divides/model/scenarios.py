@@ -17,7 +17,7 @@ import numpy as np
 
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.model.forcing import open_edge
+from divides.model.forcing import check_positive, open_edge
 from divides.model.simulate import SimulationResult, simulate
 
 __all__ = [
@@ -32,16 +32,6 @@ __all__ = [
 ]
 
 _SIDES = ("west", "east")
-
-
-def _check_positive(value: Any, name: str, unit: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError) as exc:
-        raise ParameterError(f"`{name}` must be a positive number ({unit}); got {value!r}") from exc
-    if not (math.isfinite(v) and v > 0):
-        raise ParameterError(f"`{name}` must be a positive number ({unit}); got {value!r}")
-    return v
 
 
 def _check_side(value: str, name: str) -> str:
@@ -98,8 +88,8 @@ def ridge_surface(
         raise ParameterError(f"`shape` must be at least (3, 5) cells; got {shape!r}")
     if not (0.0 < float(crest) < 1.0):
         raise ParameterError(f"`crest` must be a fraction strictly between 0 and 1; got {crest!r}")
-    cell = _check_positive(cell_size, "cell_size", "m")
-    relief_f = _check_positive(relief, "relief", "m")
+    cell = check_positive(cell_size, "cell_size", "m")
+    relief_f = check_positive(relief, "relief", "m")
     if not (math.isfinite(float(noise)) and float(noise) >= 0):
         raise ParameterError(f"`noise` must be a number of metres >= 0; got {noise!r}")
     # Fractions of each flank counted from its own edge, so a centred ridge is exactly mirror-symmetric.
@@ -156,11 +146,21 @@ def _base_options(uplift: Any, erodibility: Any, diffusivity: float, m: float, n
     }
 
 
-def _halves(surface: Dem, crest: float, west_value: float, east_value: float) -> np.ndarray:
-    """A raster with one value west of the initial crest and another east of it."""
+def _scaled_side(surface: Dem, side: str, value: float, ratio: float) -> np.ndarray:
+    """A raster of ``value``, times ``ratio`` on ``side`` of the centre line (the initial crest)."""
     rows, cols = surface.shape
-    u = np.arange(cols) / (cols - 1)
-    return np.repeat(np.where(u <= crest, west_value, east_value)[None, :], rows, axis=0)
+    west = np.arange(cols) / (cols - 1) <= 0.5
+    on_side = west if side == "west" else ~west
+    return np.repeat(np.where(on_side, value * ratio, value)[None, :], rows, axis=0)
+
+
+def _contrast(side: str, side_name: str, ratio: float, what: str, shape: tuple[int, int], noise: float, seed: int) -> tuple[str, float, Dem]:
+    """Validate a contrast scenario's side and ratio; build its surface."""
+    return _check_side(side, side_name), check_positive(ratio, "ratio", f"the {what} ratio"), ridge_surface(shape, noise=noise, seed=seed)
+
+
+def _other(side: str) -> str:
+    return "west" if side == "east" else "east"
 
 
 # Defaults: 0.1 mm/yr uplift, K for m = 0.5 and n = 1 (1/yr), so that the
@@ -216,12 +216,12 @@ def base_level_fall(
         raise ParameterError("give exactly one of `drop` (m, sudden) or `lowering_rate` (m/yr, steady)")
     options = _base_options(uplift, erodibility, diffusivity, m, n)
     if drop is not None:
-        options["edges"][side] = open_edge(elevation=-_check_positive(drop, "drop", "m"))
+        options["edges"][side] = open_edge(elevation=-check_positive(drop, "drop", "m"))
         how = f"falls suddenly by {drop:g} m"
     else:
-        options["edges"][side] = open_edge(lowering_rate=_check_positive(lowering_rate, "lowering_rate", "m/yr"))
+        options["edges"][side] = open_edge(lowering_rate=check_positive(lowering_rate, "lowering_rate", "m/yr"))
         how = f"falls at {lowering_rate:g} m/yr"
-    other = "west" if side == "east" else "east"
+    other = _other(side)
     return Scenario(
         f"base-level fall ({side})", ridge_surface(shape, noise=noise, seed=seed), options, other,
         f"The {side} base level {how}; the divide should move {other}.",
@@ -238,10 +238,8 @@ def uplift_contrast(
     heads meet at equal elevation only if the faster-uplifting side has the
     smaller χ: the divide should move into the high-uplift side.
     """
-    high_side = _check_side(high_side, "high_side")
-    r = _check_positive(ratio, "ratio", "uplift ratio")
-    surface = ridge_surface(shape, noise=noise, seed=seed)
-    u = _halves(surface, 0.5, uplift * (r if high_side == "west" else 1.0), uplift * (r if high_side == "east" else 1.0))
+    high_side, r, surface = _contrast(high_side, "high_side", ratio, "uplift", shape, noise, seed)
+    u = _scaled_side(surface, high_side, uplift, r)
     return Scenario(
         f"uplift contrast ({high_side} x{r:g})", surface, _base_options(u, erodibility, diffusivity, m, n), high_side,
         f"Uplift {r:g} times faster on the {high_side} side; the divide should move {high_side}.",
@@ -258,11 +256,9 @@ def erodibility_contrast(
     sit lower: it is the aggressor and the divide should move into the
     strong side.
     """
-    weak_side = _check_side(weak_side, "weak_side")
-    r = _check_positive(ratio, "ratio", "erodibility ratio")
-    surface = ridge_surface(shape, noise=noise, seed=seed)
-    k = _halves(surface, 0.5, erodibility * (r if weak_side == "west" else 1.0), erodibility * (r if weak_side == "east" else 1.0))
-    strong = "west" if weak_side == "east" else "east"
+    weak_side, r, surface = _contrast(weak_side, "weak_side", ratio, "erodibility", shape, noise, seed)
+    k = _scaled_side(surface, weak_side, erodibility, r)
+    strong = _other(weak_side)
     return Scenario(
         f"erodibility contrast ({weak_side} x{r:g})", surface, _base_options(uplift, k, diffusivity, m, n), strong,
         f"Erodibility {r:g} times higher on the {weak_side} side; the divide should move {strong}.",
@@ -279,13 +275,10 @@ def runoff_contrast(
     if its erodibility were ``ratio**m`` times higher, so the divide should
     move into the dry side.
     """
-    wet_side = _check_side(wet_side, "wet_side")
-    r = _check_positive(ratio, "ratio", "runoff ratio")
-    surface = ridge_surface(shape, noise=noise, seed=seed)
-    runoff = _halves(surface, 0.5, r if wet_side == "west" else 1.0, r if wet_side == "east" else 1.0)
+    wet_side, r, surface = _contrast(wet_side, "wet_side", ratio, "runoff", shape, noise, seed)
     options = _base_options(uplift, erodibility, diffusivity, m, n)
-    options["runoff"] = runoff
-    dry = "west" if wet_side == "east" else "east"
+    options["runoff"] = _scaled_side(surface, wet_side, 1.0, r)
+    dry = _other(wet_side)
     return Scenario(
         f"runoff contrast ({wet_side} x{r:g})", surface, options, dry,
         f"Runoff {r:g} times higher on the {wet_side} side; the divide should move {dry}.",

@@ -221,8 +221,8 @@ def simulate(
     uplift : float or ndarray
         Rock uplift rate relative to base level, U (m/yr); constant or a raster.
     erodibility : float or ndarray
-        K of E = K A^m S^n (units making E m/yr; m^(1-2m)/yr for n = 1);
-        constant or a raster; 0 turns channels off.
+        K of E = K A^m S^n, in m^(1-2m)/yr so that E is in m/yr; constant
+        or a raster; 0 turns channels off.
     m, n : float
         Area and slope exponents (concavity m/n).
     diffusivity : float
@@ -296,7 +296,7 @@ def simulate(
     shape = start.shape
     rows, cols = shape
     valid = start.valid
-    k_field = as_field(erodibility, shape, name="erodibility", unit="m^(1-2m)/yr for n = 1", minimum=0.0, valid=valid)
+    k_field = as_field(erodibility, shape, name="erodibility", unit="m^(1-2m)/yr", minimum=0.0, valid=valid)
     u_field = as_field(uplift, shape, name="uplift", unit="m/yr", valid=valid)
     runoff_field = None if runoff is None else as_field(runoff, shape, name="runoff", unit="relative runoff", minimum=0.0, valid=valid)
     breaks, snaps = _time_breaks(duration_f, snapshot_times)

@@ -10,7 +10,7 @@ import numpy as np
 
 from divides.errors import ParameterError
 from divides.model import _stream_power_kernels as _k
-from divides.model.forcing import as_field
+from divides.model.forcing import as_field, check_positive
 from divides.terrain.routing import FlowGraph
 
 __all__ = ["FluvialStep", "stream_power_step", "check_exponents", "check_time_step"]
@@ -37,13 +37,7 @@ def check_exponents(m: float, n: float) -> tuple[float, float]:
 
 def check_time_step(dt: Any, name: str = "dt") -> float:
     """Validate a positive, finite time in years."""
-    try:
-        value = float(dt)
-    except (TypeError, ValueError) as exc:
-        raise ParameterError(f"`{name}` must be a positive number of years; got {dt!r}") from exc
-    if not (math.isfinite(value) and value > 0):
-        raise ParameterError(f"`{name}` must be a positive number of years; got {dt!r}")
-    return value
+    return check_positive(dt, name, "years")
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,8 +82,8 @@ def stream_power_step(
     dt : float
         Time step (years). Any positive value is stable.
     erodibility : float or ndarray
-        K, in m^(1 - 2m) / yr for n = 1 (generally m^(1 - 2m - n... ) so
-        that E is in m/yr); 0 switches erosion off.
+        K, in m^(1 - 2m) / yr (S is dimensionless, so E is in m/yr for any
+        n); 0 switches erosion off.
     m, n : float
         Exponents of drainage area and slope.
     uplift : float or ndarray
@@ -132,7 +126,7 @@ def stream_power_step(
     m_f, n_f = check_exponents(m, n)
     valid = flow.dem.valid
     shape = flow.shape
-    k = as_field(erodibility, shape, name="erodibility", unit="m^(1-2m)/yr for n = 1", minimum=0.0, valid=valid)
+    k = as_field(erodibility, shape, name="erodibility", unit="m^(1-2m)/yr", minimum=0.0, valid=valid)
     u = as_field(uplift, shape, name="uplift", unit="m/yr", valid=valid)
     if drainage_area is None:
         area = flow.area.ravel()

@@ -145,7 +145,7 @@ def test_open_box_outflow_matches_volume_loss():
 @pytest.mark.parametrize(
     ("kwargs", "message"),
     [
-        ({"dt": -1.0}, r"`dt` must be a positive number of years; got -1.0"),
+        ({"dt": -1.0}, r"`dt` must be a positive number \(years\); got -1.0"),
         ({"diffusivity": -0.1}, r"`diffusivity` must be a finite number of m²/yr >= 0; got -0.1"),
         ({"dx": 0.0}, r"`dx` must be a positive cell size in metres"),
         ({"fixed": np.zeros((2, 2), bool)}, r"`fixed` must have the grid's shape \(5, 6\)"),

@@ -195,7 +195,7 @@ def test_steps_land_on_snapshot_times_and_tracks_follow_the_interval():
         ({"edges": {"west": "closed"}, "track": ("west", "east")}, "`track` side 'west' is a closed edge"),
         ({"track": ("west", "north")}, "sides 'west' and 'north' are not opposite edges"),
         ({"snapshot_times": [-1.0]}, r"`snapshot_times` must lie within \[0, duration = 1000\] years; got \[-1.0\]"),
-        ({"dt": "soon"}, "`dt` must be a positive number of years; got 'soon'"),
+        ({"dt": "soon"}, "`dt` must be a positive number \\(years\\); got 'soon'"),
         ({"diffusivity": -1.0}, "`diffusivity` must be a finite number of m²/yr >= 0"),
         ({"runoff": -1.0}, "`runoff` must be a finite number >= 0"),
         ({"cell_size": None}, r"`cell_size` \(m\) is required"),

@@ -149,7 +149,7 @@ def test_zero_erodibility_only_uplifts_and_zero_dt_is_refused():
     moving = flow.receivers != np.arange(z.size)
     np.testing.assert_allclose(step.elevation.ravel()[moving], z.ravel()[moving] + 0.2, rtol=0, atol=1e-12)
     assert step.eroded_m3 == 0.0
-    with pytest.raises(ParameterError, match="`dt` must be a positive number of years; got 0"):
+    with pytest.raises(ParameterError, match="`dt` must be a positive number \\(years\\); got 0"):
         stream_power_step(z, flow, dt=0.0, erodibility=1e-5)
 
 
