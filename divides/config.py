@@ -63,6 +63,8 @@ class AssessConfig:
         Cells at or below it are outlets.
     conditioning : str
         "fill" or "breach".
+    closed_edges : tuple of str
+        DEM edges that are not outlets (e.g. a DEM cut along a known divide).
     snap_radius_m : float or None
         Snapping radius of side points; None = five cells.
     seed : int
@@ -88,6 +90,7 @@ class AssessConfig:
     knickpoint_age_years: float | None = None
     sea_level_m: float | None = None
     conditioning: str = "fill"
+    closed_edges: tuple = ()
     snap_radius_m: float | None = None
     seed: int = 0
     extra: dict = field(default_factory=dict)
@@ -122,6 +125,9 @@ class AssessConfig:
             raise ParameterError(f"n_noise_runs must be a whole number >= 0; got {self.n_noise_runs!r}")
         if self.conditioning not in ("fill", "breach"):
             raise ParameterError(f"conditioning must be 'fill' or 'breach'; got {self.conditioning!r}")
+        bad_edges = set(self.closed_edges) - {"north", "south", "east", "west"}
+        if isinstance(self.closed_edges, str) or bad_edges:
+            raise ParameterError(f"closed_edges must be a list of north, south, east, west; got {self.closed_edges!r}")
         if not isinstance(self.seed, int) or isinstance(self.seed, bool):
             raise ParameterError(f"seed must be a whole number; got {self.seed!r}")
         calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \

@@ -188,7 +188,8 @@ def _core(
     flow: FlowGraph | None = None,
 ) -> _Core:
     if flow is None:
-        flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m)
+        flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
+                     closed_edges=config.closed_edges)
     channels = extract_channels(flow, threshold_m2=channel_area_m2)
     sides = resolve_sides(flow, parse_side(side_a, lonlat=lonlat), parse_side(side_b, lonlat=lonlat),
                           snap_radius_m=config.snap_radius_m)

@@ -38,12 +38,21 @@ def row_distances(dx, dy):
     return out
 
 
+@njit(cache=True, inline="always")
+def _inside(r, c, k, rows, cols):
+    """True when neighbour k of cell (r, c) lies on the grid."""
+    rr = r + D_ROW[k]
+    cc = c + D_COL[k]
+    return 0 <= rr < rows and 0 <= cc < cols
+
+
 @njit(cache=True)
 def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
     """Steepest-descent receiver of every cell (O'Callaghan & Mark 1984).
 
-    Non-outlet valid cells are interior and have only valid neighbours (cells on
-    the edge or next to nodata are outlets), so no bounds checks are needed.
+    Non-outlet valid cells have only valid neighbours (cells next to nodata are
+    outlets) and are interior unless an edge was declared closed; only cells on
+    the grid edge check bounds.
     Cells with no lower neighbour get ``code = PENDING`` for flat resolution.
 
     Returns the number of pending cells.
@@ -68,7 +77,10 @@ def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
             zi = z[i]
             best = 0.0
             best_k = -1
+            on_edge = r == 0 or r == rows - 1 or c == 0 or c == cols - 1  # only on closed edges
             for k in range(8):
+                if on_edge and not _inside(r, c, k, rows, cols):
+                    continue
                 s = (zi - z[i + off[k]]) * inv[k]
                 if s > best:
                     best = s
@@ -95,9 +107,9 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     exit without loops, and flow bends away from the flat's higher rim
     instead of running in parallel lines.
 
-    Pending cells are interior (outlets take the edges), so neighbours need
-    no bounds checks. Returns the number of pending cells left without an
-    exit (0 on a filled surface); those stay pending for the caller.
+    Pending cells have only valid neighbours; those on a closed grid edge skip
+    the neighbours off the grid. Returns the number of pending cells left
+    without an exit (0 on a filled surface); those stay pending for the caller.
     """
     n = rows * cols
     off = np.empty(8, dtype=np.int64)
@@ -129,7 +141,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         while head < tail:
             i = queue[head]
             head += 1
+            ri, ci = i // cols, i % cols
+            edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
             for k in range(8):
+                if edge and not _inside(ri, ci, k, rows, cols):
+                    continue
                 nb = i + off[k]
                 if code[nb] == PENDING and label[nb] == 0 and z[nb] == z[i]:
                     label[nb] = n_labels
@@ -139,7 +155,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     away_max = np.zeros(n_labels + 1, dtype=np.int32)
     tail = 0
     for i in pending:
+        ri, ci = i // cols, i % cols
+        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
+            if edge and not _inside(ri, ci, k, rows, cols):
+                continue
             if z[i + off[k]] > z[i]:
                 mask[i] = 1
                 queue[tail] = i
@@ -151,7 +171,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         head += 1
         if mask[i] > away_max[label[i]]:
             away_max[label[i]] = mask[i]
+        ri, ci = i // cols, i % cols
+        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
+            if edge and not _inside(ri, ci, k, rows, cols):
+                continue
             nb = i + off[k]
             if code[nb] == PENDING and mask[nb] == 0 and z[nb] == z[i]:
                 mask[nb] = mask[i] + 1
@@ -167,7 +191,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         toward[i] = 0
     tail = 0
     for i in pending:
+        ri, ci = i // cols, i % cols
+        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
+            if edge and not _inside(ri, ci, k, rows, cols):
+                continue
             nb = i + off[k]
             if code[nb] != PENDING and z[nb] == z[i]:
                 toward[i] = 1
@@ -178,7 +206,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     while head < tail:
         i = queue[head]
         head += 1
+        ri, ci = i // cols, i % cols
+        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
+            if edge and not _inside(ri, ci, k, rows, cols):
+                continue
             nb = i + off[k]
             if code[nb] == PENDING and toward[nb] == 0 and z[nb] == z[i]:
                 toward[nb] = toward[i] + 1
@@ -194,9 +226,13 @@ def resolve_flats(z, rows, cols, dist, rec, code):
             n_stuck += 1
             continue
         r = i // cols
+        ci = i % cols
+        edge = r == 0 or r == rows - 1 or ci == 0 or ci == cols - 1
         best = 0.0
         best_k = -1
         for k in range(8):
+            if edge and not _inside(r, ci, k, rows, cols):
+                continue
             nb = i + off[k]
             if z[nb] != z[i]:
                 continue

@@ -14,7 +14,7 @@ from divides.errors import GridError, ParameterError
 from divides.io.dem import Dem
 from divides.terrain._fill_kernels import priority_flood_fill, raised_totals
 
-__all__ = ["Conditioned", "CONDITIONING_METHODS", "outlet_mask", "fill_depressions", "condition"]
+__all__ = ["Conditioned", "CONDITIONING_METHODS", "EDGE_NAMES", "outlet_mask", "fill_depressions", "condition"]
 
 CONDITIONING_METHODS = ("fill", "breach")
 
@@ -63,7 +63,10 @@ class Conditioned:
         }
 
 
-def outlet_mask(dem: Dem, *, sea_level: float | None = None) -> np.ndarray:
+EDGE_NAMES = ("north", "south", "east", "west")
+
+
+def outlet_mask(dem: Dem, *, sea_level: float | None = None, closed_edges=()) -> np.ndarray:
     """Cells that drain off the grid.
 
     Parameters
@@ -72,16 +75,33 @@ def outlet_mask(dem: Dem, *, sea_level: float | None = None) -> np.ndarray:
     sea_level : float, optional
         Cells at or below this elevation (m) are outlets too (coasts, lakes
         held at a known level).
+    closed_edges : iterable of str
+        Grid edges (``north``, ``south``, ``east``, ``west``) across which no
+        water leaves, e.g. where the DEM was cut along a known divide or a
+        model boundary was a wall. Their cells drain inward.
 
     Returns
     -------
     ndarray of bool
-        Valid cells on the DEM edge, next to (8-neighbour) an invalid cell, or
-        at or below ``sea_level``.
+        Valid cells on an open DEM edge, next to (8-neighbour) an invalid cell,
+        or at or below ``sea_level``.
     """
     valid = dem.valid
+    closed = set(closed_edges)
+    unknown = closed - set(EDGE_NAMES)
+    if unknown:
+        raise ParameterError(f"closed edges must be among {', '.join(EDGE_NAMES)}; got {', '.join(sorted(unknown))}")
+    if len(closed) == 4:
+        raise ParameterError("all four edges are closed: water could leave nowhere; keep at least one edge open")
     edge = np.zeros(valid.shape, dtype=bool)
-    edge[0, :] = edge[-1, :] = edge[:, 0] = edge[:, -1] = True
+    if "north" not in closed:
+        edge[0, :] = True
+    if "south" not in closed:
+        edge[-1, :] = True
+    if "west" not in closed:
+        edge[:, 0] = True
+    if "east" not in closed:
+        edge[:, -1] = True
     if not valid.all():
         edge |= ndimage.binary_dilation(~valid, structure=np.ones((3, 3), dtype=bool))
     out = valid & edge
@@ -138,6 +158,7 @@ def condition(
     sea_level: float | None = None,
     breach_max_length_m: float | None = None,
     breach_max_depth_m: float | None = None,
+    closed_edges=(),
 ) -> Conditioned:
     """Make every valid cell drain to an outlet.
 
@@ -154,6 +175,8 @@ def condition(
     breach_max_length_m, breach_max_depth_m : float, optional
         Limits of a breach path (``"breach"`` only); defaults are those of
         :func:`divides.terrain.breaching.breach_depressions`.
+    closed_edges : iterable of str
+        Grid edges that are not outlets (see :func:`outlet_mask`).
 
     Returns
     -------
@@ -161,7 +184,7 @@ def condition(
     """
     if method not in CONDITIONING_METHODS:
         raise ParameterError(f"conditioning method {method!r} is unknown; use one of {', '.join(CONDITIONING_METHODS)}")
-    outlets = outlet_mask(dem, sea_level=sea_level)
+    outlets = outlet_mask(dem, sea_level=sea_level, closed_edges=closed_edges)
     z = dem.elevation
     carved_cells, carved_volume = 0, 0.0
     if method == "breach":

@@ -195,6 +195,7 @@ def route(
     sea_level: float | None = None,
     breach_max_length_m: float | None = None,
     breach_max_depth_m: float | None = None,
+    closed_edges=(),
 ) -> FlowGraph:
     """Route flow over a DEM by steepest descent (D8).
 
@@ -209,6 +210,8 @@ def route(
         Cells at or below it drain off the grid.
     breach_max_length_m, breach_max_depth_m : float, optional
         Limits of breach paths when ``conditioning="breach"``.
+    closed_edges : iterable of str
+        Grid edges across which no water leaves (see :func:`outlet_mask`).
 
     Returns
     -------
@@ -243,6 +246,7 @@ def route(
             sea_level=sea_level,
             breach_max_length_m=breach_max_length_m,
             breach_max_depth_m=breach_max_depth_m,
+            closed_edges=closed_edges,
         )
     rows, cols = dem.shape
     n = rows * cols

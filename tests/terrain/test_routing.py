@@ -12,6 +12,7 @@ from affine import Affine
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from pyproj import Geod
+from scipy import ndimage
 
 from divides import Dem, route
 from divides.errors import GridError
@@ -263,3 +264,26 @@ def test_real_dem_from_matplotlib_sample_data():
         assert flow.area.ravel()[outlet] == pytest.approx(expected, rel=1e-3)
         assert np.count_nonzero(labels == label) == members.size
     assert flow.area.max() > 50e6  # a real river drains tens of km² of this 25 x 32 km tile
+
+
+
+@settings(max_examples=40, deadline=None)
+@given(dem=dems, closed=st.sets(st.sampled_from(["north", "south", "east", "west"]), max_size=3))
+def test_closed_edges_drain_inward(dem, closed):
+    # Closed edges are not outlets (a wall): their cells drain through the interior to an open
+    # edge. Same graph properties as any routing (acyclic, every cell reaches an outlet; common practice).
+    flow = route(dem, closed_edges=closed)
+    rows, cols = dem.shape
+    r, c = np.divmod(flow.outlets, cols)
+    on = {"north": r == 0, "south": r == rows - 1, "west": c == 0, "east": c == cols - 1}
+    near_nodata = ndimage.binary_dilation(~dem.valid, structure=np.ones((3, 3), bool)).ravel()[flow.outlets]
+    on_open = np.zeros(r.size, bool)
+    for edge in set(on) - closed:
+        on_open |= on[edge]
+    for edge in closed:
+        # an outlet on a closed edge is allowed only where it borders nodata or is a corner on an open edge
+        assert np.all((near_nodata | on_open)[on[edge]])
+    g = _graph(flow)
+    assert nx.is_directed_acyclic_graph(g)
+    assert {v for v in g.nodes if g.out_degree(v) == 0} == set(flow.outlets.tolist())
+    assert flow.area.ravel()[flow.outlets].sum() == pytest.approx(dem.cell_area_grid().sum(), rel=1e-12)
