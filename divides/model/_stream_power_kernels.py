@@ -11,7 +11,7 @@ import math
 
 from numba import njit
 
-#: Newton iterations stop when the step is below this fraction of the initial drop.
+#: Newton iterations stop when the step is below this fraction of the current drop.
 NEWTON_RTOL = 1e-13
 #: Safety cap; the safeguarded iteration converges in a handful of steps.
 NEWTON_MAX_ITER = 60
@@ -28,9 +28,14 @@ def _solve_drop(x_star, f, n):
     """
     lo = 0.0
     hi = x_star
-    # The slope-linearised guess x_star / (1 + f x_star^(n-1)) is exact for n = 1.
-    x = x_star / (1.0 + f * x_star ** (n - 1.0))
-    tol = NEWTON_RTOL * x_star
+    # Start on the side from which Newton converges monotonically: from above when the
+    # left side is convex (n > 1), from below when it is concave (n < 1). The root lies
+    # below both x_star and (x_star / f)^(1/n), and above the smaller of their halves'
+    # counterparts, so these starts are within a small factor of it.
+    if n > 1.0:
+        x = min(x_star, (x_star / f) ** (1.0 / n))
+    else:
+        x = min(0.5 * x_star, (0.5 * x_star / f) ** (1.0 / n))
     for _ in range(NEWTON_MAX_ITER):
         xn = x**n
         g = x - x_star + f * xn
@@ -42,13 +47,13 @@ def _solve_drop(x_star, f, n):
             return x
         dg = 1.0 + n * f * xn / x
         step = g / dg
+        if abs(step) <= NEWTON_RTOL * x:
+            # Converged: a step this small may round onto the bracket, which is not a reason to bisect.
+            return min(max(x - step, lo), hi)
         x_new = x - step
         if not (lo < x_new < hi):
             x_new = 0.5 * (lo + hi)
-            step = x - x_new
         x = x_new
-        if abs(step) <= tol:
-            break
     return x
 
 
