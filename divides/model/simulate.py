@@ -319,6 +319,12 @@ def simulate(
     active_weights = cell_area[grid.active_idx // cols]
     routing_buffer = np.empty(shape, dtype=np.float64) if grid.all_wall_idx.size else None
     diffusion = _Operator(grid.kind, start.dx, start.dy, cell_area, d_f) if d_f > 0 else None
+    # Discharge proxy: runoff x cell area accumulated downstream (the same sum as
+    # FlowGraph.weighted_area, with the per-cell weights computed once).
+    runoff_weights = None
+    if runoff_field is not None:
+        runoff_weights = (np.broadcast_to(runoff_field, (rows * cols,)) * np.repeat(cell_area, cols)).reshape(shape)
+        runoff_weights = np.where(valid, runoff_weights, 0.0)
 
     def set_base_level(t: float) -> None:
         target = np.full(grid.base_idx.size, np.inf)
@@ -365,9 +371,7 @@ def simulate(
                 tracker.record(t, flow)
                 if interval is not None:
                     next_track = (math.floor(t / interval + 1e-9) + 1) * interval
-            drainage = flow.area.ravel() if runoff_field is None else flow.weighted_area(
-                runoff_field.reshape(shape) if runoff_field.size > 1 else float(runoff_field[0])
-            ).ravel()
+            drainage = flow.area.ravel() if runoff_weights is None else flow.accumulate(runoff_weights).ravel()
             before = z[grid.active_idx]
             set_base_level(t_end)
             uplifted, eroded = _spk.fluvial_step(

@@ -44,19 +44,24 @@ def test_mass_balance_per_step_with_every_process():
     assert np.all(b.eroded_m3 > 0) and np.all(b.diffused_out_m3 != 0)  # every term is exercised
 
 
-def test_fluvial_step_of_the_driver_solves_the_implicit_equation():
+@pytest.mark.parametrize("with_runoff", [False, True])
+def test_fluvial_step_of_the_driver_solves_the_implicit_equation(with_runoff):
     # Braun & Willett 2013: one step of the driver (no diffusion) satisfies, cell by cell,
     # h - (h0 + U dt) + K A^m dt (max(h - h_r, 0) / L)^n = 0 on the routing of the start
-    # surface, recomputed here with the project's route() (all edges open at their start).
+    # surface, recomputed here with the project's route() (all edges open at their start);
+    # with runoff, A is the runoff-weighted area (discharge proxy, Gelwick et al. 2024 use
+    # the same substitution for chi), taken here from FlowGraph.weighted_area.
     rng = np.random.default_rng(9)
     z0 = np.add.outer(np.linspace(0, 30, 20), np.linspace(0, 20, 25)) + 15 * rng.random((20, 25))
     m, n, k, u, dt = 0.5, 1.0, 3e-5, 2e-3, 800.0
-    result = simulate(z0, cell_size=30.0, duration=dt, dt=dt, uplift=u, erodibility=k, m=m, n=n)
+    runoff = 0.2 + 2 * rng.random(z0.shape) if with_runoff else None
+    result = simulate(z0, cell_size=30.0, duration=dt, dt=dt, uplift=u, erodibility=k, m=m, n=n, runoff=runoff)
     flow = route(Dem.from_array(z0, cell_size=30.0))
+    area = flow.weighted_area(runoff) if with_runoff else flow.area
     h, h0 = result.final.elevation.ravel(), z0.ravel()
     moving = np.flatnonzero(flow.receivers != np.arange(h.size))
     h_r = h[flow.receivers[moving]]
-    coef = k * flow.area.ravel()[moving] ** m * dt / flow.distance[moving] ** n
+    coef = k * area.ravel()[moving] ** m * dt / flow.distance[moving] ** n
     residual = h[moving] - (h0[moving] + u * dt) + coef * np.clip(h[moving] - h_r, 0, None) ** n
     assert np.max(np.abs(residual)) < 1e-10 * np.abs(h0).max()
     np.testing.assert_array_equal(h[flow.outlets], h0[flow.outlets])  # outlets held at their start
