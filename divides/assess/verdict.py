@@ -6,10 +6,15 @@ from dataclasses import dataclass, field
 
 from divides.assess.contrasts import Contrast
 
-__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION"]
+__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CHI_ONLY_SHARE", "CAUTION"]
 
 #: Metrics of the present state of the divide (Forte & Whipple 2018; Scherler & Schwanghart 2020).
 NEAR_DIVIDE_METRICS = ("channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")
+
+#: χ alone must differ by at least this share of its mean to call a direction: on its own it is
+#: the weaker indicator (it depends on θ, base level and uplift/erodibility patterns; Forte &
+#: Whipple 2018), and small χ contrasts are common across divides at steady state.
+CHI_ONLY_SHARE = 0.10
 
 #: The caution every verdict carries.
 CAUTION = (
@@ -70,8 +75,9 @@ def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) 
     2. If the significant near-divide metrics all point one way, or one way
        by at least three to one, that is the direction. Any closer split is
        ``"undetermined"``.
-    3. If no near-divide metric is significant but χ is, the direction is χ's,
-       flagged as a long-run tendency only, with a low confidence.
+    3. If no near-divide metric is significant but χ is, and by at least
+       :data:`CHI_ONLY_SHARE` of its mean, the direction is χ's, flagged as a
+       long-run tendency only, with a low confidence.
     4. If nothing is significant, the divide is ``"stable"``.
 
     Confidence
@@ -106,7 +112,7 @@ def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) 
         else:
             toward, basis, score = "undetermined", "conflict", 0.0
             agreeing, disagreeing = tuple(votes["a"]), tuple(votes["b"])
-    elif long_run in ("a", "b"):
+    elif long_run in ("a", "b") and abs(chi.difference) >= CHI_ONLY_SHARE * 0.5 * (abs(chi.a) + abs(chi.b)):
         toward, basis, score, agreeing, disagreeing = long_run, "chi", 0.4, (), ()
     else:
         toward, basis, score, agreeing, disagreeing = "stable", "none", 0.7, (), ()

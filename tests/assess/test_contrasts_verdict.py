@@ -51,6 +51,9 @@ def test_verdict_rule():
     # χ alone: its direction, flagged, with a low confidence
     chi_only = decide([_c("chi", "a")] + [_c(m, "none") for m in near], robustness_share=1.0)
     assert chi_only.basis == "chi" and chi_only.moves_toward == "a" and chi_only.confidence < 0.5
+    # χ alone but under 10 % of its mean: not enough for a direction
+    weak = Contrast("chi", "m", 1.0, 0.95, 0.05, (0.01, 0.09), "a", 10, "rule")
+    assert decide([weak] + [_c(m, "none") for m in near]).moves_toward == "stable"
     # nothing significant: stable
     stable = decide([_c("chi", "none")] + [_c(m, "none") for m in near], robustness_share=1.0)
     assert stable.moves_toward == "stable" and stable.aggressor is None
