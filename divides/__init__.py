@@ -33,6 +33,7 @@ _EXPORTS = {
     "assess": "divides.assess.assessment",
     "Assessment": "divides.assess.assessment",
     "AssessConfig": "divides.config",
+    "simulate": "divides.model.simulate",
 }
 
 __all__ = sorted([*_EXPORTS, "__version__"])
