@@ -30,16 +30,17 @@ _EXPORTS = {
     "resolve_side": "divides.assess.sides",
     "resolve_sides": "divides.assess.sides",
     "common_base_level": "divides.assess.sides",
-    "assess": "divides.assess.assessment",
     "Assessment": "divides.assess.assessment",
     "AssessConfig": "divides.config",
     "simulate": "divides.model.simulate",
 }
 
-__all__ = sorted([*_EXPORTS, "__version__"])
+__all__ = sorted([*_EXPORTS, "assess", "__version__"])
 
 
 def __getattr__(name: str) -> Any:
+    if name == "assess":  # the room is itself callable: divides.assess(dem, side_a, side_b, ...)
+        return importlib.import_module("divides.assess")
     module = _EXPORTS.get(name)
     if module is None:
         raise AttributeError(f"module 'divides' has no attribute {name!r}")
