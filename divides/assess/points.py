@@ -11,7 +11,8 @@ from divides.assess import _assess_kernels as _k
 from divides.terrain.divide_lines import Divide
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["DividePoints", "sample_divide", "upstream_mean", "gradient_magnitude", "local_relief", "METRICS"]
+__all__ = ["DividePoints", "UpstreamMean", "NearDivideFields", "near_divide_fields", "sample_divide",
+           "upstream_mean", "gradient_magnitude", "local_relief", "METRICS"]
 
 #: Metric name -> (unit, which side the divide moves toward).
 #: Willett et al. (2014) for χ; Forte & Whipple (2018) for the near-divide metrics;
@@ -46,25 +47,54 @@ def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
     return relief
 
 
-def upstream_mean(flow: FlowGraph, field_: np.ndarray, cells: np.ndarray) -> np.ndarray:
-    """Mean of a field over the cells draining through each of ``cells`` (NaN values skipped).
+class UpstreamMean:
+    """Mean of a field over the cells draining through any cell, answered in O(1) per query.
 
     Each cell's upstream area is a contiguous run of the depth-first order, so
-    one prefix sum over the order answers every query in O(1).
+    one prefix sum over the order (built once, O(n)) serves every query.
     """
-    values = np.asarray(field_, dtype=np.float64).ravel()[flow.order]
-    good = np.isfinite(values)
-    csum = np.concatenate([[0.0], np.cumsum(np.where(good, values, 0.0))])
-    ccount = np.concatenate([[0], np.cumsum(good)])
-    cells = np.asarray(cells, dtype=np.int64)
-    out = np.full(cells.size, np.nan)
-    ok = cells >= 0
-    p = flow.order_position[cells[ok]].astype(np.int64)
-    c = flow.upstream_count[cells[ok]].astype(np.int64)
-    n = ccount[p + c] - ccount[p]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out[ok] = np.where(n > 0, (csum[p + c] - csum[p]) / n, np.nan)
-    return out
+
+    def __init__(self, flow: FlowGraph, field_: np.ndarray) -> None:
+        values = np.asarray(field_, dtype=np.float64).ravel()[flow.order]
+        good = np.isfinite(values)
+        self._sum = np.concatenate([[0.0], np.cumsum(np.where(good, values, 0.0))])
+        self._count = np.concatenate([[0], np.cumsum(good)])
+        self._flow = flow
+
+    def __call__(self, cells: np.ndarray) -> np.ndarray:
+        """Means upstream of ``cells`` (flat indices; -1 gives NaN)."""
+        cells = np.asarray(cells, dtype=np.int64)
+        out = np.full(cells.size, np.nan)
+        ok = cells >= 0
+        p = self._flow.order_position[cells[ok]].astype(np.int64)
+        c = self._flow.upstream_count[cells[ok]].astype(np.int64)
+        n = self._count[p + c] - self._count[p]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out[ok] = np.where(n > 0, (self._sum[p + c] - self._sum[p]) / n, np.nan)
+        return out
+
+
+def upstream_mean(flow: FlowGraph, field_: np.ndarray, cells: np.ndarray) -> np.ndarray:
+    """Mean of a field over the cells draining through each of ``cells`` (NaN values skipped)."""
+    return UpstreamMean(flow, field_)(cells)
+
+
+@dataclass(frozen=True, eq=False)
+class NearDivideFields:
+    """Grid-wide inputs of the near-divide metrics, built once per DEM and reused."""
+
+    elevation: np.ndarray
+    gradient: UpstreamMean
+    relief: UpstreamMean
+
+
+def near_divide_fields(flow: FlowGraph, relief_radius_m: float) -> NearDivideFields:
+    """Elevation, and upstream means of gradient and local relief, for :func:`sample_divide`."""
+    return NearDivideFields(
+        elevation=flow.dem.elevation.ravel().astype(np.float64),
+        gradient=UpstreamMean(flow, gradient_magnitude(flow)),
+        relief=UpstreamMean(flow, local_relief(flow, relief_radius_m)),
+    )
 
 
 @dataclass(frozen=True, eq=False)
@@ -120,6 +150,7 @@ def sample_divide(
     reference_area_m2: float,
     chi_grid: np.ndarray,
     relief_radius_m: float,
+    fields: NearDivideFields | None = None,
 ) -> DividePoints:
     """Sample a divide every ``spacing_m`` and read each metric on both sides.
 
@@ -141,6 +172,9 @@ def sample_divide(
         χ on the DEM grid (NaN off the counted channels).
     relief_radius_m : float
         Half-width of the local-relief window.
+    fields : NearDivideFields, optional
+        Precomputed grid inputs (see :func:`near_divide_fields`), when many
+        divides of one DEM are sampled.
     """
     dem = flow.dem
     cols = dem.shape[1]
@@ -182,10 +216,10 @@ def sample_divide(
         cells = cells.astype(np.int64)
         heads[s] = _k.walk_to_area(cells, rec, area, float(channel_area_m2))
         refs[s] = _k.walk_to_area(cells, rec, area, float(reference_area_m2))
-    z = dem.elevation.ravel().astype(np.float64)
+    if fields is None:
+        fields = near_divide_fields(flow, relief_radius_m)
+    z = fields.elevation
     chi_flat = chi_grid.ravel()
-    gradient = gradient_magnitude(flow)
-    relief = local_relief(flow, relief_radius_m)
     values = {}
 
     def at(arr, cells):
@@ -196,8 +230,8 @@ def sample_divide(
 
     values["chi"] = (at(chi_flat, heads["a"]), at(chi_flat, heads["b"]))
     values["channel_elevation"] = (at(z, refs["a"]), at(z, refs["b"]))
-    values["hillslope_gradient"] = (upstream_mean(flow, gradient, refs["a"]), upstream_mean(flow, gradient, refs["b"]))
-    values["local_relief"] = (upstream_mean(flow, relief, refs["a"]), upstream_mean(flow, relief, refs["b"]))
+    values["hillslope_gradient"] = (fields.gradient(refs["a"]), fields.gradient(refs["b"]))
+    values["local_relief"] = (fields.relief(refs["a"]), fields.relief(refs["b"]))
     values["hillslope_relief"] = (cat["z"] - at(z, heads["a"]), cat["z"] - at(z, heads["b"]))
     return DividePoints(
         x=np.asarray(x), y=np.asarray(y), line=cat["line"], distance_m=cat["dist"], elevation_m=cat["z"],
