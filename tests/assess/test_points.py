@@ -69,7 +69,7 @@ def test_asymmetric_ridge_metrics_and_normals():
     flow = route(dem)
     sides = resolve_sides(flow, parse_side("west"), parse_side("east"))
     divide = divide_between(dem, sides.a.mask, sides.b.mask)
-    pts = sample_divide(flow, divide, spacing_m=60.0, channel_area_m2=2e5, reference_area_m2=2e5,
+    pts = sample_divide(flow, divide, spacing_m=60.0, channel_area_m2=2e4, reference_area_m2=2e4,
                         chi_grid=np.zeros(dem.shape), relief_radius_m=300.0)
     assert np.median(pts.normal[:, 0]) > 0.95 and np.all(pts.normal[:, 0] > 0.5)  # east, into side b
     ga, gb = pts.values["hillslope_gradient"]
