@@ -12,7 +12,7 @@ from skimage import measure
 from divides.errors import SideError
 from divides.io.dem import Dem
 
-__all__ = ["DivideLine", "Divide", "divide_between", "divide_network", "DEFAULT_SADDLE_DEPTH_M"]
+__all__ = ["DivideLine", "Divide", "DivideSegment", "divide_between", "divide_network", "DEFAULT_SADDLE_DEPTH_M"]
 
 #: A dip along a divide at least this deep (m) below the crest on both sides is
 #: reported as a saddle (wind-gap candidate) unless the caller says otherwise.
@@ -98,6 +98,30 @@ class Divide:
         """JSON-ready figures for reports."""
         return {"length_m": self.length_m, "n_points": self.n_points, "n_lines": len(self.lines),
                 "n_saddles": len(self.saddles)}
+
+
+@dataclass(frozen=True, eq=False)
+class DivideSegment:
+    """One divide segment of a divide network, between two labelled regions.
+
+    Attributes
+    ----------
+    label_a, label_b : int
+        The regions on the left (a) and right (b) of the line, ``label_a < label_b``.
+    line : DivideLine
+    cells_a, cells_b : ndarray of int64
+        Flat indices of the cells of each region touching the other, near this pair.
+    """
+
+    label_a: int
+    label_b: int
+    line: DivideLine
+    cells_a: np.ndarray
+    cells_b: np.ndarray
+
+    def as_divide(self) -> Divide:
+        """This segment as a :class:`Divide` of its own (no saddle search)."""
+        return Divide([self.line], self.cells_a, self.cells_b)
 
 
 def _metric_lengths(dem: Dem, row: np.ndarray, col: np.ndarray) -> np.ndarray:
@@ -243,7 +267,7 @@ def divide_network(
     *,
     smoothing_cells: float = 1.0,
     min_vertices: int = 3,
-) -> list[tuple[int, int, DivideLine]]:
+) -> list[DivideSegment]:
     """Every divide segment between labelled regions (e.g. basins above a minimum area).
 
     Each traced piece of boundary between two labels ends where a third label
@@ -258,8 +282,8 @@ def divide_network(
 
     Returns
     -------
-    list of (label_1, label_2, DivideLine)
-        With ``label_1 < label_2``; line orientation puts ``label_1`` on the left.
+    list of DivideSegment
+        With ``label_a < label_b``; the line has ``label_a`` on its left.
     """
     lab = np.asarray(labels)
     if lab.shape != dem.shape:
@@ -294,7 +318,12 @@ def divide_network(
         r0, r1 = max(int(r_lo) - 4, 0), min(int(r_hi) + 6, n_rows)
         c0, c1 = max(int(c_lo) - 4, 0), min(int(c_hi) + 6, n_cols)
         win = lab[r0:r1, c0:c1]
-        for line in _lines(dem, win == i, win == j, smoothing_cells=smoothing_cells,
-                           min_vertices=min_vertices, offset=(r0, c0)):
-            out.append((i, j, line))
+        a, b = win == i, win == j
+        wr, wc = np.nonzero(a & ndimage.binary_dilation(b, _EIGHT))
+        cells_a = (wr + r0) * n_cols + (wc + c0)
+        wr, wc = np.nonzero(b & ndimage.binary_dilation(a, _EIGHT))
+        cells_b = (wr + r0) * n_cols + (wc + c0)
+        for line in _lines(dem, a, b, smoothing_cells=smoothing_cells, min_vertices=min_vertices,
+                           offset=(r0, c0)):
+            out.append(DivideSegment(i, j, line, cells_a.astype(np.int64), cells_b.astype(np.int64)))
     return out

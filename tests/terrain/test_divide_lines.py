@@ -128,9 +128,13 @@ def test_network_segments_between_three_basins():
     labels = 1 + (angle >= 120).astype(int) + (angle >= 240).astype(int)
     dem = Dem.from_array(np.zeros((n, n)), cell_size=CELL)
     segments = divide_network(dem, labels)
-    pairs = sorted((i, j) for i, j, _ in segments)
+    pairs = sorted((s.label_a, s.label_b) for s in segments)
     assert pairs == [(1, 2), (1, 3), (2, 3)]
-    for _, _, line in segments:
+    for seg in segments:
+        line = seg.line
+        # contact cells are cells of each label touching the other (8-neighbours), by definition
+        rows, cols = np.divmod(seg.cells_a, n)
+        assert np.all(labels[rows, cols] == seg.label_a)
         ends = np.array([[line.row[0], line.col[0]], [line.row[-1], line.col[-1]]])
         # one end near the junction (45, 45), within 2 cells (the traced band stops short of it)
         assert np.min(np.hypot(ends[:, 0] - 45, ends[:, 1] - 45)) <= 2.5
