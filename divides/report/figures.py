@@ -1,0 +1,586 @@
+"""Figures of an assessment (matplotlib, Agg canvas, no display needed).
+
+Every figure is drawn on its own :class:`matplotlib.figure.Figure` with an
+Agg canvas, so nothing touches pyplot's global state and no display is
+needed. Rasters are decimated to at most :data:`MAX_DISPLAY_PX` per side
+before drawing, which keeps all figures of a 2000² DEM within seconds.
+
+Colours: Okabe & Ito's colour-blind-safe set for the two sides, cividis for
+χ, and the ColorBrewer purple–orange diverging scheme (colour-blind safe)
+for the local evidence of motion.
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+from matplotlib import patheffects
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import LineCollection
+from matplotlib.colors import LightSource, ListedColormap
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+
+from divides.assess.points import METRICS
+from divides.report.layers import motion_index
+from divides.report.text import side_label
+
+if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
+    from divides.assess.assessment import Assessment
+    from divides.io.dem import Dem
+
+__all__ = [
+    "FIGURES",
+    "CAPTIONS",
+    "SIDE_COLOURS",
+    "MAX_DISPLAY_PX",
+    "render_figures",
+    "to_png",
+    "map_figure",
+    "chi_map_figure",
+    "chi_elevation_figure",
+    "contrast_figure",
+    "profile_figure",
+    "slope_area_figure",
+]
+
+#: Okabe & Ito (2008) blue for side a and orange for side b.
+SIDE_COLOURS = {"a": "#0072B2", "b": "#E69F00"}
+
+#: Largest raster side drawn, in cells (larger rasters are decimated for display).
+MAX_DISPLAY_PX = 800
+
+#: Resolution of the PNGs (dots per inch).
+DPI = 130
+
+#: Figure file stem -> name of the function in this module that draws it.
+FIGURES = {
+    "map": "map_figure",
+    "chi_map": "chi_map_figure",
+    "chi_elevation": "chi_elevation_figure",
+    "contrasts": "contrast_figure",
+    "long_profiles": "profile_figure",
+    "slope_area": "slope_area_figure",
+}
+
+#: One-sentence captions for the report.
+CAPTIONS = {
+    "map": "The two sides on a shaded relief, the divide coloured by the local evidence of motion "
+           "(purple: into side a, orange: into side b), arrows in the direction of the verdict, significant "
+           "knickpoints and the first-order equilibrium divide.",
+    "chi_map": "χ of the analysed channels, integrated from the common base level of both sides. "
+               "The divide tends to move toward the side whose channel heads have the higher χ.",
+    "chi_elevation": "Elevation against χ for every analysed channel, by side. Straight profiles are in "
+                     "steady state; breaks mark knickpoints; the side whose heads reach higher χ at "
+                     "a similar elevation loses ground in the long run.",
+    "contrasts": "Across-divide differences (side a minus side b) with 95 % block-bootstrap intervals. "
+                 "The shaded half says which way each sign points. A filled marker counts as evidence.",
+    "long_profiles": "Long profiles of the longest channels of each side, side a to the left and side b to "
+                     "the right of their channel heads, with significant knickpoints.",
+    "slope_area": "Channel gradient against drainage area for both sides, with binned medians and the "
+                  "power law fitted to all analysed channels.",
+}
+
+_HALO = [patheffects.withStroke(linewidth=3.0, foreground="white")]
+
+#: Purple–orange diverging map (ColorBrewer PuOr), purple for "into a", orange for "into b".
+_MOTION = "PuOr_r"
+
+
+# ------------------------------------------------------------------ helpers
+def to_png(fig: Figure) -> bytes:
+    """Render a figure to PNG bytes with the Agg canvas."""
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    canvas.print_png(buf)
+    return buf.getvalue()
+
+
+def render_figures(result: Assessment, *, progress=None) -> dict[str, bytes]:
+    """Draw every figure of :data:`FIGURES` and return name -> PNG bytes.
+
+    ``progress(stage)`` is called before each figure with ``"figure: NAME"``.
+    Functions are looked up by name at call time, so each can be replaced
+    (tests do so to inject failures).
+    """
+    out = {}
+    for name, function in FIGURES.items():
+        if progress is not None:
+            progress(f"figure: {name}")
+        out[name] = to_png(globals()[function](result))
+    return out
+
+
+def _figure(width: float, height: float) -> Figure:
+    fig = Figure(figsize=(width, height), dpi=DPI, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+@dataclass(frozen=True)
+class _Frame:
+    """How DEM coordinates are shown on map axes."""
+
+    scale: float  # CRS units -> axis units
+    xlabel: str
+    ylabel: str
+    aspect: float
+    geographic: bool
+
+
+def _frame(dem: Dem) -> _Frame:
+    if dem.crs is not None and dem.geographic:
+        mid = 0.5 * (dem.bounds[1] + dem.bounds[3])
+        return _Frame(1.0, "Longitude (°)", "Latitude (°)", 1.0 / max(np.cos(np.radians(mid)), 1e-6), True)
+    factor = 1.0
+    if dem.crs is not None:
+        factor = float(dem.crs.linear_units_factor[1] or 1.0)
+    if dem.crs is None:
+        return _Frame(factor / 1000.0, "x (km)", "y (km)", 1.0, False)
+    return _Frame(factor / 1000.0, "Easting (km)", "Northing (km)", 1.0, False)
+
+
+def _extent(dem: Dem, frame: _Frame) -> list[float]:
+    left, bottom, right, top = dem.bounds
+    return [left * frame.scale, right * frame.scale, bottom * frame.scale, top * frame.scale]
+
+
+def _stride(shape: tuple[int, int]) -> int:
+    return max(1, int(np.ceil(max(shape) / MAX_DISPLAY_PX)))
+
+
+def _decimate(array: np.ndarray, step: int) -> np.ndarray:
+    return array[::step, ::step]
+
+
+def _display_extent(dem: Dem, frame: _Frame, step: int) -> list[float]:
+    """Extent of a decimated raster: the cells kept cover ``step`` source cells each."""
+    rows, cols = dem.shape
+    t = dem.transform
+    right = t.c + t.a * (int(np.ceil(cols / step)) * step)
+    bottom = t.f + t.e * (int(np.ceil(rows / step)) * step)
+    return [t.c * frame.scale, right * frame.scale, bottom * frame.scale, t.f * frame.scale]
+
+
+def _hillshade(ax, dem: Dem, frame: _Frame) -> None:
+    """Grey shaded relief (light from the north-west, 45° high; common practice)."""
+    step = _stride(dem.shape)
+    z = _decimate(dem.elevation, step).astype(np.float64)
+    valid = np.isfinite(z)
+    if not valid.any():
+        return
+    z = np.where(valid, z, np.nanmean(z))
+    dx = float(np.median(dem.dx)) * step
+    dy = float(np.median(dem.dy)) * step
+    shade = LightSource(azdeg=315, altdeg=45).hillshade(z, vert_exag=1.0, dx=dx, dy=dy)
+    shade = np.ma.masked_array(0.35 + 0.65 * shade, ~valid)
+    ax.imshow(shade, cmap="gray", vmin=0, vmax=1, extent=_display_extent(dem, frame, step),
+              interpolation="bilinear", origin="upper", zorder=0,
+              aspect=frame.aspect)  # imshow would reset the aspect to 1
+
+
+def _side_tint(ax, result: Assessment, frame: _Frame, alpha: float = 0.22) -> None:
+    dem = result.dem
+    step = _stride(dem.shape)
+    labels = np.zeros(dem.shape, dtype=np.uint8)
+    labels[result.sides.a.mask] = 1
+    labels[result.sides.b.mask] = 2
+    small = _decimate(labels, step)
+    cmap = ListedColormap([(0, 0, 0, 0), (*_rgb(SIDE_COLOURS["a"]), alpha), (*_rgb(SIDE_COLOURS["b"]), alpha)])
+    ax.imshow(small, cmap=cmap, vmin=-0.5, vmax=2.5, extent=_display_extent(dem, frame, step),
+              interpolation="nearest", origin="upper", zorder=1,
+              aspect=frame.aspect)
+
+
+def _rgb(hex_colour: str) -> tuple[float, float, float]:
+    h = hex_colour.lstrip("#")
+    return tuple(int(h[i:i + 2], 16) / 255 for i in (0, 2, 4))  # type: ignore[return-value]
+
+
+def _channel_segments(result: Assessment, frame: _Frame) -> tuple[np.ndarray, np.ndarray]:
+    """Segments (cell to downstream cell) of the analysed channels, in axis units, and their positions."""
+    channels = result.channels
+    kept = np.flatnonzero(result.profiles.side > 0)
+    down = channels.down[kept]
+    kept = kept[down >= 0]
+    down = channels.down[kept]
+    rows, cols = np.divmod(channels.cells, result.dem.shape[1])
+    x, y = result.dem.xy(rows, cols)
+    x, y = x * frame.scale, y * frame.scale
+    seg = np.stack([np.column_stack([x[kept], y[kept]]), np.column_stack([x[down], y[down]])], axis=1)
+    return seg, kept
+
+
+def _channel_widths(area: np.ndarray) -> np.ndarray:
+    """Line widths growing with log drainage area, 0.4 to 2.2 points."""
+    la = np.log10(np.maximum(area, 1.0))
+    lo, hi = float(la.min()), float(la.max())
+    return 0.4 + 1.8 * (la - lo) / (hi - lo) if hi > lo else np.full(area.shape, 1.0)
+
+
+def _divide_lines(ax, result: Assessment, frame: _Frame, **kwargs) -> None:
+    for line in result.divide.lines:
+        ax.plot(line.x * frame.scale, line.y * frame.scale, **kwargs)
+
+
+def _map_axes(fig: Figure, result: Assessment, frame: _Frame, *, width: float):
+    ax = fig.add_subplot()
+    ax.set_xlabel(frame.xlabel)
+    ax.set_ylabel(frame.ylabel)
+    ax.set_aspect(frame.aspect)
+    ext = _extent(result.dem, frame)
+    ax.set_xlim(ext[0], ext[1])
+    ax.set_ylim(ext[2], ext[3])
+    ax.ticklabel_format(useOffset=False, style="plain")
+    return ax
+
+
+def _map_size(dem: Dem, frame: _Frame, *, width: float = 8.0, extra: float = 1.6) -> tuple[float, float]:
+    """Figure size whose height fits the map: axes about 2.2 in narrower than the figure, plus ``extra``."""
+    left, bottom, right, top = dem.bounds
+    ratio = (top - bottom) * frame.aspect / max(right - left, 1e-12)
+    return width, float(np.clip((width - 2.2) * ratio + extra, 4.0, 11.0))
+
+
+def _metres_to_axis(dem: Dem, frame: _Frame, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Axis units per metre east and north at CRS northings/latitudes ``y``."""
+    if frame.geographic:
+        lat = np.radians(np.asarray(y, dtype=np.float64))
+        # lengths of a degree on the WGS 84 ellipsoid (series; common practice)
+        per_deg_lat = 111132.92 - 559.82 * np.cos(2 * lat) + 1.175 * np.cos(4 * lat)
+        per_deg_lon = 111412.84 * np.cos(lat) - 93.5 * np.cos(3 * lat)
+        return 1.0 / np.maximum(per_deg_lon, 1e-6), 1.0 / per_deg_lat
+    one = np.ones_like(np.asarray(y, dtype=np.float64)) * frame.scale
+    return one, one
+
+
+def _side_legend_handles(result: Assessment) -> list:
+    return [Patch(facecolor=SIDE_COLOURS[s], alpha=0.45, edgecolor="none", label=side_label(result, s))
+            for s in ("a", "b")]
+
+
+def _verdict_title(result: Assessment) -> str:
+    v = result.verdict
+    if v.moves_toward in ("a", "b"):
+        what = f"divide moving into side {v.moves_toward}"
+        if v.basis == "chi":
+            what += " (long-run tendency)"
+    else:
+        what = {"stable": "divide stable", "undetermined": "direction undetermined"}.get(v.moves_toward,
+                                                                                          v.moves_toward)
+    return f"{what}; confidence {v.confidence:.2f}"
+
+
+# ------------------------------------------------------------------ figures
+def map_figure(result: Assessment) -> Figure:
+    """Map: shaded relief, the two sides, channels, the divide coloured by local motion, arrows, knickpoints."""
+    dem = result.dem
+    frame = _frame(dem)
+    fig = _figure(*_map_size(dem, frame, extra=1.9))
+    ax = _map_axes(fig, result, frame, width=8.0)
+    _hillshade(ax, dem, frame)
+    _side_tint(ax, result, frame)
+    seg, pos = _channel_segments(result, frame)
+    if len(seg):
+        ax.add_collection(LineCollection(seg, colors="#0b2e59", linewidths=_channel_widths(result.channels.area[pos]),
+                                         alpha=0.75, zorder=2, capstyle="round"))
+    # the divide: a dark outline under a line coloured by the local evidence of motion
+    index = motion_index(result)
+    pts = result.points
+    _divide_lines(ax, result, frame, color="black", lw=4.2, zorder=3, solid_capstyle="round")
+    cmap_segments, cmap_values = [], []
+    for line in np.unique(pts.line):
+        sel = np.flatnonzero(pts.line == line)
+        if sel.size < 2:
+            continue
+        xy = np.column_stack([pts.x[sel] * frame.scale, pts.y[sel] * frame.scale])
+        cmap_segments.extend(np.stack([xy[:-1], xy[1:]], axis=1))
+        vals = 0.5 * (index[sel][:-1] + index[sel][1:])
+        cmap_values.extend(np.where(np.isfinite(vals), vals, 0.0))
+    lc = LineCollection(cmap_segments, cmap=_MOTION, linewidths=2.6, zorder=4, capstyle="round")
+    lc.set_array(np.asarray(cmap_values, dtype=float))
+    lc.set_clim(-1, 1)
+    ax.add_collection(lc)
+    bar = fig.colorbar(lc, ax=ax, shrink=0.7, pad=0.02, ticks=[-1, 0, 1])
+    bar.ax.set_yticklabels(["into a", "neutral", "into b"])
+    bar.set_label("Local evidence of divide motion (index, −1 … +1)")
+
+    handles = _side_legend_handles(result) + [
+        Line2D([], [], color="#0b2e59", lw=1.4, label="channels analysed"),
+        Line2D([], [], color="black", lw=4, label="divide (coloured by local evidence)"),
+    ]
+    # arrows in the direction of the verdict, starting on the divide
+    v = result.verdict
+    if v.moves_toward in ("a", "b") and pts.size:
+        sign = 1.0 if v.moves_toward == "b" else -1.0
+        length_m = 0.07 * float(np.median(dem.dx)) * dem.shape[1]  # 7 % of the map's width
+        k = min(9, pts.size)
+        pick = np.unique(np.linspace(0, pts.size - 1, k + 2).round().astype(int)[1:-1]) if pts.size > 2 \
+            else np.arange(pts.size)
+        per_e, per_n = _metres_to_axis(dem, frame, pts.y[pick])
+        for j, i in enumerate(pick):
+            x0, y0 = pts.x[i] * frame.scale, pts.y[i] * frame.scale
+            dxa = sign * pts.normal[i, 0] * length_m * per_e[j]
+            dya = sign * pts.normal[i, 1] * length_m * per_n[j]
+            ax.annotate("", xy=(x0 + dxa, y0 + dya), xytext=(x0, y0), zorder=6,
+                        arrowprops=dict(arrowstyle="simple,head_width=0.7,head_length=0.8,tail_width=0.28",
+                                        fc="white", ec="black", lw=0.9, shrinkA=0, shrinkB=0))
+        handles.append(Line2D([], [], marker=r"$\rightarrow$", color="black", ls="none", markersize=14,
+                              label=f"direction of motion (into side {v.moves_toward})"))
+    eq = result.equilibrium
+    drew_eq = False
+    for line in np.unique(eq.line):
+        sel = (eq.line == line) & np.isfinite(eq.shift_m)
+        if np.count_nonzero(sel) >= 2:
+            ax.plot(eq.x[sel] * frame.scale, eq.y[sel] * frame.scale, color="black", lw=1.5, ls=(0, (5, 3)),
+                    zorder=5, path_effects=_HALO)
+            drew_eq = True
+    if drew_eq:
+        handles.append(Line2D([], [], color="black", lw=1.5, ls=(0, (5, 3)), label="equilibrium divide (first-order)"))
+    if result.knickpoints:
+        kx = np.array([k["x"] for k in result.knickpoints]) * frame.scale
+        ky = np.array([k["y"] for k in result.knickpoints]) * frame.scale
+        ax.scatter(kx, ky, marker="v", s=38, facecolor="white", edgecolor="black", linewidth=0.9, zorder=7)
+        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
+                              label="knickpoint"))
+    ax.set_title(f"Divide between {side_label(result, 'a')} and {side_label(result, 'b')}\n{_verdict_title(result)}",
+                 fontsize=11)
+    fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=8, frameon=False)
+    return fig
+
+
+def chi_map_figure(result: Assessment) -> Figure:
+    """χ of the analysed channels on the shaded relief."""
+    dem = result.dem
+    frame = _frame(dem)
+    fig = _figure(*_map_size(dem, frame, extra=1.3))
+    ax = _map_axes(fig, result, frame, width=8.0)
+    _hillshade(ax, dem, frame)
+    _side_tint(ax, result, frame, alpha=0.12)
+    seg, pos = _channel_segments(result, frame)
+    chi = result.profiles.chi
+    if len(seg):
+        lc = LineCollection(seg, cmap="cividis", linewidths=0.6 + 1.2 * _channel_widths(result.channels.area[pos]),
+                            zorder=3, capstyle="round")
+        lc.set_array(np.nan_to_num(chi[pos], nan=0.0))
+        finite = chi[np.isfinite(chi)]
+        if finite.size:
+            lc.set_clim(0.0, float(np.max(finite)) or 1.0)
+        ax.add_collection(lc)
+        bar = fig.colorbar(lc, ax=ax, shrink=0.75, pad=0.02)
+        bar.set_label(f"χ (m), θ = {result.profiles.theta:.2f}, A₀ = {result.profiles.a0:g} m²")
+    _divide_lines(ax, result, frame, color="white", lw=3.6, zorder=4)
+    _divide_lines(ax, result, frame, color="black", lw=1.6, zorder=5)
+    handles = _side_legend_handles(result) + [Line2D([], [], color="black", lw=1.6, label="divide")]
+    fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=8, frameon=False)
+    ax.set_title(f"χ from the common base level ({result.base.elevation_m:.0f} m)", fontsize=11)
+    return fig
+
+
+def _side_xy_collection(result: Assessment, side: str, x: np.ndarray, y: np.ndarray) -> LineCollection | None:
+    """Segments cell -> downstream cell of one side's analysed channels in (x, y) plot values."""
+    channels = result.channels
+    code = 1 if side == "a" else 2
+    kept = np.flatnonzero(result.profiles.side == code)
+    down = channels.down[kept]
+    ok = down >= 0
+    kept, down = kept[ok], down[ok]
+    ok = np.isfinite(x[kept]) & np.isfinite(x[down]) & np.isfinite(y[kept]) & np.isfinite(y[down])
+    kept, down = kept[ok], down[ok]
+    if kept.size == 0:
+        return None
+    seg = np.stack([np.column_stack([x[kept], y[kept]]), np.column_stack([x[down], y[down]])], axis=1)
+    return LineCollection(seg, colors=SIDE_COLOURS[side], linewidths=0.9, alpha=0.8)
+
+
+def chi_elevation_figure(result: Assessment) -> Figure:
+    """Elevation against χ of every analysed channel, by side, with knickpoints."""
+    fig = _figure(7.5, 5.2)
+    ax = fig.add_subplot()
+    chi = result.profiles.chi
+    z = result.channels.elevation
+    for side in ("a", "b"):
+        lc = _side_xy_collection(result, side, chi, z)
+        if lc is not None:
+            ax.add_collection(lc)
+    handles = [Line2D([], [], color=SIDE_COLOURS[s], lw=2, label=side_label(result, s)) for s in ("a", "b")]
+    if result.knickpoints:
+        pos = np.array([k["position"] for k in result.knickpoints], dtype=np.int64)
+        ax.scatter(chi[pos], z[pos], marker="v", s=36, facecolor="white", edgecolor="black", linewidth=0.9, zorder=4)
+        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
+                              label="knickpoint"))
+    ax.axhline(result.base.elevation_m, color="0.4", lw=0.8, ls=":", zorder=1)
+    handles.append(Line2D([], [], color="0.4", lw=0.8, ls=":", label="common base level"))
+    ax.autoscale_view()
+    ax.set_xlim(left=0)
+    ax.set_xlabel(f"χ (m), θ = {result.profiles.theta:.2f}, A₀ = {result.profiles.a0:g} m²")
+    ax.set_ylabel("Elevation (m)")
+    ax.grid(True, color="0.9", lw=0.6)
+    ax.legend(handles=handles, loc="upper left", fontsize=8, frameon=True, framealpha=0.9)
+    ax.set_title("χ–elevation profiles by side", fontsize=11)
+    return fig
+
+
+_METRIC_LABELS = {
+    "chi": "χ at the channel heads",
+    "channel_elevation": "Channel elevation at the reference area",
+    "hillslope_gradient": "Mean gradient above the reference area",
+    "local_relief": "Local relief above the reference area",
+    "hillslope_relief": "Hillslope relief (divide − channel head)",
+}
+
+
+def _fmt(v: float) -> str:
+    if not np.isfinite(v):
+        return "n/a"
+    return f"{v:.3f}" if abs(v) < 1 else f"{v:.3g}" if abs(v) < 100 else f"{v:,.0f}"
+
+
+def contrast_figure(result: Assessment) -> Figure:
+    """One row per metric: the difference a − b with its 95 % interval, and what each sign means."""
+    contrasts = result.contrasts
+    n = max(len(contrasts), 1)
+    fig = _figure(7.5, 1.05 * n + 1.0)
+    axes = fig.subplots(n, 1, squeeze=False)[:, 0]
+    for ax, c in zip(axes, contrasts):
+        lo, hi = c.ci95
+        span = max(abs(v) for v in (lo, hi, c.difference, 0.0) if np.isfinite(v)) if np.isfinite(c.difference) \
+            else 1.0
+        span = 1.25 * span if span > 0 else 1.0
+        # which side the divide moves into when a − b is positive / negative (rule of the metric)
+        rule = METRICS.get(c.metric, ("", "higher"))[1]
+        pos_side, neg_side = ("a", "b") if rule == "higher" else ("b", "a")
+        ax.axvspan(0, span, color=SIDE_COLOURS[pos_side], alpha=0.16, lw=0)
+        ax.axvspan(-span, 0, color=SIDE_COLOURS[neg_side], alpha=0.16, lw=0)
+        ax.axvline(0, color="0.3", lw=0.8)
+        ax.text(0.995, 0.9, f"into {pos_side} →", transform=ax.transAxes, ha="right", va="top", fontsize=7.5,
+                color="0.2")
+        ax.text(0.005, 0.9, f"← into {neg_side}", transform=ax.transAxes, ha="left", va="top", fontsize=7.5,
+                color="0.2")
+        if np.isfinite(c.difference):
+            evidence = c.moves_toward in ("a", "b")
+            ax.errorbar([c.difference], [0], xerr=[[c.difference - lo], [hi - c.difference]], fmt="o",
+                        ms=7, color="black", mfc="black" if evidence else "white", mew=1.3, capsize=4, lw=1.5)
+            note = f"a {_fmt(c.a)}, b {_fmt(c.b)} {c.unit}; n = {c.n_points}"
+        else:
+            note = f"not enough points on both sides (n = {c.n_points})"
+        ax.set_xlim(-span, span)
+        ax.set_ylim(-1, 1)
+        ax.set_yticks([])
+        unit = c.unit if c.unit != "m/m" else "m/m"
+        ax.set_xlabel(f"a − b ({unit})", fontsize=8, labelpad=1)
+        ax.tick_params(axis="x", labelsize=8)
+        ax.set_title(f"{_METRIC_LABELS.get(c.metric, c.metric)}: {note}", fontsize=8.5, loc="left")
+    fig.suptitle("Across-divide contrasts with 95 % intervals (filled: counts as evidence)", fontsize=10.5)
+    return fig
+
+
+def _main_streams(result: Assessment, side: str, count: int = 3) -> list:
+    dist = result.channels.distance_upstream
+    streams = [s for s in result.profiles.streams if s.side == side and s.nodes.size >= 2]
+    streams.sort(key=lambda s: dist[s.nodes[-1]] - dist[s.nodes[0]], reverse=True)
+    return streams[:count]
+
+
+def profile_figure(result: Assessment) -> Figure:
+    """Long profiles of each side's longest channels, mirrored about their channel heads."""
+    fig = _figure(8.0, 5.4)
+    ax = fig.add_subplot()
+    dist = result.channels.distance_upstream
+    z = result.channels.elevation
+    kp_by_pos: dict[int, list] = {}
+    for k in result.knickpoints:
+        kp_by_pos.setdefault(int(k["position"]), []).append(k)
+    styles = ["-", "--", ":"]
+    handles = []
+    drew_kp = False
+    for side, sign in (("a", -1.0), ("b", 1.0)):
+        for rank, s in enumerate(_main_streams(result, side)):
+            nodes = s.nodes
+            from_head = (dist[nodes[-1]] - dist[nodes]) / 1000.0
+            ax.plot(sign * from_head, z[nodes], color=SIDE_COLOURS[side], ls=styles[rank % 3], lw=1.6)
+            handles.append(Line2D([], [], color=SIDE_COLOURS[side], ls=styles[rank % 3], lw=1.6,
+                                  label=f"side {side}, channel {rank + 1} "
+                                        f"({(dist[nodes[-1]] - dist[nodes[0]]) / 1000:.1f} km)"))
+            hits = [i for i, p in enumerate(nodes) if int(p) in kp_by_pos]
+            if hits:
+                ax.scatter(sign * from_head[hits], z[nodes[hits]], marker="v", s=40, facecolor="white",
+                           edgecolor="black", linewidth=0.9, zorder=4)
+                drew_kp = True
+    if drew_kp:
+        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
+                              label="knickpoint"))
+    ax.axvline(0, color="0.5", lw=0.8, ls=":")
+    ax.axhline(result.base.elevation_m, color="0.5", lw=0.8, ls=":")
+    handles.append(Line2D([], [], color="0.5", lw=0.8, ls=":", label="common base level"))
+    ax.autoscale_view()
+    lo, hi = ax.get_xlim()
+    span = max(abs(lo), abs(hi))
+    ax.set_xlim(-span, span)  # the channel heads in the middle
+    ax.set_xlabel("Distance from the channel head (km): side a to the left, side b to the right")
+    ax.set_ylabel("Elevation (m)")
+    xt = ax.get_xticks()
+    ax.set_xticks(xt)
+    ax.set_xticklabels([f"{abs(t):g}" for t in xt])
+    ax.grid(True, color="0.9", lw=0.6)
+    fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=7.5, frameon=False)
+    ax.set_title("Long profiles of the main channels", fontsize=11)
+    return fig
+
+
+def slope_area_figure(result: Assessment) -> Figure:
+    """Channel gradient against drainage area by side, with binned medians and the fitted power law."""
+    fig = _figure(7.5, 5.2)
+    ax = fig.add_subplot()
+    prof = result.profiles
+    area = result.channels.area
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = prof.ksn_slope_area / (area / prof.a0) ** prof.theta  # ksn_sa = S (A/A0)^θ
+    rng = np.random.default_rng(0)
+    handles = []
+    for side, code, marker in (("a", 1, "o"), ("b", 2, "s")):
+        sel = np.flatnonzero((prof.side == code) & np.isfinite(slope) & (slope > 0) & (area > 0))
+        if sel.size == 0:
+            continue
+        shown = rng.choice(sel, size=min(sel.size, 4000), replace=False) if sel.size > 4000 else sel
+        ax.scatter(area[shown], slope[shown], s=4, color=SIDE_COLOURS[side], alpha=0.25, lw=0)
+        la = np.log10(area[sel])
+        edges = np.arange(np.floor(la.min() * 5), np.ceil(la.max() * 5) + 1) / 5  # 5 bins per decade
+        which = np.digitize(la, edges)
+        bx, by = [], []
+        for b in np.unique(which):
+            inside = sel[which == b]
+            if inside.size >= 5:
+                bx.append(np.median(area[inside]))
+                by.append(np.median(slope[inside]))
+        ax.plot(bx, by, marker=marker, ls="none", ms=7, mfc=SIDE_COLOURS[side], mec="black", mew=0.8)
+        handles.append(Line2D([], [], marker=marker, ls="none", ms=7, mfc=SIDE_COLOURS[side], mec="black",
+                              label=f"{side_label(result, side)}: binned medians"))
+    fit = prof.concavity.get("slope_area")
+    if fit is not None and np.isfinite(fit.value) and "log_ks" in fit.scores:
+        ok = (prof.side > 0) & (area > 0)
+        a_line = np.logspace(np.log10(area[ok].min()), np.log10(area[ok].max()), 50)
+        s_line = 10 ** fit.scores["log_ks"] * a_line ** (-fit.value)
+        lo, hi = fit.ci95
+        ax.plot(a_line, s_line, color="black", lw=1.6)
+        handles.append(Line2D([], [], color="black", lw=1.6,
+                              label=rf"fit $S = k_s A^{{-\theta}}$: θ = {fit.value:.2f} (95 % {lo:.2f}–{hi:.2f}), "
+                                    rf"$k_s$ = {10 ** fit.scores['log_ks']:.3g}"))
+    else:
+        ax.text(0.02, 0.03, "no slope–area fit (too few channel cells with a gradient)", transform=ax.transAxes,
+                fontsize=8)
+    thr = result.channels.threshold.value_m2
+    ax.axvline(thr, color="0.4", lw=0.8, ls=":")
+    handles.append(Line2D([], [], color="0.4", lw=0.8, ls=":", label=f"channel threshold ({thr:.3g} m²)"))
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("Drainage area A (m²)")
+    ax.set_ylabel("Channel gradient S (m/m)")
+    ax.grid(True, which="major", color="0.9", lw=0.6)
+    ax.legend(handles=handles, fontsize=8, loc="lower left", framealpha=0.9)
+    ax.set_title("Slope–area", fontsize=11)
+    return fig

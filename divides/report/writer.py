@@ -1,0 +1,186 @@
+"""Writing every output of an assessment into one folder, atomically.
+
+Everything is built in a hidden temporary folder beside ``out_dir`` and
+renamed into place only when all files are written, so a failed or
+interrupted run leaves neither a half-written ``out_dir`` nor the temporary
+folder. An existing ``out_dir`` is refused unless ``overwrite``; even then
+only a previous output of `divides` (or an empty folder) is replaced, never
+an arbitrary folder, and only after the new outputs are complete.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import secrets
+import shutil
+from collections.abc import Callable
+from contextlib import suppress
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from divides.errors import DividesError, OutputError
+from divides.io.writing import atomic_write, write_json, write_text
+from divides.report import figures as _figures
+from divides.report import html as _html
+from divides.report import layers as _layers
+from divides.report import text as _text
+
+if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
+    from divides.assess.assessment import Assessment
+
+__all__ = ["write_assessment", "STAGES"]
+
+#: Stages reported to ``progress``, in order (a progress bar can size itself from this).
+STAGES = (
+    "summary.json",
+    "verdict.txt",
+    "layers",
+    "rasters",
+    "tables",
+    *(f"figure: {name}" for name in _figures.FIGURES),
+    "report.html",
+    "finishing",
+)
+
+
+def _reason(exc: OSError) -> str:
+    return exc.strerror or str(exc) or type(exc).__name__
+
+
+def _is_previous_output(folder: Path) -> bool:
+    """True for an empty folder or one holding a `divides` summary.json."""
+    try:
+        entries = list(folder.iterdir())
+    except OSError:
+        return False
+    if not entries:
+        return True
+    summary = folder / "summary.json"
+    try:
+        schema = json.loads(summary.read_text(encoding="utf-8")).get("schema", "")
+    except (OSError, ValueError, AttributeError):
+        return False
+    return isinstance(schema, str) and schema.startswith("divides.")
+
+
+def _check_target(out: Path, overwrite: bool) -> None:
+    if out.is_symlink() or out.exists():
+        if not out.is_dir() or out.is_symlink():
+            raise OutputError(f"cannot write outputs to '{out}': it exists and is not a folder; choose another --out")
+        if not overwrite:
+            raise OutputError(f"output folder '{out}' already exists; choose another --out or pass --overwrite")
+        if not _is_previous_output(out):
+            raise OutputError(
+                f"output folder '{out}' exists and is not an earlier divides output (no divides summary.json); "
+                "refusing to replace it even with --overwrite: remove it yourself or choose another --out"
+            )
+
+
+def _make_temporary(out: Path) -> Path:
+    """A new hidden folder beside ``out`` (same file system, so the final rename is atomic)."""
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        for _ in range(100):
+            tmp = out.with_name(f".{out.name}.{secrets.token_hex(4)}.partial")
+            try:
+                os.mkdir(tmp)  # mode 0o777 less the umask, like any folder the user makes
+            except FileExistsError:
+                continue
+            return tmp
+    except OSError as exc:
+        raise OutputError(f"cannot write outputs to '{out}': {_reason(exc)}") from None
+    raise OutputError(f"cannot write outputs to '{out}': no free temporary name in '{out.parent}'")
+
+
+def _write_all(result: Assessment, folder: Path, step: Callable[[str], None]) -> None:
+    step("summary.json")
+    write_json(folder / "summary.json", result.summary)
+    step("verdict.txt")
+    write_text(folder / "verdict.txt", _text.verdict_text(result))
+    step("layers")
+    _layers.write_layers(result, folder / "layers")
+    step("rasters")
+    _layers.write_rasters(result, folder / "rasters")
+    step("tables")
+    _layers.write_tables(result, folder / "tables")
+    pngs = _figures.render_figures(result, progress=step)
+    for name, png in pngs.items():
+        _write_bytes(folder / "figures" / f"{name}.png", png)
+    step("report.html")
+    write_text(folder / "report.html", _html.render_report(result, pngs, captions=_figures.CAPTIONS))
+
+
+def _write_bytes(path: Path, data: bytes) -> Path:
+    with atomic_write(path, parents=True) as tmp:
+        tmp.write_bytes(data)
+    return path
+
+
+def _move_into_place(tmp: Path, out: Path) -> None:
+    """Rename ``tmp`` to ``out``; an existing ``out`` is moved aside first and removed after."""
+    aside = None
+    if out.exists():
+        aside = out.with_name(f".{out.name}.{secrets.token_hex(4)}.replaced")
+        os.rename(out, aside)
+    try:
+        os.rename(tmp, out)
+    except OSError:
+        if aside is not None:
+            with suppress(OSError):
+                os.rename(aside, out)  # put the previous outputs back
+        raise
+    if aside is not None:
+        shutil.rmtree(aside, ignore_errors=True)
+
+
+def write_assessment(
+    result: Assessment,
+    out_dir: str | os.PathLike,
+    *,
+    overwrite: bool = False,
+    progress: Callable[[str], None] | None = None,
+) -> Path:
+    """Write every output of an assessment into ``out_dir``.
+
+    Files: ``summary.json``, ``verdict.txt``, ``report.html``,
+    ``figures/*.png``, ``layers/*.geojson`` (RFC 7946, WGS 84 lon/lat; none
+    when the DEM has no CRS), ``rasters/*.tif`` and ``tables/*.csv``.
+
+    Parameters
+    ----------
+    result : Assessment
+    out_dir : str or os.PathLike
+        Folder to create. Its parent is created if missing.
+    overwrite : bool
+        Replace an existing ``out_dir`` (only an empty folder or an earlier
+        `divides` output) once the new outputs are complete.
+    progress : callable, optional
+        Called with the name of each stage (see :data:`STAGES`) as it starts.
+
+    Returns
+    -------
+    pathlib.Path
+        The output folder.
+
+    Raises
+    ------
+    OutputError
+        ``out_dir`` exists (without ``overwrite``), is not a folder or an
+        earlier output, or cannot be written; the message names the path.
+    """
+    out = Path(os.path.abspath(os.fspath(out_dir)))
+    _check_target(out, overwrite)
+    step = progress if progress is not None else (lambda stage: None)
+    tmp = _make_temporary(out)
+    try:
+        _write_all(result, tmp, step)
+        step("finishing")
+        _check_target(out, overwrite)  # someone may have created it meanwhile
+        _move_into_place(tmp, out)
+    except BaseException as exc:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError) and not isinstance(exc, DividesError):
+            raise OutputError(f"cannot write outputs to '{out}': {_reason(exc)}") from exc
+        raise
+    return out

@@ -1,0 +1,218 @@
+"""GIS outputs checked against RFC 7946, pyproj, rasterio and the csv module."""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+import rasterio
+from pyproj import Transformer
+
+from divides.report import layers
+
+GEOMETRY_TYPES = {"Point", "MultiPoint", "LineString", "MultiLineString", "Polygon", "MultiPolygon",
+                  "GeometryCollection"}  # RFC 7946 §1.4
+
+
+def _reject_constant(name: str):
+    raise ValueError(f"non-standard JSON constant {name}")
+
+
+def _load(path: Path) -> dict:
+    return json.loads(path.read_text(encoding="utf-8"), parse_constant=_reject_constant)
+
+
+def _check_position(pos) -> None:
+    # RFC 7946 §3.1.1: a position is two or three numbers, longitude then latitude (WGS 84, §4)
+    assert isinstance(pos, list) and len(pos) in (2, 3)
+    assert all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in pos)
+    lon, lat = pos[0], pos[1]
+    assert -180.0 <= lon <= 180.0 and -90.0 <= lat <= 90.0
+    # about 7 decimals (1 cm) is the precision asked of the layers (RFC 7946 §11.2 advises 6 are enough)
+    assert round(lon, 7) == lon and round(lat, 7) == lat
+
+
+def _check_geometry(geom: dict) -> None:
+    assert geom["type"] in GEOMETRY_TYPES
+    kind, coords = geom["type"], geom["coordinates"]
+    if kind == "Point":
+        _check_position(coords)
+    elif kind == "LineString":
+        assert len(coords) >= 2  # RFC 7946 §3.1.4
+        for pos in coords:
+            _check_position(pos)
+    else:  # the layers only use points and lines
+        pytest.fail(f"unexpected geometry {kind}")
+
+
+def _check_feature_collection(doc: dict) -> None:
+    assert doc["type"] == "FeatureCollection"  # RFC 7946 §3.3
+    assert "crs" not in doc  # RFC 7946 §4 removed the "crs" member
+    assert isinstance(doc["features"], list)
+    for f in doc["features"]:
+        assert f["type"] == "Feature"  # §3.2
+        assert "crs" not in f
+        assert "geometry" in f and "properties" in f  # both members are required (§3.2)
+        assert f["properties"] is None or isinstance(f["properties"], dict)
+        _check_geometry(f["geometry"])
+
+
+@pytest.fixture(scope="module")
+def docs(written) -> dict[str, dict]:
+    _, out, _ = written
+    return {p.stem: _load(p) for p in sorted((out / "layers").glob("*.geojson"))}
+
+
+def test_every_layer_follows_rfc_7946(docs) -> None:
+    assert set(docs) == {"channels", "divide_points", "divide_lines", "knickpoints", "equilibrium_divide"}
+    for name, doc in docs.items():
+        _check_feature_collection(doc)
+        assert doc["features"], f"{name} is empty on the demo"
+
+
+def test_divide_points_map_back_to_the_dem_crs(written, docs) -> None:
+    result, _, _ = written
+    # pyproj, not rasterio's warp (which the layers use), carries the points back into the DEM's CRS
+    back = Transformer.from_crs("EPSG:4326", result.dem.crs.to_wkt(), always_xy=True)
+    feats = docs["divide_points"]["features"]
+    assert len(feats) == result.points.size
+    lon = np.array([f["geometry"]["coordinates"][0] for f in feats])
+    lat = np.array([f["geometry"]["coordinates"][1] for f in feats])
+    x, y = back.transform(lon, lat)
+    np.testing.assert_allclose(x, result.points.x, atol=1.0)
+    np.testing.assert_allclose(y, result.points.y, atol=1.0)
+
+
+def test_knickpoints_map_back_and_carry_arrival_times(written, docs) -> None:
+    result, _, _ = written
+    back = Transformer.from_crs("EPSG:4326", result.dem.crs.to_wkt(), always_xy=True)
+    feats = docs["knickpoints"]["features"]
+    assert len(feats) == len(result.knickpoints)
+    for f, kp in zip(feats, result.knickpoints):
+        x, y = back.transform(*f["geometry"]["coordinates"])
+        assert abs(x - kp["x"]) < 1.0 and abs(y - kp["y"]) < 1.0
+        p = f["properties"]
+        assert p["side"] in ("a", "b")
+        # an erosion rate was given, so every knickpoint has low <= best <= high (years, positive)
+        assert 0 < p["arrival_years_low"] <= p["arrival_years_best"] <= p["arrival_years_high"]
+
+
+def test_divide_point_properties_hold_both_sides_and_their_difference(written, docs) -> None:
+    result, _, _ = written
+    for i, f in enumerate(docs["divide_points"]["features"]):
+        p = f["properties"]
+        for metric, (va, vb) in result.points.values.items():
+            a, b, d = p[f"{metric}_a"], p[f"{metric}_b"], p[f"{metric}_difference"]
+            if math.isfinite(va[i]) and math.isfinite(vb[i]):
+                assert a == pytest.approx(va[i]) and b == pytest.approx(vb[i])
+                assert d == pytest.approx(a - b, abs=1e-9)
+            else:
+                assert d is None  # JSON null where a side has no value
+        assert p["motion_index"] is None or -1.0 <= p["motion_index"] <= 1.0
+
+
+def test_channel_lines_run_down_channels(written, docs) -> None:
+    result, _, _ = written
+    dem = result.dem
+    to_crs = Transformer.from_crs("EPSG:4326", dem.crs.to_wkt(), always_xy=True)
+    threshold = result.channels.threshold.value_m2
+    filled = result.flow.conditioned.surface
+    feats = docs["channels"]["features"]
+    assert feats
+    for f in feats:
+        p = f["properties"]
+        assert p["side"] in ("a", "b") and p["area_m2"] >= threshold and p["length_m"] > 0
+        lon, lat = np.array(f["geometry"]["coordinates"]).T
+        rows, cols = rasterio.transform.rowcol(dem.transform, *to_crs.transform(lon, lat))
+        rows, cols = np.asarray(rows), np.asarray(cols)
+        # vertices are cell centres of channel cells, each an 8-neighbour of the next (D8 paths)
+        assert np.all(result.flow.area[rows, cols] >= threshold)
+        assert np.all(np.maximum(np.abs(np.diff(rows)), np.abs(np.diff(cols))) == 1)
+        # a depression-filled surface never rises along a flow path (Barnes et al. 2014), so
+        # lines drawn downstream never climb
+        z = filled[rows, cols]
+        assert np.all(np.diff(z) <= 1e-6)
+
+
+def test_geojson_layers_need_a_crs(demo_result) -> None:
+    import dataclasses
+
+    local = dataclasses.replace(demo_result, dem=dataclasses.replace(demo_result.dem, crs=None))
+    assert layers.geojson_layers(local) == {}
+
+
+# ------------------------------------------------------------------ rasters
+def test_rasters_land_on_the_dem_grid_with_the_analysed_values(written) -> None:
+    result, out, _ = written
+    dem = result.dem
+    expected = {
+        "chi": result.profiles.grid(result.profiles.chi),
+        "ksn": result.profiles.grid(result.profiles.ksn),
+    }
+    for name, values in expected.items():
+        with rasterio.open(out / "rasters" / f"{name}.tif") as src:  # rasterio's own reading
+            assert src.transform == dem.transform and src.crs == dem.crs
+            assert (src.height, src.width) == dem.shape and src.count == 1
+            back = src.read(1)
+        want = values.astype(np.float32)
+        np.testing.assert_array_equal(np.isnan(back), np.isnan(want))
+        np.testing.assert_array_equal(back[~np.isnan(back)], want[~np.isnan(want)])
+    # χ exists exactly on the analysed channel cells of either side
+    chi = expected["chi"]
+    assert np.count_nonzero(np.isfinite(chi)) == np.count_nonzero(result.profiles.side > 0)
+
+
+def test_side_raster_matches_the_side_masks(written) -> None:
+    result, out, _ = written
+    with rasterio.open(out / "rasters" / "sides.tif") as src:
+        assert src.transform == result.dem.transform and src.crs == result.dem.crs
+        labels = src.read(1)
+        nodata = src.nodata
+    a, b = result.sides.a.mask, result.sides.b.mask
+    assert not np.any(a & b)
+    # labels stated in the brief: 1 side a, 2 side b, 0 neither; nodata where the DEM has none
+    assert np.all(labels[a] == 1) and np.all(labels[b] == 2)
+    valid = result.dem.valid
+    assert np.all(labels[valid & ~a & ~b] == 0)
+    assert np.all(labels[~valid] == nodata)
+    assert set(np.unique(labels)) <= {0, 1, 2, int(nodata)}
+
+
+# ------------------------------------------------------------------ tables
+def _read_csv(path: Path) -> list[dict]:
+    with path.open(newline="", encoding="utf-8") as fh:  # stdlib csv, RFC 4180 dialect
+        return list(csv.DictReader(fh))
+
+
+def test_tables_parse_and_agree_with_the_assessment(written, docs) -> None:
+    result, out, _ = written
+    contrasts = _read_csv(out / "tables" / "contrasts.csv")
+    assert [r["metric"] for r in contrasts] == [c.metric for c in result.contrasts]
+    for row, c in zip(contrasts, result.contrasts):
+        assert float(row["ci95_low"]) <= float(row["difference"]) <= float(row["ci95_high"])
+        assert float(row["difference"]) == pytest.approx(float(row["a"]) - float(row["b"]), rel=1e-8)
+        assert row["moves_toward"] == c.moves_toward
+    points = _read_csv(out / "tables" / "divide_points.csv")
+    assert len(points) == result.points.size
+    feats = docs["divide_points"]["features"]
+    for row, f in zip(points, feats):
+        assert [float(row["lon"]), float(row["lat"])] == f["geometry"]["coordinates"]
+        assert float(row["x"]) == pytest.approx(f["properties"]["x"])
+    knick = _read_csv(out / "tables" / "knickpoints.csv")
+    assert len(knick) == len(result.knickpoints)
+    streams = _read_csv(out / "tables" / "streams.csv")
+    assert len(streams) == len(result.profiles.streams)
+    assert {r["side"] for r in streams} <= {"a", "b"}
+    assert sum(int(r["n_knickpoints"]) for r in streams) >= len(result.knickpoints)
+    for r in streams:
+        assert float(r["top_elevation_m"]) >= float(r["bottom_elevation_m"])  # streams climb to their heads
+
+
+def test_csv_quotes_awkward_text() -> None:
+    text = layers.csv_text([{"name": 'a "quoted", comma', "value": float("nan"), "flag": True}])
+    rows = list(csv.reader(text.splitlines()))  # stdlib parser: RFC 4180 quoting
+    assert rows == [["name", "value", "flag"], ['a "quoted", comma', "", "true"]]
