@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from divides.errors import ParameterError, SideError
+from divides.terrain.basins import edge_outlets
 from divides.terrain.channels import Channels
 from divides.terrain.routing import FlowGraph
 
@@ -114,28 +115,6 @@ def default_snap_radius_m(flow: FlowGraph) -> float:
     return 5.0 * float(np.max(flow.dem.cell_size_m))
 
 
-def _edge_outlets(flow: FlowGraph, edge: str) -> np.ndarray:
-    """Outlets that are the outermost valid cell of their row/column on ``edge``.
-
-    On a full rectangle these are the grid-edge outlets; on a DEM clipped to an
-    irregular footprint (nodata around), the outlets along that footprint's
-    side of the same name.
-    """
-    valid = flow.dem.valid
-    rows, cols = valid.shape
-    outlets = flow.outlets
-    r, c = np.divmod(outlets, cols)
-    if edge in ("west", "east"):
-        any_valid = valid.any(axis=1)
-        first = np.argmax(valid, axis=1) if edge == "west" else cols - 1 - np.argmax(valid[:, ::-1], axis=1)
-        keep = any_valid[r] & (c == first[r])
-    else:
-        any_valid = valid.any(axis=0)
-        first = np.argmax(valid, axis=0) if edge == "north" else rows - 1 - np.argmax(valid[::-1, :], axis=0)
-        keep = any_valid[c] & (r == first[c])
-    return outlets[keep]
-
-
 def _upstream_mask(flow: FlowGraph, seeds: np.ndarray) -> np.ndarray:
     """Cells draining through any seed: each seed's upstream area is a contiguous run of the order."""
     count = flow.upstream_count
@@ -163,7 +142,7 @@ def resolve_side(flow: FlowGraph, spec: SideSpec, *, snap_radius_m: float | None
     dem = flow.dem
     rows, cols = dem.shape
     if spec.edge is not None:
-        seeds = _edge_outlets(flow, spec.edge)
+        seeds = edge_outlets(flow, spec.edge)
         mask = _upstream_mask(flow, seeds)
         snapped = []
     else:

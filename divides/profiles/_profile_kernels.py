@@ -27,18 +27,6 @@ def chi_trapezoid(down, step, integrand, keep):
 
 
 @njit(cache=True)
-def first_downstream_value(order, rec, is_target, values, out):
-    """out[i] = values of the first target cell on the flow path from i (i included); NaN if none."""
-    for j in range(order.size):
-        i = order[j]
-        if is_target[i]:
-            out[i] = values[i]
-        else:
-            r = rec[i]
-            out[i] = np.nan if r == i else out[r]
-
-
-@njit(cache=True)
 def disorder_sorted(z_sorted):
     """Disorder of elevations sorted by χ: Σ|Δz| / (max z − min z) − 1 (Hergarten et al. 2016)."""
     n = z_sorted.size

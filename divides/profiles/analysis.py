@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from divides.assess.sides import BaseLevel, Sides
 from divides.errors import ParameterError
 from divides.profiles import _profile_kernels as _k
 from divides.profiles.chi import ChiWeights, integrate_chi
@@ -21,6 +21,9 @@ from divides.profiles.segments import Segmentation, segment_profile
 from divides.profiles.steepness import stream_slopes
 from divides.profiles.streams import longest_path_streams
 from divides.terrain.channels import Channels
+
+if TYPE_CHECKING:  # the assess room is downstream of this one: types only
+    from divides.assess.sides import BaseLevel, Sides
 
 __all__ = ["Stream", "ProfileAnalysis", "analyse_profiles", "network_concavity"]
 

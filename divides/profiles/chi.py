@@ -8,6 +8,7 @@ import numpy as np
 
 from divides.errors import GridError, ParameterError
 from divides.profiles import _profile_kernels as _k
+from divides.terrain import _routing_kernels as _rk
 from divides.terrain.routing import FlowGraph
 
 __all__ = ["ChiWeights", "chi_integrand", "integrate_chi", "chi_weights", "chi_at_first_channel"]
@@ -189,5 +190,5 @@ def chi_at_first_channel(flow: FlowGraph, channel_cells: np.ndarray, chi: np.nda
     is_target = np.zeros(flow.receivers.size, dtype=bool)
     is_target[channel_cells] = np.isfinite(chi)
     out = np.full(flow.receivers.size, np.nan)
-    _k.first_downstream_value(flow.order, flow.receivers, is_target, values, out)
+    _rk.first_downstream_value(flow.order, flow.receivers, is_target, values, out)
     return out.reshape(flow.shape)

@@ -342,3 +342,15 @@ def receiver_distance(rec, code, cols, dist, out):
     for i in range(rec.size):
         k = code[i]
         out[i] = dist[i // cols, k] if k < 8 else 0.0
+
+
+@njit(cache=True)
+def first_downstream_value(order, rec, is_target, values, out):
+    """out[i] = values of the first target cell on the flow path from i (i included); NaN if none."""
+    for j in range(order.size):
+        i = order[j]
+        if is_target[i]:
+            out[i] = values[i]
+        else:
+            r = rec[i]
+            out[i] = np.nan if r == i else out[r]

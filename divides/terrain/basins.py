@@ -5,12 +5,39 @@ from __future__ import annotations
 import numpy as np
 
 from divides.errors import ParameterError
-from divides.profiles import _profile_kernels as _pk
+from divides.terrain import _routing_kernels as _rk
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["basin_labels", "LEVELS"]
+__all__ = ["basin_labels", "edge_outlets", "LEVELS", "EDGE_LABELS"]
 
-LEVELS = ("tributaries", "outlets")
+LEVELS = ("tributaries", "outlets", "edges")
+
+#: Label of the region draining off each edge with ``level="edges"``.
+EDGE_LABELS = {"north": 1, "east": 2, "south": 3, "west": 4}
+
+
+def edge_outlets(flow: FlowGraph, edge: str) -> np.ndarray:
+    """Outlets that are the outermost valid cell of their row/column on ``edge``.
+
+    On a full rectangle these are the grid-edge outlets; on a DEM clipped to an
+    irregular footprint (nodata around), the outlets along that footprint's
+    side of the same name. A corner outlet belongs to both of its edges.
+    """
+    valid = flow.dem.valid
+    rows, cols = valid.shape
+    outlets = flow.outlets
+    r, c = np.divmod(outlets, cols)
+    if edge in ("west", "east"):
+        any_valid = valid.any(axis=1)
+        first = np.argmax(valid, axis=1) if edge == "west" else cols - 1 - np.argmax(valid[:, ::-1], axis=1)
+        keep = any_valid[r] & (c == first[r])
+    elif edge in ("north", "south"):
+        any_valid = valid.any(axis=0)
+        first = np.argmax(valid, axis=0) if edge == "north" else rows - 1 - np.argmax(valid[::-1, :], axis=0)
+        keep = any_valid[c] & (r == first[c])
+    else:
+        raise ParameterError(f"edge must be north, south, east or west; got {edge!r}")
+    return outlets[keep]
 
 
 def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributaries") -> np.ndarray:
@@ -21,7 +48,9 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
     flow : FlowGraph
     min_area_m2 : float
         Smallest basin kept (m²).
-    level : {"tributaries", "outlets"}
+    level : {"tributaries", "outlets", "edges"}
+        ``"edges"``: one region per DEM edge, every cell draining off it
+        (labels of :data:`EDGE_LABELS`; ``min_area_m2`` drops smaller regions).
         ``"outlets"``: one basin per outlet draining at least ``min_area_m2``.
         ``"tributaries"``: also split each basin where two branches of at
         least ``min_area_m2`` join, each branch's upstream area becoming a
@@ -48,10 +77,21 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
         donor = big & ~is_outlet
         n_big = np.bincount(rec[donor], minlength=n)
         seeds |= donor & (n_big[rec] >= 2)
-    seed_idx = np.flatnonzero(seeds)
-    ranking = seed_idx[np.argsort(-area[seed_idx], kind="stable")]
     values = np.zeros(n, dtype=np.float64)
-    values[ranking] = np.arange(1, ranking.size + 1)
+    if level == "edges":
+        seeds = np.zeros(n, dtype=bool)
+        for edge in ("west", "south", "east", "north"):  # a corner goes to the later edge in this list
+            idx = edge_outlets(flow, edge)
+            seeds[idx] = True
+            values[idx] = EDGE_LABELS[edge]
+    else:
+        seed_idx = np.flatnonzero(seeds)
+        ranking = seed_idx[np.argsort(-area[seed_idx], kind="stable")]
+        values[ranking] = np.arange(1, ranking.size + 1)
     out = np.full(n, np.nan)
-    _pk.first_downstream_value(flow.order, rec, seeds, values, out)
-    return np.nan_to_num(out, nan=0.0).astype(np.int32).reshape(flow.shape)
+    _rk.first_downstream_value(flow.order, rec, seeds, values, out)
+    labels = np.nan_to_num(out, nan=0.0).astype(np.int32)
+    if level == "edges":  # drop edge regions smaller than the minimum
+        sizes = np.bincount(labels, weights=np.repeat(flow.dem.cell_area, flow.shape[1]), minlength=5)
+        labels[sizes[labels] < min_area_m2] = 0
+    return labels.reshape(flow.shape)
