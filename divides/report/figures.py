@@ -17,10 +17,10 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
-from matplotlib import patheffects
+from matplotlib import colormaps, patheffects
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.collections import LineCollection
-from matplotlib.colors import LightSource, ListedColormap
+from matplotlib.colors import LightSource, ListedColormap, to_rgb
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
@@ -53,6 +53,9 @@ SIDE_COLOURS = {"a": "#0072B2", "b": "#E69F00"}
 
 #: Largest raster side drawn, in cells (larger rasters are decimated for display).
 MAX_DISPLAY_PX = 800
+
+#: Most knickpoints drawn on one map or χ plot (all are in the tables and layers).
+MAX_KNICKPOINTS = 100
 
 #: Resolution of the PNGs (dots per inch).
 DPI = 130
@@ -190,15 +193,10 @@ def _side_tint(ax, result: Assessment, frame: _Frame, alpha: float = 0.22) -> No
     labels[result.sides.a.mask] = 1
     labels[result.sides.b.mask] = 2
     small = _decimate(labels, step)
-    cmap = ListedColormap([(0, 0, 0, 0), (*_rgb(SIDE_COLOURS["a"]), alpha), (*_rgb(SIDE_COLOURS["b"]), alpha)])
+    cmap = ListedColormap([(0, 0, 0, 0), (*to_rgb(SIDE_COLOURS["a"]), alpha), (*to_rgb(SIDE_COLOURS["b"]), alpha)])
     ax.imshow(small, cmap=cmap, vmin=-0.5, vmax=2.5, extent=_display_extent(dem, frame, step),
               interpolation="nearest", origin="upper", zorder=1,
               aspect=frame.aspect)
-
-
-def _rgb(hex_colour: str) -> tuple[float, float, float]:
-    h = hex_colour.lstrip("#")
-    return tuple(int(h[i:i + 2], 16) / 255 for i in (0, 2, 4))  # type: ignore[return-value]
 
 
 def _channel_segments(result: Assessment, frame: _Frame) -> tuple[np.ndarray, np.ndarray]:
@@ -227,7 +225,7 @@ def _divide_lines(ax, result: Assessment, frame: _Frame, **kwargs) -> None:
         ax.plot(line.x * frame.scale, line.y * frame.scale, **kwargs)
 
 
-def _map_axes(fig: Figure, result: Assessment, frame: _Frame, *, width: float):
+def _map_axes(fig: Figure, result: Assessment, frame: _Frame):
     ax = fig.add_subplot()
     ax.set_xlabel(frame.xlabel)
     ax.set_ylabel(frame.ylabel)
@@ -258,6 +256,33 @@ def _metres_to_axis(dem: Dem, frame: _Frame, y: np.ndarray) -> tuple[np.ndarray,
     return one, one
 
 
+def _shown_knickpoints(result: Assessment, limit: int = MAX_KNICKPOINTS) -> tuple[list[dict], str]:
+    """The knickpoints worth drawing and their legend label.
+
+    With more than ``limit``, those arriving first at the channel heads when
+    every one is dated, otherwise the most significant.
+    """
+    kps = list(result.knickpoints)
+    if len(kps) <= limit:
+        return kps, "knickpoint"
+    if all(k.get("arrival_years") for k in kps):  # dated: the ones reaching the channel heads first
+        kps.sort(key=lambda k: k["arrival_years"]["best"])
+        which = "arriving soonest"
+    else:
+        kps.sort(key=lambda k: (k.get("p_value", 1.0), -abs(k.get("delta_ksn", 0.0))))
+        which = "most significant"
+    return kps[:limit], f"knickpoint ({limit} {which} of {len(result.knickpoints)})"
+
+
+def _knickpoint_size(n: int) -> float:
+    """Marker area (points²) shrinking as markers crowd."""
+    return float(np.clip(38.0 * np.sqrt(40.0 / max(n, 1)), 14.0, 38.0))
+
+
+def _knickpoint_handle(label: str) -> Line2D:
+    return Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none", label=label)
+
+
 def _side_legend_handles(result: Assessment) -> list:
     return [Patch(facecolor=SIDE_COLOURS[s], alpha=0.45, edgecolor="none", label=side_label(result, s))
             for s in ("a", "b")]
@@ -276,77 +301,94 @@ def _verdict_title(result: Assessment) -> str:
 
 
 # ------------------------------------------------------------------ figures
+def _draw_motion_divide(fig: Figure, ax, result: Assessment, frame: _Frame) -> list:
+    """The divide as a dark outline under a line coloured by the local evidence of motion."""
+    index = motion_index(result)
+    pts = result.points
+    _divide_lines(ax, result, frame, color="black", lw=4.2, zorder=3, solid_capstyle="round")
+    segments, values = [], []
+    for line in np.unique(pts.line):
+        sel = np.flatnonzero(pts.line == line)
+        if sel.size < 2:
+            continue
+        xy = np.column_stack([pts.x[sel] * frame.scale, pts.y[sel] * frame.scale])
+        segments.extend(np.stack([xy[:-1], xy[1:]], axis=1))
+        values.extend(0.5 * (index[sel][:-1] + index[sel][1:]))
+    cmap = colormaps[_MOTION].with_extremes(bad="0.55")  # grey where no measure is available
+    lc = LineCollection(segments, cmap=cmap, linewidths=2.6, zorder=4, capstyle="round")
+    lc.set_array(np.ma.masked_invalid(np.asarray(values, dtype=float)))
+    lc.set_clim(-1, 1)
+    ax.add_collection(lc)
+    bar = fig.colorbar(lc, ax=ax, shrink=0.7, pad=0.02, ticks=[-1, 0, 1])
+    bar.ax.set_yticklabels(["into a", "neutral", "into b"])
+    bar.set_label("Local evidence of divide motion (index, −1 … +1)")
+    return [Line2D([], [], color="black", lw=4, label="divide (coloured by local evidence)")]
+
+
+def _draw_arrows(ax, result: Assessment, frame: _Frame, count: int = 9) -> list:
+    """Arrows from evenly spaced divide points in the direction of the verdict (none without one)."""
+    v = result.verdict
+    pts = result.points
+    if v.moves_toward not in ("a", "b") or pts.size == 0:
+        return []
+    sign = 1.0 if v.moves_toward == "b" else -1.0  # points.normal points from a into b
+    dem = result.dem
+    length_m = 0.07 * float(np.median(dem.dx)) * dem.shape[1]  # 7 % of the map's width
+    pick = np.unique(np.linspace(0, pts.size - 1, count + 2).round().astype(int)[1:-1]) if pts.size > 2 \
+        else np.arange(pts.size)
+    per_e, per_n = _metres_to_axis(dem, frame, pts.y[pick])
+    for j, i in enumerate(pick):
+        x0, y0 = pts.x[i] * frame.scale, pts.y[i] * frame.scale
+        x1 = x0 + sign * pts.normal[i, 0] * length_m * per_e[j]
+        y1 = y0 + sign * pts.normal[i, 1] * length_m * per_n[j]
+        ax.annotate("", xy=(x1, y1), xytext=(x0, y0), zorder=6,
+                    arrowprops=dict(arrowstyle="simple,head_width=0.7,head_length=0.8,tail_width=0.28",
+                                    fc="white", ec="black", lw=0.9, shrinkA=0, shrinkB=0))
+    return [Line2D([], [], marker=r"$\rightarrow$", color="black", ls="none", markersize=14,
+                   label=f"direction of motion (into side {v.moves_toward})")]
+
+
+def _draw_equilibrium(ax, result: Assessment, frame: _Frame) -> list:
+    eq = result.equilibrium
+    drew = False
+    for line in np.unique(eq.line):
+        sel = (eq.line == line) & np.isfinite(eq.shift_m)
+        if np.count_nonzero(sel) >= 2:
+            ax.plot(eq.x[sel] * frame.scale, eq.y[sel] * frame.scale, color="black", lw=1.3, ls=(0, (5, 3)),
+                    zorder=5, path_effects=_HALO)
+            drew = True
+    return [Line2D([], [], color="black", lw=1.5, ls=(0, (5, 3)), label="equilibrium divide (first-order)")] \
+        if drew else []
+
+
+def _draw_knickpoints(ax, result: Assessment, frame: _Frame) -> list:
+    shown, label = _shown_knickpoints(result)
+    if not shown:
+        return []
+    kx = np.array([k["x"] for k in shown]) * frame.scale
+    ky = np.array([k["y"] for k in shown]) * frame.scale
+    ax.scatter(kx, ky, marker="v", s=_knickpoint_size(len(shown)), facecolor="white", edgecolor="black",
+               linewidth=0.8, zorder=7)
+    return [_knickpoint_handle(label)]
+
+
 def map_figure(result: Assessment) -> Figure:
     """Map: shaded relief, the two sides, channels, the divide coloured by local motion, arrows, knickpoints."""
     dem = result.dem
     frame = _frame(dem)
     fig = _figure(*_map_size(dem, frame, extra=1.9))
-    ax = _map_axes(fig, result, frame, width=8.0)
+    ax = _map_axes(fig, result, frame)
     _hillshade(ax, dem, frame)
     _side_tint(ax, result, frame)
     seg, pos = _channel_segments(result, frame)
     if len(seg):
         ax.add_collection(LineCollection(seg, colors="#0b2e59", linewidths=_channel_widths(result.channels.area[pos]),
                                          alpha=0.75, zorder=2, capstyle="round"))
-    # the divide: a dark outline under a line coloured by the local evidence of motion
-    index = motion_index(result)
-    pts = result.points
-    _divide_lines(ax, result, frame, color="black", lw=4.2, zorder=3, solid_capstyle="round")
-    cmap_segments, cmap_values = [], []
-    for line in np.unique(pts.line):
-        sel = np.flatnonzero(pts.line == line)
-        if sel.size < 2:
-            continue
-        xy = np.column_stack([pts.x[sel] * frame.scale, pts.y[sel] * frame.scale])
-        cmap_segments.extend(np.stack([xy[:-1], xy[1:]], axis=1))
-        vals = 0.5 * (index[sel][:-1] + index[sel][1:])
-        cmap_values.extend(np.where(np.isfinite(vals), vals, 0.0))
-    lc = LineCollection(cmap_segments, cmap=_MOTION, linewidths=2.6, zorder=4, capstyle="round")
-    lc.set_array(np.asarray(cmap_values, dtype=float))
-    lc.set_clim(-1, 1)
-    ax.add_collection(lc)
-    bar = fig.colorbar(lc, ax=ax, shrink=0.7, pad=0.02, ticks=[-1, 0, 1])
-    bar.ax.set_yticklabels(["into a", "neutral", "into b"])
-    bar.set_label("Local evidence of divide motion (index, −1 … +1)")
-
-    handles = _side_legend_handles(result) + [
-        Line2D([], [], color="#0b2e59", lw=1.4, label="channels analysed"),
-        Line2D([], [], color="black", lw=4, label="divide (coloured by local evidence)"),
-    ]
-    # arrows in the direction of the verdict, starting on the divide
-    v = result.verdict
-    if v.moves_toward in ("a", "b") and pts.size:
-        sign = 1.0 if v.moves_toward == "b" else -1.0
-        length_m = 0.07 * float(np.median(dem.dx)) * dem.shape[1]  # 7 % of the map's width
-        k = min(9, pts.size)
-        pick = np.unique(np.linspace(0, pts.size - 1, k + 2).round().astype(int)[1:-1]) if pts.size > 2 \
-            else np.arange(pts.size)
-        per_e, per_n = _metres_to_axis(dem, frame, pts.y[pick])
-        for j, i in enumerate(pick):
-            x0, y0 = pts.x[i] * frame.scale, pts.y[i] * frame.scale
-            dxa = sign * pts.normal[i, 0] * length_m * per_e[j]
-            dya = sign * pts.normal[i, 1] * length_m * per_n[j]
-            ax.annotate("", xy=(x0 + dxa, y0 + dya), xytext=(x0, y0), zorder=6,
-                        arrowprops=dict(arrowstyle="simple,head_width=0.7,head_length=0.8,tail_width=0.28",
-                                        fc="white", ec="black", lw=0.9, shrinkA=0, shrinkB=0))
-        handles.append(Line2D([], [], marker=r"$\rightarrow$", color="black", ls="none", markersize=14,
-                              label=f"direction of motion (into side {v.moves_toward})"))
-    eq = result.equilibrium
-    drew_eq = False
-    for line in np.unique(eq.line):
-        sel = (eq.line == line) & np.isfinite(eq.shift_m)
-        if np.count_nonzero(sel) >= 2:
-            ax.plot(eq.x[sel] * frame.scale, eq.y[sel] * frame.scale, color="black", lw=1.5, ls=(0, (5, 3)),
-                    zorder=5, path_effects=_HALO)
-            drew_eq = True
-    if drew_eq:
-        handles.append(Line2D([], [], color="black", lw=1.5, ls=(0, (5, 3)), label="equilibrium divide (first-order)"))
-    if result.knickpoints:
-        kx = np.array([k["x"] for k in result.knickpoints]) * frame.scale
-        ky = np.array([k["y"] for k in result.knickpoints]) * frame.scale
-        ax.scatter(kx, ky, marker="v", s=38, facecolor="white", edgecolor="black", linewidth=0.9, zorder=7)
-        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
-                              label="knickpoint"))
+    handles = _side_legend_handles(result) + [Line2D([], [], color="#0b2e59", lw=1.4, label="channels analysed")]
+    handles += _draw_motion_divide(fig, ax, result, frame)
+    handles += _draw_arrows(ax, result, frame)
+    handles += _draw_equilibrium(ax, result, frame)
+    handles += _draw_knickpoints(ax, result, frame)
     ax.set_title(f"Divide between {side_label(result, 'a')} and {side_label(result, 'b')}\n{_verdict_title(result)}",
                  fontsize=11)
     fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=8, frameon=False)
@@ -358,7 +400,7 @@ def chi_map_figure(result: Assessment) -> Figure:
     dem = result.dem
     frame = _frame(dem)
     fig = _figure(*_map_size(dem, frame, extra=1.3))
-    ax = _map_axes(fig, result, frame, width=8.0)
+    ax = _map_axes(fig, result, frame)
     _hillshade(ax, dem, frame)
     _side_tint(ax, result, frame, alpha=0.12)
     seg, pos = _channel_segments(result, frame)
@@ -394,7 +436,7 @@ def _side_xy_collection(result: Assessment, side: str, x: np.ndarray, y: np.ndar
     if kept.size == 0:
         return None
     seg = np.stack([np.column_stack([x[kept], y[kept]]), np.column_stack([x[down], y[down]])], axis=1)
-    return LineCollection(seg, colors=SIDE_COLOURS[side], linewidths=0.9, alpha=0.8)
+    return LineCollection(seg, colors=SIDE_COLOURS[side], linewidths=0.9 if kept.size < 5000 else 0.5, alpha=0.75)
 
 
 def chi_elevation_figure(result: Assessment) -> Figure:
@@ -408,11 +450,12 @@ def chi_elevation_figure(result: Assessment) -> Figure:
         if lc is not None:
             ax.add_collection(lc)
     handles = [Line2D([], [], color=SIDE_COLOURS[s], lw=2, label=side_label(result, s)) for s in ("a", "b")]
-    if result.knickpoints:
-        pos = np.array([k["position"] for k in result.knickpoints], dtype=np.int64)
-        ax.scatter(chi[pos], z[pos], marker="v", s=36, facecolor="white", edgecolor="black", linewidth=0.9, zorder=4)
-        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
-                              label="knickpoint"))
+    shown, label = _shown_knickpoints(result)
+    if shown:
+        pos = np.array([k["position"] for k in shown], dtype=np.int64)
+        ax.scatter(chi[pos], z[pos], marker="v", s=_knickpoint_size(len(shown)), facecolor="white",
+                   edgecolor="black", linewidth=0.8, zorder=4)
+        handles.append(_knickpoint_handle(label))
     ax.axhline(result.base.elevation_m, color="0.4", lw=0.8, ls=":", zorder=1)
     handles.append(Line2D([], [], color="0.4", lw=0.8, ls=":", label="common base level"))
     ax.autoscale_view()
@@ -493,7 +536,7 @@ def profile_figure(result: Assessment) -> Figure:
     dist = result.channels.distance_upstream
     z = result.channels.elevation
     kp_by_pos: dict[int, list] = {}
-    for k in result.knickpoints:
+    for k in result.knickpoints:  # a few channels: every knickpoint on them is drawn
         kp_by_pos.setdefault(int(k["position"]), []).append(k)
     styles = ["-", "--", ":"]
     handles = []
@@ -512,20 +555,22 @@ def profile_figure(result: Assessment) -> Figure:
                            edgecolor="black", linewidth=0.9, zorder=4)
                 drew_kp = True
     if drew_kp:
-        handles.append(Line2D([], [], marker="v", color="black", markerfacecolor="white", ls="none",
-                              label="knickpoint"))
+        handles.append(_knickpoint_handle("knickpoint"))
     ax.axvline(0, color="0.5", lw=0.8, ls=":")
     ax.axhline(result.base.elevation_m, color="0.5", lw=0.8, ls=":")
     handles.append(Line2D([], [], color="0.5", lw=0.8, ls=":", label="common base level"))
     ax.autoscale_view()
-    lo, hi = ax.get_xlim()
-    span = max(abs(lo), abs(hi))
-    ax.set_xlim(-span, span)  # the channel heads in the middle
+    ax.text(0.01, 0.98, f"← {side_label(result, 'a')}", transform=ax.transAxes, ha="left", va="top",
+            fontsize=8.5, color=SIDE_COLOURS["a"], fontweight="bold")
+    ax.text(0.99, 0.98, f"{side_label(result, 'b')} →", transform=ax.transAxes, ha="right", va="top",
+            fontsize=8.5, color="#9A6400", fontweight="bold")  # a darker orange, legible as text
     ax.set_xlabel("Distance from the channel head (km): side a to the left, side b to the right")
     ax.set_ylabel("Elevation (m)")
-    xt = ax.get_xticks()
+    lo, hi = ax.get_xlim()
+    xt = [t for t in ax.get_xticks() if lo <= t <= hi]
     ax.set_xticks(xt)
-    ax.set_xticklabels([f"{abs(t):g}" for t in xt])
+    ax.set_xticklabels([f"{abs(t):g}" for t in xt])  # distances, positive on both sides
+    ax.set_xlim(lo, hi)
     ax.grid(True, color="0.9", lw=0.6)
     fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=7.5, frameon=False)
     ax.set_title("Long profiles of the main channels", fontsize=11)

@@ -38,6 +38,7 @@ __all__ = [
     "equilibrium_features",
     "geojson_layers",
     "tables",
+    "csv_text",
     "write_layers",
     "write_rasters",
     "write_tables",

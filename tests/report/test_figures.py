@@ -100,3 +100,39 @@ def test_figure_functions_return_drawable_figures(demo_result) -> None:
             if ax.get_label() == "<colorbar>":
                 continue
             assert ax.get_xlabel() and (ax.get_ylabel() or name == "contrasts"), name  # axes carry units
+
+
+def _arrows(fig):
+    from matplotlib.text import Annotation
+
+    return [t for t in fig.axes[0].texts if isinstance(t, Annotation)]
+
+
+def test_map_arrows_point_into_the_victim_side(demo_result) -> None:
+    # the demo's side a drains off the west edge and side b off the east edge, so motion into b
+    # is eastward (larger easting) and motion into a westward (geometry of the demo, by construction)
+    import dataclasses
+
+    for victim, east in (("b", True), ("a", False)):
+        verdict = dataclasses.replace(demo_result.verdict, moves_toward=victim,
+                                      aggressor="a" if victim == "b" else "b")
+        arrows = _arrows(figures.map_figure(dataclasses.replace(demo_result, verdict=verdict)))
+        assert arrows
+        for arrow in arrows:
+            (x_head, _), (x_tail, _) = arrow.xy, arrow.xyann
+            assert bool(x_head > x_tail) == east
+
+
+def test_figures_without_a_direction_or_knickpoints(demo_result) -> None:
+    import dataclasses
+
+    from divides.assess.contrasts import Contrast
+
+    nan = float("nan")
+    verdict = dataclasses.replace(demo_result.verdict, moves_toward="stable", aggressor=None)
+    empty = Contrast("chi", "m", nan, nan, nan, (nan, nan), "none", 1, "higher χ")
+    bare = dataclasses.replace(demo_result, verdict=verdict, knickpoints=[], contrasts=[empty])
+    assert _arrows(figures.map_figure(bare)) == []  # no direction, no arrows
+    for name, function in figures.FIGURES.items():
+        with Image.open(io.BytesIO(figures.to_png(getattr(figures, function)(bare)))) as img:
+            assert img.format == "PNG", name
