@@ -1,0 +1,59 @@
+"""Wall time and peak memory of regional screening (run by hand, not a test).
+
+    python tests/benchmarks/bench_screen.py [--sizes 1000 2000 4000] [--level tributaries]
+
+Screens every divide between sub-basins of the ridge DEM of bench_network.py
+(1 km² channels, basins of at least 5 km², 3 km segments, both cores), after a
+JIT warm-up on a small grid. Each size runs in a fresh subprocess.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import resource
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).parent))
+from bench_network import ridge_dem  # noqa: E402
+
+
+def run_one(n: int, level: str) -> dict:
+    from divides import Dem
+    from divides.assess.screen import screen
+
+    options = dict(theta=0.45, channel_area_m2=1e6, min_basin_area_m2=5e6, level=level, max_segment_m=3000.0)
+    screen(Dem.from_array(ridge_dem(200), cell_size=30.0), **options)  # warm-up
+    dem = Dem.from_array(ridge_dem(n), cell_size=30.0)
+    t0 = time.perf_counter()
+    result = screen(dem, **options)
+    seconds = time.perf_counter() - t0
+    children = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    return {"n": n, "seconds": round(seconds, 1), "segments": len(result.segments),
+            "basins": int(result.labels.max()),
+            "directed": sum(s["moves_toward_basin"] is not None for s in result.segments),
+            "peak_rss_mb": round(max(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, children) / 1024)}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 2000, 4000])
+    parser.add_argument("--level", default="tributaries")
+    parser.add_argument("--one", type=int, help=argparse.SUPPRESS)
+    args = parser.parse_args()
+    if args.one:
+        print(json.dumps(run_one(args.one, args.level)))
+        return
+    for n in args.sizes:
+        out = subprocess.run([sys.executable, __file__, "--one", str(n), "--level", args.level],
+                             capture_output=True, text=True, check=True)
+        r = json.loads(out.stdout.strip().splitlines()[-1])
+        print(f"{r['n']:>5}²  screen {r['seconds']:7.1f} s  {r['basins']} basins, {r['segments']} segments "
+              f"({r['directed']} with a direction), peak RSS {r['peak_rss_mb']} MB (largest process)")
+
+
+if __name__ == "__main__":
+    main()
