@@ -225,6 +225,17 @@ def _divide_lines(ax, result: Assessment, frame: _Frame, **kwargs) -> None:
         ax.plot(line.x * frame.scale, line.y * frame.scale, **kwargs)
 
 
+def _map_base(result: Assessment, *, extra: float, tint: float):
+    """A map figure with shaded relief and tinted sides; also the analysed channel segments to draw."""
+    frame = _frame(result.dem)
+    fig = _figure(*_map_size(result.dem, frame, extra=extra))
+    ax = _map_axes(fig, result, frame)
+    _hillshade(ax, result.dem, frame)
+    _side_tint(ax, result, frame, alpha=tint)
+    seg, pos = _channel_segments(result, frame)
+    return fig, ax, frame, seg, pos
+
+
 def _map_axes(fig: Figure, result: Assessment, frame: _Frame):
     ax = fig.add_subplot()
     ax.set_xlabel(frame.xlabel)
@@ -374,13 +385,7 @@ def _draw_knickpoints(ax, result: Assessment, frame: _Frame) -> list:
 
 def map_figure(result: Assessment) -> Figure:
     """Map: shaded relief, the two sides, channels, the divide coloured by local motion, arrows, knickpoints."""
-    dem = result.dem
-    frame = _frame(dem)
-    fig = _figure(*_map_size(dem, frame, extra=1.9))
-    ax = _map_axes(fig, result, frame)
-    _hillshade(ax, dem, frame)
-    _side_tint(ax, result, frame)
-    seg, pos = _channel_segments(result, frame)
+    fig, ax, frame, seg, pos = _map_base(result, extra=1.9, tint=0.22)
     if len(seg):
         ax.add_collection(LineCollection(seg, colors="#0b2e59", linewidths=_channel_widths(result.channels.area[pos]),
                                          alpha=0.75, zorder=2, capstyle="round"))
@@ -397,13 +402,7 @@ def map_figure(result: Assessment) -> Figure:
 
 def chi_map_figure(result: Assessment) -> Figure:
     """χ of the analysed channels on the shaded relief."""
-    dem = result.dem
-    frame = _frame(dem)
-    fig = _figure(*_map_size(dem, frame, extra=1.3))
-    ax = _map_axes(fig, result, frame)
-    _hillshade(ax, dem, frame)
-    _side_tint(ax, result, frame, alpha=0.12)
-    seg, pos = _channel_segments(result, frame)
+    fig, ax, frame, seg, pos = _map_base(result, extra=1.3, tint=0.12)
     chi = result.profiles.chi
     if len(seg):
         lc = LineCollection(seg, cmap="cividis", linewidths=0.6 + 1.2 * _channel_widths(result.channels.area[pos]),

@@ -14,8 +14,8 @@ import json
 import os
 import secrets
 import shutil
-from collections.abc import Callable
-from contextlib import suppress
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager, suppress
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -29,7 +29,7 @@ from divides.report import text as _text
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
 
-__all__ = ["write_assessment", "STAGES"]
+__all__ = ["write_assessment", "staged_output", "check_out_dir", "STAGES"]
 
 #: Stages reported to ``progress``, in order (a progress bar can size itself from this).
 STAGES = (
@@ -62,6 +62,21 @@ def _is_previous_output(folder: Path) -> bool:
     except (OSError, ValueError, AttributeError):
         return False
     return isinstance(schema, str) and schema.startswith("divides.")
+
+
+def check_out_dir(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Path:
+    """Check that ``out_dir`` may be written (before a long run) and return it as an absolute path.
+
+    Raises
+    ------
+    OutputError
+        ``out_dir`` exists and ``overwrite`` is False, it is not a folder,
+        or it is a folder that is neither empty nor an earlier `divides`
+        output (which ``overwrite`` never replaces).
+    """
+    out = Path(os.path.abspath(os.fspath(out_dir)))
+    _check_target(out, overwrite)
+    return out
 
 
 def _check_target(out: Path, overwrite: bool) -> None:
@@ -134,6 +149,33 @@ def _move_into_place(tmp: Path, out: Path) -> None:
         shutil.rmtree(aside, ignore_errors=True)
 
 
+@contextmanager
+def staged_output(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Path]:
+    """Build an output folder under a temporary name and move it into place when the block succeeds.
+
+    Yields a new, empty, hidden folder beside ``out_dir``. When the block
+    ends normally the folder becomes ``out_dir`` (replacing an earlier output
+    if ``overwrite``); when it raises (including ``KeyboardInterrupt``) the
+    folder is removed and ``out_dir`` is left as it was.
+
+    Raises
+    ------
+    OutputError
+        As :func:`check_out_dir`, or when the location cannot be written.
+    """
+    out = check_out_dir(out_dir, overwrite=overwrite)
+    tmp = _make_temporary(out)
+    try:
+        yield tmp
+        _check_target(out, overwrite)  # someone may have created it meanwhile
+        _move_into_place(tmp, out)
+    except BaseException as exc:
+        shutil.rmtree(tmp, ignore_errors=True)
+        if isinstance(exc, OSError) and not isinstance(exc, DividesError):
+            raise OutputError(f"cannot write outputs to '{out}': {_reason(exc)}") from exc
+        raise
+
+
 def write_assessment(
     result: Assessment,
     out_dir: str | os.PathLike,
@@ -169,18 +211,8 @@ def write_assessment(
         ``out_dir`` exists (without ``overwrite``), is not a folder or an
         earlier output, or cannot be written; the message names the path.
     """
-    out = Path(os.path.abspath(os.fspath(out_dir)))
-    _check_target(out, overwrite)
     step = progress if progress is not None else (lambda stage: None)
-    tmp = _make_temporary(out)
-    try:
+    with staged_output(out_dir, overwrite=overwrite) as tmp:
         _write_all(result, tmp, step)
         step("finishing")
-        _check_target(out, overwrite)  # someone may have created it meanwhile
-        _move_into_place(tmp, out)
-    except BaseException as exc:
-        shutil.rmtree(tmp, ignore_errors=True)
-        if isinstance(exc, OSError) and not isinstance(exc, DividesError):
-            raise OutputError(f"cannot write outputs to '{out}': {_reason(exc)}") from exc
-        raise
-    return out
+    return Path(os.path.abspath(os.fspath(out_dir)))

@@ -162,3 +162,17 @@ def test_output_folder_follows_the_umask(written) -> None:
     os.umask(umask)
     # a folder made by mkdir gets 0o777 less the umask (POSIX mkdir(2))
     assert out.stat().st_mode & 0o777 == 0o777 & ~umask
+
+
+def test_staged_output_is_all_or_nothing(tmp_path: Path) -> None:
+    from divides.report import staged_output
+
+    with pytest.raises(ValueError):
+        with staged_output(tmp_path / "out") as folder:
+            (folder / "part.txt").write_text("half", encoding="utf-8")
+            raise ValueError("stop")
+    assert _listing(tmp_path) == set()
+    with staged_output(tmp_path / "out") as folder:
+        (folder / "whole.txt").write_text("all", encoding="utf-8")
+        assert not (tmp_path / "out").exists()  # nothing visible until the block ends
+    assert _listing(tmp_path) == {"out"} and _listing(tmp_path / "out") == {"whole.txt"}
