@@ -1,14 +1,28 @@
-"""Make ``demo/uplands.tif``, the invented Harrowmere Uplands.
+"""Make ``demo/uplands.tif``, the invented Harrowmere Uplands, with the project's own model.
 
-An invented landscape, not a real place: a slightly sinuous, tilted ridge
-separates the basin of the River Tallow (west edge, low base level, steep
-flank) from that of the Quern Water (east edge, higher base level, gentle
-flank). Each flank is cut by a few branching valleys. The relief comes from
-simple closed-form profiles, explicitly carved valley trees and smoothed
-random noise; the seed fixes every number, so running this script again
-rewrites the same grid.
+An invented landscape, not a real place. A ridge of uplands separates the
+short streams of the River Tallow (west edge) from those of the Quern Water
+(east edge). The script grows the landscape with :func:`divides.simulate`
+(stream power, hillslope diffusion and uplift):
 
-Run from anywhere::
+1. *Spin-up*: a low, noisy ridge is uplifted for :data:`SPIN_UP_YEARS` with
+   both rivers held at the same level, until the relief and the divide have
+   settled (a near steady state).
+2. *Capture*: the Tallow's level then falls by :data:`DROP_M` within
+   :data:`DROP_YEARS` and keeps falling at :data:`LOWERING_M_PER_YR`. A wave
+   of incision climbs the western valleys, the western heads steepen, and the
+   divide starts to migrate east into the Quern Water's headwaters.
+3. *Snapshot*: the surface :data:`SNAPSHOT_YEARS` after the fall is the demo
+   DEM (elevations raised by :data:`DATUM_M`, rounded to centimetres).
+4. *Truth*: the run continues from the snapshot to measure what the demo's
+   verdict should say: the side-averaged erosion rates over the first
+   :data:`RATE_YEARS`, and how far the divide moves in :data:`FUTURE_YEARS`.
+   These numbers are written as tags of the GeoTIFF and printed.
+
+The north and south edges of the model are closed (walls): nothing drains
+across them, so when assessing this DEM pass ``--closed-edges north,south``.
+Every random number comes from :data:`SEED`, so running the script again
+rewrites the same grid on the same platform. Run from anywhere::
 
     python demo/make_demo_dem.py [OUTPUT.tif]
 """
@@ -23,95 +37,67 @@ import rasterio
 from affine import Affine
 from scipy import ndimage
 
-__all__ = ["SEED", "ROWS", "COLS", "CELL", "CRS", "TRANSFORM", "make_uplands", "write_uplands"]
+from divides import Dem, route, simulate
+from divides.model import edge_catchments
+from divides.model.forcing import open_edge
+from divides.model.scenarios import ridge_surface
+
+__all__ = [
+    "SEED", "ROWS", "COLS", "CELL", "CRS", "TRANSFORM", "UPLIFT_M_PER_YR", "ERODIBILITY", "M", "N",
+    "DIFFUSIVITY_M2_PER_YR", "SPIN_UP_YEARS", "DROP_M", "DROP_YEARS", "LOWERING_M_PER_YR",
+    "SNAPSHOT_YEARS", "RATE_YEARS", "FUTURE_YEARS", "DATUM_M", "make_uplands", "write_uplands",
+]
 
 SEED = 5309
-ROWS, COLS, CELL = 200, 240, 30.0
+ROWS, COLS, CELL = 150, 240, 30.0
 CRS = "EPSG:32630"  # WGS 84 / UTM zone 30N; the coordinates are arbitrary
 TRANSFORM = Affine(CELL, 0.0, 448_200.0, 0.0, -CELL, 6_231_600.0)
 
-WIDTH_M, HEIGHT_M = COLS * CELL, ROWS * CELL
+# Stream power E = K A^m S^n with n = 1 and m/n = 0.45; steady steepness U/K = 12.5 m^0.9.
+UPLIFT_M_PER_YR = 5e-4
+ERODIBILITY = 4e-5  # m^(1-2m)/yr
+M, N = 0.45, 1.0
+DIFFUSIVITY_M2_PER_YR = 0.05
+
+SPIN_UP_YEARS, SPIN_UP_DT = 8e6, 1e5
+DROP_M, DROP_YEARS = 40.0, 1e4
+LOWERING_M_PER_YR = 2e-4
+SNAPSHOT_YEARS, DT = 5e5, 5e3
+RATE_YEARS = 2e4
+FUTURE_YEARS = 3e5
+DATUM_M = 180.0  # the Quern Water's level; the model holds it at 0
+
+_EDGES_CLOSED = {"north": "closed", "south": "closed"}
 
 
-def _divide_x(y: np.ndarray) -> np.ndarray:
-    """East coordinate (m from the west edge) of the ridge crest at northing ``y``."""
-    return 3450.0 + 0.15 * (y - HEIGHT_M / 2) + 120.0 * np.sin(2 * np.pi * y / 4200.0)
+def _start(seed: int) -> Dem:
+    """A 200 m ridge with smoothed noise, so that valleys branch as they grow."""
+    ridge = ridge_surface((ROWS, COLS), cell_size=CELL, crest=0.5, relief=200.0, noise=1.0, seed=seed)
+    rng = np.random.default_rng(seed + 1)
+    bumps = ndimage.gaussian_filter(rng.standard_normal((ROWS, COLS)), 6.0, mode="reflect")
+    z = ridge.elevation.astype(np.float64)
+    z[:, 1:-1] += 8.0 * (bumps / bumps.std())[:, 1:-1]  # the edge cells stay at base level
+    return Dem.from_array(z, cell_size=CELL, valid_range=None)
 
 
-def _base_west(y: np.ndarray) -> np.ndarray:
-    return 140.0 + 0.006 * y  # the Tallow flows south, gently
+def _tallow_level(t: float) -> float:
+    """Base level (m, model datum) of the west edge, ``t`` years after the fall began."""
+    if t <= DROP_YEARS:
+        return -DROP_M * t / DROP_YEARS
+    return -DROP_M - LOWERING_M_PER_YR * (t - DROP_YEARS)
 
 
-def _base_east(y: np.ndarray) -> np.ndarray:
-    return 235.0 + 0.005 * y  # the Quern Water sits higher
+def _forcing(start_years: float = 0.0) -> dict:
+    return {
+        "uplift": UPLIFT_M_PER_YR, "erodibility": ERODIBILITY, "m": M, "n": N,
+        "diffusivity": DIFFUSIVITY_M2_PER_YR,
+        "edges": {**_EDGES_CLOSED, "east": 0.0,
+                  "west": open_edge(elevation=lambda t: _tallow_level(t + start_years))},
+    }
 
 
-def _crest(y: np.ndarray) -> np.ndarray:
-    return 560.0 + 25.0 * np.sin(2 * np.pi * y / 3000.0 + 1.0)
-
-
-def _base_surface(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Concave-up flanks from each river up to the crest, and the base level under each cell."""
-    xd = _divide_x(y)
-    west = x < xd
-    u = np.clip(x / xd, 0, 1)
-    v = np.clip((WIDTH_M - x) / (WIDTH_M - xd), 0, 1)
-    zw = _base_west(y) + (_crest(y) - _base_west(y)) * u**1.6
-    ze = _base_east(y) + (_crest(y) - _base_east(y)) * v**1.3
-    z = np.where(west, zw, ze)
-    base = np.where(west, _base_west(y), _base_east(y))
-    return z, base
-
-
-def _noise(rng: np.random.Generator, sigmas: list[float], amplitudes: list[float]) -> np.ndarray:
-    """Sum of Gaussian-smoothed white noise fields, each scaled to unit spread."""
-    total = np.zeros((ROWS, COLS))
-    for sigma, amp in zip(sigmas, amplitudes):
-        field = ndimage.gaussian_filter(rng.standard_normal((ROWS, COLS)), sigma, mode="reflect")
-        total += amp * field / field.std()
-    return total
-
-
-def _path(rng: np.random.Generator, start: tuple[float, float], end: tuple[float, float]) -> np.ndarray:
-    """A wandering line of points (x, y) in metres from ``start`` to ``end``, about 10 m apart."""
-    (x0, y0), (x1, y1) = start, end
-    n = max(int(np.hypot(x1 - x0, y1 - y0) / 10.0), 2)
-    t = np.linspace(0.0, 1.0, n)
-    # Sideways wander: a random smooth curve pinned to zero at both ends.
-    wander = ndimage.gaussian_filter1d(rng.standard_normal(n), n / 8, mode="nearest")
-    wander = (wander - wander[0] - t * (wander[-1] - wander[0])) / (np.abs(wander).max() + 1e-12)
-    length = np.hypot(x1 - x0, y1 - y0)
-    nx, ny = -(y1 - y0) / length, (x1 - x0) / length
-    amp = 0.12 * length
-    return np.c_[x0 + t * (x1 - x0) + amp * wander * nx, y0 + t * (y1 - y0) + amp * wander * ny]
-
-
-def _valleys(rng: np.random.Generator) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Valley centre-lines as (points, carving fraction along them), mouth to head."""
-    lines = []
-    for side in ("west", "east"):
-        mouths = np.array([800.0, 2250.0, 3700.0, 5150.0]) + rng.uniform(-150, 150, 4)
-        for ym in mouths:
-            yh = ym + rng.uniform(-350, 350)
-            xd = float(_divide_x(np.array(yh)))
-            xm, xh = (15.0, xd - 160.0) if side == "west" else (WIDTH_M - 15.0, xd + 160.0)
-            trunk = _path(rng, (xm, ym), (xh, yh))
-            s = np.linspace(1.0, 0.0, len(trunk))  # 1 at the mouth, 0 at the head
-            k_trunk = 0.55 * np.sqrt(s)
-            lines.append((trunk, k_trunk))
-            for offset in (-1.0, 1.0):
-                j = int(rng.uniform(0.35, 0.6) * len(trunk))
-                yt = trunk[j, 1] + offset * rng.uniform(450, 620)
-                xdt = float(_divide_x(np.array(yt)))
-                xt = xdt - 220.0 if side == "west" else xdt + 220.0
-                branch = _path(rng, tuple(trunk[j]), (xt, yt))
-                sb = np.linspace(1.0, 0.0, len(branch))
-                lines.append((branch, k_trunk[j] * np.sqrt(sb)))
-    return lines
-
-
-def make_uplands(seed: int = SEED) -> np.ndarray:
-    """Elevations (m, float32, north-up) of the Harrowmere Uplands.
+def make_uplands(seed: int = SEED) -> tuple[np.ndarray, dict[str, float]]:
+    """Elevations (m, float32, north-up) of the Harrowmere Uplands, and the measured truth.
 
     Parameters
     ----------
@@ -120,46 +106,42 @@ def make_uplands(seed: int = SEED) -> np.ndarray:
 
     Returns
     -------
-    ndarray, shape (ROWS, COLS)
+    elevation : ndarray, shape (ROWS, COLS)
+    facts : dict
+        ``erosion_west_mm_yr`` and ``erosion_east_mm_yr``: side-averaged
+        erosion rates over the :data:`RATE_YEARS` after the snapshot;
+        ``divide_shift_m``: mean eastward move of the divide in the
+        :data:`FUTURE_YEARS` after it (positive = into the Quern Water's side);
+        ``divide_speed_mm_yr``: that move over that time.
     """
-    rng = np.random.default_rng(seed)
-    col_x = (np.arange(COLS) + 0.5) * CELL
-    row_y = HEIGHT_M - (np.arange(ROWS) + 0.5) * CELL  # row 0 is the northern edge
-    x, y = np.meshgrid(col_x, row_y)
-    z0, base = _base_surface(x, y)
-    z0 = ndimage.gaussian_filter(z0, 1.5, mode="nearest")  # round the crest a little
-    # Broad hummocks, fading out toward the rivers so the valley bottoms stay open.
-    taper = np.clip((z0 - base) / 100.0, 0.0, 1.0)
-    z0 = z0 + taper * _noise(rng, [16.0, 8.0, 4.0], [22.0, 9.0, 3.0])
+    spin = simulate(_start(seed), duration=SPIN_UP_YEARS, dt=SPIN_UP_DT,
+                    **{**_forcing(), "edges": {**_EDGES_CLOSED, "west": 0.0, "east": 0.0}})
+    fall = simulate(spin.final, duration=SNAPSHOT_YEARS, dt=DT, **_forcing())
+    snap = fall.final
+    after = simulate(snap, duration=FUTURE_YEARS, dt=DT, snapshot_times=[RATE_YEARS], track=("west", "east"),
+                     track_interval=FUTURE_YEARS, **_forcing(SNAPSHOT_YEARS))
 
-    carved = z0.copy()
-    for points, k in _valleys(rng):
-        cols = np.clip((points[:, 0] / CELL).astype(int), 0, COLS - 1)
-        rows = np.clip(((HEIGHT_M - points[:, 1]) / CELL).astype(int), 0, ROWS - 1)
-        on_line = np.zeros((ROWS, COLS), bool)
-        on_line[rows, cols] = True
-        # Later points on a cell overwrite earlier ones: keep the most carved (mouthward) value.
-        k_at = np.zeros((ROWS, COLS))
-        np.maximum.at(k_at, (rows, cols), k)
-        dist, (ir, ic) = ndimage.distance_transform_edt(~on_line, sampling=CELL, return_indices=True)
-        k_near = k_at[ir, ic]
-        z_line, b_line = z0[ir, ic], base[ir, ic]
-        floor = b_line + (z_line - b_line) * (1.0 - k_near)
-        half_width = 90.0 + 420.0 * k_near  # valleys widen downstream
-        weight = np.clip(1.0 - dist / half_width, 0.0, 1.0) ** 1.5
-        carved = np.minimum(carved, z0 - np.maximum(z0 - floor, 0.0) * weight)
-
-    # Soften the steps left by cell-by-cell carving.
-    carved = z0 - ndimage.gaussian_filter(z0 - carved, 1.0, mode="nearest")
-    roughness = _noise(rng, [2.0, 1.0], [1.2, 0.5]) * taper
-    z = carved + roughness
-    return np.round(z, 2).astype(np.float32)  # centimetres: plenty, and compresses well
+    # Erosion = uplift - rate of surface rise, averaged over the cells draining off each edge.
+    z0, z1 = snap.elevation.astype(np.float64), after.snapshot(RATE_YEARS).elevation.astype(np.float64)
+    erosion = UPLIFT_M_PER_YR - (z1 - z0) / RATE_YEARS
+    side = edge_catchments(route(snap), ("west", "east"))
+    interior = np.zeros(side.shape, bool)
+    interior[1:-1, 1:-1] = True  # outlets and walls are held, not eroded
+    shift = float(after.divide.mean[-1] - after.divide.mean[0])
+    facts = {
+        "erosion_west_mm_yr": float(erosion[(side == 1) & interior].mean() * 1e3),
+        "erosion_east_mm_yr": float(erosion[(side == 2) & interior].mean() * 1e3),
+        "divide_shift_m": shift,
+        "divide_speed_mm_yr": shift / FUTURE_YEARS * 1e3,
+    }
+    z = np.round(snap.elevation + DATUM_M, 2).astype(np.float32)  # centimetres: plenty, and compresses well
+    return z, facts
 
 
 def write_uplands(path: str | Path, *, seed: int = SEED) -> Path:
-    """Write the uplands as a compressed single-band GeoTIFF."""
+    """Write the uplands as a compressed single-band GeoTIFF, the measured truth as tags."""
     path = Path(path)
-    z = make_uplands(seed)
+    z, facts = make_uplands(seed)
     profile = dict(
         driver="GTiff", width=COLS, height=ROWS, count=1, dtype="float32", crs=CRS, transform=TRANSFORM,
         nodata=None, compress="deflate", predictor=3, zlevel=9,
@@ -167,11 +149,16 @@ def write_uplands(path: str | Path, *, seed: int = SEED) -> Path:
     with rasterio.open(path, "w", **profile) as dst:
         dst.write(z, 1)
         dst.set_band_description(1, "elevation (m), invented Harrowmere Uplands")
-        dst.update_tags(SOURCE="invented by demo/make_demo_dem.py", SEED=str(seed))
+        dst.update_tags(SOURCE="invented by demo/make_demo_dem.py with divides.simulate", SEED=str(seed),
+                        **{key.upper(): f"{value:.4g}" for key, value in facts.items()})
     return path
 
 
 if __name__ == "__main__":
     out = sys.argv[1] if len(sys.argv) > 1 else Path(__file__).with_name("uplands.tif")
     written = write_uplands(out)
+    with rasterio.open(written) as src:
+        tags = src.tags()
     print(f"wrote {written} ({written.stat().st_size / 1024:.0f} kB)")
+    for key in ("EROSION_WEST_MM_YR", "EROSION_EAST_MM_YR", "DIVIDE_SHIFT_M", "DIVIDE_SPEED_MM_YR"):
+        print(f"  {key.lower()} = {tags[key]}")

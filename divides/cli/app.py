@@ -20,7 +20,7 @@ from typing import Annotated, NoReturn
 
 import typer
 
-from divides.cli import inspect_cmd
+from divides.cli import assess_cmd, demo_cmd, inspect_cmd
 from divides.errors import DividesError, DividesWarning
 
 try:  # typer >= 0.2x ships its own copy of click
@@ -67,6 +67,8 @@ def _root(
     """Is this drainage divide stable or moving? Read a DEM and find out."""
 
 
+app.command(name="demo")(demo_cmd.demo)
+app.command(name="assess")(assess_cmd.assess)
 app.command(name="inspect")(inspect_cmd.inspect)
 
 

@@ -9,16 +9,20 @@ starts: it must stay free of numpy, rasterio and numba.
 from __future__ import annotations
 
 import contextlib
+import json
 import math
 import os
+import sys
+import time
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Annotated, Any
+from pathlib import Path
+from typing import Annotated, Any, TextIO
 
 import typer
 
-from divides.errors import DemReadError, ParameterError
+from divides.errors import DemReadError, OutputError, ParameterError
 
 __all__ = [
     "VERTICAL_UNIT_CHOICES",
@@ -42,7 +46,24 @@ __all__ = [
     "dem_options",
     "route_options",
     "quiet_warnings",
+    "EDGE_CHOICES",
+    "SideAOption",
+    "SideBOption",
+    "LonLatOption",
+    "OutOption",
+    "OverwriteOption",
+    "SeedOption",
+    "ClosedEdgesOption",
+    "parse_theta",
+    "parse_closed_edges",
+    "parse_bounded",
+    "default_out_dir",
+    "check_out_dir",
+    "Progress",
 ]
+
+#: The DEM edges a side SPEC or ``--closed-edges`` may name.
+EDGE_CHOICES: tuple[str, ...] = ("north", "south", "east", "west")
 
 #: Accepted ``--vertical-unit`` values; ``divides.io.reading.VERTICAL_UNITS``
 #: holds their sizes (repeated here so that ``--help`` need not import rasterio).
@@ -109,6 +130,53 @@ ConditioningOption = Annotated[
         "--conditioning",
         metavar="fill|breach",
         help="How depressions are removed before routing: fill them, or breach pits first (high-resolution DEMs).",
+    ),
+]
+
+
+SideAOption = Annotated[
+    str,
+    typer.Option(
+        "--side-a",
+        metavar="SPEC",
+        help="Side a of the divide: a DEM edge (north, south, east, west: every cell draining off it) "
+        "or points 'x,y;x,y' in the DEM's CRS (see --lonlat), each snapped to the largest channel nearby.",
+        show_default=False,
+    ),
+]
+SideBOption = Annotated[
+    str,
+    typer.Option("--side-b", metavar="SPEC", help="Side b of the divide, as for --side-a.", show_default=False),
+]
+LonLatOption = Annotated[
+    bool,
+    typer.Option("--lonlat", help="Points in the side SPECs are longitude,latitude (WGS 84), not DEM CRS coordinates."),
+]
+OutOption = Annotated[
+    str | None,
+    typer.Option(
+        "--out",
+        "-o",
+        metavar="DIR",
+        help="Folder for the outputs (created; default ./divides-<DEM name> in the working folder).",
+        show_default=False,
+    ),
+]
+OverwriteOption = Annotated[
+    bool,
+    typer.Option("--overwrite", help="Replace an existing --out folder (only an earlier divides output or an empty folder)."),
+]
+SeedOption = Annotated[
+    int,
+    typer.Option("--seed", min=0, metavar="N", help="Seed of the bootstrap and the robustness perturbations (whole number >= 0)."),
+]
+ClosedEdgesOption = Annotated[
+    str | None,
+    typer.Option(
+        "--closed-edges",
+        metavar="EDGE[,EDGE]",
+        help="DEM edges that are not outlets (the DEM was cut along a ridge there), e.g. north,south.",
+        show_default=False,
     ),
 ]
 
@@ -317,3 +385,223 @@ def quiet_warnings(quiet: bool) -> Iterator[None]:
         if quiet:
             warnings.simplefilter("ignore")
         yield
+
+
+def parse_theta(text: str) -> float | str:
+    """Parse ``--theta VALUE|auto``: a concavity m/n in (0, 2], or ``"auto"``.
+
+    Examples
+    --------
+    >>> parse_theta("0.45"), parse_theta("AUTO")
+    (0.45, 'auto')
+    """
+    accepted = "'auto' or a concavity m/n above 0 and at most 2 (most rivers: 0.3 to 0.7)"
+    if text.strip().lower() == "auto":
+        return "auto"
+    value = parse_number(text, option="--theta", accepted=accepted)
+    if not 0 < value <= 2:
+        raise ParameterError(f"--theta {text!r} is not accepted; give {accepted}")
+    return value
+
+
+def parse_bounded(
+    text: str | None,
+    *,
+    option: str,
+    unit: str,
+    low: float,
+    high: float,
+    low_inclusive: bool = False,
+    typical: str = "",
+) -> float | None:
+    """Parse an optional number that must lie in ``(low, high]`` (``[low, high]`` with ``low_inclusive``).
+
+    Parameters
+    ----------
+    text : str or None
+        The value as typed; None when the option was not given.
+    option, unit : str
+        For the message, e.g. ``"--dem-error"``, ``"m"``.
+    low, high : float
+        Accepted range.
+    low_inclusive : bool
+        Accept ``low`` itself.
+    typical : str
+        Typical values, appended to the message.
+
+    Examples
+    --------
+    >>> parse_bounded("2.5", option="--dem-error", unit="m", low=0, high=100, low_inclusive=True)
+    2.5
+    """
+    if text is None:
+        return None
+    above = f"{'at least' if low_inclusive else 'above'} {low:g}"
+    accepted = f"a number of {unit} {above} and at most {high:g}" + (f" ({typical})" if typical else "")
+    value = parse_number(text, option=option, accepted=accepted)
+    if not ((value >= low if low_inclusive else value > low) and value <= high):
+        raise ParameterError(f"{option} {text!r} is not accepted; give {accepted}")
+    return value
+
+
+def parse_closed_edges(text: str | None) -> tuple[str, ...]:
+    """Parse ``--closed-edges north,south`` into a tuple of edge names.
+
+    Examples
+    --------
+    >>> parse_closed_edges("North, south")
+    ('north', 'south')
+    >>> parse_closed_edges(None)
+    ()
+    """
+    if text is None:
+        return ()
+    accepted = f"one or more of {', '.join(EDGE_CHOICES)}, separated by commas (at most three)"
+    names = [part.strip().lower() for part in text.split(",")]
+    bad = [n for n in names if n not in EDGE_CHOICES]
+    if bad or len(set(names)) != len(names) or len(names) > 3:
+        raise ParameterError(f"--closed-edges {text!r} is not accepted; give {accepted}")
+    return tuple(names)
+
+
+def default_out_dir(dem_path: str, *, cwd: str | os.PathLike | None = None) -> Path:
+    """The default ``--out``: ``divides-<DEM file name without suffix>`` in the working folder.
+
+    Examples
+    --------
+    >>> default_out_dir("/data/site 4/dem.tif", cwd="/tmp").as_posix()
+    '/tmp/divides-dem'
+    """
+    stem = Path(dem_path.rstrip("/")).stem or "dem"
+    return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}"
+
+
+def _is_earlier_output(folder: Path) -> bool:
+    """An empty folder, or one whose summary.json carries a divides schema."""
+    try:
+        entries = list(folder.iterdir())
+        if not entries:
+            return True
+        schema = json.loads((folder / "summary.json").read_text(encoding="utf-8")).get("schema", "")
+    except (OSError, ValueError, AttributeError):
+        return False
+    return isinstance(schema, str) and schema.startswith("divides.")
+
+
+def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
+    """Refuse an output folder that cannot be used, before any work is done.
+
+    The writer checks again when it writes; this early check saves a long
+    run that could only fail at the end.
+
+    Parameters
+    ----------
+    out : str or os.PathLike
+        The ``--out`` folder.
+    overwrite : bool
+        ``--overwrite`` was given.
+
+    Returns
+    -------
+    pathlib.Path
+        The absolute output folder.
+
+    Raises
+    ------
+    OutputError
+        The folder exists (without ``--overwrite``), is a file, is not an
+        earlier divides output, or its nearest existing parent is not a
+        writable folder.
+    """
+    text = os.fspath(out)
+    if not str(text).strip():
+        raise OutputError("--out is empty; give a folder for the outputs")
+    path = Path(os.path.abspath(text))
+    if path.exists() or path.is_symlink():
+        if not path.is_dir() or path.is_symlink():
+            raise OutputError(f"cannot write outputs to '{path}': it exists and is not a folder; choose another --out")
+        if not overwrite:
+            raise OutputError(f"output folder '{path}' already exists; choose another --out or pass --overwrite")
+        if not _is_earlier_output(path):
+            raise OutputError(
+                f"output folder '{path}' exists and is not an earlier divides output (no divides summary.json); "
+                "refusing to replace it even with --overwrite: remove it yourself or choose another --out"
+            )
+    parent = path.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir():
+        raise OutputError(f"cannot write outputs to '{path}': '{parent}' is not a folder; choose another --out")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise OutputError(f"cannot write outputs to '{path}': permission denied in '{parent}'; choose another --out")
+    return path
+
+
+class Progress:
+    """Stage lines on stderr: ``divides: [2/3] assessing the divide`` (nothing with ``quiet``).
+
+    Plain text, no colour. Sub-steps (the files being written) go on one
+    line redrawn in place when the stream is a terminal, one line each
+    otherwise, so that logs stay readable.
+
+    Parameters
+    ----------
+    total : int
+        Number of stages.
+    quiet : bool
+        Print nothing.
+    stream : file, optional
+        Where to print; ``sys.stderr`` by default (looked up when printing).
+    """
+
+    def __init__(self, total: int, *, quiet: bool = False, stream: TextIO | None = None) -> None:
+        self.total, self.quiet, self._stream, self.done = total, quiet, stream, 0
+        self._start = time.perf_counter()
+        self._redraw = False
+
+    @property
+    def stream(self) -> TextIO:
+        """The output stream."""
+        return self._stream if self._stream is not None else sys.stderr
+
+    def _tty(self) -> bool:
+        try:
+            return bool(self.stream.isatty())
+        except (AttributeError, ValueError):
+            return False
+
+    def _end_redraw(self) -> None:
+        if self._redraw:
+            self.stream.write("\n")
+            self._redraw = False
+
+    def stage(self, text: str) -> None:
+        """Announce the next stage."""
+        self.done += 1
+        if self.quiet:
+            return
+        self._end_redraw()
+        elapsed = time.perf_counter() - self._start
+        self.stream.write(f"divides: [{self.done}/{self.total}] {text} (at {elapsed:.1f} s)\n")
+        self.stream.flush()
+
+    def step(self, text: str, index: int | None = None, count: int | None = None) -> None:
+        """Show a sub-step of the current stage, with a bar when ``index`` and ``count`` are known."""
+        if self.quiet:
+            return
+        bar = ""
+        if index is not None and count:
+            filled = int(round(20 * min(index, count) / count))
+            bar = f"[{'#' * filled}{'.' * (20 - filled)}] {index}/{count} "
+        if self._tty():
+            self.stream.write(f"\r  {bar}{text}".ljust(79)[:79])
+            self._redraw = True
+        else:
+            self.stream.write(f"  {bar}{text}\n")
+        self.stream.flush()
+
+    def finish(self) -> None:
+        """End a redrawn line, if any."""
+        if not self.quiet:
+            self._end_redraw()
+            self.stream.flush()

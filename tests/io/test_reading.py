@@ -394,13 +394,16 @@ DEMO = Path(__file__).resolve().parents[2] / "demo"
 
 def test_demo_uplands_reads_as_a_small_projected_dem() -> None:
     path = DEMO / "uplands.tif"
-    assert path.stat().st_size < 300 * 1024  # the demo must stay small
+    assert path.stat().st_size < 400 * 1024  # the demo must stay small (project brief)
     dem = read_dem(path)
-    assert dem.shape == (200, 240) and dem.cell_size_m == (30.0, 30.0)
-    assert dem.crs.to_epsg() == 32630 and not dem.geographic
-    assert dem.elevation.dtype == np.float32 and dem.valid.all()
-    with rasterio.open(path) as src:  # stored compressed, as rasterio reports
-        assert src.compression is not None
+    with rasterio.open(path) as src:  # the reference: what rasterio itself reads from the file
+        assert dem.shape == (src.height, src.width)
+        assert dem.cell_size_m == src.res  # a projected CRS in metres: cell sizes are the resolution
+        assert dem.crs == src.crs and dem.transform == src.transform
+        assert src.compression is not None  # stored compressed
+        np.testing.assert_array_equal(dem.elevation, src.read(1))
+    assert dem.shape[0] <= 200 and dem.shape[1] <= 300  # small enough for a quick demo (project brief)
+    assert not dem.geographic and dem.elevation.dtype == np.float32 and dem.valid.all()
 
 
 def test_demo_generator_rewrites_the_same_grid(tmp_path: Path) -> None:
@@ -414,8 +417,11 @@ def test_demo_generator_rewrites_the_same_grid(tmp_path: Path) -> None:
     # Elevations are rounded to centimetres; allow one step for libm differences across platforms.
     np.testing.assert_allclose(fresh.elevation, shipped.elevation, rtol=0, atol=0.0101)
     assert fresh.transform == shipped.transform and fresh.crs == shipped.crs
-    # A ridge between two basins: every row's crest is well inside, both edges far below it.
+    # The story of demo/README.md: a ridge between two basins, whose crest stays well inside
+    # every row, and the River Tallow (west edge) below the Quern Water (east edge) after its fall.
     z = shipped.elevation
     crest = z.argmax(axis=1)
-    assert np.all((crest > 60) & (crest < 180))
-    assert np.all(z.max(axis=1) - z[:, 0] > 250) and np.all(z.max(axis=1) - z[:, -1] > 200)
+    cols = z.shape[1]
+    assert np.all((crest > cols // 4) & (crest < 3 * cols // 4))
+    assert np.all(z[:, 0] < z[:, -1])
+    assert np.all(z.max(axis=1) - z[:, -1] > 100)  # real relief on the gentler side too

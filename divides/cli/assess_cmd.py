@@ -1,0 +1,392 @@
+"""``divides assess``: is the divide between two sides of a DEM stable or moving?
+
+Every option is checked before the DEM is read, and the output folder before
+any work is done, so that a mistake costs seconds and leaves nothing behind.
+numpy, rasterio and numba are imported inside the functions, not here, so
+that ``divides --help`` does not pay for them.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Annotated, Any
+
+import typer
+
+from divides.cli import options as opt
+from divides.errors import DemReadError, GridError, ParameterError
+
+if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
+    from divides.assess.assessment import Assessment
+    from divides.io.dem import Dem
+
+__all__ = ["assess", "AssessRequest", "assess_request", "run_assessment", "print_result", "RASTER_OPTIONS"]
+
+#: Rasters on the DEM grid that weight χ: option name -> keyword of :func:`divides.assess`.
+RASTER_OPTIONS = {"--runoff": "runoff", "--erodibility": "erodibility_raster", "--uplift": "uplift_raster"}
+
+#: Erosion rates above this (mm/yr) are refused: the fastest measured basin-wide rates are
+#: about 10 mm/yr, so 1000 mm/yr is a unit mistake (the library's limit too).
+MAX_EROSION_MM_YR = 1000.0
+
+# ---------------------------------------------------------------- options of assess only
+ThetaOption = Annotated[
+    str,
+    typer.Option("--theta", metavar="VALUE|auto", help="Concavity m/n for χ and ksn; 'auto' estimates it from the "
+                 "DEM (collinearity of tributaries, slope-area as a check)."),
+]
+ChannelAreaOption = Annotated[
+    str | None,
+    typer.Option("--channel-area", metavar="M2", show_default=False,
+                 help="Drainage area (m²) where channels begin; default: read from the DEM's slope-area data."),
+]
+ReferenceAreaOption = Annotated[
+    str | None,
+    typer.Option("--reference-area", metavar="M2", show_default=False,
+                 help="Drainage area (m²) at which near-divide channel metrics are read; default: the channel area."),
+]
+BaseLevelOption = Annotated[
+    str | None,
+    typer.Option("--base-level", metavar="M", show_default=False,
+                 help="Common base level (m) for χ; default: the higher of the two sides' lowest channel cells."),
+]
+DemErrorOption = Annotated[
+    str | None,
+    typer.Option("--dem-error", metavar="M", show_default=False,
+                 help="Vertical standard error of the DEM (m, default 1): noise of the robustness re-runs and "
+                 "the smallest knickpoint step."),
+]
+ErosionRateAOption = Annotated[
+    str | None,
+    typer.Option("--erosion-rate-a", metavar="MM/YR", show_default=False,
+                 help="Measured erosion rate of side a (mm/yr, e.g. basin-averaged cosmogenic); turns steepness "
+                 "into rates and years."),
+]
+ErosionRateBOption = Annotated[
+    str | None,
+    typer.Option("--erosion-rate-b", metavar="MM/YR", show_default=False,
+                 help="Measured erosion rate of side b (mm/yr); with --erosion-rate-a both are used as given."),
+]
+ErodibilityKOption = Annotated[
+    str | None,
+    typer.Option("--erodibility-k", metavar="K", show_default=False,
+                 help="Erodibility K of E = K ksn^n (SI: m^(1-2θ)/yr for n = 1), instead of erosion rates."),
+]
+KnickpointAgeOption = Annotated[
+    str | None,
+    typer.Option("--knickpoint-age", metavar="YEARS", show_default=False,
+                 help="Age (years) of the most prominent knickpoint, to calibrate K from how far it has travelled."),
+]
+SlopeExponentOption = Annotated[
+    str | None,
+    typer.Option("--n", metavar="N", show_default=False,
+                 help="Slope exponent n of the stream-power law (0.5 to 4; default 1)."),
+]
+RunoffOption = Annotated[
+    str | None,
+    typer.Option("--runoff", metavar="RASTER", show_default=False,
+                 help="Relative runoff or precipitation on the DEM grid (same shape and transform): weights χ."),
+]
+ErodibilityRasterOption = Annotated[
+    str | None,
+    typer.Option("--erodibility", metavar="RASTER", show_default=False,
+                 help="Relative rock erodibility on the DEM grid (positive values): weights χ."),
+]
+UpliftRasterOption = Annotated[
+    str | None,
+    typer.Option("--uplift", metavar="RASTER", show_default=False,
+                 help="Relative rock uplift rate on the DEM grid (positive values): weights χ."),
+]
+SnapRadiusOption = Annotated[
+    str | None,
+    typer.Option("--snap-radius", metavar="M", show_default=False,
+                 help="Radius (m) within which SPEC points snap to the largest channel; default five cells."),
+]
+NoRobustnessOption = Annotated[
+    bool,
+    typer.Option("--no-robustness", help="Skip the re-runs with a perturbed DEM, θ and channel area (faster; "
+                 "the confidence is then scaled by 0.8)."),
+]
+
+
+@dataclass(frozen=True)
+class AssessRequest:
+    """An assessment as asked for on the command line, every value checked.
+
+    Attributes
+    ----------
+    side_a, side_b : str
+        The side SPECs as typed.
+    lonlat : bool
+    options : dict
+        Keyword options of :func:`divides.assess` (fields of
+        :class:`divides.config.AssessConfig`).
+    rasters : dict
+        Keyword of :func:`divides.assess` (``runoff``, ``erodibility_raster``,
+        ``uplift_raster``) -> (option name, path).
+    """
+
+    side_a: str
+    side_b: str
+    lonlat: bool = False
+    options: dict = field(default_factory=dict)
+    rasters: dict = field(default_factory=dict)
+
+
+def _positive(text: str | None, option: str, unit: str, typical: str = "") -> float | None:
+    return opt.parse_bounded(text, option=option, unit=unit, low=0.0, high=float("inf"), typical=typical)
+
+
+def assess_request(
+    *,
+    side_a: str,
+    side_b: str,
+    lonlat: bool = False,
+    theta: str = "0.45",
+    channel_area: str | None = None,
+    reference_area: str | None = None,
+    base_level: str | None = None,
+    dem_error: str | None = None,
+    erosion_rate_a: str | None = None,
+    erosion_rate_b: str | None = None,
+    erodibility_k: str | None = None,
+    knickpoint_age: str | None = None,
+    n: str | None = None,
+    runoff: str | None = None,
+    erodibility: str | None = None,
+    uplift: str | None = None,
+    snap_radius: str | None = None,
+    closed_edges: str | None = None,
+    robustness: bool = True,
+    seed: int = 0,
+    route: opt.RouteOptions | None = None,
+) -> AssessRequest:
+    """Check the options of ``divides assess`` as typed, before anything is read.
+
+    Raises
+    ------
+    ParameterError, SideError, DemReadError
+        The first problem found, naming the option, the value and what is accepted.
+    """
+    from divides.assess.sides import parse_side  # numpy: fine once a command runs
+
+    spec_a, spec_b = (parse_side(s, lonlat=lonlat) for s in (side_a, side_b))
+    if spec_a.text.lower() == spec_b.text.lower():
+        raise ParameterError(f"--side-a and --side-b are the same ({side_a!r}); give the two different sides of the divide")
+    rates = {
+        "--erosion-rate-a": opt.parse_bounded(erosion_rate_a, option="--erosion-rate-a", unit="mm/yr", low=0,
+                                              high=MAX_EROSION_MM_YR, typical="measured rates: 0.001 to 10 mm/yr"),
+        "--erosion-rate-b": opt.parse_bounded(erosion_rate_b, option="--erosion-rate-b", unit="mm/yr", low=0,
+                                              high=MAX_EROSION_MM_YR, typical="measured rates: 0.001 to 10 mm/yr"),
+    }
+    k = _positive(erodibility_k, "--erodibility-k", "m^(1-2θ)/yr", "often 1e-7 to 1e-4 for θ = 0.45")
+    age = _positive(knickpoint_age, "--knickpoint-age", "years")
+    given = [name for name, value in (("--erosion-rate-a/-b", rates["--erosion-rate-a"] or rates["--erosion-rate-b"]),
+                                      ("--erodibility-k", k), ("--knickpoint-age", age)) if value is not None]
+    if len(given) > 1:
+        raise ParameterError(f"{' and '.join(given)} are two calibrations of erosion; give only one of "
+                             "--erosion-rate-a/-b (mm/yr), --erodibility-k or --knickpoint-age")
+    options: dict[str, Any] = {
+        "theta": opt.parse_theta(theta),
+        "channel_area_m2": _positive(channel_area, "--channel-area", "m²", "often 1e4 to 1e6 m²"),
+        "reference_area_m2": _positive(reference_area, "--reference-area", "m²"),
+        "base_level_m": None if base_level is None
+        else opt.parse_number(base_level, option="--base-level", accepted="an elevation in metres"),
+        "erosion_rate_a_mm_yr": rates["--erosion-rate-a"],
+        "erosion_rate_b_mm_yr": rates["--erosion-rate-b"],
+        "erodibility": k,
+        "knickpoint_age_years": age,
+        "snap_radius_m": _positive(snap_radius, "--snap-radius", "m"),
+        "closed_edges": opt.parse_closed_edges(closed_edges),
+        "robustness": robustness,
+        "seed": seed,
+    }
+    if dem_error is not None:
+        options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
+                                                   low_inclusive=True, typical="lidar 0.1, SRTM about 5 to 10")
+    if n is not None:
+        options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
+                                         low_inclusive=True, typical="1 unless known otherwise")
+    route = route or opt.RouteOptions()
+    options.update(conditioning=route.conditioning, sea_level_m=route.sea_level)
+    options = {key: value for key, value in options.items() if value is not None}
+    rasters = {}
+    for option, keyword, path in (("--runoff", "runoff", runoff), ("--erodibility", "erodibility_raster", erodibility),
+                                  ("--uplift", "uplift_raster", uplift)):
+        if path is not None:
+            try:
+                rasters[keyword] = (option, opt.check_dem_path(path))
+            except DemReadError as exc:  # check_dem_path speaks of "the DEM": re-aim it at this option
+                raise DemReadError(f"{option}: {str(exc).replace('DEM', 'raster')}") from None
+    return AssessRequest(side_a=side_a, side_b=side_b, lonlat=lonlat, options=options, rasters=rasters)
+
+
+def _read_raster_on_grid(option: str, path: str, dem: Dem, read: opt.DemOptions) -> Any:
+    """Read a weighting raster and check it lies on the DEM's grid; NaN where it has no value."""
+    import numpy as np
+
+    import divides
+    from divides.errors import DividesError
+
+    try:
+        raster = divides.read_dem(path, bounds=read.bounds, band=1, cell_size=read.cell_size)
+    except DividesError as exc:
+        raise type(exc)(f"{option}: {exc}") from None
+    same_crs = raster.crs is None or dem.crs is None or raster.crs == dem.crs
+    if raster.shape != dem.shape or not raster.transform.almost_equals(dem.transform) or not same_crs:
+        what = (f"{raster.shape[0]} x {raster.shape[1]} cells" if raster.shape != dem.shape
+                else "a different CRS" if not same_crs else f"the transform {tuple(raster.transform)[:6]}")
+        raise GridError(
+            f"{option} raster '{path}' has {what}; it must be on the DEM grid ({dem.shape[0]} x {dem.shape[1]} cells, "
+            f"transform {tuple(dem.transform)[:6]}): resample it onto the DEM first"
+        )
+    values = np.where(raster.valid, raster.elevation, np.nan).astype(np.float64)
+    good = np.isfinite(values) & dem.valid
+    if not good.any():
+        raise ParameterError(f"{option} raster '{path}' has no value on the DEM's valid cells")
+    if np.any(values[good] <= 0):
+        raise ParameterError(f"{option} raster '{path}' holds {float(values[good].min()):g}; "
+                             "its values must be positive (relative values: 1 = typical)")
+    return values
+
+
+def _check_against_dem(request: AssessRequest, dem: Dem) -> None:
+    """Checks that need the DEM: channel and reference areas against its size."""
+    import numpy as np
+
+    total = float(np.sum(dem.cell_area_grid()))
+    cell = float(np.median(dem.cell_area))
+    for option, key in (("--channel-area", "channel_area_m2"), ("--reference-area", "reference_area_m2")):
+        value = request.options.get(key)
+        if value is None:
+            continue
+        if value >= total:
+            raise ParameterError(f"{option} {value:g} m² is not smaller than the whole DEM ({total:.4g} m²); "
+                                 "give a drainage area well inside it (often 1e4 to 1e6 m²)")
+        if key == "channel_area_m2" and value < 2 * cell:
+            raise ParameterError(f"{option} {value:g} m² is smaller than two cells ({2 * cell:.4g} m²): every cell "
+                                 "would be a channel; give at least that (often 1e4 to 1e6 m²)")
+
+
+def run_assessment(
+    read: opt.DemOptions,
+    request: AssessRequest,
+    *,
+    out: Path,
+    overwrite: bool,
+    progress: opt.Progress,
+) -> tuple[Assessment, Path]:
+    """Read the DEM and the rasters, assess the divide and write every output.
+
+    Parameters
+    ----------
+    read : DemOptions
+        The DEM and how to read it.
+    request : AssessRequest
+    out : pathlib.Path
+        Output folder (checked with :func:`divides.cli.options.check_out_dir`).
+    overwrite : bool
+    progress : Progress
+        Three stages: reading, assessing, writing.
+
+    Returns
+    -------
+    (Assessment, pathlib.Path)
+        The result and the folder written.
+    """
+    import divides
+    from divides.report.writer import STAGES
+
+    progress.stage(f"reading the DEM {read.path}")
+    dem = divides.read_dem(read.path, **read.read_kwargs())
+    _check_against_dem(request, dem)
+    rasters = {keyword: _read_raster_on_grid(option, path, dem, read)
+               for keyword, (option, path) in request.rasters.items()}
+
+    robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
+    progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
+                   f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
+    result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters, **request.options)
+
+    progress.stage(f"writing the outputs to {out}")
+    steps = iter(range(1, len(STAGES) + 1))
+    written = result.write(out, overwrite=overwrite,
+                           progress=lambda stage: progress.step(stage, next(steps, len(STAGES)), len(STAGES)))
+    progress.finish()
+    return result, Path(written)
+
+
+def print_result(result: Assessment, out: Path, *, json_output: bool) -> None:
+    """Print the verdict (or the summary.json document) on stdout, and where the report is."""
+    if json_output:
+        typer.echo(json.dumps(result.summary, indent=2, allow_nan=False))
+        return
+    typer.echo(result.verdict.text)
+    typer.echo("")
+    typer.echo(f"Report:  {out / 'report.html'}")
+    typer.echo(f"Outputs: {out} (summary.json, verdict.txt, figures/, layers/, rasters/, tables/)")
+
+
+def assess(
+    dem: opt.DemArgument,
+    side_a: opt.SideAOption,
+    side_b: opt.SideBOption,
+    theta: ThetaOption = "0.45",
+    channel_area: ChannelAreaOption = None,
+    reference_area: ReferenceAreaOption = None,
+    base_level: BaseLevelOption = None,
+    dem_error: DemErrorOption = None,
+    erosion_rate_a: ErosionRateAOption = None,
+    erosion_rate_b: ErosionRateBOption = None,
+    erodibility_k: ErodibilityKOption = None,
+    knickpoint_age: KnickpointAgeOption = None,
+    n: SlopeExponentOption = None,
+    runoff: RunoffOption = None,
+    erodibility: ErodibilityRasterOption = None,
+    uplift: UpliftRasterOption = None,
+    lonlat: opt.LonLatOption = False,
+    snap_radius: SnapRadiusOption = None,
+    closed_edges: opt.ClosedEdgesOption = None,
+    no_robustness: NoRobustnessOption = False,
+    seed: opt.SeedOption = 0,
+    out: opt.OutOption = None,
+    overwrite: opt.OverwriteOption = False,
+    json_output: opt.JsonOption = False,
+    quiet: opt.QuietOption = False,
+    band: opt.BandOption = None,
+    bounds: opt.BoundsOption = None,
+    vertical_unit: opt.VerticalUnitOption = "m",
+    cell_size: opt.CellSizeOption = None,
+    sea_level: opt.SeaLevelOption = None,
+    conditioning: opt.ConditioningOption = "fill",
+) -> None:
+    """Assess whether the divide between two sides of a DEM is stable or moving.
+
+    Compares χ, channel elevation, hillslope gradient and relief across the
+    divide with confidence intervals, names the aggressor and the victim,
+    and writes summary.json, verdict.txt, report.html, figures, GIS layers,
+    rasters and tables to --out. Prints the verdict (or, with --json, the
+    summary.json document) and where the report is. Progress goes to stderr.
+
+    A screening tool: verify its verdicts in the field; local codes and
+    licensed professionals decide.
+    \f
+    Exit codes: 0 done; 2 a bad input or option (one line on stderr, nothing
+    written); 1 an internal error (one line and the path of a log).
+    """
+    read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level)
+    request = assess_request(
+        side_a=side_a, side_b=side_b, lonlat=lonlat, theta=theta, channel_area=channel_area,
+        reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,
+        erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
+        runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius, closed_edges=closed_edges,
+        robustness=not no_robustness, seed=seed, route=route,
+    )
+    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)
+    progress = opt.Progress(3, quiet=quiet)
+    with opt.quiet_warnings(quiet):
+        result, written = run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress)
+    print_result(result, written, json_output=json_output)
