@@ -158,7 +158,6 @@ def assess_request(
     erodibility: str | None = None,
     uplift: str | None = None,
     snap_radius: str | None = None,
-    closed_edges: str | None = None,
     robustness: bool = True,
     seed: int = 0,
     route: opt.RouteOptions | None = None,
@@ -199,7 +198,6 @@ def assess_request(
         "erodibility": k,
         "knickpoint_age_years": age,
         "snap_radius_m": _positive(snap_radius, "--snap-radius", "m"),
-        "closed_edges": opt.parse_closed_edges(closed_edges),
         "robustness": robustness,
         "seed": seed,
     }
@@ -210,7 +208,7 @@ def assess_request(
         options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
                                          low_inclusive=True, typical="1 unless known otherwise")
     route = route or opt.RouteOptions()
-    options.update(conditioning=route.conditioning, sea_level_m=route.sea_level)
+    options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges)
     options = {key: value for key, value in options.items() if value is not None}
     rasters = {}
     for option, keyword, path in (("--runoff", "runoff", runoff), ("--erodibility", "erodibility_raster", erodibility),
@@ -377,12 +375,12 @@ def assess(
     written); 1 an internal error (one line and the path of a log).
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    route = opt.route_options(conditioning=conditioning, sea_level=sea_level)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
     request = assess_request(
         side_a=side_a, side_b=side_b, lonlat=lonlat, theta=theta, channel_area=channel_area,
         reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,
         erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
-        runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius, closed_edges=closed_edges,
+        runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
         robustness=not no_robustness, seed=seed, route=route,
     )
     folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)

@@ -18,7 +18,7 @@ from divides.cli import assess_cmd
 from divides.cli import options as opt
 from divides.errors import DemReadError
 
-__all__ = ["demo", "demo_dem_path", "DEMO_OPTIONS", "DEMO_TRUTH", "DEFAULT_OUT"]
+__all__ = ["demo", "demo_dem_path", "DEMO_OPTIONS", "DEMO_CLOSED_EDGES", "DEMO_TRUTH", "DEFAULT_OUT"]
 
 #: Default output folder, in the working folder.
 DEFAULT_OUT = "divides-demo"
@@ -27,9 +27,11 @@ DEFAULT_OUT = "divides-demo"
 DEMO_OPTIONS = {
     "side_a": "west",  # the River Tallow's side
     "side_b": "east",  # the Quern Water's side
-    "closed_edges": "north,south",  # the model's north and south edges were walls
     "erosion_rate_a": "0.70",  # the story's cosmogenic sample from the Tallow side (mm/yr)
 }
+
+#: ``--closed-edges`` of the demo: the model's north and south edges were walls.
+DEMO_CLOSED_EDGES = "north,south"
 
 #: What the model did after the snapshot that became the demo DEM (the GeoTIFF's tags, rounded):
 #: the divide moved this far east (m) in this many years.
@@ -71,7 +73,8 @@ def demo(
     """
     path = demo_dem_path()
     read = opt.dem_options(str(path))
-    request = assess_cmd.assess_request(**DEMO_OPTIONS, robustness=not no_robustness)
+    route = opt.route_options(closed_edges=DEMO_CLOSED_EDGES)
+    request = assess_cmd.assess_request(**DEMO_OPTIONS, robustness=not no_robustness, route=route)
     folder = opt.check_out_dir(out if out is not None else Path.cwd() / DEFAULT_OUT, overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):

@@ -13,13 +13,16 @@ import typer
 
 from divides.cli import options as opt
 
-__all__ = ["inspect", "inspect_report", "format_report", "SCHEMA", "TOP_BASINS"]
+__all__ = ["inspect", "inspect_report", "suggest_parameters", "format_report", "SCHEMA", "TOP_BASINS", "THETA_BOOTSTRAP"]
 
 #: Identifies the layout of ``divides inspect --json``.
 SCHEMA = "divides.inspect/1"
 
 #: How many of the largest basins are listed.
 TOP_BASINS = 5
+
+#: Bootstrap resamples of the collinearity θ interval (fewer than an assessment: inspect is a quick look).
+THETA_BOOTSTRAP = 50
 
 
 def inspect(
@@ -32,12 +35,14 @@ def inspect(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    closed_edges: opt.ClosedEdgesOption = None,
 ) -> None:
-    """Describe a DEM: its grid, georeference, elevations, and how it drains.
+    """Describe a DEM: its grid, georeference, elevations, how it drains, and suggested parameters.
 
     Prints the CRS, grid size, cell size in metres, bounds, share of valid
-    cells, elevation range, what conditioning changed, the number of outlets
-    and the largest basins with their outlets.
+    cells, elevation range, what conditioning changed, the number of outlets,
+    the largest basins with their outlets, and a suggested channel area and
+    concavity θ for `divides assess`, each with the reason.
     \f
     With ``--json`` one JSON object is printed on stdout, with the keys:
 
@@ -70,9 +75,16 @@ def inspect(
         Up to five objects, largest first: ``id`` (1 = largest, as in
         ``FlowGraph.basins()``), ``area_km2``, ``share`` (fraction of the valid
         area), ``outlet`` (``[x, y]`` of the outlet cell centre, CRS units).
+    ``suggested``
+        Parameters for ``divides assess``: ``channel_area_m2``
+        (``value``, ``cells``, ``source``: ``"slope-area break"`` or
+        ``"fallback"``, ``reason``) and ``theta`` (``value``, ``ci95``,
+        ``source``: ``"collinearity"``, ``"slope-area"`` or ``"reference"``,
+        ``reason``, and both estimates under ``collinearity`` and
+        ``slope_area``: ``value``, ``ci95``, ``n_units``, ``note``).
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    flow = opt.route_options(conditioning=conditioning, sea_level=sea_level)
+    flow = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
     with opt.quiet_warnings(quiet):
         report = inspect_report(read, flow)
     # Everything is computed before anything is printed: a failure prints no partial output.
@@ -160,6 +172,96 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
         "n_outlets": int(outlets.size),
         "n_outlets_draining_others": int(np.count_nonzero(graph.upstream_count[outlets] > 1)),
         "largest_basins": basins,
+        "suggested": suggest_parameters(graph),
+    }
+
+
+def _finite(value: float | None) -> float | None:
+    """The value as a float, or None when missing or not finite (JSON has no NaN)."""
+    import math
+
+    return float(value) if value is not None and math.isfinite(value) else None
+
+
+def _interval(ci: tuple[float, float]) -> list[float | None]:
+    return [_finite(v) for v in ci]
+
+
+def suggest_parameters(graph: Any) -> dict[str, Any]:
+    """Channel area and θ suggested for ``divides assess``, each with its reason.
+
+    The channel area is where the DEM's slope–area data break from hillslope
+    to channel scaling (:func:`divides.terrain.channels.suggest_channel_threshold`).
+    θ is the collinearity estimate over the whole channel network (tributaries
+    collapse onto their trunk in χ–z); slope–area regression is the check,
+    and its value is used when collinearity cannot tell. When neither can,
+    the reference θ = 0.45 (common practice) is suggested.
+
+    Parameters
+    ----------
+    graph : FlowGraph
+
+    Returns
+    -------
+    dict
+        JSON-ready; keys as documented under ``suggested`` in :func:`inspect`.
+    """
+    import math
+
+    import numpy as np
+
+    from divides.errors import DividesError
+    from divides.profiles.analysis import network_concavity
+    from divides.profiles.concavity import REFERENCE_THETA
+    from divides.terrain.channels import extract_channels, suggest_channel_threshold
+
+    choice = suggest_channel_threshold(graph)
+    cell = float(np.median(graph.dem.cell_area))
+    area = {"value": float(choice.value_m2), "cells": float(choice.value_m2 / cell), "source": choice.source,
+            "reason": choice.reason}
+    estimates: dict[str, Any] = {}
+    try:
+        channels = extract_channels(graph, threshold_m2=choice.value_m2)
+        estimates = network_concavity(channels, n_boot=THETA_BOOTSTRAP)
+    except DividesError as exc:  # e.g. too few channels for either method
+        problem = str(exc)
+    else:
+        problem = ""
+    found = {k: e for k, e in estimates.items() if math.isfinite(e.value)}
+    collinear, slope_area = found.get("collinearity"), found.get("slope_area")
+
+    def words(e: Any) -> str:
+        lo, hi = _interval(e.ci95)
+        ci = "" if lo is None or hi is None else f", 95 % interval {lo:.2f} to {hi:.2f}"
+        return f"{e.value:.2f}{ci}"
+
+    if collinear is not None:
+        value, ci, source = collinear.value, collinear.ci95, "collinearity"
+        reason = f"tributaries line up best with their trunks in χ–z at θ = {words(collinear)} ({collinear.n_units} links)"
+        if slope_area is not None:
+            lo, hi = _interval(collinear.ci95)
+            agrees = lo is not None and hi is not None and lo <= slope_area.value <= hi
+            reason += f"; slope–area gives {words(slope_area)}, {'which agrees' if agrees else 'which differs: check the profiles'}"
+    elif slope_area is not None:
+        value, ci, source = slope_area.value, slope_area.ci95, "slope-area"
+        why = estimates["collinearity"].note if "collinearity" in estimates else problem
+        reason = f"slope–area regression of the channels gives θ = {words(slope_area)}; collinearity could not tell" + (
+            f" ({why})" if why else "")
+    else:
+        value, ci, source = REFERENCE_THETA, (float("nan"), float("nan")), "reference"
+        notes = "; ".join(filter(None, [problem, *(e.note for e in estimates.values())]))
+        reason = f"neither collinearity nor slope–area could estimate θ{f' ({notes})' if notes else ''}; " \
+                 f"the reference value {REFERENCE_THETA} is common practice"
+    return {
+        "channel_area_m2": area,
+        "theta": {
+            "value": float(value),
+            "ci95": _interval(ci),
+            "source": source,
+            "reason": reason,
+            **{k: {"value": _finite(e.value), "ci95": _interval(e.ci95), "n_units": int(e.n_units),
+                   "note": e.note} for k, e in estimates.items()},
+        },
     }
 
 
@@ -235,6 +337,13 @@ def format_report(report: dict[str, Any]) -> str:
     ]
     width = max(len(label) for label, _ in lines) + 2
     out = [f"{label:<{width}}{value}" for label, value in lines]
+
+    suggested = report["suggested"]
+    area, theta = suggested["channel_area_m2"], suggested["theta"]
+    out.append(f"{'Channel area':<{width}}{_num(area['value'])} m² ({_num(area['cells'])} cells): {area['reason']}"
+               f" -> --channel-area {area['value']:.6g}")
+    out.append(f"{'Theta':<{width}}{theta['value']:.2f} ({theta['source']}): {theta['reason']}"
+               f" -> --theta {theta['value']:.2f}" + (" or --theta auto" if theta["source"] == "collinearity" else ""))
 
     basins = report["largest_basins"]
     out.append(f"Largest basins ({len(basins)})")

@@ -332,10 +332,11 @@ class RouteOptions:
 
     conditioning: str = "fill"
     sea_level: float | None = None
+    closed_edges: tuple[str, ...] = ()
 
     def route_kwargs(self) -> dict[str, Any]:
         """Keyword arguments of :func:`divides.route` (the DEM excluded)."""
-        return {"conditioning": self.conditioning, "sea_level": self.sea_level}
+        return {"conditioning": self.conditioning, "sea_level": self.sea_level, "closed_edges": self.closed_edges}
 
 
 def dem_options(
@@ -362,19 +363,23 @@ def dem_options(
     )
 
 
-def route_options(*, conditioning: str = "fill", sea_level: str | None = None) -> RouteOptions:
+def route_options(
+    *, conditioning: str = "fill", sea_level: str | None = None, closed_edges: str | None = None
+) -> RouteOptions:
     """Check the routing options as typed.
 
     Raises
     ------
     ParameterError
-        Unknown conditioning method or a sea level that is not a finite number.
+        Unknown conditioning method, a sea level that is not a finite number,
+        or closed edges that are not DEM edges.
     """
     return RouteOptions(
         conditioning=parse_choice(conditioning, option="--conditioning", choices=CONDITIONING_CHOICES),
         sea_level=None
         if sea_level is None
         else parse_number(sea_level, option="--sea-level", accepted="an elevation in metres"),
+        closed_edges=parse_closed_edges(closed_edges),
     )
 
 
