@@ -97,9 +97,11 @@ _MOTION = "PuOr_r"
 # ------------------------------------------------------------------ helpers
 def to_png(fig: Figure) -> bytes:
     """Render a figure to PNG bytes with the Agg canvas."""
-    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    if not isinstance(fig.canvas, FigureCanvasAgg):
+        FigureCanvasAgg(fig)
     buf = io.BytesIO()
-    canvas.print_png(buf)
+    # a tight box keeps titles and legends whole whatever the map's shape
+    fig.savefig(buf, format="png", dpi=fig.dpi, bbox_inches="tight", pad_inches=0.08)
     return buf.getvalue()
 
 
@@ -332,7 +334,7 @@ def _draw_motion_divide(fig: Figure, ax, result: Assessment, frame: _Frame) -> l
     ax.add_collection(lc)
     bar = fig.colorbar(lc, ax=ax, shrink=0.7, pad=0.02, ticks=[-1, 0, 1])
     bar.ax.set_yticklabels(["into a", "neutral", "into b"])
-    bar.set_label("Local evidence of divide motion (index, −1 … +1)")
+    bar.set_label("Local evidence of divide motion (−1 … +1)")
     return [Line2D([], [], color="black", lw=4, label="divide (coloured by local evidence)")]
 
 
@@ -409,10 +411,11 @@ def chi_map_figure(result: Assessment) -> Figure:
                             zorder=3, capstyle="round")
         lc.set_array(np.nan_to_num(chi[pos], nan=0.0))
         finite = chi[np.isfinite(chi)]
-        if finite.size:
-            lc.set_clim(0.0, float(np.max(finite)) or 1.0)
+        top = float(np.percentile(finite, 99)) if finite.size else 1.0  # a few long paths would wash out the rest
+        lc.set_clim(0.0, top or 1.0)
         ax.add_collection(lc)
-        bar = fig.colorbar(lc, ax=ax, shrink=0.75, pad=0.02)
+        extend = "max" if finite.size and float(np.max(finite)) > top else "neither"
+        bar = fig.colorbar(lc, ax=ax, shrink=0.75, pad=0.02, extend=extend)
         bar.set_label(f"χ (m), θ = {result.profiles.theta:.2f}, A₀ = {result.profiles.a0:g} m²")
     _divide_lines(ax, result, frame, color="white", lw=3.6, zorder=4)
     _divide_lines(ax, result, frame, color="black", lw=1.6, zorder=5)
