@@ -13,6 +13,7 @@ for the local evidence of motion.
 from __future__ import annotations
 
 import io
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -77,9 +78,9 @@ CAPTIONS = {
            "knickpoints and the first-order equilibrium divide.",
     "chi_map": "χ of the analysed channels, integrated from the common base level of both sides. "
                "The divide tends to move toward the side whose channel heads have the higher χ.",
-    "chi_elevation": "Elevation against χ for every analysed channel, by side. Straight profiles are in "
-                     "steady state; breaks mark knickpoints; the side whose heads reach higher χ at "
-                     "a similar elevation loses ground in the long run.",
+    "chi_elevation": "Elevation against χ for every analysed channel, by side. With uniform uplift and "
+                     "erodibility, straight profiles suggest steady state and breaks mark knickpoints; the "
+                     "side whose heads reach higher χ at a similar elevation loses ground in the long run.",
     "contrasts": "Across-divide differences (side a minus side b) with 95 % block-bootstrap intervals. "
                  "The shaded half says which way each sign points. A filled marker counts as evidence.",
     "long_profiles": "Long profiles of the longest channels of each side, side a to the left and side b to "
@@ -105,7 +106,7 @@ def to_png(fig: Figure) -> bytes:
     return buf.getvalue()
 
 
-def render_figures(result: Assessment, *, progress=None) -> dict[str, bytes]:
+def render_figures(result: Assessment, *, progress: Callable[[str], None] | None = None) -> dict[str, bytes]:
     """Draw every figure of :data:`FIGURES` and return name -> PNG bytes.
 
     ``progress(stage)`` is called before each figure with ``"figure: NAME"``.
