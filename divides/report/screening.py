@@ -5,7 +5,6 @@ from __future__ import annotations
 import base64
 import datetime as _dt
 import os
-import shutil
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -15,14 +14,13 @@ from matplotlib.collections import LineCollection
 from matplotlib.colors import Normalize
 
 from divides.assess.verdict import CAUTION
-from divides.errors import DividesError, OutputError
 from divides.io.writing import atomic_write, write_json, write_text
 from divides.report import html as _html
 from matplotlib.cm import ScalarMappable
 
 from divides.report.figures import _display_extent, _figure, _frame, _hillshade, to_png
 from divides.report.layers import _collection, _feature, _lonlat, csv_text
-from divides.report.writer import _check_target, _make_temporary, _move_into_place, _reason
+from divides.report.writer import staged_output
 
 if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
@@ -138,12 +136,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], top: int = 25) -> s
 
 
 def write_screening(result: Screening, out_dir, *, overwrite: bool = False) -> Path:
-    """Write a screening's outputs into ``out_dir`` atomically (see :func:`divides.report.write_assessment`)."""
-    out = Path(os.path.abspath(os.fspath(out_dir)))
-    _check_target(out, overwrite)
-    tmp = _make_temporary(out)
-    try:
-        rows = segment_rows(result)
+    """Write a screening's outputs into ``out_dir`` atomically (see :func:`divides.report.writer.staged_output`)."""
+    rows = segment_rows(result)
+    with staged_output(out_dir, overwrite=overwrite) as tmp:
         write_json(tmp / "screening.json", result.to_dict())
         if result.dem.crs is not None:
             write_json(tmp / "segments.geojson", _collection(segment_features(result)))
@@ -152,13 +147,6 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False) -> P
         with atomic_write(tmp / "figures" / "regional_map.png", parents=True) as f:
             f.write_bytes(png)
         write_text(tmp / "report.html", _report(result, png, rows))
-        # mark the folder as a divides output (the overwrite check looks for a summary schema)
+        # marks the folder as a divides output, so --overwrite may replace it later
         write_json(tmp / "summary.json", {"schema": "divides.screening/1", "n_segments": len(rows)})
-        _check_target(out, overwrite)
-        _move_into_place(tmp, out)
-    except BaseException as exc:
-        shutil.rmtree(tmp, ignore_errors=True)
-        if isinstance(exc, OSError) and not isinstance(exc, DividesError):
-            raise OutputError(f"cannot write outputs to '{out}': {_reason(exc)}") from exc
-        raise
-    return out
+    return Path(os.path.abspath(os.fspath(out_dir)))
