@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import ndimage
 
+from divides._jsonable import to_jsonable
 from divides.assess.contrasts import Contrast, block_bootstrap_mean, compute_contrasts, unique_points
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, sample_divide
@@ -102,7 +103,7 @@ class Assessment:
                 "snapped_points": side.snapped,
             }
         rate = None if self.rate is None else {k: self.rate[k] for k in ("low", "best", "high")}
-        return _clean({
+        return to_jsonable({
             "schema": SCHEMA,
             "dem": {"path": dem.path, "crs": None if dem.crs is None else dem.crs.to_string(),
                     "shape": list(dem.shape), "cell_size_m": list(dem.cell_size_m), "geographic": dem.geographic},
@@ -138,23 +139,6 @@ class Assessment:
                 "caution": CAUTION,
             },
         })
-
-
-def _clean(obj):
-    """Recursively turn numpy scalars into Python numbers and NaN/inf into None."""
-    if isinstance(obj, dict):
-        return {str(k): _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _clean(obj.tolist())
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        return float(obj) if np.isfinite(obj) else None
-    if isinstance(obj, np.bool_):
-        return bool(obj)
-    return obj
 
 
 @dataclass(frozen=True)

@@ -9,6 +9,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.points import near_divide_fields, sample_divide
 from divides.assess.sides import BaseLevel
@@ -53,9 +54,7 @@ class Screening:
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
-        from divides.assess.assessment import _clean
-
-        return _clean({
+        return to_jsonable({
             "schema": "divides.screening/1",
             "dem": {"path": self.dem.path, "crs": None if self.dem.crs is None else self.dem.crs.to_string(),
                     "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m)},

@@ -24,6 +24,7 @@ from scipy import ndimage
 
 from divides.assess.sides import SideSpec, resolve_sides
 from divides.assess.verdict import CAUTION
+from divides._jsonable import to_jsonable
 from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
 from divides.model.forcing import check_positive
@@ -292,7 +293,7 @@ class Forecast:
         final = {k: _finite(v[-1]) for k, v in band.items()}
         rate = {k: (None if v is None else 1e3 * v / self.years) for k, v in final.items()}
         dem = self.dem
-        return _clean({
+        return to_jsonable({
             "schema": SCHEMA,
             "dem": {"path": dem.path, "crs": None if dem.crs is None else dem.crs.to_string(),
                     "shape": list(self.source_shape), "geographic": dem.geographic},
@@ -319,23 +320,6 @@ class Forecast:
 def _finite(v: Any) -> float | None:
     v = float(v)
     return v if math.isfinite(v) else None
-
-
-def _clean(obj: Any) -> Any:
-    """Numpy values to Python numbers and lists; NaN and inf to None."""
-    if isinstance(obj, dict):
-        return {str(k): _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return _clean(obj.tolist())
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, np.integer):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        return _finite(obj)
-    return obj
 
 
 # ------------------------------------------------------------------ the grid
