@@ -208,6 +208,10 @@ def assess_request(
         options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
                                          low_inclusive=True, typical="1 unless known otherwise")
     route = route or opt.RouteOptions()
+    for option, spec in (("--side-a", spec_a), ("--side-b", spec_b)):
+        if spec.edge is not None and spec.edge in route.closed_edges:
+            raise ParameterError(f"{option} {spec.edge!r} is also in --closed-edges: nothing drains off a closed edge; "
+                                 "give an open edge or points for that side, or leave that edge open")
     options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges)
     options = {key: value for key, value in options.items() if value is not None}
     rasters = {}
@@ -251,9 +255,18 @@ def _read_raster_on_grid(option: str, path: str, dem: Dem, read: opt.DemOptions)
 
 
 def _check_against_dem(request: AssessRequest, dem: Dem) -> None:
-    """Checks that need the DEM: channel and reference areas against its size."""
+    """Checks that need the DEM: relief, sea level, channel and reference areas against its size."""
     import numpy as np
 
+    z = dem.elevation[dem.valid]
+    low, high = float(np.min(z)), float(np.max(z))
+    if high - low <= 0:
+        raise ParameterError(f"DEM '{dem.path}' is flat (every valid cell at {low:g} m): with no relief there are no "
+                             "channels and no divide; check the file, its nodata value and --vertical-unit")
+    sea = request.options.get("sea_level_m")
+    if sea is not None and sea >= high:
+        raise ParameterError(f"--sea-level {sea:g} m is at or above the highest cell of the DEM ({high:g} m): "
+                             "everything would be sea; give a level below the land")
     total = float(np.sum(dem.cell_area_grid()))
     cell = float(np.median(dem.cell_area))
     for option, key in (("--channel-area", "channel_area_m2"), ("--reference-area", "reference_area_m2")):
@@ -266,6 +279,9 @@ def _check_against_dem(request: AssessRequest, dem: Dem) -> None:
         if key == "channel_area_m2" and value < 2 * cell:
             raise ParameterError(f"{option} {value:g} m² is smaller than two cells ({2 * cell:.4g} m²): every cell "
                                  "would be a channel; give at least that (often 1e4 to 1e6 m²)")
+        if key == "reference_area_m2" and value < cell:
+            raise ParameterError(f"{option} {value:g} m² is smaller than one cell ({cell:.4g} m²); give at least "
+                                 "one cell, usually the channel area")
 
 
 def run_assessment(

@@ -9,7 +9,6 @@ starts: it must stay free of numpy, rasterio and numba.
 from __future__ import annotations
 
 import contextlib
-import json
 import math
 import os
 import sys
@@ -481,23 +480,13 @@ def default_out_dir(dem_path: str, *, cwd: str | os.PathLike | None = None) -> P
     return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}"
 
 
-def _is_earlier_output(folder: Path) -> bool:
-    """An empty folder, or one whose summary.json carries a divides schema."""
-    try:
-        entries = list(folder.iterdir())
-        if not entries:
-            return True
-        schema = json.loads((folder / "summary.json").read_text(encoding="utf-8")).get("schema", "")
-    except (OSError, ValueError, AttributeError):
-        return False
-    return isinstance(schema, str) and schema.startswith("divides.")
-
-
 def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
     """Refuse an output folder that cannot be used, before any work is done.
 
-    The writer checks again when it writes; this early check saves a long
-    run that could only fail at the end.
+    The rules on an existing folder are the writer's
+    (:func:`divides.report.writer.check_out_dir`); this adds that the nearest
+    existing parent must be a writable folder, so that a run that could only
+    fail at the end is refused at the start.
 
     Parameters
     ----------
@@ -518,20 +507,11 @@ def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
         earlier divides output, or its nearest existing parent is not a
         writable folder.
     """
-    text = os.fspath(out)
-    if not str(text).strip():
+    from divides.report.writer import check_out_dir as check_existing  # matplotlib: only once a command runs
+
+    if not os.fspath(out).strip():
         raise OutputError("--out is empty; give a folder for the outputs")
-    path = Path(os.path.abspath(text))
-    if path.exists() or path.is_symlink():
-        if not path.is_dir() or path.is_symlink():
-            raise OutputError(f"cannot write outputs to '{path}': it exists and is not a folder; choose another --out")
-        if not overwrite:
-            raise OutputError(f"output folder '{path}' already exists; choose another --out or pass --overwrite")
-        if not _is_earlier_output(path):
-            raise OutputError(
-                f"output folder '{path}' exists and is not an earlier divides output (no divides summary.json); "
-                "refusing to replace it even with --overwrite: remove it yourself or choose another --out"
-            )
+    path = check_existing(out, overwrite=overwrite)
     parent = path.parent
     while not parent.exists() and parent != parent.parent:
         parent = parent.parent
