@@ -334,3 +334,38 @@ def test_bad_cell_size(capsys, value):
 )
 def test_other_bad_options(capsys, args, needle):
     assert needle in _fails_cleanly(capsys, UPLANDS, *args)
+
+
+# ---------------------------------------------------------------- suggested parameters
+def test_suggested_theta_brackets_the_concavity_the_demo_was_made_with(capsys):
+    # demo/make_demo_dem.py grew the demo with stream power of m/n = 0.45 (its constants M and N);
+    # its north and south edges were walls, as the demo's story says.
+    report = _inspect_json(capsys, UPLANDS, "--closed-edges", "north,south")
+    theta = report["suggested"]["theta"]
+    assert theta["source"] == "collinearity"
+    lo, hi = theta["ci95"]
+    assert lo <= 0.45 <= hi
+    assert abs(theta["slope_area"]["value"] - 0.45) < 0.1  # the check method agrees to about ±0.1 (common practice)
+    assert theta["reason"]
+
+
+def test_suggested_channel_area_in_cells_and_in_the_text(capsys, reference):
+    report = _inspect_json(capsys, UPLANDS)
+    area = report["suggested"]["channel_area_m2"]
+    dx, dy = reference["res"]  # rasterio's cell size of the file
+    assert area["cells"] == pytest.approx(area["value"] / (dx * dy))
+    assert area["source"] in ("slope-area break", "fallback") and area["reason"]
+    text = _inspect(capsys, UPLANDS)
+    line = _field(text, "Channel area")
+    assert f"--channel-area {area['value']:.6g}" in line and area["reason"] in line
+    assert _field(text, "Theta").startswith(f"{report['suggested']['theta']['value']:.2f} (")
+
+
+def test_suggested_theta_falls_back_to_the_reference_value(capsys, write_geotiff):
+    # A 6 x 6 grid of noise has no channel network to estimate θ from: the usual reference
+    # concavity 0.45 (Wobus et al. 2006; common practice) is suggested, with the reason.
+    z = np.random.default_rng(3).random((6, 6)).astype(np.float32)
+    path = write_geotiff("noise.tif", z, crs="EPSG:32630", transform=Affine(30.0, 0, 5e5, 0, -30.0, 4e6))
+    theta = _inspect_json(capsys, path)["suggested"]["theta"]
+    assert (theta["value"], theta["source"]) == (0.45, "reference")
+    assert "could" in theta["reason"] and "0.45" in theta["reason"]
