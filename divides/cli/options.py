@@ -86,7 +86,7 @@ JsonOption = Annotated[
 ]
 QuietOption = Annotated[
     bool,
-    typer.Option("--quiet", "-q", help="Print no warnings on stderr (errors are still printed)."),
+    typer.Option("--quiet", "-q", help="Print no progress lines or warnings on stderr (errors are still printed)."),
 ]
 BandOption = Annotated[
     int | None,
