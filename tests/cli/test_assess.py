@@ -215,3 +215,40 @@ def test_help_of_assess_and_demo_imports_nothing_heavy():
     result = json.loads(proc.stdout)
     assert result["codes"] == [0, 0] and result["heavy"] == []
     assert result["elapsed"] < 0.5  # the brief: --help answers in under half a second
+
+
+class _Terminal(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+def test_progress_redraws_one_line_on_a_terminal():
+    # Common practice for terminal progress: sub-steps overwrite one line with a carriage
+    # return; the next stage starts on a fresh line. Into a file, one line per step instead.
+    from divides.cli.options import Progress
+
+    tty = _Terminal()
+    progress = Progress(2, stream=tty)
+    progress.stage("writing")
+    for i, name in enumerate(("summary.json", "report.html"), start=1):
+        progress.step(name, i, 2)
+    progress.stage("done")
+    progress.finish()
+    lines = tty.getvalue().split("\n")
+    assert lines[0].startswith("divides: [1/2] writing")
+    assert lines[1].count("\r") == 2 and "2/2 report.html" in lines[1].split("\r")[-1]
+    assert lines[2].startswith("divides: [2/2] done")
+
+    log = io.StringIO()  # not a terminal
+    progress = Progress(1, stream=log)
+    progress.stage("writing")
+    progress.step("summary.json", 1, 2)
+    progress.step("report.html", 2, 2)
+    assert "\r" not in log.getvalue() and log.getvalue().count("\n") == 3
+
+    quiet = io.StringIO()
+    progress = Progress(1, quiet=True, stream=quiet)
+    progress.stage("writing")
+    progress.step("summary.json", 1, 1)
+    progress.finish()
+    assert quiet.getvalue() == ""
