@@ -17,7 +17,7 @@ from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.profiles.chi import integrate_chi
+from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
 from divides.terrain.channels import Channels, extract_channels
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
@@ -100,7 +100,8 @@ def _azimuth(normal: np.ndarray) -> float:
 _STATE: dict = {}
 
 
-def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: float, a0: float):
+def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: float, a0: float,
+              area: np.ndarray, weight: np.ndarray | float):
     """χ of both sides' channels from their common base level (sub-network only)."""
     z = channels.elevation
     low_a, low_b = z[on_a].min(), z[on_b].min()
@@ -112,7 +113,8 @@ def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: 
     inside = (down >= 0) & (local < pos.size)
     inside[inside] &= pos[local[inside]] == down[inside]
     sub_down = np.where(inside, local, -1)
-    chi = integrate_chi(sub_down, channels.step[pos], channels.area[pos], theta=theta, a0=a0)
+    w = weight if np.isscalar(weight) else weight[pos]
+    chi = integrate_chi(sub_down, channels.step[pos], area[pos], theta=theta, a0=a0, weight=w)
     return pos, chi, base, kept_a, kept_b
 
 
@@ -129,7 +131,8 @@ def _assess_pair(task: tuple) -> list[dict]:
         for seg in segs:
             out.append(_empty(seg, "no channels on one side"))
         return out
-    pos, chi, base, kept_a, kept_b = _pair_chi(channels, on_a, on_b, theta=st["theta"], a0=config.a0_m2)
+    pos, chi, base, kept_a, kept_b = _pair_chi(channels, on_a, on_b, theta=st["theta"], a0=config.a0_m2,
+                                               area=st["chi_area"], weight=st["chi_weight"])
     scratch = st["scratch"]
     cells = channels.cells[pos]
     scratch[cells] = chi
@@ -187,6 +190,9 @@ def screen(
     level: str = "tributaries",
     max_segment_m: float | None = None,
     workers: int | None = None,
+    runoff: np.ndarray | None = None,
+    erodibility_raster: np.ndarray | None = None,
+    uplift_raster: np.ndarray | None = None,
     **options,
 ) -> Screening:
     """Screen every divide of a DEM for instability.
@@ -202,6 +208,11 @@ def screen(
         Longer divide segments are cut into pieces (default: 100 cells).
     workers : int, optional
         Processes (default: the number of cores).
+    runoff, erodibility_raster, uplift_raster : ndarray, optional
+        Rasters on the DEM grid weighting χ (see :func:`divides.profiles.chi_weights`);
+        without them χ assumes uniform climate, rock and uplift, and a χ-only
+        verdict across a rock or climate contrast can point the wrong way
+        (Forte & Whipple 2018).
     **options
         Fields of :class:`divides.config.AssessConfig` (``theta`` must be a number here).
 
@@ -231,13 +242,20 @@ def screen(
             by_pair.setdefault((seg.label_a, seg.label_b), []).append(
                 DivideSegment(seg.label_a, seg.label_b, piece, seg.cells_a, seg.cells_b))
     spacing = config.divide_spacing_m or 2.0 * cell
+    chi_area, chi_weight = channels.area, 1.0
+    if runoff is not None or erodibility_raster is not None or uplift_raster is not None:  # generalised χ
+        w = chi_weights(flow, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster, n=config.n)
+        if w.discharge is not None:
+            chi_area = w.discharge.ravel()[channels.cells]
+        if not np.isscalar(w.factor):
+            chi_weight = np.asarray(w.factor).ravel()[channels.cells]
     _STATE.clear()
     _STATE.update({
         "flow": flow, "channels": channels, "labels_ch": labels.ravel()[channels.cells], "config": config,
         "theta": float(config.theta), "spacing": spacing, "reference": config.reference_area_m2 or threshold,
         "block": max(1, int(round((config.block_m or 10 * spacing) / spacing))),
         "n_boot": max(100, config.n_bootstrap // 2), "fields": near_divide_fields(flow, config.relief_radius_m),
-        "scratch": np.full(flow.receivers.size, np.nan),
+        "scratch": np.full(flow.receivers.size, np.nan), "chi_area": chi_area, "chi_weight": chi_weight,
     })
     tasks = [(a, b, segs) for (a, b), segs in sorted(by_pair.items())]
     n_workers = max(1, min(workers or os.cpu_count() or 1, len(tasks)))
@@ -265,7 +283,9 @@ def screen(
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "line": seg.line,
         })
-    params = {**config.to_dict(), "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
+    weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
+    params = {**config.to_dict(), "chi_weighted": weighted,
+              "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
               "divide_spacing_used_m": spacing, "workers": n_workers}
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params)
