@@ -128,8 +128,8 @@ class AssessConfig:
         bad_edges = set(self.closed_edges) - {"north", "south", "east", "west"}
         if isinstance(self.closed_edges, str) or bad_edges:
             raise ParameterError(f"closed_edges must be a list of north, south, east, west; got {self.closed_edges!r}")
-        if not isinstance(self.seed, int) or isinstance(self.seed, bool):
-            raise ParameterError(f"seed must be a whole number; got {self.seed!r}")
+        if not isinstance(self.seed, int) or isinstance(self.seed, bool) or self.seed < 0:
+            raise ParameterError(f"seed must be a whole number >= 0; got {self.seed!r}")
         calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \
             (self.erosion_rate_a_mm_yr is not None or self.erosion_rate_b_mm_yr is not None)
         if calibrations > 1:

@@ -170,10 +170,14 @@ def _core(
     weights_fn,
     n_boot_theta: int,
     flow: FlowGraph | None = None,
+    step=None,
 ) -> _Core:
+    step = step or (lambda text: None)
     if flow is None:
+        step("routing flow (conditioning, D8, drainage area)")
         flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
                      closed_edges=config.closed_edges)
+    step("channels, sides and the common base level")
     channels = extract_channels(flow, threshold_m2=channel_area_m2)
     sides = resolve_sides(flow, parse_side(side_a, lonlat=lonlat), parse_side(side_b, lonlat=lonlat),
                           snap_radius_m=config.snap_radius_m)
@@ -182,12 +186,14 @@ def _core(
     if not divide.lines:
         raise SideError("the two sides touch only at isolated cells: no divide line could be traced")
     weights = weights_fn(flow)
+    step("river profiles (χ, concavity, ksn, knickpoints)")
     profiles = analyse_profiles(channels, sides, base, theta=theta, a0=config.a0_m2, weights=weights,
                                 vertical_resolution_m=max(config.dem_error_m, 0.0), n_boot=n_boot_theta,
                                 seed=config.seed)
     cell = float(np.max(dem.cell_size_m))
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
+    step("contrasts across the divide")
     points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
                            reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
                            relief_radius_m=config.relief_radius_m)
@@ -205,7 +211,7 @@ def _correlated_noise(shape: tuple[int, int], sigma: float, rng: np.random.Gener
     return smooth * (sigma / sd)
 
 
-def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn) -> tuple[list[dict], float]:
+def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, step=None) -> tuple[list[dict], float]:
     """Re-run on perturbed inputs; return each run and the share keeping the main verdict."""
     main = decide(core.contrasts).moves_toward
     theta = core.profiles.theta
@@ -224,7 +230,9 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn)
              (f"channel area × 2 = {threshold * 2:.3g} m²", {"area": threshold * 2})]
     quick = dataclasses.replace(config, n_bootstrap=max(100, config.n_bootstrap // 4))
     results = []
-    for label, change in runs:
+    for number, (label, change) in enumerate(runs, start=1):
+        if step is not None:
+            step(f"robustness re-run {number}/{len(runs)}: {label}")
         run_dem = dem
         flow = core.flow
         if "noise" in change:
@@ -394,6 +402,7 @@ def assess(
     runoff: np.ndarray | None = None,
     erodibility_raster: np.ndarray | None = None,
     uplift_raster: np.ndarray | None = None,
+    progress=None,
     **options,
 ) -> Assessment:
     """Assess whether the divide between two sides of a DEM is stable or moving.
@@ -407,6 +416,8 @@ def assess(
         SPEC points are longitude,latitude.
     runoff, erodibility_raster, uplift_raster : ndarray, optional
         Rasters on the DEM grid weighting χ (see :func:`divides.profiles.chi_weights`).
+    progress : callable, optional
+        Called with a short description as each stage starts.
     **options
         Any field of :class:`divides.config.AssessConfig` (``theta``, ``channel_area_m2``,
         ``reference_area_m2``, ``base_level_m``, ``dem_error_m``, ``erosion_rate_a_mm_yr`` …).
@@ -424,10 +435,13 @@ def assess(
         return chi_weights(flow, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster, n=config.n)
 
     core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
-                 channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100)
+                 channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100, step=progress)
     runs, share = ([], None)
     if config.robustness:
-        runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn)
+        runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn,
+                                  step=progress)
+    if progress is not None:
+        progress("verdict, rates, knickpoint arrival and the equilibrium divide")
     verdict = decide(core.contrasts, robustness_share=share)
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,

@@ -142,6 +142,9 @@ def resolve_side(flow: FlowGraph, spec: SideSpec, *, snap_radius_m: float | None
     dem = flow.dem
     rows, cols = dem.shape
     if spec.edge is not None:
+        if spec.edge in flow.conditioned.closed_edges:
+            raise SideError(f"side {spec.text!r} is a closed edge: nothing drains off it; give an open edge "
+                            "or points for this side")
         seeds = edge_outlets(flow, spec.edge)
         mask = _upstream_mask(flow, seeds)
         snapped = []

@@ -20,7 +20,7 @@ from typing import Annotated, NoReturn
 
 import typer
 
-from divides.cli import assess_cmd, demo_cmd, forecast_cmd, inspect_cmd
+from divides.cli import assess_cmd, demo_cmd, forecast_cmd, inspect_cmd, screen_cmd
 from divides.errors import DividesError, DividesWarning
 
 try:  # typer >= 0.2x ships its own copy of click
@@ -71,6 +71,7 @@ app.command(name="demo")(demo_cmd.demo)
 app.command(name="assess")(assess_cmd.assess)
 app.command(name="forecast")(forecast_cmd.forecast)
 app.command(name="inspect")(inspect_cmd.inspect)
+app.command(name="screen")(screen_cmd.screen)
 
 
 # ------------------------------------------------------------------ running

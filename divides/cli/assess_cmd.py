@@ -322,7 +322,9 @@ def run_assessment(
     robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
     progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
                    f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
-    result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters, **request.options)
+    result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
+                            progress=progress.step, **request.options)
+    progress.finish()
 
     progress.stage(f"writing the outputs to {out}")
     steps = iter(range(1, len(STAGES) + 1))

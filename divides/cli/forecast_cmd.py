@@ -21,53 +21,14 @@ from divides.errors import ParameterError
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
     from divides.model.forecast import Forecast
 
-__all__ = ["forecast", "parse_edges", "parse_theta", "geojson_divides", "forecast_png", "write_outputs",
+__all__ = ["forecast", "geojson_divides", "forecast_png", "write_outputs",
            "OUTPUT_FILES"]
 
 #: Files written into ``--out`` (the layer only when the DEM has a CRS). ``summary.json`` holds the
 #: headline and marks the folder as a `divides` output, which ``--overwrite`` may replace.
 OUTPUT_FILES = ("forecast.json", "summary.json", "layers/forecast_divide.geojson", "figures/forecast.png")
 
-_EDGES = ("north", "south", "east", "west")
 _DECIMALS = 7  # 1e-7 degree is about 1 cm on the ground
-
-def parse_edges(text: str | None) -> tuple[str, ...]:
-    """Parse ``--closed-edges north,south``.
-
-    Examples
-    --------
-    >>> parse_edges("North, south")
-    ('north', 'south')
-    """
-    if text is None or not text.strip():
-        return ()
-    edges = tuple(dict.fromkeys(p.strip().lower() for p in text.split(",") if p.strip()))
-    bad = [e for e in edges if e not in _EDGES]
-    if bad:
-        raise ParameterError(f"--closed-edges {text!r}: {', '.join(bad)} is not a DEM edge; give a comma list of "
-                             f"{', '.join(_EDGES)}")
-    if len(edges) == 4:
-        raise ParameterError(f"--closed-edges {text!r} closes every edge; at least one must stay open")
-    return edges
-
-
-def parse_theta(text: str | None) -> float | str | None:
-    """Parse ``--theta VALUE|auto`` (None keeps the assessment's default).
-
-    Examples
-    --------
-    >>> parse_theta("auto"), parse_theta("0.5")
-    ('auto', 0.5)
-    """
-    if text is None:
-        return None
-    if text.strip().lower() == "auto":
-        return "auto"
-    value = opt.parse_number(text, option="--theta", accepted="a concavity between 0 and 2, or 'auto'", positive=True)
-    if value > 2:
-        raise ParameterError(f"--theta {text!r} is not accepted; give a concavity between 0 and 2, or 'auto'")
-    return value
-
 
 _SIDE_HELP = "Side a: an edge (north, south, east, west) or points 'x,y;x,y'."
 _RATE_HELP = "Measured erosion rate of side {} (mm/yr), to calibrate K."
@@ -138,9 +99,9 @@ def forecast(
     uplift = opt.parse_choice(uplift, option="--uplift", choices=("uniform", "sides"))
     options: dict[str, Any] = {
         "erosion_rate_a_mm_yr": rate_a, "erosion_rate_b_mm_yr": rate_b, "erodibility": k,
-        "closed_edges": parse_edges(closed_edges),
+        "closed_edges": opt.parse_closed_edges(closed_edges),
     }
-    theta_v = parse_theta(theta)
+    theta_v = None if theta is None else opt.parse_theta(theta)
     if theta_v is not None:
         options["theta"] = theta_v
     n_v = _optional_number(n, "--n", "a slope exponent between 0.5 and 4")

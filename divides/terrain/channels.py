@@ -137,11 +137,12 @@ def suggest_channel_threshold(flow: FlowGraph) -> ThresholdChoice:
         return ThresholdChoice(found, "slope-area break", f"break in slope–area scaling at {found:.3g} m²")
     total = float(flow.dem.cell_area_grid().sum())
     value = float(np.clip(FALLBACK_THRESHOLD_M2, 50 * cell, max(50 * cell, 0.01 * total)))
+    value = min(value, max(cell, 0.05 * total))  # a tiny DEM still gets channels
     return ThresholdChoice(
         value,
         "fallback",
         f"no clear hillslope–channel break in slope–area data; using {value:.3g} m² "
-        f"(1 km² bounded to 50 cells … 1 % of the DEM)",
+        f"(1 km² bounded to 50 cells … 1 % of the DEM, and to at most 5 % of a small DEM)",
     )
 
 

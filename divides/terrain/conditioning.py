@@ -39,6 +39,8 @@ class Conditioned:
         Cells lowered by breaching (0 for ``"fill"``).
     carved_volume_m3 : float
         Volume removed by breaching.
+    closed_edges : tuple of str
+        Grid edges that were not outlets.
     """
 
     surface: np.ndarray
@@ -49,6 +51,7 @@ class Conditioned:
     filled_volume_m3: float = 0.0
     carved_cells: int = 0
     carved_volume_m3: float = 0.0
+    closed_edges: tuple = ()
 
     def summary(self) -> dict:
         """JSON-ready figures for reports."""
@@ -214,4 +217,5 @@ def condition(
         filled_volume_m3=float(filled_volume),
         carved_cells=carved_cells,
         carved_volume_m3=carved_volume,
+        closed_edges=tuple(closed_edges),
     )

@@ -125,6 +125,8 @@ def test_side_errors():
         xo, yo = dem.xy(*divmod(outlet, cols))
         xh, yh = dem.xy(*divmod(head, cols))
         resolve_sides(flow, parse_side(f"{xo},{yo}"), parse_side(f"{xh},{yh}"), snap_radius_m=0.0)
+    with pytest.raises(SideError, match="closed edge"):
+        resolve_side(route(dem, closed_edges=("west",)), parse_side("west"))
     with pytest.raises(ParameterError, match="snap radius"):
         resolve_side(flow, parse_side(f"{x},{y}"), snap_radius_m=-1.0)
     z = dem.elevation.copy()

@@ -104,7 +104,8 @@ def test_threshold_fallback_and_user_value():
     # A plane has no slope-area break: fall back to 1 km² bounded to 50 cells .. 1 % of the area.
     assert choice.source == "fallback"
     total = 40 * 40 * 900.0
-    assert choice.value_m2 == pytest.approx(np.clip(FALLBACK_THRESHOLD_M2, 50 * 900.0, max(50 * 900.0, 0.01 * total)))
+    expected = min(np.clip(FALLBACK_THRESHOLD_M2, 50 * 900.0, max(50 * 900.0, 0.01 * total)), 0.05 * total)
+    assert choice.value_m2 == pytest.approx(expected)
     net = extract_channels(flow, threshold_m2=5000.0)
     assert net.threshold.source == "user"
     for bad in (0.0, -5.0, float("nan")):

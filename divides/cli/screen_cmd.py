@@ -1,0 +1,152 @@
+"""``divides screen``: every divide of a DEM between basins above a minimum area, ranked by instability.
+
+Options are checked before the DEM is read and the output folder before any
+work; numpy, rasterio and numba are imported inside the function so that
+``divides --help`` stays fast.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Annotated
+
+import typer
+
+from divides.cli import options as opt
+from divides.cli.assess_cmd import (
+    ChannelAreaOption,
+    DemErrorOption,
+    ErodibilityRasterOption,
+    RunoffOption,
+    UpliftRasterOption,
+    _read_raster_on_grid,
+)
+from divides.errors import DemReadError
+
+__all__ = ["screen", "LEVEL_CHOICES"]
+
+#: Accepted ``--level`` values (``divides.terrain.basins.LEVELS``, repeated to keep --help light).
+LEVEL_CHOICES = ("tributaries", "outlets", "edges")
+
+MinBasinAreaOption = Annotated[
+    str | None,
+    typer.Option("--min-basin-area", metavar="M2", show_default=False,
+                 help="Smallest basin whose divides are screened (m²); default 5 × the channel area."),
+]
+LevelOption = Annotated[
+    str,
+    typer.Option("--level", metavar="LEVEL",
+                 help="Basins to compare: 'tributaries' (outlet basins split where two large branches join), "
+                 "'outlets' (one basin per outlet) or 'edges' (the land draining off each DEM edge)."),
+]
+MaxSegmentOption = Annotated[
+    str | None,
+    typer.Option("--max-segment", metavar="M", show_default=False,
+                 help="Cut longer divide segments into pieces of at most this length (m); default 100 cells."),
+]
+ScreenThetaOption = Annotated[
+    str,
+    typer.Option("--theta", metavar="VALUE", help="Concavity m/n for χ (a number; estimate it with "
+                 "'divides inspect')."),
+]
+WorkersOption = Annotated[
+    int | None,
+    typer.Option("--workers", min=1, metavar="N", show_default=False,
+                 help="Processes screening segments in parallel; default: every core."),
+]
+TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
+
+
+def screen(
+    dem: opt.DemArgument,
+    min_basin_area: MinBasinAreaOption = None,
+    level: LevelOption = "tributaries",
+    max_segment: MaxSegmentOption = None,
+    theta: ScreenThetaOption = "0.45",
+    channel_area: ChannelAreaOption = None,
+    dem_error: DemErrorOption = None,
+    runoff: RunoffOption = None,
+    erodibility: ErodibilityRasterOption = None,
+    uplift: UpliftRasterOption = None,
+    closed_edges: opt.ClosedEdgesOption = None,
+    workers: WorkersOption = None,
+    seed: opt.SeedOption = 0,
+    top: TopOption = 10,
+    out: opt.OutOption = None,
+    overwrite: opt.OverwriteOption = False,
+    json_output: opt.JsonOption = False,
+    quiet: opt.QuietOption = False,
+    band: opt.BandOption = None,
+    bounds: opt.BoundsOption = None,
+    vertical_unit: opt.VerticalUnitOption = "m",
+    cell_size: opt.CellSizeOption = None,
+    sea_level: opt.SeaLevelOption = None,
+    conditioning: opt.ConditioningOption = "fill",
+) -> None:
+    """Screen every divide of a DEM and rank the segments by instability.
+
+    Writes segments.geojson (RFC 7946), segments.csv, screening.json, a
+    regional map and report.html to --out, and lists the least stable
+    segments. A screening ranks where to look first: assess a divide of
+    interest with 'divides assess', and verify in the field; local codes and
+    licensed professionals decide.
+    \f
+    Exit codes: 0 done; 2 a bad input or option (one line on stderr, nothing
+    written); 1 an internal error.
+    """
+    read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    level = opt.parse_choice(level, option="--level", choices=LEVEL_CHOICES)
+    theta_value = opt.parse_bounded(theta, option="--theta", unit="(m/n)", low=0, high=2,
+                                    typical="0.35 to 0.6 in most rivers")
+    options = {
+        "theta": theta_value,
+        "channel_area_m2": opt.parse_bounded(channel_area, option="--channel-area", unit="m²", low=0,
+                                             high=float("inf"), typical="often 1e4 to 1e6 m²"),
+        "seed": seed, "conditioning": route.conditioning, "sea_level_m": route.sea_level,
+        "closed_edges": route.closed_edges,
+    }
+    if dem_error is not None:
+        options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
+                                                   low_inclusive=True)
+    min_area = opt.parse_bounded(min_basin_area, option="--min-basin-area", unit="m²", low=0, high=float("inf"))
+    max_len = opt.parse_bounded(max_segment, option="--max-segment", unit="m", low=0, high=float("inf"))
+    rasters = {}
+    for option, keyword, path in (("--runoff", "runoff", runoff), ("--erodibility", "erodibility_raster", erodibility),
+                                  ("--uplift", "uplift_raster", uplift)):
+        if path is not None:
+            try:
+                rasters[keyword] = (option, opt.check_dem_path(path))
+            except DemReadError as exc:
+                raise DemReadError(f"{option}: {str(exc).replace('DEM', 'raster')}") from None
+    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)
+    progress = opt.Progress(3, quiet=quiet)
+    with opt.quiet_warnings(quiet):
+        import divides
+        from divides.assess.screen import screen as run_screen
+
+        progress.stage(f"reading the DEM {read.path}")
+        dem_obj = divides.read_dem(read.path, **read.read_kwargs())
+        grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
+        progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
+        result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
+                            workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
+        progress.stage(f"writing the outputs to {folder}")
+        written = result.write(folder, overwrite=overwrite)
+    if json_output:
+        typer.echo(json.dumps(result.to_dict(), indent=2, allow_nan=False))
+        return
+    segs = result.segments
+    moving = sum(s["moves_toward_basin"] is not None for s in segs)
+    typer.echo(f"{len(segs)} divide segments between {int(result.labels.max())} basins; "
+               f"{moving} show evidence of motion.")
+    if segs and top:
+        typer.echo(f"{'rank':>4}  {'instab.':>7}  {'conf.':>5}  {'length m':>9}  {'basins':>11}  {'toward':>6}  bearing")
+        for s in segs[:top]:
+            toward = "-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"])
+            bearing = "-" if s["motion_azimuth_deg"] is None else f"{s['motion_azimuth_deg']:.0f}°"
+            typer.echo(f"{s['rank']:>4}  {s['instability']:7.2f}  {s['confidence']:5.2f}  {s['length_m']:9,.0f}  "
+                       f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
+    typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "
+               "professionals decide.")
+    typer.echo(f"Report:  {written / 'report.html'}")

@@ -1,0 +1,73 @@
+"""``divides screen`` through the command line."""
+
+from __future__ import annotations
+
+import csv
+import json
+from pathlib import Path
+
+import pytest
+
+from divides.cli.app import run
+
+UPLANDS = str(Path(__file__).resolve().parents[2] / "demo" / "uplands.tif")
+
+
+def test_screen_writes_the_contract_files_and_lists_segments(tmp_path, capsys):
+    out = tmp_path / "screen"
+    code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--top", "5"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert captured.err == ""  # --quiet: nothing on stderr
+    lines = captured.out.splitlines()
+    assert lines[0].endswith("show evidence of motion.")
+    assert sum(1 for line in lines if line[:4].strip().isdigit()) == 5  # the --top rows
+    assert "licensed professionals" in captured.out
+    for name in ("segments.geojson", "segments.csv", "screening.json", "report.html", "figures/regional_map.png"):
+        assert (out / name).is_file(), name
+    with open(out / "segments.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    first = lines[0].split()[0]
+    assert len(rows) == int(first)  # "N divide segments between ..." counts the CSV rows
+
+
+def test_screen_json_is_strict(tmp_path, capsys):
+    code = run(["screen", UPLANDS, "--out", str(tmp_path / "s"), "--quiet", "--json", "--level", "outlets"])
+    captured = capsys.readouterr()
+    assert code == 0
+    doc = json.loads(captured.out, parse_constant=lambda c: pytest.fail(f"non-strict JSON constant {c}"))
+    assert doc["schema"] == "divides.screening/1"
+    assert doc["parameters"]["level"] == "outlets"
+    assert [s["rank"] for s in doc["segments"]] == list(range(1, len(doc["segments"]) + 1))
+
+
+@pytest.mark.parametrize(
+    ("extra", "needle"),
+    [
+        (["--level", "valleys"], "--level"),
+        (["--theta", "auto"], "--theta"),
+        (["--theta", "-1"], "--theta"),
+        (["--max-segment", "-5"], "--max-segment"),
+        (["--min-basin-area", "abc"], "--min-basin-area"),
+        (["--runoff", "missing.tif"], "--runoff"),
+    ],
+)
+def test_bad_options_exit_2_with_one_line_and_nothing_written(tmp_path, capsys, extra, needle):
+    out = tmp_path / "never"
+    code = run(["screen", UPLANDS, "--out", str(out), *extra])
+    captured = capsys.readouterr()
+    assert code == 2
+    lines = captured.err.strip().splitlines()
+    assert len(lines) == 1 and needle in lines[0] and "Traceback" not in captured.err
+    assert not out.exists()
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_existing_output_folder_is_refused(tmp_path, capsys):
+    out = tmp_path / "s"
+    out.mkdir()
+    (out / "keep.txt").write_text("mine")
+    code = run(["screen", UPLANDS, "--out", str(out), "--quiet"])
+    captured = capsys.readouterr()
+    assert code == 2 and len(captured.err.strip().splitlines()) == 1
+    assert (out / "keep.txt").read_text() == "mine"
