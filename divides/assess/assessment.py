@@ -9,7 +9,7 @@ import numpy as np
 from scipy import ndimage
 
 from divides._jsonable import to_jsonable
-from divides.assess.contrasts import Contrast, block_bootstrap_mean, compute_contrasts, unique_points
+from divides.assess.contrasts import SPREAD_RATIO, Contrast, block_bootstrap_mean, compute_contrasts, unique_points
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, sample_divide
 from divides.assess.rate import PLAUSIBLE_MM_PER_YR, Calibration, calibrate, migration_rate, step_celerity
@@ -362,7 +362,12 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
         if not np.isfinite(c.difference):
             lines.append(f"- {c.metric.replace('_', ' ')}: not enough points on both sides.")
             continue
-        sense = "no significant difference" if c.moves_toward == "none" else f"points toward side {c.moves_toward}"
+        sense = {
+            "interval spans zero": "no significant difference",
+            "too small": "a difference too small to count",
+            "not consistent along the divide": "a difference that does not hold along the divide "
+                                               f"(mean {c.consistency:.1f} × its spread; {SPREAD_RATIO:g} needed)",
+        }.get(c.why_none, "no usable difference") if c.moves_toward == "none" else f"points toward side {c.moves_toward}"
         lines.append(f"- {c.metric.replace('_', ' ')}: a {_fmt(c.a, c.unit)}, b {_fmt(c.b, c.unit)}, "
                      f"difference {_fmt(c.difference, c.unit)} (95 % interval {_fmt(c.ci95[0], c.unit)} to "
                      f"{_fmt(c.ci95[1], c.unit)}); {sense} (rule: divide moves toward {c.rule}).")

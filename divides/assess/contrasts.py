@@ -8,7 +8,7 @@ import numpy as np
 
 from divides.assess.points import METRICS, DividePoints
 
-__all__ = ["Contrast", "PRACTICAL_SHARE", "SPREAD_RATIO", "compute_contrasts", "block_bootstrap_mean", "unique_points"]
+__all__ = ["Contrast", "PRACTICAL_SHARE", "SPREAD_RATIO", "LARGE_SHARE", "compute_contrasts", "block_bootstrap_mean", "unique_points"]
 
 
 @dataclass(frozen=True)
@@ -33,6 +33,9 @@ class Contrast:
         Which side the divide moves toward, e.g. "higher χ".
     consistency : float
         |mean difference| / its standard deviation along the divide.
+    why_none : str
+        When ``moves_toward`` is "none": "interval spans zero", "too small",
+        "not consistent along the divide" or "too few points"; else "".
     """
 
     metric: str
@@ -45,6 +48,7 @@ class Contrast:
     n_points: int
     rule: str
     consistency: float = float("nan")
+    why_none: str = ""
 
     def to_dict(self) -> dict:
         """JSON-ready form (the ``contrasts`` entries of summary.json)."""
@@ -53,7 +57,7 @@ class Contrast:
         return {"metric": self.metric, "unit": self.unit, "a": f(self.a), "b": f(self.b),
                 "difference": f(self.difference), "ci95": [f(self.ci95[0]), f(self.ci95[1])],
                 "moves_toward": self.moves_toward, "n_points": self.n_points, "rule": self.rule,
-                "consistency": f(self.consistency)}
+                "consistency": f(self.consistency), "why_none": self.why_none}
 
 
 def block_bootstrap_mean(values: np.ndarray, *, block: int, n_boot: int, rng: np.random.Generator) -> np.ndarray:
@@ -102,6 +106,11 @@ PRACTICAL_SHARE = 0.05
 #: Schwanghart 2020), while moving divides in the validation scenarios show ratios of 2-12.
 SPREAD_RATIO = 2.0
 
+#: A large difference (at least this share of the metric's size) needs only to exceed its
+#: spread once (consistency >= 1) instead of SPREAD_RATIO times: a strong asymmetry can vary
+#: along a real divide and still be evidence.
+LARGE_SHARE = 0.25
+
 
 def compute_contrasts(
     points: DividePoints,
@@ -121,8 +130,9 @@ def compute_contrasts(
     lower relief, lower hillslope relief) and is ``"none"`` when the interval
     spans zero, the difference is below :data:`PRACTICAL_SHARE` of the
     metric's mean size (for channel elevation: of its height above the
-    common base level), or it is smaller than :data:`SPREAD_RATIO` times its
-    spread along the divide.
+    common base level), or it does not hold along the divide: it must be at
+    least :data:`SPREAD_RATIO` times its spread, or at least its spread when
+    it is large (:data:`LARGE_SHARE` of the metric's size or more).
     """
     rng = np.random.default_rng(seed)
     out = []
@@ -131,7 +141,8 @@ def compute_contrasts(
         va, vb = points.values[metric]
         label = f"{rule} {'χ' if metric == 'chi' else metric.replace('_', ' ')}"
         if idx.size < min_points:
-            out.append(Contrast(metric, unit, np.nan, np.nan, np.nan, (np.nan, np.nan), "none", int(idx.size), label))
+            out.append(Contrast(metric, unit, np.nan, np.nan, np.nan, (np.nan, np.nan), "none", int(idx.size), label,
+                                why_none="too few points"))
             continue
         a, b = va[idx], vb[idx]
         diff = a - b
@@ -144,12 +155,17 @@ def compute_contrasts(
         scale = 0.5 * (abs(float(a.mean()) - offset) + abs(float(b.mean()) - offset))
         spread = float(diff.std())
         consistency = abs(mean) / spread if spread > 0 else (np.inf if mean != 0 else 0.0)
-        if (lo > 0 or hi < 0) and abs(mean) >= PRACTICAL_SHARE * scale and consistency >= SPREAD_RATIO:
+        why = ("interval spans zero" if not (lo > 0 or hi < 0)
+               else "too small" if abs(mean) < PRACTICAL_SHARE * scale
+               else "not consistent along the divide"
+               if consistency < SPREAD_RATIO and not (consistency >= 1.0 and abs(mean) >= LARGE_SHARE * scale)
+               else "")
+        if not why:
             higher = "a" if mean > 0 else "b"
             lower = "b" if higher == "a" else "a"
             toward = higher if rule == "higher" else lower
         else:
             toward = "none"
         out.append(Contrast(metric, unit, float(a.mean()), float(b.mean()), mean, (lo, hi), toward,
-                            int(idx.size), label, float(consistency)))
+                            int(idx.size), label, float(consistency), why))
     return out
