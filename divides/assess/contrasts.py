@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from divides.assess.points import METRICS, DividePoints
+from divides.assess.points import METRICS, MIN_FACING, DividePoints
 
 __all__ = ["Contrast", "PRACTICAL_SHARE", "SPREAD_RATIO", "LARGE_SHARE", "compute_contrasts", "block_bootstrap_mean", "unique_points"]
 
@@ -75,14 +75,15 @@ def block_bootstrap_mean(values: np.ndarray, *, block: int, n_boot: int, rng: np
 
 
 def unique_points(points: DividePoints, metric: str) -> np.ndarray:
-    """Indices of points kept for a metric: finite on both sides, one per distinct pair of source cells.
+    """Indices of points kept for a metric: finite on both sides, facing the divide from both sides
+    (:data:`divides.assess.points.MIN_FACING`), one per distinct pair of source cells.
 
     Neighbouring divide points often drain to the same channel head (χ, hillslope
     relief) or reference cell (the other metrics); counting each pair once keeps
     the bootstrap from treating copies as independent evidence.
     """
     va, vb = points.values[metric]
-    ok = np.isfinite(va) & np.isfinite(vb)
+    ok = np.isfinite(va) & np.isfinite(vb) & (points.facing >= MIN_FACING)
     if metric in ("chi", "hillslope_relief"):
         key_a, key_b = points.head_a, points.head_b
     else:

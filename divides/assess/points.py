@@ -11,8 +11,15 @@ from divides.assess import _assess_kernels as _k
 from divides.terrain.divide_lines import Divide
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["DividePoints", "UpstreamMean", "NearDivideFields", "near_divide_fields", "sample_divide",
+__all__ = ["MIN_FACING", "DividePoints", "UpstreamMean", "NearDivideFields", "near_divide_fields", "sample_divide",
            "upstream_mean", "gradient_magnitude", "local_relief", "METRICS"]
+
+#: Points whose two sides do not both drain away from the divide (cosine between the normal
+#: and the way to each side's reference channel below this) are left out of the contrasts:
+#: near-divide metrics compare channels heading at the divide from opposite sides (Forte &
+#: Whipple 2018), not channels running alongside it, as on the lower reaches of a divide
+#: between two neighbouring basins that drain the same way.
+MIN_FACING = 0.5
 
 #: Metric name -> (unit, which side the divide moves toward).
 #: Willett et al. (2014) for χ; Forte & Whipple (2018) for the near-divide metrics;
@@ -119,6 +126,11 @@ class DividePoints:
         Metric name -> (values on side a, values on side b), one per point (NaN when unavailable).
     normal : ndarray, shape (N, 2)
         Unit normal (dx, dy in metres, east and north) pointing from side a into side b.
+    facing : ndarray
+        How squarely both sides drain away from the divide at the point: the smaller of
+        the cosines between the normal and the directions from the point to each side's
+        reference cell (1 = straight away on both sides; 0 or less = along or across the
+        divide). See :data:`MIN_FACING`.
     """
 
     x: np.ndarray
@@ -133,6 +145,7 @@ class DividePoints:
     ref_a: np.ndarray
     ref_b: np.ndarray
     normal: np.ndarray
+    facing: np.ndarray
     values: dict = field(default_factory=dict)
 
     @property
@@ -233,8 +246,22 @@ def sample_divide(
     values["hillslope_gradient"] = (fields.gradient(refs["a"]), fields.gradient(refs["b"]))
     values["local_relief"] = (fields.relief(refs["a"]), fields.relief(refs["b"]))
     values["hillslope_relief"] = (cat["z"] - at(z, heads["a"]), cat["z"] - at(z, heads["b"]))
+    normal = np.column_stack([cat["nx"], cat["ny"]])
+    facing = np.full(cat["row"].size, -1.0)
+    cosines = []
+    for sign, refs_s in ((-1.0, refs["a"]), (1.0, refs["b"])):
+        ok = refs_s >= 0
+        rr, cc = np.divmod(np.where(ok, refs_s, 0), dem.shape[1])
+        rows_i = np.clip(np.round(cat["row"]).astype(int), 0, dem.shape[0] - 1)
+        east = (cc - cat["col"]) * dem.dx[rows_i]
+        north = -(rr - cat["row"]) * dem.dy[rows_i]
+        length = np.hypot(east, north)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cos = sign * (east * normal[:, 0] + north * normal[:, 1]) / length
+        cosines.append(np.where(ok & (length > 0), cos, -1.0))
+    facing = np.minimum(cosines[0], cosines[1])
     return DividePoints(
         x=np.asarray(x), y=np.asarray(y), line=cat["line"], distance_m=cat["dist"], elevation_m=cat["z"],
         cell_a=cat["ca"], cell_b=cat["cb"], head_a=heads["a"], head_b=heads["b"], ref_a=refs["a"],
-        ref_b=refs["b"], normal=np.column_stack([cat["nx"], cat["ny"]]), values=values,
+        ref_b=refs["b"], normal=normal, facing=facing, values=values,
     )

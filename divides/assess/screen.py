@@ -11,7 +11,7 @@ import numpy as np
 
 from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
-from divides.assess.points import near_divide_fields, sample_divide
+from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.sides import BaseLevel
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
@@ -27,7 +27,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES"]
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                      "motion_azimuth_deg", "verdict", "basis", "n_points", "mean_chi_a", "mean_chi_b")
+                      "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b")
 
 
 @dataclass(eq=False)
@@ -157,7 +157,7 @@ def _assess_pair(task: tuple) -> list[dict]:
 
 def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "verdict": "undetermined", "basis": why, "confidence": 0.0, "instability": 0.0,
-            "moves_toward": "none", "normal": (0.0, 0.0), "n_points": 0, "contrasts": [],
+            "moves_toward": "none", "normal": (0.0, 0.0), "n_points": 0, "facing_share": 0.0, "contrasts": [],
             "mean_chi_a": None, "mean_chi_b": None}
 
 
@@ -180,6 +180,9 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
     return {"seg": seg, "verdict": toward, "basis": verdict.basis, "confidence": verdict.confidence,
             "instability": float(instability), "moves_toward": toward, "normal": tuple(mean_normal),
             "n_points": int(pts.size), "contrasts": [c.to_dict() for c in contrasts],
+            # share of points where both sides drain away from the divide: low on divides between
+            # neighbouring basins that drain the same way, where metrics are less telling
+            "facing_share": float(np.mean(pts.facing >= MIN_FACING)) if pts.size else 0.0,
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
 
 
@@ -280,6 +283,7 @@ def screen(
             "moves_toward_basin": victim,
             "motion_azimuth_deg": _azimuth(r["normal"]) if moving and any(r["normal"]) else None,
             "verdict": r["verdict"], "basis": r["basis"], "n_points": r["n_points"],
+            "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "line": seg.line,
         })

@@ -28,7 +28,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 __all__ = ["write_screening", "segment_features", "segment_rows", "regional_map"]
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "x_mid", "y_mid")
+            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "x_mid", "y_mid")
 
 
 def segment_rows(result: Screening) -> list[dict]:
@@ -43,7 +43,7 @@ def segment_rows(result: Screening) -> list[dict]:
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
-            "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
+            "facing_share": round(float(s["facing_share"]), 3), "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
 
@@ -55,7 +55,7 @@ def segment_features(result: Screening) -> list[dict]:
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
         props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                                   "motion_azimuth_deg", "verdict", "basis", "n_points")}
+                                   "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share")}
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
