@@ -114,6 +114,8 @@ class Assessment:
                 "theta": {"value": self.profiles.theta, "ci95": list(theta_ci),
                           "method": self.profiles.theta_source},
                 "ksn": {"a": self.profiles.median_ksn("a"), "b": self.profiles.median_ksn("b")},
+                "ksn_slope_area": {"a": self.profiles.median_ksn("a", source="slope_area"),
+                                   "b": self.profiles.median_ksn("b", source="slope_area")},
                 "concavity": {k: v.to_dict() for k, v in self.profiles.concavity.items()},
                 "n_streams": len(self.profiles.streams),
             },

@@ -94,10 +94,14 @@ class ProfileAnalysis:
     n_candidate_breaks: int = 0
     weights: dict = field(default_factory=dict)
 
-    def median_ksn(self, side: str) -> float:
-        """Median ksn over the side's channel cells (NaN if none)."""
-        sel = (self.side == (1 if side == "a" else 2)) & np.isfinite(self.ksn)
-        return float(np.median(self.ksn[sel])) if sel.any() else float("nan")
+    def median_ksn(self, side: str, *, source: str = "segments") -> float:
+        """Median ksn over the side's channel cells (NaN if none).
+
+        ``source="segments"`` (the χ–z fits) or ``"slope_area"`` (smoothed S · A^θ, for comparison).
+        """
+        values = self.ksn if source == "segments" else self.ksn_slope_area
+        sel = (self.side == (1 if side == "a" else 2)) & np.isfinite(values)
+        return float(np.median(values[sel])) if sel.any() else float("nan")
 
     def grid(self, values: np.ndarray) -> np.ndarray:
         """A per-channel-cell array put on the DEM grid (NaN off the channels)."""
@@ -112,6 +116,8 @@ class ProfileAnalysis:
             "theta": {"value": self.theta, "source": self.theta_source,
                       **{k: v.to_dict() for k, v in self.concavity.items()}},
             "ksn": {"a": _none(self.median_ksn("a")), "b": _none(self.median_ksn("b"))},
+            "ksn_slope_area": {"a": _none(self.median_ksn("a", source="slope_area")),
+                               "b": _none(self.median_ksn("b", source="slope_area"))},
             "n_streams": len(self.streams),
             "n_knickpoints": len(self.knickpoints),
             "n_candidate_breaks": self.n_candidate_breaks,

@@ -40,6 +40,11 @@ def test_real_dem_sides_run_to_completion(jacksboro):
     summary = result.summary()
     assert summary["theta"]["source"] in ("collinearity", "reference")
     assert summary["ksn"]["a"] > 0 and summary["ksn"]["b"] > 0
+    # two independent estimates of steepness at the reference concavity, χ-z segments and smoothed
+    # slope-area (Wobus et al. 2006 describe both), agree on a real DEM within 30 %
+    reference = analyse_profiles(channels, sides, base, theta=0.45, n_boot=0).summary()
+    for side in ("a", "b"):
+        assert reference["ksn_slope_area"][side] == pytest.approx(reference["ksn"][side], rel=0.3)
     # per-cell arrays line up with the channel cells; χ only where kept
     kept = base.kept_a | base.kept_b
     assert np.all(np.isfinite(result.chi[kept])) and np.all(np.isnan(result.chi[~kept]))
