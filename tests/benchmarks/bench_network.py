@@ -11,10 +11,6 @@ Each size runs in a fresh subprocess; prints seconds and peak memory.
 
 from __future__ import annotations
 
-import argparse
-import json
-import resource
-import subprocess
 import sys
 import time
 from pathlib import Path
@@ -22,6 +18,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).parent))
+from _harness import peak_rss_mb, sweep  # noqa: E402
 from bench_flow import fractal_dem  # noqa: E402
 
 
@@ -59,26 +56,14 @@ def run_one(n: int) -> dict:
         "network_s": round(times["network"], 3),
         "channel_cells": channels.size,
         "divide_km": round(divide.length_m / 1000, 2),
-        "peak_rss_mb": round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024),
+        "peak_rss_mb": peak_rss_mb(),
     }
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 2000, 4000])
-    parser.add_argument("--one", type=int, help=argparse.SUPPRESS)
-    args = parser.parse_args()
-    if args.one:
-        print(json.dumps(run_one(args.one)))
-        return
-    for n in args.sizes:
-        out = subprocess.run([sys.executable, __file__, "--one", str(n)], capture_output=True, text=True, check=True)
-        r = json.loads(out.stdout.strip().splitlines()[-1])
-        print(
-            f"{r['n']:>5}²  channels+sides+divide {r['network_s']:6.2f} s (routing {r['route_s']:.2f} s)  "
-            f"{r['channel_cells']} channel cells, divide {r['divide_km']} km, peak RSS {r['peak_rss_mb']} MB"
-        )
+def _row(r: dict) -> str:
+    return (f"{r['n']:>5}²  channels+sides+divide {r['network_s']:6.2f} s (routing {r['route_s']:.2f} s)  "
+            f"{r['channel_cells']} channel cells, divide {r['divide_km']} km, peak RSS {r['peak_rss_mb']} MB")
 
 
 if __name__ == "__main__":
-    main()
+    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000])

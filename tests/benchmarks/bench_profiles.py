@@ -10,15 +10,12 @@ knickpoint detection — i.e. ``analyse_profiles(theta="auto")``.
 
 from __future__ import annotations
 
-import argparse
-import json
-import resource
-import subprocess
 import sys
 import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).parent))
+from _harness import peak_rss_mb, sweep  # noqa: E402
 from bench_network import ridge_dem  # noqa: E402
 
 
@@ -41,24 +38,14 @@ def run_one(n: int) -> dict:
     return {
         "n": n, "seconds": round(seconds, 2), "channel_cells": channels.size, "streams": len(result.streams),
         "knickpoints": len(result.knickpoints), "theta": result.theta,
-        "peak_rss_mb": round(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024),
+        "peak_rss_mb": peak_rss_mb(),
     }
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 2000, 4000])
-    parser.add_argument("--one", type=int, help=argparse.SUPPRESS)
-    args = parser.parse_args()
-    if args.one:
-        print(json.dumps(run_one(args.one)))
-        return
-    for n in args.sizes:
-        out = subprocess.run([sys.executable, __file__, "--one", str(n)], capture_output=True, text=True, check=True)
-        r = json.loads(out.stdout.strip().splitlines()[-1])
-        print(f"{r['n']:>5}²  profiles {r['seconds']:6.2f} s  {r['channel_cells']} channel cells, "
-              f"{r['streams']} streams, {r['knickpoints']} knickpoints, θ={r['theta']}, peak RSS {r['peak_rss_mb']} MB")
+def _row(r: dict) -> str:
+    return (f"{r['n']:>5}²  profiles {r['seconds']:6.2f} s  {r['channel_cells']} channel cells, "
+            f"{r['streams']} streams, {r['knickpoints']} knickpoints, θ={r['theta']}, peak RSS {r['peak_rss_mb']} MB")
 
 
 if __name__ == "__main__":
-    main()
+    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000])

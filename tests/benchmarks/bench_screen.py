@@ -9,15 +9,13 @@ JIT warm-up on a small grid. Each size runs in a fresh subprocess.
 
 from __future__ import annotations
 
-import argparse
-import json
 import resource
-import subprocess
 import sys
 import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).parent))
+from _harness import sweep  # noqa: E402
 from bench_network import ridge_dem  # noqa: E402
 
 
@@ -38,22 +36,10 @@ def run_one(n: int, level: str) -> dict:
             "peak_rss_mb": round(max(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss, children) / 1024)}
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 2000, 4000])
-    parser.add_argument("--level", default="tributaries")
-    parser.add_argument("--one", type=int, help=argparse.SUPPRESS)
-    args = parser.parse_args()
-    if args.one:
-        print(json.dumps(run_one(args.one, args.level)))
-        return
-    for n in args.sizes:
-        out = subprocess.run([sys.executable, __file__, "--one", str(n), "--level", args.level],
-                             capture_output=True, text=True, check=True)
-        r = json.loads(out.stdout.strip().splitlines()[-1])
-        print(f"{r['n']:>5}²  screen {r['seconds']:7.1f} s  {r['basins']} basins, {r['segments']} segments "
-              f"({r['directed']} with a direction), peak RSS {r['peak_rss_mb']} MB (largest process)")
+def _row(r: dict) -> str:
+    return (f"{r['n']:>5}²  screen {r['seconds']:7.1f} s  {r['basins']} basins, {r['segments']} segments "
+            f"({r['directed']} with a direction), peak RSS {r['peak_rss_mb']} MB (largest process)")
 
 
 if __name__ == "__main__":
-    main()
+    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000], extra={"level": "tributaries"})
