@@ -159,6 +159,15 @@ class _Core:
     reference_area_m2: float
     block_points: int
 
+    @property
+    def same_channel(self) -> bool:
+        """Channel elevation is read at the channel threshold (it then mirrors hillslope relief)."""
+        return bool(np.isclose(self.reference_area_m2, self.channels.threshold.value_m2))
+
+    def decide(self, robustness_share: float | None = None) -> Verdict:
+        """The verdict of this pass (see :func:`divides.assess.verdict.decide`)."""
+        return decide(self.contrasts, robustness_share=robustness_share, same_channel=self.same_channel)
+
 
 def _core(
     dem: Dem,
@@ -215,7 +224,7 @@ def _correlated_noise(shape: tuple[int, int], sigma: float, rng: np.random.Gener
 
 def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, step=None) -> tuple[list[dict], float]:
     """Re-run on perturbed inputs; return each run and the share keeping the main verdict."""
-    main = decide(core.contrasts).moves_toward
+    main = core.decide().moves_toward
     theta = core.profiles.theta
     est = core.profiles.concavity.get("both")
     if core.profiles.theta_source == "collinearity" and est is not None and np.all(np.isfinite(est.ci95)):
@@ -245,7 +254,7 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
             run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
                         channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
                         flow=flow)
-            verdict = decide(run.contrasts).moves_toward
+            verdict = run.decide().moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"
         results.append({"change": label, "moves_toward": verdict, "kept": verdict == main})
@@ -338,7 +347,7 @@ def _fmt(v: float, unit: str) -> str:
 
 
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
-          equilibrium: EquilibriumDivide, cal: Calibration) -> str:
+          equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False) -> str:
     names = {"a": f"side a ({sides.a.spec.text})", "b": f"side b ({sides.b.spec.text})"}
     by = {c.metric: c for c in contrasts}
     lines = []
@@ -349,7 +358,11 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
             lines.append(f"The divide is moving toward {names[victim]}: {names[aggressor]} is the aggressor, "
                          f"eroding headward into {names[victim]} (confidence {verdict.confidence:.2f}, {strength}).")
             lines.append(f"{len(verdict.agreeing)} of 4 near-divide measures agree"
-                         + (f" and {len(verdict.disagreeing)} disagree" if verdict.disagreeing else "") + ".")
+                         + (f" and {len(verdict.disagreeing)} disagree" if verdict.disagreeing else "") + "."
+                         + (" Channel elevation and hillslope relief are read at the same channel cells here, "
+                            "so together they count as one piece of evidence."
+                            if same_channel and {"channel_elevation", "hillslope_relief"} <= set(verdict.agreeing)
+                            else ""))
         else:
             lines.append(f"No near-divide measure shows present motion, but χ points toward {names[victim]}: "
                          f"a long-run tendency for {names[aggressor]} to gain ground "
@@ -449,12 +462,12 @@ def assess(
                                   step=progress)
     if progress is not None:
         progress("verdict, rates, knickpoint arrival and the equilibrium divide")
-    verdict = decide(core.contrasts, robustness_share=share)
+    verdict = core.decide(share)
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
-                                                      equilibrium, cal))
+                                                      equilibrium, cal, same_channel=core.same_channel))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,

@@ -148,7 +148,8 @@ def _assess_pair(task: tuple) -> list[dict]:
                 continue
             contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=base,
                                           seed=config.seed)
-            verdict = decide(contrasts)  # no robustness re-runs per segment: unverified (x 0.8)
+            # no robustness re-runs per segment: unverified (x 0.8)
+            verdict = decide(contrasts, same_channel=bool(np.isclose(st["reference"], channels.threshold.value_m2)))
             out.append(_row(seg, pts, contrasts, verdict))
     finally:
         scratch[cells] = np.nan

@@ -64,7 +64,22 @@ def _other(side: str) -> str:
     return "b" if side == "a" else "a"
 
 
-def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) -> Verdict:
+def _vote_groups(same_channel: bool) -> list[tuple[str, ...]]:
+    """Near-divide metrics grouped into independent votes.
+
+    When channel elevation is read at the channel threshold itself, it and the
+    hillslope relief (divide elevation minus the same channel cell) are one
+    measurement seen twice — their differences across the divide are equal
+    and opposite point by point — so they cast a single vote.
+    """
+    if same_channel:
+        return [("channel_elevation", "hillslope_relief"), ("hillslope_gradient",), ("local_relief",)]
+    return [(name,) for name in NEAR_DIVIDE_METRICS]
+
+
+def decide(
+    contrasts: list[Contrast], *, robustness_share: float | None = None, same_channel: bool = False
+) -> Verdict:
     """Combine the contrasts by the documented rule.
 
     Rule
@@ -80,10 +95,13 @@ def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) 
        long-run tendency only, with a low confidence.
     4. If nothing is significant, the divide is ``"stable"``.
 
+    Metrics that measure the same thing vote once (see ``same_channel``).
+
     Confidence
     ----------
-    Direction from near-divide metrics: 0.35 + 0.15 per agreeing metric
-    − 0.15 per disagreeing one, +0.05 if χ agrees, −0.15 if χ disagrees;
+    Direction from near-divide metrics: 0.35 + w per agreeing vote − w per
+    disagreeing one, with w = 0.6 / (number of votes) (0.15 for four
+    independent metrics, 0.2 for three), +0.05 if χ agrees, −0.15 if χ disagrees;
     χ alone: 0.4; stable: 0.7; undetermined: 0. The result, kept in 0–0.97,
     is multiplied by the share of robustness re-runs that kept the same
     verdict (by 0.8 when robustness was not checked), so a verdict that a
@@ -92,26 +110,31 @@ def decide(contrasts: list[Contrast], *, robustness_share: float | None = None) 
     by_name = {c.metric: c for c in contrasts}
     chi = by_name.get("chi")
     long_run = chi.moves_toward if chi is not None else "none"
-    votes = {"a": [], "b": []}
-    for name in NEAR_DIVIDE_METRICS:
-        c = by_name.get(name)
-        if c is not None and c.moves_toward in votes:
-            votes[c.moves_toward].append(name)
+    votes = {"a": [], "b": []}  # lists of the metric groups voting each way
+    groups = _vote_groups(same_channel)
+    for group in groups:
+        ways = {by_name[n].moves_toward for n in group if n in by_name} - {"none"}
+        if len(ways) == 1:  # members that point agree (a split group abstains)
+            way = ways.pop()
+            votes[way].append(tuple(n for n in group if by_name[n].moves_toward == way))
+    weight = 0.6 / len(groups)
     n_a, n_b = len(votes["a"]), len(votes["b"])
     if n_a or n_b:
         major = "a" if n_a > n_b else "b"
         n_major, n_minor = max(n_a, n_b), min(n_a, n_b)
         if n_minor == 0 or n_major >= 3 * n_minor:
-            score = 0.35 + 0.15 * n_major - 0.15 * n_minor
+            score = 0.35 + weight * n_major - weight * n_minor
             if long_run == major:
                 score += 0.05
             elif long_run == _other(major):
                 score -= 0.15
             toward, basis = major, "near-divide"
-            agreeing, disagreeing = tuple(votes[major]), tuple(votes[_other(major)])
+            agreeing = tuple(n for g in votes[major] for n in g)
+            disagreeing = tuple(n for g in votes[_other(major)] for n in g)
         else:
             toward, basis, score = "undetermined", "conflict", 0.0
-            agreeing, disagreeing = tuple(votes["a"]), tuple(votes["b"])
+            agreeing = tuple(n for g in votes["a"] for n in g)
+            disagreeing = tuple(n for g in votes["b"] for n in g)
     elif long_run in ("a", "b") and abs(chi.difference) >= CHI_ONLY_SHARE * 0.5 * (abs(chi.a) + abs(chi.b)):
         toward, basis, score, agreeing, disagreeing = long_run, "chi", 0.4, (), ()
     else:

@@ -93,3 +93,25 @@ def test_config_validation():
             AssessConfig(**bad)
     with pytest.raises(ParameterError, match="unknown option"):
         AssessConfig.from_options(thetaa=0.5)
+
+
+def test_channel_elevation_and_hillslope_relief_vote_once_when_read_at_the_same_cells():
+    # Divide elevation = channel elevation + hillslope relief (Scherler & Schwanghart 2020's
+    # definition) when both are read at the first channel cell: one measurement, one vote.
+    import divides
+
+    dem = divides.read_dem("demo/uplands.tif")
+    result = divides.assess(dem, "west", "east", closed_edges=("north", "south"), robustness=False,
+                            n_bootstrap=100)
+    pts = result.points
+    ce_a, ce_b = pts.values["channel_elevation"]
+    hr_a, hr_b = pts.values["hillslope_relief"]
+    ok = np.isfinite(ce_a + ce_b + hr_a + hr_b)
+    np.testing.assert_allclose((ce_a - ce_b)[ok], -(hr_a - hr_b)[ok], atol=1e-3)
+    pair = [_c("channel_elevation", "b"), _c("hillslope_relief", "b"), _c("hillslope_gradient", "none"),
+            _c("local_relief", "none"), _c("chi", "none")]
+    once = decide(pair, robustness_share=1.0, same_channel=True)
+    twice = decide(pair, robustness_share=1.0, same_channel=False)
+    assert once.moves_toward == twice.moves_toward == "b"
+    assert once.confidence == pytest.approx(0.35 + 0.2)  # one vote of three
+    assert twice.confidence == pytest.approx(0.35 + 2 * 0.15)  # two votes of four
