@@ -22,7 +22,7 @@ if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
     from divides.io.dem import Dem
 
-__all__ = ["assess", "AssessRequest", "assess_request", "run_assessment", "print_result", "RASTER_OPTIONS"]
+__all__ = ["assess", "AssessRequest", "assess_request", "check_raster_paths", "run_assessment", "print_result", "RASTER_OPTIONS"]
 
 #: Rasters on the DEM grid that weight χ: option name -> keyword of :func:`divides.assess`.
 RASTER_OPTIONS = {"--runoff": "runoff", "--erodibility": "erodibility_raster", "--uplift": "uplift_raster"}
@@ -214,15 +214,20 @@ def assess_request(
                                  "give an open edge or points for that side, or leave that edge open")
     options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges)
     options = {key: value for key, value in options.items() if value is not None}
+    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift)
+    return AssessRequest(side_a=side_a, side_b=side_b, lonlat=lonlat, options=options, rasters=rasters)
+
+
+def check_raster_paths(*, runoff: str | None, erodibility: str | None, uplift: str | None) -> dict:
+    """Check the χ-weighting raster paths; return keyword of :func:`divides.assess` -> (option, path)."""
     rasters = {}
-    for option, keyword, path in (("--runoff", "runoff", runoff), ("--erodibility", "erodibility_raster", erodibility),
-                                  ("--uplift", "uplift_raster", uplift)):
+    for option, path in (("--runoff", runoff), ("--erodibility", erodibility), ("--uplift", uplift)):
         if path is not None:
             try:
-                rasters[keyword] = (option, opt.check_dem_path(path))
+                rasters[RASTER_OPTIONS[option]] = (option, opt.check_dem_path(path))
             except DemReadError as exc:  # check_dem_path speaks of "the DEM": re-aim it at this option
                 raise DemReadError(f"{option}: {str(exc).replace('DEM', 'raster')}") from None
-    return AssessRequest(side_a=side_a, side_b=side_b, lonlat=lonlat, options=options, rasters=rasters)
+    return rasters
 
 
 def _read_raster_on_grid(option: str, path: str, dem: Dem, read: opt.DemOptions) -> Any:

@@ -20,8 +20,8 @@ from divides.cli.assess_cmd import (
     RunoffOption,
     UpliftRasterOption,
     _read_raster_on_grid,
+    check_raster_paths,
 )
-from divides.errors import DemReadError
 
 __all__ = ["screen", "LEVEL_CHOICES"]
 
@@ -111,14 +111,7 @@ def screen(
                                                    low_inclusive=True)
     min_area = opt.parse_bounded(min_basin_area, option="--min-basin-area", unit="m²", low=0, high=float("inf"))
     max_len = opt.parse_bounded(max_segment, option="--max-segment", unit="m", low=0, high=float("inf"))
-    rasters = {}
-    for option, keyword, path in (("--runoff", "runoff", runoff), ("--erodibility", "erodibility_raster", erodibility),
-                                  ("--uplift", "uplift_raster", uplift)):
-        if path is not None:
-            try:
-                rasters[keyword] = (option, opt.check_dem_path(path))
-            except DemReadError as exc:
-                raise DemReadError(f"{option}: {str(exc).replace('DEM', 'raster')}") from None
+    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift)
     folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
