@@ -54,6 +54,7 @@ __all__ = [
     "draw",
     "generate",
     "landscape_seed",
+    "load_folder",
     "load_or_build",
     "measure_motion",
     "split_of",
@@ -571,6 +572,14 @@ def load_or_build(master_seed: int, index: int, *, grid: tuple[int, int] = (120,
     return landscape
 
 
+def load_folder(folder: str | Path) -> list[Landscape]:
+    """Every record (``*.npz``) in ``folder``, in index order (e.g. the frozen subset the tests use)."""
+    paths = sorted(Path(folder).glob("*.npz"))
+    if not paths:
+        raise ParameterError(f"no benchmark records (*.npz) in {str(folder)!r}")
+    return sorted((Landscape.load(p) for p in paths), key=lambda s: (s.master_seed, s.index))
+
+
 def generate(n: int, *, seed: int = 0, workers: int = 1, grid: tuple[int, int] = (120, 400),
              cache_dir: str | Path | None = None,
              on_done: Callable[[Landscape], None] | None = None) -> list[Landscape]:
@@ -608,10 +617,12 @@ def generate(n: int, *, seed: int = 0, workers: int = 1, grid: tuple[int, int] =
             if on_done is not None:
                 on_done(done[-1])
     else:
+        import logging
+
         from dask.distributed import Client, LocalCluster, as_completed
 
         with LocalCluster(n_workers=int(workers), threads_per_worker=1, processes=True,
-                          dashboard_address=None) as cluster, Client(cluster) as client:
+                          dashboard_address=None, silence_logs=logging.ERROR) as cluster, Client(cluster) as client:
             futures = [client.submit(load_or_build, seed, i, grid=(lo, hi), cache_dir=cache_dir, pure=False)
                        for i in range(int(n))]
             for future in as_completed(futures):

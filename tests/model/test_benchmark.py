@@ -192,3 +192,44 @@ def test_generation_over_two_dask_workers_matches_one_process(tmp_path: Path):
     for x, y in zip(one, two):
         np.testing.assert_array_equal(x.elevation, y.elevation)
         assert x.truth == y.truth
+
+
+FROZEN = Path(__file__).resolve().parents[1] / "data" / "benchmark_frozen"
+
+
+@pytest.fixture(scope="module")
+def frozen() -> list[B.Landscape]:
+    return B.load_folder(FROZEN)
+
+
+def test_frozen_subset_holds_every_family_on_either_side(frozen):
+    # The frozen subset is landscapes 0-27 of master seed 0 on grids of 120-160 cells
+    # (tests/benchmarks/bench_verdict.py --n 28 --seed 0 --grid 120 160 --export).
+    assert 14 <= len(frozen) <= 40
+    assert {(s.family, s.forced_side) for s in frozen} == {(f, side) for f in FAMILIES for side in "ab"}
+    assert all(s.version == B.GENERATOR_VERSION for s in frozen)  # else regenerate it
+    for s in frozen:
+        assert s.split == B.split_of(s.seed) and s.seed == B.landscape_seed(s.master_seed, s.index)
+        assert max(s.elevation.shape) <= 160 and np.all(np.isfinite(s.elevation))
+        assert s.truth["moves_toward"] in ("a", "b", "stable")
+        assert s.sides["kind"] in ("edges", "points")
+    assert {s.sides["kind"] for s in frozen} == {"edges", "points"}
+    assert any(s.dem_error is not None for s in frozen)
+    assert 0 < sum(s.split == "training" for s in frozen) <= 0.6 * len(frozen)
+
+
+def test_frozen_stable_controls_are_measured_stable(frozen):
+    # Steady state under uniform forcing or a contrast: the divide no longer moves
+    # (Whipple et al. 2017; Forte & Whipple 2018 on steady but lopsided divides).
+    for s in frozen:
+        if s.family in STABLE_FAMILIES:
+            assert s.truth["moves_toward"] == "stable", (s.index, s.family)
+
+
+def test_frozen_records_are_reproducible_from_their_seeds(frozen):
+    # Rebuild the quickest record from its seed alone; the stored DEM and truth must come back
+    # (DEM within a millimetre: float32 storage and floating-point order across machines).
+    s = min(frozen, key=lambda r: r.seconds)
+    again = B.build(s.master_seed, s.index, grid=(120, 160))
+    np.testing.assert_allclose(again.elevation, s.elevation, atol=1e-3)
+    assert again.truth["moves_toward"] == s.truth["moves_toward"]
