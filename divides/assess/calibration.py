@@ -35,10 +35,13 @@ __all__ = [
     "Decision",
     "DecisionModel",
     "ReliabilityBin",
+    "Scorecard",
+    "TARGETS",
     "decide",
     "expected_calibration_error",
     "fit",
     "reliability",
+    "score",
     "top_label",
 ]
 
@@ -386,3 +389,88 @@ def expected_calibration_error(confidence: Any, correct: Any, *, bins: int = 10)
         sel = which == b
         total += np.count_nonzero(sel) / n * abs(ok[sel].mean() - conf[sel].mean())
     return round(float(total), 12)
+
+
+#: Targets on held-out landscapes: figure -> (bound, "min" or "max"), the verdict issue's acceptance rules.
+TARGETS: dict[str, tuple[float, str]] = {
+    "right_direction_among_moving": (0.90, "min"),
+    "wrong_direction_among_all": (0.02, "max"),
+    "stable_called_stable": (0.90, "min"),
+    "stable_given_a_direction": (0.02, "max"),
+    "wrong_direction_at_high_confidence": (0.0, "max"),
+}
+
+
+@dataclass(frozen=True)
+class Scorecard:
+    """How decisions fared against measured truths.
+
+    Attributes
+    ----------
+    counts : dict
+        ``(truth, decision) -> count``; truths a/b/stable, decisions a/b/stable/undetermined.
+    shares : dict
+        The figures of :data:`TARGETS` (NaN when their denominator is empty).
+    n : int
+        Cases scored.
+    """
+
+    counts: dict
+    shares: dict
+    n: int
+
+    def met(self) -> dict:
+        """Whether each target of :data:`TARGETS` is met (None when it cannot be judged)."""
+        out = {}
+        for name, (bound, kind) in TARGETS.items():
+            v = self.shares[name]
+            out[name] = None if math.isnan(v) else (v >= bound if kind == "min" else v <= bound)
+        return out
+
+
+def score(truth: Sequence[str], decided: Sequence[str], confidence: Sequence[float], *,
+          high: float = 0.9) -> Scorecard:
+    """Score decisions against truths with the figures the targets are stated in.
+
+    Parameters
+    ----------
+    truth : sequence of {"a", "b", "stable"}
+        Measured outcome per case.
+    decided : sequence of {"a", "b", "stable", "undetermined"}
+        Decision per case.
+    confidence : sequence of float
+        Probability of each decision.
+    high : float
+        Confidence from which no wrong direction is allowed.
+
+    Examples
+    --------
+    >>> card = score(["a", "b", "stable", "stable"], ["a", "undetermined", "stable", "b"], [0.9, 0.6, 0.85, 0.81])
+    >>> card.shares["right_direction_among_moving"], card.shares["stable_given_a_direction"]
+    (0.5, 0.5)
+    """
+    t, d = [str(v) for v in truth], [str(v) for v in decided]
+    c = np.asarray(confidence, dtype=np.float64)
+    if not (len(t) == len(d) == c.size) or not t:
+        raise ParameterError("truth, decisions and confidences must be non-empty and of the same length")
+    if set(t) - set(CLASSES) or set(d) - {*CLASSES, "undetermined"}:
+        raise ParameterError(f"truths must be among {list(CLASSES)} and decisions also 'undetermined'")
+    counts: dict = {}
+    for ti, di in zip(t, d):
+        counts[(ti, di)] = counts.get((ti, di), 0) + 1
+    moving = [i for i, ti in enumerate(t) if ti != "stable"]
+    stable = [i for i, ti in enumerate(t) if ti == "stable"]
+    directed = {"a", "b"}
+    wrong = [i for i in range(len(t)) if d[i] in directed and d[i] != t[i]]
+
+    def share(k: int, of: int) -> float:
+        return k / of if of else math.nan
+
+    shares = {
+        "right_direction_among_moving": share(sum(d[i] == t[i] for i in moving), len(moving)),
+        "wrong_direction_among_all": share(len(wrong), len(t)),
+        "stable_called_stable": share(sum(d[i] == "stable" for i in stable), len(stable)),
+        "stable_given_a_direction": share(sum(d[i] in directed for i in stable), len(stable)),
+        "wrong_direction_at_high_confidence": share(sum(c[i] >= high for i in wrong), len(t)),
+    }
+    return Scorecard(counts, shares, len(t))

@@ -28,7 +28,7 @@ import math
 import os
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -37,7 +37,7 @@ from scipy.signal import lfilter
 
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.model.benchmark_families import FAMILIES, STABLE_FAMILIES, plan, resolve
+from divides.model.benchmark_families import FAMILIES, plan, resolve
 from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.terrain.routing import route
@@ -61,7 +61,7 @@ __all__ = [
 ]
 
 #: Bump when any drawn range, family or step changes: cached records of another version are not reused.
-GENERATOR_VERSION = 1
+GENERATOR_VERSION = 3
 
 #: Ranges the parameters are drawn from (uniform unless marked log-uniform).
 RANGES: dict[str, tuple[float, float]] = {
@@ -71,7 +71,7 @@ RANGES: dict[str, tuple[float, float]] = {
     "theta": (0.3, 0.7),                 # m / n
     "uplift_m_per_yr": (5e-5, 3e-3),     # log-uniform
     "mean_flank_gradient": (0.03, 0.3),  # log-uniform; sets the target relief, clipped to 30–1500 m
-    "hillslope_cells": (0.5, 15.0),      # log-uniform; D = 0 in 25 % of landscapes
+    "hillslope_cells": (0.5, 5.0),       # log-uniform; D = 0 in 25 % of landscapes
     "dem_error_sigma_m": (0.5, 2.0),     # in a third of the landscapes
     "dem_error_corr_cells": (1.0, 5.0),
 }
@@ -329,7 +329,6 @@ class Landscape:
     dem_error: dict | None
     seconds: float
     version: int = GENERATOR_VERSION
-    meta: dict = field(default_factory=dict)
 
     def dem(self) -> Dem:
         """The observed DEM as a :class:`~divides.io.dem.Dem`."""
@@ -337,7 +336,7 @@ class Landscape:
 
     def to_meta(self) -> dict:
         """Everything but the elevation, JSON-ready."""
-        return {k: v for k, v in self.__dict__.items() if k not in ("elevation", "meta")} | {"closed_edges": list(self.closed_edges)}
+        return {k: v for k, v in self.__dict__.items() if k != "elevation"} | {"closed_edges": list(self.closed_edges)}
 
     def save(self, path: Path | str) -> None:
         """Write to a compressed ``.npz`` (written beside and renamed: never half-written)."""
@@ -631,7 +630,3 @@ def generate(n: int, *, seed: int = 0, workers: int = 1, grid: tuple[int, int] =
                     on_done(done[-1])
     return sorted(done, key=lambda s: s.index)
 
-
-def is_stable_family(family: str) -> bool:
-    """True for the stable-control families (steady state, lopsided or symmetric)."""
-    return family in STABLE_FAMILIES

@@ -185,7 +185,10 @@ def plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: floa
         return Plan(None, crest, None, uniform, float(rng.uniform(1.0, 2.5)), "a", {"crest_at": crest})
     if family == "capture_area_loss":
         change, details = _capture(rng, *shape)
-        return Plan(uniform, 0.5, change, uniform, float(rng.uniform(0.02, 0.2)), "b", details)
+        # Right after the jump the new crest has b's steep flank on one side and the gentler captured
+        # valley on the other: by Gilbert's law the steeper side erodes faster, so the divide relaxes
+        # back toward the captor, a; observed within 0.05 τ of the capture.
+        return Plan(uniform, 0.5, change, uniform, float(rng.uniform(0.0, 0.05)), "a", details)
     if family.startswith("steady_"):
         ratio = float(rng.uniform(1.5, 3.0))
         east = _east_of(shape, 0.5)

@@ -128,3 +128,25 @@ def test_bad_inputs_are_refused_with_a_clear_error():
         C.fit(x, y, l2=-1.0)
     with pytest.raises(ParameterError):
         C.expected_calibration_error([1.5], [True])
+
+
+def test_scorecard_counts_by_hand():
+    # Ten cases worked by hand: 6 moving (4 right, 1 undetermined, 1 wrong at 0.92), 4 stable
+    # (3 called stable, 1 given a direction at 0.81).
+    truth = ["a", "a", "b", "b", "b", "a", "stable", "stable", "stable", "stable"]
+    said = ["a", "a", "b", "b", "undetermined", "b", "stable", "stable", "stable", "a"]
+    conf = [0.9, 0.85, 0.95, 0.8, 0.5, 0.92, 0.9, 0.85, 0.8, 0.81]
+    card = C.score(truth, said, conf)
+    assert card.n == 10 and card.counts[("a", "b")] == 1 and card.counts[("b", "undetermined")] == 1
+    assert card.shares["right_direction_among_moving"] == pytest.approx(4 / 6)
+    assert card.shares["wrong_direction_among_all"] == pytest.approx(2 / 10)  # a→b and stable→a
+    assert card.shares["stable_called_stable"] == pytest.approx(3 / 4)
+    assert card.shares["stable_given_a_direction"] == pytest.approx(1 / 4)
+    assert card.shares["wrong_direction_at_high_confidence"] == pytest.approx(1 / 10)  # only the 0.92 one
+    assert card.met() == {k: False for k in C.TARGETS}
+    perfect = C.score(truth, truth, [0.95] * 10)
+    assert all(perfect.met().values())
+    # No stable case: the stable figures cannot be judged.
+    assert C.score(["a"], ["a"], [0.9]).met()["stable_called_stable"] is None
+    with pytest.raises(ParameterError):
+        C.score(["a"], ["up"], [0.9])

@@ -9,7 +9,11 @@ stable / unmeasured) and how often it agrees with theory's expectation for
 the set-up, the split (training / held-out), the time per landscape, and what
 300 landscapes would cost. With ``--out`` writes ``landscapes.csv`` (one row
 per landscape) and, with ``--export``, the records themselves (the frozen
-subset under ``tests/data/benchmark_frozen`` is made this way).
+subset under ``tests/data/benchmark_frozen`` is made this way). With
+``--assess`` runs today's ``divides.assess`` (default options) on every
+landscape and prints its verdicts against the measured truth per family and
+the targets of the verdict issue, for the training and the held-out part
+separately: a baseline, nothing is fitted.
 """
 
 from __future__ import annotations
@@ -41,6 +45,51 @@ def _row(s) -> dict:
     }
 
 
+def _assess_one(s) -> dict:
+    """Today's verdict on one landscape; a refusal (bad sides, no channels) counts as undetermined."""
+    import divides
+    from divides.errors import DividesError
+
+    try:
+        v = divides.assess(s.dem(), s.sides["a"], s.sides["b"], closed_edges=s.closed_edges).verdict
+        return {"index": s.index, "said": v.moves_toward, "confidence": float(v.confidence), "refused": None}
+    except DividesError as exc:
+        return {"index": s.index, "said": "undetermined", "confidence": 0.0, "refused": str(exc)}
+
+
+def _baseline(landscapes, workers: int) -> None:
+    from divides.assess.calibration import TARGETS, score
+
+    started = time.perf_counter()
+    if workers > 1:
+        import logging
+
+        from dask.distributed import Client, LocalCluster
+
+        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None,
+                          silence_logs=logging.ERROR) as cluster, Client(cluster) as client:
+            results = client.gather(client.map(_assess_one, landscapes, pure=False))
+    else:
+        results = [_assess_one(s) for s in landscapes]
+    got = {r["index"]: r for r in results}
+    print(f"\nbaseline: today's assess on {len(landscapes)} landscapes in {time.perf_counter() - started:.0f} s")
+    rows = [(s, got[s.index]) for s in landscapes if s.truth["moves_toward"] is not None]
+    print(f"{'family':28s} {'truth -> verdict (confidence)'}")
+    for s, r in rows:
+        note = f"  refused: {r['refused'][:70]}" if r["refused"] else ""
+        print(f"{s.family:28s} {s.split:9s} {s.truth['moves_toward']:6s} -> {r['said']:12s} ({r['confidence']:.2f}){note}")
+    for part in ("training", "held-out"):
+        sel = [(s, r) for s, r in rows if s.split == part]
+        if not sel:
+            continue
+        card = score([s.truth["moves_toward"] for s, _ in sel], [r["said"] for _, r in sel],
+                     [r["confidence"] for _, r in sel])
+        met = card.met()
+        print(f"{part} ({card.n}): " + "; ".join(
+            f"{k.replace('_', ' ')} {v:.2f} (target {'>=' if TARGETS[k][1] == 'min' else '<='} {TARGETS[k][0]:g}"
+            f"{'' if met[k] is None else ', met' if met[k] else ', missed'})" for k, v in card.shares.items()))
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--n", type=int, default=28, help="number of landscapes (28 = every family on either side)")
@@ -51,6 +100,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--cache", default=None, help="cache folder (default $XDG_CACHE_HOME/divides/benchmark; '' for none)")
     parser.add_argument("--out", type=Path, default=None, help="folder for landscapes.csv (and records with --export)")
     parser.add_argument("--export", action="store_true", help="copy the records (.npz) into --out")
+    parser.add_argument("--assess", action="store_true", help="run today's assess on every landscape (baseline)")
     args = parser.parse_args(argv)
 
     from divides.errors import DividesError
@@ -116,6 +166,8 @@ def main(argv: list[str] | None = None) -> int:
             for s in landscapes:
                 s.save(args.out / f"{s.index:05d}.npz")
         print(f"wrote {args.out / 'landscapes.csv'}" + (f" and {len(landscapes)} records" if args.export else ""))
+    if args.assess:
+        _baseline(landscapes, workers)
     return 0
 
 
