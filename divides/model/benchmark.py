@@ -9,8 +9,9 @@ surface is observed (that is the DEM of the record), and the run is then
 
 Time is counted in response times, τ = relief / U: for E = K A^m S^n at
 steady state (S = ks A^(-m/n), ks^n = U/K) the time a slope signal takes from
-the outlet to the divide, ∫ dx / (n K A^m S^(n-1)) up to the factor n, is
-χ ks / U = relief / U (Whipple 2001; Royden & Perron 2013). Steps are fixed
+the outlet to the divide, ∫ dx / (K A^m S^(n-1)) (Whipple 2001; the wave
+speed carries a further factor n, Royden & Perron 2013), is
+χ ks / U = relief / U. Steps are fixed
 fractions of τ, so every landscape costs about the same number of steps
 whatever its rates.
 
