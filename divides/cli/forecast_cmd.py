@@ -19,7 +19,7 @@ from divides.cli import options as opt
 from divides.errors import ParameterError
 
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
-    from divides.model.forecast import Forecast
+    from divides.outlook import Forecast
 
 __all__ = ["forecast", "geojson_divides", "forecast_png", "write_outputs",
            "OUTPUT_FILES"]
@@ -114,8 +114,8 @@ def forecast(
         target = check_out_dir(out, overwrite=overwrite)  # fail before the long part
 
     import divides
-    from divides.model.forecast import DEFAULT_DIFFUSIVITY
-    from divides.model.forecast import forecast as run_forecast
+    from divides.outlook import DEFAULT_DIFFUSIVITY
+    from divides.outlook import forecast as run_forecast
 
     with opt.quiet_warnings(quiet):
         surface = divides.read_dem(read.path, **read.read_kwargs())

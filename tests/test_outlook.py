@@ -18,7 +18,7 @@ from skimage.measure import block_reduce
 import divides
 from divides.assess.verdict import CAUTION
 from divides.errors import ParameterError
-from divides.model.forecast import NEEDS_CALIBRATION, SCHEMA, TIMESCALE_CAUTION, coarsen, forecast
+from divides.outlook import NEEDS_CALIBRATION, SCHEMA, TIMESCALE_CAUTION, coarsen, forecast
 from divides.model.scenarios import off_centre_divide, ridge_surface, symmetric_divide
 
 DX = 100.0

@@ -1,5 +1,9 @@
 """Forecast: run the forward model on a real DEM, with parameters from an assessment, and track its divide.
 
+This module joins two rooms that do not know each other: the assessment
+(:mod:`divides.assess`) and the forward model (:mod:`divides.model`). It sits
+above both, so the model never imports the assessment.
+
 The assessment gives the concavity θ (with an interval), the slope exponent n
 and a calibration of erodibility K (from a measured erosion rate, a given K
 or a dated knickpoint). The present surface is the starting state; its open
