@@ -10,8 +10,8 @@ or a dated knickpoint). The present surface is the starting state; its open
 edges are held at their present elevations and uplift is set so that the
 present landscape is in balance (see :func:`forecast`). The model runs
 ``years`` forward for a central parameter set and for an ensemble over the
-uncertainty of K and θ; the divide between the two sides is tracked through
-time. The result is a screening estimate: modelled timescales depend on the
+uncertainty of K, θ, n and the diffusivity D; the divide between the two
+sides is tracked through time. The result is a screening estimate: modelled timescales depend on the
 solver, time step and grid (Forte & Barnhart 2024, ESurf 12) and on the
 calibration.
 """
@@ -33,7 +33,7 @@ from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
 from divides.model.forcing import check_positive
 from divides.model.simulate import simulate
-from divides.model.tracking import OPPOSITE, divide_positions
+from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import divide_between
 from divides.terrain.routing import FlowGraph, route
 
@@ -80,6 +80,18 @@ NEEDS_CALIBRATION = (
     "(erodibility; --erodibility-k) or the age of a knickpoint (knickpoint_age_years)"
 )
 
+#: How the divide's displacement is measured (``parameters["measure"]``).
+MEASURE = "net area exchanged between the sides / length of the present divide still between them"
+
+#: Ensemble members draw n log-uniformly within a factor 1.5 of the assessment's n: n is seldom
+#: known better than that; field estimates span about 0.5-4 (from memory; Lague 2014, ESPL 39).
+N_FACTOR = 1.5
+
+#: Ensemble members draw D log-uniformly within a factor 10 of the given diffusivity: values quoted for
+#: soil-mantled hillslopes span about 1e-4 to 1e-1 m²/yr (from memory; e.g. Fernandes & Dietrich 1997,
+#: Water Resour. Res. 33; Martin 2000, ESPL 25).
+D_FACTOR = 10.0
+
 _MIN_STEPS = 20
 _MAX_STEPS = 400
 _TRACK_INTERVALS = 10
@@ -107,8 +119,6 @@ class ForecastRun:
         Mean displacement of the divide since the start (m), positive into side b.
     area_a_m2 : ndarray
         Area of side a through time.
-    positions : ndarray or None
-        Per-line divide positions (m from side a's edge), for two opposite DEM edges.
     final : Dem
         The surface at the end of the run (model grid).
     mask_a, mask_b : ndarray of bool
@@ -120,6 +130,8 @@ class ForecastRun:
         Time step (years).
     courant : float
         Knickpoint celerity × dt / cell size at the reference drainage area.
+    diffusivity : float
+        Hillslope diffusivity D (m²/yr).
     captured : bool
         A side's outlet came to drain through the other side during the run.
     """
@@ -133,7 +145,6 @@ class ForecastRun:
     times: np.ndarray
     displacement_m: np.ndarray
     area_a_m2: np.ndarray
-    positions: np.ndarray | None
     final: Dem
     mask_a: np.ndarray
     mask_b: np.ndarray
@@ -141,6 +152,7 @@ class ForecastRun:
     n_steps: int
     dt: float
     courant: float
+    diffusivity: float = 0.0
     captured: bool = False
 
     def summary(self) -> dict:
@@ -152,6 +164,7 @@ class ForecastRun:
             "n": self.n,
             "erodibility": {"a": self.erodibility[0], "b": self.erodibility[1]},
             "uplift_m_per_yr": {"a": self.uplift[0], "b": self.uplift[1]},
+            "diffusivity_m2_per_yr": self.diffusivity,
             "displacement_m": _finite(self.displacement_m[-1]),
             "n_steps": self.n_steps,
             "dt_yr": self.dt,
@@ -184,7 +197,7 @@ class Forecast:
     central : ForecastRun
         Best-estimate parameters (median K, θ of the assessment).
     members : tuple of ForecastRun
-        The ensemble over K and θ (the central run excluded).
+        The ensemble over K, θ, n and D (the central run excluded).
     parameters : dict
         Effective parameters (JSON-ready).
     notes : list of str
@@ -213,37 +226,38 @@ class Forecast:
         return self.central.times
 
     @property
+    def runs(self) -> tuple:
+        """The central run and the ensemble members."""
+        return (self.central, *self.members)
+
+    @property
     def band(self) -> dict[str, np.ndarray]:
         """``low``, ``best``, ``high`` displacement (m) through time.
 
         ``best`` is the central run; ``low`` and ``high`` the least and
-        greatest displacement among the ensemble members (equal to ``best``
-        without members).
+        greatest displacement among all runs, the central one included
+        (equal to ``best`` without members).
         """
         best = self.central.displacement_m
-        if not self.members:
-            return {"low": best.copy(), "best": best.copy(), "high": best.copy()}
-        stack = np.vstack([r.displacement_m for r in self.members])
+        stack = np.vstack([r.displacement_m for r in self.runs])
         # fmin/fmax skip NaN (a run whose divide left the grid) without warnings
         return {"low": np.fmin.reduce(stack, axis=0), "best": best.copy(), "high": np.fmax.reduce(stack, axis=0)}
 
     def _extreme(self, which: str) -> ForecastRun:
-        if not self.members:
-            return self.central
-        final = np.array([r.displacement_m[-1] for r in self.members])
+        final = np.array([r.displacement_m[-1] for r in self.runs])
         if np.all(np.isnan(final)):
             return self.central
         pick = np.nanargmin(final) if which == "low" else np.nanargmax(final)
-        return self.members[int(pick)]
+        return self.runs[int(pick)]
 
     @property
     def low_run(self) -> ForecastRun:
-        """The member with the least final displacement (its divide line is the ``low`` band)."""
+        """The run with the least final displacement (its divide line is the ``low`` band)."""
         return self._extreme("low")
 
     @property
     def high_run(self) -> ForecastRun:
-        """The member with the greatest final displacement (its divide line is the ``high`` band)."""
+        """The run with the greatest final displacement (its divide line is the ``high`` band)."""
         return self._extreme("high")
 
     @property
@@ -252,41 +266,153 @@ class Forecast:
         return 0.5 * float(min(np.min(self.dem.dx), np.min(self.dem.dy)))
 
     @property
+    def ensemble(self) -> dict[str, int]:
+        """How many runs move the divide into side a, into side b, or less than half a cell either way.
+
+        Keys ``into_a``, ``into_b`` (sign of the final displacement), ``unresolved`` (of those, how many
+        by less than :attr:`resolution_m`), ``lost`` (runs whose divide left the grid) and ``runs``.
+        """
+        final = np.array([r.displacement_m[-1] for r in self.runs])
+        ok = np.isfinite(final)
+        return {"runs": int(final.size), "into_a": int(np.sum(final[ok] < 0)), "into_b": int(np.sum(final[ok] > 0)),
+                "unresolved": int(np.sum(np.abs(final[ok]) < self.resolution_m)), "lost": int(np.sum(~ok))}
+
+    @property
     def moves_toward(self) -> str:
-        """``"a"`` or ``"b"`` (the side the divide moves into), or ``"stable"`` (within half a cell)."""
-        best = self.central.displacement_m[-1]
-        if not np.isfinite(best) or abs(best) < self.resolution_m:
+        """What the runs say: ``"a"`` or ``"b"`` (the side the divide moves into), ``"stable"`` or ``"undetermined"``.
+
+        A direction when every run moves the divide that way and the central
+        run by at least half a model cell; ``"stable"`` when every run keeps it
+        within half a cell; otherwise (runs disagree, or only some resolve a
+        move) ``"undetermined"``.
+        """
+        e = self.ensemble
+        best = float(self.central.displacement_m[-1])
+        if e["lost"] or not np.isfinite(best):
+            return "undetermined"
+        if e["unresolved"] == e["runs"]:
             return "stable"
-        return "b" if best > 0 else "a"
+        if abs(best) >= self.resolution_m:
+            if e["into_b"] == e["runs"]:
+                return "b"
+            if e["into_a"] == e["runs"]:
+                return "a"
+        return "undetermined"
 
     @property
     def bands_agree(self) -> bool:
-        """True when low, best and high all move the divide the same way by more than half a cell."""
-        final = [v[-1] for v in self.band.values()]
-        r = self.resolution_m
-        return bool(all(v > r for v in final) or all(v < -r for v in final))
+        """True when every run moves the divide the same way (by any amount)."""
+        e = self.ensemble
+        return bool(e["into_a"] == e["runs"] or e["into_b"] == e["runs"])
+
+    @property
+    def agrees_with_assessment(self) -> bool | None:
+        """True or False when both the forecast and the assessment give a direction or "stable"; None otherwise.
+
+        Also None when the assessment gives a direction and every run moves the divide that way by
+        less than half a model cell: the forecast can neither confirm nor refute it.
+        """
+        said = self.assessment.get("moves_toward")
+        ours = self.moves_toward
+        if said not in ("a", "b", "stable") or ours not in ("a", "b", "stable") or self._too_slow_to_tell():
+            return None
+        return said == ours
+
+    def _too_slow_to_tell(self) -> bool:
+        said = self.assessment.get("moves_toward")
+        e = self.ensemble
+        return (said in ("a", "b") and self.moves_toward == "stable" and self.bands_agree
+                and said == ("b" if e["into_b"] else "a"))
+
+    def _names(self) -> dict[str, str]:
+        return {"a": f"side a ({self.side_a})", "b": f"side b ({self.side_b})"}
+
+    def _headline(self) -> str:
+        e, names = self.ensemble, self._names()
+        final = {k: v[-1] for k, v in self.band.items()}
+        spread = f"{_sig(final['low'])} to {_sig(final['high'])} m over the {e['runs']} runs, positive into side b"
+        years = f"In {self.years:,.0f} years"
+        toward = self.moves_toward
+        if e["runs"] == 1:
+            if toward == "stable":
+                return f"{years} the divide stays within half a model cell ({_sig(self.resolution_m)} m) of its " \
+                       "present position (one run: no ensemble range)."
+            if toward in ("a", "b"):
+                return f"{years} the divide moves about {_sig(abs(final['best']))} m into {names[toward]} " \
+                       "(one run: no ensemble range)."
+            return f"{years} the divide's motion could not be measured: it left the model grid."
+        if toward == "stable":
+            text = f"{years} every run keeps the divide within half a model cell ({_sig(self.resolution_m)} m) of " \
+                   f"its present position ({spread})"
+            if self.bands_agree:
+                side = "b" if e["into_b"] else "a"
+                text += f"; all of them move it slightly into {names[side]}, by less than the grid resolves"
+            return text + "."
+        if toward in ("a", "b"):
+            text = f"{years} the divide moves about {_sig(abs(final['best']))} m into {names[toward]} (central run; " \
+                   f"{spread}): every run moves it that way"
+            if e["unresolved"]:
+                text += f", {e['unresolved']} of them by less than half a model cell ({_sig(self.resolution_m)} m)"
+            return text + "."
+        if self.bands_agree:
+            side = "b" if e["into_b"] else "a"
+            return f"{years} every run moves the divide into {names[side]}, but the central run by less than half " \
+                   f"a model cell ({_sig(self.resolution_m)} m), which the grid does not resolve ({spread}); " \
+                   "no direction is given."
+        parts = [f"{e['into_b']} into side b", f"{e['into_a']} into side a"]
+        if e["lost"]:
+            parts.append(f"{e['lost']} lost the divide off the grid")
+        return f"{years} the runs do not agree on the direction ({', '.join(parts)}; {spread}); " \
+               "no direction is given."
+
+    def _comparison(self) -> str | None:
+        said = self.assessment.get("moves_toward")
+        if said is None:
+            return None
+        names = self._names()
+        conf = self.assessment.get("confidence")
+        conf_text = "" if conf is None else f" (confidence {_sig(conf)})"
+        verdict = {"a": f"moves into {names['a']}", "b": f"moves into {names['b']}", "stable": "is stable",
+                   "undetermined": "cannot be determined from the DEM"}.get(said, str(said))
+        agree = self.agrees_with_assessment
+        rates = self._rates()
+        if agree is None and self._too_slow_to_tell():
+            return f"The assessment of the same DEM says the divide {verdict}{conf_text}; every run moves it that " \
+                   f"way too, but by less than half a model cell, so the forecast can neither confirm nor refute " \
+                   f"it on this grid.{rates}"
+        if agree is None:
+            return f"The assessment of the same DEM says the divide {verdict}{conf_text}; with no direction on one " \
+                   "side or the other, the two cannot be compared."
+        if agree:
+            return f"The assessment of the same DEM agrees: the divide {verdict}{conf_text}.{rates}"
+        return f"The forecast and the assessment of the same DEM disagree: the assessment says the divide " \
+               f"{verdict}{conf_text}. The forecast rests on the calibration of erodibility, the model's uplift and " \
+               "its fixed edges, the assessment on present contrasts across the divide: check both before relying " \
+               f"on either.{rates}"
+
+    def _rates(self) -> str:
+        """Both rates side by side (mm/yr, positive into side b), or an empty string."""
+        given = self.assessment.get("rate_mm_per_yr")
+        if not given or self.assessment.get("moves_toward") not in ("a", "b"):
+            return ""
+        sign = 1.0 if self.assessment["moves_toward"] == "b" else -1.0
+        vals = sorted(sign * float(given[k]) for k in ("low", "high"))
+        lo, best, hi = vals[0], sign * float(given["best"]), vals[-1]
+        final = {k: 1e3 * v[-1] / self.years for k, v in self.band.items()}
+        return f" Rates, positive into side b: assessment {_sig(best)} mm/yr (95 % interval {_sig(lo)} to " \
+               f"{_sig(hi)}), forecast {_sig(final['best'])} mm/yr ({_sig(final['low'])} to " \
+               f"{_sig(final['high'])} over the runs)."
 
     def text(self) -> str:
         """The forecast in plain words (several lines)."""
-        band = {k: v[-1] for k, v in self.band.items()}
-        names = {"a": f"side a ({self.side_a})", "b": f"side b ({self.side_b})"}
-        lines = []
-        toward = self.moves_toward
-        if toward == "stable":
-            lines.append(f"In {self.years:,.0f} years the divide stays within half a model cell "
-                         f"({self.resolution_m:,.0f} m) of its present position (central run).")
-        else:
-            lines.append(f"In {self.years:,.0f} years the divide moves about {abs(band['best']):,.0f} m "
-                         f"into {names[toward]} (central run).")
-        if self.members:
-            lines.append(f"Ensemble range: {band['low']:,.0f} to {band['high']:,.0f} m (positive: into side b), "
-                         f"{1 + len(self.members)} runs over K and θ; "
-                         + ("every run moves it the same way." if self.bands_agree
-                            else "the runs do not agree on the direction."))
-        else:
-            lines.append("One run only: no ensemble range.")
-        rate = 1e3 * band["best"] / self.years
-        lines.append(f"Mean rate {rate:.3g} mm/yr (positive: into side b).")
+        final = {k: v[-1] for k, v in self.band.items()}
+        lines = [self._headline()]
+        rate = {k: 1e3 * v / self.years for k, v in final.items()}
+        lines.append(f"Mean rate {_sig(rate['best'])} mm/yr (central run; {_sig(rate['low'])} to "
+                     f"{_sig(rate['high'])} over the runs; positive: into side b).")
+        comparison = self._comparison()
+        if comparison:
+            lines.append(comparison)
         lines += self.notes
         lines += [TIMESCALE_CAUTION, CAUTION]
         return "\n".join(lines)
@@ -307,18 +433,37 @@ class Forecast:
             "years": self.years,
             "moves_toward": self.moves_toward,
             "bands_agree": self.bands_agree,
+            "ensemble": self.ensemble,
+            "agrees_with_assessment": self.agrees_with_assessment,
+            "comparison": self._comparison(),
+            "text": self._headline(),
             "displacement_m": final,
             "rate_mm_per_yr": rate,
             "resolution_m": self.resolution_m,
             "present_divide_length_m": self.present_length_m,
             "track": {"times_yr": self.times, **{k: v for k, v in band.items()}},
             "parameters": self.parameters,
-            "runs": [self.central.summary()] + [r.summary() for r in self.members],
+            "runs": [r.summary() for r in self.runs],
             "assessment": self.assessment,
             "notes": self.notes,
             "timescale_caution": TIMESCALE_CAUTION,
             "caution": CAUTION,
         })
+
+
+def _sig(v: Any, digits: int = 2) -> str:
+    """``v`` to two significant figures, with thousands separators for large values.
+
+    >>> _sig(444.17), _sig(0.01613), _sig(-1234.0), _sig(0.0), _sig(2.0), _sig(0.09)
+    ('440', '0.016', '-1,200', '0', '2.0', '0.090')
+    """
+    v = float(v)
+    if not math.isfinite(v):
+        return "n/a"
+    if v == 0:
+        return "0"
+    r = float(f"{v:.{digits}g}")
+    return f"{r:,.0f}" if abs(r) >= 10 ** (digits - 1) else f"{r:#.{digits}g}"
 
 
 def _finite(v: Any) -> float | None:
@@ -435,15 +580,17 @@ class _Calibrated:
                                  "lower the channel threshold or choose larger basins")
         return float(np.median(self.ksn[sel] * self.area[sel] ** (theta - self.theta0))) * self.a0 ** self.theta0
 
-    def erodibility(self, theta: float, q: float) -> tuple[float, float]:
-        """K of sides a and b (m^(1-2m)/yr, m = θ n) at concavity θ and quantile q of the K samples."""
+    def erodibility(self, theta: float, q: float, n: float | None = None) -> tuple[float, float]:
+        """K of sides a and b (m^(1-2m)/yr, m = θ n) at concavity θ, slope exponent n (default the
+        assessment's) and quantile q of the K samples."""
+        n = self.n if n is None else float(n)
         if self.rates is not None:
-            k_a, k_b = (e / self._ksn(theta, (c,)) ** self.n for e, c in zip(self.rates, (1, 2)))
+            k_a, k_b = (e / self._ksn(theta, (c,)) ** n for e, c in zip(self.rates, (1, 2)))
             return k_a, k_b
         k_cal = float(np.quantile(self.k_samples, q))
-        # E at the reference median steepness stays what the calibration says whatever θ.
+        # E at the reference median steepness stays what the calibration says whatever θ and n.
         rate = k_cal * (self._ksn(self.theta0, self.reference) * self.a0 ** -self.theta0) ** self.n
-        k = rate / self._ksn(theta, self.reference) ** self.n
+        k = rate / self._ksn(theta, self.reference) ** n
         return k, k
 
 
@@ -479,15 +626,22 @@ def _theta_interval(assessment: Assessment) -> tuple[float, float, str]:
     return max(theta - 0.1, 0.5 * theta), theta + 0.1, "θ ± 0.1 (common practice)"
 
 
-def _design(n_runs: int, seed: int) -> list[tuple[float, float]]:
-    """(quantile of K, position in the θ interval) of each ensemble member: a seeded Latin hypercube."""
+def _design(n_runs: int, seed: int) -> list[tuple[float, float, float, float]]:
+    """(quantile of K, position in the θ interval, and in the n and D intervals) of each ensemble
+    member: a seeded Latin hypercube, each coordinate in [0, 1)."""
     k = n_runs - 1
     if k <= 0:
         return []
     rng = np.random.default_rng(seed)
-    cols = [(rng.permutation(k) + rng.random(k)) / k for _ in range(2)]
+    cols = [(rng.permutation(k) + rng.random(k)) / k for _ in range(4)]
     # K quantiles over the central 95 % of the calibration's samples
-    return [(0.025 + 0.95 * float(cols[0][i]), float(cols[1][i])) for i in range(k)]
+    return [(0.025 + 0.95 * float(cols[0][i]), float(cols[1][i]), float(cols[2][i]), float(cols[3][i]))
+            for i in range(k)]
+
+
+def _spread(value: float, factor: float, q: float) -> float:
+    """``value`` times ``factor`` to the power 2q − 1: log-uniform over [value / factor, value × factor]."""
+    return float(value * factor ** (2.0 * q - 1.0))
 
 
 # ------------------------------------------------------------------ one run
@@ -504,8 +658,6 @@ class _Setup:
     region_a: np.ndarray
     edges: dict
     closed: tuple
-    tracked: tuple[str, str] | None
-    walls: np.ndarray
     channel_area_m2: float
     length_m: float
     present: list
@@ -551,23 +703,6 @@ def _balance_uplift(setup: _Setup, k_field: np.ndarray, m: float, n: float) -> t
     return rates[0], rates[1], float(np.median(np.concatenate(slopes))), setup.channel_area_m2
 
 
-def _displacement(setup: _Setup, flow: FlowGraph, mask_a: np.ndarray, mask_b: np.ndarray,
-                  pos0: np.ndarray | None) -> tuple[float, np.ndarray | None]:
-    """Mean divide displacement since the start (m, into side b) and per-line positions."""
-    pos = None
-    if setup.tracked is not None:
-        pos = divide_positions(flow, *setup.tracked, where=~setup.walls)
-        ref = pos if pos0 is None else pos0
-        both = np.isfinite(pos) & np.isfinite(ref)
-        if both.any():
-            return float(np.mean(pos[both] - ref[both])), pos
-    # Net area side a took from side b, spread along the present divide (also when no
-    # row or column holds the divide at both times).
-    area = setup.grid.cell_area_grid()
-    gained = float(np.sum(area[setup.mask_b & mask_a]) - np.sum(area[setup.mask_a & mask_b]))
-    return gained / setup.length_m, pos
-
-
 def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
          uplift_mode: str, diffusivity: float, max_steps: int) -> ForecastRun:
     m = theta * n
@@ -587,9 +722,8 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
     times = np.linspace(0.0, years, min(_TRACK_INTERVALS, n_steps) + 1)
     result = simulate(setup.grid, duration=years, dt=dt, uplift=u_field, erodibility=k_field, m=m, n=n,
                       diffusivity=diffusivity, edges=setup.edges, snapshot_times=times)
-    disp, areas, positions = [], [], []
+    disp, areas = [], []
     cell_area = setup.grid.cell_area_grid()
-    pos0 = None
     captured = False
     mask_a, mask_b = setup.mask_a, setup.mask_b
     for i, snap in enumerate(result.snapshots):
@@ -599,13 +733,9 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
         if both.any():  # one side's outlet now drains through the other: a capture
             captured = True
             mask_a, mask_b = mask_a & ~both, mask_b & ~both
-        d, pos = _displacement(setup, flow, mask_a, mask_b, pos0)
-        if i == 0:
-            pos0 = pos
-        disp.append(d)
+        disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present,
+                                          setup.grid))
         areas.append(float(np.sum(cell_area[mask_a])))
-        if pos is not None:
-            positions.append(pos)
     try:
         lines = divide_between(result.final, mask_a, mask_b).lines
     except SideError:  # the sides no longer touch
@@ -613,8 +743,9 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
     return ForecastRun(
         label=label, theta=theta, m=m, n=n, erodibility=(float(k[0]), float(k[1])), uplift=(u_a, u_b),
         times=np.asarray(result.times), displacement_m=np.asarray(disp), area_a_m2=np.asarray(areas),
-        positions=np.vstack(positions) if positions else None, final=result.final, mask_a=mask_a, mask_b=mask_b,
-        lines=lines, n_steps=result.n_steps, dt=dt, courant=celerity * dt / cell, captured=captured,
+        final=result.final, mask_a=mask_a, mask_b=mask_b,
+        lines=lines, n_steps=result.n_steps, dt=dt, courant=celerity * dt / cell, diffusivity=diffusivity,
+        captured=captured,
     )
 
 
@@ -628,18 +759,11 @@ def _setup(assessment: Assessment, grid: Dem, factor: int) -> _Setup:
     divide = divide_between(grid, mask_a, mask_b)
     if not divide.lines:
         raise SideError("on the model grid the two sides touch only at isolated cells: no divide to forecast")
-    rows, cols = grid.shape
-    walls = np.zeros(grid.shape, dtype=bool)
-    for e in closed:
-        walls[{"north": (0, slice(None)), "south": (rows - 1, slice(None)),
-               "west": (slice(None), 0), "east": (slice(None), cols - 1)}[e]] = True
-    edge_a, edge_b = spec_a.edge, spec_b.edge
-    tracked = (edge_a, edge_b) if edge_a is not None and OPPOSITE.get(edge_a) == edge_b else None
     threshold = float(assessment.channels.threshold.value_m2)
     return _Setup(
         grid=grid, flow=flow, seeds_a=sides.a.seeds, seeds_b=sides.b.seeds, mask_a=mask_a, mask_b=mask_b,
         region_a=_nearest_side(mask_a, mask_b), edges={e: "closed" for e in closed}, closed=closed,
-        tracked=tracked, walls=walls, channel_area_m2=max(threshold, 2.0 * float(np.max(grid.cell_area))),
+        channel_area_m2=max(threshold, 2.0 * float(np.max(grid.cell_area))),
         length_m=divide.length_m, present=divide.lines,
     )
 
@@ -701,7 +825,9 @@ def forecast(
     n_runs : int
         Model runs: the central run plus ``n_runs - 1`` ensemble members
         drawn by a seeded Latin hypercube over K (the central 95 % of the
-        calibration's samples) and θ (its interval).
+        calibration's samples), θ (its interval), n (log-uniform within a
+        factor :data:`N_FACTOR` of the assessment's) and D (log-uniform within
+        a factor :data:`D_FACTOR` of ``diffusivity``).
     seed : int
         Seed of the ensemble (and of the assessment when one is made).
     uplift : {"uniform", "sides"}
@@ -745,10 +871,11 @@ def forecast(
     the θ interval K is re-scaled so the calibrated erosion rate holds at the
     same median channel steepness. Open edges are held at their present
     elevations, closed edges stay closed. The divide is measured from the
-    model's own routing at eleven times: for two opposite edges as the mean
-    over rows (or columns) of its position
-    (:func:`divides.model.tracking.divide_positions`), otherwise as the net
-    area side a takes from side b divided by the present divide length.
+    model's own routing at eleven times, as the net area side a takes from
+    side b divided by the length of the present divide that still separates
+    the two sides (:func:`divides.model.tracking.exchange_displacement`):
+    cells that open edges or other basins take from either side are not
+    read as motion of this divide.
 
     Examples
     --------
@@ -787,14 +914,16 @@ def forecast(
     grid, factor = coarsen(dem, max_cells=max_cells)
     setup = _setup(assessment, grid, factor)
 
-    common = dict(n=calibrated.n, years=years_f, uplift_mode=uplift, diffusivity=float(diffusivity),
-                  max_steps=int(max_steps))
-    central = _run(setup, label="central", theta=calibrated.theta0, k=calibrated.erodibility(calibrated.theta0, 0.5),
-                   **common)
+    common = dict(years=years_f, uplift_mode=uplift, max_steps=int(max_steps))
+    d0 = float(diffusivity)
+    central = _run(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
+                   k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
     members = []
-    for i, (q_k, q_theta) in enumerate(_design(int(n_runs), int(seed))):
+    for i, (q_k, q_theta, q_n, q_d) in enumerate(_design(int(n_runs), int(seed))):
         theta = theta_lo + (theta_hi - theta_lo) * q_theta
-        members.append(_run(setup, label=f"member {i + 1}", theta=theta, k=calibrated.erodibility(theta, q_k),
+        n_i = _spread(calibrated.n, N_FACTOR, q_n)
+        members.append(_run(setup, label=f"member {i + 1}", theta=theta, n=n_i,
+                            k=calibrated.erodibility(theta, q_k, n_i), diffusivity=_spread(d0, D_FACTOR, q_d),
                             **common))
 
     notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup)
@@ -813,6 +942,9 @@ def forecast(
         "uplift_mode": uplift,
         "uplift_m_per_yr": {"a": central.uplift[0], "b": central.uplift[1]},
         "diffusivity_m2_per_yr": float(diffusivity),
+        "ensemble_intervals": {"n": [calibrated.n / N_FACTOR, calibrated.n * N_FACTOR],
+                               "diffusivity_m2_per_yr": [float(diffusivity) / D_FACTOR, float(diffusivity) * D_FACTOR],
+                               "theta": [theta_lo, theta_hi]},
         "edges": {e: ("closed" if e in setup.closed else "open, held at present elevations")
                   for e in ("north", "south", "west", "east")},
         "n_runs": int(n_runs),
@@ -821,8 +953,7 @@ def forecast(
         "n_steps": central.n_steps,
         "courant": central.courant,
         "channel_area_m2": setup.channel_area_m2,
-        "measure": "mean position along rows/columns between opposite edges" if setup.tracked
-                   else "net area exchanged / present divide length",
+        "measure": MEASURE,
     }
     verdict = assessment.verdict
     summary = {"moves_toward": verdict.moves_toward, "confidence": verdict.confidence,
@@ -847,16 +978,17 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
         notes.append("The step cap was reached: knickpoints cross more than one cell per step, which smooths "
                      "transients and can slow the modelled divide; raise max_steps for a finer run.")
     if calibrated.k_samples is None or np.ptp(calibrated.k_samples) == 0:
-        notes.append(f"Erodibility from {calibrated.source} is taken as exact: the bands reflect θ only "
-                     f"({theta_basis}).")
+        notes.append(f"Erodibility from {calibrated.source} is taken as exact: the bands reflect θ "
+                     f"({theta_basis}), n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
     else:
-        notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples) and θ ({theta_basis}).")
+        notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples), θ ({theta_basis}), "
+                     f"n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
     notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
                                if uplift == "uniform" else
                                "each side at its own channel erosion rate at the start (fields split by side)."))
     if any(r.captured for r in runs):
         notes.append("In at least one run a side's outlet came to drain through the other side (a capture): "
                      "displacements after that are those of the remaining cells.")
-    if not setup.closed and setup.tracked is None:
+    if not setup.closed:
         notes.append("Open DEM edges hold their present elevations; cells near them are fixed at base level.")
     return notes

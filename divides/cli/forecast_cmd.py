@@ -62,7 +62,7 @@ def forecast(
     closed_edges: Annotated[str | None, _option("--closed-edges", "EDGE,EDGE", _EDGES_HELP)] = None,
     uplift: Annotated[str, _option("--uplift", "uniform|sides", _UPLIFT_HELP, show_default=True)] = "uniform",
     diffusivity: Annotated[str | None, _option("--diffusivity", "M2_PER_YR", _D_HELP)] = None,
-    runs: Annotated[int, _option("--runs", "N", "Model runs: a central one plus an ensemble over K and θ.", min=1,
+    runs: Annotated[int, _option("--runs", "N", "Model runs: a central one plus an ensemble over K, θ, n and D.", min=1,
                                  show_default=True)] = 9,
     seed: Annotated[int, _option("--seed", "N", "Seed of the ensemble and the assessment.", show_default=True)] = 0,
     lonlat: Annotated[bool, typer.Option("--lonlat", help="SPEC points are longitude,latitude (WGS 84).")] = False,
@@ -79,7 +79,7 @@ def forecast(
     Runs stream-power landscape evolution forward from the present DEM, with
     θ, n and erodibility K from the assessment of the divide (K calibrated
     from a measured erosion rate, or given), and reports the divide's
-    displacement with low/best/high bands from the uncertainty of K and θ.
+    displacement with low/best/high bands from the uncertainty of K, θ, n and D.
     Large DEMs are block-averaged to at most 300 x 300 cells first. One of
     --erosion-rate-a, --erosion-rate-b or --erodibility-k is required.
     A screening estimate: modelled timescales depend on the solver, time
