@@ -1,0 +1,97 @@
+"""Knickpoint travel times and divide speeds from rate.py against the forward model and crest kinematics.
+
+The model runs are the measurement; the predictions come from the published
+celerity (Royden & Perron 2013) and the kinematics of a crest between two
+lowering slopes (Gilbert 1877; Mudd & Furbish 2005; Forte & Whipple 2018).
+No expected value is taken from the code under test.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import divides
+from divides.assess.rate import travel_time
+from divides.errors import ParameterError
+from divides.model import edge_catchments, open_edge, simulate
+from divides.model.scenarios import ridge_surface
+
+DX = 100.0
+U = 1e-3  # uplift, m/yr
+THETA = 0.45
+WALLS = {"north": "closed", "south": "closed"}
+
+
+def _steady(n: float, k: float) -> divides.Dem:
+    """A ridge between open west and east edges grown to steady state under uniform U and K."""
+    start = ridge_surface((16, 40), cell_size=DX, relief=20.0, noise=1.0, seed=2)
+    grown = simulate(start, duration=3e6, dt=5e3, uplift=U, erodibility=k, m=THETA * n, n=n, edges=WALLS).final
+    # steady: another 100 kyr changes nothing (E = U everywhere)
+    again = simulate(grown, duration=1e5, dt=5e3, uplift=U, erodibility=k, m=THETA * n, n=n, edges=WALLS).final
+    np.testing.assert_allclose(again.elevation, grown.elevation, atol=1e-6)
+    return grown
+
+
+def _head_and_path(surface: divides.Dem) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
+    """The west side's channel head nearest the divide (area >= 5 cells), its flow path to the
+    west edge, and the length and drainage area of each step of that path."""
+    flow = divides.route(surface, closed_edges=("north", "south"))
+    area = flow.area.ravel()
+    cols = surface.shape[1]
+    west = edge_catchments(flow, ["west", "east"]).ravel() == 1
+    candidates = np.flatnonzero(west & (area >= 5 * DX * DX))
+    head = int(candidates[np.argmax(candidates % cols)])
+    path = [head]
+    while flow.receivers[path[-1]] != path[-1]:
+        path.append(int(flow.receivers[path[-1]]))
+    steps = np.asarray(path[:-1])  # each node erodes toward its receiver with its own area
+    return head, steps, np.asarray(flow.distance).ravel()[steps], area[steps]
+
+
+@pytest.mark.parametrize(
+    ("n", "k", "fall"),
+    [
+        (1.0, 1e-4, {"elevation": -10.0}),  # base level drops 10 m at once
+        (2.0, 1e-5, {"lowering_rate": 2e-3}),  # base level starts falling at 2 mm/yr: a shock for n > 1
+        (1.5, 3e-5, {"lowering_rate": 2e-3}),
+    ],
+)
+def test_knickpoint_reaches_the_channel_head_when_its_celerity_says(n, k, fall):
+    # Royden & Perron 2013: for n = 1 a knickpoint climbs at K A^m whatever its shape; for n > 1 a
+    # break whose steeper reach lies downstream climbs as a shock at K A^m (S1^n - S2^n)/(S1 - S2).
+    # The travel time to the channel head nearest the divide must match the time the run takes
+    # to lower that head (by half the drop, or to half the new lowering rate) within 30 %.
+    surface = _steady(n, k)
+    head, _, length, area = _head_and_path(surface)
+    times = np.arange(0.0, 1.5e5 + 1.0, 1e3)
+    common = dict(duration=times[-1], dt=100.0, uplift=U, erodibility=k, m=THETA * n, n=n, snapshot_times=times)
+    run = simulate(surface, edges={**WALLS, "west": open_edge(**fall)}, **common)
+    control = simulate(surface, edges=WALLS, **common)
+    drop = np.array([c.elevation.ravel()[head] - s.elevation.ravel()[head]
+                     for s, c in zip(run.snapshots, control.snapshots)])
+    if "elevation" in fall:
+        arrived = drop >= 0.5 * 10.0
+    else:
+        arrived = np.gradient(drop, times) >= 0.5 * fall["lowering_rate"]
+    assert arrived.any()
+    measured = times[np.argmax(arrived)]
+    predictions = []
+    for a0 in (1.0, 1e6):  # reference area 1 m² and 1 km²
+        chi = float(np.sum(length * (a0 / area) ** THETA))
+        steep = {}
+        if n != 1.0:
+            # steady steepness at A0: S (A/A0)^θ = (U / (K A0^m))^(1/n) (Whipple & Tucker 1999)
+            steep = {"ksn_below": ((U + fall["lowering_rate"]) / (k * a0 ** (THETA * n))) ** (1 / n),
+                     "ksn_above": (U / (k * a0 ** (THETA * n))) ** (1 / n)}
+        predictions.append(float(travel_time(chi, erodibility=k, theta=THETA, n=n, a0_m2=a0, **steep)))
+    assert predictions[1] == pytest.approx(predictions[0], rel=1e-9)  # A0 cancels (issue 13, item 4)
+    assert predictions[0] == pytest.approx(measured, rel=0.3), (predictions[0], measured)
+
+
+def test_travel_time_for_n_other_than_one_needs_the_steepness():
+    # The step celerity depends on the slopes on both sides when n != 1 (Royden & Perron 2013).
+    with pytest.raises(ParameterError, match="ksn_below"):
+        travel_time(1.0, erodibility=1e-5, theta=0.45, n=2.0)
+    # n = 1: χ / (K A0^m) (Perron & Royden 2013), here 2 / (1e-4 x 100^0.45)
+    assert float(travel_time(2.0, erodibility=1e-4, theta=0.45, a0_m2=100.0)) == pytest.approx(2e4 / 100**0.45)
