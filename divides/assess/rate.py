@@ -8,7 +8,7 @@ import numpy as np
 
 from divides.errors import ParameterError
 
-__all__ = ["Calibration", "calibrate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity", "travel_time"]
+__all__ = ["Calibration", "calibrate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity", "travel_time", "divide_rate"]
 
 #: Measured divide migration rates span about 0.001-10 mm/yr (He et al. 2024).
 PLAUSIBLE_MM_PER_YR = (0.001, 10.0)
@@ -173,6 +173,51 @@ def calibrate(
     return Calibration("none")
 
 
+def divide_rate(
+    erosion_a: np.ndarray | float,
+    erosion_b: np.ndarray | float,
+    slope_a: np.ndarray | float,
+    slope_b: np.ndarray | float,
+    *,
+    uplift_a: np.ndarray | float = 0.0,
+    uplift_b: np.ndarray | float = 0.0,
+) -> np.ndarray:
+    """Horizontal speed of a sharp crest between two lowering flanks (m/yr, positive into side b).
+
+    Each flank's surface changes at U − E; the crest, where the two meet,
+    moves into b at V = [(U_b − E_b) − (U_a − E_a)] / (S_a + S_b), S being
+    the flank gradients at the crest (Gilbert 1877 for the principle; Mudd &
+    Furbish 2005 and Forte & Whipple 2018 for crests between asymmetric
+    flanks). The side that lowers faster relative to the other gains ground.
+    With the same uplift on both sides U cancels, leaving
+    (E_a − E_b)/(S_a + S_b).
+
+    Parameters
+    ----------
+    erosion_a, erosion_b : float or ndarray
+        Erosion rates next to the crest (m/yr).
+    slope_a, slope_b : float or ndarray
+        Flank gradients at the crest (m/m, positive).
+    uplift_a, uplift_b : float or ndarray
+        Rock uplift rates relative to base level under each flank (m/yr).
+
+    Returns
+    -------
+    ndarray
+        m/yr, positive into side b.
+
+    Examples
+    --------
+    >>> float(divide_rate(1e-3, 0.5e-3, 0.3, 0.2, uplift_a=1e-3, uplift_b=1e-3))
+    0.001
+    >>> float(divide_rate(1e-3, 1e-3, 0.3, 0.2, uplift_a=1e-3, uplift_b=1.5e-3))
+    0.001
+    """
+    net_a = np.asarray(uplift_a, dtype=np.float64) - np.asarray(erosion_a, dtype=np.float64)
+    net_b = np.asarray(uplift_b, dtype=np.float64) - np.asarray(erosion_b, dtype=np.float64)
+    return (net_b - net_a) / (np.asarray(slope_a, dtype=np.float64) + np.asarray(slope_b, dtype=np.float64))
+
+
 def migration_rate(
     erosion_a: np.ndarray, erosion_b: np.ndarray, tan_a: np.ndarray, tan_b: np.ndarray
 ) -> np.ndarray:
@@ -180,6 +225,6 @@ def migration_rate(
 
     With side a lowered at E_a on a slope tan α_a and side b at E_b on tan α_b,
     the crest moves toward b at V = (E_a − E_b) / (tan α_a + tan α_b)
-    (kinematics of two intersecting planes).
+    (kinematics of two intersecting planes): :func:`divide_rate` with equal uplift.
     """
-    return (np.asarray(erosion_a) - np.asarray(erosion_b)) / (np.asarray(tan_a) + np.asarray(tan_b))
+    return divide_rate(erosion_a, erosion_b, tan_a, tan_b)

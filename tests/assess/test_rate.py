@@ -12,9 +12,9 @@ import numpy as np
 import pytest
 
 import divides
-from divides.assess.rate import travel_time
+from divides.assess.rate import divide_rate, migration_rate, travel_time
 from divides.errors import ParameterError
-from divides.model import edge_catchments, open_edge, simulate
+from divides.model import divide_positions, edge_catchments, open_edge, simulate
 from divides.model.scenarios import ridge_surface
 
 DX = 100.0
@@ -95,3 +95,63 @@ def test_travel_time_for_n_other_than_one_needs_the_steepness():
         travel_time(1.0, erodibility=1e-5, theta=0.45, n=2.0)
     # n = 1: χ / (K A0^m) (Perron & Royden 2013), here 2 / (1e-4 x 100^0.45)
     assert float(travel_time(2.0, erodibility=1e-4, theta=0.45, a0_m2=100.0)) == pytest.approx(2e4 / 100**0.45)
+
+
+# ---------------------------------------------------------------- crest kinematics with uplift
+def test_divide_rate_is_the_speed_of_the_intersection_of_two_planes():
+    # Geometry (Gilbert 1877; the kinematics in METHODS, "Crest kinematics with uplift"): flank a
+    # rises east at S_a and changes height at U_a - E_a, flank b rises west at S_b and changes at
+    # U_b - E_b; the crest is the highest point of the lower envelope. Found here by brute force on a
+    # fine line at two times, not from the formula.
+    x = np.linspace(-2000.0, 7000.0, 450_001)  # 2 cm apart
+    rng = np.random.default_rng(7)
+    for _ in range(20):
+        s_a, s_b = rng.uniform(0.05, 0.5, 2)
+        e_a, e_b, u_a, u_b = rng.uniform(0.0, 2e-3, 4)
+
+        def crest(t):
+            z = np.minimum(s_a * x + (u_a - e_a) * t, s_b * (5000.0 - x) + (u_b - e_b) * t)
+            return x[np.argmax(z)]
+
+        t = 2e4  # the crest stays on the line (it moves at most 80 m in this time)
+        measured = (crest(t) - crest(0.0)) / t
+        expected = float(divide_rate(e_a, e_b, s_a, s_b, uplift_a=u_a, uplift_b=u_b))
+        assert measured == pytest.approx(expected, abs=0.04 / t)  # two grid spacings
+    # equal uplift cancels: the older form V = (E_a - E_b)/(tan a + tan b) is the same number
+    assert float(migration_rate(2e-3, 1e-3, 0.3, 0.2)) == pytest.approx(float(
+        divide_rate(2e-3, 1e-3, 0.3, 0.2, uplift_a=5e-3, uplift_b=5e-3)))
+
+
+def _planes(rows: int = 10, cols: int = 61, s_a: float = 0.2, s_b: float = 0.1) -> divides.Dem:
+    c = np.arange(cols, dtype=np.float64)
+    z = np.minimum(s_a * DX * c, s_b * DX * (cols - 1 - c))  # crest between columns 20 and 21
+    return divides.Dem.from_array(np.repeat(z[None], rows, axis=0), cell_size=DX, valid_range=None)
+
+
+def test_divide_between_uplifted_planes_in_the_model_moves_at_the_crest_speed():
+    # Two planes under E = K A^m S^n with m = 0.01 (every cell of a flank lowered at K S^n, within
+    # the factor A^0.01 between the smallest and largest drainage area), uplift following each side
+    # (U_a under cells draining west, U_b under cells draining east, updated every 20 kyr). Before the
+    # signal of the fixed edges reaches the crest (~1.8 Myr from the west edge at celerity K A^m,
+    # Royden & Perron 2013), both flanks stay planes and the crest must move at divide_rate.
+    # Slack: one cell (the divide lies on a cell face) plus one update interval of motion.
+    k, s_a, s_b, u_a, u_b = 1e-3, 0.2, 0.1, 0.0, 3e-4
+    surface = _planes(s_a=s_a, s_b=s_b)
+    chunk, years = 2e4, 1e6
+    start = divide_positions(divides.route(surface, closed_edges=("north", "south")), "west", "east")[1:-1]
+    for _ in range(int(years / chunk)):
+        flow = divides.route(surface, closed_edges=("north", "south"))
+        uplift = np.where(edge_catchments(flow, ["west", "east"]) == 1, u_a, u_b)
+        surface = simulate(surface, duration=chunk, dt=chunk / 4, uplift=uplift, erodibility=k, m=0.01, n=1.0,
+                           edges=WALLS).final
+    end = divide_positions(divides.route(surface, closed_edges=("north", "south")), "west", "east")[1:-1]
+    moved = float(np.mean(end - start))
+    a_lo, a_hi = (DX * DX) ** 0.01, (60 * DX * DX) ** 0.01
+    lo = float(divide_rate(k * s_a * a_lo, k * s_b * a_hi, s_a, s_b, uplift_a=u_a, uplift_b=u_b)) * years
+    hi = float(divide_rate(k * s_a * a_hi, k * s_b * a_lo, s_a, s_b, uplift_a=u_a, uplift_b=u_b)) * years
+    slack = DX + hi / years * chunk
+    assert lo - slack <= moved <= hi + slack, (lo, moved, hi)
+    # the uplift matters: with U_b = U_a the crest would have moved (E_a - E_b)/(S_a + S_b) t, about
+    # a quarter of this
+    without = float(divide_rate(k * s_a * a_hi, k * s_b * a_lo, s_a, s_b)) * years
+    assert moved > without + slack
