@@ -142,8 +142,8 @@ def forecast(
 
 def _headline(document: dict) -> dict:
     """The short ``summary.json`` of a forecast folder; the full document is ``forecast.json``."""
-    keys = ("schema", "sides", "years", "moves_toward", "bands_agree", "displacement_m", "rate_mm_per_yr",
-            "timescale_caution", "caution")
+    keys = ("schema", "sides", "years", "moves_toward", "bands_agree", "ensemble", "agrees_with_assessment",
+            "comparison", "displacement_m", "rate_mm_per_yr", "timescale_caution", "caution")
     return {**{k: document[k] for k in keys}, "document": "forecast.json"}
 
 
