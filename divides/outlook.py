@@ -501,16 +501,7 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
     f = max(1, math.ceil(max(rows, cols) / max_cells))
     if f == 1:
         return dem, 1
-    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
-    z = np.where(dem.valid, dem.elevation, np.nan).astype(np.float64)
-    z = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge")
-    blocks = z.reshape(rr // f, f, cc // f, f)
-    ok = np.isfinite(blocks)
-    count = ok.sum(axis=(1, 3))
-    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
-    out = np.full(count.shape, np.nan)
-    keep = 2 * count >= f * f
-    out[keep] = total[keep] / count[keep]
+    out = _block_mean(np.where(dem.valid, dem.elevation, np.nan), f)
     transform = dem.transform @ Affine.scale(f)
     if dem.crs is None:
         cell = (float(np.median(dem.dx)) * f, float(np.median(dem.dy)) * f)
@@ -518,6 +509,23 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
     else:
         small = Dem.from_array(out, transform=transform, crs=dem.crs, valid_range=None, path=dem.path)
     return small, f
+
+
+def _block_mean(z: np.ndarray, f: int) -> np.ndarray:
+    """Mean of each f x f block of ``z`` (edges padded by repetition); NaN where fewer than half are finite."""
+    z = np.asarray(z, dtype=np.float64)
+    if f == 1:
+        return z.copy()
+    rows, cols = z.shape
+    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
+    blocks = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge").reshape(rr // f, f, cc // f, f)
+    ok = np.isfinite(blocks)
+    count = ok.sum(axis=(1, 3))
+    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
+    out = np.full(count.shape, np.nan)
+    keep = 2 * count >= f * f
+    out[keep] = total[keep] / count[keep]
+    return out
 
 
 def _upstream(flow: FlowGraph, seeds: np.ndarray) -> np.ndarray:
@@ -715,13 +723,16 @@ def _balance_uplift(setup: _Setup, k_field: np.ndarray, m: float, n: float) -> t
 
 
 def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
-         uplift_mode: str, diffusivity: float, max_steps: int) -> ForecastRun:
+         uplift_mode: str | np.ndarray, diffusivity: float, max_steps: int) -> ForecastRun:
     m = theta * n
     k_field: Any = k[0] if k[0] == k[1] else np.where(setup.region_a, k[0], k[1])
     u_a, u_b, s_ref, a_ref = _balance_uplift(setup, np.asarray(k_field, dtype=np.float64), m, n)
-    if uplift_mode == "uniform":
+    if isinstance(uplift_mode, np.ndarray):  # a raster given: used as is
+        u_field: Any = uplift_mode
+        u_a, u_b = (float(np.median(uplift_mode[mask])) for mask in (setup.mask_a, setup.mask_b))
+    elif uplift_mode == "uniform":
         u_a = u_b = 0.5 * (u_a + u_b)
-        u_field: Any = u_a
+        u_field = u_a
     else:
         u_field = np.where(setup.region_a, u_a, u_b)
     # Time step: a knickpoint at the reference drainage area crosses about one cell per step
@@ -787,8 +798,9 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
                              f"got {n_runs!r}")
     if not isinstance(seed, (int, np.integer)) or isinstance(seed, bool):
         raise ParameterError(f"`seed` must be a whole number; got {seed!r}")
-    if uplift not in UPLIFT_MODES:
-        raise ParameterError(f"`uplift` must be one of {', '.join(UPLIFT_MODES)}; got {uplift!r}")
+    if not isinstance(uplift, np.ndarray) and uplift not in UPLIFT_MODES:
+        raise ParameterError(f"`uplift` must be one of {', '.join(UPLIFT_MODES)} or a raster of uplift rates (m/yr) "
+                             f"on the DEM's grid; got {uplift!r}")
     try:
         d = float(diffusivity)
     except (TypeError, ValueError):
@@ -798,6 +810,19 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
     if not isinstance(max_steps, (int, np.integer)) or isinstance(max_steps, bool) or max_steps < _MIN_STEPS:
         raise ParameterError(f"`max_steps` must be a whole number >= {_MIN_STEPS}; got {max_steps!r}")
     return years_f
+
+
+def _uplift_grid(uplift: str | np.ndarray, dem: Dem, factor: int) -> str | np.ndarray:
+    """The uplift mode, or an uplift raster checked and block-averaged onto the model grid."""
+    if not isinstance(uplift, np.ndarray):
+        return uplift
+    if uplift.shape != dem.shape:
+        raise ParameterError(f"the uplift raster must have the DEM's shape {dem.shape}; got {uplift.shape}")
+    field = np.asarray(uplift, dtype=np.float64)
+    if not np.all(np.isfinite(field[dem.valid])):
+        raise ParameterError("the uplift raster holds non-finite values where the DEM is valid; give m/yr everywhere")
+    small = _block_mean(np.where(dem.valid, field, np.nan), factor)
+    return np.where(np.isfinite(small), small, 0.0)
 
 
 def _same_side(given: str, spec: SideSpec) -> bool:
@@ -813,7 +838,7 @@ def forecast(
     assessment: Assessment | None = None,
     n_runs: int = 9,
     seed: int = 0,
-    uplift: str = "uniform",
+    uplift: str | np.ndarray = "uniform",
     diffusivity: float = DEFAULT_DIFFUSIVITY,
     max_cells: int = MAX_CELLS,
     max_steps: int = _MAX_STEPS,
@@ -849,7 +874,10 @@ def forecast(
         erodibility assume (Willett et al. 2014). ``"sides"``: each side
         uplifts at its own median rate (a raster split by side), so each
         side on its own is in balance and motion comes only from where the
-        landscape departs from it.
+        landscape departs from it. Or an array of the DEM's shape: rock
+        uplift relative to base level (m/yr), block-averaged with the DEM and
+        used as given (Forte & Whipple 2018: an uplift contrast moves a
+        divide that χ alone would call stable).
     diffusivity : float
         Hillslope diffusivity D (m²/yr); 0 turns diffusion off.
     max_cells : int
@@ -909,6 +937,7 @@ def forecast(
     ('b', True)
     """
     years_f = _check_options(years, n_runs, seed, uplift, diffusivity, max_steps)
+    _uplift_grid(uplift, dem, 1)  # a bad raster is refused before the long work
     if assessment is None:
         if not any(assess_options.get(k) is not None for k in _CALIBRATION_OPTIONS):
             raise ParameterError(NEEDS_CALIBRATION)
@@ -933,7 +962,7 @@ def forecast(
     setup = _setup(assessment, grid, factor)
     calibrated = _calibrated(assessment, setup)
 
-    common = dict(years=years_f, uplift_mode=uplift, max_steps=int(max_steps))
+    common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps))
     d0 = float(diffusivity)
     central = _run(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
                    k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
@@ -958,7 +987,7 @@ def forecast(
         "calibration": calibrated.source,
         "erodibility": {"a": central.erodibility[0], "b": central.erodibility[1],
                         "unit": "m^(1-2m)/yr, E = K A^m S^n"},
-        "uplift_mode": uplift,
+        "uplift_mode": "raster" if isinstance(uplift, np.ndarray) else uplift,
         "uplift_m_per_yr": {"a": central.uplift[0], "b": central.uplift[1]},
         "diffusivity_m2_per_yr": float(diffusivity),
         "ensemble_intervals": {"n": [calibrated.n / N_FACTOR, calibrated.n * N_FACTOR],
@@ -986,7 +1015,7 @@ def forecast(
 
 
 def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list, calibrated: _Calibrated,
-           theta_basis: str, uplift: str, setup: _Setup) -> list[str]:
+           theta_basis: str, uplift: str | np.ndarray, setup: _Setup) -> list[str]:
     notes = []
     if factor > 1:
         notes.append(f"For speed the DEM ({dem.shape[0]} x {dem.shape[1]} cells) was block-averaged by {factor} x "
@@ -1002,9 +1031,12 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
     else:
         notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples), θ ({theta_basis}), "
                      f"n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
-    notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
-                               if uplift == "uniform" else
-                               "each side at its own channel erosion rate at the start (fields split by side)."))
+    if isinstance(uplift, np.ndarray):
+        notes.append("Uplift: the raster given" + (" (block-averaged with the DEM)." if factor > 1 else "."))
+    else:
+        notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
+                                   if uplift == "uniform" else
+                                   "each side at its own channel erosion rate at the start (fields split by side)."))
     if any(r.captured for r in runs):
         notes.append("In at least one run a side's outlet came to drain through the other side (a capture): "
                      "displacements after that are those of the remaining cells.")

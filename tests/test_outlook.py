@@ -220,6 +220,7 @@ def test_an_assessment_given_is_used_as_is(transient_ridge):
         ({"years": 1e5, "erodibility": 1e-5, "n_runs": 0}, "`n_runs` must be a whole number >= 1"),
         ({"years": 1e5, "erodibility": 1e-5, "uplift": "tilted"}, "`uplift` must be one of uniform, sides"),
         ({"years": 1e5, "erodibility": 1e-5, "diffusivity": -1.0}, "`diffusivity` must be a number >= 0"),
+        ({"years": 1e5, "erodibility": 1e-5, "uplift": np.zeros((2, 2))}, "the uplift raster must have the DEM's"),
     ],
 )
 def test_bad_input_is_one_clear_error(transient_ridge, options, message):
