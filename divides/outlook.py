@@ -755,8 +755,7 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
         if both.any():  # one side's outlet now drains through the other: a capture
             captured = True
             mask_a, mask_b = mask_a & ~both, mask_b & ~both
-        disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present,
-                                          setup.grid))
+        disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present))
         areas.append(float(np.sum(cell_area[mask_a])))
     try:
         lines = divide_between(result.final, mask_a, mask_b).lines

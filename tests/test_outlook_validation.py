@@ -47,7 +47,7 @@ def _case(scenario: S.Scenario, start: divides.Dem, snapshot_years: float) -> di
     a0, b0 = _sides(snap)
     a1, b1 = _sides(later.final)
     lines = divide_between(snap, a0, b0).lines
-    moved = exchange_displacement(snap.cell_area_grid(), (a0, b0), (a1, b1), lines, snap)
+    moved = exchange_displacement(snap.cell_area_grid(), (a0, b0), (a1, b1), lines)
     # mean erosion rate of each side over the first 20 kyr: uplift minus the change of height
     uplift = np.broadcast_to(np.asarray(options["uplift"], dtype=np.float64), snap.shape)
     erosion = uplift - (later.snapshots[0].elevation - snap.elevation) / RATE_WINDOW

@@ -24,7 +24,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from divides.errors import ParameterError
-from divides.io.dem import Dem
 from divides.terrain.routing import FlowGraph
 
 __all__ = ["OPPOSITE", "DivideTrack", "edge_catchments", "divide_positions", "shared_length", "exchange_displacement"]
@@ -161,7 +160,7 @@ def divide_positions(
     return out
 
 
-def shared_length(lines: list, keep: np.ndarray, dem: Dem) -> float:
+def shared_length(lines: list, keep: np.ndarray) -> float:
     """Length (m) of divide lines whose cells on both sides all lie in ``keep``.
 
     Parameters
@@ -171,8 +170,6 @@ def shared_length(lines: list, keep: np.ndarray, dem: Dem) -> float:
         as traced by :func:`divides.terrain.divide_lines.divide_between`.
     keep : ndarray of bool, DEM shape
         Cells that still belong to either side.
-    dem : Dem
-        The grid (per-row cell sizes).
 
     Returns
     -------
@@ -191,7 +188,7 @@ def shared_length(lines: list, keep: np.ndarray, dem: Dem) -> float:
     >>> dem = Dem.from_array(np.zeros((6, 6)), cell_size=10.0)
     >>> lines = divide_between(dem, a, ~a, smoothing_cells=0.0).lines
     >>> keep = np.ones((6, 6), bool); keep[:2] = False
-    >>> round(shared_length(lines, np.ones((6, 6), bool), dem)), round(shared_length(lines, keep, dem))
+    >>> round(shared_length(lines, np.ones((6, 6), bool))), round(shared_length(lines, keep))
     (60, 40)
     """
     keep = np.asarray(keep, dtype=bool)
@@ -225,7 +222,6 @@ def exchange_displacement(
     start: tuple[np.ndarray, np.ndarray],
     now: tuple[np.ndarray, np.ndarray],
     lines: list,
-    dem: Dem,
 ) -> float:
     """Mean displacement (m) of the divide between two sides, from the area they exchanged.
 
@@ -237,8 +233,6 @@ def exchange_displacement(
         Masks of side a and side b at the start and now.
     lines : list of DivideLine
         The divide at the start.
-    dem : Dem
-        The grid.
 
     Returns
     -------
@@ -263,13 +257,13 @@ def exchange_displacement(
     >>> b1 = ~a1
     >>> a1[:2], b1[:2] = False, False  # two rows now drain to the north edge
     >>> lines = divide_between(dem, a0, ~a0, smoothing_cells=0.0).lines
-    >>> float(exchange_displacement(np.full((6, 10), 100.0), (a0, ~a0), (a1, b1), lines, dem))
+    >>> float(exchange_displacement(np.full((6, 10), 100.0), (a0, ~a0), (a1, b1), lines))
     20.0
     """
     a0, b0 = (np.asarray(m, dtype=bool) for m in start)
     a1, b1 = (np.asarray(m, dtype=bool) for m in now)
     gained = float(np.sum(cell_area[b0 & a1]) - np.sum(cell_area[a0 & b1]))
-    length = shared_length(lines, (a0 | b0) & (a1 | b1), dem)
+    length = shared_length(lines, (a0 | b0) & (a1 | b1))
     return gained / length if length > 0 else float("nan")
 
 
