@@ -1,4 +1,4 @@
-"""Erosion rates from steepness, and the horizontal migration rate of the divide."""
+"""Erosion rates from steepness, knickpoint travel times, and the horizontal speed of the divide."""
 
 from __future__ import annotations
 
@@ -8,7 +8,9 @@ import numpy as np
 
 from divides.errors import ParameterError
 
-__all__ = ["Calibration", "calibrate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity", "travel_time", "divide_rate"]
+__all__ = [
+    "Calibration", "calibrate", "divide_rate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity", "travel_time",
+]
 
 #: Measured divide migration rates span about 0.001-10 mm/yr (He et al. 2024).
 PLAUSIBLE_MM_PER_YR = (0.001, 10.0)
