@@ -9,7 +9,8 @@ import numpy as np
 from divides.errors import ParameterError
 
 __all__ = [
-    "Calibration", "calibrate", "divide_rate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity", "travel_time",
+    "Calibration", "calibrate", "divide_rate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "positive_samples",
+    "step_celerity", "travel_time",
 ]
 
 #: Measured divide migration rates span about 0.001-10 mm/yr (He et al. 2024).
@@ -137,6 +138,11 @@ def calibrate(
     erodibility: float | None = None,
     knickpoint: dict | None = None,
     knickpoint_age_years: float | None = None,
+    erosion_rate_a_error_mm_yr: float | None = None,
+    erosion_rate_b_error_mm_yr: float | None = None,
+    erodibility_error: float | None = None,
+    knickpoint_age_error_years: float | None = None,
+    seed: int = 0,
 ) -> Calibration:
     """Erosion rates E = K ksn^n of both sides from whichever calibration is given.
 
@@ -153,26 +159,62 @@ def calibrate(
     knickpoint, knickpoint_age_years : dict and float, optional
         A knickpoint (``chi``, ``ksn_below``, ``ksn_above``) that formed at the
         common base level ``knickpoint_age_years`` ago: K = χ / (age · celerity).
+    erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr : float, optional
+        One standard deviation of the measured rates (mm/yr).
+    erodibility_error, knickpoint_age_error_years : float, optional
+        One standard deviation of the matching input. Each input with an
+        error is drawn, independently of the ksn samples, from the lognormal
+        distribution with the given value as mean and the error as standard
+        deviation (positive, as rates, K and ages are); without one it is
+        taken as exact.
+    seed : int
+        Seed of those draws.
     """
     ka, kb = np.asarray(ksn_a, dtype=np.float64), np.asarray(ksn_b, dtype=np.float64)
+    rng = np.random.default_rng(seed)
+
+    def draw(value: float, error: float | None, size: int) -> np.ndarray:
+        return np.full(size, float(value)) if not error else positive_samples(value, error, size, rng)
+
     if erosion_rate_a_mm_yr is not None and erosion_rate_b_mm_yr is not None:
-        ea = np.full(ka.shape, erosion_rate_a_mm_yr * 1e-3)
-        eb = np.full(kb.shape, erosion_rate_b_mm_yr * 1e-3)
+        ea = draw(erosion_rate_a_mm_yr, erosion_rate_a_error_mm_yr, ka.size).reshape(ka.shape) * 1e-3
+        eb = draw(erosion_rate_b_mm_yr, erosion_rate_b_error_mm_yr, kb.size).reshape(kb.shape) * 1e-3
         return Calibration("erosion rates of both sides", ea, eb, None)
     if erosion_rate_a_mm_yr is not None or erosion_rate_b_mm_yr is not None:
         side = "a" if erosion_rate_a_mm_yr is not None else "b"
-        e = (erosion_rate_a_mm_yr if side == "a" else erosion_rate_b_mm_yr) * 1e-3
-        k = e / (ka if side == "a" else kb) ** n
+        value, error = ((erosion_rate_a_mm_yr, erosion_rate_a_error_mm_yr) if side == "a"
+                        else (erosion_rate_b_mm_yr, erosion_rate_b_error_mm_yr))
+        ks = ka if side == "a" else kb
+        e = draw(value, error, ks.size).reshape(ks.shape) * 1e-3
+        k = e / ks**n
         return Calibration(f"erosion rate of side {side}", k * ka**n, k * kb**n, k)
     if erodibility is not None:
-        k = np.full(ka.shape, float(erodibility))
+        k = draw(erodibility, erodibility_error, ka.size).reshape(ka.shape)
         return Calibration("erodibility K", k * ka**n, k * kb**n, k)
     if knickpoint is not None and knickpoint_age_years is not None:
         c = float(step_celerity(knickpoint["ksn_below"], knickpoint["ksn_above"], n))
-        k = np.full(ka.shape, knickpoint["chi"] / (knickpoint_age_years * c))
+        age = draw(knickpoint_age_years, knickpoint_age_error_years, ka.size).reshape(ka.shape)
+        k = knickpoint["chi"] / (age * c)
         return Calibration("dated knickpoint", k * ka**n, k * kb**n, k,
                            ["assumes the knickpoint left the common base level when it formed"])
     return Calibration("none")
+
+
+def positive_samples(value: float, error: float, size: int, rng: np.random.Generator) -> np.ndarray:
+    """``size`` draws of a positive quantity with mean ``value`` and standard deviation ``error``.
+
+    Lognormal with those two moments: σ² = ln(1 + (error/value)²), μ = ln(value) − σ²/2
+    (the moments of the lognormal distribution; e.g. Johnson, Kotz & Balakrishnan 1994,
+    Continuous Univariate Distributions 1, ch. 14).
+
+    >>> x = positive_samples(0.2, 0.05, 200_000, np.random.default_rng(1))
+    >>> round(float(x.mean()), 3), round(float(x.std()), 3), bool(x.min() > 0)
+    (0.2, 0.05, True)
+    """
+    if not (np.isfinite(value) and value > 0 and np.isfinite(error) and error >= 0):
+        raise ParameterError(f"a value and its error must be positive and finite; got {value!r} ± {error!r}")
+    s2 = np.log1p((error / value) ** 2)
+    return rng.lognormal(np.log(value) - 0.5 * s2, np.sqrt(s2), size)
 
 
 def divide_rate(

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 import divides
-from divides.assess.rate import divide_rate, migration_rate, travel_time
+from divides.assess.rate import calibrate, divide_rate, migration_rate, travel_time
 from divides.errors import ParameterError
 from divides.model import divide_positions, edge_catchments, open_edge, simulate
 from divides.model.scenarios import ridge_surface
@@ -155,3 +155,28 @@ def test_divide_between_uplifted_planes_in_the_model_moves_at_the_crest_speed():
     # a quarter of this
     without = float(divide_rate(k * s_a * a_hi, k * s_b * a_lo, s_a, s_b)) * years
     assert moved > without + slack
+
+
+# ---------------------------------------------------------------- errors of the inputs
+def test_errors_of_the_inputs_carry_into_k_and_the_erosion_rates():
+    # Propagation of independent errors (common practice): with exact steepness, K = E / ksn^n has
+    # the relative spread of E; the rate of the other side E_b = K ksn_b^n has it too. With a
+    # steepness spread as well, the relative variances add (first order, Taylor expansion).
+    ksn = np.full(4000, 50.0)
+    cal = calibrate(ksn_a=ksn, ksn_b=ksn * 2.0, n=1.0, erosion_rate_a_mm_yr=0.2, erosion_rate_a_error_mm_yr=0.05)
+    assert np.std(cal.k) / np.mean(cal.k) == pytest.approx(0.25, rel=0.1)
+    assert np.mean(cal.erosion_a) == pytest.approx(0.2e-3, rel=0.02)
+    assert np.std(cal.erosion_b) / np.mean(cal.erosion_b) == pytest.approx(0.25, rel=0.1)
+    noisy = np.random.default_rng(3).normal(50.0, 5.0, 4000)  # 10 % spread of the steepness
+    cal = calibrate(ksn_a=noisy, ksn_b=noisy, n=2.0, erosion_rate_a_mm_yr=0.2, erosion_rate_a_error_mm_yr=0.05)
+    expected = np.hypot(0.25, 2.0 * 0.1)  # n = 2 doubles the steepness term
+    assert np.std(np.log(cal.k)) == pytest.approx(expected, rel=0.1)
+    # without an error the input is exact, as before
+    exact = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, erosion_rate_a_mm_yr=0.2)
+    assert np.ptp(exact.k) == 0.0
+    # a dated knickpoint: K = χ / (age c) with a 20 % error of the age gives about 20 % in K
+    dated = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, knickpoint={"chi": 10.0, "ksn_below": 60.0, "ksn_above": 50.0},
+                      knickpoint_age_years=1e5, knickpoint_age_error_years=2e4)
+    assert np.std(np.log(dated.k)) == pytest.approx(0.2, rel=0.1)
+    given = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, erodibility=1e-5, erodibility_error=3e-6)
+    assert np.mean(given.k) == pytest.approx(1e-5, rel=0.02) and np.std(given.k) == pytest.approx(3e-6, rel=0.1)
