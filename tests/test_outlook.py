@@ -21,6 +21,7 @@ from divides.assess.verdict import CAUTION
 from divides.errors import ParameterError
 from divides.outlook import D_FACTOR, N_FACTOR, NEEDS_CALIBRATION, SCHEMA, TIMESCALE_CAUTION, coarsen, forecast
 from divides.model.scenarios import off_centre_divide, ridge_surface, symmetric_divide
+from divides.model.tracking import edge_catchments, exchange_displacement
 
 DX = 100.0
 EDGES = {"closed_edges": ("north", "south")}
@@ -122,6 +123,27 @@ def test_open_edges_that_eat_the_ends_of_the_divide_do_not_read_as_motion(transi
     opened = forecast(transient_ridge, "west", "east", **common)
     assert closed.central.displacement_m[-1] > 2 * DX
     np.testing.assert_allclose(opened.central.displacement_m, closed.central.displacement_m, atol=DX)
+
+
+def test_measured_erosion_rate_gives_the_motion_of_the_continued_run(transient_ridge):
+    # The run that made the ridge, continued 300 kyr, is the truth; the forecast gets the true θ, n
+    # and D and, instead of K, side a's mean erosion rate measured in the run over 20 kyr (as a
+    # basin-averaged cosmogenic rate would be). Target of issue 13 (item 5): within a factor 2.
+    scenario = off_centre_divide((32, 64), crest=0.35)
+    options = {**scenario.options, "track": None}
+    later = divides.simulate(transient_ridge, duration=3e5, dt=1e4, snapshot_times=[2e4], **options)
+    a0, b0 = (edge_catchments(divides.route(transient_ridge, closed_edges=EDGES["closed_edges"]),
+                              ["west", "east"]) == code for code in (1, 2))
+    a1, b1 = (edge_catchments(divides.route(later.final, closed_edges=EDGES["closed_edges"]),
+                              ["west", "east"]) == code for code in (1, 2))
+    lines = divides.divide_between(transient_ridge, a0, b0).lines
+    measured = exchange_displacement(transient_ridge.cell_area_grid(), (a0, b0), (a1, b1), lines)
+    erosion = options["uplift"] - (later.snapshots[0].elevation - transient_ridge.elevation) / 2e4
+    rate_a = 1e3 * float(np.mean(erosion[a0]))
+    fc = forecast(transient_ridge, "west", "east", years=3e5, erosion_rate_a_mm_yr=rate_a, theta=options["m"],
+                  n=options["n"], diffusivity=options["diffusivity"], n_runs=1, **EDGES)
+    assert measured > DX  # it moved east, into side b, by more than a cell
+    assert 0.5 <= fc.central.displacement_m[-1] / measured <= 2.0, (fc.central.displacement_m[-1], measured)
 
 
 def test_erodibility_and_time_scale_together(transient_ridge):
