@@ -18,6 +18,7 @@ calibration.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -31,7 +32,7 @@ from divides.assess.verdict import CAUTION
 from divides._jsonable import to_jsonable
 from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
-from divides.model.forcing import check_positive
+from divides.model.forcing import check_positive, open_edge
 from divides.model.simulate import simulate
 from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import divide_between
@@ -811,6 +812,32 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
     return years_f
 
 
+def _check_lowering(edge_lowering: Any, closed: Any, assessment: Assessment | None) -> dict[str, float]:
+    """Validated ``edge_lowering``: open DEM edges and finite rates in m/yr."""
+    if edge_lowering is None:
+        return {}
+    if not isinstance(edge_lowering, dict):
+        raise ParameterError(f"`edge_lowering` must map DEM edges to lowering rates in m/yr, e.g. {{'west': 2e-4}}; "
+                             f"got {edge_lowering!r}")
+    if assessment is not None:
+        closed = assessment.config.closed_edges
+    shut = set(closed.replace(" ", "").split(",") if isinstance(closed, str) else (closed or ()))
+    out = {}
+    for edge, rate in edge_lowering.items():
+        if edge not in ("north", "south", "west", "east"):
+            raise ParameterError(f"`edge_lowering` names {edge!r}; use north, south, west or east")
+        if edge in shut:
+            raise ParameterError(f"`edge_lowering` names the closed edge {edge!r}; only an open edge has a base level")
+        try:
+            r = float(rate)
+        except (TypeError, ValueError):
+            r = math.nan
+        if not math.isfinite(r):
+            raise ParameterError(f"the lowering rate of the {edge} edge must be a number of m/yr; got {rate!r}")
+        out[edge] = r
+    return out
+
+
 def _uplift_grid(uplift: str | np.ndarray, dem: Dem, factor: int) -> str | np.ndarray:
     """The uplift mode, or an uplift raster checked and block-averaged onto the model grid."""
     if not isinstance(uplift, np.ndarray):
@@ -842,6 +869,7 @@ def forecast(
     max_cells: int = MAX_CELLS,
     max_steps: int = _MAX_STEPS,
     lonlat: bool = False,
+    edge_lowering: dict[str, float] | None = None,
     **assess_options: Any,
 ) -> Forecast:
     """Forecast where the divide between two sides of a DEM will be after ``years``.
@@ -885,6 +913,10 @@ def forecast(
         Most time steps per run (accuracy falls when the cap is reached; see notes).
     lonlat : bool
         SPEC points are longitude,latitude.
+    edge_lowering : dict, optional
+        Open edges whose base level keeps falling, and how fast (m/yr,
+        positive lowers), e.g. ``{"west": 2e-4}``; other open edges are held
+        at their present elevations.
     **assess_options
         Options of :func:`divides.assess` (``theta``, ``n``, ``closed_edges``,
         ``erosion_rate_a_mm_yr``, ``erosion_rate_b_mm_yr``, ``erodibility``,
@@ -936,6 +968,7 @@ def forecast(
     ('b', True)
     """
     years_f = _check_options(years, n_runs, seed, uplift, diffusivity, max_steps)
+    lowering = _check_lowering(edge_lowering, assess_options.get("closed_edges"), assessment)
     _uplift_grid(uplift, dem, 1)  # a bad raster is refused before the long work
     if assessment is None:
         if not any(assess_options.get(k) is not None for k in _CALIBRATION_OPTIONS):
@@ -959,6 +992,9 @@ def forecast(
     theta_lo, theta_hi, theta_basis = _theta_interval(assessment)
     grid, factor = coarsen(dem, max_cells=max_cells)
     setup = _setup(assessment, grid, factor)
+    if lowering:
+        setup = dataclasses.replace(setup, edges={**setup.edges, **{e: open_edge(lowering_rate=r)
+                                                                   for e, r in lowering.items()}})
     calibrated = _calibrated(assessment, setup)
 
     common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps))
@@ -974,6 +1010,7 @@ def forecast(
                             **common))
 
     notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup)
+    notes += [f"The base level of the {e} edge keeps falling at {_sig(1e3 * r)} mm/yr." for e, r in lowering.items()]
     if assessment.config.sea_level_m is not None:
         notes.append("The model drains only off the DEM's open edges and nodata: cells at or below the sea level "
                      "given to the assessment are not held as outlets.")
@@ -992,7 +1029,8 @@ def forecast(
         "ensemble_intervals": {"n": [calibrated.n / N_FACTOR, calibrated.n * N_FACTOR],
                                "diffusivity_m2_per_yr": [float(diffusivity) / D_FACTOR, float(diffusivity) * D_FACTOR],
                                "theta": [theta_lo, theta_hi]},
-        "edges": {e: ("closed" if e in setup.closed else "open, held at present elevations")
+        "edges": {e: ("closed" if e in setup.closed else
+                      f"open, lowered at {lowering[e]:g} m/yr" if e in lowering else "open, held at present elevations")
                   for e in ("north", "south", "west", "east")},
         "n_runs": int(n_runs),
         "seed": int(seed),

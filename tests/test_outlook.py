@@ -323,3 +323,18 @@ def test_ensemble_spans_k_theta_n_and_d(transient_ridge):
     # each member's K keeps the calibrated erosion rate at the calibrated side's median steepness:
     # E = K ksn^n with ksn measured at the member's θ (Whipple & Tucker 1999), so K differs with n
     assert len({r.erodibility[0] for r in fc.members}) == 4
+
+
+def test_a_falling_edge_moves_the_divide_the_way_a_base_level_fall_does():
+    # Willett et al. 2014: base level falling on one side lowers that side's channels and the divide
+    # moves away from it, into the other side. Two equal planes meeting at a centred crest stay put with
+    # both edges held; with the west edge falling, the crest moves east (into side b).
+    options = dict(years=1e6, erodibility=1e-4, theta=0.45, n_runs=1, diffusivity=0.0, **EDGES)
+    held = forecast(_planes(8, 41, s_a=0.1, s_b=0.1), "west", "east", **options)
+    falling = forecast(_planes(8, 41, s_a=0.1, s_b=0.1), "west", "east", edge_lowering={"west": 1e-3}, **options)
+    assert held.moves_toward == "stable"
+    assert falling.moves_toward == "b"
+    assert falling.parameters["edges"]["west"] == "open, lowered at 0.001 m/yr"
+    assert any("west edge keeps falling at 1.0 mm/yr" in note for note in falling.notes)
+    with pytest.raises(ParameterError, match="closed edge 'north'"):
+        forecast(_planes(8, 41), "west", "east", edge_lowering={"north": 1e-3}, **options)

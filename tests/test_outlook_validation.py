@@ -59,9 +59,11 @@ def _forecast(case: dict, **calibration) -> float:
     o = case["options"]
     # an uplift that differs across the landscape is given as a raster (issue 13, item 1)
     uplift = "uniform" if np.ndim(o["uplift"]) == 0 else np.asarray(o["uplift"], dtype=np.float64)
+    # so is a base level that keeps falling (a sudden fall has happened before the snapshot)
+    lowering = {e: c.history(1e4) / 1e4 for e, c in o["edges"].items() if getattr(c, "mode", None) == "lowering"}
     fc = forecast(case["snap"], "west", "east", years=WINDOW, theta=o["m"] / o["n"], n=o["n"],
                   diffusivity=o["diffusivity"], closed_edges=WALLS, n_runs=1, robustness=False, uplift=uplift,
-                  base_level_m=-1000.0, **calibration)
+                  edge_lowering=lowering or None, base_level_m=-1000.0, **calibration)
     return float(fc.central.displacement_m[-1])
 
 
