@@ -33,6 +33,8 @@ _EXPORTS = {
     "Assessment": "divides.assess.assessment",
     "AssessConfig": "divides.config",
     "simulate": "divides.model.simulate",
+    "Forecast": "divides.outlook",
+    "forecast": "divides.outlook",
 }
 
 __all__ = sorted([*_EXPORTS, "assess", "__version__"])

@@ -1,4 +1,4 @@
-"""Erosion rates from steepness, and the horizontal migration rate of the divide."""
+"""Erosion rates from steepness, knickpoint travel times, and the horizontal speed of the divide."""
 
 from __future__ import annotations
 
@@ -6,7 +6,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Calibration", "calibrate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "step_celerity"]
+from divides.errors import ParameterError
+
+__all__ = [
+    "Calibration", "calibrate", "divide_rate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "positive_samples",
+    "step_celerity", "travel_time",
+]
 
 #: Measured divide migration rates span about 0.001-10 mm/yr (He et al. 2024).
 PLAUSIBLE_MM_PER_YR = (0.001, 10.0)
@@ -28,6 +33,72 @@ def step_celerity(k_below: np.ndarray, k_above: np.ndarray, n: float) -> np.ndar
         ratio = (k1**n - k2**n) / (k1 - k2)
     close = np.abs(k1 - k2) <= 1e-9 * np.maximum(np.abs(k1), 1.0)
     return np.where(close, n * np.maximum(k1, 1e-300) ** (n - 1), ratio)
+
+
+def travel_time(
+    chi_m: np.ndarray | float,
+    *,
+    erodibility: np.ndarray | float,
+    theta: float,
+    n: float = 1.0,
+    ksn_below: np.ndarray | float | None = None,
+    ksn_above: np.ndarray | float | None = None,
+    a0_m2: float = 1.0,
+) -> np.ndarray:
+    """Years a knickpoint takes to climb ``chi_m`` of χ (Royden & Perron 2013).
+
+    Under E = K A^m S^n (m = θ n, A in m²) a change of channel slope climbs
+    at dx/dt = K A^m (S1^n − S2^n)/(S1 − S2), with S1 the slope below it and
+    S2 the slope above; for n = 1 this is K A^m whatever the slopes. In χ
+    measured with a reference area A0, χ = ∫ (A0/A)^θ dx, and with steepness
+    measured at the same A0, k = S (A/A0)^θ, the area cancels:
+    dχ/dt = K A0^m c(k1, k2) with c = :func:`step_celerity` (1 for n = 1).
+    The time is therefore χ / (K A0^m c). A0 enters once, through χ, k and
+    the A0^m here together, so the result does not depend on it.
+
+    Only for a shock: for n > 1 a break whose steeper reach lies downstream
+    (e.g. after base level starts to fall faster), for n < 1 one whose
+    steeper reach lies upstream. The other kind spreads out and has no
+    single arrival time.
+
+    Parameters
+    ----------
+    chi_m : float or ndarray
+        χ (m) between the knickpoint and the target (e.g. the channel head
+        nearest the divide), computed with reference area ``a0_m2``.
+    erodibility : float or ndarray
+        K of E = K A^m S^n with A in m² (m^(1−2m)/yr).
+    theta : float
+        Concavity θ = m/n.
+    n : float
+        Slope exponent.
+    ksn_below, ksn_above : float or ndarray, optional
+        Steepness below and above the knickpoint, S (A/A0)^θ; required when n ≠ 1.
+    a0_m2 : float
+        Reference area of χ and of the steepness (m²).
+
+    Returns
+    -------
+    ndarray
+        Years.
+
+    Examples
+    --------
+    A channel steady at U = 1 mm/yr with K = 1e-5 and n = 2 (ks = (U/K)^(1/n) = 10 at A0 = 1 m²);
+    base level then falls 3 mm/yr faster, so below the knickpoint ks = 20. The step climbs
+    χ at K (20² − 10²)/(20 − 10) = 30 K per year:
+
+    >>> round(float(travel_time(3.0, erodibility=1e-5, theta=0.45, n=2.0, ksn_below=20.0, ksn_above=10.0)), 6)
+    10000.0
+    """
+    m = float(theta) * float(n)
+    if float(n) == 1.0:
+        c = 1.0
+    else:
+        if ksn_below is None or ksn_above is None:
+            raise ParameterError("for n != 1 the celerity of a knickpoint needs `ksn_below` and `ksn_above`; give both")
+        c = step_celerity(ksn_below, ksn_above, float(n))
+    return np.asarray(chi_m, dtype=np.float64) / (np.asarray(erodibility, dtype=np.float64) * a0_m2**m * c)
 
 
 @dataclass(frozen=True)
@@ -67,6 +138,11 @@ def calibrate(
     erodibility: float | None = None,
     knickpoint: dict | None = None,
     knickpoint_age_years: float | None = None,
+    erosion_rate_a_error_mm_yr: float | None = None,
+    erosion_rate_b_error_mm_yr: float | None = None,
+    erodibility_error: float | None = None,
+    knickpoint_age_error_years: float | None = None,
+    seed: int = 0,
 ) -> Calibration:
     """Erosion rates E = K ksn^n of both sides from whichever calibration is given.
 
@@ -83,26 +159,107 @@ def calibrate(
     knickpoint, knickpoint_age_years : dict and float, optional
         A knickpoint (``chi``, ``ksn_below``, ``ksn_above``) that formed at the
         common base level ``knickpoint_age_years`` ago: K = χ / (age · celerity).
+    erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr : float, optional
+        One standard deviation of the measured rates (mm/yr).
+    erodibility_error, knickpoint_age_error_years : float, optional
+        One standard deviation of the matching input. Each input with an
+        error is drawn, independently of the ksn samples, from the lognormal
+        distribution with the given value as mean and the error as standard
+        deviation (positive, as rates, K and ages are); without one it is
+        taken as exact.
+    seed : int
+        Seed of those draws.
     """
     ka, kb = np.asarray(ksn_a, dtype=np.float64), np.asarray(ksn_b, dtype=np.float64)
+    rng = np.random.default_rng(seed)
+
+    def draw(value: float, error: float | None, size: int) -> np.ndarray:
+        return np.full(size, float(value)) if not error else positive_samples(value, error, size, rng)
+
     if erosion_rate_a_mm_yr is not None and erosion_rate_b_mm_yr is not None:
-        ea = np.full(ka.shape, erosion_rate_a_mm_yr * 1e-3)
-        eb = np.full(kb.shape, erosion_rate_b_mm_yr * 1e-3)
+        ea = draw(erosion_rate_a_mm_yr, erosion_rate_a_error_mm_yr, ka.size).reshape(ka.shape) * 1e-3
+        eb = draw(erosion_rate_b_mm_yr, erosion_rate_b_error_mm_yr, kb.size).reshape(kb.shape) * 1e-3
         return Calibration("erosion rates of both sides", ea, eb, None)
     if erosion_rate_a_mm_yr is not None or erosion_rate_b_mm_yr is not None:
         side = "a" if erosion_rate_a_mm_yr is not None else "b"
-        e = (erosion_rate_a_mm_yr if side == "a" else erosion_rate_b_mm_yr) * 1e-3
-        k = e / (ka if side == "a" else kb) ** n
+        value, error = ((erosion_rate_a_mm_yr, erosion_rate_a_error_mm_yr) if side == "a"
+                        else (erosion_rate_b_mm_yr, erosion_rate_b_error_mm_yr))
+        ks = ka if side == "a" else kb
+        e = draw(value, error, ks.size).reshape(ks.shape) * 1e-3
+        k = e / ks**n
         return Calibration(f"erosion rate of side {side}", k * ka**n, k * kb**n, k)
     if erodibility is not None:
-        k = np.full(ka.shape, float(erodibility))
+        k = draw(erodibility, erodibility_error, ka.size).reshape(ka.shape)
         return Calibration("erodibility K", k * ka**n, k * kb**n, k)
     if knickpoint is not None and knickpoint_age_years is not None:
         c = float(step_celerity(knickpoint["ksn_below"], knickpoint["ksn_above"], n))
-        k = np.full(ka.shape, knickpoint["chi"] / (knickpoint_age_years * c))
+        age = draw(knickpoint_age_years, knickpoint_age_error_years, ka.size).reshape(ka.shape)
+        k = knickpoint["chi"] / (age * c)
         return Calibration("dated knickpoint", k * ka**n, k * kb**n, k,
                            ["assumes the knickpoint left the common base level when it formed"])
     return Calibration("none")
+
+
+def positive_samples(value: float, error: float, size: int, rng: np.random.Generator) -> np.ndarray:
+    """``size`` draws of a positive quantity with mean ``value`` and standard deviation ``error``.
+
+    Lognormal with those two moments: σ² = ln(1 + (error/value)²), μ = ln(value) − σ²/2
+    (the moments of the lognormal distribution; e.g. Johnson, Kotz & Balakrishnan 1994,
+    Continuous Univariate Distributions 1, ch. 14).
+
+    >>> x = positive_samples(0.2, 0.05, 200_000, np.random.default_rng(1))
+    >>> round(float(x.mean()), 3), round(float(x.std()), 3), bool(x.min() > 0)
+    (0.2, 0.05, True)
+    """
+    if not (np.isfinite(value) and value > 0 and np.isfinite(error) and error >= 0):
+        raise ParameterError(f"a value and its error must be positive and finite; got {value!r} ± {error!r}")
+    s2 = np.log1p((error / value) ** 2)
+    return rng.lognormal(np.log(value) - 0.5 * s2, np.sqrt(s2), size)
+
+
+def divide_rate(
+    erosion_a: np.ndarray | float,
+    erosion_b: np.ndarray | float,
+    slope_a: np.ndarray | float,
+    slope_b: np.ndarray | float,
+    *,
+    uplift_a: np.ndarray | float = 0.0,
+    uplift_b: np.ndarray | float = 0.0,
+) -> np.ndarray:
+    """Horizontal speed of a sharp crest between two lowering flanks (m/yr, positive into side b).
+
+    Each flank's surface changes at U − E; the crest, where the two meet,
+    moves into b at V = [(U_b − E_b) − (U_a − E_a)] / (S_a + S_b), S being
+    the flank gradients at the crest (Gilbert 1877 for the principle; Mudd &
+    Furbish 2005 and Forte & Whipple 2018 for crests between asymmetric
+    flanks). The side that lowers faster relative to the other gains ground.
+    With the same uplift on both sides U cancels, leaving
+    (E_a − E_b)/(S_a + S_b).
+
+    Parameters
+    ----------
+    erosion_a, erosion_b : float or ndarray
+        Erosion rates next to the crest (m/yr).
+    slope_a, slope_b : float or ndarray
+        Flank gradients at the crest (m/m, positive).
+    uplift_a, uplift_b : float or ndarray
+        Rock uplift rates relative to base level under each flank (m/yr).
+
+    Returns
+    -------
+    ndarray
+        m/yr, positive into side b.
+
+    Examples
+    --------
+    >>> float(divide_rate(1e-3, 0.5e-3, 0.3, 0.2, uplift_a=1e-3, uplift_b=1e-3))
+    0.001
+    >>> float(divide_rate(1e-3, 1e-3, 0.3, 0.2, uplift_a=1e-3, uplift_b=1.5e-3))
+    0.001
+    """
+    net_a = np.asarray(uplift_a, dtype=np.float64) - np.asarray(erosion_a, dtype=np.float64)
+    net_b = np.asarray(uplift_b, dtype=np.float64) - np.asarray(erosion_b, dtype=np.float64)
+    return (net_b - net_a) / (np.asarray(slope_a, dtype=np.float64) + np.asarray(slope_b, dtype=np.float64))
 
 
 def migration_rate(
@@ -112,6 +269,6 @@ def migration_rate(
 
     With side a lowered at E_a on a slope tan α_a and side b at E_b on tan α_b,
     the crest moves toward b at V = (E_a − E_b) / (tan α_a + tan α_b)
-    (kinematics of two intersecting planes).
+    (kinematics of two intersecting planes): :func:`divide_rate` with equal uplift.
     """
-    return (np.asarray(erosion_a) - np.asarray(erosion_b)) / (np.asarray(tan_a) + np.asarray(tan_b))
+    return divide_rate(erosion_a, erosion_b, tan_a, tan_b)

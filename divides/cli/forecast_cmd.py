@@ -19,7 +19,7 @@ from divides.cli import options as opt
 from divides.errors import ParameterError
 
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
-    from divides.model.forecast import Forecast
+    from divides.outlook import Forecast
 
 __all__ = ["forecast", "geojson_divides", "forecast_png", "write_outputs",
            "OUTPUT_FILES"]
@@ -62,8 +62,8 @@ def forecast(
     closed_edges: Annotated[str | None, _option("--closed-edges", "EDGE,EDGE", _EDGES_HELP)] = None,
     uplift: Annotated[str, _option("--uplift", "uniform|sides", _UPLIFT_HELP, show_default=True)] = "uniform",
     diffusivity: Annotated[str | None, _option("--diffusivity", "M2_PER_YR", _D_HELP)] = None,
-    runs: Annotated[int, _option("--runs", "N", "Model runs: a central one plus an ensemble over K and θ.", min=1,
-                                 show_default=True)] = 9,
+    runs: Annotated[int, _option("--runs", "N", "Model runs: a central one plus an ensemble over K, θ, n and D.",
+                                 min=1, show_default=True)] = 9,
     seed: Annotated[int, _option("--seed", "N", "Seed of the ensemble and the assessment.", show_default=True)] = 0,
     lonlat: Annotated[bool, typer.Option("--lonlat", help="SPEC points are longitude,latitude (WGS 84).")] = False,
     out: Annotated[str | None, _option("--out", "DIR", _OUT_HELP)] = None,
@@ -79,7 +79,7 @@ def forecast(
     Runs stream-power landscape evolution forward from the present DEM, with
     θ, n and erodibility K from the assessment of the divide (K calibrated
     from a measured erosion rate, or given), and reports the divide's
-    displacement with low/best/high bands from the uncertainty of K and θ.
+    displacement with low/best/high bands from the uncertainty of K, θ, n and D.
     Large DEMs are block-averaged to at most 300 x 300 cells first. One of
     --erosion-rate-a, --erosion-rate-b or --erodibility-k is required.
     A screening estimate: modelled timescales depend on the solver, time
@@ -114,8 +114,8 @@ def forecast(
         target = check_out_dir(out, overwrite=overwrite)  # fail before the long part
 
     import divides
-    from divides.model.forecast import DEFAULT_DIFFUSIVITY
-    from divides.model.forecast import forecast as run_forecast
+    from divides.outlook import DEFAULT_DIFFUSIVITY
+    from divides.outlook import forecast as run_forecast
 
     with opt.quiet_warnings(quiet):
         surface = divides.read_dem(read.path, **read.read_kwargs())
@@ -142,8 +142,8 @@ def forecast(
 
 def _headline(document: dict) -> dict:
     """The short ``summary.json`` of a forecast folder; the full document is ``forecast.json``."""
-    keys = ("schema", "sides", "years", "moves_toward", "bands_agree", "displacement_m", "rate_mm_per_yr",
-            "timescale_caution", "caution")
+    keys = ("schema", "sides", "years", "moves_toward", "bands_agree", "ensemble", "agrees_with_assessment",
+            "comparison", "displacement_m", "rate_mm_per_yr", "timescale_caution", "caution")
     return {**{k: document[k] for k in keys}, "document": "forecast.json"}
 
 

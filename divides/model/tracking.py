@@ -8,6 +8,13 @@ evenly between the two. On a clean split this is exactly the face between
 the last cell of side a and the first of side b, and it moves by one cell
 width each time a cell changes side, so the mean over lines follows the
 area the two sides exchange.
+
+Where the two sides are not opposite edges, or where other basins (an open
+edge, an inner outlet) take cells from either side, the divide is followed
+by :func:`exchange_displacement`: the area that went from one side to the
+other, over the length of the starting divide that still separates the two
+sides. Cells lost to a third basin are not motion of this divide, so a line
+whose ends are eaten by an open edge does not read as moving.
 """
 
 from __future__ import annotations
@@ -19,7 +26,7 @@ import numpy as np
 from divides.errors import ParameterError
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["OPPOSITE", "DivideTrack", "edge_catchments", "divide_positions"]
+__all__ = ["OPPOSITE", "DivideTrack", "edge_catchments", "divide_positions", "shared_length", "exchange_displacement"]
 
 #: Each edge and the edge facing it.
 OPPOSITE: dict[str, str] = {"west": "east", "east": "west", "north": "south", "south": "north"}
@@ -151,6 +158,113 @@ def divide_positions(
     # elsewhere (e.g. the first row of a grid whose north edge is open).
     out[(n_a == 0) | (n_b == 0) | (n_other > n_a + n_b)] = np.nan
     return out
+
+
+def shared_length(lines: list, keep: np.ndarray) -> float:
+    """Length (m) of divide lines whose cells on both sides all lie in ``keep``.
+
+    Parameters
+    ----------
+    lines : list of DivideLine
+        Polylines with fractional grid coordinates (cell centres are integers),
+        as traced by :func:`divides.terrain.divide_lines.divide_between`.
+    keep : ndarray of bool, DEM shape
+        Cells that still belong to either side.
+
+    Returns
+    -------
+    float
+        Sum of the segments whose surrounding cells (the up to four cells
+        around the segment's midpoint) are all kept, plus one cell for each
+        unbroken stretch (the half cells beyond its end vertices, which lie
+        at cell centres).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from divides import Dem
+    >>> from divides.terrain.divide_lines import divide_between
+    >>> a = np.zeros((6, 6), bool); a[:, :3] = True
+    >>> dem = Dem.from_array(np.zeros((6, 6)), cell_size=10.0)
+    >>> lines = divide_between(dem, a, ~a, smoothing_cells=0.0).lines
+    >>> keep = np.ones((6, 6), bool); keep[:2] = False
+    >>> round(shared_length(lines, np.ones((6, 6), bool))), round(shared_length(lines, keep))
+    (60, 40)
+    """
+    keep = np.asarray(keep, dtype=bool)
+    rows, cols = keep.shape
+    total = 0.0
+    for line in lines:
+        if line.row.size < 2:
+            continue
+        mr, mc = 0.5 * (line.row[1:] + line.row[:-1]), 0.5 * (line.col[1:] + line.col[:-1])
+        ok = np.ones(mr.size, dtype=bool)
+        for r in (np.floor(mr), np.ceil(mr)):
+            for c in (np.floor(mc), np.ceil(mc)):
+                ri = np.clip(r.astype(np.int64), 0, rows - 1)
+                ci = np.clip(c.astype(np.int64), 0, cols - 1)
+                ok &= keep[ri, ci]
+        step = np.diff(line.distance_m)
+        total += float(np.sum(step[ok]))
+        # A traced line runs from the centre of its first cell to the centre of its last:
+        # each unbroken kept stretch gets back the half cell beyond either end, measured
+        # along the line (half a cell height for a line along a column, half a diagonal at 45°).
+        dr, dc = np.abs(np.diff(line.row)), np.abs(np.diff(line.col))
+        per_cell = step / np.maximum(np.maximum(dr, dc), 1e-12)
+        first = ok & ~np.r_[False, ok[:-1]]
+        last = ok & ~np.r_[ok[1:], False]
+        total += 0.5 * float(np.sum(per_cell[first]) + np.sum(per_cell[last]))
+    return total
+
+
+def exchange_displacement(
+    cell_area: np.ndarray,
+    start: tuple[np.ndarray, np.ndarray],
+    now: tuple[np.ndarray, np.ndarray],
+    lines: list,
+) -> float:
+    """Mean displacement (m) of the divide between two sides, from the area they exchanged.
+
+    Parameters
+    ----------
+    cell_area : ndarray, DEM shape
+        Area of each cell (m²).
+    start, now : (ndarray of bool, ndarray of bool)
+        Masks of side a and side b at the start and now.
+    lines : list of DivideLine
+        The divide at the start.
+
+    Returns
+    -------
+    float
+        (area side b gave to side a − area side a gave to side b) divided by
+        the length of the starting divide whose cells still belong to either
+        side (:func:`shared_length`): positive when the divide moves into
+        side b. NaN when no stretch of the divide survives. Cells that went
+        to, or came from, any other basin are left out.
+
+    Examples
+    --------
+    A west–east split of six rows moves two cells east in the four rows an
+    open edge has not taken:
+
+    >>> import numpy as np
+    >>> from divides import Dem
+    >>> from divides.terrain.divide_lines import divide_between
+    >>> dem = Dem.from_array(np.zeros((6, 10)), cell_size=10.0)
+    >>> a0 = np.zeros((6, 10), bool); a0[:, :5] = True
+    >>> a1 = np.zeros((6, 10), bool); a1[:, :7] = True
+    >>> b1 = ~a1
+    >>> a1[:2], b1[:2] = False, False  # two rows now drain to the north edge
+    >>> lines = divide_between(dem, a0, ~a0, smoothing_cells=0.0).lines
+    >>> float(exchange_displacement(np.full((6, 10), 100.0), (a0, ~a0), (a1, b1), lines))
+    20.0
+    """
+    a0, b0 = (np.asarray(m, dtype=bool) for m in start)
+    a1, b1 = (np.asarray(m, dtype=bool) for m in now)
+    gained = float(np.sum(cell_area[b0 & a1]) - np.sum(cell_area[a0 & b1]))
+    length = shared_length(lines, (a0 | b0) & (a1 | b1))
+    return gained / length if length > 0 else float("nan")
 
 
 def _along(flow: FlowGraph, side_a: str) -> np.ndarray:

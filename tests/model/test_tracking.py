@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import subprocess
+import sys
+
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -10,6 +13,8 @@ from hypothesis import strategies as st
 from divides import Dem, route
 from divides.errors import ParameterError
 from divides.model import DivideTrack, divide_positions, edge_catchments
+from divides.model.tracking import exchange_displacement, shared_length
+from divides.terrain.divide_lines import divide_between
 
 
 def _crest_surface(rows: int, cols: int, crest: int) -> np.ndarray:
@@ -97,3 +102,64 @@ def test_bad_sides_are_named(sides, message):
     flow = route(Dem.from_array(_crest_surface(5, 8, 3), cell_size=10.0))
     with pytest.raises(ParameterError, match=message):
         divide_positions(flow, *sides)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    rows=st.integers(6, 24),
+    shift=st.integers(-6, 6),
+    eaten=st.tuples(st.integers(0, 2), st.integers(0, 2)),
+    which=st.sampled_from(["a", "b", "both"]),
+    dx=st.sampled_from([10.0, 30.0]),
+    dy=st.sampled_from([10.0, 25.0]),
+)
+def test_exchanged_area_over_shared_length_is_the_shift(rows, shift, eaten, which, dx, dy):
+    # By construction (geometry of a straight divide): side a holds the first 15 columns, then
+    # the divide moves `shift` columns east (negative: west) on every row that still separates the
+    # two sides. The first and last `eaten` rows are taken by a third basin (an open edge) from
+    # side a, side b or both; there the divide does not move. The mean displacement over the
+    # stretch present at both times is shift x dx exactly, whatever the ends did.
+    cols = 40
+    dem = Dem.from_array(np.zeros((rows, cols)), cell_size=(dx, dy))
+    a0 = np.zeros((rows, cols), dtype=bool)
+    a0[:, :15] = True
+    b0 = ~a0
+    a1 = np.zeros_like(a0)
+    a1[:, : 15 + shift] = True
+    b1 = ~a1
+    ends = np.zeros(rows, dtype=bool)
+    ends[: eaten[0]] = True
+    ends[rows - eaten[1]:] = True
+    a1[ends], b1[ends] = a0[ends], b0[ends]  # pinned ends ...
+    if which in ("a", "both"):
+        a1[ends] = False  # ... whose cells of side a now drain elsewhere
+    if which in ("b", "both"):
+        b1[ends] = False
+    lines = divide_between(dem, a0, b0).lines
+    area = np.full((rows, cols), dx * dy)
+    moved = exchange_displacement(area, (a0, b0), (a1, b1), lines)
+    assert moved == pytest.approx(shift * dx, rel=1e-9, abs=1e-9)
+    # the stretch kept is the rows not eaten (one cell of divide per row)
+    assert shared_length(lines, (a0 | b0) & (a1 | b1)) == pytest.approx((rows - ends.sum()) * dy, rel=1e-9)
+
+
+def test_oblique_divide_moves_by_its_normal_distance():
+    # Geometry: a divide at 45 degrees on square cells, moved k cells east, is displaced
+    # k dx / sqrt(2) along its normal. The traced (smoothed) line keeps its length within a few
+    # per cent of the true diagonal; 5 % slack.
+    n, k, dx = 40, 4, 10.0
+    dem = Dem.from_array(np.zeros((n, n + 20)), cell_size=dx)
+    r, c = np.mgrid[0:n, 0 : n + 20]
+    a0, a1 = c < r + 5, c < r + 5 + k
+    lines = divide_between(dem, a0, ~a0).lines
+    d = exchange_displacement(np.full(a0.shape, dx * dx), (a0, ~a0), (a1, ~a1), lines)
+    assert d == pytest.approx(k * dx / np.sqrt(2.0), rel=0.05)
+
+
+def test_the_model_room_does_not_import_the_assessment():
+    # Project rule (DESIGN, rooms): the model uses terrain only; what joins it with the
+    # assessment (the forecast) sits above both.
+    code = ("import sys, divides.model, divides.model.scenarios, divides.model.tracking; "
+            "print(sorted(m for m in sys.modules if m.startswith(('divides.assess', 'divides.profiles'))))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"

@@ -1,19 +1,24 @@
 """Forecast: run the forward model on a real DEM, with parameters from an assessment, and track its divide.
 
+This module joins two rooms that do not know each other: the assessment
+(:mod:`divides.assess`) and the forward model (:mod:`divides.model`). It sits
+above both, so the model never imports the assessment.
+
 The assessment gives the concavity θ (with an interval), the slope exponent n
 and a calibration of erodibility K (from a measured erosion rate, a given K
 or a dated knickpoint). The present surface is the starting state; its open
 edges are held at their present elevations and uplift is set so that the
 present landscape is in balance (see :func:`forecast`). The model runs
 ``years`` forward for a central parameter set and for an ensemble over the
-uncertainty of K and θ; the divide between the two sides is tracked through
-time. The result is a screening estimate: modelled timescales depend on the
+uncertainty of K, θ, n and the diffusivity D; the divide between the two
+sides is tracked through time. The result is a screening estimate: modelled timescales depend on the
 solver, time step and grid (Forte & Barnhart 2024, ESurf 12) and on the
 calibration.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -27,9 +32,9 @@ from divides.assess.verdict import CAUTION
 from divides._jsonable import to_jsonable
 from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
-from divides.model.forcing import check_positive
+from divides.model.forcing import check_positive, open_edge
 from divides.model.simulate import simulate
-from divides.model.tracking import OPPOSITE, divide_positions
+from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import divide_between
 from divides.terrain.routing import FlowGraph, route
 
@@ -76,6 +81,18 @@ NEEDS_CALIBRATION = (
     "(erodibility; --erodibility-k) or the age of a knickpoint (knickpoint_age_years)"
 )
 
+#: How the divide's displacement is measured (``parameters["measure"]``).
+MEASURE = "net area exchanged between the sides / length of the present divide still between them"
+
+#: Ensemble members draw n log-uniformly within a factor 1.5 of the assessment's n: n is seldom
+#: known better than that; field estimates span about 0.5-4 (from memory; Lague 2014, ESPL 39).
+N_FACTOR = 1.5
+
+#: Ensemble members draw D log-uniformly within a factor 10 of the given diffusivity: values quoted for
+#: soil-mantled hillslopes span about 1e-4 to 1e-1 m²/yr (from memory; e.g. Fernandes & Dietrich 1997,
+#: Water Resour. Res. 33; Martin 2000, ESPL 25).
+D_FACTOR = 10.0
+
 _MIN_STEPS = 20
 _MAX_STEPS = 400
 _TRACK_INTERVALS = 10
@@ -103,8 +120,6 @@ class ForecastRun:
         Mean displacement of the divide since the start (m), positive into side b.
     area_a_m2 : ndarray
         Area of side a through time.
-    positions : ndarray or None
-        Per-line divide positions (m from side a's edge), for two opposite DEM edges.
     final : Dem
         The surface at the end of the run (model grid).
     mask_a, mask_b : ndarray of bool
@@ -116,6 +131,8 @@ class ForecastRun:
         Time step (years).
     courant : float
         Knickpoint celerity × dt / cell size at the reference drainage area.
+    diffusivity : float
+        Hillslope diffusivity D (m²/yr).
     captured : bool
         A side's outlet came to drain through the other side during the run.
     """
@@ -129,7 +146,6 @@ class ForecastRun:
     times: np.ndarray
     displacement_m: np.ndarray
     area_a_m2: np.ndarray
-    positions: np.ndarray | None
     final: Dem
     mask_a: np.ndarray
     mask_b: np.ndarray
@@ -137,6 +153,7 @@ class ForecastRun:
     n_steps: int
     dt: float
     courant: float
+    diffusivity: float = 0.0
     captured: bool = False
 
     def summary(self) -> dict:
@@ -148,6 +165,7 @@ class ForecastRun:
             "n": self.n,
             "erodibility": {"a": self.erodibility[0], "b": self.erodibility[1]},
             "uplift_m_per_yr": {"a": self.uplift[0], "b": self.uplift[1]},
+            "diffusivity_m2_per_yr": self.diffusivity,
             "displacement_m": _finite(self.displacement_m[-1]),
             "n_steps": self.n_steps,
             "dt_yr": self.dt,
@@ -180,7 +198,7 @@ class Forecast:
     central : ForecastRun
         Best-estimate parameters (median K, θ of the assessment).
     members : tuple of ForecastRun
-        The ensemble over K and θ (the central run excluded).
+        The ensemble over K, θ, n and D (the central run excluded).
     parameters : dict
         Effective parameters (JSON-ready).
     notes : list of str
@@ -209,37 +227,38 @@ class Forecast:
         return self.central.times
 
     @property
+    def runs(self) -> tuple:
+        """The central run and the ensemble members."""
+        return (self.central, *self.members)
+
+    @property
     def band(self) -> dict[str, np.ndarray]:
         """``low``, ``best``, ``high`` displacement (m) through time.
 
         ``best`` is the central run; ``low`` and ``high`` the least and
-        greatest displacement among the ensemble members (equal to ``best``
-        without members).
+        greatest displacement among all runs, the central one included
+        (equal to ``best`` without members).
         """
         best = self.central.displacement_m
-        if not self.members:
-            return {"low": best.copy(), "best": best.copy(), "high": best.copy()}
-        stack = np.vstack([r.displacement_m for r in self.members])
+        stack = np.vstack([r.displacement_m for r in self.runs])
         # fmin/fmax skip NaN (a run whose divide left the grid) without warnings
         return {"low": np.fmin.reduce(stack, axis=0), "best": best.copy(), "high": np.fmax.reduce(stack, axis=0)}
 
     def _extreme(self, which: str) -> ForecastRun:
-        if not self.members:
-            return self.central
-        final = np.array([r.displacement_m[-1] for r in self.members])
+        final = np.array([r.displacement_m[-1] for r in self.runs])
         if np.all(np.isnan(final)):
             return self.central
         pick = np.nanargmin(final) if which == "low" else np.nanargmax(final)
-        return self.members[int(pick)]
+        return self.runs[int(pick)]
 
     @property
     def low_run(self) -> ForecastRun:
-        """The member with the least final displacement (its divide line is the ``low`` band)."""
+        """The run with the least final displacement (its divide line is the ``low`` band)."""
         return self._extreme("low")
 
     @property
     def high_run(self) -> ForecastRun:
-        """The member with the greatest final displacement (its divide line is the ``high`` band)."""
+        """The run with the greatest final displacement (its divide line is the ``high`` band)."""
         return self._extreme("high")
 
     @property
@@ -248,41 +267,153 @@ class Forecast:
         return 0.5 * float(min(np.min(self.dem.dx), np.min(self.dem.dy)))
 
     @property
+    def ensemble(self) -> dict[str, int]:
+        """How many runs move the divide into side a, into side b, or less than half a cell either way.
+
+        Keys ``into_a``, ``into_b`` (sign of the final displacement), ``unresolved`` (of those, how many
+        by less than :attr:`resolution_m`), ``lost`` (runs whose divide left the grid) and ``runs``.
+        """
+        final = np.array([r.displacement_m[-1] for r in self.runs])
+        ok = np.isfinite(final)
+        return {"runs": int(final.size), "into_a": int(np.sum(final[ok] < 0)), "into_b": int(np.sum(final[ok] > 0)),
+                "unresolved": int(np.sum(np.abs(final[ok]) < self.resolution_m)), "lost": int(np.sum(~ok))}
+
+    @property
     def moves_toward(self) -> str:
-        """``"a"`` or ``"b"`` (the side the divide moves into), or ``"stable"`` (within half a cell)."""
-        best = self.central.displacement_m[-1]
-        if not np.isfinite(best) or abs(best) < self.resolution_m:
+        """What the runs say: ``"a"`` or ``"b"`` (the side the divide moves into), ``"stable"`` or ``"undetermined"``.
+
+        A direction when every run moves the divide that way and the central
+        run by at least half a model cell; ``"stable"`` when every run keeps it
+        within half a cell; otherwise (runs disagree, or only some resolve a
+        move) ``"undetermined"``.
+        """
+        e = self.ensemble
+        best = float(self.central.displacement_m[-1])
+        if e["lost"] or not np.isfinite(best):
+            return "undetermined"
+        if e["unresolved"] == e["runs"]:
             return "stable"
-        return "b" if best > 0 else "a"
+        if abs(best) >= self.resolution_m:
+            if e["into_b"] == e["runs"]:
+                return "b"
+            if e["into_a"] == e["runs"]:
+                return "a"
+        return "undetermined"
 
     @property
     def bands_agree(self) -> bool:
-        """True when low, best and high all move the divide the same way by more than half a cell."""
-        final = [v[-1] for v in self.band.values()]
-        r = self.resolution_m
-        return bool(all(v > r for v in final) or all(v < -r for v in final))
+        """True when every run moves the divide the same way (by any amount)."""
+        e = self.ensemble
+        return bool(e["into_a"] == e["runs"] or e["into_b"] == e["runs"])
+
+    @property
+    def agrees_with_assessment(self) -> bool | None:
+        """True or False when both the forecast and the assessment give a direction or "stable"; None otherwise.
+
+        Also None when the assessment gives a direction and every run moves the divide that way by
+        less than half a model cell: the forecast can neither confirm nor refute it.
+        """
+        said = self.assessment.get("moves_toward")
+        ours = self.moves_toward
+        if said not in ("a", "b", "stable") or ours not in ("a", "b", "stable") or self._too_slow_to_tell():
+            return None
+        return said == ours
+
+    def _too_slow_to_tell(self) -> bool:
+        said = self.assessment.get("moves_toward")
+        e = self.ensemble
+        return (said in ("a", "b") and self.moves_toward == "stable" and self.bands_agree
+                and said == ("b" if e["into_b"] else "a"))
+
+    def _names(self) -> dict[str, str]:
+        return {"a": f"side a ({self.side_a})", "b": f"side b ({self.side_b})"}
+
+    def _headline(self) -> str:
+        e, names = self.ensemble, self._names()
+        final = {k: v[-1] for k, v in self.band.items()}
+        spread = f"{_sig(final['low'])} to {_sig(final['high'])} m over the {e['runs']} runs, positive into side b"
+        years = f"In {self.years:,.0f} years"
+        toward = self.moves_toward
+        if e["runs"] == 1:
+            if toward == "stable":
+                return f"{years} the divide stays within half a model cell ({_sig(self.resolution_m)} m) of its " \
+                       "present position (one run: no ensemble range)."
+            if toward in ("a", "b"):
+                return f"{years} the divide moves about {_sig(abs(final['best']))} m into {names[toward]} " \
+                       "(one run: no ensemble range)."
+            return f"{years} the divide's motion could not be measured: it left the model grid."
+        if toward == "stable":
+            text = f"{years} every run keeps the divide within half a model cell ({_sig(self.resolution_m)} m) of " \
+                   f"its present position ({spread})"
+            if self.bands_agree:
+                side = "b" if e["into_b"] else "a"
+                text += f"; all of them move it slightly into {names[side]}, by less than the grid resolves"
+            return text + "."
+        if toward in ("a", "b"):
+            text = f"{years} the divide moves about {_sig(abs(final['best']))} m into {names[toward]} (central run; " \
+                   f"{spread}): every run moves it that way"
+            if e["unresolved"]:
+                text += f", {e['unresolved']} of them by less than half a model cell ({_sig(self.resolution_m)} m)"
+            return text + "."
+        if self.bands_agree:
+            side = "b" if e["into_b"] else "a"
+            return f"{years} every run moves the divide into {names[side]}, but the central run by less than half " \
+                   f"a model cell ({_sig(self.resolution_m)} m), which the grid does not resolve ({spread}); " \
+                   "no direction is given."
+        parts = [f"{e['into_b']} into side b", f"{e['into_a']} into side a"]
+        if e["lost"]:
+            parts.append(f"{e['lost']} lost the divide off the grid")
+        return f"{years} the runs do not agree on the direction ({', '.join(parts)}; {spread}); " \
+               "no direction is given."
+
+    def _comparison(self) -> str | None:
+        said = self.assessment.get("moves_toward")
+        if said is None:
+            return None
+        names = self._names()
+        conf = self.assessment.get("confidence")
+        conf_text = "" if conf is None else f" (confidence {_sig(conf)})"
+        verdict = {"a": f"moves into {names['a']}", "b": f"moves into {names['b']}", "stable": "is stable",
+                   "undetermined": "cannot be determined from the DEM"}.get(said, str(said))
+        agree = self.agrees_with_assessment
+        rates = self._rates()
+        if agree is None and self._too_slow_to_tell():
+            return f"The assessment of the same DEM says the divide {verdict}{conf_text}; every run moves it that " \
+                   f"way too, but by less than half a model cell, so the forecast can neither confirm nor refute " \
+                   f"it on this grid.{rates}"
+        if agree is None:
+            return f"The assessment of the same DEM says the divide {verdict}{conf_text}; with no direction on one " \
+                   "side or the other, the two cannot be compared."
+        if agree:
+            return f"The assessment of the same DEM agrees: the divide {verdict}{conf_text}.{rates}"
+        return f"The forecast and the assessment of the same DEM disagree: the assessment says the divide " \
+               f"{verdict}{conf_text}. The forecast rests on the calibration of erodibility, the model's uplift and " \
+               "its fixed edges, the assessment on present contrasts across the divide: check both before relying " \
+               f"on either.{rates}"
+
+    def _rates(self) -> str:
+        """Both rates side by side (mm/yr, positive into side b), or an empty string."""
+        given = self.assessment.get("rate_mm_per_yr")
+        if not given or self.assessment.get("moves_toward") not in ("a", "b"):
+            return ""
+        sign = 1.0 if self.assessment["moves_toward"] == "b" else -1.0
+        vals = sorted(sign * float(given[k]) for k in ("low", "high"))
+        lo, best, hi = vals[0], sign * float(given["best"]), vals[-1]
+        final = {k: 1e3 * v[-1] / self.years for k, v in self.band.items()}
+        return f" Rates, positive into side b: assessment {_sig(best)} mm/yr (95 % interval {_sig(lo)} to " \
+               f"{_sig(hi)}), forecast {_sig(final['best'])} mm/yr ({_sig(final['low'])} to " \
+               f"{_sig(final['high'])} over the runs)."
 
     def text(self) -> str:
         """The forecast in plain words (several lines)."""
-        band = {k: v[-1] for k, v in self.band.items()}
-        names = {"a": f"side a ({self.side_a})", "b": f"side b ({self.side_b})"}
-        lines = []
-        toward = self.moves_toward
-        if toward == "stable":
-            lines.append(f"In {self.years:,.0f} years the divide stays within half a model cell "
-                         f"({self.resolution_m:,.0f} m) of its present position (central run).")
-        else:
-            lines.append(f"In {self.years:,.0f} years the divide moves about {abs(band['best']):,.0f} m "
-                         f"into {names[toward]} (central run).")
-        if self.members:
-            lines.append(f"Ensemble range: {band['low']:,.0f} to {band['high']:,.0f} m (positive: into side b), "
-                         f"{1 + len(self.members)} runs over K and θ; "
-                         + ("every run moves it the same way." if self.bands_agree
-                            else "the runs do not agree on the direction."))
-        else:
-            lines.append("One run only: no ensemble range.")
-        rate = 1e3 * band["best"] / self.years
-        lines.append(f"Mean rate {rate:.3g} mm/yr (positive: into side b).")
+        final = {k: v[-1] for k, v in self.band.items()}
+        lines = [self._headline()]
+        rate = {k: 1e3 * v / self.years for k, v in final.items()}
+        lines.append(f"Mean rate {_sig(rate['best'])} mm/yr (central run; {_sig(rate['low'])} to "
+                     f"{_sig(rate['high'])} over the runs; positive: into side b).")
+        comparison = self._comparison()
+        if comparison:
+            lines.append(comparison)
         lines += self.notes
         lines += [TIMESCALE_CAUTION, CAUTION]
         return "\n".join(lines)
@@ -303,18 +434,37 @@ class Forecast:
             "years": self.years,
             "moves_toward": self.moves_toward,
             "bands_agree": self.bands_agree,
+            "ensemble": self.ensemble,
+            "agrees_with_assessment": self.agrees_with_assessment,
+            "comparison": self._comparison(),
+            "text": self._headline(),
             "displacement_m": final,
             "rate_mm_per_yr": rate,
             "resolution_m": self.resolution_m,
             "present_divide_length_m": self.present_length_m,
             "track": {"times_yr": self.times, **{k: v for k, v in band.items()}},
             "parameters": self.parameters,
-            "runs": [self.central.summary()] + [r.summary() for r in self.members],
+            "runs": [r.summary() for r in self.runs],
             "assessment": self.assessment,
             "notes": self.notes,
             "timescale_caution": TIMESCALE_CAUTION,
             "caution": CAUTION,
         })
+
+
+def _sig(v: Any, digits: int = 2) -> str:
+    """``v`` to two significant figures, with thousands separators for large values.
+
+    >>> _sig(444.17), _sig(0.01613), _sig(-1234.0), _sig(0.0), _sig(2.0), _sig(0.09)
+    ('440', '0.016', '-1,200', '0', '2.0', '0.090')
+    """
+    v = float(v)
+    if not math.isfinite(v):
+        return "n/a"
+    if v == 0:
+        return "0"
+    r = float(f"{v:.{digits}g}")
+    return f"{r:,.0f}" if abs(r) >= 10 ** (digits - 1) else f"{r:#.{digits}g}"
 
 
 def _finite(v: Any) -> float | None:
@@ -352,16 +502,7 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
     f = max(1, math.ceil(max(rows, cols) / max_cells))
     if f == 1:
         return dem, 1
-    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
-    z = np.where(dem.valid, dem.elevation, np.nan).astype(np.float64)
-    z = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge")
-    blocks = z.reshape(rr // f, f, cc // f, f)
-    ok = np.isfinite(blocks)
-    count = ok.sum(axis=(1, 3))
-    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
-    out = np.full(count.shape, np.nan)
-    keep = 2 * count >= f * f
-    out[keep] = total[keep] / count[keep]
+    out = _block_mean(np.where(dem.valid, dem.elevation, np.nan), f)
     transform = dem.transform @ Affine.scale(f)
     if dem.crs is None:
         cell = (float(np.median(dem.dx)) * f, float(np.median(dem.dy)) * f)
@@ -369,6 +510,23 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
     else:
         small = Dem.from_array(out, transform=transform, crs=dem.crs, valid_range=None, path=dem.path)
     return small, f
+
+
+def _block_mean(z: np.ndarray, f: int) -> np.ndarray:
+    """Mean of each f x f block of ``z`` (edges padded by repetition); NaN where fewer than half are finite."""
+    z = np.asarray(z, dtype=np.float64)
+    if f == 1:
+        return z.copy()
+    rows, cols = z.shape
+    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
+    blocks = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge").reshape(rr // f, f, cc // f, f)
+    ok = np.isfinite(blocks)
+    count = ok.sum(axis=(1, 3))
+    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
+    out = np.full(count.shape, np.nan)
+    keep = 2 * count >= f * f
+    out[keep] = total[keep] / count[keep]
+    return out
 
 
 def _upstream(flow: FlowGraph, seeds: np.ndarray) -> np.ndarray:
@@ -409,59 +567,72 @@ def _nearest_side(mask_a: np.ndarray, mask_b: np.ndarray) -> np.ndarray:
 # ------------------------------------------------------------------ parameters
 @dataclass(frozen=True)
 class _Calibrated:
-    """Erodibility as a function of θ and of the quantile of the calibration's K samples."""
+    """Erodibility of each member from the calibration, under the model's own erosion law.
+
+    A measured erosion rate is read as the mean over its side (as a basin-averaged
+    cosmogenic rate is), so K = E / mean(A^m S^n) over that side's cells of the model
+    grid; a given K (or one from a dated knickpoint) fixes the mean erosion rate of both
+    sides at the central θ and n, which each member's K then reproduces at its own.
+    """
 
     source: str
     theta0: float
     n: float
-    a0: float
-    ksn: np.ndarray  # per channel node, reported ksn at θ0
-    area: np.ndarray  # per channel node, drainage area (m²)
-    side: np.ndarray  # per channel node, 1 = a, 2 = b
-    k_samples: np.ndarray | None  # K of E = K ksn^n at θ0 (calibration units)
-    rates: tuple[float, float] | None  # erosion rates of a and b (m/yr) when both were given
-    reference: tuple[int, ...]  # side codes whose median ksn anchors K across θ
+    rates: tuple[float | None, float | None]  # mean erosion rates (m/yr) of a and b, where measured
+    k0: float | None  # K itself (a given K or a dated knickpoint), else None
+    spread: np.ndarray | None  # K samples over their median (None: taken as exact)
+    area: np.ndarray  # per model cell, drainage area (m²)
+    slope: np.ndarray  # per model cell, gradient to the receiver
+    side: np.ndarray  # per model cell, 1 = a, 2 = b, 0 = neither
 
-    def _ksn(self, theta: float, codes: tuple[int, ...]) -> float:
-        """Median steepness S A^θ (A0 = 1 m²) of the sides' channel nodes at concavity θ."""
-        sel = np.isin(self.side, codes) & np.isfinite(self.ksn) & (self.ksn > 0) & (self.area > 0)
-        if not sel.any():
+    def _power(self, theta: float, n: float, codes: tuple[int, ...]) -> float:
+        """Mean of A^m S^n (m = θ n) over the cells of the sides ``codes`` on the model grid."""
+        sel = np.isin(self.side, codes)
+        value = float(np.mean(self.area[sel] ** (theta * n) * self.slope[sel] ** n)) if sel.any() else 0.0
+        if not value > 0:
             names = " and ".join("ab"[c - 1] for c in codes)
-            raise ParameterError(f"side {names} has no channel steepness (ksn) to calibrate erodibility from; "
-                                 "lower the channel threshold or choose larger basins")
-        return float(np.median(self.ksn[sel] * self.area[sel] ** (theta - self.theta0))) * self.a0 ** self.theta0
+            raise ParameterError(f"side {names} has no slope on the model grid to calibrate erodibility from; "
+                                 "choose larger basins")
+        return value
 
-    def erodibility(self, theta: float, q: float) -> tuple[float, float]:
-        """K of sides a and b (m^(1-2m)/yr, m = θ n) at concavity θ and quantile q of the K samples."""
-        if self.rates is not None:
-            k_a, k_b = (e / self._ksn(theta, (c,)) ** self.n for e, c in zip(self.rates, (1, 2)))
-            return k_a, k_b
-        k_cal = float(np.quantile(self.k_samples, q))
-        # E at the reference median steepness stays what the calibration says whatever θ.
-        rate = k_cal * (self._ksn(self.theta0, self.reference) * self.a0 ** -self.theta0) ** self.n
-        k = rate / self._ksn(theta, self.reference) ** self.n
+    def erodibility(self, theta: float, q: float, n: float | None = None) -> tuple[float, float]:
+        """K of sides a and b (m^(1-2m)/yr, m = θ n) at concavity θ, slope exponent n (default the
+        assessment's) and quantile q of the calibration's K samples."""
+        n = self.n if n is None else float(n)
+        f = 1.0 if self.spread is None else float(np.quantile(self.spread, q))
+        e_a, e_b = self.rates
+        if e_a is not None and e_b is not None:
+            return e_a / self._power(theta, n, (1,)), e_b / self._power(theta, n, (2,))
+        if e_a is not None or e_b is not None:
+            code, e = (1, e_a) if e_a is not None else (2, e_b)
+            k = f * e / self._power(theta, n, (code,))
+            return k, k
+        mean_rate = f * self.k0 * self._power(self.theta0, self.n, (1, 2))
+        k = mean_rate / self._power(theta, n, (1, 2))
         return k, k
 
 
-def _calibrated(assessment: Assessment) -> _Calibrated:
+def _calibrated(assessment: Assessment, setup: _Setup) -> _Calibrated:
     cal = assessment.calibration
     if not cal.available:
         raise ParameterError(NEEDS_CALIBRATION)
-    prof = assessment.profiles
-    common = dict(source=cal.source, theta0=float(prof.theta), n=float(assessment.config.n),
-                  a0=float(assessment.config.a0_m2), ksn=np.asarray(prof.ksn, dtype=np.float64),
-                  area=np.asarray(prof.channels.area, dtype=np.float64), side=np.asarray(prof.side))
+    side = np.where(setup.mask_a.ravel(), 1, np.where(setup.mask_b.ravel(), 2, 0))
+    common = dict(source=cal.source, theta0=float(assessment.profiles.theta), n=float(assessment.config.n),
+                  area=np.asarray(setup.flow.area, dtype=np.float64).ravel(), slope=_slopes(setup.flow), side=side)
     if cal.k is None:  # both sides' rates given directly
-        ea = float(np.nanmedian(cal.erosion_a))
-        eb = float(np.nanmedian(cal.erosion_b))
-        return _Calibrated(**common, k_samples=None, rates=(ea, eb), reference=(1, 2))
+        rates = (float(np.nanmedian(cal.erosion_a)), float(np.nanmedian(cal.erosion_b)))
+        return _Calibrated(**common, rates=rates, k0=None, spread=None)
     k = np.asarray(cal.k, dtype=np.float64)
     k = k[np.isfinite(k) & (k > 0)]
     if k.size == 0:
         raise ParameterError(f"the calibration ({cal.source}) gave no usable erodibility: the calibrated side has "
                              "no channel steepness; calibrate on the other side or give K")
-    reference = {"erosion rate of side a": (1,), "erosion rate of side b": (2,)}.get(cal.source, (1, 2))
-    return _Calibrated(**common, k_samples=k, rates=None, reference=reference)
+    spread = k / np.median(k) if np.ptp(k) > 0 else None
+    if cal.source == "erosion rate of side a":
+        return _Calibrated(**common, rates=(float(np.nanmedian(cal.erosion_a)), None), k0=None, spread=spread)
+    if cal.source == "erosion rate of side b":
+        return _Calibrated(**common, rates=(None, float(np.nanmedian(cal.erosion_b))), k0=None, spread=spread)
+    return _Calibrated(**common, rates=(None, None), k0=float(np.median(k)), spread=spread)
 
 
 def _theta_interval(assessment: Assessment) -> tuple[float, float, str]:
@@ -475,15 +646,22 @@ def _theta_interval(assessment: Assessment) -> tuple[float, float, str]:
     return max(theta - 0.1, 0.5 * theta), theta + 0.1, "θ ± 0.1 (common practice)"
 
 
-def _design(n_runs: int, seed: int) -> list[tuple[float, float]]:
-    """(quantile of K, position in the θ interval) of each ensemble member: a seeded Latin hypercube."""
+def _design(n_runs: int, seed: int) -> list[tuple[float, float, float, float]]:
+    """(quantile of K, position in the θ interval, and in the n and D intervals) of each ensemble
+    member: a seeded Latin hypercube, each coordinate in [0, 1)."""
     k = n_runs - 1
     if k <= 0:
         return []
     rng = np.random.default_rng(seed)
-    cols = [(rng.permutation(k) + rng.random(k)) / k for _ in range(2)]
+    cols = [(rng.permutation(k) + rng.random(k)) / k for _ in range(4)]
     # K quantiles over the central 95 % of the calibration's samples
-    return [(0.025 + 0.95 * float(cols[0][i]), float(cols[1][i])) for i in range(k)]
+    return [(0.025 + 0.95 * float(cols[0][i]), float(cols[1][i]), float(cols[2][i]), float(cols[3][i]))
+            for i in range(k)]
+
+
+def _spread(value: float, factor: float, q: float) -> float:
+    """``value`` times ``factor`` to the power 2q − 1: log-uniform over [value / factor, value × factor]."""
+    return float(value * factor ** (2.0 * q - 1.0))
 
 
 # ------------------------------------------------------------------ one run
@@ -500,8 +678,6 @@ class _Setup:
     region_a: np.ndarray
     edges: dict
     closed: tuple
-    tracked: tuple[str, str] | None
-    walls: np.ndarray
     channel_area_m2: float
     length_m: float
     present: list
@@ -547,31 +723,17 @@ def _balance_uplift(setup: _Setup, k_field: np.ndarray, m: float, n: float) -> t
     return rates[0], rates[1], float(np.median(np.concatenate(slopes))), setup.channel_area_m2
 
 
-def _displacement(setup: _Setup, flow: FlowGraph, mask_a: np.ndarray, mask_b: np.ndarray,
-                  pos0: np.ndarray | None) -> tuple[float, np.ndarray | None]:
-    """Mean divide displacement since the start (m, into side b) and per-line positions."""
-    pos = None
-    if setup.tracked is not None:
-        pos = divide_positions(flow, *setup.tracked, where=~setup.walls)
-        ref = pos if pos0 is None else pos0
-        both = np.isfinite(pos) & np.isfinite(ref)
-        if both.any():
-            return float(np.mean(pos[both] - ref[both])), pos
-    # Net area side a took from side b, spread along the present divide (also when no
-    # row or column holds the divide at both times).
-    area = setup.grid.cell_area_grid()
-    gained = float(np.sum(area[setup.mask_b & mask_a]) - np.sum(area[setup.mask_a & mask_b]))
-    return gained / setup.length_m, pos
-
-
 def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
-         uplift_mode: str, diffusivity: float, max_steps: int) -> ForecastRun:
+         uplift_mode: str | np.ndarray, diffusivity: float, max_steps: int) -> ForecastRun:
     m = theta * n
     k_field: Any = k[0] if k[0] == k[1] else np.where(setup.region_a, k[0], k[1])
     u_a, u_b, s_ref, a_ref = _balance_uplift(setup, np.asarray(k_field, dtype=np.float64), m, n)
-    if uplift_mode == "uniform":
+    if isinstance(uplift_mode, np.ndarray):  # a raster given: used as is
+        u_field: Any = uplift_mode
+        u_a, u_b = (float(np.median(uplift_mode[mask])) for mask in (setup.mask_a, setup.mask_b))
+    elif uplift_mode == "uniform":
         u_a = u_b = 0.5 * (u_a + u_b)
-        u_field: Any = u_a
+        u_field = u_a
     else:
         u_field = np.where(setup.region_a, u_a, u_b)
     # Time step: a knickpoint at the reference drainage area crosses about one cell per step
@@ -583,9 +745,8 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
     times = np.linspace(0.0, years, min(_TRACK_INTERVALS, n_steps) + 1)
     result = simulate(setup.grid, duration=years, dt=dt, uplift=u_field, erodibility=k_field, m=m, n=n,
                       diffusivity=diffusivity, edges=setup.edges, snapshot_times=times)
-    disp, areas, positions = [], [], []
+    disp, areas = [], []
     cell_area = setup.grid.cell_area_grid()
-    pos0 = None
     captured = False
     mask_a, mask_b = setup.mask_a, setup.mask_b
     for i, snap in enumerate(result.snapshots):
@@ -595,13 +756,8 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
         if both.any():  # one side's outlet now drains through the other: a capture
             captured = True
             mask_a, mask_b = mask_a & ~both, mask_b & ~both
-        d, pos = _displacement(setup, flow, mask_a, mask_b, pos0)
-        if i == 0:
-            pos0 = pos
-        disp.append(d)
+        disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present))
         areas.append(float(np.sum(cell_area[mask_a])))
-        if pos is not None:
-            positions.append(pos)
     try:
         lines = divide_between(result.final, mask_a, mask_b).lines
     except SideError:  # the sides no longer touch
@@ -609,8 +765,9 @@ def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, f
     return ForecastRun(
         label=label, theta=theta, m=m, n=n, erodibility=(float(k[0]), float(k[1])), uplift=(u_a, u_b),
         times=np.asarray(result.times), displacement_m=np.asarray(disp), area_a_m2=np.asarray(areas),
-        positions=np.vstack(positions) if positions else None, final=result.final, mask_a=mask_a, mask_b=mask_b,
-        lines=lines, n_steps=result.n_steps, dt=dt, courant=celerity * dt / cell, captured=captured,
+        final=result.final, mask_a=mask_a, mask_b=mask_b,
+        lines=lines, n_steps=result.n_steps, dt=dt, courant=celerity * dt / cell, diffusivity=diffusivity,
+        captured=captured,
     )
 
 
@@ -624,18 +781,11 @@ def _setup(assessment: Assessment, grid: Dem, factor: int) -> _Setup:
     divide = divide_between(grid, mask_a, mask_b)
     if not divide.lines:
         raise SideError("on the model grid the two sides touch only at isolated cells: no divide to forecast")
-    rows, cols = grid.shape
-    walls = np.zeros(grid.shape, dtype=bool)
-    for e in closed:
-        walls[{"north": (0, slice(None)), "south": (rows - 1, slice(None)),
-               "west": (slice(None), 0), "east": (slice(None), cols - 1)}[e]] = True
-    edge_a, edge_b = spec_a.edge, spec_b.edge
-    tracked = (edge_a, edge_b) if edge_a is not None and OPPOSITE.get(edge_a) == edge_b else None
     threshold = float(assessment.channels.threshold.value_m2)
     return _Setup(
         grid=grid, flow=flow, seeds_a=sides.a.seeds, seeds_b=sides.b.seeds, mask_a=mask_a, mask_b=mask_b,
         region_a=_nearest_side(mask_a, mask_b), edges={e: "closed" for e in closed}, closed=closed,
-        tracked=tracked, walls=walls, channel_area_m2=max(threshold, 2.0 * float(np.max(grid.cell_area))),
+        channel_area_m2=max(threshold, 2.0 * float(np.max(grid.cell_area))),
         length_m=divide.length_m, present=divide.lines,
     )
 
@@ -648,8 +798,9 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
                              f"got {n_runs!r}")
     if not isinstance(seed, (int, np.integer)) or isinstance(seed, bool):
         raise ParameterError(f"`seed` must be a whole number; got {seed!r}")
-    if uplift not in UPLIFT_MODES:
-        raise ParameterError(f"`uplift` must be one of {', '.join(UPLIFT_MODES)}; got {uplift!r}")
+    if not isinstance(uplift, np.ndarray) and uplift not in UPLIFT_MODES:
+        raise ParameterError(f"`uplift` must be one of {', '.join(UPLIFT_MODES)} or a raster of uplift rates (m/yr) "
+                             f"on the DEM's grid; got {uplift!r}")
     try:
         d = float(diffusivity)
     except (TypeError, ValueError):
@@ -659,6 +810,45 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
     if not isinstance(max_steps, (int, np.integer)) or isinstance(max_steps, bool) or max_steps < _MIN_STEPS:
         raise ParameterError(f"`max_steps` must be a whole number >= {_MIN_STEPS}; got {max_steps!r}")
     return years_f
+
+
+def _check_lowering(edge_lowering: Any, closed: Any, assessment: Assessment | None) -> dict[str, float]:
+    """Validated ``edge_lowering``: open DEM edges and finite rates in m/yr."""
+    if edge_lowering is None:
+        return {}
+    if not isinstance(edge_lowering, dict):
+        raise ParameterError(f"`edge_lowering` must map DEM edges to lowering rates in m/yr, e.g. {{'west': 2e-4}}; "
+                             f"got {edge_lowering!r}")
+    if assessment is not None:
+        closed = assessment.config.closed_edges
+    shut = set(closed.replace(" ", "").split(",") if isinstance(closed, str) else (closed or ()))
+    out = {}
+    for edge, rate in edge_lowering.items():
+        if edge not in ("north", "south", "west", "east"):
+            raise ParameterError(f"`edge_lowering` names {edge!r}; use north, south, west or east")
+        if edge in shut:
+            raise ParameterError(f"`edge_lowering` names the closed edge {edge!r}; only an open edge has a base level")
+        try:
+            r = float(rate)
+        except (TypeError, ValueError):
+            r = math.nan
+        if not math.isfinite(r):
+            raise ParameterError(f"the lowering rate of the {edge} edge must be a number of m/yr; got {rate!r}")
+        out[edge] = r
+    return out
+
+
+def _uplift_grid(uplift: str | np.ndarray, dem: Dem, factor: int) -> str | np.ndarray:
+    """The uplift mode, or an uplift raster checked and block-averaged onto the model grid."""
+    if not isinstance(uplift, np.ndarray):
+        return uplift
+    if uplift.shape != dem.shape:
+        raise ParameterError(f"the uplift raster must have the DEM's shape {dem.shape}; got {uplift.shape}")
+    field = np.asarray(uplift, dtype=np.float64)
+    if not np.all(np.isfinite(field[dem.valid])):
+        raise ParameterError("the uplift raster holds non-finite values where the DEM is valid; give m/yr everywhere")
+    small = _block_mean(np.where(dem.valid, field, np.nan), factor)
+    return np.where(np.isfinite(small), small, 0.0)
 
 
 def _same_side(given: str, spec: SideSpec) -> bool:
@@ -674,11 +864,12 @@ def forecast(
     assessment: Assessment | None = None,
     n_runs: int = 9,
     seed: int = 0,
-    uplift: str = "uniform",
+    uplift: str | np.ndarray = "uniform",
     diffusivity: float = DEFAULT_DIFFUSIVITY,
     max_cells: int = MAX_CELLS,
     max_steps: int = _MAX_STEPS,
     lonlat: bool = False,
+    edge_lowering: dict[str, float] | None = None,
     **assess_options: Any,
 ) -> Forecast:
     """Forecast where the divide between two sides of a DEM will be after ``years``.
@@ -697,7 +888,9 @@ def forecast(
     n_runs : int
         Model runs: the central run plus ``n_runs - 1`` ensemble members
         drawn by a seeded Latin hypercube over K (the central 95 % of the
-        calibration's samples) and θ (its interval).
+        calibration's samples), θ (its interval), n (log-uniform within a
+        factor :data:`N_FACTOR` of the assessment's) and D (log-uniform within
+        a factor :data:`D_FACTOR` of ``diffusivity``).
     seed : int
         Seed of the ensemble (and of the assessment when one is made).
     uplift : {"uniform", "sides"}
@@ -708,7 +901,10 @@ def forecast(
         erodibility assume (Willett et al. 2014). ``"sides"``: each side
         uplifts at its own median rate (a raster split by side), so each
         side on its own is in balance and motion comes only from where the
-        landscape departs from it.
+        landscape departs from it. Or an array of the DEM's shape: rock
+        uplift relative to base level (m/yr), block-averaged with the DEM and
+        used as given (Forte & Whipple 2018: an uplift contrast moves a
+        divide that χ alone would call stable).
     diffusivity : float
         Hillslope diffusivity D (m²/yr); 0 turns diffusion off.
     max_cells : int
@@ -717,6 +913,10 @@ def forecast(
         Most time steps per run (accuracy falls when the cap is reached; see notes).
     lonlat : bool
         SPEC points are longitude,latitude.
+    edge_lowering : dict, optional
+        Open edges whose base level keeps falling, and how fast (m/yr,
+        positive lowers), e.g. ``{"west": 2e-4}``; other open edges are held
+        at their present elevations.
     **assess_options
         Options of :func:`divides.assess` (``theta``, ``n``, ``closed_edges``,
         ``erosion_rate_a_mm_yr``, ``erosion_rate_b_mm_yr``, ``erodibility``,
@@ -736,15 +936,22 @@ def forecast(
 
     Notes
     -----
-    K comes from the calibration: a measured erosion rate E of a side gives
-    K = E / ksn^n with that side's median ksn (Whipple & Tucker 1999); across
-    the θ interval K is re-scaled so the calibrated erosion rate holds at the
-    same median channel steepness. Open edges are held at their present
+    K comes from the calibration, under the model's own law E = K A^m S^n on
+    the model grid: a measured erosion rate E of a side is read as that
+    side's mean (as a basin-averaged cosmogenic rate is), so
+    K = E / mean(A^m S^n) over the side's cells; a given K (or one from a
+    dated knickpoint) fixes the mean erosion rate of both sides at the
+    assessment's θ and n. Each ensemble member's K reproduces that mean rate
+    at its own θ and n, scaled by the spread of the calibration's K samples.
+    (On the demo, K from the measured 0.70 mm/yr comes out 4.4e-5 against the
+    4e-5 that grew it; from the median channel steepness it was 1.7e-5.)
+    Open edges are held at their present
     elevations, closed edges stay closed. The divide is measured from the
-    model's own routing at eleven times: for two opposite edges as the mean
-    over rows (or columns) of its position
-    (:func:`divides.model.tracking.divide_positions`), otherwise as the net
-    area side a takes from side b divided by the present divide length.
+    model's own routing at eleven times, as the net area side a takes from
+    side b divided by the length of the present divide that still separates
+    the two sides (:func:`divides.model.tracking.exchange_displacement`):
+    cells that open edges or other basins take from either side are not
+    read as motion of this divide.
 
     Examples
     --------
@@ -761,6 +968,8 @@ def forecast(
     ('b', True)
     """
     years_f = _check_options(years, n_runs, seed, uplift, diffusivity, max_steps)
+    lowering = _check_lowering(edge_lowering, assess_options.get("closed_edges"), assessment)
+    _uplift_grid(uplift, dem, 1)  # a bad raster is refused before the long work
     if assessment is None:
         if not any(assess_options.get(k) is not None for k in _CALIBRATION_OPTIONS):
             raise ParameterError(NEEDS_CALIBRATION)
@@ -778,22 +987,30 @@ def forecast(
         if not (_same_side(side_a, assessment.sides.a.spec) and _same_side(side_b, assessment.sides.b.spec)):
             raise ParameterError(f"the assessment's sides are {assessment.sides.a.spec.text!r} and "
                                  f"{assessment.sides.b.spec.text!r}, not {side_a!r} and {side_b!r}")
-    calibrated = _calibrated(assessment)
+    if not assessment.calibration.available:
+        raise ParameterError(NEEDS_CALIBRATION)
     theta_lo, theta_hi, theta_basis = _theta_interval(assessment)
     grid, factor = coarsen(dem, max_cells=max_cells)
     setup = _setup(assessment, grid, factor)
+    if lowering:
+        setup = dataclasses.replace(setup, edges={**setup.edges, **{e: open_edge(lowering_rate=r)
+                                                                   for e, r in lowering.items()}})
+    calibrated = _calibrated(assessment, setup)
 
-    common = dict(n=calibrated.n, years=years_f, uplift_mode=uplift, diffusivity=float(diffusivity),
-                  max_steps=int(max_steps))
-    central = _run(setup, label="central", theta=calibrated.theta0, k=calibrated.erodibility(calibrated.theta0, 0.5),
-                   **common)
+    common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps))
+    d0 = float(diffusivity)
+    central = _run(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
+                   k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
     members = []
-    for i, (q_k, q_theta) in enumerate(_design(int(n_runs), int(seed))):
+    for i, (q_k, q_theta, q_n, q_d) in enumerate(_design(int(n_runs), int(seed))):
         theta = theta_lo + (theta_hi - theta_lo) * q_theta
-        members.append(_run(setup, label=f"member {i + 1}", theta=theta, k=calibrated.erodibility(theta, q_k),
+        n_i = _spread(calibrated.n, N_FACTOR, q_n)
+        members.append(_run(setup, label=f"member {i + 1}", theta=theta, n=n_i,
+                            k=calibrated.erodibility(theta, q_k, n_i), diffusivity=_spread(d0, D_FACTOR, q_d),
                             **common))
 
     notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup)
+    notes += [f"The base level of the {e} edge keeps falling at {_sig(1e3 * r)} mm/yr." for e, r in lowering.items()]
     if assessment.config.sea_level_m is not None:
         notes.append("The model drains only off the DEM's open edges and nodata: cells at or below the sea level "
                      "given to the assessment are not held as outlets.")
@@ -806,10 +1023,14 @@ def forecast(
         "calibration": calibrated.source,
         "erodibility": {"a": central.erodibility[0], "b": central.erodibility[1],
                         "unit": "m^(1-2m)/yr, E = K A^m S^n"},
-        "uplift_mode": uplift,
+        "uplift_mode": "raster" if isinstance(uplift, np.ndarray) else uplift,
         "uplift_m_per_yr": {"a": central.uplift[0], "b": central.uplift[1]},
         "diffusivity_m2_per_yr": float(diffusivity),
-        "edges": {e: ("closed" if e in setup.closed else "open, held at present elevations")
+        "ensemble_intervals": {"n": [calibrated.n / N_FACTOR, calibrated.n * N_FACTOR],
+                               "diffusivity_m2_per_yr": [float(diffusivity) / D_FACTOR, float(diffusivity) * D_FACTOR],
+                               "theta": [theta_lo, theta_hi]},
+        "edges": {e: ("closed" if e in setup.closed else
+                      f"open, lowered at {lowering[e]:g} m/yr" if e in lowering else "open, held at present elevations")
                   for e in ("north", "south", "west", "east")},
         "n_runs": int(n_runs),
         "seed": int(seed),
@@ -817,8 +1038,7 @@ def forecast(
         "n_steps": central.n_steps,
         "courant": central.courant,
         "channel_area_m2": setup.channel_area_m2,
-        "measure": "mean position along rows/columns between opposite edges" if setup.tracked
-                   else "net area exchanged / present divide length",
+        "measure": MEASURE,
     }
     verdict = assessment.verdict
     summary = {"moves_toward": verdict.moves_toward, "confidence": verdict.confidence,
@@ -832,7 +1052,7 @@ def forecast(
 
 
 def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list, calibrated: _Calibrated,
-           theta_basis: str, uplift: str, setup: _Setup) -> list[str]:
+           theta_basis: str, uplift: str | np.ndarray, setup: _Setup) -> list[str]:
     notes = []
     if factor > 1:
         notes.append(f"For speed the DEM ({dem.shape[0]} x {dem.shape[1]} cells) was block-averaged by {factor} x "
@@ -842,17 +1062,21 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
     if any(r.courant > 1.5 for r in runs):
         notes.append("The step cap was reached: knickpoints cross more than one cell per step, which smooths "
                      "transients and can slow the modelled divide; raise max_steps for a finer run.")
-    if calibrated.k_samples is None or np.ptp(calibrated.k_samples) == 0:
-        notes.append(f"Erodibility from {calibrated.source} is taken as exact: the bands reflect θ only "
-                     f"({theta_basis}).")
+    if calibrated.spread is None:
+        notes.append(f"Erodibility from {calibrated.source} is taken as exact: the bands reflect θ "
+                     f"({theta_basis}), n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
     else:
-        notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples) and θ ({theta_basis}).")
-    notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
-                               if uplift == "uniform" else
-                               "each side at its own channel erosion rate at the start (fields split by side)."))
+        notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples), θ ({theta_basis}), "
+                     f"n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
+    if isinstance(uplift, np.ndarray):
+        notes.append("Uplift: the raster given" + (" (block-averaged with the DEM)." if factor > 1 else "."))
+    else:
+        notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
+                                   if uplift == "uniform" else
+                                   "each side at its own channel erosion rate at the start (fields split by side)."))
     if any(r.captured for r in runs):
         notes.append("In at least one run a side's outlet came to drain through the other side (a capture): "
                      "displacements after that are those of the remaining cells.")
-    if not setup.closed and setup.tracked is None:
+    if not setup.closed:
         notes.append("Open DEM edges hold their present elevations; cells near them are fixed at base level.")
     return notes

@@ -1,0 +1,182 @@
+"""Knickpoint travel times and divide speeds from rate.py against the forward model and crest kinematics.
+
+The model runs are the measurement; the predictions come from the published
+celerity (Royden & Perron 2013) and the kinematics of a crest between two
+lowering slopes (Gilbert 1877; Mudd & Furbish 2005; Forte & Whipple 2018).
+No expected value is taken from the code under test.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import divides
+from divides.assess.rate import calibrate, divide_rate, migration_rate, travel_time
+from divides.errors import ParameterError
+from divides.model import divide_positions, edge_catchments, open_edge, simulate
+from divides.model.scenarios import ridge_surface
+
+DX = 100.0
+U = 1e-3  # uplift, m/yr
+THETA = 0.45
+WALLS = {"north": "closed", "south": "closed"}
+
+
+def _steady(n: float, k: float) -> divides.Dem:
+    """A ridge between open west and east edges grown to steady state under uniform U and K."""
+    start = ridge_surface((16, 40), cell_size=DX, relief=20.0, noise=1.0, seed=2)
+    grown = simulate(start, duration=3e6, dt=5e3, uplift=U, erodibility=k, m=THETA * n, n=n, edges=WALLS).final
+    # steady: another 100 kyr changes nothing (E = U everywhere)
+    again = simulate(grown, duration=1e5, dt=5e3, uplift=U, erodibility=k, m=THETA * n, n=n, edges=WALLS).final
+    np.testing.assert_allclose(again.elevation, grown.elevation, atol=1e-6)
+    return grown
+
+
+def _head_and_path(surface: divides.Dem) -> tuple[int, np.ndarray, np.ndarray, np.ndarray]:
+    """The west side's channel head nearest the divide (area >= 5 cells), its flow path to the
+    west edge, and the length and drainage area of each step of that path."""
+    flow = divides.route(surface, closed_edges=("north", "south"))
+    area = flow.area.ravel()
+    cols = surface.shape[1]
+    west = edge_catchments(flow, ["west", "east"]).ravel() == 1
+    candidates = np.flatnonzero(west & (area >= 5 * DX * DX))
+    head = int(candidates[np.argmax(candidates % cols)])
+    path = [head]
+    while flow.receivers[path[-1]] != path[-1]:
+        path.append(int(flow.receivers[path[-1]]))
+    steps = np.asarray(path[:-1])  # each node erodes toward its receiver with its own area
+    return head, steps, np.asarray(flow.distance).ravel()[steps], area[steps]
+
+
+@pytest.mark.parametrize(
+    ("n", "k", "fall"),
+    [
+        (1.0, 1e-4, {"elevation": -10.0}),  # base level drops 10 m at once
+        (2.0, 1e-5, {"lowering_rate": 2e-3}),  # base level starts falling at 2 mm/yr: a shock for n > 1
+        (1.5, 3e-5, {"lowering_rate": 2e-3}),
+    ],
+)
+def test_knickpoint_reaches_the_channel_head_when_its_celerity_says(n, k, fall):
+    # Royden & Perron 2013: for n = 1 a knickpoint climbs at K A^m whatever its shape; for n > 1 a
+    # break whose steeper reach lies downstream climbs as a shock at K A^m (S1^n - S2^n)/(S1 - S2).
+    # The travel time to the channel head nearest the divide must match the time the run takes
+    # to lower that head (by half the drop, or to half the new lowering rate) within 30 %.
+    surface = _steady(n, k)
+    head, _, length, area = _head_and_path(surface)
+    times = np.arange(0.0, 1.5e5 + 1.0, 1e3)
+    common = dict(duration=times[-1], dt=100.0, uplift=U, erodibility=k, m=THETA * n, n=n, snapshot_times=times)
+    run = simulate(surface, edges={**WALLS, "west": open_edge(**fall)}, **common)
+    control = simulate(surface, edges=WALLS, **common)
+    drop = np.array([c.elevation.ravel()[head] - s.elevation.ravel()[head]
+                     for s, c in zip(run.snapshots, control.snapshots)])
+    if "elevation" in fall:
+        arrived = drop >= 0.5 * 10.0
+    else:
+        arrived = np.gradient(drop, times) >= 0.5 * fall["lowering_rate"]
+    assert arrived.any()
+    measured = times[np.argmax(arrived)]
+    predictions = []
+    for a0 in (1.0, 1e6):  # reference area 1 m² and 1 km²
+        chi = float(np.sum(length * (a0 / area) ** THETA))
+        steep = {}
+        if n != 1.0:
+            # steady steepness at A0: S (A/A0)^θ = (U / (K A0^m))^(1/n) (Whipple & Tucker 1999)
+            steep = {"ksn_below": ((U + fall["lowering_rate"]) / (k * a0 ** (THETA * n))) ** (1 / n),
+                     "ksn_above": (U / (k * a0 ** (THETA * n))) ** (1 / n)}
+        predictions.append(float(travel_time(chi, erodibility=k, theta=THETA, n=n, a0_m2=a0, **steep)))
+    assert predictions[1] == pytest.approx(predictions[0], rel=1e-9)  # A0 cancels (issue 13, item 4)
+    assert predictions[0] == pytest.approx(measured, rel=0.3), (predictions[0], measured)
+
+
+def test_travel_time_for_n_other_than_one_needs_the_steepness():
+    # The step celerity depends on the slopes on both sides when n != 1 (Royden & Perron 2013).
+    with pytest.raises(ParameterError, match="ksn_below"):
+        travel_time(1.0, erodibility=1e-5, theta=0.45, n=2.0)
+    # n = 1: χ / (K A0^m) (Perron & Royden 2013), here 2 / (1e-4 x 100^0.45)
+    assert float(travel_time(2.0, erodibility=1e-4, theta=0.45, a0_m2=100.0)) == pytest.approx(2e4 / 100**0.45)
+
+
+# ---------------------------------------------------------------- crest kinematics with uplift
+def test_divide_rate_is_the_speed_of_the_intersection_of_two_planes():
+    # Geometry (Gilbert 1877; the kinematics in METHODS, "Crest kinematics with uplift"): flank a
+    # rises east at S_a and changes height at U_a - E_a, flank b rises west at S_b and changes at
+    # U_b - E_b; the crest is the highest point of the lower envelope. Found here by brute force on a
+    # fine line at two times, not from the formula.
+    x = np.linspace(-2000.0, 7000.0, 450_001)  # 2 cm apart
+    rng = np.random.default_rng(7)
+    for _ in range(20):
+        s_a, s_b = rng.uniform(0.05, 0.5, 2)
+        e_a, e_b, u_a, u_b = rng.uniform(0.0, 2e-3, 4)
+
+        def crest(t):
+            z = np.minimum(s_a * x + (u_a - e_a) * t, s_b * (5000.0 - x) + (u_b - e_b) * t)
+            return x[np.argmax(z)]
+
+        t = 2e4  # the crest stays on the line (it moves at most 80 m in this time)
+        measured = (crest(t) - crest(0.0)) / t
+        expected = float(divide_rate(e_a, e_b, s_a, s_b, uplift_a=u_a, uplift_b=u_b))
+        assert measured == pytest.approx(expected, abs=0.04 / t)  # two grid spacings
+    # equal uplift cancels: the older form V = (E_a - E_b)/(tan a + tan b) is the same number
+    assert float(migration_rate(2e-3, 1e-3, 0.3, 0.2)) == pytest.approx(float(
+        divide_rate(2e-3, 1e-3, 0.3, 0.2, uplift_a=5e-3, uplift_b=5e-3)))
+
+
+def _planes(rows: int = 10, cols: int = 61, s_a: float = 0.2, s_b: float = 0.1) -> divides.Dem:
+    c = np.arange(cols, dtype=np.float64)
+    z = np.minimum(s_a * DX * c, s_b * DX * (cols - 1 - c))  # crest between columns 20 and 21
+    return divides.Dem.from_array(np.repeat(z[None], rows, axis=0), cell_size=DX, valid_range=None)
+
+
+def test_divide_between_uplifted_planes_in_the_model_moves_at_the_crest_speed():
+    # Two planes under E = K A^m S^n with m = 0.01 (every cell of a flank lowered at K S^n, within
+    # the factor A^0.01 between the smallest and largest drainage area), uplift following each side
+    # (U_a under cells draining west, U_b under cells draining east, updated every 20 kyr). Before the
+    # signal of the fixed edges reaches the crest (~1.8 Myr from the west edge at celerity K A^m,
+    # Royden & Perron 2013), both flanks stay planes and the crest must move at divide_rate.
+    # Slack: one cell (the divide lies on a cell face) plus one update interval of motion.
+    k, s_a, s_b, u_a, u_b = 1e-3, 0.2, 0.1, 0.0, 3e-4
+    surface = _planes(s_a=s_a, s_b=s_b)
+    chunk, years = 2e4, 1e6
+    start = divide_positions(divides.route(surface, closed_edges=("north", "south")), "west", "east")[1:-1]
+    for _ in range(int(years / chunk)):
+        flow = divides.route(surface, closed_edges=("north", "south"))
+        uplift = np.where(edge_catchments(flow, ["west", "east"]) == 1, u_a, u_b)
+        surface = simulate(surface, duration=chunk, dt=chunk / 4, uplift=uplift, erodibility=k, m=0.01, n=1.0,
+                           edges=WALLS).final
+    end = divide_positions(divides.route(surface, closed_edges=("north", "south")), "west", "east")[1:-1]
+    moved = float(np.mean(end - start))
+    a_lo, a_hi = (DX * DX) ** 0.01, (60 * DX * DX) ** 0.01
+    lo = float(divide_rate(k * s_a * a_lo, k * s_b * a_hi, s_a, s_b, uplift_a=u_a, uplift_b=u_b)) * years
+    hi = float(divide_rate(k * s_a * a_hi, k * s_b * a_lo, s_a, s_b, uplift_a=u_a, uplift_b=u_b)) * years
+    slack = DX + hi / years * chunk
+    assert lo - slack <= moved <= hi + slack, (lo, moved, hi)
+    # the uplift matters: with U_b = U_a the crest would have moved (E_a - E_b)/(S_a + S_b) t, about
+    # a quarter of this
+    without = float(divide_rate(k * s_a * a_hi, k * s_b * a_lo, s_a, s_b)) * years
+    assert moved > without + slack
+
+
+# ---------------------------------------------------------------- errors of the inputs
+def test_errors_of_the_inputs_carry_into_k_and_the_erosion_rates():
+    # Propagation of independent errors (common practice): with exact steepness, K = E / ksn^n has
+    # the relative spread of E; the rate of the other side E_b = K ksn_b^n has it too. With a
+    # steepness spread as well, the relative variances add (first order, Taylor expansion).
+    ksn = np.full(4000, 50.0)
+    cal = calibrate(ksn_a=ksn, ksn_b=ksn * 2.0, n=1.0, erosion_rate_a_mm_yr=0.2, erosion_rate_a_error_mm_yr=0.05)
+    assert np.std(cal.k) / np.mean(cal.k) == pytest.approx(0.25, rel=0.1)
+    assert np.mean(cal.erosion_a) == pytest.approx(0.2e-3, rel=0.02)
+    assert np.std(cal.erosion_b) / np.mean(cal.erosion_b) == pytest.approx(0.25, rel=0.1)
+    noisy = np.random.default_rng(3).normal(50.0, 5.0, 4000)  # 10 % spread of the steepness
+    cal = calibrate(ksn_a=noisy, ksn_b=noisy, n=2.0, erosion_rate_a_mm_yr=0.2, erosion_rate_a_error_mm_yr=0.05)
+    expected = np.hypot(0.25, 2.0 * 0.1)  # n = 2 doubles the steepness term
+    assert np.std(np.log(cal.k)) == pytest.approx(expected, rel=0.1)
+    # without an error the input is exact, as before
+    exact = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, erosion_rate_a_mm_yr=0.2)
+    assert np.ptp(exact.k) == 0.0
+    # a dated knickpoint: K = χ / (age c) with a 20 % error of the age gives about 20 % in K
+    dated = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, knickpoint={"chi": 10.0, "ksn_below": 60.0, "ksn_above": 50.0},
+                      knickpoint_age_years=1e5, knickpoint_age_error_years=2e4)
+    assert np.std(np.log(dated.k)) == pytest.approx(0.2, rel=0.1)
+    given = calibrate(ksn_a=ksn, ksn_b=ksn, n=1.0, erodibility=1e-5, erodibility_error=3e-6)
+    assert np.mean(given.k) == pytest.approx(1e-5, rel=0.02) and np.std(given.k) == pytest.approx(3e-6, rel=0.1)
