@@ -168,13 +168,29 @@ class DivideSamples:
         """Number of samples."""
         return len(self.members)
 
-    def effective(self, dem_error: DemError | None) -> float:
-        """Independent samples: the effective sample size under the DEM error's correlation
-        (Bretherton et al. 1999), capped by the distinct source cells on either side."""
-        if self.size == 0:
+    def distinct(self) -> int:
+        """Fewest distinct source cells on either side: a cell facing several cells across the
+        divide is one measurement on its side."""
+        return int(min(np.unique(self.key_a).size, np.unique(self.key_b).size)) if self.size else 0
+
+    def effective(self, dem_error: DemError | None, error_share: float = 1.0) -> float:
+        """Independent samples under the DEM error's correlation, capped by :meth:`distinct`.
+
+        The DEM error makes samples correlated in proportion to its share of their variance
+        (``error_share`` = error variance / total variance, clipped to 0–1): the correlation
+        of samples i ≠ j is share · ρ(d_ij), and n_eff = n² / Σ_ij corr_ij (Bretherton et al.
+        1999). With share 1 (differences that are all DEM error) this is the error model's own
+        effective sample size.
+        """
+        n = self.size
+        if n == 0:
             return 0.0
-        n_eff = float(self.size) if dem_error is None else dem_error.effective_sample_size(self.xy)
-        return float(min(n_eff, np.unique(self.key_a).size, np.unique(self.key_b).size))
+        n_eff = float(n)
+        if dem_error is not None and n > 1:
+            total_rho = n * n / dem_error.effective_sample_size(self.xy)  # Σ_ij ρ(d_ij)
+            share = float(np.clip(error_share, 0.0, 1.0))
+            n_eff = n * n / (n + share * (total_rho - n))
+        return float(min(n_eff, self.distinct()))
 
 
 def divide_samples(points: DividePoints) -> DivideSamples:
@@ -276,27 +292,29 @@ def compute_contrasts(
     """
     rng = np.random.default_rng(seed)
     samples = divide_samples(points) if samples is None else samples
-    n_eff_all = samples.effective(dem_error)
     out = []
     for metric, (unit, rule) in METRICS.items():
         va, vb = samples.values[metric]
         label = f"{rule} {'χ' if metric == 'chi' else metric.replace('_', ' ')}"
         keep = np.isfinite(va) & np.isfinite(vb)
         n = int(keep.sum())
-        if n == samples.size:
-            n_eff = n_eff_all
-        else:  # χ undefined on some samples (networks left out of χ)
-            sub = DivideSamples([samples.members[i] for i in np.flatnonzero(keep)], {}, samples.xy[keep],
-                                samples.key_a[keep], samples.key_b[keep])
-            n_eff = sub.effective(dem_error)
+        sub = samples if n == samples.size else DivideSamples(  # χ may be undefined on some samples
+            [samples.members[i] for i in np.flatnonzero(keep)], {}, samples.xy[keep], samples.key_a[keep],
+            samples.key_b[keep])
         a, b = va[keep], vb[keep]
         diff = a - b
         mean = float(diff.mean()) if n else float("nan")
+        floor_sd = _floor_sd(metric, dem_error, cell_m)
+        variance = float(diff.var(ddof=1)) if n > 1 else 0.0
+        share = 1.0 if variance <= 0 else floor_sd ** 2 / variance
+        n_eff = sub.effective(dem_error if floor_sd > 0 else None, share)
         lo = hi = float("nan")
         if n_eff >= min_samples:
             block = max(1, int(round(block_points * n / max(points.size, 1))), int(np.ceil(n / max(n_eff, 1.0))))
+            # the DEM error's own part of the uncertainty of the mean: σ_d² / n_eff of the error model
+            error_n = dem_error.effective_sample_size(sub.xy) if dem_error is not None else float(n)
             lo, hi = interval_of_mean(diff, block=block, n_effective=n_eff, n_boot=n_boot, rng=rng,
-                                      floor_sd=_floor_sd(metric, dem_error, cell_m))
+                                      floor_sd=floor_sd * np.sqrt(n_eff / max(error_n, 1.0)))
         if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
             out.append(Contrast(metric, unit, float(a.mean()) if n else np.nan, float(b.mean()) if n else np.nan,
                                 mean, (np.nan, np.nan), "none", int(np.floor(n_eff + 1e-9)), label,

@@ -112,3 +112,22 @@ def test_the_same_landscape_cut_lower_gives_the_same_chi_contrast(steady):
     assert b.n_samples == a.n_samples
     assert b.a == pytest.approx(a.a, rel=1e-4) and b.b == pytest.approx(a.b, rel=1e-4)
     assert b.difference == pytest.approx(a.difference, rel=1e-3, abs=1e-3)
+
+
+def test_knickpoints_without_a_defined_celerity_get_no_arrival_time(moving):
+    # A break whose celerity is not defined (a spreading break for n > 1, a vertical step; Royden &
+    # Perron 2013) gets no time; the others keep theirs. Times are written with two significant
+    # figures (they are not known better; common practice).
+    from divides.assess import assessment as A
+    from divides.assess.contrasts import divide_samples
+
+    r = divides.assess(moving, "west", "east", erodibility=2e-5, **OPTIONS)
+    assert len(r.knickpoints) >= 2
+    core = A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
+                   r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
+                   r.automatic["block_points"], divide_samples(r.points), r.config.dem_error(CELL))
+    r.profiles.knickpoints[0]["celerity_defined"] = False
+    _, _, knickpoints = A._rate_and_timing(core, r.config, r.verdict)
+    assert knickpoints[0]["arrival_years"] is None
+    assert knickpoints[1]["arrival_years"] == r.knickpoints[1]["arrival_years"]
+    assert [A._sig2(v) for v in (132428.8, 0.0123456, 7.96, 1234.0)] == ["130,000", "0.012", "8", "1,200"]
