@@ -77,3 +77,39 @@ def test_a_side_entirely_below_the_other_sides_outlets_is_assessed_not_refused()
     chi = {c.metric: c for c in result.contrasts}["chi"]
     assert chi.why_none == "insufficient data"
     assert result.summary["sides"]["a"]["networks"]["below_base"] >= 1
+
+
+def _cli(argv):
+    import contextlib
+    import io
+
+    from divides.cli.app import run
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = run(argv)
+    return code, out.getvalue(), err.getvalue()
+
+
+def test_dem_error_length_reaches_the_assessment_and_bad_values_exit_2(tmp_path):
+    # The option is parsed like --dem-error (project rule for bad input: one line, exit 2, no output).
+    import json
+    from pathlib import Path
+
+    from divides.cli.assess_cmd import assess_request
+    from divides.config import AssessConfig
+
+    uplands = str(Path(__file__).resolve().parents[2] / "demo" / "uplands.tif")
+    base = ["assess", uplands, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
+            "--no-robustness"]
+    options = assess_request(side_a="west", side_b="east", dem_error_length="250").options
+    assert options["dem_error_length_m"] == 250.0
+    assert AssessConfig(**options).dem_error(30.0).length_m == 250.0
+    assert AssessConfig().dem_error(30.0).length_m == 90.0  # default: three cells (documented)
+    assert json.loads(json.dumps(AssessConfig(**options).to_dict()))["dem_error_length_m"] == 250.0
+    for command in (base, ["screen", uplands]):
+        code, out, err = _cli([*command, "--dem-error-length", "-5", "--out", str(tmp_path / "bad")])
+        assert code == 2 and out == ""
+        lines = err.strip().splitlines()
+        assert len(lines) == 1 and "--dem-error-length" in lines[0]
+        assert not (tmp_path / "bad").exists()
