@@ -428,8 +428,10 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                      "undetermined.")
     for c in contrasts:
         if not c.sufficient or not np.isfinite(c.ci95[0]):
-            lines.append(f"- {c.metric.replace('_', ' ')}: insufficient data ({c.n_points} independent "
-                         f"sample(s); at least {MIN_SAMPLES} per side needed).")
+            why = ("no divide sample has it on both sides (χ: a side's networks may not reach the common base "
+                   "level; see sides.*.networks in summary.json)" if c.n_samples == 0 else
+                   f"{c.n_points} independent sample(s); at least {MIN_SAMPLES} per side needed")
+            lines.append(f"- {c.metric.replace('_', ' ')}: insufficient data ({why}).")
             continue
         sense = {
             "interval spans zero": "no significant difference",
@@ -445,8 +447,8 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
         lines.append(f"χ alone points the other way (toward side {verdict.long_run}): the present motion may "
                      "reverse in the long run, or uplift, erodibility or climate differ across the divide.")
     if verdict.robustness_share is not None:
-        lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed DEM, θ and channel "
-                     "threshold kept this verdict.")
+        lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed inputs (DEM error, "
+                     "channel threshold, and θ when χ could decide) kept this verdict.")
     if rate is not None:
         lines.append(f"Migration rate toward side {rate['toward']}: {_sig2(rate['best'])} mm/yr "
                      f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {cal.source}.")
