@@ -115,14 +115,15 @@ def block_bootstrap_mean(values: np.ndarray, *, block: int, n_boot: int, rng: np
 
 
 def interval_of_mean(values: np.ndarray, *, block: int, n_effective: float, n_boot: int,
-                     rng: np.random.Generator, floor_sd: float = 0.0) -> tuple[float, float]:
+                     rng: np.random.Generator, floor_se: float = 0.0) -> tuple[float, float]:
     """95 % interval of the mean of a sequence along the divide.
 
     The moving-block bootstrap percentiles (Künsch 1989) are widened about the mean by
     t(0.975, n_eff − 1) / z(0.975) · sqrt(n / (n − 1)): the percentile interval behaves like
     a z-interval with the biased variance, too narrow for small samples (Efron & Tibshirani
     1993, ch. 13; the t-quantile is Student's). Its half-width is never below
-    t · ``floor_sd`` / sqrt(n_eff), the part of the spread the DEM error alone would cause.
+    t · ``floor_se``, with ``floor_se`` the standard error of the mean that the DEM error
+    alone would cause.
     """
     n = values.size
     boots = block_bootstrap_mean(values, block=block, n_boot=n_boot, rng=rng)
@@ -131,7 +132,7 @@ def interval_of_mean(values: np.ndarray, *, block: int, n_effective: float, n_bo
     t = float(stats.t.ppf(0.975, max(n_effective - 1.0, 1.0)))
     widen = t / float(stats.norm.ppf(0.975)) * np.sqrt(n / max(n - 1, 1))
     low, high = mean - widen * (mean - lo), mean + widen * (hi - mean)
-    floor = t * floor_sd / np.sqrt(max(n_effective, 1.0))
+    floor = t * floor_se
     return float(min(low, mean - floor)), float(max(high, mean + floor))
 
 
@@ -311,10 +312,10 @@ def compute_contrasts(
         lo = hi = float("nan")
         if n_eff >= min_samples:
             block = max(1, int(round(block_points * n / max(points.size, 1))), int(np.ceil(n / max(n_eff, 1.0))))
-            # the DEM error's own part of the uncertainty of the mean: σ_d² / n_eff of the error model
+            # the DEM error's own part of the uncertainty of the mean: σ_d / sqrt(n_eff of the error model)
             error_n = dem_error.effective_sample_size(sub.xy) if dem_error is not None else float(n)
             lo, hi = interval_of_mean(diff, block=block, n_effective=n_eff, n_boot=n_boot, rng=rng,
-                                      floor_sd=floor_sd * np.sqrt(n_eff / max(error_n, 1.0)))
+                                      floor_se=floor_sd / np.sqrt(max(error_n, 1.0)))
         if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
             out.append(Contrast(metric, unit, float(a.mean()) if n else np.nan, float(b.mean()) if n else np.nan,
                                 mean, (np.nan, np.nan), "none", int(np.floor(n_eff + 1e-9)), label,

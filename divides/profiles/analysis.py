@@ -208,7 +208,8 @@ def analyse_profiles(
         theta_value, source = float(theta), ("user" if float(theta) != REFERENCE_THETA else "reference")
 
     # χ = 0 where each channel crosses the common base level (interpolated between nodes)
-    chi = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=keep, weight=factor, start_m=base.start_m)
+    chi = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=keep, weight=factor,
+                        start_m=base.start_m if base.start_m.size == channels.size else None)
 
     ksn = np.full(channels.size, np.nan)
     ksn_se = np.full(channels.size, np.nan)
