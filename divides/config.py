@@ -37,10 +37,16 @@ class AssessConfig:
     reference_area_m2 : float or None
         Drainage area at which near-divide metrics are read; None = the channel threshold.
     base_level_m : float or None
-        Common base level; None = the higher of the sides' lowest channel cells.
+        Common base level of every χ; None = the highest outlet of the channel networks
+        reaching the divide. Networks whose outlet stands above it are left out of χ.
     dem_error_m : float
         Vertical standard error of the DEM (m), used for robustness noise and as the
         least step height of a knickpoint.
+    dem_error_length_m : float or None
+        Correlation length (m) of the DEM error, exp(−distance / L)
+        (:class:`divides.terrain.dem_error.DemError`); None = three cells, because
+        matching windows, filters and resampling kernels spread each error over a few
+        cells (Hugonnet et al. 2022). 0 means white error.
     relief_radius_m : float
         Half-width of the square window of local relief.
     divide_spacing_m : float or None
@@ -78,6 +84,7 @@ class AssessConfig:
     reference_area_m2: float | None = None
     base_level_m: float | None = None
     dem_error_m: float = 1.0
+    dem_error_length_m: float | None = None
     relief_radius_m: float = 500.0
     divide_spacing_m: float | None = None
     block_m: float | None = None
@@ -109,6 +116,7 @@ class AssessConfig:
                      "knickpoint_age_years", "snap_radius_m"):
             _positive(name, getattr(self, name))
         _positive("dem_error_m", self.dem_error_m, allow_none=False, allow_zero=True)
+        _positive("dem_error_length_m", self.dem_error_length_m, allow_zero=True)
         _positive("relief_radius_m", self.relief_radius_m, allow_none=False)
         for name in ("erosion_rate_a_mm_yr", "erosion_rate_b_mm_yr"):
             value = getattr(self, name)
@@ -144,6 +152,12 @@ class AssessConfig:
         if unknown:
             raise ParameterError(f"unknown option(s) {', '.join(unknown)}; accepted: {', '.join(sorted(names))}")
         return cls(**options)
+
+    def dem_error(self, cell_size_m: float):
+        """The DEM error model of this configuration on a grid of ``cell_size_m``."""
+        from divides.terrain.dem_error import DemError  # numpy: not needed to validate options
+
+        return DemError.for_cell_size(self.dem_error_m, cell_size_m, self.dem_error_length_m)
 
     def to_dict(self) -> dict:
         """JSON-ready parameters."""

@@ -27,7 +27,7 @@ import numpy as np
 from affine import Affine
 from scipy import ndimage
 
-from divides.assess.sides import SideSpec, resolve_sides
+from divides.terrain.sides import SideSpec, resolve_sides
 from divides.assess.verdict import CAUTION
 from divides._jsonable import to_jsonable
 from divides.errors import ParameterError, SideError

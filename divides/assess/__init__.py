@@ -9,7 +9,7 @@ name means the same thing however the package was imported.
 import sys
 import types
 
-from divides.assess.sides import (
+from divides.terrain.sides import (
     BaseLevel,
     Side,
     Sides,

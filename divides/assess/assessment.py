@@ -6,23 +6,31 @@ import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import ndimage
 
 from divides._jsonable import to_jsonable
-from divides.assess.contrasts import SPREAD_RATIO, Contrast, block_bootstrap_mean, compute_contrasts, unique_points
+from divides.assess.contrasts import (
+    MIN_SAMPLES,
+    SPREAD_RATIO,
+    Contrast,
+    DivideSamples,
+    block_bootstrap_mean,
+    compute_contrasts,
+    divide_samples,
+)
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, sample_divide
 from divides.assess.rate import PLAUSIBLE_MM_PER_YR, Calibration, calibrate, migration_rate, step_celerity
-from divides.assess.sides import BaseLevel, Sides, common_base_level, parse_side, resolve_sides
-from divides.assess.verdict import CAUTION, Verdict, decide
+from divides.assess.verdict import CAUTION, INSUFFICIENT_HELP, Verdict, decide
 from divides.config import AssessConfig
 from divides.errors import SideError
 from divides.io.dem import Dem
 from divides.profiles.analysis import ProfileAnalysis, analyse_profiles
 from divides.profiles.chi import ChiWeights, chi_weights
 from divides.terrain.channels import Channels, extract_channels
+from divides.terrain.dem_error import DemError
 from divides.terrain.divide_lines import Divide, divide_between
 from divides.terrain.routing import FlowGraph, route
+from divides.terrain.sides import BaseLevel, Sides, common_base_level, parse_side, resolve_sides
 
 __all__ = ["Assessment", "assess", "SCHEMA"]
 
@@ -100,6 +108,7 @@ class Assessment:
                 "n_channel_heads": int(np.count_nonzero(kept & (self.channels.n_donors == 0))),
                 "base_level_m": self.base.elevation_m,
                 "lowest_channel_m": self.base.lowest_a_m if name == "a" else self.base.lowest_b_m,
+                "networks": self.base.networks.get(name, {}),
                 "snapped_points": side.snapped,
             }
         rate = None if self.rate is None else {k: self.rate[k] for k in ("low", "best", "high")}
@@ -123,6 +132,7 @@ class Assessment:
             "knickpoints": [
                 {k: kp[k] for k in ("side", "x", "y", "elevation_m", "distance_to_divide_m", "arrival_years",
                                     "kind", "delta_ksn", "step_m", "p_value", "chi", "area_m2")}
+                | {"celerity_defined": bool(kp.get("celerity_defined", True))}
                 for kp in self.knickpoints
             ],
             "equilibrium": self.equilibrium.summary(),
@@ -138,6 +148,7 @@ class Assessment:
                 "long_run_tendency": self.verdict.long_run,
                 "rate_flags": [] if self.rate is None else self.rate["flags"],
                 "text": self.verdict.text,
+                "reason": self.verdict.reason,
                 "caution": CAUTION,
             },
         })
@@ -158,6 +169,8 @@ class _Core:
     spacing_m: float
     reference_area_m2: float
     block_points: int
+    samples: DivideSamples
+    dem_error: DemError
 
     @property
     def same_channel(self) -> bool:
@@ -197,47 +210,65 @@ def _core(
     if not divide.lines:
         raise SideError("the two sides touch only at isolated cells: no divide line could be traced")
     weights = weights_fn(flow)
+    cell = float(np.max(dem.cell_size_m))
+    dem_error = config.dem_error(cell)
     step("river profiles (χ, concavity, ksn, knickpoints)")
     profiles = analyse_profiles(channels, sides, base, theta=theta, a0=config.a0_m2, weights=weights,
                                 vertical_resolution_m=max(config.dem_error_m, 0.0), n_boot=n_boot_theta,
-                                seed=config.seed)
-    cell = float(np.max(dem.cell_size_m))
+                                seed=config.seed, dem_error=dem_error)
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
     step("contrasts across the divide")
-    points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
-                           reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
-                           relief_radius_m=config.relief_radius_m)
+    try:
+        points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
+                               reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
+                               relief_radius_m=config.relief_radius_m)
+    except ValueError as exc:  # no divide line long enough for one sample
+        raise SideError(f"the divide between the two sides is too short to sample ({exc}); choose sides "
+                        "that share a longer divide") from exc
     block_points = max(1, int(round((config.block_m or 10 * spacing) / spacing)))
+    samples = divide_samples(points)
+    mirrored = bool(np.isclose(reference, channels.threshold.value_m2))
     contrasts = compute_contrasts(points, block_points=block_points, n_boot=config.n_bootstrap,
-                                  base_level_m=base.elevation_m, seed=config.seed)
-    return _Core(flow, channels, sides, base, divide, profiles, points, contrasts, spacing, reference, block_points)
+                                  base_level_m=base.elevation_m, seed=config.seed, dem_error=dem_error, cell_m=cell,
+                                  mirrored=mirrored, samples=samples)
+    return _Core(flow, channels, sides, base, divide, profiles, points, contrasts, spacing, reference, block_points,
+                 samples, dem_error)
 
 
-def _correlated_noise(shape: tuple[int, int], sigma: float, rng: np.random.Generator, length_cells: float = 2.0):
-    """Gaussian noise with standard deviation ``sigma`` correlated over a few cells."""
-    white = rng.standard_normal(shape)
-    smooth = ndimage.gaussian_filter(white, length_cells, mode="reflect")
-    sd = float(smooth.std()) or 1.0
-    return smooth * (sigma / sd)
+#: θ accepted by χ (0 < θ <= 2); robustness re-runs stay inside it.
+_THETA_RANGE = (0.05, 2.0)
+
+#: Re-runs by what they can change: θ changes χ only (near-divide metrics are read off the DEM
+#: and the flow paths, which θ does not touch); DEM noise and the channel threshold change all.
+_CAN_CHANGE = {"noise": "all", "area": "all", "theta": "chi"}
 
 
 def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, step=None) -> tuple[list[dict], float]:
-    """Re-run on perturbed inputs; return each run and the share keeping the main verdict."""
-    main = core.decide().moves_toward
+    """Re-run on perturbed inputs; return each run and the share keeping the main verdict.
+
+    Only re-runs that can change the metrics the verdict rests on count toward the share:
+    a verdict from near-divide metrics (a direction or a conflict) cannot be changed by θ,
+    so θ re-runs are made only when χ could decide (:data:`_CAN_CHANGE`).
+    """
+    main_verdict = core.decide()
+    main = main_verdict.moves_toward
     theta = core.profiles.theta
     est = core.profiles.concavity.get("both")
     if core.profiles.theta_source == "collinearity" and est is not None and np.all(np.isfinite(est.ci95)):
         theta_lo, theta_hi = est.ci95
     else:
-        theta_lo, theta_hi = max(theta - 0.1, 0.05), theta + 0.1  # common practice: θ known to about ±0.1
+        theta_lo, theta_hi = theta - 0.1, theta + 0.1  # common practice: θ known to about ±0.1
+    theta_lo, theta_hi = (float(np.clip(t, *_THETA_RANGE)) for t in (theta_lo, theta_hi))
     threshold = core.channels.threshold.value_m2
     runs: list[tuple[str, dict]] = []
     rng = np.random.default_rng(config.seed + 1)
     for i in range(config.n_noise_runs if config.dem_error_m > 0 else 0):
-        runs.append((f"DEM noise σ = {config.dem_error_m:g} m (#{i + 1})", {"noise": i}))
-    runs += [(f"θ = {theta_lo:.2f}", {"theta": float(theta_lo)}), (f"θ = {theta_hi:.2f}", {"theta": float(theta_hi)}),
-             (f"channel area × ½ = {threshold / 2:.3g} m²", {"area": threshold / 2}),
+        runs.append((f"DEM noise σ = {config.dem_error_m:g} m, correlation length {core.dem_error.length_m:g} m "
+                     f"(#{i + 1})", {"noise": i}))
+    if main_verdict.basis not in ("near-divide", "conflict"):  # else θ cannot change the verdict
+        runs += [(f"θ = {t:.2f}", {"theta": t}) for t in sorted({theta_lo, theta_hi} - {theta})]
+    runs += [(f"channel area × ½ = {threshold / 2:.3g} m²", {"area": threshold / 2}),
              (f"channel area × 2 = {threshold * 2:.3g} m²", {"area": threshold * 2})]
     quick = dataclasses.replace(config, n_bootstrap=max(100, config.n_bootstrap // 4))
     results = []
@@ -247,7 +278,8 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
         run_dem = dem
         flow = core.flow
         if "noise" in change:
-            z = dem.elevation + _correlated_noise(dem.shape, config.dem_error_m, rng).astype(dem.elevation.dtype)
+            cell = (float(np.median(dem.dy)), float(np.median(dem.dx)))
+            z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
             run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
             flow = None
         try:
@@ -257,18 +289,19 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
             verdict = run.decide().moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"
-        results.append({"change": label, "moves_toward": verdict, "kept": verdict == main})
+        what = next(_CAN_CHANGE[k] for k in change)
+        results.append({"change": label, "moves_toward": verdict, "kept": verdict == main, "can_change": what})
     share = sum(r["kept"] for r in results) / len(results) if results else 1.0
     return results, float(share)
 
 
-def _side_samples(core: _Core, side: str, metric_values: np.ndarray, idx: np.ndarray, rng, n: int) -> np.ndarray:
-    """Block-bootstrap samples of a side's mean of a near-divide metric."""
-    vals = metric_values[idx]
-    vals = vals[np.isfinite(vals)]
+def _side_samples(core: _Core, metric_values: np.ndarray, rng, n: int) -> np.ndarray:
+    """Block-bootstrap samples of a side's mean of a near-divide metric (one value per divide sample)."""
+    vals = metric_values[np.isfinite(metric_values)]
     if vals.size == 0:
         return np.full(n, np.nan)
-    return block_bootstrap_mean(vals, block=core.block_points, n_boot=n, rng=rng)
+    block = max(1, int(round(core.block_points * core.samples.size / max(core.points.size, 1))))
+    return block_bootstrap_mean(vals, block=block, n_boot=n, rng=rng)
 
 
 def _ksn_samples(profiles: ProfileAnalysis, side: str, rng, n: int) -> np.ndarray:
@@ -292,20 +325,25 @@ def _ksn_samples(profiles: ProfileAnalysis, side: str, rng, n: int) -> np.ndarra
 def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
     rng = np.random.default_rng(config.seed + 2)
     n = 500
-    ksn_a = _ksn_samples(core.profiles, "a", rng, n)
-    ksn_b = _ksn_samples(core.profiles, "b", rng, n)
+    # χ and its slopes are measured with the reference area A0: χ ∝ A0^θ and dz/dχ ∝ A0^−θ. Rates
+    # work with A0 = 1 m² (ksn, and K of E = K ksn^n), so convert once here: A0 then cancels
+    # (Perron & Royden 2013) and appears nowhere else.
+    to_unit = config.a0_m2 ** core.profiles.theta
+    ksn_a = _ksn_samples(core.profiles, "a", rng, n) * to_unit
+    ksn_b = _ksn_samples(core.profiles, "b", rng, n) * to_unit
     dated = None
     if config.knickpoint_age_years is not None and core.profiles.knickpoints:
         dated = max(core.profiles.knickpoints, key=lambda k: abs(k["t_slope"]) + abs(k["t_step"]))
+        dated = {**dated, "chi": dated["chi"] / to_unit, "ksn_below": dated["ksn_below"] * to_unit,
+                 "ksn_above": dated["ksn_above"] * to_unit}
     cal = calibrate(ksn_a=ksn_a, ksn_b=ksn_b, n=config.n, erosion_rate_a_mm_yr=config.erosion_rate_a_mm_yr,
                     erosion_rate_b_mm_yr=config.erosion_rate_b_mm_yr, erodibility=config.erodibility,
                     knickpoint=dated, knickpoint_age_years=config.knickpoint_age_years)
     rate = None
     if cal.available:
-        grad_a, grad_b = core.points.values["hillslope_gradient"]
-        idx = unique_points(core.points, "hillslope_gradient")
-        tan_a = _side_samples(core, "a", grad_a, idx, rng, n)
-        tan_b = _side_samples(core, "b", grad_b, idx, rng, n)
+        grad_a, grad_b = core.samples.values["hillslope_gradient"]
+        tan_a = _side_samples(core, grad_a, rng, n)
+        tan_b = _side_samples(core, grad_b, rng, n)
         v = migration_rate(cal.erosion_a, cal.erosion_b, tan_a, tan_b) * 1e3  # mm/yr toward b
         toward = verdict.moves_toward if verdict.moves_toward in ("a", "b") else ("b" if np.nanmedian(v) >= 0 else "a")
         v = v if toward == "b" else -v
@@ -327,15 +365,23 @@ def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
             chi_top[int(node)] = max(chi_top.get(int(node), -np.inf), top)
     for kp in core.profiles.knickpoints:
         arrival = None
-        if cal.k is not None:
-            remaining = chi_top.get(kp["position"], kp["chi"]) - kp["chi"]
-            speed = cal.k * float(step_celerity(kp["ksn_below"], kp["ksn_above"], config.n)) * config.a0_m2 ** (
-                config.n * core.profiles.theta)
+        # a knickpoint whose celerity is not defined (a spreading break, a vertical step) gets no time
+        if cal.k is not None and kp.get("celerity_defined", True):
+            remaining = (chi_top.get(kp["position"], kp["chi"]) - kp["chi"]) / to_unit
+            speed = cal.k * float(step_celerity(kp["ksn_below"] * to_unit, kp["ksn_above"] * to_unit, config.n))
             years = remaining / speed
             lo, best, hi = (float(x) for x in np.nanpercentile(years, [2.5, 50, 97.5]))
             arrival = {"low": lo, "best": best, "high": hi}
         knickpoints.append({**kp, "arrival_years": arrival})
     return cal, rate, knickpoints
+
+
+def _sig2(v: float) -> str:
+    """A rate or a time with two significant figures (they are not known better), e.g. 12,000 or 0.034."""
+    if not np.isfinite(v):
+        return "n/a"
+    rounded = float(f"{v:.2g}")
+    return f"{rounded:,.0f}" if abs(rounded) >= 100 else f"{rounded:g}"
 
 
 def _fmt(v: float, unit: str) -> str:
@@ -368,14 +414,24 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                          f"a long-run tendency for {names[aggressor]} to gain ground "
                          f"(confidence {verdict.confidence:.2f}, {strength}).")
     elif verdict.moves_toward == "stable":
-        lines.append(f"No measure differs significantly across the divide: it appears stable "
+        lines.append(f"The near-divide measures are balanced across the divide: every 95 % interval excludes a "
+                     f"difference large enough to count as motion, so it appears stable "
                      f"(confidence {verdict.confidence:.2f}).")
+    elif verdict.reason == "insufficient data":
+        lines.append("Undetermined: insufficient data. " + INSUFFICIENT_HELP)
+    elif verdict.reason == "inconclusive":
+        lines.append("Undetermined: no measure differs significantly across the divide, but the intervals are too "
+                     "wide to show that the two sides are balanced (no evidence is not evidence of stability). "
+                     "A longer divide or a finer DEM would narrow them.")
     else:
         lines.append("The evidence conflicts: near-divide measures point both ways, so the direction is "
                      "undetermined.")
     for c in contrasts:
-        if not np.isfinite(c.difference):
-            lines.append(f"- {c.metric.replace('_', ' ')}: not enough points on both sides.")
+        if not c.sufficient or not np.isfinite(c.ci95[0]):
+            why = ("no divide sample has it on both sides (χ: a side's networks may not reach the common base "
+                   "level; see sides.*.networks in summary.json)" if c.n_samples == 0 else
+                   f"{c.n_points} independent sample(s); at least {MIN_SAMPLES} per side needed")
+            lines.append(f"- {c.metric.replace('_', ' ')}: insufficient data ({why}).")
             continue
         sense = {
             "interval spans zero": "no significant difference",
@@ -391,20 +447,25 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
         lines.append(f"χ alone points the other way (toward side {verdict.long_run}): the present motion may "
                      "reverse in the long run, or uplift, erodibility or climate differ across the divide.")
     if verdict.robustness_share is not None:
-        lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed DEM, θ and channel "
-                     "threshold kept this verdict.")
+        lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed inputs (DEM error, "
+                     "channel threshold, and θ when χ could decide) kept this verdict.")
     if rate is not None:
-        lines.append(f"Migration rate toward side {rate['toward']}: {rate['best']:.3g} mm/yr "
-                     f"(95 % interval {rate['low']:.3g} to {rate['high']:.3g}) from {cal.source}.")
+        lines.append(f"Migration rate toward side {rate['toward']}: {_sig2(rate['best'])} mm/yr "
+                     f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {cal.source}.")
         lines += [f"Note: {f}." for f in rate["flags"]]
     else:
         lines.append("No rate: give a measured erosion rate of either side (--erosion-rate-a/-b, mm/yr), an "
                      "erodibility K, or the age of a knickpoint to turn steepness into rates and years.")
     timed = [k for k in knickpoints if k["arrival_years"] is not None]
+    undefined = [k for k in knickpoints if not k.get("celerity_defined", True)]
     if knickpoints:
         lines.append(f"{len(knickpoints)} significant knickpoint(s) are migrating up the channels"
-                     + (f"; the nearest arrival at a channel head is in about {min(k['arrival_years']['best'] for k in timed):,.0f} "
-                        "years" if timed else "") + ". When they reach the divide the contrasts above will change.")
+                     + (f"; the nearest arrival at a channel head is in about "
+                        f"{_sig2(min(k['arrival_years']['best'] for k in timed))} years" if timed else "")
+                     + ". When they reach the divide the contrasts above will change.")
+    if undefined:
+        lines.append(f"{len(undefined)} of them have no defined celerity (a break that spreads out, or a vertical "
+                     "step), so no arrival time is given for them.")
     eq = equilibrium.summary()
     if eq["median_distance_m"] is not None:
         lines.append(f"Equilibrium divide (first-order): about {eq['median_distance_m']:,.0f} m "

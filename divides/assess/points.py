@@ -201,8 +201,11 @@ def sample_divide(
         row = np.interp(d, line.distance_m, line.row)
         col = np.interp(d, line.distance_m, line.col)
         # direction of the line, in metres east/north; b lies to the right of the walking direction
-        drow = np.gradient(np.interp(d, line.distance_m, line.row))
-        dcol = np.gradient(np.interp(d, line.distance_m, line.col))
+        if d.size >= 2:
+            drow, dcol = np.gradient(row), np.gradient(col)
+        else:  # one sample on a short line (e.g. between voids): the line's own direction
+            drow = np.full(1, float(line.row[-1] - line.row[0]))
+            dcol = np.full(1, float(line.col[-1] - line.col[0]))
         rows_i = np.clip(np.round(row).astype(int), 0, dem.shape[0] - 1)
         east = dcol * dem.dx[rows_i]
         north = -drow * dem.dy[rows_i]

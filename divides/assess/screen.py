@@ -12,7 +12,7 @@ import numpy as np
 from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
-from divides.assess.sides import BaseLevel
+from divides.terrain.sides import BaseLevel
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
@@ -146,10 +146,12 @@ def _assess_pair(task: tuple) -> list[dict]:
             except ValueError:
                 out.append(_empty(seg, "segment too short to sample"))
                 continue
+            mirrored = bool(np.isclose(st["reference"], channels.threshold.value_m2))
             contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=base,
-                                          seed=config.seed)
+                                          seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
+                                          mirrored=mirrored)
             # no robustness re-runs per segment: unverified (x 0.8)
-            verdict = decide(contrasts, same_channel=bool(np.isclose(st["reference"], channels.threshold.value_m2)))
+            verdict = decide(contrasts, same_channel=mirrored)
             out.append(_row(seg, pts, contrasts, verdict))
     finally:
         scratch[cells] = np.nan
@@ -260,6 +262,7 @@ def screen(
         "block": max(1, int(round((config.block_m or 10 * spacing) / spacing))),
         "n_boot": max(100, config.n_bootstrap // 2), "fields": near_divide_fields(flow, config.relief_radius_m),
         "scratch": np.full(flow.receivers.size, np.nan), "chi_area": chi_area, "chi_weight": chi_weight,
+        "dem_error": config.dem_error(cell), "cell": cell,
     })
     tasks = [(a, b, segs) for (a, b), segs in sorted(by_pair.items())]
     n_workers = max(1, min(workers or os.cpu_count() or 1, len(tasks)))

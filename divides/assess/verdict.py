@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from divides.assess.contrasts import Contrast
+from divides.assess.contrasts import MIN_SAMPLES, Contrast
 
-__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CHI_ONLY_SHARE", "CAUTION"]
+__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CHI_ONLY_SHARE", "CAUTION", "INSUFFICIENT_HELP"]
 
 #: Metrics of the present state of the divide (Forte & Whipple 2018; Scherler & Schwanghart 2020).
 NEAR_DIVIDE_METRICS = ("channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")
@@ -15,6 +15,13 @@ NEAR_DIVIDE_METRICS = ("channel_elevation", "hillslope_gradient", "local_relief"
 #: the weaker indicator (it depends on θ, base level and uplift/erodibility patterns; Forte &
 #: Whipple 2018), and small χ contrasts are common across divides at steady state.
 CHI_ONLY_SHARE = 0.10
+
+#: What would give an assessment with too few independent samples enough of them.
+INSUFFICIENT_HELP = (
+    f"Fewer than {MIN_SAMPLES} independent samples (pairs of channel heads facing each other across the "
+    "divide) on a side. What would help: a longer stretch of divide, a finer DEM, or a smaller reference "
+    "area / channel threshold (--reference-area, --channel-area), so that more channels head at the divide."
+)
 
 #: The caution every verdict carries.
 CAUTION = (
@@ -46,6 +53,10 @@ class Verdict:
         Share of perturbed re-runs that kept ``moves_toward`` (None when not run).
     text : str
         The verdict in plain words (filled in by the assessment).
+    reason : str
+        Why: ``"near-divide evidence"``, ``"chi only"``, ``"balanced"`` (stable),
+        ``"conflicting evidence"``, ``"insufficient data"`` or ``"inconclusive"``
+        (nothing significant, but intervals too wide to show balance).
     """
 
     moves_toward: str
@@ -58,6 +69,7 @@ class Verdict:
     robustness_share: float | None = None
     text: str = ""
     notes: list = field(default_factory=list)
+    reason: str = ""
 
 
 def _other(side: str) -> str:
@@ -93,7 +105,14 @@ def decide(
     3. If no near-divide metric is significant but χ is, and by at least
        :data:`CHI_ONLY_SHARE` of its mean, the direction is χ's, flagged as a
        long-run tendency only, with a low confidence.
-    4. If nothing is significant, the divide is ``"stable"``.
+    4. ``"stable"`` needs positive evidence of balance: every near-divide
+       metric has enough samples and a 95 % interval inside ± its practical
+       threshold (:data:`divides.assess.contrasts.PRACTICAL_SHARE` of its size),
+       so no difference that would count as motion is compatible with the
+       data (an equivalence test). No evidence is not balance: when the
+       near-divide contrasts lack samples the verdict is ``"undetermined"``
+       with reason ``"insufficient data"``; when nothing is significant but the
+       intervals are too wide, ``"undetermined"`` with reason ``"inconclusive"``.
 
     Metrics that measure the same thing vote once (see ``same_channel``).
 
@@ -102,7 +121,8 @@ def decide(
     Direction from near-divide metrics: 0.35 + w per agreeing vote − w per
     disagreeing one, with w = 0.6 / (number of votes) (0.15 for four
     independent metrics, 0.2 for three), +0.05 if χ agrees, −0.15 if χ disagrees;
-    χ alone: 0.4; stable: 0.7; undetermined: 0. The result, kept in 0–0.97,
+    χ alone: 0.4; stable: 0.7; undetermined: 0. (A rule of thumb, not a calibrated
+    probability: a score.) The result, kept in 0–0.97,
     is multiplied by the share of robustness re-runs that kept the same
     verdict (by 0.8 when robustness was not checked), so a verdict that a
     plausible change of input overturns cannot keep a high confidence.
@@ -138,9 +158,20 @@ def decide(
     elif long_run in ("a", "b") and abs(chi.difference) >= CHI_ONLY_SHARE * 0.5 * (abs(chi.a) + abs(chi.b)):
         toward, basis, score, agreeing, disagreeing = long_run, "chi", 0.4, (), ()
     else:
-        toward, basis, score, agreeing, disagreeing = "stable", "none", 0.7, (), ()
+        toward, score, agreeing, disagreeing = "undetermined", 0.0, (), ()
+        near = [by_name[n] for g in groups for n in g if n in by_name]
+        if not near or not any(c.sufficient for c in near):
+            basis = reason = "insufficient data"
+        elif all(c.balanced for c in near):
+            toward, basis, reason, score = "stable", "none", "balanced", 0.7
+        else:
+            basis = reason = "inconclusive"
+    if toward in ("a", "b"):
+        reason = "near-divide evidence" if basis == "near-divide" else "chi only"
+    elif basis == "conflict":
+        reason = "conflicting evidence"
     score = min(max(score, 0.0), 0.97)
     score *= 0.8 if robustness_share is None else robustness_share
     aggressor = _other(toward) if toward in ("a", "b") else None
     return Verdict(toward, aggressor, round(float(score), 3), basis, long_run, agreeing, disagreeing,
-                   robustness_share)
+                   robustness_share, reason=reason)

@@ -50,13 +50,20 @@ ReferenceAreaOption = Annotated[
 BaseLevelOption = Annotated[
     str | None,
     typer.Option("--base-level", metavar="M", show_default=False,
-                 help="Common base level (m) for χ; default: the higher of the two sides' lowest channel cells."),
+                 help="Common base level (m) for χ; default: the highest outlet of the channel networks reaching "
+                 "the divide. Networks whose outlet stands above it are left out of χ."),
 ]
 DemErrorOption = Annotated[
     str | None,
     typer.Option("--dem-error", metavar="M", show_default=False,
                  help="Vertical standard error of the DEM (m, default 1): noise of the robustness re-runs and "
                  "the smallest knickpoint step."),
+]
+DemErrorLengthOption = Annotated[
+    str | None,
+    typer.Option("--dem-error-length", metavar="M", show_default=False,
+                 help="Correlation length of the DEM error (m, default 3 cells): how far apart two cells' "
+                 "errors become nearly independent."),
 ]
 ErosionRateAOption = Annotated[
     str | None,
@@ -149,6 +156,7 @@ def assess_request(
     reference_area: str | None = None,
     base_level: str | None = None,
     dem_error: str | None = None,
+    dem_error_length: str | None = None,
     erosion_rate_a: str | None = None,
     erosion_rate_b: str | None = None,
     erodibility_k: str | None = None,
@@ -204,6 +212,10 @@ def assess_request(
     if dem_error is not None:
         options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
                                                    low_inclusive=True, typical="lidar 0.1, SRTM about 5 to 10")
+    if dem_error_length is not None:
+        options["dem_error_length_m"] = opt.parse_bounded(dem_error_length, option="--dem-error-length", unit="m",
+                                                          low=0, high=1e5, low_inclusive=True,
+                                                          typical="one to a few cells")
     if n is not None:
         options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
                                          low_inclusive=True, typical="1 unless known otherwise")
@@ -359,6 +371,7 @@ def assess(
     reference_area: ReferenceAreaOption = None,
     base_level: BaseLevelOption = None,
     dem_error: DemErrorOption = None,
+    dem_error_length: DemErrorLengthOption = None,
     erosion_rate_a: ErosionRateAOption = None,
     erosion_rate_b: ErosionRateBOption = None,
     erodibility_k: ErodibilityKOption = None,
@@ -402,6 +415,7 @@ def assess(
     request = assess_request(
         side_a=side_a, side_b=side_b, lonlat=lonlat, theta=theta, channel_area=channel_area,
         reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,
+        dem_error_length=dem_error_length,
         erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
         runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
         robustness=not no_robustness, seed=seed, route=route,

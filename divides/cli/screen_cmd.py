@@ -15,6 +15,7 @@ import typer
 from divides.cli import options as opt
 from divides.cli.assess_cmd import (
     ChannelAreaOption,
+    DemErrorLengthOption,
     DemErrorOption,
     ErodibilityRasterOption,
     RunoffOption,
@@ -65,6 +66,7 @@ def screen(
     theta: ScreenThetaOption = "0.45",
     channel_area: ChannelAreaOption = None,
     dem_error: DemErrorOption = None,
+    dem_error_length: DemErrorLengthOption = None,
     runoff: RunoffOption = None,
     erodibility: ErodibilityRasterOption = None,
     uplift: UpliftRasterOption = None,
@@ -109,6 +111,9 @@ def screen(
     if dem_error is not None:
         options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
                                                    low_inclusive=True)
+    if dem_error_length is not None:
+        options["dem_error_length_m"] = opt.parse_bounded(dem_error_length, option="--dem-error-length", unit="m",
+                                                          low=0, high=1e5, low_inclusive=True)
     min_area = opt.parse_bounded(min_basin_area, option="--min-basin-area", unit="m²", low=0, high=float("inf"))
     max_len = opt.parse_bounded(max_segment, option="--max-segment", unit="m", low=0, high=float("inf"))
     rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift)

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -21,9 +20,8 @@ from divides.profiles.segments import Segmentation, segment_profile
 from divides.profiles.steepness import stream_slopes
 from divides.profiles.streams import longest_path_streams
 from divides.terrain.channels import Channels
-
-if TYPE_CHECKING:  # the assess room is downstream of this one: types only
-    from divides.assess.sides import BaseLevel, Sides
+from divides.terrain.dem_error import DemError
+from divides.terrain.sides import BaseLevel, Sides
 
 __all__ = ["Stream", "ProfileAnalysis", "analyse_profiles", "network_concavity"]
 
@@ -142,6 +140,7 @@ def analyse_profiles(
     vertical_resolution_m: float = 1.0,
     n_boot: int = 100,
     seed: int = 0,
+    dem_error: DemError | None = None,
 ) -> ProfileAnalysis:
     """Analyse the river profiles of both sides of a divide.
 
@@ -167,6 +166,8 @@ def analyse_profiles(
         Bootstrap resamples for the concavity intervals.
     seed : int
         Random seed.
+    dem_error : DemError, optional
+        Model of the DEM's vertical error (σ and correlation length).
 
     Returns
     -------
@@ -206,7 +207,9 @@ def analyse_profiles(
     else:
         theta_value, source = float(theta), ("user" if float(theta) != REFERENCE_THETA else "reference")
 
-    chi = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=keep, weight=factor)
+    # χ = 0 where each channel crosses the common base level (interpolated between nodes)
+    chi = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=keep, weight=factor,
+                        start_m=base.start_m if base.start_m.size == channels.size else None)
 
     ksn = np.full(channels.size, np.nan)
     ksn_se = np.full(channels.size, np.nan)

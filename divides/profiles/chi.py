@@ -50,6 +50,7 @@ def integrate_chi(
     a0: float = 1.0,
     keep: np.ndarray | None = None,
     weight: np.ndarray | float = 1.0,
+    start_m: np.ndarray | None = None,
 ) -> np.ndarray:
     """χ at every node of a network given receivers-first.
 
@@ -67,6 +68,12 @@ def integrate_chi(
     keep : ndarray of bool, optional
         Nodes to integrate; a kept node whose downstream node is not kept is a
         base-level node (χ = 0). Others get NaN.
+    start_m : ndarray, optional
+        Per node: distance (m) from the point where the channel crosses the base
+        level up to the base-level node (see
+        :attr:`divides.terrain.sides.BaseLevel.start_m`). χ then starts at that
+        crossing rather than at the node: the node gets the integral over
+        ``start_m`` (the integrand interpolated linearly toward the node below).
 
     Returns
     -------
@@ -88,8 +95,25 @@ def integrate_chi(
     if step.shape != (m,) or area.shape != (m,):
         raise GridError(f"down, step and area must have one length; got {m}, {step.shape}, {area.shape}")
     keep = np.ones(m, dtype=bool) if keep is None else np.ascontiguousarray(keep, dtype=bool)
-    integrand = np.broadcast_to(chi_integrand(area, theta=theta, a0=a0, weight=weight), (m,))
-    return _k.chi_trapezoid(down, step, np.ascontiguousarray(integrand), keep)
+    integrand = np.ascontiguousarray(np.broadcast_to(chi_integrand(area, theta=theta, a0=a0, weight=weight), (m,)))
+    chi = _k.chi_trapezoid(down, step, integrand, keep)
+    if start_m is None:
+        return chi
+    start = np.asarray(start_m, dtype=np.float64)
+    if start.shape != (m,):
+        raise GridError(f"start_m must have one value per node ({m}); got {start.shape}")
+    base = np.flatnonzero(keep & ((down < 0) | ~keep[np.maximum(down, 0)]) & (start > 0))
+    if base.size == 0:
+        return chi
+    d = down[base]
+    f_k = integrand[base]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = np.where((d >= 0) & (step[base] > 0), start[base] / step[base], 0.0)
+    f_cross = np.where(d >= 0, f_k + (integrand[np.maximum(d, 0)] - f_k) * share, f_k)
+    offset = np.zeros(m)
+    offset[base] = 0.5 * (f_k + f_cross) * start[base]
+    root = _k.network_root(down, keep)
+    return chi + np.where(root >= 0, offset[np.maximum(root, 0)], 0.0)
 
 
 @dataclass(frozen=True)

@@ -5,11 +5,21 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from divides.assess.contrasts import Contrast, block_bootstrap_mean
+from divides.assess.contrasts import (
+    INSUFFICIENT,
+    MIN_SAMPLES,
+    Contrast,
+    block_bootstrap_mean,
+    compute_contrasts,
+    divide_samples,
+    interval_of_mean,
+)
+from divides.assess.points import DividePoints
 from divides.assess.rate import calibrate, migration_rate, step_celerity
 from divides.assess.verdict import decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
+from divides.terrain.dem_error import DemError
 
 
 def test_block_bootstrap_interval_covers_the_mean_at_the_nominal_rate():
@@ -30,8 +40,8 @@ def test_block_bootstrap_interval_covers_the_mean_at_the_nominal_rate():
     assert 0.88 <= covered / trials <= 0.99
 
 
-def _c(metric, toward):
-    return Contrast(metric, "m", 1.0, 0.0, 1.0, (0.5, 1.5), toward, 10, "rule")
+def _c(metric, toward, *, balanced=False, why=""):
+    return Contrast(metric, "m", 1.0, 0.0, 1.0, (0.5, 1.5), toward, 10, "rule", why_none=why, balanced=balanced)
 
 
 def test_verdict_rule():
@@ -53,10 +63,20 @@ def test_verdict_rule():
     assert chi_only.basis == "chi" and chi_only.moves_toward == "a" and chi_only.confidence < 0.5
     # χ alone but under 10 % of its mean: not enough for a direction
     weak = Contrast("chi", "m", 1.0, 0.95, 0.05, (0.01, 0.09), "a", 10, "rule")
-    assert decide([weak] + [_c(m, "none") for m in near]).moves_toward == "stable"
-    # nothing significant: stable
-    stable = decide([_c("chi", "none")] + [_c(m, "none") for m in near], robustness_share=1.0)
-    assert stable.moves_toward == "stable" and stable.aggressor is None
+    assert decide([weak] + [_c(m, "none") for m in near]).moves_toward == "undetermined"
+    # nothing significant is not evidence of balance: undetermined, "inconclusive" (issue rule:
+    # no evidence is never "stable")
+    open_ = decide([_c("chi", "none")] + [_c(m, "none") for m in near], robustness_share=1.0)
+    assert (open_.moves_toward, open_.reason) == ("undetermined", "inconclusive")
+    # stable needs every near-divide interval inside the practical threshold (equivalence test)
+    stable = decide([_c("chi", "none")] + [_c(m, "none", balanced=True) for m in near], robustness_share=1.0)
+    assert stable.moves_toward == "stable" and stable.aggressor is None and stable.reason == "balanced"
+    one_open = decide([_c("chi", "none")] + [_c(m, "none", balanced=m != near[1]) for m in near])
+    assert one_open.moves_toward == "undetermined"
+    # no evidence at all, or too few samples: undetermined, "insufficient data"
+    for evidence in ([], [_c("chi", "none", why=INSUFFICIENT)] + [_c(m, "none", why=INSUFFICIENT) for m in near]):
+        empty = decide(evidence, robustness_share=1.0)
+        assert (empty.moves_toward, empty.reason, empty.confidence) == ("undetermined", "insufficient data", 0.0)
     # robustness scales confidence
     shaky = decide([_c("chi", "b")] + [_c(m, "b") for m in near], robustness_share=0.5)
     assert shaky.confidence == pytest.approx(agree.confidence * 0.5, abs=1e-3)
@@ -115,3 +135,121 @@ def test_channel_elevation_and_hillslope_relief_vote_once_when_read_at_the_same_
     assert once.moves_toward == twice.moves_toward == "b"
     assert once.confidence == pytest.approx(0.35 + 0.2)  # one vote of three
     assert twice.confidence == pytest.approx(0.35 + 2 * 0.15)  # two votes of four
+
+
+def test_t_calibrated_interval_covers_at_the_minimum_sample_size():
+    # With MIN_SAMPLES independent normal values the interval of the mean must cover the true mean
+    # about 95 % of the time: Student's t-interval does exactly (Student 1908); the plain
+    # percentile bootstrap undercovers at small n (Efron & Tibshirani 1993, ch. 13). Accept 92-98 %.
+    rng = np.random.default_rng(5)
+    trials = 600
+    covered = plain = 0
+    for _ in range(trials):
+        x = rng.standard_normal(MIN_SAMPLES)
+        lo, hi = interval_of_mean(x, block=1, n_effective=MIN_SAMPLES, n_boot=400, rng=rng)
+        covered += lo <= 0 <= hi
+        q = np.percentile(block_bootstrap_mean(x, block=1, n_boot=400, rng=rng), [2.5, 97.5])
+        plain += q[0] <= 0 <= q[1]
+    assert 0.92 <= covered / trials <= 0.98
+    assert plain / trials < covered / trials  # the calibration is what brings it to the nominal level
+
+
+def _points(n, head_a, head_b, values, *, facing=1.0):
+    """Synthetic divide points along a straight divide (every metric given per point)."""
+    x = np.arange(n) * 60.0
+    ids = np.asarray(head_a), np.asarray(head_b)
+    return DividePoints(x=x, y=np.zeros(n), line=np.zeros(n, int), distance_m=x, elevation_m=np.full(n, 500.0),
+                        cell_a=np.arange(n), cell_b=np.arange(n), head_a=ids[0], head_b=ids[1], ref_a=ids[0],
+                        ref_b=ids[1], normal=np.tile([1.0, 0.0], (n, 1)), facing=np.full(n, facing), values=values)
+
+
+def test_samples_are_one_per_pair_of_channel_heads_for_every_metric():
+    # 30 divide points draining to 10 pairs of channel heads (3 points each): every metric,
+    # hillslope relief included, is read on the same 10 samples (issue: relief counted 84 times
+    # from 28 heads). Brute force: the distinct pairs.
+    rng = np.random.default_rng(0)
+    heads = np.repeat(np.arange(10), 3)
+    vals = {m: (rng.random(30) + 1.0, rng.random(30)) for m in
+            ("chi", "channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")}
+    pts = _points(30, heads, heads + 100, vals)
+    samples = divide_samples(pts)
+    assert samples.size == 10
+    for metric, (va, _) in vals.items():
+        np.testing.assert_allclose(samples.values[metric][0], va.reshape(10, 3).mean(axis=1))
+    contrasts = compute_contrasts(pts, block_points=1, n_boot=200, base_level_m=0.0)
+    assert {c.n_samples for c in contrasts} == {10} and {c.n_points for c in contrasts} == {10}
+
+
+def test_few_samples_are_insufficient_data_with_no_interval_and_no_vote():
+    # A divide with 3 points (issue: "a divide of 395 m between two points ... every 95 % interval
+    # of zero width"): below MIN_SAMPLES there is no interval and no vote; the verdict abstains.
+    vals = {m: (np.array([10.0, 11.0, 12.0]), np.array([1.0, 1.0, 1.0])) for m in
+            ("chi", "channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")}
+    contrasts = compute_contrasts(_points(3, [0, 1, 2], [5, 6, 7], vals), block_points=1, n_boot=200,
+                                  base_level_m=0.0)
+    assert all(c.why_none == INSUFFICIENT and c.moves_toward == "none" for c in contrasts)
+    assert all(np.isnan(c.ci95[0]) and np.isnan(c.ci95[1]) for c in contrasts)
+    verdict = decide(contrasts)
+    assert (verdict.moves_toward, verdict.reason) == ("undetermined", "insufficient data")
+    # many points but all draining to the same pair of heads: one sample, still insufficient
+    same = {m: (np.full(40, 10.0), np.full(40, 1.0)) for m in vals}
+    contrasts = compute_contrasts(_points(40, np.zeros(40, int), np.ones(40, int), same), block_points=1,
+                                  n_boot=200, base_level_m=0.0)
+    assert all(c.why_none == INSUFFICIENT for c in contrasts)
+
+
+def test_no_zero_width_interval_when_the_differences_are_identical():
+    # 20 samples whose differences are all exactly 2 m: the spread along the divide is zero, but
+    # the DEM error (σ = 1 m) still makes the mean uncertain: the half-width is at least
+    # t(0.975, n − 1) · sqrt(2) σ / sqrt(n) for channel elevation (two independent elevations).
+    from scipy import stats
+
+    vals = {m: (np.full(20, 12.0), np.full(20, 10.0)) for m in
+            ("chi", "channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")}
+    pts = _points(20, np.arange(20), np.arange(20) + 50, vals)
+    by = {c.metric: c for c in compute_contrasts(pts, block_points=1, n_boot=200, base_level_m=0.0,
+                                                 dem_error=DemError(1.0, 0.0), cell_m=30.0)}
+    ce = by["channel_elevation"]
+    half = stats.t.ppf(0.975, 19) * np.sqrt(2.0) / np.sqrt(20)
+    assert ce.ci95[0] == pytest.approx(2.0 - half) and ce.ci95[1] == pytest.approx(2.0 + half)
+    # χ has no DEM-error floor: with no spread at all it cannot be given an interval
+    assert by["chi"].why_none == INSUFFICIENT
+
+
+def test_correlated_dem_error_along_the_divide_lowers_the_effective_sample_size():
+    # 20 samples 60 m apart with DEM error correlated over 600 m count for much less than 20
+    # (Bretherton et al. 1999: n_eff = n² / Σρ); with n_eff below MIN_SAMPLES the contrast abstains.
+    rng = np.random.default_rng(2)
+    vals = {m: (rng.random(20) + 5.0, rng.random(20)) for m in
+            ("chi", "channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")}
+    pts = _points(20, np.arange(20), np.arange(20) + 50, vals)
+    white = compute_contrasts(pts, block_points=1, n_boot=200, base_level_m=0.0, dem_error=DemError(1.0, 0.0))
+    shared = compute_contrasts(pts, block_points=1, n_boot=200, base_level_m=0.0, dem_error=DemError(1.0, 3000.0))
+    assert white[1].n_points == 20
+    x = np.arange(20) * 60.0
+    expected = 400.0 / np.exp(-np.abs(x[:, None] - x[None, :]) / 3000.0).sum()
+    assert shared[1].n_effective == pytest.approx(expected)
+    assert expected < MIN_SAMPLES and shared[1].why_none == INSUFFICIENT
+
+
+def test_mirrored_channel_elevation_and_hillslope_relief_pass_or_fail_together():
+    # Read at the same channel cells, channel elevation and hillslope relief (divide elevation minus
+    # that elevation; Scherler & Schwanghart 2020) differ across the divide by equal and opposite
+    # amounts: one measurement. Here the difference (2 m) is 10 % of the relief (20 m) but only
+    # 1 % of the channels' height above the base (200 m): one passes the practical threshold, the
+    # other does not — mirrored, neither votes.
+    rng = np.random.default_rng(3)
+    n = 30
+    noise = rng.normal(0, 0.1, n)
+    za, zb = 202.0 + noise, 200.0 + 0 * noise
+    vals = {"chi": (np.full(n, 5.0) + noise, np.full(n, 5.0)),
+            "channel_elevation": (za, zb), "hillslope_relief": (220.0 - za, 220.0 - zb),
+            "hillslope_gradient": (np.full(n, 0.3) + noise * 0.01, np.full(n, 0.3)),
+            "local_relief": (np.full(n, 50.0) + noise, np.full(n, 50.0))}
+    pts = _points(n, np.arange(n), np.arange(n) + 50, vals)
+    apart = {c.metric: c for c in compute_contrasts(pts, block_points=1, n_boot=300, base_level_m=0.0)}
+    assert apart["channel_elevation"].why_none == "too small" and apart["hillslope_relief"].moves_toward == "a"
+    together = {c.metric: c for c in compute_contrasts(pts, block_points=1, n_boot=300, base_level_m=0.0,
+                                                       mirrored=True)}
+    assert together["channel_elevation"].moves_toward == together["hillslope_relief"].moves_toward == "none"
+    assert together["hillslope_relief"].why_none.startswith("too small")

@@ -80,3 +80,28 @@ def test_asymmetric_ridge_metrics_and_normals():
     hr_a, _ = pts.values["hillslope_relief"]
     ok = pts.head_a >= 0
     np.testing.assert_allclose(hr_a[ok], pts.elevation_m[ok] - dem.elevation.ravel()[pts.head_a[ok]])
+
+
+def test_a_divide_piece_with_room_for_one_sample_is_sampled():
+    # Voids split a divide into short pieces; a piece shorter than 1.5 spacings gets one sample,
+    # which used to reach np.gradient with one value ("Shape of array too small", issue 11).
+    # Its normal then comes from the piece's own direction: a piece walking south (rows
+    # increasing) with side a on its left has b to the west (right-hand normal; common practice).
+    from divides.terrain.divide_lines import Divide, DivideLine
+
+    n = 60
+    rr, cc = np.mgrid[0:n, 0:n].astype(float)
+    z = 1000.0 - np.abs(cc - 29.5) * 0.3 * CELL - np.abs(rr - 30) * 0.05 * CELL
+    dem = Dem.from_array(z, cell_size=CELL)
+    flow = route(dem)
+    sides = resolve_sides(flow, parse_side("west"), parse_side("east"))
+    divide = divide_between(dem, sides.a.mask, sides.b.mask)
+    row = np.array([10.0, 11.0])
+    col = np.array([29.5, 29.5])
+    x, y = dem.xy(row, col)
+    short = DivideLine(row, col, np.asarray(x), np.asarray(y), np.array([0.0, CELL]), np.array([990.0, 990.0]))
+    pts = sample_divide(flow, Divide([short], divide.cells_a, divide.cells_b), spacing_m=2 * CELL,
+                        channel_area_m2=2e4, reference_area_m2=2e4, chi_grid=np.zeros(dem.shape),
+                        relief_radius_m=300.0)
+    assert pts.size == 1
+    np.testing.assert_allclose(pts.normal[0], [-1.0, 0.0], atol=1e-12)

@@ -55,7 +55,11 @@ def test_perturbed_segments_rank_first_and_point_west(landscapes):
     # With the erodibility raster, χ is weighted by K^(-1/n) (generalised χ; Gelwick et al. 2024),
     # so every line of evidence may speak: all perturbed segments rank first and point west.
     _, snap, _, k = landscapes
-    result = screen(snap, max_segment_m=1500.0, erodibility_raster=k, **OPTIONS)
+    # Segments of 3 km (60 cells): since issue 11 a 1.5 km segment has 13-14 divide samples but
+    # about 4 independent ones for channel elevation and hillslope relief (their across-divide
+    # differences are of the size of the assumed 1 m DEM error, whose correlation then binds),
+    # so most 1.5 km segments abstain with "insufficient data" (checked below).
+    result = screen(snap, max_segment_m=3000.0, erodibility_raster=k, **OPTIONS)
     north, south = _by_half(result)
     assert north and south
     directed = [s for s in north if s["moves_toward_basin"] is not None]
@@ -66,6 +70,11 @@ def test_perturbed_segments_rank_first_and_point_west(landscapes):
     assert max(s["rank"] for s in directed) < min(s["rank"] for s in south)
     for seg in south:
         assert seg["moves_toward_basin"] in (None, EDGE_LABELS["west"])
+    short = screen(snap, max_segment_m=1500.0, erodibility_raster=k, **OPTIONS)
+    for seg in short.segments:  # shorter segments abstain or point west; never east
+        assert seg["moves_toward_basin"] in (None, EDGE_LABELS["west"])
+        if seg["moves_toward_basin"] is None:
+            assert seg["basis"] in ("insufficient data", "inconclusive", "conflict")
 
 
 def test_without_the_rock_map_near_divide_evidence_still_points_west(landscapes):
@@ -73,7 +82,7 @@ def test_without_the_rock_map_near_divide_evidence_still_points_west(landscapes)
     # segments whose verdict rests on near-divide evidence must still point the right way,
     # and any χ-only verdict is flagged as such with a low confidence.
     _, snap, _, _ = landscapes
-    result = screen(snap, max_segment_m=1500.0, **OPTIONS)
+    result = screen(snap, max_segment_m=3000.0, **OPTIONS)  # 3 km: see the test above
     north, _ = _by_half(result)
     near = [s for s in north if s["basis"] == "near-divide"]
     assert near

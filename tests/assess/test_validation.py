@@ -45,7 +45,16 @@ def _case(name, scenario, start, snapshot_years, **assess_options):
     said = {"a": "west", "b": "east"}.get(result.verdict.moves_toward, result.verdict.moves_toward)
     return {"name": name, "expected": scenario.moves_toward, "truth": truth, "shift_m": shift,
             "verdict": said, "confidence": result.verdict.confidence, "basis": result.verdict.basis,
-            "result": result}
+            "reason": result.verdict.reason, "result": result}
+
+
+#: Scenarios where the assessment now abstains, and why (issue 11, honest sample sizes). Each
+#: divide is 6-7 km long on a 100 m grid; the rule needs MIN_SAMPLES = 6 independent samples per
+#: side (distinct channel heads facing the divide, discounted for correlated DEM error).
+#: - runoff contrast: the east (dry) side has only 5 distinct channel heads along the divide
+#:   (11 head pairs, 8 distinct heads on the west): "insufficient data". Before issue 11 the
+#:   same 11 pairs were counted as 35 points and it answered "east" (right, confidence 0.55).
+ABSTAINS = {"runoff contrast (west wet)": "insufficient data"}
 
 
 @pytest.fixture(scope="module")
@@ -94,14 +103,21 @@ def test_at_least_ten_scenarios_and_the_truth_is_measured(cases):
 
 def test_right_direction_in_every_moving_case(cases):
     for r in cases:
-        if r["truth"] in ("west", "east"):
+        if r["name"] in ABSTAINS:  # too few independent samples: no direction, and it says why
+            assert (r["verdict"], r["reason"]) == ("undetermined", ABSTAINS[r["name"]]), r["name"]
+        elif r["truth"] in ("west", "east"):
             assert r["verdict"] == r["truth"], r["name"]
 
 
 def test_no_direction_in_stable_controls(cases):
+    # The stable controls give no direction. Since issue 11 "stable" needs positive evidence of
+    # balance (every near-divide interval inside ± 5 % of the metric's size); on these 20 m-relief
+    # model ridges with 6 independent samples per side the intervals are wider than that, so they
+    # answer "undetermined" ("inconclusive") instead of "stable" — an abstention, not an error.
     for r in cases:
         if r["truth"] == "stable":
             assert r["verdict"] not in ("west", "east"), r["name"]
+            assert r["verdict"] == "stable" or r["reason"] in ("inconclusive", "insufficient data"), r["name"]
 
 
 def test_high_confidence_is_never_wrong(cases):
@@ -128,7 +144,7 @@ def test_summary_fills_the_contract(cases):
     for k in summary["knickpoints"]:
         assert set(k) >= {"side", "x", "y", "elevation_m", "distance_to_divide_m", "arrival_years"}
     v = summary["verdict"]
-    assert set(v) >= {"moves_toward", "aggressor", "confidence", "rate_mm_per_yr", "text"}
+    assert set(v) >= {"moves_toward", "aggressor", "confidence", "rate_mm_per_yr", "text", "reason"}
     assert v["moves_toward"] in ("a", "b", "stable", "undetermined")
     assert 0.0 <= v["confidence"] <= 1.0
     assert "field" in v["text"] and "licensed professionals" in v["text"]

@@ -48,4 +48,10 @@ def test_validation_over_more_seeds(seed):
         if r["confidence"] >= 0.8:
             assert r["verdict"] == r["truth"], r["name"]
     moving = [r for r in runs if r["truth"] in ("west", "east")]
-    assert sum(r["verdict"] == r["truth"] for r in moving) >= len(moving) - 1  # at most one abstention
+    # At most one abstention for lack of precision; abstentions for lack of independent samples
+    # ("insufficient data", issue 11: fewer than 6 distinct channel heads per side on these 6 km
+    # divides) are honest and counted apart. Measured at the change: seed 21 erodibility, seed 42
+    # uplift and runoff abstain with "insufficient data"; every other moving case is right.
+    short = [r for r in moving if r["verdict"] == "undetermined" and r["reason"] == "insufficient data"]
+    assert sum(r["verdict"] == r["truth"] for r in moving) >= len(moving) - len(short) - 1
+    assert len(short) <= len(moving) // 2  # the rule must not silence most of the validation

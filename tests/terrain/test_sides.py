@@ -7,7 +7,7 @@ import pytest
 from pyproj import Transformer
 
 from divides import Dem, route
-from divides.assess.sides import (
+from divides.terrain.sides import (
     common_base_level,
     default_snap_radius_m,
     parse_side,
@@ -137,14 +137,22 @@ def test_side_errors():
         resolve_side(route(holed), parse_side(f"{xh},{yh}"))
 
 
-def test_common_base_level_is_the_higher_outlet_and_cuts_both_networks():
-    # Two valleys draining west (outlet at ~100 m) and east (outlet at ~160 m), meeting at a crest:
-    # the common base level is the higher of the lowest channel cells (Forte & Whipple 2018).
-    n = 61
+def _two_valleys(n: int = 61):
+    """Two convergent valleys draining west (outlet 100 m) and east (outlet 161 m), meeting at a crest.
+
+    The cross-valley slope (8 m per cell) is steeper than the down-valley one (2 and 1.5 m per
+    cell), so each side drains through one trunk along row 30: one channel network per side.
+    """
     rr, cc = np.mgrid[0:n, 0:n].astype(float)
-    west = 100.0 + cc * 8.0 + np.abs(rr - 30) * 2.0
-    east = 160.0 + (n - 1 - cc) * 6.0 + np.abs(rr - 30) * 2.0
-    z = np.minimum(west, east)
+    west = 100.0 + cc * 2.0 + np.abs(rr - 30) * 8.0
+    east = 161.0 + (n - 1 - cc) * 1.5 + np.abs(rr - 30) * 8.0
+    return np.minimum(west, east)
+
+
+def test_common_base_level_is_the_highest_outlet_and_cuts_both_networks():
+    # The common base level is the highest outlet of the networks reaching the divide, so every
+    # one of them reaches it (Willett et al. 2014; Forte & Whipple 2018): here the east trunk's.
+    z = _two_valleys()
     dem = Dem.from_array(z, cell_size=CELL)
     flow = route(dem)
     channels = extract_channels(flow, threshold_m2=20 * CELL * CELL)
@@ -152,9 +160,9 @@ def test_common_base_level_is_the_higher_outlet_and_cuts_both_networks():
     base = common_base_level(channels, sides)
     on_a = sides.a.mask.ravel()[channels.cells]
     on_b = sides.b.mask.ravel()[channels.cells]
-    assert base.lowest_a_m == pytest.approx(z[sides.a.mask][np.isin(np.flatnonzero(sides.a.mask), channels.cells)].min())
-    assert base.elevation_m == pytest.approx(max(base.lowest_a_m, base.lowest_b_m))
-    assert base.elevation_m == pytest.approx(z[30, -1])  # the east trunk's outlet
+    assert base.elevation_m == pytest.approx(z[30, -1])  # the east trunk's outlet (analytic: 161 m)
+    assert base.lowest_a_m == pytest.approx(z[30, 0])
+    assert base.networks["a"]["used"] == 1 and base.networks["b"]["used"] == 1
     zc = channels.elevation
     np.testing.assert_array_equal(base.kept_a, on_a & (zc >= base.elevation_m))
     np.testing.assert_array_equal(base.kept_b, on_b & (zc >= base.elevation_m))
@@ -163,6 +171,11 @@ def test_common_base_level_is_the_higher_outlet_and_cuts_both_networks():
         expected = [k for k in range(channels.size)
                     if kept[k] and (channels.down[k] < 0 or not kept[channels.down[k]])]
         assert nodes.tolist() == expected
+    # the west trunk crosses 161 m between its cells at 162 and 160 m (columns 31 and 30): halfway
+    # (linear interpolation)
+    (k,) = [k for k in base.nodes_a if channels.cells[k] == 30 * 61 + 31]
+    assert zc[k] == pytest.approx(162.0) and zc[channels.down[k]] == pytest.approx(160.0)
+    assert base.start_m[k] == pytest.approx(0.5 * CELL)
     user = common_base_level(channels, sides, elevation_m=200.0)
     assert user.source == "user" and np.all(zc[user.kept_a] >= 200.0)
     with pytest.raises(SideError, match="base level"):
@@ -170,3 +183,47 @@ def test_common_base_level_is_the_higher_outlet_and_cuts_both_networks():
     tiny = extract_channels(flow, threshold_m2=1e9)
     with pytest.raises(SideError, match="no channels"):
         common_base_level(tiny, sides)
+
+
+def test_a_user_base_level_below_an_outlet_leaves_that_network_out_and_counts_it():
+    # A base level of 130 m: the east network's outlet (161 m) stands above it, so χ measured
+    # from 130 m cannot include it (its channel never crosses 130 m): left out, counted.
+    z = _two_valleys()
+    flow = route(Dem.from_array(z, cell_size=CELL))
+    channels = extract_channels(flow, threshold_m2=20 * CELL * CELL)
+    sides = resolve_sides(flow, parse_side("west"), parse_side("east"))
+    with pytest.raises(SideError, match="side b has no channel network"):
+        common_base_level(channels, sides, elevation_m=130.0)
+    # with a second, lower east outlet the user base keeps that one and leaves the other out
+    flow2 = route(Dem.from_array(_two_valleys_with_low_east(), cell_size=CELL))
+    channels2 = extract_channels(flow2, threshold_m2=20 * CELL * CELL)
+    sides2 = resolve_sides(flow2, parse_side("west"), parse_side("east"))
+    base2 = common_base_level(channels2, sides2, elevation_m=130.0)
+    assert base2.networks["b"]["outlet_above_base"] >= 1 and base2.networks["b"]["used"] >= 1
+    zc = channels2.elevation
+    assert np.all(zc[base2.kept_b] >= 130.0)
+
+
+def _two_valleys_with_low_east(n: int = 61):
+    """Two east valleys (outlets 160 m along row 15, 100 m along row 45) and one west valley."""
+    rr, cc = np.mgrid[0:n, 0:n].astype(float)
+    west = 100.0 + cc * 2.0 + np.abs(rr - 30) * 8.0
+    east_hi = 160.0 + (n - 1 - cc) * 1.5 + np.abs(rr - 15) * 8.0
+    east_lo = 100.0 + (n - 1 - cc) * 3.0 + np.abs(rr - 45) * 8.0
+    return np.minimum(west, np.minimum(east_hi, east_lo))
+
+
+def test_chi_starts_at_the_interpolated_crossing():
+    # One straight channel of uniform area A: χ = (A0/A)^θ × distance above the crossing of the
+    # base level (definition of χ; Perron & Royden 2013). The crossing lies 0.3 of a step
+    # above the node below the base node.
+    from divides.profiles.chi import integrate_chi
+
+    down = np.arange(-1, 9)
+    step = np.r_[0.0, np.full(9, 10.0)]
+    keep = np.arange(10) >= 3
+    start = np.zeros(10)
+    start[3] = 7.0  # the crossing is 7 m below node 3
+    chi = integrate_chi(down, step, np.full(10, 4.0), theta=0.5, keep=keep, start_m=start)
+    np.testing.assert_allclose(chi[3:], 0.5 * (7.0 + 10.0 * np.arange(7)))
+    assert np.all(np.isnan(chi[:3]))
