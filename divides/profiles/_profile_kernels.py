@@ -47,41 +47,60 @@ def disorder_sorted(z_sorted):
 
 
 @njit(cache=True)
-def optimal_partition(x, y, min_len, max_segments):
-    """Least-squares piecewise-linear fits with 1 … max_segments segments (dynamic programming).
+def optimal_partition(x, y, phi, min_len, max_segments):
+    """Generalised least-squares piecewise-linear fits with 1 … max_segments segments.
 
     Segments are independent straight lines over consecutive points, each at
-    least ``min_len`` points long. Prefix sums make each segment's misfit O(1),
-    so the table costs O(K N²).
+    least ``min_len`` points long. Residuals are AR(1) with ``phi[i]`` the
+    correlation between points i − 1 and i (zeros: ordinary least squares).
+    Each segment is prewhitened on its own (Prais & Winsten 1954: first row
+    kept, row i becomes (r_i − φ_i r_(i−1)) / √(1 − φ_i²)), so its misfit is
+    a quadratic form of prefix sums, O(1) per segment, and the dynamic
+    programme costs O(K N²). Pass x and y centred (and y detrended) to keep
+    the sums well conditioned; a common line does not change any misfit.
 
     Returns
     -------
-    sse : (K,) best total squared misfit for k + 1 segments (inf where impossible)
+    sse : (K,) best total whitened squared misfit for k + 1 segments (inf where impossible)
     starts : (K, K) start index of each segment of the best k + 1 partition
     """
     n = x.size
-    sx = np.zeros(n + 1)
-    sy = np.zeros(n + 1)
-    sxx = np.zeros(n + 1)
-    sxy = np.zeros(n + 1)
-    syy = np.zeros(n + 1)
+    # whitened rows: intercept column u, slope column v, response w (row 0 unused)
+    puu = np.zeros(n + 1)
+    puv = np.zeros(n + 1)
+    pvv = np.zeros(n + 1)
+    puw = np.zeros(n + 1)
+    pvw = np.zeros(n + 1)
+    pww = np.zeros(n + 1)
     for i in range(n):
-        sx[i + 1] = sx[i] + x[i]
-        sy[i + 1] = sy[i] + y[i]
-        sxx[i + 1] = sxx[i] + x[i] * x[i]
-        sxy[i + 1] = sxy[i] + x[i] * y[i]
-        syy[i + 1] = syy[i] + y[i] * y[i]
+        u = 0.0
+        v = 0.0
+        w = 0.0
+        if i > 0:
+            f = phi[i]
+            s = np.sqrt(1.0 - f * f)
+            u = (1.0 - f) / s
+            v = (x[i] - f * x[i - 1]) / s
+            w = (y[i] - f * y[i - 1]) / s
+        puu[i + 1] = puu[i] + u * u
+        puv[i + 1] = puv[i] + u * v
+        pvv[i + 1] = pvv[i] + v * v
+        puw[i + 1] = puw[i] + u * w
+        pvw[i + 1] = pvw[i] + v * w
+        pww[i + 1] = pww[i] + w * w
 
-    def seg_sse(a, b):  # points a .. b-1
-        m = b - a
-        mx = (sx[b] - sx[a]) / m
-        my = (sy[b] - sy[a]) / m
-        cxx = (sxx[b] - sxx[a]) - m * mx * mx
-        cxy = (sxy[b] - sxy[a]) - m * mx * my
-        cyy = (syy[b] - syy[a]) - m * my * my
-        if cxx <= 1e-300:
-            return max(cyy, 0.0)
-        return max(cyy - cxy * cxy / cxx, 0.0)
+    def seg_sse(a, b):  # points a .. b-1; the first row is (1, x_a, y_a)
+        suu = 1.0 + puu[b] - puu[a + 1]
+        suv = x[a] + puv[b] - puv[a + 1]
+        svv = x[a] * x[a] + pvv[b] - pvv[a + 1]
+        suw = y[a] + puw[b] - puw[a + 1]
+        svw = x[a] * y[a] + pvw[b] - pvw[a + 1]
+        sww = y[a] * y[a] + pww[b] - pww[a + 1]
+        det = suu * svv - suv * suv
+        if det <= 1e-12 * suu * svv or det <= 1e-300:
+            return max(sww - suw * suw / suu, 0.0)
+        q = (svv * suw * suw - 2.0 * suv * suw * svw + suu * svw * svw) / det
+        return max(sww - q, 0.0)
 
     K = max_segments
     inf = np.inf

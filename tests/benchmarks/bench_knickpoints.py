@@ -1,0 +1,95 @@
+"""False knickpoints on steady profiles and detection power, under white and correlated DEM error.
+
+Profiles are analytic steady channels z = ksn·χ (Perron & Royden 2013; χ in closed form for a
+Hack-type area growth, Hack 1957) on 30 m nodes, with DEM error drawn from the project's error
+model (AR(1) along the profile, φ = exp(−Δ/L)); segmentation and knickpoint tests are given that
+same model. Prints, per error family, the share of steady profiles with any significant knickpoint
+and, per knickpoint size, the share of profiles where a significant knickpoint is found within
+10 (and 25) nodes of the true one.
+
+    python tests/benchmarks/bench_knickpoints.py [--profiles 200] [--seed 0]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).parents[1] / "profiles"))
+from synthetic import ar1_length, profile_case  # noqa: E402
+
+from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of  # noqa: E402
+from divides.profiles.segments import segment_profile  # noqa: E402
+from divides.terrain.dem_error import DemError  # noqa: E402
+
+DX = 30.0
+MIN_REACH = 20  # nodes on each side of a planted knickpoint
+TOLERANCES = (10, 25)  # nodes between the planted and the found knickpoint
+
+
+def detect(case: dict, error: DemError, tolerance: int = 10) -> tuple[bool, bool]:
+    """(any significant knickpoint, one within ``tolerance`` nodes of the planted one)."""
+    return _detect(case, error, (tolerance,))[:2]
+
+
+def _detect(case: dict, error: DemError, tolerances: tuple[int, ...]) -> tuple:
+    seg = segment_profile(case["chi"], case["z"], distance_m=case["x"], error=error)
+    found = [b["node"] for b in breaks_of(seg, case["chi"], case["z"], min_nodes=8, distance_m=case["x"], error=error)
+             if b["p_value"] < KNICKPOINT_ALPHA]
+    return (bool(found),) + tuple(case["at"] is not None and any(abs(k - case["at"]) <= t for k in found)
+                                  for t in tolerances)
+
+
+def draw_error(rng: np.random.Generator, family: str) -> DemError:
+    sigma = float(rng.uniform(0.5, 2.0))
+    if family == "white":
+        return DemError(sigma, 0.0)
+    return DemError(sigma, ar1_length(float(rng.uniform(0.5, 0.9)), DX))
+
+
+def run(n_profiles: int, seed: int, families=("white", "ar1")) -> dict:
+    out: dict = {}
+    for family in families:
+        rng = np.random.default_rng(seed)
+        false = 0
+        for _ in range(n_profiles):
+            err = draw_error(rng, family)
+            case = profile_case(rng, n=int(rng.integers(150, 600)), error=err, ks=float(rng.uniform(30, 120)))
+            false += detect(case, err)[0]
+        out[(family, "steady")] = false / n_profiles
+        for kind, sizes in (("step", (1.0, 2.0, 3.0, 4.0)), ("slope", (0.05, 0.10, 0.15, 0.20, 0.30))):
+            for size in sizes:
+                hits = np.zeros(2)
+                for _ in range(n_profiles):
+                    err = draw_error(rng, family)
+                    n = int(rng.integers(150, 600))
+                    at = int(rng.integers(MIN_REACH, n - MIN_REACH))
+                    amount = size * err.sigma_m if kind == "step" else size * rng.choice([-1.0, 1.0])
+                    case = profile_case(rng, n=n, error=err, kind=kind, size=amount, at=at,
+                                        ks=float(rng.uniform(30, 120)))
+                    hits += _detect(case, err, TOLERANCES)[1:]
+                for tol, h in zip(TOLERANCES, hits):
+                    out[(family, kind, size, f"within {tol} nodes")] = h / n_profiles
+    return out
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--profiles", type=int, default=200)
+    parser.add_argument("--seed", type=int, default=0)
+    args = parser.parse_args()
+    t0 = time.perf_counter()
+    res = run(args.profiles, args.seed)
+    for key, share in res.items():
+        label = " ".join(str(k) for k in key)
+        unit = " σ" if key[1:2] == ("step",) else (" (Δksn/ksn)" if key[1:2] == ("slope",) else "")
+        print(f"{label}{unit}: {100 * share:.1f} %")
+    print(f"{time.perf_counter() - t0:.0f} s")
+
+
+if __name__ == "__main__":
+    main()
