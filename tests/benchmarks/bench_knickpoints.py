@@ -85,9 +85,12 @@ def main() -> None:
     t0 = time.perf_counter()
     res = run(args.profiles, args.seed)
     for key, share in res.items():
-        label = " ".join(str(k) for k in key)
-        unit = " σ" if key[1:2] == ("step",) else (" (Δksn/ksn)" if key[1:2] == ("slope",) else "")
-        print(f"{label}{unit}: {100 * share:.1f} %")
+        if key[1] == "steady":
+            label = f"{key[0]:5s} steady profiles with any significant knickpoint"
+        else:
+            size = f"step {key[2]:g} σ" if key[1] == "step" else f"ksn change {100 * key[2]:g} %"
+            label = f"{key[0]:5s} {size} found {key[3]}"
+        print(f"{label}: {100 * share:.1f} %")
     print(f"{time.perf_counter() - t0:.0f} s")
 
 
