@@ -161,3 +161,68 @@ def network_root(down, keep):
         d = down[k]
         root[k] = k if (d < 0 or not keep[d]) else root[d]
     return root
+
+
+@njit(cache=True)
+def basin_disorder(chi, z, starts):
+    """Summed disorder over basins for every row (θ) of ``chi`` (Hergarten et al. 2016).
+
+    Nodes are grouped by basin: basin b covers columns ``starts[b] : starts[b + 1]``
+    of ``chi`` and entries of ``z``; basins of fewer than 3 nodes are skipped.
+    """
+    n_theta = chi.shape[0]
+    total = np.zeros(n_theta)
+    for b in range(starts.size - 1):
+        lo = starts[b]
+        hi = starts[b + 1]
+        if hi - lo < 3:
+            continue
+        zz = z[lo:hi]
+        for t in range(n_theta):
+            order = np.argsort(chi[t, lo:hi], kind="mergesort")
+            total[t] += disorder_sorted(zz[order])
+    return total
+
+
+@njit(cache=True)
+def best_hinge(x, y, phi, lo, hi):
+    """Index j in [lo, hi) whose hinge at ½(x[j−1] + x[j]) fits y(x) with least GLS misfit.
+
+    The hinge is a continuous two-line fit, columns 1, min(x − h, 0), max(x − h, 0);
+    rows are prewhitened with the AR(1) coefficients ``phi`` (Prais & Winsten 1954).
+    """
+    n = x.size
+    best = np.inf
+    arg = lo
+    a = np.empty((n, 3))
+    w = np.empty(n)
+    for j in range(lo, hi):
+        h = 0.5 * (x[j - 1] + x[j])
+        for i in range(n):
+            d = x[i] - h
+            c1 = d if d < 0.0 else 0.0
+            c2 = d if d > 0.0 else 0.0
+            if i == 0:
+                a[i, 0] = 1.0
+                a[i, 1] = c1
+                a[i, 2] = c2
+                w[i] = y[i]
+            else:
+                f = phi[i]
+                s = np.sqrt(1.0 - f * f)
+                dp = x[i - 1] - h
+                p1 = dp if dp < 0.0 else 0.0
+                p2 = dp if dp > 0.0 else 0.0
+                a[i, 0] = (1.0 - f) / s
+                a[i, 1] = (c1 - f * p1) / s
+                a[i, 2] = (c2 - f * p2) / s
+                w[i] = (y[i] - f * y[i - 1]) / s
+        m = a.T @ a
+        r = a.T @ w
+        coef = np.linalg.lstsq(m, r)[0]
+        res = w - a @ coef
+        sse = np.sum(res * res)
+        if sse < best:
+            best = sse
+            arg = j
+    return arg

@@ -104,21 +104,10 @@ def _basin_disorder(chi: np.ndarray, z: np.ndarray, basin: np.ndarray, sel: np.n
     (Hergarten, Robl & Stüwe 2016), so basins of different steepness never
     share one cloud: a difference in ksn between networks cannot read as concavity.
     """
-    b = basin[sel]
-    order0 = np.argsort(b, kind="stable")
-    bs = b[order0]
-    cuts = np.r_[0, np.flatnonzero(np.diff(bs)) + 1, bs.size]
-    idx = sel[order0]
-    total = np.zeros(chi.shape[0])
-    for lo, hi in zip(cuts[:-1], cuts[1:]):
-        if hi - lo < 3:
-            continue
-        members = idx[lo:hi]
-        zz = np.ascontiguousarray(z[members])
-        for t in range(chi.shape[0]):
-            order = np.argsort(chi[t, members], kind="stable")
-            total[t] += _k.disorder_sorted(np.ascontiguousarray(zz[order]))
-    return total
+    order = sel[np.argsort(basin[sel], kind="stable")]
+    b = basin[order]
+    starts = np.r_[0, np.flatnonzero(np.diff(b)) + 1, b.size].astype(np.int64)
+    return _k.basin_disorder(np.ascontiguousarray(chi[:, order]), np.ascontiguousarray(z[order]), starts)
 
 
 def concavity_by_collinearity(

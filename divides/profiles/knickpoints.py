@@ -7,6 +7,7 @@ import math
 import numpy as np
 from scipy import stats
 
+from divides.profiles import _profile_kernels as _k
 from divides.profiles.segments import Segmentation, ar1_coefficients, gls_fit
 from divides.terrain.dem_error import DemError
 
@@ -21,18 +22,6 @@ def _ratio(value: float, scale: float) -> float:
     if scale > 0:
         return value / scale
     return 0.0 if value == 0 else math.copysign(math.inf, value)
-
-
-def _hinge_position(x: np.ndarray, y: np.ndarray, phi: np.ndarray, lo: int, hi: int) -> int:
-    """Index in [lo, hi) where a continuous two-line (hinge) fit of y(x) has least (GLS) misfit."""
-    best, arg = np.inf, lo
-    for j in range(lo, hi):
-        h = 0.5 * (x[j - 1] + x[j])
-        design = np.column_stack([np.ones_like(x), np.minimum(x - h, 0.0), np.maximum(x - h, 0.0)])
-        sse = gls_fit(design, y, phi)[2]
-        if sse < best:
-            best, arg = sse, j
-    return arg
 
 
 def _two_lines(x: np.ndarray, split: int) -> np.ndarray:
@@ -115,7 +104,7 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
             # Searched between the neighbouring breaks: correlated error can pull the free-line
             # boundary well away from the kink.
             lo, hi = a + max(2, min_nodes // 2), c - max(1, min_nodes // 2)
-            node = a + _hinge_position(chi[a:c] - chi_b, z[a:c], phi[a:c], lo - a, hi - a + 1)
+            node = a + int(_k.best_hinge(chi[a:c] - chi_b, z[a:c] - z[a:c].mean(), phi[a:c], lo - a, hi - a + 1))
             out[-1]["node"] = int(node)
             out[-1]["chi"] = float(0.5 * (chi[node - 1] + chi[node]))
     return out
