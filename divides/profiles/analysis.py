@@ -159,8 +159,9 @@ def analyse_profiles(
         Common base level; only channels at or above it are analysed.
     theta : float or "auto"
         Concavity for χ and ksn. ``"auto"`` uses the collinearity estimate of
-        both sides together (falling back to the reference 0.45 when it cannot
-        be made); the default is the reference value 0.45 (common practice).
+        both sides, each network scored against its own trunk and the networks
+        combined (falling back to the reference 0.45 when it cannot be made);
+        the default is the reference value 0.45 (common practice).
     a0 : float
         Reference area (m²).
     weights : ChiWeights, optional

@@ -235,7 +235,8 @@ def concavity_by_collinearity(
         # normal interval with the bootstrap standard error, plus an allowance for the bias of
         # χ discretised on the grid; percentile intervals of this lumpy statistic undercover
         half = math.hypot(1.96 * float(np.std(boots, ddof=1)), THETA_ALLOWANCE)
-        lo, hi = max(best - half, 0.0), best + half
+        # θ outside the scanned range cannot be told apart: the interval stops at its ends
+        lo, hi = max(best - half, float(thetas[0])), min(best + half, float(thetas[-1]))
     else:
         lo, hi = np.nan, np.nan
     return ConcavityEstimate(best, (lo, hi), "collinearity", n_links, "",

@@ -20,35 +20,9 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).parents[1] / "profiles"))
-from synthetic import ar1_length, profile_case  # noqa: E402
+from synthetic import MIN_REACH, detect_all, draw_error, profile_case  # noqa: E402
 
-from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of  # noqa: E402
-from divides.profiles.segments import segment_profile  # noqa: E402
-from divides.terrain.dem_error import DemError  # noqa: E402
-
-DX = 30.0
-MIN_REACH = 20  # nodes on each side of a planted knickpoint
 TOLERANCES = (10, 25)  # nodes between the planted and the found knickpoint
-
-
-def detect(case: dict, error: DemError, tolerance: int = 10) -> tuple[bool, bool]:
-    """(any significant knickpoint, one within ``tolerance`` nodes of the planted one)."""
-    return _detect(case, error, (tolerance,))[:2]
-
-
-def _detect(case: dict, error: DemError, tolerances: tuple[int, ...]) -> tuple:
-    seg = segment_profile(case["chi"], case["z"], distance_m=case["x"], error=error)
-    found = [b["node"] for b in breaks_of(seg, case["chi"], case["z"], min_nodes=8, distance_m=case["x"], error=error)
-             if b["p_value"] < KNICKPOINT_ALPHA]
-    return (bool(found),) + tuple(case["at"] is not None and any(abs(k - case["at"]) <= t for k in found)
-                                  for t in tolerances)
-
-
-def draw_error(rng: np.random.Generator, family: str) -> DemError:
-    sigma = float(rng.uniform(0.5, 2.0))
-    if family == "white":
-        return DemError(sigma, 0.0)
-    return DemError(sigma, ar1_length(float(rng.uniform(0.5, 0.9)), DX))
 
 
 def run(n_profiles: int, seed: int, families=("white", "ar1")) -> dict:
@@ -59,7 +33,7 @@ def run(n_profiles: int, seed: int, families=("white", "ar1")) -> dict:
         for _ in range(n_profiles):
             err = draw_error(rng, family)
             case = profile_case(rng, n=int(rng.integers(150, 600)), error=err, ks=float(rng.uniform(30, 120)))
-            false += detect(case, err)[0]
+            false += detect_all(case, err, ())[0]
         out[(family, "steady")] = false / n_profiles
         for kind, sizes in (("step", (1.0, 2.0, 3.0, 4.0)), ("slope", (0.05, 0.10, 0.15, 0.20, 0.30))):
             for size in sizes:
@@ -71,7 +45,7 @@ def run(n_profiles: int, seed: int, families=("white", "ar1")) -> dict:
                     amount = size * err.sigma_m if kind == "step" else size * rng.choice([-1.0, 1.0])
                     case = profile_case(rng, n=n, error=err, kind=kind, size=amount, at=at,
                                         ks=float(rng.uniform(30, 120)))
-                    hits += _detect(case, err, TOLERANCES)[1:]
+                    hits += detect_all(case, err, TOLERANCES)[1:]
                 for tol, h in zip(TOLERANCES, hits):
                     out[(family, kind, size, f"within {tol} nodes")] = h / n_profiles
     return out

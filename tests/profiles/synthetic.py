@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of
+from divides.profiles.segments import segment_profile
 from divides.terrain.dem_error import DemError
 
 
@@ -112,3 +114,32 @@ def profile_case(rng: np.random.Generator, *, n: int, error: DemError, kind: str
     elif kind != "none":
         raise ValueError(kind)
     return {"x": x, "chi": chi, "z": z + error.sample_profile(x, rng), "at": at}
+
+
+# --- knickpoint detection harness, shared by tests/profiles/test_segments.py and the benchmark ---
+
+DX = 30.0
+MIN_REACH = 20  # nodes on each side of a planted knickpoint
+
+
+def detect(case: dict, error: DemError, tolerance: int = 10) -> tuple[bool, bool]:
+    """(any significant knickpoint, one within ``tolerance`` nodes of the planted one)."""
+    return detect_all(case, error, (tolerance,))[:2]
+
+
+def detect_all(case: dict, error: DemError, tolerances: tuple[int, ...]) -> tuple:
+    """Segment and test one profile case under ``error``: (any significant knickpoint, then per
+    tolerance whether one lies within that many nodes of the planted one)."""
+    seg = segment_profile(case["chi"], case["z"], distance_m=case["x"], error=error)
+    found = [b["node"] for b in breaks_of(seg, case["chi"], case["z"], min_nodes=8, distance_m=case["x"], error=error)
+             if b["p_value"] < KNICKPOINT_ALPHA]
+    return (bool(found),) + tuple(case["at"] is not None and any(abs(k - case["at"]) <= t for k in found)
+                                  for t in tolerances)
+
+
+def draw_error(rng: np.random.Generator, family: str) -> DemError:
+    """σ 0.5-2 m; white, or AR(1) with φ 0.5-0.9 between nodes DX apart (the issue's benchmark range)."""
+    sigma = float(rng.uniform(0.5, 2.0))
+    if family == "white":
+        return DemError(sigma, 0.0)
+    return DemError(sigma, ar1_length(float(rng.uniform(0.5, 0.9)), DX))

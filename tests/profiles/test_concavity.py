@@ -105,6 +105,8 @@ def test_two_sides_of_different_steepness_are_not_read_as_concavity():
     est = _estimate(net, net["z"], n_boot=0)
     assert est.value == pytest.approx(0.45, abs=0.03)
     assert est.scores["n_basins"] == 4
+    # the same nodes pooled in one cloud read the steepness difference as concavity (the failure)
+    assert abs(_estimate(net, net["z"], n_boot=0, basins=False).value - 0.45) > 0.1
 
 
 @pytest.mark.parametrize("theta_true", [0.35, 0.5, 0.65])

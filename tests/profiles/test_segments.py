@@ -115,10 +115,8 @@ from divides.profiles.knickpoints import celerity_status, false_discovery_filter
 from divides.profiles.segments import ar1_coefficients, gls_fit  # noqa: E402
 from divides.terrain.dem_error import DemError  # noqa: E402
 
-sys.path.insert(0, str(Path(__file__).parents[1] / "benchmarks"))
-sys.path.insert(0, str(Path(__file__).parent))
-from bench_knickpoints import detect, draw_error  # noqa: E402
-from synthetic import ar1_length, profile_case  # noqa: E402
+sys.path.insert(0, str(Path(__file__).parent))  # importlib mode: reach the sibling module
+from synthetic import MIN_REACH, ar1_length, detect, draw_error, profile_case  # noqa: E402
 
 
 def _dense_gls(x, y, distance, length):
@@ -186,7 +184,7 @@ def _share(kind, size, family, seeds):
         rng = np.random.default_rng(seed)
         err = draw_error(rng, family)
         n = int(rng.integers(150, 600))
-        at = int(rng.integers(20, n - 20))
+        at = int(rng.integers(MIN_REACH, n - MIN_REACH))
         amount = size * err.sigma_m if kind == "step" else size * rng.choice([-1.0, 1.0])
         case = profile_case(rng, n=n, error=err, kind=kind, size=amount, at=at if kind != "none" else None,
                             ks=float(rng.uniform(30, 120)))
@@ -215,6 +213,7 @@ def test_fifteen_percent_ksn_changes_are_found(family):
 
 @pytest.mark.slow
 def test_benchmark_targets_on_200_profiles():
+    sys.path.insert(0, str(Path(__file__).parents[1] / "benchmarks"))
     from bench_knickpoints import run
     res = run(200, 0)
     for family in ("white", "ar1"):
