@@ -35,8 +35,9 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
               distance_m: np.ndarray | None = None, error: DemError | None = None) -> list[dict]:
     """Describe every break of a segmentation as a candidate knickpoint.
 
-    Each break between segments j and j + 1 is tested by an F-test of the
-    two-line fit against one line over both segments (Gailleton et al. 2019
+    Each break between segments j and j + 1 is tested by F-tests of the
+    two-line fit against one line and against a smooth bend (a quadratic in χ)
+    over both segments; the p-value is the larger (Gailleton et al. 2019
     distinguish the two kinds reported here). With a DEM error model both fits
     are generalised least squares (AR(1) error along the stream, prewhitened;
     Prais & Winsten 1954) and the residual variance is never taken below the
@@ -83,9 +84,14 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         x = chi[a:c] - chi_b  # centred on the break: well-conditioned designs
         _, _, one = gls_fit(np.column_stack([np.ones_like(x), x]), z[a:c], phi[a:c])
         _, _, two = gls_fit(_two_lines(x, int(b - a)), z[a:c], phi[a:c])
+        u = x / max(float(np.ptp(x)), 1e-300)  # scaled: a well-conditioned quadratic
+        _, _, bend = gls_fit(np.column_stack([np.ones_like(u), u, u * u]), z[a:c], phi[a:c])
         dof = max(int(c - a) - 4, 1)
-        f = max(one - two, 0.0) / 2.0 / max(two / dof, floor2)
-        p = float(stats.f.sf(f, 2, dof))
+        scale = max(two / dof, floor2)
+        # two lines must beat one line and also a smooth bend: a profile that curves gradually
+        # (a concavity off the true one, hillslope processes near the heads) has no knickpoint
+        p = max(float(stats.f.sf(max(one - two, 0.0) / 2.0 / scale, 2, dof)),
+                float(stats.f.sf(max(bend - two, 0.0) / scale, 1, dof)))
         positions = max(1, int(c - a) - 2 * min_nodes + 1)
         out.append({
             "node": node,

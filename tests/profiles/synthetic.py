@@ -6,7 +6,7 @@ Perron & Royden 2013). Here every stream has a drainage area that grows as a pow
 the distance from its top, A(s) = c (L' − s)^p (a Hack-type growth; Hack 1957), so χ has
 the closed form
 
-    χ(s) = c^(−θ) [L'^(1 − pθ) − (L' − s)^(1 − pθ)] / (1 − pθ)
+    χ(s) = c^(−θ) [L'^(1 − pθ) − (L' − s)^(1 − pθ)] / (1 − pθ)   (c^(−θ) ln(L'/(L' − s)) when pθ = 1)
 
 and nothing of the code under test is used to build the truth. DEM error is added with
 the project's error model: exponential correlation along each flow path, drawn node by
@@ -26,7 +26,10 @@ from divides.terrain.dem_error import DemError
 def closed_form_chi(s: np.ndarray, c: float, length: float, p: float, theta: float) -> np.ndarray:
     """χ from the stream's lower end to distance ``s`` for A(s) = c (length − s)^p (A0 = 1 m²)."""
     e = 1.0 - p * theta
-    return c ** (-theta) * (length**e - (length - np.asarray(s, dtype=float)) ** e) / e
+    s = np.asarray(s, dtype=float)
+    if abs(e) < 1e-12:  # p θ = 1: the integral of 1/(L' − s) is a logarithm
+        return c ** (-theta) * np.log(length / (length - s))
+    return c ** (-theta) * (length**e - (length - s) ** e) / e
 
 
 def steady_basin(rng: np.random.Generator, *, theta: float, ks: float, dx: float = 30.0, n_trib: int = 6,
