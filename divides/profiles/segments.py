@@ -125,12 +125,13 @@ def segment_profile(
     For each number of segments K the exact least-squares partition is found
     by dynamic programming; K is then chosen by the Bayesian information
     criterion (``_criterion``; Mudd et al. 2014 used AICc, which over-segments
-    noisy profiles when break positions are searched freely). With a DEM error model the fits are generalised least squares:
-    residuals along the stream are AR(1) with φ = exp(−Δ/L) between nodes Δ
-    apart, removed by prewhitening (Prais & Winsten 1954), so a wave of
-    correlated error is not taken for a change of slope. Long streams are
-    thinned evenly to at most ``max_nodes`` nodes for the search (φ is taken
-    over the thinned spacing); the final lines are refitted on every node.
+    noisy profiles when break positions are searched freely). With a DEM
+    error model the fits are generalised least squares: residuals along the
+    stream are AR(1) with φ = exp(−Δ/L) between nodes Δ apart, removed by
+    prewhitening (Prais & Winsten 1954), so a wave of correlated error is not
+    taken for a change of slope. Long streams are thinned evenly to at most
+    ``max_nodes`` nodes for the search (φ is taken over the thinned spacing);
+    the final lines are refitted on every node.
 
     Parameters
     ----------

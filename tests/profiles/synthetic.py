@@ -6,7 +6,8 @@ Perron & Royden 2013). Here every stream has a drainage area that grows as a pow
 the distance from its top, A(s) = c (L' − s)^p (a Hack-type growth; Hack 1957), so χ has
 the closed form
 
-    χ(s) = c^(−θ) [L'^(1 − pθ) − (L' − s)^(1 − pθ)] / (1 − pθ)   (c^(−θ) ln(L'/(L' − s)) when pθ = 1)
+    χ(s) = c^(−θ) [L'^(1 − pθ) − (L' − s)^(1 − pθ)] / (1 − pθ)
+    (c^(−θ) ln(L'/(L' − s)) when pθ = 1),
 
 and nothing of the code under test is used to build the truth. DEM error is added with
 the project's error model: exponential correlation along each flow path, drawn node by

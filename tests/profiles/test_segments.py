@@ -120,7 +120,7 @@ from synthetic import MIN_REACH, ar1_length, detect, draw_error, hack_channel, p
 
 
 def _dense_gls(x, y, distance, length):
-    """Textbook GLS (Aitken 1935): β = (XᵀΣ⁻¹X)⁻¹ XᵀΣ⁻¹y with Σ_ij = exp(−|d_i − d_j| / L), dense."""
+    """Textbook GLS (Aitken 1935), dense: β = (XᵀΣ⁻¹X)⁻¹ XᵀΣ⁻¹y, Σ_ij = exp(−|d_i − d_j| / L)."""
     design = np.column_stack([np.ones_like(x), x])
     cov = np.exp(-np.abs(distance[:, None] - distance[None, :]) / length)
     inv = np.linalg.inv(cov)
