@@ -97,3 +97,19 @@ def test_vertical_resolution_still_sets_a_white_error_model(steady_landscape):
     # Without dem_error, vertical_resolution_m is σ of white error (the earlier interface).
     result = _profiles(steady_landscape, theta=0.5, vertical_resolution_m=1.0)
     assert len(result.knickpoints) <= 1
+
+
+def test_knickpoints_of_a_base_level_fall_are_found_on_the_fallen_side_only(steady_landscape):
+    # The steady ridge after its east edge fell 20 m, 20 000 years on: a wave of incision is climbing
+    # the eastern channels (side b) only, steeper below than above (Whipple & Tucker 1999; Royden &
+    # Perron 2013). With a small DEM error (σ 0.1 m, 3 cells), knickpoints are found there and nowhere else.
+    from divides.model import scenarios
+    from divides.model.simulate import simulate
+    from divides.terrain.dem_error import DemError
+
+    fall = scenarios.base_level_fall((60, 120), side="east", drop=20.0, seed=4)
+    snap = simulate(steady_landscape, duration=2e4, dt=2e3, **fall.options).final
+    result = _profiles(snap, theta=0.5, dem_error=DemError.for_cell_size(0.1, 100.0))
+    sides = [kp["side"] for kp in result.knickpoints]
+    assert sides.count("b") >= 2 and sides.count("a") == 0
+    assert all(kp["ksn_below"] > kp["ksn_above"] for kp in result.knickpoints)
