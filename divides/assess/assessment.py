@@ -215,7 +215,7 @@ def _core(
     step("river profiles (χ, concavity, ksn, knickpoints)")
     profiles = analyse_profiles(channels, sides, base, theta=theta, a0=config.a0_m2, weights=weights,
                                 vertical_resolution_m=max(config.dem_error_m, 0.0), n_boot=n_boot_theta,
-                                seed=config.seed, dem_error=dem_error)
+                                seed=config.seed, dem_error=dem_error, n=config.n)
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
     step("contrasts across the divide")

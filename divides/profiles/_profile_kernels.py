@@ -47,41 +47,60 @@ def disorder_sorted(z_sorted):
 
 
 @njit(cache=True)
-def optimal_partition(x, y, min_len, max_segments):
-    """Least-squares piecewise-linear fits with 1 … max_segments segments (dynamic programming).
+def optimal_partition(x, y, phi, min_len, max_segments):
+    """Generalised least-squares piecewise-linear fits with 1 … max_segments segments.
 
     Segments are independent straight lines over consecutive points, each at
-    least ``min_len`` points long. Prefix sums make each segment's misfit O(1),
-    so the table costs O(K N²).
+    least ``min_len`` points long. Residuals are AR(1) with ``phi[i]`` the
+    correlation between points i − 1 and i (zeros: ordinary least squares).
+    Each segment is prewhitened on its own (Prais & Winsten 1954: first row
+    kept, row i becomes (r_i − φ_i r_(i−1)) / √(1 − φ_i²)), so its misfit is
+    a quadratic form of prefix sums, O(1) per segment, and the dynamic
+    programme costs O(K N²). Pass x and y centred (and y detrended) to keep
+    the sums well conditioned; a common line does not change any misfit.
 
     Returns
     -------
-    sse : (K,) best total squared misfit for k + 1 segments (inf where impossible)
+    sse : (K,) best total whitened squared misfit for k + 1 segments (inf where impossible)
     starts : (K, K) start index of each segment of the best k + 1 partition
     """
     n = x.size
-    sx = np.zeros(n + 1)
-    sy = np.zeros(n + 1)
-    sxx = np.zeros(n + 1)
-    sxy = np.zeros(n + 1)
-    syy = np.zeros(n + 1)
+    # whitened rows: intercept column u, slope column v, response w (row 0 unused)
+    puu = np.zeros(n + 1)
+    puv = np.zeros(n + 1)
+    pvv = np.zeros(n + 1)
+    puw = np.zeros(n + 1)
+    pvw = np.zeros(n + 1)
+    pww = np.zeros(n + 1)
     for i in range(n):
-        sx[i + 1] = sx[i] + x[i]
-        sy[i + 1] = sy[i] + y[i]
-        sxx[i + 1] = sxx[i] + x[i] * x[i]
-        sxy[i + 1] = sxy[i] + x[i] * y[i]
-        syy[i + 1] = syy[i] + y[i] * y[i]
+        u = 0.0
+        v = 0.0
+        w = 0.0
+        if i > 0:
+            f = phi[i]
+            s = np.sqrt(1.0 - f * f)
+            u = (1.0 - f) / s
+            v = (x[i] - f * x[i - 1]) / s
+            w = (y[i] - f * y[i - 1]) / s
+        puu[i + 1] = puu[i] + u * u
+        puv[i + 1] = puv[i] + u * v
+        pvv[i + 1] = pvv[i] + v * v
+        puw[i + 1] = puw[i] + u * w
+        pvw[i + 1] = pvw[i] + v * w
+        pww[i + 1] = pww[i] + w * w
 
-    def seg_sse(a, b):  # points a .. b-1
-        m = b - a
-        mx = (sx[b] - sx[a]) / m
-        my = (sy[b] - sy[a]) / m
-        cxx = (sxx[b] - sxx[a]) - m * mx * mx
-        cxy = (sxy[b] - sxy[a]) - m * mx * my
-        cyy = (syy[b] - syy[a]) - m * my * my
-        if cxx <= 1e-300:
-            return max(cyy, 0.0)
-        return max(cyy - cxy * cxy / cxx, 0.0)
+    def seg_sse(a, b):  # points a .. b-1; the first row is (1, x_a, y_a)
+        suu = 1.0 + puu[b] - puu[a + 1]
+        suv = x[a] + puv[b] - puv[a + 1]
+        svv = x[a] * x[a] + pvv[b] - pvv[a + 1]
+        suw = y[a] + puw[b] - puw[a + 1]
+        svw = x[a] * y[a] + pvw[b] - pvw[a + 1]
+        sww = y[a] * y[a] + pww[b] - pww[a + 1]
+        det = suu * svv - suv * suv
+        if det <= 1e-12 * suu * svv or det <= 1e-300:
+            return max(sww - suw * suw / suu, 0.0)
+        q = (svv * suw * suw - 2.0 * suv * suw * svw + suu * svw * svw) / det
+        return max(sww - q, 0.0)
 
     K = max_segments
     inf = np.inf
@@ -142,3 +161,68 @@ def network_root(down, keep):
         d = down[k]
         root[k] = k if (d < 0 or not keep[d]) else root[d]
     return root
+
+
+@njit(cache=True)
+def basin_disorder(chi, z, starts):
+    """Summed disorder over basins for every row (θ) of ``chi`` (Hergarten et al. 2016).
+
+    Nodes are grouped by basin: basin b covers columns ``starts[b] : starts[b + 1]``
+    of ``chi`` and entries of ``z``; basins of fewer than 3 nodes are skipped.
+    """
+    n_theta = chi.shape[0]
+    total = np.zeros(n_theta)
+    for b in range(starts.size - 1):
+        lo = starts[b]
+        hi = starts[b + 1]
+        if hi - lo < 3:
+            continue
+        zz = z[lo:hi]
+        for t in range(n_theta):
+            order = np.argsort(chi[t, lo:hi], kind="mergesort")
+            total[t] += disorder_sorted(zz[order])
+    return total
+
+
+@njit(cache=True)
+def best_hinge(x, y, phi, lo, hi):
+    """Index j in [lo, hi) whose hinge at ½(x[j−1] + x[j]) fits y(x) with least GLS misfit.
+
+    The hinge is a continuous two-line fit, columns 1, min(x − h, 0), max(x − h, 0);
+    rows are prewhitened with the AR(1) coefficients ``phi`` (Prais & Winsten 1954).
+    """
+    n = x.size
+    best = np.inf
+    arg = lo
+    a = np.empty((n, 3))
+    w = np.empty(n)
+    for j in range(lo, hi):
+        h = 0.5 * (x[j - 1] + x[j])
+        for i in range(n):
+            d = x[i] - h
+            c1 = d if d < 0.0 else 0.0
+            c2 = d if d > 0.0 else 0.0
+            if i == 0:
+                a[i, 0] = 1.0
+                a[i, 1] = c1
+                a[i, 2] = c2
+                w[i] = y[i]
+            else:
+                f = phi[i]
+                s = np.sqrt(1.0 - f * f)
+                dp = x[i - 1] - h
+                p1 = dp if dp < 0.0 else 0.0
+                p2 = dp if dp > 0.0 else 0.0
+                a[i, 0] = (1.0 - f) / s
+                a[i, 1] = (c1 - f * p1) / s
+                a[i, 2] = (c2 - f * p2) / s
+                w[i] = (y[i] - f * y[i - 1]) / s
+        m = a.T @ a
+        r = a.T @ w
+        coef = np.linalg.lstsq(m, r)[0]
+        res = w - a @ coef
+        sse = np.sum(res * res)
+        if sse < best:
+            best = sse
+            arg = j
+    return arg

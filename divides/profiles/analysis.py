@@ -15,7 +15,7 @@ from divides.profiles.concavity import (
     concavity_by_collinearity,
     concavity_by_slope_area,
 )
-from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of
+from divides.profiles.knickpoints import KNICKPOINT_ALPHA, breaks_of, celerity_status, false_discovery_filter
 from divides.profiles.segments import Segmentation, segment_profile
 from divides.profiles.steepness import stream_slopes
 from divides.profiles.streams import longest_path_streams
@@ -58,7 +58,8 @@ class ProfileAnalysis:
     theta_source : str
         ``"user"``, ``"reference"`` or ``"collinearity"``.
     concavity : dict of ConcavityEstimate
-        ``"a"``, ``"b"``, ``"both"`` (collinearity) and ``"slope_area"`` (both sides).
+        ``"a"``, ``"b"``, ``"both"`` (collinearity, each network scored as its own
+        basin and the basins combined) and ``"slope_area"`` (both sides).
     chi : ndarray
         χ (m) of channel cells at or above the base level; NaN elsewhere.
     side : ndarray of int8
@@ -70,8 +71,10 @@ class ProfileAnalysis:
     streams : list of Stream
     knickpoints : list of dict
         Significant knickpoints (see :func:`divides.profiles.knickpoints.breaks_of`
-        for the keys), plus ``side``, ``cell``, ``x``, ``y``, ``elevation_m``,
-        ``area_m2``, ``distance_to_divide_m``.
+        for the keys), plus ``q_value`` (p adjusted for the number of breaks tested,
+        Benjamini & Hochberg 1995), ``celerity_defined`` and ``celerity_note`` (see
+        :func:`divides.profiles.knickpoints.celerity_status`), ``side``, ``cell``,
+        ``x``, ``y``, ``elevation_m``, ``area_m2``, ``distance_to_divide_m``.
     n_candidate_breaks : int
         Breaks found by segmentation before significance and artefact filters.
     """
@@ -138,9 +141,10 @@ def analyse_profiles(
     min_nodes: int = 8,
     max_segments: int = 6,
     vertical_resolution_m: float = 1.0,
+    dem_error: DemError | None = None,
+    n: float = 1.0,
     n_boot: int = 100,
     seed: int = 0,
-    dem_error: DemError | None = None,
 ) -> ProfileAnalysis:
     """Analyse the river profiles of both sides of a divide.
 
@@ -152,8 +156,9 @@ def analyse_profiles(
         Common base level; only channels at or above it are analysed.
     theta : float or "auto"
         Concavity for χ and ksn. ``"auto"`` uses the collinearity estimate of
-        both sides together (falling back to the reference 0.45 when it cannot
-        be made); the default is the reference value 0.45 (common practice).
+        both sides, each network scored against its own trunk and the networks
+        combined (falling back to the reference 0.45 when it cannot be made);
+        the default is the reference value 0.45 (common practice).
     a0 : float
         Reference area (m²).
     weights : ChiWeights, optional
@@ -161,13 +166,18 @@ def analyse_profiles(
     min_nodes, max_segments : int
         Segmentation limits (nodes per segment, segments per stream).
     vertical_resolution_m : float
-        Steps smaller than this are not knickpoints (DEM vertical resolution).
+        σ (m) of white DEM error, used when ``dem_error`` is not given.
+    dem_error : DemError, optional
+        DEM error model (σ and correlation length). Segmentation and knickpoint
+        tests are generalised least squares under it; steps smaller than its σ
+        are not knickpoints.
+    n : float
+        Slope exponent of the stream-power law, for whether each knickpoint has
+        a defined upstream speed (``celerity_defined``, ``celerity_note``).
     n_boot : int
         Bootstrap resamples for the concavity intervals.
     seed : int
         Random seed.
-    dem_error : DemError, optional
-        Model of the DEM's vertical error (σ and correlation length).
 
     Returns
     -------
@@ -175,6 +185,7 @@ def analyse_profiles(
     """
     if not (np.isfinite(vertical_resolution_m) and vertical_resolution_m >= 0):
         raise ParameterError(f"vertical resolution must be >= 0 m; got {vertical_resolution_m!r}")
+    error = dem_error if dem_error is not None else DemError(float(vertical_resolution_m), 0.0)
     flow = channels.flow
     down, step = channels.down, channels.step
     area = channels.area if weights is None or weights.discharge is None else \
@@ -194,8 +205,9 @@ def analyse_profiles(
 
     conc = {}
     for name, sel in (("a", base.kept_a), ("b", base.kept_b), ("both", keep)):
-        conc[name] = concavity_by_collinearity(down, step, area, z_own, sel, groups, a0=a0, weight=factor,
-                                               n_boot=n_boot, seed=seed)
+        # each network (root) is one basin, scored against its own trunk; never one pooled cloud
+        conc[name] = concavity_by_collinearity(down, step, area, z_own, sel, groups, basins=root, a0=a0,
+                                               weight=factor, n_boot=n_boot, seed=seed)
 
     if isinstance(theta, str):
         if theta != "auto":
@@ -222,14 +234,16 @@ def analyse_profiles(
         for nodes, tributary in longest_path_streams(down, step, kept):
             if nodes.size < 2:
                 continue  # a lone base node: nothing to fit
-            seg = segment_profile(chi[nodes], z[nodes], min_nodes=min_nodes, max_segments=max_segments)
+            along = np.r_[0.0, np.cumsum(step[nodes[1:]])]  # distance along the stream, for the error model
+            seg = segment_profile(chi[nodes], z[nodes], distance_m=along, error=error, min_nodes=min_nodes,
+                                  max_segments=max_segments)
             streams.append(Stream(side_name, nodes, seg))
             first = 1 if tributary else 0  # a tributary's junction node belongs to the stream it joins
             own = nodes[first:]
             which = seg.segment_of(np.arange(first, nodes.size))
             ksn[own] = seg.slope[which]
             ksn_se[own] = seg.slope_se[which]
-            for brk in breaks_of(seg, chi[nodes], z[nodes], min_nodes=min_nodes):
+            for brk in breaks_of(seg, chi[nodes], z[nodes], min_nodes=min_nodes, distance_m=along, error=error):
                 candidates.append((side_name, nodes, brk))
 
     conc["slope_area"] = concavity_by_slope_area(area[keep], slope_all[keep])
@@ -238,19 +252,24 @@ def analyse_profiles(
     cond = flow.conditioned.surface.ravel()
     longest = _k.longest_upstream_path(flow.order, flow.receivers, flow.distance)
     knickpoints = []
-    for side_name, nodes, brk in candidates:
+    # many streams are tested at once: control the share of false knickpoints (Benjamini & Hochberg 1995)
+    significant, q_values = false_discovery_filter(np.array([brk["p_value"] for _, _, brk in candidates]),
+                                                   KNICKPOINT_ALPHA)
+    for (side_name, nodes, brk), passed, q in zip(candidates, significant, q_values):
         pos = int(nodes[brk["node"]])
         cell = int(channels.cells[pos])
-        if brk["p_value"] >= KNICKPOINT_ALPHA:
+        if not passed:
             continue
         if abs(float(cond[cell]) - float(raw[cell])) > 1e-6:
             continue  # inside a filled or breached reach: an artefact of conditioning
-        if brk["kind"] == "step" and abs(brk["step_m"]) < vertical_resolution_m:
+        if brk["kind"] == "step" and abs(brk["step_m"]) < error.sigma_m:
             continue
+        defined, note = celerity_status(brk["kind"], brk["ksn_below"], brk["ksn_above"], n)
         r, c = divmod(cell, flow.shape[1])
         x, y = flow.dem.xy(r, c)
         knickpoints.append({
-            **brk, "side": side_name, "position": pos, "cell": cell, "x": float(x), "y": float(y),
+            **brk, "q_value": float(q), "celerity_defined": defined, "celerity_note": note,
+            "side": side_name, "position": pos, "cell": cell, "x": float(x), "y": float(y),
             "elevation_m": float(raw[cell]), "area_m2": float(channels.area[pos]),
             "distance_to_divide_m": float(longest[cell]),
         })
@@ -288,6 +307,6 @@ def network_concavity(channels: Channels, *, a0: float = 1.0, n_boot: int = 100,
     z = channels.elevation - channels.elevation[root]
     return {
         "collinearity": concavity_by_collinearity(channels.down, channels.step, channels.area, z, keep,
-                                                  channels.link, a0=a0, n_boot=n_boot, seed=seed),
+                                                  channels.link, basins=root, a0=a0, n_boot=n_boot, seed=seed),
         "slope_area": concavity_by_slope_area(channels.area, _channel_slopes(channels, keep)),
     }

@@ -7,9 +7,11 @@ import math
 import numpy as np
 from scipy import stats
 
-from divides.profiles.segments import Segmentation
+from divides.profiles import _profile_kernels as _k
+from divides.profiles.segments import Segmentation, ar1_coefficients, gls_fit
+from divides.terrain.dem_error import DemError
 
-__all__ = ["breaks_of", "KNICKPOINT_ALPHA"]
+__all__ = ["breaks_of", "celerity_status", "false_discovery_filter", "KNICKPOINT_ALPHA"]
 
 #: Significance level below which a break is reported as a knickpoint (common practice).
 KNICKPOINT_ALPHA = 0.05
@@ -22,38 +24,27 @@ def _ratio(value: float, scale: float) -> float:
     return 0.0 if value == 0 else math.copysign(math.inf, value)
 
 
-def _line_sse(x: np.ndarray, y: np.ndarray) -> float:
-    if x.size < 3:
-        return 0.0
-    mx, my = x.mean(), y.mean()
-    sxx = float(np.sum((x - mx) ** 2))
-    if sxx <= 0:
-        return float(np.sum((y - my) ** 2))
-    b = float(np.sum((x - mx) * (y - my))) / sxx
-    return float(np.sum((y - my - b * (x - mx)) ** 2))
+def _two_lines(x: np.ndarray, split: int) -> np.ndarray:
+    """Design of two independent lines over x, the second starting at row ``split``."""
+    upper = (np.arange(x.size) >= split).astype(np.float64)
+    lower = 1.0 - upper
+    return np.column_stack([lower, lower * x, upper, upper * x])
 
 
-def _hinge_position(x: np.ndarray, y: np.ndarray, lo: int, hi: int) -> int:
-    """Index in [lo, hi) where a continuous two-line (hinge) fit of y(x) has least misfit."""
-    best, arg = np.inf, lo
-    for j in range(lo, hi):
-        h = 0.5 * (x[j - 1] + x[j])
-        design = np.column_stack([np.ones_like(x), np.minimum(x - h, 0.0), np.maximum(x - h, 0.0)])
-        coef, *_ = np.linalg.lstsq(design, y, rcond=None)
-        sse = float(np.sum((design @ coef - y) ** 2))
-        if sse < best:
-            best, arg = sse, j
-    return arg
-
-
-def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: int) -> list[dict]:
+def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: int,
+              distance_m: np.ndarray | None = None, error: DemError | None = None) -> list[dict]:
     """Describe every break of a segmentation as a candidate knickpoint.
 
-    Each break between segments j and j + 1 is tested by an F-test of the
-    two-line fit against one line over both segments (Gailleton et al. 2019
-    distinguish the two kinds reported here). Because the break was placed
-    where it fits best, the p-value is multiplied by the number of positions
-    it could have taken (a Bonferroni correction for the search).
+    Each break between segments j and j + 1 is tested by F-tests of the
+    two-line fit against one line and against a smooth bend (a quadratic in χ)
+    over both segments; the p-value is the larger (Gailleton et al. 2019
+    distinguish the two kinds reported here). With a DEM error model both fits
+    are generalised least squares (AR(1) error along the stream, prewhitened;
+    Prais & Winsten 1954) and the residual variance is never taken below the
+    error's σ², so neither a wave of correlated error nor a noise-free but
+    slightly curved profile passes for a knickpoint. Because the break was
+    placed where it fits best, the p-value is multiplied by the number of
+    positions it could have taken (a Bonferroni correction for the search).
 
     Parameters
     ----------
@@ -62,6 +53,10 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         The nodes the segmentation was fitted to.
     min_nodes : int
         Minimum segment length used in the fit.
+    distance_m : ndarray, optional
+        Distance (m) of each node along the stream.
+    error : DemError, optional
+        DEM error model (as given to :func:`segment_profile`).
 
     Returns
     -------
@@ -72,7 +67,10 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         (corrected), ``kind`` (``"slope-break"`` or ``"step"``).
     """
     out = []
-    sigma = max(seg.sigma, 1e-9)
+    chi = np.asarray(chi, dtype=np.float64)
+    z = np.asarray(z, dtype=np.float64)
+    phi = ar1_coefficients(distance_m, chi.size, error)
+    floor2 = max(error.sigma_m if error is not None else 0.0, max(seg.sigma, 1e-9) * 1e-3) ** 2
     for j in range(seg.n_segments - 1):
         a, b, c = seg.bounds[j], seg.bounds[j + 1], seg.bounds[j + 2]
         node = int(b)
@@ -83,11 +81,17 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         delta = float(seg.slope[j + 1] - seg.slope[j])
         t_slope = _ratio(delta, math.hypot(seg.slope_se[j], seg.slope_se[j + 1]))
         t_step = _ratio(step, math.hypot(seg.predict_se(j, chi_b), seg.predict_se(j + 1, chi_b)))
-        two = _line_sse(chi[a:b], z[a:b]) + _line_sse(chi[b:c], z[b:c])
-        one = _line_sse(chi[a:c], z[a:c])
+        x = chi[a:c] - chi_b  # centred on the break: well-conditioned designs
+        _, _, one = gls_fit(np.column_stack([np.ones_like(x), x]), z[a:c], phi[a:c])
+        _, _, two = gls_fit(_two_lines(x, int(b - a)), z[a:c], phi[a:c])
+        u = x / max(float(np.ptp(x)), 1e-300)  # scaled: a well-conditioned quadratic
+        _, _, bend = gls_fit(np.column_stack([np.ones_like(u), u, u * u]), z[a:c], phi[a:c])
         dof = max(int(c - a) - 4, 1)
-        f = max(one - two, 0.0) / 2.0 / max(two / dof, sigma**2 * 1e-6)
-        p = float(stats.f.sf(f, 2, dof))
+        scale = max(two / dof, floor2)
+        # two lines must beat one line and also a smooth bend: a profile that curves gradually
+        # (a concavity off the true one, hillslope processes near the heads) has no knickpoint
+        p = max(float(stats.f.sf(max(one - two, 0.0) / 2.0 / scale, 2, dof)),
+                float(stats.f.sf(max(bend - two, 0.0) / scale, 1, dof)))
         positions = max(1, int(c - a) - 2 * min_nodes + 1)
         out.append({
             "node": node,
@@ -103,8 +107,62 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         })
         if out[-1]["kind"] == "slope-break":
             # A kink is located better by a continuous hinge (3 parameters) than by two free lines.
-            lo, hi = max(a + 2, b - min_nodes), min(c - 1, b + min_nodes)
-            node = a + _hinge_position(chi[a:c], z[a:c], lo - a, hi - a + 1)
+            # Searched between the neighbouring breaks: correlated error can pull the free-line
+            # boundary well away from the kink.
+            lo, hi = a + max(2, min_nodes // 2), c - max(1, min_nodes // 2)
+            node = a + int(_k.best_hinge(chi[a:c] - chi_b, z[a:c] - z[a:c].mean(), phi[a:c], lo - a, hi - a + 1))
             out[-1]["node"] = int(node)
             out[-1]["chi"] = float(0.5 * (chi[node - 1] + chi[node]))
     return out
+
+
+def celerity_status(kind: str, ksn_below: float, ksn_above: float, n: float) -> tuple[bool, str]:
+    """Whether a knickpoint has one upstream speed under E = K A^m S^n, and why not if it has none.
+
+    For n = 1 every slope travels at K A^m, so any knickpoint moves as a unit.
+    For n ≠ 1 slopes travel at n K A^m S^(n−1): a slope break whose steeper
+    reach is downstream (n > 1; upstream for n < 1) steepens into a shock
+    with a speed, while the opposite one spreads out, and a vertical step
+    has a speed set by the slope of its face, which a DEM does not resolve
+    (Royden & Perron 2013).
+
+    Examples
+    --------
+    >>> celerity_status("slope-break", 80.0, 50.0, 1.5)[0]
+    True
+    >>> celerity_status("slope-break", 50.0, 80.0, 1.5)[0]
+    False
+    """
+    if n == 1.0:
+        return True, "moves upstream as a unit (n = 1)"
+    if kind == "step":
+        return False, ("a vertical step: for n ≠ 1 its speed depends on the slope of its face, "
+                       "which the DEM does not resolve; no arrival time")
+    steeper_below = ksn_below > ksn_above
+    if steeper_below == (n > 1.0):
+        return True, "a slope break that travels as a sharp front"
+    return False, f"a slope break that spreads out as it moves (n = {n:g}); it has no single speed, no arrival time"
+
+
+def false_discovery_filter(p_values: np.ndarray, alpha: float = KNICKPOINT_ALPHA) -> tuple[np.ndarray, np.ndarray]:
+    """Benjamini–Hochberg (1995) over many tests: which are significant, and the adjusted p (q) values.
+
+    Among the knickpoints reported, the expected share that are noise is at
+    most ``alpha``; when no profile has a knickpoint, the chance of reporting
+    any is at most ``alpha``.
+
+    Examples
+    --------
+    >>> false_discovery_filter(np.array([0.001, 0.04, 0.5]))[0].tolist()
+    [True, False, False]
+    """
+    p = np.asarray(p_values, dtype=np.float64)
+    m = p.size
+    if m == 0:
+        return np.zeros(0, dtype=bool), np.zeros(0)
+    order = np.argsort(p, kind="stable")
+    ranked = p[order] * m / np.arange(1, m + 1)
+    q_sorted = np.minimum.accumulate(ranked[::-1])[::-1]
+    q = np.empty(m)
+    q[order] = np.minimum(q_sorted, 1.0)
+    return q < alpha, q

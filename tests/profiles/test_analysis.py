@@ -55,3 +55,61 @@ def test_real_dem_sides_run_to_completion(jacksboro):
         assert kp["p_value"] < 0.05 and kp["distance_to_divide_m"] > 0
         assert kept[kp["position"]]
 
+
+
+@pytest.fixture(scope="module")
+def steady_landscape():
+    # A ridge grown to steady state by the project's stream-power model (uniform U and K, m/n = 0.5,
+    # n = 1): nothing migrates, so every knickpoint reported on it is false (Whipple & Tucker 1999).
+    from divides.model import scenarios
+
+    return scenarios.symmetric_divide((60, 120), seed=1).run(duration=3e6, dt=2e4).final
+
+
+def _profiles(dem, **options):
+    flow = divides.route(dem, closed_edges=("north", "south"))
+    channels = divides.extract_channels(flow)
+    sides = divides.resolve_sides(flow, divides.parse_side("west"), divides.parse_side("east"))
+    return analyse_profiles(channels, sides, divides.common_base_level(channels, sides), n_boot=0, **options)
+
+
+@pytest.mark.parametrize("added", [None, (1.0, 300.0), (1.0, 0.0)])
+def test_steady_landscape_has_at_most_one_knickpoint(steady_landscape, added):
+    # Issue target: at most 1 significant knickpoint on a steady landscape, with and without
+    # correlated DEM error added (σ 1 m, correlation length 300 m = 3 cells, or white).
+    from divides.terrain.dem_error import DemError
+
+    dem = steady_landscape
+    sigma = 0.1
+    if added is not None:
+        rng = np.random.default_rng(7)
+        noise = DemError(*added).sample_grid(dem.shape, 100.0, rng)
+        dem = divides.Dem.from_array(dem.elevation + noise, cell_size=100.0, valid_range=None)
+        sigma = added[0]
+    result = _profiles(dem, theta=0.5, dem_error=DemError.for_cell_size(sigma, 100.0))
+    assert len(result.streams) >= 10
+    assert len(result.knickpoints) <= 1
+    for kp in result.knickpoints:
+        assert kp["celerity_defined"] is True  # n = 1: every knickpoint moves as a unit
+
+
+def test_vertical_resolution_still_sets_a_white_error_model(steady_landscape):
+    # Without dem_error, vertical_resolution_m is σ of white error (the earlier interface).
+    result = _profiles(steady_landscape, theta=0.5, vertical_resolution_m=1.0)
+    assert len(result.knickpoints) <= 1
+
+
+def test_knickpoints_of_a_base_level_fall_are_found_on_the_fallen_side_only(steady_landscape):
+    # The steady ridge after its east edge fell 20 m, 20 000 years on: a wave of incision is climbing
+    # the eastern channels (side b) only, steeper below than above (Whipple & Tucker 1999; Royden &
+    # Perron 2013). With a small DEM error (σ 0.1 m, 3 cells), knickpoints are found there and nowhere else.
+    from divides.model import scenarios
+    from divides.model.simulate import simulate
+    from divides.terrain.dem_error import DemError
+
+    fall = scenarios.base_level_fall((60, 120), side="east", drop=20.0, seed=4)
+    snap = simulate(steady_landscape, duration=2e4, dt=2e3, **fall.options).final
+    result = _profiles(snap, theta=0.5, dem_error=DemError.for_cell_size(0.1, 100.0))
+    sides = [kp["side"] for kp in result.knickpoints]
+    assert sides.count("b") >= 2 and sides.count("a") == 0
+    assert all(kp["ksn_below"] > kp["ksn_above"] for kp in result.knickpoints)

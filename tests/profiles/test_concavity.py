@@ -2,11 +2,18 @@
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy import integrate
 
 from divides.profiles.concavity import concavity_by_collinearity, concavity_by_slope_area, disorder
+from divides.terrain.dem_error import DemError
+
+sys.path.insert(0, str(Path(__file__).parent))  # importlib mode: reach the sibling module
+from synthetic import steady_networks, tree_error  # noqa: E402
 
 
 def steady_network(theta_true=0.5, ks=80.0, dx=20.0, seed=0, n_trib=8):
@@ -83,3 +90,63 @@ def test_slope_area_recovers_flints_law():
     est = concavity_by_slope_area(area, slope)
     assert est.value == pytest.approx(0.48, abs=0.02)
     assert est.ci95[0] < 0.48 < est.ci95[1]
+
+
+def _estimate(net, z, n_boot=50, seed=0, basins=True):
+    return concavity_by_collinearity(net["down"], net["step"], net["area"], z, np.ones(z.size, bool), net["link"],
+                                     basins=net["basin"] if basins else None, n_boot=n_boot, seed=seed)
+
+
+def test_two_sides_of_different_steepness_are_not_read_as_concavity():
+    # Two basins at steady state with one m/n = 0.45 and ksn 25 and 50 (e.g. two rock types):
+    # each is a line z = ksn·χ (Perron & Royden 2013), so per-basin collinearity must find 0.45;
+    # pooling both basins in one cloud mixes two lines, which is what the basins keyword prevents.
+    net = steady_networks(np.random.default_rng(11), theta=0.45, ks=[25.0, 50.0, 25.0, 50.0])
+    est = _estimate(net, net["z"], n_boot=0)
+    assert est.value == pytest.approx(0.45, abs=0.03)
+    assert est.scores["n_basins"] == 4
+    # the same nodes pooled in one cloud read the steepness difference as concavity (the issue's failure)
+    assert abs(_estimate(net, net["z"], n_boot=0, basins=False).value - 0.45) > 0.1
+
+
+@pytest.mark.parametrize("theta_true", [0.35, 0.5, 0.65])
+def test_collinearity_under_correlated_dem_error(theta_true):
+    # z = ksn·χ(m/n) (Perron & Royden 2013) plus DEM error of σ = 1 m correlated over 3 cells
+    # (exponential correlation; Hugonnet et al. 2022 report ranges of a few cells): within 0.05.
+    rng = np.random.default_rng(int(theta_true * 100))
+    net = steady_networks(rng, theta=theta_true, ks=[40.0, 70.0, 100.0])
+    z = net["z"] + tree_error(net["down"], net["step"], DemError.for_cell_size(1.0, 30.0), rng)
+    est = _estimate(net, z, n_boot=30, seed=1)
+    assert est.value == pytest.approx(theta_true, abs=0.05)
+    assert est.ci95[0] <= est.value <= est.ci95[1]
+
+
+def _coverage(seeds, n_boot=100):
+    """Share of noisy synthetic networks (θ, ksn, σ 0.5-3 m, correlation 0-5 cells drawn per network)
+    whose 95 % interval contains the true θ. The interval's allowance was chosen on seeds 5000-5079
+    (see concavity.THETA_ALLOWANCE); these seeds were not used for it."""
+    hits = 0
+    for s in seeds:
+        rng = np.random.default_rng(s)
+        theta = rng.uniform(0.3, 0.7)
+        nbas = int(rng.integers(1, 4))
+        sigma, cells = rng.uniform(0.5, 3.0), rng.uniform(0.0, 5.0)
+        net = steady_networks(rng, theta=theta, ks=list(rng.uniform(20, 100, nbas)), n_trib=int(rng.integers(3, 8)))
+        z = net["z"] + tree_error(net["down"], net["step"], DemError(sigma, cells * 30.0), rng)
+        lo, hi = _estimate(net, z, n_boot=n_boot, seed=int(s)).ci95
+        hits += lo <= theta <= hi
+    return hits / len(seeds)
+
+
+def test_interval_coverage_small():
+    # A nominal 95 % interval must contain the truth most of the time (the issue's target is 90-99 %
+    # on >= 100 networks, run in the slow test); with 8 networks, at least 7.
+    assert _coverage(range(9000, 9008), n_boot=40) >= 7 / 8
+
+
+@pytest.mark.slow
+def test_interval_coverage_on_120_networks():
+    # The issue's target: 90-99 % of >= 100 noisy networks of known θ (held-out seeds).
+    share = _coverage(range(9000, 9120))
+    print(f"coverage of the 95 % interval: {100 * share:.1f} %")
+    assert 0.90 <= share <= 0.99
