@@ -33,6 +33,7 @@ _EXPORTS = {
     "Assessment": "divides.assess.assessment",
     "AssessConfig": "divides.config",
     "simulate": "divides.model.simulate",
+    "write": "divides.report.writer",
 }
 
 __all__ = sorted([*_EXPORTS, "assess", "__version__"])

@@ -468,16 +468,36 @@ def parse_closed_edges(text: str | None) -> tuple[str, ...]:
     return tuple(names)
 
 
-def default_out_dir(dem_path: str, *, cwd: str | os.PathLike | None = None) -> Path:
-    """The default ``--out``: ``divides-<DEM file name without suffix>`` in the working folder.
+def default_out_dir(dem_path: str, command: str, *, cwd: str | os.PathLike | None = None) -> Path:
+    """The default ``--out`` of a command: ``divides-<DEM file name without suffix>-<command>``.
+
+    Each command has its own default folder, so ``divides assess X`` then
+    ``divides screen X`` do not collide.
 
     Examples
     --------
-    >>> default_out_dir("/data/site 4/dem.tif", cwd="/tmp").as_posix()
-    '/tmp/divides-dem'
+    >>> default_out_dir("/data/site 4/dem.tif", "assess", cwd="/tmp").as_posix()
+    '/tmp/divides-dem-assess'
     """
     stem = Path(dem_path.rstrip("/")).stem or "dem"
-    return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}"
+    return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}-{command}"
+
+
+def _probe_writable(parent: Path) -> None:
+    """Create and remove a hidden folder in ``parent``: the only sure test of writability.
+
+    ``os.access`` says yes to root everywhere, including read-only and
+    virtual file systems such as ``/proc``.
+    """
+    probe = parent / f".divides-probe-{os.getpid()}-{time.monotonic_ns()}"
+    try:
+        os.mkdir(probe)
+    except OSError as exc:
+        raise OutputError(f"cannot write outputs in '{parent}': {exc.strerror or exc}; choose another --out") from None
+    try:
+        os.rmdir(probe)
+    except OSError:  # pragma: no cover - created a moment ago, so removable
+        pass
 
 
 def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
@@ -511,14 +531,13 @@ def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
 
     if not os.fspath(out).strip():
         raise OutputError("--out is empty; give a folder for the outputs")
-    path = check_existing(out, overwrite=overwrite)
+    path = check_existing(out, overwrite=overwrite, cli=True)
     parent = path.parent
     while not parent.exists() and parent != parent.parent:
         parent = parent.parent
     if not parent.is_dir():
         raise OutputError(f"cannot write outputs to '{path}': '{parent}' is not a folder; choose another --out")
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise OutputError(f"cannot write outputs to '{path}': permission denied in '{parent}'; choose another --out")
+    _probe_writable(parent)
     return path
 
 

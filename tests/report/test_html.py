@@ -102,7 +102,8 @@ def test_report_embeds_every_figure_as_png(written) -> None:
 
 
 def test_text_from_inputs_is_escaped(demo_result) -> None:
-    nasty = "<script>alert('x')</script> & \"quoted\" <b>bold</b>.tif"
+    # no "/" or "\\" in it: outputs name the DEM by its file name, so a separator would cut the name short
+    nasty = "<script>alert('x') & \"quoted\" <img src=x onerror=alert(1)>.tif"
     pages = {}
     for path in (nasty, "plain.tif"):
         result = dataclasses.replace(demo_result, dem=dataclasses.replace(demo_result.dem, path=path))
