@@ -5,6 +5,7 @@ forward model; ``demo/README.md`` tells its story and ``demo/make_demo_dem.py``
 remakes it. The command runs the same assessment a user would type::
 
     divides assess demo/uplands.tif --side-a west --side-b east \\
+        --name-a "River Tallow" --name-b "Quern Water" \\
         --closed-edges north,south --erosion-rate-a 0.70 --out divides-demo
 """
 
@@ -28,6 +29,8 @@ DEMO_OPTIONS = {
     "side_a": "west",  # the River Tallow's side
     "side_b": "east",  # the Quern Water's side
     "erosion_rate_a": "0.70",  # the story's cosmogenic sample from the Tallow side (mm/yr)
+    "name_a": "River Tallow",
+    "name_b": "Quern Water",
 }
 
 #: ``--closed-edges`` of the demo: the model's north and south edges were walls.
@@ -76,6 +79,7 @@ def demo(
     route = opt.route_options(closed_edges=DEMO_CLOSED_EDGES)
     request = assess_cmd.assess_request(**DEMO_OPTIONS, robustness=not no_robustness, route=route)
     folder = opt.check_out_dir(out if out is not None else Path.cwd() / DEFAULT_OUT, overwrite=overwrite)
+
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
         result, written = assess_cmd.run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress)

@@ -59,6 +59,14 @@ __all__ = [
     "default_out_dir",
     "check_out_dir",
     "Progress",
+    "NameAOption",
+    "NameBOption",
+    "parse_name",
+    "pick_alias",
+    "set_command",
+    "current_command",
+    "kernels_cold",
+    "KERNELS_COLD_MESSAGE",
 ]
 
 #: The DEM edges a side SPEC or ``--closed-edges`` may name.
@@ -169,6 +177,15 @@ SeedOption = Annotated[
     int,
     typer.Option("--seed", min=0, metavar="N", help="Seed of the bootstrap and the robustness perturbations (whole number >= 0)."),
 ]
+NameAOption = Annotated[
+    str | None,
+    typer.Option("--name-a", metavar="NAME", show_default=False,
+                 help="A name for side a (e.g. the river's), used in the verdict, figures, layers and summary.json."),
+]
+NameBOption = Annotated[
+    str | None,
+    typer.Option("--name-b", metavar="NAME", show_default=False, help="A name for side b, as --name-a."),
+]
 ClosedEdgesOption = Annotated[
     str | None,
     typer.Option(
@@ -180,7 +197,52 @@ ClosedEdgesOption = Annotated[
 ]
 
 
+# ---------------------------------------------------------------- the command as run
+_COMMAND: list[str] | None = None
+
+
+def set_command(argv: list[str] | None) -> None:
+    """Remember the arguments of this run (set by :func:`divides.cli.app.run`) for ``provenance.command``."""
+    global _COMMAND
+    _COMMAND = None if argv is None else [str(a) for a in argv]
+
+
+def current_command() -> list[str] | None:
+    """The arguments of this run after the program name, or None outside :func:`divides.cli.app.run`."""
+    return None if _COMMAND is None else list(_COMMAND)
+
+
 # ---------------------------------------------------------------- parsing
+def parse_name(text: str | None, *, option: str) -> str | None:
+    """Check a side name: one line of 1 to 60 printable characters.
+
+    Examples
+    --------
+    >>> parse_name("  River Tallow ", option="--name-a")
+    'River Tallow'
+    """
+    if text is None:
+        return None
+    name = text.strip()
+    if not name or len(name) > 60 or not name.isprintable():
+        raise ParameterError(f"{option} {text!r} is not accepted; give a name of 1 to 60 characters on one line")
+    return name
+
+
+def pick_alias(value: Any, old: Any, *, option: str, old_option: str) -> Any:
+    """The value of an option given under its name or its older name (not both).
+
+    Examples
+    --------
+    >>> pick_alias(None, "r.tif", option="--runoff-raster", old_option="--runoff")
+    'r.tif'
+    """
+    if value is not None and old is not None:
+        raise ParameterError(f"{option} and {old_option} are the same option ({old_option} is its older name); "
+                             f"give {option} once")
+    return value if value is not None else old
+
+
 def check_dem_path(path: str) -> str:
     """Fail early, before any heavy import, when a local DEM file is missing.
 
@@ -493,7 +555,8 @@ def _probe_writable(parent: Path) -> None:
     try:
         os.mkdir(probe)
     except OSError as exc:
-        raise OutputError(f"cannot write outputs in '{parent}': {exc.strerror or exc}; choose another --out") from None
+        raise OutputError(f"cannot write outputs in '{parent}': it does not accept new folders "
+                          f"({exc.strerror or exc}); choose another --out") from None
     try:
         os.rmdir(probe)
     except OSError:  # pragma: no cover - created a moment ago, so removable
@@ -609,3 +672,38 @@ class Progress:
         if not self.quiet:
             self._end_redraw()
             self.stream.flush()
+
+
+#: Shown before routing on a cold cache of compiled kernels.
+KERNELS_COLD_MESSAGE = "compiling fast kernels (first run only, ~15 s)"
+
+#: Kernel modules every assessment and screening compiles (the ones a first run waits for).
+_KERNEL_MODULES = (("terrain", "_fill_kernels"), ("terrain", "_routing_kernels"), ("terrain", "_channel_kernels"),
+                   ("profiles", "_profile_kernels"))
+
+
+def kernels_cold(package_dir: str | os.PathLike | None = None) -> bool:
+    """True when numba has no cached machine code for the kernels yet (the first run after installing).
+
+    Looks for numba's cache index files (``<module>.<function>-<line>.pyXY.nbi``)
+    where numba keeps them: under ``NUMBA_CACHE_DIR`` when it is set, else
+    beside each kernel module (or, for a read-only install, in the user's
+    cache folder). numba itself is not imported; a wrong answer costs only a message.
+    """
+    if package_dir is None:
+        import divides
+
+        package_dir = Path(divides.__file__).resolve().parent
+    tag = f"py{sys.version_info.major}{sys.version_info.minor}"
+    chosen = os.environ.get("NUMBA_CACHE_DIR")
+    user_wide = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "numba"
+    for room, module in _KERNEL_MODULES:
+        pattern = f"{module}.*.{tag}.nbi"
+        if chosen:
+            found = Path(chosen).is_dir() and any(Path(chosen).rglob(pattern))
+        else:
+            found = any((Path(package_dir) / room / "__pycache__").glob(pattern)) or (
+                user_wide.is_dir() and any(user_wide.rglob(pattern)))
+        if not found:
+            return True
+    return False

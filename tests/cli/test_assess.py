@@ -115,7 +115,7 @@ def test_text_output_default_folder_and_quiet(tmp_path, monkeypatch):
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet"])
     assert code == 0
     assert err == ""  # --quiet: nothing on stderr
-    folder = tmp_path / "divides-uplands"  # the documented default: ./divides-<DEM name>
+    folder = tmp_path / "divides-uplands-assess"  # the documented default: ./divides-<DEM name>-<command>
     summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
     assert out.startswith(summary["verdict"]["text"])
     # The cautions every verdict carries (project rules).
@@ -127,7 +127,9 @@ def test_text_output_default_folder_and_quiet(tmp_path, monkeypatch):
     # Again: refused without --overwrite (nothing changes), replaced with it.
     (folder / "marker").write_text("from the first run")
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet"])
-    assert code == 2 and "--overwrite" in err and (folder / "marker").exists()
+    # one line naming both ways out
+    assert code == 2 and "--overwrite" in err and "--out" in err and (folder / "marker").exists()
+    assert len(err.strip().splitlines()) == 1
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet", "--overwrite"])
     assert code == 0, err
     assert not (folder / "marker").exists() and (folder / "summary.json").is_file()
@@ -156,10 +158,11 @@ def test_runoff_raster_weights_chi(tmp_path):
     plain = _chi(tmp_path, "plain")
     # Uniform runoff: scaled by its mean it is 1 everywhere, so weighted χ is plain χ (definition).
     uniform = _write_like_dem(tmp_path / "uniform.tif", np.full((rows, cols), 3.0))
-    assert _chi(tmp_path, "uniform", "--runoff", uniform) == pytest.approx(plain, rel=1e-9)
+    assert _chi(tmp_path, "uniform", "--runoff-raster", uniform) == pytest.approx(plain, rel=1e-9)
     # A wetter east (side b): more discharge there, so less χ on side b and more on the drier side a.
     wet = np.ones((rows, cols))
     wet[:, cols // 2:] = 2.0
+    # --runoff: the older name of --runoff-raster, still accepted
     a, b = _chi(tmp_path, "wet", "--runoff", _write_like_dem(tmp_path / "wet.tif", wet))
     assert b < plain[1] and a > plain[0]
 
@@ -189,11 +192,15 @@ def test_help_names_the_options_scripts_rely_on():
     assert code == 0 and err == ""
     # The option names fixed by DESIGN.md, plus the others the brief lists.
     for option in ("--side-a", "--side-b", "--theta", "--channel-area", "--reference-area", "--base-level",
-                   "--dem-error", "--erosion-rate-a", "--erosion-rate-b", "--runoff", "--erodibility", "--seed",
-                   "--lonlat", "--out", "--overwrite", "--json", "--quiet", "--closed-edges", "--no-robustness",
-                   "--n", "--uplift", "--erodibility-k", "--knickpoint-age", "--band", "--bounds",
-                   "--vertical-unit", "--cell-size", "--sea-level", "--conditioning"):
+                   "--dem-error", "--erosion-rate-a", "--erosion-rate-b", "--runoff-raster", "--erodibility-raster",
+                   "--seed", "--lonlat", "--out", "--overwrite", "--json", "--quiet", "--closed-edges",
+                   "--no-robustness", "--n", "--uplift-raster", "--erodibility-k", "--knickpoint-age", "--band",
+                   "--bounds", "--vertical-unit", "--cell-size", "--sea-level", "--conditioning", "--name-a",
+                   "--name-b"):
         assert f"{option} " in out or f"{option}," in out, option
+    # rasters and single values are told apart by name: the older raster names are hidden aliases
+    for hidden in ("--runoff ", "--erodibility ", "--uplift "):
+        assert hidden not in out, hidden
 
 
 def test_help_of_assess_and_demo_imports_nothing_heavy():
