@@ -165,7 +165,7 @@ OutOption = Annotated[
         "--out",
         "-o",
         metavar="DIR",
-        help="Folder for the outputs (created; default ./divides-<DEM name> in the working folder).",
+        help="Folder for the outputs (created; default ./divides-<DEM name>-<command> in the working folder).",
         show_default=False,
     ),
 ]
