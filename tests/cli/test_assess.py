@@ -30,7 +30,7 @@ UPLANDS = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
 BASE = ["--side-a", "west", "--side-b", "east", "--closed-edges", "north,south", "--no-robustness"]
 # Options with values chosen here: the run must carry exactly these into summary.json.
 TYPED = ["--theta", "0.5", "--channel-area", "90000", "--reference-area", "180000", "--dem-error", "0.5",
-         "--erosion-rate-a", "0.7", "--seed", "7"]
+         "--erosion-rate-a", "0.7", "--seed", "7", "--name-a", "River Tallow", "--name-b", "Quern Water"]
 
 
 def _run(argv: list[str]) -> tuple[int, str, str]:
@@ -259,3 +259,33 @@ def test_progress_redraws_one_line_on_a_terminal():
     progress.step("summary.json", 1, 1)
     progress.finish()
     assert quiet.getvalue() == ""
+
+
+def test_named_sides_reach_the_verdict_layers_report_and_json(typed_run):
+    s = typed_run["summary"]
+    # the names typed in TYPED
+    assert (s["sides"]["a"]["name"], s["sides"]["b"]["name"]) == ("River Tallow", "Quern Water")
+    assert "River Tallow (side a)" in s["verdict"]["text"] and "side a (west)" not in s["verdict"]["text"]
+    folder = typed_run["folder"]
+    assert "Quern Water" in (folder / "verdict.txt").read_text(encoding="utf-8")
+    assert "River Tallow (side a)" in (folder / "report.html").read_text(encoding="utf-8")
+    channels = json.loads((folder / "layers" / "channels.geojson").read_text(encoding="utf-8"))
+    named = {(f["properties"]["side"], f["properties"]["side_name"]) for f in channels["features"]}
+    assert named == {("a", "River Tallow"), ("b", "Quern Water")}
+
+
+def test_the_verdict_quotes_the_erosion_rate_typed(typed_run):
+    text = typed_run["summary"]["verdict"]["text"]
+    assert "0.7 mm/yr" in text and "River Tallow" in text  # --erosion-rate-a 0.7 for the named side a
+
+
+def test_provenance_records_the_command_with_file_names_only(typed_run):
+    prov = typed_run["summary"]["provenance"]
+    # the arguments as typed (TYPED and BASE), with the DEM and --out reduced to file names
+    assert prov["command"] == ["divides", "assess", "uplands.tif", *BASE, *TYPED, "--json", "--out", "out"]
+    assert prov["dem_file"] == "uplands.tif"
+    folder = typed_run["folder"]
+    for path in folder.rglob("*"):  # no folder of the DEM or of the outputs in any file
+        if path.is_file():
+            data = path.read_bytes()
+            assert str(folder.parent).encode() not in data and str(UPLANDS.parent).encode() not in data, path

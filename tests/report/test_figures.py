@@ -20,14 +20,6 @@ from divides.report import figures, layers
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
 
 
-@pytest.fixture(scope="module")
-def geographic_result():
-    """The demo surface laid on a longitude/latitude grid (0.0004° × 0.0003°, about 30 × 33 m at 47° N)."""
-    z = divides.read_dem(DEMO).elevation
-    dem = divides.Dem.from_array(z, transform=Affine(0.0004, 0, 10.0, 0, -0.0003, 47.0), crs="EPSG:4326")
-    return divides.assess(dem, "west", "east", robustness=False, n_bootstrap=100)
-
-
 def test_geographic_layers_are_the_grid_coordinates(geographic_result) -> None:
     result = geographic_result
     feats = layers.divide_point_features(result)
