@@ -100,7 +100,7 @@ padding-bottom:.2rem}h3{font-size:1rem;margin:1.2rem 0 .3rem}
 .sub{color:#555;margin:0 0 1rem}
 .caution{border-left:5px solid #D55E00;background:#fff4ec;padding:.6rem .9rem;margin:1rem 0}
 .verdict{border:1px solid #ccc;border-radius:6px;padding:.8rem 1rem;background:#f5f8fb}
-.verdict .lead{font-size:1.12rem;font-weight:600;margin:.2rem 0 .5rem}
+.verdict .lead{font-size:1.12rem;font-weight:600;margin:.2rem 0 .5rem}.verdict .rest{margin:.6rem 0 .2rem}
 .meter{height:.7rem;background:#e4e4e4;border-radius:4px;overflow:hidden;max-width:22rem}
 .meter span{display:block;height:100%;background:#0072B2}
 .keys{display:grid;grid-template-columns:repeat(auto-fill,minmax(14rem,1fr));gap:.4rem 1rem;margin:.8rem 0}
@@ -171,17 +171,18 @@ def _verdict_section(result: Assessment, s: dict) -> str:
              f"<span class=\"note\">(0 = no basis for a direction, 1 = certain)</span></p>"
              f"<div class=\"meter\" role=\"img\" aria-label=\"confidence {_e(f'{conf:.2f}')}\">"
              f"<span style=\"width:{max(0.0, min(conf, 1.0)) * 100:.0f}%\"></span></div>"]
-    bullets: list[str] = []
-    for line in text_lines[1:] + [""]:  # the empty sentinel closes a trailing list
-        if line.startswith("- "):
-            bullets.append(f"<li>{_e(line[2:])}</li>")
-            continue
-        if bullets:
-            parts.append("<ul>" + "".join(bullets) + "</ul>")
-            bullets = []
-        if line:
-            parts.append(f"<p>{_e(line)}</p>")
+    # The box holds the sentences of the verdict; the measure-by-measure lines ("- ...") go to the
+    # evidence section, so that the box fits the first screen whatever the number of measures.
+    sentences = [line for line in text_lines[1:] if not line.startswith("- ")]
+    parts.append("<p class=\"rest\">" + " ".join(_e(line) for line in sentences)
+                 + " <a href=\"#evidence\">Each measure below.</a></p>")
     return "<section class=\"verdict\" id=\"verdict\">" + "".join(parts) + "</section>"
+
+
+def _measure_lines(s: dict) -> str:
+    """The verdict's measure-by-measure lines ("- ..."), as a list."""
+    lines = [ln.strip()[2:] for ln in s["verdict"]["text"].splitlines() if ln.strip().startswith("- ")]
+    return "<ul>" + "".join(f"<li>{_e(line)}</li>" for line in lines) + "</ul>" if lines else ""
 
 
 def _key_numbers(result: Assessment, s: dict) -> str:
@@ -227,7 +228,7 @@ def _evidence_section(result: Assessment, s: dict) -> str:
     return ("<h2 id=\"evidence\">Evidence</h2><p>Each measure is read on both sides of every sample point of "
             "the divide. The interval comes from a moving-block bootstrap along the divide; a measure counts "
             "as evidence when its interval excludes zero and the difference is not negligibly small.</p>"
-            + table)
+            + _measure_lines(s) + table)
 
 
 def _figures_section(result: Assessment, figures: dict[str, bytes], captions: dict[str, str]) -> str:
