@@ -18,7 +18,8 @@ ROOT = Path(__file__).resolve().parents[2]
 def _usage_lines() -> list[str]:
     text = (ROOT / "README.md").read_text(encoding="utf-8")
     section = text.split("## Using it", 1)[1].split("##", 1)[0]
-    lines = [ln.strip().split("  #", 1)[0].strip() for ln in section.splitlines() if ln.startswith("    divides ")]
+    lines = [re.split(r"\s#\s", ln.strip(), maxsplit=1)[0].strip() for ln in section.splitlines()
+             if ln.startswith("    divides ")]
     return [ln for ln in lines if "COMMAND" not in ln]
 
 
