@@ -22,12 +22,13 @@ from divides.errors import ParameterError
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
     from divides.model.forecast import Forecast
 
-__all__ = ["forecast", "geojson_divides", "forecast_png", "write_outputs",
+__all__ = ["forecast", "geojson_divides", "forecast_figure", "forecast_png", "write_outputs",
            "OUTPUT_FILES"]
 
 #: Files written into ``--out`` (the layer only when the DEM has a CRS). ``summary.json`` holds the
 #: headline and marks the folder as a `divides` output, which ``--overwrite`` may replace.
-OUTPUT_FILES = ("forecast.json", "summary.json", "layers/forecast_divide.geojson", "figures/forecast.png")
+OUTPUT_FILES = ("forecast.json", "summary.json", "layers/forecast_divide.geojson", "figures/forecast.png",
+                "figures/forecast.svg")
 
 _DECIMALS = 7  # 1e-7 degree is about 1 cm on the ground
 
@@ -167,7 +168,11 @@ def forecast(
         }
         if layer is not None:
             files["layers/forecast_divide.geojson"] = _json_bytes(layer, indent=None)
-        files["figures/forecast.png"] = forecast_png(result)
+        from divides.report.figures import to_png, to_svg
+
+        fig = forecast_figure(result)
+        files["figures/forecast.png"] = to_png(fig)
+        files["figures/forecast.svg"] = to_svg(fig)
         written = write_outputs(target, files, overwrite=overwrite, cli=True)
     # Everything is computed and written before anything is printed.
     typer.echo(json.dumps(document, indent=2, allow_nan=False) if json_output
@@ -233,56 +238,61 @@ def geojson_divides(result: Forecast) -> dict | None:
 
 
 # ------------------------------------------------------------------ figure
-def forecast_png(result: Forecast) -> bytes:
-    """A map of the present and forecast divides beside the displacement through time, as PNG bytes."""
-    import io
+def forecast_figure(result: Forecast) -> Any:
+    """A map of the present and forecast divides beside the displacement through time (a matplotlib Figure).
 
+    The map has the scale bar, north arrow and CRS label of every map of the
+    report room; elevation is drawn in cividis and the divides in Okabe–Ito
+    colours with distinct dashes, so the figure reads in greyscale too.
+    """
     import numpy as np
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
+
+    from divides.report import figures as report_figures
 
     dem = result.dem
-    geographic = dem.crs is not None and dem.geographic
-    if geographic:
-        scale, unit = 1.0, "°"
-    else:  # projected metres, feet…, or a local metric grid: kilometres on the axes
-        scale, unit = 1e-3 * (float(dem.crs.linear_units_factor[1] or 1.0) if dem.crs else 1.0), "km"
-    fig = Figure(figsize=(11.0, 4.8), dpi=120, layout="constrained")
-    FigureCanvasAgg(fig)
+    frame = report_figures._frame(dem)
+    scale = frame.scale
+    fig = report_figures._figure(11.0, 4.8)
     ax_map, ax_t = fig.subplots(1, 2, width_ratios=[1.3, 1.0])
     left, bottom, right, top = dem.bounds
     z = np.where(dem.valid, dem.elevation, np.nan)
-    image = ax_map.imshow(z, extent=[left * scale, right * scale, bottom * scale, top * scale], cmap="gist_earth",
+    image = ax_map.imshow(z, extent=[left * scale, right * scale, bottom * scale, top * scale], cmap="cividis",
                           interpolation="nearest")
     fig.colorbar(image, ax=ax_map, shrink=0.8, label="Elevation at the start (m)")
-    styles = {"present": dict(color="black", lw=2.2, ls="-"), "best": dict(color="crimson", lw=2.0, ls="-"),
-              "low": dict(color="royalblue", lw=1.4, ls="--"), "high": dict(color="darkorange", lw=1.4, ls="--")}
+    styles = {"present": dict(color="black", lw=2.2, ls="-"), "best": dict(color="#D55E00", lw=2.0, ls="-"),
+              "low": dict(color="white", lw=1.4, ls="--"), "high": dict(color="#E69F00", lw=1.4, ls=":")}
     drawn = [("present", result.present)] + [(kind, run.lines) for kind, run in _layer_runs(result)[:3]]
     for kind, lines in drawn:
         for i, line in enumerate(lines):
             label = None if i else {"present": "present divide", "best": f"in {result.years:,.0f} yr (central)",
                                     "low": "band: low", "high": "band: high"}[kind]
             ax_map.plot(np.asarray(line.x) * scale, np.asarray(line.y) * scale, label=label, **styles[kind])
-    ax_map.set_xlabel(f"x ({unit})")
-    ax_map.set_ylabel(f"y ({unit})")
+    ax_map.set_ylabel(frame.ylabel)
     ax_map.set_title(f"Side a: {result.side_a}   side b: {result.side_b}", fontsize=10)
-    ax_map.legend(loc="best", fontsize=8, framealpha=0.85)
-    if geographic:
-        ax_map.set_aspect(1.0 / max(np.cos(np.radians(0.5 * (bottom + top))), 1e-6))
+    ax_map.set_aspect(frame.aspect)
+    ax_map.set_xlim(left * scale, right * scale)
+    ax_map.set_ylim(bottom * scale, top * scale)
+    report_figures.map_furniture(fig, ax_map, dem, frame)
+    ax_map.legend(loc="upper left", fontsize=8, framealpha=0.85)  # the scale bar has the lower left
 
     band = result.band
     t = result.times / 1e3
     ax_t.fill_between(t, band["low"], band["high"], color="0.8", label="ensemble range")
-    ax_t.plot(t, band["best"], color="crimson", lw=2.0, label="central run")
+    ax_t.plot(t, band["best"], color="#D55E00", lw=2.0, label="central run")
     ax_t.axhline(0.0, color="black", lw=0.8)
     ax_t.set_xlabel("Years from now (thousands)")
     ax_t.set_ylabel("Divide displacement (m, + into side b)")
     ax_t.legend(loc="best", fontsize=8)
     ax_t.set_title("Screening estimate: timescales depend on solver, step, grid\n"
                    "(Forte & Barnhart 2024) and on the calibration", fontsize=9)
-    buf = io.BytesIO()
-    fig.canvas.print_png(buf)
-    return buf.getvalue()
+    return fig
+
+
+def forecast_png(result: Forecast) -> bytes:
+    """:func:`forecast_figure` as PNG bytes (200 dpi)."""
+    from divides.report.figures import to_png
+
+    return to_png(forecast_figure(result))
 
 
 # ------------------------------------------------------------------ writing
