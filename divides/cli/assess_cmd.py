@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 import typer
 
 from divides.cli import options as opt
-from divides.errors import DemReadError, GridError, ParameterError
+from divides.errors import DemReadError, DividesError, GridError, ParameterError
 
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
@@ -30,6 +30,9 @@ RASTER_OPTIONS = {"--runoff-raster": "runoff", "--erodibility-raster": "erodibil
 
 #: Older names of the raster options (hidden aliases) -> the current names.
 RASTER_ALIASES = {"--runoff": "--runoff-raster", "--erodibility": "--erodibility-raster", "--uplift": "--uplift-raster"}
+
+#: Seconds the progress lines are held back at the start of the work (see :meth:`Progress.hold`).
+HOLD_SECONDS = 2.0
 
 #: Erosion rates above this (mm/yr) are refused: the fastest measured basin-wide rates are
 #: about 10 mm/yr, so 1000 mm/yr is a unit mistake (the library's limit too).
@@ -359,15 +362,30 @@ def run_assessment(
         check_side_points(dem, spec.points, option=option, text=text, lonlat=request.lonlat)
     rasters = {keyword: _read_raster_on_grid(option, path, dem, read)
                for keyword, (option, path) in request.rasters.items()}
+    # Sides that overlap or have no channels show only once flow is routed: hold the progress lines
+    # back for a moment, so that on a small DEM such a mistake is still the only line printed.
+    progress.hold(HOLD_SECONDS)
     progress.stage(f"read the DEM {Path(read.path).name} ({dem.shape[0]} x {dem.shape[1]} cells)")
-
     robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
     progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
                    f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
     if opt.kernels_cold():
+        progress.release()  # a wait the user should hear about at once
         progress.step(opt.KERNELS_COLD_MESSAGE)
-    result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
-                            progress=progress.step, **request.options)
+
+    def step(text: str) -> None:
+        if not text.startswith(("routing", "channels")):  # the sides are resolved: past the user's mistakes
+            progress.release()
+        progress.step(text)
+
+    try:
+        result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
+                                progress=step, **request.options)
+    except DividesError:
+        progress.discard()
+        raise
+    finally:
+        progress.release()
     progress.finish()
 
     progress.stage(f"writing the outputs to {out}")

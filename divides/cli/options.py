@@ -12,6 +12,7 @@ import contextlib
 import math
 import os
 import sys
+import threading
 import time
 import warnings
 from collections.abc import Iterator
@@ -611,6 +612,12 @@ class Progress:
     line redrawn in place when the stream is a terminal, one line each
     otherwise, so that logs stay readable.
 
+    :meth:`hold` keeps lines back for a few seconds: a user error found
+    early in the work (sides that overlap, found once flow is routed) then
+    reaches the terminal as the only line, and :meth:`discard` drops what was
+    held. Held lines are printed when :meth:`release` is called or the time
+    is up, whichever comes first, so a long run still shows its progress.
+
     Parameters
     ----------
     total : int
@@ -625,6 +632,9 @@ class Progress:
         self.total, self.quiet, self._stream, self.done = total, quiet, stream, 0
         self._start = time.perf_counter()
         self._redraw = False
+        self._held: list[str] | None = None
+        self._timer: threading.Timer | None = None
+        self._lock = threading.Lock()
 
     @property
     def stream(self) -> TextIO:
@@ -637,9 +647,45 @@ class Progress:
         except (AttributeError, ValueError):
             return False
 
+    def _write(self, text: str) -> None:
+        with self._lock:
+            if self._held is not None:
+                self._held.append(text)
+                return
+            self.stream.write(text)
+            self.stream.flush()
+
+    def hold(self, seconds: float) -> None:
+        """Keep lines back until :meth:`release`, :meth:`discard`, or ``seconds`` from now."""
+        with self._lock:
+            if self._held is None:
+                self._held = []
+            self._timer = threading.Timer(seconds, self.release)
+            self._timer.daemon = True
+            self._timer.start()
+
+    def release(self) -> None:
+        """Print the lines held back, and stop holding."""
+        with self._lock:
+            if self._timer is not None:
+                self._timer.cancel()
+                self._timer = None
+            held, self._held = self._held, None
+            if held:
+                self.stream.write("".join(held))
+                self.stream.flush()
+
+    def discard(self) -> None:
+        """Drop the lines held back (a user error follows alone), and stop holding."""
+        with self._lock:
+            if self._timer is not None:
+                self._timer.cancel()
+                self._timer = None
+            self._held = None
+
     def _end_redraw(self) -> None:
         if self._redraw:
-            self.stream.write("\n")
+            self._write("\n")
             self._redraw = False
 
     def stage(self, text: str) -> None:
@@ -649,8 +695,7 @@ class Progress:
             return
         self._end_redraw()
         elapsed = time.perf_counter() - self._start
-        self.stream.write(f"divides: [{self.done}/{self.total}] {text} (at {elapsed:.1f} s)\n")
-        self.stream.flush()
+        self._write(f"divides: [{self.done}/{self.total}] {text} (at {elapsed:.1f} s)\n")
 
     def step(self, text: str, index: int | None = None, count: int | None = None) -> None:
         """Show a sub-step of the current stage, with a bar when ``index`` and ``count`` are known."""
@@ -661,17 +706,15 @@ class Progress:
             filled = int(round(20 * min(index, count) / count))
             bar = f"[{'#' * filled}{'.' * (20 - filled)}] {index}/{count} "
         if self._tty():
-            self.stream.write(f"\r  {bar}{text}".ljust(79)[:79])
+            self._write(f"\r  {bar}{text}".ljust(79)[:79])
             self._redraw = True
         else:
-            self.stream.write(f"  {bar}{text}\n")
-        self.stream.flush()
+            self._write(f"  {bar}{text}\n")
 
     def finish(self) -> None:
         """End a redrawn line, if any."""
         if not self.quiet:
             self._end_redraw()
-            self.stream.flush()
 
 
 #: Shown before routing on a cold cache of compiled kernels.

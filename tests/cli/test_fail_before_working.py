@@ -162,3 +162,30 @@ def test_cold_kernels_are_announced_before_routing(capsys, write_geotiff, tmp_pa
     lines = err.splitlines()
     at = next(i for i, line in enumerate(lines) if opt.KERNELS_COLD_MESSAGE in line)
     assert at < next(i for i, line in enumerate(lines) if "routing flow" in line)
+
+
+def test_overlapping_sides_are_the_only_line_on_a_small_dem(capsys, write_geotiff, tmp_path):
+    dem = write_geotiff("ridge.tif", _ridge(), crs=CRS, transform=TRANSFORM)
+    x, y = TRANSFORM @ (8.5, 20.5)  # a point on the west slope: its basin is part of the west side
+    code, out, err = _run(capsys, ["assess", str(dem), "--side-a", "west", "--side-b", f"{x},{y}",
+                                   "--out", str(tmp_path / "out")])
+    # found once flow is routed; the progress lines held back meanwhile are dropped
+    _one_error_line(code, out, err, "overlap")
+
+
+def test_held_progress_lines_appear_when_the_time_is_up():
+    import io
+    import time as _time
+
+    stream = io.StringIO()
+    progress = opt.Progress(2, stream=stream)
+    progress.hold(0.2)
+    progress.stage("first")
+    assert stream.getvalue() == ""
+    _time.sleep(0.6)
+    assert "[1/2] first" in stream.getvalue()  # a long run still shows its progress
+    progress.hold(5.0)
+    progress.stage("second")
+    progress.discard()
+    progress.release()
+    assert "second" not in stream.getvalue()
