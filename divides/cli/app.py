@@ -147,7 +147,7 @@ def run(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     except (KeyboardInterrupt, typer.Abort):
         return EXIT_INTERRUPTED
-    except SystemExit as exc:
+    except SystemExit:
         # click answers a closed stdout (EPIPE) by wrapping sys.stdout and exiting with 1: that is a
         # reader that went away, not a failure.
         if type(sys.stdout).__name__ == "PacifyFlushWrapper":
@@ -192,14 +192,6 @@ def main(argv: Sequence[str] | None = None) -> NoReturn:
     code = run(argv)
     try:
         sys.stdout.flush()  # a closed pipe shows here, not in the interpreter's last words
-    except SystemExit as exc:
-        # click answers a closed stdout (EPIPE) by wrapping sys.stdout and exiting with 1: that is a
-        # reader that went away, not a failure.
-        if type(sys.stdout).__name__ == "PacifyFlushWrapper":
-            sys.stdout = sys.__stdout__
-            _silence_stdout()
-            return EXIT_OK
-        raise
     except BrokenPipeError:
         _silence_stdout()
     except (OSError, ValueError, AttributeError):

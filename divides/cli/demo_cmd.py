@@ -79,7 +79,6 @@ def demo(
     route = opt.route_options(closed_edges=DEMO_CLOSED_EDGES)
     request = assess_cmd.assess_request(**DEMO_OPTIONS, robustness=not no_robustness, route=route)
     folder = opt.check_out_dir(out if out is not None else Path.cwd() / DEFAULT_OUT, overwrite=overwrite)
-
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
         result, written = assess_cmd.run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress)
