@@ -18,7 +18,8 @@ from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_json, write_text
 from divides.report import html as _html
 
-from divides.report.figures import _display_extent, _figure, _frame, _hillshade, map_furniture, to_png, to_svg
+from divides.report import figures as _figures
+from divides.report.figures import _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
 from divides.report.labels import parameter_label, parameter_value
 from divides.report.layers import _collection, _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
@@ -176,7 +177,7 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
         with atomic_write(tmp / "figures" / "regional_map.png", parents=True) as f:
             f.write_bytes(png)
         with atomic_write(tmp / "figures" / "regional_map.svg", parents=True) as f:
-            f.write_bytes(to_svg(fig))
+            f.write_bytes(_figures.to_svg(fig))
         write_text(tmp / "report.html", _report(result, png, rows, document))
         # marks the folder as a divides output, so --overwrite may replace it later
         write_json(tmp / "summary.json", {"schema": "divides.screening/1", "provenance": prov,
