@@ -134,3 +134,12 @@ def test_contrast_panels_all_read_the_same_way(demo_result):
     fig = figures.contrast_figure(dataclasses.replace(demo_result, contrasts=[chi, grad]))
     assert _marker_x(fig.axes[0]) == pytest.approx(-3.0) and _marker_x(fig.axes[1]) == pytest.approx(0.1)
     assert fig.axes[0].get_xlabel().startswith("b − a") and fig.axes[1].get_xlabel().startswith("a − b")
+
+
+def test_named_sides_appear_in_the_figures(demo_result):
+    config = dataclasses.replace(demo_result.config, name_a="River Tallow", name_b="Quern Water")
+    named = dataclasses.replace(demo_result, config=config)
+    title = figures.map_figure(named).axes[0].get_title()
+    assert "River Tallow (side a)" in title and "Quern Water (side b)" in title
+    texts = [t.get_text() for ax in figures.contrast_figure(named).axes for t in ax.texts]
+    assert any("into Quern Water (side b)" in t for t in texts)
