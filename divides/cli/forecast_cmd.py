@@ -170,7 +170,7 @@ def forecast(
             files["layers/forecast_divide.geojson"] = _json_bytes(layer, indent=None)
         from divides.report.figures import to_png, to_svg
 
-        fig = forecast_figure(result)
+        fig = forecast_figure(result, names=(options.get("name_a"), options.get("name_b")))
         files["figures/forecast.png"] = to_png(fig)
         files["figures/forecast.svg"] = to_svg(fig)
         written = write_outputs(target, files, overwrite=overwrite, cli=True)
@@ -238,7 +238,7 @@ def geojson_divides(result: Forecast) -> dict | None:
 
 
 # ------------------------------------------------------------------ figure
-def forecast_figure(result: Forecast) -> Any:
+def forecast_figure(result: Forecast, *, names: tuple[str | None, str | None] = (None, None)) -> Any:
     """A map of the present and forecast divides beside the displacement through time (a matplotlib Figure).
 
     The map has the scale bar, north arrow and CRS label of every map of the
@@ -268,7 +268,8 @@ def forecast_figure(result: Forecast) -> Any:
                                     "low": "band: low", "high": "band: high"}[kind]
             ax_map.plot(np.asarray(line.x) * scale, np.asarray(line.y) * scale, label=label, **styles[kind])
     ax_map.set_ylabel(frame.ylabel)
-    ax_map.set_title(f"Side a: {result.side_a}   side b: {result.side_b}", fontsize=10)
+    labels = [f"{name} ({spec})" if name else spec for name, spec in zip(names, (result.side_a, result.side_b))]
+    ax_map.set_title(f"Side a: {labels[0]}   side b: {labels[1]}", fontsize=10)
     ax_map.set_aspect(frame.aspect)
     ax_map.set_xlim(left * scale, right * scale)
     ax_map.set_ylim(bottom * scale, top * scale)
