@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 import typer
 
 from divides.cli import options as opt
-from divides.errors import DemReadError, DividesError, GridError, ParameterError
+from divides.errors import DemReadError, GridError, ParameterError
 
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
@@ -364,28 +364,21 @@ def run_assessment(
                for keyword, (option, path) in request.rasters.items()}
     # Sides that overlap or have no channels show only once flow is routed: hold the progress lines
     # back for a moment, so that on a small DEM such a mistake is still the only line printed.
-    progress.hold(HOLD_SECONDS)
-    progress.stage(f"read the DEM {Path(read.path).name} ({dem.shape[0]} x {dem.shape[1]} cells)")
-    robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
-    progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
-                   f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
-    if opt.kernels_cold():
-        progress.release()  # a wait the user should hear about at once
-        progress.step(opt.KERNELS_COLD_MESSAGE)
-
     def step(text: str) -> None:
         if not text.startswith(("routing", "channels")):  # the sides are resolved: past the user's mistakes
             progress.release()
         progress.step(text)
 
-    try:
+    with progress.held(HOLD_SECONDS):
+        progress.stage(f"read the DEM {Path(read.path).name} ({dem.shape[0]} x {dem.shape[1]} cells)")
+        robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
+        progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
+                       f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
+        if opt.kernels_cold():
+            progress.release()  # a wait the user should hear about at once
+            progress.step(opt.KERNELS_COLD_MESSAGE)
         result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
                                 progress=step, **request.options)
-    except DividesError:
-        progress.discard()
-        raise
-    finally:
-        progress.release()
     progress.finish()
 
     progress.stage(f"writing the outputs to {out}")

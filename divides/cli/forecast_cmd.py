@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING, Annotated, Any
 import typer
 
 from divides.cli import options as opt
-from divides.cli.assess_cmd import ChannelAreaOption, SnapRadiusOption, assess_request
+from divides.cli.assess_cmd import HOLD_SECONDS, ChannelAreaOption, SnapRadiusOption, assess_request
 from divides.errors import ParameterError
 
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
@@ -148,13 +148,16 @@ def forecast(
         for option, text in (("--side-a", side_a), ("--side-b", side_b)):
             check_side_points(surface, parse_side(text, lonlat=lonlat).points, option=option, text=text,
                               lonlat=lonlat)
-        progress.stage(f"read the DEM {Path(read.path).name} ({surface.shape[0]} x {surface.shape[1]} cells)")
-        progress.stage(f"forecasting {years_f:,.0f} years ({runs} model run(s))")
-        if opt.kernels_cold():
-            progress.step(opt.KERNELS_COLD_MESSAGE)
-        result = run_forecast(surface, side_a, side_b, years=years_f, n_runs=runs, seed=seed, uplift=pattern,
-                              diffusivity=DEFAULT_DIFFUSIVITY if diffusivity_f is None else diffusivity_f,
-                              lonlat=lonlat, **options)
+        # A mistake found early in the work (sides that overlap) stays the only line printed.
+        with progress.held(HOLD_SECONDS):
+            progress.stage(f"read the DEM {Path(read.path).name} ({surface.shape[0]} x {surface.shape[1]} cells)")
+            progress.stage(f"forecasting {years_f:,.0f} years ({runs} model run(s))")
+            if opt.kernels_cold():
+                progress.release()
+                progress.step(opt.KERNELS_COLD_MESSAGE)
+            result = run_forecast(surface, side_a, side_b, years=years_f, n_runs=runs, seed=seed, uplift=pattern,
+                                  diffusivity=DEFAULT_DIFFUSIVITY if diffusivity_f is None else diffusivity_f,
+                                  lonlat=lonlat, **options)
         progress.stage(f"writing the outputs to {target}")
         prov = provenance(surface.path, command=opt.current_command())
         document = public_summary(result.to_dict(), prov)

@@ -22,7 +22,7 @@ from typing import Annotated, Any, TextIO
 
 import typer
 
-from divides.errors import DemReadError, OutputError, ParameterError
+from divides.errors import DemReadError, DividesError, OutputError, ParameterError
 
 __all__ = [
     "VERTICAL_UNIT_CHOICES",
@@ -682,6 +682,18 @@ class Progress:
                 self._timer.cancel()
                 self._timer = None
             self._held = None
+
+    @contextlib.contextmanager
+    def held(self, seconds: float) -> Iterator[None]:
+        """Hold lines back during the block (see :meth:`hold`); drop them if it ends in a user error."""
+        self.hold(seconds)
+        try:
+            yield
+        except DividesError:
+            self.discard()
+            raise
+        finally:
+            self.release()
 
     def _end_redraw(self) -> None:
         if self._redraw:

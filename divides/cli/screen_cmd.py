@@ -15,6 +15,7 @@ import typer
 
 from divides.cli import options as opt
 from divides.cli.assess_cmd import (
+    HOLD_SECONDS,
     ChannelAreaOption,
     DemErrorOption,
     ErodibilityAlias,
@@ -134,12 +135,15 @@ def screen(
         dem_obj = divides.read_dem(read.path, **read.read_kwargs())
         check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
-        progress.stage(f"read the DEM {Path(read.path).name} ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells)")
-        progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
-        if opt.kernels_cold():
-            progress.step(opt.KERNELS_COLD_MESSAGE)
-        result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                            workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
+        # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
+        with progress.held(HOLD_SECONDS):
+            progress.stage(f"read the DEM {Path(read.path).name} ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells)")
+            progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
+            if opt.kernels_cold():
+                progress.release()
+                progress.step(opt.KERNELS_COLD_MESSAGE)
+            result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
+                                workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
         written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)
     if json_output:  # the document written, provenance included
