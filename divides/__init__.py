@@ -35,6 +35,7 @@ _EXPORTS = {
     "simulate": "divides.model.simulate",
     "Forecast": "divides.outlook",
     "forecast": "divides.outlook",
+    "write": "divides.report.writer",
 }
 
 __all__ = sorted([*_EXPORTS, "assess", "__version__"])

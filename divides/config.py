@@ -75,6 +75,9 @@ class AssessConfig:
         Snapping radius of side points; None = five cells.
     seed : int
         Random seed of every bootstrap and perturbation.
+    name_a, name_b : str or None
+        Names of the sides used in the verdict, figures, layers and JSON
+        (e.g. the rivers' names); None = "side a" / "side b".
     """
 
     theta: float | str = 0.45
@@ -100,6 +103,8 @@ class AssessConfig:
     closed_edges: tuple = ()
     snap_radius_m: float | None = None
     seed: int = 0
+    name_a: str | None = None
+    name_b: str | None = None
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -138,6 +143,13 @@ class AssessConfig:
             raise ParameterError(f"closed_edges must be a list of north, south, east, west; got {self.closed_edges!r}")
         if not isinstance(self.seed, int) or isinstance(self.seed, bool) or self.seed < 0:
             raise ParameterError(f"seed must be a whole number >= 0; got {self.seed!r}")
+        for key in ("name_a", "name_b"):
+            value = getattr(self, key)
+            if value is not None and not (isinstance(value, str) and value.strip() and len(value) <= 60
+                                          and value.isprintable()):
+                raise ParameterError(f"{key} must be a short name on one line (1 to 60 characters); got {value!r}")
+        if self.name_a is not None and self.name_a.strip().lower() == (self.name_b or "").strip().lower():
+            raise ParameterError(f"name_a and name_b are the same ({self.name_a!r}); give the sides different names")
         calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \
             (self.erosion_rate_a_mm_yr is not None or self.erosion_rate_b_mm_yr is not None)
         if calibrations > 1:

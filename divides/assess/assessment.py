@@ -90,9 +90,9 @@ class Assessment:
         that replaces it only when everything is written. An existing
         ``out_dir`` is refused unless ``overwrite``. Returns the output path.
         """
-        from divides.report.writer import write_assessment
+        import divides  # the public package: writing is the report room's (divides.write), never imported here
 
-        return write_assessment(self, out_dir, overwrite=overwrite, progress=progress)
+        return divides.write(self, out_dir, overwrite=overwrite, progress=progress)
 
     def to_dict(self) -> dict:
         """JSON-ready summary following the output contract of the design."""
@@ -104,6 +104,7 @@ class Assessment:
         for name, side, kept in (("a", self.sides.a, self.base.kept_a), ("b", self.sides.b, self.base.kept_b)):
             sides[name] = {
                 "spec": side.spec.text,
+                "name": getattr(self.config, f"name_{name}") or f"side {name}",
                 "area_km2": side.area_m2 / 1e6,
                 "n_channel_heads": int(np.count_nonzero(kept & (self.channels.n_donors == 0))),
                 "base_level_m": self.base.elevation_m,
@@ -392,9 +393,27 @@ def _fmt(v: float, unit: str) -> str:
     return f"{v:.3g} {unit}".strip()
 
 
+def _given(config: AssessConfig | None, names: dict) -> str:
+    """The calibration the user gave, quoted with its value and unit (empty when none)."""
+    if config is None:
+        return ""
+    rates = [f"the erosion rate given for {names[k]}, {v:g} mm/yr"
+             for k, v in (("a", config.erosion_rate_a_mm_yr), ("b", config.erosion_rate_b_mm_yr)) if v is not None]
+    if rates:
+        return " and ".join(rates)
+    if config.erodibility is not None:
+        return f"the erodibility given, K = {config.erodibility:g} (SI units, n = {config.n:g})"
+    if config.knickpoint_age_years is not None:
+        return f"the knickpoint age given, {config.knickpoint_age_years:,.0f} years"
+    return ""
+
+
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
-          equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False) -> str:
-    names = {"a": f"side a ({sides.a.spec.text})", "b": f"side b ({sides.b.spec.text})"}
+          equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False,
+          config: AssessConfig | None = None) -> str:
+    names = {k: (f"{given} (side {k})" if given else f"side {k} ({side.spec.text})")
+             for k, side, given in (("a", sides.a, getattr(config, "name_a", None)),
+                                    ("b", sides.b, getattr(config, "name_b", None)))}
     by = {c.metric: c for c in contrasts}
     lines = []
     if verdict.moves_toward in ("a", "b"):
@@ -438,20 +457,20 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
             "too small": "a difference too small to count",
             "not consistent along the divide": "a difference that does not hold along the divide "
                                                f"(mean {c.consistency:.1f} × its spread; {SPREAD_RATIO:g} needed)",
-        }.get(c.why_none, "no usable difference") if c.moves_toward == "none" else f"points toward side {c.moves_toward}"
+        }.get(c.why_none, "no usable difference") if c.moves_toward == "none" else f"points toward {names[c.moves_toward]}"
         lines.append(f"- {c.metric.replace('_', ' ')}: a {_fmt(c.a, c.unit)}, b {_fmt(c.b, c.unit)}, "
                      f"difference {_fmt(c.difference, c.unit)} (95 % interval {_fmt(c.ci95[0], c.unit)} to "
                      f"{_fmt(c.ci95[1], c.unit)}); {sense} (rule: divide moves toward {c.rule}).")
     chi = by.get("chi")
     if chi is not None and verdict.basis == "near-divide" and verdict.long_run not in ("none", verdict.moves_toward):
-        lines.append(f"χ alone points the other way (toward side {verdict.long_run}): the present motion may "
+        lines.append(f"χ alone points the other way (toward {names[verdict.long_run]}): the present motion may "
                      "reverse in the long run, or uplift, erodibility or climate differ across the divide.")
     if verdict.robustness_share is not None:
         lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed inputs (DEM error, "
                      "channel threshold, and θ when χ could decide) kept this verdict.")
     if rate is not None:
-        lines.append(f"Migration rate toward side {rate['toward']}: {_sig2(rate['best'])} mm/yr "
-                     f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {cal.source}.")
+        lines.append(f"Migration rate toward {names[rate['toward']]}: {_sig2(rate['best'])} mm/yr "
+                     f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {_given(config, names) or cal.source}.")
         lines += [f"Note: {f}." for f in rate["flags"]]
     else:
         lines.append("No rate: give a measured erosion rate of either side (--erosion-rate-a/-b, mm/yr), an "
@@ -469,7 +488,7 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
     eq = equilibrium.summary()
     if eq["median_distance_m"] is not None:
         lines.append(f"Equilibrium divide (first-order): about {eq['median_distance_m']:,.0f} m "
-                     f"from the present divide, toward side {eq['toward']}.")
+                     f"from the present divide, toward {names.get(eq['toward'], eq['toward'])}.")
     lines.append(CAUTION)
     return "\n".join(lines)
 
@@ -528,7 +547,8 @@ def assess(
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
-                                                      equilibrium, cal, same_channel=core.same_channel))
+                                                      equilibrium, cal, same_channel=core.same_channel,
+                                                      config=config))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,

@@ -67,9 +67,9 @@ class Screening:
 
     def write(self, out_dir, *, overwrite: bool = False):
         """Write segments.geojson, segments.csv, screening.json and report.html (atomically)."""
-        from divides.report.screening import write_screening
+        import divides  # the public package: writing is the report room's (divides.write), never imported here
 
-        return write_screening(self, out_dir, overwrite=overwrite)
+        return divides.write(self, out_dir, overwrite=overwrite)
 
 
 def _split(line: DivideLine, max_m: float) -> list[DivideLine]:

@@ -1,8 +1,10 @@
 """The ``divides`` command line: the typer app and the mapping of failures to exit codes.
 
-Exit codes: 0 done; 2 bad input or usage (one line on stderr); 1 an internal
-error (one line on stderr, the traceback in a log file in the temp directory);
-130 interrupted. Commands live one per module and import numpy, rasterio and
+Exit codes: 0 done (also when the reader of stdout went away, as with
+``divides screen DEM | head -1``: the outputs are written before anything is
+printed); 2 bad input or usage (one line on stderr); 1 an internal error (one
+line on stderr, the traceback in a log file in the temp directory); 130
+interrupted. Commands live one per module and import numpy, rasterio and
 numba inside their bodies, so that ``divides --help`` starts instantly.
 """
 
@@ -21,6 +23,7 @@ from typing import Annotated, NoReturn
 import typer
 
 from divides.cli import assess_cmd, demo_cmd, forecast_cmd, inspect_cmd, screen_cmd
+from divides.cli.options import set_command
 from divides.errors import DividesError, DividesWarning
 
 try:  # typer >= 0.2x ships its own copy of click
@@ -122,6 +125,7 @@ def run(argv: Sequence[str] | None = None) -> int:
         0 done, 1 internal error, 2 bad input or usage, 130 interrupted.
     """
     args = list(sys.argv[1:] if argv is None else argv)
+    set_command(args)  # recorded in the outputs' provenance
     try:
         with warnings.catch_warnings():
             # The command line decides how warnings look, whatever the caller's filters.
@@ -143,15 +147,23 @@ def run(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     except (KeyboardInterrupt, typer.Abort):
         return EXIT_INTERRUPTED
+    except SystemExit:
+        # click answers a closed stdout (EPIPE) by wrapping sys.stdout and exiting with 1: that is a
+        # reader that went away, not a failure.
+        if type(sys.stdout).__name__ == "PacifyFlushWrapper":
+            sys.stdout = sys.__stdout__
+            _silence_stdout()
+            return EXIT_OK
+        raise
     except BrokenPipeError:
-        # The reader went away (`divides inspect ... | head`): stop quietly;
-        # point stdout at devnull so that the interpreter's final flush cannot fail again.
-        try:
-            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
-        except (OSError, ValueError, AttributeError):  # stdout is not a real file
-            pass
-        return EXIT_INTERNAL
+        # The reader went away (`divides screen ... | head -1`): the work is done and written, so stop
+        # quietly with success, and point stdout at devnull so that the final flush cannot fail again.
+        _silence_stdout()
+        return EXIT_OK
     except Exception as exc:
+        if isinstance(exc.__context__, BrokenPipeError) or isinstance(exc.__cause__, BrokenPipeError):
+            _silence_stdout()  # a library wrapped the closed pipe in its own error
+            return EXIT_OK
         try:
             where = f"with the log at {_write_crash_log(exc, args)}"
         except OSError as log_exc:
@@ -168,6 +180,20 @@ def run(argv: Sequence[str] | None = None) -> int:
     return EXIT_OK
 
 
+def _silence_stdout() -> None:
+    try:
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):  # stdout is not a real file
+        pass
+
+
 def main(argv: Sequence[str] | None = None) -> NoReturn:
     """Entry point of the ``divides`` console script and of ``python -m divides``."""
-    sys.exit(run(argv))
+    code = run(argv)
+    try:
+        sys.stdout.flush()  # a closed pipe shows here, not in the interpreter's last words
+    except BrokenPipeError:
+        _silence_stdout()
+    except (OSError, ValueError, AttributeError):
+        pass
+    sys.exit(code)

@@ -25,7 +25,14 @@ if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
 __all__ = ["assess", "AssessRequest", "assess_request", "check_raster_paths", "run_assessment", "print_result", "RASTER_OPTIONS"]
 
 #: Rasters on the DEM grid that weight χ: option name -> keyword of :func:`divides.assess`.
-RASTER_OPTIONS = {"--runoff": "runoff", "--erodibility": "erodibility_raster", "--uplift": "uplift_raster"}
+RASTER_OPTIONS = {"--runoff-raster": "runoff", "--erodibility-raster": "erodibility_raster",
+                  "--uplift-raster": "uplift_raster"}
+
+#: Older names of the raster options (hidden aliases) -> the current names.
+RASTER_ALIASES = {"--runoff": "--runoff-raster", "--erodibility": "--erodibility-raster", "--uplift": "--uplift-raster"}
+
+#: Seconds the progress lines are held back at the start of the work (see :meth:`Progress.hold`).
+HOLD_SECONDS = 2.0
 
 #: Erosion rates above this (mm/yr) are refused: the fastest measured basin-wide rates are
 #: about 10 mm/yr, so 1000 mm/yr is a unit mistake (the library's limit too).
@@ -93,19 +100,24 @@ SlopeExponentOption = Annotated[
 ]
 RunoffOption = Annotated[
     str | None,
-    typer.Option("--runoff", metavar="RASTER", show_default=False,
+    typer.Option("--runoff-raster", metavar="RASTER", show_default=False,
                  help="Relative runoff or precipitation on the DEM grid (same shape and transform): weights χ."),
 ]
 ErodibilityRasterOption = Annotated[
     str | None,
-    typer.Option("--erodibility", metavar="RASTER", show_default=False,
-                 help="Relative rock erodibility on the DEM grid (positive values): weights χ."),
+    typer.Option("--erodibility-raster", metavar="RASTER", show_default=False,
+                 help="Relative rock erodibility on the DEM grid (positive values): weights χ. "
+                 "(A single value K is --erodibility-k.)"),
 ]
 UpliftRasterOption = Annotated[
     str | None,
-    typer.Option("--uplift", metavar="RASTER", show_default=False,
+    typer.Option("--uplift-raster", metavar="RASTER", show_default=False,
                  help="Relative rock uplift rate on the DEM grid (positive values): weights χ."),
 ]
+# The older names of the raster options, still accepted but not shown.
+RunoffAlias = Annotated[str | None, typer.Option("--runoff", hidden=True, show_default=False)]
+ErodibilityAlias = Annotated[str | None, typer.Option("--erodibility", hidden=True, show_default=False)]
+UpliftAlias = Annotated[str | None, typer.Option("--uplift", hidden=True, show_default=False)]
 SnapRadiusOption = Annotated[
     str | None,
     typer.Option("--snap-radius", metavar="M", show_default=False,
@@ -169,6 +181,9 @@ def assess_request(
     robustness: bool = True,
     seed: int = 0,
     route: opt.RouteOptions | None = None,
+    name_a: str | None = None,
+    name_b: str | None = None,
+    raster_aliases: dict[str, str | None] | None = None,
 ) -> AssessRequest:
     """Check the options of ``divides assess`` as typed, before anything is read.
 
@@ -179,7 +194,14 @@ def assess_request(
     """
     from divides.assess.sides import parse_side  # numpy: fine once a command runs
 
+    from divides.cli.dem_checks import check_finite_points
+
     spec_a, spec_b = (parse_side(s, lonlat=lonlat) for s in (side_a, side_b))
+    for option, spec, text in (("--side-a", spec_a, side_a), ("--side-b", spec_b, side_b)):
+        check_finite_points(spec.points, option=option, text=text)
+    names = {"name_a": opt.parse_name(name_a, option="--name-a"), "name_b": opt.parse_name(name_b, option="--name-b")}
+    if names["name_a"] is not None and names["name_a"].lower() == (names["name_b"] or "").lower():
+        raise ParameterError(f"--name-a and --name-b are the same ({name_a!r}); give the two sides different names")
     if spec_a.text.lower() == spec_b.text.lower():
         raise ParameterError(f"--side-a and --side-b are the same ({side_a!r}); give the two different sides of the divide")
     rates = {
@@ -208,6 +230,7 @@ def assess_request(
         "snap_radius_m": _positive(snap_radius, "--snap-radius", "m"),
         "robustness": robustness,
         "seed": seed,
+        **names,
     }
     if dem_error is not None:
         options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
@@ -226,14 +249,24 @@ def assess_request(
                                  "give an open edge or points for that side, or leave that edge open")
     options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges)
     options = {key: value for key, value in options.items() if value is not None}
-    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift)
+    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift, aliases=raster_aliases)
     return AssessRequest(side_a=side_a, side_b=side_b, lonlat=lonlat, options=options, rasters=rasters)
 
 
-def check_raster_paths(*, runoff: str | None, erodibility: str | None, uplift: str | None) -> dict:
-    """Check the χ-weighting raster paths; return keyword of :func:`divides.assess` -> (option, path)."""
+def check_raster_paths(*, runoff: str | None, erodibility: str | None, uplift: str | None,
+                       aliases: dict[str, str | None] | None = None) -> dict:
+    """Check the χ-weighting raster paths; return keyword of :func:`divides.assess` -> (option, path).
+
+    ``aliases`` maps the older option names (``--runoff``, ``--erodibility``,
+    ``--uplift``) to what was given under them.
+    """
+    aliases = aliases or {}
+    given = {"--runoff-raster": runoff, "--erodibility-raster": erodibility, "--uplift-raster": uplift}
+    for old, value in aliases.items():
+        new = RASTER_ALIASES[old]
+        given[new] = opt.pick_alias(given[new], value, option=new, old_option=old)
     rasters = {}
-    for option, path in (("--runoff", runoff), ("--erodibility", erodibility), ("--uplift", uplift)):
+    for option, path in given.items():
         if path is not None:
             try:
                 rasters[RASTER_OPTIONS[option]] = (option, opt.check_dem_path(path))
@@ -328,33 +361,51 @@ def run_assessment(
         The result and the folder written.
     """
     import divides
-    from divides.report.writer import STAGES
+    from divides.assess.sides import parse_side
+    from divides.cli.dem_checks import check_enough_cells, check_side_points
+    from divides.report.writer import STAGES, write_assessment
 
-    progress.stage(f"reading the DEM {read.path}")
+    # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
     dem = divides.read_dem(read.path, **read.read_kwargs())
+    check_enough_cells(dem)
     _check_against_dem(request, dem)
+    for option, text in (("--side-a", request.side_a), ("--side-b", request.side_b)):
+        spec = parse_side(text, lonlat=request.lonlat)
+        check_side_points(dem, spec.points, option=option, text=text, lonlat=request.lonlat)
     rasters = {keyword: _read_raster_on_grid(option, path, dem, read)
                for keyword, (option, path) in request.rasters.items()}
+    # Sides that overlap or have no channels show only once flow is routed: hold the progress lines
+    # back for a moment, so that on a small DEM such a mistake is still the only line printed.
+    def step(text: str) -> None:
+        if not text.startswith(("routing", "channels")):  # the sides are resolved: past the user's mistakes
+            progress.release()
+        progress.step(text)
 
-    robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
-    progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
-                   f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
-    result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
-                            progress=progress.step, **request.options)
+    with progress.held(HOLD_SECONDS):
+        progress.stage(f"read the DEM {Path(read.path).name} ({dem.shape[0]} x {dem.shape[1]} cells)")
+        robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
+        progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
+                       f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
+        if opt.kernels_cold():
+            progress.release()  # a wait the user should hear about at once
+            progress.step(opt.KERNELS_COLD_MESSAGE)
+        result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
+                                progress=step, **request.options)
     progress.finish()
 
     progress.stage(f"writing the outputs to {out}")
     steps = iter(range(1, len(STAGES) + 1))
-    written = result.write(out, overwrite=overwrite,
-                           progress=lambda stage: progress.step(stage, next(steps, len(STAGES)), len(STAGES)))
+    written = write_assessment(result, out, overwrite=overwrite, command=opt.current_command(), cli=True,
+                               progress=lambda stage: progress.step(stage, next(steps, len(STAGES)), len(STAGES)))
     progress.finish()
     return result, Path(written)
 
 
 def print_result(result: Assessment, out: Path, *, json_output: bool) -> None:
     """Print the verdict (or the summary.json document) on stdout, and where the report is."""
-    if json_output:
-        typer.echo(json.dumps(result.summary, indent=2, allow_nan=False))
+    if json_output:  # the document written, provenance included
+        summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+        typer.echo(json.dumps(summary, indent=2, allow_nan=False))
         return
     typer.echo(result.verdict.text)
     typer.echo("")
@@ -377,6 +428,8 @@ def assess(
     erodibility_k: ErodibilityKOption = None,
     knickpoint_age: KnickpointAgeOption = None,
     n: SlopeExponentOption = None,
+    name_a: opt.NameAOption = None,
+    name_b: opt.NameBOption = None,
     runoff: RunoffOption = None,
     erodibility: ErodibilityRasterOption = None,
     uplift: UpliftRasterOption = None,
@@ -395,6 +448,9 @@ def assess(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    runoff_alias: RunoffAlias = None,
+    erodibility_alias: ErodibilityAlias = None,
+    uplift_alias: UpliftAlias = None,
 ) -> None:
     """Assess whether the divide between two sides of a DEM is stable or moving.
 
@@ -418,9 +474,11 @@ def assess(
         dem_error_length=dem_error_length,
         erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
         runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
-        robustness=not no_robustness, seed=seed, route=route,
+        robustness=not no_robustness, seed=seed, route=route, name_a=name_a, name_b=name_b,
+        raster_aliases={"--runoff": runoff_alias, "--erodibility": erodibility_alias, "--uplift": uplift_alias},
     )
-    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)
+    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path, "assess"),
+                               overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
         result, written = run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress)

@@ -5,6 +5,7 @@ forward model; ``demo/README.md`` tells its story and ``demo/make_demo_dem.py``
 remakes it. The command runs the same assessment a user would type::
 
     divides assess demo/uplands.tif --side-a west --side-b east \\
+        --name-a "River Tallow" --name-b "Quern Water" \\
         --closed-edges north,south --erosion-rate-a 0.70 --out divides-demo
 """
 
@@ -28,6 +29,8 @@ DEMO_OPTIONS = {
     "side_a": "west",  # the River Tallow's side
     "side_b": "east",  # the Quern Water's side
     "erosion_rate_a": "0.70",  # the story's cosmogenic sample from the Tallow side (mm/yr)
+    "name_a": "River Tallow",
+    "name_b": "Quern Water",
 }
 
 #: ``--closed-edges`` of the demo: the model's north and south edges were walls.

@@ -344,6 +344,11 @@ def format_report(report: dict[str, Any]) -> str:
                f" -> --channel-area {area['value']:.6g}")
     out.append(f"{'Theta':<{width}}{theta['value']:.2f} ({theta['source']}): {theta['reason']}"
                f" -> --theta {theta['value']:.2f}" + (" or --theta auto" if theta["source"] == "collinearity" else ""))
+    if theta["source"] != "reference":
+        from divides.profiles.concavity import REFERENCE_THETA
+
+        out.append(f"{'':<{width}}(assess, screen and the demo use the reference θ = {REFERENCE_THETA:.2f} of "
+                   "common practice unless told otherwise: the value above is this DEM's own estimate)")
 
     basins = report["largest_basins"]
     out.append(f"Largest basins ({len(basins)})")

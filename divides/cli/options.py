@@ -12,6 +12,7 @@ import contextlib
 import math
 import os
 import sys
+import threading
 import time
 import warnings
 from collections.abc import Iterator
@@ -21,7 +22,7 @@ from typing import Annotated, Any, TextIO
 
 import typer
 
-from divides.errors import DemReadError, OutputError, ParameterError
+from divides.errors import DemReadError, DividesError, OutputError, ParameterError
 
 __all__ = [
     "VERTICAL_UNIT_CHOICES",
@@ -59,6 +60,14 @@ __all__ = [
     "default_out_dir",
     "check_out_dir",
     "Progress",
+    "NameAOption",
+    "NameBOption",
+    "parse_name",
+    "pick_alias",
+    "set_command",
+    "current_command",
+    "kernels_cold",
+    "KERNELS_COLD_MESSAGE",
 ]
 
 #: The DEM edges a side SPEC or ``--closed-edges`` may name.
@@ -157,7 +166,7 @@ OutOption = Annotated[
         "--out",
         "-o",
         metavar="DIR",
-        help="Folder for the outputs (created; default ./divides-<DEM name> in the working folder).",
+        help="Folder for the outputs (created; default ./divides-<DEM name>-<command> in the working folder).",
         show_default=False,
     ),
 ]
@@ -168,6 +177,15 @@ OverwriteOption = Annotated[
 SeedOption = Annotated[
     int,
     typer.Option("--seed", min=0, metavar="N", help="Seed of the bootstrap and the robustness perturbations (whole number >= 0)."),
+]
+NameAOption = Annotated[
+    str | None,
+    typer.Option("--name-a", metavar="NAME", show_default=False,
+                 help="A name for side a (e.g. the river's), used in the verdict, figures, layers and summary.json."),
+]
+NameBOption = Annotated[
+    str | None,
+    typer.Option("--name-b", metavar="NAME", show_default=False, help="A name for side b, as --name-a."),
 ]
 ClosedEdgesOption = Annotated[
     str | None,
@@ -180,7 +198,52 @@ ClosedEdgesOption = Annotated[
 ]
 
 
+# ---------------------------------------------------------------- the command as run
+_COMMAND: list[str] | None = None
+
+
+def set_command(argv: list[str] | None) -> None:
+    """Remember the arguments of this run (set by :func:`divides.cli.app.run`) for ``provenance.command``."""
+    global _COMMAND
+    _COMMAND = None if argv is None else [str(a) for a in argv]
+
+
+def current_command() -> list[str] | None:
+    """The arguments of this run after the program name, or None outside :func:`divides.cli.app.run`."""
+    return None if _COMMAND is None else list(_COMMAND)
+
+
 # ---------------------------------------------------------------- parsing
+def parse_name(text: str | None, *, option: str) -> str | None:
+    """Check a side name: one line of 1 to 60 printable characters.
+
+    Examples
+    --------
+    >>> parse_name("  River Tallow ", option="--name-a")
+    'River Tallow'
+    """
+    if text is None:
+        return None
+    name = text.strip()
+    if not name or len(name) > 60 or not name.isprintable():
+        raise ParameterError(f"{option} {text!r} is not accepted; give a name of 1 to 60 characters on one line")
+    return name
+
+
+def pick_alias(value: Any, old: Any, *, option: str, old_option: str) -> Any:
+    """The value of an option given under its name or its older name (not both).
+
+    Examples
+    --------
+    >>> pick_alias(None, "r.tif", option="--runoff-raster", old_option="--runoff")
+    'r.tif'
+    """
+    if value is not None and old is not None:
+        raise ParameterError(f"{option} and {old_option} are the same option ({old_option} is its older name); "
+                             f"give {option} once")
+    return value if value is not None else old
+
+
 def check_dem_path(path: str) -> str:
     """Fail early, before any heavy import, when a local DEM file is missing.
 
@@ -468,16 +531,37 @@ def parse_closed_edges(text: str | None) -> tuple[str, ...]:
     return tuple(names)
 
 
-def default_out_dir(dem_path: str, *, cwd: str | os.PathLike | None = None) -> Path:
-    """The default ``--out``: ``divides-<DEM file name without suffix>`` in the working folder.
+def default_out_dir(dem_path: str, command: str, *, cwd: str | os.PathLike | None = None) -> Path:
+    """The default ``--out`` of a command: ``divides-<DEM file name without suffix>-<command>``.
+
+    Each command has its own default folder, so ``divides assess X`` then
+    ``divides screen X`` do not collide.
 
     Examples
     --------
-    >>> default_out_dir("/data/site 4/dem.tif", cwd="/tmp").as_posix()
-    '/tmp/divides-dem'
+    >>> default_out_dir("/data/site 4/dem.tif", "assess", cwd="/tmp").as_posix()
+    '/tmp/divides-dem-assess'
     """
     stem = Path(dem_path.rstrip("/")).stem or "dem"
-    return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}"
+    return Path(os.getcwd() if cwd is None else cwd) / f"divides-{stem}-{command}"
+
+
+def _probe_writable(parent: Path) -> None:
+    """Create and remove a hidden folder in ``parent``: the only sure test of writability.
+
+    ``os.access`` says yes to root everywhere, including read-only and
+    virtual file systems such as ``/proc``.
+    """
+    probe = parent / f".divides-probe-{os.getpid()}-{time.monotonic_ns()}"
+    try:
+        os.mkdir(probe)
+    except OSError as exc:
+        raise OutputError(f"cannot write outputs in '{parent}': it does not accept new folders "
+                          f"({exc.strerror or exc}); choose another --out") from None
+    try:
+        os.rmdir(probe)
+    except OSError:  # pragma: no cover - created a moment ago, so removable
+        pass
 
 
 def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
@@ -511,14 +595,13 @@ def check_out_dir(out: str | os.PathLike, *, overwrite: bool) -> Path:
 
     if not os.fspath(out).strip():
         raise OutputError("--out is empty; give a folder for the outputs")
-    path = check_existing(out, overwrite=overwrite)
+    path = check_existing(out, overwrite=overwrite, cli=True)
     parent = path.parent
     while not parent.exists() and parent != parent.parent:
         parent = parent.parent
     if not parent.is_dir():
         raise OutputError(f"cannot write outputs to '{path}': '{parent}' is not a folder; choose another --out")
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise OutputError(f"cannot write outputs to '{path}': permission denied in '{parent}'; choose another --out")
+    _probe_writable(parent)
     return path
 
 
@@ -528,6 +611,12 @@ class Progress:
     Plain text, no colour. Sub-steps (the files being written) go on one
     line redrawn in place when the stream is a terminal, one line each
     otherwise, so that logs stay readable.
+
+    :meth:`hold` keeps lines back for a few seconds: a user error found
+    early in the work (sides that overlap, found once flow is routed) then
+    reaches the terminal as the only line, and :meth:`discard` drops what was
+    held. Held lines are printed when :meth:`release` is called or the time
+    is up, whichever comes first, so a long run still shows its progress.
 
     Parameters
     ----------
@@ -543,6 +632,9 @@ class Progress:
         self.total, self.quiet, self._stream, self.done = total, quiet, stream, 0
         self._start = time.perf_counter()
         self._redraw = False
+        self._held: list[str] | None = None
+        self._timer: threading.Timer | None = None
+        self._lock = threading.Lock()
 
     @property
     def stream(self) -> TextIO:
@@ -555,9 +647,57 @@ class Progress:
         except (AttributeError, ValueError):
             return False
 
+    def _write(self, text: str) -> None:
+        with self._lock:
+            if self._held is not None:
+                self._held.append(text)
+                return
+            self.stream.write(text)
+            self.stream.flush()
+
+    def hold(self, seconds: float) -> None:
+        """Keep lines back until :meth:`release`, :meth:`discard`, or ``seconds`` from now."""
+        with self._lock:
+            if self._held is None:
+                self._held = []
+            self._timer = threading.Timer(seconds, self.release)
+            self._timer.daemon = True
+            self._timer.start()
+
+    def release(self) -> None:
+        """Print the lines held back, and stop holding."""
+        with self._lock:
+            if self._timer is not None:
+                self._timer.cancel()
+                self._timer = None
+            held, self._held = self._held, None
+            if held:
+                self.stream.write("".join(held))
+                self.stream.flush()
+
+    def discard(self) -> None:
+        """Drop the lines held back (a user error follows alone), and stop holding."""
+        with self._lock:
+            if self._timer is not None:
+                self._timer.cancel()
+                self._timer = None
+            self._held = None
+
+    @contextlib.contextmanager
+    def held(self, seconds: float) -> Iterator[None]:
+        """Hold lines back during the block (see :meth:`hold`); drop them if it ends in a user error."""
+        self.hold(seconds)
+        try:
+            yield
+        except DividesError:
+            self.discard()
+            raise
+        finally:
+            self.release()
+
     def _end_redraw(self) -> None:
         if self._redraw:
-            self.stream.write("\n")
+            self._write("\n")
             self._redraw = False
 
     def stage(self, text: str) -> None:
@@ -567,8 +707,7 @@ class Progress:
             return
         self._end_redraw()
         elapsed = time.perf_counter() - self._start
-        self.stream.write(f"divides: [{self.done}/{self.total}] {text} (at {elapsed:.1f} s)\n")
-        self.stream.flush()
+        self._write(f"divides: [{self.done}/{self.total}] {text} (at {elapsed:.1f} s)\n")
 
     def step(self, text: str, index: int | None = None, count: int | None = None) -> None:
         """Show a sub-step of the current stage, with a bar when ``index`` and ``count`` are known."""
@@ -579,14 +718,47 @@ class Progress:
             filled = int(round(20 * min(index, count) / count))
             bar = f"[{'#' * filled}{'.' * (20 - filled)}] {index}/{count} "
         if self._tty():
-            self.stream.write(f"\r  {bar}{text}".ljust(79)[:79])
+            self._write(f"\r  {bar}{text}".ljust(79)[:79])
             self._redraw = True
         else:
-            self.stream.write(f"  {bar}{text}\n")
-        self.stream.flush()
+            self._write(f"  {bar}{text}\n")
 
     def finish(self) -> None:
         """End a redrawn line, if any."""
         if not self.quiet:
             self._end_redraw()
-            self.stream.flush()
+
+
+#: Shown before routing on a cold cache of compiled kernels.
+KERNELS_COLD_MESSAGE = "compiling fast kernels (first run only, ~15 s)"
+
+#: Kernel modules every assessment and screening compiles (the ones a first run waits for).
+_KERNEL_MODULES = (("terrain", "_fill_kernels"), ("terrain", "_routing_kernels"), ("terrain", "_channel_kernels"),
+                   ("profiles", "_profile_kernels"))
+
+
+def kernels_cold(package_dir: str | os.PathLike | None = None) -> bool:
+    """True when numba has no cached machine code for the kernels yet (the first run after installing).
+
+    Looks for numba's cache index files (``<module>.<function>-<line>.pyXY.nbi``)
+    where numba keeps them: under ``NUMBA_CACHE_DIR`` when it is set, else
+    beside each kernel module (or, for a read-only install, in the user's
+    cache folder). numba itself is not imported; a wrong answer costs only a message.
+    """
+    if package_dir is None:
+        import divides
+
+        package_dir = Path(divides.__file__).resolve().parent
+    tag = f"py{sys.version_info.major}{sys.version_info.minor}"
+    chosen = os.environ.get("NUMBA_CACHE_DIR")
+    user_wide = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "numba"
+    for room, module in _KERNEL_MODULES:
+        pattern = f"{module}.*.{tag}.nbi"
+        if chosen:
+            found = Path(chosen).is_dir() and any(Path(chosen).rglob(pattern))
+        else:
+            found = any((Path(package_dir) / room / "__pycache__").glob(pattern)) or (
+                user_wide.is_dir() and any(user_wide.rglob(pattern)))
+        if not found:
+            return True
+    return False

@@ -8,17 +8,22 @@ work; numpy, rasterio and numba are imported inside the function so that
 from __future__ import annotations
 
 import json
+from pathlib import Path
 from typing import Annotated
 
 import typer
 
 from divides.cli import options as opt
 from divides.cli.assess_cmd import (
+    HOLD_SECONDS,
     ChannelAreaOption,
     DemErrorLengthOption,
     DemErrorOption,
+    ErodibilityAlias,
     ErodibilityRasterOption,
+    RunoffAlias,
     RunoffOption,
+    UpliftAlias,
     UpliftRasterOption,
     _read_raster_on_grid,
     check_raster_paths,
@@ -84,6 +89,9 @@ def screen(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    runoff_alias: RunoffAlias = None,
+    erodibility_alias: ErodibilityAlias = None,
+    uplift_alias: UpliftAlias = None,
 ) -> None:
     """Screen every divide of a DEM and rank the segments by instability.
 
@@ -116,23 +124,36 @@ def screen(
                                                           low=0, high=1e5, low_inclusive=True)
     min_area = opt.parse_bounded(min_basin_area, option="--min-basin-area", unit="m²", low=0, high=float("inf"))
     max_len = opt.parse_bounded(max_segment, option="--max-segment", unit="m", low=0, high=float("inf"))
-    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift)
-    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path), overwrite=overwrite)
+    rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift,
+                                 aliases={"--runoff": runoff_alias, "--erodibility": erodibility_alias,
+                                          "--uplift": uplift_alias})
+    folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path, "screen"),
+                               overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
         import divides
         from divides.assess.screen import screen as run_screen
+        from divides.cli.dem_checks import check_enough_cells
+        from divides.report.screening import write_screening
 
-        progress.stage(f"reading the DEM {read.path}")
+        # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
         dem_obj = divides.read_dem(read.path, **read.read_kwargs())
+        check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
-        progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
-        result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                            workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
+        # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
+        with progress.held(HOLD_SECONDS):
+            progress.stage(f"read the DEM {Path(read.path).name} ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells)")
+            progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
+            if opt.kernels_cold():
+                progress.release()
+                progress.step(opt.KERNELS_COLD_MESSAGE)
+            result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
+                                workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
-        written = result.write(folder, overwrite=overwrite)
-    if json_output:
-        typer.echo(json.dumps(result.to_dict(), indent=2, allow_nan=False))
+        written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)
+    if json_output:  # the document written, provenance included
+        typer.echo(json.dumps(json.loads((written / "screening.json").read_text(encoding="utf-8")), indent=2,
+                              allow_nan=False))
         return
     segs = result.segments
     moving = sum(s["moves_toward_basin"] is not None for s in segs)

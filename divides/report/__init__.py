@@ -5,6 +5,6 @@ The only room besides ``divides.io`` that writes files, and the only one that dr
 
 from __future__ import annotations
 
-from divides.report.writer import STAGES, check_out_dir, staged_output, write_assessment
+from divides.report.writer import STAGES, check_out_dir, staged_output, write, write_assessment
 
-__all__ = ["write_assessment", "staged_output", "check_out_dir", "STAGES"]
+__all__ = ["write", "write_assessment", "staged_output", "check_out_dir", "STAGES"]

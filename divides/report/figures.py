@@ -5,9 +5,13 @@ Agg canvas, so nothing touches pyplot's global state and no display is
 needed. Rasters are decimated to at most :data:`MAX_DISPLAY_PX` per side
 before drawing, which keeps all figures of a 2000² DEM within seconds.
 
-Colours: Okabe & Ito's colour-blind-safe set for the two sides, cividis for
-χ, and the ColorBrewer purple–orange diverging scheme (colour-blind safe)
-for the local evidence of motion.
+Colours: Okabe & Ito's colour-blind-safe set for the two sides (blue for a,
+orange for b, which also differ in lightness), and cividis (Nuñez et al.
+2018: lightness rising monotonically, so readable in greyscale and by
+colour-blind readers) for χ and for the local evidence of motion (dark blue:
+into a, yellow: into b). Every map carries a scale bar, a north arrow (true
+north, from the CRS) and the CRS name with its EPSG code; figures are
+written as 200 dpi PNG and as SVG.
 """
 
 from __future__ import annotations
@@ -41,10 +45,16 @@ __all__ = [
     "MAX_DISPLAY_PX",
     "render_figures",
     "to_png",
+    "to_svg",
+    "map_furniture",
+    "crs_label",
+    "true_north",
+    "MOTION_CMAP",
     "map_figure",
     "chi_map_figure",
     "chi_elevation_figure",
     "contrast_figure",
+    "contrast_orientation",
     "profile_figure",
     "slope_area_figure",
 ]
@@ -58,8 +68,8 @@ MAX_DISPLAY_PX = 800
 #: Most knickpoints drawn on one map or χ plot (all are in the tables and layers).
 MAX_KNICKPOINTS = 100
 
-#: Resolution of the PNGs (dots per inch).
-DPI = 130
+#: Resolution of the PNGs (dots per inch): print quality for a report.
+DPI = 200
 
 #: Figure file stem -> name of the function in this module that draws it.
 FIGURES = {
@@ -74,15 +84,16 @@ FIGURES = {
 #: One-sentence captions for the report.
 CAPTIONS = {
     "map": "The two sides on a shaded relief, the divide coloured by the local evidence of motion "
-           "(purple: into side a, orange: into side b), arrows in the direction of the verdict, significant "
+           "(cividis: dark blue into side a, yellow into side b; grey where no measure is available), arrows in the direction of the verdict, significant "
            "knickpoints and the first-order equilibrium divide.",
     "chi_map": "χ of the analysed channels, integrated from the common base level of both sides. "
                "The divide tends to move toward the side whose channel heads have the higher χ.",
     "chi_elevation": "Elevation against χ for every analysed channel, by side. With uniform uplift and "
                      "erodibility, straight profiles suggest steady state and breaks mark knickpoints; the "
                      "side whose heads reach higher χ at a similar elevation loses ground in the long run.",
-    "contrasts": "Across-divide differences (side a minus side b) with 95 % block-bootstrap intervals. "
-                 "The shaded half says which way each sign points. A filled marker counts as evidence.",
+    "contrasts": "Across-divide differences with 95 % block-bootstrap intervals, every panel the same way "
+                 "round: left (blue) the divide moves into side a, right (orange) into side b. Each panel's axis "
+                 "says which difference it shows (a − b or b − a). A filled marker counts as evidence.",
     "long_profiles": "Long profiles of the longest channels of each side, side a to the left and side b to "
                      "the right of their channel heads, with significant knickpoints.",
     "slope_area": "Channel gradient against drainage area for both sides, with binned medians and the "
@@ -91,8 +102,9 @@ CAPTIONS = {
 
 _HALO = [patheffects.withStroke(linewidth=3.0, foreground="white")]
 
-#: Purple–orange diverging map (ColorBrewer PuOr), purple for "into a", orange for "into b".
-_MOTION = "PuOr_r"
+#: Colour map of the local evidence of motion: cividis, dark blue "into a" to yellow "into b".
+#: Its lightness rises monotonically, so the sense survives greyscale printing and colour blindness.
+MOTION_CMAP = "cividis"
 
 
 # ------------------------------------------------------------------ helpers
@@ -106,18 +118,34 @@ def to_png(fig: Figure) -> bytes:
     return buf.getvalue()
 
 
-def render_figures(result: Assessment, *, progress: Callable[[str], None] | None = None) -> dict[str, bytes]:
+def to_svg(fig: Figure) -> bytes:
+    """Render a figure to SVG bytes (vector lines and text, rasters embedded), for reports."""
+    buf = io.BytesIO()
+    fig.savefig(buf, format="svg", bbox_inches="tight", pad_inches=0.08, metadata={"Date": None})
+    return buf.getvalue()
+
+
+def render_figures(
+    result: Assessment,
+    *,
+    progress: Callable[[str], None] | None = None,
+    vectors: dict[str, bytes] | None = None,
+) -> dict[str, bytes]:
     """Draw every figure of :data:`FIGURES` and return name -> PNG bytes.
 
     ``progress(stage)`` is called before each figure with ``"figure: NAME"``.
-    Functions are looked up by name at call time, so each can be replaced
-    (tests do so to inject failures).
+    With ``vectors`` (a dict), each figure's SVG is stored there under its
+    name too. Functions are looked up by name at call time, so each can be
+    replaced (tests do so to inject failures).
     """
     out = {}
     for name, function in FIGURES.items():
         if progress is not None:
             progress(f"figure: {name}")
-        out[name] = to_png(globals()[function](result))
+        fig = globals()[function](result)
+        out[name] = to_png(fig)
+        if vectors is not None:
+            vectors[name] = to_svg(fig)
     return out
 
 
@@ -228,11 +256,106 @@ def _divide_lines(ax, result: Assessment, frame: _Frame, **kwargs) -> None:
         ax.plot(line.x * frame.scale, line.y * frame.scale, **kwargs)
 
 
+def crs_label(dem: Dem) -> str:
+    """The CRS in words with its EPSG code, e.g. ``"WGS 84 / UTM zone 30N (EPSG:32630)"``."""
+    if dem.crs is None:
+        return "no CRS: local grid in metres"
+    try:
+        import pyproj
+
+        crs = pyproj.CRS.from_user_input(dem.crs.to_wkt())
+        name, epsg = crs.name, crs.to_epsg()
+    except Exception:  # noqa: BLE001 - a CRS pyproj cannot name still gets rasterio's words
+        name, epsg = dem.crs.to_string(), dem.crs.to_epsg()
+    return f"{name} (EPSG:{epsg})" if epsg else f"{name} (no EPSG code)"
+
+
+def true_north(dem: Dem) -> tuple[float, bool]:
+    """Angle of true north on the map at its centre (degrees clockwise from up) and whether it is true north.
+
+    Found by stepping 0.01° north in latitude from the centre and projecting
+    back; grid north (0°, False) on grids without a CRS.
+    """
+    if dem.crs is None:
+        return 0.0, False
+    if dem.geographic:
+        return 0.0, True
+    left, bottom, right, top = dem.bounds
+    x0, y0 = 0.5 * (left + right), 0.5 * (bottom + top)
+    try:
+        lon, lat = dem.to_lonlat(np.array([x0]), np.array([y0]))
+        step = -0.01 if float(lat[0]) > 89.0 else 0.01
+        x1, y1 = dem.from_lonlat(np.asarray(lon, dtype=np.float64), np.asarray(lat, dtype=np.float64) + step)
+        dx, dy = float(x1[0] - x0) * np.sign(step), float(y1[0] - y0) * np.sign(step)
+    except Exception:  # noqa: BLE001 - no transformation to lon/lat: grid north it is
+        return 0.0, False
+    if not (np.isfinite(dx) and np.isfinite(dy)) or dx == dy == 0:
+        return 0.0, False
+    return float(np.degrees(np.arctan2(dx, dy))), True
+
+
+def _nice_length(target_m: float) -> float:
+    """The largest 1, 2 or 5 × 10^k metres not above ``target_m``."""
+    power = 10.0 ** np.floor(np.log10(max(target_m, 1e-9)))
+    for step in (5.0, 2.0, 1.0):
+        if step * power <= target_m:
+            return float(step * power)
+    return float(power)
+
+
+def _scale_bar(ax, dem: Dem, frame: _Frame) -> None:
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
+
+    left, bottom, right, top = dem.bounds
+    mid = np.array([0.5 * (bottom + top)])
+    if frame.geographic:
+        per_e = float(_metres_to_axis(dem, frame, mid)[0][0])
+    else:
+        factor = float(dem.crs.linear_units_factor[1] or 1.0) if dem.crs is not None else 1.0
+        per_e = frame.scale / factor  # axis units per metre
+    width_m = (right - left) * frame.scale / per_e
+    length = _nice_length(0.22 * width_m)
+    label = f"{length / 1000:g} km" if length >= 1000 else f"{length:g} m"
+    bar = AnchoredSizeBar(ax.transData, length * per_e, label, "lower left", pad=0.4, borderpad=0.5, sep=3,
+                          frameon=True, size_vertical=0, color="black", fontproperties={"size": 8})
+    bar.patch.set(alpha=0.85, facecolor="white", edgecolor="0.6", linewidth=0.5)
+    bar.set_zorder(9)
+    ax.add_artist(bar)
+
+
+def _north_arrow(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
+    from matplotlib.transforms import ScaledTranslation
+
+    angle, true = true_north(dem)
+    # the map's vertical axis is stretched by frame.aspect: turn the ground direction into a screen one
+    rad = np.radians(angle)
+    ux, uy = np.sin(rad), np.cos(rad) * frame.aspect
+    norm = float(np.hypot(ux, uy)) or 1.0
+    ux, uy = ux / norm, uy / norm
+    length = 0.42  # inches
+    base = (0.93, 0.78)
+    tip = ax.transAxes + ScaledTranslation(ux * length, uy * length, fig.dpi_scale_trans)
+    label = ax.transAxes + ScaledTranslation(ux * (length + 0.13), uy * (length + 0.13), fig.dpi_scale_trans)
+    ax.annotate("", xy=base, xycoords=tip, xytext=base, textcoords=ax.transAxes, zorder=9, gid="north-arrow",
+                arrowprops=dict(arrowstyle="-|>,head_width=0.35,head_length=0.7", color="black", lw=1.6,
+                                shrinkA=0, shrinkB=0, path_effects=_HALO))
+    ax.text(*base, "N" if true else "N (grid)", transform=label, ha="center", va="center", fontsize=9,
+            fontweight="bold", zorder=9, path_effects=_HALO)
+
+
+def map_furniture(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
+    """Scale bar, north arrow and the CRS (name and EPSG code) on a map."""
+    _scale_bar(ax, dem, frame)
+    _north_arrow(fig, ax, dem, frame)
+    ax.set_xlabel(f"{frame.xlabel}\n{crs_label(dem)}")
+
+
 def _map_base(result: Assessment, *, extra: float, tint: float):
     """A map figure with shaded relief and tinted sides; also the analysed channel segments to draw."""
     frame = _frame(result.dem)
     fig = _figure(*_map_size(result.dem, frame, extra=extra))
     ax = _map_axes(fig, result, frame)
+    map_furniture(fig, ax, result.dem, frame)
     _hillshade(ax, result.dem, frame)
     _side_tint(ax, result, frame, alpha=tint)
     seg, pos = _channel_segments(result, frame)
@@ -305,7 +428,7 @@ def _side_legend_handles(result: Assessment) -> list:
 def _verdict_title(result: Assessment) -> str:
     v = result.verdict
     if v.moves_toward in ("a", "b"):
-        what = f"divide moving into side {v.moves_toward}"
+        what = f"divide moving into {side_label(result, v.moves_toward)}"
         if v.basis == "chi":
             what += " (long-run tendency)"
     else:
@@ -328,7 +451,7 @@ def _draw_motion_divide(fig: Figure, ax, result: Assessment, frame: _Frame) -> l
         xy = np.column_stack([pts.x[sel] * frame.scale, pts.y[sel] * frame.scale])
         segments.extend(np.stack([xy[:-1], xy[1:]], axis=1))
         values.extend(0.5 * (index[sel][:-1] + index[sel][1:]))
-    cmap = colormaps[_MOTION].with_extremes(bad="0.55")  # grey where no measure is available
+    cmap = colormaps[MOTION_CMAP].with_extremes(bad="0.55")  # grey where no measure is available
     lc = LineCollection(segments, cmap=cmap, linewidths=2.6, zorder=4, capstyle="round")
     lc.set_array(np.ma.masked_invalid(np.asarray(values, dtype=float)))
     lc.set_clim(-1, 1)
@@ -486,30 +609,38 @@ def _fmt(v: float) -> str:
     return f"{v:.3f}" if abs(v) < 1 else f"{v:.3g}" if abs(v) < 100 else f"{v:,.0f}"
 
 
+def contrast_orientation(metric: str) -> float:
+    """+1 when a positive a − b of ``metric`` means the divide moves into b, −1 when into a.
+
+    Plotting ``sign × (a − b)`` puts "into b" on the right in every panel.
+    """
+    rule = METRICS.get(metric, ("", "higher"))[1]
+    return -1.0 if rule == "higher" else 1.0  # "higher": the divide moves toward the higher side
+
+
 def contrast_figure(result: Assessment) -> Figure:
-    """One row per metric: the difference a − b with its 95 % interval, and what each sign means."""
+    """One row per metric with its difference and 95 % interval; left = into side a, right = into side b in every row."""
     contrasts = result.contrasts
     n = max(len(contrasts), 1)
     fig = _figure(7.5, 1.05 * n + 1.0)
     axes = fig.subplots(n, 1, squeeze=False)[:, 0]
+    name_a, name_b = side_label(result, "a"), side_label(result, "b")
     for ax, c in zip(axes, contrasts):
-        lo, hi = c.ci95
-        span = max(abs(v) for v in (lo, hi, c.difference, 0.0) if np.isfinite(v)) if np.isfinite(c.difference) \
-            else 1.0
+        sign = contrast_orientation(c.metric)
+        d = sign * c.difference
+        lo, hi = sorted((sign * c.ci95[0], sign * c.ci95[1]))
+        span = max(abs(v) for v in (lo, hi, d, 0.0) if np.isfinite(v)) if np.isfinite(d) else 1.0
         span = 1.25 * span if span > 0 else 1.0
-        # which side the divide moves into when a − b is positive / negative (rule of the metric)
-        rule = METRICS.get(c.metric, ("", "higher"))[1]
-        pos_side, neg_side = ("a", "b") if rule == "higher" else ("b", "a")
-        ax.axvspan(0, span, color=SIDE_COLOURS[pos_side], alpha=0.16, lw=0)
-        ax.axvspan(-span, 0, color=SIDE_COLOURS[neg_side], alpha=0.16, lw=0)
+        ax.axvspan(0, span, color=SIDE_COLOURS["b"], alpha=0.16, lw=0)
+        ax.axvspan(-span, 0, color=SIDE_COLOURS["a"], alpha=0.16, lw=0)
         ax.axvline(0, color="0.3", lw=0.8)
-        ax.text(0.995, 0.9, f"into {pos_side} →", transform=ax.transAxes, ha="right", va="top", fontsize=7.5,
+        ax.text(0.995, 0.9, f"into {name_b} →", transform=ax.transAxes, ha="right", va="top", fontsize=7.5,
                 color="0.2")
-        ax.text(0.005, 0.9, f"← into {neg_side}", transform=ax.transAxes, ha="left", va="top", fontsize=7.5,
+        ax.text(0.005, 0.9, f"← into {name_a}", transform=ax.transAxes, ha="left", va="top", fontsize=7.5,
                 color="0.2")
-        if np.isfinite(c.difference):
+        if np.isfinite(d):
             evidence = c.moves_toward in ("a", "b")
-            ax.errorbar([c.difference], [0], xerr=[[c.difference - lo], [hi - c.difference]], fmt="o",
+            ax.errorbar([d], [0], xerr=[[d - lo], [hi - d]], fmt="o",
                         ms=7, color="black", mfc="black" if evidence else "white", mew=1.3, capsize=4, lw=1.5)
             note = f"a {_fmt(c.a)}, b {_fmt(c.b)} {c.unit}; n = {c.n_points}"
         else:
@@ -517,8 +648,7 @@ def contrast_figure(result: Assessment) -> Figure:
         ax.set_xlim(-span, span)
         ax.set_ylim(-1, 1)
         ax.set_yticks([])
-        unit = c.unit if c.unit != "m/m" else "m/m"
-        ax.set_xlabel(f"a − b ({unit})", fontsize=8, labelpad=1)
+        ax.set_xlabel(f"{'a − b' if sign > 0 else 'b − a'} ({c.unit})", fontsize=8, labelpad=1)
         ax.tick_params(axis="x", labelsize=8)
         ax.set_title(f"{_METRIC_LABELS.get(c.metric, c.metric)}: {note}", fontsize=8.5, loc="left")
     fig.suptitle("Across-divide contrasts with 95 % intervals (filled: counts as evidence)", fontsize=10.5)

@@ -13,7 +13,10 @@ import html
 from typing import TYPE_CHECKING, Any
 
 from divides.assess.verdict import CAUTION
-from divides.report.text import direction_phrase, side_label
+from divides.report.labels import parameter_label, parameter_value
+from divides.report.provenance import provenance as _provenance
+from divides.report.provenance import public_summary
+from divides.report.text import direction_phrase, provenance_line, side_label
 
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
@@ -97,7 +100,7 @@ padding-bottom:.2rem}h3{font-size:1rem;margin:1.2rem 0 .3rem}
 .sub{color:#555;margin:0 0 1rem}
 .caution{border-left:5px solid #D55E00;background:#fff4ec;padding:.6rem .9rem;margin:1rem 0}
 .verdict{border:1px solid #ccc;border-radius:6px;padding:.8rem 1rem;background:#f5f8fb}
-.verdict .lead{font-size:1.12rem;font-weight:600;margin:.2rem 0 .5rem}
+.verdict .lead{font-size:1.12rem;font-weight:600;margin:.2rem 0 .5rem}.verdict .rest{margin:.6rem 0 .2rem}
 .meter{height:.7rem;background:#e4e4e4;border-radius:4px;overflow:hidden;max-width:22rem}
 .meter span{display:block;height:100%;background:#0072B2}
 .keys{display:grid;grid-template-columns:repeat(auto-fill,minmax(14rem,1fr));gap:.4rem 1rem;margin:.8rem 0}
@@ -158,8 +161,7 @@ def _side_span(result: Assessment, side: str | None) -> str:
 
 
 # ------------------------------------------------------------------ sections
-def _verdict_section(result: Assessment) -> str:
-    s = result.summary
+def _verdict_section(result: Assessment, s: dict) -> str:
     v = s["verdict"]
     text_lines = [ln for ln in v["text"].splitlines() if ln.strip() and ln.strip() != CAUTION]
     lead = text_lines[0] if text_lines else direction_phrase(result)
@@ -169,21 +171,21 @@ def _verdict_section(result: Assessment) -> str:
              f"<span class=\"note\">(0 = no basis for a direction, 1 = certain)</span></p>"
              f"<div class=\"meter\" role=\"img\" aria-label=\"confidence {_e(f'{conf:.2f}')}\">"
              f"<span style=\"width:{max(0.0, min(conf, 1.0)) * 100:.0f}%\"></span></div>"]
-    bullets: list[str] = []
-    for line in text_lines[1:] + [""]:  # the empty sentinel closes a trailing list
-        if line.startswith("- "):
-            bullets.append(f"<li>{_e(line[2:])}</li>")
-            continue
-        if bullets:
-            parts.append("<ul>" + "".join(bullets) + "</ul>")
-            bullets = []
-        if line:
-            parts.append(f"<p>{_e(line)}</p>")
+    # The box holds the sentences of the verdict; the measure-by-measure lines ("- ...") go to the
+    # evidence section, so that the box fits the first screen whatever the number of measures.
+    sentences = [line for line in text_lines[1:] if not line.startswith("- ")]
+    parts.append("<p class=\"rest\">" + " ".join(_e(line) for line in sentences)
+                 + " <a href=\"#evidence\">Each measure below.</a></p>")
     return "<section class=\"verdict\" id=\"verdict\">" + "".join(parts) + "</section>"
 
 
-def _key_numbers(result: Assessment) -> str:
-    s = result.summary
+def _measure_lines(s: dict) -> str:
+    """The verdict's measure-by-measure lines ("- ..."), as a list."""
+    lines = [ln.strip()[2:] for ln in s["verdict"]["text"].splitlines() if ln.strip().startswith("- ")]
+    return "<ul>" + "".join(f"<li>{_e(line)}</li>" for line in lines) + "</ul>" if lines else ""
+
+
+def _key_numbers(result: Assessment, s: dict) -> str:
     v = s["verdict"]
     items = [("Verdict", _e(direction_phrase(result))),
              ("Aggressor", _side_span(result, v["aggressor"]) if v["aggressor"] else "none"),
@@ -201,7 +203,8 @@ def _key_numbers(result: Assessment) -> str:
     ci_text = f" (95 % {ci[0]:.2f}–{ci[1]:.2f})" if None not in ci else ""
     items.append(("Concavity θ", _e(f"{theta['value']:.3g}, {theta['method']}{ci_text}")))
     ksn = s["profiles"]["ksn"]
-    items.append(("Median ksn a / b", f"{_n(ksn['a'])} / {_n(ksn['b'])}"))
+    unit = f"m^{2 * float(theta['value']):.2g}" if theta.get("value") is not None else "m^2θ"
+    items.append((f"Median ksn a / b ({unit}, A₀ = 1 m²)", f"{_n(ksn['a'])} / {_n(ksn['b'])}"))
     items.append(("Divide length", _n(s["divide"].get("length_m"), ",.0f", "m")))
     items.append(("Knickpoints", _e(len(s["knickpoints"]))))
     for name in ("a", "b"):
@@ -211,9 +214,9 @@ def _key_numbers(result: Assessment) -> str:
     return "<div class=\"keys\">" + "".join(f"<div><b>{_e(k)}</b>{val}</div>" for k, val in items) + "</div>"
 
 
-def _evidence_section(result: Assessment) -> str:
+def _evidence_section(result: Assessment, s: dict) -> str:
     rows = []
-    for c in result.summary["contrasts"]:
+    for c in s["contrasts"]:
         lo, hi = c["ci95"]
         rows.append([
             _e(c["metric"].replace("_", " ")), _e(c["rule"]), _e(c["unit"]), _n(c["a"]), _n(c["b"]),
@@ -225,7 +228,7 @@ def _evidence_section(result: Assessment) -> str:
     return ("<h2 id=\"evidence\">Evidence</h2><p>Each measure is read on both sides of every sample point of "
             "the divide. The interval comes from a moving-block bootstrap along the divide; a measure counts "
             "as evidence when its interval excludes zero and the difference is not negligibly small.</p>"
-            + table)
+            + _measure_lines(s) + table)
 
 
 def _figures_section(result: Assessment, figures: dict[str, bytes], captions: dict[str, str]) -> str:
@@ -242,8 +245,8 @@ def _figures_section(result: Assessment, figures: dict[str, bytes], captions: di
     return "".join(parts)
 
 
-def _knickpoint_section(result: Assessment, limit: int = 60) -> str:
-    kps = result.summary["knickpoints"]
+def _knickpoint_section(result: Assessment, s: dict, limit: int = 60) -> str:
+    kps = s["knickpoints"]
     if not kps:
         return "<h2 id=\"knickpoints\">Knickpoints</h2><p>No significant knickpoint was found.</p>"
 
@@ -274,8 +277,8 @@ def _knickpoint_section(result: Assessment, limit: int = 60) -> str:
                      numeric={2, 3, 4, 5, 6, 7, 8, 9, 10, 11}) + note)
 
 
-def _robustness_section(result: Assessment) -> str:
-    rob = result.summary.get("robustness") or {}
+def _robustness_section(result: Assessment, s: dict) -> str:
+    rob = s.get("robustness") or {}
     runs = rob.get("runs") or []
     if not runs:
         return ("<h2 id=\"robustness\">Robustness</h2><p>Not checked in this run (the confidence is reduced "
@@ -287,37 +290,30 @@ def _robustness_section(result: Assessment) -> str:
             + _table(["Change", "Verdict of the run (moves toward)", "Kept"], rows))
 
 
-def _parameter_section(result: Assessment) -> str:
-    params = result.summary["parameters"]
+def _parameter_section(result: Assessment, s: dict) -> str:
+    params = s["parameters"]
     automatic = set(result.automatic)
-    given = [[_e(k), _e(_plain(v))] for k, v in params.items() if k not in automatic]
-    chosen = [[_e(k), _e(_plain(v))] for k, v in params.items() if k in automatic]
+
+    def row(key: str, value: Any) -> list[str]:
+        name, unit = parameter_label(key)
+        return [_e(name), _e(parameter_value(value)), _e(unit), f"<code>{_e(key)}</code>"]
+
+    header = ["Parameter", "Value", "Unit", "Key in summary.json"]
+    given = [row(k, v) for k, v in params.items() if k not in automatic]
+    chosen = [row(k, v) for k, v in params.items() if k in automatic]
     return ("<h2 id=\"parameters\">Parameters</h2><h3>Settings (given, or the default)</h3>"
-            + _table(["Parameter", "Value"], given)
-            + "<h3>Chosen or derived by the tool</h3>" + _table(["Parameter", "Value"], chosen))
+            + _table(header, given, numeric={1})
+            + "<h3>Chosen or derived by the tool</h3>" + _table(header, chosen, numeric={1}))
 
 
-def _plain(value: Any) -> str:
-    if value is None:
-        return "—"
-    if isinstance(value, float):
-        return f"{value:.6g}"
-    if isinstance(value, dict):
-        return ", ".join(f"{k}: {_plain(v)}" for k, v in value.items()) or "—"
-    if isinstance(value, (list, tuple)):
-        return ", ".join(_plain(v) for v in value) or "—"
-    return str(value)
-
-
-def _data_section(result: Assessment) -> str:
-    s = result.summary
+def _data_section(result: Assessment, s: dict) -> str:
     dem = s["dem"]
     cond = s.get("conditioning") or {}
     rows = [["DEM file", _e(dem["path"] or "(in memory)")], ["CRS", _e(dem["crs"] or "none")],
             ["Grid", _e(f"{dem['shape'][0]} × {dem['shape'][1]} cells of {dem['cell_size_m'][0]:.3g} × "
                         f"{dem['cell_size_m'][1]:.3g} m")],
-            ["Conditioning", _e(_plain(cond))],
-            ["Calibration", _e(_plain(s.get("calibration") or {}))]]
+            ["Conditioning", _e(parameter_value(cond))],
+            ["Calibration", _e(parameter_value(s.get("calibration") or {}))]]
     notes = ""
     if result.dem.crs is None:
         notes = ("<p class=\"note\">The DEM has no coordinate reference system, so no GeoJSON layers were "
@@ -346,6 +342,7 @@ def render_report(
     *,
     captions: dict[str, str] | None = None,
     generated: _dt.date | None = None,
+    summary: dict | None = None,
 ) -> str:
     """The whole ``report.html`` as a string.
 
@@ -357,7 +354,10 @@ def render_report(
     captions : dict of str to str, optional
         Figure name -> caption.
     generated : datetime.date, optional
-        Date printed in the footer (default: today, UTC).
+        Date printed in the header (default: today, UTC).
+    summary : dict, optional
+        The summary.json document written beside the report (with
+        ``provenance``); default: ``result.summary`` with a provenance made now.
 
     Returns
     -------
@@ -368,7 +368,7 @@ def render_report(
 
     captions = captions or {}
     generated = generated or _dt.datetime.now(_dt.timezone.utc).date()
-    s = result.summary
+    s = summary if summary is not None else public_summary(result.summary, _provenance(result.dem.path))
     title = f"Divide assessment: {side_label(result, 'a')} vs {side_label(result, 'b')}"
     caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {_e(CAUTION)}</div>"
     body = "".join([
@@ -376,21 +376,22 @@ def render_report(
         f"<p class=\"sub\">DEM {_e(s['dem']['path'] or '(in memory)')} · {_e(s['dem']['crs'] or 'no CRS')} · "
         f"report of {_e(generated.isoformat())}</p>",
         caution,
-        _verdict_section(result),
-        _key_numbers(result),
-        _evidence_section(result),
+        _verdict_section(result, s),
+        _key_numbers(result, s),
+        _evidence_section(result, s),
         _figures_section(result, figures, captions),
-        _knickpoint_section(result),
-        _robustness_section(result),
-        _parameter_section(result),
-        _data_section(result),
+        _knickpoint_section(result, s),
+        _robustness_section(result, s),
+        _parameter_section(result, s),
+        _data_section(result, s),
         _methods_section(),
         "<h2 id=\"caution\">Caution</h2>",
         caution,
         "<p>The verdict rests on a DEM and on models of river incision that assume, unless told otherwise, "
         "uniform rock, climate and uplift across the divide. Lithology, faults, glacial history, landslides, "
         "human works and DEM artefacts can all mimic or hide divide motion.</p>",
-        f"<footer>Made with divides {_e(__version__)}, an open screening tool.</footer>",
+        f"<footer id=\"provenance\"><p>Made with divides {_e(__version__)}, an open screening tool.</p>"
+        f"<p>{_e(provenance_line(s.get('provenance') or {}))}</p></footer>",
     ])
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"

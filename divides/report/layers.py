@@ -323,13 +323,25 @@ def geojson_layers(result: Assessment) -> dict[str, dict]:
     """Every GeoJSON layer as a FeatureCollection (empty dict when the DEM has no CRS)."""
     if result.dem.crs is None:
         return {}
-    return {
+    layers = {
         "channels": _collection(channel_features(result)),
         "divide_points": _collection(divide_point_features(result)),
         "divide_lines": _collection(divide_line_features(result)),
         "knickpoints": _collection(knickpoint_features(result)),
         "equilibrium_divide": _collection(equilibrium_features(result)),
     }
+    _name_sides(result, layers)
+    return layers
+
+
+def _name_sides(result: Assessment, layers: dict[str, dict]) -> None:
+    """Beside every ``side`` property ("a"/"b"), the side's name (``--name-a``/``name_a=``, else "side a")."""
+    names = {k: getattr(result.config, f"name_{k}", None) or f"side {k}" for k in ("a", "b")}
+    for collection in layers.values():
+        for feature in collection["features"]:
+            props = feature["properties"]
+            if props.get("side") in names:
+                props["side_name"] = names[props["side"]]
 
 
 # ---------------------------------------------------------------- tables

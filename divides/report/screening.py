@@ -11,15 +11,20 @@ from typing import TYPE_CHECKING
 import numpy as np
 from matplotlib import colormaps
 from matplotlib.collections import LineCollection
+from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_json, write_text
 from divides.report import html as _html
-from matplotlib.cm import ScalarMappable
 
-from divides.report.figures import _display_extent, _figure, _frame, _hillshade, to_png
+from divides.report import figures as _figures
+from divides.report.figures import _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
+from divides.report.labels import parameter_label, parameter_value
 from divides.report.layers import _collection, _feature, _lonlat, csv_text
+from divides.report.provenance import provenance as _provenance
+from divides.report.provenance import public_summary
+from divides.report.text import provenance_line
 from divides.report.writer import staged_output
 
 if TYPE_CHECKING:  # pragma: no cover - types only
@@ -96,12 +101,22 @@ def regional_map(result: Screening):
     ax.set_xlabel(frame.xlabel)
     ax.set_ylabel(frame.ylabel)
     ax.set_aspect(frame.aspect)
+    map_furniture(fig, ax, dem, frame)
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, shrink=0.7, label="instability (0 = no evidence of motion, 1 = strong)")
     ax.set_title("Divide segments by instability; arrows point toward the basin being captured", fontsize=10)
     return fig
 
 
-def _report(result: Screening, png: bytes, rows: list[dict], top: int = 25) -> str:
+def _parameter_table(params: dict) -> str:
+    rows = []
+    for key, value in params.items():
+        name, unit = parameter_label(key)
+        rows.append([_html._e(name), _html._e(parameter_value(value)), _html._e(unit),
+                     f"<code>{_html._e(key)}</code>"])
+    return _html._table(["Parameter", "Value", "Unit", "Key in screening.json"], rows, numeric={1})
+
+
+def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = 25) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
     header = ["rank", "instability", "confidence", "length (m)", "basins", "moves toward basin",
@@ -113,40 +128,58 @@ def _report(result: Screening, png: bytes, rows: list[dict], top: int = 25) -> s
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 6})
     p = result.parameters
     caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}</div>"
+    lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
+            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
     body = "".join([
         "<h1>Regional divide screening</h1>",
-        f"<p class=\"sub\">DEM {e(result.dem.path or '(in memory)')} · "
-        f"{e(result.dem.crs.to_string() if result.dem.crs is not None else 'no CRS')} · "
+        f"<p class=\"sub\">DEM {e(document['dem']['path'] or '(in memory)')} · "
+        f"{e(document['dem']['crs'] or 'no CRS')} · "
         f"report of {e(_dt.datetime.now(_dt.timezone.utc).date().isoformat())}</p>",
         caution,
-        f"<p>{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
-        f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion. "
-        "Instability = confidence of the segment's verdict × strength of the agreeing contrasts; "
+        f"<section class=\"verdict\" id=\"verdict\"><p class=\"lead\">{lead}</p>"
+        "<p>Instability = confidence of the segment's verdict × strength of the agreeing contrasts; "
         "a screening ranks where to look first, it does not replace an assessment of each divide "
-        "(<code>divides assess</code>) and field work.</p>",
+        "(<code>divides assess</code>) and field work.</p></section>",
         "<figure><img alt=\"regional map\" src=\"data:image/png;base64,"
         + base64.b64encode(png).decode("ascii") + "\"><figcaption>Divide segments coloured by instability "
-        "(cividis, colour-blind safe); arrows point toward the basin losing ground.</figcaption></figure>",
+        "(cividis: colour-blind safe and readable in greyscale); arrows point toward the basin losing ground. "
+        "<span class=\"note\">(files: figures/regional_map.png, figures/regional_map.svg)</span>"
+        "</figcaption></figure>",
         f"<h2>The {min(top, len(rows))} least stable segments</h2>", table,
-        "<h2>Parameters</h2>", _html._table(["parameter", "value"], [[e(k), e(_html._plain(v))] for k, v in p.items()]),
+        "<h2>Parameters</h2>", _parameter_table(p),
         "<h2>Caution</h2>", caution,
+        f"<footer id=\"provenance\"><p>{e(provenance_line(document.get('provenance') or {}))}</p></footer>",
     ])
-    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>Regional divide screening"
-            f"</title><style>{_html._CSS}</style></head><body><main>{body}</main></body></html>\n")
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"><title>Regional divide "
+            f"screening</title><style>{_html._CSS}</style></head><body><main>{body}</main></body></html>\n")
 
 
-def write_screening(result: Screening, out_dir, *, overwrite: bool = False) -> Path:
-    """Write a screening's outputs into ``out_dir`` atomically (see :func:`divides.report.writer.staged_output`)."""
+def write_screening(result: Screening, out_dir, *, overwrite: bool = False, command: list[str] | None = None,
+                    cli: bool = False) -> Path:
+    """Write a screening's outputs into ``out_dir`` atomically (see :func:`divides.report.writer.staged_output`).
+
+    ``screening.json`` and the ``summary.json`` marker carry ``provenance``
+    (see :func:`divides.report.provenance.provenance`; ``command`` as run on
+    the command line, None from Python); no output holds a folder path.
+    ``cli`` makes errors name ``--out``/``--overwrite``.
+    """
     rows = segment_rows(result)
-    with staged_output(out_dir, overwrite=overwrite) as tmp:
-        write_json(tmp / "screening.json", result.to_dict())
+    prov = _provenance(result.dem.path, command=command)
+    document = public_summary(result.to_dict(), prov)
+    with staged_output(out_dir, overwrite=overwrite, cli=cli) as tmp:
+        write_json(tmp / "screening.json", document)
         if result.dem.crs is not None:
             write_json(tmp / "segments.geojson", _collection(segment_features(result)))
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
-        png = to_png(regional_map(result))
+        fig = regional_map(result)
+        png = to_png(fig)
         with atomic_write(tmp / "figures" / "regional_map.png", parents=True) as f:
             f.write_bytes(png)
-        write_text(tmp / "report.html", _report(result, png, rows))
+        with atomic_write(tmp / "figures" / "regional_map.svg", parents=True) as f:
+            f.write_bytes(_figures.to_svg(fig))
+        write_text(tmp / "report.html", _report(result, png, rows, document))
         # marks the folder as a divides output, so --overwrite may replace it later
-        write_json(tmp / "summary.json", {"schema": "divides.screening/1", "n_segments": len(rows)})
+        write_json(tmp / "summary.json", {"schema": "divides.screening/1", "provenance": prov,
+                                          "n_segments": len(rows)})
     return Path(os.path.abspath(os.fspath(out_dir)))

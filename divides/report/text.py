@@ -9,13 +9,21 @@ from divides.assess.verdict import CAUTION
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
 
-__all__ = ["verdict_text", "direction_phrase", "side_label"]
+__all__ = ["verdict_text", "direction_phrase", "side_label", "side_name", "provenance_line"]
+
+
+def side_name(result: Assessment, side: str) -> str | None:
+    """The name the user gave a side (``--name-a``/``name_a=``), or None."""
+    return getattr(result.config, f"name_{side}", None)
 
 
 def side_label(result: Assessment, side: str | None) -> str:
-    """``"side a (west)"``: the side's letter with the SPEC the user gave."""
+    """``"Tallow (side a)"`` with a name given, else ``"side a (west)"``: the letter with the SPEC."""
     if side not in ("a", "b"):
         return "neither side"
+    name = side_name(result, side)
+    if name:
+        return f"{name} (side {side})"
     spec = (result.sides.a if side == "a" else result.sides.b).spec.text
     return f"side {side} ({spec})"
 
@@ -36,14 +44,16 @@ def _num(v: float | None, fmt: str = ".3g", unit: str = "") -> str:
     return f"{v:{fmt}}{(' ' + unit) if unit else ''}"
 
 
-def verdict_text(result: Assessment) -> str:
+def verdict_text(result: Assessment, *, summary: dict | None = None) -> str:
     """The text of ``verdict.txt``.
 
     A header of key numbers (DEM, sides, verdict, confidence, rate,
     equilibrium divide, the main parameters) followed by the verdict text of
-    the assessment and the caution, which is always present.
+    the assessment and the caution, which is always present. ``summary`` is
+    the document written as summary.json (default ``result.summary``); its
+    ``provenance``, when present, closes the text.
     """
-    s = result.summary
+    s = result.summary if summary is None else summary
     v = s["verdict"]
     dem = s["dem"]
     p = s["parameters"]
@@ -53,7 +63,8 @@ def verdict_text(result: Assessment) -> str:
                  f"{dem['shape'][0]} x {dem['shape'][1]} cells of {dx:.3g} x {dy:.3g} m")
     for name in ("a", "b"):
         side = s["sides"][name]
-        lines.append(f"Side {name}:      {side['spec']}; {_num(side['area_km2'])} km²; "
+        given = side_name(result, name)
+        lines.append(f"Side {name}:      {given + ', ' if given else ''}{side['spec']}; {_num(side['area_km2'])} km²; "
                      f"{side['n_channel_heads']} channel heads")
     lines.append(f"Divide:      {_num(s['divide'].get('length_m'), ',.0f', 'm')} long, "
                  f"{s['divide'].get('n_samples', 'n/a')} sample points")
@@ -79,4 +90,14 @@ def verdict_text(result: Assessment) -> str:
     lines += ["", v["text"].rstrip()]
     if CAUTION not in v["text"]:
         lines += ["", CAUTION]
+    if s.get("provenance"):
+        lines += ["", provenance_line(s["provenance"])]
     return "\n".join(lines) + "\n"
+
+
+def provenance_line(prov: dict) -> str:
+    """One line saying what made the outputs: version, time, command, DEM file and its SHA-256."""
+    command = " ".join(prov.get("command") or []) or "(written from Python)"
+    sha = prov.get("dem_sha256")
+    return (f"Made by divides {prov.get('tool_version')} on {prov.get('created_utc')}; command: {command}; "
+            f"DEM {prov.get('dem_file') or '(in memory)'}" + (f", SHA-256 {sha}" if sha else ""))

@@ -17,7 +17,7 @@ import shutil
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager, suppress
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from divides.errors import DividesError, OutputError
 from divides.io.writing import atomic_write, write_json, write_text
@@ -25,11 +25,13 @@ from divides.report import figures as _figures
 from divides.report import html as _html
 from divides.report import layers as _layers
 from divides.report import text as _text
+from divides.report.provenance import provenance as _provenance
+from divides.report.provenance import public_summary
 
 if TYPE_CHECKING:  # pragma: no cover - imports for type hints only
     from divides.assess.assessment import Assessment
 
-__all__ = ["write_assessment", "staged_output", "check_out_dir", "STAGES"]
+__all__ = ["write", "write_assessment", "staged_output", "check_out_dir", "STAGES"]
 
 #: Stages reported to ``progress``, in order (a progress bar can size itself from this).
 STAGES = (
@@ -64,8 +66,24 @@ def _is_previous_output(folder: Path) -> bool:
     return isinstance(schema, str) and schema.startswith("divides.")
 
 
-def check_out_dir(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Path:
+#: How an error names the two ways out: command-line options, or the Python arguments.
+_WAYS_OUT = {
+    True: ("--overwrite", "give another folder with --out DIR"),
+    False: ("overwrite=True", "choose another out_dir"),
+}
+
+
+def check_out_dir(out_dir: str | os.PathLike, *, overwrite: bool = False, cli: bool = False) -> Path:
     """Check that ``out_dir`` may be written (before a long run) and return it as an absolute path.
+
+    Parameters
+    ----------
+    out_dir : str or os.PathLike
+    overwrite : bool
+        An existing earlier output may be replaced.
+    cli : bool
+        Name the ways out as command-line options (``--out``, ``--overwrite``)
+        rather than as Python arguments (``out_dir``, ``overwrite=True``).
 
     Raises
     ------
@@ -75,20 +93,22 @@ def check_out_dir(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Pat
         output (which ``overwrite`` never replaces).
     """
     out = Path(os.path.abspath(os.fspath(out_dir)))
-    _check_target(out, overwrite)
+    _check_target(out, overwrite, cli)
     return out
 
 
-def _check_target(out: Path, overwrite: bool) -> None:
+def _check_target(out: Path, overwrite: bool, cli: bool = False) -> None:
+    replace, elsewhere = _WAYS_OUT[cli]
     if out.is_symlink() or out.exists():
         if not out.is_dir() or out.is_symlink():
-            raise OutputError(f"cannot write outputs to '{out}': it exists and is not a folder; choose another --out")
+            raise OutputError(f"cannot write outputs to '{out}': it exists and is not a folder; {elsewhere}")
         if not overwrite:
-            raise OutputError(f"output folder '{out}' already exists; choose another --out or pass --overwrite")
+            raise OutputError(f"output folder '{out}' already exists (an earlier run?); pass {replace} to "
+                              f"replace it, or {elsewhere}")
         if not _is_previous_output(out):
             raise OutputError(
                 f"output folder '{out}' exists and is not an earlier divides output (no divides summary.json); "
-                "refusing to replace it even with --overwrite: remove it yourself or choose another --out"
+                f"refusing to replace it even with {replace}: remove it yourself or {elsewhere}"
             )
 
 
@@ -108,22 +128,25 @@ def _make_temporary(out: Path) -> Path:
     raise OutputError(f"cannot write outputs to '{out}': no free temporary name in '{out.parent}'")
 
 
-def _write_all(result: Assessment, folder: Path, step: Callable[[str], None]) -> None:
+def _write_all(result: Assessment, folder: Path, step: Callable[[str], None], summary: dict) -> None:
     step("summary.json")
-    write_json(folder / "summary.json", result.summary)
+    write_json(folder / "summary.json", summary)
     step("verdict.txt")
-    write_text(folder / "verdict.txt", _text.verdict_text(result))
+    write_text(folder / "verdict.txt", _text.verdict_text(result, summary=summary))
     step("layers")
     _layers.write_layers(result, folder / "layers")
     step("rasters")
     _layers.write_rasters(result, folder / "rasters")
     step("tables")
     _layers.write_tables(result, folder / "tables")
-    pngs = _figures.render_figures(result, progress=step)
+    vectors: dict[str, bytes] = {}
+    pngs = _figures.render_figures(result, progress=step, vectors=vectors)
     for name, png in pngs.items():
         _write_bytes(folder / "figures" / f"{name}.png", png)
+    for name, svg in vectors.items():
+        _write_bytes(folder / "figures" / f"{name}.svg", svg)
     step("report.html")
-    write_text(folder / "report.html", _html.render_report(result, pngs, captions=_figures.CAPTIONS))
+    write_text(folder / "report.html", _html.render_report(result, pngs, captions=_figures.CAPTIONS, summary=summary))
 
 
 def _write_bytes(path: Path, data: bytes) -> Path:
@@ -150,7 +173,7 @@ def _move_into_place(tmp: Path, out: Path) -> None:
 
 
 @contextmanager
-def staged_output(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Iterator[Path]:
+def staged_output(out_dir: str | os.PathLike, *, overwrite: bool = False, cli: bool = False) -> Iterator[Path]:
     """Build an output folder under a temporary name and move it into place when the block succeeds.
 
     Yields a new, empty, hidden folder beside ``out_dir``. When the block
@@ -161,13 +184,13 @@ def staged_output(out_dir: str | os.PathLike, *, overwrite: bool = False) -> Ite
     Raises
     ------
     OutputError
-        As :func:`check_out_dir`, or when the location cannot be written.
+        As :func:`check_out_dir` (``cli`` as there), or when the location cannot be written.
     """
-    out = check_out_dir(out_dir, overwrite=overwrite)
+    out = check_out_dir(out_dir, overwrite=overwrite, cli=cli)
     tmp = _make_temporary(out)
     try:
         yield tmp
-        _check_target(out, overwrite)  # someone may have created it meanwhile
+        _check_target(out, overwrite, cli)  # someone may have created it meanwhile
         _move_into_place(tmp, out)
     except BaseException as exc:
         shutil.rmtree(tmp, ignore_errors=True)
@@ -182,12 +205,16 @@ def write_assessment(
     *,
     overwrite: bool = False,
     progress: Callable[[str], None] | None = None,
+    command: list[str] | None = None,
+    cli: bool = False,
 ) -> Path:
     """Write every output of an assessment into ``out_dir``.
 
-    Files: ``summary.json``, ``verdict.txt``, ``report.html``,
-    ``figures/*.png``, ``layers/*.geojson`` (RFC 7946, WGS 84 lon/lat; none
-    when the DEM has no CRS), ``rasters/*.tif`` and ``tables/*.csv``.
+    Files: ``summary.json`` (with ``provenance``), ``verdict.txt``,
+    ``report.html``, ``figures/*.png`` (200 dpi) and ``figures/*.svg``,
+    ``layers/*.geojson`` (RFC 7946, WGS 84 lon/lat; none when the DEM has no
+    CRS), ``rasters/*.tif`` and ``tables/*.csv``. No output holds a folder
+    path: the DEM is named by its file name.
 
     Parameters
     ----------
@@ -199,6 +226,11 @@ def write_assessment(
         `divides` output) once the new outputs are complete.
     progress : callable, optional
         Called with the name of each stage (see :data:`STAGES`) as it starts.
+    command : list of str, optional
+        The command-line arguments that made ``result`` (recorded in
+        ``provenance.command`` with paths reduced to file names); None from Python.
+    cli : bool
+        Errors name the command-line options rather than the Python arguments.
 
     Returns
     -------
@@ -212,7 +244,49 @@ def write_assessment(
         earlier output, or cannot be written; the message names the path.
     """
     step = progress if progress is not None else (lambda stage: None)
-    with staged_output(out_dir, overwrite=overwrite) as tmp:
-        _write_all(result, tmp, step)
+    summary = public_summary(result.summary, _provenance(result.dem.path, command=command))
+    with staged_output(out_dir, overwrite=overwrite, cli=cli) as tmp:
+        _write_all(result, tmp, step, summary)
         step("finishing")
     return Path(os.path.abspath(os.fspath(out_dir)))
+
+
+def write(result: Any, out_dir: str | os.PathLike, *, overwrite: bool = False, **options: Any) -> Path:
+    """Write the outputs of an assessment or a screening into a new folder ``out_dir``.
+
+    The one entry for notebooks and scripts (``divides.write(result, "out")``):
+    writing belongs to the report room, so the analysis rooms never import it.
+
+    Parameters
+    ----------
+    result : Assessment or Screening
+    out_dir : str or os.PathLike
+    overwrite : bool
+        Replace an earlier `divides` output in ``out_dir``.
+    **options
+        ``progress`` (assessments only), ``command``, ``cli``: see
+        :func:`write_assessment`.
+
+    Returns
+    -------
+    pathlib.Path
+        The output folder.
+
+    Raises
+    ------
+    OutputError
+        As :func:`write_assessment`.
+    TypeError
+        ``result`` is neither an assessment nor a screening.
+    """
+    from divides.assess.assessment import Assessment
+    from divides.assess.screen import Screening
+
+    if isinstance(result, Assessment):
+        return write_assessment(result, out_dir, overwrite=overwrite, **options)
+    if isinstance(result, Screening):
+        from divides.report.screening import write_screening
+
+        options.pop("progress", None)
+        return write_screening(result, out_dir, overwrite=overwrite, **options)
+    raise TypeError(f"divides.write takes the result of divides.assess or of the screening; got {type(result).__name__}")

@@ -30,7 +30,7 @@ UPLANDS = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
 BASE = ["--side-a", "west", "--side-b", "east", "--closed-edges", "north,south", "--no-robustness"]
 # Options with values chosen here: the run must carry exactly these into summary.json.
 TYPED = ["--theta", "0.5", "--channel-area", "90000", "--reference-area", "180000", "--dem-error", "0.5",
-         "--erosion-rate-a", "0.7", "--seed", "7"]
+         "--erosion-rate-a", "0.7", "--seed", "7", "--name-a", "River Tallow", "--name-b", "Quern Water"]
 
 
 def _run(argv: list[str]) -> tuple[int, str, str]:
@@ -115,7 +115,7 @@ def test_text_output_default_folder_and_quiet(tmp_path, monkeypatch):
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet"])
     assert code == 0
     assert err == ""  # --quiet: nothing on stderr
-    folder = tmp_path / "divides-uplands"  # the documented default: ./divides-<DEM name>
+    folder = tmp_path / "divides-uplands-assess"  # the documented default: ./divides-<DEM name>-<command>
     summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
     assert out.startswith(summary["verdict"]["text"])
     # The cautions every verdict carries (project rules).
@@ -127,7 +127,9 @@ def test_text_output_default_folder_and_quiet(tmp_path, monkeypatch):
     # Again: refused without --overwrite (nothing changes), replaced with it.
     (folder / "marker").write_text("from the first run")
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet"])
-    assert code == 2 and "--overwrite" in err and (folder / "marker").exists()
+    # one line naming both ways out
+    assert code == 2 and "--overwrite" in err and "--out" in err and (folder / "marker").exists()
+    assert len(err.strip().splitlines()) == 1
     code, out, err = _run(["assess", str(UPLANDS), *BASE, "--quiet", "--overwrite"])
     assert code == 0, err
     assert not (folder / "marker").exists() and (folder / "summary.json").is_file()
@@ -156,10 +158,11 @@ def test_runoff_raster_weights_chi(tmp_path):
     plain = _chi(tmp_path, "plain")
     # Uniform runoff: scaled by its mean it is 1 everywhere, so weighted χ is plain χ (definition).
     uniform = _write_like_dem(tmp_path / "uniform.tif", np.full((rows, cols), 3.0))
-    assert _chi(tmp_path, "uniform", "--runoff", uniform) == pytest.approx(plain, rel=1e-9)
+    assert _chi(tmp_path, "uniform", "--runoff-raster", uniform) == pytest.approx(plain, rel=1e-9)
     # A wetter east (side b): more discharge there, so less χ on side b and more on the drier side a.
     wet = np.ones((rows, cols))
     wet[:, cols // 2:] = 2.0
+    # --runoff: the older name of --runoff-raster, still accepted
     a, b = _chi(tmp_path, "wet", "--runoff", _write_like_dem(tmp_path / "wet.tif", wet))
     assert b < plain[1] and a > plain[0]
 
@@ -189,11 +192,15 @@ def test_help_names_the_options_scripts_rely_on():
     assert code == 0 and err == ""
     # The option names fixed by DESIGN.md, plus the others the brief lists.
     for option in ("--side-a", "--side-b", "--theta", "--channel-area", "--reference-area", "--base-level",
-                   "--dem-error", "--erosion-rate-a", "--erosion-rate-b", "--runoff", "--erodibility", "--seed",
-                   "--lonlat", "--out", "--overwrite", "--json", "--quiet", "--closed-edges", "--no-robustness",
-                   "--n", "--uplift", "--erodibility-k", "--knickpoint-age", "--band", "--bounds",
-                   "--vertical-unit", "--cell-size", "--sea-level", "--conditioning"):
+                   "--dem-error", "--erosion-rate-a", "--erosion-rate-b", "--runoff-raster", "--erodibility-raster",
+                   "--seed", "--lonlat", "--out", "--overwrite", "--json", "--quiet", "--closed-edges",
+                   "--no-robustness", "--n", "--uplift-raster", "--erodibility-k", "--knickpoint-age", "--band",
+                   "--bounds", "--vertical-unit", "--cell-size", "--sea-level", "--conditioning", "--name-a",
+                   "--name-b"):
         assert f"{option} " in out or f"{option}," in out, option
+    # rasters and single values are told apart by name: the older raster names are hidden aliases
+    for hidden in ("--runoff ", "--erodibility ", "--uplift "):
+        assert hidden not in out, hidden
 
 
 def test_help_of_assess_and_demo_imports_nothing_heavy():
@@ -252,3 +259,33 @@ def test_progress_redraws_one_line_on_a_terminal():
     progress.step("summary.json", 1, 1)
     progress.finish()
     assert quiet.getvalue() == ""
+
+
+def test_named_sides_reach_the_verdict_layers_report_and_json(typed_run):
+    s = typed_run["summary"]
+    # the names typed in TYPED
+    assert (s["sides"]["a"]["name"], s["sides"]["b"]["name"]) == ("River Tallow", "Quern Water")
+    assert "River Tallow (side a)" in s["verdict"]["text"] and "side a (west)" not in s["verdict"]["text"]
+    folder = typed_run["folder"]
+    assert "Quern Water" in (folder / "verdict.txt").read_text(encoding="utf-8")
+    assert "River Tallow (side a)" in (folder / "report.html").read_text(encoding="utf-8")
+    channels = json.loads((folder / "layers" / "channels.geojson").read_text(encoding="utf-8"))
+    named = {(f["properties"]["side"], f["properties"]["side_name"]) for f in channels["features"]}
+    assert named == {("a", "River Tallow"), ("b", "Quern Water")}
+
+
+def test_the_verdict_quotes_the_erosion_rate_typed(typed_run):
+    text = typed_run["summary"]["verdict"]["text"]
+    assert "0.7 mm/yr" in text and "River Tallow" in text  # --erosion-rate-a 0.7 for the named side a
+
+
+def test_provenance_records_the_command_with_file_names_only(typed_run):
+    prov = typed_run["summary"]["provenance"]
+    # the arguments as typed (TYPED and BASE), with the DEM and --out reduced to file names
+    assert prov["command"] == ["divides", "assess", "uplands.tif", *BASE, *TYPED, "--json", "--out", "out"]
+    assert prov["dem_file"] == "uplands.tif"
+    folder = typed_run["folder"]
+    for path in folder.rglob("*"):  # no folder of the DEM or of the outputs in any file
+        if path.is_file():
+            data = path.read_bytes()
+            assert str(folder.parent).encode() not in data and str(UPLANDS.parent).encode() not in data, path

@@ -48,6 +48,8 @@ def test_demo_runs_cold_in_under_a_minute(cold_run):
     assert proc.returncode == 0, proc.stderr
     assert cold_run["seconds"] < 60, f"the demo took {cold_run['seconds']:.1f} s from a cold start"
     assert "Traceback" not in proc.stderr and "error" not in proc.stderr
+    # an empty numba cache: the wait for compilation is announced
+    assert "compiling fast kernels (first run only" in proc.stderr
 
 
 def test_demo_says_where_the_report_is(cold_run):
@@ -95,3 +97,15 @@ def test_demo_json_and_quiet(tmp_path, capsys):
     assert code == 0, out.err
     assert out.err == ""
     assert json.loads(out.out)["schema"] == "divides.assessment/1"
+
+
+def test_demo_names_its_rivers_and_refuses_a_second_run_in_one_line(cold_run):
+    summary = json.loads((cold_run["folder"] / "summary.json").read_text(encoding="utf-8"))
+    # the story's rivers (demo/README.md): the Tallow on the west (side a), the Quern Water on the east
+    assert (summary["sides"]["a"]["name"], summary["sides"]["b"]["name"]) == ("River Tallow", "Quern Water")
+    assert summary["provenance"]["command"] == ["divides", "demo"]
+    assert summary["provenance"]["dem_file"] == "uplands.tif"
+    proc = subprocess.run([sys.executable, "-m", "divides", "demo", "--quiet"], cwd=cold_run["folder"].parent,
+                          capture_output=True, text=True, timeout=300, check=False)
+    assert proc.returncode == 2 and len(proc.stderr.splitlines()) == 1, proc.stderr
+    assert "--overwrite" in proc.stderr and "--out" in proc.stderr

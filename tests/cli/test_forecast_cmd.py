@@ -113,12 +113,21 @@ def test_json_on_stdout_is_the_written_document(run, ridge_tif, tmp_path):
     assert printed["parameters"]["calibration"] == "erodibility K"
 
 
-def test_without_out_it_prints_and_writes_nothing(run, ridge_tif, tmp_path, monkeypatch):
-    monkeypatch.chdir(tmp_path)
+def test_without_out_it_writes_the_default_folder(run, ridge_tif, tmp_path, monkeypatch):
+    work = tmp_path / "work"
+    work.mkdir()
+    monkeypatch.chdir(work)
+    # --uplift: the older name of --uplift-pattern, still accepted
     code, stdout, stderr = run(ridge_tif, *BASE, "--erosion-rate-b", "0.1", "--uplift", "sides")
     assert code == 0, stderr
     assert "Uplift: each side" in stdout and CAUTION in stdout
-    assert list(tmp_path.iterdir()) == []
+    stem = Path(ridge_tif).stem
+    assert [p.name for p in work.iterdir()] == [f"divides-{stem}-forecast"]  # ./divides-<DEM>-<command>
+    head = json.loads((work / f"divides-{stem}-forecast" / "summary.json").read_text(encoding="utf-8"))
+    assert head["provenance"]["dem_file"] == Path(ridge_tif).name
+    # a second run into the same default folder: one line naming both ways out
+    code, stdout, stderr = run(ridge_tif, *BASE, "--erosion-rate-b", "0.1", "--uplift-pattern", "sides")
+    assert code == 2 and stderr.count("\n") == 1 and "--overwrite" in stderr and "--out" in stderr
 
 
 @pytest.mark.parametrize(

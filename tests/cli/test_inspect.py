@@ -369,3 +369,10 @@ def test_suggested_theta_falls_back_to_the_reference_value(capsys, write_geotiff
     theta = _inspect_json(capsys, path)["suggested"]["theta"]
     assert (theta["value"], theta["source"]) == (0.45, "reference")
     assert "could" in theta["reason"] and "0.45" in theta["reason"]
+
+
+def test_text_says_why_its_theta_differs_from_the_default(capsys):
+    # the reference θ of common practice (0.45) is what assess, screen and the demo use unless told otherwise
+    assert run(["inspect", str(UPLANDS)]) == 0
+    text = " ".join(capsys.readouterr().out.split())
+    assert "use the reference θ = 0.45" in text

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from affine import Affine
 
 import divides
 
@@ -24,3 +25,11 @@ def written(demo_result, tmp_path_factory):
     stages: list[str] = []
     out = demo_result.write(tmp_path_factory.mktemp("written") / "out", progress=stages.append)
     return demo_result, Path(out), stages
+
+
+@pytest.fixture(scope="session")
+def geographic_result():
+    """The demo surface laid on a longitude/latitude grid (0.0004° × 0.0003°, about 30 × 33 m at 47° N)."""
+    z = divides.read_dem(DEMO).elevation
+    dem = divides.Dem.from_array(z, transform=Affine(0.0004, 0, 10.0, 0, -0.0003, 47.0), crs="EPSG:4326")
+    return divides.assess(dem, "west", "east", robustness=False, n_bootstrap=100)

@@ -20,14 +20,6 @@ from divides.report import figures, layers
 DEMO = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
 
 
-@pytest.fixture(scope="module")
-def geographic_result():
-    """The demo surface laid on a longitude/latitude grid (0.0004° × 0.0003°, about 30 × 33 m at 47° N)."""
-    z = divides.read_dem(DEMO).elevation
-    dem = divides.Dem.from_array(z, transform=Affine(0.0004, 0, 10.0, 0, -0.0003, 47.0), crs="EPSG:4326")
-    return divides.assess(dem, "west", "east", robustness=False, n_bootstrap=100)
-
-
 def test_geographic_layers_are_the_grid_coordinates(geographic_result) -> None:
     result = geographic_result
     feats = layers.divide_point_features(result)
@@ -42,7 +34,8 @@ def test_geographic_layers_are_the_grid_coordinates(geographic_result) -> None:
 def test_geographic_figures_use_degrees_and_render(geographic_result) -> None:
     fig = figures.map_figure(geographic_result)
     ax = fig.axes[0]
-    assert ax.get_xlabel() == "Longitude (°)" and ax.get_ylabel() == "Latitude (°)"
+    # the CRS line under the axis label: EPSG:4326 is "WGS 84" in the EPSG registry (pyproj's copy)
+    assert ax.get_xlabel() == "Longitude (°)\nWGS 84 (EPSG:4326)" and ax.get_ylabel() == "Latitude (°)"
     # at 47° N a degree of longitude is cos(47°) as long as one of latitude (spherical approximation)
     assert ax.get_aspect() == pytest.approx(1 / math.cos(math.radians(46.97)), rel=1e-3)
     lo, hi = ax.get_xlim()
@@ -70,7 +63,7 @@ def test_a_dem_without_crs_gets_rasters_but_no_geojson(demo_result, tmp_path: Pa
     summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     assert summary["dem"]["crs"] is None
     assert "no coordinate reference system" in (out / "report.html").read_text(encoding="utf-8")
-    assert figures.map_figure(local).axes[0].get_xlabel() == "x (km)"
+    assert figures.map_figure(local).axes[0].get_xlabel() == "x (km)\nno CRS: local grid in metres"
 
 
 def test_motion_index_worked_by_hand() -> None:
@@ -105,7 +98,8 @@ def test_figure_functions_return_drawable_figures(demo_result) -> None:
 def _arrows(fig):
     from matplotlib.text import Annotation
 
-    return [t for t in fig.axes[0].texts if isinstance(t, Annotation)]
+    # the north arrow is an annotation too; it is told apart by its gid
+    return [t for t in fig.axes[0].texts if isinstance(t, Annotation) and t.get_gid() != "north-arrow"]
 
 
 def test_map_arrows_point_into_the_victim_side(demo_result) -> None:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import base64
 import dataclasses
 import io
+import json
 import re
 from html.parser import HTMLParser
 
@@ -102,7 +103,8 @@ def test_report_embeds_every_figure_as_png(written) -> None:
 
 
 def test_text_from_inputs_is_escaped(demo_result) -> None:
-    nasty = "<script>alert('x')</script> & \"quoted\" <b>bold</b>.tif"
+    # no "/" or "\\" in it: outputs name the DEM by its file name, so a separator would cut the name short
+    nasty = "<script>alert('x') & \"quoted\" <img src=x onerror=alert(1)>.tif"
     pages = {}
     for path in (nasty, "plain.tif"):
         result = dataclasses.replace(demo_result, dem=dataclasses.replace(demo_result.dem, path=path))
@@ -119,3 +121,32 @@ def test_robustness_runs_are_tabulated(demo_result) -> None:
     result = dataclasses.replace(demo_result, robustness=runs)
     flat = _flat(_parse(report_html.render_report(result, {})))
     assert "θ = 0.35 <x>" in flat and "channel area × 2" in flat
+
+
+def test_parameters_are_named_in_words_with_units(written) -> None:
+    result, out, _ = written
+    page = (out / "report.html").read_text(encoding="utf-8")
+    section = page[page.index('id="parameters"'):page.index('id="data"')]
+    rows = re.findall(r"<tr><td>(.*?)</td><td class=\"n\">(.*?)</td><td>(.*?)</td><td><code>(.*?)</code></td></tr>",
+                      section)
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert sorted(r[3] for r in rows) == sorted(summary["parameters"])  # every parameter, once
+    for name, _value, unit, key in rows:
+        assert "_" not in name, name  # a plain name, not the key
+        # SI unit symbols (BIPM SI brochure): areas in m², lengths in m
+        if key.endswith("_m2"):
+            assert unit == "m²", key
+        elif key.endswith("_m"):
+            assert unit == "m", key
+    words = {r[3]: r[0] for r in rows}
+    assert words["a0_m2"].startswith("Reference drainage area") and words["n_bootstrap"].startswith("Bootstrap")
+    # the conditioning is a sentence, not a Python dictionary
+    data = page[page.index('id="data"'):]
+    assert "{" not in data.split("Conditioning", 1)[1].split("</tr>", 1)[0]
+
+
+def test_ksn_card_has_its_unit(written) -> None:
+    _, out, _ = written
+    page = (out / "report.html").read_text(encoding="utf-8")
+    # ksn = S A^θ with A in m² and S in m/m: m^(2θ) (Wobus et al. 2006 normalise by a reference concavity)
+    assert re.search(r"Median ksn a / b \(m\^0\.9", page)

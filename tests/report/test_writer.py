@@ -39,7 +39,11 @@ def test_every_output_exists_and_parses(written) -> None:
         assert key in summary
     assert summary["verdict"]["moves_toward"] in ("a", "b", "stable", "undetermined")
     assert 0.0 <= summary["verdict"]["confidence"] <= 1.0
-    assert summary == json.loads(json.dumps(result.summary))  # the file is the in-memory document
+    # the file is the in-memory document, plus its provenance and with the DEM named by its file name
+    memory = json.loads(json.dumps(result.summary))
+    memory["dem"]["path"] = "uplands.tif"
+    assert {k: v for k, v in summary.items() if k != "provenance"} == memory
+    assert list(summary)[:2] == ["schema", "provenance"]
     for geojson in (out / "layers").glob("*.geojson"):
         _strict_json(geojson)
 
@@ -176,3 +180,52 @@ def test_staged_output_is_all_or_nothing(tmp_path: Path) -> None:
         (folder / "whole.txt").write_text("all", encoding="utf-8")
         assert not (tmp_path / "out").exists()  # nothing visible until the block ends
     assert _listing(tmp_path) == {"out"} and _listing(tmp_path / "out") == {"whole.txt"}
+
+
+def test_provenance_names_the_tool_the_time_and_the_dem(written) -> None:
+    import datetime as dt
+    import hashlib
+    from importlib.metadata import version
+
+    _, out, _ = written
+    prov = _strict_json(out / "summary.json")["provenance"]
+    assert set(prov) == {"tool_version", "created_utc", "command", "dem_file", "dem_sha256"}
+    assert prov["tool_version"] == version("divides")  # the installed distribution's metadata
+    # ISO 8601 in UTC ("Z"), parsed by the standard library, made moments ago
+    created = dt.datetime.fromisoformat(prov["created_utc"].replace("Z", "+00:00"))
+    assert created.tzinfo is not None and abs(dt.datetime.now(dt.timezone.utc) - created) < dt.timedelta(hours=1)
+    assert prov["command"] is None  # written from Python, not from the command line
+    assert prov["dem_file"] == "uplands.tif"
+    demo = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
+    assert prov["dem_sha256"] == hashlib.sha256(demo.read_bytes()).hexdigest()  # hashlib as the reference
+    # the same in the report's footer and at the end of verdict.txt
+    page = (out / "report.html").read_text(encoding="utf-8")
+    footer = page[page.index('<footer id="provenance">'):]
+    assert prov["dem_sha256"] in footer and prov["created_utc"] in footer and prov["tool_version"] in footer
+    assert prov["dem_sha256"] in (out / "verdict.txt").read_text(encoding="utf-8")
+
+
+def test_no_output_holds_a_folder_path(written) -> None:
+    """No file written carries the folders of the DEM or of the outputs (a client's folder structure)."""
+    _, out, _ = written
+    demo_dir = str(Path(__file__).resolve().parents[2] / "demo")
+    needles = [demo_dir.encode(), str(out.parent).encode()]
+    files = [p for p in out.rglob("*") if p.is_file()]
+    assert len(files) > 20  # every kind of output (json, txt, html, png, svg, geojson, tif, csv)
+    for path in files:
+        data = path.read_bytes()
+        for needle in needles:
+            assert needle not in data, (path.name, needle)
+
+
+def test_figures_are_200_dpi_png_and_svg(written) -> None:
+    _, out, _ = written
+    pngs = sorted((out / "figures").glob("*.png"))
+    svgs = sorted((out / "figures").glob("*.svg"))
+    assert [p.stem for p in pngs] == [p.stem for p in svgs] and pngs
+    for png in pngs:
+        with Image.open(png) as img:  # Pillow reads the pHYs chunk as dots per inch
+            assert img.info["dpi"] == pytest.approx((200, 200), abs=0.1)
+    for svg in svgs:
+        head = svg.read_bytes()[:400]
+        assert b"<svg" in svg.read_bytes()[:2000] and head.startswith(b"<?xml")  # SVG 1.1 prolog

@@ -1,0 +1,105 @@
+"""Checks of the options against the DEM, made right after reading it and before any routing.
+
+A mistake the DEM alone can reveal (too few valid cells, a side point outside
+the DEM or on nodata) is reported before the first progress line, so the user
+sees one error line and nothing else.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import TYPE_CHECKING
+
+from divides.errors import GridError, SideError
+
+if TYPE_CHECKING:  # pragma: no cover - type hints only
+    from divides.io.dem import Dem
+
+__all__ = ["MIN_INTERIOR_CELLS", "check_enough_cells", "check_side_points", "check_finite_points"]
+
+#: Fewest valid cells with eight valid neighbours: a 5 × 5 block of data. Below it there is no room
+#: for two basins and a divide between them (cells on the edge of the data are outlets).
+MIN_INTERIOR_CELLS = 9
+
+
+def check_enough_cells(dem: Dem) -> None:
+    """Refuse a DEM with too few valid cells for two basins and a divide.
+
+    Raises
+    ------
+    GridError
+        Fewer than :data:`MIN_INTERIOR_CELLS` valid cells have eight valid neighbours.
+    """
+    import numpy as np
+
+    valid = np.asarray(dem.valid, dtype=bool)
+    rows, cols = valid.shape
+    interior = 0
+    if rows >= 3 and cols >= 3:
+        core = valid[1:-1, 1:-1].copy()
+        for dr in (-1, 0, 1):
+            for dc in (-1, 0, 1):
+                core &= valid[1 + dr: rows - 1 + dr, 1 + dc: cols - 1 + dc]
+        interior = int(np.count_nonzero(core))
+    if interior < MIN_INTERIOR_CELLS:
+        n_valid = int(np.count_nonzero(valid))
+        used_rows = int(np.count_nonzero(valid.any(axis=1)))
+        used_cols = int(np.count_nonzero(valid.any(axis=0)))
+        name = dem.path.replace("\\", "/").rsplit("/", 1)[-1] if dem.path else "the DEM"
+        raise GridError(
+            f"DEM '{name}' has too few valid cells for a divide: {n_valid} valid cell(s) in {used_rows} row(s) x "
+            f"{used_cols} column(s), {interior} with all eight neighbours valid; at least a 5 x 5 block of data "
+            "is needed: check the file, its nodata value, --band and --bounds"
+        )
+
+
+def check_finite_points(spec_points: tuple[tuple[float, float], ...], *, option: str, text: str) -> None:
+    """Refuse coordinates that are not finite (``1e309`` reads as infinity).
+
+    Raises
+    ------
+    SideError
+    """
+    for x, y in spec_points:
+        if not (math.isfinite(x) and math.isfinite(y)):
+            raise SideError(f"{option} {text!r} has a coordinate too large to be a number (read as {x:g},{y:g}); "
+                            "give coordinates in the DEM's CRS (or longitude,latitude with --lonlat)")
+
+
+def check_side_points(dem: Dem, spec_points: tuple[tuple[float, float], ...], *, option: str, text: str,
+                      lonlat: bool) -> None:
+    """Refuse side points outside the DEM or on nodata cells, before routing.
+
+    Points that cannot be placed here (e.g. longitude,latitude on a DEM
+    without a CRS) are left to the assessment, which says why.
+
+    Raises
+    ------
+    SideError
+    """
+    import numpy as np
+
+    if not spec_points:
+        return
+    xs = np.array([p[0] for p in spec_points], dtype=np.float64)
+    ys = np.array([p[1] for p in spec_points], dtype=np.float64)
+    try:
+        if lonlat:
+            xs, ys = dem.from_lonlat(xs, ys)
+        t = dem.transform
+        with np.errstate(all="ignore"):  # in floats: a huge coordinate must not overflow an integer cast
+            cols = np.floor((np.asarray(xs, dtype=np.float64) - t.c) / t.a)
+            rows = np.floor((np.asarray(ys, dtype=np.float64) - t.f) / t.e)
+    except Exception:  # noqa: BLE001 - the assessment gives the precise reason
+        return
+    n_rows, n_cols = dem.shape
+    left, bottom, right, top = dem.bounds
+    for (x, y), r, c in zip(spec_points, rows, cols):
+        label = f"{x:g},{y:g}" + (" (lon,lat)" if lonlat else "")
+        if not (np.isfinite(r) and np.isfinite(c) and 0 <= r < n_rows and 0 <= c < n_cols):
+            raise SideError(f"{option} {text!r}: point {label} is outside the DEM (x {left:g} to {right:g}, "
+                            f"y {bottom:g} to {top:g} in the DEM's CRS"
+                            + ("" if lonlat else "; use --lonlat for longitude,latitude") + ")")
+        if not dem.valid[int(r), int(c)]:
+            raise SideError(f"{option} {text!r}: point {label} falls on a nodata cell of the DEM; "
+                            "give a point on land with data (snapping starts from a valid cell)")
