@@ -144,3 +144,23 @@ def test_knickpoints_without_a_defined_celerity_get_no_arrival_time(moving):
     assert knickpoints[0]["arrival_years"] is None
     assert knickpoints[1]["arrival_years"] == r.knickpoints[1]["arrival_years"]
     assert [A._sig2(v) for v in (132428.8, 0.0123456, 7.96, 1234.0)] == ["130,000", "0.012", "8", "1,200"]
+
+
+def test_summary_knickpoints_carry_q_value_and_celerity_and_undefined_ones_no_time(moving):
+    # Under E = K A^m S^n with n < 1 steeper slopes travel slower, so a break whose steeper reach is
+    # downstream spreads out and has no single speed (Royden & Perron 2013). The fallen side's
+    # knickpoints sit at the top of the steepened reach (steeper below): with n = 1 each has a time,
+    # with n = 0.8 none may have one. q is the Benjamini & Hochberg (1995) adjusted p, never below p.
+    timed = divides.assess(moving, "west", "east", erodibility=2e-5, **OPTIONS, **KNICK).summary["knickpoints"]
+    spread = divides.assess(moving, "west", "east", erodibility=2e-5, n=0.8, **OPTIONS, **KNICK).summary
+    assert timed and all(k["celerity_defined"] and k["arrival_years"] is not None for k in timed)
+    kps = spread["knickpoints"]
+    assert kps
+    for k in kps:
+        assert k["p_value"] <= k["q_value"] < 0.05
+        assert isinstance(k["celerity_note"], str) and k["celerity_note"]
+        if not k["celerity_defined"]:
+            assert k["arrival_years"] is None
+    undefined = [k for k in kps if not k["celerity_defined"]]
+    assert undefined
+    assert all(k["delta_ksn"] < 0 for k in undefined if k["kind"] == "slope-break")
