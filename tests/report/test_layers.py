@@ -71,9 +71,9 @@ def docs(written) -> dict[str, dict]:
 def fallen():
     """A model ridge 20 kyr after a 10 m fall of its eastern base level, with a CRS: real knickpoints.
 
-    On the demo the Tallow's wave of incision passed the western heads long ago and its valleys lie
-    mostly below the common base level (the Quern Water, 180 m), so no break there passes the
-    knickpoint test; this landscape has some (tests/assess/test_invariance.py).
+    On the demo more than half of the Tallow's channel cells lie below the common base level (the
+    Quern Water, 180 m) and no break passes the knickpoint test; this landscape has some
+    (tests/assess/test_invariance.py).
     """
     from affine import Affine
 
