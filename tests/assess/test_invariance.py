@@ -26,7 +26,7 @@ from divides.terrain.sides import network_outlets
 SHAPE = (40, 80)
 CELL = 100.0
 OPTIONS = {"closed_edges": ("north", "south"), "robustness": False, "n_bootstrap": 100}
-# The model DEM is exact (error only from rounding), so a declared error of 0.1 m is honest; the
+# The model DEM is exact (float64 model output), so a declared error of 0.1 m is honest; the
 # default 1 m would hide 10 m of relief change on a 33 m ridge. Channels from 0.2 km² give the
 # short fallen side enough nodes.
 KNICK = {"dem_error_m": 0.1, "channel_area_m2": 2e5}
