@@ -132,8 +132,9 @@ class Assessment:
             "contrasts": [c.to_dict() for c in self.contrasts],
             "knickpoints": [
                 {k: kp[k] for k in ("side", "x", "y", "elevation_m", "distance_to_divide_m", "arrival_years",
-                                    "kind", "delta_ksn", "step_m", "p_value", "chi", "area_m2")}
-                | {"celerity_defined": bool(kp.get("celerity_defined", True))}
+                                    "kind", "delta_ksn", "step_m", "p_value", "q_value", "chi", "area_m2",
+                                    "celerity_note")}
+                | {"celerity_defined": bool(kp["celerity_defined"])}
                 for kp in self.knickpoints
             ],
             "equilibrium": self.equilibrium.summary(),
@@ -367,7 +368,7 @@ def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
     for kp in core.profiles.knickpoints:
         arrival = None
         # a knickpoint whose celerity is not defined (a spreading break, a vertical step) gets no time
-        if cal.k is not None and kp.get("celerity_defined", True):
+        if cal.k is not None and kp["celerity_defined"]:
             remaining = (chi_top.get(kp["position"], kp["chi"]) - kp["chi"]) / to_unit
             speed = cal.k * float(step_celerity(kp["ksn_below"] * to_unit, kp["ksn_above"] * to_unit, config.n))
             years = remaining / speed

@@ -1,8 +1,16 @@
 """Invariances of the assessment, and one base level for every χ, on small model landscapes.
 
 Landscapes come from the project's stream-power model (divides.model) on a 40 x 80 grid of
-100 m cells: a symmetric ridge grown to steady state, and the same ridge 200 kyr after a
-20 m fall of its eastern base level (a moving divide with migrating knickpoints).
+100 m cells: a symmetric ridge grown to steady state (about 33 m high), and the same ridge 20 kyr
+after a 10 m fall of its eastern base level (a moving divide with migrating knickpoints).
+
+Why 10 m and 20 kyr: χ is measured from one base level, the highest outlet (the western edge,
+0 m), so only channels above 0 m are analysed. After a fall of 20 m and 200 kyr the knickpoints
+have swept most of the eastern side and everything below them stands under 0 m: the fallen side
+keeps streams of at most 6 channel nodes above the base level, too short to split into two
+segments of 8, so no knickpoint can be seen there (checked; the two candidate breaks left were
+on the steady western side, p = 1). A smaller, younger fall keeps the steepened reach above the
+base level, where the knickpoints can be found.
 """
 
 from __future__ import annotations
@@ -18,6 +26,10 @@ from divides.terrain.sides import network_outlets
 SHAPE = (40, 80)
 CELL = 100.0
 OPTIONS = {"closed_edges": ("north", "south"), "robustness": False, "n_bootstrap": 100}
+# The model DEM is exact (float64 model output), so a declared error of 0.1 m is honest; the
+# default 1 m would hide 10 m of relief change on a 33 m ridge. Channels from 0.2 km² give the
+# short fallen side enough nodes.
+KNICK = {"dem_error_m": 0.1, "channel_area_m2": 2e5}
 
 
 @pytest.fixture(scope="module")
@@ -27,20 +39,21 @@ def steady():
 
 @pytest.fixture(scope="module")
 def moving(steady):
-    fall = S.base_level_fall(SHAPE, side="east", drop=20.0, seed=4)
-    return simulate(steady, duration=2e5, dt=1e4, **fall.options).final
+    fall = S.base_level_fall(SHAPE, side="east", drop=10.0, seed=4)
+    return simulate(steady, duration=2e4, dt=4e3, **fall.options).final
 
 
 def test_rates_and_arrival_times_do_not_depend_on_the_reference_area(moving):
     # χ ∝ A0^θ and dz/dχ ∝ A0^−θ, so A0 cancels from every rate and time (Perron & Royden 2013);
     # issue 11 found them 500 x off with A0 = 1 km² (A0^m applied twice).
-    one = divides.assess(moving, "west", "east", a0_m2=1.0, erodibility=2e-5, **OPTIONS)
-    km2 = divides.assess(moving, "west", "east", a0_m2=1e6, erodibility=2e-5, **OPTIONS)
+    one = divides.assess(moving, "west", "east", a0_m2=1.0, erodibility=2e-5, **OPTIONS, **KNICK)
+    km2 = divides.assess(moving, "west", "east", a0_m2=1e6, erodibility=2e-5, **OPTIONS, **KNICK)
     assert one.rate is not None
     for key in ("low", "best", "high"):
         assert km2.rate[key] == pytest.approx(one.rate[key], rel=1e-9)
     timed = [k for k in one.knickpoints if k["arrival_years"] is not None]
     assert timed, "the base-level fall should leave at least one knickpoint with an arrival time"
+    assert all(k["side"] == "b" for k in one.knickpoints)  # the fall is on the eastern side (b)
     assert len(km2.knickpoints) == len(one.knickpoints)
     for k1, k2 in zip(one.knickpoints, km2.knickpoints):
         for key in ("low", "best", "high"):
@@ -121,7 +134,7 @@ def test_knickpoints_without_a_defined_celerity_get_no_arrival_time(moving):
     from divides.assess import assessment as A
     from divides.assess.contrasts import divide_samples
 
-    r = divides.assess(moving, "west", "east", erodibility=2e-5, **OPTIONS)
+    r = divides.assess(moving, "west", "east", erodibility=2e-5, **OPTIONS, **KNICK)
     assert len(r.knickpoints) >= 2
     core = A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
                    r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
@@ -131,3 +144,23 @@ def test_knickpoints_without_a_defined_celerity_get_no_arrival_time(moving):
     assert knickpoints[0]["arrival_years"] is None
     assert knickpoints[1]["arrival_years"] == r.knickpoints[1]["arrival_years"]
     assert [A._sig2(v) for v in (132428.8, 0.0123456, 7.96, 1234.0)] == ["130,000", "0.012", "8", "1,200"]
+
+
+def test_summary_knickpoints_carry_q_value_and_celerity_and_undefined_ones_no_time(moving):
+    # Under E = K A^m S^n with n < 1 steeper slopes travel slower, so a break whose steeper reach is
+    # downstream spreads out and has no single speed (Royden & Perron 2013). The fallen side's
+    # knickpoints sit at the top of the steepened reach (steeper below): with n = 1 each has a time,
+    # with n = 0.8 none may have one. q is the Benjamini & Hochberg (1995) adjusted p, never below p.
+    timed = divides.assess(moving, "west", "east", erodibility=2e-5, **OPTIONS, **KNICK).summary["knickpoints"]
+    spread = divides.assess(moving, "west", "east", erodibility=2e-5, n=0.8, **OPTIONS, **KNICK).summary
+    assert timed and all(k["celerity_defined"] and k["arrival_years"] is not None for k in timed)
+    kps = spread["knickpoints"]
+    assert kps
+    for k in kps:
+        assert k["p_value"] <= k["q_value"] < 0.05
+        assert isinstance(k["celerity_note"], str) and k["celerity_note"]
+        if not k["celerity_defined"]:
+            assert k["arrival_years"] is None
+    undefined = [k for k in kps if not k["celerity_defined"]]
+    assert undefined
+    assert all(k["delta_ksn"] < 0 for k in undefined if k["kind"] == "slope-break")
