@@ -151,6 +151,11 @@ def run(argv: Sequence[str] | None = None) -> int:
         except (OSError, ValueError, AttributeError):  # stdout is not a real file
             pass
         return EXIT_INTERNAL
+    except MemoryError:
+        # The memory guard estimates the need before reading; this catches an estimate that was low.
+        print(f"{PROG}: error: ran out of memory; work on a smaller window with --bounds "
+              f"(or cap what divides plans for with DIVIDES_MEMORY_LIMIT)", file=sys.stderr)
+        return EXIT_USAGE
     except Exception as exc:
         try:
             where = f"with the log at {_write_crash_log(exc, args)}"

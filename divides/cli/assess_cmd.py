@@ -319,7 +319,10 @@ def run_assessment(
     from divides.report.writer import STAGES
 
     progress.stage(f"reading the DEM {read.path}")
-    dem = divides.read_dem(read.path, **read.read_kwargs())
+    from divides.io.memory import MemoryNeed
+
+    need = MemoryNeed.of("assess", "assess a smaller window around the divide with --bounds")
+    dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
     _check_against_dem(request, dem)
     rasters = {keyword: _read_raster_on_grid(option, path, dem, read)
                for keyword, (option, path) in request.rasters.items()}

@@ -115,10 +115,12 @@ def forecast(
 
     import divides
     from divides.model.forecast import DEFAULT_DIFFUSIVITY
+    from divides.io.memory import MemoryNeed
     from divides.model.forecast import forecast as run_forecast
 
     with opt.quiet_warnings(quiet):
-        surface = divides.read_dem(read.path, **read.read_kwargs())
+        need = MemoryNeed.of("forecast", "forecast on a smaller window around the divide with --bounds")
+        surface = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         result = run_forecast(surface, side_a, side_b, years=years_f, n_runs=runs, seed=seed, uplift=uplift,
                               diffusivity=DEFAULT_DIFFUSIVITY if diffusivity_f is None else diffusivity_f,
                               lonlat=lonlat, **options)

@@ -119,7 +119,10 @@ def screen(
         from divides.assess.screen import screen as run_screen
 
         progress.stage(f"reading the DEM {read.path}")
-        dem_obj = divides.read_dem(read.path, **read.read_kwargs())
+        from divides.io.memory import MemoryNeed
+
+        need = MemoryNeed.of("screen", "screen a smaller window with --bounds")
+        dem_obj = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
         result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
