@@ -7,6 +7,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 from scipy import ndimage
 
@@ -17,6 +18,9 @@ from divides.terrain._fill_kernels import priority_flood_fill, raised_totals
 __all__ = ["Conditioned", "CONDITIONING_METHODS", "EDGE_NAMES", "outlet_mask", "fill_depressions", "condition"]
 
 CONDITIONING_METHODS = ("fill", "breach")
+
+#: Grids at least this large are filled in strips on all numba threads.
+PARALLEL_MIN_CELLS = 2**20
 
 
 @dataclass(frozen=True, eq=False)
@@ -147,6 +151,12 @@ def fill_depressions(z: np.ndarray, valid: np.ndarray, outlets: np.ndarray) -> t
     if (rows + 2) * (cols + 2) >= 2**32:
         raise GridError(f"the DEM has {rows} x {cols} cells; at most about 4 billion are supported; use a bounds window")
     dtype = z.dtype if z.dtype in (np.float32, np.float64) else np.float64
+    threads = numba.get_num_threads()
+    if threads > 1 and dtype == np.float32 and rows * cols >= PARALLEL_MIN_CELLS:
+        # Strips on threads (Barnes 2016): the same filled surface, exactly, for float32.
+        from divides.terrain.tiled_fill import fill_depressions_tiled
+
+        return fill_depressions_tiled(z, valid, outlets, tile_rows=-(-rows // (2 * threads)), threads=threads)
     filled = np.array(z, dtype=dtype, order="C", copy=True).ravel()
     n_raised = priority_flood_fill(
         filled, np.ascontiguousarray(valid).ravel(), np.ascontiguousarray(outlets).ravel(), rows, cols
