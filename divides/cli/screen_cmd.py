@@ -52,7 +52,12 @@ ScreenThetaOption = Annotated[
 WorkersOption = Annotated[
     int | None,
     typer.Option("--workers", min=1, metavar="N", show_default=False,
-                 help="Processes screening segments in parallel; default: every core."),
+                 help="Threads screening segments in parallel (Dask tasks); default: every core."),
+]
+SchedulerOption = Annotated[
+    str | None,
+    typer.Option("--scheduler", metavar="ADDRESS", show_default=False,
+                 help="Run the divide segments as tasks on an existing Dask cluster (e.g. tcp://10.0.0.5:8786)."),
 ]
 TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
 
@@ -70,6 +75,7 @@ def screen(
     uplift: UpliftRasterOption = None,
     closed_edges: opt.ClosedEdgesOption = None,
     workers: WorkersOption = None,
+    scheduler: SchedulerOption = None,
     seed: opt.SeedOption = 0,
     top: TopOption = 10,
     out: opt.OutOption = None,
@@ -126,7 +132,7 @@ def screen(
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
         result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                            workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
+                            workers=workers, scheduler=scheduler, **grids, **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
         written = result.write(folder, overwrite=overwrite)
     if json_output:

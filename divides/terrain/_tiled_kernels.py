@@ -286,3 +286,122 @@ def raise_cells(filled, labels, spill, z):
         if check and filled[i] > z[i]:
             n += 1
     return n
+
+
+@njit(cache=True, nogil=True)
+def spread_flat(z, pending, rows, cols, seeds):
+    """Cells reached from ``seeds`` over 8-connected pending cells of equal elevation (a flat)."""
+    reached = np.zeros(rows * cols, dtype=np.uint8)
+    queue = np.empty(max(1, seeds.size), dtype=np.int64)
+    tail = 0
+    for s in seeds:
+        if pending[s] and not reached[s]:
+            reached[s] = 1
+            if tail >= queue.size:
+                queue = grow(queue, tail + 1)
+            queue[tail] = s
+            tail += 1
+    head = 0
+    while head < tail:
+        i = queue[head]
+        head += 1
+        r = i // cols
+        c = i - r * cols
+        for k in range(8):
+            rr = r + D_ROW[k]
+            cc = c + D_COL[k]
+            if rr < 0 or rr >= rows or cc < 0 or cc >= cols:
+                continue
+            nb = rr * cols + cc
+            if pending[nb] and not reached[nb] and z[nb] == z[i]:
+                reached[nb] = 1
+                if tail >= queue.size:
+                    queue = grow(queue, tail + 1)
+                queue[tail] = nb
+                tail += 1
+    return reached
+
+
+@njit(cache=True, nogil=True)
+def tile_graph(code, rows, cols):
+    """Receivers inside a tile from D8 codes; cells whose receiver lies outside keep themselves.
+
+    Returns ``rec`` (int64) and ``exit_k`` (the code of cells draining out of
+    the tile across its perimeter, -1 elsewhere).
+    """
+    n = rows * cols
+    rec = np.empty(n, dtype=np.int64)
+    exit_k = np.full(n, -1, dtype=np.int8)
+    for r in range(rows):
+        for c in range(cols):
+            i = r * cols + c
+            rec[i] = i
+            k = code[i]
+            if k < 8:
+                rr = r + D_ROW[k]
+                cc = c + D_COL[k]
+                if 0 <= rr < rows and 0 <= cc < cols:
+                    rec[i] = rr * cols + cc
+                else:
+                    exit_k[i] = k
+    return rec, exit_k
+
+
+@njit(cache=True, nogil=True)
+def next_perimeter(order, rec, perimeter):
+    """For each cell, the first perimeter cell strictly downstream inside the tile (-1: none)."""
+    out = np.full(rec.size, -1, dtype=np.int64)
+    for j in range(order.size):
+        i = order[j]
+        r = rec[i]
+        if r != i:
+            out[i] = r if perimeter[r] else out[r]
+    return out
+
+
+@njit(cache=True)
+def perimeter_flows(node, local_acc, down_same, down_cross):
+    """External water of every perimeter node (Barnes 2017, the tile-level graph of edge flows).
+
+    ``node`` are sorted global cell ids; ``down_same[u]`` is the node index of
+    the next perimeter cell downstream in the same tile, ``down_cross[u]`` that
+    of the cell in another tile that u drains into (-1: none). Returns
+    ``inflow`` (water entering the tile at each node from other tiles) and
+    ``ext`` (all water from other tiles passing through each node).
+    """
+    m = node.size
+    indeg = np.zeros(m, dtype=np.int64)
+    for u in range(m):
+        if down_same[u] >= 0:
+            indeg[down_same[u]] += 1
+        if down_cross[u] >= 0:
+            indeg[down_cross[u]] += 1
+    queue = np.empty(m, dtype=np.int64)
+    tail = 0
+    for u in range(m):
+        if indeg[u] == 0:
+            queue[tail] = u
+            tail += 1
+    ext = np.zeros(m, dtype=np.float64)
+    inflow = np.zeros(m, dtype=np.float64)
+    head = 0
+    while head < tail:
+        u = queue[head]
+        head += 1
+        v = down_same[u]
+        if v >= 0:
+            ext[v] += ext[u]
+            indeg[v] -= 1
+            if indeg[v] == 0:
+                queue[tail] = v
+                tail += 1
+        v = down_cross[u]
+        if v >= 0:
+            w = local_acc[u] + ext[u]
+            ext[v] += w
+            inflow[v] += w
+            indeg[v] -= 1
+            if indeg[v] == 0:
+                queue[tail] = v
+                tail += 1
+    return inflow, ext, tail

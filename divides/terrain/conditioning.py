@@ -93,21 +93,35 @@ def outlet_mask(dem: Dem, *, sea_level: float | None = None, closed_edges=()) ->
         Valid cells on an open DEM edge, next to (8-neighbour) an invalid cell,
         or at or below ``sea_level``.
     """
-    valid = dem.valid
+    closed = _check_closed(closed_edges)
+    return outlet_cells(dem.valid, dem.elevation, {side: side not in closed for side in EDGE_NAMES}, sea_level)
+
+
+def _check_closed(closed_edges) -> set:
     closed = set(closed_edges)
     unknown = closed - set(EDGE_NAMES)
     if unknown:
         raise ParameterError(f"closed edges must be among {', '.join(EDGE_NAMES)}; got {', '.join(sorted(unknown))}")
     if len(closed) == 4:
         raise ParameterError("all four edges are closed: water could leave nowhere; keep at least one edge open")
+    return closed
+
+
+def outlet_cells(valid: np.ndarray, elevation: np.ndarray, open_edges: dict, sea_level: float | None) -> np.ndarray:
+    """:func:`outlet_mask` of a grid or of a window of one.
+
+    ``open_edges`` maps each side (north, south, east, west) to True where that
+    side of the array is an open DEM edge; a window's sides inside the DEM are
+    False, and its one-cell halo supplies the neighbours for the nodata rule.
+    """
     edge = np.zeros(valid.shape, dtype=bool)
-    if "north" not in closed:
+    if open_edges.get("north"):
         edge[0, :] = True
-    if "south" not in closed:
+    if open_edges.get("south"):
         edge[-1, :] = True
-    if "west" not in closed:
+    if open_edges.get("west"):
         edge[:, 0] = True
-    if "east" not in closed:
+    if open_edges.get("east"):
         edge[:, -1] = True
     if not valid.all():
         edge |= ndimage.binary_dilation(~valid, structure=np.ones((3, 3), dtype=bool))
@@ -116,7 +130,7 @@ def outlet_mask(dem: Dem, *, sea_level: float | None = None, closed_edges=()) ->
         if not np.isfinite(sea_level):
             raise ParameterError(f"sea_level must be a finite elevation in metres; got {sea_level!r}")
         with np.errstate(invalid="ignore"):
-            out |= valid & (dem.elevation <= sea_level)
+            out |= valid & (elevation <= sea_level)
     return out
 
 
