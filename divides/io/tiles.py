@@ -21,7 +21,7 @@ import numpy as np
 
 from divides.errors import OutputError, ParameterError
 
-__all__ = ["TileGrid", "ScratchTiles"]
+__all__ = ["TileGrid", "ScratchTiles", "RasterTiles", "write_tiles_geotiff"]
 
 
 @dataclass(frozen=True)
@@ -123,3 +123,104 @@ class ScratchTiles:
             self._memory.clear()
         elif self.path is not None and self.path.exists():
             shutil.rmtree(self.path, ignore_errors=True)
+
+
+class RasterTiles:
+    """A single-band raster read window by window (rasterio), with the validity rules of :func:`read_dem`.
+
+    Picklable (it keeps the path, not an open file), so Dask workers can read
+    their own tiles. Attributes ``shape``, ``dx``, ``dy``, ``cell_area`` (per
+    row, metres), ``transform`` and ``crs`` describe the whole grid.
+
+    Parameters
+    ----------
+    path : str or path
+    band : int
+    vertical_unit : {"m", "ft", "us-ft"}
+    nodata : float, optional
+        Overrides the file's nodata value.
+    """
+
+    def __init__(self, path, *, band: int = 1, vertical_unit: str = "m", nodata: float | None = None) -> None:
+        import rasterio
+        import rasterio.errors
+
+        from divides.errors import DemReadError, GridError
+        from divides.io.dem import Dem
+        from divides.io.reading import INT16_VOID, VERTICAL_UNITS
+
+        self.path = os.fspath(path)
+        self.band = band
+        if vertical_unit not in VERTICAL_UNITS:
+            raise ParameterError(f"vertical_unit {vertical_unit!r} is not accepted; use one of "
+                                 + ", ".join(VERTICAL_UNITS))
+        self.scale = VERTICAL_UNITS[vertical_unit]
+        try:
+            with rasterio.open(self.path) as src:
+                self.shape = (src.height, src.width)
+                self.transform, self.crs = src.transform, src.crs
+                dtype = np.dtype(src.dtypes[band - 1])
+                file_nodata = src.nodatavals[band - 1]
+        except rasterio.errors.RasterioError as exc:
+            raise DemReadError(f"cannot open DEM '{self.path}' for tiles: {exc}") from None
+        if self.transform.b != 0 or self.transform.d != 0 or self.transform.e > 0 or self.transform.a < 0:
+            raise GridError(f"DEM '{self.path}': the tiled path needs a north-up grid; warp it first (e.g. gdalwarp)")
+        if self.crs is None:
+            raise GridError(f"DEM '{self.path}' has no CRS: the tiled path needs metric cell sizes from a CRS")
+        self.nodata = file_nodata if nodata is None else nodata
+        if dtype == np.int16 and self.nodata is None:
+            self.nodata = float(INT16_VOID)
+        # per-row cell sizes from a three-column stand-in with the DEM's georeference
+        probe = Dem.from_array(np.zeros((self.shape[0], 3), dtype=np.float32), transform=self.transform, crs=self.crs)
+        self.dx, self.dy, self.cell_area = probe.dx, probe.dy, probe.cell_area
+
+    def read(self, r0: int, r1: int, c0: int, c1: int) -> tuple[np.ndarray, np.ndarray]:
+        """Elevations in metres (float32, NaN where invalid) and the valid mask of a window."""
+        import rasterio
+        from rasterio.windows import Window
+
+        from divides.io.dem import VALID_RANGE_M
+
+        with rasterio.open(self.path) as src:
+            data = src.read(self.band, window=Window(c0, r0, c1 - c0, r1 - r0))
+        z = data.astype(np.float32)
+        valid = np.isfinite(z)
+        if self.nodata is not None and np.isfinite(self.nodata):
+            valid &= data != np.asarray(self.nodata).astype(data.dtype)
+        if self.scale != 1.0:
+            z *= np.float32(self.scale)
+        with np.errstate(invalid="ignore"):
+            valid &= (z >= VALID_RANGE_M[0]) & (z <= VALID_RANGE_M[1])
+        z[~valid] = np.nan
+        return z, valid
+
+
+def write_tiles_geotiff(path, grid: TileGrid, read_tile, *, dtype: str, transform, crs, nodata=None,
+                        block: int = 256) -> None:
+    """Write a tiled GeoTIFF (deflate) one tile at a time through rasterio windows.
+
+    ``read_tile((ti, tj))`` returns the tile's array. The file is written under
+    a temporary name and renamed into place.
+    """
+    import rasterio
+    import rasterio.errors
+    from rasterio.windows import Window
+
+    target = Path(path)
+    partial = target.with_name(f".{target.name}.part")
+    blockx = min(block, max(16, (grid.cols // 16) * 16)) if grid.cols >= 16 else None
+    blocky = min(block, max(16, (grid.rows // 16) * 16)) if grid.rows >= 16 else None
+    profile = dict(driver="GTiff", width=grid.cols, height=grid.rows, count=1, dtype=dtype, crs=crs,
+                   transform=transform, nodata=nodata, compress="deflate", bigtiff="IF_SAFER")
+    if blockx and blocky:
+        profile.update(tiled=True, blockxsize=blockx, blockysize=blocky)
+    try:
+        with rasterio.open(partial, "w", **profile) as dst:
+            for t in grid.tiles():
+                r0, r1, c0, c1 = grid.window(*t)
+                dst.write(np.asarray(read_tile(t)).astype(dtype, copy=False), 1,
+                          window=Window(c0, r0, c1 - c0, r1 - r0))
+        os.replace(partial, target)
+    except (OSError, rasterio.errors.RasterioError) as exc:
+        partial.unlink(missing_ok=True)
+        raise OutputError(f"cannot write '{target}': {exc}") from None

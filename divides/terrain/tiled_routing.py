@@ -356,3 +356,90 @@ def route_tiled(
     inflows = _edge_flows(flows, grid)
     mapper(partial(_final_area, source=source, store=store, grid=grid), [(t, *inflows[t]) for t in tiles])
     return TiledRouting(grid=grid, store=store, n_crossing_flats=n_flats)
+
+
+#: Files written by :func:`route_raster_tiled` and their GeoTIFF data types.
+TILED_OUTPUTS = {"filled.tif": ("filled", "float32"), "d8.tif": ("code", "uint8"), "area.tif": ("area", "float64")}
+
+
+def dask_map(client) -> Callable[[Callable, list], list]:
+    """A ``mapper`` for :func:`route_tiled` running each item as a task on a Dask client."""
+
+    def run(fn: Callable, items: list) -> list:
+        return client.gather(client.map(fn, items, pure=False))
+
+    return run
+
+
+def route_raster_tiled(
+    path,
+    out_dir,
+    *,
+    tile: int = 2048,
+    scheduler: str | None = None,
+    workers: int | None = None,
+    scratch=None,
+    processes: bool = True,
+    band: int = 1,
+    vertical_unit: str = "m",
+    nodata: float | None = None,
+    sea_level: float | None = None,
+    closed_edges=(),
+) -> dict:
+    """Fill, route and accumulate a raster larger than memory; write filled.tif, d8.tif and area.tif.
+
+    Tiles are read with rasterio windows, kept between stages in a scratch
+    folder and run as Dask tasks: on a new ``LocalCluster`` of ``workers``
+    processes, or on the cluster at ``scheduler`` (whose workers must see
+    ``path``, ``scratch`` and ``out_dir`` at the same paths).
+
+    Parameters
+    ----------
+    path : str or path
+        The DEM (GeoTIFF or any raster rasterio reads by windows; north-up, with a CRS).
+    out_dir : str or path
+        Folder for the three GeoTIFFs (made if missing).
+    tile : int
+        Tile side in cells (memory per task is about 60 B per tile cell).
+    scheduler, workers, processes
+        See :func:`divides.terrain.cluster.cluster_client`.
+    scratch : str or path, optional
+        Folder for intermediate tiles (default: the system's temporary folder);
+        needs about 23 B per DEM cell.
+    band, vertical_unit, nodata
+        As in :func:`divides.read_dem`.
+    sea_level, closed_edges
+        As in :func:`divides.terrain.routing.route`.
+
+    Returns
+    -------
+    dict
+        ``{"filled.tif": path, "d8.tif": path, "area.tif": path, "tiles": n, "crossing_flats": n}``.
+    """
+    import tempfile
+    from pathlib import Path
+
+    from divides.io.tiles import RasterTiles, write_tiles_geotiff
+    from divides.terrain.cluster import cluster_client
+
+    if not (isinstance(tile, int) and tile >= 16):
+        from divides.errors import ParameterError
+
+        raise ParameterError(f"tile must be a whole number of cells, at least 16; got {tile!r}")
+    source = RasterTiles(path, band=band, vertical_unit=vertical_unit, nodata=nodata)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    store = ScratchTiles(scratch if scratch is not None else tempfile.gettempdir())
+    try:
+        with cluster_client(scheduler, workers=workers, processes=processes) as client:
+            result = route_tiled(source, tile_shape=(tile, tile), store=store, mapper=dask_map(client),
+                                 sea_level=sea_level, closed_edges=closed_edges)
+        written = {}
+        for name, (key, dtype) in TILED_OUTPUTS.items():
+            write_tiles_geotiff(out / name, result.grid, partial(store.get, key), dtype=dtype,
+                                transform=source.transform, crs=source.crs,
+                                nodata=float("nan") if dtype.startswith("float") else _rk.INVALID)
+            written[name] = out / name
+    finally:
+        store.close()
+    return written | {"tiles": len(list(result.grid.tiles())), "crossing_flats": result.n_crossing_flats}
