@@ -179,47 +179,45 @@ def _d8(t, *, source: TileSource, store: ScratchTiles, grid: TileGrid):
 
 
 def _resolve_crossing_flats(cells: np.ndarray, *, source: TileSource, store: ScratchTiles, grid: TileGrid) -> int:
-    """Route every flat that crosses a seam on a window holding all of it (plus two cells)."""
-    todo = np.unique(cells)
-    done = np.zeros(todo.size, dtype=bool)
-    n_flats = 0
-    for k in range(todo.size):
-        if done[k]:
-            continue
-        seed = int(todo[k])
-        sr, sc = divmod(seed, grid.cols)
-        half = max(grid.tile_rows, grid.tile_cols)
-        win = (max(0, sr - half), min(grid.rows, sr + half + 1), max(0, sc - half), min(grid.cols, sc + half + 1))
-        while True:
-            if (win[1] - win[0]) * (win[3] - win[2]) > MAX_FLAT_WINDOW_CELLS:
-                raise GridError(f"a flat of the filled DEM near row {sr}, column {sc} spans more than "
-                                f"{MAX_FLAT_WINDOW_CELLS} cells; route a smaller window (--bounds)")
-            z = _window(store, grid, "filled", *win)
-            valid = _window(store, grid, "valid", *win)
-            outlets = _window(store, grid, "outlets", *win)
-            code, pending = _d8_window(z, valid, outlets, win, grid, source)
-            rows, cols = pending.shape
-            local_seed = np.array([(sr - win[0]) * cols + (sc - win[2])], dtype=np.int64)
-            flat = _tk.spread_flat(np.ascontiguousarray(z).ravel(), pending.ravel(), rows, cols,
-                                   local_seed).reshape(rows, cols).astype(bool)
-            fr, fc = np.nonzero(flat)
-            # whole when no flat cell is within two cells of a window side inside the DEM
-            lo_r, hi_r, lo_c, hi_c = fr.min() + win[0], fr.max() + win[0], fc.min() + win[2], fc.max() + win[2]
-            grown = (max(0, lo_r - 2) if lo_r - 2 < win[0] else win[0],
-                     min(grid.rows, hi_r + 3) if hi_r + 3 > win[1] else win[1],
-                     max(0, lo_c - 2) if lo_c - 2 < win[2] else win[2],
-                     min(grid.cols, hi_c + 3) if hi_c + 3 > win[3] else win[3])
-            if grown == win:
-                break
-            span_r, span_c = grown[1] - grown[0], grown[3] - grown[2]
-            win = (max(0, grown[0] - span_r // 2), min(grid.rows, grown[1] + span_r // 2),
-                   max(0, grown[2] - span_c // 2), min(grid.cols, grown[3] + span_c // 2))
-        gids = (fr + win[0]).astype(np.int64) * grid.cols + (fc + win[2])
-        values = code[fr, fc]
-        _scatter(store, grid, "code", gids, values)
-        done |= np.isin(todo, gids)
-        n_flats += 1
-    return n_flats
+    """Route every flat that crosses a seam on one window holding all of it (plus two cells).
+
+    The cells of crossing flats reported by the tiles are joined into groups of
+    8-connected cells (touching flats of different elevations may share a
+    group, which costs only a larger window); each group is routed once.
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    gid = np.unique(cells)
+    rows, cols = np.divmod(gid, grid.cols)
+    pairs_a, pairs_b = [], []
+    for dr, dc in ((0, 1), (1, -1), (1, 0), (1, 1)):  # each neighbour pair once
+        nr, nc = rows + dr, cols + dc
+        ok = (nr < grid.rows) & (nc >= 0) & (nc < grid.cols)
+        target = nr * grid.cols + nc
+        pos = np.minimum(np.searchsorted(gid, target), gid.size - 1)
+        hit = ok & (gid[pos] == target)
+        pairs_a.append(np.flatnonzero(hit))
+        pairs_b.append(pos[hit])
+    a, b = np.concatenate(pairs_a), np.concatenate(pairs_b)
+    graph = coo_matrix((np.ones(a.size, dtype=np.int8), (a, b)), shape=(gid.size, gid.size))
+    n_groups, group = connected_components(graph, directed=False)
+    order = np.argsort(group, kind="stable")
+    bounds = np.searchsorted(group[order], np.arange(n_groups + 1))
+    for g in range(n_groups):
+        members = order[bounds[g]: bounds[g + 1]]
+        r, c = rows[members], cols[members]
+        win = (max(0, int(r.min()) - 2), min(grid.rows, int(r.max()) + 3),
+               max(0, int(c.min()) - 2), min(grid.cols, int(c.max()) + 3))
+        if (win[1] - win[0]) * (win[3] - win[2]) > MAX_FLAT_WINDOW_CELLS:
+            raise GridError(f"a flat of the filled DEM near row {int(r[0])}, column {int(c[0])} spans more than "
+                            f"{MAX_FLAT_WINDOW_CELLS} cells; route a smaller window (--bounds)")
+        z = np.ascontiguousarray(_window(store, grid, "filled", *win))
+        valid = _window(store, grid, "valid", *win)
+        outlets = _window(store, grid, "outlets", *win)
+        code, _ = _d8_window(z, valid, outlets, win, grid, source)
+        _scatter(store, grid, "code", gid[members], code[r - win[0], c - win[2]])
+    return n_groups
 
 
 def _scatter(store: ScratchTiles, grid: TileGrid, name: str, gids: np.ndarray, values: np.ndarray) -> None:
