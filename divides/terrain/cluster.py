@@ -51,6 +51,7 @@ def cluster_client(scheduler: str | None = None, *, workers: int | None = None,
             yield client
         return
     n = workers or DEFAULT_LOCAL_WORKERS
-    with LocalCluster(n_workers=n, threads_per_worker=1, processes=processes, dashboard_address=None,
+    # dashboard on a free port: 8787 may belong to another cluster on this machine
+    with LocalCluster(n_workers=n, threads_per_worker=1, processes=processes, dashboard_address=":0",
                       silence_logs=logging.ERROR) as cluster, Client(cluster) as client:
         yield client
