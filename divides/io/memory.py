@@ -20,13 +20,14 @@ __all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_ce
 #: Peak bytes per DEM cell of each in-memory task, beyond reading the DEM itself.
 #: route: fill + flats + D8 + order + area, 31 B/cell (bench_flow.py, 4000²) plus the
 #: elevation kept by the caller; inspect: routing + basins (bench_flow.py + one label grid);
-#: screen: 10.7 GiB at 10⁸ cells (bench_screen.py, 10 000², recorded in the issue) = 115 B/cell;
+#: screen: 10.7 GiB at 10⁸ cells (bench_screen.py, 10 000², recorded in the issue) = 115 B/cell,
+#: plus one χ scratch grid (8 B/cell) per extra thread;
 #: assess: 1.1 GB at 2000² less the 0.25 GB interpreter (bench_assess.py) ≈ 215 B/cell;
 #: forecast: one model grid set per run (bench_model.py: ~16 float64 grids) ≈ 130 B/cell.
 BYTES_PER_CELL: dict[str, float] = {
     "route": 40.0,
     "inspect": 60.0,
-    "screen": 120.0,
+    "screen": 130.0,
     "assess": 220.0,
     "forecast": 130.0,
 }

@@ -168,8 +168,8 @@ class RasterTiles:
         if self.crs is None:
             raise GridError(f"DEM '{self.path}' has no CRS: the tiled path needs metric cell sizes from a CRS")
         self.nodata = file_nodata if nodata is None else nodata
-        if dtype == np.int16 and self.nodata is None:
-            self.nodata = float(INT16_VOID)
+        # 16-bit voids are missing whatever the nodata value (as in read_dem)
+        self.void = INT16_VOID if dtype == np.int16 else None
         # per-row cell sizes from a three-column stand-in with the DEM's georeference
         probe = Dem.from_array(np.zeros((self.shape[0], 3), dtype=np.float32), transform=self.transform, crs=self.crs)
         self.dx, self.dy, self.cell_area = probe.dx, probe.dy, probe.cell_area
@@ -187,6 +187,8 @@ class RasterTiles:
         valid = np.isfinite(z)
         if self.nodata is not None and np.isfinite(self.nodata):
             valid &= data != np.asarray(self.nodata).astype(data.dtype)
+        if self.void is not None:
+            valid &= data != self.void
         if self.scale != 1.0:
             z *= np.float32(self.scale)
         with np.errstate(invalid="ignore"):
