@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import math
-import multiprocessing
 import os
+import threading
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -96,8 +96,34 @@ def _azimuth(normal: np.ndarray) -> float:
     return float(math.degrees(math.atan2(e, n)) % 360.0)
 
 
-# Shared read-only state for worker processes (inherited by fork; never pickled).
-_STATE: dict = {}
+class _Shared:
+    """Read-only state of one screening, shared by its Dask tasks.
+
+    On threads it is one object; on a cluster it is scattered once to every
+    worker. Each task borrows a χ scratch grid (NaN between uses) from a small
+    pool, so tasks on threads never write into the same grid.
+    """
+
+    def __init__(self, data: dict) -> None:
+        self.data = data
+        self._lock = threading.Lock()
+        self._free: list[np.ndarray] = []
+
+    def __getstate__(self) -> dict:
+        return {"data": self.data}
+
+    def __setstate__(self, state: dict) -> None:
+        self.__init__(state["data"])
+
+    def borrow(self) -> np.ndarray:
+        with self._lock:
+            if self._free:
+                return self._free.pop()
+        return np.full(self.data["n_cells"], np.nan)
+
+    def give_back(self, scratch: np.ndarray) -> None:
+        with self._lock:
+            self._free.append(scratch)
 
 
 def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: float, a0: float,
@@ -118,10 +144,18 @@ def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: 
     return pos, chi, base, kept_a, kept_b
 
 
-def _assess_pair(task: tuple) -> list[dict]:
+def _assess_pairs(tasks: list[tuple], shared: _Shared) -> list[list[dict]]:
+    """One Dask task: several basin pairs, one χ scratch grid."""
+    scratch = shared.borrow()
+    try:
+        return [_assess_pair(t, shared.data, scratch) for t in tasks]
+    finally:
+        shared.give_back(scratch)
+
+
+def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
     """Contrasts and verdict for every segment of one basin pair."""
     label_a, label_b, segs = task
-    st = _STATE
     channels: Channels = st["channels"]
     labels_ch = st["labels_ch"]
     config: AssessConfig = st["config"]
@@ -133,7 +167,6 @@ def _assess_pair(task: tuple) -> list[dict]:
         return out
     pos, chi, base, kept_a, kept_b = _pair_chi(channels, on_a, on_b, theta=st["theta"], a0=config.a0_m2,
                                                area=st["chi_area"], weight=st["chi_weight"])
-    scratch = st["scratch"]
     cells = channels.cells[pos]
     scratch[cells] = chi
     try:
@@ -189,6 +222,26 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
 
 
+def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
+    """Assess every basin pair as Dask tasks: threads here, or the cluster at ``scheduler``."""
+    chunk = max(1, len(tasks) // (8 * n_workers))
+    chunks = [tasks[i: i + chunk] for i in range(0, len(tasks), chunk)]
+    if scheduler is not None:
+        from divides.terrain.cluster import cluster_client
+
+        with cluster_client(scheduler) as client:
+            remote = client.scatter(shared, broadcast=True)
+            groups = client.gather(client.map(_assess_pairs, chunks, shared=remote, pure=False))
+    elif n_workers == 1 or len(chunks) <= 1:
+        groups = [_assess_pairs(c, shared) for c in chunks]
+    else:
+        import dask
+
+        groups = dask.compute(*[dask.delayed(_assess_pairs, pure=False)(c, shared) for c in chunks],
+                              scheduler="threads", num_workers=n_workers)
+    return [r for group in groups for r in group]
+
+
 def screen(
     dem: Dem,
     *,
@@ -196,6 +249,7 @@ def screen(
     level: str = "tributaries",
     max_segment_m: float | None = None,
     workers: int | None = None,
+    scheduler: str | None = None,
     runoff: np.ndarray | None = None,
     erodibility_raster: np.ndarray | None = None,
     uplift_raster: np.ndarray | None = None,
@@ -213,7 +267,10 @@ def screen(
     max_segment_m : float, optional
         Longer divide segments are cut into pieces (default: 100 cells).
     workers : int, optional
-        Processes (default: the number of cores).
+        Threads on this machine (default: the number of cores); ignored with ``scheduler``.
+    scheduler : str, optional
+        Address of a Dask scheduler (``tcp://host:8786``): basin pairs run as
+        tasks on that cluster, the shared grids scattered once to each worker.
     runoff, erodibility_raster, uplift_raster : ndarray, optional
         Rasters on the DEM grid weighting χ (see :func:`divides.profiles.chi_weights`);
         without them χ assumes uniform climate, rock and uplift, and a χ-only
@@ -255,25 +312,17 @@ def screen(
             chi_area = w.discharge.ravel()[channels.cells]
         if not np.isscalar(w.factor):
             chi_weight = np.asarray(w.factor).ravel()[channels.cells]
-    _STATE.clear()
-    _STATE.update({
+    shared = _Shared({
         "flow": flow, "channels": channels, "labels_ch": labels.ravel()[channels.cells], "config": config,
         "theta": float(config.theta), "spacing": spacing, "reference": config.reference_area_m2 or threshold,
         "block": max(1, int(round((config.block_m or 10 * spacing) / spacing))),
         "n_boot": max(100, config.n_bootstrap // 2), "fields": near_divide_fields(flow, config.relief_radius_m),
-        "scratch": np.full(flow.receivers.size, np.nan), "chi_area": chi_area, "chi_weight": chi_weight,
+        "n_cells": flow.receivers.size, "chi_area": chi_area, "chi_weight": chi_weight,
         "dem_error": config.dem_error(cell), "cell": cell,
     })
     tasks = [(a, b, segs) for (a, b), segs in sorted(by_pair.items())]
-    n_workers = max(1, min(workers or os.cpu_count() or 1, len(tasks)))
-    try:
-        if n_workers > 1 and "fork" in multiprocessing.get_all_start_methods():
-            with multiprocessing.get_context("fork").Pool(n_workers) as pool:
-                results = pool.map(_assess_pair, tasks, chunksize=max(1, len(tasks) // (8 * n_workers)))
-        else:
-            results = [_assess_pair(t) for t in tasks]
-    finally:
-        _STATE.clear()
+    n_workers = max(1, min(workers or os.cpu_count() or 1, len(tasks) or 1))
+    results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     rows.sort(key=lambda r: (-r["instability"], -r["seg"].line.length_m))
     out = []
@@ -295,5 +344,5 @@ def screen(
     params = {**config.to_dict(), "chi_weighted": weighted,
               "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
-              "divide_spacing_used_m": spacing, "workers": n_workers}
+              "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params)

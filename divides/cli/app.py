@@ -160,6 +160,11 @@ def run(argv: Sequence[str] | None = None) -> int:
         # quietly with success, and point stdout at devnull so that the final flush cannot fail again.
         _silence_stdout()
         return EXIT_OK
+    except MemoryError:
+        # The memory guard estimates the need before reading; this catches an estimate that was low.
+        print(f"{PROG}: error: ran out of memory; work on a smaller window with --bounds "
+              f"(or cap what divides plans for with DIVIDES_MEMORY_LIMIT)", file=sys.stderr)
+        return EXIT_USAGE
     except Exception as exc:
         if isinstance(exc.__context__, BrokenPipeError) or isinstance(exc.__cause__, BrokenPipeError):
             _silence_stdout()  # a library wrapped the closed pipe in its own error

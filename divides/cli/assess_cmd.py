@@ -366,7 +366,10 @@ def run_assessment(
     from divides.report.writer import STAGES, write_assessment
 
     # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
-    dem = divides.read_dem(read.path, **read.read_kwargs())
+    from divides.io.memory import MemoryNeed
+
+    need = MemoryNeed.of("assess", "assess a smaller window around the divide with --bounds")
+    dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
     check_enough_cells(dem)
     _check_against_dem(request, dem)
     for option, text in (("--side-a", request.side_a), ("--side-b", request.side_b)):

@@ -140,10 +140,12 @@ def forecast(
     from divides.outlook import DEFAULT_DIFFUSIVITY
     from divides.outlook import forecast as run_forecast
     from divides.report.provenance import provenance, public_summary
+    from divides.io.memory import MemoryNeed
 
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
-        surface = divides.read_dem(read.path, **read.read_kwargs())
+        need = MemoryNeed.of("forecast", "forecast on a smaller window around the divide with --bounds")
+        surface = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         check_enough_cells(surface)
         for option, text in (("--side-a", side_a), ("--side-b", side_b)):
             check_side_points(surface, parse_side(text, lonlat=lonlat).points, option=option, text=text,

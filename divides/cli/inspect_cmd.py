@@ -112,7 +112,10 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
 
     import divides
 
-    dem = divides.read_dem(read.path, **read.read_kwargs())
+    from divides.io.memory import MemoryNeed
+
+    need = MemoryNeed.of("inspect", "inspect a smaller window with --bounds")
+    dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
     graph = divides.route(dem, **flow_options.route_kwargs())
 
     crs = dem.crs

@@ -58,7 +58,12 @@ ScreenThetaOption = Annotated[
 WorkersOption = Annotated[
     int | None,
     typer.Option("--workers", min=1, metavar="N", show_default=False,
-                 help="Processes screening segments in parallel; default: every core."),
+                 help="Threads screening segments in parallel (Dask tasks); default: every core."),
+]
+SchedulerOption = Annotated[
+    str | None,
+    typer.Option("--scheduler", metavar="ADDRESS", show_default=False,
+                 help="Run the divide segments as tasks on an existing Dask cluster (e.g. tcp://10.0.0.5:8786)."),
 ]
 TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
 
@@ -77,6 +82,7 @@ def screen(
     uplift: UpliftRasterOption = None,
     closed_edges: opt.ClosedEdgesOption = None,
     workers: WorkersOption = None,
+    scheduler: SchedulerOption = None,
     seed: opt.SeedOption = 0,
     top: TopOption = 10,
     out: opt.OutOption = None,
@@ -137,7 +143,10 @@ def screen(
         from divides.report.screening import write_screening
 
         # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
-        dem_obj = divides.read_dem(read.path, **read.read_kwargs())
+        from divides.io.memory import MemoryNeed
+
+        need = MemoryNeed.of("screen", "screen a smaller window with --bounds")
+        dem_obj = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
@@ -148,7 +157,8 @@ def screen(
                 progress.release()
                 progress.step(opt.KERNELS_COLD_MESSAGE)
             result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                                workers=workers, **grids, **{k: v for k, v in options.items() if v is not None})
+                                workers=workers, scheduler=scheduler, **grids,
+                                **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
         written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)
     if json_output:  # the document written, provenance included

@@ -26,6 +26,7 @@ from divides.errors import (
     ParameterError,
 )
 from divides.io.dem import Dem
+from divides.io.memory import MemoryNeed, check_fits, read_bytes_per_cell
 
 __all__ = ["read_dem", "VERTICAL_UNITS", "INT16_VOID"]
 
@@ -49,6 +50,7 @@ def read_dem(
     vertical_unit: str = "m",
     nodata: float | None = None,
     cell_size: float | tuple[float, float] | None = None,
+    memory: MemoryNeed | None = None,
 ) -> Dem:
     """Read a DEM from a single-band raster (GeoTIFF or any format rasterio opens).
 
@@ -70,6 +72,10 @@ def read_dem(
     cell_size : float or (dx, dy), optional
         Cell size in metres. Required when the raster has no CRS or no
         geotransform; when given with a CRS it overrides the CRS cell size.
+    memory : MemoryNeed, optional
+        What the caller will do with the DEM; the read is refused before any
+        cell is read when it and this need would not fit in free memory (the
+        read alone is always checked).
 
     Returns
     -------
@@ -88,6 +94,8 @@ def read_dem(
         Rotated or sheared grid, or fewer than 3 x 3 valid cells.
     ParameterError
         Bad ``bounds``, ``vertical_unit`` or ``nodata``, or bounds outside the DEM.
+    GridError
+        The DEM (or window) and ``memory`` would not fit in memory.
 
     Examples
     --------
@@ -153,6 +161,9 @@ def read_dem(
         window = None if box is None else _window_for_bounds(box, grid, height, width, name)
         file_nodata = src.nodatavals[index - 1]
         flags = src.mask_flag_enums[index - 1]
+        rows, cols = (height, width) if window is None else (int(window.height), int(window.width))
+        wide = dtype in (np.float64, np.int32, np.uint32, np.int64, np.uint64)
+        check_fits(name, rows, cols, read_bytes_per_cell(dtype.itemsize, wide=wide), memory)
         try:
             data = src.read(index, window=window)
             mask = None
@@ -183,7 +194,6 @@ def read_dem(
             extra_invalid = voids if extra_invalid is None else extra_invalid | voids
     if extra_invalid is not None and extra_invalid.any():
         # Mark these cells NaN in the dtype Dem.from_array would pick anyway.
-        wide = dtype in (np.float64, np.int32, np.uint32, np.int64, np.uint64)
         data = data.astype(np.float64 if wide else np.float32, copy=False)
         data[extra_invalid] = np.nan
 

@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
 
 from divides.terrain._fill_kernels import D_COL, D_ROW, grow
 
@@ -46,7 +46,7 @@ def _inside(r, c, k, rows, cols):
     return 0 <= rr < rows and 0 <= cc < cols
 
 
-@njit(cache=True)
+@njit(cache=True, parallel=True)
 def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
     """Steepest-descent receiver of every cell (O'Callaghan & Mark 1984).
 
@@ -54,17 +54,20 @@ def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
     outlets) and are interior unless an edge was declared closed; only cells on
     the grid edge check bounds.
     Cells with no lower neighbour get ``code = PENDING`` for flat resolution.
+    Rows are independent and run on all threads; each cell's result depends on
+    its own neighbourhood only, so it is the same whatever the number of threads.
 
     Returns the number of pending cells.
     """
     off = np.empty(8, dtype=np.int64)
     for k in range(8):
         off[k] = D_ROW[k] * cols + D_COL[k]
-    inv = np.empty(8, dtype=np.float64)
-    n_pending = 0
-    for r in range(rows):
+    per_row = np.zeros(rows, dtype=np.int64)  # pending counts (a scalar reduction confuses parfors)
+    for r in prange(rows):
+        inv = np.empty(8, dtype=np.float64)
         for k in range(8):
             inv[k] = 1.0 / dist[r, k]
+        row_pending = 0
         for c in range(cols):
             i = r * cols + c
             rec[i] = i
@@ -87,48 +90,31 @@ def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
                     best_k = k
             if best_k < 0:
                 code[i] = PENDING
-                n_pending += 1
+                row_pending += 1
             else:
                 code[i] = best_k
                 rec[i] = i + off[best_k]
-    return n_pending
+        per_row[r] = row_pending
+    return per_row.sum()
+
+
+@njit(cache=True, inline="always")
+def _on_edge(i, rows, cols):
+    r = i // cols
+    c = i - r * cols
+    return r == 0 or r == rows - 1 or c == 0 or c == cols - 1
 
 
 @njit(cache=True)
-def resolve_flats(z, rows, cols, dist, rec, code):
-    """Route cells on flats so that flow converges (Barnes, Lehman & Mulla 2014).
+def _flats_away(z, rows, cols, off, code, pending, label, mask):
+    """Label the flats and set ``mask`` to the inverted distance from higher ground (0: none).
 
-    Each flat (connected pending cells of equal elevation) gets two gradients
-    by breadth-first search: away from higher terrain (distance from the
-    flat's cells next to higher ground) and toward lower terrain (distance
-    from cells next to an already-draining cell of the same elevation). The
-    combined mask ``2 * toward + (max_away - away)`` strictly decreases along
-    some neighbour of every flat cell, so steepest descent on it reaches an
-    exit without loops, and flow bends away from the flat's higher rim
-    instead of running in parallel lines.
-
-    Pending cells have only valid neighbours; those on a closed grid edge skip
-    the neighbours off the grid. Returns the number of pending cells left
-    without an exit (0 on a filled surface); those stay pending for the caller.
+    Flats are 8-connected pending cells of equal elevation; the distance is a
+    breadth-first search from the flat's cells next to higher ground, inverted
+    per flat (largest at the higher rim) so that the labels can be dropped.
     """
-    n = rows * cols
-    off = np.empty(8, dtype=np.int64)
-    for k in range(8):
-        off[k] = D_ROW[k] * cols + D_COL[k]
-    n_pending = 0
-    for i in range(n):
-        if code[i] == PENDING:
-            n_pending += 1
-    pending = np.empty(n_pending, dtype=np.int64)
-    j = 0
-    for i in range(n):
-        if code[i] == PENDING:
-            pending[j] = i
-            j += 1
-    label = np.zeros(n, dtype=np.int32)
-    mask = np.zeros(n, dtype=np.int32)
+    n_pending = pending.size
     queue = np.empty(n_pending, dtype=np.int64)  # each BFS enqueues a cell at most once
-    # 1. label the flats (8-connected pending cells of equal elevation)
     n_labels = 0
     for s in pending:
         if label[s] != 0:
@@ -141,8 +127,8 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         while head < tail:
             i = queue[head]
             head += 1
+            edge = _on_edge(i, rows, cols)
             ri, ci = i // cols, i % cols
-            edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
             for k in range(8):
                 if edge and not _inside(ri, ci, k, rows, cols):
                     continue
@@ -151,12 +137,11 @@ def resolve_flats(z, rows, cols, dist, rec, code):
                     label[nb] = n_labels
                     queue[tail] = nb
                     tail += 1
-    # 2. gradient away from higher terrain: BFS from flat cells next to higher ground
     away_max = np.zeros(n_labels + 1, dtype=np.int32)
     tail = 0
     for i in pending:
+        edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
-        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
@@ -171,8 +156,8 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         head += 1
         if mask[i] > away_max[label[i]]:
             away_max[label[i]] = mask[i]
+        edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
-        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
@@ -181,18 +166,22 @@ def resolve_flats(z, rows, cols, dist, rec, code):
                 mask[nb] = mask[i] + 1
                 queue[tail] = nb
                 tail += 1
-    # Invert it (largest at the higher rim) so the labels can be dropped; pending
-    # 8-neighbours of equal elevation always share a flat, so z equality suffices below.
     for i in pending:
         mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
-    # 3. gradient toward lower terrain: BFS from cells beside a draining cell of equal elevation
-    toward = label
-    for i in pending:
-        toward[i] = 0
+
+
+@njit(cache=True)
+def _flats_toward(z, rows, cols, off, code, pending, toward):
+    """Breadth-first distance of each pending cell from the flat's exits (0: no exit).
+
+    Exits are pending cells beside a draining cell of equal elevation. Pending
+    8-neighbours of equal elevation always share a flat, so no labels are needed.
+    """
+    queue = np.empty(pending.size, dtype=np.int64)
     tail = 0
     for i in pending:
+        edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
-        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
@@ -206,8 +195,8 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     while head < tail:
         i = queue[head]
         head += 1
+        edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
-        edge = ri == 0 or ri == rows - 1 or ci == 0 or ci == cols - 1
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
@@ -216,14 +205,74 @@ def resolve_flats(z, rows, cols, dist, rec, code):
                 toward[nb] = toward[i] + 1
                 queue[tail] = nb
                 tail += 1
-    for i in pending:
+
+
+@njit(cache=True, parallel=True)
+def pending_cells(code, rows, cols):
+    """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads)."""
+    counts = np.zeros(rows + 1, dtype=np.int64)
+    for r in prange(rows):
+        m = 0
+        for i in range(r * cols, (r + 1) * cols):
+            if code[i] == PENDING:
+                m += 1
+        counts[r + 1] = m
+    for r in range(rows):
+        counts[r + 1] += counts[r]
+    out = np.empty(counts[rows], dtype=np.int64)
+    for r in prange(rows):
+        j = counts[r]
+        for i in range(r * cols, (r + 1) * cols):
+            if code[i] == PENDING:
+                out[j] = i
+                j += 1
+    return out
+
+
+@njit(cache=True, parallel=True)
+def resolve_flats(z, rows, cols, dist, rec, code):
+    """Route cells on flats so that flow converges (Barnes, Lehman & Mulla 2014).
+
+    Each flat (connected pending cells of equal elevation) gets two gradients
+    by breadth-first search: away from higher terrain (distance from the
+    flat's cells next to higher ground) and toward lower terrain (distance
+    from cells next to an already-draining cell of the same elevation). The
+    combined mask ``2 * toward + (max_away - away)`` strictly decreases along
+    some neighbour of every flat cell, so steepest descent on it reaches an
+    exit without loops, and flow bends away from the flat's higher rim
+    instead of running in parallel lines.
+
+    The two searches are independent and run at the same time; the final
+    descent is per cell. Every value is the one a single thread computes.
+
+    Pending cells have only valid neighbours; those on a closed grid edge skip
+    the neighbours off the grid. Returns the number of pending cells left
+    without an exit (0 on a filled surface); those stay pending for the caller.
+    """
+    n = rows * cols
+    off = np.empty(8, dtype=np.int64)
+    for k in range(8):
+        off[k] = D_ROW[k] * cols + D_COL[k]
+    pending = pending_cells(code, rows, cols)
+    label = np.zeros(n, dtype=np.int32)
+    mask = np.zeros(n, dtype=np.int32)
+    toward = np.zeros(n, dtype=np.int32)
+    for task in prange(2):
+        if task == 0:
+            _flats_away(z, rows, cols, off, code, pending, label, mask)
+        else:
+            _flats_toward(z, rows, cols, off, code, pending, toward)
+    label = label[:0]  # release: the directions below reuse ``toward``
+    for j in prange(pending.size):
+        i = pending[j]
         mask[i] = 2 * toward[i] + mask[i] if toward[i] > 0 else -1
-    # 4. steepest descent on the mask; draining neighbours of equal elevation count as 0.
+    # Steepest descent on the mask; draining neighbours of equal elevation count as 0.
     # Receivers are set first and codes after, so every cell sees its neighbours' pending state.
-    n_stuck = 0
-    for i in pending:
+    stuck = np.zeros(pending.size, dtype=np.uint8)
+    for j in prange(pending.size):
+        i = pending[j]
         if mask[i] < 0:
-            n_stuck += 1
+            stuck[j] = 1
             continue
         r = i // cols
         ci = i % cols
@@ -247,14 +296,15 @@ def resolve_flats(z, rows, cols, dist, rec, code):
                 best = s
                 best_k = k
         if best_k < 0:
-            n_stuck += 1
+            stuck[j] = 1
         else:
             rec[i] = i + off[best_k]
             toward[i] = best_k  # no longer needed as a distance; holds the direction
-    for i in pending:
+    for j in prange(pending.size):
+        i = pending[j]
         if rec[i] != i:
             code[i] = toward[i]
-    return n_stuck
+    return int(stuck.sum())
 
 
 @njit(cache=True)
@@ -313,6 +363,50 @@ def accumulate_down(order, rec, values, out):
         r = rec[i]
         if r != i:
             out[r] += out[i]
+
+
+@njit(cache=True)
+def basin_starts(order, rec):
+    """Positions in ``order`` where each outlet's basin starts, and ``order.size`` last.
+
+    The depth-first order visits one outlet's basin at a time, outlet first,
+    so every basin is the contiguous run between two successive starts.
+    """
+    m = 0
+    for j in range(order.size):
+        i = order[j]
+        if rec[i] == i:
+            m += 1
+    out = np.empty(m + 1, dtype=np.int64)
+    m = 0
+    for j in range(order.size):
+        i = order[j]
+        if rec[i] == i:
+            out[m] = j
+            m += 1
+    out[m] = order.size
+    return out
+
+
+@njit(cache=True, parallel=True)
+def accumulate_basins(order, rec, starts, values, out):
+    """:func:`accumulate_down` one outlet basin per task (all threads).
+
+    Every cell receives its donors' sums in the same sequence as in the serial
+    sweep (basins never exchange water), so the floating-point result is the
+    same bit for bit.
+    """
+    for b in prange(starts.size - 1):
+        lo = starts[b]
+        hi = starts[b + 1]
+        for j in range(lo, hi):
+            i = order[j]
+            out[i] = values[i]
+        for j in range(hi - 1, lo - 1, -1):
+            i = order[j]
+            r = rec[i]
+            if r != i:
+                out[r] += out[i]
 
 
 @njit(cache=True)

@@ -268,7 +268,7 @@ def route(
     area = np.zeros(n, dtype=np.float64)
     cell_area = np.repeat(dem.cell_area, cols)
     cell_area[~valid] = 0.0
-    _k.accumulate_down(order, rec, cell_area, area)
+    _k.accumulate_basins(order, rec, _k.basin_starts(order, rec), cell_area, area)
     del cell_area
     return FlowGraph(
         dem=dem,

@@ -1,0 +1,88 @@
+"""Routing on all threads gives the serial result bit for bit.
+
+The reference is the same program on one thread (``numba.set_num_threads(1)`` runs every
+parallel loop in order), and the plain serial sweep ``accumulate_down`` for drainage
+areas. Random DEMs of few elevation levels are mostly flats and depressions, the cases
+where order of work could leak into the result (common practice for routing tests).
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from divides import Dem, route
+from divides.errors import DividesError
+from divides.terrain import _routing_kernels as _k
+
+
+@st.composite
+def rough_dems(draw):
+    rows = draw(st.integers(3, 24))
+    cols = draw(st.integers(3, 24))
+    seed = draw(st.integers(0, 2**31 - 1))
+    levels = draw(st.integers(1, 5))
+    rng = np.random.default_rng(seed)
+    z = rng.integers(0, levels, size=(rows, cols)).astype(np.float32) * 10.0
+    if draw(st.booleans()):
+        z[rng.random((rows, cols)) < 0.08] = np.nan
+    geographic = draw(st.booleans())
+    closed = draw(st.sampled_from([(), ("north",), ("east", "west"), ("north", "south", "east")]))
+    return z, geographic, closed
+
+
+def _route(z, geographic, closed, threads):
+    before = numba.get_num_threads()
+    numba.set_num_threads(threads)
+    try:
+        if geographic:  # per-row cell sizes: drainage areas sum unequal floats, order matters
+            from affine import Affine
+
+            dem = Dem.from_array(z, transform=Affine(0.01, 0, 10.0, 0, -0.01, 60.0), crs="EPSG:4326")
+        else:
+            dem = Dem.from_array(z, cell_size=30.0)
+        return route(dem, closed_edges=closed)
+    finally:
+        numba.set_num_threads(before)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(rough_dems())
+def test_all_threads_equal_one_thread(case):
+    z, geographic, closed = case
+    if np.count_nonzero(np.isfinite(z)) < 9:
+        return
+    try:
+        one = _route(z, geographic, closed, 1)
+    except DividesError:  # e.g. fewer than a 3 x 3 block of valid cells
+        return
+    both = _route(z, geographic, closed, numba.config.NUMBA_NUM_THREADS)
+    assert np.array_equal(one.receivers, both.receivers)
+    assert np.array_equal(one.direction, both.direction)
+    assert np.array_equal(one.order, both.order)
+    assert one.n_flat_cells == both.n_flat_cells
+    assert np.array_equal(one.area.view(np.uint64), both.area.view(np.uint64))  # bit for bit
+
+
+@settings(max_examples=40, deadline=None)
+@given(rough_dems())
+def test_basin_accumulation_equals_the_serial_sweep(case):
+    z, geographic, closed = case
+    if np.count_nonzero(np.isfinite(z)) < 9:
+        return
+    try:
+        flow = _route(z, geographic, closed, 1)
+    except DividesError:
+        return
+    rng = np.random.default_rng(0)
+    values = rng.random(flow.receivers.size)  # irrational-looking floats: any reordering shows
+    serial = np.zeros_like(values)
+    _k.accumulate_down(flow.order, flow.receivers, values, serial)
+    parallel = np.zeros_like(values)
+    _k.accumulate_basins(flow.order, flow.receivers, _k.basin_starts(flow.order, flow.receivers), values, parallel)
+    assert np.array_equal(serial.view(np.uint64), parallel.view(np.uint64))
+    # and the sum over the outlets is the total (conservation of water; common practice)
+    outlets = flow.outlets
+    assert np.isclose(parallel[outlets].sum(), values[flow.order].sum())
