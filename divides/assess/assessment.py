@@ -132,7 +132,7 @@ class Assessment:
             "contrasts": [c.to_dict() for c in self.contrasts],
             "knickpoints": [
                 {k: kp[k] for k in ("side", "x", "y", "elevation_m", "distance_to_divide_m", "arrival_years",
-                                    "kind", "delta_ksn", "step_m", "p_value", "q_value", "chi", "area_m2",
+                                    "kind", "delta_ksn", "step_m", "p_value", "q_value", "chi", "chi_base", "area_m2",
                                     "celerity_note")}
                 | {"celerity_defined": bool(kp["celerity_defined"])}
                 for kp in self.knickpoints
@@ -360,16 +360,13 @@ def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
                 "erosion_a_mm_yr": float(np.nanmedian(cal.erosion_a) * 1e3),
                 "erosion_b_mm_yr": float(np.nanmedian(cal.erosion_b) * 1e3)}
     knickpoints = []
-    chi_top = {}
-    for s in core.profiles.streams:
-        top = float(np.nanmax(core.profiles.chi[s.nodes]))
-        for node in s.nodes:
-            chi_top[int(node)] = max(chi_top.get(int(node), -np.inf), top)
     for kp in core.profiles.knickpoints:
         arrival = None
         # a knickpoint whose celerity is not defined (a spreading break, a vertical step) gets no time
         if cal.k is not None and kp["celerity_defined"]:
-            remaining = (chi_top.get(kp["position"], kp["chi"]) - kp["chi"]) / to_unit
+            # χ still to climb, up to the channel head at the top of its longest path: both from
+            # the knickpoint's own network outlet (it may lie below the common base level)
+            remaining = (core.profiles.chi_outlet[kp["head_position"]] - kp["chi"]) / to_unit
             speed = cal.k * float(step_celerity(kp["ksn_below"] * to_unit, kp["ksn_above"] * to_unit, config.n))
             years = remaining / speed
             lo, best, hi = (float(x) for x in np.nanpercentile(years, [2.5, 50, 97.5]))

@@ -158,7 +158,7 @@ def calibrate(
         K itself.
     knickpoint, knickpoint_age_years : dict and float, optional
         A knickpoint (``chi``, ``ksn_below``, ``ksn_above``) that formed at the
-        common base level ``knickpoint_age_years`` ago: K = χ / (age · celerity).
+        outlet its ``chi`` is measured from ``knickpoint_age_years`` ago: K = χ / (age · celerity).
     erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr : float, optional
         One standard deviation of the measured rates (mm/yr).
     erodibility_error, knickpoint_age_error_years : float, optional
@@ -196,7 +196,7 @@ def calibrate(
         age = draw(knickpoint_age_years, knickpoint_age_error_years, ka.size).reshape(ka.shape)
         k = knickpoint["chi"] / (age * c)
         return Calibration("dated knickpoint", k * ka**n, k * kb**n, k,
-                           ["assumes the knickpoint left the common base level when it formed"])
+                           ["assumes the knickpoint left its network's outlet when it formed"])
     return Calibration("none")
 
 

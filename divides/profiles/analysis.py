@@ -62,6 +62,10 @@ class ProfileAnalysis:
         basin and the basins combined) and ``"slope_area"`` (both sides).
     chi : ndarray
         χ (m) of channel cells at or above the base level; NaN elsewhere.
+    chi_outlet : ndarray
+        χ (m) of every channel cell of either side, integrated from its own network's
+        outlet (NaN off the sides). Knickpoints are searched on it, below the common base
+        level too; differences along a stream are the same as those of ``chi``.
     side : ndarray of int8
         1 for side a, 2 for side b, 0 for other channel cells.
     ksn, ksn_se : ndarray
@@ -69,12 +73,18 @@ class ProfileAnalysis:
     ksn_slope_area : ndarray
         S · A^θ with S the smoothed channel gradient, for comparison.
     streams : list of Stream
+        Streams above the common base level (ksn per cell, χ plots).
     knickpoints : list of dict
-        Significant knickpoints (see :func:`divides.profiles.knickpoints.breaks_of`
-        for the keys), plus ``q_value`` (p adjusted for the number of breaks tested,
-        Benjamini & Hochberg 1995), ``celerity_defined`` and ``celerity_note`` (see
-        :func:`divides.profiles.knickpoints.celerity_status`), ``side``, ``cell``,
-        ``x``, ``y``, ``elevation_m``, ``area_m2``, ``distance_to_divide_m``.
+        Significant knickpoints, searched on every channel of each side from its own
+        network outlet (a side lowered by a base-level fall keeps its knickpoints below
+        the common base level). Keys of :func:`divides.profiles.knickpoints.breaks_of`,
+        with ``chi`` the χ from the own outlet (:attr:`chi_outlet`), plus ``chi_base``
+        (χ from the common base level, NaN below it), ``head_position`` (channel head
+        at the top of the longest path above the knickpoint), ``q_value`` (p adjusted
+        for the number of breaks tested, Benjamini & Hochberg 1995), ``celerity_defined``
+        and ``celerity_note`` (see :func:`divides.profiles.knickpoints.celerity_status`),
+        ``side``, ``position``, ``cell``, ``x``, ``y``, ``elevation_m``, ``area_m2``,
+        ``distance_to_divide_m``.
     n_candidate_breaks : int
         Breaks found by segmentation before significance and artefact filters.
     """
@@ -91,6 +101,7 @@ class ProfileAnalysis:
     ksn_se: np.ndarray
     ksn_slope_area: np.ndarray
     streams: list = field(repr=False)
+    chi_outlet: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
     knickpoints: list = field(default_factory=list)
     n_candidate_breaks: int = 0
     weights: dict = field(default_factory=dict)
@@ -229,21 +240,36 @@ def analyse_profiles(
     with np.errstate(invalid="ignore"):
         ksn_sa = slope_all * (area / a0) ** theta_value
     streams: list[Stream] = []
-    candidates: list[tuple[str, np.ndarray, dict]] = []
     for side_name, kept in (("a", base.kept_a), ("b", base.kept_b)):
         for nodes, tributary in longest_path_streams(down, step, kept):
             if nodes.size < 2:
                 continue  # a lone base node: nothing to fit
-            along = np.r_[0.0, np.cumsum(step[nodes[1:]])]  # distance along the stream, for the error model
-            seg = segment_profile(chi[nodes], z[nodes], distance_m=along, error=error, min_nodes=min_nodes,
-                                  max_segments=max_segments)
+            seg = segment_profile(chi[nodes], z[nodes], distance_m=_along(step, nodes), error=error,
+                                  min_nodes=min_nodes, max_segments=max_segments)
             streams.append(Stream(side_name, nodes, seg))
             first = 1 if tributary else 0  # a tributary's junction node belongs to the stream it joins
             own = nodes[first:]
             which = seg.segment_of(np.arange(first, nodes.size))
             ksn[own] = seg.slope[which]
             ksn_se[own] = seg.slope_se[which]
-            for brk in breaks_of(seg, chi[nodes], z[nodes], min_nodes=min_nodes, distance_m=along, error=error):
+
+    # Knickpoints are searched on every channel of each side, from its own network outlet: a side
+    # lowered by a base-level fall has most of its steepened reach below the common base level
+    # (Whipple & Tucker 1999). Only χ differences along a stream matter to segmentation and arrival
+    # times, so χ from each network's outlet serves; the contrasts keep the common base.
+    on_a = sides.a.mask.ravel()[channels.cells]
+    on_b = sides.b.mask.ravel()[channels.cells]
+    chi_outlet = integrate_chi(down, step, area, theta=theta_value, a0=a0, keep=on_a | on_b, weight=factor)
+    candidates: list[tuple[str, np.ndarray, dict]] = []
+    for side_name, on in (("a", on_a), ("b", on_b)):
+        for nodes, _ in longest_path_streams(down, step, on):
+            if nodes.size < 2 * min_nodes:
+                continue  # too short to hold two segments: no break can be tested
+            along = _along(step, nodes)
+            seg = segment_profile(chi_outlet[nodes], z[nodes], distance_m=along, error=error,
+                                  min_nodes=min_nodes, max_segments=max_segments)
+            for brk in breaks_of(seg, chi_outlet[nodes], z[nodes], min_nodes=min_nodes, distance_m=along,
+                                 error=error):
                 candidates.append((side_name, nodes, brk))
 
     conc["slope_area"] = concavity_by_slope_area(area[keep], slope_all[keep])
@@ -267,8 +293,10 @@ def analyse_profiles(
         defined, note = celerity_status(brk["kind"], brk["ksn_below"], brk["ksn_above"], n)
         r, c = divmod(cell, flow.shape[1])
         x, y = flow.dem.xy(r, c)
+        # χ from the common base differs from χ from the own outlet by one constant per network
         knickpoints.append({
-            **brk, "q_value": float(q), "celerity_defined": defined, "celerity_note": note,
+            **brk, "chi_base": float(brk["chi"] - chi_outlet[pos] + chi[pos]), "head_position": int(nodes[-1]),
+            "q_value": float(q), "celerity_defined": defined, "celerity_note": note,
             "side": side_name, "position": pos, "cell": cell, "x": float(x), "y": float(y),
             "elevation_m": float(raw[cell]), "area_m2": float(channels.area[pos]),
             "distance_to_divide_m": float(longest[cell]),
@@ -276,10 +304,14 @@ def analyse_profiles(
     return ProfileAnalysis(
         channels=channels, base=base, theta=float(theta_value), theta_source=source, a0=float(a0),
         concavity=conc, chi=chi, side=side, ksn=ksn, ksn_se=ksn_se, ksn_slope_area=ksn_sa, streams=streams,
-        knickpoints=knickpoints, n_candidate_breaks=len(candidates),
+        chi_outlet=chi_outlet, knickpoints=knickpoints, n_candidate_breaks=len(candidates),
         weights={} if weights is None else weights.description,
     )
 
+
+def _along(step: np.ndarray, nodes: np.ndarray) -> np.ndarray:
+    """Distance (m) along a stream from its first node, for the error model."""
+    return np.r_[0.0, np.cumsum(step[nodes[1:]])]
 
 
 def _channel_slopes(channels: Channels, keep: np.ndarray) -> np.ndarray:

@@ -4,13 +4,9 @@ Landscapes come from the project's stream-power model (divides.model) on a 40 x 
 100 m cells: a symmetric ridge grown to steady state (about 33 m high), and the same ridge 20 kyr
 after a 10 m fall of its eastern base level (a moving divide with migrating knickpoints).
 
-Why 10 m and 20 kyr: χ is measured from one base level, the highest outlet (the western edge,
-0 m), so only channels above 0 m are analysed. After a fall of 20 m and 200 kyr the knickpoints
-have swept most of the eastern side and everything below them stands under 0 m: the fallen side
-keeps streams of at most 6 channel nodes above the base level, too short to split into two
-segments of 8, so no knickpoint can be seen there (checked; the two candidate breaks left were
-on the steady western side, p = 1). A smaller, younger fall keeps the steepened reach above the
-base level, where the knickpoints can be found.
+χ contrasts are measured from one base level, the highest outlet (the western edge, 0 m);
+knickpoints are searched on every channel of a side from its own network outlet, so a larger,
+older fall (20 m, 100 kyr), which leaves most of the eastern channels below 0 m, keeps them too.
 """
 
 from __future__ import annotations
@@ -125,6 +121,27 @@ def test_the_same_landscape_cut_lower_gives_the_same_chi_contrast(steady):
     assert b.n_samples == a.n_samples
     assert b.a == pytest.approx(a.a, rel=1e-4) and b.b == pytest.approx(a.b, rel=1e-4)
     assert b.difference == pytest.approx(a.difference, rel=1e-3, abs=1e-3)
+
+
+def test_arrival_times_use_chi_from_the_knickpoints_own_outlet(steady):
+    # For n = 1 every slope climbs at K A^m, so a knickpoint needs Δχ / K years (A0 = 1 m²) to climb
+    # Δχ (Whipple & Tucker 1999; Royden & Perron 2013). Δχ between a knickpoint and its channel head
+    # does not depend on where χ = 0 is: below the common base level it is taken from the own outlet,
+    # above it the same Δχ as from the common base.
+    fall = S.base_level_fall(SHAPE, side="east", drop=20.0, seed=4)
+    fallen = simulate(steady, duration=1e5, dt=4e3, **fall.options).final
+    k = 2e-5
+    r = divides.assess(fallen, "west", "east", erodibility=k, **OPTIONS, **KNICK)
+    chi_outlet, chi = r.profiles.chi_outlet, r.profiles.chi
+    below = [kp for kp in r.knickpoints if not np.isfinite(kp["chi_base"])]
+    assert below and all(kp["side"] == "b" for kp in r.knickpoints)
+    for kp in r.knickpoints:
+        head = kp["head_position"]
+        climb = chi_outlet[head] - kp["chi"]
+        assert climb > 0
+        assert kp["arrival_years"]["best"] == pytest.approx(climb / k, rel=1e-9)
+        if np.isfinite(kp["chi_base"]):
+            assert chi[head] - kp["chi_base"] == pytest.approx(climb, rel=1e-9)
 
 
 def test_knickpoints_without_a_defined_celerity_get_no_arrival_time(moving):

@@ -51,9 +51,14 @@ def test_real_dem_sides_run_to_completion(jacksboro):
     assert np.all(np.isfinite(result.ksn[kept]))
     grid = result.grid(result.ksn)
     assert grid.shape == flow.shape and np.isfinite(grid).sum() == kept.sum()
+    # knickpoints are searched on every channel of a side, below the common base level too: χ from
+    # the own outlet is finite on every side channel; χ from the common base only above it
+    on_side = (sides.a.mask | sides.b.mask).ravel()[channels.cells]
+    assert np.all(np.isfinite(result.chi_outlet[on_side])) and np.all(np.isnan(result.chi_outlet[~on_side]))
     for kp in result.knickpoints:
         assert kp["p_value"] < 0.05 and kp["distance_to_divide_m"] > 0
-        assert kept[kp["position"]]
+        assert on_side[kp["position"]] and np.isfinite(kp["chi"])
+        assert np.isfinite(kp["chi_base"]) == bool(kept[kp["position"]])
 
 
 
@@ -112,4 +117,40 @@ def test_knickpoints_of_a_base_level_fall_are_found_on_the_fallen_side_only(stea
     result = _profiles(snap, theta=0.5, dem_error=DemError.for_cell_size(0.1, 100.0))
     sides = [kp["side"] for kp in result.knickpoints]
     assert sides.count("b") >= 2 and sides.count("a") == 0
-    assert all(kp["ksn_below"] > kp["ksn_above"] for kp in result.knickpoints)
+    # The sudden drop is a step that the model's finite steps spread into a steepened reach: its top
+    # (the lip, the front nearest the divide) is steeper below; its foot, lower on the same path, is
+    # steeper above. The highest knickpoint on each path to a channel head is a lip.
+    top: dict[int, dict] = {}
+    for kp in result.knickpoints:
+        if kp["head_position"] not in top or kp["elevation_m"] > top[kp["head_position"]]["elevation_m"]:
+            top[kp["head_position"]] = kp
+    assert all(kp["ksn_below"] > kp["ksn_above"] for kp in top.values())
+
+
+def test_knickpoints_below_the_common_base_level_are_found_on_a_fallen_side(steady_landscape):
+    # A 40 x 80 ridge 100 kyr after its east edge fell 20 m: the wave of incision launched by the fall
+    # (Whipple & Tucker 1999; Royden & Perron 2013) has lowered most of the eastern channels below the
+    # common base level (the western outlets, 0 m). The knickpoint search runs from each network's own
+    # outlet, so the fallen side keeps its knickpoints; the steady western side has none.
+    from divides.model import scenarios
+    from divides.model.simulate import simulate
+    from divides.terrain.dem_error import DemError
+
+    shape = (40, 80)
+    steady = scenarios.symmetric_divide(shape, seed=1).run(duration=3e6, dt=2e4).final
+    fall = scenarios.base_level_fall(shape, side="east", drop=20.0, seed=4)
+    snap = simulate(steady, duration=1e5, dt=4e3, **fall.options).final
+    flow = divides.route(snap, closed_edges=("north", "south"))
+    channels = divides.extract_channels(flow)
+    sides = divides.resolve_sides(flow, divides.parse_side("west"), divides.parse_side("east"))
+    base = divides.common_base_level(channels, sides)
+    on_b = sides.b.mask.ravel()[channels.cells]
+    assert np.count_nonzero(on_b & ~base.kept_b) > 0.5 * np.count_nonzero(on_b)  # mostly below the base
+    result = analyse_profiles(channels, sides, base, theta=0.5, n_boot=0,
+                              dem_error=DemError.for_cell_size(0.1, 100.0))
+    sides_found = [kp["side"] for kp in result.knickpoints]
+    assert sides_found.count("b") >= 1 and sides_found.count("a") == 0
+    below = [kp for kp in result.knickpoints if kp["elevation_m"] < base.elevation_m]
+    assert below and all(np.isnan(kp["chi_base"]) for kp in below)
+    # steady before the fall: nothing on either side (issue 11 target: at most 1)
+    assert len(_profiles(steady, theta=0.5, dem_error=DemError.for_cell_size(0.1, 100.0)).knickpoints) <= 1
