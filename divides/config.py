@@ -75,6 +75,9 @@ class AssessConfig:
         Snapping radius of side points; None = five cells.
     seed : int
         Random seed of every bootstrap and perturbation.
+    min_confidence : float
+        Calibrated probability a direction or "stable" needs before it is returned
+        (otherwise "undetermined"); in (1/3, 1], default 0.8 (docs/validation.md).
     """
 
     theta: float | str = 0.45
@@ -100,6 +103,7 @@ class AssessConfig:
     closed_edges: tuple = ()
     snap_radius_m: float | None = None
     seed: int = 0
+    min_confidence: float = 0.8
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -138,6 +142,10 @@ class AssessConfig:
             raise ParameterError(f"closed_edges must be a list of north, south, east, west; got {self.closed_edges!r}")
         if not isinstance(self.seed, int) or isinstance(self.seed, bool) or self.seed < 0:
             raise ParameterError(f"seed must be a whole number >= 0; got {self.seed!r}")
+        if not (isinstance(self.min_confidence, (int, float)) and not isinstance(self.min_confidence, bool)
+                and 1.0 / 3.0 < self.min_confidence <= 1.0):
+            raise ParameterError(f"min_confidence must be a probability above 1/3 and at most 1; got "
+                                 f"{self.min_confidence!r}")
         calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \
             (self.erosion_rate_a_mm_yr is not None or self.erosion_rate_b_mm_yr is not None)
         if calibrations > 1:
