@@ -121,6 +121,7 @@ def decide(
     same_channel: bool = False,
     min_confidence: float = DEFAULT_THRESHOLD,
     model: DecisionModel | None = None,
+    extra: dict | None = None,
 ) -> Verdict:
     """The calibrated verdict.
 
@@ -153,6 +154,9 @@ def decide(
         Probability an outcome needs, in (1/3, 1] (default 0.8).
     model : DecisionModel, optional
         Default: the packaged model (:func:`decision_model`).
+    extra : dict, optional
+        Further features by name, signed toward b, for a model that reads them (e.g.
+        ``fwd_shift``, the forward run's shift: :func:`divides.outlook.forward_shift_cells`).
     """
     from divides.assess.calibration import decide as rule
 
@@ -163,7 +167,7 @@ def decide(
         return Verdict("undetermined", None, 0.0, "insufficient data", long_run, robustness_share=robustness_share,
                        reason="insufficient data", min_confidence=float(min_confidence))
     model = decision_model() if model is None else model
-    feats = evidence.features(contrasts)
+    feats = {**evidence.features(contrasts), **(extra or {})}
     decision = rule(model.probabilities(feats), threshold=min_confidence)[0]
     probs = {k: round(v, 4) for k, v in decision.probabilities.items()}
     toward, confidence = decision.outcome, decision.probability

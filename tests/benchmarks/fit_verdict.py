@@ -29,7 +29,7 @@ from pathlib import Path
 
 import numpy as np
 
-SIGNED_PREFIXES = ("z_", "cons_")
+SIGNED_PREFIXES = ("z_", "cons_", "fwd_")
 L2_GRID = (0.03, 0.1, 0.3, 1.0, 3.0, 10.0, 30.0)
 OUT = Path(__file__).resolve().parents[2] / "divides" / "assess" / "verdict_model.json"
 
@@ -103,33 +103,11 @@ def _cv_loss(x, y, names, l2, folds=5, seed=0):
     return loss / len(y)
 
 
-def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--n", type=int, default=300)
-    parser.add_argument("--seed", type=int, default=0)
-    parser.add_argument("--grid", type=int, nargs=2, default=(120, 260))
-    parser.add_argument("--contrasts", type=Path, default=Path("/work/benchrun/contrasts.jsonl"))
-    parser.add_argument("--available", action="store_true", help="use only landscapes already in --contrasts")
-    parser.add_argument("--min-confidence", type=float, default=0.8)
-    parser.add_argument("--write", action="store_true", help="write divides/assess/verdict_model.json")
-    parser.add_argument("--png", type=Path, default=None, help="reliability diagram of the held-out part")
-    args = parser.parse_args(argv)
-
+def _select_and_judge(recs, args, extra=()):
     from divides.assess import evidence
-    from divides.assess.calibration import (TARGETS, expected_calibration_error, fit, reliability, score,
-                                            top_label)
+    from divides.assess.calibration import TARGETS, expected_calibration_error, fit, reliability, score, top_label
     from divides.assess.verdict import decide
 
-    if args.available:
-        recs = sorted((json.loads(l) for l in args.contrasts.read_text().splitlines()), key=lambda r: r["index"])
-        recs = [r for r in recs if r["index"] < args.n]
-    else:
-        recs = _extract(args.n, args.seed, tuple(args.grid), args.contrasts)
-    recs = [r for r in recs if r["truth"] is not None]
-    for r in recs:
-        r["c"] = _contrasts(r)
-        r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
-        r["f"] = evidence.features(r["c"]) if r["ok"] else None
     train = [r for r in recs if r["split"] == "training" and r["ok"]]
     print(f"{len(recs)} landscapes with a truth; training with enough data: {len(train)} "
           f"(of {sum(r['split'] == 'training' for r in recs)} training)")
@@ -143,10 +121,11 @@ def main(argv: list[str] | None = None) -> int:
                                 or f.startswith("abs_") or f in ("log_n_eff", "balanced")),
         "no magnitudes": tuple(f for f in evidence.FEATURES if not f.startswith("abs_")),
     }
+    subsets = {k: v + tuple(extra) for k, v in subsets.items()}
     y = np.array([r["truth"] for r in train])
     results = []
     for label, names in subsets.items():
-        x = np.array([[r["f"][n] for n in names] for r in train])
+        x = np.array([[{**r["f"], **r["x"]}[n] for n in names] for r in train])
         for l2 in L2_GRID:
             results.append((_cv_loss(x, y, names, l2), label, l2))
     results.sort()
@@ -155,12 +134,12 @@ def main(argv: list[str] | None = None) -> int:
         print(f"  {loss:.4f}  {label:16s} l2 = {l2:g}")
     _, label, l2 = results[0]
     names = subsets[label]
-    x = np.array([[r["f"][n] for n in names] for r in train])
+    x = np.array([[{**r["f"], **r["x"]}[n] for n in names] for r in train])
     model = fit(*_mirror(x, y, names), features=names, l2=l2)
 
     # ---- decisions on every landscape (insufficient data: undetermined)
     for r in recs:
-        v = decide(r["c"], model=model, min_confidence=args.min_confidence) if r["c"] else None
+        v = decide(r["c"], model=model, min_confidence=args.min_confidence, extra=r["x"]) if r["c"] else None
         r["said"] = v.moves_toward if v else "undetermined"
         r["conf"] = v.confidence if v else 0.0
         r["p"] = None if (v is None or v.probabilities is None) else [v.probabilities[k] for k in ("a", "b", "stable")]
@@ -189,14 +168,67 @@ def main(argv: list[str] | None = None) -> int:
     wrong_hi = [(r["index"], r["family"], r["truth"], r["said"], r["conf"]) for r in recs
                 if r["said"] in ("a", "b") and r["said"] != r["truth"]]
     print("\nwrong directions:", wrong_hi)
+    return model, label, l2, results, summary
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--n", type=int, default=300)
+    parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--grid", type=int, nargs=2, default=(120, 260))
+    parser.add_argument("--contrasts", type=Path, default=Path("/work/benchrun/contrasts.jsonl"))
+    parser.add_argument("--available", action="store_true", help="use only landscapes already in --contrasts")
+    parser.add_argument("--min-confidence", type=float, default=0.8)
+    parser.add_argument("--write", action="store_true", help="write divides/assess/verdict_model.json")
+    parser.add_argument("--forward", type=Path, default=None,
+                        help="JSON lines of forward-run shifts (index, shift_cells): fit and judge a second model "
+                             "with the forward run as a feature (reported, not shipped)")
+    parser.add_argument("--png", type=Path, default=None, help="reliability diagram of the held-out part")
+    args = parser.parse_args(argv)
+
+    from divides.assess import evidence
+
+    if args.available:
+        recs = sorted((json.loads(l) for l in args.contrasts.read_text().splitlines()), key=lambda r: r["index"])
+        recs = [r for r in recs if r["index"] < args.n]
+    else:
+        recs = _extract(args.n, args.seed, tuple(args.grid), args.contrasts)
+    recs = [r for r in recs if r["truth"] is not None]
+    for r in recs:
+        r["c"] = _contrasts(r)
+        r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
+        r["f"] = evidence.features(r["c"]) if r["ok"] else None
+    fwd = {}
+    if args.forward is not None:
+        for line in args.forward.read_text().splitlines():
+            rec = json.loads(line)
+            fwd[rec["index"]] = rec["shift_cells"]
+    if fwd:
+        with_fwd = [r for r in recs if r["index"] in fwd]
+        print(f"\n==== with the forward run (on the {len(with_fwd)} landscapes that have it; reported, not shipped)")
+        for r in with_fwd:
+            v = fwd[r["index"]]
+            v = 0.0 if v is None or not math.isfinite(v) else v
+            r["x"] = {"fwd_shift": math.copysign(math.log1p(abs(v)), v)}
+        _select_and_judge(with_fwd, args, extra=("fwd_shift",))
+        print("\n==== the same landscapes without it")
+        for r in with_fwd:
+            r["x"] = {}
+        _select_and_judge(with_fwd, args)
+        print("\n==== metric-only model on every landscape (shipped)")
+    for r in recs:
+        r["x"] = {}
+    model, label, l2, results, summary = _select_and_judge(recs, args)
     doc = model.to_dict()
-    doc["selection"] = {"features": label, "l2": l2, "cv_log_loss": results[0][0], "training_cases": len(train),
+    doc["selection"] = {"features": label, "l2": l2, "cv_log_loss": results[0][0], "training_cases": model.n_train // 2,
                         "benchmark": {"seed": args.seed, "n": args.n, "grid": list(args.grid)}}
     doc["held_out_reliability"] = [
         {"lower": b.lower, "upper": b.upper, "count": b.count,
          "mean_confidence": None if not b.count else round(b.mean_confidence, 4),
          "accuracy": None if not b.count else round(b.accuracy, 4)} for b in summary["held-out"]["bins"]]
-    print("\nmodel:", json.dumps(doc["coefficients"], indent=1))
+    print("\nmodel (coefficients on standardised features):")
+    for c, row in doc["coefficients"].items():
+        print(f"  {c:7s} intercept {doc['intercepts'][c]:+.3f}  " + "  ".join(f"{k} {v:+.3f}" for k, v in row.items()))
     if args.write:
         OUT.write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
         print(f"wrote {OUT}")
