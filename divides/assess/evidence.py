@@ -97,9 +97,9 @@ def features(contrasts: Iterable[Contrast]) -> dict[str, float]:
     --------
     >>> c = Contrast("hillslope_gradient", "m/m", 0.3, 0.2, 0.1, (0.05, 0.15), "b", 20, "lower hillslope gradient",
     ...              consistency=2.0, n_samples=20, n_effective=20.0)
-    >>> f = features([c])
+    >>> f = features([c])  # z = 0.1 / (0.1 / (2 x 1.96)) = 3.92; log(1 + 3.92) = 1.593
     >>> round(f["z_hillslope_gradient"], 3), f["cons_hillslope_gradient"], f["z_chi"]
-    (1.604, 2.0, 0.0)
+    (1.593, 2.0, 0.0)
     """
     by = {c.metric: c for c in contrasts}
     out: dict[str, float] = {}

@@ -127,11 +127,15 @@ def test_config_validation():
     assert AssessConfig().theta == 0.45
     for bad in ({"theta": -1}, {"theta": "best"}, {"n": 0}, {"dem_error_m": -1}, {"n_bootstrap": 3},
                 {"erosion_rate_a_mm_yr": 5000.0}, {"conditioning": "smooth"},
-                {"erosion_rate_a_mm_yr": 0.1, "erodibility": 1e-6}, {"channel_area_m2": 0}):
+                {"erosion_rate_a_mm_yr": 0.1, "erodibility": 1e-6}, {"channel_area_m2": 0},
+                # a threshold at or below 1/3 could return an outcome that is not the most probable
+                # of three (pigeonhole), above 1 none could be returned
+                {"min_confidence": 1 / 3}, {"min_confidence": 1.01}, {"min_confidence": True}):
         with pytest.raises(ParameterError):
             AssessConfig(**bad)
     with pytest.raises(ParameterError, match="unknown option"):
         AssessConfig.from_options(thetaa=0.5)
+    assert AssessConfig().min_confidence == 0.8  # issue 12's default threshold
 
 
 def test_channel_elevation_and_hillslope_relief_mirror_each_other_when_read_at_the_same_cells():

@@ -160,6 +160,16 @@ def _select_and_judge(recs, args, extra=()):
         fam: dict = defaultdict(Counter)
         for r in sel:
             fam[r["family"]][(r["truth"], r["said"])] += 1
+        print(f"\n  | family | moving | right | wrong way | called stable | undetermined | stable | called stable "
+              f"| given a direction | undetermined |\n  | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
+        for f in sorted({r["family"] for r in sel}):
+            mv = [r for r in sel if r["family"] == f and r["truth"] != "stable"]
+            st = [r for r in sel if r["family"] == f and r["truth"] == "stable"]
+            print(f"  | {f} | {len(mv)} | {sum(r['said'] == r['truth'] for r in mv)} | "
+                  f"{sum(r['said'] in ('a', 'b') and r['said'] != r['truth'] for r in mv)} | "
+                  f"{sum(r['said'] == 'stable' for r in mv)} | {sum(r['said'] == 'undetermined' for r in mv)} | "
+                  f"{len(st)} | {sum(r['said'] == 'stable' for r in st)} | {sum(r['said'] in ('a', 'b') for r in st)} | "
+                  f"{sum(r['said'] == 'undetermined' for r in st)} |")
         print(f"  {'family':28s} truth -> verdict counts")
         for f in sorted(fam):
             print(f"  {f:28s} " + ", ".join(f"{t}->{s}: {c}" for (t, s), c in sorted(fam[f].items())))
@@ -209,8 +219,8 @@ def main(argv: list[str] | None = None) -> int:
         for r in with_fwd:
             v = fwd[r["index"]]
             v = 0.0 if v is None or not math.isfinite(v) else v
-            r["x"] = {"fwd_shift": math.copysign(math.log1p(abs(v)), v)}
-        _select_and_judge(with_fwd, args, extra=("fwd_shift",))
+            r["x"] = {"fwd_shift": math.copysign(math.log1p(abs(v)), v), "abs_fwd": math.log1p(abs(v))}
+        _select_and_judge(with_fwd, args, extra=("fwd_shift", "abs_fwd"))
         print("\n==== the same landscapes without it")
         for r in with_fwd:
             r["x"] = {}
