@@ -50,15 +50,20 @@ _RULES = {"chi": "higher χ", "channel_elevation": "higher channel elevation",
 _NEAR = ["channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief"]
 
 
-def _toward(metric, side, z, *, consistency=3.0, n_eff=20.0, balanced=False):
-    """A sufficient contrast whose evidence points toward ``side`` with standardised size ``z`` (0: none)."""
+def _toward(metric, side, z, *, n_eff=20.0, balanced=False):
+    """A sufficient contrast whose evidence points toward ``side`` with standardised size ``z`` (0: none).
+
+    For independent samples the standard error of the mean is spread / sqrt(n), so the
+    consistency (|mean| / spread) that goes with z is z / sqrt(n).
+    """
+    consistency = z / np.sqrt(n_eff)
     rule = _RULES[metric]
     # a "higher ..." rule moves the divide toward the side with the higher value (Forte & Whipple 2018)
     sign = (1.0 if side == "a" else -1.0) * (1.0 if rule.startswith("higher") else -1.0)
     diff = sign * z
     toward = side if z >= 2 else "none"
     return Contrast(metric, "m", 10.0 + diff, 10.0, diff, (diff - 1.96, diff + 1.96), toward, int(n_eff), rule,
-                    consistency=consistency if z else 0.0, n_samples=int(n_eff), n_effective=n_eff,
+                    consistency=consistency, n_samples=int(n_eff), n_effective=n_eff,
                     balanced=balanced)
 
 
