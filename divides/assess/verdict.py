@@ -7,8 +7,6 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
 
-import numpy as np
-
 from divides.assess import evidence
 from divides.assess.calibration import DEFAULT_THRESHOLD, DecisionModel
 from divides.assess.contrasts import MIN_SAMPLES, Contrast
