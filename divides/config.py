@@ -78,6 +78,9 @@ class AssessConfig:
     name_a, name_b : str or None
         Names of the sides used in the verdict, figures, layers and JSON
         (e.g. the rivers' names); None = "side a" / "side b".
+    min_confidence : float
+        Calibrated probability a direction or "stable" needs before it is returned
+        (otherwise "undetermined"); in (1/3, 1], default 0.8 (docs/validation.md).
     """
 
     theta: float | str = 0.45
@@ -105,6 +108,7 @@ class AssessConfig:
     seed: int = 0
     name_a: str | None = None
     name_b: str | None = None
+    min_confidence: float = 0.8
     extra: dict = field(default_factory=dict)
 
     def __post_init__(self) -> None:
@@ -150,6 +154,10 @@ class AssessConfig:
                 raise ParameterError(f"{key} must be a short name on one line (1 to 60 characters); got {value!r}")
         if self.name_a is not None and self.name_a.strip().lower() == (self.name_b or "").strip().lower():
             raise ParameterError(f"name_a and name_b are the same ({self.name_a!r}); give the sides different names")
+        if not (isinstance(self.min_confidence, (int, float)) and not isinstance(self.min_confidence, bool)
+                and 1.0 / 3.0 < self.min_confidence <= 1.0):
+            raise ParameterError(f"min_confidence must be a probability above 1/3 and at most 1; got "
+                                 f"{self.min_confidence!r}")
         calibrations = sum(x is not None for x in (self.erodibility, self.knickpoint_age_years)) + \
             (self.erosion_rate_a_mm_yr is not None or self.erosion_rate_b_mm_yr is not None)
         if calibrations > 1:

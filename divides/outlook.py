@@ -52,6 +52,7 @@ __all__ = [
     "Forecast",
     "coarsen",
     "forecast",
+    "forward_shift_cells",
 ]
 
 #: Identifies the layout of :meth:`Forecast.to_dict` (``forecast.json``).
@@ -1080,3 +1081,49 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
     if not setup.closed:
         notes.append("Open DEM edges hold their present elevations; cells near them are fixed at base level.")
     return notes
+
+
+#: Horizon of :func:`forward_shift_cells`, in response times of the landscape.
+FORWARD_HORIZON_TAU = 0.3
+
+
+def forward_shift_cells(assessment: Assessment, *, horizon_tau: float = FORWARD_HORIZON_TAU,
+                        max_steps: int = 60) -> float:
+    """Evidence from a short forward run: the divide's shift over a fraction of the response time, in cells.
+
+    One central run of the forward model from the assessed DEM, with K unknown: K = 1 is
+    used and uplift balances the landscape ("uniform", the mean of both sides' channel
+    erosion rates), so uplift scales with K and E = K (A^m S^n − c) makes time scale as
+    1/K whatever n. With no hillslope diffusion the shift over a horizon given in
+    response times therefore does not depend on K (Royden & Perron 2013: K only
+    rescales time). The response time is relief / U (the landscape's relief over the
+    balancing uplift rate; Whipple 2001), the horizon ``horizon_tau`` of it.
+
+    Parameters
+    ----------
+    assessment : Assessment
+        An assessment of the DEM (its θ, n, sides, closed edges and channel threshold are used).
+    horizon_tau : float
+        Horizon in response times.
+    max_steps : int
+        Most time steps (>= 20): the run is a cheap line of evidence, not a forecast.
+
+    Returns
+    -------
+    float
+        Mean displacement of the divide over the horizon divided by the model cell size;
+        positive into side b. NaN when the divide left the grid.
+    """
+    grid, factor = coarsen(assessment.dem)
+    setup = _setup(assessment, grid, factor)
+    theta, n = float(assessment.profiles.theta), float(assessment.config.n)
+    u_a, u_b, _, _ = _balance_uplift(setup, np.asarray(1.0), theta * n, n)
+    z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
+    relief = float(np.nanmax(z) - np.nanmin(z))
+    uplift = 0.5 * (u_a + u_b)
+    if not (relief > 0 and uplift > 0):
+        return 0.0
+    run = _run(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=horizon_tau * relief / uplift,
+               uplift_mode="uniform", diffusivity=0.0, max_steps=int(max_steps))
+    cell = float(min(np.min(grid.dx), np.min(grid.dy)))
+    return float(run.displacement_m[-1]) / cell

@@ -20,7 +20,7 @@ from divides.assess.contrasts import (
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, sample_divide
 from divides.assess.rate import PLAUSIBLE_MM_PER_YR, Calibration, calibrate, migration_rate, step_celerity
-from divides.assess.verdict import CAUTION, INSUFFICIENT_HELP, Verdict, decide
+from divides.assess.verdict import CAUTION, INSUFFICIENT_HELP, Verdict, decide, decision_model, right_share
 from divides.config import AssessConfig
 from divides.errors import SideError
 from divides.io.dem import Dem
@@ -145,6 +145,8 @@ class Assessment:
                 "moves_toward": self.verdict.moves_toward,
                 "aggressor": self.verdict.aggressor,
                 "confidence": self.verdict.confidence,
+                "probabilities": self.verdict.probabilities,
+                "min_confidence": self.verdict.min_confidence,
                 "rate_mm_per_yr": rate,
                 "basis": self.verdict.basis,
                 "long_run_tendency": self.verdict.long_run,
@@ -179,9 +181,10 @@ class _Core:
         """Channel elevation is read at the channel threshold (it then mirrors hillslope relief)."""
         return bool(np.isclose(self.reference_area_m2, self.channels.threshold.value_m2))
 
-    def decide(self, robustness_share: float | None = None) -> Verdict:
+    def decide(self, robustness_share: float | None = None, min_confidence: float = 0.8) -> Verdict:
         """The verdict of this pass (see :func:`divides.assess.verdict.decide`)."""
-        return decide(self.contrasts, robustness_share=robustness_share, same_channel=self.same_channel)
+        return decide(self.contrasts, robustness_share=robustness_share, same_channel=self.same_channel,
+                      min_confidence=min_confidence)
 
 
 def _core(
@@ -249,11 +252,12 @@ _CAN_CHANGE = {"noise": "all", "area": "all", "theta": "chi"}
 def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, step=None) -> tuple[list[dict], float]:
     """Re-run on perturbed inputs; return each run and the share keeping the main verdict.
 
-    Only re-runs that can change the metrics the verdict rests on count toward the share:
-    a verdict from near-divide metrics (a direction or a conflict) cannot be changed by θ,
-    so θ re-runs are made only when χ could decide (:data:`_CAN_CHANGE`).
+    Only re-runs that can change the features the verdict rests on count toward the share:
+    θ changes χ only, so θ re-runs are made only when the decision model reads χ
+    (:data:`_CAN_CHANGE`). The share is reported beside the calibrated confidence, not
+    folded into it.
     """
-    main_verdict = core.decide()
+    main_verdict = core.decide(min_confidence=config.min_confidence)
     main = main_verdict.moves_toward
     theta = core.profiles.theta
     est = core.profiles.concavity.get("both")
@@ -268,7 +272,7 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
     for i in range(config.n_noise_runs if config.dem_error_m > 0 else 0):
         runs.append((f"DEM noise σ = {config.dem_error_m:g} m, correlation length {core.dem_error.length_m:g} m "
                      f"(#{i + 1})", {"noise": i}))
-    if main_verdict.basis not in ("near-divide", "conflict"):  # else θ cannot change the verdict
+    if "z_chi" in decision_model().features:  # else θ (which changes χ only) cannot change the verdict
         runs += [(f"θ = {t:.2f}", {"theta": t}) for t in sorted({theta_lo, theta_hi} - {theta})]
     runs += [(f"channel area × ½ = {threshold / 2:.3g} m²", {"area": threshold / 2}),
              (f"channel area × 2 = {threshold * 2:.3g} m²", {"area": threshold * 2})]
@@ -288,7 +292,7 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
             run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
                         channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
                         flow=flow)
-            verdict = run.decide().moves_toward
+            verdict = run.decide(min_confidence=config.min_confidence).moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"
         what = next(_CAN_CHANGE[k] for k in change)
@@ -414,35 +418,40 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                                     ("b", sides.b, getattr(config, "name_b", None)))}
     by = {c.metric: c for c in contrasts}
     lines = []
+    probs = verdict.probabilities
+    odds = "" if probs is None else (
+        f"Calibrated probabilities: toward {names['a']} {probs['a']:.2f}, toward {names['b']} {probs['b']:.2f}, "
+        f"stable {probs['stable']:.2f}; an outcome needs {verdict.min_confidence:.2f}.")
     if verdict.moves_toward in ("a", "b"):
         victim, aggressor = verdict.moves_toward, verdict.aggressor
-        strength = "strong" if verdict.confidence >= 0.8 else "moderate" if verdict.confidence >= 0.5 else "weak"
-        if verdict.basis == "near-divide":
-            lines.append(f"The divide is moving toward {names[victim]}: {names[aggressor]} is the aggressor, "
-                         f"eroding headward into {names[victim]} (confidence {verdict.confidence:.2f}, {strength}).")
-            lines.append(f"{len(verdict.agreeing)} of 4 near-divide measures agree"
-                         + (f" and {len(verdict.disagreeing)} disagree" if verdict.disagreeing else "") + "."
-                         + (" Channel elevation and hillslope relief are read at the same channel cells here, "
-                            "so together they count as one piece of evidence."
-                            if same_channel and {"channel_elevation", "hillslope_relief"} <= set(verdict.agreeing)
-                            else ""))
-        else:
-            lines.append(f"No near-divide measure shows present motion, but χ points toward {names[victim]}: "
-                         f"a long-run tendency for {names[aggressor]} to gain ground "
-                         f"(confidence {verdict.confidence:.2f}, {strength}).")
+        lines.append(f"The divide is moving toward {names[victim]}: {names[aggressor]} is the aggressor, "
+                     f"eroding headward into {names[victim]} (probability {verdict.confidence:.2f}).")
+        lines.append(f"{len(verdict.agreeing)} of 4 near-divide measures point this way"
+                     + (f" and {len(verdict.disagreeing)} the other way" if verdict.disagreeing else "") + "."
+                     + (" Channel elevation and hillslope relief are read at the same channel cells here, "
+                        "so together they are one piece of evidence."
+                        if same_channel and {"channel_elevation", "hillslope_relief"} <= set(verdict.agreeing)
+                        else ""))
     elif verdict.moves_toward == "stable":
-        lines.append(f"The near-divide measures are balanced across the divide: every 95 % interval excludes a "
-                     f"difference large enough to count as motion, so it appears stable "
-                     f"(confidence {verdict.confidence:.2f}).")
+        lines.append(f"The divide appears stable: the near-divide measures are balanced across it "
+                     f"(probability {verdict.confidence:.2f}).")
     elif verdict.reason == "insufficient data":
         lines.append("Undetermined: insufficient data. " + INSUFFICIENT_HELP)
-    elif verdict.reason == "inconclusive":
-        lines.append("Undetermined: no measure differs significantly across the divide, but the intervals are too "
-                     "wide to show that the two sides are balanced (no evidence is not evidence of stability). "
-                     "A longer divide or a finer DEM would narrow them.")
+    elif verdict.reason == "chi only":
+        lines.append("Undetermined: only χ, the long-run tendency, would carry a direction here, and χ alone never "
+                     "makes one (divides at steady state under a contrast in uplift, rock or climate are lopsided "
+                     "in χ; Whipple et al. 2017).")
     else:
-        lines.append("The evidence conflicts: near-divide measures point both ways, so the direction is "
-                     "undetermined.")
+        lines.append(f"Undetermined: no outcome reaches the required probability ({verdict.min_confidence:.2f}); "
+                     "the evidence is too weak or points both ways.")
+    if odds:
+        lines.append(odds)
+    if verdict.moves_toward in ("a", "b", "stable"):
+        right = right_share(verdict.confidence)
+        if right is not None:
+            lines.append(f"In model landscapes like this one, verdicts at this confidence were right "
+                         f"{right[0]:.0%} of the time ({right[1]} held-out benchmark landscapes; docs/validation.md). "
+                         "Real landscapes may differ from the model ones.")
     for c in contrasts:
         if not c.sufficient or not np.isfinite(c.ci95[0]):
             why = ("no divide sample has it on both sides (χ: a side's networks may not reach the common base "
@@ -460,7 +469,7 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                      f"difference {_fmt(c.difference, c.unit)} (95 % interval {_fmt(c.ci95[0], c.unit)} to "
                      f"{_fmt(c.ci95[1], c.unit)}); {sense} (rule: divide moves toward {c.rule}).")
     chi = by.get("chi")
-    if chi is not None and verdict.basis == "near-divide" and verdict.long_run not in ("none", verdict.moves_toward):
+    if chi is not None and verdict.moves_toward in ("a", "b") and verdict.long_run not in ("none", verdict.moves_toward):
         lines.append(f"χ alone points the other way (toward {names[verdict.long_run]}): the present motion may "
                      "reverse in the long run, or uplift, erodibility or climate differ across the divide.")
     if verdict.robustness_share is not None:
@@ -540,7 +549,7 @@ def assess(
                                   step=progress)
     if progress is not None:
         progress("verdict, rates, knickpoint arrival and the equilibrium divide")
-    verdict = core.decide(share)
+    verdict = core.decide(share, config.min_confidence)
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)

@@ -1,20 +1,24 @@
-"""The verdict: combining across-divide contrasts into a direction and a confidence."""
+"""The verdict: a calibrated probability of each outcome from the across-divide contrasts."""
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass, field
+from functools import lru_cache
+from importlib import resources
 
+from divides.assess import evidence
+from divides.assess.calibration import DEFAULT_THRESHOLD, DecisionModel
 from divides.assess.contrasts import MIN_SAMPLES, Contrast
 
-__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CHI_ONLY_SHARE", "CAUTION", "INSUFFICIENT_HELP"]
+__all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION", "INSUFFICIENT_HELP", "MODEL_FILE",
+           "decision_model", "right_share"]
+
+#: The fitted decision model shipped with the package (docs/validation.md says how it was made).
+MODEL_FILE = "verdict_model.json"
 
 #: Metrics of the present state of the divide (Forte & Whipple 2018; Scherler & Schwanghart 2020).
 NEAR_DIVIDE_METRICS = ("channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")
-
-#: χ alone must differ by at least this share of its mean to call a direction: on its own it is
-#: the weaker indicator (it depends on θ, base level and uplift/erodibility patterns; Forte &
-#: Whipple 2018), and small χ contrasts are common across divides at steady state.
-CHI_ONLY_SHARE = 0.10
 
 #: What would give an assessment with too few independent samples enough of them.
 INSUFFICIENT_HELP = (
@@ -41,22 +45,28 @@ class Verdict:
     aggressor : str or None
         The side eroding into the other.
     confidence : float
-        0–1; see :func:`decide` for how it is built.
+        The calibrated probability of ``moves_toward`` (0–1); for ``"undetermined"`` the largest
+        probability, which fell short of the threshold (0 with insufficient data).
     basis : str
-        ``"near-divide"`` (present motion), ``"chi"`` (long-run tendency only),
-        ``"none"`` (stable) or ``"conflict"``.
+        ``"near-divide"`` (a direction from the present state of the divide), ``"none"`` (stable),
+        ``"undetermined"`` or ``"insufficient data"``.
     long_run : str
         Direction χ alone indicates: ``"a"``, ``"b"`` or ``"none"``.
     agreeing, disagreeing : tuple of str
         Near-divide metrics pointing with and against the verdict.
     robustness_share : float or None
-        Share of perturbed re-runs that kept ``moves_toward`` (None when not run).
+        Share of perturbed re-runs that kept ``moves_toward`` (None when not run). Reported beside
+        the confidence, never folded into it (that would undo the calibration).
     text : str
         The verdict in plain words (filled in by the assessment).
     reason : str
-        Why: ``"near-divide evidence"``, ``"chi only"``, ``"balanced"`` (stable),
-        ``"conflicting evidence"``, ``"insufficient data"`` or ``"inconclusive"``
-        (nothing significant, but intervals too wide to show balance).
+        Why: ``"near-divide evidence"`` (a direction), ``"balanced"`` (stable), ``"insufficient data"``,
+        ``"below the confidence threshold"`` or ``"chi only"`` (only χ's long-run tendency would have
+        carried the direction, which it never does alone).
+    probabilities : dict or None
+        P(toward a), P(toward b), P(stable) from the decision model (None with insufficient data).
+    min_confidence : float
+        The probability an outcome needed.
     """
 
     moves_toward: str
@@ -70,108 +80,107 @@ class Verdict:
     text: str = ""
     notes: list = field(default_factory=list)
     reason: str = ""
+    probabilities: dict | None = None
+    min_confidence: float = DEFAULT_THRESHOLD
 
 
 def _other(side: str) -> str:
     return "b" if side == "a" else "a"
 
 
-def _vote_groups(same_channel: bool) -> list[tuple[str, ...]]:
-    """Near-divide metrics grouped into independent votes.
+@lru_cache(maxsize=1)
+def _packaged() -> tuple[DecisionModel, dict]:
+    doc = json.loads(resources.files("divides.assess").joinpath(MODEL_FILE).read_text(encoding="utf-8"))
+    return DecisionModel.from_dict(doc), doc
 
-    When channel elevation is read at the channel threshold itself, it and the
-    hillslope relief (divide elevation minus the same channel cell) are one
-    measurement seen twice — their differences across the divide are equal
-    and opposite point by point — so they cast a single vote.
+
+def decision_model() -> DecisionModel:
+    """The decision model shipped with the package (fitted on the benchmark's training part)."""
+    return _packaged()[0]
+
+
+def right_share(confidence: float) -> tuple[float, int] | None:
+    """How often held-out model landscapes' verdicts at this confidence were right.
+
+    Returns ``(share, count)`` of the held-out reliability bin the confidence falls in
+    (docs/validation.md), or None when that bin held no case.
     """
-    if same_channel:
-        return [("channel_elevation", "hillslope_relief"), ("hillslope_gradient",), ("local_relief",)]
-    return [(name,) for name in NEAR_DIVIDE_METRICS]
+    bins = _packaged()[1].get("held_out_reliability", [])
+    for b in bins:
+        if b["lower"] <= confidence < b["upper"] or (confidence >= 1.0 and b["upper"] >= 1.0):
+            return (float(b["accuracy"]), int(b["count"])) if b["count"] else None
+    return None
 
 
 def decide(
-    contrasts: list[Contrast], *, robustness_share: float | None = None, same_channel: bool = False
+    contrasts: list[Contrast],
+    *,
+    robustness_share: float | None = None,
+    same_channel: bool = False,
+    min_confidence: float = DEFAULT_THRESHOLD,
+    model: DecisionModel | None = None,
+    extra: dict | None = None,
 ) -> Verdict:
-    """Combine the contrasts by the documented rule.
+    """The calibrated verdict.
 
     Rule
     ----
-    1. Near-divide metrics (channel elevation at the reference area, mean
-       upstream gradient, local relief, hillslope relief) speak for the
-       present motion; χ for the long-run tendency (Forte & Whipple 2018).
-    2. If the significant near-divide metrics all point one way, or one way
-       by at least three to one, that is the direction. Any closer split is
-       ``"undetermined"``.
-    3. If no near-divide metric is significant but χ is, and by at least
-       :data:`CHI_ONLY_SHARE` of its mean, the direction is χ's, flagged as a
-       long-run tendency only, with a low confidence.
-    4. ``"stable"`` needs positive evidence of balance: every near-divide
-       metric has enough samples and a 95 % interval inside ± its practical
-       threshold (:data:`divides.assess.contrasts.PRACTICAL_SHARE` of its size),
-       so no difference that would count as motion is compatible with the
-       data (an equivalence test). No evidence is not balance: when the
-       near-divide contrasts lack samples the verdict is ``"undetermined"``
-       with reason ``"insufficient data"``; when nothing is significant but the
-       intervals are too wide, ``"undetermined"`` with reason ``"inconclusive"``.
+    1. No near-divide contrast with enough independent samples: ``"undetermined"``,
+       reason ``"insufficient data"`` (no evidence is not evidence of stability).
+    2. Otherwise the decision model (:mod:`divides.assess.calibration`, fitted on the
+       training part of the model-landscape benchmark; docs/validation.md) turns the
+       evidence features (:func:`divides.assess.evidence.features`) into P(toward a),
+       P(toward b) and P(stable).
+    3. The most probable outcome is returned when its probability reaches
+       ``min_confidence``; otherwise ``"undetermined"``. ``confidence`` is that
+       probability.
+    4. χ alone never makes a direction (Forte & Whipple 2018; Whipple et al. 2017: steady
+       divides under uplift, rock or climate contrasts are lopsided in χ): a direction must
+       also reach ``min_confidence`` with χ's feature set to 0, else the verdict is
+       ``"undetermined"`` with reason ``"chi only"``. χ's own direction is reported as the
+       long-run tendency.
 
-    Metrics that measure the same thing vote once (see ``same_channel``).
-
-    Confidence
+    Parameters
     ----------
-    Direction from near-divide metrics: 0.35 + w per agreeing vote − w per
-    disagreeing one, with w = 0.6 / (number of votes) (0.15 for four
-    independent metrics, 0.2 for three), +0.05 if χ agrees, −0.15 if χ disagrees;
-    χ alone: 0.4; stable: 0.7; undetermined: 0. (A rule of thumb, not a calibrated
-    probability: a score.) The result, kept in 0–0.97,
-    is multiplied by the share of robustness re-runs that kept the same
-    verdict (by 0.8 when robustness was not checked), so a verdict that a
-    plausible change of input overturns cannot keep a high confidence.
+    contrasts : list of Contrast
+    robustness_share : float, optional
+        Share of robustness re-runs that kept the verdict (reported, not folded into the confidence).
+    same_channel : bool
+        Channel elevation and hillslope relief are read at the same cells (kept for callers;
+        the model sees both and was fitted with them mirrored where they are).
+    min_confidence : float
+        Probability an outcome needs, in (1/3, 1] (default 0.8).
+    model : DecisionModel, optional
+        Default: the packaged model (:func:`decision_model`).
+    extra : dict, optional
+        Further features by name, signed toward b, for a model that reads them (e.g.
+        ``fwd_shift``, the forward run's shift: :func:`divides.outlook.forward_shift_cells`).
     """
+    from divides.assess.calibration import decide as rule
+
     by_name = {c.metric: c for c in contrasts}
     chi = by_name.get("chi")
     long_run = chi.moves_toward if chi is not None else "none"
-    votes = {"a": [], "b": []}  # lists of the metric groups voting each way
-    groups = _vote_groups(same_channel)
-    for group in groups:
-        ways = {by_name[n].moves_toward for n in group if n in by_name} - {"none"}
-        if len(ways) == 1:  # members that point agree (a split group abstains)
-            way = ways.pop()
-            votes[way].append(tuple(n for n in group if by_name[n].moves_toward == way))
-    weight = 0.6 / len(groups)
-    n_a, n_b = len(votes["a"]), len(votes["b"])
-    if n_a or n_b:
-        major = "a" if n_a > n_b else "b"
-        n_major, n_minor = max(n_a, n_b), min(n_a, n_b)
-        if n_minor == 0 or n_major >= 3 * n_minor:
-            score = 0.35 + weight * n_major - weight * n_minor
-            if long_run == major:
-                score += 0.05
-            elif long_run == _other(major):
-                score -= 0.15
-            toward, basis = major, "near-divide"
-            agreeing = tuple(n for g in votes[major] for n in g)
-            disagreeing = tuple(n for g in votes[_other(major)] for n in g)
-        else:
-            toward, basis, score = "undetermined", "conflict", 0.0
-            agreeing = tuple(n for g in votes["a"] for n in g)
-            disagreeing = tuple(n for g in votes["b"] for n in g)
-    elif long_run in ("a", "b") and abs(chi.difference) >= CHI_ONLY_SHARE * 0.5 * (abs(chi.a) + abs(chi.b)):
-        toward, basis, score, agreeing, disagreeing = long_run, "chi", 0.4, (), ()
-    else:
-        toward, score, agreeing, disagreeing = "undetermined", 0.0, (), ()
-        near = [by_name[n] for g in groups for n in g if n in by_name]
-        if not near or not any(c.sufficient for c in near):
-            basis = reason = "insufficient data"
-        elif all(c.balanced for c in near):
-            toward, basis, reason, score = "stable", "none", "balanced", 0.7
-        else:
-            basis = reason = "inconclusive"
+    if not evidence.sufficient(contrasts):
+        return Verdict("undetermined", None, 0.0, "insufficient data", long_run, robustness_share=robustness_share,
+                       reason="insufficient data", min_confidence=float(min_confidence))
+    model = decision_model() if model is None else model
+    feats = {**evidence.features(contrasts), **(extra or {})}
+    decision = rule(model.probabilities(feats), threshold=min_confidence)[0]
+    probs = {k: round(v, 4) for k, v in decision.probabilities.items()}
+    toward, confidence = decision.outcome, decision.probability
+    reason = {"a": "near-divide evidence", "b": "near-divide evidence", "stable": "balanced"}.get(
+        toward, "below the confidence threshold")
+    if toward in ("a", "b") and "z_chi" in model.features:
+        without = rule(model.probabilities({**feats, "z_chi": 0.0}), threshold=min_confidence)[0]
+        if without.outcome != toward:
+            toward, reason = "undetermined", "chi only"
+    basis = {"a": "near-divide", "b": "near-divide", "stable": "none"}.get(toward, "undetermined")
+    agreeing = disagreeing = ()
     if toward in ("a", "b"):
-        reason = "near-divide evidence" if basis == "near-divide" else "chi only"
-    elif basis == "conflict":
-        reason = "conflicting evidence"
-    score = min(max(score, 0.0), 0.97)
-    score *= 0.8 if robustness_share is None else robustness_share
+        near = [c for c in contrasts if c.metric in evidence.NEAR_DIVIDE]
+        agreeing = tuple(c.metric for c in near if c.moves_toward == toward)
+        disagreeing = tuple(c.metric for c in near if c.moves_toward == _other(toward))
     aggressor = _other(toward) if toward in ("a", "b") else None
-    return Verdict(toward, aggressor, round(float(score), 3), basis, long_run, agreeing, disagreeing,
-                   robustness_share, reason=reason)
+    return Verdict(toward, aggressor, round(float(confidence), 3), basis, long_run, agreeing, disagreeing,
+                   robustness_share, reason=reason, probabilities=probs, min_confidence=float(min_confidence))

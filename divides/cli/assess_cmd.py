@@ -125,8 +125,13 @@ SnapRadiusOption = Annotated[
 ]
 NoRobustnessOption = Annotated[
     bool,
-    typer.Option("--no-robustness", help="Skip the re-runs with a perturbed DEM, θ and channel area (faster; "
-                 "the confidence is then scaled by 0.8)."),
+    typer.Option("--no-robustness", help="Skip the re-runs with a perturbed DEM, θ and channel area (faster)."),
+]
+MinConfidenceOption = Annotated[
+    str | None,
+    typer.Option("--min-confidence", metavar="P", show_default=False,
+                 help="Calibrated probability a direction or 'stable' needs (above 1/3, at most 1; default 0.8); "
+                      "below it the verdict is 'undetermined'."),
 ]
 
 
@@ -184,6 +189,7 @@ def assess_request(
     name_a: str | None = None,
     name_b: str | None = None,
     raster_aliases: dict[str, str | None] | None = None,
+    min_confidence: str | None = None,
 ) -> AssessRequest:
     """Check the options of ``divides assess`` as typed, before anything is read.
 
@@ -239,6 +245,9 @@ def assess_request(
         options["dem_error_length_m"] = opt.parse_bounded(dem_error_length, option="--dem-error-length", unit="m",
                                                           low=0, high=1e5, low_inclusive=True,
                                                           typical="one to a few cells")
+    if min_confidence is not None:
+        options["min_confidence"] = opt.parse_bounded(min_confidence, option="--min-confidence", unit="(probability)",
+                                                      low=1 / 3, high=1, typical="0.8 (default)")
     if n is not None:
         options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
                                          low_inclusive=True, typical="1 unless known otherwise")
@@ -440,6 +449,7 @@ def assess(
     snap_radius: SnapRadiusOption = None,
     closed_edges: opt.ClosedEdgesOption = None,
     no_robustness: NoRobustnessOption = False,
+    min_confidence: MinConfidenceOption = None,
     seed: opt.SeedOption = 0,
     out: opt.OutOption = None,
     overwrite: opt.OverwriteOption = False,
@@ -478,6 +488,7 @@ def assess(
         erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
         runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
         robustness=not no_robustness, seed=seed, route=route, name_a=name_a, name_b=name_b,
+        min_confidence=min_confidence,
         raster_aliases={"--runoff": runoff_alias, "--erodibility": erodibility_alias, "--uplift": uplift_alias},
     )
     folder = opt.check_out_dir(out if out is not None else opt.default_out_dir(read.path, "assess"),
