@@ -80,10 +80,13 @@ _METHODS = (
      "moving-block bootstrap along the divide, because neighbouring points are not independent."),
     ("Verdict",
      "Near-divide measures speak for the present motion and χ for the long-run tendency (Forte & Whipple "
-     "2018). The direction is that of the significant near-divide measures when they agree (or agree by "
-     "three to one); with none significant, χ alone gives a tendency with low confidence; with nothing "
-     "significant the divide is called stable. Confidence falls with disagreement and with the share of "
-     "perturbed re-runs (DEM noise, θ, channel threshold) that change the verdict."),
+     "2018). Each measure's standardised contrast, its consistency along the divide and the effective "
+     "number of samples feed a three-outcome logistic model fitted on model landscapes whose motion was "
+     "measured by continuing each run (docs/validation.md). It gives the probabilities that the divide "
+     "moves toward a, toward b or is stable; an outcome is returned only when its probability reaches the "
+     "threshold (default 0.8), otherwise the verdict is undetermined. χ alone never makes a direction, and "
+     "too few independent samples along the divide give \"insufficient data\". The confidence is that "
+     "calibrated probability; re-runs with perturbed inputs are reported beside it."),
     ("Rates, arrival times and equilibrium",
      "Given an erosion rate, an erodibility or a dated knickpoint, steepness is turned into erosion rates, a "
      "divide migration rate (checked against measured rates compiled by He et al. 2024) and the time "
@@ -168,7 +171,7 @@ def _verdict_section(result: Assessment, s: dict) -> str:
     conf = float(v["confidence"] or 0.0)
     parts = [f"<p class=\"lead\">{_e(lead)}</p>",
              f"<p>Confidence {_e(f'{conf:.2f}')} "
-             f"<span class=\"note\">(0 = no basis for a direction, 1 = certain)</span></p>"
+             f"<span class=\"note\">(calibrated probability of this outcome on model landscapes)</span></p>"
              f"<div class=\"meter\" role=\"img\" aria-label=\"confidence {_e(f'{conf:.2f}')}\">"
              f"<span style=\"width:{max(0.0, min(conf, 1.0)) * 100:.0f}%\"></span></div>"]
     # The box holds the sentences of the verdict; the measure-by-measure lines ("- ...") go to the
@@ -191,9 +194,11 @@ def _key_numbers(result: Assessment, s: dict) -> str:
              ("Aggressor", _side_span(result, v["aggressor"]) if v["aggressor"] else "none"),
              ("Basis", _e({"near-divide": "near-divide measures (present motion)",
                            "chi": "χ only (long-run tendency)", "none": "no significant contrast",
-                           "conflict": "conflicting measures"}.get(v.get("basis"), v.get("basis"))))]
+                           "conflict": "conflicting measures", "insufficient data": "insufficient data",
+                           "undetermined": "no outcome reached the confidence threshold"}.get(
+                               v.get("basis"), v.get("basis"))))]
     rate = v.get("rate_mm_per_yr")
-    items.append(("Migration rate", _e(f"{rate['best']:.3g} mm/yr ({rate['low']:.3g}–{rate['high']:.3g})")
+    items.append(("Migration rate", _e(f"{rate['best']:.2g} mm/yr ({rate['low']:.2g}–{rate['high']:.2g})")
                   if rate and rate.get("best") is not None else "not computed"))
     eq = s.get("equilibrium") or {}
     if eq.get("median_distance_m") is not None:
@@ -281,8 +286,8 @@ def _robustness_section(result: Assessment, s: dict) -> str:
     rob = s.get("robustness") or {}
     runs = rob.get("runs") or []
     if not runs:
-        return ("<h2 id=\"robustness\">Robustness</h2><p>Not checked in this run (the confidence is reduced "
-                "by a fifth for that reason).</p>")
+        return ("<h2 id=\"robustness\">Robustness</h2><p>Not checked in this run: nothing says whether a "
+                "plausible change of the inputs would overturn the verdict.</p>")
     rows = [[_e(r.get("change")), _e(r.get("moves_toward")), "yes" if r.get("kept") else "<b>no</b>"] for r in runs]
     share = rob.get("share_kept")
     return (f"<h2 id=\"robustness\">Robustness</h2><p>The analysis was re-run with perturbed inputs; "
