@@ -20,6 +20,29 @@ def grow(arr, n):
     return out
 
 
+@njit(cache=True)
+def padded_copy(z, rows, cols):
+    """``z`` (flat, rows × cols) copied into a grid padded by one cell, with neighbour offsets.
+
+    Returns ``(zp, closed, offsets, pc)``: the padded elevations, a closed flag per padded
+    cell (all 1: the fill opens cells as it reaches them), the flat offsets of the eight
+    neighbours in the padded grid, and its row length. Shared by the whole-grid and the
+    per-tile Priority-Flood.
+    """
+    pc = cols + 2
+    npad = (rows + 2) * pc
+    zp = np.empty(npad, dtype=z.dtype)
+    closed = np.ones(npad, dtype=np.uint8)
+    offsets = np.empty(8, dtype=np.int64)
+    for k in range(8):
+        offsets[k] = D_ROW[k] * pc + D_COL[k]
+    for r in range(rows):
+        base = (r + 1) * pc + 1
+        for c in range(cols):
+            zp[base + c] = z[r * cols + c]
+    return zp, closed, offsets, pc
+
+
 @njit(cache=True, inline="always")
 def _heap_push(h, size, key):
     """Push ``key`` onto the 4-ary min-heap ``h[:size]``; return the new size."""
@@ -104,20 +127,10 @@ def priority_flood_fill(z, valid, outlets, rows, cols):
     n_raised : int
         Number of cells whose elevation was raised.
     """
-    pc = cols + 2
-    npad = (rows + 2) * pc
-    zp = np.empty(npad, dtype=z.dtype)
+    zp, closed, offsets, pc = padded_copy(z, rows, cols)
     is32 = zp.itemsize == 4
     bits32 = zp.view(np.uint32) if is32 else np.empty(0, dtype=np.uint32)
     bits64 = zp.view(np.uint64) if not is32 else np.empty(0, dtype=np.uint64)
-    closed = np.ones(npad, dtype=np.uint8)
-    offsets = np.empty(8, dtype=np.int64)
-    for k in range(8):
-        offsets[k] = D_ROW[k] * pc + D_COL[k]
-    for r in range(rows):
-        base = (r + 1) * pc + 1
-        for c in range(cols):
-            zp[base + c] = z[r * cols + c]
     heap = np.empty(max(1024, 4 * (rows + cols)), dtype=np.uint64)
     size = 0
     for r in range(rows):

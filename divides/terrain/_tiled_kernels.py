@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from divides.terrain._fill_kernels import D_COL, D_ROW, _heap_pop, _heap_push, _packed_key, grow
+from divides.terrain._fill_kernels import D_COL, D_ROW, _heap_pop, _heap_push, _packed_key, grow, padded_copy
 
 _LOW32 = np.uint64(0xFFFFFFFF)
 
@@ -47,21 +47,11 @@ def flood_tile(z, valid, outlets, rows, cols, labels):
     edge_a, edge_b, edge_z : arrays
         Touching labels (a < b) and the level of each touch (see :func:`label_touches`).
     """
-    pc = cols + 2
-    npad = (rows + 2) * pc
-    zp = np.empty(npad, dtype=z.dtype)
+    zp, closed, offsets, pc = padded_copy(z, rows, cols)
     is32 = zp.itemsize == 4
     bits32 = zp.view(np.uint32) if is32 else np.empty(0, dtype=np.uint32)
     bits64 = zp.view(np.uint64) if not is32 else np.empty(0, dtype=np.uint64)
-    closed = np.ones(npad, dtype=np.uint8)
-    lab = np.zeros(npad, dtype=np.int32)
-    offsets = np.empty(8, dtype=np.int64)
-    for k in range(8):
-        offsets[k] = D_ROW[k] * pc + D_COL[k]
-    for r in range(rows):
-        base = (r + 1) * pc + 1
-        for c in range(cols):
-            zp[base + c] = z[r * cols + c]
+    lab = np.zeros(zp.size, dtype=np.int32)
     heap = np.empty(max(1024, 4 * (rows + cols)), dtype=np.uint64)
     size = 0
     for r in range(rows):
