@@ -433,6 +433,7 @@ def _chi_knickpoint_handles(result: Assessment, n_above: int, n_below: int) -> l
                                                        "are in the tables and layers)"))
     return handles
 
+
 def _knickpoint_size(n: int) -> float:
     """Marker area (points²) shrinking as markers crowd."""
     return float(np.clip(38.0 * np.sqrt(40.0 / max(n, 1)), 14.0, 38.0))
@@ -685,6 +686,10 @@ def _main_streams(result: Assessment, side: str, count: int = 3) -> list:
     return streams[:count]
 
 
+#: Long profiles: side a to the left of the channel heads, side b to the right.
+_MIRROR = {"a": -1.0, "b": 1.0}
+
+
 def _to_outlet(down: np.ndarray, head: int) -> np.ndarray:
     """Channel positions from ``head`` down to its network's outlet (below the common base level too)."""
     path = [int(head)]
@@ -694,8 +699,10 @@ def _to_outlet(down: np.ndarray, head: int) -> np.ndarray:
 
 
 def profile_figure(result: Assessment) -> Figure:
-    """Long profiles of each side's longest channels and of every channel with a knickpoint, mirrored about
-    their channel heads, down to each network's own outlet."""
+    """Long profiles, mirrored about their channel heads, down to each network's own outlet.
+
+    The three longest channels of each side and every channel holding a drawn knickpoint.
+    """
     fig = _figure(8.0, 5.4)
     ax = fig.add_subplot()
     channels = result.channels
@@ -705,7 +712,7 @@ def profile_figure(result: Assessment) -> Figure:
     styles = ["-", "--", ":"]
     handles = []
     drawn_heads: set[int] = set()
-    for side, sign in (("a", -1.0), ("b", 1.0)):
+    for side, sign in _MIRROR.items():
         for rank, s in enumerate(_main_streams(result, side)):
             head = int(s.nodes[-1])
             nodes = _to_outlet(channels.down, head)
@@ -724,16 +731,15 @@ def profile_figure(result: Assessment) -> Figure:
             continue
         drawn_heads.add(head)
         nodes = _to_outlet(channels.down, head)
-        sign = -1.0 if k["side"] == "a" else 1.0
-        ax.plot(sign * (dist[head] - dist[nodes]) / 1000.0, z[nodes], color=SIDE_COLOURS[k["side"]], lw=0.8,
-                alpha=0.7, zorder=2)
+        ax.plot(_MIRROR[k["side"]] * (dist[head] - dist[nodes]) / 1000.0, z[nodes], color=SIDE_COLOURS[k["side"]],
+                lw=0.8, alpha=0.7, zorder=2)
         extra.add(k["side"])
     handles += [Line2D([], [], color=SIDE_COLOURS[side], lw=0.8, alpha=0.7,
                        label=f"side {side}, other channels with knickpoints") for side in sorted(extra)]
     if shown:
         # distance from the knickpoint's own channel head: independent of where χ starts
-        kx = [(-1.0 if k["side"] == "a" else 1.0) * (dist[int(k["head_position"])] - dist[int(k["position"])])
-              / 1000.0 for k in shown]
+        kx = [_MIRROR[k["side"]] * (dist[int(k["head_position"])] - dist[int(k["position"])]) / 1000.0
+              for k in shown]
         ax.scatter(kx, [k["elevation_m"] for k in shown], marker="v", s=40, facecolor="white", edgecolor="black",
                    linewidth=0.9, zorder=4, gid="knickpoints")
         below = sum(1 for k in shown if not np.isfinite(k.get("chi_base", np.nan)))
