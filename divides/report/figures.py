@@ -88,14 +88,17 @@ CAPTIONS = {
            "knickpoints and the first-order equilibrium divide.",
     "chi_map": "χ of the analysed channels, integrated from the common base level of both sides. "
                "The divide tends to move toward the side whose channel heads have the higher χ.",
-    "chi_elevation": "Elevation against χ for every analysed channel, by side. With uniform uplift and "
-                     "erodibility, straight profiles suggest steady state and breaks mark knickpoints; the "
-                     "side whose heads reach higher χ at a similar elevation loses ground in the long run.",
+    "chi_elevation": "Elevation against χ (from the common base level) for every analysed channel, by side. "
+                     "With uniform uplift and erodibility, straight profiles suggest steady state and breaks mark "
+                     "knickpoints; the side whose heads reach higher χ at a similar elevation loses ground in the "
+                     "long run. Knickpoints below the common base level have no χ from it: the legend counts "
+                     "them, and they are drawn on the map and the long profiles.",
     "contrasts": "Across-divide differences with 95 % block-bootstrap intervals, every panel the same way "
                  "round: left (blue) the divide moves into side a, right (orange) into side b. Each panel's axis "
                  "says which difference it shows (a − b or b − a). A filled marker counts as evidence.",
-    "long_profiles": "Long profiles of the longest channels of each side, side a to the left and side b to "
-                     "the right of their channel heads, with significant knickpoints.",
+    "long_profiles": "Long profiles of the longest channels of each side and of every channel with a "
+                     "significant knickpoint, from the channel head down to the network's own outlet (below the "
+                     "common base level too), side a to the left and side b to the right of their channel heads.",
     "slope_area": "Channel gradient against drainage area for both sides, with binned medians and the "
                   "power law fitted to all analysed channels.",
 }
@@ -401,7 +404,7 @@ def _shown_knickpoints(result: Assessment, limit: int = MAX_KNICKPOINTS) -> tupl
     """
     kps = list(result.knickpoints)
     if len(kps) <= limit:
-        return kps, "knickpoint"
+        return kps, f"knickpoint ({len(kps)})"
     if all(k.get("arrival_years") for k in kps):  # dated: the ones reaching the channel heads first
         kps.sort(key=lambda k: k["arrival_years"]["best"])
         which = "arriving soonest"
@@ -409,6 +412,26 @@ def _shown_knickpoints(result: Assessment, limit: int = MAX_KNICKPOINTS) -> tupl
         kps.sort(key=lambda k: (k.get("p_value", 1.0), -abs(k.get("delta_ksn", 0.0))))
         which = "most significant"
     return kps[:limit], f"knickpoint ({limit} {which} of {len(result.knickpoints)})"
+
+
+def _chi_knickpoint_handles(result: Assessment, n_above: int, n_below: int) -> list:
+    """Legend of the χ–elevation knickpoints: drawn, without χ from the common base, and not selected.
+
+    The three counts add up to every reported knickpoint.
+    """
+    handles = []
+    if n_above:
+        handles.append(_knickpoint_handle(f"knickpoint above the common base level ({n_above})"))
+    if n_below:
+        # below the common base level χ from it is undefined: these are drawn on the map and long profiles
+        handles.append(Line2D([], [], ls="none", label=f"{n_below} knickpoint{'s' if n_below > 1 else ''} below "
+                                                       "the common base level: no χ from it, shown on the map "
+                                                       "and the long profiles"))
+    rest = len(result.knickpoints) - n_above - n_below
+    if rest:
+        handles.append(Line2D([], [], ls="none", label=f"{rest} more knickpoints not drawn (as on the map; all "
+                                                       "are in the tables and layers)"))
+    return handles
 
 
 def _knickpoint_size(n: int) -> float:
@@ -505,7 +528,7 @@ def _draw_knickpoints(ax, result: Assessment, frame: _Frame) -> list:
     kx = np.array([k["x"] for k in shown]) * frame.scale
     ky = np.array([k["y"] for k in shown]) * frame.scale
     ax.scatter(kx, ky, marker="v", s=_knickpoint_size(len(shown)), facecolor="white", edgecolor="black",
-               linewidth=0.8, zorder=7)
+               linewidth=0.8, zorder=7, gid="knickpoints")
     return [_knickpoint_handle(label)]
 
 
@@ -576,12 +599,13 @@ def chi_elevation_figure(result: Assessment) -> Figure:
         if lc is not None:
             ax.add_collection(lc)
     handles = [Line2D([], [], color=SIDE_COLOURS[s], lw=2, label=side_label(result, s)) for s in ("a", "b")]
-    shown, label = _shown_knickpoints(result)
-    if shown:
-        pos = np.array([k["position"] for k in shown], dtype=np.int64)
-        ax.scatter(chi[pos], z[pos], marker="v", s=_knickpoint_size(len(shown)), facecolor="white",
-                   edgecolor="black", linewidth=0.8, zorder=4)
-        handles.append(_knickpoint_handle(label))
+    shown, _ = _shown_knickpoints(result)
+    above = [k for k in shown if np.isfinite(k.get("chi_base", np.nan))]
+    if above:  # at χ from the common base level, the χ of this axis
+        ax.scatter([k["chi_base"] for k in above], [k["elevation_m"] for k in above], marker="v",
+                   s=_knickpoint_size(len(above)), facecolor="white", edgecolor="black", linewidth=0.8, zorder=4,
+                   gid="knickpoints")
+    handles += _chi_knickpoint_handles(result, len(above), len(shown) - len(above))
     ax.axhline(result.base.elevation_m, color="0.4", lw=0.8, ls=":", zorder=1)
     handles.append(Line2D([], [], color="0.4", lw=0.8, ls=":", label="common base level"))
     ax.autoscale_view()
@@ -662,33 +686,64 @@ def _main_streams(result: Assessment, side: str, count: int = 3) -> list:
     return streams[:count]
 
 
+#: Long profiles: side a to the left of the channel heads, side b to the right.
+_MIRROR = {"a": -1.0, "b": 1.0}
+
+
+def _to_outlet(down: np.ndarray, head: int) -> np.ndarray:
+    """Channel positions from ``head`` down to its network's outlet (below the common base level too)."""
+    path = [int(head)]
+    while down[path[-1]] >= 0 and len(path) <= down.size:
+        path.append(int(down[path[-1]]))
+    return np.array(path, dtype=np.int64)
+
+
 def profile_figure(result: Assessment) -> Figure:
-    """Long profiles of each side's longest channels, mirrored about their channel heads."""
+    """Long profiles, mirrored about their channel heads, down to each network's own outlet.
+
+    The three longest channels of each side and every channel holding a drawn knickpoint.
+    """
     fig = _figure(8.0, 5.4)
     ax = fig.add_subplot()
-    dist = result.channels.distance_upstream
-    z = result.channels.elevation
-    kp_by_pos: dict[int, list] = {}
-    for k in result.knickpoints:  # a few channels: every knickpoint on them is drawn
-        kp_by_pos.setdefault(int(k["position"]), []).append(k)
+    channels = result.channels
+    dist = channels.distance_upstream
+    z = channels.elevation
+    shown, label = _shown_knickpoints(result)
     styles = ["-", "--", ":"]
     handles = []
-    drew_kp = False
-    for side, sign in (("a", -1.0), ("b", 1.0)):
+    drawn_heads: set[int] = set()
+    for side, sign in _MIRROR.items():
         for rank, s in enumerate(_main_streams(result, side)):
-            nodes = s.nodes
-            from_head = (dist[nodes[-1]] - dist[nodes]) / 1000.0
+            head = int(s.nodes[-1])
+            nodes = _to_outlet(channels.down, head)
+            drawn_heads.add(head)
+            from_head = (dist[head] - dist[nodes]) / 1000.0
             ax.plot(sign * from_head, z[nodes], color=SIDE_COLOURS[side], ls=styles[rank % 3], lw=1.6)
             handles.append(Line2D([], [], color=SIDE_COLOURS[side], ls=styles[rank % 3], lw=1.6,
                                   label=f"side {side}, channel {rank + 1} "
-                                        f"({(dist[nodes[-1]] - dist[nodes[0]]) / 1000:.1f} km)"))
-            hits = [i for i, p in enumerate(nodes) if int(p) in kp_by_pos]
-            if hits:
-                ax.scatter(sign * from_head[hits], z[nodes[hits]], marker="v", s=40, facecolor="white",
-                           edgecolor="black", linewidth=0.9, zorder=4)
-                drew_kp = True
-    if drew_kp:
-        handles.append(_knickpoint_handle("knickpoint"))
+                                        f"({(dist[head] - dist[nodes[-1]]) / 1000:.1f} km)"))
+    # a knickpoint lies on the channel from its own head to its network outlet: draw that channel too,
+    # so every knickpoint sits on a profile whether or not it is above the common base level
+    extra: set[str] = set()
+    for k in shown:
+        head = int(k["head_position"])
+        if head in drawn_heads:
+            continue
+        drawn_heads.add(head)
+        nodes = _to_outlet(channels.down, head)
+        ax.plot(_MIRROR[k["side"]] * (dist[head] - dist[nodes]) / 1000.0, z[nodes], color=SIDE_COLOURS[k["side"]],
+                lw=0.8, alpha=0.7, zorder=2)
+        extra.add(k["side"])
+    handles += [Line2D([], [], color=SIDE_COLOURS[side], lw=0.8, alpha=0.7,
+                       label=f"side {side}, other channels with knickpoints") for side in sorted(extra)]
+    if shown:
+        # distance from the knickpoint's own channel head: independent of where χ starts
+        kx = [_MIRROR[k["side"]] * (dist[int(k["head_position"])] - dist[int(k["position"])]) / 1000.0
+              for k in shown]
+        ax.scatter(kx, [k["elevation_m"] for k in shown], marker="v", s=40, facecolor="white", edgecolor="black",
+                   linewidth=0.9, zorder=4, gid="knickpoints")
+        below = sum(1 for k in shown if not np.isfinite(k.get("chi_base", np.nan)))
+        handles.append(_knickpoint_handle(f"{label}; {below} below the common base level" if below else label))
     ax.axvline(0, color="0.5", lw=0.8, ls=":")
     ax.axhline(result.base.elevation_m, color="0.5", lw=0.8, ls=":")
     handles.append(Line2D([], [], color="0.5", lw=0.8, ls=":", label="common base level"))
@@ -706,7 +761,7 @@ def profile_figure(result: Assessment) -> Figure:
     ax.set_xlim(lo, hi)
     ax.grid(True, color="0.9", lw=0.6)
     fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=7.5, frameon=False)
-    ax.set_title("Long profiles of the main channels", fontsize=11)
+    ax.set_title("Long profiles of the main channels, down to each network's outlet", fontsize=11)
     return fig
 
 

@@ -277,9 +277,13 @@ def _knickpoint_rows(result: Assessment) -> list[dict]:
             "distance_to_divide_m": float(kp["distance_to_divide_m"]),
             "area_m2": float(kp.get("area_m2", math.nan)),
             "chi_m": float(kp.get("chi", math.nan)),
+            "chi_base_m": float(kp.get("chi_base", math.nan)),  # NaN (null) below the common base level
             "delta_ksn": float(kp.get("delta_ksn", math.nan)),
             "step_m": float(kp.get("step_m", math.nan)),
             "p_value": float(kp.get("p_value", math.nan)),
+            "q_value": float(kp.get("q_value", math.nan)),
+            "celerity_defined": bool(kp["celerity_defined"]) if "celerity_defined" in kp else None,
+            "celerity_note": kp.get("celerity_note"),
             "arrival_years_low": arrival.get("low"),
             "arrival_years_best": arrival.get("best"),
             "arrival_years_high": arrival.get("high"),
@@ -412,8 +416,9 @@ _HEADERS = {
     "contrasts": ["metric", "unit", "a", "b", "difference", "ci95_low", "ci95_high", "moves_toward", "n_points",
                   "rule"],
     "knickpoints": ["knickpoint", "side", "kind", "x", "y", "lon", "lat", "elevation_m", "distance_to_divide_m",
-                    "area_m2", "chi_m", "delta_ksn", "step_m", "p_value", "arrival_years_low",
-                    "arrival_years_best", "arrival_years_high"],
+                    "area_m2", "chi_m", "chi_base_m", "delta_ksn", "step_m", "p_value", "q_value",
+                    "celerity_defined", "celerity_note", "arrival_years_low", "arrival_years_best",
+                    "arrival_years_high"],
     "robustness": ["change", "moves_toward", "kept"],
 }
 

@@ -130,3 +130,111 @@ def test_figures_without_a_direction_or_knickpoints(demo_result) -> None:
     for name, function in figures.FIGURES.items():
         with Image.open(io.BytesIO(figures.to_png(getattr(figures, function)(bare)))) as img:
             assert img.format == "PNG", name
+
+
+# ------------------------------------------------------------ knickpoints drawn = knickpoints reported
+def _knickpoint_marks(fig) -> np.ndarray:
+    """Offsets (data coordinates) of the knickpoint markers of a figure's first axes."""
+    from matplotlib.collections import PathCollection
+
+    marks = [c for c in fig.axes[0].collections if isinstance(c, PathCollection) and c.get_gid() == "knickpoints"]
+    assert len(marks) <= 1
+    return np.asarray(marks[0].get_offsets()) if marks else np.zeros((0, 2))
+
+
+def _legend_texts(fig) -> list[str]:
+    legends = [ax.get_legend() for ax in fig.axes if ax.get_legend() is not None] + list(fig.legends)
+    return [t.get_text() for lg in legends for t in lg.get_texts()]
+
+
+def _count(texts: list[str], pattern: str) -> int:
+    import re
+
+    found = [int(m.group(1)) for t in texts for m in [re.search(pattern, t)] if m]
+    return sum(found)
+
+
+def test_the_demo_has_knickpoints_on_both_sides_of_the_common_base_level(demo_result) -> None:
+    # demo/README.md: the Tallow (side a) lost 40 m of base level and a wave of incision climbs its
+    # valleys, mostly below the common base level (180 m): the figures below must handle both cases
+    chi_base = np.array([k["chi_base"] for k in demo_result.knickpoints])
+    assert np.isnan(chi_base).any() and np.isfinite(chi_base).any()
+
+
+def test_chi_elevation_draws_the_knickpoints_above_the_base_and_counts_the_others(demo_result) -> None:
+    kps = demo_result.knickpoints
+    above = [k for k in kps if math.isfinite(k["chi_base"])]
+    fig = figures.chi_elevation_figure(demo_result)
+    marks = _knickpoint_marks(fig)
+    # the x axis is χ from the common base level, so each mark sits at the knickpoint's chi_base
+    # (summary.json) and its elevation: nothing below the base can be placed on it
+    assert len(marks) == len(above)
+    np.testing.assert_allclose(np.sort(marks[:, 0]), np.sort([k["chi_base"] for k in above]))
+    np.testing.assert_allclose(np.sort(marks[:, 1]), np.sort([k["elevation_m"] for k in above]))
+    texts = _legend_texts(fig)
+    drawn = _count(texts, r"above the common base level \((\d+)\)")
+    below = _count(texts, r"^(\d+) knickpoints? below the common base level")
+    assert drawn == len(marks)
+    assert drawn + below == len(kps)  # the legend accounts for every reported knickpoint
+
+
+def _on_a_line(ax, x: float, y: float, tol_x: float, tol_y: float) -> bool:
+    for line in ax.get_lines():
+        lx, ly = (np.asarray(v, dtype=float) for v in line.get_data())
+        if lx.size < 2:
+            continue
+        if np.any((np.abs(lx - x) <= tol_x) & (np.abs(ly - y) <= tol_y)):
+            return True
+    return False
+
+
+def test_long_profiles_draw_every_knickpoint_on_a_drawn_channel(demo_result) -> None:
+    kps = demo_result.knickpoints
+    fig = figures.profile_figure(demo_result)
+    marks = _knickpoint_marks(fig)
+    assert len(marks) == len(kps)
+    # side a to the left of the channel heads, side b to the right (the figure's stated layout)
+    sides = sorted(k["side"] for k in kps)
+    assert sorted("a" if x < 0 else "b" for x in marks[:, 0]) == sides
+    np.testing.assert_allclose(np.sort(marks[:, 1]), np.sort([k["elevation_m"] for k in kps]))
+    # every knickpoint, below the common base level too, sits on a drawn long profile: within one
+    # cell's diagonal along the channel and 1 m in elevation (raw DEM vs the channel's elevation)
+    cell_km = float(np.hypot(*np.abs(demo_result.dem.transform[:5:4]))) / 1000.0
+    ax = fig.axes[0]
+    for x, y in marks:
+        assert _on_a_line(ax, x, y, 1.01 * cell_km, 1.0), (x, y)
+    assert min(float(np.min(line.get_ydata())) for line in ax.get_lines() if len(line.get_ydata()) > 2) \
+        < demo_result.base.elevation_m  # the profiles go down below the common base level
+    texts = _legend_texts(fig)
+    assert _count(texts, r"^knickpoint \((\d+)\)") == len(kps)
+    below = sum(1 for k in kps if math.isnan(k["chi_base"]))
+    assert _count(texts, r"; (\d+) below the common base level") == below
+
+
+def test_the_map_draws_every_knickpoint(demo_result) -> None:
+    fig = figures.map_figure(demo_result)
+    marks = _knickpoint_marks(fig)
+    kps = demo_result.knickpoints
+    assert len(marks) == len(kps)
+    scale = 1 / 1000  # the demo's projected CRS in metres is drawn in km
+    np.testing.assert_allclose(np.sort(marks[:, 0]), np.sort([k["x"] * scale for k in kps]))
+    assert _count(_legend_texts(fig), r"^knickpoint \((\d+)\)") == len(kps)
+
+
+def test_too_many_knickpoints_are_counted_not_dropped_silently(demo_result) -> None:
+    import dataclasses
+
+    many = [dict(k, p_value=k["p_value"] + 1e-6 * i) for i in range(30) for k in demo_result.knickpoints]
+    crowded = dataclasses.replace(demo_result, knickpoints=many)
+    total = len(many)
+    assert total > figures.MAX_KNICKPOINTS
+    fig = figures.chi_elevation_figure(crowded)
+    texts = _legend_texts(fig)
+    drawn = _count(texts, r"above the common base level \((\d+)\)")
+    below = _count(texts, r"^(\d+) knickpoints? below the common base level")
+    rest = _count(texts, r"^(\d+) more knickpoints not drawn")
+    assert drawn == len(_knickpoint_marks(fig))
+    assert drawn + below == figures.MAX_KNICKPOINTS and drawn + below + rest == total
+    fig = figures.profile_figure(crowded)
+    assert len(_knickpoint_marks(fig)) == figures.MAX_KNICKPOINTS
+    assert f"of {total})" in " ".join(_legend_texts(fig))

@@ -136,6 +136,67 @@ def test_knickpoints_map_back_and_carry_arrival_times(fallen) -> None:
         assert 0 < p["arrival_years_low"] <= p["arrival_years_best"] <= p["arrival_years_high"]
 
 
+NEW_KNICKPOINT_KEYS = ("chi_base_m", "q_value", "celerity_defined", "celerity_note")
+
+
+def _same_number(layer_value, summary_value) -> bool:
+    # RFC 7946 properties are plain JSON: NaN is written as null in both files
+    if summary_value is None or (isinstance(summary_value, float) and math.isnan(summary_value)):
+        return layer_value is None
+    return layer_value == pytest.approx(summary_value, rel=1e-12)
+
+
+def test_knickpoint_layer_carries_chi_base_q_and_celerity_as_in_the_summary(written, docs) -> None:
+    result, out, _ = written
+    summary = _load(out / "summary.json")["knickpoints"]
+    feats = docs["knickpoints"]["features"]
+    assert len(feats) == len(summary) == len(result.knickpoints)
+    assert any(s["chi_base"] is None for s in summary)  # the demo has knickpoints below the base level
+    for f, s in zip(feats, summary):
+        p = f["properties"]
+        assert set(NEW_KNICKPOINT_KEYS) <= set(p)
+        assert _same_number(p["chi_base_m"], s["chi_base"])
+        assert _same_number(p["chi_m"], s["chi"])
+        assert _same_number(p["q_value"], s["q_value"])
+        assert p["celerity_defined"] is s["celerity_defined"] and isinstance(p["celerity_defined"], bool)
+        assert p["celerity_note"] == s["celerity_note"] and isinstance(p["celerity_note"], str)
+        # Benjamini & Hochberg (1995): an adjusted p is never below the raw p, and a knickpoint is
+        # reported when q < 0.05 (docs/output-formats.md)
+        assert p["p_value"] <= p["q_value"] < 0.05
+        # χ from the common base is χ from the own outlet less one constant per network, and the
+        # common base is at or above every network outlet: it is never the larger of the two
+        if p["chi_base_m"] is not None:
+            assert 0.0 <= p["chi_base_m"] <= p["chi_m"] + 1e-9
+        else:
+            assert p["elevation_m"] <= result.base.elevation_m + 1e-6
+    table = _read_csv(out / "tables" / "knickpoints.csv")
+    assert len(table) == len(feats)
+    for row, f in zip(table, feats):
+        p = f["properties"]
+        # stdlib csv (RFC 4180): null is an empty cell, booleans are written true / false
+        assert row["chi_base_m"] == ("" if p["chi_base_m"] is None else row["chi_base_m"])
+        if p["chi_base_m"] is not None:
+            assert float(row["chi_base_m"]) == pytest.approx(p["chi_base_m"], rel=1e-9)
+        assert float(row["q_value"]) == pytest.approx(p["q_value"], rel=1e-9)
+        assert row["celerity_defined"] == ("true" if p["celerity_defined"] else "false")
+        assert row["celerity_note"] == p["celerity_note"]
+
+
+def test_fallen_ridge_knickpoints_have_a_defined_celerity_in_the_layer(fallen) -> None:
+    doc = json.loads(json.dumps(layers.geojson_layers(fallen)["knickpoints"], allow_nan=False))
+    _check_feature_collection(doc)  # RFC 7946, with no NaN left in the properties
+    feats = doc["features"]
+    assert feats and len(feats) == len(fallen.knickpoints)
+    for f, kp in zip(feats, fallen.knickpoints):
+        p = f["properties"]
+        # n = 1: the stream-power celerity does not depend on the slope, every break moves upstream as a
+        # unit (Whipple & Tucker 1999; Royden & Perron 2013), so each is defined and dated
+        assert p["celerity_defined"] is True and p["arrival_years_best"] is not None
+        assert p["celerity_note"] == kp["celerity_note"]
+        assert p["p_value"] <= p["q_value"] < 0.05  # Benjamini & Hochberg (1995)
+        assert _same_number(p["chi_base_m"], kp["chi_base"])
+
+
 def test_divide_point_properties_hold_both_sides_and_their_difference(written, docs) -> None:
     result, _, _ = written
     for i, f in enumerate(docs["divide_points"]["features"]):
