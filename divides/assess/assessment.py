@@ -498,6 +498,7 @@ def _given(config: AssessConfig | None, names: dict) -> str:
     """The calibration the user gave, quoted with its value and unit (empty when none)."""
     if config is None:
         return ""
+
     def pm(error: float | None, unit: str = "") -> str:
         return f" ± {_sig2(error)}{unit}" if error else ""
 

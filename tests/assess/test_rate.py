@@ -282,3 +282,25 @@ def test_an_error_on_the_given_erosion_rate_widens_the_interval(ridge_after_fall
     sigma = np.sqrt(np.log1p(0.5**2))
     if loose["low"] > 0:
         assert np.log(loose["high"] / loose["low"]) >= 0.9 * 2 * 1.96 * sigma
+
+
+def test_more_uplift_next_to_the_divide_on_side_b_moves_it_faster_into_b(ridge_after_fall):
+    # Crest kinematics with uplift (Gilbert 1877; Forte & Whipple 2018): V into b grows with U_b - U_a.
+    # A relative uplift raster twice as high under side b as under side a must raise the rate into b
+    # (or lower the rate into a) by the scaled uplift difference over the gradients.
+    import dataclasses
+
+    from divides.assess import assessment as A
+    from divides.assess.contrasts import divide_samples
+
+    r = ridge_after_fall
+    core = A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
+                   r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
+                   r.automatic["block_points"], divide_samples(r.points), r.config.dem_error(DX))
+    uplift = np.where(r.sides.b.mask, 2.0, 1.0)
+    verdict_b = dataclasses.replace(r.verdict, moves_toward="b")
+    _, lifted, _ = A._rate_and_timing(core, r.config, verdict_b, uplift=uplift)
+    _, flat, _ = A._rate_and_timing(core, r.config, verdict_b, uplift=np.ones(uplift.shape))
+    assert "withheld" not in lifted and "withheld" not in flat
+    assert lifted["best"] > flat["best"] + 0.05  # U ~ E ~ 0.2 mm/yr here: ΔU ~ 0.1 mm/yr over S_a + S_b < 1
+    assert any("uplift raster" in f for f in lifted["flags"])
