@@ -65,9 +65,12 @@ class AssessConfig:
         K of E = K ksn^n in SI units (m^(1-2m)/yr for n = 1), if known.
     knickpoint_age_years : float or None
         Age of the most significant knickpoint, to calibrate K from its travel in χ.
-    erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr, erodibility_error, knickpoint_age_error_years : float or None
-        One standard deviation of the matching input (same unit; finite, >= 0); carried into
-        the rate's interval (:func:`divides.assess.rate.calibrate`). None or 0: taken as exact.
+    erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr : float or None
+        One standard deviation of the measured rates (mm/yr; finite, >= 0).
+    erodibility_error, knickpoint_age_error_years : float or None
+        One standard deviation of K and of the knickpoint age (same units; finite, >= 0). All
+        four are carried into the rate's interval (:func:`divides.assess.rate.calibrate`);
+        None or 0: taken as exact.
     sea_level_m : float or None
         Cells at or below it are outlets.
     conditioning : str

@@ -508,7 +508,8 @@ def _given(config: AssessConfig | None, names: dict) -> str:
     if rates:
         return " and ".join(rates)
     if config.erodibility is not None:
-        return f"the erodibility given, K = {config.erodibility:g}{pm(config.erodibility_error)} (SI units, n = {config.n:g})"
+        return (f"the erodibility given, K = {config.erodibility:g}{pm(config.erodibility_error)} "
+                f"(SI units, n = {config.n:g})")
     if config.knickpoint_age_years is not None:
         return (f"the knickpoint age given, {config.knickpoint_age_years:,.0f}"
                 f"{pm(config.knickpoint_age_error_years)} years")
