@@ -60,3 +60,16 @@ def test_a_bad_value_or_error_is_one_line_and_exit_2(capsys, tmp_path, extra, wo
         assert word in lines[0], f"{word!r} not in {lines[0]!r}"
     assert "Traceback" not in captured.err and captured.out == ""
     assert not out.exists()
+
+
+@pytest.mark.parametrize("name", ["erosion_rate_a_error_mm_yr", "erosion_rate_b_error_mm_yr", "erodibility_error",
+                                  "knickpoint_age_error_years"])
+@pytest.mark.parametrize("bad", [-0.1, float("nan"), float("inf"), "0.1"])
+def test_the_config_refuses_an_error_that_is_not_a_finite_number_at_least_zero(name, bad):
+    # A standard deviation is finite and not negative (its definition); 0 means exact.
+    from divides.config import AssessConfig
+    from divides.errors import ParameterError
+
+    with pytest.raises(ParameterError, match=name):
+        AssessConfig(**{name: bad})
+    assert getattr(AssessConfig(**{name: 0.0}), name) == 0.0
