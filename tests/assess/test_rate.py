@@ -237,16 +237,23 @@ def ridge_after_fall():
     return divides.assess(moved, "west", "east", erosion_rate_a_mm_yr=0.2, **options)
 
 
+def _core(r):
+    """The analysis pass behind an assessment, to re-run its rate under another verdict."""
+    from divides.assess import assessment as A
+    from divides.assess.contrasts import divide_samples
+
+    return A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
+                   r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
+                   r.automatic["block_points"], divide_samples(r.points), r.config.dem_error(DX))
+
+
 def _rate(result, verdict_toward: str, **config_changes):
     import dataclasses
 
     from divides.assess import assessment as A
-    from divides.assess.contrasts import divide_samples
 
     r = result
-    core = A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
-                   r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
-                   r.automatic["block_points"], divide_samples(r.points), r.config.dem_error(DX))
+    core = _core(r)
     config = dataclasses.replace(r.config, **config_changes)
     _, rate, _ = A._rate_and_timing(core, config, dataclasses.replace(r.verdict, moves_toward=verdict_toward))
     return rate
@@ -291,12 +298,9 @@ def test_more_uplift_next_to_the_divide_on_side_b_moves_it_faster_into_b(ridge_a
     import dataclasses
 
     from divides.assess import assessment as A
-    from divides.assess.contrasts import divide_samples
 
     r = ridge_after_fall
-    core = A._Core(r.flow, r.channels, r.sides, r.base, r.divide, r.profiles, r.points, r.contrasts,
-                   r.automatic["divide_spacing_used_m"], r.automatic["reference_area_used_m2"],
-                   r.automatic["block_points"], divide_samples(r.points), r.config.dem_error(DX))
+    core = _core(r)
     uplift = np.where(r.sides.b.mask, 2.0, 1.0)
     verdict_b = dataclasses.replace(r.verdict, moves_toward="b")
     _, lifted, _ = A._rate_and_timing(core, r.config, verdict_b, uplift=uplift)
