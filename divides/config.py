@@ -65,6 +65,12 @@ class AssessConfig:
         K of E = K ksn^n in SI units (m^(1-2m)/yr for n = 1), if known.
     knickpoint_age_years : float or None
         Age of the most significant knickpoint, to calibrate K from its travel in χ.
+    erosion_rate_a_error_mm_yr, erosion_rate_b_error_mm_yr : float or None
+        One standard deviation of the measured rates (mm/yr; finite, >= 0).
+    erodibility_error, knickpoint_age_error_years : float or None
+        One standard deviation of K and of the knickpoint age (same units; finite, >= 0). All
+        four are carried into the rate's interval (:func:`divides.assess.rate.calibrate`);
+        None or 0: taken as exact.
     sea_level_m : float or None
         Cells at or below it are outlets.
     conditioning : str
@@ -101,6 +107,10 @@ class AssessConfig:
     erosion_rate_b_mm_yr: float | None = None
     erodibility: float | None = None
     knickpoint_age_years: float | None = None
+    erosion_rate_a_error_mm_yr: float | None = None
+    erosion_rate_b_error_mm_yr: float | None = None
+    erodibility_error: float | None = None
+    knickpoint_age_error_years: float | None = None
     sea_level_m: float | None = None
     conditioning: str = "fill"
     closed_edges: tuple = ()
@@ -132,6 +142,9 @@ class AssessConfig:
             _positive(name, value)
             if value is not None and value > 1000:
                 raise ParameterError(f"{name} = {value} mm/yr is not an erosion rate (accepted: 0 < rate <= 1000 mm/yr)")
+        for name in ("erosion_rate_a_error_mm_yr", "erosion_rate_b_error_mm_yr", "erodibility_error",
+                     "knickpoint_age_error_years"):
+            _positive(name, getattr(self, name), allow_zero=True)
         for name in ("base_level_m", "sea_level_m"):
             value = getattr(self, name)
             if value is not None and not (isinstance(value, (int, float)) and math.isfinite(value)):

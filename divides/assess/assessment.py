@@ -19,7 +19,15 @@ from divides.assess.contrasts import (
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, sample_divide
-from divides.assess.rate import PLAUSIBLE_MM_PER_YR, Calibration, calibrate, migration_rate, step_celerity
+from divides.assess.rate import (
+    PLAUSIBLE_MM_PER_YR,
+    Calibration,
+    calibrate,
+    divide_rate,
+    exponent_samples,
+    near_divide_erosion,
+    step_celerity,
+)
 from divides.assess.verdict import CAUTION, INSUFFICIENT_HELP, Verdict, decide, decision_model, right_share
 from divides.config import AssessConfig
 from divides.errors import SideError
@@ -50,7 +58,8 @@ class Assessment:
     verdict : Verdict
     calibration : Calibration
     rate : dict or None
-        ``low``, ``best``, ``high`` migration rate (mm/yr) toward the victim, and flags.
+        ``low``, ``best``, ``high`` migration rate (mm/yr) toward the victim, and flags
+        (None when no calibration is given or the rate is withheld).
     knickpoints : list of dict
         Significant knickpoints with their arrival times at the divide.
     equilibrium : EquilibriumDivide
@@ -58,6 +67,9 @@ class Assessment:
         Each perturbed re-run: what was changed and the verdict it gave.
     automatic : dict
         Parameters chosen by the tool (θ, thresholds, spacing...).
+    rate_withheld : str or None
+        Why no rate is given although erosion is calibrated (its direction disagrees with the
+        verdict, or the verdict has none).
     """
 
     config: AssessConfig
@@ -77,6 +89,7 @@ class Assessment:
     equilibrium: EquilibriumDivide
     robustness: list = field(default_factory=list)
     automatic: dict = field(default_factory=dict)
+    rate_withheld: str | None = None
 
     @property
     def summary(self) -> dict:
@@ -150,7 +163,11 @@ class Assessment:
                 "rate_mm_per_yr": rate,
                 "basis": self.verdict.basis,
                 "long_run_tendency": self.verdict.long_run,
-                "rate_flags": [] if self.rate is None else self.rate["flags"],
+                "rate_flags": ([self.rate_withheld] if self.rate_withheld else [])
+                + ([] if self.rate is None else self.rate["flags"]),
+                "rate_withheld": self.rate_withheld,
+                "erosion_near_divide_mm_yr": None if self.rate is None else
+                {k: self.rate[f"erosion_{k}_mm_yr"] for k in ("a", "b")},
                 "text": self.verdict.text,
                 "reason": self.verdict.reason,
                 "caution": CAUTION,
@@ -328,7 +345,100 @@ def _ksn_samples(profiles: ProfileAnalysis, side: str, rng, n: int) -> np.ndarra
     return out
 
 
-def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
+def _near_divide_ksn(core: _Core, to_unit: float) -> dict:
+    """Per divide sample and side: ksn (A0 = 1 m²), its standard error and the drainage area at the
+    channel heads the sample's flow paths reach (the χ–z segment holding each head)."""
+    ksn = core.profiles.grid(core.profiles.ksn).ravel() * to_unit
+    se = core.profiles.grid(core.profiles.ksn_se).ravel() * to_unit
+    area = core.flow.area.ravel()
+    out = {}
+    for side, heads in (("a", core.points.head_a), ("b", core.points.head_b)):
+        per = {"ksn": [], "se": [], "area": []}
+        for m in core.samples.members:
+            h = heads[m]
+            h = h[h >= 0]
+            for key, grid in (("ksn", ksn), ("se", se), ("area", area)):
+                v = grid[h] if h.size else np.array([np.nan])
+                v = v[np.isfinite(v)]
+                per[key].append(float(v.mean()) if v.size else np.nan)
+        out[side] = {k: np.asarray(v) for k, v in per.items()}
+    return out
+
+
+def _uplift_next_to_divide(core: _Core, uplift: np.ndarray) -> tuple[float, float, float]:
+    """The relative uplift raster's mean at the divide cells of each side, and over both networks."""
+    u = np.asarray(uplift, dtype=np.float64).ravel()
+    near = []
+    for cells in (core.points.cell_a, core.points.cell_b):
+        picked = np.concatenate([np.atleast_1d(cells[m]) for m in core.samples.members]) if core.samples.size \
+            else np.zeros(0, dtype=np.int64)
+        v = u[picked.astype(np.int64)] if picked.size else np.zeros(0)
+        near.append(float(np.nanmean(v)) if np.isfinite(v).any() else np.nan)
+    on_sides = core.channels.cells[core.profiles.side > 0]
+    network = u[on_sides]
+    return near[0], near[1], float(np.nanmean(network)) if np.isfinite(network).any() else np.nan
+
+
+def _divide_rate(core: _Core, config: AssessConfig, verdict: Verdict, cal: Calibration, ksn_a, ksn_b,
+                 to_unit: float, rng, n: int, uplift: np.ndarray | None) -> dict:
+    """The rate at the divide (mm/yr toward the victim) from the channel heads next to it (docs/methods.md §9)."""
+    near = _near_divide_ksn(core, to_unit)
+    est = core.profiles.concavity.get("both")
+    ci = est.ci95 if (est is not None and core.profiles.theta_source == "collinearity") else None
+    theta_draws, n_draws = exponent_samples(core.profiles.theta, config.n, n, rng, theta_ci=ci)
+    erosion = {}
+    for side, e_net, k_net in (("a", cal.erosion_a, ksn_a), ("b", cal.erosion_b, ksn_b)):
+        values = near[side]["ksn"]
+        if np.count_nonzero(np.isfinite(values) & (values > 0)) < MIN_SAMPLES:
+            return {"withheld": f"too few channel heads next to the divide with a steepness on side {side} "
+                                f"(at least {MIN_SAMPLES} needed)"}
+        # the DEM error moves a head's ksn by about its standard error; being spatially correlated, by
+        # the same amount at neighbouring heads: one shared draw per sample (conservative)
+        se = float(np.nanmean(near[side]["se"])) if np.isfinite(near[side]["se"]).any() else 0.0
+        head = _side_samples(core, values, rng, n) + rng.standard_normal(n) * se
+        head = np.maximum(head, 1e-6 * float(np.nanmedian(values)))
+        on_side = core.profiles.side == (1 if side == "a" else 2)
+        area_ratio = float(np.nanmedian(near[side]["area"])) / float(np.median(core.flow.area.ravel()[
+            core.channels.cells[on_side]]))
+        erosion[side] = near_divide_erosion(e_net, k_net, head, n=config.n, n_draws=n_draws, area_ratio=area_ratio,
+                                            theta_shift=theta_draws - core.profiles.theta)
+    uplift_a = uplift_b = 0.0
+    notes = []
+    if uplift is not None:
+        ua, ub, u_net = _uplift_next_to_divide(core, uplift)
+        if np.isfinite(ua) and np.isfinite(ub) and np.isfinite(u_net) and u_net > 0:
+            # the raster is relative: scale it so that the two networks' mean uplift equals their mean
+            # erosion (each network lowering, on the whole, as fast as it is uplifted)
+            scale = 0.5 * (cal.erosion_a + cal.erosion_b) / u_net
+            uplift_a, uplift_b = ua * scale, ub * scale
+            notes.append("uplift next to the divide from the relative uplift raster, scaled so that the networks' "
+                         "mean uplift equals their mean erosion")
+    grad_a, grad_b = core.samples.values["hillslope_gradient"]
+    tan_a = _side_samples(core, grad_a, rng, n)
+    tan_b = _side_samples(core, grad_b, rng, n)
+    v = divide_rate(erosion["a"], erosion["b"], tan_a, tan_b, uplift_a=uplift_a, uplift_b=uplift_b) * 1e3
+    median = float(np.nanmedian(v))
+    says = "b" if median > 0 else "a"
+    common = {"erosion_a_mm_yr": float(np.nanmedian(erosion["a"]) * 1e3),
+              "erosion_b_mm_yr": float(np.nanmedian(erosion["b"]) * 1e3), "notes": notes}
+    if verdict.moves_toward not in ("a", "b"):
+        what = "finds the divide stable" if verdict.moves_toward == "stable" else "is undetermined"
+        return {**common, "withheld": f"rate withheld: the verdict {what}, and a rate is given only with the "
+                                      f"verdict's direction (the erosion rates alone would move it toward side {says})"}
+    if says != verdict.moves_toward:
+        return {**common, "withheld": f"rate withheld: the erosion rates next to the divide would move it toward "
+                                      f"side {says}, against the verdict (toward side {verdict.moves_toward})"}
+    toward = verdict.moves_toward
+    v = v if toward == "b" else -v
+    lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
+    flags = list(notes)
+    if not (PLAUSIBLE_MM_PER_YR[0] <= abs(best) <= PLAUSIBLE_MM_PER_YR[1]):
+        flags.append(f"implausible: measured divide migration rates span {PLAUSIBLE_MM_PER_YR[0]}–"
+                     f"{PLAUSIBLE_MM_PER_YR[1]} mm/yr (He et al. 2024)")
+    return {**common, "low": lo, "best": best, "high": hi, "toward": toward, "flags": flags}
+
+
+def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict, uplift: np.ndarray | None = None):
     rng = np.random.default_rng(config.seed + 2)
     n = 500
     # χ and its slopes are measured with the reference area A0: χ ∝ A0^θ and dz/dχ ∝ A0^−θ. Rates
@@ -344,25 +454,14 @@ def _rate_and_timing(core: _Core, config: AssessConfig, verdict: Verdict):
                  "ksn_above": dated["ksn_above"] * to_unit}
     cal = calibrate(ksn_a=ksn_a, ksn_b=ksn_b, n=config.n, erosion_rate_a_mm_yr=config.erosion_rate_a_mm_yr,
                     erosion_rate_b_mm_yr=config.erosion_rate_b_mm_yr, erodibility=config.erodibility,
-                    knickpoint=dated, knickpoint_age_years=config.knickpoint_age_years)
+                    knickpoint=dated, knickpoint_age_years=config.knickpoint_age_years,
+                    erosion_rate_a_error_mm_yr=config.erosion_rate_a_error_mm_yr,
+                    erosion_rate_b_error_mm_yr=config.erosion_rate_b_error_mm_yr,
+                    erodibility_error=config.erodibility_error,
+                    knickpoint_age_error_years=config.knickpoint_age_error_years, seed=config.seed + 3)
     rate = None
     if cal.available:
-        grad_a, grad_b = core.samples.values["hillslope_gradient"]
-        tan_a = _side_samples(core, grad_a, rng, n)
-        tan_b = _side_samples(core, grad_b, rng, n)
-        v = migration_rate(cal.erosion_a, cal.erosion_b, tan_a, tan_b) * 1e3  # mm/yr toward b
-        toward = verdict.moves_toward if verdict.moves_toward in ("a", "b") else ("b" if np.nanmedian(v) >= 0 else "a")
-        v = v if toward == "b" else -v
-        lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
-        flags = []
-        if best <= 0:
-            flags.append("the erosion rates do not make the aggressor erode faster: rate and verdict disagree")
-        if not (PLAUSIBLE_MM_PER_YR[0] <= abs(best) <= PLAUSIBLE_MM_PER_YR[1]):
-            flags.append(f"implausible: measured divide migration rates span {PLAUSIBLE_MM_PER_YR[0]}–"
-                         f"{PLAUSIBLE_MM_PER_YR[1]} mm/yr (He et al. 2024)")
-        rate = {"low": lo, "best": best, "high": hi, "toward": toward, "flags": flags,
-                "erosion_a_mm_yr": float(np.nanmedian(cal.erosion_a) * 1e3),
-                "erosion_b_mm_yr": float(np.nanmedian(cal.erosion_b) * 1e3)}
+        rate = _divide_rate(core, config, verdict, cal, ksn_a, ksn_b, to_unit, rng, n, uplift)
     knickpoints = []
     for kp in core.profiles.knickpoints:
         arrival = None
@@ -399,20 +498,27 @@ def _given(config: AssessConfig | None, names: dict) -> str:
     """The calibration the user gave, quoted with its value and unit (empty when none)."""
     if config is None:
         return ""
-    rates = [f"the erosion rate given for {names[k]}, {v:g} mm/yr"
-             for k, v in (("a", config.erosion_rate_a_mm_yr), ("b", config.erosion_rate_b_mm_yr)) if v is not None]
+
+    def pm(error: float | None, unit: str = "") -> str:
+        return f" ± {_sig2(error)}{unit}" if error else ""
+
+    rates = [f"the erosion rate given for {names[k]}, {v:g}{pm(e)} mm/yr"
+             for k, v, e in (("a", config.erosion_rate_a_mm_yr, config.erosion_rate_a_error_mm_yr),
+                             ("b", config.erosion_rate_b_mm_yr, config.erosion_rate_b_error_mm_yr)) if v is not None]
     if rates:
         return " and ".join(rates)
     if config.erodibility is not None:
-        return f"the erodibility given, K = {config.erodibility:g} (SI units, n = {config.n:g})"
+        return (f"the erodibility given, K = {config.erodibility:g}{pm(config.erodibility_error)} "
+                f"(SI units, n = {config.n:g})")
     if config.knickpoint_age_years is not None:
-        return f"the knickpoint age given, {config.knickpoint_age_years:,.0f} years"
+        return (f"the knickpoint age given, {config.knickpoint_age_years:,.0f}"
+                f"{pm(config.knickpoint_age_error_years)} years")
     return ""
 
 
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
           equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False,
-          config: AssessConfig | None = None) -> str:
+          config: AssessConfig | None = None, withheld: str | None = None) -> str:
     names = {k: (f"{given} (side {k})" if given else f"side {k} ({side.spec.text})")
              for k, side, given in (("a", sides.a, getattr(config, "name_a", None)),
                                     ("b", sides.b, getattr(config, "name_b", None)))}
@@ -479,6 +585,8 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
         lines.append(f"Migration rate toward {names[rate['toward']]}: {_sig2(rate['best'])} mm/yr "
                      f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {_given(config, names) or cal.source}.")
         lines += [f"Note: {f}." for f in rate["flags"]]
+    elif withheld:
+        lines.append(f"No migration rate: {withheld.removeprefix('rate withheld: ')}.")
     else:
         lines.append("No rate: give a measured erosion rate of either side (--erosion-rate-a/-b, mm/yr), an "
                      "erodibility K, or the age of a knickpoint to turn steepness into rates and years.")
@@ -550,12 +658,14 @@ def assess(
     if progress is not None:
         progress("verdict, rates, knickpoint arrival and the equilibrium divide")
     verdict = core.decide(share, config.min_confidence)
-    cal, rate, knickpoints = _rate_and_timing(core, config, verdict)
+    cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
+    withheld = rate.get("withheld") if rate is not None else None
+    rate = None if withheld else rate
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
-                                                      config=config))
+                                                      config=config, withheld=withheld))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,
@@ -573,4 +683,5 @@ def assess(
     return Assessment(config=config, dem=dem, flow=core.flow, channels=core.channels, sides=core.sides,
                       base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
-                      knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic)
+                      knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
+                      rate_withheld=withheld)

@@ -9,8 +9,8 @@ import numpy as np
 from divides.errors import ParameterError
 
 __all__ = [
-    "Calibration", "calibrate", "divide_rate", "migration_rate", "PLAUSIBLE_MM_PER_YR", "positive_samples",
-    "step_celerity", "travel_time",
+    "Calibration", "calibrate", "divide_rate", "exponent_samples", "migration_rate", "near_divide_erosion",
+    "PLAUSIBLE_MM_PER_YR", "positive_samples", "step_celerity", "travel_time",
 ]
 
 #: Measured divide migration rates span about 0.001-10 mm/yr (He et al. 2024).
@@ -272,3 +272,81 @@ def migration_rate(
     (kinematics of two intersecting planes): :func:`divide_rate` with equal uplift.
     """
     return divide_rate(erosion_a, erosion_b, tan_a, tan_b)
+
+
+#: Half-widths of θ and n drawn when no interval is known: θ is typically known to about
+#: ±0.05 from χ–z collinearity on good data and n to about ±0.2 (common practice; from memory).
+THETA_HALF_WIDTH, N_HALF_WIDTH = 0.05, 0.2
+
+
+def exponent_samples(
+    theta: float, n: float, size: int, rng: np.random.Generator, *, theta_ci: tuple[float, float] | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Draws of θ and n for the rate's interval: uniform within θ's interval (or ±0.05) and n ± 0.2.
+
+    Parameters
+    ----------
+    theta, n : float
+        Values used.
+    size : int
+        Number of draws.
+    rng : numpy.random.Generator
+    theta_ci : (float, float), optional
+        θ's 95 % interval when it was estimated; else θ ± :data:`THETA_HALF_WIDTH`.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        θ and n draws (θ kept in (0, 2], n in [0.5, 4]).
+    """
+    lo, hi = theta_ci if theta_ci is not None and np.all(np.isfinite(theta_ci)) else \
+        (theta - THETA_HALF_WIDTH, theta + THETA_HALF_WIDTH)
+    th = np.clip(rng.uniform(lo, hi, size), 0.01, 2.0)
+    ns = np.clip(rng.uniform(n - N_HALF_WIDTH, n + N_HALF_WIDTH, size), 0.5, 4.0)
+    return th, ns
+
+
+def near_divide_erosion(
+    erosion_network: np.ndarray,
+    ksn_network: np.ndarray,
+    ksn_head: np.ndarray,
+    *,
+    n: float,
+    n_draws: np.ndarray | float | None = None,
+    area_ratio: np.ndarray | float = 1.0,
+    theta_shift: np.ndarray | float = 0.0,
+) -> np.ndarray:
+    """Erosion next to the divide, E_head = K ksn_head^n with K = E_network / ksn_network^n.
+
+    K is the one the calibration implies for the side's network; with it the channel heads
+    next to the divide erode at E_network (ksn_head/ksn_network)^n. θ and n enter through
+    that ratio only: a θ differing by δ from the one the steepness was measured with scales
+    each ksn by A^δ (ksn = S A^θ), so the ratio by (A_head/A_network)^δ; the calibration's
+    own n and the drawn one differ only in the exponent of the ratio.
+
+    Parameters
+    ----------
+    erosion_network : ndarray
+        Samples of the side's erosion rate at its network's typical ksn (any unit).
+    ksn_network, ksn_head : ndarray
+        Samples of the network's typical ksn and of the near-divide ksn (same A0 and θ).
+    n : float
+        Slope exponent of the calibration.
+    n_draws : ndarray or float, optional
+        Draws of n for the ratio (default ``n``).
+    area_ratio : ndarray or float
+        A_head / A_network (typical drainage areas of the two ksn).
+    theta_shift : ndarray or float
+        θ drawn minus θ used.
+
+    Examples
+    --------
+    Channel heads half as steep as the network, n = 1: half the erosion rate.
+
+    >>> float(near_divide_erosion(np.array(0.2), np.array(50.0), np.array(25.0), n=1.0))
+    0.1
+    """
+    ratio = np.asarray(ksn_head, dtype=np.float64) / np.asarray(ksn_network, dtype=np.float64)
+    ratio = ratio * np.asarray(area_ratio, dtype=np.float64) ** np.asarray(theta_shift, dtype=np.float64)
+    exponent = n if n_draws is None else np.asarray(n_draws, dtype=np.float64)
+    return np.asarray(erosion_network, dtype=np.float64) * ratio**exponent

@@ -75,24 +75,39 @@ DemErrorLengthOption = Annotated[
 ErosionRateAOption = Annotated[
     str | None,
     typer.Option("--erosion-rate-a", metavar="MM/YR", show_default=False,
-                 help="Measured erosion rate of side a (mm/yr, e.g. basin-averaged cosmogenic); turns steepness "
-                 "into rates and years."),
+                 help="Measured erosion rate of side a (mm/yr, e.g. basin-averaged cosmogenic), with its error as "
+                 "0.2±0.05 or 0.2+-0.05 if known; turns steepness into rates and years."),
 ]
 ErosionRateBOption = Annotated[
     str | None,
     typer.Option("--erosion-rate-b", metavar="MM/YR", show_default=False,
-                 help="Measured erosion rate of side b (mm/yr); with --erosion-rate-a both are used as given."),
+                 help="Measured erosion rate of side b (mm/yr, optionally ±error); with --erosion-rate-a both "
+                 "are used."),
 ]
 ErodibilityKOption = Annotated[
     str | None,
     typer.Option("--erodibility-k", metavar="K", show_default=False,
-                 help="Erodibility K of E = K ksn^n (SI: m^(1-2θ)/yr for n = 1), instead of erosion rates."),
+                 help="Erodibility K of E = K ksn^n (SI: m^(1-2θ)/yr for n = 1; optionally ±error), instead of "
+                 "erosion rates."),
 ]
 KnickpointAgeOption = Annotated[
     str | None,
     typer.Option("--knickpoint-age", metavar="YEARS", show_default=False,
-                 help="Age (years) of the most prominent knickpoint, to calibrate K from how far it has travelled."),
+                 help="Age (years, optionally ±error) of the most prominent knickpoint, to calibrate K from how far "
+                 "it has travelled."),
 ]
+
+
+def _error_option(name: str, unit: str) -> Any:
+    return Annotated[str | None, typer.Option(f"{name}-error", metavar=unit, show_default=False,
+                                              help=f"One standard deviation of {name} ({unit}); or write it as "
+                                              "VALUE±ERROR.")]
+
+
+ErosionRateAErrorOption = _error_option("--erosion-rate-a", "MM/YR")
+ErosionRateBErrorOption = _error_option("--erosion-rate-b", "MM/YR")
+ErodibilityKErrorOption = _error_option("--erodibility-k", "K")
+KnickpointAgeErrorOption = _error_option("--knickpoint-age", "YEARS")
 SlopeExponentOption = Annotated[
     str | None,
     typer.Option("--n", metavar="N", show_default=False,
@@ -178,6 +193,7 @@ def assess_request(
     erosion_rate_b: str | None = None,
     erodibility_k: str | None = None,
     knickpoint_age: str | None = None,
+    errors: dict[str, str | None] | None = None,
     n: str | None = None,
     runoff: str | None = None,
     erodibility: str | None = None,
@@ -210,6 +226,11 @@ def assess_request(
         raise ParameterError(f"--name-a and --name-b are the same ({name_a!r}); give the two sides different names")
     if spec_a.text.lower() == spec_b.text.lower():
         raise ParameterError(f"--side-a and --side-b are the same ({side_a!r}); give the two different sides of the divide")
+    errors = errors or {}
+    split = {name: opt.split_error(text, errors.get(name), option=name, unit=unit) for name, text, unit in (
+        ("--erosion-rate-a", erosion_rate_a, "mm/yr"), ("--erosion-rate-b", erosion_rate_b, "mm/yr"),
+        ("--erodibility-k", erodibility_k, "m^(1-2θ)/yr"), ("--knickpoint-age", knickpoint_age, "years"))}
+    (erosion_rate_a, _), (erosion_rate_b, _), (erodibility_k, _), (knickpoint_age, _) = split.values()
     rates = {
         "--erosion-rate-a": opt.parse_bounded(erosion_rate_a, option="--erosion-rate-a", unit="mm/yr", low=0,
                                               high=MAX_EROSION_MM_YR, typical="measured rates: 0.001 to 10 mm/yr"),
@@ -233,6 +254,10 @@ def assess_request(
         "erosion_rate_b_mm_yr": rates["--erosion-rate-b"],
         "erodibility": k,
         "knickpoint_age_years": age,
+        "erosion_rate_a_error_mm_yr": split["--erosion-rate-a"][1],
+        "erosion_rate_b_error_mm_yr": split["--erosion-rate-b"][1],
+        "erodibility_error": split["--erodibility-k"][1],
+        "knickpoint_age_error_years": split["--knickpoint-age"][1],
         "snap_radius_m": _positive(snap_radius, "--snap-radius", "m"),
         "robustness": robustness,
         "seed": seed,
@@ -439,6 +464,10 @@ def assess(
     erosion_rate_b: ErosionRateBOption = None,
     erodibility_k: ErodibilityKOption = None,
     knickpoint_age: KnickpointAgeOption = None,
+    erosion_rate_a_error: ErosionRateAErrorOption = None,
+    erosion_rate_b_error: ErosionRateBErrorOption = None,
+    erodibility_k_error: ErodibilityKErrorOption = None,
+    knickpoint_age_error: KnickpointAgeErrorOption = None,
     n: SlopeExponentOption = None,
     name_a: opt.NameAOption = None,
     name_b: opt.NameBOption = None,
@@ -486,6 +515,8 @@ def assess(
         reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,
         dem_error_length=dem_error_length,
         erosion_rate_b=erosion_rate_b, erodibility_k=erodibility_k, knickpoint_age=knickpoint_age, n=n,
+        errors={"--erosion-rate-a": erosion_rate_a_error, "--erosion-rate-b": erosion_rate_b_error,
+                "--erodibility-k": erodibility_k_error, "--knickpoint-age": knickpoint_age_error},
         runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
         robustness=not no_robustness, seed=seed, route=route, name_a=name_a, name_b=name_b,
         min_confidence=min_confidence,

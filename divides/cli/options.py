@@ -511,6 +511,50 @@ def parse_bounded(
     return value
 
 
+def split_error(text: str | None, error_text: str | None, *, option: str, unit: str) -> tuple[str | None, float | None]:
+    """Split ``VALUE±ERROR`` (or ``VALUE+-ERROR``) and check the error, given there or as ``{option}-error``.
+
+    Parameters
+    ----------
+    text : str or None
+        The value as typed, perhaps with its error.
+    error_text : str or None
+        The value of the separate ``{option}-error`` option.
+    option, unit : str
+        For the message.
+
+    Returns
+    -------
+    (str or None, float or None)
+        The value still to be checked, and its error (one standard deviation, finite, >= 0).
+
+    Examples
+    --------
+    >>> split_error("0.2±0.05", None, option="--erosion-rate-a", unit="mm/yr")
+    ('0.2', 0.05)
+    >>> split_error("0.2+-0.05", None, option="--erosion-rate-a", unit="mm/yr")
+    ('0.2', 0.05)
+    """
+    value, error = text, None
+    if text is not None:
+        for sign in ("±", "+-", "+/-"):
+            if sign in text:
+                value, error = (part.strip() for part in text.split(sign, 1))
+                break
+    if error is not None and error_text is not None:
+        raise ParameterError(f"{option} {text!r} carries an error and {option}-error is given too; give the error once")
+    error = error if error is not None else error_text
+    if error is None:
+        return value, None
+    accepted = f"one standard deviation in {unit}, a finite number >= 0 (e.g. {option} 0.2±0.05)"
+    number = parse_number(error, option=f"{option} error", accepted=accepted)
+    if number < 0:
+        raise ParameterError(f"{option} error {error!r} is not accepted; give {accepted}")
+    if value is None:
+        raise ParameterError(f"{option}-error is given without {option}; give the value too")
+    return value, number
+
+
 def parse_closed_edges(text: str | None) -> tuple[str, ...]:
     """Parse ``--closed-edges north,south`` into a tuple of edge names.
 
