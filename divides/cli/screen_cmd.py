@@ -169,9 +169,10 @@ def screen(
     moving = sum(s["moves_toward_basin"] is not None for s in segs)
     share = (result.coverage or {}).get("share")
     typer.echo(f"{len(segs)} divide segments between {int(result.labels.max())} basins; "
-               f"{moving} show evidence of motion; "
-               + ("no divide between outlet basins." if share is None else
-                  f"{100 * share:.0f} % of the divides between outlet basins judged ({len(result.gaps)} gaps)."))
+               f"{moving} show evidence of motion.")
+    typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
+                               f"{100 * share:.0f} % of the divides between outlet basins judged")
+               + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson).")
     if segs and top:
         typer.echo(f"{'rank':>4}  {'instab.':>7}  {'conf.':>5}  {'length m':>9}  {'basins':>11}  {'toward':>6}  bearing")
         for s in segs[:top]:
