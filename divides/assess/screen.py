@@ -23,7 +23,19 @@ from divides.terrain.channels import Channels, extract_channels
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
 from divides.terrain.routing import FlowGraph, route
 
-__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES"]
+__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth"]
+
+#: The fields of AssessConfig a screening reads (only these are reported).
+_USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
+                 "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning",
+                 "closed_edges", "seed", "min_confidence")
+
+#: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
+MIN_SEGMENT_CELLS = 4
+
+#: Why divides between tributaries of the same trunk are not judged.
+LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
+                  "is calibrated on divides between basins that drain apart)")
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
@@ -40,9 +52,15 @@ class Screening:
     labels : ndarray of int32
         Basin label of every cell (0 = below the minimum area).
     segments : list of dict
-        One per segment, ranked; keys of :data:`SEGMENT_PROPERTIES` plus ``line``
-        (a :class:`DivideLine`) and ``contrasts``.
+        One per judged segment, ranked; keys of :data:`SEGMENT_PROPERTIES` plus ``line``
+        (a :class:`DivideLine`), ``contrasts``, ``reason`` and ``probabilities``.
     parameters : dict
+    gaps : list of dict
+        Every stretch of divide between two basins that was not judged: ``basins``,
+        ``length_m``, ``reason``, ``line``.
+    coverage : dict
+        ``share`` of the length of the divides between outlet basins in judged segments,
+        with the lengths behind it (see :func:`_coverage`).
     """
 
     dem: Dem
@@ -51,6 +69,8 @@ class Screening:
     labels: np.ndarray
     segments: list
     parameters: dict = field(default_factory=dict)
+    gaps: list = field(default_factory=list)
+    coverage: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
@@ -60,7 +80,10 @@ class Screening:
                     "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m)},
             "parameters": self.parameters,
             "n_basins": int(self.labels.max()),
-            "segments": [{k: s[k] for k in SEGMENT_PROPERTIES} | {"contrasts": s["contrasts"]}
+            "coverage": self.coverage,
+            "gaps": [{k: g[k] for k in ("basins", "length_m", "reason")} for g in self.gaps],
+            "segments": [{k: s[k] for k in SEGMENT_PROPERTIES}
+                         | {k: s[k] for k in ("reason", "probabilities", "contrasts")}
                          for s in self.segments],
             "caution": CAUTION,
         })
@@ -73,27 +96,85 @@ class Screening:
 
 
 def _split(line: DivideLine, max_m: float) -> list[DivideLine]:
-    """Cut a line into pieces of at most ``max_m`` (equal lengths)."""
+    """Cut a line into pieces of at most about ``max_m`` that share their end vertices.
+
+    The cuts fall on vertices, so the pieces' lengths add up to the line's
+    (nothing of the divide is lost between two pieces).
+    """
     if line.length_m <= max_m:
         return [line]
     k = int(math.ceil(line.length_m / max_m))
-    edges = np.linspace(0.0, line.length_m, k + 1)
+    cuts = np.searchsorted(line.distance_m, np.linspace(0.0, line.length_m, k + 1)[1:-1])
+    cuts = np.unique(np.r_[0, np.clip(cuts, 1, line.x.size - 2), line.x.size - 1])
     out = []
-    for lo, hi in zip(edges[:-1], edges[1:]):
-        sel = (line.distance_m >= lo) & (line.distance_m <= hi)
-        idx = np.flatnonzero(sel)
-        if idx.size < 2:
-            continue
-        idx = np.arange(max(idx[0] - 1, 0) if lo > 0 else idx[0], idx[-1] + 1)
+    for lo, hi in zip(cuts[:-1], cuts[1:]):
+        idx = np.arange(lo, hi + 1)
         out.append(DivideLine(line.row[idx], line.col[idx], line.x[idx], line.y[idx],
-                              line.distance_m[idx] - line.distance_m[idx[0]], line.elevation_m[idx]))
+                              line.distance_m[idx] - line.distance_m[lo], line.elevation_m[idx]))
     return out
 
 
-def _azimuth(normal: np.ndarray) -> float:
-    """Compass bearing (0 = north, 90 = east) of a mean (east, north) direction."""
-    e, n = normal
-    return float(math.degrees(math.atan2(e, n)) % 360.0)
+def motion_azimuth(line: DivideLine, dem: Dem, toward: str) -> float | None:
+    """Compass bearing (0 = north, 90 = east) of the divide's local normal toward the victim side.
+
+    The normal is taken at the middle of the line, from the chord between the
+    vertices at a quarter and three quarters of its length (so a bend at one
+    end does not swing it). Side a is left of the line, so its right-hand
+    normal points into b.
+
+    Parameters
+    ----------
+    line : DivideLine
+    dem : Dem
+        For the cell sizes (east and north metres per column and row).
+    toward : {"a", "b"}
+        The victim side; anything else gives None.
+    """
+    if toward not in ("a", "b") or line.x.size < 2:
+        return None
+    lo, hi = np.searchsorted(line.distance_m, [0.25 * line.length_m, 0.75 * line.length_m])
+    lo, hi = min(int(lo), line.x.size - 2), max(int(hi), int(lo) + 1)
+    hi = min(hi, line.x.size - 1)
+    mid = int(np.clip(round(0.5 * (line.row[lo] + line.row[hi])), 0, dem.shape[0] - 1))
+    east = (line.col[hi] - line.col[lo]) * dem.dx[mid]
+    north = -(line.row[hi] - line.row[lo]) * dem.dy[mid]  # rows grow southward
+    if east == 0 and north == 0:
+        return None
+    sign = 1.0 if toward == "b" else -1.0
+    # right-hand normal of (east, north) is (north, -east)
+    return float(math.degrees(math.atan2(sign * north, -sign * east)) % 360.0)
+
+
+def _outlet_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> np.ndarray:
+    """The outlet basin of every label (index = label; 0 for 0).
+
+    At ``level="tributaries"`` several labels share an outlet basin (tributaries of the
+    same trunk); at the other levels every label is its own.
+    """
+    top = int(labels.max())
+    if level != "tributaries":
+        return np.arange(top + 1)
+    outlets = basin_labels(flow, min_area_m2=min_area, level="outlets").ravel()
+    out = np.zeros(top + 1, dtype=np.int64)
+    out[labels.ravel()] = outlets  # every cell of a label drains to the same outlet
+    out[0] = 0
+    return out
+
+
+def _coverage(segments: list[dict], gaps: list[dict], outlet_of: np.ndarray) -> dict:
+    """Share of the length of the divides between outlet basins that lies in judged segments."""
+    def between_outlets(basins):
+        return outlet_of[basins[0]] != outlet_of[basins[1]]
+
+    judged = sum(s["length_m"] for s in segments if between_outlets(s["basins"]))
+    left = sum(g["length_m"] for g in gaps if between_outlets(g["basins"]))
+    total_all = sum(s["length_m"] for s in segments) + sum(g["length_m"] for g in gaps)
+    reasons: dict[str, float] = {}
+    for g in gaps:
+        reasons[g["reason"]] = reasons.get(g["reason"], 0.0) + g["length_m"]
+    return {"outlet_divides_length_m": judged + left, "assessed_length_m": judged,
+            "share": judged / (judged + left) if judged + left > 0 else None,
+            "all_divides_length_m": total_all, "gap_length_by_reason_m": reasons}
 
 
 class _Shared:
@@ -184,7 +265,7 @@ def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
                                           seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
                                           mirrored=mirrored)
             # no robustness re-runs per segment; the probability is calibrated on main divides only
-            verdict = decide(contrasts, same_channel=mirrored)
+            verdict = decide(contrasts, same_channel=mirrored, min_confidence=config.min_confidence)
             out.append(_row(seg, pts, contrasts, verdict))
     finally:
         scratch[cells] = np.nan
@@ -192,30 +273,19 @@ def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
 
 
 def _empty(seg: DivideSegment, why: str) -> dict:
-    return {"seg": seg, "verdict": "undetermined", "basis": why, "confidence": 0.0, "instability": 0.0,
-            "moves_toward": "none", "normal": (0.0, 0.0), "n_points": 0, "facing_share": 0.0, "contrasts": [],
-            "mean_chi_a": None, "mean_chi_b": None}
+    """A segment that could not be judged: it goes to the gaps layer with ``why``."""
+    return {"seg": seg, "gap": why}
 
 
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
-    by = {c.metric: c for c in contrasts}
-    toward = verdict.moves_toward
-    if toward in ("a", "b"):
-        # strength: mean relative size of the agreeing near-divide contrasts (1 at 50 % or more)
-        effects = []
-        for name in verdict.agreeing or ("chi",):
-            c = by[name]
-            scale = 0.5 * (abs(c.a) + abs(c.b)) or 1.0
-            effects.append(min(1.0, abs(c.difference) / scale / 0.5))
-        strength = 0.5 + 0.5 * float(np.mean(effects))
-        instability = verdict.confidence * strength
-        mean_normal = pts.normal.mean(axis=0) * (1.0 if toward == "b" else -1.0)
-    else:
-        instability, mean_normal = 0.0, np.zeros(2)
-    chi = by.get("chi")
-    return {"seg": seg, "verdict": toward, "basis": verdict.basis, "confidence": verdict.confidence,
-            "instability": float(instability), "moves_toward": toward, "normal": tuple(mean_normal),
-            "n_points": int(pts.size), "contrasts": [c.to_dict() for c in contrasts],
+    probs = verdict.probabilities
+    # instability: the calibrated probability that the segment moves at all (P(a) + P(b));
+    # unknown (None) when the decision abstained for insufficient data
+    instability = None if probs is None else float(probs.get("a", 0.0) + probs.get("b", 0.0))
+    chi = next((c for c in contrasts if c.metric == "chi"), None)
+    return {"seg": seg, "verdict": verdict.moves_toward, "basis": verdict.basis, "reason": verdict.reason,
+            "confidence": verdict.confidence, "instability": instability, "moves_toward": verdict.moves_toward,
+            "probabilities": probs, "n_points": int(pts.size), "contrasts": [c.to_dict() for c in contrasts],
             # share of points where both sides drain away from the divide: low on divides between
             # neighbouring basins that drain the same way, where metrics are less telling
             "facing_share": float(np.mean(pts.facing >= MIN_FACING)) if pts.size else 0.0,
@@ -282,8 +352,11 @@ def screen(
     Returns
     -------
     Screening
-        Segments ranked by instability = confidence × strength of the evidence
-        (0 for stable or undetermined segments).
+        Judged segments ranked by instability = P(toward a) + P(toward b) of the calibrated
+        decision (:func:`divides.assess.verdict.decide`; None, ranked last, when it abstained
+        for insufficient data); every other stretch of divide between two basins is a gap
+        with its reason, and ``coverage`` gives the judged share of the divides between
+        outlet basins.
     """
     config = AssessConfig.from_options(**options)
     if isinstance(config.theta, str):
@@ -298,12 +371,19 @@ def screen(
     max_len = float(max_segment_m) if max_segment_m is not None else 100.0 * cell
     if not (np.isfinite(max_len) and max_len > 4 * cell):
         raise ParameterError(f"max segment length must exceed four cells ({4 * cell:g} m); got {max_segment_m!r}")
-    segments = divide_network(dem, labels)
+    # every traced piece is kept (min_vertices=2), so each stretch of divide ends up in a segment or a gap
+    outlet_of = _outlet_basins(flow, labels, min_area, level)
     by_pair: dict[tuple[int, int], list[DivideSegment]] = {}
-    for seg in segments:
+    gaps: list[dict] = []
+    for seg in divide_network(dem, labels, min_vertices=2):
         for piece in _split(seg.line, max_len):
-            by_pair.setdefault((seg.label_a, seg.label_b), []).append(
-                DivideSegment(seg.label_a, seg.label_b, piece, seg.cells_a, seg.cells_b))
+            part = DivideSegment(seg.label_a, seg.label_b, piece, seg.cells_a, seg.cells_b)
+            if piece.length_m < MIN_SEGMENT_CELLS * cell:
+                gaps.append(_empty(part, f"shorter than {MIN_SEGMENT_CELLS} cells: too short to sample"))
+            elif outlet_of[seg.label_a] == outlet_of[seg.label_b]:
+                gaps.append(_empty(part, LATERAL_REASON))
+            else:
+                by_pair.setdefault((seg.label_a, seg.label_b), []).append(part)
     spacing = config.divide_spacing_m or 2.0 * cell
     chi_area, chi_weight = channels.area, 1.0
     if runoff is not None or erodibility_raster is not None or uplift_raster is not None:  # generalised χ
@@ -324,25 +404,32 @@ def screen(
     n_workers = max(1, min(workers or os.cpu_count() or 1, len(tasks) or 1))
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
-    rows.sort(key=lambda r: (-r["instability"], -r["seg"].line.length_m))
+    gaps += [r for r in rows if "gap" in r]
+    rows = [r for r in rows if "gap" not in r]
+    # ranked by the probability of motion; abstentions for insufficient data (unknown) last
+    rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
     for rank, r in enumerate(rows, start=1):
         seg = r["seg"]
         victim = {"a": seg.label_a, "b": seg.label_b}.get(r["moves_toward"])
-        moving = victim is not None
         out.append({
             "rank": rank, "instability": r["instability"], "confidence": r["confidence"],
             "length_m": seg.line.length_m, "basins": [seg.label_a, seg.label_b],
             "moves_toward_basin": victim,
-            "motion_azimuth_deg": _azimuth(r["normal"]) if moving and any(r["normal"]) else None,
-            "verdict": r["verdict"], "basis": r["basis"], "n_points": r["n_points"],
-            "facing_share": r["facing_share"],
+            "motion_azimuth_deg": motion_azimuth(seg.line, dem, r["moves_toward"]) if victim is not None else None,
+            "verdict": r["verdict"], "basis": r["basis"], "reason": r["reason"],
+            "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "line": seg.line,
         })
+    gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
+                 "reason": g["gap"], "line": g["seg"].line} for g in gaps]
+    coverage = _coverage(out, gap_rows, outlet_of)
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
-    params = {**config.to_dict(), "chi_weighted": weighted,
+    used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
+    params = {**used, "chi_weighted": weighted,
               "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
-    return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params)
+    return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
+                     gaps=gap_rows, coverage=coverage)

@@ -13,13 +13,14 @@ from matplotlib import colormaps
 from matplotlib.collections import LineCollection
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
+from matplotlib.lines import Line2D
 
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_json, write_text
 from divides.report import html as _html
 
 from divides.report import figures as _figures
-from divides.report.figures import _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
+from divides.report.figures import _HALO, _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
 from divides.report.labels import parameter_label, parameter_value
 from divides.report.layers import _collection, _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
@@ -30,7 +31,10 @@ from divides.report.writer import staged_output
 if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
-__all__ = ["write_screening", "segment_features", "segment_rows", "regional_map"]
+__all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map"]
+
+#: Segments whose rank is written on the map (the top of the report's table).
+MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
             "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "x_mid", "y_mid")
@@ -43,7 +47,8 @@ def segment_rows(result: Screening) -> list[dict]:
         line = s["line"]
         mid = line.x.size // 2
         rows.append({
-            "rank": s["rank"], "instability": round(float(s["instability"]), 4), "confidence": s["confidence"],
+            "rank": s["rank"], "confidence": s["confidence"],
+            "instability": None if s["instability"] is None else round(float(s["instability"]), 4),
             "length_m": round(float(s["length_m"]), 1), "basin_1": s["basins"][0], "basin_2": s["basins"][1],
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
@@ -67,34 +72,79 @@ def segment_features(result: Screening) -> list[dict]:
     return features
 
 
+def gap_features(result: Screening) -> list[dict]:
+    """RFC 7946 LineString features (WGS 84 lon/lat), one per stretch of divide left unjudged, with its reason."""
+    features = []
+    for g in result.gaps:
+        lon, lat = _lonlat(result.dem, g["line"].x, g["line"].y)
+        features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
+                                 {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"],
+                                  "reason": g["reason"]}))
+    return features
+
+
 def regional_map(result: Screening):
     """Hillshade with every segment coloured by instability and arrows toward the victim basin."""
     dem = result.dem
     frame = _frame(dem)
-    fig = _figure(8.0, 8.0 * dem.shape[0] / max(dem.shape[1], 1) * 0.9 + 1.2)
+    fig = _figure(8.0, 8.0 * dem.shape[0] / max(dem.shape[1], 1) * 0.9 + 1.8)
     ax = fig.add_subplot()
     _hillshade(ax, dem, frame)
-    cmap = colormaps["cividis"]
+    cmap = colormaps["plasma"]  # perceptually uniform, dark (low) to bright yellow (high): high contrast on grey
     norm = Normalize(0.0, 1.0)
-    segs, colours, widths = [], [], []
-    for s in result.segments:
-        line = s["line"]
-        segs.append(np.column_stack([line.x * frame.scale, line.y * frame.scale]))
-        colours.append(cmap(norm(s["instability"])))
-        widths.append(1.0 + 3.0 * s["instability"])
-    ax.add_collection(LineCollection(segs, colors=colours, linewidths=widths, zorder=3))
+
+    def xy(line):
+        return np.column_stack([line.x * frame.scale, line.y * frame.scale])
+
+    judged = [s for s in result.segments if s["instability"] is not None]
+    unknown = [s for s in result.segments if s["instability"] is None]
+    handles = []
+    if judged:
+        ax.add_collection(LineCollection([xy(s["line"]) for s in judged], colors="white", linewidths=5.0, zorder=3))
+        ax.add_collection(LineCollection([xy(s["line"]) for s in judged], linewidths=3.0, zorder=3.1,
+                                         colors=[cmap(norm(s["instability"])) for s in judged]))
+    if unknown:
+        ax.add_collection(LineCollection([xy(s["line"]) for s in unknown], colors="0.2", linewidths=1.6,
+                                         linestyles=(0, (4, 2)), zorder=3))
+        handles.append(Line2D([], [], color="0.2", lw=1.6, ls=(0, (4, 2)), label="judged: insufficient data"))
+    if result.gaps:
+        ax.add_collection(LineCollection([xy(g["line"]) for g in result.gaps], colors="black", linewidths=1.0,
+                                         linestyles=(0, (1, 1.5)), zorder=3))
+        handles.append(Line2D([], [], color="black", lw=1.0, ls=(0, (1, 1.5)), label="not assessed (gap; see table)"))
     span = max(dem.bounds[2] - dem.bounds[0], dem.bounds[3] - dem.bounds[1]) * frame.scale
+    arrows = False
     for s in result.segments:
         if s["motion_azimuth_deg"] is None:
             continue
+        arrows = True
         line = s["line"]
         mid = line.x.size // 2
         az = np.radians(s["motion_azimuth_deg"])
-        length = 0.03 * span
+        length = 0.05 * span
         ax.annotate("", xy=(line.x[mid] * frame.scale + length * np.sin(az),
                             line.y[mid] * frame.scale + length * np.cos(az)),
                     xytext=(line.x[mid] * frame.scale, line.y[mid] * frame.scale),
-                    arrowprops={"arrowstyle": "-|>", "color": "#D55E00", "lw": 1.5}, zorder=4)
+                    arrowprops={"arrowstyle": "-|>", "color": "#009E73", "lw": 1.8}, zorder=4)
+    if arrows:
+        handles.append(Line2D([], [], color="#009E73", lw=1.8, marker=">", label="motion toward the victim basin"))
+    for s in result.segments[:MAP_RANKS]:  # the ranks of the table, at each segment's mid-point
+        line = s["line"]
+        mid = line.x.size // 2
+        ax.text(line.x[mid] * frame.scale, line.y[mid] * frame.scale, str(s["rank"]), fontsize=7, ha="center",
+                va="center", zorder=6, bbox={"boxstyle": "circle,pad=0.15", "fc": "white", "ec": "black", "lw": 0.6})
+    handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
+                          label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
+    labels = result.labels
+    rows, cols = np.indices(labels.shape)
+    count = np.bincount(labels.ravel())
+    for lab in np.flatnonzero(count)[1:] if count.size > 1 else []:  # basin labels at their centroids
+        sel = labels == lab
+        x, y = dem.xy(rows[sel].mean(), cols[sel].mean())
+        ax.text(float(x) * frame.scale, float(y) * frame.scale, f"B{lab}", fontsize=7, color="#0072B2",
+                fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
+    handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
+    # below the map, so no mark is hidden under it
+    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7, frameon=False)
     left, right, bottom, top = _display_extent(dem, frame, 1)
     ax.set_xlim(left, right)
     ax.set_ylim(bottom, top)
@@ -102,8 +152,9 @@ def regional_map(result: Screening):
     ax.set_ylabel(frame.ylabel)
     ax.set_aspect(frame.aspect)
     map_furniture(fig, ax, dem, frame)
-    fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, shrink=0.7, label="instability (0 = no evidence of motion, 1 = strong)")
-    ax.set_title("Divide segments by instability; arrows point toward the basin being captured", fontsize=10)
+    fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, shrink=0.7,
+                 label="instability = calibrated probability that the segment moves")
+    ax.set_title("Divide segments by instability; arrows point toward the basin losing ground", fontsize=10)
     return fig
 
 
@@ -116,20 +167,43 @@ def _parameter_table(params: dict) -> str:
     return _html._table(["Parameter", "Value", "Unit", "Key in screening.json"], rows, numeric={1})
 
 
-def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = 25) -> str:
+def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = MAP_RANKS) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
     header = ["rank", "instability", "confidence", "length (m)", "basins", "moves toward basin",
               "bearing (°)", "basis"]
-    table = _html._table(header, [[str(r["rank"]), f"{r['instability']:.2f}", f"{r['confidence']:.2f}",
-                                   f"{r['length_m']:,.0f}", f"{r['basin_1']} | {r['basin_2']}",
-                                   "—" if r["moves_toward_basin"] is None else str(r["moves_toward_basin"]),
+    table = _html._table(header, [[str(r["rank"]),
+                                   "unknown" if r["instability"] is None else f"{r['instability']:.2f}",
+                                   f"{r['confidence']:.2f}",
+                                   f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
+                                   "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 6})
     p = result.parameters
     caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}</div>"
     lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
+    cov = result.coverage or {}
+    share = cov.get("share")
+    coverage = ("<p>Coverage: " + ("no divide between outlet basins" if share is None else
+                f"{100 * share:.0f} % of the {cov['outlet_divides_length_m'] / 1000:,.1f} km of divide between "
+                "outlet basins lies in judged segments") + f"; {len(result.gaps)} stretches were left out "
+                "(layers/screen_gaps.geojson), by reason:</p>")
+    gap_table = _html._table(["reason", "length (km)"], [[e(k), f"{v / 1000:,.2f}"] for k, v in
+                                                           cov.get("gap_length_by_reason_m", {}).items()],
+                             numeric={1})
+    methods = (
+        "<h2>Methods and references</h2><p>Basins above the minimum area are labelled (level "
+        f"{e(p['level'])}); every divide between two of them is traced and cut into segments of at most "
+        f"{p['max_segment_m'] / 1000:g} km. Each segment is judged by the same calibrated decision as "
+        "<code>divides assess</code>: across-divide contrasts of channel elevation, hillslope gradient, local "
+        "and hillslope relief (Forte &amp; Whipple 2018; Scherler &amp; Schwanghart 2020) and χ from the pair's "
+        "common base level (Willett et al. 2014), turned into P(toward either basin) and P(stable); a "
+        f"direction needs a probability of at least {p['min_confidence']:g}, otherwise the verdict is "
+        "undetermined. <b>Instability</b> is P(toward a) + P(toward b), the calibrated probability that the "
+        "segment moves; it is unknown when too few independent samples were found. The probabilities were "
+        "calibrated on main divides between opposite DEM edges of model landscapes. Divides between "
+        "tributaries of the same trunk are not assessed. Details: docs/methods.md §7b.</p>")
     body = "".join([
         "<h1>Regional divide screening</h1>",
         f"<p class=\"sub\">DEM {e(document['dem']['path'] or '(in memory)')} · "
@@ -137,16 +211,17 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         f"report of {e(_dt.datetime.now(_dt.timezone.utc).date().isoformat())}</p>",
         caution,
         f"<section class=\"verdict\" id=\"verdict\"><p class=\"lead\">{lead}</p>"
-        "<p>Instability = confidence of the segment's verdict × strength of the agreeing contrasts; "
-        "a screening ranks where to look first, it does not replace an assessment of each divide "
-        "(<code>divides assess</code>) and field work.</p></section>",
+        "<p>Instability = the calibrated probability that the segment moves. "
+        "A screening ranks where to look first, it does not replace an assessment of each divide "
+        "(<code>divides assess</code>) and field work.</p>" + coverage + gap_table + "</section>",
         "<figure><img alt=\"regional map\" src=\"data:image/png;base64,"
         + base64.b64encode(png).decode("ascii") + "\"><figcaption>Divide segments coloured by instability "
-        "(cividis: colour-blind safe and readable in greyscale); arrows point toward the basin losing ground. "
+        "(plasma: colour-blind safe, dark to bright); circled numbers are the ranks of the table below, "
+        "B-numbers the basins; arrows point toward the basin losing ground; dotted lines were not assessed. "
         "<span class=\"note\">(files: figures/regional_map.png, figures/regional_map.svg)</span>"
         "</figcaption></figure>",
         f"<h2>The {min(top, len(rows))} least stable segments</h2>", table,
-        "<h2>Parameters</h2>", _parameter_table(p),
+        methods, "<h2>Parameters</h2>", _parameter_table(p),
         "<h2>Caution</h2>", caution,
         f"<footer id=\"provenance\"><p>{e(provenance_line(document.get('provenance') or {}))}</p></footer>",
     ])
@@ -171,6 +246,7 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
         write_json(tmp / "screening.json", document)
         if result.dem.crs is not None:
             write_json(tmp / "segments.geojson", _collection(segment_features(result)))
+            write_json(tmp / "layers" / "screen_gaps.geojson", _collection(gap_features(result)), parents=True)
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
         fig = regional_map(result)
         png = to_png(fig)
@@ -181,5 +257,5 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
         write_text(tmp / "report.html", _report(result, png, rows, document))
         # marks the folder as a divides output, so --overwrite may replace it later
         write_json(tmp / "summary.json", {"schema": "divides.screening/1", "provenance": prov,
-                                          "n_segments": len(rows)})
+                                          "n_segments": len(rows), "coverage": document.get("coverage")})
     return Path(os.path.abspath(os.fspath(out_dir)))

@@ -94,7 +94,10 @@ def test_uniform_steady_landscape_ranks_nothing_as_unstable(landscapes):
     steady, _, _, _ = landscapes
     result = screen(steady, max_segment_m=1500.0, **OPTIONS)
     assert result.segments
-    assert all(s["moves_toward_basin"] is None and s["instability"] == 0.0 for s in result.segments)
+    # no direction anywhere; instability is P(motion) of the calibrated decision (issue 14), which
+    # abstains (None) or stays below the probability a direction needs
+    assert all(s["moves_toward_basin"] is None for s in result.segments)
+    assert all(s["instability"] is None or s["instability"] < 0.8 for s in result.segments)
 
 
 def test_a_segment_matches_assess_on_the_same_two_basins(landscapes):

@@ -32,7 +32,8 @@ def dem():
 
 
 def _key(result):
-    return [(s["rank"], tuple(s["basins"]), s["verdict"], round(s["instability"], 12), s["n_points"])
+    return [(s["rank"], tuple(s["basins"]), s["verdict"],
+             None if s["instability"] is None else round(s["instability"], 12), s["n_points"])
             for s in result.segments]
 
 

@@ -40,14 +40,28 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
         # stable property names of the design's screen contract
         assert set(props) >= {"rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                               "motion_azimuth_deg"}
-        assert 0.0 <= props["instability"] <= 1.0 and 0.0 <= props["confidence"] <= 1.0
+        # instability: P(motion) of the calibrated decision, null when it abstained for insufficient data
+        assert (props["instability"] is None) == (props["basis"] == "insufficient data")
+        assert props["instability"] is None or 0.0 <= props["instability"] <= 1.0
+        assert 0.0 <= props["confidence"] <= 1.0
         assert props["moves_toward_basin"] in (None, *props["basins"])
         az = props["motion_azimuth_deg"]
         assert (az is None) == (props["moves_toward_basin"] is None) and (az is None or 0 <= az < 360)
     ranks = [f["properties"]["rank"] for f in gj["features"]]
     assert ranks == list(range(1, len(ranks) + 1))
     inst = [f["properties"]["instability"] for f in gj["features"]]
-    assert inst == sorted(inst, reverse=True)
+    known = [v for v in inst if v is not None]
+    assert inst[: len(known)] == sorted(known, reverse=True)  # unknowns ranked last
+    # the gaps layer (RFC 7946): every stretch of divide left out, with its reason
+    gaps = json.loads((out / "layers" / "screen_gaps.geojson").read_text())
+    assert gaps["type"] == "FeatureCollection" and "crs" not in gaps
+    assert len(gaps["features"]) == len(screening.gaps)
+    assert all(f["properties"]["reason"] and f["geometry"]["type"] == "LineString" for f in gaps["features"])
+    summary = json.loads((out / "summary.json").read_text())
+    doc = json.loads((out / "screening.json").read_text())
+    assert summary["coverage"] == doc["coverage"] and 0.0 <= doc["coverage"]["share"] <= 1.0
+    # the parameters listed are only those screening reads (no rate or naming options)
+    assert not {"erosion_rate_a_mm_yr", "knickpoint_age_years", "name_a", "robustness"} & set(doc["parameters"])
     with open(out / "segments.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert len(rows) == len(ranks)
@@ -57,6 +71,19 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     parser.feed(text)
     assert "licensed professionals" in text and "http://" not in text and "https://" not in text
     assert (out / "figures" / "regional_map.png").stat().st_size > 10_000
+    # the map's marks are tied to the table: rank and basin labels, a legend, scale bar, north arrow, CRS
+    first = screening.segments[0]
+    assert f"B{first['basins'][0]} | B{first['basins'][1]}" in text
+    fig = divides.report.screening.regional_map(screening)
+    ax = fig.axes[0]
+    texts = {t.get_text() for t in ax.texts}
+    assert any(t.get_gid() == "north-arrow" for t in ax.texts)
+    assert any(type(a).__name__ == "AnchoredSizeBar" for a in ax.artists)
+    assert {str(s["rank"]) for s in screening.segments[:25]} <= texts
+    assert {f"B{b}" for b in first["basins"]} <= texts
+    legend = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any("rank" in t for t in legend) and any("basin" in t for t in legend)
+    assert "EPSG" in ax.get_xlabel() or screening.dem.crs.name in ax.get_xlabel()
 
 
 def test_existing_folder_refused_and_failure_leaves_nothing(screening, tmp_path, monkeypatch):
