@@ -423,9 +423,7 @@ def run_assessment(
         robust = "" if request.options.get("robustness", True) else ", no robustness re-runs"
         progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
                        f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
-        if opt.kernels_cold():
-            progress.release()  # a wait the user should hear about at once
-            progress.step(opt.KERNELS_COLD_MESSAGE)
+        progress.announce_cold_kernels()
         result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
                                 progress=step, **request.options)
     progress.finish()

@@ -154,9 +154,7 @@ def forecast(
         with progress.held(HOLD_SECONDS):
             progress.stage(f"read the DEM {Path(read.path).name} ({surface.shape[0]} x {surface.shape[1]} cells)")
             progress.stage(f"forecasting {years_f:,.0f} years ({runs} model run(s))")
-            if opt.kernels_cold():
-                progress.release()
-                progress.step(opt.KERNELS_COLD_MESSAGE)
+            progress.announce_cold_kernels()
             result = run_forecast(surface, side_a, side_b, years=years_f, n_runs=runs, seed=seed, uplift=pattern,
                                   diffusivity=DEFAULT_DIFFUSIVITY if diffusivity_f is None else diffusivity_f,
                                   lonlat=lonlat, **options)

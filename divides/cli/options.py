@@ -767,6 +767,12 @@ class Progress:
         else:
             self._write(f"  {bar}{text}\n")
 
+    def announce_cold_kernels(self) -> None:
+        """On a cold kernel cache, show the compile wait at once (held lines first)."""
+        if kernels_cold():
+            self.release()  # a wait the user should hear about at once
+            self.step(KERNELS_COLD_MESSAGE)
+
     def finish(self) -> None:
         """End a redrawn line, if any."""
         if not self.quiet:

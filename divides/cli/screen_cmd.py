@@ -153,9 +153,7 @@ def screen(
         with progress.held(HOLD_SECONDS):
             progress.stage(f"read the DEM {Path(read.path).name} ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells)")
             progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
-            if opt.kernels_cold():
-                progress.release()
-                progress.step(opt.KERNELS_COLD_MESSAGE)
+            progress.announce_cold_kernels()
             result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
                                 workers=workers, scheduler=scheduler, **grids,
                                 **{k: v for k, v in options.items() if v is not None})
