@@ -9,7 +9,7 @@ import numpy as np
 
 from divides.errors import ParameterError
 from divides.profiles import _profile_kernels as _k
-from divides.terrain.dem_error import DemError
+from divides.terrain.dem_error import DemError, prewhiten
 
 __all__ = ["Segmentation", "segment_profile", "gls_fit", "ar1_coefficients"]
 
@@ -99,11 +99,7 @@ def gls_fit(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> tuple[np.ndar
     Returns the coefficients, their unscaled covariance (XᵀΣ⁻¹X)⁻¹ (pseudo-inverse
     when singular) and the whitened residual sum of squares.
     """
-    scale = np.sqrt(1.0 - phi[1:] ** 2)
-    xw = design.astype(np.float64).copy()
-    yw = y.astype(np.float64).copy()
-    xw[1:] = (design[1:] - phi[1:, None] * design[:-1]) / scale[:, None]
-    yw[1:] = (y[1:] - phi[1:] * y[:-1]) / scale
+    xw, yw = prewhiten(design, phi), prewhiten(y, phi)
     coef, *_ = np.linalg.lstsq(xw, yw, rcond=None)
     resid = yw - xw @ coef
     return coef, np.linalg.pinv(xw.T @ xw), float(resid @ resid)

@@ -26,10 +26,24 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["DemError", "DEFAULT_LENGTH_CELLS"]
+__all__ = ["DemError", "DEFAULT_LENGTH_CELLS", "prewhiten"]
 
 #: Default correlation length of DEM error, in cells (see the module docstring).
 DEFAULT_LENGTH_CELLS = 3.0
+
+
+def prewhiten(values: np.ndarray, phi: np.ndarray) -> np.ndarray:
+    """Prais–Winsten transform of the rows of ``values`` for AR(1) coefficients ``phi`` (φ_0 unused).
+
+    ``w_0 = v_0``, ``w_i = (v_i − φ_i v_{i−1}) / sqrt(1 − φ_i²)`` (Prais & Winsten 1954); ``phi``
+    must stay below 1.
+    """
+    v = np.asarray(values, dtype=float)
+    shape = (-1,) + (1,) * (v.ndim - 1)
+    out = v.copy()
+    if v.shape[0] > 1:
+        out[1:] = (v[1:] - phi[1:].reshape(shape) * v[:-1]) / np.sqrt(1.0 - phi[1:] ** 2).reshape(shape)
+    return out
 
 
 @dataclass(frozen=True)
@@ -85,14 +99,8 @@ class DemError:
         Winsten 1954): ``w_0 = v_0``, ``w_i = (v_i − φ_i v_{i−1}) / sqrt(1 − φ_i²)``.
         The whitened residuals of a correct model are independent with variance σ².
         """
-        v = np.asarray(values, dtype=float)
-        phi = self.step_correlation(distance_m)
-        phi = np.minimum(phi, 1.0 - 1e-9)  # coincident samples: keep the transform finite
-        shape = (-1,) + (1,) * (v.ndim - 1)
-        out = v.copy()
-        if v.shape[0] > 1:
-            out[1:] = (v[1:] - phi[1:].reshape(shape) * v[:-1]) / np.sqrt(1.0 - phi[1:] ** 2).reshape(shape)
-        return out
+        phi = np.minimum(self.step_correlation(distance_m), 1.0 - 1e-9)  # coincident samples: keep it finite
+        return prewhiten(values, phi)
 
     def effective_sample_size(self, positions_m: np.ndarray) -> float:
         """Number of independent samples that ``n`` correlated samples are worth.
