@@ -174,6 +174,13 @@ class DivideSamples:
         divide is one measurement on its side."""
         return int(min(np.unique(self.key_a).size, np.unique(self.key_b).size)) if self.size else 0
 
+    def error_effective(self, dem_error: DemError) -> float:
+        """The error model's own effective sample size of these samples (O(n²): computed once)."""
+        cache = self.__dict__.setdefault("_error_effective", {})
+        if dem_error not in cache:
+            cache[dem_error] = dem_error.effective_sample_size(self.xy)
+        return cache[dem_error]
+
     def effective(self, dem_error: DemError | None, error_share: float = 1.0) -> float:
         """Independent samples under the DEM error's correlation, capped by :meth:`distinct`.
 
@@ -188,7 +195,7 @@ class DivideSamples:
             return 0.0
         n_eff = float(n)
         if dem_error is not None and n > 1:
-            total_rho = n * n / dem_error.effective_sample_size(self.xy)  # Σ_ij ρ(d_ij)
+            total_rho = n * n / self.error_effective(dem_error)  # Σ_ij ρ(d_ij)
             share = float(np.clip(error_share, 0.0, 1.0))
             n_eff = n * n / (n + share * (total_rho - n))
         return float(min(n_eff, self.distinct()))
@@ -313,7 +320,7 @@ def compute_contrasts(
         if n_eff >= min_samples:
             block = max(1, int(round(block_points * n / max(points.size, 1))), int(np.ceil(n / max(n_eff, 1.0))))
             # the DEM error's own part of the uncertainty of the mean: σ_d / sqrt(n_eff of the error model)
-            error_n = dem_error.effective_sample_size(sub.xy) if dem_error is not None else float(n)
+            error_n = sub.error_effective(dem_error) if dem_error is not None else float(n)
             lo, hi = interval_of_mean(diff, block=block, n_effective=n_eff, n_boot=n_boot, rng=rng,
                                       floor_se=floor_sd / np.sqrt(max(error_n, 1.0)))
         if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
