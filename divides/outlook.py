@@ -24,19 +24,24 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from affine import Affine
-from scipy import ndimage
 
-from divides.terrain.sides import SideSpec, resolve_sides
-from divides.assess.verdict import CAUTION
 from divides._jsonable import to_jsonable
-from divides.errors import ParameterError, SideError
+from divides.assess.verdict import CAUTION
+from divides.errors import ParameterError
 from divides.io.dem import Dem
 from divides.model.forcing import check_positive, open_edge
-from divides.model.simulate import simulate
-from divides.model.tracking import exchange_displacement
-from divides.terrain.divide_lines import divide_between
-from divides.terrain.routing import FlowGraph, route
+from divides.model.forward_run import (
+    MAX_CELLS,
+    MIN_STEPS,
+    block_mean,
+    ForecastRun,
+    RunSetup,
+    coarsen,
+    prepare,
+    run_model,
+    slopes,
+)
+from divides.terrain.sides import SideSpec
 
 if TYPE_CHECKING:  # pragma: no cover - for type hints only
     from divides.assess.assessment import Assessment
@@ -52,14 +57,10 @@ __all__ = [
     "Forecast",
     "coarsen",
     "forecast",
-    "forward_shift_cells",
 ]
 
 #: Identifies the layout of :meth:`Forecast.to_dict` (``forecast.json``).
 SCHEMA = "divides.forecast/1"
-
-#: Larger DEMs are block-averaged to at most this many cells along each side.
-MAX_CELLS = 300
 
 #: Default hillslope diffusivity (m²/yr): the low end of values usually quoted
 #: for soil-mantled slopes, 1e-3 to 1e-2 m²/yr (from memory), so that channels drive the motion.
@@ -94,87 +95,11 @@ N_FACTOR = 1.5
 #: Water Resour. Res. 33; Martin 2000, ESPL 25).
 D_FACTOR = 10.0
 
-_MIN_STEPS = 20
 _MAX_STEPS = 400
-_TRACK_INTERVALS = 10
 _CALIBRATION_OPTIONS = ("erosion_rate_a_mm_yr", "erosion_rate_b_mm_yr", "erodibility", "knickpoint_age_years")
 
 
 # ------------------------------------------------------------------ results
-@dataclass(frozen=True, eq=False)
-class ForecastRun:
-    """One model run of a forecast.
-
-    Attributes
-    ----------
-    label : str
-        ``"central"`` or ``"member k"``.
-    theta, m, n : float
-        Concavity and the exponents of E = K A^m S^n (m = θ n).
-    erodibility : (float, float)
-        K on side a and side b, in m^(1-2m)/yr (equal unless both sides' erosion rates were given).
-    uplift : (float, float)
-        Uplift rate U (m/yr) applied on side a and side b.
-    times : ndarray
-        Years since the start at which the divide was measured.
-    displacement_m : ndarray
-        Mean displacement of the divide since the start (m), positive into side b.
-    area_a_m2 : ndarray
-        Area of side a through time.
-    final : Dem
-        The surface at the end of the run (model grid).
-    mask_a, mask_b : ndarray of bool
-        The sides at the end.
-    lines : list of DivideLine
-        The divide at the end.
-    n_steps : int
-    dt : float
-        Time step (years).
-    courant : float
-        Knickpoint celerity × dt / cell size at the reference drainage area.
-    diffusivity : float
-        Hillslope diffusivity D (m²/yr).
-    captured : bool
-        A side's outlet came to drain through the other side during the run.
-    """
-
-    label: str
-    theta: float
-    m: float
-    n: float
-    erodibility: tuple[float, float]
-    uplift: tuple[float, float]
-    times: np.ndarray
-    displacement_m: np.ndarray
-    area_a_m2: np.ndarray
-    final: Dem
-    mask_a: np.ndarray
-    mask_b: np.ndarray
-    lines: list
-    n_steps: int
-    dt: float
-    courant: float
-    diffusivity: float = 0.0
-    captured: bool = False
-
-    def summary(self) -> dict:
-        """JSON-ready figures of the run."""
-        return {
-            "label": self.label,
-            "theta": self.theta,
-            "m": self.m,
-            "n": self.n,
-            "erodibility": {"a": self.erodibility[0], "b": self.erodibility[1]},
-            "uplift_m_per_yr": {"a": self.uplift[0], "b": self.uplift[1]},
-            "diffusivity_m2_per_yr": self.diffusivity,
-            "displacement_m": _finite(self.displacement_m[-1]),
-            "n_steps": self.n_steps,
-            "dt_yr": self.dt,
-            "courant": self.courant,
-            "captured": self.captured,
-        }
-
-
 @dataclass(frozen=True, eq=False)
 class Forecast:
     """Where the divide between two sides is forecast to be after ``years``.
@@ -473,98 +398,6 @@ def _finite(v: Any) -> float | None:
     return v if math.isfinite(v) else None
 
 
-# ------------------------------------------------------------------ the grid
-def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
-    """Block-average a DEM so that neither side exceeds ``max_cells`` cells.
-
-    Parameters
-    ----------
-    dem : Dem
-    max_cells : int
-        Largest number of cells along either side of the result.
-
-    Returns
-    -------
-    (Dem, int)
-        The averaged DEM and the block size (1 and ``dem`` itself when it is small enough).
-        The last rows and columns are padded by repeating the edge to fill whole
-        blocks; a block is valid when at least half its cells are.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> small, f = coarsen(Dem.from_array(np.arange(36.0).reshape(6, 6), cell_size=10.0), max_cells=3)
-    >>> f, small.shape, float(small.dx[0]), float(small.elevation[0, 0])
-    (2, (3, 3), 20.0, 3.5)
-    """
-    if not isinstance(max_cells, (int, np.integer)) or isinstance(max_cells, bool) or max_cells < 3:
-        raise ParameterError(f"`max_cells` must be a whole number >= 3; got {max_cells!r}")
-    rows, cols = dem.shape
-    f = max(1, math.ceil(max(rows, cols) / max_cells))
-    if f == 1:
-        return dem, 1
-    out = _block_mean(np.where(dem.valid, dem.elevation, np.nan), f)
-    transform = dem.transform @ Affine.scale(f)
-    if dem.crs is None:
-        cell = (float(np.median(dem.dx)) * f, float(np.median(dem.dy)) * f)
-        small = Dem.from_array(out, cell_size=cell, transform=transform, valid_range=None, path=dem.path)
-    else:
-        small = Dem.from_array(out, transform=transform, crs=dem.crs, valid_range=None, path=dem.path)
-    return small, f
-
-
-def _block_mean(z: np.ndarray, f: int) -> np.ndarray:
-    """Mean of each f x f block of ``z`` (edges padded by repetition); NaN where fewer than half are finite."""
-    z = np.asarray(z, dtype=np.float64)
-    if f == 1:
-        return z.copy()
-    rows, cols = z.shape
-    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
-    blocks = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge").reshape(rr // f, f, cc // f, f)
-    ok = np.isfinite(blocks)
-    count = ok.sum(axis=(1, 3))
-    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
-    out = np.full(count.shape, np.nan)
-    keep = 2 * count >= f * f
-    out[keep] = total[keep] / count[keep]
-    return out
-
-
-def _upstream(flow: FlowGraph, seeds: np.ndarray) -> np.ndarray:
-    """Cells draining through any seed (each seed's upstream cells are a run of the order)."""
-    mask = np.zeros(flow.receivers.size, dtype=bool)
-    pos, count = flow.order_position, flow.upstream_count
-    for s in np.unique(seeds):
-        p = int(pos[s])
-        if p >= 0:
-            mask[flow.order[p: p + int(count[s])]] = True
-    return mask.reshape(flow.shape)
-
-
-def _model_specs(assessment: Assessment, factor: int, grid: Dem) -> tuple[SideSpec, SideSpec, float]:
-    """Side SPECs on the model grid: edges as given, points at their snapped cells."""
-    specs = []
-    for side in (assessment.sides.a, assessment.sides.b):
-        if side.spec.edge is not None:
-            specs.append(side.spec)
-        else:
-            pts = tuple((s["x_snapped"], s["y_snapped"]) for s in side.snapped)
-            specs.append(SideSpec(text=side.spec.text, points=pts, lonlat=False))
-    # On the DEM's own grid a snapped cell is kept exactly; on a coarser one it
-    # moves to the largest-area cell within one and a half model cells.
-    radius = 0.0 if factor == 1 else 1.5 * float(max(np.max(grid.dx), np.max(grid.dy)))
-    return specs[0], specs[1], radius
-
-
-def _nearest_side(mask_a: np.ndarray, mask_b: np.ndarray) -> np.ndarray:
-    """True where the nearest cell of either side belongs to side a (fields split by side)."""
-    either = mask_a | mask_b
-    if either.all():
-        return mask_a.copy()
-    _, (ri, ci) = ndimage.distance_transform_edt(~either, return_indices=True)
-    return mask_a[ri, ci]
-
-
 # ------------------------------------------------------------------ parameters
 @dataclass(frozen=True)
 class _Calibrated:
@@ -613,13 +446,13 @@ class _Calibrated:
         return k, k
 
 
-def _calibrated(assessment: Assessment, setup: _Setup) -> _Calibrated:
+def _calibrated(assessment: Assessment, setup: RunSetup) -> _Calibrated:
     cal = assessment.calibration
     if not cal.available:
         raise ParameterError(NEEDS_CALIBRATION)
     side = np.where(setup.mask_a.ravel(), 1, np.where(setup.mask_b.ravel(), 2, 0))
     common = dict(source=cal.source, theta0=float(assessment.profiles.theta), n=float(assessment.config.n),
-                  area=np.asarray(setup.flow.area, dtype=np.float64).ravel(), slope=_slopes(setup.flow), side=side)
+                  area=np.asarray(setup.flow.area, dtype=np.float64).ravel(), slope=slopes(setup.flow), side=side)
     if cal.k is None:  # both sides' rates given directly
         rates = (float(np.nanmedian(cal.erosion_a)), float(np.nanmedian(cal.erosion_b)))
         return _Calibrated(**common, rates=rates, k0=None, spread=None)
@@ -666,131 +499,6 @@ def _spread(value: float, factor: float, q: float) -> float:
 
 
 # ------------------------------------------------------------------ one run
-@dataclass(frozen=True, eq=False)
-class _Setup:
-    """Everything a run shares: the grid, the sides, the edges and the reference channels."""
-
-    grid: Dem
-    flow: FlowGraph
-    seeds_a: np.ndarray
-    seeds_b: np.ndarray
-    mask_a: np.ndarray
-    mask_b: np.ndarray
-    region_a: np.ndarray
-    edges: dict
-    closed: tuple
-    channel_area_m2: float
-    length_m: float
-    present: list
-
-
-def _slopes(flow: FlowGraph) -> np.ndarray:
-    """Gradient to the receiver on the conditioned surface (0 at outlets), flat."""
-    z = np.asarray(flow.conditioned.surface, dtype=np.float64).ravel()
-    dist = np.asarray(flow.distance, dtype=np.float64).ravel()
-    drop = z - z[flow.receivers]
-    out = np.zeros(z.size)
-    ok = (dist > 0) & np.isfinite(drop)
-    out[ok] = drop[ok] / dist[ok]
-    return out
-
-
-def _channel_cells(setup: _Setup, mask: np.ndarray) -> np.ndarray:
-    """Flat indices of a side's channel cells on the model grid (at least three)."""
-    area = setup.flow.area.ravel()
-    slope = _slopes(setup.flow)
-    side = mask.ravel() & (slope > 0)
-    cells = np.flatnonzero(side & (area >= setup.channel_area_m2))
-    if cells.size < 3:  # grid too coarse for the threshold: the side's largest tenth
-        cand = np.flatnonzero(side)
-        if cand.size == 0:
-            return cand
-        cells = cand[area[cand] >= np.quantile(area[cand], 0.9)]
-    return cells
-
-
-def _balance_uplift(setup: _Setup, k_field: np.ndarray, m: float, n: float) -> tuple[float, float, float, float]:
-    """Median erosion rate K A^m S^n of each side's channels on the model grid, their median slope and area."""
-    area = setup.flow.area.ravel()
-    slope = _slopes(setup.flow)
-    k_flat = np.broadcast_to(k_field, setup.grid.shape).ravel()
-    rates, slopes = [], []
-    for mask in (setup.mask_a, setup.mask_b):
-        cells = _channel_cells(setup, mask)
-        if cells.size == 0:
-            raise SideError("a side has no cell that drains downhill on the model grid; choose larger sides")
-        rates.append(float(np.median(k_flat[cells] * area[cells] ** m * slope[cells] ** n)))
-        slopes.append(slope[cells])
-    return rates[0], rates[1], float(np.median(np.concatenate(slopes))), setup.channel_area_m2
-
-
-def _run(setup: _Setup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
-         uplift_mode: str | np.ndarray, diffusivity: float, max_steps: int) -> ForecastRun:
-    m = theta * n
-    k_field: Any = k[0] if k[0] == k[1] else np.where(setup.region_a, k[0], k[1])
-    u_a, u_b, s_ref, a_ref = _balance_uplift(setup, np.asarray(k_field, dtype=np.float64), m, n)
-    if isinstance(uplift_mode, np.ndarray):  # a raster given: used as is
-        u_field: Any = uplift_mode
-        u_a, u_b = (float(np.median(uplift_mode[mask])) for mask in (setup.mask_a, setup.mask_b))
-    elif uplift_mode == "uniform":
-        u_a = u_b = 0.5 * (u_a + u_b)
-        u_field = u_a
-    else:
-        u_field = np.where(setup.region_a, u_a, u_b)
-    # Time step: a knickpoint at the reference drainage area crosses about one cell per step
-    # (celerity n K A^m S^(n-1); Royden & Perron 2013), within [_MIN_STEPS, max_steps] steps.
-    cell = float(min(np.min(setup.grid.dx), np.min(setup.grid.dy)))
-    celerity = n * max(k) * a_ref ** m * max(s_ref, 1e-12) ** (n - 1.0)
-    n_steps = int(min(max(math.ceil(years * celerity / cell - 1e-9), _MIN_STEPS), max_steps))
-    dt = years / n_steps
-    times = np.linspace(0.0, years, min(_TRACK_INTERVALS, n_steps) + 1)
-    result = simulate(setup.grid, duration=years, dt=dt, uplift=u_field, erodibility=k_field, m=m, n=n,
-                      diffusivity=diffusivity, edges=setup.edges, snapshot_times=times)
-    disp, areas = [], []
-    cell_area = setup.grid.cell_area_grid()
-    captured = False
-    mask_a, mask_b = setup.mask_a, setup.mask_b
-    for i, snap in enumerate(result.snapshots):
-        flow = setup.flow if i == 0 else route(snap, closed_edges=setup.closed)
-        mask_a, mask_b = _upstream(flow, setup.seeds_a), _upstream(flow, setup.seeds_b)
-        both = mask_a & mask_b
-        if both.any():  # one side's outlet now drains through the other: a capture
-            captured = True
-            mask_a, mask_b = mask_a & ~both, mask_b & ~both
-        disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present))
-        areas.append(float(np.sum(cell_area[mask_a])))
-    try:
-        lines = divide_between(result.final, mask_a, mask_b).lines
-    except SideError:  # the sides no longer touch
-        lines = []
-    return ForecastRun(
-        label=label, theta=theta, m=m, n=n, erodibility=(float(k[0]), float(k[1])), uplift=(u_a, u_b),
-        times=np.asarray(result.times), displacement_m=np.asarray(disp), area_a_m2=np.asarray(areas),
-        final=result.final, mask_a=mask_a, mask_b=mask_b,
-        lines=lines, n_steps=result.n_steps, dt=dt, courant=celerity * dt / cell, diffusivity=diffusivity,
-        captured=captured,
-    )
-
-
-def _setup(assessment: Assessment, grid: Dem, factor: int) -> _Setup:
-    config = assessment.config
-    closed = tuple(config.closed_edges)
-    flow = route(grid, closed_edges=closed)
-    spec_a, spec_b, radius = _model_specs(assessment, factor, grid)
-    sides = resolve_sides(flow, spec_a, spec_b, snap_radius_m=radius)
-    mask_a, mask_b = sides.a.mask, sides.b.mask
-    divide = divide_between(grid, mask_a, mask_b)
-    if not divide.lines:
-        raise SideError("on the model grid the two sides touch only at isolated cells: no divide to forecast")
-    threshold = float(assessment.channels.threshold.value_m2)
-    return _Setup(
-        grid=grid, flow=flow, seeds_a=sides.a.seeds, seeds_b=sides.b.seeds, mask_a=mask_a, mask_b=mask_b,
-        region_a=_nearest_side(mask_a, mask_b), edges={e: "closed" for e in closed}, closed=closed,
-        channel_area_m2=max(threshold, 2.0 * float(np.max(grid.cell_area))),
-        length_m=divide.length_m, present=divide.lines,
-    )
-
-
 # ------------------------------------------------------------------ entry point
 def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity: Any, max_steps: Any) -> float:
     years_f = check_positive(years, "years", "years")
@@ -808,8 +516,8 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
         d = math.nan
     if not (math.isfinite(d) and d >= 0):
         raise ParameterError(f"`diffusivity` must be a number >= 0 (m²/yr); got {diffusivity!r}")
-    if not isinstance(max_steps, (int, np.integer)) or isinstance(max_steps, bool) or max_steps < _MIN_STEPS:
-        raise ParameterError(f"`max_steps` must be a whole number >= {_MIN_STEPS}; got {max_steps!r}")
+    if not isinstance(max_steps, (int, np.integer)) or isinstance(max_steps, bool) or max_steps < MIN_STEPS:
+        raise ParameterError(f"`max_steps` must be a whole number >= {MIN_STEPS}; got {max_steps!r}")
     return years_f
 
 
@@ -848,7 +556,7 @@ def _uplift_grid(uplift: str | np.ndarray, dem: Dem, factor: int) -> str | np.nd
     field = np.asarray(uplift, dtype=np.float64)
     if not np.all(np.isfinite(field[dem.valid])):
         raise ParameterError("the uplift raster holds non-finite values where the DEM is valid; give m/yr everywhere")
-    small = _block_mean(np.where(dem.valid, field, np.nan), factor)
+    small = block_mean(np.where(dem.valid, field, np.nan), factor)
     return np.where(np.isfinite(small), small, 0.0)
 
 
@@ -992,7 +700,8 @@ def forecast(
         raise ParameterError(NEEDS_CALIBRATION)
     theta_lo, theta_hi, theta_basis = _theta_interval(assessment)
     grid, factor = coarsen(dem, max_cells=max_cells)
-    setup = _setup(assessment, grid, factor)
+    setup = prepare(grid, assessment.sides, factor=factor, closed_edges=tuple(assessment.config.closed_edges),
+                    channel_area_m2=float(assessment.channels.threshold.value_m2))
     if lowering:
         setup = dataclasses.replace(setup, edges={**setup.edges, **{e: open_edge(lowering_rate=r)
                                                                    for e, r in lowering.items()}})
@@ -1000,13 +709,13 @@ def forecast(
 
     common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps))
     d0 = float(diffusivity)
-    central = _run(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
+    central = run_model(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
                    k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
     members = []
     for i, (q_k, q_theta, q_n, q_d) in enumerate(_design(int(n_runs), int(seed))):
         theta = theta_lo + (theta_hi - theta_lo) * q_theta
         n_i = _spread(calibrated.n, N_FACTOR, q_n)
-        members.append(_run(setup, label=f"member {i + 1}", theta=theta, n=n_i,
+        members.append(run_model(setup, label=f"member {i + 1}", theta=theta, n=n_i,
                             k=calibrated.erodibility(theta, q_k, n_i), diffusivity=_spread(d0, D_FACTOR, q_d),
                             **common))
 
@@ -1053,7 +762,7 @@ def forecast(
 
 
 def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list, calibrated: _Calibrated,
-           theta_basis: str, uplift: str | np.ndarray, setup: _Setup) -> list[str]:
+           theta_basis: str, uplift: str | np.ndarray, setup: RunSetup) -> list[str]:
     notes = []
     if factor > 1:
         notes.append(f"For speed the DEM ({dem.shape[0]} x {dem.shape[1]} cells) was block-averaged by {factor} x "
@@ -1082,48 +791,3 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
         notes.append("Open DEM edges hold their present elevations; cells near them are fixed at base level.")
     return notes
 
-
-#: Horizon of :func:`forward_shift_cells`, in response times of the landscape.
-FORWARD_HORIZON_TAU = 0.3
-
-
-def forward_shift_cells(assessment: Assessment, *, horizon_tau: float = FORWARD_HORIZON_TAU,
-                        max_steps: int = 60) -> float:
-    """Evidence from a short forward run: the divide's shift over a fraction of the response time, in cells.
-
-    One central run of the forward model from the assessed DEM, with K unknown: K = 1 is
-    used and uplift balances the landscape ("uniform", the mean of both sides' channel
-    erosion rates), so uplift scales with K and E = K (A^m S^n − c) makes time scale as
-    1/K whatever n. With no hillslope diffusion the shift over a horizon given in
-    response times therefore does not depend on K (Royden & Perron 2013: K only
-    rescales time). The response time is relief / U (the landscape's relief over the
-    balancing uplift rate; Whipple 2001), the horizon ``horizon_tau`` of it.
-
-    Parameters
-    ----------
-    assessment : Assessment
-        An assessment of the DEM (its θ, n, sides, closed edges and channel threshold are used).
-    horizon_tau : float
-        Horizon in response times.
-    max_steps : int
-        Most time steps (>= 20): the run is a cheap line of evidence, not a forecast.
-
-    Returns
-    -------
-    float
-        Mean displacement of the divide over the horizon divided by the model cell size;
-        positive into side b. NaN when the divide left the grid.
-    """
-    grid, factor = coarsen(assessment.dem)
-    setup = _setup(assessment, grid, factor)
-    theta, n = float(assessment.profiles.theta), float(assessment.config.n)
-    u_a, u_b, _, _ = _balance_uplift(setup, np.asarray(1.0), theta * n, n)
-    z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
-    relief = float(np.nanmax(z) - np.nanmin(z))
-    uplift = 0.5 * (u_a + u_b)
-    if not (relief > 0 and uplift > 0):
-        return 0.0
-    run = _run(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=horizon_tau * relief / uplift,
-               uplift_mode="uniform", diffusivity=0.0, max_steps=int(max_steps))
-    cell = float(min(np.min(grid.dx), np.min(grid.dy)))
-    return float(run.displacement_m[-1]) / cell
