@@ -28,10 +28,19 @@ from divides.assess.rate import (
     near_divide_erosion,
     step_celerity,
 )
-from divides.assess.verdict import CAUTION, INSUFFICIENT_HELP, Verdict, decide, decision_model, right_share
+from divides.assess.verdict import (
+    CAUTION,
+    FORWARD_NOISE_CELLS,
+    INSUFFICIENT_HELP,
+    Verdict,
+    decide,
+    decision_model,
+    right_share,
+)
 from divides.config import AssessConfig
-from divides.errors import SideError
+from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
+from divides.model.forward_run import FORWARD_HORIZON_TAU, forward_shift_cells
 from divides.profiles.analysis import ProfileAnalysis, analyse_profiles
 from divides.profiles.chi import ChiWeights, chi_weights
 from divides.terrain.channels import Channels, extract_channels
@@ -162,6 +171,13 @@ class Assessment:
                 "min_confidence": self.verdict.min_confidence,
                 "rate_mm_per_yr": rate,
                 "basis": self.verdict.basis,
+                "near_divide_probabilities": self.verdict.near_divide_probabilities,
+                "forward_run": {
+                    "shift_cells": None if self.verdict.forward_shift_cells is None
+                    else round(self.verdict.forward_shift_cells, 3),
+                    "horizon_response_times": FORWARD_HORIZON_TAU,
+                    "note": "; ".join(self.verdict.notes),
+                },
                 "long_run_tendency": self.verdict.long_run,
                 "rate_flags": ([self.rate_withheld] if self.rate_withheld else [])
                 + ([] if self.rate is None else self.rate["flags"]),
@@ -198,10 +214,12 @@ class _Core:
         """Channel elevation is read at the channel threshold (it then mirrors hillslope relief)."""
         return bool(np.isclose(self.reference_area_m2, self.channels.threshold.value_m2))
 
-    def decide(self, robustness_share: float | None = None, min_confidence: float = 0.8) -> Verdict:
+    def decide(self, config: AssessConfig, robustness_share: float | None = None,
+               forward_shift: float | None = None) -> Verdict:
         """The verdict of this pass (see :func:`divides.assess.verdict.decide`)."""
         return decide(self.contrasts, robustness_share=robustness_share, same_channel=self.same_channel,
-                      min_confidence=min_confidence)
+                      min_confidence=config.min_confidence, forward_shift=forward_shift,
+                      forward_in_decision=config.forward_in_decision)
 
 
 def _core(
@@ -266,15 +284,16 @@ _THETA_RANGE = (0.05, 2.0)
 _CAN_CHANGE = {"noise": "all", "area": "all", "theta": "chi"}
 
 
-def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, step=None) -> tuple[list[dict], float]:
+def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, forward_shift: float | None,
+                step=None) -> tuple[list[dict], float]:
     """Re-run on perturbed inputs; return each run and the share keeping the main verdict.
 
     Only re-runs that can change the features the verdict rests on count toward the share:
     θ changes χ only, so θ re-runs are made only when the decision model reads χ
     (:data:`_CAN_CHANGE`). The share is reported beside the calibrated confidence, not
-    folded into it.
+    folded into it. The forward run is not repeated: every re-run reads the main one's shift.
     """
-    main_verdict = core.decide(min_confidence=config.min_confidence)
+    main_verdict = core.decide(config, forward_shift=forward_shift)
     main = main_verdict.moves_toward
     theta = core.profiles.theta
     est = core.profiles.concavity.get("both")
@@ -309,7 +328,7 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
             run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
                         channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
                         flow=flow)
-            verdict = run.decide(min_confidence=config.min_confidence).moves_toward
+            verdict = run.decide(config, forward_shift=forward_shift).moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"
         what = next(_CAN_CHANGE[k] for k in change)
@@ -516,6 +535,24 @@ def _given(config: AssessConfig | None, names: dict) -> str:
     return ""
 
 
+def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
+    """What the forward run said, and the near-divide measures alone, in words."""
+    shift = verdict.forward_shift_cells
+    if shift is None:
+        return [f"No forward run: {verdict.notes[0].removeprefix('forward run not made: ')}."] if verdict.notes else []
+    where = (f"{abs(shift):.2f} model cells toward {names['b' if shift > 0 else 'a']}"
+             if abs(shift) >= FORWARD_NOISE_CELLS else f"less than {FORWARD_NOISE_CELLS:g} model cell (no direction)")
+    out = [f"Forward run (the model run from this DEM for {FORWARD_HORIZON_TAU:g} response times, erodibility "
+           f"unknown, uplift balancing the present landscape): the divide moved {where}."]
+    near = verdict.near_divide_probabilities
+    if near is None:
+        out.append("The near-divide measures have too few independent samples: the forward run speaks alone.")
+    else:
+        out.append(f"Near-divide measures alone: toward {names['a']} {near['a']:.2f}, toward {names['b']} "
+                   f"{near['b']:.2f}, stable {near['stable']:.2f}.")
+    return out
+
+
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
           equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False,
           config: AssessConfig | None = None, withheld: str | None = None) -> str:
@@ -541,6 +578,9 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
     elif verdict.moves_toward == "stable":
         lines.append(f"The divide appears stable: the near-divide measures are balanced across it "
                      f"(probability {verdict.confidence:.2f}).")
+    elif verdict.reason == "lines disagree":
+        lines.append("Undetermined: the near-divide measures and the forward run point opposite ways (see below); "
+                     "the two lines of evidence disagree, so no direction is given.")
     elif verdict.reason == "insufficient data":
         lines.append("Undetermined: insufficient data. " + INSUFFICIENT_HELP)
     elif verdict.reason == "chi only":
@@ -552,8 +592,10 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                      "the evidence is too weak or points both ways.")
     if odds:
         lines.append(odds)
+    lines += _forward_lines(verdict, names)
     if verdict.moves_toward in ("a", "b", "stable"):
-        right = right_share(verdict.confidence)
+        read_forward = bool(getattr(config, "forward_in_decision", False)) and verdict.forward_shift_cells is not None
+        right = right_share(verdict.confidence, forward=read_forward)
         if right is not None:
             lines.append(f"In model landscapes like this one, verdicts at this confidence were right "
                          f"{right[0]:.0%} of the time ({right[1]} held-out benchmark landscapes; docs/validation.md). "
@@ -608,6 +650,23 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
     return "\n".join(lines)
 
 
+def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> tuple[float | None, str]:
+    """The forward run's shift of the divide (cells, into b) and a note when it was not made."""
+    if not config.forward_run:
+        return None, "forward run not made (switched off)"
+    if progress is not None:
+        progress("forward run of the model from the DEM (0.3 response times)")
+    try:
+        shift = forward_shift_cells(dem, core.sides, theta=float(core.profiles.theta), n=float(config.n),
+                                    closed_edges=tuple(config.closed_edges),
+                                    channel_area_m2=float(core.channels.threshold.value_m2))
+    except (SideError, ParameterError) as exc:  # e.g. the sides do not touch on the model grid
+        return None, f"forward run not made: {exc}"
+    if not np.isfinite(shift):
+        return None, "forward run not made: the divide left the model grid"
+    return float(shift), ""
+
+
 def assess(
     dem: Dem,
     side_a: str,
@@ -651,13 +710,15 @@ def assess(
 
     core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
                  channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100, step=progress)
+    forward_shift, forward_note = _forward_evidence(dem, core, config, progress)
     runs, share = ([], None)
     if config.robustness:
         runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn,
-                                  step=progress)
+                                  forward_shift=forward_shift, step=progress)
     if progress is not None:
         progress("verdict, rates, knickpoint arrival and the equilibrium divide")
-    verdict = core.decide(share, config.min_confidence)
+    verdict = dataclasses.replace(core.decide(config, share, forward_shift),
+                                  notes=[forward_note] if forward_note else [])
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
     withheld = rate.get("withheld") if rate is not None else None
     rate = None if withheld else rate

@@ -25,6 +25,14 @@ unsigned magnitudes of the near-divide evidence, ``abs_net`` (|Σ z|, evidence
 that agrees on a direction) and ``abs_mean`` (mean |z|, any asymmetry at all):
 a linear model needs them to tell "no difference" (stable) from "a difference
 of unknown sign".
+
+The forward run (:func:`divides.model.forward_run.forward_shift_cells`: the divide's
+shift in cells over 0.3 response times of a model run from the DEM, K unknown) adds
+``fwd_shift`` (signed) and ``abs_fwd``, both log(1 + |shift| / 0.3 cell): 0.3 cell is
+the shift of a divide moving at the benchmark's stability threshold, one cell per
+response time, over the same 0.3 τ, so the compression starts where motion starts to
+count. ``near_missing`` is 1 when no near-divide metric has enough independent
+samples (its features are then 0 and the forward run speaks alone).
 """
 
 from __future__ import annotations
@@ -36,7 +44,8 @@ import numpy as np
 
 from divides.assess.contrasts import NEAR_DIVIDE, Contrast
 
-__all__ = ["CONSISTENCY_CAP", "FEATURES", "NEAR_DIVIDE", "features", "orientation", "sufficient"]
+__all__ = ["CONSISTENCY_CAP", "FEATURES", "FORWARD_FEATURES", "FORWARD_SCALE_CELLS", "NEAR_DIVIDE", "features",
+           "forward_features", "orientation", "sufficient"]
 
 #: Consistency beyond this adds nothing (a difference 5 × its spread holds along the whole divide).
 CONSISTENCY_CAP = 5.0
@@ -46,6 +55,12 @@ FEATURES: tuple[str, ...] = (
     *(f"z_{m}" for m in NEAR_DIVIDE), *(f"cons_{m}" for m in NEAR_DIVIDE), "z_chi", "log_n_eff", "balanced",
     "abs_net", "abs_mean",
 )
+
+#: Names of the forward-run features (:func:`forward_features`).
+FORWARD_FEATURES: tuple[str, ...] = ("fwd_shift", "abs_fwd", "near_missing")
+
+#: The forward run's shift at the stability threshold: 1 cell per response time over 0.3 τ.
+FORWARD_SCALE_CELLS = 0.3
 
 
 def orientation(contrast: Contrast) -> float:
@@ -115,3 +130,31 @@ def features(contrasts: Iterable[Contrast]) -> dict[str, float]:
     out["abs_net"] = float(abs(sum(signed)))
     out["abs_mean"] = float(np.mean(np.abs(signed)))
     return out
+
+
+def forward_features(shift_cells: float, near_sufficient: bool) -> dict[str, float]:
+    """The forward run's features (see the module docstring), by name.
+
+    Parameters
+    ----------
+    shift_cells : float
+        The divide's shift over the forward run's horizon, in model cells, positive into b.
+    near_sufficient : bool
+        Whether any near-divide metric has enough independent samples (:func:`sufficient`).
+
+    Returns
+    -------
+    dict
+        ``fwd_shift``, ``abs_fwd`` and ``near_missing``.
+
+    Examples
+    --------
+    >>> f = forward_features(-0.3, True)  # at the threshold toward a: -log(2)
+    >>> round(f["fwd_shift"], 4), round(f["abs_fwd"], 4), f["near_missing"]
+    (-0.6931, 0.6931, 0.0)
+    """
+    v = float(shift_cells)
+    if not math.isfinite(v):
+        raise ValueError(f"the forward run's shift must be finite; got {shift_cells!r}")
+    mag = math.log1p(abs(v) / FORWARD_SCALE_CELLS)
+    return {"fwd_shift": math.copysign(mag, v), "abs_fwd": mag, "near_missing": 0.0 if near_sufficient else 1.0}

@@ -142,6 +142,17 @@ NoRobustnessOption = Annotated[
     bool,
     typer.Option("--no-robustness", help="Skip the re-runs with a perturbed DEM, θ and channel area (faster)."),
 ]
+NoForwardRunOption = Annotated[
+    bool,
+    typer.Option("--no-forward-run", help="Decide from the near-divide measures alone, without the short forward "
+                                          "run of the model from the DEM (a few seconds faster)."),
+]
+ForwardInDecisionOption = Annotated[
+    bool,
+    typer.Option("--forward-in-decision", help="Let the calibrated decision read the forward run (it may then give "
+                                               "a direction where near-divide samples are too few; more right and "
+                                               "more wrong directions on the benchmark, docs/validation.md)."),
+]
 MinConfidenceOption = Annotated[
     str | None,
     typer.Option("--min-confidence", metavar="P", show_default=False,
@@ -200,6 +211,8 @@ def assess_request(
     uplift: str | None = None,
     snap_radius: str | None = None,
     robustness: bool = True,
+    forward_run: bool = True,
+    forward_in_decision: bool = False,
     seed: int = 0,
     route: opt.RouteOptions | None = None,
     name_a: str | None = None,
@@ -224,6 +237,9 @@ def assess_request(
     names = {"name_a": opt.parse_name(name_a, option="--name-a"), "name_b": opt.parse_name(name_b, option="--name-b")}
     if names["name_a"] is not None and names["name_a"].lower() == (names["name_b"] or "").lower():
         raise ParameterError(f"--name-a and --name-b are the same ({name_a!r}); give the two sides different names")
+    if forward_in_decision and not forward_run:
+        raise ParameterError("--forward-in-decision needs the forward run; drop --no-forward-run or "
+                             "--forward-in-decision")
     if spec_a.text.lower() == spec_b.text.lower():
         raise ParameterError(f"--side-a and --side-b are the same ({side_a!r}); give the two different sides of the divide")
     errors = errors or {}
@@ -260,6 +276,8 @@ def assess_request(
         "knickpoint_age_error_years": split["--knickpoint-age"][1],
         "snap_radius_m": _positive(snap_radius, "--snap-radius", "m"),
         "robustness": robustness,
+        "forward_run": forward_run,
+        "forward_in_decision": forward_in_decision,
         "seed": seed,
         **names,
     }
@@ -476,6 +494,8 @@ def assess(
     snap_radius: SnapRadiusOption = None,
     closed_edges: opt.ClosedEdgesOption = None,
     no_robustness: NoRobustnessOption = False,
+    no_forward_run: NoForwardRunOption = False,
+    forward_in_decision: ForwardInDecisionOption = False,
     min_confidence: MinConfidenceOption = None,
     seed: opt.SeedOption = 0,
     out: opt.OutOption = None,
@@ -516,7 +536,9 @@ def assess(
         errors={"--erosion-rate-a": erosion_rate_a_error, "--erosion-rate-b": erosion_rate_b_error,
                 "--erodibility-k": erodibility_k_error, "--knickpoint-age": knickpoint_age_error},
         runoff=runoff, erodibility=erodibility, uplift=uplift, snap_radius=snap_radius,
-        robustness=not no_robustness, seed=seed, route=route, name_a=name_a, name_b=name_b,
+        robustness=not no_robustness, forward_run=not no_forward_run,
+        forward_in_decision=forward_in_decision, seed=seed, route=route, name_a=name_a,
+        name_b=name_b,
         min_confidence=min_confidence,
         raster_aliases={"--runoff": runoff_alias, "--erodibility": erodibility_alias, "--uplift": uplift_alias},
     )

@@ -193,10 +193,16 @@ def _key_numbers(result: Assessment, s: dict) -> str:
     items = [("Verdict", _e(direction_phrase(result))),
              ("Aggressor", _side_span(result, v["aggressor"]) if v["aggressor"] else "none"),
              ("Basis", _e({"near-divide": "near-divide measures (present motion)",
+                           "near-divide and forward run": "near-divide measures and a forward run of the model",
+                           "forward run": "a forward run of the model (too few near-divide samples)",
                            "chi": "χ only (long-run tendency)", "none": "no significant contrast",
                            "conflict": "conflicting measures", "insufficient data": "insufficient data",
                            "undetermined": "no outcome reached the confidence threshold"}.get(
                                v.get("basis"), v.get("basis"))))]
+    fwd = (v.get("forward_run") or {}).get("shift_cells")
+    items.append(("Forward run", _e("not made" if fwd is None else
+                                    f"{abs(fwd):.2f} model cells toward side {'b' if fwd > 0 else 'a'} in "
+                                    f"{v['forward_run']['horizon_response_times']:g} response times")))
     rate = v.get("rate_mm_per_yr")
     items.append(("Migration rate", _e(f"{rate['best']:.2g} mm/yr ({rate['low']:.2g}–{rate['high']:.2g})")
                   if rate and rate.get("best") is not None else "not computed"))

@@ -27,6 +27,8 @@ PARAMETER_LABELS: dict[str, tuple[str, str]] = {
     "n_bootstrap": ("Bootstrap resamples per measure", ""),
     "robustness": ("Re-runs with perturbed DEM, θ and threshold", ""),
     "n_noise_runs": ("Re-runs with DEM noise", ""),
+    "forward_run": ("Forward run of the model as evidence", ""),
+    "forward_in_decision": ("Decision reads the forward run", ""),
     "erosion_rate_a_mm_yr": ("Erosion rate given for side a", "mm/yr"),
     "erosion_rate_b_mm_yr": ("Erosion rate given for side b", "mm/yr"),
     "erodibility": ("Erodibility K given", "m^(1−2θ)/yr (n = 1)"),

@@ -275,3 +275,43 @@ def test_mirrored_channel_elevation_and_hillslope_relief_pass_or_fail_together()
                                                        mirrored=True)}
     assert together["channel_elevation"].moves_toward == together["hillslope_relief"].moves_toward == "none"
     assert together["hillslope_relief"].why_none.startswith("too small")
+
+
+def test_verdict_with_the_forward_run():
+    # Issue 12 item 4: the forward run's shift is a line of evidence beside the near-divide measures.
+    from divides.assess.verdict import FORWARD_NOISE_CELLS, decision_model
+
+    strong_a = [_toward(m, "a", 8.0) for m in _NEAR]
+    near_alone = decide(strong_a)
+    assert near_alone.moves_toward == "a" and near_alone.forward_shift_cells is None
+    # by default the forward run reports and can veto, but the near-divide model decides
+    checked = decide(strong_a, forward_shift=-2.0)
+    assert (checked.moves_toward, checked.basis, checked.forward_shift_cells) == ("a", "near-divide", -2.0)
+    assert checked.probabilities == near_alone.probabilities
+    assert checked.near_divide_probabilities == pytest.approx(near_alone.probabilities, abs=1e-3)
+    # strongly disagreeing lines lean to undetermined (rule 5 of decide): the near-divide measures call a
+    # at >= min_confidence while the forward run moves the divide a whole cell the other way
+    assert near_alone.probabilities["a"] >= 0.8
+    for in_model in (False, True):
+        clash = decide(strong_a, forward_shift=+1.0, forward_in_decision=in_model)
+        assert (clash.moves_toward, clash.reason) == ("undetermined", "lines disagree")
+    # a forward shift below FORWARD_NOISE_CELLS points nowhere, so it cannot disagree
+    assert decide(strong_a, forward_shift=0.5 * FORWARD_NOISE_CELLS).reason != "lines disagree"
+    # the model that reads the forward run: agreeing lines give a direction from both
+    both = decide(strong_a, forward_shift=-2.0, forward_in_decision=True)
+    assert (both.moves_toward, both.basis) == ("a", "near-divide and forward run")
+    # mirror image (a and b swapped, shift negated): P(a) and P(b) swap (no preferred side)
+    mirror = decide([_toward(m, "b", 8.0) for m in _NEAR], forward_shift=+2.0, forward_in_decision=True)
+    assert mirror.probabilities["b"] == pytest.approx(both.probabilities["a"], abs=0.01)
+    # too few near-divide samples: insufficient data, unless the decision reads the forward run,
+    # which then speaks alone through the same calibrated model
+    few = [_c(m, "none", why=INSUFFICIENT) for m in _NEAR]
+    assert decide(few).reason == decide(few, forward_shift=-3.0).reason == "insufficient data"
+    alone = decide(few, forward_shift=-3.0, forward_in_decision=True)
+    assert alone.probabilities is not None and alone.near_divide_probabilities is None
+    assert alone.moves_toward in ("a", "undetermined")
+    if alone.moves_toward == "a":
+        assert alone.basis == "forward run"
+    # the model that reads the forward run is the one packaged for it (docs/validation.md)
+    assert {"fwd_shift", "near_missing"} <= set(decision_model(forward=True).features)
+    assert "fwd_shift" not in decision_model().features
