@@ -1,7 +1,8 @@
 """Fit the verdict's decision model on the benchmark's training part and judge it on the held-out part (by hand).
 
     python tests/benchmarks/fit_verdict.py --n 300 --seed 0 --grid 120 260 \\
-        --contrasts /work/benchrun/contrasts.jsonl [--write] [--png docs/validation_reliability.png]
+        --contrasts /work/benchrun/contrasts.jsonl --forward /work/benchrun/forward.jsonl \\
+        [--write] [--png docs/validation_reliability.png]
 
 1. Every benchmark landscape (``divides.model.benchmark``; records read from the
    cache, built if missing) is assessed with robustness re-runs off and 200
@@ -13,6 +14,12 @@
    cross-validation (folds by landscape) on the out-of-fold log loss.
 3. The chosen model is refitted on the whole training part; its held-out
    reliability bins are stored with it (``--write``: divides/assess/verdict_model.json).
+   With ``--forward`` (JSON lines of the forward run's shift per landscape, made by
+   :func:`divides.model.forward_run.forward_shift_cells` and cached like the contrasts)
+   a second model that also reads the forward run is selected and fitted the same way,
+   on every training landscape that has a forward run (near-divide features 0 and
+   ``near_missing`` 1 where the near-divide samples are too few), and judged with the
+   full rule of :func:`divides.assess.verdict.decide` (divides/assess/verdict_model_forward.json).
 4. Printed per part and per family: the confusion of truth and verdict and the
    targets of the verdict issue; the ECE; optionally a reliability diagram (PNG).
 """
@@ -24,14 +31,15 @@ import json
 import math
 import sys
 import time
-from collections import Counter, defaultdict
+from collections import Counter
 from pathlib import Path
 
 import numpy as np
 
 SIGNED_PREFIXES = ("z_", "cons_", "fwd_")
 L2_GRID = (0.03, 0.1, 0.3, 1.0, 3.0, 10.0, 30.0)
-OUT = Path(__file__).resolve().parents[2] / "divides" / "assess" / "verdict_model.json"
+HERE = Path(__file__).resolve().parents[2] / "divides" / "assess"
+OUT = {False: HERE / "verdict_model.json", True: HERE / "verdict_model_forward.json"}
 
 
 def _extract(n: int, seed: int, grid: tuple[int, int], path: Path) -> list[dict]:
@@ -64,6 +72,42 @@ def _extract(n: int, seed: int, grid: tuple[int, int], path: Path) -> list[dict]
         done[i] = rec
         print(f"assessed #{i} {s.family} ({rec['seconds']:.1f} s)", flush=True)
     return [done[i] for i in range(n)]
+
+
+def _forward(recs: list[dict], seed: int, grid: tuple[int, int], path: Path) -> dict[int, float | None]:
+    """The forward run's shift (cells into b) of every landscape, cached as JSON lines in ``path``."""
+    import divides
+    from divides.errors import DividesError
+    from divides.model.benchmark import load_or_build
+    from divides.model.forward_run import forward_shift_cells
+
+    done = {}
+    if path.exists():
+        for line in path.read_text().splitlines():
+            rec = json.loads(line)
+            v = rec["shift_cells"]
+            done[rec["index"]] = v if v is not None and math.isfinite(v) else None  # NaN: the divide left the grid
+    for r in recs:
+        i = r["index"]
+        if i in done:
+            continue
+        s = load_or_build(seed, i, grid=grid)
+        t = time.perf_counter()
+        try:
+            a = divides.assess(s.dem(), s.sides["a"], s.sides["b"], closed_edges=s.closed_edges, robustness=False,
+                               n_bootstrap=50, forward_run=False)
+            value, err = forward_shift_cells(a.dem, a.sides, theta=float(a.profiles.theta), n=float(a.config.n),
+                                             closed_edges=tuple(a.config.closed_edges),
+                                             channel_area_m2=float(a.channels.threshold.value_m2)), None
+        except (DividesError, ValueError) as exc:
+            value, err = None, str(exc)
+        value = value if value is None or math.isfinite(value) else None
+        with open(path, "a") as fh:
+            fh.write(json.dumps({"index": i, "family": s.family, "truth": s.truth["moves_toward"], "shift_cells": value,
+                                 "error": err, "seconds": time.perf_counter() - t}) + "\n")
+        done[i] = value
+        print(f"forward run #{i} {s.family}: {value} ({time.perf_counter() - t:.1f} s)", flush=True)
+    return done
 
 
 def _contrasts(rec: dict) -> list:
@@ -103,13 +147,56 @@ def _cv_loss(x, y, names, l2, folds=5, seed=0):
     return loss / len(y)
 
 
-def _select_and_judge(recs, args, extra=()):
+def _row(r: dict, names: tuple[str, ...], forward: bool) -> list[float]:
     from divides.assess import evidence
-    from divides.assess.calibration import TARGETS, expected_calibration_error, fit, reliability, score, top_label
+
+    f = dict(r["f"]) if r["ok"] else {k: 0.0 for k in evidence.FEATURES}
+    if forward:
+        f.update(evidence.forward_features(r["fwd"], r["ok"]))
+    return [f[n] for n in names]
+
+
+def _out_of_fold(pool, names, l2, forward, near_model, args, folds=5, seed=0, veto=False):
+    """The full decision rule on every training landscape, each decided by a model fitted without its fold.
+
+    ``pool`` is the whole training part; only the landscapes the model can be fitted on (enough
+    near-divide samples, or a forward run) enter the fits, and the others are decided as
+    :func:`divides.assess` would decide them (insufficient data, or the near-divide model).
+    """
+    from divides.assess.calibration import TARGETS, fit, score
     from divides.assess.verdict import decide
 
-    train = [r for r in recs if r["split"] == "training" and r["ok"]]
-    print(f"{len(recs)} landscapes with a truth; training with enough data: {len(train)} "
+    fits = np.array([(r["fwd"] is not None) if forward else r["ok"] for r in pool])
+    which = np.random.default_rng(seed).permutation(len(pool)) % folds
+    y = np.array([r["truth"] for r in pool])
+    said, conf = ["undetermined"] * len(pool), [0.0] * len(pool)
+    for k in range(folds):
+        sel = fits & (which != k)
+        x = np.array([_row(r, names, forward) for r in np.array(pool, dtype=object)[sel]])
+        model = fit(*_mirror(x, y[sel], names), features=names, l2=l2)
+        for i in np.flatnonzero(which == k):
+            r = pool[i]
+            shift = r["fwd"] if (forward or veto) else None
+            if not r["c"] and shift is None:
+                continue  # refused: undetermined
+            v = decide(r["c"], model=model if (shift is not None or not forward) else near_model,
+                       min_confidence=args.min_confidence, forward_shift=shift, forward_in_decision=forward,
+                       near_model=near_model)
+            said[i], conf[i] = v.moves_toward, v.confidence
+    card = score(list(y), said, conf)
+    print(f"training, out of fold ({len(pool)} landscapes; the full rule{'; forward run as veto' if veto else ''}):")
+    for k, v in card.shares.items():
+        bound, kind = TARGETS[k]
+        print(f"  {k.replace('_', ' '):38s} {v:.3f}  (target {'>=' if kind == 'min' else '<='} {bound:g})")
+    return card
+
+
+def _select_and_judge(recs, args, *, forward=False, near_model=None):
+    from divides.assess import evidence
+    from divides.assess.calibration import fit
+
+    train = [r for r in recs if r["split"] == "training" and (r["fwd"] is not None if forward else r["ok"])]
+    print(f"{len(recs)} landscapes with a truth; training landscapes fitted on: {len(train)} "
           f"(of {sum(r['split'] == 'training' for r in recs)} training)")
 
     # ---- model selection on the training part only
@@ -120,28 +207,43 @@ def _select_and_judge(recs, args, extra=()):
         "z only, no chi": tuple(f for f in evidence.FEATURES if (f.startswith("z_") and f != "z_chi")
                                 or f.startswith("abs_") or f in ("log_n_eff", "balanced")),
         "no magnitudes": tuple(f for f in evidence.FEATURES if not f.startswith("abs_")),
+        "z, no magnitudes": tuple(f for f in evidence.FEATURES if f.startswith("z_") or f in ("log_n_eff", "balanced")),
     }
-    subsets = {k: v + tuple(extra) for k, v in subsets.items()}
+    if forward:
+        subsets = {k: v + evidence.FORWARD_FEATURES for k, v in subsets.items()}
+        subsets["forward run only"] = evidence.FORWARD_FEATURES
     y = np.array([r["truth"] for r in train])
     results = []
     for label, names in subsets.items():
-        x = np.array([[{**r["f"], **r["x"]}[n] for n in names] for r in train])
+        x = np.array([_row(r, names, forward) for r in train])
         for l2 in L2_GRID:
             results.append((_cv_loss(x, y, names, l2), label, l2))
     results.sort()
     print("cross-validated log loss (training only), best first:")
     for loss, label, l2 in results[:8]:
-        print(f"  {loss:.4f}  {label:16s} l2 = {l2:g}")
+        print(f"  {loss:.4f}  {label:18s} l2 = {l2:g}")
     _, label, l2 = results[0]
     names = subsets[label]
-    x = np.array([[{**r["f"], **r["x"]}[n] for n in names] for r in train])
+    x = np.array([_row(r, names, forward) for r in train])
     model = fit(*_mirror(x, y, names), features=names, l2=l2)
+    _out_of_fold([r for r in recs if r["split"] == "training"], names, l2, forward, near_model or model, args)
+    return (model, label, l2, results, _judge(recs, args, model, forward=forward, near_model=near_model))
 
-    # ---- decisions on every landscape (insufficient data: undetermined)
+
+def _judge(recs, args, model, *, forward=False, near_model=None, veto=False):
+    """Decide every landscape by the full rule and print the figures per part and family."""
+    from divides.assess.calibration import TARGETS, expected_calibration_error, reliability, score, top_label
+    from divides.assess.verdict import decide
+
     for r in recs:
-        v = decide(r["c"], model=model, min_confidence=args.min_confidence, extra=r["x"]) if r["c"] else None
+        shift = r["fwd"] if (forward or veto) else None
+        # without a forward run (it failed) the near-divide model decides, as in divides.assess
+        v = decide(r["c"], model=model if (shift is not None or not forward) else near_model,
+                   min_confidence=args.min_confidence, forward_shift=shift, forward_in_decision=forward,
+                   near_model=near_model) if (r["c"] or shift is not None) else None
         r["said"] = v.moves_toward if v else "undetermined"
         r["conf"] = v.confidence if v else 0.0
+        r["reason"] = v.reason if v else "refused"
         r["p"] = None if (v is None or v.probabilities is None) else [v.probabilities[k] for k in ("a", "b", "stable")]
     summary = {}
     for part in ("training", "held-out"):
@@ -152,16 +254,14 @@ def _select_and_judge(recs, args, extra=()):
         conf, ok = top_label(np.array([r["p"] for r in probs]), [r["truth"] for r in probs])
         ece = expected_calibration_error(conf, ok)
         summary[part] = {"card": card, "ece": ece, "bins": reliability(conf, ok), "n_model": len(probs)}
-        print(f"\n{part}: {card.n} landscapes, {len(probs)} with enough data; ECE {ece:.3f} (target <= 0.05)")
+        print(f"\n{part}: {card.n} landscapes, {len(probs)} reach the model; ECE {ece:.3f} (target <= 0.05)")
         for k, v in card.shares.items():
             bound, kind = TARGETS[k]
             print(f"  {k.replace('_', ' '):38s} {v:.3f}  (target {'>=' if kind == 'min' else '<='} {bound:g}: "
                   f"{'met' if met[k] else 'missed'})")
-        fam: dict = defaultdict(Counter)
-        for r in sel:
-            fam[r["family"]][(r["truth"], r["said"])] += 1
-        print(f"\n  | family | moving | right | wrong way | called stable | undetermined | stable | called stable "
-              f"| given a direction | undetermined |\n  | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
+        print("  reasons: " + ", ".join(f"{k} {v}" for k, v in sorted(Counter(r["reason"] for r in sel).items())))
+        print("\n  | family | moving | right | wrong way | called stable | undetermined | stable | called stable "
+              "| given a direction | undetermined |\n  | --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
         for f in sorted({r["family"] for r in sel}):
             mv = [r for r in sel if r["family"] == f and r["truth"] != "stable"]
             st = [r for r in sel if r["family"] == f and r["truth"] == "stable"]
@@ -170,15 +270,50 @@ def _select_and_judge(recs, args, extra=()):
                   f"{sum(r['said'] == 'stable' for r in mv)} | {sum(r['said'] == 'undetermined' for r in mv)} | "
                   f"{len(st)} | {sum(r['said'] == 'stable' for r in st)} | {sum(r['said'] in ('a', 'b') for r in st)} | "
                   f"{sum(r['said'] == 'undetermined' for r in st)} |")
-        print(f"  {'family':28s} truth -> verdict counts")
-        for f in sorted(fam):
-            print(f"  {f:28s} " + ", ".join(f"{t}->{s}: {c}" for (t, s), c in sorted(fam[f].items())))
         print("  reliability bins (lower, count, mean confidence, accuracy): " + "; ".join(
             f"{b.lower:.1f} {b.count} {b.mean_confidence:.2f} {b.accuracy:.2f}" for b in summary[part]["bins"] if b.count))
-    wrong_hi = [(r["index"], r["family"], r["truth"], r["said"], r["conf"]) for r in recs
-                if r["said"] in ("a", "b") and r["said"] != r["truth"]]
-    print("\nwrong directions:", wrong_hi)
-    return model, label, l2, results, summary
+    wrong = [(r["index"], r["split"], r["family"], r["truth"], r["said"], r["conf"]) for r in recs
+             if r["said"] in ("a", "b") and r["said"] != r["truth"]]
+    print("\nwrong directions:", wrong)
+    return summary
+
+
+def _document(model, label, l2, results, summary, args) -> dict:
+    doc = model.to_dict()
+    doc["selection"] = {"features": label, "l2": l2, "cv_log_loss": results[0][0], "training_cases": model.n_train // 2,
+                        "benchmark": {"seed": args.seed, "n": args.n, "grid": list(args.grid)}}
+    doc["held_out_reliability"] = [
+        {"lower": b.lower, "upper": b.upper, "count": b.count,
+         "mean_confidence": None if not b.count else round(b.mean_confidence, 4),
+         "accuracy": None if not b.count else round(b.accuracy, 4)} for b in summary["held-out"]["bins"]]
+    print("\nmodel (coefficients on standardised features):")
+    for c, row in doc["coefficients"].items():
+        print(f"  {c:7s} intercept {doc['intercepts'][c]:+.3f}  " + "  ".join(f"{k} {v:+.3f}" for k, v in row.items()))
+    return doc
+
+
+def _diagram(summaries: dict, path: Path) -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, axes = plt.subplots(1, len(summaries), figsize=(4.5 * len(summaries), 4.5), squeeze=False)
+    for ax, (title, summary) in zip(axes[0], summaries.items()):
+        for part, mark in (("training", "s"), ("held-out", "o")):
+            bins = [b for b in summary[part]["bins"] if b.count]
+            ax.plot([b.mean_confidence for b in bins], [b.accuracy for b in bins], marker=mark, label=
+                    f"{part} (ECE {summary[part]['ece']:.3f}, {summary[part]['n_model']} cases)")
+        ax.plot([0, 1], [0, 1], color="grey", lw=0.8, ls="--")
+        ax.set_title(title, fontsize=10)
+        ax.set_xlabel("confidence (probability of the most probable outcome)")
+        ax.set_ylabel("share right")
+        ax.set_xlim(0.3, 1)
+        ax.set_ylim(0, 1.02)
+        ax.legend(fontsize=8, loc="upper left")
+    fig.tight_layout()
+    fig.savefig(path, dpi=120)
+    print(f"wrote {path}")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -189,11 +324,11 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--contrasts", type=Path, default=Path("/work/benchrun/contrasts.jsonl"))
     parser.add_argument("--available", action="store_true", help="use only landscapes already in --contrasts")
     parser.add_argument("--min-confidence", type=float, default=0.8)
-    parser.add_argument("--write", action="store_true", help="write divides/assess/verdict_model.json")
+    parser.add_argument("--write", action="store_true", help="write the model(s) into divides/assess/")
     parser.add_argument("--forward", type=Path, default=None,
-                        help="JSON lines of forward-run shifts (index, shift_cells): fit and judge a second model "
-                             "with the forward run as a feature (reported, not shipped)")
-    parser.add_argument("--png", type=Path, default=None, help="reliability diagram of the held-out part")
+                        help="JSON lines of forward-run shifts (index, shift_cells; made when missing): fit and judge "
+                             "the model that also reads the forward run")
+    parser.add_argument("--png", type=Path, default=None, help="reliability diagram (training and held-out)")
     args = parser.parse_args(argv)
 
     from divides.assess import evidence
@@ -208,60 +343,27 @@ def main(argv: list[str] | None = None) -> int:
         r["c"] = _contrasts(r)
         r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
         r["f"] = evidence.features(r["c"]) if r["ok"] else None
-    fwd = {}
+        r["fwd"] = None
+    print("\n==== near-divide measures only")
+    near = _select_and_judge(recs, args)
+    docs, summaries = {False: _document(*near, args)}, {"near-divide measures": near[4]}
     if args.forward is not None:
-        for line in args.forward.read_text().splitlines():
-            rec = json.loads(line)
-            fwd[rec["index"]] = rec["shift_cells"]
-    if fwd:
-        with_fwd = [r for r in recs if r["index"] in fwd]
-        print(f"\n==== with the forward run (on the {len(with_fwd)} landscapes that have it; reported, not shipped)")
-        for r in with_fwd:
-            v = fwd[r["index"]]
-            v = 0.0 if v is None or not math.isfinite(v) else v
-            r["x"] = {"fwd_shift": math.copysign(math.log1p(abs(v)), v), "abs_fwd": math.log1p(abs(v))}
-        _select_and_judge(with_fwd, args, extra=("fwd_shift", "abs_fwd"))
-        print("\n==== the same landscapes without it")
-        for r in with_fwd:
-            r["x"] = {}
-        _select_and_judge(with_fwd, args)
-        print("\n==== metric-only model on every landscape (shipped)")
-    for r in recs:
-        r["x"] = {}
-    model, label, l2, results, summary = _select_and_judge(recs, args)
-    doc = model.to_dict()
-    doc["selection"] = {"features": label, "l2": l2, "cv_log_loss": results[0][0], "training_cases": model.n_train // 2,
-                        "benchmark": {"seed": args.seed, "n": args.n, "grid": list(args.grid)}}
-    doc["held_out_reliability"] = [
-        {"lower": b.lower, "upper": b.upper, "count": b.count,
-         "mean_confidence": None if not b.count else round(b.mean_confidence, 4),
-         "accuracy": None if not b.count else round(b.accuracy, 4)} for b in summary["held-out"]["bins"]]
-    print("\nmodel (coefficients on standardised features):")
-    for c, row in doc["coefficients"].items():
-        print(f"  {c:7s} intercept {doc['intercepts'][c]:+.3f}  " + "  ".join(f"{k} {v:+.3f}" for k, v in row.items()))
+        shifts = _forward(recs, args.seed, tuple(args.grid), args.forward)
+        for r in recs:
+            r["fwd"] = shifts.get(r["index"])
+        print("\n==== near-divide measures and the forward run")
+        fwd = _select_and_judge(recs, args, forward=True, near_model=near[0])
+        docs[True], summaries["forward run in the model"] = _document(*fwd, args), fwd[4]
+        print("\n==== near-divide measures decide, the forward run can only veto (lines disagree)")
+        names = near[0].features
+        _out_of_fold([r for r in recs if r["split"] == "training"], names, near[2], False, near[0], args, veto=True)
+        summaries["forward run as veto"] = _judge(recs, args, near[0], near_model=near[0], veto=True)
     if args.write:
-        OUT.write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
-        print(f"wrote {OUT}")
+        for forward, doc in docs.items():
+            OUT[forward].write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
+            print(f"wrote {OUT[forward]}")
     if args.png is not None:
-        import matplotlib
-
-        matplotlib.use("Agg")
-        import matplotlib.pyplot as plt
-
-        fig, ax = plt.subplots(figsize=(4.5, 4.5))
-        for part, mark in (("training", "s"), ("held-out", "o")):
-            bins = [b for b in summary[part]["bins"] if b.count]
-            ax.plot([b.mean_confidence for b in bins], [b.accuracy for b in bins], marker=mark, label=
-                    f"{part} (ECE {summary[part]['ece']:.3f}, {summary[part]['n_model']} cases)")
-        ax.plot([0, 1], [0, 1], color="grey", lw=0.8, ls="--")
-        ax.set_xlabel("confidence (probability of the most probable outcome)")
-        ax.set_ylabel("share right")
-        ax.set_xlim(0.3, 1)
-        ax.set_ylim(0, 1.02)
-        ax.legend(fontsize=8, loc="upper left")
-        fig.tight_layout()
-        fig.savefig(args.png, dpi=120)
-        print(f"wrote {args.png}")
+        _diagram(summaries, args.png)
     return 0
 
 
