@@ -25,6 +25,7 @@ from divides.assess.rate import (
     calibrate,
     divide_rate,
     exponent_samples,
+    forward_erodibility,
     near_divide_erosion,
     step_celerity,
 )
@@ -40,7 +41,7 @@ from divides.assess.verdict import (
 from divides.config import AssessConfig
 from divides.errors import ParameterError, SideError
 from divides.io.dem import Dem
-from divides.model.forward_run import FORWARD_HORIZON_TAU, forward_shift_cells
+from divides.model.forward_run import FORWARD_HORIZON_TAU, ForwardShift, forward_shift
 from divides.profiles.analysis import ProfileAnalysis, analyse_profiles
 from divides.profiles.chi import ChiWeights, chi_weights
 from divides.terrain.channels import Channels, extract_channels
@@ -79,6 +80,9 @@ class Assessment:
     rate_withheld : str or None
         Why no rate is given although erosion is calibrated (its direction disagrees with the
         verdict, or the verdict has none).
+    forward_rate : dict or None
+        The forward run's rate of the divide under the calibrated K (``low``, ``best``, ``high`` mm/yr,
+        ``toward``), or why it is withheld; None without a forward run or a calibration.
     """
 
     config: AssessConfig
@@ -99,6 +103,7 @@ class Assessment:
     robustness: list = field(default_factory=list)
     automatic: dict = field(default_factory=dict)
     rate_withheld: str | None = None
+    forward_rate: dict | None = None
 
     @property
     def summary(self) -> dict:
@@ -176,6 +181,7 @@ class Assessment:
                     "shift_cells": None if self.verdict.forward_shift_cells is None
                     else round(self.verdict.forward_shift_cells, 3),
                     "horizon_response_times": FORWARD_HORIZON_TAU,
+                    "rate_mm_per_yr": self.forward_rate,
                     "note": "; ".join(self.verdict.notes),
                 },
                 "long_run_tendency": self.verdict.long_run,
@@ -535,7 +541,7 @@ def _given(config: AssessConfig | None, names: dict) -> str:
     return ""
 
 
-def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
+def _forward_lines(verdict: Verdict, names: dict, forward_rate: dict | None = None) -> list[str]:
     """What the forward run said, and the near-divide measures alone, in words."""
     shift = verdict.forward_shift_cells
     if shift is None:
@@ -544,9 +550,16 @@ def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
              if abs(shift) >= FORWARD_NOISE_CELLS else f"less than {FORWARD_NOISE_CELLS:g} model cell (no direction)")
     out = [f"Forward run (the model run from this DEM for {FORWARD_HORIZON_TAU:g} response times, erodibility "
            f"unknown, uplift balancing the present landscape): the divide moved {where}."]
+    if forward_rate and forward_rate.get("best") is not None:
+        out.append(f"Under the calibrated erodibility that is {_sig2(forward_rate['best'])} mm/yr toward "
+                   f"{names[forward_rate['toward']]} (95 % interval {_sig2(forward_rate['low'])} to "
+                   f"{_sig2(forward_rate['high'])}; {forward_rate['note']}).")
     near = verdict.near_divide_probabilities
-    if near is None:
+    if near is None and verdict.basis == "forward run":
         out.append("The near-divide measures have too few independent samples: the forward run speaks alone.")
+    elif near is None:
+        out.append("The near-divide measures have too few independent samples, and the forward run alone does not "
+                   "decide (--forward-in-decision lets it, at a cost in wrong directions; docs/validation.md).")
     else:
         out.append(f"Near-divide measures alone: toward {names['a']} {near['a']:.2f}, toward {names['b']} "
                    f"{near['b']:.2f}, stable {near['stable']:.2f}.")
@@ -555,7 +568,8 @@ def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
 
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
           equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False,
-          config: AssessConfig | None = None, withheld: str | None = None) -> str:
+          config: AssessConfig | None = None, withheld: str | None = None,
+          forward_rate: dict | None = None) -> str:
     names = {k: (f"{given} (side {k})" if given else f"side {k} ({side.spec.text})")
              for k, side, given in (("a", sides.a, getattr(config, "name_a", None)),
                                     ("b", sides.b, getattr(config, "name_b", None)))}
@@ -592,7 +606,7 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
                      "the evidence is too weak or points both ways.")
     if odds:
         lines.append(odds)
-    lines += _forward_lines(verdict, names)
+    lines += _forward_lines(verdict, names, forward_rate)
     if verdict.moves_toward in ("a", "b", "stable"):
         read_forward = bool(getattr(config, "forward_in_decision", False)) and verdict.forward_shift_cells is not None
         right = right_share(verdict.confidence, forward=read_forward)
@@ -650,21 +664,43 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
     return "\n".join(lines)
 
 
-def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> tuple[float | None, str]:
-    """The forward run's shift of the divide (cells, into b) and a note when it was not made."""
+def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> tuple[ForwardShift | None, str]:
+    """The forward run (its shift of the divide in cells, into b) and a note when it was not made."""
     if not config.forward_run:
         return None, "forward run not made (switched off)"
     if progress is not None:
         progress("forward run of the model from the DEM (0.3 response times)")
     try:
-        shift = forward_shift_cells(dem, core.sides, theta=float(core.profiles.theta), n=float(config.n),
-                                    closed_edges=tuple(config.closed_edges),
-                                    channel_area_m2=float(core.channels.threshold.value_m2))
+        run = forward_shift(dem, core.sides, theta=float(core.profiles.theta), n=float(config.n),
+                            closed_edges=tuple(config.closed_edges),
+                            channel_area_m2=float(core.channels.threshold.value_m2))
     except (SideError, ParameterError) as exc:  # e.g. the sides do not touch on the model grid
         return None, f"forward run not made: {exc}"
-    if not np.isfinite(shift):
+    if not np.isfinite(run.shift_cells):
         return None, "forward run not made: the divide left the model grid"
-    return float(shift), ""
+    return run, ""
+
+
+def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict) -> dict | None:
+    """The forward run's rate of the divide (mm/yr toward the victim) under the calibrated K, in the verdict's
+    direction only (docs/methods.md §9); None without a forward run or a calibration."""
+    k = None if run is None else forward_erodibility(cal, run)
+    if k is None or not np.isfinite(run.years_unit_k):
+        return None
+    v = run.rate_m_per_yr(k) * 1e3
+    if verdict.moves_toward not in ("a", "b"):
+        return {"withheld": "the verdict has no direction"}
+    says = "b" if run.shift_cells > 0 else "a"
+    if says != verdict.moves_toward:
+        return {"withheld": f"the forward run moves the divide toward side {says}, against the verdict"}
+    v = v if says == "b" else -v
+    lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
+    # the shift itself is read to about FORWARD_NOISE_CELLS (the area-exchange measure on the model grid)
+    resolution = FORWARD_NOISE_CELLS / abs(run.shift_cells)
+    lo, hi = lo * max(0.0, 1.0 - resolution), hi * (1.0 + resolution)
+    return {"low": lo, "best": best, "high": hi, "toward": says,
+            "note": f"K and the shift's resolution (± {FORWARD_NOISE_CELLS:g} model cell) carried; θ, n and the DEM "
+                    "error not"}
 
 
 def assess(
@@ -710,7 +746,8 @@ def assess(
 
     core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
                  channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100, step=progress)
-    forward_shift, forward_note = _forward_evidence(dem, core, config, progress)
+    forward, forward_note = _forward_evidence(dem, core, config, progress)
+    forward_shift = None if forward is None else forward.shift_cells
     runs, share = ([], None)
     if config.robustness:
         runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn,
@@ -720,13 +757,15 @@ def assess(
     verdict = dataclasses.replace(core.decide(config, share, forward_shift),
                                   notes=[forward_note] if forward_note else [])
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
+    forward_rate = _forward_rate(forward, cal, verdict)
     withheld = rate.get("withheld") if rate is not None else None
     rate = None if withheld else rate
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
-                                                      config=config, withheld=withheld))
+                                                      config=config, withheld=withheld,
+                                                      forward_rate=forward_rate))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,
@@ -745,4 +784,4 @@ def assess(
                       base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
                       knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
-                      rate_withheld=withheld)
+                      rate_withheld=withheld, forward_rate=forward_rate)

@@ -26,7 +26,7 @@ that agrees on a direction) and ``abs_mean`` (mean |z|, any asymmetry at all):
 a linear model needs them to tell "no difference" (stable) from "a difference
 of unknown sign".
 
-The forward run (:func:`divides.model.forward_run.forward_shift_cells`: the divide's
+The forward run (:func:`divides.model.forward_run.forward_shift`: the divide's
 shift in cells over 0.3 response times of a model run from the DEM, K unknown) adds
 ``fwd_shift`` (signed) and ``abs_fwd``, both log(1 + |shift| / 0.3 cell): 0.3 cell is
 the shift of a divide moving at the benchmark's stability threshold, one cell per

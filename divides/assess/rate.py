@@ -7,9 +7,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from divides.errors import ParameterError
+from divides.model.forward_run import ForwardShift
 
 __all__ = [
-    "Calibration", "calibrate", "divide_rate", "exponent_samples", "migration_rate", "near_divide_erosion",
+    "Calibration", "calibrate", "divide_rate", "exponent_samples", "forward_erodibility", "migration_rate",
+    "near_divide_erosion",
     "PLAUSIBLE_MM_PER_YR", "positive_samples", "step_celerity", "travel_time",
 ]
 
@@ -350,3 +352,36 @@ def near_divide_erosion(
     ratio = ratio * np.asarray(area_ratio, dtype=np.float64) ** np.asarray(theta_shift, dtype=np.float64)
     exponent = n if n_draws is None else np.asarray(n_draws, dtype=np.float64)
     return np.asarray(erosion_network, dtype=np.float64) * ratio**exponent
+
+
+def forward_erodibility(cal: Calibration, shift: ForwardShift) -> np.ndarray | None:
+    """Samples of K for turning a forward run's shift into a rate (:meth:`ForwardShift.rate_m_per_yr`).
+
+    A given K (or one from a dated knickpoint) is used as it is. A measured erosion rate is
+    read as its side's basin-averaged rate, so K = E / mean(A^m S^n) over that side's cells of
+    the model grid; with both sides' rates the run, which has one K, takes the geometric mean of
+    the two sides' K.
+
+    Parameters
+    ----------
+    cal : Calibration
+    shift : ForwardShift
+
+    Returns
+    -------
+    ndarray or None
+        K samples, or None when erosion is not calibrated or a side has no slope on the model grid.
+    """
+    if not cal.available:
+        return None
+    if cal.source in ("erodibility K", "dated knickpoint"):
+        return None if cal.k is None else np.asarray(cal.k, dtype=np.float64)
+    ks = []
+    for given, samples, power in (("a", cal.erosion_a, shift.power_a), ("b", cal.erosion_b, shift.power_b)):
+        if cal.source in (f"erosion rate of side {given}", "erosion rates of both sides"):
+            if not power > 0:
+                return None
+            ks.append(np.asarray(samples, dtype=np.float64) / power)
+    if not ks:
+        return None
+    return ks[0] if len(ks) == 1 else np.sqrt(ks[0] * ks[1])

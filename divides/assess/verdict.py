@@ -198,7 +198,7 @@ def decide(
         Further features by name, signed toward b, for a model that reads them.
     forward_shift : float, optional
         The forward run's shift of the divide in model cells, positive into b
-        (:func:`divides.model.forward_run.forward_shift_cells`); None: not run.
+        (:func:`divides.model.forward_run.forward_shift`); None: not run.
     forward_in_decision : bool
         The calibrated model reads the forward run (rule 2); otherwise the forward run only
         reports and can veto (rule 5).
@@ -215,7 +215,8 @@ def decide(
     reads_forward = forward and forward_in_decision
     if not near_ok and not reads_forward:
         return Verdict("undetermined", None, 0.0, "insufficient data", long_run, robustness_share=robustness_share,
-                       reason="insufficient data", min_confidence=float(min_confidence))
+                       reason="insufficient data", min_confidence=float(min_confidence),
+                       forward_shift_cells=float(forward_shift) if forward else None)
     feats = evidence.features(contrasts) if near_ok else {k: 0.0 for k in evidence.FEATURES}
     near_probs = None
     if forward:

@@ -5,7 +5,7 @@ evidence share: the DEM block-averaged to a model grid, the sides re-resolved on
 uplift that balances the present landscape, one run of :func:`divides.model.simulate`
 with the divide's displacement measured by the area the sides exchange
 (:func:`divides.model.tracking.exchange_displacement`), and
-:func:`forward_shift_cells`, the displacement over a fraction of the landscape's
+:func:`forward_shift`, the displacement over a fraction of the landscape's
 response time with K unknown.
 
 The model never imports the assessment: the sides come in as
@@ -39,7 +39,8 @@ __all__ = [
     "balance_uplift",
     "block_mean",
     "coarsen",
-    "forward_shift_cells",
+    "ForwardShift",
+    "forward_shift",
     "prepare",
     "run_model",
     "slopes",
@@ -369,9 +370,39 @@ def prepare(grid: Dem, sides: Sides, *, factor: int, closed_edges: tuple[str, ..
     )
 
 
-def forward_shift_cells(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edges: tuple[str, ...],
-                        channel_area_m2: float, horizon_tau: float = FORWARD_HORIZON_TAU,
-                        max_steps: int = 60, uplift_mode: str = "uniform") -> float:
+@dataclass(frozen=True)
+class ForwardShift:
+    """The divide's shift in a short forward run with K = 1, and what turns it into a rate.
+
+    Attributes
+    ----------
+    shift_cells : float
+        Mean displacement of the divide over the horizon in model cells, positive into side b.
+    cell_m : float
+        Model cell size (m).
+    years_unit_k : float
+        The horizon in years for K = 1 (SI units). Time scales as 1/K (E = K (A^m S^n − c) with
+        uplift balancing at the same K), so for a landscape of erodibility K the horizon is
+        ``years_unit_k / K`` and the divide moves at ``K * shift_cells * cell_m / years_unit_k`` m/yr.
+    power_a, power_b : float
+        Mean of A^m S^n over each side's cells of the model grid at the start: a side's
+        basin-averaged erosion rate E gives K = E / power.
+    """
+
+    shift_cells: float
+    cell_m: float
+    years_unit_k: float
+    power_a: float
+    power_b: float
+
+    def rate_m_per_yr(self, k: np.ndarray | float) -> np.ndarray:
+        """Rate of the divide's motion (m/yr, positive into b) for erodibility ``k``."""
+        return np.asarray(k, dtype=np.float64) * self.shift_cells * self.cell_m / self.years_unit_k
+
+
+def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edges: tuple[str, ...],
+                  channel_area_m2: float, horizon_tau: float = FORWARD_HORIZON_TAU,
+                  max_steps: int = 60, uplift_mode: str = "uniform") -> ForwardShift:
     """Evidence from a short forward run: the divide's shift over a fraction of the response time, in cells.
 
     One run of the forward model from the DEM with K unknown: K = 1 is used and
@@ -404,21 +435,26 @@ def forward_shift_cells(dem: Dem, sides: Sides, *, theta: float, n: float, close
 
     Returns
     -------
-    float
-        Mean displacement of the divide over the horizon divided by the model cell size;
-        positive into side b. 0 when the landscape has no relief to erode.
+    ForwardShift
+        The shift in model cells (positive into side b; 0 when the landscape has no relief to
+        erode, NaN when the divide left the grid) and what turns it into a rate.
     """
     if uplift_mode not in ("uniform", "sides"):
         raise ParameterError(f"`uplift_mode` must be 'uniform' or 'sides'; got {uplift_mode!r}")
     grid, factor = coarsen(dem)
     setup = prepare(grid, sides, factor=factor, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
-    u_a, u_b, _, _ = balance_uplift(setup, np.asarray(1.0), theta * n, n)
+    m = theta * n
+    area = np.asarray(setup.flow.area, dtype=np.float64).ravel()
+    power = area ** m * slopes(setup.flow) ** n
+    power_a, power_b = (float(np.mean(power[mask.ravel()])) for mask in (setup.mask_a, setup.mask_b))
+    cell = float(min(np.min(grid.dx), np.min(grid.dy)))
+    u_a, u_b, _, _ = balance_uplift(setup, np.asarray(1.0), m, n)
     z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
     relief = float(np.nanmax(z) - np.nanmin(z))
     uplift = 0.5 * (u_a + u_b)
     if not (relief > 0 and uplift > 0):
-        return 0.0
-    run = run_model(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=horizon_tau * relief / uplift,
+        return ForwardShift(0.0, cell, math.inf, power_a, power_b)
+    years = horizon_tau * relief / uplift
+    run = run_model(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=years,
                     uplift_mode=uplift_mode, diffusivity=0.0, max_steps=int(max_steps))
-    cell = float(min(np.min(grid.dx), np.min(grid.dy)))
-    return float(run.displacement_m[-1]) / cell
+    return ForwardShift(float(run.displacement_m[-1]) / cell, cell, years, power_a, power_b)

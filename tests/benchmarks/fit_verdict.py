@@ -15,7 +15,7 @@
 3. The chosen model is refitted on the whole training part; its held-out
    reliability bins are stored with it (``--write``: divides/assess/verdict_model.json).
    With ``--forward`` (JSON lines of the forward run's shift per landscape, made by
-   :func:`divides.model.forward_run.forward_shift_cells` and cached like the contrasts)
+   :func:`divides.model.forward_run.forward_shift` and cached like the contrasts)
    a second model that also reads the forward run is selected and fitted the same way,
    on every training landscape that has a forward run (near-divide features 0 and
    ``near_missing`` 1 where the near-divide samples are too few), and judged with the
@@ -79,7 +79,7 @@ def _forward(recs: list[dict], seed: int, grid: tuple[int, int], path: Path) -> 
     import divides
     from divides.errors import DividesError
     from divides.model.benchmark import load_or_build
-    from divides.model.forward_run import forward_shift_cells
+    from divides.model.forward_run import forward_shift
 
     done = {}
     if path.exists():
@@ -96,9 +96,9 @@ def _forward(recs: list[dict], seed: int, grid: tuple[int, int], path: Path) -> 
         try:
             a = divides.assess(s.dem(), s.sides["a"], s.sides["b"], closed_edges=s.closed_edges, robustness=False,
                                n_bootstrap=50, forward_run=False)
-            value, err = forward_shift_cells(a.dem, a.sides, theta=float(a.profiles.theta), n=float(a.config.n),
+            value, err = forward_shift(a.dem, a.sides, theta=float(a.profiles.theta), n=float(a.config.n),
                                              closed_edges=tuple(a.config.closed_edges),
-                                             channel_area_m2=float(a.channels.threshold.value_m2)), None
+                                             channel_area_m2=float(a.channels.threshold.value_m2)).shift_cells, None
         except (DividesError, ValueError) as exc:
             value, err = None, str(exc)
         value = value if value is None or math.isfinite(value) else None

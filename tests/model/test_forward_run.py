@@ -7,7 +7,7 @@ import pytest
 
 import divides
 from divides.errors import ParameterError
-from divides.model.forward_run import coarsen, forward_shift_cells
+from divides.model.forward_run import coarsen, forward_shift
 from divides.terrain.routing import route
 from divides.terrain.sides import parse_side, resolve_sides
 
@@ -23,7 +23,7 @@ def _planes(west_gradient: float, east_gradient: float, scale: float = 1.0) -> d
 
 def _shift(dem: divides.Dem, **kw) -> float:
     sides = resolve_sides(route(dem, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
-    return forward_shift_cells(dem, sides, theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4, **kw)
+    return forward_shift(dem, sides, theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4, **kw).shift_cells
 
 
 def test_the_steeper_side_gains_ground_whatever_the_side():
@@ -61,3 +61,22 @@ def test_coarsen_is_a_block_mean():
     # 2 x 2 block means of 0..35 laid out 6 x 6: the first block holds 0, 1, 6, 7 (mean 3.5; arithmetic)
     small, f = coarsen(divides.Dem.from_array(np.arange(36.0).reshape(6, 6), cell_size=10.0), max_cells=3)
     assert (f, small.shape, float(small.dx[0]), float(small.elevation[0, 0])) == (2, (3, 3), 20.0, 3.5)
+
+
+@pytest.mark.parametrize("n", [1.0, 1.5])
+def test_a_run_at_erodibility_k_moves_the_divide_as_the_unit_run_scaled_in_time(n):
+    # dz/dt = K (c - A^m S^n) with uplift balancing at the same K: the solution at K over time t equals
+    # the one at K = 1 over K t (Royden & Perron 2013), so the rate of the divide is K x the unit rate.
+    from divides.model.forward_run import balance_uplift, prepare, run_model
+
+    dem = _planes(0.2, 0.1)
+    sides = resolve_sides(route(dem, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
+    unit = forward_shift(dem, sides, theta=0.3, n=n, closed_edges=CLOSED, channel_area_m2=3e4)
+    k = 3e-5
+    setup = prepare(dem, sides, factor=1, closed_edges=CLOSED, channel_area_m2=3e4)
+    assert balance_uplift(setup, np.asarray(k), 0.3 * n, n)[0] > 0
+    run = run_model(setup, label="K", theta=0.3, n=n, k=(k, k), years=unit.years_unit_k / k, uplift_mode="uniform",
+                    diffusivity=0.0, max_steps=60)
+    measured = run.displacement_m[-1] / (unit.years_unit_k / k)
+    assert float(unit.rate_m_per_yr(k)) == pytest.approx(measured, rel=1e-6)
+    assert measured > 0  # into the gentler side b (Gilbert 1877)
