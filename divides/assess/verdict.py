@@ -84,7 +84,7 @@ class Verdict:
         None when it was not run).
     near_divide_probabilities : dict or None
         P(a), P(b), P(stable) from the near-divide measures alone (the metric-only model), reported
-        beside the decision when the forward run took part.
+        beside the decision whenever the forward run was made and the near-divide samples suffice.
     """
 
     moves_toward: str
@@ -156,9 +156,9 @@ def decide(
 
     Rule
     ----
-    1. No near-divide contrast with enough independent samples and no forward run:
-       ``"undetermined"``, reason ``"insufficient data"`` (no evidence is not evidence of
-       stability).
+    1. No near-divide contrast with enough independent samples (and a decision that does
+       not read the forward run): ``"undetermined"``, reason ``"insufficient data"`` (no
+       evidence is not evidence of stability).
     2. Otherwise a decision model (:mod:`divides.assess.calibration`, fitted on the
        training part of the model-landscape benchmark; docs/validation.md) turns the
        evidence features (:func:`divides.assess.evidence.features`) into P(toward a),
