@@ -690,6 +690,8 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict) 
     v = run.rate_m_per_yr(k) * 1e3
     if verdict.moves_toward not in ("a", "b"):
         return {"withheld": "the verdict has no direction"}
+    if abs(run.shift_cells) < FORWARD_NOISE_CELLS:
+        return {"withheld": f"the forward run moves the divide less than {FORWARD_NOISE_CELLS:g} model cell"}
     says = "b" if run.shift_cells > 0 else "a"
     if says != verdict.moves_toward:
         return {"withheld": f"the forward run moves the divide toward side {says}, against the verdict"}
