@@ -33,12 +33,29 @@ METRICS = {
 }
 
 
+#: Rows per block of the grid-wide fields: their float64 temporaries stay a few MB per block
+#: instead of several grids (the result is the same as on the whole grid: each block carries
+#: the halo rows its stencil needs).
+_BLOCK_ROWS = 512
+
+
+def _row_blocks(rows: int, halo: int):
+    """(start, stop) of each block of rows and the slice of it that is kept after a ``halo``-row read."""
+    for r0 in range(0, rows, _BLOCK_ROWS):
+        r1 = min(rows, r0 + _BLOCK_ROWS)
+        lo, hi = max(0, r0 - halo), min(rows, r1 + halo)
+        yield lo, hi, slice(r0, r1), slice(r0 - lo, r0 - lo + (r1 - r0))
+
+
 def gradient_magnitude(flow: FlowGraph) -> np.ndarray:
     """Topographic gradient (m/m) of the raw DEM by central differences (NaN at nodata)."""
     dem = flow.dem
-    z = np.where(dem.valid, dem.elevation, np.nan).astype(np.float64)
-    gy, gx = np.gradient(z)
-    return np.hypot(gx / dem.dx[:, None], gy / dem.dy[:, None])
+    out = np.empty(dem.shape, dtype=np.float64)
+    for lo, hi, keep, inner in _row_blocks(dem.shape[0], 1):  # a block of a grid of >= 2 rows has >= 2
+        z = np.where(dem.valid[lo:hi], dem.elevation[lo:hi], np.nan).astype(np.float64)
+        gy, gx = np.gradient(z)
+        out[keep] = np.hypot(gx / dem.dx[lo:hi, None], gy / dem.dy[lo:hi, None])[inner]
+    return out
 
 
 def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
@@ -46,12 +63,16 @@ def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
     dem = flow.dem
     k = max(1, int(round(radius_m / float(np.median(dem.dy)))))
     kx = max(1, int(round(radius_m / float(np.median(dem.dx)))))
-    z = dem.elevation.astype(np.float64)
-    hi = ndimage.maximum_filter(np.where(dem.valid, z, -np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
-    lo = ndimage.minimum_filter(np.where(dem.valid, z, np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
-    relief = hi - lo
-    relief[~dem.valid | ~np.isfinite(relief)] = np.nan
-    return relief
+    out = np.empty(dem.shape, dtype=np.float64)
+    for lo, hi, keep, inner in _row_blocks(dem.shape[0], k):
+        z = dem.elevation[lo:hi].astype(np.float64)
+        valid = dem.valid[lo:hi]
+        hi_z = ndimage.maximum_filter(np.where(valid, z, -np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+        lo_z = ndimage.minimum_filter(np.where(valid, z, np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+        relief = hi_z - lo_z
+        relief[~valid | ~np.isfinite(relief)] = np.nan
+        out[keep] = relief[inner]
+    return out
 
 
 class UpstreamMean:
@@ -64,8 +85,20 @@ class UpstreamMean:
     def __init__(self, flow: FlowGraph, field_: np.ndarray) -> None:
         values = np.asarray(field_, dtype=np.float64).ravel()[flow.order]
         good = np.isfinite(values)
-        self._sum = np.concatenate([[0.0], np.cumsum(np.where(good, values, 0.0))])
-        self._count = np.concatenate([[0], np.cumsum(good)])
+        n = values.size
+        # prefix sums written in place (no concatenated copy); the counts of finite values are
+        # kept only when some value is not finite (otherwise the count of a run is its length)
+        self._sum = np.empty(n + 1, dtype=np.float64)
+        self._sum[0] = 0.0
+        if good.all():
+            self._count = None
+        else:
+            values[~good] = 0.0
+            self._count = np.empty(n + 1, dtype=np.int32 if n < 2**31 else np.int64)
+            self._count[0] = 0
+            np.cumsum(good, out=self._count[1:])
+        del good
+        np.cumsum(values, out=self._sum[1:])
         self._flow = flow
 
     def __call__(self, cells: np.ndarray) -> np.ndarray:
@@ -75,7 +108,7 @@ class UpstreamMean:
         ok = cells >= 0
         p = self._flow.order_position[cells[ok]].astype(np.int64)
         c = self._flow.upstream_count[cells[ok]].astype(np.int64)
-        n = self._count[p + c] - self._count[p]
+        n = c if self._count is None else self._count[p + c] - self._count[p]
         with np.errstate(invalid="ignore", divide="ignore"):
             out[ok] = np.where(n > 0, (self._sum[p + c] - self._sum[p]) / n, np.nan)
         return out
@@ -97,11 +130,11 @@ class NearDivideFields:
 
 def near_divide_fields(flow: FlowGraph, relief_radius_m: float) -> NearDivideFields:
     """Elevation, and upstream means of gradient and local relief, for :func:`sample_divide`."""
-    return NearDivideFields(
-        elevation=flow.dem.elevation.ravel().astype(np.float64),
-        gradient=UpstreamMean(flow, gradient_magnitude(flow)),
-        relief=UpstreamMean(flow, local_relief(flow, relief_radius_m)),
-    )
+    # the elevations are the DEM's own (read into float64 per point, exactly); each field is
+    # freed once its prefix sums are built, so only one grid-sized temporary exists at a time
+    gradient = UpstreamMean(flow, gradient_magnitude(flow))
+    relief = UpstreamMean(flow, local_relief(flow, relief_radius_m))
+    return NearDivideFields(elevation=flow.dem.elevation.ravel(), gradient=gradient, relief=relief)
 
 
 @dataclass(frozen=True, eq=False)
