@@ -134,12 +134,8 @@ def regional_map(result: Screening):
                 va="center", zorder=6, bbox={"boxstyle": "circle,pad=0.15", "fc": "white", "ec": "black", "lw": 0.6})
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
-    labels = result.labels
-    rows, cols = np.indices(labels.shape)
-    count = np.bincount(labels.ravel())
-    for lab in np.flatnonzero(count)[1:] if count.size > 1 else []:  # basin labels at their centroids
-        sel = labels == lab
-        x, y = dem.xy(rows[sel].mean(), cols[sel].mean())
+    for lab, row, col in _centroids(result.labels):  # basin labels at their centroids
+        x, y = dem.xy(row, col)
         ax.text(float(x) * frame.scale, float(y) * frame.scale, f"B{lab}", fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
     handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
@@ -156,6 +152,28 @@ def regional_map(result: Screening):
                  label="instability = calibrated probability that the segment moves")
     ax.set_title("Divide segments by instability; arrows point toward the basin losing ground", fontsize=10)
     return fig
+
+
+def _centroids(labels: np.ndarray, block_rows: int = 512) -> list[tuple[int, float, float]]:
+    """(label, mean row, mean column) of every label > 0, in one pass over row blocks.
+
+    Sums by ``np.bincount`` are exact integers in float64, so the means equal a mean over
+    each label's cells; memory stays at a block, not an index grid per axis.
+    """
+    top = int(labels.max()) if labels.size else 0
+    count = np.zeros(top + 1)
+    row_sum = np.zeros(top + 1)
+    col_sum = np.zeros(top + 1)
+    cols = np.arange(labels.shape[1], dtype=np.float64)
+    for r0 in range(0, labels.shape[0], block_rows):
+        block = labels[r0: r0 + block_rows]
+        flat = block.ravel()
+        per_row = np.repeat(np.arange(r0, r0 + block.shape[0], dtype=np.float64), block.shape[1])
+        count += np.bincount(flat, minlength=top + 1)
+        row_sum += np.bincount(flat, weights=per_row, minlength=top + 1)
+        col_sum += np.bincount(flat, weights=np.tile(cols, block.shape[0]), minlength=top + 1)
+    return [(int(lab), row_sum[lab] / count[lab], col_sum[lab] / count[lab]) for lab in np.flatnonzero(count)
+            if lab > 0]
 
 
 def _parameter_table(params: dict) -> str:
