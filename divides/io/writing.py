@@ -242,8 +242,22 @@ def write_json(
     TypeError
         ``obj`` holds something JSON cannot represent (raised before any file is created).
     """
-    text = json.dumps(_jsonable(obj), indent=indent, ensure_ascii=False, allow_nan=False) + "\n"
-    return write_text(path, text, parents=parents)
+    try:  # fast path: the encoder walks the document once; NumPy values and paths through _default
+        text = json.dumps(obj, indent=indent, ensure_ascii=False, allow_nan=False, default=_default)
+    except (ValueError, TypeError):  # a NaN/inf to turn into null, or a key JSON cannot take as it is
+        text = json.dumps(_jsonable(obj), indent=indent, ensure_ascii=False, allow_nan=False)
+    return write_text(path, text + "\n", parents=parents)
+
+
+def _default(obj: Any) -> Any:
+    """What the JSON encoder cannot write itself: NumPy values and paths (anything else: TypeError)."""
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, np.generic):
+        return obj.item()
+    if isinstance(obj, os.PathLike):
+        return os.fspath(obj)
+    raise TypeError(f"Object of type {type(obj).__name__} is not JSON serializable")
 
 
 # ---------------------------------------------------------------------- helpers
