@@ -290,6 +290,12 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
 
 
+def _fields(flow: FlowGraph, config: AssessConfig, threshold: float):
+    """Near-divide fields kept only for the reference cells the segments are read at (memory: see UpstreamMean)."""
+    return near_divide_fields(flow, config.relief_radius_m,
+                              reference_area_m2=config.reference_area_m2 or threshold)
+
+
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
     """Assess every basin pair as Dask tasks: threads here, or the cluster at ``scheduler``."""
     chunk = max(1, len(tasks) // (8 * n_workers))
@@ -394,7 +400,7 @@ def screen(
         "flow": flow, "channels": channels, "labels_ch": labels.ravel()[channels.cells], "config": config,
         "theta": float(config.theta), "spacing": spacing, "reference": config.reference_area_m2 or threshold,
         "block": max(1, int(round((config.block_m or 10 * spacing) / spacing))),
-        "n_boot": max(100, config.n_bootstrap // 2), "fields": near_divide_fields(flow, config.relief_radius_m),
+        "n_boot": max(100, config.n_bootstrap // 2), "fields": _fields(flow, config, threshold),
         "chi_area": chi_area, "chi_weight": chi_weight,
         "dem_error": config.dem_error(cell), "cell": cell,
     })

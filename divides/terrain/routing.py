@@ -69,6 +69,15 @@ class FlowGraph:
         _k.receiver_distance(self.receivers, self.direction, self.shape[1], self._row_distances, out)
         return out
 
+    def distance_at(self, cells: np.ndarray) -> np.ndarray:
+        """:attr:`distance` at some cells only (flat indices), without building it for the grid."""
+        if "distance" in self.__dict__:
+            return self.distance[cells]
+        cells = np.asarray(cells)
+        code = self.direction.ravel()[cells]
+        step = self._row_distances[cells // self.shape[1], np.minimum(code, 7)]
+        return np.where(code < 8, step, 0.0)
+
     @cached_property
     def outlets(self) -> np.ndarray:
         """Flat indices of the valid cells that drain off the grid."""
@@ -89,8 +98,10 @@ class FlowGraph:
         The order is depth-first, so the cells upstream of ``i`` are exactly
         ``order[order_position[i] : order_position[i] + upstream_count[i]]``.
         """
-        counts = self.accumulate(self.dem.valid.astype(np.float64)).ravel()
-        return counts.astype(self.receivers.dtype)
+        # integer counts summed straight into the index dtype (no float64 grid on the way)
+        counts = np.zeros(self.receivers.size, dtype=self.receivers.dtype)
+        _k.accumulate_down(self.order, self.receivers, self.dem.valid.ravel(), counts)
+        return counts
 
     def upstream_cells(self, i: int) -> np.ndarray:
         """Flat indices of the cells draining through cell ``i`` (itself first)."""

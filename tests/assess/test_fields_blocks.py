@@ -38,7 +38,9 @@ def test_blocked_fields_equal_whole_grid(shape):
 
 
 @pytest.mark.parametrize("holes", [False, True])
-def test_upstream_mean_against_graph_ancestors(holes):
+@pytest.mark.parametrize("min_area", [None, 500.0])
+def test_upstream_mean_against_graph_ancestors(holes, min_area, monkeypatch):
+    monkeypatch.setattr(P.UpstreamMean, "_BLOCK", 7)  # many blocks on a small grid
     rng = np.random.default_rng(7)
     dem = divides.Dem.from_array(rng.normal(size=(12, 10)).cumsum(axis=1).astype(np.float32), cell_size=10.0)
     flow = route(dem)
@@ -50,7 +52,12 @@ def test_upstream_mean_against_graph_ancestors(holes):
     cells = np.flatnonzero(dem.valid.ravel())
     graph.add_nodes_from(cells)
     graph.add_edges_from((int(i), int(rec[i])) for i in cells if rec[i] >= 0 and rec[i] != i)
-    got = P.UpstreamMean(flow, field)(cells)
+    if min_area is not None:  # only cells draining at least min_area can be asked about
+        cells = cells[flow.area.ravel()[cells] >= min_area]
+        with pytest.raises(ValueError):
+            P.UpstreamMean(flow, field, min_area_m2=min_area)(np.flatnonzero(flow.area.ravel() < min_area)[:1])
+    got = P.UpstreamMean(flow, field, min_area_m2=min_area)(cells)
+    assert np.array_equal(got, P.UpstreamMean(flow, field)(cells), equal_nan=True)  # the same sums, bit for bit
     flat = field.ravel()
     for i, value in zip(cells, got):
         up = flat[list(nx.ancestors(graph, int(i)) | {int(i)})]
