@@ -91,18 +91,15 @@ class UpstreamMean:
     #: Positions of the order summed per block when only some prefix sums are kept.
     _BLOCK = 1 << 20
 
-    def __init__(self, flow: FlowGraph, field_: np.ndarray, *, min_area_m2: float | None = None) -> None:
+    def __init__(self, flow: FlowGraph, field_: np.ndarray, *, min_area_m2: float | None = None,
+                 keep: np.ndarray | None = None) -> None:
         flat = np.asarray(field_, dtype=np.float64).ravel()
         order = flow.order
         n = order.size
         self._flow = flow
         self._min_area = min_area_m2
-        if min_area_m2 is None:
-            keep = None
-        else:  # the two ends of the run of every cell that can be asked about
-            big = np.flatnonzero(flow.area.ravel() >= min_area_m2)
-            p = flow.order_position[big].astype(np.int64)
-            keep = np.unique(np.concatenate([p, p + flow.upstream_count[big]]))
+        if min_area_m2 is not None and keep is None:
+            keep = run_ends(flow, min_area_m2)
         self._keep = keep
         if keep is None:
             values = flat[order]
@@ -159,6 +156,17 @@ class UpstreamMean:
         return out
 
 
+def run_ends(flow: FlowGraph, min_area_m2: float) -> np.ndarray:
+    """Sorted order positions where the upstream runs of the cells draining at least ``min_area_m2`` start and end.
+
+    The positions and counts come from :meth:`FlowGraph.runs_of`, which does not
+    keep them, so a caller computing grid-sized fields next does not hold both at once.
+    """
+    p, c = flow.runs_of(np.flatnonzero(flow.area.ravel() >= min_area_m2))
+    p = p.astype(np.int64)
+    return np.unique(np.concatenate([p, p + c]))
+
+
 def upstream_mean(flow: FlowGraph, field_: np.ndarray, cells: np.ndarray) -> np.ndarray:
     """Mean of a field over the cells draining through each of ``cells`` (NaN values skipped)."""
     return UpstreamMean(flow, field_)(cells)
@@ -183,8 +191,9 @@ def near_divide_fields(flow: FlowGraph, relief_radius_m: float, *,
     """
     # the elevations are the DEM's own (read into float64 per point, exactly); each field is
     # freed once its prefix sums are built, so only one grid-sized temporary exists at a time
-    gradient = UpstreamMean(flow, gradient_magnitude(flow), min_area_m2=reference_area_m2)
-    relief = UpstreamMean(flow, local_relief(flow, relief_radius_m), min_area_m2=reference_area_m2)
+    keep = None if reference_area_m2 is None else run_ends(flow, reference_area_m2)
+    gradient = UpstreamMean(flow, gradient_magnitude(flow), min_area_m2=reference_area_m2, keep=keep)
+    relief = UpstreamMean(flow, local_relief(flow, relief_radius_m), min_area_m2=reference_area_m2, keep=keep)
     return NearDivideFields(elevation=flow.dem.elevation.ravel(), gradient=gradient, relief=relief)
 
 

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 from divides.errors import GridError
 
-__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "format_bytes",
+__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "fits", "format_bytes",
            "MEMORY_LIMIT_ENV"]
 
 #: Peak bytes per DEM cell of each in-memory task, beyond reading the DEM itself.
@@ -28,7 +28,9 @@ BYTES_PER_CELL: dict[str, float] = {
     "route": 40.0,
     "inspect": 60.0,
     "screen": 130.0,
+    "screen_tiled": 130.0,
     "assess": 220.0,
+    "assess_tiled": 220.0,
     "forecast": 130.0,
 }
 
@@ -155,6 +157,11 @@ def available_bytes() -> int:
 def read_bytes_per_cell(source_itemsize: int, *, wide: bool) -> float:
     """Peak bytes per cell of reading: the raw band, the float elevations, the valid and nodata masks."""
     return source_itemsize + (8 if wide else 4) + 2
+
+
+def fits(cells: int, bytes_per_cell: float) -> bool:
+    """Whether ``cells`` more cells at ``bytes_per_cell`` fit in the memory usable now (85 % of what is free)."""
+    return cells * bytes_per_cell <= available_bytes() * _USABLE_SHARE
 
 
 def check_fits(name: str, rows: int, cols: int, read_per_cell: float, need: MemoryNeed | None) -> None:

@@ -16,13 +16,13 @@ from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 
 from divides.assess.verdict import CAUTION
-from divides.io.writing import atomic_write, write_json, write_text
+from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
 
 from divides.report import figures as _figures
 from divides.report.figures import _HALO, _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
 from divides.report.labels import parameter_label, parameter_value
-from divides.report.layers import _collection, _feature, _lonlat, csv_text
+from divides.report.layers import _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
 from divides.report.text import provenance_line
@@ -74,13 +74,15 @@ def segment_features(result: Screening) -> list[dict]:
 
 def gap_features(result: Screening) -> list[dict]:
     """RFC 7946 LineString features (WGS 84 lon/lat), one per stretch of divide left unjudged, with its reason."""
-    features = []
+    return list(_iter_gap_features(result))
+
+
+def _iter_gap_features(result: Screening):
+    # one feature at a time, so a belt's layer is written without holding every vertex as Python floats
     for g in result.gaps:
         lon, lat = _lonlat(result.dem, g["line"].x, g["line"].y)
-        features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
-                                 {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"],
-                                  "reason": g["reason"]}))
-    return features
+        yield _feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
+                       {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"], "reason": g["reason"]})
 
 
 def regional_map(result: Screening):
@@ -263,8 +265,9 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
     with staged_output(out_dir, overwrite=overwrite, cli=cli) as tmp:
         write_json(tmp / "screening.json", document)
         if result.dem.crs is not None:
-            write_json(tmp / "segments.geojson", _collection(segment_features(result)))
-            write_json(tmp / "layers" / "screen_gaps.geojson", _collection(gap_features(result)), parents=True)
+            write_feature_collection(tmp / "segments.geojson", segment_features(result))
+            write_feature_collection(tmp / "layers" / "screen_gaps.geojson", _iter_gap_features(result),
+                                     parents=True)
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
         fig = regional_map(result)
         png = to_png(fig)
