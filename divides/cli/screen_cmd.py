@@ -140,11 +140,9 @@ def screen(
                                overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
-        import divides
         from divides.assess.screen import screen as run_screen
         from divides.cli.dem_checks import check_enough_cells
         from divides.report.screening import write_screening
-
         from divides.terrain.tiled_flow import tiled_routing
 
         # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
