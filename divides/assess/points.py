@@ -8,6 +8,7 @@ import numpy as np
 from scipy import ndimage
 
 from divides.assess import _assess_kernels as _k
+from divides.errors import InternalError
 from divides.terrain.divide_lines import Divide
 from divides.terrain.routing import FlowGraph
 
@@ -146,7 +147,8 @@ class UpstreamMean:
         out = np.full(cells.size, np.nan)
         ok = cells >= 0
         if self._min_area is not None and np.any(self._flow.area.ravel()[cells[ok]] < self._min_area):
-            raise ValueError("upstream means were kept only for cells draining at least the minimum area")
+            # a caller's mistake, never a user's: not a ValueError, which sampling reads as "too short"
+            raise InternalError("upstream means were kept only for cells draining at least the minimum area")
         p = self._flow.order_position[cells[ok]].astype(np.int64)
         c = self._flow.upstream_count[cells[ok]].astype(np.int64)
         lo, hi = self._at(p), self._at(p + c)
