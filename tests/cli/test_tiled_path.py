@@ -75,3 +75,14 @@ def test_when_nothing_fits_the_guard_names_bounds(tmp_path, capsys, monkeypatch,
     assert "too large for memory" in lines[0] and "--bounds" in lines[0]
     assert ("routing by tiles" in lines[0]) == tiled
     assert not out.exists()
+
+
+def test_assess_tiled_equals_in_memory(tmp_path, capsys):
+    base = ["assess", UPLANDS, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
+            "--no-robustness", "--quiet"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled", "--scratch", str(tmp_path / "scratch")]) == 0
+    capsys.readouterr()
+    mem, tiles = (json.loads((tmp_path / name / "summary.json").read_text()) for name in ("mem", "tiles"))
+    for key in ("verdict", "contrasts", "divide"):
+        assert tiles[key] == mem[key], key
