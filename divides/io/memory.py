@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 from divides.errors import GridError
 
-__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "fits", "format_bytes",
-           "MEMORY_LIMIT_ENV"]
+__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "fits",
+           "format_bytes", "MEMORY_LIMIT_ENV"]
 
 #: Peak bytes per DEM cell of each task, beyond reading the DEM itself; ``<task>_tiled`` is the
 #: same task with conditioning and routing by tiles (:mod:`divides.terrain.tiled_flow`).
