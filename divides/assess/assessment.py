@@ -241,6 +241,7 @@ def _core(
     n_boot_theta: int,
     flow: FlowGraph | None = None,
     step=None,
+    chi_only: bool = False,
 ) -> _Core:
     step = step or (lambda text: None)
     if flow is None:
@@ -261,7 +262,7 @@ def _core(
     step("river profiles (χ, concavity, ksn, knickpoints)")
     profiles = analyse_profiles(channels, sides, base, theta=theta, a0=config.a0_m2, weights=weights,
                                 vertical_resolution_m=max(config.dem_error_m, 0.0), n_boot=n_boot_theta,
-                                seed=config.seed, dem_error=dem_error, n=config.n)
+                                seed=config.seed, dem_error=dem_error, n=config.n, chi_only=chi_only)
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
     step("contrasts across the divide")
@@ -333,7 +334,7 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
         try:
             run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
                         channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
-                        flow=flow)
+                        flow=flow, chi_only=True)  # the verdict reads the contrasts only: no segments or knickpoints
             verdict = run.decide(config, forward_shift=forward_shift).moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"

@@ -8,6 +8,7 @@ import numpy as np
 from scipy import ndimage
 
 from divides.assess import _assess_kernels as _k
+from divides.errors import InternalError
 from divides.terrain.divide_lines import Divide
 from divides.terrain.routing import FlowGraph
 
@@ -33,12 +34,29 @@ METRICS = {
 }
 
 
+#: Rows per block of the grid-wide fields: their float64 temporaries stay a few MB per block
+#: instead of several grids (the result is the same as on the whole grid: each block carries
+#: the halo rows its stencil needs).
+_BLOCK_ROWS = 512
+
+
+def _row_blocks(rows: int, halo: int):
+    """(start, stop) of each block of rows and the slice of it that is kept after a ``halo``-row read."""
+    for r0 in range(0, rows, _BLOCK_ROWS):
+        r1 = min(rows, r0 + _BLOCK_ROWS)
+        lo, hi = max(0, r0 - halo), min(rows, r1 + halo)
+        yield lo, hi, slice(r0, r1), slice(r0 - lo, r0 - lo + (r1 - r0))
+
+
 def gradient_magnitude(flow: FlowGraph) -> np.ndarray:
     """Topographic gradient (m/m) of the raw DEM by central differences (NaN at nodata)."""
     dem = flow.dem
-    z = np.where(dem.valid, dem.elevation, np.nan).astype(np.float64)
-    gy, gx = np.gradient(z)
-    return np.hypot(gx / dem.dx[:, None], gy / dem.dy[:, None])
+    out = np.empty(dem.shape, dtype=np.float64)
+    for lo, hi, keep, inner in _row_blocks(dem.shape[0], 1):  # a block of a grid of >= 2 rows has >= 2
+        z = np.where(dem.valid[lo:hi], dem.elevation[lo:hi], np.nan).astype(np.float64)
+        gy, gx = np.gradient(z)
+        out[keep] = np.hypot(gx / dem.dx[lo:hi, None], gy / dem.dy[lo:hi, None])[inner]
+    return out
 
 
 def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
@@ -46,12 +64,16 @@ def local_relief(flow: FlowGraph, radius_m: float) -> np.ndarray:
     dem = flow.dem
     k = max(1, int(round(radius_m / float(np.median(dem.dy)))))
     kx = max(1, int(round(radius_m / float(np.median(dem.dx)))))
-    z = dem.elevation.astype(np.float64)
-    hi = ndimage.maximum_filter(np.where(dem.valid, z, -np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
-    lo = ndimage.minimum_filter(np.where(dem.valid, z, np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
-    relief = hi - lo
-    relief[~dem.valid | ~np.isfinite(relief)] = np.nan
-    return relief
+    out = np.empty(dem.shape, dtype=np.float64)
+    for lo, hi, keep, inner in _row_blocks(dem.shape[0], k):
+        z = dem.elevation[lo:hi].astype(np.float64)
+        valid = dem.valid[lo:hi]
+        hi_z = ndimage.maximum_filter(np.where(valid, z, -np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+        lo_z = ndimage.minimum_filter(np.where(valid, z, np.inf), size=(2 * k + 1, 2 * kx + 1), mode="nearest")
+        relief = hi_z - lo_z
+        relief[~valid | ~np.isfinite(relief)] = np.nan
+        out[keep] = relief[inner]
+    return out
 
 
 class UpstreamMean:
@@ -59,26 +81,92 @@ class UpstreamMean:
 
     Each cell's upstream area is a contiguous run of the depth-first order, so
     one prefix sum over the order (built once, O(n)) serves every query.
+
+    With ``min_area_m2`` only the queries at cells draining at least that area
+    are served, and only the prefix sums at the two ends of their runs are
+    kept: a few per cent of the grid instead of a float64 grid per field. The
+    sums are taken in the same sequence either way, so the means are the same
+    to the bit.
     """
 
-    def __init__(self, flow: FlowGraph, field_: np.ndarray) -> None:
-        values = np.asarray(field_, dtype=np.float64).ravel()[flow.order]
-        good = np.isfinite(values)
-        self._sum = np.concatenate([[0.0], np.cumsum(np.where(good, values, 0.0))])
-        self._count = np.concatenate([[0], np.cumsum(good)])
+    #: Positions of the order summed per block when only some prefix sums are kept.
+    _BLOCK = 1 << 20
+
+    def __init__(self, flow: FlowGraph, field_: np.ndarray, *, min_area_m2: float | None = None,
+                 keep: np.ndarray | None = None) -> None:
+        flat = np.asarray(field_, dtype=np.float64).ravel()
+        order = flow.order
+        n = order.size
         self._flow = flow
+        self._min_area = min_area_m2
+        if min_area_m2 is not None and keep is None:
+            keep = run_ends(flow, min_area_m2)
+        self._keep = keep
+        if keep is None:
+            values = flat[order]
+            good = np.isfinite(values)
+            values[~good] = 0.0
+            self._sum = np.empty(n + 1, dtype=np.float64)  # prefix sums written in place
+            self._sum[0] = 0.0
+            np.cumsum(values, out=self._sum[1:])
+            count = None if good.all() else np.concatenate([[0], np.cumsum(good)])
+        else:
+            self._sum, count = self._kept_sums(flat, order, keep)
+        # the counts of finite values are kept only when some value is not finite
+        # (otherwise the count of a run is its length)
+        self._count = None if count is None else count.astype(np.int32 if n < 2**31 else np.int64)
+
+    @classmethod
+    def _kept_sums(cls, flat: np.ndarray, order: np.ndarray, keep: np.ndarray):
+        """Prefix sums (and counts of finite values, or None) at the order positions ``keep``, block by block."""
+        sums_kept = np.empty(keep.size, dtype=np.float64)
+        count = np.empty(keep.size, dtype=np.int64)
+        carry, carry_n, all_finite = 0.0, 0, True
+        for j0 in range(0, max(order.size, 1), cls._BLOCK):
+            values = flat[order[j0: j0 + cls._BLOCK]]
+            good = np.isfinite(values)
+            if not good.all():
+                all_finite = False
+                values[~good] = 0.0
+            # sequential sums from the carried total: the same additions as one cumsum over the order
+            sums = np.cumsum(np.concatenate([[carry], values]))
+            counts = carry_n + np.concatenate([[0], np.cumsum(good)])
+            lo, hi = np.searchsorted(keep, [j0, j0 + values.size + 1])
+            sums_kept[lo:hi] = sums[keep[lo:hi] - j0]
+            count[lo:hi] = counts[keep[lo:hi] - j0]
+            carry, carry_n = sums[-1], counts[-1]
+        return sums_kept, None if all_finite else count
+
+    def _at(self, positions: np.ndarray) -> np.ndarray:
+        """Index into the kept prefix sums of order positions."""
+        return positions if self._keep is None else np.searchsorted(self._keep, positions)
 
     def __call__(self, cells: np.ndarray) -> np.ndarray:
         """Means upstream of ``cells`` (flat indices; -1 gives NaN)."""
         cells = np.asarray(cells, dtype=np.int64)
         out = np.full(cells.size, np.nan)
         ok = cells >= 0
+        if self._min_area is not None and np.any(self._flow.area.ravel()[cells[ok]] < self._min_area):
+            # a caller's mistake, never a user's: not a ValueError, which sampling reads as "too short"
+            raise InternalError("upstream means were kept only for cells draining at least the minimum area")
         p = self._flow.order_position[cells[ok]].astype(np.int64)
         c = self._flow.upstream_count[cells[ok]].astype(np.int64)
-        n = self._count[p + c] - self._count[p]
+        lo, hi = self._at(p), self._at(p + c)
+        n = c if self._count is None else self._count[hi] - self._count[lo]
         with np.errstate(invalid="ignore", divide="ignore"):
-            out[ok] = np.where(n > 0, (self._sum[p + c] - self._sum[p]) / n, np.nan)
+            out[ok] = np.where(n > 0, (self._sum[hi] - self._sum[lo]) / n, np.nan)
         return out
+
+
+def run_ends(flow: FlowGraph, min_area_m2: float) -> np.ndarray:
+    """Sorted order positions where the upstream runs of the cells draining at least ``min_area_m2`` start and end.
+
+    The positions and counts come from :meth:`FlowGraph.runs_of`, which does not
+    keep them, so a caller computing grid-sized fields next does not hold both at once.
+    """
+    p, c = flow.runs_of(np.flatnonzero(flow.area.ravel() >= min_area_m2))
+    p = p.astype(np.int64)
+    return np.unique(np.concatenate([p, p + c]))
 
 
 def upstream_mean(flow: FlowGraph, field_: np.ndarray, cells: np.ndarray) -> np.ndarray:
@@ -95,13 +183,20 @@ class NearDivideFields:
     relief: UpstreamMean
 
 
-def near_divide_fields(flow: FlowGraph, relief_radius_m: float) -> NearDivideFields:
-    """Elevation, and upstream means of gradient and local relief, for :func:`sample_divide`."""
-    return NearDivideFields(
-        elevation=flow.dem.elevation.ravel().astype(np.float64),
-        gradient=UpstreamMean(flow, gradient_magnitude(flow)),
-        relief=UpstreamMean(flow, local_relief(flow, relief_radius_m)),
-    )
+def near_divide_fields(flow: FlowGraph, relief_radius_m: float, *,
+                       reference_area_m2: float | None = None) -> NearDivideFields:
+    """Elevation, and upstream means of gradient and local relief, for :func:`sample_divide`.
+
+    With ``reference_area_m2`` the means serve only cells draining at least that
+    area (the reference cells :func:`sample_divide` reads them at), in a few
+    per cent of the memory (see :class:`UpstreamMean`).
+    """
+    # the elevations are the DEM's own (read into float64 per point, exactly); each field is
+    # freed once its prefix sums are built, so only one grid-sized temporary exists at a time
+    keep = None if reference_area_m2 is None else run_ends(flow, reference_area_m2)
+    gradient = UpstreamMean(flow, gradient_magnitude(flow), min_area_m2=reference_area_m2, keep=keep)
+    relief = UpstreamMean(flow, local_relief(flow, relief_radius_m), min_area_m2=reference_area_m2, keep=keep)
+    return NearDivideFields(elevation=flow.dem.elevation.ravel(), gradient=gradient, relief=relief)
 
 
 @dataclass(frozen=True, eq=False)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import math
 import os
-import threading
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -180,31 +179,38 @@ def _coverage(segments: list[dict], gaps: list[dict], outlet_of: np.ndarray) -> 
 class _Shared:
     """Read-only state of one screening, shared by its Dask tasks.
 
-    On threads it is one object; on a cluster it is scattered once to every
-    worker. Each task borrows a χ scratch grid (NaN between uses) from a small
-    pool, so tasks on threads never write into the same grid.
+    On threads it is one object; on a cluster it is scattered once to every worker.
     """
 
     def __init__(self, data: dict) -> None:
         self.data = data
-        self._lock = threading.Lock()
-        self._free: list[np.ndarray] = []
 
-    def __getstate__(self) -> dict:
-        return {"data": self.data}
 
-    def __setstate__(self, state: dict) -> None:
-        self.__init__(state["data"])
+class _ChiOnChannels:
+    """χ of one basin pair looked up by DEM cell (NaN off its channels), without a grid.
 
-    def borrow(self) -> np.ndarray:
-        with self._lock:
-            if self._free:
-                return self._free.pop()
-        return np.full(self.data["n_cells"], np.nan)
+    Stands in for the χ grid :func:`divides.assess.points.sample_divide` reads at
+    channel cells (``chi_grid.ravel()[cells]``): a sorted copy of the pair's
+    channel cells and their χ, a few bytes per channel cell instead of a float64
+    grid per task.
+    """
 
-    def give_back(self, scratch: np.ndarray) -> None:
-        with self._lock:
-            self._free.append(scratch)
+    def __init__(self, cells: np.ndarray, chi: np.ndarray) -> None:
+        order = np.argsort(cells, kind="stable")
+        self._cells = np.asarray(cells)[order]
+        self._chi = np.asarray(chi, dtype=np.float64)[order]
+
+    def ravel(self) -> _ChiOnChannels:
+        return self
+
+    def __getitem__(self, cells) -> np.ndarray:
+        cells = np.asarray(cells)
+        out = np.full(cells.shape, np.nan)
+        if self._cells.size:
+            at = np.minimum(np.searchsorted(self._cells, cells), self._cells.size - 1)
+            hit = self._cells[at] == cells
+            out[hit] = self._chi[at[hit]]
+        return out
 
 
 def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: float, a0: float,
@@ -226,15 +232,11 @@ def _pair_chi(channels: Channels, on_a: np.ndarray, on_b: np.ndarray, *, theta: 
 
 
 def _assess_pairs(tasks: list[tuple], shared: _Shared) -> list[list[dict]]:
-    """One Dask task: several basin pairs, one χ scratch grid."""
-    scratch = shared.borrow()
-    try:
-        return [_assess_pair(t, shared.data, scratch) for t in tasks]
-    finally:
-        shared.give_back(scratch)
+    """One Dask task: several basin pairs."""
+    return [_assess_pair(t, shared.data) for t in tasks]
 
 
-def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
+def _assess_pair(task: tuple, st: dict) -> list[dict]:
     """Contrasts and verdict for every segment of one basin pair."""
     label_a, label_b, segs = task
     channels: Channels = st["channels"]
@@ -248,27 +250,23 @@ def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
         return out
     pos, chi, base, kept_a, kept_b = _pair_chi(channels, on_a, on_b, theta=st["theta"], a0=config.a0_m2,
                                                area=st["chi_area"], weight=st["chi_weight"])
-    cells = channels.cells[pos]
-    scratch[cells] = chi
-    try:
-        for seg in segs:
-            try:
-                pts = sample_divide(st["flow"], seg.as_divide(), spacing_m=st["spacing"],
-                                    channel_area_m2=channels.threshold.value_m2,
-                                    reference_area_m2=st["reference"], chi_grid=scratch,
-                                    relief_radius_m=config.relief_radius_m, fields=st["fields"])
-            except ValueError:
-                out.append(_empty(seg, "segment too short to sample"))
-                continue
-            mirrored = bool(np.isclose(st["reference"], channels.threshold.value_m2))
-            contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=base,
-                                          seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
-                                          mirrored=mirrored)
-            # no robustness re-runs per segment; the probability is calibrated on main divides only
-            verdict = decide(contrasts, same_channel=mirrored, min_confidence=config.min_confidence)
-            out.append(_row(seg, pts, contrasts, verdict))
-    finally:
-        scratch[cells] = np.nan
+    chi_grid = _ChiOnChannels(channels.cells[pos], chi)
+    for seg in segs:
+        try:
+            pts = sample_divide(st["flow"], seg.as_divide(), spacing_m=st["spacing"],
+                                channel_area_m2=channels.threshold.value_m2,
+                                reference_area_m2=st["reference"], chi_grid=chi_grid,
+                                relief_radius_m=config.relief_radius_m, fields=st["fields"])
+        except ValueError:
+            out.append(_empty(seg, "segment too short to sample"))
+            continue
+        mirrored = bool(np.isclose(st["reference"], channels.threshold.value_m2))
+        contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=base,
+                                      seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
+                                      mirrored=mirrored)
+        # no robustness re-runs per segment; the probability is calibrated on main divides only
+        verdict = decide(contrasts, same_channel=mirrored, min_confidence=config.min_confidence)
+        out.append(_row(seg, pts, contrasts, verdict))
     return out
 
 
@@ -290,6 +288,12 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             # neighbouring basins that drain the same way, where metrics are less telling
             "facing_share": float(np.mean(pts.facing >= MIN_FACING)) if pts.size else 0.0,
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
+
+
+def _fields(flow: FlowGraph, config: AssessConfig, threshold: float):
+    """Near-divide fields kept only for the reference cells the segments are read at (memory: see UpstreamMean)."""
+    return near_divide_fields(flow, config.relief_radius_m,
+                              reference_area_m2=config.reference_area_m2 or threshold)
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -396,8 +400,8 @@ def screen(
         "flow": flow, "channels": channels, "labels_ch": labels.ravel()[channels.cells], "config": config,
         "theta": float(config.theta), "spacing": spacing, "reference": config.reference_area_m2 or threshold,
         "block": max(1, int(round((config.block_m or 10 * spacing) / spacing))),
-        "n_boot": max(100, config.n_bootstrap // 2), "fields": near_divide_fields(flow, config.relief_radius_m),
-        "n_cells": flow.receivers.size, "chi_area": chi_area, "chi_weight": chi_weight,
+        "n_boot": max(100, config.n_bootstrap // 2), "fields": _fields(flow, config, threshold),
+        "chi_area": chi_area, "chi_weight": chi_weight,
         "dem_error": config.dem_error(cell), "cell": cell,
     })
     tasks = [(a, b, segs) for (a, b), segs in sorted(by_pair.items())]

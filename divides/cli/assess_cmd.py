@@ -393,6 +393,7 @@ def run_assessment(
     out: Path,
     overwrite: bool,
     progress: opt.Progress,
+    by_tiles: opt.TiledOptions | None = None,
 ) -> tuple[Assessment, Path]:
     """Read the DEM and the rasters, assess the divide and write every output.
 
@@ -406,6 +407,8 @@ def run_assessment(
     overwrite : bool
     progress : Progress
         Three stages: reading, assessing, writing.
+    by_tiles : TiledOptions, optional
+        ``--tiled``/``--scratch``: routing by tiles when asked for or when in-memory routing would not fit.
 
     Returns
     -------
@@ -418,10 +421,10 @@ def run_assessment(
     from divides.report.writer import STAGES, write_assessment
 
     # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
-    from divides.io.memory import MemoryNeed
+    from divides.terrain.tiled_flow import tiled_routing
 
-    need = MemoryNeed.of("assess", "assess a smaller window around the divide with --bounds")
-    dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
+    by_tiles = by_tiles or opt.TiledOptions(conditioning=request.options.get("conditioning", "fill"))
+    dem, plan = by_tiles.read(read, "assess", "assess a smaller window around the divide with --bounds")
     check_enough_cells(dem)
     _check_against_dem(request, dem)
     for option, text in (("--side-a", request.side_a), ("--side-b", request.side_b)):
@@ -442,8 +445,9 @@ def run_assessment(
         progress.stage(f"assessing the divide between {request.side_a} and {request.side_b} "
                        f"({dem.shape[0]} x {dem.shape[1]} cells: routing, channels, χ, contrasts{robust})")
         progress.announce_cold_kernels()
-        result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
-                                progress=step, **request.options)
+        with tiled_routing(plan):
+            result = divides.assess(dem, request.side_a, request.side_b, lonlat=request.lonlat, **rasters,
+                                    progress=step, **request.options)
     progress.finish()
 
     progress.stage(f"writing the outputs to {out}")
@@ -508,6 +512,8 @@ def assess(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    tiled: opt.TiledOption = False,
+    scratch: opt.ScratchOption = None,
     runoff_alias: RunoffAlias = None,
     erodibility_alias: ErodibilityAlias = None,
     uplift_alias: UpliftAlias = None,
@@ -528,6 +534,7 @@ def assess(
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
     route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning)
     request = assess_request(
         side_a=side_a, side_b=side_b, lonlat=lonlat, theta=theta, channel_area=channel_area,
         reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,
@@ -546,5 +553,6 @@ def assess(
                                overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
-        result, written = run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress)
+        result, written = run_assessment(read, request, out=folder, overwrite=overwrite, progress=progress,
+                                         by_tiles=by_tiles)
     print_result(result, written, json_output=json_output)

@@ -37,6 +37,10 @@ __all__ = [
     "SeaLevelOption",
     "ConditioningOption",
     "DemOptions",
+    "TiledOption",
+    "ScratchOption",
+    "TiledOptions",
+    "tiled_options",
     "RouteOptions",
     "check_dem_path",
     "parse_number",
@@ -138,6 +142,25 @@ ConditioningOption = Annotated[
         "--conditioning",
         metavar="fill|breach",
         help="How depressions are removed before routing: fill them, or breach pits first (high-resolution DEMs).",
+    ),
+]
+
+TiledOption = Annotated[
+    bool,
+    typer.Option(
+        "--tiled",
+        help="Condition and route the DEM tile by tile (scratch tiles on disk), as done by itself when "
+        "in-memory routing would not fit; the analyses after routing still hold the grid in memory.",
+    ),
+]
+ScratchOption = Annotated[
+    str | None,
+    typer.Option(
+        "--scratch",
+        metavar="DIR",
+        help="Folder for the intermediate tiles of the tiled path (default: the system's temporary folder; "
+        "about 19 B per DEM cell).",
+        show_default=False,
     ),
 ]
 
@@ -443,6 +466,70 @@ def route_options(
         else parse_number(sea_level, option="--sea-level", accepted="an elevation in metres"),
         closed_edges=parse_closed_edges(closed_edges),
     )
+
+
+@dataclass(frozen=True)
+class TiledOptions:
+    """``--tiled`` and ``--scratch``, checked; :meth:`read` reads the DEM and picks in-memory or tiled routing."""
+
+    tiled: bool = False
+    scratch: str | None = None
+    conditioning: str = "fill"
+
+    def read(self, read: DemOptions, task: str, remedy: str):
+        """Read the DEM under the memory guard and choose how to route it.
+
+        The guard lets the read through when the task fits with in-memory routing or
+        with routing by tiles; after the read, routing goes by tiles when ``--tiled``
+        was given or in-memory routing would not fit. When neither fits, one line
+        names the need and ``remedy`` (e.g. ``--bounds``), before any cell is read.
+
+        Returns
+        -------
+        (Dem, TiledPlan or None)
+            The DEM, and the plan for :func:`divides.terrain.tiled_flow.tiled_routing`
+            (None: route in memory).
+        """
+        import divides
+        from divides.io.memory import BYTES_PER_CELL, MemoryNeed, fits
+        from divides.terrain.tiled_flow import TiledPlan
+
+        in_memory = BYTES_PER_CELL[task]
+        by_tiles = BYTES_PER_CELL[f"{task}_tiled"] if self.conditioning == "fill" else in_memory
+        if self.tiled:
+            need = MemoryNeed(f"{task} (routing by tiles)", by_tiles, remedy)
+        elif by_tiles < in_memory:
+            need = MemoryNeed(f"{task} (even routing by tiles)", by_tiles, remedy)
+        else:  # routing is not this task's peak: tiles would not help, the guard names the remedy
+            need = MemoryNeed(task, in_memory, remedy)
+        dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
+        cells = dem.shape[0] * dem.shape[1]
+        auto = self.conditioning == "fill" and not fits(cells, in_memory)
+        plan = TiledPlan(scratch=self.scratch) if self.tiled or auto else None
+        return dem, plan
+
+
+def tiled_options(tiled: bool = False, scratch: str | None = None, *, conditioning: str = "fill") -> TiledOptions:
+    """Check ``--tiled`` and ``--scratch`` before any work.
+
+    Raises
+    ------
+    ParameterError
+        ``--tiled`` with ``--conditioning breach`` (the tiled path fills only).
+    OutputError
+        The scratch folder is a file or cannot take new files.
+    """
+    if tiled and conditioning != "fill":
+        raise ParameterError("--tiled conditions by filling only; drop --conditioning breach or --tiled")
+    if scratch is not None:
+        folder = Path(scratch).expanduser()
+        if folder.exists() and not folder.is_dir():
+            raise OutputError(f"--scratch '{scratch}' is a file; give a folder for the intermediate tiles")
+        parent = folder if folder.exists() else next((q for q in folder.parents if q.exists()), Path("."))
+        if not os.access(parent, os.W_OK | os.X_OK):
+            raise OutputError(f"--scratch '{scratch}': cannot write in '{parent}'; give a writable folder")
+        scratch = str(folder)
+    return TiledOptions(tiled=tiled, scratch=scratch, conditioning=conditioning)
 
 
 @contextlib.contextmanager

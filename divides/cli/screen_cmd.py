@@ -83,6 +83,8 @@ def screen(
     closed_edges: opt.ClosedEdgesOption = None,
     workers: WorkersOption = None,
     scheduler: SchedulerOption = None,
+    tiled: opt.TiledOption = False,
+    scratch: opt.ScratchOption = None,
     seed: opt.SeedOption = 0,
     top: TopOption = 10,
     out: opt.OutOption = None,
@@ -112,6 +114,7 @@ def screen(
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
     route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning)
     level = opt.parse_choice(level, option="--level", choices=LEVEL_CHOICES)
     theta_value = opt.parse_bounded(theta, option="--theta", unit="(m/n)", low=0, high=2,
                                     typical="0.35 to 0.6 in most rivers")
@@ -137,26 +140,26 @@ def screen(
                                overwrite=overwrite)
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
-        import divides
         from divides.assess.screen import screen as run_screen
         from divides.cli.dem_checks import check_enough_cells
         from divides.report.screening import write_screening
+        from divides.terrain.tiled_flow import tiled_routing
 
         # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
-        from divides.io.memory import MemoryNeed
-
-        need = MemoryNeed.of("screen", "screen a smaller window with --bounds")
-        dem_obj = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
+        dem_obj, plan = by_tiles.read(read, "screen", "screen a smaller window with --bounds")
         check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
         with progress.held(HOLD_SECONDS):
             progress.stage(f"read the DEM {Path(read.path).name} ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells)")
-            progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level})")
+            routing = "" if plan is None else ", routing by tiles"
+            progress.stage(f"screening every divide ({dem_obj.shape[0]} x {dem_obj.shape[1]} cells, level {level}"
+                           f"{routing})")
             progress.announce_cold_kernels()
-            result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                                workers=workers, scheduler=scheduler, **grids,
-                                **{k: v for k, v in options.items() if v is not None})
+            with tiled_routing(plan):
+                result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
+                                    workers=workers, scheduler=scheduler, **grids,
+                                    **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
         written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)
     if json_output:  # the document written, provenance included

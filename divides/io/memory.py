@@ -14,21 +14,26 @@ from dataclasses import dataclass
 
 from divides.errors import GridError
 
-__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "format_bytes",
-           "MEMORY_LIMIT_ENV"]
+__all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "fits",
+           "format_bytes", "MEMORY_LIMIT_ENV"]
 
-#: Peak bytes per DEM cell of each in-memory task, beyond reading the DEM itself.
-#: route: fill + flats + D8 + order + area, 31 B/cell (bench_flow.py, 4000²) plus the
+#: Peak bytes per DEM cell of each task, beyond reading the DEM itself; ``<task>_tiled`` is the
+#: same task with conditioning and routing by tiles (:mod:`divides.terrain.tiled_flow`).
+#: route: fill + flats + D8 + order + area, 31-37 B/cell (bench_flow.py, 2000²-4000²) plus the
 #: elevation kept by the caller; inspect: routing + basins (bench_flow.py + one label grid);
-#: screen: 10.7 GiB at 10⁸ cells (bench_screen.py, 10 000², recorded in the issue) = 115 B/cell,
-#: plus one χ scratch grid (8 B/cell) per extra thread;
-#: assess: 1.1 GB at 2000² less the 0.25 GB interpreter (bench_assess.py) ≈ 215 B/cell;
+#: screen: 4.92 GiB at 10⁸ cells (bench_screen_cli.py, 10 000², 3 December 2026) = 50 B/cell with
+#: the read, 64 B/cell at 4000² (sampled RSS less the interpreter, outputs included) -> 60 beyond the
+#: read; its peak comes after routing (near-divide fields, outputs), so routing by tiles does not lower it;
+#: assess: 964 MB at 2000² less the 0.25 GB interpreter (bench_assess.py) = 178 B/cell -> 190, whose
+#: peak is not routing either;
 #: forecast: one model grid set per run (bench_model.py: ~16 float64 grids) ≈ 130 B/cell.
 BYTES_PER_CELL: dict[str, float] = {
     "route": 40.0,
     "inspect": 60.0,
-    "screen": 130.0,
-    "assess": 220.0,
+    "screen": 60.0,
+    "screen_tiled": 60.0,
+    "assess": 190.0,
+    "assess_tiled": 190.0,
     "forecast": 130.0,
 }
 
@@ -155,6 +160,11 @@ def available_bytes() -> int:
 def read_bytes_per_cell(source_itemsize: int, *, wide: bool) -> float:
     """Peak bytes per cell of reading: the raw band, the float elevations, the valid and nodata masks."""
     return source_itemsize + (8 if wide else 4) + 2
+
+
+def fits(cells: int, bytes_per_cell: float) -> bool:
+    """Whether ``cells`` more cells at ``bytes_per_cell`` fit in the memory usable now (85 % of what is free)."""
+    return cells * bytes_per_cell <= available_bytes() * _USABLE_SHARE
 
 
 def check_fits(name: str, rows: int, cols: int, read_per_cell: float, need: MemoryNeed | None) -> None:

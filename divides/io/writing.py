@@ -10,7 +10,7 @@ import json
 import math
 import os
 import secrets
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from contextlib import contextmanager, suppress
 from pathlib import Path
 from typing import Any
@@ -22,7 +22,7 @@ import rasterio.errors
 from divides.errors import DividesError, GridError, OutputError, ParameterError
 from divides.io.dem import Dem
 
-__all__ = ["atomic_write", "write_raster", "write_text", "write_json"]
+__all__ = ["atomic_write", "write_raster", "write_text", "write_json", "write_feature_collection"]
 
 #: Rasters at least this many cells on each side are written in square tiles
 #: of this size (GeoTIFF tiles must be multiples of 16; 256 is common practice).
@@ -242,8 +242,55 @@ def write_json(
     TypeError
         ``obj`` holds something JSON cannot represent (raised before any file is created).
     """
-    text = json.dumps(_jsonable(obj), indent=indent, ensure_ascii=False, allow_nan=False) + "\n"
-    return write_text(path, text, parents=parents)
+    return write_text(path, _dumps(obj, indent) + "\n", parents=parents)
+
+
+def write_feature_collection(path: str | os.PathLike, features: Iterable[dict], *, parents: bool = False) -> Path:
+    """Write a GeoJSON FeatureCollection (RFC 7946) atomically, one feature per line as it comes.
+
+    The same JSON rules as :func:`write_json`; a long layer (every divide of a
+    mountain belt) is never held as one string, and ``features`` may be a generator.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Output file.
+    features : iterable of dict
+        GeoJSON Feature objects.
+    parents : bool
+        Create missing parent directories.
+
+    Returns
+    -------
+    pathlib.Path
+        The written file.
+    """
+    target = Path(os.fspath(path))
+    with atomic_write(target, parents=parents) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        fh.write('{"type": "FeatureCollection", "features": [')
+        for i, feature in enumerate(features):
+            fh.write(("," if i else "") + "\n" + _dumps(feature, None))
+        fh.write("\n]}\n")
+    return target
+
+
+def _dumps(obj: Any, indent: int | None) -> str:
+    """Strict JSON text of ``obj`` (NaN and inf as null, NumPy values as numbers)."""
+    try:  # fast path: the encoder walks the document once; NumPy values and paths through _default
+        return json.dumps(obj, indent=indent, ensure_ascii=False, allow_nan=False, default=_default)
+    except (ValueError, TypeError):  # a NaN/inf to turn into null, or a key JSON cannot take as it is
+        return json.dumps(_jsonable(obj), indent=indent, ensure_ascii=False, allow_nan=False)
+
+
+def _default(obj: Any) -> Any:
+    """What the JSON encoder cannot write itself: NumPy values and paths (anything else: TypeError)."""
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, np.generic):
+        return obj.item()
+    if isinstance(obj, os.PathLike):
+        return os.fspath(obj)
+    raise TypeError(f"Object of type {type(obj).__name__} is not JSON serializable")
 
 
 # ---------------------------------------------------------------------- helpers

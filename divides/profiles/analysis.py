@@ -156,6 +156,7 @@ def analyse_profiles(
     n: float = 1.0,
     n_boot: int = 100,
     seed: int = 0,
+    chi_only: bool = False,
 ) -> ProfileAnalysis:
     """Analyse the river profiles of both sides of a divide.
 
@@ -189,6 +190,10 @@ def analyse_profiles(
         Bootstrap resamples for the concavity intervals.
     seed : int
         Random seed.
+    chi_only : bool
+        With a numeric ``theta``: χ only, the same as in the full analysis, without
+        concavity, ksn, segmentation or knickpoints (empty), for passes that read χ
+        alone (an assessment's robustness re-runs).
 
     Returns
     -------
@@ -214,6 +219,8 @@ def analyse_profiles(
     root = _k.network_root(down, keep)
     z_own = np.where(root >= 0, z - z[np.maximum(root, 0)], np.nan)
 
+    if chi_only and not isinstance(theta, str):
+        return _chi_only(channels, base, float(theta), a0, area, factor, keep, side, weights)
     conc = {}
     for name, sel in (("a", base.kept_a), ("b", base.kept_b), ("both", keep)):
         # each network (root) is one basin, scored against its own trunk; never one pooled cloud
@@ -305,6 +312,20 @@ def analyse_profiles(
         channels=channels, base=base, theta=float(theta_value), theta_source=source, a0=float(a0),
         concavity=conc, chi=chi, side=side, ksn=ksn, ksn_se=ksn_se, ksn_slope_area=ksn_sa, streams=streams,
         chi_outlet=chi_outlet, knickpoints=knickpoints, n_candidate_breaks=len(candidates),
+        weights={} if weights is None else weights.description,
+    )
+
+
+def _chi_only(channels: Channels, base: BaseLevel, theta: float, a0: float, area, factor, keep, side,
+              weights) -> ProfileAnalysis:
+    """χ from the common base level as in :func:`analyse_profiles`; every other part empty."""
+    chi = integrate_chi(channels.down, channels.step, area, theta=theta, a0=a0, keep=keep, weight=factor,
+                        start_m=base.start_m if base.start_m.size == channels.size else None)
+    empty = np.full(channels.size, np.nan)
+    return ProfileAnalysis(
+        channels=channels, base=base, theta=theta, theta_source="user" if theta != REFERENCE_THETA else "reference",
+        a0=float(a0), concavity={}, chi=chi, side=side, ksn=empty, ksn_se=empty.copy(), ksn_slope_area=empty.copy(),
+        streams=[], chi_outlet=empty.copy(), knickpoints=[], n_candidate_breaks=0,
         weights={} if weights is None else weights.description,
     )
 

@@ -16,13 +16,13 @@ from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 
 from divides.assess.verdict import CAUTION
-from divides.io.writing import atomic_write, write_json, write_text
+from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
 
 from divides.report import figures as _figures
 from divides.report.figures import _HALO, _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
 from divides.report.labels import parameter_label, parameter_value
-from divides.report.layers import _collection, _feature, _lonlat, csv_text
+from divides.report.layers import _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
 from divides.report.text import provenance_line
@@ -74,13 +74,15 @@ def segment_features(result: Screening) -> list[dict]:
 
 def gap_features(result: Screening) -> list[dict]:
     """RFC 7946 LineString features (WGS 84 lon/lat), one per stretch of divide left unjudged, with its reason."""
-    features = []
+    return list(_iter_gap_features(result))
+
+
+def _iter_gap_features(result: Screening):
+    # one feature at a time, so a belt's layer is written without holding every vertex as Python floats
     for g in result.gaps:
         lon, lat = _lonlat(result.dem, g["line"].x, g["line"].y)
-        features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
-                                 {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"],
-                                  "reason": g["reason"]}))
-    return features
+        yield _feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
+                       {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"], "reason": g["reason"]})
 
 
 def regional_map(result: Screening):
@@ -134,12 +136,8 @@ def regional_map(result: Screening):
                 va="center", zorder=6, bbox={"boxstyle": "circle,pad=0.15", "fc": "white", "ec": "black", "lw": 0.6})
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
-    labels = result.labels
-    rows, cols = np.indices(labels.shape)
-    count = np.bincount(labels.ravel())
-    for lab in np.flatnonzero(count)[1:] if count.size > 1 else []:  # basin labels at their centroids
-        sel = labels == lab
-        x, y = dem.xy(rows[sel].mean(), cols[sel].mean())
+    for lab, row, col in _centroids(result.labels):  # basin labels at their centroids
+        x, y = dem.xy(row, col)
         ax.text(float(x) * frame.scale, float(y) * frame.scale, f"B{lab}", fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
     handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
@@ -156,6 +154,28 @@ def regional_map(result: Screening):
                  label="instability = calibrated probability that the segment moves")
     ax.set_title("Divide segments by instability; arrows point toward the basin losing ground", fontsize=10)
     return fig
+
+
+def _centroids(labels: np.ndarray, block_rows: int = 512) -> list[tuple[int, float, float]]:
+    """(label, mean row, mean column) of every label > 0, in one pass over row blocks.
+
+    Sums by ``np.bincount`` are exact integers in float64, so the means equal a mean over
+    each label's cells; memory stays at a block, not an index grid per axis.
+    """
+    top = int(labels.max()) if labels.size else 0
+    count = np.zeros(top + 1)
+    row_sum = np.zeros(top + 1)
+    col_sum = np.zeros(top + 1)
+    cols = np.arange(labels.shape[1], dtype=np.float64)
+    for r0 in range(0, labels.shape[0], block_rows):
+        block = labels[r0: r0 + block_rows]
+        flat = block.ravel()
+        per_row = np.repeat(np.arange(r0, r0 + block.shape[0], dtype=np.float64), block.shape[1])
+        count += np.bincount(flat, minlength=top + 1)
+        row_sum += np.bincount(flat, weights=per_row, minlength=top + 1)
+        col_sum += np.bincount(flat, weights=np.tile(cols, block.shape[0]), minlength=top + 1)
+    return [(int(lab), row_sum[lab] / count[lab], col_sum[lab] / count[lab]) for lab in np.flatnonzero(count)
+            if lab > 0]
 
 
 def _parameter_table(params: dict) -> str:
@@ -245,8 +265,9 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
     with staged_output(out_dir, overwrite=overwrite, cli=cli) as tmp:
         write_json(tmp / "screening.json", document)
         if result.dem.crs is not None:
-            write_json(tmp / "segments.geojson", _collection(segment_features(result)))
-            write_json(tmp / "layers" / "screen_gaps.geojson", _collection(gap_features(result)), parents=True)
+            write_feature_collection(tmp / "segments.geojson", segment_features(result))
+            write_feature_collection(tmp / "layers" / "screen_gaps.geojson", _iter_gap_features(result),
+                                     parents=True)
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
         fig = regional_map(result)
         png = to_png(fig)

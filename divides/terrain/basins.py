@@ -70,16 +70,16 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
     area = flow.area.ravel()
     rec = flow.receivers
     n = rec.size
-    big = area >= min_area_m2
     is_outlet = rec == np.arange(n, dtype=rec.dtype)
-    seeds = big & is_outlet
-    if level == "tributaries":
-        donor = big & ~is_outlet
-        n_big = np.bincount(rec[donor], minlength=n)
-        seeds |= donor & (n_big[rec] >= 2)
-    values = np.zeros(n, dtype=np.float64)
+    seeds = (area >= min_area_m2) & is_outlet
+    if level == "tributaries":  # donors of cells that receive two or more big donors (junctions)
+        donor = np.flatnonzero((area >= min_area_m2) & ~is_outlet)
+        into, count = np.unique(rec[donor], return_counts=True)
+        seeds[donor[np.isin(rec[donor], into[count >= 2])]] = True
+    del is_outlet
     if level == "edges":
         seeds = np.zeros(n, dtype=bool)
+        values = np.zeros(n, dtype=np.float32)  # labels 1-4, exact in float32
         for edge in ("west", "south", "east", "north"):  # a corner goes to the later edge in this list
             idx = edge_outlets(flow, edge)
             seeds[idx] = True
@@ -87,10 +87,14 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
     else:
         seed_idx = np.flatnonzero(seeds)
         ranking = seed_idx[np.argsort(-area[seed_idx], kind="stable")]
+        # whole labels below 2**24 are exact in float32 (half the memory of float64)
+        values = np.zeros(n, dtype=np.float32 if ranking.size < 2**24 else np.float64)
         values[ranking] = np.arange(1, ranking.size + 1)
-    out = np.full(n, np.nan)
+    out = np.full(n, np.nan, dtype=values.dtype)
     _rk.first_downstream_value(flow.order, rec, seeds, values, out)
-    labels = np.nan_to_num(out, nan=0.0).astype(np.int32)
+    del values, seeds
+    labels = np.nan_to_num(out, nan=0.0, copy=False).astype(np.int32)
+    del out
     if level == "edges":  # drop edge regions smaller than the minimum
         sizes = np.bincount(labels, weights=np.repeat(flow.dem.cell_area, flow.shape[1]), minlength=5)
         labels[sizes[labels] < min_area_m2] = 0

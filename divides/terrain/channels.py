@@ -211,7 +211,7 @@ class Channels:
     @cached_property
     def step(self) -> np.ndarray:
         """Distance (m) from each channel cell to its downstream cell (0 at outlets)."""
-        return self.flow.distance[self.cells]
+        return self.flow.distance_at(self.cells)
 
     @cached_property
     def distance_upstream(self) -> np.ndarray:

@@ -69,6 +69,15 @@ class FlowGraph:
         _k.receiver_distance(self.receivers, self.direction, self.shape[1], self._row_distances, out)
         return out
 
+    def distance_at(self, cells: np.ndarray) -> np.ndarray:
+        """:attr:`distance` at some cells only (flat indices), without building it for the grid."""
+        if "distance" in self.__dict__:
+            return self.distance[cells]
+        cells = np.asarray(cells)
+        code = self.direction.ravel()[cells]
+        step = self._row_distances[cells // self.shape[1], np.minimum(code, 7)]
+        return np.where(code < 8, step, 0.0)
+
     @cached_property
     def outlets(self) -> np.ndarray:
         """Flat indices of the valid cells that drain off the grid."""
@@ -89,8 +98,28 @@ class FlowGraph:
         The order is depth-first, so the cells upstream of ``i`` are exactly
         ``order[order_position[i] : order_position[i] + upstream_count[i]]``.
         """
-        counts = self.accumulate(self.dem.valid.astype(np.float64)).ravel()
-        return counts.astype(self.receivers.dtype)
+        # integer counts summed straight into the index dtype (no float64 grid on the way)
+        counts = np.zeros(self.receivers.size, dtype=self.receivers.dtype)
+        _k.accumulate_down(self.order, self.receivers, self.dem.valid.ravel(), counts)
+        return counts
+
+    def runs_of(self, cells: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """:attr:`order_position` and :attr:`upstream_count` at some cells (flat indices).
+
+        Uses the cached grids when they exist; otherwise builds them for this call
+        only and lets them go (a caller about to build grid-sized arrays of its own
+        need not hold them too).
+        """
+        if "order_position" in self.__dict__ and "upstream_count" in self.__dict__:
+            return self.order_position[cells], self.upstream_count[cells]
+        itype = self.receivers.dtype
+        position = np.full(self.receivers.size, -1, dtype=itype)
+        position[self.order] = np.arange(self.order.size, dtype=itype)
+        p = position[cells]
+        del position
+        counts = np.zeros(self.receivers.size, dtype=itype)
+        _k.accumulate_down(self.order, self.receivers, self.dem.valid.ravel(), counts)
+        return p, counts[cells]
 
     def upstream_cells(self, i: int) -> np.ndarray:
         """Flat indices of the cells draining through cell ``i`` (itself first)."""
@@ -235,6 +264,12 @@ def route(
     >>> float(flow.area.max())  # the north edge collects one column of interior cells
     400.0
     """
+    if not isinstance(conditioning, Conditioned):  # inside a tiled_routing block: route by tiles
+        from divides.terrain.tiled_flow import route_if_planned
+
+        tiled = route_if_planned(dem, conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+        if tiled is not None:
+            return tiled
     if isinstance(conditioning, Conditioned):
         cond = conditioning
         if cond.surface.shape != dem.shape:

@@ -107,7 +107,7 @@ def test_second_run_into_the_default_folder_names_both_ways_out(capsys, write_ge
     assert "--overwrite" in err and "--out" in err
     # assess has its own default folder: no collision with the screening's (the work itself is not needed here)
     chosen = []
-    monkeypatch.setattr(assess_cmd, "run_assessment", lambda read, request, *, out, overwrite, progress:
+    monkeypatch.setattr(assess_cmd, "run_assessment", lambda read, request, *, out, overwrite, progress, **_:
                         chosen.append(out) or (None, out))
     monkeypatch.setattr(assess_cmd, "print_result", lambda result, out, *, json_output: None)
     code, out, err = _run(capsys, ["assess", str(dem), "--side-a", "west", "--side-b", "east", "--quiet"])

@@ -80,7 +80,7 @@ def test_a_window_that_fits_is_read(tmp_path, monkeypatch):
 
 def test_the_task_need_is_added_to_the_read(tmp_path, monkeypatch):
     # 2000 x 2000 cells of float32: read 10 B/cell = 38 MiB fits in 100 MiB, but screening at
-    # 130 B/cell (520 MB) does not; the message names the task and the remedy given.
+    # 60 B/cell (240 MB) does not; the message names the task and the remedy given.
     monkeypatch.setenv(memory.MEMORY_LIMIT_ENV, "100M")
     path = tmp_path / "mid.tif"
     _sparse_geotiff(path, 2000, 2000, corner=True)

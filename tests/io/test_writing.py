@@ -242,3 +242,23 @@ def test_write_json_refuses_unknown_objects_before_creating_a_file(tmp_path: Pat
     with pytest.raises(TypeError):
         write_json(tmp_path / "bad.json", {"x": object()})
     assert list(tmp_path.iterdir()) == []
+
+
+def test_feature_collection_streams_strict_geojson(tmp_path):
+    # Reference: the standard library's JSON parser (RFC 8259) and RFC 7946's FeatureCollection layout.
+    import json
+
+    from divides.io.writing import write_feature_collection
+
+    def features():  # a generator: the writer must not need a list
+        yield {"type": "Feature", "geometry": {"type": "LineString", "coordinates": [[7.0, 46.0], [7.5, 46.25]]},
+               "properties": {"n": np.int64(3), "x": np.float32(0.5), "bad": float("nan")}}
+        yield {"type": "Feature", "geometry": None, "properties": {"path": tmp_path.name}}
+
+    out = write_feature_collection(tmp_path / "sub" / "layer.geojson", features(), parents=True)
+    doc = json.loads(out.read_text(), parse_constant=lambda c: pytest.fail(f"non-strict constant {c}"))
+    assert doc["type"] == "FeatureCollection" and len(doc["features"]) == 2
+    assert doc["features"][0]["properties"] == {"n": 3, "x": 0.5, "bad": None}
+    assert doc["features"][0]["geometry"]["coordinates"][1] == [7.5, 46.25]
+    empty = write_feature_collection(tmp_path / "empty.geojson", [])
+    assert json.loads(empty.read_text()) == {"type": "FeatureCollection", "features": []}

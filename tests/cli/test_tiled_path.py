@@ -1,0 +1,88 @@
+"""``--tiled``/``--scratch`` and the automatic tiled path of ``divides screen`` and ``assess``.
+
+Reference for the results: the in-memory path of the same command on the same DEM (routing by
+tiles equals in-memory routing: tests/terrain/test_tiled_flow.py, whose reference is
+test_routing.py's scikit-image and networkx checks). The demo landscape is a float32 GeoTIFF
+of 30 m cells, so drainage areas are whole m² and every number must match.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from divides.cli.app import run
+from divides.io import memory
+
+UPLANDS = str(Path(__file__).resolve().parents[2] / "demo" / "uplands.tif")
+
+
+def _judged(folder: Path) -> dict:
+    doc = json.loads((folder / "screening.json").read_text())
+    return {k: doc[k] for k in ("segments", "gaps", "coverage", "n_basins")}
+
+
+def test_screen_tiled_equals_in_memory_and_clears_its_scratch(tmp_path, capsys):
+    scratch = tmp_path / "scratch"
+    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled", "--scratch", str(scratch)]) == 0
+    capsys.readouterr()
+    assert _judged(tmp_path / "tiles") == _judged(tmp_path / "mem")
+    assert scratch.is_dir() and list(scratch.iterdir()) == []  # the intermediate tiles are gone
+
+
+def test_tiled_path_starts_by_itself_when_routing_would_not_fit(tmp_path, capsys, monkeypatch):
+    # No machine here is too small for the demo: make "in-memory routing fits" false, as the
+    # guard would find on a DEM larger than memory, and the command must route by tiles itself.
+    monkeypatch.setattr(memory, "fits", lambda cells, per_cell: False)
+    code = run(["screen", UPLANDS, "--out", str(tmp_path / "auto"), "--level", "outlets"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert "routing by tiles" in captured.err
+
+
+@pytest.mark.parametrize("command", ["screen", "assess"])
+def test_tiled_with_breaching_is_one_line(tmp_path, capsys, command):
+    sides = ["--side-a", "west", "--side-b", "east"] if command == "assess" else []
+    out = tmp_path / "never"
+    code = run([command, UPLANDS, *sides, "--out", str(out), "--tiled", "--conditioning", "breach"])
+    captured = capsys.readouterr()
+    lines = captured.err.strip().splitlines()
+    assert code == 2 and len(lines) == 1 and "--tiled" in lines[0] and "Traceback" not in captured.err
+    assert not out.exists()
+
+
+def test_scratch_that_is_a_file_is_one_line(tmp_path, capsys):
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    code = run(["screen", UPLANDS, "--out", str(tmp_path / "never"), "--tiled", "--scratch", str(blocker)])
+    lines = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(lines) == 1 and "--scratch" in lines[0]
+
+
+@pytest.mark.parametrize("tiled", [False, True])
+def test_when_nothing_fits_the_guard_names_bounds(tmp_path, capsys, monkeypatch, tiled):
+    # 100 kB cannot hold the demo (36 000 cells x tens of bytes) on either path.
+    monkeypatch.setenv(memory.MEMORY_LIMIT_ENV, "100K")
+    out = tmp_path / "never"
+    code = run(["screen", UPLANDS, "--out", str(out)] + (["--tiled"] if tiled else []))
+    captured = capsys.readouterr()
+    lines = captured.err.strip().splitlines()
+    assert code == 2 and len(lines) == 1, captured.err
+    assert "too large for memory" in lines[0] and "--bounds" in lines[0]
+    assert ("routing by tiles" in lines[0]) == tiled
+    assert not out.exists()
+
+
+def test_assess_tiled_equals_in_memory(tmp_path, capsys):
+    base = ["assess", UPLANDS, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
+            "--no-robustness", "--quiet"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled", "--scratch", str(tmp_path / "scratch")]) == 0
+    capsys.readouterr()
+    mem, tiles = (json.loads((tmp_path / name / "summary.json").read_text()) for name in ("mem", "tiles"))
+    for key in ("verdict", "contrasts", "divide"):
+        assert tiles[key] == mem[key], key
