@@ -33,6 +33,11 @@ _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
 MIN_SEGMENT_CELLS = 4
 
+#: Segments shorter than this (in cells) are judged on samples pooled with the segments that
+#: continue them (:func:`_pool_short`); chosen on the training cases of the regional benchmark
+#: (docs/validation.md, *Regional screening*).
+MIN_JUDGED_CELLS = 60
+
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
                   "is calibrated on divides between basins that drain apart)")
@@ -83,7 +88,7 @@ class Screening:
             "coverage": self.coverage,
             "gaps": [{k: g[k] for k in ("basins", "length_m", "reason")} for g in self.gaps],
             "segments": [{k: s[k] for k in SEGMENT_PROPERTIES}
-                         | {k: s[k] for k in ("reason", "probabilities", "contrasts")}
+                         | {k: s[k] for k in ("reason", "probabilities", "contrasts", "judged_length_m")}
                          for s in self.segments],
             "caution": CAUTION,
         })
@@ -266,7 +271,7 @@ def _assess_pair(task: tuple, st: dict, scratch: np.ndarray) -> list[dict]:
                                           mirrored=mirrored)
             # no robustness re-runs per segment; the probability is calibrated on main divides only
             verdict = decide(contrasts, same_channel=mirrored, min_confidence=config.min_confidence)
-            out.append(_row(seg, pts, contrasts, verdict))
+            out.append(_row(seg, pts, contrasts, verdict) | {"pts": pts, "base": base, "mirrored": mirrored})
     finally:
         scratch[cells] = np.nan
     return out
@@ -290,6 +295,119 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             # neighbouring basins that drain the same way, where metrics are less telling
             "facing_share": float(np.mean(pts.facing >= MIN_FACING)) if pts.size else 0.0,
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
+
+
+def _chord_normal(line: DivideLine) -> np.ndarray:
+    """Unit right-hand normal (column, -row: east, north in cells) of a line's first-to-last chord."""
+    east, north = line.col[-1] - line.col[0], -(line.row[-1] - line.row[0])
+    size = math.hypot(east, north)
+    return np.array([north, -east]) / size if size > 0 else np.zeros(2)
+
+
+def _neighbours(rows: list[dict], reach_cells: float = 3.0) -> list[list[tuple[int, bool]]]:
+    """Judged segments that continue each other: ``(index, swapped)`` per segment.
+
+    Two segments continue each other when an end of one lies within ``reach_cells`` of a
+    vertex of the other (traced pieces of a divide overlap or stop short by a cell or two
+    at junctions) and their chord normals are within 60° of parallel (|cos| >= 0.5), so a
+    divide meeting another from the side (a lateral divide) is not a continuation.
+    ``swapped`` when the normals are opposed: the neighbour's side a is this one's side b.
+    """
+    from scipy.spatial import cKDTree
+
+    lines = [r["seg"].line for r in rows]
+    owner = np.concatenate([np.full(ln.row.size, k) for k, ln in enumerate(lines)])
+    tree = cKDTree(np.column_stack([np.concatenate([ln.row for ln in lines]), np.concatenate([ln.col for ln in lines])]))
+    normals = np.array([_chord_normal(ln) for ln in lines]).reshape(-1, 2)
+    touch: list[set] = [set() for _ in rows]
+    for k, ln in enumerate(lines):
+        for hits in tree.query_ball_point([(ln.row[0], ln.col[0]), (ln.row[-1], ln.col[-1])], reach_cells):
+            for j in set(owner[hits].tolist()) - {k}:
+                touch[k].add(j)
+                touch[j].add(k)  # touching is mutual: an end of k near j's middle joins both
+    out: list[list[tuple[int, bool]]] = []
+    for k in range(len(rows)):
+        cos = {j: float(normals[j] @ normals[k]) for j in sorted(touch[k])}
+        out.append([(j, c < 0) for j, c in cos.items() if abs(c) >= 0.5])
+    return out
+
+
+def _swap_sides(pts):
+    """The same divide points seen from the other side (a and b exchanged)."""
+    import dataclasses
+
+    return dataclasses.replace(
+        pts, cell_a=pts.cell_b, cell_b=pts.cell_a, head_a=pts.head_b, head_b=pts.head_a, ref_a=pts.ref_b,
+        ref_b=pts.ref_a, normal=-pts.normal, values={k: (v[1], v[0]) for k, v in pts.values.items()})
+
+
+def _pooled_points(parts: list) -> object:
+    """One DividePoints from several, in order; χ dropped (each pair's χ has its own base level)."""
+    import dataclasses
+
+    first = parts[0]
+    cat = {f: np.concatenate([getattr(p, f) for p in parts])
+           for f in ("x", "y", "distance_m", "elevation_m", "cell_a", "cell_b", "head_a", "head_b", "ref_a", "ref_b",
+                     "facing")}
+    cat["line"] = np.concatenate([np.full(p.size, k) for k, p in enumerate(parts)])
+    cat["normal"] = np.concatenate([p.normal.reshape(-1, 2) for p in parts])
+    values = {k: tuple(np.concatenate([p.values[k][s] for p in parts]) for s in (0, 1)) for k in first.values}
+    if "chi" in values:
+        values["chi"] = tuple(np.full(v.size, np.nan) for v in values["chi"])
+    return dataclasses.replace(first, values=values, **cat)
+
+
+def _pool_short(rows: list[dict], st: dict, min_length_m: float) -> list[dict]:
+    """Judge every segment shorter than ``min_length_m`` on its pooled neighbourhood.
+
+    The segment's samples are pooled with those of the segments that continue it along
+    the divide (:func:`_neighbours`), nearest first along the chain, until the pooled
+    stretch is at least ``min_length_m`` long or the chain ends; then the contrasts and
+    the calibrated decision are computed once more on the pooled samples (χ left out:
+    pairs of basins have their own base levels). A short segment alone has few
+    independent samples, and the decision model was fitted on whole divides; the
+    pooled verdict is about the stretch of divide around the segment, and
+    ``judged_length_m`` says how long it was.
+    """
+    judged = [i for i, r in enumerate(rows) if "pts" in r]
+    sub = [rows[i] for i in judged]
+    near = _neighbours(sub) if sub else []
+    config: AssessConfig = st["config"]
+    out = list(rows)
+    for k, i in enumerate(judged):
+        r = rows[i]
+        length = r["seg"].line.length_m
+        if length >= min_length_m:
+            out[i] = r | {"judged_length_m": length}
+            continue
+        chain, seen, frontier = [(k, False)], {k}, [(k, False)]
+        while frontier and length < min_length_m:
+            nxt = []
+            for j, flip in frontier:
+                for n, swap in near[j]:
+                    if n in seen:
+                        continue
+                    seen.add(n)
+                    nxt.append((n, flip ^ swap))
+            nxt.sort(key=lambda t: sub[t[0]]["seg"].line.length_m, reverse=True)
+            for n, flip in nxt:
+                if length >= min_length_m:
+                    break
+                chain.append((n, flip))
+                length += sub[n]["seg"].line.length_m
+            frontier = nxt
+        if len(chain) == 1:
+            out[i] = r | {"judged_length_m": length}
+            continue
+        pts = _pooled_points([_swap_sides(sub[n]["pts"]) if flip else sub[n]["pts"] for n, flip in chain])
+        contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=r["base"],
+                                      seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
+                                      mirrored=r["mirrored"])
+        verdict = decide(contrasts, same_channel=r["mirrored"], min_confidence=config.min_confidence)
+        pooled = _row(r["seg"], pts, contrasts, verdict)
+        pooled["mean_chi_a"], pooled["mean_chi_b"] = r["mean_chi_a"], r["mean_chi_b"]  # the segment's own χ
+        out[i] = r | pooled | {"judged_length_m": length}
+    return out
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -318,6 +436,7 @@ def screen(
     min_basin_area_m2: float | None = None,
     level: str = "tributaries",
     max_segment_m: float | None = None,
+    min_judged_m: float | None = None,
     workers: int | None = None,
     scheduler: str | None = None,
     runoff: np.ndarray | None = None,
@@ -336,6 +455,10 @@ def screen(
         Which basins (see :func:`divides.terrain.basins.basin_labels`).
     max_segment_m : float, optional
         Longer divide segments are cut into pieces (default: 100 cells).
+    min_judged_m : float, optional
+        Shorter segments are judged on the samples of the segments that continue them along
+        the divide, pooled up to this length (default :data:`MIN_JUDGED_CELLS` cells; see
+        :func:`_pool_short`).
     workers : int, optional
         Threads on this machine (default: the number of cores); ignored with ``scheduler``.
     scheduler : str, optional
@@ -371,6 +494,9 @@ def screen(
     max_len = float(max_segment_m) if max_segment_m is not None else 100.0 * cell
     if not (np.isfinite(max_len) and max_len > 4 * cell):
         raise ParameterError(f"max segment length must exceed four cells ({4 * cell:g} m); got {max_segment_m!r}")
+    pool_m = float(min_judged_m) if min_judged_m is not None else MIN_JUDGED_CELLS * cell
+    if not (np.isfinite(pool_m) and pool_m >= 0):
+        raise ParameterError(f"min judged length must be a number of metres >= 0; got {min_judged_m!r}")
     # every traced piece is kept (min_vertices=2), so each stretch of divide ends up in a segment or a gap
     outlet_of = _outlet_basins(flow, labels, min_area, level)
     by_pair: dict[tuple[int, int], list[DivideSegment]] = {}
@@ -405,7 +531,7 @@ def screen(
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     gaps += [r for r in rows if "gap" in r]
-    rows = [r for r in rows if "gap" not in r]
+    rows = _pool_short([r for r in rows if "gap" not in r], shared.data, pool_m)
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -420,6 +546,7 @@ def screen(
             "verdict": r["verdict"], "basis": r["basis"], "reason": r["reason"],
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
+            "judged_length_m": r["judged_length_m"],
             "line": seg.line,
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
@@ -428,7 +555,7 @@ def screen(
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
     used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
     params = {**used, "chi_weighted": weighted,
-              "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
+              "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len, "min_judged_m": pool_m,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
