@@ -297,38 +297,83 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
 
 
-def _chord_normal(line: DivideLine) -> np.ndarray:
-    """Unit right-hand normal (column, -row: east, north in cells) of a line's first-to-last chord."""
-    east, north = line.col[-1] - line.col[0], -(line.row[-1] - line.row[0])
-    size = math.hypot(east, north)
-    return np.array([north, -east]) / size if size > 0 else np.zeros(2)
+def _end_tangent(line: DivideLine, last: bool, reach_cells: float = 4.0) -> np.ndarray:
+    """Unit vector (row, col) from an end of a line into it, over about ``reach_cells``."""
+    rows, cols = (line.row[::-1], line.col[::-1]) if last else (line.row, line.col)
+    step = np.hypot(rows - rows[0], cols - cols[0])
+    k = int(min(np.searchsorted(step, reach_cells), rows.size - 1))
+    v = np.array([rows[k] - rows[0], cols[k] - cols[0]])
+    size = float(np.hypot(*v))
+    return v / size if size > 0 else v
 
 
-def _neighbours(rows: list[dict], reach_cells: float = 3.0) -> list[list[tuple[int, bool]]]:
-    """Judged segments that continue each other: ``(index, swapped)`` per segment.
+def _label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
+    """(row, col) of the outlet every label finally drains to (index = label; NaN for 0)."""
+    basins = flow.basins().ravel()
+    lab = labels.ravel()
+    outlet_cell = np.zeros(int(basins.max()) + 1, dtype=np.int64)
+    outlet_cell[basins[flow.outlets]] = flow.outlets
+    some_cell = np.full(int(lab.max()) + 1, -1, dtype=np.int64)
+    cells = np.flatnonzero(lab)
+    some_cell[lab[cells]] = cells  # any cell of the label: all of them drain to the same outlet
+    out = np.full((some_cell.size, 2), np.nan)
+    has = some_cell >= 0
+    has[0] = False
+    r, c = np.divmod(outlet_cell[basins[some_cell[has]]], flow.shape[1])
+    out[has] = np.column_stack([r, c])
+    return out
 
-    Two segments continue each other when an end of one lies within ``reach_cells`` of a
-    vertex of the other (traced pieces of a divide overlap or stop short by a cell or two
-    at junctions) and their chord normals are within 60° of parallel (|cos| >= 0.5), so a
-    divide meeting another from the side (a lateral divide) is not a continuation.
-    ``swapped`` when the normals are opposed: the neighbour's side a is this one's side b.
+
+def _drains_like(outlets: np.ndarray, at: np.ndarray, old: int, new: int) -> bool:
+    """True when basins ``old`` and ``new`` drain the same way from point ``at`` (outlets within 90°)."""
+    u, v = outlets[old] - at, outlets[new] - at
+    return bool(np.all(np.isfinite(u)) and np.all(np.isfinite(v)) and float(u @ v) > 0)
+
+
+def _continues(mine: DivideSegment, theirs: DivideSegment, swapped: bool, at: np.ndarray,
+               outlets: np.ndarray) -> bool:
+    """A neighbour continues a divide when it keeps one of its basins on the same side and the
+    basin it brings in on the other side drains the same way as the one it replaces (so a
+    lateral divide between two basins of one side is never a continuation of the divide they
+    share with the other side)."""
+    a, b = (theirs.label_b, theirs.label_a) if swapped else (theirs.label_a, theirs.label_b)
+    if a == mine.label_a and b != mine.label_b:
+        return _drains_like(outlets, at, mine.label_b, b)
+    if b == mine.label_b and a != mine.label_a:
+        return _drains_like(outlets, at, mine.label_a, a)
+    return False
+
+
+def _neighbours(rows: list[dict], outlets: np.ndarray, reach_cells: float = 5.0) -> list[list[tuple[int, bool]]]:
+    """The segment that continues each judged segment at either end: ``(index, swapped)`` pairs.
+
+    At each end, the candidates are the segments with an end within ``reach_cells`` (traced
+    pieces of one divide overlap or stop short by a few cells at junctions) that continue it
+    (:func:`_continues`); of those, the one whose end runs on most nearly straight (end
+    tangents more than 90° apart: overlapping ends of traced pieces bend a little).
+    ``swapped`` when the two meet end to end or start to
+    start: the neighbour's side a is then this one's side b (side a is left of a line's
+    direction).
     """
     from scipy.spatial import cKDTree
 
     lines = [r["seg"].line for r in rows]
-    owner = np.concatenate([np.full(ln.row.size, k) for k, ln in enumerate(lines)])
-    tree = cKDTree(np.column_stack([np.concatenate([ln.row for ln in lines]), np.concatenate([ln.col for ln in lines])]))
-    normals = np.array([_chord_normal(ln) for ln in lines]).reshape(-1, 2)
-    touch: list[set] = [set() for _ in rows]
-    for k, ln in enumerate(lines):
-        for hits in tree.query_ball_point([(ln.row[0], ln.col[0]), (ln.row[-1], ln.col[-1])], reach_cells):
-            for j in set(owner[hits].tolist()) - {k}:
-                touch[k].add(j)
-                touch[j].add(k)  # touching is mutual: an end of k near j's middle joins both
-    out: list[list[tuple[int, bool]]] = []
-    for k in range(len(rows)):
-        cos = {j: float(normals[j] @ normals[k]) for j in sorted(touch[k])}
-        out.append([(j, c < 0) for j, c in cos.items() if abs(c) >= 0.5])
+    ends = np.array([(ln.row[k], ln.col[k]) for ln in lines for k in (0, -1)]).reshape(-1, 2)
+    tangents = np.array([_end_tangent(ln, last) for ln in lines for last in (False, True)]).reshape(-1, 2)
+    tree = cKDTree(ends)
+    out: list[list[tuple[int, bool]]] = [[] for _ in rows]
+    for e, hits in enumerate(tree.query_ball_point(ends, reach_cells)):
+        k = e // 2
+        best, best_cos = None, 0.0
+        for h in hits:
+            if h // 2 == k:
+                continue
+            cos = float(tangents[e] @ tangents[h])
+            swapped = (e % 2) == (h % 2)
+            if cos < best_cos and _continues(rows[k]["seg"], rows[h // 2]["seg"], swapped, ends[e], outlets):
+                best, best_cos = h, cos
+        if best is not None and all(best // 2 != j for j, _ in out[k]):
+            out[k].append((best // 2, (e % 2) == (best % 2)))
     return out
 
 
@@ -357,7 +402,7 @@ def _pooled_points(parts: list) -> object:
     return dataclasses.replace(first, values=values, **cat)
 
 
-def _pool_short(rows: list[dict], st: dict, min_length_m: float) -> list[dict]:
+def _pool_short(rows: list[dict], st: dict, min_length_m: float, outlets: np.ndarray) -> list[dict]:
     """Judge every segment shorter than ``min_length_m`` on its pooled neighbourhood.
 
     The segment's samples are pooled with those of the segments that continue it along
@@ -371,7 +416,7 @@ def _pool_short(rows: list[dict], st: dict, min_length_m: float) -> list[dict]:
     """
     judged = [i for i, r in enumerate(rows) if "pts" in r]
     sub = [rows[i] for i in judged]
-    near = _neighbours(sub) if sub else []
+    near = _neighbours(sub, outlets) if sub else []
     config: AssessConfig = st["config"]
     out = list(rows)
     for k, i in enumerate(judged):
@@ -531,7 +576,7 @@ def screen(
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     gaps += [r for r in rows if "gap" in r]
-    rows = _pool_short([r for r in rows if "gap" not in r], shared.data, pool_m)
+    rows = _pool_short([r for r in rows if "gap" not in r], shared.data, pool_m, _label_outlets(flow, labels))
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []

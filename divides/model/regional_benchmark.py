@@ -282,8 +282,12 @@ def stretch_motion(positions: np.ndarray, times: np.ndarray, *, cell_m: float, t
 
 
 # ---------------------------------------------------------------------------- building
-def build(master_seed: int, index: int) -> RegionalCase:
-    """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth."""
+def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
+    """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth.
+
+    ``shape`` replaces the drawn grid (rows, cols) and leaves every other draw as it is
+    (small cases for fast tests).
+    """
     started = time.perf_counter()
     seed = case_seed(master_seed, index)
     rng = np.random.default_rng(seed)
@@ -291,6 +295,10 @@ def build(master_seed: int, index: int) -> RegionalCase:
     mirror = (index // len(FAMILIES)) % 2 == 1
     rows = int(rng.integers(RANGES["rows"][0], RANGES["rows"][1] + 1))
     cols = int(rng.integers(RANGES["cols"][0], RANGES["cols"][1] + 1))
+    if shape is not None:
+        rows, cols = (int(v) for v in shape)
+        if rows < 30 or cols < 30:
+            raise ParameterError(f"a regional case needs at least 30 x 30 cells; got {shape!r}")
     cell = float(rng.uniform(*RANGES["cell_m"]))
     theta = float(rng.uniform(*RANGES["theta"]))
     lo, hi = RANGES["uplift_m_per_yr"]
@@ -449,6 +457,9 @@ def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
         "stretches": len(case.stretches), "coverage": screening.coverage.get("share"),
         "segments": len(screening.segments), "main_segments": len(main),
         "alarms": len(alarms), "max_alarm": max((s["instability"] for s in alarms), default=None),
+        "alarms_main": sum(1 for m in main if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
+                           and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"]),
+        "main_insufficient": sum(1 for m in main if m["instability"] is None),
     }
     out["main"] = main
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",

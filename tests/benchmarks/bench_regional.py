@@ -41,7 +41,7 @@ def _line(r: dict) -> str:
             f"moving {r['moving_stretches']:>2} stable {r['stable_stretches']:>2} of {r['stretches']:<2} cov {_fmt(r['coverage'], '.0%'):>4} "
             f"seg {r['segments']:>3} main {r['main_segments']:>3} (mov {r['moving_segments']}, stab "
             f"{r['stable_segments']}) top {top} top_ok {r['top_ok']} order {r['order_ok']} "
-            f"({r['order_violations']}) alarms {r['alarms']} max {_fmt(r['max_alarm'])}")
+            f"({r['order_violations']}) alarms {r['alarms']} (main {r['alarms_main']}) max {_fmt(r['max_alarm'])}")
 
 
 def _logit(p):
@@ -128,6 +128,10 @@ def main() -> None:
               f"order ok {sum(bool(r['order_ok']) for r in ordered)}/{len(ordered)}; "
               f"steady without alarm {sum(r['alarm_ok'] for r in steady)}/{len(steady)}; "
               f"coverage >= 90 % {sum(r['coverage_ok'] for r in part)}/{len(part)}")
+        fit = fit_instability(part, "sum")
+        print(f"  instability against the measured truth of {fit['n']} main-divide segments ({fit['moving']} moving): "
+              f"log loss {fit['log_loss_uncalibrated']:.3f} as it is, {fit['log_loss']:.3f} after Platt scaling "
+              f"(alpha {fit['alpha']:+.2f}, beta {fit['beta']:.2f})")
 
 
 if __name__ == "__main__":
