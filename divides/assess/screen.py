@@ -23,7 +23,8 @@ from divides.terrain.channels import Channels, extract_channels
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
 from divides.terrain.routing import FlowGraph, route
 
-__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth"]
+__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
+           "INSTABILITY_SCALING", "MIN_JUDGED_CELLS"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -37,6 +38,13 @@ MIN_SEGMENT_CELLS = 4
 #: continue them (:func:`_pool_short`); chosen on the training cases of the regional benchmark
 #: (docs/validation.md, *Regional screening*).
 MIN_JUDGED_CELLS = 60
+
+#: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
+#: of main-divide segments of the regional benchmark (a segment moves when at least 70 % of it lies in
+#: stretches moving 2 cells per response time or more): instability = 1 / (1 + exp(-(alpha + beta logit p))).
+#: Fitted on its training cases (docs/validation.md, *Regional screening*); refit with
+#: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
+INSTABILITY_SCALING = (-1.28, 1.25)
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -282,11 +290,31 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
+def instability_of(probabilities: dict | None) -> float | None:
+    """The probability that a segment moves, from the decision's probabilities.
+
+    P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
+    rescaled by :data:`INSTABILITY_SCALING` to the measured truth of divide segments in
+    regional model landscapes. None (unknown) when the decision abstained for
+    insufficient data.
+
+    Examples
+    --------
+    >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # logit 0.9 = 2.197
+    0.81
+    >>> instability_of(None) is None
+    True
+    """
+    if probabilities is None:
+        return None
+    p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
+    alpha, beta = INSTABILITY_SCALING
+    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
+
+
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
     probs = verdict.probabilities
-    # instability: the calibrated probability that the segment moves at all (P(a) + P(b));
-    # unknown (None) when the decision abstained for insufficient data
-    instability = None if probs is None else float(probs.get("a", 0.0) + probs.get("b", 0.0))
+    instability = instability_of(probs)
     chi = next((c for c in contrasts if c.metric == "chi"), None)
     return {"seg": seg, "verdict": verdict.moves_toward, "basis": verdict.basis, "reason": verdict.reason,
             "confidence": verdict.confidence, "instability": instability, "moves_toward": verdict.moves_toward,
@@ -520,9 +548,10 @@ def screen(
     Returns
     -------
     Screening
-        Judged segments ranked by instability = P(toward a) + P(toward b) of the calibrated
-        decision (:func:`divides.assess.verdict.decide`; None, ranked last, when it abstained
-        for insufficient data); every other stretch of divide between two basins is a gap
+        Judged segments ranked by instability (:func:`instability_of`: P(toward a) + P(toward b)
+        of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
+        regional benchmark's truth; None, ranked last, when it abstained for insufficient
+        data); every other stretch of divide between two basins is a gap
         with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """

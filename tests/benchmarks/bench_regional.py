@@ -81,6 +81,25 @@ def fit_instability(rows: list[dict], lead: str = "max") -> dict:
             "log_loss": loss(w) / max(y.size, 1), "log_loss_uncalibrated": raw}
 
 
+def instability_log_loss(rows: list[dict]) -> dict:
+    """Log loss and AUC (Mann-Whitney) of the shipped instability against the truth per segment."""
+    import numpy as np
+
+    x, y = [], []
+    for r in rows:
+        for m in r["main"]:
+            if m["instability"] is None or not (m["in_moving"] or m["in_stable"]):
+                continue
+            x.append(m["instability"])
+            y.append(1.0 if m["in_moving"] else 0.0)
+    x, y = np.clip(np.asarray(x), 1e-4, 1 - 1e-4), np.asarray(y)
+    loss = float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))) if y.size else float("nan")
+    pos, neg = x[y == 1], x[y == 0]
+    auc = float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :]))) \
+        if pos.size and neg.size else float("nan")
+    return {"log_loss": loss, "auc": auc}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--n", type=int, default=24)
@@ -88,6 +107,8 @@ def main() -> None:
     parser.add_argument("--split", choices=("training", "held-out", "all"), default="training")
     parser.add_argument("--generate-only", action="store_true")
     parser.add_argument("--json", default=None, help="write the per-case results as JSON lines")
+    parser.add_argument("--fit", action="store_true",
+                        help="print the Platt scaling of the instability fitted on the cases run (use --split training)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
@@ -117,6 +138,10 @@ def main() -> None:
         with open(args.json, "w") as fh:
             for r in rows:
                 fh.write(json.dumps(r, default=float) + "\n")
+    if args.fit:
+        fit = fit_instability(rows, "sum")
+        print(f"INSTABILITY_SCALING = ({fit['alpha']:.2f}, {fit['beta']:.2f})  # {fit['n']} segments, "
+              f"log loss {fit['log_loss']:.3f}")
     for split in ("training", "held-out"):
         part = [r for r in rows if r["split"] == split]
         if not part:
@@ -129,8 +154,10 @@ def main() -> None:
               f"steady without alarm {sum(r['alarm_ok'] for r in steady)}/{len(steady)}; "
               f"coverage >= 90 % {sum(r['coverage_ok'] for r in part)}/{len(part)}")
         fit = fit_instability(part, "sum")
-        print(f"  instability against the measured truth of {fit['n']} main-divide segments ({fit['moving']} moving): "
-              f"log loss {fit['log_loss_uncalibrated']:.3f} as it is, {fit['log_loss']:.3f} after Platt scaling "
+        shipped = instability_log_loss(part)
+        print(f"  against the measured truth of {fit['n']} main-divide segments ({fit['moving']} moving), log loss of "
+              f"P(a) + P(b) {fit['log_loss_uncalibrated']:.3f}, of the instability {shipped['log_loss']:.3f} "
+              f"(AUC {shipped['auc']:.2f}); best Platt scaling on these cases {fit['log_loss']:.3f} "
               f"(alpha {fit['alpha']:+.2f}, beta {fit['beta']:.2f})")
 
 
