@@ -55,7 +55,7 @@ def test_coverage_and_every_stretch_accounted_for(steady):
 
 def test_every_main_divide_segment_is_judged_on_pooled_samples(steady):
     # Before pooling, most main-divide pieces between two small basins had fewer than six
-    # independent samples and were "insufficient data" (docs/validation.md: 15 of 423 judged on the
+    # independent samples and were "insufficient data" (docs/validation.md: 24 of 423 judged on the
     # training cases); pooled with the pieces that continue them, every one is judged.
     case, result, scored = steady
     assert scored["main_segments"] >= 5
