@@ -40,8 +40,15 @@ import numpy as np
 
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.model.benchmark import (MOVING_CELLS_PER_TAU, STEPS_PER_TAU, WINDOW_TAU, _chi_estimate, _spin_up,
-                                     split_of)
+from divides.model.benchmark import (
+    MOVING_CELLS_PER_TAU,
+    STEPS_PER_TAU,
+    WINDOW_TAU,
+    Landscape,
+    _chi_estimate,
+    _spin_up,
+    split_of,
+)
 from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
@@ -155,16 +162,16 @@ class RegionalCase:
         """A steady control (by family; the stretches say whether it measured stable)."""
         return self.family in STEADY_FAMILIES
 
-    def save(self, path: Path | str) -> None:
-        path = Path(path)
-        path.parent.mkdir(parents=True, exist_ok=True)
-        meta = {k: v for k, v in self.__dict__.items() if k != "elevation"}
-        tmp = path.with_name(f".{path.stem}.{os.getpid()}.tmp.npz")
-        np.savez_compressed(tmp, elevation=self.elevation, meta=np.array(json.dumps(meta)))
-        os.replace(tmp, path)
+    def to_meta(self) -> dict:
+        """Everything but the elevation, JSON-ready."""
+        return {k: v for k, v in self.__dict__.items() if k != "elevation"}
+
+    #: Written as the single-divide benchmark's records (compressed ``.npz``, renamed into place).
+    save = Landscape.save
 
     @classmethod
     def load(cls, path: Path | str) -> RegionalCase:
+        """Read a record written by :meth:`save`."""
         with np.load(path, allow_pickle=False) as data:
             meta = json.loads(str(data["meta"]))
             elevation = data["elevation"]

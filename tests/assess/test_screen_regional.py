@@ -14,7 +14,13 @@ import pytest
 
 from divides.assess.screen import MIN_JUDGED_CELLS, screen
 from divides.model.benchmark import MOVING_CELLS_PER_TAU, split_of
-from divides.model.regional_benchmark import TARGETS, build, case_seed, load_or_build, score
+from divides.model.regional_benchmark import (
+    TARGETS,
+    build,
+    case_seed,
+    load_or_build,
+    score,
+)
 from divides.terrain.divide_lines import divide_network
 
 #: Channel threshold of the validation (cells), as in tests/benchmarks/bench_regional.py.
@@ -46,7 +52,7 @@ def test_coverage_and_every_stretch_accounted_for(steady):
     # Issue 14 item 1: >= 90 % of the divides between outlet basins in judged segments, and every
     # traced stretch of divide is a segment or a gap (lengths add up to the traced network's,
     # traced here once more).
-    case, result, scored = steady
+    _, result, scored = steady
     assert scored["coverage"] >= TARGETS["coverage"]
     traced = sum(seg.line.length_m for seg in divide_network(result.dem, result.labels, min_vertices=2))
     listed = sum(s["length_m"] for s in result.segments) + sum(g["length_m"] for g in result.gaps)
@@ -68,7 +74,7 @@ def test_every_main_divide_segment_is_judged_on_pooled_samples(steady):
 
 
 @pytest.mark.xfail(strict=True, reason="known miss (docs/validation.md, Regional screening): on this steady case "
-                   "10-15 segments reach instability >= 0.5 with confidence >= 0.5 (up to 0.92); near-divide "
+                   "5 segments reach instability >= 0.5 with confidence >= 0.5 (up to 0.85); near-divide "
                    "asymmetries of steady landscapes look like those of moving stretches")
 def test_no_false_alarm_on_a_steady_landscape(steady):
     _, _, scored = steady

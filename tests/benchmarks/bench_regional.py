@@ -16,7 +16,6 @@ import argparse
 import json
 import time
 
-
 #: Channel threshold of the validation in cells: the default fallback (about 350 cells here) left six
 #: basins above the minimum area and no judged main-divide segment in training case 1.
 CHANNEL_CELLS = 50
@@ -112,8 +111,13 @@ def main() -> None:
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
-    from divides.model.regional_benchmark import case_seed, load_or_build, score, stretch_class
     from divides.model.benchmark import split_of
+    from divides.model.regional_benchmark import (
+        case_seed,
+        load_or_build,
+        score,
+        stretch_class,
+    )
 
     rows = []
     for i in range(args.n):
@@ -136,8 +140,7 @@ def main() -> None:
         return
     if args.json:
         with open(args.json, "w") as fh:
-            for r in rows:
-                fh.write(json.dumps(r, default=float) + "\n")
+            fh.writelines(json.dumps(r, default=float) + "\n" for r in rows)
     if args.fit:
         fit = fit_instability(rows, "sum")
         print(f"INSTABILITY_SCALING = ({fit['alpha']:.2f}, {fit['beta']:.2f})  # {fit['n']} segments, "
