@@ -12,6 +12,7 @@ import numpy as np
 from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
+from divides.assess.pooling import label_outlets, pool_short
 from divides.terrain.sides import BaseLevel
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
@@ -35,7 +36,7 @@ _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", 
 MIN_SEGMENT_CELLS = 4
 
 #: Segments shorter than this (in cells) are judged on samples pooled with the segments that
-#: continue them (:func:`_pool_short`); chosen on the training cases of the regional benchmark
+#: continue them (:mod:`divides.assess.pooling`); chosen on the training cases of the regional benchmark
 #: (docs/validation.md, *Regional screening*).
 MIN_JUDGED_CELLS = 60
 
@@ -325,162 +326,16 @@ def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
             "mean_chi_a": None if chi is None else chi.a, "mean_chi_b": None if chi is None else chi.b}
 
 
-def _end_tangent(line: DivideLine, last: bool, reach_cells: float = 4.0) -> np.ndarray:
-    """Unit vector (row, col) from an end of a line into it, over about ``reach_cells``."""
-    rows, cols = (line.row[::-1], line.col[::-1]) if last else (line.row, line.col)
-    step = np.hypot(rows - rows[0], cols - cols[0])
-    k = int(min(np.searchsorted(step, reach_cells), rows.size - 1))
-    v = np.array([rows[k] - rows[0], cols[k] - cols[0]])
-    size = float(np.hypot(*v))
-    return v / size if size > 0 else v
-
-
-def _label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
-    """(row, col) of the outlet every label finally drains to (index = label; NaN for 0)."""
-    basins = flow.basins().ravel()
-    lab = labels.ravel()
-    outlet_cell = np.zeros(int(basins.max()) + 1, dtype=np.int64)
-    outlet_cell[basins[flow.outlets]] = flow.outlets
-    some_cell = np.full(int(lab.max()) + 1, -1, dtype=np.int64)
-    cells = np.flatnonzero(lab)
-    some_cell[lab[cells]] = cells  # any cell of the label: all of them drain to the same outlet
-    out = np.full((some_cell.size, 2), np.nan)
-    has = some_cell >= 0
-    has[0] = False
-    r, c = np.divmod(outlet_cell[basins[some_cell[has]]], flow.shape[1])
-    out[has] = np.column_stack([r, c])
-    return out
-
-
-def _drains_like(outlets: np.ndarray, at: np.ndarray, old: int, new: int) -> bool:
-    """True when basins ``old`` and ``new`` drain the same way from point ``at`` (outlets within 90°)."""
-    u, v = outlets[old] - at, outlets[new] - at
-    return bool(np.all(np.isfinite(u)) and np.all(np.isfinite(v)) and float(u @ v) > 0)
-
-
-def _continues(mine: DivideSegment, theirs: DivideSegment, swapped: bool, at: np.ndarray,
-               outlets: np.ndarray) -> bool:
-    """A neighbour continues a divide when it keeps one of its basins on the same side and the
-    basin it brings in on the other side drains the same way as the one it replaces (so a
-    lateral divide between two basins of one side is never a continuation of the divide they
-    share with the other side)."""
-    a, b = (theirs.label_b, theirs.label_a) if swapped else (theirs.label_a, theirs.label_b)
-    if a == mine.label_a and b != mine.label_b:
-        return _drains_like(outlets, at, mine.label_b, b)
-    if b == mine.label_b and a != mine.label_a:
-        return _drains_like(outlets, at, mine.label_a, a)
-    return False
-
-
-def _neighbours(rows: list[dict], outlets: np.ndarray, reach_cells: float = 5.0) -> list[list[tuple[int, bool]]]:
-    """The segment that continues each judged segment at either end: ``(index, swapped)`` pairs.
-
-    At each end, the candidates are the segments with an end within ``reach_cells`` (traced
-    pieces of one divide overlap or stop short by a few cells at junctions) that continue it
-    (:func:`_continues`); of those, the one whose end runs on most nearly straight (end
-    tangents more than 90° apart: overlapping ends of traced pieces bend a little).
-    ``swapped`` when the two meet end to end or start to
-    start: the neighbour's side a is then this one's side b (side a is left of a line's
-    direction).
-    """
-    from scipy.spatial import cKDTree
-
-    lines = [r["seg"].line for r in rows]
-    ends = np.array([(ln.row[k], ln.col[k]) for ln in lines for k in (0, -1)]).reshape(-1, 2)
-    tangents = np.array([_end_tangent(ln, last) for ln in lines for last in (False, True)]).reshape(-1, 2)
-    tree = cKDTree(ends)
-    out: list[list[tuple[int, bool]]] = [[] for _ in rows]
-    for e, hits in enumerate(tree.query_ball_point(ends, reach_cells)):
-        k = e // 2
-        best, best_cos = None, 0.0
-        for h in hits:
-            if h // 2 == k:
-                continue
-            cos = float(tangents[e] @ tangents[h])
-            swapped = (e % 2) == (h % 2)
-            if cos < best_cos and _continues(rows[k]["seg"], rows[h // 2]["seg"], swapped, ends[e], outlets):
-                best, best_cos = h, cos
-        if best is not None and all(best // 2 != j for j, _ in out[k]):
-            out[k].append((best // 2, (e % 2) == (best % 2)))
-    return out
-
-
-def _swap_sides(pts):
-    """The same divide points seen from the other side (a and b exchanged)."""
-    import dataclasses
-
-    return dataclasses.replace(
-        pts, cell_a=pts.cell_b, cell_b=pts.cell_a, head_a=pts.head_b, head_b=pts.head_a, ref_a=pts.ref_b,
-        ref_b=pts.ref_a, normal=-pts.normal, values={k: (v[1], v[0]) for k, v in pts.values.items()})
-
-
-def _pooled_points(parts: list) -> object:
-    """One DividePoints from several, in order; χ dropped (each pair's χ has its own base level)."""
-    import dataclasses
-
-    first = parts[0]
-    cat = {f: np.concatenate([getattr(p, f) for p in parts])
-           for f in ("x", "y", "distance_m", "elevation_m", "cell_a", "cell_b", "head_a", "head_b", "ref_a", "ref_b",
-                     "facing")}
-    cat["line"] = np.concatenate([np.full(p.size, k) for k, p in enumerate(parts)])
-    cat["normal"] = np.concatenate([p.normal.reshape(-1, 2) for p in parts])
-    values = {k: tuple(np.concatenate([p.values[k][s] for p in parts]) for s in (0, 1)) for k in first.values}
-    if "chi" in values:
-        values["chi"] = tuple(np.full(v.size, np.nan) for v in values["chi"])
-    return dataclasses.replace(first, values=values, **cat)
-
-
-def _pool_short(rows: list[dict], st: dict, min_length_m: float, outlets: np.ndarray) -> list[dict]:
-    """Judge every segment shorter than ``min_length_m`` on its pooled neighbourhood.
-
-    The segment's samples are pooled with those of the segments that continue it along
-    the divide (:func:`_neighbours`), nearest first along the chain, until the pooled
-    stretch is at least ``min_length_m`` long or the chain ends; then the contrasts and
-    the calibrated decision are computed once more on the pooled samples (χ left out:
-    pairs of basins have their own base levels). A short segment alone has few
-    independent samples, and the decision model was fitted on whole divides; the
-    pooled verdict is about the stretch of divide around the segment, and
-    ``judged_length_m`` says how long it was.
-    """
-    judged = [i for i, r in enumerate(rows) if "pts" in r]
-    sub = [rows[i] for i in judged]
-    near = _neighbours(sub, outlets) if sub else []
+def _judge_pooled(pts, row: dict, st: dict) -> dict:
+    """Contrasts and the calibrated decision on pooled samples (see :func:`divides.assess.pooling.pool_short`)."""
     config: AssessConfig = st["config"]
-    out = list(rows)
-    for k, i in enumerate(judged):
-        r = rows[i]
-        length = r["seg"].line.length_m
-        if length >= min_length_m:
-            out[i] = r | {"judged_length_m": length}
-            continue
-        chain, seen, frontier = [(k, False)], {k}, [(k, False)]
-        while frontier and length < min_length_m:
-            nxt = []
-            for j, flip in frontier:
-                for n, swap in near[j]:
-                    if n in seen:
-                        continue
-                    seen.add(n)
-                    nxt.append((n, flip ^ swap))
-            nxt.sort(key=lambda t: sub[t[0]]["seg"].line.length_m, reverse=True)
-            for n, flip in nxt:
-                if length >= min_length_m:
-                    break
-                chain.append((n, flip))
-                length += sub[n]["seg"].line.length_m
-            frontier = nxt
-        if len(chain) == 1:
-            out[i] = r | {"judged_length_m": length}
-            continue
-        pts = _pooled_points([_swap_sides(sub[n]["pts"]) if flip else sub[n]["pts"] for n, flip in chain])
-        contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=r["base"],
-                                      seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
-                                      mirrored=r["mirrored"])
-        verdict = decide(contrasts, same_channel=r["mirrored"], min_confidence=config.min_confidence)
-        pooled = _row(r["seg"], pts, contrasts, verdict)
-        pooled["mean_chi_a"], pooled["mean_chi_b"] = r["mean_chi_a"], r["mean_chi_b"]  # the segment's own χ
-        out[i] = r | pooled | {"judged_length_m": length}
-    return out
+    contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=row["base"],
+                                  seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
+                                  mirrored=row["mirrored"])
+    verdict = decide(contrasts, same_channel=row["mirrored"], min_confidence=config.min_confidence)
+    pooled = _row(row["seg"], pts, contrasts, verdict)
+    pooled["mean_chi_a"], pooled["mean_chi_b"] = row["mean_chi_a"], row["mean_chi_b"]  # the segment's own χ
+    return pooled
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -531,7 +386,7 @@ def screen(
     min_judged_m : float, optional
         Shorter segments are judged on the samples of the segments that continue them along
         the divide, pooled up to this length (default :data:`MIN_JUDGED_CELLS` cells; see
-        :func:`_pool_short`).
+        :func:`divides.assess.pooling.pool_short`).
     workers : int, optional
         Threads on this machine (default: the number of cores); ignored with ``scheduler``.
     scheduler : str, optional
@@ -605,7 +460,8 @@ def screen(
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     gaps += [r for r in rows if "gap" in r]
-    rows = _pool_short([r for r in rows if "gap" not in r], shared.data, pool_m, _label_outlets(flow, labels))
+    rows = pool_short([r for r in rows if "gap" not in r], outlets=label_outlets(flow, labels), min_length_m=pool_m,
+                      judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []

@@ -37,7 +37,8 @@ def _line(r: dict) -> str:
     top = " ".join(f"#{t['rank']}:{_fmt(t['moving_share'], '.0%')}/{_fmt(t['azimuth_error'], '.0f')}°"
                    for t in r["top"]) or "–"
     return (f"{r['index']:>3} {r['split']:<9} {r['family']:<28} {r['forced_side']} "
-            f"moving {r['moving_stretches']:>2} stable {r['stable_stretches']:>2} of {r['stretches']:<2} cov {_fmt(r['coverage'], '.0%'):>4} "
+            f"moving {r['moving_stretches']:>2} stable {r['stable_stretches']:>2} of {r['stretches']:<2} "
+            f"cov {_fmt(r['coverage'], '.0%'):>4} "
             f"seg {r['segments']:>3} main {r['main_segments']:>3} (mov {r['moving_segments']}, stab "
             f"{r['stable_segments']}) top {top} top_ok {r['top_ok']} order {r['order_ok']} "
             f"({r['order_violations']}) alarms {r['alarms']} (main {r['alarms_main']}) max {_fmt(r['max_alarm'])}")
@@ -107,7 +108,7 @@ def main() -> None:
     parser.add_argument("--generate-only", action="store_true")
     parser.add_argument("--json", default=None, help="write the per-case results as JSON lines")
     parser.add_argument("--fit", action="store_true",
-                        help="print the Platt scaling of the instability fitted on the cases run (use --split training)")
+                        help="print the instability's Platt scaling fitted on the cases run (use --split training)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
