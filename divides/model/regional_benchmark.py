@@ -53,8 +53,8 @@ from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
 
-__all__ = ["FAMILIES", "STEADY_FAMILIES", "REGIONAL_VERSION", "RegionalCase", "build", "cache_root",
-           "case_seed", "load_or_build", "score", "segment_stretch_shares", "stretch_class", "stretch_motion", "TARGETS"]
+__all__ = ["FAMILIES", "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root",
+           "case_seed", "load_or_build", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
 REGIONAL_VERSION = 2

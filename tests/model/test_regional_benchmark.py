@@ -6,8 +6,13 @@ import numpy as np
 import pytest
 
 from divides.model.benchmark import split_of
-from divides.model.regional_benchmark import (FAMILIES, case_seed, segment_stretch_shares, stretch_class,
-                                              stretch_motion)
+from divides.model.regional_benchmark import (
+    FAMILIES,
+    case_seed,
+    segment_stretch_shares,
+    stretch_class,
+    stretch_motion,
+)
 from divides.terrain.divide_lines import DivideLine
 
 
