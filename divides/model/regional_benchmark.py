@@ -4,16 +4,18 @@ Each case is a ridge between the west edge (side a) and the east edge (side
 b), north and south edges closed, long along the divide (200–260 rows) so
 that several outlet basins drain off either side. It is grown with
 :func:`divides.model.simulate` to steady state (the single-divide
-benchmark's spin-up, :func:`divides.model.benchmark._spin_up`), then one of
+benchmark's spin-up, :func:`divides.model.benchmark._spin_up`, run on the
+target relief's response time and again on the grown relief's), then one of
 :data:`FAMILIES` changes part or all of the forcing, the surface is observed,
 and the run is *continued* under the same forcing for
 :data:`~divides.model.benchmark.WINDOW_TAU` response times while the divide
 is tracked on every row (:mod:`divides.model.tracking`). The truth is
 measured per *stretch* of the main divide (:data:`STRETCH_SHARE` of the rows
 each) with the single-divide benchmark's rule: the least-squares rate of the
-mean position over the rows that cross the divide at every record; moving
-when at least :data:`~divides.model.benchmark.MOVING_CELLS_PER_TAU` cell per
-response time.
+mean position over the rows that cross the divide at every record. For the
+screening targets a stretch moves at :data:`STRETCH_MOVING_CELLS_PER_TAU` cells
+per response time or more and does not move below
+:data:`~divides.model.benchmark.MOVING_CELLS_PER_TAU` (:func:`stretch_class`).
 
 Cases are reproducible from ``(master seed, index)``; the split into
 training and held-out is the single-divide benchmark's
