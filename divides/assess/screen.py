@@ -11,6 +11,7 @@ import numpy as np
 from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
+from divides.assess.pooling import label_outlets, pool_short
 from divides.terrain.sides import BaseLevel
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
@@ -22,7 +23,8 @@ from divides.terrain.channels import Channels, extract_channels
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
 from divides.terrain.routing import FlowGraph, route
 
-__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth"]
+__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
+           "INSTABILITY_SCALING", "MIN_JUDGED_CELLS"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -31,6 +33,18 @@ _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", 
 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
 MIN_SEGMENT_CELLS = 4
+
+#: Segments shorter than this (in cells) are judged on samples pooled with the segments that
+#: continue them (:mod:`divides.assess.pooling`); chosen on the training cases of the regional benchmark
+#: (docs/validation.md, *Regional screening*).
+MIN_JUDGED_CELLS = 60
+
+#: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
+#: of main-divide segments of the regional benchmark (a segment moves when at least 70 % of it lies in
+#: stretches moving 2 cells per response time or more): instability = 1 / (1 + exp(-(alpha + beta logit p))).
+#: Fitted on its training cases (docs/validation.md, *Regional screening*); refit with
+#: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
+INSTABILITY_SCALING = (-1.28, 1.25)
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -82,7 +96,7 @@ class Screening:
             "coverage": self.coverage,
             "gaps": [{k: g[k] for k in ("basins", "length_m", "reason")} for g in self.gaps],
             "segments": [{k: s[k] for k in SEGMENT_PROPERTIES}
-                         | {k: s[k] for k in ("reason", "probabilities", "contrasts")}
+                         | {k: s[k] for k in ("reason", "probabilities", "contrasts", "judged_length_m")}
                          for s in self.segments],
             "caution": CAUTION,
         })
@@ -266,7 +280,7 @@ def _assess_pair(task: tuple, st: dict) -> list[dict]:
                                       mirrored=mirrored)
         # no robustness re-runs per segment; the probability is calibrated on main divides only
         verdict = decide(contrasts, same_channel=mirrored, min_confidence=config.min_confidence)
-        out.append(_row(seg, pts, contrasts, verdict))
+        out.append(_row(seg, pts, contrasts, verdict) | {"pts": pts, "base": base, "mirrored": mirrored})
     return out
 
 
@@ -275,11 +289,31 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
+def instability_of(probabilities: dict | None) -> float | None:
+    """The probability that a segment moves, from the decision's probabilities.
+
+    P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
+    rescaled by :data:`INSTABILITY_SCALING` to the measured truth of divide segments in
+    regional model landscapes. None (unknown) when the decision abstained for
+    insufficient data.
+
+    Examples
+    --------
+    >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # logit 0.9 = 2.197
+    0.81
+    >>> instability_of(None) is None
+    True
+    """
+    if probabilities is None:
+        return None
+    p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
+    alpha, beta = INSTABILITY_SCALING
+    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
+
+
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
     probs = verdict.probabilities
-    # instability: the calibrated probability that the segment moves at all (P(a) + P(b));
-    # unknown (None) when the decision abstained for insufficient data
-    instability = None if probs is None else float(probs.get("a", 0.0) + probs.get("b", 0.0))
+    instability = instability_of(probs)
     chi = next((c for c in contrasts if c.metric == "chi"), None)
     return {"seg": seg, "verdict": verdict.moves_toward, "basis": verdict.basis, "reason": verdict.reason,
             "confidence": verdict.confidence, "instability": instability, "moves_toward": verdict.moves_toward,
@@ -294,6 +328,18 @@ def _fields(flow: FlowGraph, config: AssessConfig, threshold: float):
     """Near-divide fields kept only for the reference cells the segments are read at (memory: see UpstreamMean)."""
     return near_divide_fields(flow, config.relief_radius_m,
                               reference_area_m2=config.reference_area_m2 or threshold)
+
+
+def _judge_pooled(pts, row: dict, st: dict) -> dict:
+    """Contrasts and the calibrated decision on pooled samples (see :func:`divides.assess.pooling.pool_short`)."""
+    config: AssessConfig = st["config"]
+    contrasts = compute_contrasts(pts, block_points=st["block"], n_boot=st["n_boot"], base_level_m=row["base"],
+                                  seed=config.seed, dem_error=st["dem_error"], cell_m=st["cell"],
+                                  mirrored=row["mirrored"])
+    verdict = decide(contrasts, same_channel=row["mirrored"], min_confidence=config.min_confidence)
+    pooled = _row(row["seg"], pts, contrasts, verdict)
+    pooled["mean_chi_a"], pooled["mean_chi_b"] = row["mean_chi_a"], row["mean_chi_b"]  # the segment's own χ
+    return pooled
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -322,6 +368,7 @@ def screen(
     min_basin_area_m2: float | None = None,
     level: str = "tributaries",
     max_segment_m: float | None = None,
+    min_judged_m: float | None = None,
     workers: int | None = None,
     scheduler: str | None = None,
     runoff: np.ndarray | None = None,
@@ -340,6 +387,10 @@ def screen(
         Which basins (see :func:`divides.terrain.basins.basin_labels`).
     max_segment_m : float, optional
         Longer divide segments are cut into pieces (default: 100 cells).
+    min_judged_m : float, optional
+        Shorter segments are judged on the samples of the segments that continue them along
+        the divide, pooled up to this length (default :data:`MIN_JUDGED_CELLS` cells; see
+        :func:`divides.assess.pooling.pool_short`).
     workers : int, optional
         Threads on this machine (default: the number of cores); ignored with ``scheduler``.
     scheduler : str, optional
@@ -356,9 +407,10 @@ def screen(
     Returns
     -------
     Screening
-        Judged segments ranked by instability = P(toward a) + P(toward b) of the calibrated
-        decision (:func:`divides.assess.verdict.decide`; None, ranked last, when it abstained
-        for insufficient data); every other stretch of divide between two basins is a gap
+        Judged segments ranked by instability (:func:`instability_of`: P(toward a) + P(toward b)
+        of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
+        regional benchmark's truth; None, ranked last, when it abstained for insufficient
+        data); every other stretch of divide between two basins is a gap
         with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
@@ -375,6 +427,9 @@ def screen(
     max_len = float(max_segment_m) if max_segment_m is not None else 100.0 * cell
     if not (np.isfinite(max_len) and max_len > 4 * cell):
         raise ParameterError(f"max segment length must exceed four cells ({4 * cell:g} m); got {max_segment_m!r}")
+    pool_m = float(min_judged_m) if min_judged_m is not None else MIN_JUDGED_CELLS * cell
+    if not (np.isfinite(pool_m) and pool_m >= 0):
+        raise ParameterError(f"min judged length must be a number of metres >= 0; got {min_judged_m!r}")
     # every traced piece is kept (min_vertices=2), so each stretch of divide ends up in a segment or a gap
     outlet_of = _outlet_basins(flow, labels, min_area, level)
     by_pair: dict[tuple[int, int], list[DivideSegment]] = {}
@@ -409,7 +464,8 @@ def screen(
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     gaps += [r for r in rows if "gap" in r]
-    rows = [r for r in rows if "gap" not in r]
+    rows = pool_short([r for r in rows if "gap" not in r], outlets=label_outlets(flow, labels), min_length_m=pool_m,
+                      judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -424,6 +480,7 @@ def screen(
             "verdict": r["verdict"], "basis": r["basis"], "reason": r["reason"],
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
+            "judged_length_m": r["judged_length_m"],
             "line": seg.line,
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
@@ -432,7 +489,7 @@ def screen(
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
     used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
     params = {**used, "chi_weighted": weighted,
-              "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len,
+              "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len, "min_judged_m": pool_m,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,

@@ -56,6 +56,7 @@ PARAMETER_LABELS: dict[str, tuple[str, str]] = {
     "min_basin_area_m2": ("Smallest basin screened", "m²"),
     "level": ("Basins compared", ""),
     "max_segment_m": ("Longest divide segment", "m"),
+    "min_judged_m": ("Shorter segments judged with the segments continuing them, up to", "m"),
     "workers": ("Processes used", ""),
 }
 

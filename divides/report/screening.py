@@ -220,10 +220,13 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "and hillslope relief (Forte &amp; Whipple 2018; Scherler &amp; Schwanghart 2020) and χ from the pair's "
         "common base level (Willett et al. 2014), turned into P(toward either basin) and P(stable); a "
         f"direction needs a probability of at least {p['min_confidence']:g}, otherwise the verdict is "
-        "undetermined. <b>Instability</b> is P(toward a) + P(toward b), the calibrated probability that the "
-        "segment moves; it is unknown when too few independent samples were found. The probabilities were "
-        "calibrated on main divides between opposite DEM edges of model landscapes. Divides between "
-        "tributaries of the same trunk are not assessed. Details: docs/methods.md §7b.</p>")
+        "undetermined. A segment shorter than "
+        f"{p.get('min_judged_m', 0.0) / 1000:g} km is judged on the samples of the segments that continue "
+        "the same divide, pooled up to that length. <b>Instability</b> is P(toward a) + P(toward b) rescaled "
+        "(Platt 1999) to how often divide segments of regional model landscapes with that probability lay in "
+        "stretches that moved: the calibrated probability that the segment moves; it is unknown when too few "
+        "independent samples were found. Divides between tributaries of the same trunk are not assessed. "
+        "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>")
     body = "".join([
         "<h1>Regional divide screening</h1>",
         f"<p class=\"sub\">DEM {e(document['dem']['path'] or '(in memory)')} · "

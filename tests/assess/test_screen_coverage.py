@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from divides.assess.screen import LATERAL_REASON, motion_azimuth, screen
+from divides.assess.screen import INSTABILITY_SCALING, LATERAL_REASON, motion_azimuth, screen
 from divides.io.dem import Dem
 from divides.model import scenarios as S
 from divides.model.simulate import simulate
@@ -128,9 +128,12 @@ def test_instability_is_the_calibrated_probability_of_motion(steady):
         p = s["probabilities"]
         if p is None:  # abstained for insufficient data: unknown, ranked last
             assert s["instability"] is None and s["basis"] == "insufficient data"
-        else:  # P(a) + P(b) = 1 - P(stable): the decision's probabilities sum to one
-            assert s["instability"] == pytest.approx(p["a"] + p["b"], abs=1e-9)
-            assert s["instability"] == pytest.approx(1.0 - p["stable"], abs=2e-4)
+        else:  # Platt scaling (Platt 1999) of P(motion) = P(a) + P(b) = 1 - P(stable)
+            assert p["a"] + p["b"] == pytest.approx(1.0 - p["stable"], abs=2e-4)  # probabilities sum to one
+            alpha, beta = INSTABILITY_SCALING
+            motion = p["a"] + p["b"]
+            expected = 1.0 / (1.0 + np.exp(-(alpha + beta * np.log(motion / (1.0 - motion)))))
+            assert s["instability"] == pytest.approx(expected, abs=1e-9)
             if s["verdict"] in ("a", "b", "stable"):
                 assert s["confidence"] == pytest.approx(p[s["verdict"]], abs=1e-3)
     known = [s["instability"] for s in result.segments if s["instability"] is not None]

@@ -1,0 +1,501 @@
+"""Regional model landscapes for validating screening: one long main divide, truth measured per stretch.
+
+Each case is a ridge between the west edge (side a) and the east edge (side
+b), north and south edges closed, long along the divide (200–260 rows) so
+that several outlet basins drain off either side. It is grown with
+:func:`divides.model.simulate` to steady state (the single-divide
+benchmark's spin-up, :func:`divides.model.benchmark._spin_up`, run on the
+target relief's response time and again on the grown relief's), then one of
+:data:`FAMILIES` changes part or all of the forcing, the surface is observed,
+and the run is *continued* under the same forcing for
+:data:`~divides.model.benchmark.WINDOW_TAU` response times while the divide
+is tracked on every row (:mod:`divides.model.tracking`). The truth is
+measured per *stretch* of the main divide (:data:`STRETCH_SHARE` of the rows
+each) with the single-divide benchmark's rule: the least-squares rate of the
+mean position over the rows that cross the divide at every record. For the
+screening targets a stretch moves at :data:`STRETCH_MOVING_CELLS_PER_TAU` cells
+per response time or more and does not move below
+:data:`~divides.model.benchmark.MOVING_CELLS_PER_TAU` (:func:`stretch_class`).
+
+Cases are reproducible from ``(master seed, index)``; the split into
+training and held-out is the single-divide benchmark's
+(:func:`divides.model.benchmark.split_of`: SHA-256 of the seed), fixed before
+anything is generated. Records are cached under
+``$XDG_CACHE_HOME/divides/regional`` (:func:`cache_root`).
+
+:func:`score` checks a screening of a case against its truth (the targets of
+docs/validation.md, *Regional screening*). It reads the screening's fields
+only, so this room never imports the assessment.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from divides.errors import ParameterError
+from divides.io.dem import Dem
+from divides.model.benchmark import (
+    MOVING_CELLS_PER_TAU,
+    STEPS_PER_TAU,
+    WINDOW_TAU,
+    Landscape,
+    _chi_estimate,
+    _spin_up,
+    split_of,
+)
+from divides.model.scenarios import ridge_surface
+from divides.model.simulate import simulate
+from divides.model.tracking import edge_catchments
+
+__all__ = ["FAMILIES", "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root",
+           "case_seed", "load_or_build", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
+
+#: Bump whenever a range, family or step changes (cached cases of another version are not reused).
+REGIONAL_VERSION = 2
+
+#: Families in the order the cases cycle through them (case i is family i mod 8; forcing on b for
+#: even i // 8, mirrored onto a for odd).
+FAMILIES: tuple[str, ...] = (
+    "partial_base_level_fall",
+    "erodibility_patch",
+    "runoff_gradient",
+    "tilt",
+    "steady_symmetric",
+    "steady_uplift_contrast",
+    "steady_erodibility_contrast",
+    "steady_runoff_contrast",
+)
+STEADY_FAMILIES: tuple[str, ...] = FAMILIES[4:]
+
+#: Ranges drawn per case (uniform unless noted).
+RANGES: dict[str, tuple[float, float]] = {
+    "rows": (200, 260),                  # along the main divide
+    "cols": (150, 170),                  # across it
+    "cell_m": (30.0, 90.0),
+    "theta": (0.4, 0.6),                 # n = 1
+    "uplift_m_per_yr": (2e-4, 1e-3),     # log-uniform
+    "mean_flank_gradient": (0.05, 0.15),  # sets the target relief (as the single-divide benchmark)
+    "hillslope_cells": (1.0, 3.0),       # log-uniform; D = U l^(1+2θ) / ks
+    "observe_tau": (0.4, 1.0),           # after the change, in response times
+}
+
+#: Length of a stretch of the main divide on which the truth is measured, as a share of the rows.
+STRETCH_SHARE = 0.1
+
+#: A stretch counts as moving for the ranking targets at this many cells per response time or more, and
+#: as not moving below MOVING_CELLS_PER_TAU (the single-divide benchmark's rule); in between it is "slow"
+#: and in neither class. Steady controls' stretches drift back and forth at 1–5 cells per τ (their mean
+#: at < 0.5), so one cell per τ on a stretch of a tenth of the divide is not yet a clear motion. Chosen
+#: from the measured truth of training cases 1–5 before any of them was screened.
+STRETCH_MOVING_CELLS_PER_TAU = 2.0
+
+#: The targets of issue 14 item 4 (docs/validation.md, *Regional screening*).
+TARGETS = {
+    "top_in_moving_share": 0.7,   # top-ranked main-divide segments lie >= 70 % in moving stretches
+    "azimuth_deg": 45.0,          # and point within 45° of the measured motion
+    "alarm": 0.5,                 # no segment with instability >= 0.5 and confidence >= 0.5 when steady
+    "coverage": 0.9,              # of the divides between outlet basins
+}
+
+
+def case_seed(master_seed: int, index: int) -> int:
+    """The seed of regional case ``index`` (63-bit; another stream than the single-divide benchmark's)."""
+    if int(master_seed) < 0 or int(index) < 0:
+        raise ParameterError(f"regional seed and index must be integers >= 0; got {master_seed!r}, {index!r}")
+    state = np.random.SeedSequence([int(master_seed), int(index), 14]).generate_state(2, np.uint32)
+    return int((int(state[0]) << 31) ^ int(state[1]))
+
+
+@dataclass(frozen=True, eq=False)
+class RegionalCase:
+    """One regional case: the observed DEM and the truth per stretch of its main divide.
+
+    Attributes
+    ----------
+    master_seed, index, seed : int
+    family : str
+    forced_side : str
+        ``"a"`` (west) or ``"b"`` (east).
+    split : str
+        ``"training"`` or ``"held-out"``.
+    elevation : ndarray of float32
+        The observed DEM (north-up).
+    cell_size : float
+    parameters : dict
+        K, n, m, θ, U, D, τ and the family's own numbers.
+    stretches : list of dict
+        Per stretch of rows ``[row0, row1)``: ``rate_m_per_yr`` (positive: into b, east),
+        ``moves_toward`` (``"a"``, ``"b"``, ``"stable"`` or None when fewer than three
+        rows cross the divide throughout) and ``n_lines``.
+    threshold_m_per_yr : float
+        One cell per response time.
+    seconds : float
+    """
+
+    master_seed: int
+    index: int
+    seed: int
+    family: str
+    forced_side: str
+    split: str
+    elevation: np.ndarray
+    cell_size: float
+    parameters: dict
+    stretches: list
+    threshold_m_per_yr: float
+    seconds: float
+    version: int = REGIONAL_VERSION
+
+    closed_edges = ("north", "south")
+
+    def dem(self) -> Dem:
+        return Dem.from_array(self.elevation.astype(np.float64), cell_size=self.cell_size, valid_range=None)
+
+    @property
+    def steady(self) -> bool:
+        """A steady control (by family; the stretches say whether it measured stable)."""
+        return self.family in STEADY_FAMILIES
+
+    def to_meta(self) -> dict:
+        """Everything but the elevation, JSON-ready."""
+        return {k: v for k, v in self.__dict__.items() if k != "elevation"}
+
+    #: Written as the single-divide benchmark's records (compressed ``.npz``, renamed into place).
+    save = Landscape.save
+
+    @classmethod
+    def load(cls, path: Path | str) -> RegionalCase:
+        """Read a record written by :meth:`save`."""
+        with np.load(path, allow_pickle=False) as data:
+            meta = json.loads(str(data["meta"]))
+            elevation = data["elevation"]
+        return cls(elevation=elevation, **meta)
+
+
+# ---------------------------------------------------------------------------- forcing
+def _crest_col(z: np.ndarray) -> np.ndarray:
+    return np.argmax(z, axis=1)
+
+
+def _east_of_crest(z: np.ndarray) -> np.ndarray:
+    return np.arange(z.shape[1])[None, :] > _crest_col(z)[:, None]
+
+
+def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: float, k0: float):
+    """Steady forcing, the change (a function of the steady surface) and the family's numbers.
+
+    Canonical frame: side a west, side b east, forcing on b. ``change(z)`` returns
+    ``(new z, forcing)``.
+    """
+    rows, cols = shape
+    edges = {"north": "closed", "south": "closed", "west": "open", "east": "open"}
+    uniform = {"uplift": u0, "erodibility": k0, "runoff": None, "edges": edges}
+    east_half = np.broadcast_to(np.arange(cols) / (cols - 1) > 0.5, shape)
+    # the perturbed stretch: 40–60 % of the rows, at the north or the south end
+    share = float(rng.uniform(0.4, 0.6))
+    north = bool(rng.random() < 0.5)
+    n_rows = int(round(share * rows))
+    in_rows = np.zeros(rows, dtype=bool)
+    in_rows[:n_rows] = True
+    if not north:
+        in_rows = in_rows[::-1].copy()
+    details: dict[str, Any] = {"rows_share": share, "at": "north" if north else "south"}
+    if family == "partial_base_level_fall":
+        drop = float(rng.uniform(0.1, 0.3))
+        details["drop_share_of_relief"] = drop
+
+        def change(z):
+            z = z.copy()
+            z[in_rows, -1] -= drop * float(np.nanmax(z) - np.nanmin(z))  # open edge cells hold the new level
+            return z, uniform
+        return uniform, change, details
+    if family == "erodibility_patch":
+        ratio = float(rng.uniform(2.0, 4.0))
+        details["ratio"] = ratio
+
+        def change(z):
+            k = np.where(_east_of_crest(z) & in_rows[:, None], k0 * ratio, k0)
+            return z, {**uniform, "erodibility": k}
+        return uniform, change, details
+    if family == "runoff_gradient":
+        ratio = float(rng.uniform(2.0, 4.0))
+        details = {"ratio_at_end": ratio, "rising_toward": "north" if north else "south"}
+        along = np.linspace(1.0, 0.0, rows) if north else np.linspace(0.0, 1.0, rows)
+
+        def change(z):
+            r = np.where(_east_of_crest(z), 1.0 + (ratio - 1.0) * along[:, None], 1.0)
+            return z, {**uniform, "runoff": r}
+        return uniform, change, {k: v for k, v in details.items()}
+    if family == "tilt":
+        g = float(rng.uniform(0.3, 0.7))
+        x = np.arange(cols) / (cols - 1)
+        u = np.broadcast_to(u0 * (1.0 + g * (2.0 * x - 1.0)), shape).copy()
+        return uniform, (lambda z: (z, {**uniform, "uplift": u})), {"tilt": g}
+    if family in STEADY_FAMILIES:
+        ratio = float(rng.uniform(1.5, 3.0))
+        fields = {
+            "steady_symmetric": {},
+            "steady_uplift_contrast": {"uplift": np.where(east_half, u0 * ratio, u0)},
+            "steady_erodibility_contrast": {"erodibility": np.where(east_half, k0 * ratio, k0)},
+            "steady_runoff_contrast": {"runoff": np.where(east_half, ratio, 1.0)},
+        }[family]
+        steady = {**uniform, **fields}
+        return steady, (lambda z: (z, steady)), ({"ratio": ratio} if fields else {})
+    raise ValueError(f"unknown regional family {family!r}; families are {', '.join(FAMILIES)}")
+
+
+def _mirror(forcing: dict) -> dict:
+    """The forcing with west and east swapped (rasters flipped left-right)."""
+    out = {k: (np.ascontiguousarray(v[:, ::-1]) if isinstance(v, np.ndarray) and v.ndim == 2 else v)
+           for k, v in forcing.items() if k != "edges"}
+    swap = {"west": "east", "east": "west"}
+    out["edges"] = {swap.get(e, e): c for e, c in forcing["edges"].items()}
+    return out
+
+
+# ---------------------------------------------------------------------------- truth per stretch
+def stretch_motion(positions: np.ndarray, times: np.ndarray, *, cell_m: float, tau_yr: float,
+                   share: float = STRETCH_SHARE) -> tuple[list[dict], float]:
+    """Measured motion of each stretch of a divide tracked per row.
+
+    The single-divide benchmark's rule (:func:`divides.model.benchmark.measure_motion`)
+    on each stretch of ``share`` of the rows: the least-squares rate of the mean position
+    over the rows that cross the divide at every record; moving when
+    |rate| >= MOVING_CELLS_PER_TAU cells per τ (positive: into b).
+    """
+    threshold = MOVING_CELLS_PER_TAU * cell_m / tau_yr
+    n = positions.shape[1]
+    k = max(1, int(round(1.0 / share)))
+    edges = np.linspace(0, n, k + 1).round().astype(int)
+    out = []
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        pos = positions[:, lo:hi]
+        keep = np.all(np.isfinite(pos), axis=0)
+        if np.count_nonzero(keep) < 3:
+            out.append({"row0": int(lo), "row1": int(hi), "rate_m_per_yr": None, "moves_toward": None,
+                        "n_lines": int(np.count_nonzero(keep))})
+            continue
+        rate = float(np.polyfit(times, pos[:, keep].mean(axis=1), 1)[0])
+        toward = "stable" if abs(rate) < threshold else ("b" if rate > 0 else "a")
+        out.append({"row0": int(lo), "row1": int(hi), "rate_m_per_yr": rate, "moves_toward": toward,
+                    "n_lines": int(np.count_nonzero(keep))})
+    return out, threshold
+
+
+# ---------------------------------------------------------------------------- building
+def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
+    """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth.
+
+    ``shape`` replaces the drawn grid (rows, cols) and leaves every other draw as it is
+    (small cases for fast tests).
+    """
+    started = time.perf_counter()
+    seed = case_seed(master_seed, index)
+    rng = np.random.default_rng(seed)
+    family = FAMILIES[index % len(FAMILIES)]
+    mirror = (index // len(FAMILIES)) % 2 == 1
+    rows = int(rng.integers(RANGES["rows"][0], RANGES["rows"][1] + 1))
+    cols = int(rng.integers(RANGES["cols"][0], RANGES["cols"][1] + 1))
+    if shape is not None:
+        rows, cols = (int(v) for v in shape)
+        if rows < 30 or cols < 30:
+            raise ParameterError(f"a regional case needs at least 30 x 30 cells; got {shape!r}")
+    cell = float(rng.uniform(*RANGES["cell_m"]))
+    theta = float(rng.uniform(*RANGES["theta"]))
+    lo, hi = RANGES["uplift_m_per_yr"]
+    u0 = float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
+    half = 0.5 * (cols - 1) * cell
+    relief = float(rng.uniform(*RANGES["mean_flank_gradient"])) * half
+    ks = relief / _chi_estimate(half, cell, theta)
+    k0 = u0 / ks
+    lo, hi = RANGES["hillslope_cells"]
+    ell = float(math.exp(rng.uniform(math.log(lo), math.log(hi)))) * cell
+    physics = {"m": theta, "n": 1.0, "diffusivity": u0 * ell ** (1.0 + 2.0 * theta) / ks}
+    spin, change, details = _plan(family, rng, (rows, cols), u0, k0)
+    flip = (lambda a: np.ascontiguousarray(a[:, ::-1])) if mirror else (lambda a: a)
+    frame = _mirror if mirror else (lambda f: f)
+    start = ridge_surface((rows, cols), cell_size=cell, relief=0.3 * relief, noise=max(1.0, 0.01 * relief),
+                          seed=int(rng.integers(2**31)))
+    sides = ("west", "east")
+    # The grown relief is 2-5 times the target, so the response time is too: a first spin-up on the
+    # target's τ, a second on the τ of the relief it grew (each stops once the divide drifts < 0.5 cell/τ).
+    surface, chunks = _spin_up(start, frame(spin), physics, relief / u0, sides)
+    tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
+    surface, more = _spin_up(surface, frame(spin), physics, tau, sides)
+    chunks += more
+    z = surface.elevation
+    tau = float(np.nanmax(z) - np.nanmin(z)) / u0
+    canonical, forcing = change(flip(z))
+    forcing = {**frame(forcing), **physics}
+    observe = float(rng.uniform(*RANGES["observe_tau"])) if family not in STEADY_FAMILIES else 0.0
+    surface = Dem.from_array(flip(canonical), cell_size=cell, valid_range=None)
+    if observe > 0:
+        steps = max(5, int(round(observe * STEPS_PER_TAU)))
+        surface = simulate(surface, duration=observe * tau, dt=observe * tau / steps, **forcing).final
+    window = WINDOW_TAU * tau
+    steps = int(WINDOW_TAU * STEPS_PER_TAU)
+    run = simulate(surface, duration=window, dt=window / steps, track=sides, **forcing)
+    stretches, threshold = stretch_motion(run.divide.positions, run.divide.times, cell_m=cell, tau_yr=tau)
+    parameters = {"K": k0, "n": 1.0, "m": theta, "theta": theta, "U_m_per_yr": u0,
+                  "D_m2_per_yr": physics["diffusivity"], "relief_m": float(np.nanmax(surface.elevation)
+                                                                          - np.nanmin(surface.elevation)),
+                  "tau_yr": tau, "observed_after_tau": observe, "spin_chunks": chunks, "mirrored": mirror,
+                  "family_details": details}
+    return RegionalCase(master_seed=int(master_seed), index=int(index), seed=seed, family=family,
+                        forced_side="a" if mirror else "b", split=split_of(seed),
+                        elevation=surface.elevation.astype(np.float32), cell_size=cell, parameters=parameters,
+                        stretches=stretches, threshold_m_per_yr=threshold, seconds=time.perf_counter() - started)
+
+
+def cache_root() -> Path:
+    """``$XDG_CACHE_HOME/divides/regional`` (default ``~/.cache``)."""
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "divides" / "regional"
+
+
+def load_or_build(master_seed: int, index: int, *, cache_dir: str | Path | None = None) -> RegionalCase:
+    """The cached case, built and cached first if missing (``cache_dir=""``: no cache)."""
+    if cache_dir == "":
+        return build(master_seed, index)
+    root = Path(cache_dir) if cache_dir is not None else cache_root()
+    path = root / f"v{REGIONAL_VERSION}" / f"seed{int(master_seed)}" / f"{int(index):04d}.npz"
+    if path.exists():
+        return RegionalCase.load(path)
+    case = build(master_seed, index)
+    case.save(path)
+    return case
+
+
+# ---------------------------------------------------------------------------- scoring a screening
+def stretch_class(stretch: dict, threshold_m_per_yr: float) -> str | None:
+    """``"a"`` or ``"b"`` (moving at :data:`STRETCH_MOVING_CELLS_PER_TAU` or more), ``"stable"`` (below
+    one cell per τ), ``"slow"`` (in between) or None (not measured)."""
+    rate = stretch["rate_m_per_yr"]
+    if rate is None:
+        return None
+    ratio = abs(rate) / threshold_m_per_yr  # the threshold is one cell per τ
+    if ratio < MOVING_CELLS_PER_TAU:
+        return "stable"
+    if ratio < STRETCH_MOVING_CELLS_PER_TAU:
+        return "slow"
+    return "b" if rate > 0 else "a"
+
+
+def segment_stretch_shares(line, stretches: list[dict], threshold: float) -> dict[str, float]:
+    """Share of a divide line's length in stretches moving toward a or b, stable, slow or unmeasured
+    (:func:`stretch_class`).
+
+    Each piece between two vertices counts for the stretch of its mid-point's row.
+    """
+    out = {"a": 0.0, "b": 0.0, "stable": 0.0, "slow": 0.0, None: 0.0}
+    if line.x.size < 2 or line.length_m <= 0:
+        return out
+    mid = 0.5 * (line.row[1:] + line.row[:-1])
+    step = np.diff(line.distance_m)
+    starts = np.array([s["row0"] for s in stretches])
+    which = np.clip(np.searchsorted(starts, np.floor(mid + 0.5), side="right") - 1, 0, len(stretches) - 1)
+    for k, s in enumerate(stretches):
+        out[stretch_class(s, threshold)] += float(step[which == k].sum())
+    total = float(step.sum())
+    return {k: v / total for k, v in out.items()}
+
+
+def _edge_of_labels(flow, labels: np.ndarray) -> np.ndarray:
+    """1 for a basin label draining off the west edge, 2 off the east, 0 otherwise."""
+    code = edge_catchments(flow, ("west", "east")).ravel()
+    lab = labels.ravel()
+    out = np.zeros(int(lab.max()) + 1, dtype=np.int8)
+    for e in (1, 2):
+        out[np.unique(lab[code == e])] = e
+    out[0] = 0
+    return out
+
+
+def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
+    """The targets of a screening of ``case`` against its measured truth.
+
+    Main-divide segments are those between a basin draining west and one
+    draining east. A segment is *in a moving stretch* when at least
+    ``TARGETS["top_in_moving_share"]`` of its length lies in moving stretches and
+    *in a stable stretch* when that share lies in stable ones.
+
+    Returns
+    -------
+    dict
+        ``coverage``; ``alarms`` (segments with instability and confidence both >=
+        0.5); for cases with moving stretches: ``top`` (the highest-ranked
+        min(``top``, moving segments) main-divide segments, each with its share in
+        moving stretches, its azimuth and the azimuth of the measured motion) and
+        ``top_ok``; ``order_ok`` (every main segment in a stable stretch ranks below
+        every one in a moving stretch) and ``order_violations``.
+    """
+    edge = _edge_of_labels(screening.flow, screening.labels)
+    share = TARGETS["top_in_moving_share"]
+    main = []
+    for s in screening.segments:
+        a, b = s["basins"]
+        if {int(edge[a]), int(edge[b])} != {1, 2}:
+            continue
+        sh = segment_stretch_shares(s["line"], case.stretches, case.threshold_m_per_yr)
+        moving = sh["a"] + sh["b"]
+        toward = "a" if sh["a"] >= sh["b"] else "b"
+        main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
+                     "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
+                     "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
+                     "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
+                     "measured_azimuth": 270.0 if toward == "a" else 90.0,
+                     "azimuth": s["motion_azimuth_deg"], "in_moving": moving >= share,
+                     "in_stable": sh["stable"] >= share})
+    main.sort(key=lambda m: m["rank"])
+    alarms = [s for s in screening.segments if s["instability"] is not None and s["instability"] >= TARGETS["alarm"]
+              and s["confidence"] is not None and s["confidence"] >= TARGETS["alarm"]]
+    classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
+    moving_truth = any(c in ("a", "b") for c in classes)
+    out: dict[str, Any] = {
+        "index": case.index, "family": case.family, "split": case.split, "forced_side": case.forced_side,
+        "moving_stretches": sum(c in ("a", "b") for c in classes),
+        "stable_stretches": sum(c == "stable" for c in classes),
+        "stretches": len(case.stretches), "coverage": screening.coverage.get("share"),
+        "segments": len(screening.segments), "main_segments": len(main),
+        "alarms": len(alarms), "max_alarm": max((s["instability"] for s in alarms), default=None),
+        "alarms_main": sum(1 for m in main if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
+                           and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"]),
+        "main_insufficient": sum(1 for m in main if m["instability"] is None),
+    }
+    out["main"] = main
+    out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
+                                            "judged_length_m", "n_points", "facing_share")}
+                     for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
+    out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
+    out["alarm_ok"] = (not case.steady) or not alarms
+    n_moving = sum(m["in_moving"] for m in main)
+    if moving_truth and n_moving:
+        head = main[: min(top, n_moving)]
+        for m in head:
+            m["azimuth_error"] = (None if m["azimuth"] is None else
+                                  abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0))
+        out["top"] = [{k: m[k] for k in ("rank", "instability", "confidence", "moving_share", "azimuth",
+                                         "measured_azimuth", "azimuth_error")} for m in head]
+        out["top_ok"] = all(m["in_moving"] and m["azimuth_error"] is not None
+                            and m["azimuth_error"] <= TARGETS["azimuth_deg"] for m in head)
+    else:
+        out["top"], out["top_ok"] = [], None
+    movers = [m for m in main if m["in_moving"]]
+    still = [m for m in main if m["in_stable"]]
+    worst_mover = max((m["rank"] for m in movers), default=None)
+    best_still = min((m["rank"] for m in still), default=None)
+    out["moving_segments"], out["stable_segments"] = len(movers), len(still)
+    if movers and still:
+        out["order_violations"] = sum(1 for m in movers for s in still if s["rank"] < m["rank"])
+        out["order_ok"] = worst_mover < best_still
+    else:
+        out["order_violations"], out["order_ok"] = 0, None
+    return out

@@ -1,0 +1,108 @@
+"""Regional screening against model landscapes whose divide motion is measured per stretch.
+
+The cases come from :mod:`divides.model.regional_benchmark`: a ridge between the west and
+east edges grown with the project's forward model, long along the divide, several outlet
+basins per side; the truth is measured by continuing the run (docs/validation.md,
+*Regional screening*). The fast tests grow one steady case small (120 x 96 cells) from its
+seed; the slow ones run the held-out cases of the validation.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from divides.assess.screen import MIN_JUDGED_CELLS, screen
+from divides.model.benchmark import MOVING_CELLS_PER_TAU, split_of
+from divides.model.regional_benchmark import (
+    TARGETS,
+    build,
+    case_seed,
+    load_or_build,
+    score,
+)
+from divides.terrain.divide_lines import divide_network
+
+#: Channel threshold of the validation (cells), as in tests/benchmarks/bench_regional.py.
+CHANNEL_CELLS = 50
+
+
+def _screen(case):
+    return screen(case.dem(), theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
+                  channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2)
+
+
+@pytest.fixture(scope="module")
+def steady():
+    case = build(0, 12, shape=(120, 96))  # steady_symmetric, training case 12 of master seed 0, grown small
+    result = _screen(case)
+    return case, result, score(case, result)
+
+
+def test_the_small_case_is_measured_steady(steady):
+    # Uniform forcing at steady state: the divide does not move (Willett et al. 2014); checked by
+    # continuing the run, the single-divide benchmark's rule on the whole divide (< 1 cell per τ).
+    case, _, _ = steady
+    rates = [s["rate_m_per_yr"] for s in case.stretches]
+    assert len(rates) == 10 and all(r is not None for r in rates)
+    assert abs(np.mean(rates)) < MOVING_CELLS_PER_TAU * case.threshold_m_per_yr
+
+
+def test_coverage_and_every_stretch_accounted_for(steady):
+    # Issue 14 item 1: >= 90 % of the divides between outlet basins in judged segments, and every
+    # traced stretch of divide is a segment or a gap (lengths add up to the traced network's,
+    # traced here once more).
+    _, result, scored = steady
+    assert scored["coverage"] >= TARGETS["coverage"]
+    traced = sum(seg.line.length_m for seg in divide_network(result.dem, result.labels, min_vertices=2))
+    listed = sum(s["length_m"] for s in result.segments) + sum(g["length_m"] for g in result.gaps)
+    assert listed == pytest.approx(traced, rel=1e-9)
+
+
+def test_every_main_divide_segment_is_judged_on_pooled_samples(steady):
+    # Before pooling, most main-divide pieces between two small basins had fewer than six
+    # independent samples and were "insufficient data" (docs/validation.md: 24 of 423 judged on the
+    # training cases); pooled with the pieces that continue them, every one is judged.
+    case, result, scored = steady
+    assert scored["main_segments"] >= 5
+    assert scored["main_insufficient"] == 0
+    cell = case.cell_size
+    for s in result.segments:
+        assert s["judged_length_m"] >= s["length_m"]
+        if s["judged_length_m"] > s["length_m"]:  # pooled only while short
+            assert s["length_m"] < MIN_JUDGED_CELLS * cell
+
+
+@pytest.mark.xfail(strict=True, reason="known miss (docs/validation.md, Regional screening): on this steady case "
+                   "5 segments reach instability >= 0.5 with confidence >= 0.5 (up to 0.85); near-divide "
+                   "asymmetries of steady landscapes look like those of moving stretches")
+def test_no_false_alarm_on_a_steady_landscape(steady):
+    _, _, scored = steady
+    assert scored["alarms"] == 0
+
+
+# ---------------------------------------------------------------------------- slow: held-out cases
+HELD_OUT = [i for i in range(24) if split_of(case_seed(0, i)) == "held-out"]
+
+
+@pytest.fixture(scope="module")
+def held_out():
+    out = []
+    for i in HELD_OUT:
+        case = load_or_build(0, i)  # cached under ~/.cache/divides/regional
+        out.append(score(case, _screen(case)))
+    return out
+
+
+@pytest.mark.slow
+def test_held_out_coverage(held_out):
+    assert len(held_out) >= 6
+    assert all(r["coverage"] >= TARGETS["coverage"] for r in held_out)
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(strict=True, reason="known misses per family in docs/validation.md (Regional screening)")
+def test_held_out_ranking_and_alarm_targets(held_out):
+    assert all(r["top_ok"] is not False for r in held_out)
+    assert all(r["order_ok"] is not False for r in held_out)
+    assert all(r["alarm_ok"] for r in held_out)

@@ -1,0 +1,70 @@
+"""The regional benchmark's truth per stretch and its bookkeeping, on analytic inputs (no model runs)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from divides.model.benchmark import split_of
+from divides.model.regional_benchmark import (
+    FAMILIES,
+    case_seed,
+    segment_stretch_shares,
+    stretch_class,
+    stretch_motion,
+)
+from divides.terrain.divide_lines import DivideLine
+
+
+def _positions(rates_cells_per_tau: np.ndarray, *, cell: float, tau: float, steps: int = 24) -> tuple:
+    """Rows moving at exact constant rates (m per year) over 0.3 τ, from 1000 m."""
+    times = np.linspace(0.0, 0.3 * tau, steps + 1)
+    rate = rates_cells_per_tau * cell / tau
+    return 1000.0 + times[:, None] * rate[None, :], times
+
+
+def test_each_stretch_gets_the_least_squares_rate_of_its_rows():
+    # A line moving at a constant rate has that rate as its least-squares slope (analytic).
+    cell, tau = 50.0, 1e6
+    rates = np.r_[np.full(40, -3.0), np.full(40, 0.5), np.full(20, 1.5)]  # cells per τ
+    pos, times = _positions(rates, cell=cell, tau=tau)
+    stretches, threshold = stretch_motion(pos, times, cell_m=cell, tau_yr=tau)
+    assert threshold == pytest.approx(cell / tau)  # one cell per response time
+    assert [(s["row0"], s["row1"]) for s in stretches] == [(10 * k, 10 * k + 10) for k in range(10)]
+    got = np.array([s["rate_m_per_yr"] for s in stretches]) / threshold
+    assert got == pytest.approx(np.r_[np.full(4, -3.0), np.full(4, 0.5), np.full(2, 1.5)], rel=1e-9)
+    # 2 cells per τ or more is moving, below 1 does not move, in between is slow
+    assert [stretch_class(s, threshold) for s in stretches] == ["a"] * 4 + ["stable"] * 4 + ["slow"] * 2
+
+
+def test_rows_that_do_not_cross_the_divide_throughout_are_left_out():
+    cell, tau = 50.0, 1e6
+    pos, times = _positions(np.full(100, 3.0), cell=cell, tau=tau)
+    pos[12:, 0] = np.nan      # a row that vanishes half-way: kept, it would shift the mean
+    pos[3, 12:20] = np.nan    # stretch 1 keeps only two rows crossing throughout: unmeasured
+    stretches, threshold = stretch_motion(pos, times, cell_m=cell, tau_yr=tau)
+    assert stretches[0]["n_lines"] == 9
+    assert stretches[0]["rate_m_per_yr"] / threshold == pytest.approx(3.0, rel=1e-9)
+    assert stretches[1]["n_lines"] == 2 and stretches[1]["rate_m_per_yr"] is None
+    assert stretches[1]["moves_toward"] is None and stretch_class(stretches[1], threshold) is None
+
+
+def test_a_segment_shares_its_length_among_the_stretches_it_crosses():
+    # A straight north-south line over rows 0-60 crosses six stretches of ten rows (geometry).
+    rows = np.arange(0.0, 61.0)
+    line = DivideLine(rows, np.full(rows.size, 5.0), np.full(rows.size, 5.0), -rows, rows * 30.0, np.zeros(rows.size))
+    stretches = [{"row0": 10 * k, "row1": 10 * k + 10, "rate_m_per_yr": r, "moves_toward": None}
+                 for k, r in enumerate([-5.0, -5.0, -5.0, 0.0, 0.0, 1.5, 0.0, 0.0, 0.0, 0.0])]
+    shares = segment_stretch_shares(line, stretches, 1.0)
+    assert shares["a"] == pytest.approx(0.5, abs=1 / 60)
+    assert shares["stable"] == pytest.approx(1 / 3, abs=1 / 60)
+    assert shares["slow"] == pytest.approx(1 / 6, abs=1 / 60)
+    assert sum(shares.values()) == pytest.approx(1.0)
+
+
+def test_cases_are_reproducible_and_split_before_generation():
+    seeds = [case_seed(0, i) for i in range(24)]
+    assert seeds == [case_seed(0, i) for i in range(24)] and len(set(seeds)) == 24
+    splits = [split_of(s) for s in seeds]
+    assert 6 <= splits.count("held-out") <= 18  # SHA-256 split: half in expectation (binomial, 24 draws)
+    assert {FAMILIES[i % len(FAMILIES)] for i in range(8)} == set(FAMILIES)
