@@ -308,3 +308,40 @@ def test_more_uplift_next_to_the_divide_on_side_b_moves_it_faster_into_b(ridge_a
     assert "withheld" not in lifted and "withheld" not in flat
     assert lifted["best"] > flat["best"] + 0.05  # U ~ E ~ 0.2 mm/yr here: ΔU ~ 0.1 mm/yr over S_a + S_b < 1
     assert any("uplift raster" in f for f in lifted["flags"])
+
+
+def test_the_forward_run_rate_follows_k_and_the_verdict():
+    # The forward run's rate is K x its unit-K rate (time scales as 1/K; Royden & Perron 2013), scaled by
+    # the run's bias measured on the benchmark's training part, in the verdict's direction only.
+    import math
+
+    from divides.assess.assessment import _forward_rate, _primary_rate
+    from divides.assess.rate import FORWARD_RATE_LOG_BIAS, FORWARD_RATE_LOG_SPREAD, Calibration
+    from divides.assess.verdict import Verdict
+    from divides.model.forward_run import ForwardShift
+
+    run = ForwardShift(shift_cells=0.5, cell_m=30.0, years_unit_k=2.0, power_a=4.0, power_b=2.0)
+    toward_b = Verdict("b", "a", 0.9, "near-divide", "b")
+    k = 2e-5
+    cal = Calibration("erodibility K", erosion_a=np.full(8, 1e-4), erosion_b=np.full(8, 1e-4), k=np.full(8, k))
+    rate = _forward_rate(run, cal, toward_b, seed=0)
+    unit = k * 0.5 * 30.0 / 2.0 * 1e3  # mm/yr
+    assert rate["toward"] == "b"
+    assert rate["best"] == pytest.approx(unit * math.exp(FORWARD_RATE_LOG_BIAS), rel=0.03)
+    # K exact: the interval is the bias's log-normal spread, ±1.96 standard deviations
+    assert rate["low"] == pytest.approx(rate["best"] * math.exp(-1.96 * FORWARD_RATE_LOG_SPREAD), rel=0.06)
+    assert rate["high"] == pytest.approx(rate["best"] * math.exp(1.96 * FORWARD_RATE_LOG_SPREAD), rel=0.06)
+    # a measured erosion rate of side a gives K = E / mean(A^m S^n) of that side (a basin average)
+    one = Calibration("erosion rate of side a", erosion_a=np.full(8, 4 * k), erosion_b=np.full(8, 1e-4), k=None)
+    assert _forward_rate(run, one, toward_b, seed=0)["best"] == pytest.approx(rate["best"], rel=1e-9)
+    # against the verdict, without a direction, or below the run's resolution: withheld
+    assert "withheld" in _forward_rate(run, cal, Verdict("a", "b", 0.9, "near-divide", "a"), seed=0)
+    assert "withheld" in _forward_rate(run, cal, Verdict("undetermined", None, 0.5, "undetermined", "b"), seed=0)
+    tiny = ForwardShift(0.05, 30.0, 2.0, 4.0, 2.0)
+    assert "withheld" in _forward_rate(tiny, cal, toward_b, seed=0)
+    # the forward run's rate is the one reported when it exists; else the rate at the divide
+    at_divide = {"low": 0.1, "best": 0.2, "high": 0.3, "toward": "b", "flags": [], "erosion_a_mm_yr": 1.0,
+                 "erosion_b_mm_yr": 0.5}
+    assert _primary_rate(at_divide, rate)[0]["method"] == "forward run"
+    assert _primary_rate(at_divide, {"withheld": "x"})[0]["best"] == 0.2
+    assert _primary_rate({"withheld": "why"}, None) == (None, "why")

@@ -12,8 +12,9 @@ m/n and either
   mean of K A^m S^n over that side's cells of the observed DEM (the erosion law the run obeys,
   at the moment observed), side a in even landscapes and side b in odd ones.
 
-Printed per family and in total, for the rate at the divide (``rate_mm_per_yr``: near-divide
-erosion and crest kinematics) and the forward run's rate (``forward_run.rate_mm_per_yr``): the
+Printed per family and in total, for the reported rate (``rate_mm_per_yr``), the rate at the divide
+(``rate_at_divide_mm_per_yr``: near-divide erosion and crest kinematics) and the forward run's rate
+(``forward_run.rate_mm_per_yr``, corrected for its bias on the training part): the
 share of best rates within a factor of 2 (K) or 3 (one rate) of the measured rate, the share of
 95 % intervals covering it, and how often the rate's direction is right when the verdict is.
 Results are cached as JSON lines in ``--out``.
@@ -65,6 +66,7 @@ def _one(s, mode: str, cache: dict) -> dict:
     return {"index": s.index, "family": s.family, "mode": mode, "truth": s.truth["moves_toward"],
             "truth_mm_yr": abs(s.truth["rate_m_per_yr"]) * 1e3, "verdict": v.moves_toward,
             "rate": r, "withheld": a.rate_withheld, "forward_rate": a.forward_rate,
+            "rate_at_divide": a.summary["verdict"]["rate_at_divide_mm_per_yr"],
             "forward_shift_cells": v.forward_shift_cells, "seconds": time.perf_counter() - t}
 
 
@@ -76,6 +78,8 @@ def _summary(recs: list[dict], key: str, title: str, factor: float) -> None:
         f[0] += 1
         f[4] += r["verdict"] == r["truth"]
         rate = r.get(key)
+        if key == "forward_rate" and abs(r.get("forward_shift_cells") or 0.0) < 0.1:
+            rate = None  # below the run's resolution: withheld (as assess does since the fix of 8026267)
         if rate and rate.get("best") is not None:
             # a rate is only ever given in the verdict's direction, so its direction is right exactly
             # when the verdict is
@@ -135,7 +139,8 @@ def main(argv: list[str] | None = None) -> int:
                   f"{rec['truth_mm_yr']:.3g} ({rec['seconds']:.1f} s)", flush=True)
 
     for mode, factor in (("K", 2.0), ("one rate", 3.0)):
-        for key, label in (("rate", "rate at the divide"), ("forward_rate", "forward run's rate")):
+        for key, label in (("rate", "reported rate"), ("rate_at_divide", "rate at the divide"),
+                           ("forward_rate", "forward run's rate")):
             _summary([r for r in done.values() if r["mode"] == mode], key, f"{args.split}, {mode} given, {label}",
                      factor)
     return 0
