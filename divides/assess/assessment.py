@@ -712,22 +712,23 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, 
                     "bias's spread carried, θ and n not"}
 
 
-def _primary_rate(at_divide: dict | None, forward: dict | None) -> tuple[dict | None, str | None]:
+def _primary_rate(at_divide: dict | None, forward: dict | None, *, uplift_given: bool = False
+                  ) -> tuple[dict | None, str | None]:
     """The rate reported as the divide's (and why none is): the forward run's when it gives one (it matched the
-    measured motion better on the benchmark's training part), else the rate at the divide."""
-    if forward is not None and forward.get("best") is not None:
-        keep = {} if at_divide is None or at_divide.get("withheld") else at_divide
-        flags = list(keep.get("flags", []))
+    measured motion better on the benchmark's training part), else the rate at the divide. With an uplift
+    raster the rate at the divide comes first: it reads the raster, the forward run assumes uniform uplift."""
+    divide_ok = at_divide is not None and at_divide.get("best") is not None
+    if forward is not None and forward.get("best") is not None and not (uplift_given and divide_ok):
+        flags = []
         if not (PLAUSIBLE_MM_PER_YR[0] <= forward["best"] <= PLAUSIBLE_MM_PER_YR[1]):
             flags.append(f"implausible: measured divide migration rates span {PLAUSIBLE_MM_PER_YR[0]}–"
                          f"{PLAUSIBLE_MM_PER_YR[1]} mm/yr (He et al. 2024)")
-        return {**keep, **{k: forward[k] for k in ("low", "best", "high", "toward")},
+        erosion = {k: at_divide[k] for k in ("erosion_a_mm_yr", "erosion_b_mm_yr")} if divide_ok else {}
+        return {**erosion, **{k: forward[k] for k in ("low", "best", "high", "toward")},
                 "method": "forward run", "flags": flags}, None
-    if at_divide is not None and at_divide.get("withheld"):
-        return None, at_divide["withheld"]
-    if at_divide is not None:
+    if divide_ok:
         return {**at_divide, "method": "crest kinematics at the divide"}, None
-    return None, None
+    return None, (at_divide or {}).get("withheld")
 
 
 def assess(
@@ -786,7 +787,7 @@ def assess(
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
     forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4)
     at_divide = rate
-    rate, withheld = _primary_rate(rate, forward_rate)
+    rate, withheld = _primary_rate(rate, forward_rate, uplift_given=uplift_raster is not None)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,

@@ -345,3 +345,6 @@ def test_the_forward_run_rate_follows_k_and_the_verdict():
     assert _primary_rate(at_divide, rate)[0]["method"] == "forward run"
     assert _primary_rate(at_divide, {"withheld": "x"})[0]["best"] == 0.2
     assert _primary_rate({"withheld": "why"}, None) == (None, "why")
+    # an uplift raster is read by the rate at the divide, not by the forward run (uniform uplift)
+    assert _primary_rate(at_divide, rate, uplift_given=True)[0]["method"] == "crest kinematics at the divide"
+    assert _primary_rate({"withheld": "why"}, rate, uplift_given=True)[0]["method"] == "forward run"
