@@ -145,7 +145,7 @@ class Assessment:
                 "networks": self.base.networks.get(name, {}),
                 "snapped_points": side.snapped,
             }
-        rate = None if self.rate is None else {k: self.rate[k] for k in ("low", "best", "high", "method")}
+        rate = None if self.rate is None else {k: self.rate[k] for k in ("low", "best", "high")}
         at_divide = None if self.rate_at_divide is None else {
             k: v for k, v in self.rate_at_divide.items() if k in ("low", "best", "high", "toward", "withheld")}
         return to_jsonable({
@@ -196,6 +196,7 @@ class Assessment:
                 "rate_flags": ([self.rate_withheld] if self.rate_withheld else [])
                 + ([] if self.rate is None else self.rate["flags"]),
                 "rate_withheld": self.rate_withheld,
+                "rate_method": None if self.rate is None else self.rate["method"],
                 "rate_at_divide_mm_per_yr": at_divide,
                 "erosion_near_divide_mm_yr": None if self.rate is None or "erosion_a_mm_yr" not in self.rate else
                 {k: self.rate[f"erosion_{k}_mm_yr"] for k in ("a", "b")},
