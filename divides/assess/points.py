@@ -285,7 +285,6 @@ def sample_divide(
         divides of one DEM are sampled.
     """
     dem = flow.dem
-    cols = dem.shape[1]
     parts = {k: [] for k in ("row", "col", "line", "dist", "z", "ca", "cb", "nx", "ny")}
     for li, line in enumerate(divide.lines):
         if line.distance_m.size < 2 or line.length_m <= 0:

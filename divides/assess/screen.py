@@ -12,7 +12,6 @@ from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.terrain.sides import BaseLevel
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError

@@ -7,7 +7,6 @@ receivers-first; ``rec[i] == i`` at outlets. Constant fields are passed as
 
 from __future__ import annotations
 
-import math
 
 from numba import njit
 

@@ -11,7 +11,6 @@ from divides.profiles import _profile_kernels as _k
 from divides.profiles.chi import ChiWeights, integrate_chi
 from divides.profiles.concavity import (
     REFERENCE_THETA,
-    ConcavityEstimate,
     concavity_by_collinearity,
     concavity_by_slope_area,
 )

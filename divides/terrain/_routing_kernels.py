@@ -14,7 +14,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from divides.terrain._fill_kernels import D_COL, D_ROW, grow
+from divides.terrain._fill_kernels import D_COL, D_ROW
 
 OUTLET = 8
 PENDING = 9
