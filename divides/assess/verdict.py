@@ -221,13 +221,15 @@ def decide(
     near_probs = None
     if forward:
         feats.update(evidence.forward_features(float(forward_shift), near_ok))
-        if near_ok:
+        if near_ok and reads_forward:  # otherwise the deciding model is the near-divide one (below)
             near_model = decision_model() if near_model is None else near_model
             near_probs = dict(zip(CLASSES, (round(float(v), 4) for v in near_model.probabilities(feats)[0])))
     feats.update(extra or {})
     model = decision_model(reads_forward) if model is None else model
     decision = rule(model.probabilities(feats), threshold=min_confidence)[0]
     probs = {k: round(v, 4) for k, v in decision.probabilities.items()}
+    if forward and near_ok and not reads_forward:
+        near_probs = dict(probs)
     toward, confidence = decision.outcome, decision.probability
     reason = {"a": "near-divide evidence", "b": "near-divide evidence", "stable": "balanced"}.get(
         toward, "below the confidence threshold")
