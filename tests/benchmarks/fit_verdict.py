@@ -22,6 +22,11 @@
    full rule of :func:`divides.assess.verdict.decide` (divides/assess/verdict_model_forward.json).
 4. Printed per part and per family: the confusion of truth and verdict and the
    targets of the verdict issue; the ECE; optionally a reliability diagram (PNG).
+
+``--shipped`` judges the models shipped in divides/assess/ as they are (nothing is fitted),
+e.g. on a benchmark drawn with another master seed. ``--training-also SEED LO HI CONTRASTS
+FORWARD`` (repeatable) adds every landscape of another benchmark to the training part (one
+whose held-out part has already been judged), each with its own caches.
 """
 
 from __future__ import annotations
@@ -147,6 +152,17 @@ def _cv_loss(x, y, names, l2, folds=5, seed=0):
     return loss / len(y)
 
 
+def _shipped_loss(train: list[dict], forward: bool) -> float:
+    """Log loss of the model shipped in divides/assess/ on ``train`` (the bar a refit must pass)."""
+    from divides.assess.calibration import CLASSES
+    from divides.assess.verdict import decision_model
+
+    model = decision_model(forward=forward)
+    p = model.probabilities(np.array([_row(r, model.features, forward) for r in train]))
+    idx = np.array([CLASSES.index(r["truth"]) for r in train])
+    return -float(np.mean(np.log(np.clip(p[np.arange(idx.size), idx], 1e-12, 1))))
+
+
 def _row(r: dict, names: tuple[str, ...], forward: bool) -> list[float]:
     from divides.assess import evidence
 
@@ -224,6 +240,8 @@ def _select_and_judge(recs, args, *, forward=False, near_model=None):
         print(f"  {loss:.4f}  {label:18s} l2 = {l2:g}")
     _, label, l2 = results[0]
     names = subsets[label]
+    shipped = _shipped_loss(train, forward)
+    print(f"  {shipped:.4f}  the shipped model on the same training landscapes (in sample where it was fitted)")
     x = np.array([_row(r, names, forward) for r in train])
     model = fit(*_mirror(x, y, names), features=names, l2=l2)
     _out_of_fold([r for r in recs if r["split"] == "training"], names, l2, forward, near_model or model, args)
@@ -272,7 +290,7 @@ def _judge(recs, args, model, *, forward=False, near_model=None, veto=False):
                   f"{sum(r['said'] == 'undetermined' for r in st)} |")
         print("  reliability bins (lower, count, mean confidence, accuracy): " + "; ".join(
             f"{b.lower:.1f} {b.count} {b.mean_confidence:.2f} {b.accuracy:.2f}" for b in summary[part]["bins"] if b.count))
-    wrong = [(r["index"], r["split"], r["family"], r["truth"], r["said"], r["conf"]) for r in recs
+    wrong = [(r["set"], r["index"], r["split"], r["family"], r["truth"], r["said"], r["conf"]) for r in recs
              if r["said"] in ("a", "b") and r["said"] != r["truth"]]
     print("\nwrong directions:", wrong)
     return summary
@@ -281,7 +299,9 @@ def _judge(recs, args, model, *, forward=False, near_model=None, veto=False):
 def _document(model, label, l2, results, summary, args) -> dict:
     doc = model.to_dict()
     doc["selection"] = {"features": label, "l2": l2, "cv_log_loss": results[0][0], "training_cases": model.n_train // 2,
-                        "benchmark": {"seed": args.seed, "n": args.n, "grid": list(args.grid)}}
+                        "benchmark": {"seed": args.seed, "n": args.n, "grid": list(args.grid)},
+                        "training_also": [{"seed": int(a), "n": args.n, "grid": [int(lo), int(hi)]}
+                                          for a, lo, hi, _, _ in args.training_also]}
     doc["held_out_reliability"] = [
         {"lower": b.lower, "upper": b.upper, "count": b.count,
          "mean_confidence": None if not b.count else round(b.mean_confidence, 4),
@@ -329,28 +349,55 @@ def main(argv: list[str] | None = None) -> int:
                         help="JSON lines of forward-run shifts (index, shift_cells; made when missing): fit and judge "
                              "the model that also reads the forward run")
     parser.add_argument("--png", type=Path, default=None, help="reliability diagram (training and held-out)")
+    parser.add_argument("--shipped", action="store_true", help="judge the shipped models as they are (no fit)")
+    parser.add_argument("--training-also", nargs=5, action="append", default=[],
+                        metavar=("SEED", "LO", "HI", "CONTRASTS", "FORWARD"),
+                        help="another benchmark whose landscapes all join the training part")
     args = parser.parse_args(argv)
 
     from divides.assess import evidence
 
-    if args.available:
-        recs = sorted((json.loads(l) for l in args.contrasts.read_text().splitlines()), key=lambda r: r["index"])
-        recs = [r for r in recs if r["index"] < args.n]
-    else:
-        recs = _extract(args.n, args.seed, tuple(args.grid), args.contrasts)
-    recs = [r for r in recs if r["truth"] is not None]
-    for r in recs:
-        r["c"] = _contrasts(r)
-        r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
-        r["f"] = evidence.features(r["c"]) if r["ok"] else None
-        r["fwd"] = None
+    sets = [(args.seed, tuple(args.grid), args.contrasts, args.forward, False)]
+    sets += [(int(a), (int(lo), int(hi)), Path(c), Path(f), True) for a, lo, hi, c, f in args.training_also]
+    recs = []
+    for seed, grid, contrasts, forward, all_training in sets:
+        if args.available:
+            part = sorted((json.loads(l) for l in contrasts.read_text().splitlines()), key=lambda r: r["index"])
+            part = [r for r in part if r["index"] < args.n]
+        else:
+            part = _extract(args.n, seed, grid, contrasts)
+        part = [r for r in part if r["truth"] is not None]
+        shifts = {} if forward is None else _forward(part, seed, grid, forward)
+        for r in part:
+            r["set"] = f"seed {seed}, grid {grid[0]}-{grid[1]}"
+            r["split"] = "training" if all_training else r["split"]
+            r["c"] = _contrasts(r)
+            r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
+            r["f"] = evidence.features(r["c"]) if r["ok"] else None
+            r["fwd"] = shifts.get(r["index"]) if forward is not None else None
+        recs += part
+    if args.shipped:
+        from divides.assess.verdict import decision_model
+
+        near, forward_model = decision_model(), decision_model(forward=True)
+        summaries = {}
+        print("\n==== shipped: near-divide model, forward run as veto (the default of divides assess)")
+        summaries["shipped default (veto)"] = _judge(recs, args, near, near_model=near, veto=True)
+        print("\n==== shipped: near-divide model alone")
+        summaries["near-divide measures"] = _judge(recs, args, near, near_model=near)
+        if args.forward is not None:
+            print("\n==== shipped: forward run in the model (--forward-in-decision)")
+            summaries["forward run in the model"] = _judge(recs, args, forward_model, forward=True, near_model=near)
+        if args.png is not None:
+            _diagram(summaries, args.png)
+        return 0
+    if args.forward is None:
+        for r in recs:
+            r["fwd"] = None
     print("\n==== near-divide measures only")
     near = _select_and_judge(recs, args)
     docs, summaries = {False: _document(*near, args)}, {"near-divide measures": near[4]}
     if args.forward is not None:
-        shifts = _forward(recs, args.seed, tuple(args.grid), args.forward)
-        for r in recs:
-            r["fwd"] = shifts.get(r["index"])
         print("\n==== near-divide measures and the forward run")
         fwd = _select_and_judge(recs, args, forward=True, near_model=near[0])
         docs[True], summaries["forward run in the model"] = _document(*fwd, args), fwd[4]
