@@ -695,14 +695,20 @@ def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> 
     return run, ""
 
 
+#: Draws of θ and n for the forward run's rate: each re-evaluates A^m S^n over the model grid (up to 300 x 300
+#: cells), so fewer than the 500 of the rate at the divide; the bias spread dominates the interval.
+_FORWARD_EXPONENT_DRAWS = 200
+
+
 def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, seed: int,
                   exponents: tuple[np.ndarray, np.ndarray] | None = None) -> dict | None:
     """The forward run's rate of the divide (mm/yr toward the victim) under the calibrated K, corrected for the
     run's bias measured on the benchmark (:data:`divides.assess.rate.FORWARD_RATE_LOG_BIAS`), in the verdict's
     direction only (docs/methods.md §9); None without a forward run or a calibration.
 
-    ``exponents``: draws of θ and n, one pair per K sample (:func:`divides.assess.rate.exponent_samples`),
-    carried through K and the run's time scale at each draw; None or a run without its ground: not carried.
+    ``exponents``: draws of θ and n (:func:`divides.assess.rate.exponent_samples`), paired in turn with the K
+    samples and carried through K and the run's time scale at each draw; None or a run without its ground: not
+    carried.
     """
     if run is None or not np.isfinite(run.years_unit_k):
         return None
@@ -802,7 +808,7 @@ def assess(
     verdict = dataclasses.replace(core.decide(config, share, forward_shift),
                                   notes=[forward_note] if forward_note else [])
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
-    exponents = _exponent_draws(core, config, np.random.default_rng(config.seed + 5), np.size(cal.erosion_a)) \
+    exponents = _exponent_draws(core, config, np.random.default_rng(config.seed + 5), _FORWARD_EXPONENT_DRAWS) \
         if cal.available else None
     forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4, exponents)
     at_divide = rate

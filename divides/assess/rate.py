@@ -385,7 +385,8 @@ def forward_erodibility(cal: Calibration, shift: ForwardShift, theta: np.ndarray
     cal : Calibration
     shift : ForwardShift
     theta, n : ndarray, optional
-        Draws of θ and n, as many as ``cal``'s samples (both or neither; the shift must carry its ground).
+        Draws of θ and n (both or neither; the shift must carry its ground). The calibration's samples
+        are paired with them in turn (cycled to the number of draws), and as many K are returned.
 
     Returns
     -------
@@ -400,7 +401,8 @@ def forward_erodibility(cal: Calibration, shift: ForwardShift, theta: np.ndarray
             return None
         k = np.asarray(cal.k, dtype=np.float64)
         if drawn:
-            k = k * shift.reference_power(shift.theta, shift.n) / shift.reference_power(theta, n).reshape(k.shape)
+            k = np.resize(k, np.size(theta)) * shift.reference_power(shift.theta, shift.n) / \
+                shift.reference_power(theta, n)
         return k
     powers = shift.side_powers(theta, n) if drawn else (shift.power_a, shift.power_b)
     ks = []
@@ -409,7 +411,7 @@ def forward_erodibility(cal: Calibration, shift: ForwardShift, theta: np.ndarray
             if not np.all(np.asarray(power) > 0):
                 return None
             samples = np.asarray(samples, dtype=np.float64)
-            ks.append(samples / np.reshape(power, samples.shape) if drawn else samples / power)
+            ks.append(np.resize(samples, np.size(theta)) / power if drawn else samples / power)
     if not ks:
         return None
     return ks[0] if len(ks) == 1 else np.sqrt(ks[0] * ks[1])

@@ -550,7 +550,7 @@ def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edge
                         for g in ground)
     cell = float(min(np.min(grid.dx), np.min(grid.dy)))
     u_a, u_b, s_ref, a_ref = balance_uplift(setup, np.asarray(1.0), m, n)
-    recorded = dict(theta=float(theta), n=float(n), ground=(ground[0], ground[1]), reference=(a_ref, s_ref))
+    recorded = {"theta": float(theta), "n": float(n), "ground": (ground[0], ground[1]), "reference": (a_ref, s_ref)}
     z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
     relief = float(np.nanmax(z) - np.nanmin(z))
     uplift = 0.5 * (u_a + u_b)
