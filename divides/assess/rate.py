@@ -374,7 +374,7 @@ def forward_erodibility(cal: Calibration, shift: ForwardShift, theta: np.ndarray
     geometric mean of the two sides' K. A given K (or one from a dated knickpoint) is used as it is at
     the exponents it was given for.
 
-    With exponents drawn (``theta``, ``n``, one pair per K sample) K is taken at each draw. From an
+    With exponents drawn (``theta``, ``n``) K is taken at each draw. From an
     erosion rate, K_i = E / mean(A^(m_i) S^(n_i)). A given K has units m^(1−2m)/yr: a number is an
     erosion law only together with its exponents, so it is read as fixing the erosion rate of the run's
     reference channel (the channel threshold area at the median channel slope: the smallest channels,

@@ -482,9 +482,10 @@ class ForwardShift:
                       n: np.ndarray | float | None = None) -> np.ndarray:
         """Rate of the divide's motion (m/yr, positive into b) for erodibility ``k``.
 
-        With exponents (θ_i, n_i) drawn, K is taken at them: the run's shift over its horizon in
-        response times is kept (to first order it does not depend on the exponents) while its time
-        scale, relief / U, follows the balancing uplift U at those exponents (:meth:`balance_power`).
+        With exponents (θ_i, n_i) drawn, ``k`` is the erodibility at them (one per draw): the run's shift
+        over its horizon in response times is kept (to first order it does not depend on the exponents)
+        while its time scale, relief / U, follows the balancing uplift U at those exponents
+        (:meth:`balance_power`).
         """
         rate = np.asarray(k, dtype=np.float64) * self.shift_cells * self.cell_m / self.years_unit_k
         if theta is None and n is None:
