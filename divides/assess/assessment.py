@@ -415,13 +415,18 @@ def _uplift_next_to_divide(core: _Core, uplift: np.ndarray) -> tuple[float, floa
     return near[0], near[1], float(np.nanmean(network)) if np.isfinite(network).any() else np.nan
 
 
+def _exponent_draws(core: _Core, config: AssessConfig, rng, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Draws of θ (within its collinearity interval when estimated) and n for the rates' intervals."""
+    est = core.profiles.concavity.get("both")
+    ci = est.ci95 if (est is not None and core.profiles.theta_source == "collinearity") else None
+    return exponent_samples(core.profiles.theta, config.n, n, rng, theta_ci=ci)
+
+
 def _divide_rate(core: _Core, config: AssessConfig, verdict: Verdict, cal: Calibration, ksn_a, ksn_b,
                  to_unit: float, rng, n: int, uplift: np.ndarray | None) -> dict:
     """The rate at the divide (mm/yr toward the victim) from the channel heads next to it (docs/methods.md §9)."""
     near = _near_divide_ksn(core, to_unit)
-    est = core.profiles.concavity.get("both")
-    ci = est.ci95 if (est is not None and core.profiles.theta_source == "collinearity") else None
-    theta_draws, n_draws = exponent_samples(core.profiles.theta, config.n, n, rng, theta_ci=ci)
+    theta_draws, n_draws = _exponent_draws(core, config, rng, n)
     erosion = {}
     for side, e_net, k_net in (("a", cal.erosion_a, ksn_a), ("b", cal.erosion_b, ksn_b)):
         values = near[side]["ksn"]
@@ -690,12 +695,26 @@ def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> 
     return run, ""
 
 
-def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, seed: int) -> dict | None:
+#: Draws of θ and n for the forward run's rate: each re-evaluates A^m S^n over the model grid (up to 300 x 300
+#: cells), so fewer than the 500 of the rate at the divide; the bias spread dominates the interval.
+_FORWARD_EXPONENT_DRAWS = 200
+
+
+def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, seed: int,
+                  exponents: tuple[np.ndarray, np.ndarray] | None = None) -> dict | None:
     """The forward run's rate of the divide (mm/yr toward the victim) under the calibrated K, corrected for the
     run's bias measured on the benchmark (:data:`divides.assess.rate.FORWARD_RATE_LOG_BIAS`), in the verdict's
-    direction only (docs/methods.md §9); None without a forward run or a calibration."""
-    k = None if run is None else forward_erodibility(cal, run)
-    if k is None or not np.isfinite(run.years_unit_k):
+    direction only (docs/methods.md §9); None without a forward run or a calibration.
+
+    ``exponents``: draws of θ and n (:func:`divides.assess.rate.exponent_samples`), paired in turn with the K
+    samples and carried through K and the run's time scale at each draw; None or a run without its ground: not
+    carried.
+    """
+    if run is None or not np.isfinite(run.years_unit_k):
+        return None
+    theta, n = exponents if exponents is not None and run.carries_exponents else (None, None)
+    k = forward_erodibility(cal, run, theta, n)
+    if k is None:
         return None
     if verdict.moves_toward not in ("a", "b"):
         return {"withheld": "the verdict has no direction"}
@@ -705,12 +724,15 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, 
     if says != verdict.moves_toward:
         return {"withheld": f"the forward run moves the divide toward side {says}, against the verdict"}
     k = np.asarray(k, dtype=np.float64).ravel()
+    unit = np.abs(run.rate_m_per_yr(k) if theta is None else run.rate_m_per_yr(k, theta, n))
     z = np.random.default_rng(seed).standard_normal(max(k.size, 4000))
-    v = np.abs(run.rate_m_per_yr(np.resize(k, z.size))) * 1e3 * np.exp(FORWARD_RATE_LOG_BIAS + FORWARD_RATE_LOG_SPREAD * z)
+    v = np.resize(unit, z.size) * 1e3 * np.exp(FORWARD_RATE_LOG_BIAS + FORWARD_RATE_LOG_SPREAD * z)
     lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
+    carried = "K, θ, n and that bias's spread carried" if theta is not None else "K and that bias's spread carried, " \
+        "θ and n not"
     return {"low": lo, "best": best, "high": hi, "toward": says,
-            "note": "forward run under the calibrated K, corrected for its bias on model landscapes; K and that "
-                    "bias's spread carried, θ and n not"}
+            "note": f"forward run under the calibrated K, corrected for its bias on model landscapes; {carried}; "
+                    "the DEM error not carried (it would need more forward runs)"}
 
 
 def _primary_rate(at_divide: dict | None, forward: dict | None, *, uplift_given: bool = False
@@ -786,7 +808,9 @@ def assess(
     verdict = dataclasses.replace(core.decide(config, share, forward_shift),
                                   notes=[forward_note] if forward_note else [])
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
-    forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4)
+    exponents = _exponent_draws(core, config, np.random.default_rng(config.seed + 5), _FORWARD_EXPONENT_DRAWS) \
+        if cal.available else None
+    forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4, exponents)
     at_divide = rate
     rate, withheld = _primary_rate(rate, forward_rate, uplift_given=uplift_raster is not None)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,

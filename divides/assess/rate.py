@@ -365,18 +365,28 @@ def near_divide_erosion(
     return np.asarray(erosion_network, dtype=np.float64) * ratio**exponent
 
 
-def forward_erodibility(cal: Calibration, shift: ForwardShift) -> np.ndarray | None:
+def forward_erodibility(cal: Calibration, shift: ForwardShift, theta: np.ndarray | None = None,
+                        n: np.ndarray | None = None) -> np.ndarray | None:
     """Samples of K for turning a forward run's shift into a rate (:meth:`ForwardShift.rate_m_per_yr`).
 
-    A given K (or one from a dated knickpoint) is used as it is. A measured erosion rate is
-    read as its side's basin-averaged rate, so K = E / mean(A^m S^n) over that side's cells of
-    the model grid; with both sides' rates the run, which has one K, takes the geometric mean of
-    the two sides' K.
+    A measured erosion rate is read as its side's basin-averaged rate, so K = E / mean(A^m S^n) over
+    that side's cells of the model grid; with both sides' rates the run, which has one K, takes the
+    geometric mean of the two sides' K. A given K (or one from a dated knickpoint) is used as it is at
+    the exponents it was given for.
+
+    With exponents drawn (``theta``, ``n``) K is taken at each draw. From an
+    erosion rate, K_i = E / mean(A^(m_i) S^(n_i)). A given K has units m^(1−2m)/yr: a number is an
+    erosion law only together with its exponents, so it is read as fixing the erosion rate of the run's
+    reference channel (the channel threshold area at the median channel slope: the smallest channels,
+    next to the divide) at the exponents given, K_i = K A_r^m S_r^n / (A_r^(m_i) S_r^(n_i)).
 
     Parameters
     ----------
     cal : Calibration
     shift : ForwardShift
+    theta, n : ndarray, optional
+        Draws of θ and n (both or neither; the shift must carry its ground). The calibration's samples
+        are paired with them in turn (cycled to the number of draws), and as many K are returned.
 
     Returns
     -------
@@ -385,14 +395,23 @@ def forward_erodibility(cal: Calibration, shift: ForwardShift) -> np.ndarray | N
     """
     if not cal.available:
         return None
+    drawn = theta is not None and n is not None
     if cal.source in ("erodibility K", "dated knickpoint"):
-        return None if cal.k is None else np.asarray(cal.k, dtype=np.float64)
+        if cal.k is None:
+            return None
+        k = np.asarray(cal.k, dtype=np.float64)
+        if drawn:
+            k = np.resize(k, np.size(theta)) * shift.reference_power(shift.theta, shift.n) / \
+                shift.reference_power(theta, n)
+        return k
+    powers = shift.side_powers(theta, n) if drawn else (shift.power_a, shift.power_b)
     ks = []
-    for given, samples, power in (("a", cal.erosion_a, shift.power_a), ("b", cal.erosion_b, shift.power_b)):
+    for given, samples, power in (("a", cal.erosion_a, powers[0]), ("b", cal.erosion_b, powers[1])):
         if cal.source in (f"erosion rate of side {given}", "erosion rates of both sides"):
-            if not power > 0:
+            if not np.all(np.asarray(power) > 0):
                 return None
-            ks.append(np.asarray(samples, dtype=np.float64) / power)
+            samples = np.asarray(samples, dtype=np.float64)
+            ks.append(np.resize(samples, np.size(theta)) / power if drawn else samples / power)
     if not ks:
         return None
     return ks[0] if len(ks) == 1 else np.sqrt(ks[0] * ks[1])

@@ -40,6 +40,7 @@ __all__ = [
     "block_mean",
     "coarsen",
     "ForwardShift",
+    "SideGround",
     "forward_shift",
     "prepare",
     "run_model",
@@ -370,7 +371,45 @@ def prepare(grid: Dem, sides: Sides, *, factor: int, closed_edges: tuple[str, ..
     )
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
+class SideGround:
+    """Drainage area and slope of one side's cells on the model grid (what its A^m S^n is made of).
+
+    Attributes
+    ----------
+    log_area, log_slope : ndarray
+        ln A (m²) and ln S of every cell of the side (ln S = −inf where the cell has no slope).
+    channel : ndarray of bool
+        The side's reference channels among them (those whose median erosion sets the balancing uplift).
+    """
+
+    log_area: np.ndarray
+    log_slope: np.ndarray
+    channel: np.ndarray
+
+
+#: Exponent draws evaluated at once (bounds the temporary arrays to about 32 x the model grid).
+_DRAW_CHUNK = 32
+
+
+def _exponents(theta: np.ndarray | float, n: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+    """m = θ n and n as 1-d arrays of the same length."""
+    th, nn = np.broadcast_arrays(np.atleast_1d(np.asarray(theta, dtype=np.float64)),
+                                 np.atleast_1d(np.asarray(n, dtype=np.float64)))
+    return (th * nn).ravel(), nn.ravel()
+
+
+def _powers(log_area: np.ndarray, log_slope: np.ndarray, m: np.ndarray, n: np.ndarray, how: str) -> np.ndarray:
+    """Mean (``how="mean"``) or median of A^m S^n over the cells, for each pair of exponents (m_i, n_i)."""
+    out = np.empty(m.size)
+    for s in range(0, m.size, _DRAW_CHUNK):
+        log_p = m[s:s + _DRAW_CHUNK, None] * log_area[None, :] + n[s:s + _DRAW_CHUNK, None] * log_slope[None, :]
+        power = np.exp(log_p)  # n > 0: a cell without slope (ln S = −inf) has power 0
+        out[s:s + _DRAW_CHUNK] = np.mean(power, axis=1) if how == "mean" else np.median(power, axis=1)
+    return out
+
+
+@dataclass(frozen=True, eq=False)
 class ForwardShift:
     """The divide's shift in a short forward run with K = 1, and what turns it into a rate.
 
@@ -387,6 +426,14 @@ class ForwardShift:
     power_a, power_b : float
         Mean of A^m S^n over each side's cells of the model grid at the start: a side's
         basin-averaged erosion rate E gives K = E / power.
+    theta, n : float
+        Exponents of the run (m = θ n); NaN when not recorded.
+    ground : (SideGround, SideGround) or None
+        Each side's cells on the model grid, to evaluate A^m S^n at other exponents
+        (:meth:`side_powers`, :meth:`balance_power`); None when not recorded.
+    reference : (float, float) or None
+        Drainage area (m²) and slope of the run's reference channel: the channel threshold and the
+        median slope of both sides' reference channels (the ones the time step is set at).
     """
 
     shift_cells: float
@@ -394,10 +441,58 @@ class ForwardShift:
     years_unit_k: float
     power_a: float
     power_b: float
+    theta: float = math.nan
+    n: float = math.nan
+    ground: tuple[SideGround, SideGround] | None = None
+    reference: tuple[float, float] | None = None
 
-    def rate_m_per_yr(self, k: np.ndarray | float) -> np.ndarray:
-        """Rate of the divide's motion (m/yr, positive into b) for erodibility ``k``."""
-        return np.asarray(k, dtype=np.float64) * self.shift_cells * self.cell_m / self.years_unit_k
+    @property
+    def carries_exponents(self) -> bool:
+        """True when A^m S^n can be re-evaluated at other exponents."""
+        return self.ground is not None and self.reference is not None and math.isfinite(self.theta * self.n)
+
+    def side_powers(self, theta: np.ndarray | float, n: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+        """Mean of A^m S^n over each side's cells at exponents (θ_i, n_i) (``power_a``/``power_b`` at the run's)."""
+        self._need_ground()
+        m, nn = _exponents(theta, n)
+        a, b = (_powers(g.log_area, g.log_slope, m, nn, "mean") for g in self.ground)
+        return a, b
+
+    def balance_power(self, theta: np.ndarray | float, n: np.ndarray | float) -> np.ndarray:
+        """The balancing uplift at K = 1 at exponents (θ_i, n_i): the mean of both sides' median A^m S^n
+        over their reference channels (:func:`balance_uplift`); it sets the run's time scale, relief / U."""
+        self._need_ground()
+        m, nn = _exponents(theta, n)
+        a, b = (_powers(g.log_area[g.channel], g.log_slope[g.channel], m, nn, "median") for g in self.ground)
+        return 0.5 * (a + b)
+
+    def reference_power(self, theta: np.ndarray | float, n: np.ndarray | float) -> np.ndarray:
+        """A^m S^n of the reference channel at exponents (θ_i, n_i)."""
+        self._need_ground()
+        area, slope = self.reference
+        m, nn = _exponents(theta, n)
+        return area**m * slope**nn
+
+    def _need_ground(self) -> None:
+        if not self.carries_exponents:
+            raise ParameterError("this forward shift was made without its model grid's ground; "
+                                 "A^m S^n cannot be re-evaluated at other exponents")
+
+    def rate_m_per_yr(self, k: np.ndarray | float, theta: np.ndarray | float | None = None,
+                      n: np.ndarray | float | None = None) -> np.ndarray:
+        """Rate of the divide's motion (m/yr, positive into b) for erodibility ``k``.
+
+        With exponents (θ_i, n_i) drawn, ``k`` is the erodibility at them (one per draw): the run's shift
+        over its horizon in response times is kept (to first order it does not depend on the exponents)
+        while its time scale, relief / U, follows the balancing uplift U at those exponents
+        (:meth:`balance_power`).
+        """
+        rate = np.asarray(k, dtype=np.float64) * self.shift_cells * self.cell_m / self.years_unit_k
+        if theta is None and n is None:
+            return rate
+        th = self.theta if theta is None else theta
+        nn = self.n if n is None else n
+        return rate * self.balance_power(th, nn) / self.balance_power(self.theta, self.n)
 
 
 def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edges: tuple[str, ...],
@@ -444,17 +539,25 @@ def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edge
     grid, factor = coarsen(dem)
     setup = prepare(grid, sides, factor=factor, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     m = theta * n
-    area = np.asarray(setup.flow.area, dtype=np.float64).ravel()
-    power = area ** m * slopes(setup.flow) ** n
-    power_a, power_b = (float(np.mean(power[mask.ravel()])) for mask in (setup.mask_a, setup.mask_b))
+    with np.errstate(divide="ignore"):  # ln 0 = −inf: a cell without slope has A^m S^n = 0
+        log_area = np.log(np.asarray(setup.flow.area, dtype=np.float64).ravel())
+        log_slope = np.log(slopes(setup.flow))
+    ground = []
+    for mask in (setup.mask_a, setup.mask_b):
+        cells = np.flatnonzero(mask.ravel())
+        channel = np.isin(cells, _channel_cells(setup, mask), assume_unique=True)
+        ground.append(SideGround(log_area[cells], log_slope[cells], channel))
+    power_a, power_b = (float(_powers(g.log_area, g.log_slope, np.array([m]), np.array([float(n)]), "mean")[0])
+                        for g in ground)
     cell = float(min(np.min(grid.dx), np.min(grid.dy)))
-    u_a, u_b, _, _ = balance_uplift(setup, np.asarray(1.0), m, n)
+    u_a, u_b, s_ref, a_ref = balance_uplift(setup, np.asarray(1.0), m, n)
+    recorded = {"theta": float(theta), "n": float(n), "ground": (ground[0], ground[1]), "reference": (a_ref, s_ref)}
     z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
     relief = float(np.nanmax(z) - np.nanmin(z))
     uplift = 0.5 * (u_a + u_b)
     if not (relief > 0 and uplift > 0):
-        return ForwardShift(0.0, cell, math.inf, power_a, power_b)
+        return ForwardShift(0.0, cell, math.inf, power_a, power_b, **recorded)
     years = horizon_tau * relief / uplift
     run = run_model(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=years,
                     uplift_mode=uplift_mode, diffusivity=0.0, max_steps=int(max_steps))
-    return ForwardShift(float(run.displacement_m[-1]) / cell, cell, years, power_a, power_b)
+    return ForwardShift(float(run.displacement_m[-1]) / cell, cell, years, power_a, power_b, **recorded)

@@ -348,3 +348,79 @@ def test_the_forward_run_rate_follows_k_and_the_verdict():
     # an uplift raster is read by the rate at the divide, not by the forward run (uniform uplift)
     assert _primary_rate(at_divide, rate, uplift_given=True)[0]["method"] == "crest kinematics at the divide"
     assert _primary_rate({"withheld": "why"}, rate, uplift_given=True)[0]["method"] == "forward run"
+
+
+def _steady_ground(ks_a: float, ks_b: float, theta: float = 0.45):
+    """A forward shift over two steady channel profiles of Flint's law S = ks A^-θ (Flint 1974; Whipple & Tucker
+    1999: steady state under uniform U and K at the true θ), A = 1..21 x 1e4 m² on each side, all channels."""
+    from divides.model.forward_run import ForwardShift, SideGround
+
+    area = np.arange(1, 22.0) * 1e4
+    ground = tuple(SideGround(np.log(area), np.log(ks * area**-theta), np.ones(area.size, bool)) for ks in (ks_a, ks_b))
+    power = [float(np.mean((ks * area**-theta) * area**theta)) for ks in (ks_a, ks_b)]  # n = 1: ks
+    return ForwardShift(shift_cells=0.5, cell_m=30.0, years_unit_k=2.0, power_a=power[0], power_b=power[1],
+                        theta=theta, n=1.0, ground=ground, reference=(1e4, ks_a * 1e4**-theta))
+
+
+def test_exponents_drawn_for_the_forward_rate_follow_the_slope_area_law_by_hand():
+    # On steady profiles S = ks A^-θ (Whipple & Tucker 1999) A^(θ_i n_i) S^(n_i) = ks^(n_i) A^((θ_i - θ) n_i).
+    from divides.assess.rate import Calibration, forward_erodibility
+
+    theta = 0.45
+    run = _steady_ground(40.0, 20.0, theta)
+    th, n = np.array([0.45, 0.45, 0.5, 0.4]), np.array([1.0, 1.2, 1.0, 0.8])
+    area = np.arange(1, 22.0) * 1e4
+    d = (th - theta) * n
+    hand_u = 0.5 * (40.0**n + 20.0**n) * (11e4) ** d  # the median channel of 21 is the 11th, A = 11e4 m²
+    np.testing.assert_allclose(run.balance_power(th, n), hand_u, rtol=1e-9)
+    hand_a = 40.0**n * np.array([np.mean(area**x) for x in d])
+    np.testing.assert_allclose(run.side_powers(th, n)[0], hand_a, rtol=1e-9)
+    unit = run.rate_m_per_yr(1.0)
+    # One side's erosion rate E: K_i = E / mean_a, so the rate is E (U_i / mean_a,i) x the unit rate / U_0.
+    # With θ exact only the other side's steepness enters: U_i / mean_a,i = (1 + (20/40)^n_i) / 2.
+    e = 1e-4
+    one = Calibration("erosion rate of side a", erosion_a=np.full(4, e), erosion_b=np.full(4, e), k=None)
+    rate = run.rate_m_per_yr(forward_erodibility(one, run, th, n), th, n)
+    hand = e * unit / run.balance_power(theta, 1.0) * hand_u / hand_a
+    np.testing.assert_allclose(rate, hand, rtol=1e-9)
+    np.testing.assert_allclose(rate[:2] / rate[0], [1.0, (1 + 0.5**1.2) / (1 + 0.5)], rtol=1e-9)
+    # Equal steepness on both sides (a uniform steady landscape): n cancels exactly, whatever it is drawn at.
+    even = _steady_ground(30.0, 30.0, theta)
+    same = Calibration("erosion rate of side a", erosion_a=np.full(3, e), erosion_b=np.full(3, e), k=None)
+    n3, th3 = np.array([0.6, 1.0, 1.9]), np.full(3, theta)
+    np.testing.assert_allclose(even.rate_m_per_yr(forward_erodibility(same, even, th3, n3), th3, n3),
+                               even.rate_m_per_yr(forward_erodibility(same, even)), rtol=1e-9)
+    # A given K is read as fixing the erosion of the reference channel (A_r = 1e4 m², its slope on side a's
+    # profile): K_i = K A_r^m S_r^n / (A_r^m_i S_r^n_i), which on the profile is K 40 / (40^n_i A_r^d_i).
+    k = 2e-5
+    given = Calibration("erodibility K", erosion_a=np.full(4, e), erosion_b=np.full(4, e), k=np.full(4, k))
+    np.testing.assert_allclose(forward_erodibility(given, run, th, n), k * 40.0 / (40.0**n * 1e4**d), rtol=1e-9)
+
+
+def test_theta_and_n_widen_the_forward_rate_only_where_they_do_not_cancel():
+    # The interval of the forward run's rate carries θ and n (docs/methods.md §9). Given K, the run's time scale
+    # (median channel, 11e4 m²) and the reference channel (1e4 m²) differ in area, so a drawn θ changes the rate
+    # by (11)^((θ_i - θ) n_i) (test above): the interval widens, still holds the best value, still points with
+    # the verdict. From one side's erosion rate on a uniform steady landscape, θ exact: nothing to widen.
+    from divides.assess.assessment import _forward_rate
+    from divides.assess.rate import Calibration, exponent_samples
+    from divides.assess.verdict import Verdict
+
+    toward_b = Verdict("b", "a", 0.9, "near-divide", "b")
+    rng = np.random.default_rng(3)
+    size = 500
+    draws = exponent_samples(0.45, 1.0, size, rng, theta_ci=(0.35, 0.55))
+    run = _steady_ground(40.0, 20.0)
+    given = Calibration("erodibility K", erosion_a=np.full(size, 1e-4), erosion_b=np.full(size, 1e-4),
+                        k=np.full(size, 2e-5))
+    fixed, drawn = _forward_rate(run, given, toward_b, 0), _forward_rate(run, given, toward_b, 0, draws)
+    assert drawn["toward"] == fixed["toward"] == "b"
+    assert drawn["low"] < drawn["best"] < drawn["high"]
+    assert np.log(drawn["high"] / drawn["low"]) > 1.02 * np.log(fixed["high"] / fixed["low"])
+    assert "θ, n" in drawn["note"] and "θ and n not" in fixed["note"]
+    even = _steady_ground(30.0, 30.0)
+    one = Calibration("erosion rate of side a", erosion_a=np.full(size, 1e-4), erosion_b=np.full(size, 1e-4), k=None)
+    n_only = (np.full(size, 0.45), draws[1])
+    same = _forward_rate(even, one, toward_b, 0, n_only)
+    assert [same[k] for k in ("low", "best", "high")] == pytest.approx(
+        [_forward_rate(even, one, toward_b, 0)[k] for k in ("low", "best", "high")], rel=1e-9)

@@ -80,3 +80,35 @@ def test_a_run_at_erodibility_k_moves_the_divide_as_the_unit_run_scaled_in_time(
     measured = run.displacement_m[-1] / (unit.years_unit_k / k)
     assert float(unit.rate_m_per_yr(k)) == pytest.approx(measured, rel=1e-6)
     assert measured > 0  # into the gentler side b (Gilbert 1877)
+
+
+def test_a_side_s_power_at_other_exponents_is_the_mean_over_gilbert_s_planes():
+    # Two planes (Gilbert 1877) meeting at a single crest column: 6 rows of 31 columns of 100 m, the west
+    # plane 0.2 steep up to the crest at column 10 (200 m), the east one 0.1. D8 on a plane sends every
+    # cell straight down its row, so the cell j columns below the crest on its row drains j + 1 cells:
+    # A = (j + 1) 1e4 m², S the plane's gradient; the outlets at the edges have no slope (A^m S^n = 0).
+    # The crest drains west (its steeper drop). By hand: side a (columns 0-10) has mean
+    # A^m S^n = (1/11) sum_{i=1..10} (i 1e4)^m 0.2^n, side b (columns 11-30) (1/20) sum_{i=1..19} (i 1e4)^m 0.1^n.
+    c = np.arange(31.0)
+    z = np.minimum(0.2 * 100.0 * c, 0.1 * 100.0 * (30.0 - c))
+    dem = divides.Dem.from_array(np.repeat(z[None], 6, axis=0), cell_size=100.0)
+    sides = resolve_sides(route(dem, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
+    run = forward_shift(dem, sides, theta=0.4, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    assert run.carries_exponents
+    theta, n = np.array([0.4, 0.55, 0.3]), np.array([1.0, 1.3, 0.8])
+    m = theta * n
+    i_a, i_b = np.arange(1, 11.0), np.arange(1, 20.0)
+    hand_a = np.array([np.sum((i_a * 1e4) ** mm * 0.2**nn) / 11 for mm, nn in zip(m, n)])
+    hand_b = np.array([np.sum((i_b * 1e4) ** mm * 0.1**nn) / 20 for mm, nn in zip(m, n)])
+    power_a, power_b = run.side_powers(theta, n)
+    np.testing.assert_allclose(power_a, hand_a, rtol=1e-9)
+    np.testing.assert_allclose(power_b, hand_b, rtol=1e-9)
+    assert run.power_a == pytest.approx(hand_a[0], rel=1e-9)  # the run's own exponents: the recorded power
+    # The balancing uplift (K = 1): the mean of each side's median A^m S^n over its channels (A >= 3e4 m²):
+    # side a has 6 rows of A = 3..10 x 1e4 (median between 6 and 7), side b 6 rows of 3..19 x 1e4 (median 11).
+    hand_u = 0.5 * (0.5 * ((6e4) ** m + (7e4) ** m) * 0.2**n + (11e4) ** m * 0.1**n)
+    np.testing.assert_allclose(run.balance_power(theta, n), hand_u, rtol=1e-9)
+    # it sets the run's time scale: the horizon is 0.3 x relief (200 m) / U at the run's exponents
+    assert run.years_unit_k == pytest.approx(0.3 * 200.0 / hand_u[0], rel=1e-9)
+    # the reference channel: the threshold 3e4 m² at the median channel slope (102 of 150 channels at 0.1)
+    assert run.reference == pytest.approx((3e4, 0.1))
