@@ -47,7 +47,7 @@ MIN_JUDGED_CELLS = 60
 #: same way, truth from the area the two basins exchange. Fitted on its training cases
 #: (docs/validation.md, *Regional screening*); refit with ``tests/benchmarks/bench_regional.py --fit``
 #: whenever the decision model changes.
-INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-1.28, 1.25), "lateral": (-1.28, 1.25)}
+INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-1.28, 1.25), "lateral": (-2.38, 0.86)}
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "

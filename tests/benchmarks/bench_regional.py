@@ -52,6 +52,12 @@ def _line(r: dict) -> str:
                f"alarms {r['lateral_alarms']})" if "lateral" in r else ""))
 
 
+def _alarm(m: dict) -> bool:
+    """Instability and confidence both at least 0.5 (the no-alarm target)."""
+    return (m["instability"] is not None and m["instability"] >= 0.5 and m["confidence"] is not None
+            and m["confidence"] >= 0.5)
+
+
 def _logit(p):
     import numpy as np
 
@@ -183,6 +189,11 @@ def main() -> None:
               f"not moving {sum(m['in_stable'] for m in lat)}, slow {sum(m['truth'] == 'slow' for m in lat)}, "
               f"unmeasured {sum(m['truth'] is None for m in lat)}; in steady controls {len(steady_lat)} "
               f"(moving {sum(m['in_moving'] for m in steady_lat)}, not moving {sum(m['in_stable'] for m in steady_lat)})")
+        for k, key in (("main", "main"), ("lateral", "lateral")):
+            alarmed = [m for r in steady for m in r.get(key, []) if _alarm(m)]
+            print(f"  {k}-divide alarms in steady controls by the truth of the segment: "
+                  f"moving {sum(m['in_moving'] for m in alarmed)}, not moving {sum(m['in_stable'] for m in alarmed)}, "
+                  f"slow or unmeasured {sum(not (m['in_moving'] or m['in_stable']) for m in alarmed)}")
         print("  alarms in steady controls by kind: " + ", ".join(
             f"{k} {sum(r['alarms_by_kind'][k] for r in steady)}" for k in KINDS) + "; per case: " + ", ".join(
             f"{r['index']} {r['family']} {r['alarms']}" for r in steady))
