@@ -52,6 +52,21 @@ def _line(r: dict) -> str:
                f"alarms {r['lateral_alarms']})" if "lateral" in r else ""))
 
 
+def _markdown(r: dict) -> str:
+    """One row of the per-case tables of docs/validation.md (Regional screening)."""
+    def no(v):
+        return "–" if v is None else ("yes" if v else "**no**")
+    top = "; ".join(f"#{t['rank']} {t['moving_share']:.0%} " + ("–" if t["azimuth_error"] is None
+                                                               else f"{t['azimuth_error']:.0f}°") for t in r["top"])
+    slow = r["stretches"] - r["moving_stretches"] - r["stable_stretches"]
+    order = "–" if r["order_ok"] is None else f"{no(r['order_ok'])} ({r['order_violations']})"
+    lat = (f"{r['lateral_segments']} ({r['lateral_moving']} / {r['lateral_stable']})" if "lateral" in r else "–")
+    return (f"| {r['index']} | {r['family']} | {r['forced_side']} | {r['moving_stretches']} / {r['stable_stretches']} / "
+            f"{slow} | {r['main_segments']} ({r['moving_segments']} / {r['stable_segments']}) | {lat} | "
+            f"{r['coverage']:.0%} | {top or '–'} | {no(r['top_ok'])} | {order} | {r['alarms']} "
+            f"({r['alarms_by_kind']['main']} / {r['alarms_by_kind']['lateral']}) | {_fmt(r['max_alarm'])} |")
+
+
 def _alarm(m: dict) -> bool:
     """Instability and confidence both at least 0.5 (the no-alarm target)."""
     return (m["instability"] is not None and m["instability"] >= 0.5 and m["confidence"] is not None
@@ -127,6 +142,7 @@ def main() -> None:
     parser.add_argument("--json", default=None, help="write the per-case results as JSON lines")
     parser.add_argument("--fit", action="store_true",
                         help="print the instability's Platt scaling fitted on the cases run (use --split training)")
+    parser.add_argument("--markdown", action="store_true", help="print the per-case rows of docs/validation.md")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
@@ -161,6 +177,8 @@ def main() -> None:
     if args.json:
         with open(args.json, "w") as fh:
             fh.writelines(json.dumps(r, default=float) + "\n" for r in rows)
+    if args.markdown:
+        print("\n".join(_markdown(r) for r in rows))
     if args.fit:
         fits = {k: fit_instability(rows, k) for k in KINDS}
         print("INSTABILITY_SCALING = {" + ", ".join(f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f})' for k, f in fits.items())
