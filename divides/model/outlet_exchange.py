@@ -20,7 +20,7 @@ from divides.model.tracking import exchange_displacement, shared_length
 from divides.terrain.divide_lines import divide_between
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["outlet_basins", "neighbour_pairs", "match_labels", "basin_exchange"]
+__all__ = ["basin_exchange", "match_labels", "neighbour_pairs", "outlet_basins"]
 
 
 def outlet_basins(flow: FlowGraph, *, min_cells: int) -> tuple[np.ndarray, np.ndarray]:

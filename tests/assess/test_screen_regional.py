@@ -15,8 +15,8 @@ import pytest
 from divides.assess.screen import MIN_JUDGED_CELLS, screen
 from divides.model.benchmark import MOVING_CELLS_PER_TAU, split_of
 from divides.model.regional_benchmark import (
-    TARGETS,
     LATERAL_MIN_LENGTH_CELLS,
+    TARGETS,
     build,
     case_seed,
     lateral_truth,
@@ -90,7 +90,7 @@ def test_lateral_outlet_divides_carry_their_own_truth_and_kind(steady):
     # Every segment between two outlet basins draining off the same edge is scored against the area
     # its pair of basins exchanged (docs/validation.md, Regional screening), and screening calls it
     # "lateral" (basins draining the same way); main-divide segments are "main".
-    case, result, scored, lateral = steady
+    case, _, scored, lateral = steady
     assert scored["lateral_segments"] >= 3
     assert all(m["kind"] == "lateral" for m in scored["lateral"])
     assert all(m["kind"] == "main" for m in scored["main"])

@@ -7,7 +7,12 @@ import pytest
 
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.model.outlet_exchange import basin_exchange, match_labels, neighbour_pairs, outlet_basins
+from divides.model.outlet_exchange import (
+    basin_exchange,
+    match_labels,
+    neighbour_pairs,
+    outlet_basins,
+)
 from divides.terrain.routing import route
 
 
