@@ -413,9 +413,9 @@ def screen(
     Screening
         Judged segments ranked by instability (:func:`instability_of`: P(toward a) + P(toward b)
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
-        regional benchmark's truth; None, ranked last, when it abstained for insufficient
-        data); every other stretch of divide between two basins is a gap
-        with its reason, and ``coverage`` gives the judged share of the divides between
+        regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
+        when it abstained for insufficient data); every other stretch of divide between two
+        basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
     config = AssessConfig.from_options(**options)

@@ -17,6 +17,13 @@ screening targets a stretch moves at :data:`STRETCH_MOVING_CELLS_PER_TAU` cells
 per response time or more and does not move below
 :data:`~divides.model.benchmark.MOVING_CELLS_PER_TAU` (:func:`stretch_class`).
 
+The divides between neighbouring outlet basins that drain off the same edge
+(lateral outlet-basin divides) are not crossed by the rows: their truth is the
+area the two basins exchange over the same truth run
+(:func:`lateral_truth`, :mod:`divides.model.outlet_exchange`), classed with the
+same thresholds. It is measured by replaying the truth run from the cached
+observed DEM (:func:`continuation_forcing`), and cached beside the cases.
+
 Cases are reproducible from ``(master seed, index)``; the split into
 training and held-out is the single-divide benchmark's
 (:func:`divides.model.benchmark.split_of`: SHA-256 of the seed), fixed before
@@ -55,8 +62,10 @@ from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
 
-__all__ = ["FAMILIES", "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root",
-           "case_seed", "load_or_build", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
+__all__ = ["FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE", "REGIONAL_VERSION",
+           "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed", "continuation_forcing",
+           "lateral_truth", "load_or_build", "measure_lateral", "score", "segment_stretch_shares", "stretch_class",
+           "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
 REGIONAL_VERSION = 2
@@ -393,7 +402,7 @@ def continuation_forcing(case: RegionalCase) -> tuple[Dem, dict, float]:
     """The start, forcing and response time of a case's truth run, rebuilt from the case's seed.
 
     Every draw is replayed (:func:`_draws`); for the families of :data:`READS_STEADY_SURFACE`
-    the case is grown again (20–60 s) since their forcing depends on the steady surface,
+    the case is grown again (20–90 s) since their forcing depends on the steady surface,
     which is not cached. The start is the observed DEM in full precision when grown again,
     the cached one (float32) otherwise.
     """
