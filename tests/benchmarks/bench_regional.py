@@ -207,8 +207,8 @@ def main() -> None:
               f"not moving {sum(m['in_stable'] for m in lat)}, slow {sum(m['truth'] == 'slow' for m in lat)}, "
               f"unmeasured {sum(m['truth'] is None for m in lat)}; in steady controls {len(steady_lat)} "
               f"(moving {sum(m['in_moving'] for m in steady_lat)}, not moving {sum(m['in_stable'] for m in steady_lat)})")
-        for k, key in (("main", "main"), ("lateral", "lateral")):
-            alarmed = [m for r in steady for m in r.get(key, []) if _alarm(m)]
+        for k in KINDS:  # the score's lists are by the benchmark's edges; they agree with the kinds
+            alarmed = [m for r in steady for m in r.get(k, []) if _alarm(m)]
             print(f"  {k}-divide alarms in steady controls by the truth of the segment: "
                   f"moving {sum(m['in_moving'] for m in alarmed)}, not moving {sum(m['in_stable'] for m in alarmed)}, "
                   f"slow or unmeasured {sum(not (m['in_moving'] or m['in_stable']) for m in alarmed)}")
