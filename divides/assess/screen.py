@@ -10,6 +10,7 @@ import numpy as np
 
 from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
+from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
 from divides.assess.verdict import CAUTION, decide
@@ -39,11 +40,14 @@ MIN_SEGMENT_CELLS = 4
 MIN_JUDGED_CELLS = 60
 
 #: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
-#: of main-divide segments of the regional benchmark (a segment moves when at least 70 % of it lies in
-#: stretches moving 2 cells per response time or more): instability = 1 / (1 + exp(-(alpha + beta logit p))).
-#: Fitted on its training cases (docs/validation.md, *Regional screening*); refit with
-#: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
-INSTABILITY_SCALING = (-1.28, 1.25)
+#: of the regional benchmark, one per kind of divide (:mod:`divides.assess.divide_kind`):
+#: instability = 1 / (1 + exp(-(alpha + beta logit p))). ``main``: segments between outlet basins that
+#: drain apart, truth per stretch of the main divide (a segment moves when at least 70 % of it lies in
+#: stretches moving 2 cells per response time or more); ``lateral``: between outlet basins that drain the
+#: same way, truth from the area the two basins exchange. Fitted on its training cases
+#: (docs/validation.md, *Regional screening*); refit with ``tests/benchmarks/bench_regional.py --fit``
+#: whenever the decision model changes.
+INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-1.28, 1.25), "lateral": (-2.38, 0.86)}
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -51,7 +55,8 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                      "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b")
+                      "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
+                      "divide_kind")
 
 
 @dataclass(eq=False)
@@ -288,13 +293,14 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def instability_of(probabilities: dict | None) -> float | None:
+def instability_of(probabilities: dict | None, kind: str = "main") -> float | None:
     """The probability that a segment moves, from the decision's probabilities.
 
     P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
-    rescaled by :data:`INSTABILITY_SCALING` to the measured truth of divide segments in
-    regional model landscapes. None (unknown) when the decision abstained for
-    insufficient data.
+    rescaled by the :data:`INSTABILITY_SCALING` of the segment's kind of divide
+    (``"main"`` or ``"lateral"``, :mod:`divides.assess.divide_kind`) to the measured
+    truth of divide segments of that kind in regional model landscapes. None (unknown)
+    when the decision abstained for insufficient data.
 
     Examples
     --------
@@ -306,16 +312,15 @@ def instability_of(probabilities: dict | None) -> float | None:
     if probabilities is None:
         return None
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    alpha, beta = INSTABILITY_SCALING
+    alpha, beta = INSTABILITY_SCALING[kind]
     return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
 
 
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
     probs = verdict.probabilities
-    instability = instability_of(probs)
     chi = next((c for c in contrasts if c.metric == "chi"), None)
     return {"seg": seg, "verdict": verdict.moves_toward, "basis": verdict.basis, "reason": verdict.reason,
-            "confidence": verdict.confidence, "instability": instability, "moves_toward": verdict.moves_toward,
+            "confidence": verdict.confidence, "moves_toward": verdict.moves_toward,
             "probabilities": probs, "n_points": int(pts.size), "contrasts": [c.to_dict() for c in contrasts],
             # share of points where both sides drain away from the divide: low on divides between
             # neighbouring basins that drain the same way, where metrics are less telling
@@ -408,9 +413,9 @@ def screen(
     Screening
         Judged segments ranked by instability (:func:`instability_of`: P(toward a) + P(toward b)
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
-        regional benchmark's truth; None, ranked last, when it abstained for insufficient
-        data); every other stretch of divide between two basins is a gap
-        with its reason, and ``coverage`` gives the judged share of the divides between
+        regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
+        when it abstained for insufficient data); every other stretch of divide between two
+        basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
     config = AssessConfig.from_options(**options)
@@ -463,8 +468,13 @@ def screen(
     results = _run_tasks(tasks, shared, n_workers, scheduler)
     rows = [r for group in results for r in group]
     gaps += [r for r in rows if "gap" in r]
-    rows = pool_short([r for r in rows if "gap" not in r], outlets=label_outlets(flow, labels), min_length_m=pool_m,
+    outlets = label_outlets(flow, labels)
+    rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
+    directions = drainage_directions(labels, outlet_of, outlets)
+    for r in rows:  # each kind of divide has its own calibration of the probability of motion
+        r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
+        r["instability"] = instability_of(r["probabilities"], r["divide_kind"])
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -479,7 +489,7 @@ def screen(
             "verdict": r["verdict"], "basis": r["basis"], "reason": r["reason"],
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
-            "judged_length_m": r["judged_length_m"],
+            "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
             "line": seg.line,
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,

@@ -17,6 +17,13 @@ screening targets a stretch moves at :data:`STRETCH_MOVING_CELLS_PER_TAU` cells
 per response time or more and does not move below
 :data:`~divides.model.benchmark.MOVING_CELLS_PER_TAU` (:func:`stretch_class`).
 
+The divides between neighbouring outlet basins that drain off the same edge
+(lateral outlet-basin divides) are not crossed by the rows: their truth is the
+area the two basins exchange over the same truth run
+(:func:`lateral_truth`, :mod:`divides.model.outlet_exchange`), classed with the
+same thresholds. It is measured by replaying the truth run from the cached
+observed DEM (:func:`continuation_forcing`), and cached beside the cases.
+
 Cases are reproducible from ``(master seed, index)``; the split into
 training and held-out is the single-divide benchmark's
 (:func:`divides.model.benchmark.split_of`: SHA-256 of the seed), fixed before
@@ -55,8 +62,10 @@ from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
 
-__all__ = ["FAMILIES", "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root",
-           "case_seed", "load_or_build", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
+__all__ = ["FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE", "REGIONAL_VERSION",
+           "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed", "continuation_forcing",
+           "lateral_truth", "load_or_build", "measure_lateral", "score", "segment_stretch_shares", "stretch_class",
+           "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
 REGIONAL_VERSION = 2
@@ -291,13 +300,12 @@ def stretch_motion(positions: np.ndarray, times: np.ndarray, *, cell_m: float, t
 
 
 # ---------------------------------------------------------------------------- building
-def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
-    """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth.
+def _draws(master_seed: int, index: int, shape: tuple[int, int] | None) -> dict:
+    """Every random draw of a case, in the order :func:`build` has always made them.
 
-    ``shape`` replaces the drawn grid (rows, cols) and leaves every other draw as it is
-    (small cases for fast tests).
+    Nothing here runs the model, so the forcing of a cached case can be rebuilt from its
+    seed (:func:`continuation_forcing`).
     """
-    started = time.perf_counter()
     seed = case_seed(master_seed, index)
     rng = np.random.default_rng(seed)
     family = FAMILIES[index % len(FAMILIES)]
@@ -320,39 +328,150 @@ def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None)
     ell = float(math.exp(rng.uniform(math.log(lo), math.log(hi)))) * cell
     physics = {"m": theta, "n": 1.0, "diffusivity": u0 * ell ** (1.0 + 2.0 * theta) / ks}
     spin, change, details = _plan(family, rng, (rows, cols), u0, k0)
-    flip = (lambda a: np.ascontiguousarray(a[:, ::-1])) if mirror else (lambda a: a)
-    frame = _mirror if mirror else (lambda f: f)
+    ridge_seed = int(rng.integers(2**31))
+    observe = float(rng.uniform(*RANGES["observe_tau"])) if family not in STEADY_FAMILIES else 0.0
+    return {"seed": seed, "family": family, "mirror": mirror, "rows": rows, "cols": cols, "cell": cell,
+            "theta": theta, "u0": u0, "k0": k0, "relief": relief, "physics": physics, "spin": spin,
+            "change": change, "details": details, "ridge_seed": ridge_seed, "observe": observe,
+            "flip": (lambda a: np.ascontiguousarray(a[:, ::-1])) if mirror else (lambda a: a),
+            "frame": _mirror if mirror else (lambda f: f)}
+
+
+def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[dict, Dem, dict, float, int]:
+    """Spin-up, change and observation: the draws, the observed surface, the forcing after the change,
+    the response time and the number of spin-up chunks."""
+    d = _draws(master_seed, index, shape)
+    rows, cols, cell, u0, relief = d["rows"], d["cols"], d["cell"], d["u0"], d["relief"]
+    physics, flip, frame = d["physics"], d["flip"], d["frame"]
     start = ridge_surface((rows, cols), cell_size=cell, relief=0.3 * relief, noise=max(1.0, 0.01 * relief),
-                          seed=int(rng.integers(2**31)))
+                          seed=d["ridge_seed"])
     sides = ("west", "east")
     # The grown relief is 2-5 times the target, so the response time is too: a first spin-up on the
     # target's τ, a second on the τ of the relief it grew (each stops once the divide drifts < 0.5 cell/τ).
-    surface, chunks = _spin_up(start, frame(spin), physics, relief / u0, sides)
+    surface, chunks = _spin_up(start, frame(d["spin"]), physics, relief / u0, sides)
     tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
-    surface, more = _spin_up(surface, frame(spin), physics, tau, sides)
+    surface, more = _spin_up(surface, frame(d["spin"]), physics, tau, sides)
     chunks += more
     z = surface.elevation
     tau = float(np.nanmax(z) - np.nanmin(z)) / u0
-    canonical, forcing = change(flip(z))
+    canonical, forcing = d["change"](flip(z))
     forcing = {**frame(forcing), **physics}
-    observe = float(rng.uniform(*RANGES["observe_tau"])) if family not in STEADY_FAMILIES else 0.0
+    observe = d["observe"]
     surface = Dem.from_array(flip(canonical), cell_size=cell, valid_range=None)
     if observe > 0:
         steps = max(5, int(round(observe * STEPS_PER_TAU)))
         surface = simulate(surface, duration=observe * tau, dt=observe * tau / steps, **forcing).final
-    window = WINDOW_TAU * tau
-    steps = int(WINDOW_TAU * STEPS_PER_TAU)
-    run = simulate(surface, duration=window, dt=window / steps, track=sides, **forcing)
+    return d, surface, forcing, tau, chunks
+
+
+def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
+    """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth.
+
+    ``shape`` replaces the drawn grid (rows, cols) and leaves every other draw as it is
+    (small cases for fast tests).
+    """
+    started = time.perf_counter()
+    d, surface, forcing, tau, chunks = _grow(master_seed, index, shape)
+    cell, u0, physics = d["cell"], d["u0"], d["physics"]
+    run = _continue(surface, forcing, tau)
     stretches, threshold = stretch_motion(run.divide.positions, run.divide.times, cell_m=cell, tau_yr=tau)
-    parameters = {"K": k0, "n": 1.0, "m": theta, "theta": theta, "U_m_per_yr": u0,
+    parameters = {"K": d["k0"], "n": 1.0, "m": d["theta"], "theta": d["theta"], "U_m_per_yr": u0,
                   "D_m2_per_yr": physics["diffusivity"], "relief_m": float(np.nanmax(surface.elevation)
                                                                           - np.nanmin(surface.elevation)),
-                  "tau_yr": tau, "observed_after_tau": observe, "spin_chunks": chunks, "mirrored": mirror,
-                  "family_details": details}
-    return RegionalCase(master_seed=int(master_seed), index=int(index), seed=seed, family=family,
-                        forced_side="a" if mirror else "b", split=split_of(seed),
+                  "tau_yr": tau, "observed_after_tau": d["observe"], "spin_chunks": chunks, "mirrored": d["mirror"],
+                  "family_details": d["details"]}
+    return RegionalCase(master_seed=int(master_seed), index=int(index), seed=d["seed"], family=d["family"],
+                        forced_side="a" if d["mirror"] else "b", split=split_of(d["seed"]),
                         elevation=surface.elevation.astype(np.float32), cell_size=cell, parameters=parameters,
                         stretches=stretches, threshold_m_per_yr=threshold, seconds=time.perf_counter() - started)
+
+
+def _continue(surface: Dem, forcing: dict, tau: float):
+    """The truth run: WINDOW_TAU response times under ``forcing`` with the main divide tracked per row."""
+    window = WINDOW_TAU * tau
+    steps = int(WINDOW_TAU * STEPS_PER_TAU)
+    return simulate(surface, duration=window, dt=window / steps, track=("west", "east"), **forcing)
+
+
+#: Families whose change reads the steady surface (the crest the K patch or the runoff starts at): their
+#: forcing cannot be replayed from the observed DEM, and the case is grown again for its truth run.
+READS_STEADY_SURFACE = ("erodibility_patch", "runoff_gradient")
+
+
+def continuation_forcing(case: RegionalCase) -> tuple[Dem, dict, float]:
+    """The start, forcing and response time of a case's truth run, rebuilt from the case's seed.
+
+    Every draw is replayed (:func:`_draws`); for the families of :data:`READS_STEADY_SURFACE`
+    the case is grown again (20–90 s) since their forcing depends on the steady surface,
+    which is not cached. The start is the observed DEM in full precision when grown again,
+    the cached one (float32) otherwise.
+    """
+    shape = tuple(case.elevation.shape)
+    if case.family in READS_STEADY_SURFACE:
+        _, surface, forcing, tau, _ = _grow(case.master_seed, case.index, shape)
+        return surface, forcing, tau
+    d = _draws(case.master_seed, case.index, shape)
+    _, forcing = d["change"](d["flip"](case.elevation.astype(np.float64)))  # the forcing only: the DEM is observed
+    return case.dem(), {**d["frame"](forcing), **d["physics"]}, float(case.parameters["tau_yr"])
+
+
+#: Outlet basins smaller than this (cells) are left out of the truth on lateral divides (the
+#: validation's screening judges basins of 250 cells and more).
+LATERAL_MIN_CELLS = 50
+
+#: Bump when the truth on lateral divides changes (cached under ``lateral-v<k>``, beside the cases).
+LATERAL_VERSION = 1
+
+
+def measure_lateral(case: RegionalCase) -> dict:
+    """Truth on the divides between neighbouring outlet basins: the run continued from the observed DEM.
+
+    The truth run of :func:`build` is replayed from the cached observed DEM
+    (:func:`continuation_forcing`), and the divide of every pair of neighbouring outlet
+    basins (at least :data:`LATERAL_MIN_CELLS` cells; north and south edges closed)
+    moves at the rate of :func:`divides.model.outlet_exchange.basin_exchange` between the
+    observed and the continued DEM. The replayed run's own per-row stretches are kept
+    (``stretches``) to check the replay against the case's.
+
+    Returns
+    -------
+    dict
+        ``labels`` (outlet basins of the observed DEM), ``edge`` (per label),
+        ``pairs`` (per pair: ``basins``, ``length_m``, ``moved_m``, ``rate_m_per_yr``,
+        positive into the second basin), ``stretches`` and ``seconds``.
+    """
+    from divides.model.outlet_exchange import basin_exchange, outlet_basins
+    from divides.terrain.routing import route
+
+    started = time.perf_counter()
+    observed, forcing, tau = continuation_forcing(case)
+    run = _continue(observed, forcing, tau)
+    before, edge = outlet_basins(route(observed, closed_edges=case.closed_edges), min_cells=LATERAL_MIN_CELLS)
+    after, _ = outlet_basins(route(run.final, closed_edges=case.closed_edges), min_cells=LATERAL_MIN_CELLS)
+    pairs = basin_exchange(observed, before, after, years=WINDOW_TAU * tau)
+    stretches, _ = stretch_motion(run.divide.positions, run.divide.times, cell_m=case.cell_size, tau_yr=tau)
+    return {"labels": before, "edge": [str(e) for e in edge], "pairs": pairs, "stretches": stretches,
+            "seconds": time.perf_counter() - started}
+
+
+def lateral_truth(case: RegionalCase, *, cache_dir: str | Path | None = None) -> dict:
+    """:func:`measure_lateral` of a case, cached under ``lateral-v<k>/v<regional>/seed<s>/<index>.npz``
+    beside the cases (``cache_dir=""``: no cache); the cases' own records are left as they are."""
+    if cache_dir == "":
+        return measure_lateral(case)
+    root = Path(cache_dir) if cache_dir is not None else cache_root()
+    path = (root / f"lateral-v{LATERAL_VERSION}" / f"v{case.version}" / f"seed{case.master_seed}"
+            / f"{case.index:04d}.npz")
+    if path.exists():
+        with np.load(path, allow_pickle=False) as data:
+            meta = json.loads(str(data["meta"]))
+            return {**meta, "labels": data["labels"]}
+    out = measure_lateral(case)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(f".{path.stem}.{os.getpid()}.tmp.npz")
+    np.savez_compressed(tmp, labels=out["labels"], meta=np.array(json.dumps({k: v for k, v in out.items() if k != "labels"})))
+    os.replace(tmp, path)
+    return out
 
 
 def cache_root() -> Path:
@@ -419,7 +538,40 @@ def _edge_of_labels(flow, labels: np.ndarray) -> np.ndarray:
     return out
 
 
-def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
+#: A lateral divide shorter than this (cells) has no truth: one cell changing hands over the truth run
+#: would read a third of the not-moving limit on it (set before any screening was scored against it).
+LATERAL_MIN_LENGTH_CELLS = 10
+
+
+def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
+    """Segments between neighbouring outlet basins draining off the same edge, with the truth of their pair."""
+    from divides.model.outlet_exchange import match_labels
+
+    to_truth = match_labels(screening.labels, lateral["labels"], int(screening.labels.max()))
+    edge = lateral["edge"]
+    pairs = {tuple(p["basins"]): p for p in lateral["pairs"]}
+    out = []
+    for s in screening.segments:
+        ta, tb = (int(to_truth[v]) for v in s["basins"])
+        if not ta or not tb or ta == tb or edge[ta] != edge[tb] or edge[ta] not in ("west", "east"):
+            continue
+        p = pairs.get((min(ta, tb), max(ta, tb)))
+        truth = None
+        if p is not None and p["rate_m_per_yr"] is not None \
+                and p["length_m"] >= LATERAL_MIN_LENGTH_CELLS * case.cell_size:
+            truth = stretch_class(p, case.threshold_m_per_yr)  # "b": into the pair's second basin
+            if truth in ("a", "b") and ta > tb:
+                truth = {"a": "b", "b": "a"}[truth]
+        out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
+                    "probabilities": s.get("probabilities"), "kind": s.get("divide_kind"), "length_m": s["length_m"],
+                    "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
+                    "in_stable": truth == "stable",
+                    "rate_cells_per_tau": None if p is None or p["rate_m_per_yr"] is None
+                    else p["rate_m_per_yr"] / case.threshold_m_per_yr})
+    return out
+
+
+def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None = None) -> dict:
     """The targets of a screening of ``case`` against its measured truth.
 
     Main-divide segments are those between a basin draining west and one
@@ -435,7 +587,10 @@ def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
         min(``top``, moving segments) main-divide segments, each with its share in
         moving stretches, its azimuth and the azimuth of the measured motion) and
         ``top_ok``; ``order_ok`` (every main segment in a stable stretch ranks below
-        every one in a moving stretch) and ``order_violations``.
+        every one in a moving stretch) and ``order_violations``. With ``lateral``
+        (:func:`lateral_truth`): ``lateral``, the segments between neighbouring outlet
+        basins draining off the same edge with the truth of their pair (``truth``:
+        ``"a"``, ``"b"``, ``"stable"``, ``"slow"`` or None), and the counts of them.
     """
     edge = _edge_of_labels(screening.flow, screening.labels)
     share = TARGETS["top_in_moving_share"]
@@ -448,6 +603,7 @@ def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
         moving = sh["a"] + sh["b"]
         toward = "a" if sh["a"] >= sh["b"] else "b"
         main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
+                     "kind": s.get("divide_kind"), "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
@@ -471,6 +627,15 @@ def score(case: RegionalCase, screening, *, top: int = 3) -> dict:
         "main_insufficient": sum(1 for m in main if m["instability"] is None),
     }
     out["main"] = main
+    out["alarms_by_kind"] = {k: sum(1 for s in alarms if s.get("divide_kind") == k) for k in ("main", "lateral")}
+    if lateral is not None:
+        lat = _lateral_rows(case, screening, lateral)
+        out["lateral"] = lat
+        out["lateral_segments"] = len(lat)
+        out["lateral_moving"] = sum(m["in_moving"] for m in lat)
+        out["lateral_stable"] = sum(m["in_stable"] for m in lat)
+        out["lateral_alarms"] = sum(1 for m in lat if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
+                                    and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"])
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share")}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]

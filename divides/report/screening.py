@@ -37,7 +37,7 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "x_mid", "y_mid")
+            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "x_mid", "y_mid")
 
 
 def segment_rows(result: Screening) -> list[dict]:
@@ -53,7 +53,7 @@ def segment_rows(result: Screening) -> list[dict]:
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
-            "facing_share": round(float(s["facing_share"]), 3), "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
+            "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"], "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
 
@@ -65,7 +65,8 @@ def segment_features(result: Screening) -> list[dict]:
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
         props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                                   "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share")}
+                                   "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
+                                   "divide_kind")}
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))

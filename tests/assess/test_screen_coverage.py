@@ -15,6 +15,7 @@ from scipy.spatial import cKDTree
 from divides.assess.screen import INSTABILITY_SCALING, LATERAL_REASON, motion_azimuth, screen
 from divides.io.dem import Dem
 from divides.model import scenarios as S
+from divides.model.tracking import edge_catchments
 from divides.model.simulate import simulate
 from divides.terrain.basins import basin_labels
 from divides.terrain.divide_lines import divide_network
@@ -130,7 +131,7 @@ def test_instability_is_the_calibrated_probability_of_motion(steady):
             assert s["instability"] is None and s["basis"] == "insufficient data"
         else:  # Platt scaling (Platt 1999) of P(motion) = P(a) + P(b) = 1 - P(stable)
             assert p["a"] + p["b"] == pytest.approx(1.0 - p["stable"], abs=2e-4)  # probabilities sum to one
-            alpha, beta = INSTABILITY_SCALING
+            alpha, beta = INSTABILITY_SCALING[s["divide_kind"]]  # each kind of divide has its own scaling
             motion = p["a"] + p["b"]
             expected = 1.0 / (1.0 + np.exp(-(alpha + beta * np.log(motion / (1.0 - motion)))))
             assert s["instability"] == pytest.approx(expected, abs=1e-9)
@@ -138,6 +139,24 @@ def test_instability_is_the_calibrated_probability_of_motion(steady):
                 assert s["confidence"] == pytest.approx(p[s["verdict"]], abs=1e-3)
     known = [s["instability"] for s in result.segments if s["instability"] is not None]
     assert known == sorted(known, reverse=True)
+
+
+def test_divide_kind_follows_the_edges_the_basins_drain_to(steady):
+    # By construction of the landscape (a north-south ridge, north and south edges closed): two
+    # basins draining off opposite edges meet on the main divide, two draining off the same edge
+    # meet on a lateral divide. The kind reads the basins' centroid-to-outlet directions only.
+    final, _, _ = steady
+    result = screen(final, level="outlets", **OPTIONS)
+    edge = edge_catchments(result.flow, ["west", "east"])
+    side = np.zeros(result.labels.max() + 1, dtype=int)
+    side[result.labels.ravel()] = edge.ravel()
+    kinds = {"main": 0, "lateral": 0}
+    for s in result.segments:
+        a, b = s["basins"]
+        truth = "main" if side[a] != side[b] else "lateral"
+        assert s["divide_kind"] == truth
+        kinds[truth] += 1
+    assert kinds["main"] and kinds["lateral"]
 
 
 @pytest.mark.parametrize("victim, expected", [("b", 90.0), ("a", 270.0)])

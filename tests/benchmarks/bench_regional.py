@@ -16,9 +16,15 @@ import argparse
 import json
 import time
 
+from divides.assess.divide_kind import KINDS
+from divides.assess.screen import INSTABILITY_SCALING
+
 #: Channel threshold of the validation in cells: the default fallback (about 350 cells here) left six
 #: basins above the minimum area and no judged main-divide segment in training case 1.
 CHANNEL_CELLS = 50
+
+#: The one scaling shipped before each kind of divide had its own (fitted on main-divide segments only).
+SINGLE_SCALING = (-1.28, 1.25)
 
 
 def screen_case(case, **overrides):
@@ -41,7 +47,30 @@ def _line(r: dict) -> str:
             f"cov {_fmt(r['coverage'], '.0%'):>4} "
             f"seg {r['segments']:>3} main {r['main_segments']:>3} (mov {r['moving_segments']}, stab "
             f"{r['stable_segments']}) top {top} top_ok {r['top_ok']} order {r['order_ok']} "
-            f"({r['order_violations']}) alarms {r['alarms']} (main {r['alarms_main']}) max {_fmt(r['max_alarm'])}")
+            f"({r['order_violations']}) alarms {r['alarms']} (main {r['alarms_main']}) max {_fmt(r['max_alarm'])}"
+            + (f" lateral {r['lateral_segments']} (mov {r['lateral_moving']}, stab {r['lateral_stable']}, "
+               f"alarms {r['lateral_alarms']})" if "lateral" in r else ""))
+
+
+def _markdown(r: dict) -> str:
+    """One row of the per-case tables of docs/validation.md (Regional screening)."""
+    def no(v):
+        return "–" if v is None else ("yes" if v else "**no**")
+    top = "; ".join(f"#{t['rank']} {t['moving_share']:.0%} " + ("–" if t["azimuth_error"] is None
+                                                               else f"{t['azimuth_error']:.0f}°") for t in r["top"])
+    slow = r["stretches"] - r["moving_stretches"] - r["stable_stretches"]
+    order = "–" if r["order_ok"] is None else f"{no(r['order_ok'])} ({r['order_violations']})"
+    lat = (f"{r['lateral_segments']} ({r['lateral_moving']} / {r['lateral_stable']})" if "lateral" in r else "–")
+    return (f"| {r['index']} | {r['family']} | {r['forced_side']} | {r['moving_stretches']} / {r['stable_stretches']} / "
+            f"{slow} | {r['main_segments']} ({r['moving_segments']} / {r['stable_segments']}) | {lat} | "
+            f"{r['coverage']:.0%} | {top or '–'} | {no(r['top_ok'])} | {order} | {r['alarms']} "
+            f"({r['alarms_by_kind']['main']} / {r['alarms_by_kind']['lateral']}) | {_fmt(r['max_alarm'])} |")
+
+
+def _alarm(m: dict) -> bool:
+    """Instability and confidence both at least 0.5 (the no-alarm target)."""
+    return (m["instability"] is not None and m["instability"] >= 0.5 and m["confidence"] is not None
+            and m["confidence"] >= 0.5)
 
 
 def _logit(p):
@@ -51,24 +80,31 @@ def _logit(p):
     return np.log(p / (1 - p))
 
 
-def fit_instability(rows: list[dict], lead: str = "max") -> dict:
-    """Platt scaling (Platt 1999) of the decision's probability of motion to the measured truth per segment.
+def _labelled(rows: list[dict], kind: str | None) -> tuple[list[float], list[float]]:
+    """P(a) + P(b) and the truth (1 moving, 0 not moving) of every segment of ``kind`` (None: all) with both.
 
-    Main-divide segments at least 70 % in moving stretches are 1, at least 70 % in stable ones 0
-    (the rest, and segments without probabilities, are left out); the input is the logit of the
-    leading direction's probability (``lead="max"``) or of P(a) + P(b) (``"sum"``).
+    Main-divide segments at least 70 % in moving stretches are 1, at least 70 % in stable ones 0;
+    segments between neighbouring outlet basins draining off the same edge take the class of their pair
+    (area exchanged); the rest, and segments without probabilities, are left out. ``kind`` is the
+    screening's own (``divide_kind``), the one its scaling is chosen by.
     """
+    x, y = [], []
+    for r in rows:
+        for m in r["main"] + r.get("lateral", []):
+            p = m["probabilities"]
+            if p is None or not (m["in_moving"] or m["in_stable"]) or (kind is not None and m["kind"] != kind):
+                continue
+            x.append(p.get("a", 0.0) + p.get("b", 0.0))
+            y.append(1.0 if m["in_moving"] else 0.0)
+    return x, y
+
+
+def fit_instability(rows: list[dict], kind: str) -> dict:
+    """Platt scaling (Platt 1999) of P(a) + P(b) to the measured truth of the segments of one kind."""
     import numpy as np
     from scipy.optimize import minimize
 
-    x, y = [], []
-    for r in rows:
-        for m in r["main"]:
-            p = m["probabilities"]
-            if p is None or not (m["in_moving"] or m["in_stable"]):
-                continue
-            x.append(max(p.get("a", 0.0), p.get("b", 0.0)) if lead == "max" else p.get("a", 0.0) + p.get("b", 0.0))
-            y.append(1.0 if m["in_moving"] else 0.0)
+    x, y = _labelled(rows, kind)
     z, y = _logit(x), np.asarray(y)
 
     def loss(w):
@@ -76,28 +112,25 @@ def fit_instability(rows: list[dict], lead: str = "max") -> dict:
         return float(np.sum(np.logaddexp(0.0, t) - y * t))
 
     w = minimize(loss, np.array([0.0, 1.0]), method="BFGS").x
-    raw = float(np.mean(-(y * np.log(np.clip(x, 1e-4, 1)) + (1 - y) * np.log(np.clip(1 - np.asarray(x), 1e-4, 1)))))
-    return {"lead": lead, "alpha": float(w[0]), "beta": float(w[1]), "n": int(y.size), "moving": int(y.sum()),
-            "log_loss": loss(w) / max(y.size, 1), "log_loss_uncalibrated": raw}
+    return {"kind": kind, "alpha": float(w[0]), "beta": float(w[1]), "n": int(y.size), "moving": int(y.sum()),
+            "log_loss": loss(w) / max(y.size, 1)}
 
 
-def instability_log_loss(rows: list[dict]) -> dict:
-    """Log loss and AUC (Mann-Whitney) of the shipped instability against the truth per segment."""
+def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, float] | None) -> dict:
+    """Log loss and AUC (Mann-Whitney) against the truth per segment of P(a) + P(b) (``scaling`` None)
+    or of its Platt scaling ``(alpha, beta)``."""
     import numpy as np
 
-    x, y = [], []
-    for r in rows:
-        for m in r["main"]:
-            if m["instability"] is None or not (m["in_moving"] or m["in_stable"]):
-                continue
-            x.append(m["instability"])
-            y.append(1.0 if m["in_moving"] else 0.0)
-    x, y = np.clip(np.asarray(x), 1e-4, 1 - 1e-4), np.asarray(y)
+    x, y = _labelled(rows, kind)
+    x, y = np.asarray(x, dtype=float), np.asarray(y)
+    if scaling is not None:
+        x = 1.0 / (1.0 + np.exp(-(scaling[0] + scaling[1] * _logit(x))))
+    x = np.clip(x, 1e-4, 1 - 1e-4)
     loss = float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))) if y.size else float("nan")
     pos, neg = x[y == 1], x[y == 0]
     auc = float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :]))) \
         if pos.size and neg.size else float("nan")
-    return {"log_loss": loss, "auc": auc}
+    return {"n": int(y.size), "moving": int(y.sum()), "log_loss": loss, "auc": auc}
 
 
 def main() -> None:
@@ -109,12 +142,14 @@ def main() -> None:
     parser.add_argument("--json", default=None, help="write the per-case results as JSON lines")
     parser.add_argument("--fit", action="store_true",
                         help="print the instability's Platt scaling fitted on the cases run (use --split training)")
+    parser.add_argument("--markdown", action="store_true", help="print the per-case rows of docs/validation.md")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
     from divides.model.benchmark import split_of
     from divides.model.regional_benchmark import (
         case_seed,
+        lateral_truth,
         load_or_build,
         score,
         stretch_class,
@@ -134,7 +169,7 @@ def main() -> None:
                                  stretch_class(s, case.threshold_m_per_yr)] for s in case.stretches), flush=True)
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
-        result = score(case, screen_case(case, **extra))
+        result = score(case, screen_case(case, **extra), lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
     if args.generate_only:
@@ -142,10 +177,13 @@ def main() -> None:
     if args.json:
         with open(args.json, "w") as fh:
             fh.writelines(json.dumps(r, default=float) + "\n" for r in rows)
+    if args.markdown:
+        print("\n".join(_markdown(r) for r in rows))
     if args.fit:
-        fit = fit_instability(rows, "sum")
-        print(f"INSTABILITY_SCALING = ({fit['alpha']:.2f}, {fit['beta']:.2f})  # {fit['n']} segments, "
-              f"log loss {fit['log_loss']:.3f}")
+        fits = {k: fit_instability(rows, k) for k in KINDS}
+        print("INSTABILITY_SCALING = {" + ", ".join(f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f})' for k, f in fits.items())
+              + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
+                                    for k, f in fits.items()))
     for split in ("training", "held-out"):
         part = [r for r in rows if r["split"] == split]
         if not part:
@@ -157,12 +195,26 @@ def main() -> None:
               f"order ok {sum(bool(r['order_ok']) for r in ordered)}/{len(ordered)}; "
               f"steady without alarm {sum(r['alarm_ok'] for r in steady)}/{len(steady)}; "
               f"coverage >= 90 % {sum(r['coverage_ok'] for r in part)}/{len(part)}")
-        fit = fit_instability(part, "sum")
-        shipped = instability_log_loss(part)
-        print(f"  against the measured truth of {fit['n']} main-divide segments ({fit['moving']} moving), log loss of "
-              f"P(a) + P(b) {fit['log_loss_uncalibrated']:.3f}, of the instability {shipped['log_loss']:.3f} "
-              f"(AUC {shipped['auc']:.2f}); best Platt scaling on these cases {fit['log_loss']:.3f} "
-              f"(alpha {fit['alpha']:+.2f}, beta {fit['beta']:.2f})")
+        for k in KINDS:
+            raw, shipped = scaled_scores(part, k, None), scaled_scores(part, k, INSTABILITY_SCALING[k])
+            single = scaled_scores(part, k, SINGLE_SCALING)
+            print(f"  {k}: {raw['n']} segments with truth ({raw['moving']} moving): log loss / AUC of P(a) + P(b) "
+                  f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling {single['log_loss']:.3f}"
+                  f" / {single['auc']:.2f}, of the shipped instability {shipped['log_loss']:.3f} / {shipped['auc']:.2f}")
+        lat = [m for r in part for m in r.get("lateral", [])]
+        steady_lat = [m for r in steady for m in r.get("lateral", [])]
+        print(f"  lateral outlet-basin segments {len(lat)}: truth moving {sum(m['in_moving'] for m in lat)}, "
+              f"not moving {sum(m['in_stable'] for m in lat)}, slow {sum(m['truth'] == 'slow' for m in lat)}, "
+              f"unmeasured {sum(m['truth'] is None for m in lat)}; in steady controls {len(steady_lat)} "
+              f"(moving {sum(m['in_moving'] for m in steady_lat)}, not moving {sum(m['in_stable'] for m in steady_lat)})")
+        for k in KINDS:  # the score's lists are by the benchmark's edges; they agree with the kinds
+            alarmed = [m for r in steady for m in r.get(k, []) if _alarm(m)]
+            print(f"  {k}-divide alarms in steady controls by the truth of the segment: "
+                  f"moving {sum(m['in_moving'] for m in alarmed)}, not moving {sum(m['in_stable'] for m in alarmed)}, "
+                  f"slow or unmeasured {sum(not (m['in_moving'] or m['in_stable']) for m in alarmed)}")
+        print("  alarms in steady controls by kind: " + ", ".join(
+            f"{k} {sum(r['alarms_by_kind'][k] for r in steady)}" for k in KINDS) + "; per case: " + ", ".join(
+            f"{r['index']} {r['family']} {r['alarms']}" for r in steady))
 
 
 if __name__ == "__main__":
