@@ -40,6 +40,10 @@ _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2
             "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "x_mid", "y_mid")
 
 
+#: The divide column of the report's table (``divide_kind`` of segments.csv).
+_KIND_WORDS = {"main": "main (basins drain apart)", "lateral": "lateral (basins drain the same way)"}
+
+
 def segment_rows(result: Screening) -> list[dict]:
     """One table row per segment (the columns of segments.csv)."""
     rows = []
@@ -53,7 +57,8 @@ def segment_rows(result: Screening) -> list[dict]:
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
-            "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"], "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
+            "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
+            "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
 
@@ -191,15 +196,16 @@ def _parameter_table(params: dict) -> str:
 def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = MAP_RANKS) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
-    header = ["rank", "instability", "confidence", "length (m)", "basins", "moves toward basin",
+    header = ["rank", "instability", "confidence", "length (m)", "basins", "divide", "moves toward basin",
               "bearing (°)", "basis"]
     table = _html._table(header, [[str(r["rank"]),
                                    "unknown" if r["instability"] is None else f"{r['instability']:.2f}",
                                    f"{r['confidence']:.2f}",
                                    f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
+                                   e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
-                                   e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 6})
+                                   e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 7})
     p = result.parameters
     caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}</div>"
     lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
