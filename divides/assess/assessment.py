@@ -710,11 +710,9 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, 
     samples and carried through K and the run's time scale at each draw; None or a run without its ground: not
     carried.
     """
-    if run is None or not np.isfinite(run.years_unit_k):
-        return None
-    theta, n = exponents if exponents is not None and run.carries_exponents else (None, None)
-    k = forward_erodibility(cal, run, theta, n)
-    if k is None:
+    # K at the run's own exponents (cheap) decides whether there is a rate at all; the drawn exponents,
+    # each re-evaluated over the model grid, only once the rate is to be given
+    if run is None or not np.isfinite(run.years_unit_k) or forward_erodibility(cal, run) is None:
         return None
     if verdict.moves_toward not in ("a", "b"):
         return {"withheld": "the verdict has no direction"}
@@ -723,6 +721,10 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, 
     says = "b" if run.shift_cells > 0 else "a"
     if says != verdict.moves_toward:
         return {"withheld": f"the forward run moves the divide toward side {says}, against the verdict"}
+    theta, n = exponents if exponents is not None and run.carries_exponents else (None, None)
+    k = forward_erodibility(cal, run, theta, n)
+    if k is None:
+        return None
     k = np.asarray(k, dtype=np.float64).ravel()
     unit = np.abs(run.rate_m_per_yr(k) if theta is None else run.rate_m_per_yr(k, theta, n))
     z = np.random.default_rng(seed).standard_normal(max(k.size, 4000))
