@@ -136,8 +136,16 @@ def _mirror(x: np.ndarray, y: np.ndarray, names: tuple[str, ...]) -> tuple[np.nd
     return np.vstack([x, xm]), np.concatenate([y, ym])
 
 
+def _log_loss_sum(p: np.ndarray, truth) -> float:
+    """Summed log loss of class probabilities ``p`` (rows in CLASSES order) against the true classes."""
+    from divides.assess.calibration import CLASSES
+
+    idx = np.array([CLASSES.index(v) for v in truth])
+    return -float(np.sum(np.log(np.clip(p[np.arange(idx.size), idx], 1e-12, 1))))
+
+
 def _cv_loss(x, y, names, l2, folds=5, seed=0):
-    from divides.assess.calibration import CLASSES, fit
+    from divides.assess.calibration import fit
 
     rng = np.random.default_rng(seed)
     which = rng.permutation(len(y)) % folds
@@ -146,21 +154,17 @@ def _cv_loss(x, y, names, l2, folds=5, seed=0):
         tr, te = which != k, which == k
         xa, ya = _mirror(x[tr], y[tr], names)
         model = fit(xa, ya, features=names, l2=l2)
-        p = model.probabilities(x[te])
-        idx = np.array([CLASSES.index(v) for v in y[te]])
-        loss -= float(np.sum(np.log(np.clip(p[np.arange(idx.size), idx], 1e-12, 1))))
+        loss += _log_loss_sum(model.probabilities(x[te]), y[te])
     return loss / len(y)
 
 
 def _shipped_loss(train: list[dict], forward: bool) -> float:
     """Log loss of the model shipped in divides/assess/ on ``train`` (the bar a refit must pass)."""
-    from divides.assess.calibration import CLASSES
     from divides.assess.verdict import decision_model
 
     model = decision_model(forward=forward)
     p = model.probabilities(np.array([_row(r, model.features, forward) for r in train]))
-    idx = np.array([CLASSES.index(r["truth"]) for r in train])
-    return -float(np.mean(np.log(np.clip(p[np.arange(idx.size), idx], 1e-12, 1))))
+    return _log_loss_sum(p, [r["truth"] for r in train]) / len(train)
 
 
 def _row(r: dict, names: tuple[str, ...], forward: bool) -> list[float]:
@@ -358,7 +362,9 @@ def main(argv: list[str] | None = None) -> int:
     from divides.assess import evidence
 
     sets = [(args.seed, tuple(args.grid), args.contrasts, args.forward, False)]
-    sets += [(int(a), (int(lo), int(hi)), Path(c), Path(f), True) for a, lo, hi, c, f in args.training_also]
+    # the other benchmarks' forward runs are read only when the fit reads forward runs at all
+    sets += [(int(a), (int(lo), int(hi)), Path(c), None if args.forward is None else Path(f), True)
+             for a, lo, hi, c, f in args.training_also]
     recs = []
     for seed, grid, contrasts, forward, all_training in sets:
         if args.available:
@@ -374,26 +380,23 @@ def main(argv: list[str] | None = None) -> int:
             r["c"] = _contrasts(r)
             r["ok"] = bool(r["c"]) and evidence.sufficient(r["c"])
             r["f"] = evidence.features(r["c"]) if r["ok"] else None
-            r["fwd"] = shifts.get(r["index"]) if forward is not None else None
+            r["fwd"] = shifts.get(r["index"])
         recs += part
     if args.shipped:
         from divides.assess.verdict import decision_model
 
         near, forward_model = decision_model(), decision_model(forward=True)
         summaries = {}
-        print("\n==== shipped: near-divide model, forward run as veto (the default of divides assess)")
-        summaries["shipped default (veto)"] = _judge(recs, args, near, near_model=near, veto=True)
         print("\n==== shipped: near-divide model alone")
         summaries["near-divide measures"] = _judge(recs, args, near, near_model=near)
         if args.forward is not None:
+            print("\n==== shipped: near-divide model, forward run as veto (the default of divides assess)")
+            summaries["shipped default (veto)"] = _judge(recs, args, near, near_model=near, veto=True)
             print("\n==== shipped: forward run in the model (--forward-in-decision)")
             summaries["forward run in the model"] = _judge(recs, args, forward_model, forward=True, near_model=near)
         if args.png is not None:
             _diagram(summaries, args.png)
         return 0
-    if args.forward is None:
-        for r in recs:
-            r["fwd"] = None
     print("\n==== near-divide measures only")
     near = _select_and_judge(recs, args)
     docs, summaries = {False: _document(*near, args)}, {"near-divide measures": near[4]}
