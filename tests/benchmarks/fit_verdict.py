@@ -268,8 +268,8 @@ def _judge(recs, args, model, *, forward=False, near_model=None, veto=False):
         r["reason"] = v.reason if v else "refused"
         r["p"] = None if (v is None or v.probabilities is None) else [v.probabilities[k] for k in ("a", "b", "stable")]
     summary = {}
-    for part in ("training", "held-out"):
-        sel = [r for r in recs if r["split"] == part]
+    for part in _parts(args):
+        sel = [r for r in recs if part == "all" or r["split"] == part]
         card = score([r["truth"] for r in sel], [r["said"] for r in sel], [r["conf"] for r in sel])
         met = card.met()
         probs = [r for r in sel if r["p"] is not None]
@@ -316,6 +316,11 @@ def _document(model, label, l2, results, summary, args) -> dict:
     return doc
 
 
+def _parts(args) -> tuple[str, ...]:
+    """The parts judged: training and held-out, or one part of every landscape (``--pooled``)."""
+    return ("all",) if args.pooled else ("training", "held-out")
+
+
 def _diagram(summaries: dict, path: Path) -> None:
     import matplotlib
 
@@ -324,7 +329,9 @@ def _diagram(summaries: dict, path: Path) -> None:
 
     fig, axes = plt.subplots(1, len(summaries), figsize=(4.5 * len(summaries), 4.5), squeeze=False)
     for ax, (title, summary) in zip(axes[0], summaries.items()):
-        for part, mark in (("training", "s"), ("held-out", "o")):
+        for part, mark in (("training", "s"), ("held-out", "o"), ("all", "o")):
+            if part not in summary:
+                continue
             bins = [b for b in summary[part]["bins"] if b.count]
             ax.plot([b.mean_confidence for b in bins], [b.accuracy for b in bins], marker=mark, label=
                     f"{part} (ECE {summary[part]['ece']:.3f}, {summary[part]['n_model']} cases)")
@@ -354,6 +361,8 @@ def main(argv: list[str] | None = None) -> int:
                              "the model that also reads the forward run")
     parser.add_argument("--png", type=Path, default=None, help="reliability diagram (training and held-out)")
     parser.add_argument("--shipped", action="store_true", help="judge the shipped models as they are (no fit)")
+    parser.add_argument("--pooled", action="store_true",
+                        help="with --shipped: judge every landscape as one part (a draw nothing was fitted on)")
     parser.add_argument("--training-also", nargs=5, action="append", default=[],
                         metavar=("SEED", "LO", "HI", "CONTRASTS", "FORWARD"),
                         help="another benchmark whose landscapes all join the training part")
