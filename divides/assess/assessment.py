@@ -695,20 +695,56 @@ def _forward_evidence(dem: Dem, core: _Core, config: AssessConfig, progress) -> 
     return run, ""
 
 
+#: Forward runs from DEMs perturbed by the DEM error model, made only when the forward run's rate is given:
+#: their spread of the divide's rate (shift over time scale) is carried into its interval. Each costs a
+#: forward run (seconds), so two: with the unperturbed run, three realisations of the rate.
+_FORWARD_ERROR_RUNS = 2
+
+
+def _forward_error_factors(dem: Dem, core: _Core, config: AssessConfig, run: ForwardShift,
+                           progress=None) -> np.ndarray | None:
+    """The DEM error carried into the forward run's rate: each perturbed run's shift per unit-K year over the run's own.
+
+    The perturbations are drawn from the assessment's spatially correlated DEM error model (the one of the
+    robustness re-runs); a perturbed run that fails or leaves the grid is left out. None without a DEM error.
+    """
+    if config.dem_error_m <= 0:
+        return None
+    own = run.shift_cells / run.years_unit_k
+    rng = np.random.default_rng(config.seed + 6)
+    cell = (float(np.median(dem.dy)), float(np.median(dem.dx)))
+    factors = [1.0]
+    for i in range(_FORWARD_ERROR_RUNS):
+        if progress is not None:
+            progress(f"forward run from a DEM perturbed by its error model {i + 1}/{_FORWARD_ERROR_RUNS} (rate interval)")
+        z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
+        noisy = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
+        try:
+            other = forward_shift(noisy, core.sides, theta=run.theta, n=run.n, closed_edges=tuple(config.closed_edges),
+                                  channel_area_m2=float(core.channels.threshold.value_m2))
+        except (SideError, ParameterError):
+            continue
+        ratio = (other.shift_cells / other.years_unit_k) / own
+        if np.isfinite(ratio):
+            factors.append(float(ratio))
+    return np.asarray(factors)
+
+
 #: Draws of θ and n for the forward run's rate: each re-evaluates A^m S^n over the model grid (up to 300 x 300
 #: cells), so fewer than the 500 of the rate at the divide; the bias spread dominates the interval.
 _FORWARD_EXPONENT_DRAWS = 200
 
 
 def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, seed: int,
-                  exponents: tuple[np.ndarray, np.ndarray] | None = None) -> dict | None:
+                  exponents: tuple[np.ndarray, np.ndarray] | None = None, dem_error=None) -> dict | None:
     """The forward run's rate of the divide (mm/yr toward the victim) under the calibrated K, corrected for the
     run's bias measured on the benchmark (:data:`divides.assess.rate.FORWARD_RATE_LOG_BIAS`), in the verdict's
     direction only (docs/methods.md §9); None without a forward run or a calibration.
 
     ``exponents``: draws of θ and n (:func:`divides.assess.rate.exponent_samples`), paired in turn with the K
     samples and carried through K and the run's time scale at each draw; None or a run without its ground: not
-    carried.
+    carried. ``dem_error``: a callable giving the DEM error's factors on the rate
+    (:func:`_forward_error_factors`), called only once the rate is to be given; None: not carried.
     """
     # K at the run's own exponents (cheap) decides whether there is a rate at all; the drawn exponents,
     # each re-evaluated over the model grid, only once the rate is to be given
@@ -727,14 +763,23 @@ def _forward_rate(run: ForwardShift | None, cal: Calibration, verdict: Verdict, 
         return None
     k = np.asarray(k, dtype=np.float64).ravel()
     unit = np.abs(run.rate_m_per_yr(k) if theta is None else run.rate_m_per_yr(k, theta, n))
-    z = np.random.default_rng(seed).standard_normal(max(k.size, 4000))
+    rng = np.random.default_rng(seed)
+    z = rng.standard_normal(max(k.size, 4000))
     v = np.resize(unit, z.size) * 1e3 * np.exp(FORWARD_RATE_LOG_BIAS + FORWARD_RATE_LOG_SPREAD * z)
+    factors = None if dem_error is None else dem_error()
+    with_error = factors is not None and factors.size > 1
+    if with_error:
+        # each draw takes one run's rate, the unperturbed run's among them (a perturbed run moving the divide
+        # the other way counts as no motion: it widens the interval toward zero rather than being dropped)
+        v = v * np.clip(rng.choice(factors, size=v.size), 0.0, None)
     lo, best, hi = (float(x) for x in np.nanpercentile(v, [2.5, 50, 97.5]))
-    carried = "K, θ, n and that bias's spread carried" if theta is not None else "K and that bias's spread carried, " \
-        "θ and n not"
+    carried = ["K", *(("θ", "n") if theta is not None else ()),
+               *((f"the DEM error ({factors.size - 1} perturbed runs)",) if with_error else ())]
+    left = [w for w, on in (("θ and n", theta is not None), ("the DEM error", with_error)) if not on]
     return {"low": lo, "best": best, "high": hi, "toward": says,
-            "note": f"forward run under the calibrated K, corrected for its bias on model landscapes; {carried}; "
-                    "the DEM error not carried (it would need more forward runs)"}
+            "note": f"forward run under the calibrated K, corrected for its bias on model landscapes; "
+                    f"{', '.join(carried)} and that bias's spread carried"
+                    + "".join(f"; {w} not carried" for w in left)}
 
 
 def _primary_rate(at_divide: dict | None, forward: dict | None, *, uplift_given: bool = False
@@ -812,7 +857,9 @@ def assess(
     cal, rate, knickpoints = _rate_and_timing(core, config, verdict, uplift=uplift_raster)
     exponents = _exponent_draws(core, config, np.random.default_rng(config.seed + 5), _FORWARD_EXPONENT_DRAWS) \
         if cal.available else None
-    forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4, exponents)
+    forward_rate = _forward_rate(forward, cal, verdict, config.seed + 4, exponents,
+                                 dem_error=None if forward is None else
+                                 (lambda: _forward_error_factors(dem, core, config, forward, progress)))
     at_divide = rate
     rate, withheld = _primary_rate(rate, forward_rate, uplift_given=uplift_raster is not None)
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,

@@ -350,6 +350,37 @@ def test_the_forward_run_rate_follows_k_and_the_verdict():
     assert _primary_rate({"withheld": "why"}, rate, uplift_given=True)[0]["method"] == "forward run"
 
 
+def test_the_dem_error_carried_into_the_forward_rate_scales_it_and_only_widens_it():
+    # The rate is linear in the run's shift per unit-K year (V = K s dx / t1; Royden & Perron 2013), so runs from
+    # perturbed DEMs enter as factors on it: factors all 1 change nothing, all 2 double every quantile exactly
+    # (scale equivariance of quantiles, common practice), a spread of factors widens the 95 % interval.
+    from divides.assess.assessment import _forward_rate
+    from divides.assess.rate import Calibration
+    from divides.assess.verdict import Verdict
+    from divides.model.forward_run import ForwardShift
+
+    run = ForwardShift(shift_cells=0.5, cell_m=30.0, years_unit_k=2.0, power_a=4.0, power_b=2.0)
+    toward_b = Verdict("b", "a", 0.9, "near-divide", "b")
+    cal = Calibration("erodibility K", erosion_a=np.full(8, 1e-4), erosion_b=np.full(8, 1e-4), k=np.full(8, 2e-5))
+    plain = _forward_rate(run, cal, toward_b, seed=0)
+    ones = _forward_rate(run, cal, toward_b, seed=0, dem_error=lambda: np.ones(4))
+    twos = _forward_rate(run, cal, toward_b, seed=0, dem_error=lambda: np.full(4, 2.0))
+    spread = _forward_rate(run, cal, toward_b, seed=0, dem_error=lambda: np.array([1.0, 0.5, 2.0, 1.0]))
+    for q in ("low", "best", "high"):
+        assert ones[q] == plain[q]
+        assert twos[q] == pytest.approx(2.0 * plain[q], rel=1e-12)
+    assert np.log(spread["high"] / spread["low"]) > 1.1 * np.log(plain["high"] / plain["low"])
+    assert "DEM error (3 perturbed runs)" in spread["note"] and "the DEM error not carried" in plain["note"]
+    # a perturbed run that moves the divide the other way counts as no motion: the low end falls, nothing flips
+    against = _forward_rate(run, cal, toward_b, seed=0, dem_error=lambda: np.array([1.0, -1.0, 1.0, 1.0]))
+    assert against["toward"] == "b" and against["low"] <= plain["low"] and against["best"] > 0
+    # called only once a rate is to be given: not for a verdict without a direction
+    def fail():
+        raise AssertionError("perturbed runs made for a withheld rate")
+    assert "withheld" in _forward_rate(run, cal, Verdict("undetermined", None, 0.5, "undetermined", "b"), seed=0,
+                                       dem_error=fail)
+
+
 def _steady_ground(ks_a: float, ks_b: float, theta: float = 0.45):
     """A forward shift over two steady channel profiles of Flint's law S = ks A^-θ (Flint 1974; Whipple & Tucker
     1999: steady state under uniform U and K at the true θ), A = 1..21 x 1e4 m² on each side, all channels."""
