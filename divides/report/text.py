@@ -73,9 +73,11 @@ def verdict_text(result: Assessment, *, summary: dict | None = None) -> str:
         lines.append(f"Aggressor:   {side_label(result, v['aggressor'])}")
     lines.append(f"Confidence:  {v['confidence']:.2f} (0 = none, 1 = certain)")
     rate = v.get("rate_mm_per_yr")
-    if rate:
-        lines.append(f"Rate:        {_num(rate['best'])} mm/yr (95 % interval {_num(rate['low'])} to "
-                     f"{_num(rate['high'])} mm/yr)")
+    if rate:  # two significant figures: the interval spans about a factor of ten
+        lines.append(f"Rate:        {_num(rate['best'], '.2g')} mm/yr (95 % interval {_num(rate['low'], '.2g')} to "
+                     f"{_num(rate['high'], '.2g')} mm/yr)")
+    elif v.get("rate_withheld"):
+        lines.append(f"Rate:        withheld ({v['rate_withheld']})")
     else:
         lines.append("Rate:        not computed (no erosion rate, erodibility or knickpoint age given)")
     eq = s.get("equilibrium") or {}

@@ -59,6 +59,24 @@ def test_verdict_text_carries_the_verdict_and_the_caution(written) -> None:
     assert f"{result.verdict.confidence:.2f}" in text
 
 
+def test_verdict_text_header_rounds_the_rate_to_its_interval_and_says_why_one_is_withheld(written) -> None:
+    # Numbers are rounded to what their interval supports (common practice: an interval spanning a factor of
+    # ten supports two significant figures); a withheld rate says why, not that no input was given.
+    import copy
+
+    from divides.report.text import verdict_text
+
+    result, _, _ = written
+    doc = copy.deepcopy(result.summary)
+    doc["verdict"]["rate_mm_per_yr"] = {"low": 0.16969, "best": 0.57547, "high": 1.8489}
+    assert "Rate:        0.58 mm/yr (95 % interval 0.17 to 1.8 mm/yr)" in verdict_text(result, summary=doc)
+    doc["verdict"]["rate_mm_per_yr"] = None
+    doc["verdict"]["rate_withheld"] = "the verdict has no direction"
+    assert "Rate:        withheld (the verdict has no direction)" in verdict_text(result, summary=doc)
+    doc["verdict"]["rate_withheld"] = None
+    assert "Rate:        not computed" in verdict_text(result, summary=doc)
+
+
 def test_figures_are_pngs_of_report_size(written) -> None:
     _, out, _ = written
     pngs = sorted((out / "figures").glob("*.png"))
