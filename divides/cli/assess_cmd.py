@@ -63,8 +63,8 @@ BaseLevelOption = Annotated[
 DemErrorOption = Annotated[
     str | None,
     typer.Option("--dem-error", metavar="M", show_default=False,
-                 help="Vertical standard error of the DEM (m, default 1): noise of the robustness re-runs and "
-                 "the smallest knickpoint step."),
+                 help="Vertical standard error of the DEM (m, default 1): noise of the robustness re-runs and of "
+                 "the rate's interval, and the smallest knickpoint step."),
 ]
 DemErrorLengthOption = Annotated[
     str | None,
