@@ -142,14 +142,18 @@ def regional_map(result: Screening):
                 va="center", zorder=6, bbox={"boxstyle": "circle,pad=0.15", "fc": "white", "ec": "black", "lw": 0.6})
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
-    for lab, row, col in _centroids(result.labels):  # basin labels at their centroids
-        x, y = dem.xy(row, col)
-        ax.text(float(x) * frame.scale, float(y) * frame.scale, f"B{lab}", fontsize=7, color="#0072B2",
+    left, right, bottom, top = _display_extent(dem, frame, 1)
+    for lab, row, col in _centroids(result.labels):  # basin labels at their centroids, clear of the furniture
+        x, y = (float(v) * frame.scale for v in dem.xy(row, col))
+        if _under_furniture((x - left) / (right - left), (y - bottom) / (top - bottom)):
+            x, y, leader = _clear_spot(result.labels, lab, row, col, dem, frame, (left, right, bottom, top))
+            if leader is not None:  # the whole basin is under the furniture: label beside it, a line to it
+                ax.plot([x, leader[0]], [y, leader[1]], color="#0072B2", lw=0.6, zorder=5)
+        ax.text(x, y, f"B{lab}", fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
     handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
     # below the map, so no mark is hidden under it
     ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7, frameon=False)
-    left, right, bottom, top = _display_extent(dem, frame, 1)
     ax.set_xlim(left, right)
     ax.set_ylim(bottom, top)
     ax.set_xlabel(frame.xlabel)
@@ -160,6 +164,40 @@ def regional_map(result: Screening):
                  label="instability = calibrated probability that the segment moves")
     ax.set_title("Divide segments by instability; arrows point toward the basin losing ground", fontsize=10)
     return fig
+
+
+#: Where the map furniture sits, as fractions of the map (x0, y0, x1, y1): the north arrow and its "N" at the
+#: top right, the scale bar at the bottom left (divides.report.figures.map_furniture). A basin label there
+#: would be hidden or read as part of it.
+_FURNITURE = ((0.85, 0.66, 1.0, 1.0), (0.0, 0.0, 0.27, 0.14))
+
+
+def _under_furniture(fx: float, fy: float) -> bool:
+    return any(x0 <= fx <= x1 and y0 <= fy <= y1 for x0, y0, x1, y1 in _FURNITURE)
+
+
+def _clear_spot(labels: np.ndarray, lab: int, row: float, col: float, dem, frame, extent
+                ) -> tuple[float, float, tuple[float, float] | None]:
+    """Where a basin label goes when its centroid lies under the map furniture (map coordinates).
+
+    The basin's cell nearest its centroid that is clear of the furniture, and no leader; when the
+    whole basin is under it, a spot beside the furniture's box, level with the centroid, and the
+    centroid for a leader line. Only labels that collide come here, so scanning the label grid once per such basin is cheap.
+    """
+    left, right, bottom, top = extent
+    rows, cols = np.nonzero(labels == lab)
+    x, y = (np.asarray(v, dtype=np.float64) * frame.scale for v in dem.xy(rows, cols))
+    fx, fy = (x - left) / (right - left), (y - bottom) / (top - bottom)
+    clear = ~np.logical_or.reduce([(fx >= x0) & (fx <= x1) & (fy >= y0) & (fy <= y1) for x0, y0, x1, y1 in _FURNITURE])
+    if clear.any():
+        near = np.flatnonzero(clear)[np.argmin(((rows - row) ** 2 + (cols - col) ** 2)[clear])]
+        return float(x[near]), float(y[near]), None
+    cx, cy = (float(v) * frame.scale for v in dem.xy(row, col))
+    fcx, fcy = (cx - left) / (right - left), (cy - bottom) / (top - bottom)
+    box = next(b for b in _FURNITURE if b[0] <= fcx <= b[2] and b[1] <= fcy <= b[3])
+    # beside the box, level with the basin: left of the box at the right edge, right of the one at the left
+    fx_out = box[0] - 0.04 if box[2] >= 1.0 else box[2] + 0.04
+    return left + fx_out * (right - left), cy, (cx, cy)
 
 
 def _centroids(labels: np.ndarray, block_rows: int = 512) -> list[tuple[int, float, float]]:

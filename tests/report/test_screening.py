@@ -98,3 +98,25 @@ def test_existing_folder_refused_and_failure_leaves_nothing(screening, tmp_path,
         screening.write(tmp_path / "t")
     assert not (tmp_path / "t").exists()
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_basin_labels_stay_clear_of_the_north_arrow_and_scale_bar(screening):
+    # A map is read against its table (issue 14): a basin label under the north arrow or the scale bar is
+    # hidden or misread (on the demo, B1's centroid lies under the arrow). Overlap is judged on the boxes
+    # matplotlib's renderer draws (a general-purpose reference), not on the placement rule.
+    from divides.report.screening import regional_map
+
+    fig = regional_map(screening)
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    furniture = [c.get_window_extent(renderer) for c in ax.get_children()
+                 if getattr(c, "get_gid", lambda: None)() == "north-arrow"
+                 or (hasattr(c, "get_text") and c.get_text() in ("N", "N (grid)"))
+                 or type(c).__name__ == "AnchoredSizeBar"]
+    assert len(furniture) == 3  # the arrow, its "N" and the scale bar
+    labels = [t for t in ax.texts if t.get_text().startswith("B") and t.get_text()[1:].isdigit()]
+    assert len(labels) == len(np.unique(screening.labels[screening.labels > 0]))
+    for t in labels:
+        box = t.get_window_extent(renderer)
+        # clear by at least a label's height, so that a label does not read as part of the arrow's "N"
+        assert not any(box.overlaps(f.padded(box.height)) for f in furniture), t.get_text()
