@@ -13,10 +13,11 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.verdict import CAUTION, decide
+from divides.assess.verdict import CAUTION, decide, forward_disagrees
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.model.landscape_shift import landscape_shift
 from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
 from divides.terrain.channels import Channels, extract_channels
@@ -29,7 +30,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motio
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
                  "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning",
-                 "closed_edges", "seed", "min_confidence")
+                 "closed_edges", "seed", "min_confidence", "forward_run")
 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
 MIN_SEGMENT_CELLS = 4
@@ -56,7 +57,7 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                       "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
-                      "divide_kind")
+                      "divide_kind", "forward_shift_cells")
 
 
 @dataclass(eq=False)
@@ -316,6 +317,10 @@ def instability_of(probabilities: dict | None, kind: str = "main") -> float | No
     return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
 
 
+def _finite(v: float | None) -> float | None:
+    return None if v is None or not math.isfinite(v) else float(v)
+
+
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
     probs = verdict.probabilities
     chi = next((c for c in contrasts if c.metric == "chi"), None)
@@ -344,6 +349,24 @@ def _judge_pooled(pts, row: dict, st: dict) -> dict:
     pooled = _row(row["seg"], pts, contrasts, verdict)
     pooled["mean_chi_a"], pooled["mean_chi_b"] = row["mean_chi_a"], row["mean_chi_b"]  # the segment's own χ
     return pooled
+
+
+def _forward_shifts(dem: Dem, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray, config: AssessConfig,
+                    threshold: float) -> dict:
+    """One forward run of the whole DEM (:func:`divides.model.landscape_shift.landscape_shift`) and each
+    segment's shift in it (``forward_shift_cells``, model cells into side b; NaN when not measured).
+
+    The pieces of divide are judged between the outlet basins of their two sides.
+    """
+    run = landscape_shift(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
+                          channel_area_m2=threshold)
+    sides = outlet_of[run.on_model_grid(labels)]
+    for r in rows:
+        seg = r["seg"]
+        r["forward_shift_cells"] = run.piece_shift(seg.line, sides, int(outlet_of[seg.label_a]),
+                                                   int(outlet_of[seg.label_b]))
+    return {"model_cell_m": run.cell_m, "block": run.factor, "years_at_unit_k": run.years_unit_k,
+            "steps": run.n_steps}
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -472,9 +495,14 @@ def screen(
     rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     directions = drainage_directions(labels, outlet_of, outlets)
+    forward = _forward_shifts(dem, rows, labels, outlet_of, config, threshold) if config.forward_run else None
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"])
+        if r["probabilities"] is not None and forward_disagrees(r["probabilities"], r["forward_shift_cells"],
+                                                                config.min_confidence):
+            r["moves_toward"] = r["verdict"] = "undetermined"
+            r["reason"] = "lines disagree"
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -490,6 +518,7 @@ def screen(
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
+            "forward_shift_cells": _finite(r.get("forward_shift_cells")),
             "line": seg.line,
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
@@ -500,6 +529,7 @@ def screen(
     params = {**used, "chi_weighted": weighted,
               "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len, "min_judged_m": pool_m,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
-              "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
+              "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster",
+              "forward_run_grid": forward}
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage)
