@@ -13,7 +13,7 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.verdict import CAUTION, decide, forward_disagrees
+from divides.assess.verdict import CAUTION, FORWARD_NOISE_CELLS, decide, forward_disagrees
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
@@ -25,7 +25,7 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "INSTABILITY_SCALING", "MIN_JUDGED_CELLS"]
+           "INSTABILITY_SCALING", "INSTABILITY_FORWARD", "MIN_JUDGED_CELLS", "forward_agrees"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -49,6 +49,15 @@ MIN_JUDGED_CELLS = 60
 #: (docs/validation.md, *Regional screening*); refit with ``tests/benchmarks/bench_regional.py --fit``
 #: whenever the decision model changes.
 INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-1.28, 1.25), "lateral": (-2.38, 0.86)}
+
+#: The instability when screening's forward run gave the segment a shift (:func:`_forward_shifts`): a
+#: logistic model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma agrees))),
+#: p = P(a) + P(b) and ``agrees`` 1 when the forward run moves the segment's divide at least
+#: :data:`divides.assess.verdict.FORWARD_NOISE_CELLS` model cells toward the side the near-divide
+#: decision favours, else 0. Fitted with the scaling above on the same training cases
+#: (docs/validation.md, *Regional screening*; ``bench_regional.py --fit``).
+INSTABILITY_FORWARD: dict[str, tuple[float, float, float]] = {"main": (-1.39, 1.17, 0.82),
+                                                               "lateral": (-2.41, 0.86, 0.20)}
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -294,14 +303,28 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def instability_of(probabilities: dict | None, kind: str = "main") -> float | None:
-    """The probability that a segment moves, from the decision's probabilities.
+def forward_agrees(probabilities: dict, shift_cells: float) -> bool:
+    """True when the forward run moves the divide at least :data:`~divides.assess.verdict.FORWARD_NOISE_CELLS`
+    model cells (``shift_cells``, positive into b) toward the side the near-divide decision favours.
+
+    Examples
+    --------
+    >>> forward_agrees({"a": 0.2, "b": 0.5, "stable": 0.3}, 0.3), forward_agrees({"a": 0.2, "b": 0.5, "stable": 0.3}, -0.3)
+    (True, False)
+    """
+    toward_b = probabilities.get("b", 0.0) >= probabilities.get("a", 0.0)
+    return math.isfinite(shift_cells) and shift_cells * (1.0 if toward_b else -1.0) >= FORWARD_NOISE_CELLS
+
+
+def instability_of(probabilities: dict | None, kind: str = "main", forward_shift: float | None = None) -> float | None:
+    """The probability that a segment moves, from the decision's probabilities and the forward run.
 
     P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
     rescaled by the :data:`INSTABILITY_SCALING` of the segment's kind of divide
     (``"main"`` or ``"lateral"``, :mod:`divides.assess.divide_kind`) to the measured
-    truth of divide segments of that kind in regional model landscapes. None (unknown)
-    when the decision abstained for insufficient data.
+    truth of divide segments of that kind in regional model landscapes; with the forward run's
+    shift of the segment (model cells, positive into b), the model of :data:`INSTABILITY_FORWARD`
+    instead. None (unknown) when the decision abstained for insufficient data.
 
     Examples
     --------
@@ -313,8 +336,13 @@ def instability_of(probabilities: dict | None, kind: str = "main") -> float | No
     if probabilities is None:
         return None
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    alpha, beta = INSTABILITY_SCALING[kind]
-    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
+    if forward_shift is None or not math.isfinite(forward_shift):
+        alpha, beta = INSTABILITY_SCALING[kind]
+        bump = 0.0
+    else:
+        alpha, beta, gamma = INSTABILITY_FORWARD[kind]
+        bump = gamma * float(forward_agrees(probabilities, forward_shift))
+    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p)) + bump))))
 
 
 def _finite(v: float | None) -> float | None:
@@ -401,6 +429,7 @@ def screen(
     runoff: np.ndarray | None = None,
     erodibility_raster: np.ndarray | None = None,
     uplift_raster: np.ndarray | None = None,
+    forward_run: bool = False,
     **options,
 ) -> Screening:
     """Screen every divide of a DEM for instability.
@@ -428,6 +457,12 @@ def screen(
         without them χ assumes uniform climate, rock and uplift, and a χ-only
         verdict across a rock or climate contrast can point the wrong way
         (Forte & Whipple 2018).
+    forward_run : bool
+        Run the forward model once over the whole DEM (0.3 response times, K unknown, one balancing
+        uplift; :func:`divides.model.landscape_shift.landscape_shift`) and read each segment's shift in
+        it: the instability then follows :data:`INSTABILITY_FORWARD`, and a confident near-divide direction
+        the run moves the other way is left undetermined. Off by default: on the training cases of the
+        regional benchmark it did not improve the ranking or the alarms (docs/validation.md).
     **options
         Fields of :class:`divides.config.AssessConfig` (``theta`` must be a number here).
 
@@ -441,7 +476,7 @@ def screen(
         basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
-    config = AssessConfig.from_options(**options)
+    config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):
         raise ParameterError("screen needs a fixed theta (e.g. 0.45); estimate it with `divides inspect` first")
     flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
@@ -498,9 +533,11 @@ def screen(
     forward = _forward_shifts(dem, rows, labels, outlet_of, config, threshold) if config.forward_run else None
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
-        r["instability"] = instability_of(r["probabilities"], r["divide_kind"])
-        if r["probabilities"] is not None and forward_disagrees(r["probabilities"], r["forward_shift_cells"],
-                                                                config.min_confidence):
+        shift = r.get("forward_shift_cells")
+        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], shift)
+        # as assess's veto: a confident near-divide direction the forward run moves the other way is undetermined
+        if r["probabilities"] is not None and shift is not None \
+                and forward_disagrees(r["probabilities"], shift, config.min_confidence):
             r["moves_toward"] = r["verdict"] = "undetermined"
             r["reason"] = "lines disagree"
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
