@@ -566,7 +566,8 @@ def screen(
     params = {**used, "chi_weighted": weighted,
               "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len, "min_judged_m": pool_m,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
-              "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster",
-              "forward_run_grid": forward}
+              "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
+    if forward is not None:
+        params["forward_run_grid"] = forward
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage)
