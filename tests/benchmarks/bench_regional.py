@@ -1,13 +1,16 @@
 """Regional screening against measured truth per stretch of the main divide (run by hand, not a test).
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
-                                              [--generate-only] [--json FILE]
+                                              [--generate-only] [--json FILE] [--fit] [--markdown]
+                                              [--forward-run]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
 shipped decision model and prints the targets of issue 14 per case and per
 split (docs/validation.md, *Regional screening*). Re-run it after any change
 to the decision model: it is the one command behind the figures there.
+With --forward-run each DEM is screened with screen's forward run (off by
+default); --fit then also prints its INSTABILITY_FORWARD.
 """
 
 from __future__ import annotations
