@@ -309,8 +309,9 @@ def forward_agrees(probabilities: dict, shift_cells: float) -> bool:
 
     Examples
     --------
-    >>> forward_agrees({"a": 0.2, "b": 0.5, "stable": 0.3}, 0.3), forward_agrees({"a": 0.2, "b": 0.5, "stable": 0.3}, -0.3)
-    (True, False)
+    >>> p = {"a": 0.2, "b": 0.5, "stable": 0.3}
+    >>> forward_agrees(p, 0.3), forward_agrees(p, -0.3), forward_agrees(p, 0.05)
+    (True, False, False)
     """
     toward_b = probabilities.get("b", 0.0) >= probabilities.get("a", 0.0)
     return math.isfinite(shift_cells) and shift_cells * (1.0 if toward_b else -1.0) >= FORWARD_NOISE_CELLS

@@ -13,7 +13,8 @@ from divides.assess.calibration import CLASSES, DEFAULT_THRESHOLD, DecisionModel
 from divides.assess.contrasts import MIN_SAMPLES, Contrast
 
 __all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION", "INSUFFICIENT_HELP", "MODEL_FILE",
-           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "forward_disagrees", "decision_model", "right_share"]
+           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "forward_disagrees", "decision_model",
+           "right_share"]
 
 #: The fitted decision models shipped with the package (docs/validation.md says how they were made):
 #: near-divide measures only, and near-divide measures with the forward run.

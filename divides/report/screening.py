@@ -37,7 +37,8 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells", "x_mid", "y_mid")
+            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells",
+            "x_mid", "y_mid")
 
 
 #: The divide column of the report's table (``divide_kind`` of segments.csv).

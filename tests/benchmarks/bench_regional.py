@@ -239,8 +239,8 @@ def main() -> None:
             single = scaled_scores(part, k, SINGLE_SCALING)
             given = given_scores(part, k)
             print(f"  {k}: {raw['n']} segments with truth ({raw['moving']} moving): log loss / AUC of P(a) + P(b) "
-                  f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling {single['log_loss']:.3f}"
-                  f" / {single['auc']:.2f}, of the shipped scaling {shipped['log_loss']:.3f} / {shipped['auc']:.2f}, "
+                  f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling "
+                  f"{single['log_loss']:.3f} / {single['auc']:.2f}, of the shipped scaling {shipped['log_loss']:.3f} / {shipped['auc']:.2f}, "
                   f"of the instability given {given['log_loss']:.3f} / {given['auc']:.2f}")
         vetoed = [m for r in part for m in r["main"] if m.get("reason") == "lines disagree"]
         if vetoed:

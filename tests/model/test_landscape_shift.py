@@ -70,8 +70,9 @@ def test_a_flat_dem_is_not_run_and_nothing_moves():
     dem = divides.Dem.from_array(np.zeros((8, 12)), cell_size=30.0)
     run = landscape_shift(dem, theta=0.45, n=1.0, closed_edges=CLOSED, channel_area_m2=1e4)
     assert run.n_steps == 0 and math.isinf(run.years_unit_k)
-    line = divide_between(dem, np.arange(12)[None, :].repeat(8, 0) < 6, np.arange(12)[None, :].repeat(8, 0) >= 6).lines[0]
-    assert run.piece_shift(line, np.where(np.arange(12) < 6, 1, 2)[None, :].repeat(8, 0), 1, 2) == 0.0
+    halves = np.where(np.arange(12) < 6, 1, 2)[None, :].repeat(8, 0)
+    line = divide_between(dem, halves == 1, halves == 2).lines[0]
+    assert run.piece_shift(line, halves, 1, 2) == 0.0
 
 
 def test_sides_in_one_basin_of_the_run_are_not_measured():
