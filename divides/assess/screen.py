@@ -387,8 +387,11 @@ def _forward_shifts(dem: Dem, rows: list[dict], labels: np.ndarray, outlet_of: n
 
     The pieces of divide are judged between the outlet basins of their two sides.
     """
-    run = landscape_shift(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
-                          channel_area_m2=threshold)
+    from divides.terrain.tiled_flow import tiled_routing
+
+    with tiled_routing(None):  # the model grid is at most 300 x 300 cells: routed in memory even with --tiled
+        run = landscape_shift(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
+                              channel_area_m2=threshold)
     sides = outlet_of[run.on_model_grid(labels)]
     for r in rows:
         seg = r["seg"]
