@@ -542,7 +542,7 @@ def screen(
         # as assess's veto: a confident near-divide direction the forward run moves the other way is undetermined
         if r["probabilities"] is not None and shift is not None \
                 and forward_disagrees(r["probabilities"], shift, config.min_confidence):
-            r["moves_toward"] = r["verdict"] = "undetermined"
+            r["moves_toward"] = r["verdict"] = r["basis"] = "undetermined"
             r["reason"] = "lines disagree"
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
