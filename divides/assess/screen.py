@@ -13,10 +13,11 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.verdict import CAUTION, decide
+from divides.assess.verdict import CAUTION, FORWARD_NOISE_CELLS, decide, forward_disagrees
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.model.landscape_shift import landscape_shift
 from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
 from divides.terrain.channels import Channels, extract_channels
@@ -24,12 +25,12 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "INSTABILITY_SCALING", "MIN_JUDGED_CELLS"]
+           "INSTABILITY_SCALING", "INSTABILITY_FORWARD", "MIN_JUDGED_CELLS", "forward_agrees"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
                  "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning",
-                 "closed_edges", "seed", "min_confidence")
+                 "closed_edges", "seed", "min_confidence", "forward_run")
 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
 MIN_SEGMENT_CELLS = 4
@@ -49,6 +50,15 @@ MIN_JUDGED_CELLS = 60
 #: whenever the decision model changes.
 INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-1.28, 1.25), "lateral": (-2.38, 0.86)}
 
+#: The instability when screening's forward run gave the segment a shift (:func:`_forward_shifts`): a
+#: logistic model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma agrees))),
+#: p = P(a) + P(b) and ``agrees`` 1 when the forward run moves the segment's divide at least
+#: :data:`divides.assess.verdict.FORWARD_NOISE_CELLS` model cells toward the side the near-divide
+#: decision favours, else 0. Fitted with the scaling above on the same training cases
+#: (docs/validation.md, *Regional screening*; ``bench_regional.py --fit``).
+INSTABILITY_FORWARD: dict[str, tuple[float, float, float]] = {"main": (-1.39, 1.17, 0.82),
+                                                               "lateral": (-2.41, 0.86, 0.20)}
+
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
                   "is calibrated on divides between basins that drain apart)")
@@ -56,7 +66,7 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                       "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
-                      "divide_kind")
+                      "divide_kind", "forward_shift_cells")
 
 
 @dataclass(eq=False)
@@ -293,14 +303,29 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def instability_of(probabilities: dict | None, kind: str = "main") -> float | None:
-    """The probability that a segment moves, from the decision's probabilities.
+def forward_agrees(probabilities: dict, shift_cells: float) -> bool:
+    """True when the forward run moves the divide at least :data:`~divides.assess.verdict.FORWARD_NOISE_CELLS`
+    model cells (``shift_cells``, positive into b) toward the side the near-divide decision favours.
+
+    Examples
+    --------
+    >>> p = {"a": 0.2, "b": 0.5, "stable": 0.3}
+    >>> forward_agrees(p, 0.3), forward_agrees(p, -0.3), forward_agrees(p, 0.05)
+    (True, False, False)
+    """
+    toward_b = probabilities.get("b", 0.0) >= probabilities.get("a", 0.0)
+    return math.isfinite(shift_cells) and shift_cells * (1.0 if toward_b else -1.0) >= FORWARD_NOISE_CELLS
+
+
+def instability_of(probabilities: dict | None, kind: str = "main", forward_shift: float | None = None) -> float | None:
+    """The probability that a segment moves, from the decision's probabilities and the forward run.
 
     P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
     rescaled by the :data:`INSTABILITY_SCALING` of the segment's kind of divide
     (``"main"`` or ``"lateral"``, :mod:`divides.assess.divide_kind`) to the measured
-    truth of divide segments of that kind in regional model landscapes. None (unknown)
-    when the decision abstained for insufficient data.
+    truth of divide segments of that kind in regional model landscapes; with the forward run's
+    shift of the segment (model cells, positive into b), the model of :data:`INSTABILITY_FORWARD`
+    instead. None (unknown) when the decision abstained for insufficient data.
 
     Examples
     --------
@@ -312,8 +337,17 @@ def instability_of(probabilities: dict | None, kind: str = "main") -> float | No
     if probabilities is None:
         return None
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    alpha, beta = INSTABILITY_SCALING[kind]
-    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p))))))
+    if forward_shift is None or not math.isfinite(forward_shift):
+        alpha, beta = INSTABILITY_SCALING[kind]
+        bump = 0.0
+    else:
+        alpha, beta, gamma = INSTABILITY_FORWARD[kind]
+        bump = gamma * float(forward_agrees(probabilities, forward_shift))
+    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p)) + bump))))
+
+
+def _finite(v: float | None) -> float | None:
+    return None if v is None or not math.isfinite(v) else float(v)
 
 
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
@@ -344,6 +378,27 @@ def _judge_pooled(pts, row: dict, st: dict) -> dict:
     pooled = _row(row["seg"], pts, contrasts, verdict)
     pooled["mean_chi_a"], pooled["mean_chi_b"] = row["mean_chi_a"], row["mean_chi_b"]  # the segment's own χ
     return pooled
+
+
+def _forward_shifts(dem: Dem, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray, config: AssessConfig,
+                    threshold: float) -> dict:
+    """One forward run of the whole DEM (:func:`divides.model.landscape_shift.landscape_shift`) and each
+    segment's shift in it (``forward_shift_cells``, model cells into side b; NaN when not measured).
+
+    The pieces of divide are judged between the outlet basins of their two sides.
+    """
+    from divides.terrain.tiled_flow import tiled_routing
+
+    with tiled_routing(None):  # the model grid is at most 300 x 300 cells: routed in memory even with --tiled
+        run = landscape_shift(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
+                              channel_area_m2=threshold)
+    sides = outlet_of[run.on_model_grid(labels)]
+    for r in rows:
+        seg = r["seg"]
+        r["forward_shift_cells"] = run.piece_shift(seg.line, sides, int(outlet_of[seg.label_a]),
+                                                   int(outlet_of[seg.label_b]))
+    return {"model_cell_m": run.cell_m, "block": run.factor, "years_at_unit_k": run.years_unit_k,
+            "steps": run.n_steps}
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -378,6 +433,7 @@ def screen(
     runoff: np.ndarray | None = None,
     erodibility_raster: np.ndarray | None = None,
     uplift_raster: np.ndarray | None = None,
+    forward_run: bool = False,
     **options,
 ) -> Screening:
     """Screen every divide of a DEM for instability.
@@ -405,6 +461,12 @@ def screen(
         without them χ assumes uniform climate, rock and uplift, and a χ-only
         verdict across a rock or climate contrast can point the wrong way
         (Forte & Whipple 2018).
+    forward_run : bool
+        Run the forward model once over the whole DEM (0.3 response times, K unknown, one balancing
+        uplift; :func:`divides.model.landscape_shift.landscape_shift`) and read each segment's shift in
+        it: the instability then follows :data:`INSTABILITY_FORWARD`, and a confident near-divide direction
+        the run moves the other way is left undetermined. Off by default: on the training cases of the
+        regional benchmark it did not improve the ranking or the alarms (docs/validation.md).
     **options
         Fields of :class:`divides.config.AssessConfig` (``theta`` must be a number here).
 
@@ -418,7 +480,7 @@ def screen(
         basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
-    config = AssessConfig.from_options(**options)
+    config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):
         raise ParameterError("screen needs a fixed theta (e.g. 0.45); estimate it with `divides inspect` first")
     flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
@@ -472,9 +534,16 @@ def screen(
     rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     directions = drainage_directions(labels, outlet_of, outlets)
+    forward = _forward_shifts(dem, rows, labels, outlet_of, config, threshold) if config.forward_run else None
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
-        r["instability"] = instability_of(r["probabilities"], r["divide_kind"])
+        shift = r.get("forward_shift_cells")
+        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], shift)
+        # as assess's veto: a confident near-divide direction the forward run moves the other way is undetermined
+        if r["probabilities"] is not None and shift is not None \
+                and forward_disagrees(r["probabilities"], shift, config.min_confidence):
+            r["moves_toward"] = r["verdict"] = r["basis"] = "undetermined"
+            r["reason"] = "lines disagree"
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -490,6 +559,7 @@ def screen(
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
+            "forward_shift_cells": _finite(r.get("forward_shift_cells")),
             "line": seg.line,
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
@@ -501,5 +571,7 @@ def screen(
               "min_basin_area_m2": min_area, "level": level, "max_segment_m": max_len, "min_judged_m": pool_m,
               "channel_area_used_m2": threshold, "channel_area_source": channels.threshold.source,
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
+    if forward is not None:
+        params["forward_run_grid"] = forward
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage)

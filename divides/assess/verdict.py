@@ -13,7 +13,8 @@ from divides.assess.calibration import CLASSES, DEFAULT_THRESHOLD, DecisionModel
 from divides.assess.contrasts import MIN_SAMPLES, Contrast
 
 __all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION", "INSUFFICIENT_HELP", "MODEL_FILE",
-           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "decision_model", "right_share"]
+           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "forward_disagrees", "decision_model",
+           "right_share"]
 
 #: The fitted decision models shipped with the package (docs/validation.md says how they were made):
 #: near-divide measures only, and near-divide measures with the forward run.
@@ -140,6 +141,23 @@ def right_share(confidence: float, forward: bool = False) -> tuple[float, int] |
     return None
 
 
+def forward_disagrees(probabilities: dict, shift_cells: float, min_confidence: float) -> bool:
+    """True when the near-divide decision points one way at ``min_confidence`` or more while the forward
+    run moves the divide at least :data:`FORWARD_NOISE_CELLS` model cells the other way (``shift_cells``
+    positive into b): the two lines disagree strongly, and the direction is left undetermined.
+
+    Examples
+    --------
+    >>> forward_disagrees({"a": 0.1, "b": 0.8, "stable": 0.1}, -0.3, 0.5)
+    True
+    >>> forward_disagrees({"a": 0.1, "b": 0.8, "stable": 0.1}, -0.05, 0.5)
+    False
+    """
+    call = max(("a", "b"), key=lambda k: probabilities.get(k, 0.0))
+    return (probabilities.get(call, 0.0) >= min_confidence and math.isfinite(shift_cells)
+            and shift_cells * (1 if call == "b" else -1) <= -FORWARD_NOISE_CELLS)
+
+
 def decide(
     contrasts: list[Contrast],
     *,
@@ -237,11 +255,8 @@ def decide(
         without = rule(model.probabilities({**feats, "z_chi": 0.0}), threshold=min_confidence)[0]
         if without.outcome != toward:
             toward, reason = "undetermined", "chi only"
-    if near_probs is not None:
-        near_call = max(("a", "b"), key=near_probs.get)
-        if near_probs[near_call] >= min_confidence and float(forward_shift) * (1 if near_call == "b" else -1) \
-                <= -FORWARD_NOISE_CELLS:
-            toward, reason = "undetermined", "lines disagree"
+    if near_probs is not None and forward_disagrees(near_probs, float(forward_shift), min_confidence):
+        toward, reason = "undetermined", "lines disagree"
     basis = {"a": "near-divide", "b": "near-divide", "stable": "none"}.get(toward, "undetermined")
     if toward in ("a", "b") and reads_forward:
         basis = FORWARD_BASES[0] if near_ok else FORWARD_BASES[1]

@@ -65,6 +65,13 @@ SchedulerOption = Annotated[
     typer.Option("--scheduler", metavar="ADDRESS", show_default=False,
                  help="Run the divide segments as tasks on an existing Dask cluster (e.g. tcp://10.0.0.5:8786)."),
 ]
+ScreenForwardRunOption = Annotated[
+    bool,
+    typer.Option("--forward-run/--no-forward-run",
+                 help="Also run the model forward once over the whole DEM (0.3 response times) and read each "
+                      "segment's shift in it (a few seconds more; it did not improve the ranking on the regional "
+                      "benchmark, docs/validation.md)."),
+]
 TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
 
 
@@ -83,6 +90,7 @@ def screen(
     closed_edges: opt.ClosedEdgesOption = None,
     workers: WorkersOption = None,
     scheduler: SchedulerOption = None,
+    forward_run: ScreenForwardRunOption = False,
     tiled: opt.TiledOption = False,
     scratch: opt.ScratchOption = None,
     seed: opt.SeedOption = 0,
@@ -158,7 +166,7 @@ def screen(
             progress.announce_cold_kernels()
             with tiled_routing(plan):
                 result = run_screen(dem_obj, min_basin_area_m2=min_area, level=level, max_segment_m=max_len,
-                                    workers=workers, scheduler=scheduler, **grids,
+                                    workers=workers, scheduler=scheduler, forward_run=forward_run, **grids,
                                     **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
         written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)

@@ -37,6 +37,8 @@ __all__ = [
     "ForecastRun",
     "RunSetup",
     "balance_uplift",
+    "channel_cells",
+    "time_steps",
     "block_mean",
     "coarsen",
     "ForwardShift",
@@ -259,10 +261,16 @@ def slopes(flow: FlowGraph) -> np.ndarray:
 
 def _channel_cells(setup: RunSetup, mask: np.ndarray) -> np.ndarray:
     """Flat indices of a side's channel cells on the model grid (at least three)."""
-    area = setup.flow.area.ravel()
-    slope = slopes(setup.flow)
-    side = mask.ravel() & (slope > 0)
-    cells = np.flatnonzero(side & (area >= setup.channel_area_m2))
+    return channel_cells(setup.flow, mask, setup.channel_area_m2)
+
+
+def channel_cells(flow: FlowGraph, mask: np.ndarray, channel_area_m2: float) -> np.ndarray:
+    """Flat indices of the channel cells of ``mask`` that drain downhill (at least three: the largest
+    tenth of the mask's draining cells when too few reach ``channel_area_m2``)."""
+    area = flow.area.ravel()
+    slope = slopes(flow)
+    side = np.asarray(mask, dtype=bool).ravel() & (slope > 0)
+    cells = np.flatnonzero(side & (area >= channel_area_m2))
     if cells.size < 3:  # grid too coarse for the threshold: the side's largest tenth
         cand = np.flatnonzero(side)
         if cand.size == 0:
@@ -286,6 +294,19 @@ def balance_uplift(setup: RunSetup, k_field: np.ndarray, m: float, n: float) -> 
     return rates[0], rates[1], float(np.median(np.concatenate(side_slopes))), setup.channel_area_m2
 
 
+def time_steps(grid: Dem, years: float, *, k: float, m: float, n: float, a_ref: float, s_ref: float,
+               max_steps: int) -> tuple[float, float, int, float]:
+    """Cell size, knickpoint celerity, number of steps and step (years) of a run.
+
+    A knickpoint at the reference drainage area ``a_ref`` and slope ``s_ref`` crosses about one cell
+    per step (celerity n K A^m S^(n-1); Royden & Perron 2013), within [MIN_STEPS, max_steps] steps.
+    """
+    cell = float(min(np.min(grid.dx), np.min(grid.dy)))
+    celerity = n * k * a_ref ** m * max(s_ref, 1e-12) ** (n - 1.0)
+    n_steps = int(min(max(math.ceil(years * celerity / cell - 1e-9), MIN_STEPS), max_steps))
+    return cell, celerity, n_steps, years / n_steps
+
+
 def run_model(setup: RunSetup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
          uplift_mode: str | np.ndarray, diffusivity: float, max_steps: int) -> ForecastRun:
     m = theta * n
@@ -299,12 +320,8 @@ def run_model(setup: RunSetup, *, label: str, theta: float, n: float, k: tuple[f
         u_field = u_a
     else:
         u_field = np.where(setup.region_a, u_a, u_b)
-    # Time step: a knickpoint at the reference drainage area crosses about one cell per step
-    # (celerity n K A^m S^(n-1); Royden & Perron 2013), within [MIN_STEPS, max_steps] steps.
-    cell = float(min(np.min(setup.grid.dx), np.min(setup.grid.dy)))
-    celerity = n * max(k) * a_ref ** m * max(s_ref, 1e-12) ** (n - 1.0)
-    n_steps = int(min(max(math.ceil(years * celerity / cell - 1e-9), MIN_STEPS), max_steps))
-    dt = years / n_steps
+    cell, celerity, n_steps, dt = time_steps(setup.grid, years, k=max(k), m=m, n=n, a_ref=a_ref, s_ref=s_ref,
+                                             max_steps=max_steps)
     times = np.linspace(0.0, years, min(_TRACK_INTERVALS, n_steps) + 1)
     result = simulate(setup.grid, duration=years, dt=dt, uplift=u_field, erodibility=k_field, m=m, n=n,
                       diffusivity=diffusivity, edges=setup.edges, snapshot_times=times)

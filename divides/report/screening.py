@@ -37,7 +37,8 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "x_mid", "y_mid")
+            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells",
+            "x_mid", "y_mid")
 
 
 #: The divide column of the report's table (``divide_kind`` of segments.csv).
@@ -58,6 +59,8 @@ def segment_rows(result: Screening) -> list[dict]:
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
             "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
+            "forward_shift_cells": None if s.get("forward_shift_cells") is None
+            else round(float(s["forward_shift_cells"]), 3),
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
@@ -72,6 +75,7 @@ def segment_features(result: Screening) -> list[dict]:
         props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                                    "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
                                    "divide_kind")}
+        props["forward_shift_cells"] = s.get("forward_shift_cells")
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
@@ -271,6 +275,12 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "(Platt 1999) to how often divide segments of regional model landscapes with that probability lay in "
         "stretches that moved: the calibrated probability that the segment moves; it is unknown when too few "
         "independent samples were found. Divides between tributaries of the same trunk are not assessed. "
+        + ("A forward run of the landscape-evolution model over the whole DEM (0.3 response times, erodibility "
+           "unknown, one uplift rate balancing the present channels) moved each segment by the area its two "
+           "basins exchanged next to it; the instability then also reads whether that shift (at least 0.1 model "
+           "cell) points the way the near-divide measures do, and a confident direction the run moves the "
+           "other way is left undetermined (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
+           else "") +
         "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>")
     body = "".join([
         "<h1>Regional divide screening</h1>",

@@ -1,13 +1,16 @@
 """Regional screening against measured truth per stretch of the main divide (run by hand, not a test).
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
-                                              [--generate-only] [--json FILE]
+                                              [--generate-only] [--json FILE] [--fit] [--markdown]
+                                              [--forward-run]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
 shipped decision model and prints the targets of issue 14 per case and per
 split (docs/validation.md, *Regional screening*). Re-run it after any change
 to the decision model: it is the one command behind the figures there.
+With --forward-run each DEM is screened with screen's forward run (off by
+default); --fit then also prints its INSTABILITY_FORWARD.
 """
 
 from __future__ import annotations
@@ -80,40 +83,49 @@ def _logit(p):
     return np.log(p / (1 - p))
 
 
-def _labelled(rows: list[dict], kind: str | None) -> tuple[list[float], list[float]]:
+def _labelled(rows: list[dict], kind: str | None, forward: bool = False) -> tuple[list, list[float]]:
     """P(a) + P(b) and the truth (1 moving, 0 not moving) of every segment of ``kind`` (None: all) with both.
 
     Main-divide segments at least 70 % in moving stretches are 1, at least 70 % in stable ones 0;
     segments between neighbouring outlet basins draining off the same edge take the class of their pair
     (area exchanged); the rest, and segments without probabilities, are left out. ``kind`` is the
-    screening's own (``divide_kind``), the one its scaling is chosen by.
+    screening's own (``divide_kind``), the one its scaling is chosen by. With ``forward``, only segments the
+    forward run gave a shift, each as (P(a) + P(b), 1 when the forward run agrees with the near-divide side).
     """
+    from divides.assess.screen import forward_agrees
+
     x, y = [], []
     for r in rows:
         for m in r["main"] + r.get("lateral", []):
             p = m["probabilities"]
             if p is None or not (m["in_moving"] or m["in_stable"]) or (kind is not None and m["kind"] != kind):
                 continue
-            x.append(p.get("a", 0.0) + p.get("b", 0.0))
+            if forward and m.get("forward_shift_cells") is None:
+                continue
+            q = p.get("a", 0.0) + p.get("b", 0.0)
+            x.append((q, float(forward_agrees(p, m["forward_shift_cells"]))) if forward else q)
             y.append(1.0 if m["in_moving"] else 0.0)
     return x, y
 
 
-def fit_instability(rows: list[dict], kind: str) -> dict:
-    """Platt scaling (Platt 1999) of P(a) + P(b) to the measured truth of the segments of one kind."""
+def fit_instability(rows: list[dict], kind: str, forward: bool = False) -> dict:
+    """Platt scaling (Platt 1999) of P(a) + P(b) to the measured truth of the segments of one kind; with
+    ``forward``, the logistic model that adds the forward run's agreement (screen.INSTABILITY_FORWARD)."""
     import numpy as np
     from scipy.optimize import minimize
 
-    x, y = _labelled(rows, kind)
-    z, y = _logit(x), np.asarray(y)
+    x, y = _labelled(rows, kind, forward)
+    y = np.asarray(y)
+    design = np.column_stack([_logit([v[0] for v in x]), [v[1] for v in x]]) if forward else _logit(x)[:, None]
+    design = np.column_stack([np.ones(y.size), design])
 
     def loss(w):
-        t = w[0] + w[1] * z
+        t = design @ w
         return float(np.sum(np.logaddexp(0.0, t) - y * t))
 
-    w = minimize(loss, np.array([0.0, 1.0]), method="BFGS").x
-    return {"kind": kind, "alpha": float(w[0]), "beta": float(w[1]), "n": int(y.size), "moving": int(y.sum()),
-            "log_loss": loss(w) / max(y.size, 1)}
+    w = minimize(loss, np.r_[0.0, 1.0, np.zeros(design.shape[1] - 2)], method="BFGS").x
+    return {"kind": kind, "alpha": float(w[0]), "beta": float(w[1]), "gamma": float(w[2]) if forward else None,
+            "n": int(y.size), "moving": int(y.sum()), "log_loss": loss(w) / max(y.size, 1)}
 
 
 def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, float] | None) -> dict:
@@ -133,6 +145,24 @@ def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, floa
     return {"n": int(y.size), "moving": int(y.sum()), "log_loss": loss, "auc": auc}
 
 
+def given_scores(rows: list[dict], kind: str) -> dict:
+    """Log loss and AUC of the instability the screening gave (with or without the forward run)."""
+    import numpy as np
+
+    x, y = [], []
+    for r in rows:
+        for m in r["main"] + r.get("lateral", []):
+            if m["probabilities"] is None or not (m["in_moving"] or m["in_stable"]) or m["kind"] != kind:
+                continue
+            x.append(m["instability"])
+            y.append(1.0 if m["in_moving"] else 0.0)
+    x, y = np.clip(np.asarray(x, dtype=float), 1e-4, 1 - 1e-4), np.asarray(y)
+    pos, neg = x[y == 1], x[y == 0]
+    return {"log_loss": float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))) if y.size else float("nan"),
+            "auc": float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
+            if pos.size and neg.size else float("nan")}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--n", type=int, default=24)
@@ -143,6 +173,8 @@ def main() -> None:
     parser.add_argument("--fit", action="store_true",
                         help="print the instability's Platt scaling fitted on the cases run (use --split training)")
     parser.add_argument("--markdown", action="store_true", help="print the per-case rows of docs/validation.md")
+    parser.add_argument("--forward-run", action="store_true",
+                        help="screen with the forward run over the whole DEM (screen's forward_run=True)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
@@ -169,6 +201,7 @@ def main() -> None:
                                  stretch_class(s, case.threshold_m_per_yr)] for s in case.stretches), flush=True)
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
+        extra["forward_run"] = args.forward_run
         result = score(case, screen_case(case, **extra), lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
@@ -184,6 +217,12 @@ def main() -> None:
         print("INSTABILITY_SCALING = {" + ", ".join(f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f})' for k, f in fits.items())
               + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
                                     for k, f in fits.items()))
+        fits = {k: fit_instability(rows, k, forward=True) for k in KINDS}
+        if all(f["n"] for f in fits.values()):
+            print("INSTABILITY_FORWARD = {" + ", ".join(
+                f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f}, {f["gamma"]:.2f})' for k, f in fits.items())
+                + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
+                                      for k, f in fits.items()))
     for split in ("training", "held-out"):
         part = [r for r in rows if r["split"] == split]
         if not part:
@@ -198,9 +237,15 @@ def main() -> None:
         for k in KINDS:
             raw, shipped = scaled_scores(part, k, None), scaled_scores(part, k, INSTABILITY_SCALING[k])
             single = scaled_scores(part, k, SINGLE_SCALING)
+            given = given_scores(part, k)
             print(f"  {k}: {raw['n']} segments with truth ({raw['moving']} moving): log loss / AUC of P(a) + P(b) "
-                  f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling {single['log_loss']:.3f}"
-                  f" / {single['auc']:.2f}, of the shipped instability {shipped['log_loss']:.3f} / {shipped['auc']:.2f}")
+                  f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling "
+                  f"{single['log_loss']:.3f} / {single['auc']:.2f}, of the shipped scaling {shipped['log_loss']:.3f} / {shipped['auc']:.2f}, "
+                  f"of the instability given {given['log_loss']:.3f} / {given['auc']:.2f}")
+        vetoed = [m for r in part for m in r["main"] if m.get("reason") == "lines disagree"]
+        if vetoed:
+            print(f"  main segments left undetermined by the forward run: {len(vetoed)} (in moving stretches "
+                  f"{sum(m['in_moving'] for m in vetoed)}, not moving {sum(m['in_stable'] for m in vetoed)})")
         lat = [m for r in part for m in r.get("lateral", [])]
         steady_lat = [m for r in steady for m in r.get("lateral", [])]
         print(f"  lateral outlet-basin segments {len(lat)}: truth moving {sum(m['in_moving'] for m in lat)}, "

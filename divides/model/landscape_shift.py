@@ -1,0 +1,201 @@
+"""One forward run of a whole DEM, and how far each piece of its divides moves in it.
+
+Screening's line of evidence beside the near-divide contrasts: the DEM block-averaged to
+the model grid (:func:`divides.model.forward_run.coarsen`), one run of
+:func:`divides.model.simulate` with K unknown (K = 1) and one uplift rate balancing the
+present landscape (the median K A^m S^n of its channels), over
+:data:`divides.model.forward_run.FORWARD_HORIZON_TAU` response times (relief / U), as the
+single-divide forward run (:func:`divides.model.forward_run.forward_shift`) does between two
+sides. The outlet basins of the start are matched to those of the end
+(:func:`divides.model.outlet_exchange.match_labels`), and a piece of divide between two of
+them moves by the area they exchanged next to it over its length
+(:func:`divides.model.tracking.exchange_displacement`), in model cells.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+from scipy import ndimage
+
+from divides.errors import ParameterError
+from divides.io.dem import Dem
+from divides.model.forward_run import FORWARD_HORIZON_TAU, channel_cells, coarsen, slopes, time_steps
+from divides.model.outlet_exchange import match_labels, outlet_basins
+from divides.model.simulate import simulate
+from divides.model.tracking import exchange_displacement
+from divides.terrain.divide_lines import DivideLine
+from divides.terrain.routing import route
+
+__all__ = ["LandscapeShift", "landscape_shift", "PIECE_RADIUS_CELLS"]
+
+#: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
+#: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
+#: exchanges is inside, while most of a neighbouring piece's is not (set before any fit).
+PIECE_RADIUS_CELLS = 3
+
+
+@dataclass(frozen=True, eq=False)
+class LandscapeShift:
+    """A forward run of a whole DEM on its model grid: outlet basins at the start and at the end.
+
+    Attributes
+    ----------
+    grid : Dem
+        The model grid (the DEM block-averaged by ``factor``).
+    factor : int
+        Block size of the model grid over the DEM.
+    before, after : ndarray of int32, model-grid shape
+        Outlet basins at the start and at the end of the run (0: none).
+    match : ndarray of int
+        For every label of ``before`` (index), the label of ``after`` covering most of it.
+    years_unit_k : float
+        The horizon in years at K = 1 (inf when the landscape has no relief to erode).
+    n_steps : int
+        Time steps of the run (0 when it was not run).
+    """
+
+    grid: Dem
+    factor: int
+    before: np.ndarray
+    after: np.ndarray
+    match: np.ndarray
+    years_unit_k: float
+    n_steps: int
+
+    @cached_property
+    def _cell_area(self) -> np.ndarray:
+        return self.grid.cell_area_grid()
+
+    @property
+    def cell_m(self) -> float:
+        """Model cell size (m)."""
+        return float(min(np.min(self.grid.dx), np.min(self.grid.dy)))
+
+    def on_model_grid(self, labels: np.ndarray) -> np.ndarray:
+        """A label raster of the DEM read at the centre cell of every block of the model grid."""
+        f = self.factor
+        labels = np.asarray(labels)
+        if f == 1:
+            return labels
+        rows, cols = self.grid.shape
+        r = np.minimum(np.arange(rows) * f + f // 2, labels.shape[0] - 1)
+        c = np.minimum(np.arange(cols) * f + f // 2, labels.shape[1] - 1)
+        return labels[np.ix_(r, c)]
+
+    def piece_shift(self, line: DivideLine, sides: np.ndarray, label_a: int, label_b: int,
+                    radius_cells: int = PIECE_RADIUS_CELLS) -> float:
+        """Shift of one piece of divide over the run, in model cells, positive into side b.
+
+        Parameters
+        ----------
+        line : DivideLine
+            The piece, in the DEM's grid coordinates (side a on its left).
+        sides : ndarray of int, model-grid shape
+            Labels of the basins the pieces separate, on the model grid (:meth:`on_model_grid`).
+        label_a, label_b : int
+            The basins of ``sides`` on either side of the piece.
+        radius_cells : int
+            Cells within this many model cells of the piece count (:data:`PIECE_RADIUS_CELLS`).
+
+        Returns
+        -------
+        float
+            The area the run's basins on side b gave to those on side a next to the piece, minus the
+            area they won back, over the length of the piece still shared, in model cells
+            (:func:`divides.model.tracking.exchange_displacement`). The run's basins of either side
+            are the outlet basins at the start that hold most of that side's cells near the piece.
+            0 when the run was not made (no relief); NaN when no basin of the run holds one side, both
+            sides fall in one, or the two merged.
+        """
+        if self.n_steps == 0:
+            return 0.0
+        f = self.factor
+        r = (np.asarray(line.row, dtype=np.float64) - 0.5 * (f - 1)) / f
+        c = (np.asarray(line.col, dtype=np.float64) - 0.5 * (f - 1)) / f
+        rows, cols = self.grid.shape
+        pad = int(radius_cells) + 1
+        r0, c0 = max(0, int(np.floor(r.min())) - pad), max(0, int(np.floor(c.min())) - pad)
+        r1, c1 = min(rows, int(np.ceil(r.max())) + pad + 1), min(cols, int(np.ceil(c.max())) + pad + 1)
+        box = (slice(r0, r1), slice(c0, c1))
+        near = np.ones((r1 - r0, c1 - c0), dtype=bool)
+        near[np.clip(np.rint(r).astype(np.int64) - r0, 0, r1 - r0 - 1),
+             np.clip(np.rint(c).astype(np.int64) - c0, 0, c1 - c0 - 1)] = False
+        near = ndimage.distance_transform_edt(near) <= radius_cells
+        start, side = self.before[box], np.asarray(sides)[box]
+        run_a = _most_common(start[near & (side == label_a) & (start > 0)])
+        run_b = _most_common(start[near & (side == label_b) & (start > 0)])
+        if run_a == 0 or run_b == 0 or run_a == run_b:
+            return math.nan
+        end_a, end_b = int(self.match[run_a]), int(self.match[run_b])
+        if end_a == 0 or end_b == 0 or end_a == end_b:
+            return math.nan
+        end = self.after[box]
+        piece = DivideLine(r - r0, c - c0, np.asarray(line.x), np.asarray(line.y), np.asarray(line.distance_m),
+                           np.asarray(line.elevation_m))
+        moved = exchange_displacement(self._cell_area[box], (near & (start == run_a), near & (start == run_b)),
+                                      (near & (end == end_a), near & (end == end_b)), [piece])
+        return float(moved) / self.cell_m
+
+
+def _most_common(values: np.ndarray) -> int:
+    """The most frequent value (0 for none)."""
+    if values.size == 0:
+        return 0
+    uniq, counts = np.unique(values, return_counts=True)
+    return int(uniq[np.argmax(counts)])
+
+
+def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
+                    horizon_tau: float = FORWARD_HORIZON_TAU, max_steps: int = 60) -> LandscapeShift:
+    """One forward run of a whole DEM over ``horizon_tau`` response times, K unknown.
+
+    Parameters
+    ----------
+    dem : Dem
+    theta, n : float
+        Concavity and slope exponent (m = θ n).
+    closed_edges : tuple of str
+        DEM edges no water leaves.
+    channel_area_m2 : float
+        Channel threshold of the DEM (the reference channels are at least two model cells).
+    horizon_tau : float
+        Horizon in response times.
+    max_steps : int
+        Most time steps (>= 20).
+
+    Returns
+    -------
+    LandscapeShift
+        Outlet basins of the model grid at the start and at the end of the run. Uplift is one
+        rate, the median A^m S^n of the landscape's channels at K = 1, so uplift scales with K
+        and the shift over a horizon in response times does not depend on K (Royden & Perron
+        2013); the response time is relief / U (Whipple 2001). Without relief or channels that
+        drain downhill nothing is run (``n_steps`` 0, every shift 0).
+    """
+    if not (np.isfinite(horizon_tau) and horizon_tau > 0):
+        raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
+    grid, factor = coarsen(dem)
+    closed = tuple(closed_edges)
+    flow = route(grid, closed_edges=closed)
+    before, _ = outlet_basins(flow, min_cells=1)
+    m = theta * n
+    a_ref = max(float(channel_area_m2), 2.0 * float(np.max(grid.cell_area)))
+    cells = channel_cells(flow, grid.valid, a_ref)
+    z = np.where(grid.valid, grid.elevation, np.nan)
+    relief = float(np.nanmax(z) - np.nanmin(z)) if np.isfinite(z).any() else 0.0
+    slope = slopes(flow)[cells]
+    uplift = float(np.median(flow.area.ravel()[cells] ** m * slope ** n)) if cells.size else 0.0
+    if not (relief > 0 and uplift > 0):
+        return LandscapeShift(grid, factor, before, before, np.arange(int(before.max()) + 1), math.inf, 0)
+    years = horizon_tau * relief / uplift
+    _, _, n_steps, dt = time_steps(grid, years, k=1.0, m=m, n=n, a_ref=a_ref, s_ref=float(np.median(slope)),
+                                   max_steps=int(max_steps))
+    result = simulate(grid, duration=years, dt=dt, uplift=uplift, erodibility=1.0, m=m, n=n, diffusivity=0.0,
+                      edges={e: "closed" for e in closed})
+    after, _ = outlet_basins(route(result.final, closed_edges=closed), min_cells=1)
+    return LandscapeShift(grid, factor, before, after, match_labels(before, after, int(before.max())), years,
+                          int(result.n_steps))

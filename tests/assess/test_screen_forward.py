@@ -1,0 +1,64 @@
+"""Screening with one forward run of the whole DEM (`screen(..., forward_run=True)`)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import divides
+from divides.assess.screen import INSTABILITY_FORWARD, INSTABILITY_SCALING, forward_agrees, screen
+
+OPTIONS = dict(theta=0.1, closed_edges=("north", "south"), channel_area_m2=3e4, workers=1, level="outlets")
+
+
+def _book(west_gradient: float, east_gradient: float, rows: int = 21, cols: int = 41) -> divides.Dem:
+    # Gilbert's two planes meeting at a crest, folded along the middle row: one valley per flank.
+    c, r = np.arange(cols, dtype=float), np.arange(rows, dtype=float)
+    z = np.minimum(west_gradient * 100.0 * c, east_gradient * 100.0 * (cols - 1 - c))[None, :] \
+        + 10.0 * np.abs(r - (rows - 1) / 2)[:, None]
+    return divides.Dem.from_array(z, cell_size=100.0)
+
+
+def _instability(p: dict, kind: str, shift: float | None) -> float:
+    # The documented models (docs/methods.md): Platt scaling without the forward run, and with it the
+    # logistic model that adds the forward run's agreement with the near-divide side.
+    q = p["a"] + p["b"]
+    z = math.log(q / (1.0 - q))
+    if shift is None:
+        alpha, beta = INSTABILITY_SCALING[kind]
+        return 1.0 / (1.0 + math.exp(-(alpha + beta * z)))
+    alpha, beta, gamma = INSTABILITY_FORWARD[kind]
+    agrees = (shift if p["b"] >= p["a"] else -shift) >= 0.1
+    return 1.0 / (1.0 + math.exp(-(alpha + beta * z + gamma * agrees)))
+
+
+@pytest.mark.parametrize(("west", "east"), [(0.2, 0.1), (0.1, 0.2)])
+def test_the_forward_run_moves_the_divide_into_the_gentler_flank(west, east):
+    # Gilbert (1877): at uniform uplift and erodibility the steeper flank erodes faster, so the crest
+    # moves into the gentler side; the segment's shift (positive into its basin b) points there.
+    dem = _book(west, east)
+    result = screen(dem, forward_run=True, **OPTIONS)
+    main = [s for s in result.segments if s["divide_kind"] == "main"]
+    assert len(main) == 1
+    s = main[0]
+    gentle = result.labels[10, -2] if west > east else result.labels[10, 1]
+    victim = s["basins"][1] if s["forward_shift_cells"] > 0 else s["basins"][0]
+    assert abs(s["forward_shift_cells"]) > 0.5 and victim == gentle
+    assert s["instability"] == pytest.approx(_instability(s["probabilities"], "main", s["forward_shift_cells"]),
+                                             abs=1e-9)
+    assert result.parameters["forward_run"] is True and result.parameters["forward_run_grid"]["steps"] >= 20
+
+
+def test_equal_flanks_give_no_shift_and_the_default_makes_no_forward_run():
+    # Symmetric flanks stay (Gilbert 1877): less than the 0.1 model cell a shift is read at.
+    on = screen(_book(0.15, 0.15), forward_run=True, **OPTIONS)
+    off = screen(_book(0.15, 0.15), **OPTIONS)
+    (s_on,) = [s for s in on.segments if s["divide_kind"] == "main"]
+    (s_off,) = [s for s in off.segments if s["divide_kind"] == "main"]
+    assert abs(s_on["forward_shift_cells"]) < 0.1
+    assert not forward_agrees(s_on["probabilities"], s_on["forward_shift_cells"])
+    assert s_off["forward_shift_cells"] is None and off.parameters["forward_run"] is False
+    assert "forward_run_grid" not in off.parameters
+    assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)
