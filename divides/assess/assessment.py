@@ -18,7 +18,7 @@ from divides.assess.contrasts import (
     divide_samples,
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
-from divides.assess.points import DividePoints, sample_divide
+from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -224,6 +224,7 @@ class _Core:
     block_points: int
     samples: DivideSamples
     dem_error: DemError
+    fields: NearDivideFields | None = None  # reused by re-runs on the same DEM and flow
 
     @property
     def same_channel(self) -> bool:
@@ -250,6 +251,7 @@ def _core(
     weights_fn,
     n_boot_theta: int,
     flow: FlowGraph | None = None,
+    fields: NearDivideFields | None = None,
     step=None,
     chi_only: bool = False,
 ) -> _Core:
@@ -276,10 +278,12 @@ def _core(
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
     step("contrasts across the divide")
+    if fields is None:  # gradient and local relief upstream: read off the DEM and the flow paths only
+        fields = near_divide_fields(flow, config.relief_radius_m)
     try:
         points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
                                reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
-                               relief_radius_m=config.relief_radius_m)
+                               relief_radius_m=config.relief_radius_m, fields=fields)
     except ValueError as exc:  # no divide line long enough for one sample
         raise SideError(f"the divide between the two sides is too short to sample ({exc}); choose sides "
                         "that share a longer divide") from exc
@@ -290,7 +294,7 @@ def _core(
                                   base_level_m=base.elevation_m, seed=config.seed, dem_error=dem_error, cell_m=cell,
                                   mirrored=mirrored, samples=samples)
     return _Core(flow, channels, sides, base, divide, profiles, points, contrasts, spacing, reference, block_points,
-                 samples, dem_error)
+                 samples, dem_error, fields)
 
 
 #: θ accepted by χ (0 < θ <= 2); robustness re-runs stay inside it.
@@ -335,16 +339,16 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
         if step is not None:
             step(f"robustness re-run {number}/{len(runs)}: {label}")
         run_dem = dem
-        flow = core.flow
+        flow, fields = core.flow, core.fields  # the same DEM and flow paths: the same near-divide fields
         if "noise" in change:
             cell = (float(np.median(dem.dy)), float(np.median(dem.dx)))
             z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
             run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
-            flow = None
+            flow = fields = None
         try:
             run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
                         channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
-                        flow=flow, chi_only=True)  # the verdict reads the contrasts only: no segments or knickpoints
+                        flow=flow, fields=fields, chi_only=True)  # the verdict reads the contrasts only: no segments or knickpoints
             verdict = run.decide(config, forward_shift=forward_shift).moves_toward
         except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
             verdict = f"failed: {exc}"
