@@ -164,17 +164,21 @@ def network_root(down, keep):
 
 
 @njit(cache=True, nogil=True)
-def basin_disorder(chi, z, starts):
+def basin_disorder(chi, z, cols, starts):
     """Summed disorder over basins for every row (θ) of ``chi`` (Hergarten et al. 2016).
 
-    Nodes are grouped by basin: basin b covers columns ``starts[b] : starts[b + 1]``
-    of ``chi`` and entries of ``z``; basins of fewer than 3 nodes are skipped.
-    Each row is ordered as a stable sort by χ would order it (NaN last, ties by
-    position); rows are close θ, so each is sorted by insertion from the previous
-    row's order, falling back to a merge sort when that order is far off.
+    Nodes are grouped by basin: basin b holds the nodes ``starts[b] : starts[b + 1]``,
+    node k being column ``cols[k]`` of ``chi`` with elevation ``z[k]``; basins of fewer
+    than 3 nodes are skipped. Each row is ordered as a stable sort by χ would order
+    it (NaN last, ties by node); rows are close θ, so each is sorted by insertion from
+    the previous row's order, falling back to a merge sort when that order is far off.
     """
     n_theta = chi.shape[0]
     total = np.zeros(n_theta)
+    widest = 0
+    for b in range(starts.size - 1):
+        widest = max(widest, starts[b + 1] - starts[b])
+    key = np.empty(widest)
     for b in range(starts.size - 1):
         lo = starts[b]
         hi = starts[b + 1]
@@ -182,11 +186,15 @@ def basin_disorder(chi, z, starts):
         if m < 3:
             continue
         zz = z[lo:hi]
-        order = np.argsort(chi[0, lo:hi], kind="mergesort")
+        row = key[:m]
+        for k in range(m):
+            row[k] = chi[0, cols[lo + k]]
+        order = np.argsort(row, kind="mergesort")
         total[0] += _disorder_in_order(zz, order)
         budget = 16 * m + 64  # shifts beyond about m log m: a merge sort is cheaper
         for t in range(1, n_theta):
-            row = chi[t, lo:hi]
+            for k in range(m):
+                row[k] = chi[t, cols[lo + k]]
             if not _insertion_sort(order, row, budget):
                 order = np.argsort(row, kind="mergesort")
             total[t] += _disorder_in_order(zz, order)
