@@ -6,7 +6,7 @@ import numpy as np
 from numba import njit
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def chi_trapezoid(down, step, integrand, keep):
     """χ along a network, receivers first: χ = χ(down) + ½ (f + f_down) · step.
 
@@ -26,7 +26,7 @@ def chi_trapezoid(down, step, integrand, keep):
     return chi
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def disorder_sorted(z_sorted):
     """Disorder of elevations sorted by χ: Σ|Δz| / (max z − min z) − 1 (Hergarten et al. 2016)."""
     n = z_sorted.size
@@ -46,7 +46,7 @@ def disorder_sorted(z_sorted):
     return total / (hi - lo) - 1.0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def optimal_partition(x, y, phi, min_len, max_segments):
     """Generalised least-squares piecewise-linear fits with 1 … max_segments segments.
 
@@ -136,7 +136,7 @@ def optimal_partition(x, y, phi, min_len, max_segments):
     return sse, starts
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def longest_upstream_path(order, rec, dist):
     """Length (m) of the longest flow path from each cell up to a divide (0 on heads)."""
     out = np.zeros(rec.size)
@@ -150,7 +150,7 @@ def longest_upstream_path(order, rec, dist):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def network_root(down, keep):
     """For each kept node (receivers first), the base node of its network (-1 if not kept)."""
     m = down.size
@@ -252,7 +252,7 @@ def _insertion_sort(order, key, budget):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def best_hinge(x, y, phi, lo, hi):
     """Index j in [lo, hi) whose hinge at ½(x[j−1] + x[j]) fits y(x) with least GLS misfit.
 

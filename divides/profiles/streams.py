@@ -8,7 +8,7 @@ from numba import njit
 __all__ = ["longest_path_streams"]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _main_donor(down, step, keep):
     """Longest path above each node and the donor that carries it (receivers-first input)."""
     m = down.size
