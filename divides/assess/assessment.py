@@ -368,12 +368,12 @@ class _NoiseRuns:
         quick = _quick(config)
         cell = float(np.max(dem.cell_size_m))
         dem_error = config.dem_error(cell)
+        spacing = (float(np.median(dem.dy)), float(np.median(dem.dx)))
         rng = np.random.default_rng(config.seed + 1)
         out = []
         for _ in range(self.count):
             if self._stop.is_set():
                 break
-            spacing = (float(np.median(dem.dy)), float(np.median(dem.dx)))
             z = dem.elevation + dem_error.sample_grid(dem.shape, spacing, rng, dtype=dem.elevation.dtype)
             run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
             del z

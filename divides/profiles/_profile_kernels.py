@@ -227,9 +227,9 @@ def _disorder_in_order(z, order):
 @njit(cache=True, nogil=True)
 def _after(a, ia, b, ib):
     """Whether (a, ia) comes after (b, ib) in a stable ascending sort with NaN last."""
-    if a != a:
-        return b == b or ia > ib
-    if b != b:
+    if np.isnan(a):
+        return not np.isnan(b) or ia > ib
+    if np.isnan(b):
         return False
     return a > b or (a == b and ia > ib)
 

@@ -109,6 +109,7 @@ def gls_sse(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> float:
 
 
 def _whitened_fit(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    """Coefficients, whitened design and whitened residual sum of squares."""
     xw, yw = prewhiten(design, phi), prewhiten(y, phi)
     coef, *_ = np.linalg.lstsq(xw, yw, rcond=None)
     resid = yw - xw @ coef

@@ -87,7 +87,7 @@ def slope_area_break(
     # full-grid comparison per bin; each bin's median is of the same values either way
     small = which.astype(np.int16) if edges.size < 2**15 - 1 else which
     by_bin = np.argsort(small, kind="stable")
-    bins, first, count = np.unique(small[by_bin], return_index=True, return_counts=True)
+    _, first, count = np.unique(small[by_bin], return_index=True, return_counts=True)
     la, ls = la[by_bin], ls[by_bin]
     x, y = [], []
     for lo, k in zip(first, count):
