@@ -35,7 +35,7 @@ def test_noise_runs_beside_the_main_pass_equal_the_serial_runs(ridge, monkeypatc
     beside = divides.assess(ridge, "west", "east", theta=theta, **OPTIONS)
     _serial(monkeypatch)
     serial = divides.assess(ridge, "west", "east", theta=theta, **OPTIONS)
-    assert [r["change"] for r in serial.robustness][:2] == [r["change"] for r in beside.robustness][:2]
+    assert sum(r["change"].startswith("DEM noise") for r in beside.robustness) == 2
     assert serial.robustness == beside.robustness
     assert serial.summary == beside.summary
 
