@@ -6,7 +6,7 @@ import numpy as np
 from numba import njit
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def walk_to_area(starts, rec, area, threshold):
     """First cell on each start's flow path whose drainage area reaches ``threshold``.
 

@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import contextvars
 import dataclasses
+import threading
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -18,7 +21,7 @@ from divides.assess.contrasts import (
     divide_samples,
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
-from divides.assess.points import DividePoints, sample_divide
+from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -51,6 +54,7 @@ from divides.terrain.dem_error import DemError
 from divides.terrain.divide_lines import Divide, divide_between
 from divides.terrain.routing import FlowGraph, route
 from divides.terrain.sides import BaseLevel, Sides, common_base_level, parse_side, resolve_sides
+from divides.terrain.tiled_flow import active_plan
 
 __all__ = ["Assessment", "assess", "SCHEMA"]
 
@@ -224,6 +228,7 @@ class _Core:
     block_points: int
     samples: DivideSamples
     dem_error: DemError
+    fields: NearDivideFields | None = None  # reused by re-runs on the same DEM and flow
 
     @property
     def same_channel(self) -> bool:
@@ -233,9 +238,14 @@ class _Core:
     def decide(self, config: AssessConfig, robustness_share: float | None = None,
                forward_shift: float | None = None) -> Verdict:
         """The verdict of this pass (see :func:`divides.assess.verdict.decide`)."""
-        return decide(self.contrasts, robustness_share=robustness_share, same_channel=self.same_channel,
-                      min_confidence=config.min_confidence, forward_shift=forward_shift,
-                      forward_in_decision=config.forward_in_decision)
+        return _decide(self.contrasts, self.same_channel, config, robustness_share, forward_shift)
+
+
+def _decide(contrasts: list, same_channel: bool, config: AssessConfig, robustness_share: float | None = None,
+            forward_shift: float | None = None) -> Verdict:
+    return decide(contrasts, robustness_share=robustness_share, same_channel=same_channel,
+                  min_confidence=config.min_confidence, forward_shift=forward_shift,
+                  forward_in_decision=config.forward_in_decision)
 
 
 def _core(
@@ -250,8 +260,10 @@ def _core(
     weights_fn,
     n_boot_theta: int,
     flow: FlowGraph | None = None,
+    fields: NearDivideFields | None = None,
     step=None,
     chi_only: bool = False,
+    on_channels=None,
 ) -> _Core:
     step = step or (lambda text: None)
     if flow is None:
@@ -260,6 +272,8 @@ def _core(
                      closed_edges=config.closed_edges)
     step("channels, sides and the common base level")
     channels = extract_channels(flow, threshold_m2=channel_area_m2)
+    if on_channels is not None:
+        on_channels(channels)
     sides = resolve_sides(flow, parse_side(side_a, lonlat=lonlat), parse_side(side_b, lonlat=lonlat),
                           snap_radius_m=config.snap_radius_m)
     base = common_base_level(channels, sides, elevation_m=config.base_level_m)
@@ -276,10 +290,12 @@ def _core(
     spacing = config.divide_spacing_m or 2.0 * cell
     reference = config.reference_area_m2 or channels.threshold.value_m2
     step("contrasts across the divide")
+    if fields is None:  # gradient and local relief upstream: read off the DEM and the flow paths only
+        fields = near_divide_fields(flow, config.relief_radius_m)
     try:
         points = sample_divide(flow, divide, spacing_m=spacing, channel_area_m2=channels.threshold.value_m2,
                                reference_area_m2=reference, chi_grid=profiles.grid(profiles.chi),
-                               relief_radius_m=config.relief_radius_m)
+                               relief_radius_m=config.relief_radius_m, fields=fields)
     except ValueError as exc:  # no divide line long enough for one sample
         raise SideError(f"the divide between the two sides is too short to sample ({exc}); choose sides "
                         "that share a longer divide") from exc
@@ -290,7 +306,7 @@ def _core(
                                   base_level_m=base.elevation_m, seed=config.seed, dem_error=dem_error, cell_m=cell,
                                   mirrored=mirrored, samples=samples)
     return _Core(flow, channels, sides, base, divide, profiles, points, contrasts, spacing, reference, block_points,
-                 samples, dem_error)
+                 samples, dem_error, fields)
 
 
 #: θ accepted by χ (0 < θ <= 2); robustness re-runs stay inside it.
@@ -301,14 +317,91 @@ _THETA_RANGE = (0.05, 2.0)
 _CAN_CHANGE = {"noise": "all", "area": "all", "theta": "chi"}
 
 
+class _NoiseRuns:
+    """The robustness re-runs on DEMs with drawn noise, on a thread beside the main pass.
+
+    They read only θ and the channel threshold of the main pass, so with a numeric θ they start as
+    soon as the main channels are known and run while the main pass analyses its profiles and makes
+    the forward run and the other re-runs: their routing and most of their work are numba kernels
+    that release the GIL, which puts them on the second core. The noise grids are drawn in the same
+    sequence, one run after the other, so every run is the one the serial order made. Each run keeps
+    only what its verdict reads (its contrasts), not its grids.
+    """
+
+    def __init__(self, dem: Dem, side_a: str, side_b: str, config: AssessConfig, *, lonlat: bool, weights_fn) -> None:
+        self._args = (dem, side_a, side_b, config)
+        self._lonlat = lonlat
+        self._weights_fn = weights_fn
+        self.count = config.n_noise_runs if config.robustness and config.dem_error_m > 0 else 0
+        self._key: tuple[float, float] | None = None
+        self._future: Future | None = None
+        self._pool: ThreadPoolExecutor | None = None
+        self._stop = threading.Event()
+
+    def start(self, theta: float, threshold_m2: float) -> None:
+        """Start the runs for θ and the channel threshold (no-op when started for them already)."""
+        if self.count == 0 or self._key == (theta, threshold_m2):
+            return
+        self.close()
+        self._stop = threading.Event()
+        self._key = (theta, threshold_m2)
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="divides-noise-runs")
+        # the thread sees the caller's context (a tiled-routing plan lives in a context variable)
+        self._future = self._pool.submit(contextvars.copy_context().run, self._run_all, theta, threshold_m2)
+
+    def results(self, theta: float, threshold_m2: float) -> list:
+        """Per run, (contrasts, same_channel) or the SideError it ended with; waits for the thread."""
+        if self.count == 0:
+            return []
+        self.start(theta, threshold_m2)
+        return self._future.result()
+
+    def close(self) -> None:
+        """Stop after the current run and wait for the thread (the main pass failed, or it is done)."""
+        self._stop.set()
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+        self._pool = self._future = self._key = None
+
+    def _run_all(self, theta: float, threshold_m2: float) -> list:
+        dem, side_a, side_b, config = self._args
+        quick = _quick(config)
+        cell = float(np.max(dem.cell_size_m))
+        dem_error = config.dem_error(cell)
+        spacing = (float(np.median(dem.dy)), float(np.median(dem.dx)))
+        rng = np.random.default_rng(config.seed + 1)
+        out = []
+        for _ in range(self.count):
+            if self._stop.is_set():
+                break
+            z = dem.elevation + dem_error.sample_grid(dem.shape, spacing, rng, dtype=dem.elevation.dtype)
+            run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
+            del z
+            try:
+                run = _core(run_dem, side_a, side_b, quick, lonlat=self._lonlat, theta=theta,
+                            channel_area_m2=threshold_m2, weights_fn=self._weights_fn, n_boot_theta=0,
+                            chi_only=True)  # the verdict reads the contrasts only: no segments or knickpoints
+                out.append((run.contrasts, run.same_channel))
+            except SideError as exc:  # e.g. the noise leaves a side without channels
+                out.append(exc)
+            run = run_dem = None
+        return out
+
+
+def _quick(config: AssessConfig) -> AssessConfig:
+    """The settings of a robustness re-run: a quarter of the bootstrap resamples (at least 100)."""
+    return dataclasses.replace(config, n_bootstrap=max(100, config.n_bootstrap // 4))
+
+
 def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn, forward_shift: float | None,
-                step=None) -> tuple[list[dict], float]:
+                step=None, noise: _NoiseRuns | None = None) -> tuple[list[dict], float]:
     """Re-run on perturbed inputs; return each run and the share keeping the main verdict.
 
     Only re-runs that can change the features the verdict rests on count toward the share:
     θ changes χ only, so θ re-runs are made only when the decision model reads χ
     (:data:`_CAN_CHANGE`). The share is reported beside the calibrated confidence, not
     folded into it. The forward run is not repeated: every re-run reads the main one's shift.
+    ``noise``: the DEM-noise runs, possibly started already (see :class:`_NoiseRuns`).
     """
     main_verdict = core.decide(config, forward_shift=forward_shift)
     main = main_verdict.moves_toward
@@ -320,34 +413,37 @@ def _robustness(dem, side_a, side_b, config, core: _Core, *, lonlat, weights_fn,
         theta_lo, theta_hi = theta - 0.1, theta + 0.1  # common practice: θ known to about ±0.1
     theta_lo, theta_hi = (float(np.clip(t, *_THETA_RANGE)) for t in (theta_lo, theta_hi))
     threshold = core.channels.threshold.value_m2
+    noise = noise or _NoiseRuns(dem, side_a, side_b, config, lonlat=lonlat, weights_fn=weights_fn)
     runs: list[tuple[str, dict]] = []
-    rng = np.random.default_rng(config.seed + 1)
-    for i in range(config.n_noise_runs if config.dem_error_m > 0 else 0):
+    for i in range(noise.count):
         runs.append((f"DEM noise σ = {config.dem_error_m:g} m, correlation length {core.dem_error.length_m:g} m "
                      f"(#{i + 1})", {"noise": i}))
     if "z_chi" in decision_model().features:  # else θ (which changes χ only) cannot change the verdict
         runs += [(f"θ = {t:.2f}", {"theta": t}) for t in sorted({theta_lo, theta_hi} - {theta})]
     runs += [(f"channel area × ½ = {threshold / 2:.3g} m²", {"area": threshold / 2}),
              (f"channel area × 2 = {threshold * 2:.3g} m²", {"area": threshold * 2})]
-    quick = dataclasses.replace(config, n_bootstrap=max(100, config.n_bootstrap // 4))
+    quick = _quick(config)
     results = []
+    noisy = None
     for number, (label, change) in enumerate(runs, start=1):
         if step is not None:
             step(f"robustness re-run {number}/{len(runs)}: {label}")
-        run_dem = dem
-        flow = core.flow
         if "noise" in change:
-            cell = (float(np.median(dem.dy)), float(np.median(dem.dx)))
-            z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
-            run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
-            flow = None
-        try:
-            run = _core(run_dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
-                        channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
-                        flow=flow, chi_only=True)  # the verdict reads the contrasts only: no segments or knickpoints
-            verdict = run.decide(config, forward_shift=forward_shift).moves_toward
-        except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
-            verdict = f"failed: {exc}"
+            if noisy is None:
+                noisy = noise.results(theta, threshold)
+            run = noisy[change["noise"]]
+            if isinstance(run, SideError):
+                verdict = f"failed: {run}"
+            else:
+                verdict = _decide(*run, config, forward_shift=forward_shift).moves_toward
+        else:
+            try:  # the same DEM and flow paths: the same near-divide fields
+                run = _core(dem, side_a, side_b, quick, lonlat=lonlat, theta=change.get("theta", theta),
+                            channel_area_m2=change.get("area", threshold), weights_fn=weights_fn, n_boot_theta=0,
+                            flow=core.flow, fields=core.fields, chi_only=True)
+                verdict = run.decide(config, forward_shift=forward_shift).moves_toward
+            except SideError as exc:  # e.g. a doubled threshold leaves a side without channels
+                verdict = f"failed: {exc}"
         what = next(_CAN_CHANGE[k] for k in change)
         results.append({"change": label, "moves_toward": verdict, "kept": verdict == main, "can_change": what})
     share = sum(r["kept"] for r in results) / len(results) if results else 1.0
@@ -842,14 +938,27 @@ def assess(
             return None
         return chi_weights(flow, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster, n=config.n)
 
-    core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
-                 channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100, step=progress)
-    forward, forward_note = _forward_evidence(dem, core, config, progress)
-    forward_shift = None if forward is None else forward.shift_cells
-    runs, share = ([], None)
-    if config.robustness:
-        runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn,
-                                  forward_shift=forward_shift, step=progress)
+    noise = _NoiseRuns(dem, side_a, side_b, config, lonlat=lonlat, weights_fn=weights_fn)
+    # beside the main pass only when routing in memory (the tiled path is chosen to save memory)
+    beside = noise.count > 0 and active_plan() is None
+    early = None
+    if beside and not isinstance(config.theta, str):  # a numeric θ is the one the main pass uses
+        def early(channels: Channels) -> None:
+            noise.start(float(config.theta), channels.threshold.value_m2)
+    try:
+        core = _core(dem, side_a, side_b, config, lonlat=lonlat, theta=config.theta,
+                     channel_area_m2=config.channel_area_m2, weights_fn=weights_fn, n_boot_theta=100, step=progress,
+                     on_channels=early)
+        if beside:  # θ estimated by the main pass: the runs start now, beside the forward run
+            noise.start(core.profiles.theta, core.channels.threshold.value_m2)
+        forward, forward_note = _forward_evidence(dem, core, config, progress)
+        forward_shift = None if forward is None else forward.shift_cells
+        runs, share = ([], None)
+        if config.robustness:
+            runs, share = _robustness(dem, side_a, side_b, config, core, lonlat=lonlat, weights_fn=weights_fn,
+                                      forward_shift=forward_shift, step=progress, noise=noise)
+    finally:
+        noise.close()
     if progress is not None:
         progress("verdict, rates, knickpoint arrival and the equilibrium divide")
     verdict = dataclasses.replace(core.decide(config, share, forward_shift),

@@ -7,6 +7,7 @@ work; numpy, rasterio and numba are imported inside the function so that
 
 from __future__ import annotations
 
+import dataclasses
 import json
 from pathlib import Path
 from typing import Annotated
@@ -58,12 +59,14 @@ ScreenThetaOption = Annotated[
 WorkersOption = Annotated[
     int | None,
     typer.Option("--workers", min=1, metavar="N", show_default=False,
-                 help="Threads screening segments in parallel (Dask tasks); default: every core."),
+                 help="Threads screening segments (and routing tiles with --tiled) in parallel (Dask tasks); "
+                 "default: every core."),
 ]
 SchedulerOption = Annotated[
     str | None,
     typer.Option("--scheduler", metavar="ADDRESS", show_default=False,
-                 help="Run the divide segments as tasks on an existing Dask cluster (e.g. tcp://10.0.0.5:8786)."),
+                 help="Run the divide segments (and the tiles of --tiled) as tasks on an existing Dask cluster "
+                 "(e.g. tcp://10.0.0.5:8786)."),
 ]
 ScreenForwardRunOption = Annotated[
     bool,
@@ -155,6 +158,8 @@ def screen(
 
         # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
         dem_obj, plan = by_tiles.read(read, "screen", "screen a smaller window with --bounds")
+        if plan is not None:  # the tiles run where the segments run: this machine's threads, or the cluster
+            plan = dataclasses.replace(plan, workers=workers, scheduler=scheduler)
         check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.

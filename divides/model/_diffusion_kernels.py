@@ -17,13 +17,13 @@ WALL = 2
 INVALID = 3
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _conducts(kind_nb):
     """A face of an active cell conducts when the neighbour takes part (active or fixed)."""
     return kind_nb <= FIXED
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def active_cells(kind):
     """Flat indices of the active cells."""
     count = 0
@@ -39,7 +39,7 @@ def active_cells(kind):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def backward_euler_step(z, kind, active, cols, gx, gy, area, dt, rtol, max_iter, r, p, q, diag):
     """One backward-Euler step of A dz/dt = div(D grad z), solved by conjugate gradients.
 

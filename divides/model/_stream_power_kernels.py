@@ -16,7 +16,7 @@ NEWTON_RTOL = 1e-13
 NEWTON_MAX_ITER = 60
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _solve_drop(x_star, f, n):
     """Root x in (0, x_star] of ``x - x_star + f * x**n = 0`` (f > 0, x_star > 0).
 
@@ -56,7 +56,7 @@ def _solve_drop(x_star, f, n):
     return x
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def fluvial_step(z, order, rec, dist, drainage, active, cols, cell_area, erodibility, uplift, m, n, dt):
     """Uplift and erode every active cell by one implicit step of E = K A^m S^n.
 

@@ -6,7 +6,7 @@ import numpy as np
 from numba import njit
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def chi_trapezoid(down, step, integrand, keep):
     """χ along a network, receivers first: χ = χ(down) + ½ (f + f_down) · step.
 
@@ -26,7 +26,7 @@ def chi_trapezoid(down, step, integrand, keep):
     return chi
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def disorder_sorted(z_sorted):
     """Disorder of elevations sorted by χ: Σ|Δz| / (max z − min z) − 1 (Hergarten et al. 2016)."""
     n = z_sorted.size
@@ -46,7 +46,7 @@ def disorder_sorted(z_sorted):
     return total / (hi - lo) - 1.0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def optimal_partition(x, y, phi, min_len, max_segments):
     """Generalised least-squares piecewise-linear fits with 1 … max_segments segments.
 
@@ -136,7 +136,7 @@ def optimal_partition(x, y, phi, min_len, max_segments):
     return sse, starts
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def longest_upstream_path(order, rec, dist):
     """Length (m) of the longest flow path from each cell up to a divide (0 on heads)."""
     out = np.zeros(rec.size)
@@ -150,7 +150,7 @@ def longest_upstream_path(order, rec, dist):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def network_root(down, keep):
     """For each kept node (receivers first), the base node of its network (-1 if not kept)."""
     m = down.size
@@ -163,28 +163,96 @@ def network_root(down, keep):
     return root
 
 
-@njit(cache=True)
-def basin_disorder(chi, z, starts):
+@njit(cache=True, nogil=True)
+def basin_disorder(chi, z, cols, starts):
     """Summed disorder over basins for every row (θ) of ``chi`` (Hergarten et al. 2016).
 
-    Nodes are grouped by basin: basin b covers columns ``starts[b] : starts[b + 1]``
-    of ``chi`` and entries of ``z``; basins of fewer than 3 nodes are skipped.
+    Nodes are grouped by basin: basin b holds the nodes ``starts[b] : starts[b + 1]``,
+    node k being column ``cols[k]`` of ``chi`` with elevation ``z[k]``; basins of fewer
+    than 3 nodes are skipped. Each row is ordered as a stable sort by χ would order
+    it (NaN last, ties by node); rows are close θ, so each is sorted by insertion from
+    the previous row's order, falling back to a merge sort when that order is far off.
     """
     n_theta = chi.shape[0]
     total = np.zeros(n_theta)
+    widest = 0
+    for b in range(starts.size - 1):
+        widest = max(widest, starts[b + 1] - starts[b])
+    key = np.empty(widest)
     for b in range(starts.size - 1):
         lo = starts[b]
         hi = starts[b + 1]
-        if hi - lo < 3:
+        m = hi - lo
+        if m < 3:
             continue
         zz = z[lo:hi]
-        for t in range(n_theta):
-            order = np.argsort(chi[t, lo:hi], kind="mergesort")
-            total[t] += disorder_sorted(zz[order])
+        row = key[:m]
+        for k in range(m):
+            row[k] = chi[0, cols[lo + k]]
+        order = np.argsort(row, kind="mergesort")
+        total[0] += _disorder_in_order(zz, order)
+        budget = 16 * m + 64  # shifts beyond about m log m: a merge sort is cheaper
+        for t in range(1, n_theta):
+            for k in range(m):
+                row[k] = chi[t, cols[lo + k]]
+            if not _insertion_sort(order, row, budget):
+                order = np.argsort(row, kind="mergesort")
+            total[t] += _disorder_in_order(zz, order)
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
+def _disorder_in_order(z, order):
+    """:func:`disorder_sorted` of ``z[order]``, the same sums in the same order, without the copy."""
+    n = order.size
+    if n < 2:
+        return 0.0
+    total = 0.0
+    prev = z[order[0]]
+    lo = prev
+    hi = prev
+    for i in range(1, n):
+        v = z[order[i]]
+        total += abs(v - prev)
+        prev = v
+        if v < lo:
+            lo = v
+        if v > hi:
+            hi = v
+    if hi <= lo:
+        return 0.0
+    return total / (hi - lo) - 1.0
+
+
+@njit(cache=True, nogil=True)
+def _after(a, ia, b, ib):
+    """Whether (a, ia) comes after (b, ib) in a stable ascending sort with NaN last."""
+    if np.isnan(a):
+        return not np.isnan(b) or ia > ib
+    if np.isnan(b):
+        return False
+    return a > b or (a == b and ia > ib)
+
+
+@njit(cache=True, nogil=True)
+def _insertion_sort(order, key, budget):
+    """Sort ``order`` in place by (key, index); False (order unfinished) after ``budget`` shifts."""
+    shifts = 0
+    for k in range(1, order.size):
+        cur = order[k]
+        v = key[cur]
+        j = k - 1
+        while j >= 0 and _after(key[order[j]], order[j], v, cur):
+            order[j + 1] = order[j]
+            j -= 1
+            shifts += 1
+        order[j + 1] = cur
+        if shifts > budget:
+            return False
+    return True
+
+
+@njit(cache=True, nogil=True)
 def best_hinge(x, y, phi, lo, hi):
     """Index j in [lo, hi) whose hinge at ½(x[j−1] + x[j]) fits y(x) with least GLS misfit.
 

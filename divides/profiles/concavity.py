@@ -108,7 +108,7 @@ def _basin_disorder(chi: np.ndarray, z: np.ndarray, sel: np.ndarray, labels: np.
     order = sel[rank]
     b = labels[rank]
     starts = np.r_[0, np.flatnonzero(np.diff(b)) + 1, b.size].astype(np.int64)
-    return _k.basin_disorder(np.ascontiguousarray(chi[:, order]), np.ascontiguousarray(z[order]), starts)
+    return _k.basin_disorder(chi, np.ascontiguousarray(z[order]), np.ascontiguousarray(order, dtype=np.int64), starts)
 
 
 def concavity_by_collinearity(

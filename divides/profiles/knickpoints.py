@@ -5,10 +5,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from divides.profiles import _profile_kernels as _k
-from divides.profiles.segments import Segmentation, ar1_coefficients, gls_fit
+from divides.profiles.segments import Segmentation, ar1_coefficients, gls_sse
 from divides.terrain.dem_error import DemError
 
 __all__ = ["breaks_of", "celerity_status", "false_discovery_filter", "KNICKPOINT_ALPHA"]
@@ -82,16 +82,17 @@ def breaks_of(seg: Segmentation, chi: np.ndarray, z: np.ndarray, *, min_nodes: i
         t_slope = _ratio(delta, math.hypot(seg.slope_se[j], seg.slope_se[j + 1]))
         t_step = _ratio(step, math.hypot(seg.predict_se(j, chi_b), seg.predict_se(j + 1, chi_b)))
         x = chi[a:c] - chi_b  # centred on the break: well-conditioned designs
-        _, _, one = gls_fit(np.column_stack([np.ones_like(x), x]), z[a:c], phi[a:c])
-        _, _, two = gls_fit(_two_lines(x, int(b - a)), z[a:c], phi[a:c])
+        one = gls_sse(np.column_stack([np.ones_like(x), x]), z[a:c], phi[a:c])
+        two = gls_sse(_two_lines(x, int(b - a)), z[a:c], phi[a:c])
         u = x / max(float(np.ptp(x)), 1e-300)  # scaled: a well-conditioned quadratic
-        _, _, bend = gls_fit(np.column_stack([np.ones_like(u), u, u * u]), z[a:c], phi[a:c])
+        bend = gls_sse(np.column_stack([np.ones_like(u), u, u * u]), z[a:c], phi[a:c])
         dof = max(int(c - a) - 4, 1)
         scale = max(two / dof, floor2)
         # two lines must beat one line and also a smooth bend: a profile that curves gradually
         # (a concavity off the true one, hillslope processes near the heads) has no knickpoint
-        p = max(float(stats.f.sf(max(one - two, 0.0) / 2.0 / scale, 2, dof)),
-                float(stats.f.sf(max(bend - two, 0.0) / scale, 1, dof)))
+        # F survival functions (scipy.stats.f.sf computes exactly these, with much more overhead per call)
+        p = max(float(special.fdtrc(2, dof, max(one - two, 0.0) / 2.0 / scale)),
+                float(special.fdtrc(1, dof, max(bend - two, 0.0) / scale)))
         positions = max(1, int(c - a) - 2 * min_nodes + 1)
         out.append({
             "node": node,

@@ -99,10 +99,21 @@ def gls_fit(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> tuple[np.ndar
     Returns the coefficients, their unscaled covariance (XᵀΣ⁻¹X)⁻¹ (pseudo-inverse
     when singular) and the whitened residual sum of squares.
     """
+    coef, xw, sse = _whitened_fit(design, y, phi)
+    return coef, np.linalg.pinv(xw.T @ xw), sse
+
+
+def gls_sse(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> float:
+    """The whitened residual sum of squares of :func:`gls_fit` alone (no covariance to invert)."""
+    return _whitened_fit(design, y, phi)[2]
+
+
+def _whitened_fit(design: np.ndarray, y: np.ndarray, phi: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    """Coefficients, whitened design and whitened residual sum of squares."""
     xw, yw = prewhiten(design, phi), prewhiten(y, phi)
     coef, *_ = np.linalg.lstsq(xw, yw, rcond=None)
     resid = yw - xw @ coef
-    return coef, np.linalg.pinv(xw.T @ xw), float(resid @ resid)
+    return coef, xw, float(resid @ resid)
 
 
 def segment_profile(

@@ -8,7 +8,7 @@ from numba import njit
 __all__ = ["longest_path_streams"]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _main_donor(down, step, keep):
     """Longest path above each node and the donor that carries it (receivers-first input)."""
     m = down.size
@@ -50,21 +50,55 @@ def longest_path_streams(
     """
     down = np.asarray(down, dtype=np.int64)
     keep = np.asarray(keep, dtype=bool)
-    longest, main = _main_donor(down, np.asarray(step, dtype=np.float64), keep)
-    starts = []
-    for k in np.flatnonzero(keep):
-        d = down[k]
-        if d < 0 or not keep[d]:
-            starts.append((k, -1))  # a base node starts a stream
-        elif main[d] != k:
-            starts.append((k, d))  # a tributary starts at its junction
-    streams = []
-    for k, junction in starts:
-        path = [junction] if junction >= 0 else []
-        node = k
-        while node >= 0:
-            path.append(node)
-            node = main[node]
-        streams.append((np.asarray(path, dtype=np.int64), junction >= 0))
+    _, main = _main_donor(down, np.asarray(step, dtype=np.float64), keep)
+    nodes, bounds, tributary = _stream_paths(down, keep, main)
+    streams = [(nodes[bounds[i]: bounds[i + 1]], bool(tributary[i])) for i in range(tributary.size)]
     streams.sort(key=lambda s: -s[0].size)
     return streams
+
+
+@njit(cache=True, nogil=True)
+def _stream_paths(down, keep, main):
+    """Every stream's nodes, concatenated in the order of its first node (``bounds`` delimit them).
+
+    A stream starts at each base node, and at the junction of each kept node that is not its
+    receiver's main donor (a tributary, flagged); it follows the main donors up to a head.
+    """
+    m = down.size
+    n_streams = 0
+    length = 0  # every kept node lies on one stream (a chain of main donors), plus each tributary's junction
+    for k in range(m):
+        if not keep[k]:
+            continue
+        length += 1
+        d = down[k]
+        if d < 0 or not keep[d]:
+            n_streams += 1
+        elif main[d] != k:
+            n_streams += 1
+            length += 1
+    nodes = np.empty(length, dtype=np.int64)
+    bounds = np.empty(n_streams + 1, dtype=np.int64)
+    tributary = np.zeros(n_streams, dtype=np.bool_)
+    i = 0
+    pos = 0
+    for k in range(m):
+        if not keep[k]:
+            continue
+        d = down[k]
+        is_base = d < 0 or not keep[d]
+        if not is_base and main[d] == k:
+            continue
+        bounds[i] = pos
+        if not is_base:
+            tributary[i] = True
+            nodes[pos] = d
+            pos += 1
+        node = k
+        while node >= 0:
+            nodes[pos] = node
+            pos += 1
+            node = main[node]
+        i += 1
+    bounds[n_streams] = pos
+    return nodes, bounds, tributary

@@ -25,14 +25,14 @@ _UNTOUCHED = -1
 _MARKED = -2
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _grow(a, n):
     out = np.empty(n, a.dtype)
     out[: a.size] = a
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def all_finite(z, valid):
     """True if every valid cell is finite (no temporary the size of the grid)."""
     for i in range(z.size):
@@ -41,7 +41,7 @@ def all_finite(z, valid):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _is_candidate(z, valid, outlets, rows, cols, i):
     """A valid non-outlet cell with no strictly lower valid neighbour."""
     if not valid[i] or outlets[i]:
@@ -60,7 +60,7 @@ def _is_candidate(z, valid, outlets, rows, cols, i):
     return True
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def pit_candidates(z, valid, outlets, rows, cols):
     """Flat indices of cells with no strictly lower neighbour (unsorted).
 
@@ -80,7 +80,7 @@ def pit_candidates(z, valid, outlets, rows, cols):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def depression_seeds(z, valid, outlets, rows, cols, cands, mark):
     """One representative cell per depression bottom, in the order of ``cands``.
 
@@ -141,13 +141,13 @@ def depression_seeds(z, valid, outlets, rows, cols, cands, mark):
     return reps[:nreps].copy()
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _before(c1, l1, c2, l2):
     # Heap order: least total lowering first, then the shorter path.
     return c1 < c2 or (c1 == c2 and l1 < l2)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _heap_push(hc, hl, hs, hn, cost, length, s):
     k = hn
     while k > 0:
@@ -165,7 +165,7 @@ def _heap_push(hc, hl, hs, hn, cost, length, s):
     return hn + 1
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _heap_pop(hc, hl, hs, hn):
     """Remove the root; return (cost, length, slot, new size)."""
     cost = hc[0]
@@ -197,7 +197,7 @@ def _heap_pop(hc, hl, hs, hn):
     return cost, length, s, hn
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _step_length(r, rr, cc_diff, dx, dy):
     # Centre-to-centre distance: across rows it is half of each row's height;
     # along a diagonal the two rows' widths are averaged.
@@ -210,7 +210,7 @@ def _step_length(r, rr, cc_diff, dx, dy):
     return np.sqrt(w * w + h * h)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def breach_kernel(surf, orig, valid, outlets, rows, cols, reps, dx, dy, area, max_len, max_depth, neg_inf, slot):
     """Breach each depression in ``reps`` (lowest first) by a least-lowering path.
 

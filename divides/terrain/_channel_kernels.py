@@ -6,7 +6,7 @@ import numpy as np
 from numba import njit
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def compress_network(order, rec, is_channel, n_cells):
     """Channel cells in flow order and each one's downstream channel position.
 
@@ -42,7 +42,7 @@ def compress_network(order, rec, is_channel, n_cells):
     return cells, down
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def link_and_order(down):
     """Donor counts, link labels and Strahler order of a compressed network.
 

@@ -12,7 +12,7 @@ D_COL = np.array([1, 1, 0, -1, -1, -1, 0, 1], dtype=np.int64)
 _LOW32 = np.uint64(0xFFFFFFFF)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def grow(arr, n):
     """Return a copy of ``arr`` with room for at least ``n`` items (doubling)."""
     out = np.empty(max(2 * arr.size, n), dtype=arr.dtype)
@@ -20,7 +20,7 @@ def grow(arr, n):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def padded_copy(z, rows, cols):
     """``z`` (flat, rows × cols) copied into a grid padded by one cell, with neighbour offsets.
 
@@ -43,7 +43,7 @@ def padded_copy(z, rows, cols):
     return zp, closed, offsets, pc
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _heap_push(h, size, key):
     """Push ``key`` onto the 4-ary min-heap ``h[:size]``; return the new size."""
     pos = size
@@ -57,7 +57,7 @@ def _heap_push(h, size, key):
     return size + 1
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _heap_pop(h, size):
     """Drop the root of the 4-ary min-heap ``h[:size]`` (read it first); return the new size."""
     size -= 1
@@ -82,7 +82,7 @@ def _heap_pop(h, size):
     return size
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _packed_key(is32, bits32, bits64, p):
     """Heap key: an order-preserving 32-bit image of the elevation, then the cell index.
 
@@ -101,7 +101,7 @@ def _packed_key(is32, bits32, bits64, p):
     return (s << np.uint64(32)) | np.uint64(p)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def priority_flood_fill(z, valid, outlets, rows, cols):
     """Fill every depression to its spill level (Priority-Flood, Barnes et al. 2014).
 
@@ -179,7 +179,7 @@ def priority_flood_fill(z, valid, outlets, rows, cols):
     return n_raised
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def raised_totals(filled, z, rows, cols, cell_area):
     """Plan area (m²) and volume (m³) by which ``filled`` stands above ``z``."""
     area = 0.0

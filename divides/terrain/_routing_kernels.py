@@ -21,7 +21,7 @@ PENDING = 9
 INVALID = 255
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def row_distances(dx, dy):
     """Distance (m) to each of the 8 neighbours and to itself, per row: shape (rows, 9)."""
     rows = dx.size
@@ -38,7 +38,7 @@ def row_distances(dx, dy):
     return out
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _inside(r, c, k, rows, cols):
     """True when neighbour k of cell (r, c) lies on the grid."""
     rr = r + D_ROW[k]
@@ -46,7 +46,7 @@ def _inside(r, c, k, rows, cols):
     return 0 <= rr < rows and 0 <= cc < cols
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True, parallel=True)
 def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
     """Steepest-descent receiver of every cell (O'Callaghan & Mark 1984).
 
@@ -98,14 +98,14 @@ def d8_steepest(z, valid, outlets, rows, cols, dist, rec, code):
     return per_row.sum()
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, nogil=True, inline="always")
 def _on_edge(i, rows, cols):
     r = i // cols
     c = i - r * cols
     return r == 0 or r == rows - 1 or c == 0 or c == cols - 1
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _flats_away(z, rows, cols, off, code, pending, label, mask):
     """Label the flats and set ``mask`` to the inverted distance from higher ground (0: none).
 
@@ -170,7 +170,7 @@ def _flats_away(z, rows, cols, off, code, pending, label, mask):
         mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _flats_toward(z, rows, cols, off, code, pending, toward):
     """Breadth-first distance of each pending cell from the flat's exits (0: no exit).
 
@@ -207,7 +207,7 @@ def _flats_toward(z, rows, cols, off, code, pending, toward):
                 tail += 1
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True, parallel=True)
 def pending_cells(code, rows, cols):
     """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads)."""
     counts = np.zeros(rows + 1, dtype=np.int64)
@@ -229,7 +229,7 @@ def pending_cells(code, rows, cols):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True, parallel=True)
 def resolve_flats(z, rows, cols, dist, rec, code):
     """Route cells on flats so that flow converges (Barnes, Lehman & Mulla 2014).
 
@@ -307,7 +307,7 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     return int(stuck.sum())
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def topological_order(rec, valid, n_valid):
     """Valid cells ordered so that every receiver comes before its donors.
 
@@ -352,7 +352,7 @@ def topological_order(rec, valid, n_valid):
     return order[:k].copy() if k < n_valid else order
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def accumulate_down(order, rec, values, out):
     """out[i] = sum of ``values`` over i and every cell upstream of i."""
     for j in range(order.size):
@@ -365,7 +365,7 @@ def accumulate_down(order, rec, values, out):
             out[r] += out[i]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def basin_starts(order, rec):
     """Positions in ``order`` where each outlet's basin starts, and ``order.size`` last.
 
@@ -388,7 +388,7 @@ def basin_starts(order, rec):
     return out
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True, parallel=True)
 def accumulate_basins(order, rec, starts, values, out):
     """:func:`accumulate_down` one outlet basin per task (all threads).
 
@@ -409,7 +409,7 @@ def accumulate_basins(order, rec, starts, values, out):
                 out[r] += out[i]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def integrate_up(order, rec, dist, integrand, start, out):
     """out[i] = out[rec[i]] + integrand[i] * dist[i]; ``start`` at outlets."""
     for j in range(order.size):
@@ -421,7 +421,7 @@ def integrate_up(order, rec, dist, integrand, start, out):
             out[i] = out[r] + integrand[i] * dist[i]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def propagate_up(order, rec, values, out):
     """out[i] = values[outlet of i]: copy each outlet's value to its whole basin."""
     for j in range(order.size):
@@ -430,7 +430,7 @@ def propagate_up(order, rec, values, out):
         out[i] = values[i] if r == i else out[r]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def receiver_distance(rec, code, cols, dist, out):
     """Distance (m) from each cell to its receiver (0 at outlets and invalid cells)."""
     for i in range(rec.size):
@@ -438,7 +438,7 @@ def receiver_distance(rec, code, cols, dist, out):
         out[i] = dist[i // cols, k] if k < 8 else 0.0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def first_downstream_value(order, rec, is_target, values, out):
     """out[i] = values of the first target cell on the flow path from i (i included); NaN if none."""
     for j in range(order.size):

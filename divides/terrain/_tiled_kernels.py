@@ -349,7 +349,7 @@ def next_perimeter(order, rec, perimeter):
     return out
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def perimeter_flows(node, local_acc, down_same, down_cross):
     """External water of every perimeter node (Barnes 2017, the tile-level graph of edge flows).
 

@@ -83,12 +83,17 @@ def slope_area_break(
     la, ls = np.log10(a[keep]), np.log10(s[keep])
     edges = np.arange(np.floor(la.min() * bins_per_decade), np.ceil(la.max() * bins_per_decade) + 1) / bins_per_decade
     which = np.digitize(la, edges)
+    # cells grouped by bin in one stable sort (a radix sort for these small integers), not one
+    # full-grid comparison per bin; each bin's median is of the same values either way
+    small = which.astype(np.int16) if edges.size < 2**15 - 1 else which
+    by_bin = np.argsort(small, kind="stable")
+    _, first, count = np.unique(small[by_bin], return_index=True, return_counts=True)
+    la, ls = la[by_bin], ls[by_bin]
     x, y = [], []
-    for b in np.unique(which):
-        sel = which == b
-        if np.count_nonzero(sel) >= min_per_bin:
-            x.append(np.median(la[sel]))
-            y.append(np.median(ls[sel]))
+    for lo, k in zip(first, count):
+        if k >= min_per_bin:
+            x.append(np.median(la[lo: lo + k]))
+            y.append(np.median(ls[lo: lo + k]))
     x, y = np.asarray(x), np.asarray(y)
     if x.size < 2 * min_bins_each_side:
         return None

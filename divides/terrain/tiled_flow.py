@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
+import functools
 from collections.abc import Iterator
 from dataclasses import dataclass
 
@@ -39,11 +40,13 @@ DEFAULT_TILE = 2048
 
 @dataclass(frozen=True)
 class TiledPlan:
-    """How to route by tiles: tile side, scratch folder (None: the system's temporary folder), threads."""
+    """How to route by tiles: tile side, scratch folder (None: the system's temporary folder), threads
+    on this machine, or the address of a Dask scheduler whose workers run the tiles instead."""
 
     tile: int = DEFAULT_TILE
     scratch: str | None = None
     workers: int | None = None
+    scheduler: str | None = None
 
 
 _PLAN: contextvars.ContextVar[TiledPlan | None] = contextvars.ContextVar("divides_tiled_plan", default=None)
@@ -77,6 +80,29 @@ def _thread_map(workers: int | None):
 
         return list(dask.compute(*[dask.delayed(fn, pure=False)(item) for item in items],
                                  scheduler="threads", num_workers=n))
+
+    return run
+
+
+def _cluster_map(client):
+    """A ``mapper`` running each tile as a task on a Dask cluster (``client``).
+
+    The stage functions come as ``functools.partial`` objects holding the DEM source: it is
+    scattered to every worker once, not sent with each task; the scratch tiles travel as files
+    (the workers must see the scratch folder at the same path).
+    """
+    sent: dict[int, tuple] = {}
+
+    def run(fn, items):
+        if not items:
+            return []
+        func, kwargs = (fn.func, dict(fn.keywords)) if isinstance(fn, functools.partial) and not fn.args else (fn, {})
+        source = kwargs.get("source")
+        if source is not None:
+            if id(source) not in sent:  # keep the source itself too, so its id stays its own
+                sent[id(source)] = (source, client.scatter(source, broadcast=True, hash=False))
+            kwargs["source"] = sent[id(source)][1]
+        return client.gather(client.map(func, items, pure=False, **kwargs))
 
     return run
 
@@ -121,8 +147,15 @@ def route_by_tiles(dem: Dem, plan: TiledPlan | None = None, *, sea_level: float 
     rows, cols = dem.shape
     store = ScratchTiles(plan.scratch if plan.scratch is not None else tempfile.gettempdir())
     try:
-        result = route_tiled(ArraySource(dem), tile_shape=(plan.tile, plan.tile), store=store,
-                             mapper=_thread_map(plan.workers), sea_level=sea_level, closed_edges=closed_edges)
+        with contextlib.ExitStack() as stack:
+            if plan.scheduler is None:
+                mapper = _thread_map(plan.workers)
+            else:
+                from divides.terrain.cluster import cluster_client
+
+                mapper = _cluster_map(stack.enter_context(cluster_client(plan.scheduler)))
+            result = route_tiled(ArraySource(dem), tile_shape=(plan.tile, plan.tile), store=store,
+                                 mapper=mapper, sea_level=sea_level, closed_edges=closed_edges)
         code = result.assemble("code").ravel()
         filled = result.assemble("filled")
         area = result.assemble("area")

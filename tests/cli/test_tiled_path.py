@@ -86,3 +86,20 @@ def test_assess_tiled_equals_in_memory(tmp_path, capsys):
     mem, tiles = (json.loads((tmp_path / name / "summary.json").read_text()) for name in ("mem", "tiles"))
     for key in ("verdict", "contrasts", "divide"):
         assert tiles[key] == mem[key], key
+
+
+def test_screen_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
+    # --scheduler sends the tiles (not only the divide segments) to the cluster; the result equals
+    # the in-memory screening (reference as above). Two in-process workers keep the test short.
+    from divides.terrain.cluster import cluster_client
+
+    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    with cluster_client(workers=2, processes=False) as client:
+        code = run([*base, "--out", str(tmp_path / "cluster"), "--tiled", "--scratch", str(tmp_path / "scratch"),
+                    "--scheduler", client.scheduler.address])
+        ran = client.run_on_scheduler(lambda dask_scheduler: sorted(dask_scheduler.task_prefixes))
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert {"flood", "d8", "final_area", "assess_pairs"} <= set(ran), ran
+    assert _judged(tmp_path / "cluster") == _judged(tmp_path / "mem")

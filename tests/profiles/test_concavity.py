@@ -65,6 +65,36 @@ def test_disorder_definition():
     assert disorder(chi, rng.random(100)) > 1.0
 
 
+def test_basin_disorder_equals_a_stable_sort_per_theta():
+    # Reference: numpy's stable argsort of each θ row and basin, then the disorder of Hergarten,
+    # Robl & Stüwe (2016) written out here. Rows of few levels and NaNs make ties and missing χ,
+    # where only the stable order (ties by node, NaN last) gives one answer.
+    from divides.profiles import _profile_kernels as _k
+
+    rng = np.random.default_rng(7)
+    for _ in range(60):
+        n_nodes = int(rng.integers(3, 80))
+        n_theta = int(rng.integers(1, 12))
+        chi = np.cumsum(rng.integers(0, 3, (n_theta, n_nodes + 5)), axis=0).astype(float) * rng.random(n_nodes + 5)
+        chi[rng.random(chi.shape) < 0.05] = np.nan
+        if rng.random() < 0.5:
+            chi = np.round(chi, 0)
+        cols = rng.permutation(n_nodes + 5)[:n_nodes].astype(np.int64)
+        z = rng.random(n_nodes)
+        cuts = np.sort(rng.choice(np.arange(1, n_nodes), size=min(3, n_nodes - 1), replace=False))
+        starts = np.r_[0, cuts, n_nodes].astype(np.int64)
+        expected = np.zeros(n_theta)
+        for b in range(starts.size - 1):
+            lo, hi = starts[b], starts[b + 1]
+            if hi - lo < 3:
+                continue
+            for t in range(n_theta):
+                zs = z[lo:hi][np.argsort(chi[t, cols[lo:hi]], kind="stable")]
+                if np.ptp(zs) > 0:
+                    expected[t] += np.abs(np.diff(zs)).sum() / np.ptp(zs) - 1.0
+        assert np.allclose(_k.basin_disorder(chi, z, cols, starts), expected, rtol=1e-12, atol=1e-12)
+
+
 @pytest.mark.parametrize("theta_true", [0.35, 0.5, 0.65])
 def test_collinearity_recovers_m_over_n(theta_true):
     # Acceptance: θ within 0.02 of m/n on a steady-state network with tributaries.

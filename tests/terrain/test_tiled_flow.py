@@ -60,3 +60,25 @@ def test_route_takes_the_tiled_path_inside_the_block(tmp_path):
             route(dem, conditioning="breach")
     assert np.array_equal(tiled.area, route(dem).area)
     assert list(tmp_path.iterdir()) == []  # scratch tiles removed
+
+
+def test_flow_by_tiles_on_a_local_cluster_of_two_workers_equals_in_memory(tmp_path):
+    # The tiles as tasks of a Dask cluster found by its address (two worker processes: the DEM
+    # travels to them once, the tiles through the scratch folder); the reference is in-memory routing.
+    from divides.terrain.cluster import cluster_client
+
+    rng = np.random.default_rng(11)
+    z = (rng.integers(0, 4, size=(70, 90)) * 10.0 + rng.random((70, 90)) * 5.0).astype(np.float32)
+    z[rng.random(z.shape) < 0.05] = np.nan
+    dem = Dem.from_array(z, cell_size=30.0)
+    ref = route(dem, closed_edges=("north",))
+    with cluster_client(workers=2, processes=True) as client:
+        address = client.scheduler.address
+        assert len(client.scheduler_info()["workers"]) == 2
+        with tiled_routing(TiledPlan(tile=16, scratch=str(tmp_path), scheduler=address)):
+            got = route(dem, closed_edges=("north",))
+    assert np.array_equal(got.conditioned.surface, ref.conditioned.surface, equal_nan=True)
+    assert np.array_equal(got.direction, ref.direction)
+    assert np.array_equal(got.order, ref.order)
+    assert np.array_equal(got.area, ref.area)
+    assert not list(tmp_path.iterdir())  # the scratch tiles are removed

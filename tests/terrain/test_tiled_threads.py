@@ -16,6 +16,7 @@ from hypothesis import strategies as st
 from divides import Dem, route
 from divides.errors import DividesError
 from divides.terrain import _routing_kernels as _k
+from divides.terrain import routing
 
 
 @st.composite
@@ -36,6 +37,8 @@ def rough_dems(draw):
 def _route(z, geographic, closed, threads):
     before = numba.get_num_threads()
     numba.set_num_threads(threads)
+    smallest = routing.PARALLEL_ROUTING_MIN_CELLS
+    routing.PARALLEL_ROUTING_MIN_CELLS = 0  # these small grids would otherwise be routed on one thread
     try:
         if geographic:  # per-row cell sizes: drainage areas sum unequal floats, order matters
             from affine import Affine
@@ -45,6 +48,7 @@ def _route(z, geographic, closed, threads):
             dem = Dem.from_array(z, cell_size=30.0)
         return route(dem, closed_edges=closed)
     finally:
+        routing.PARALLEL_ROUTING_MIN_CELLS = smallest
         numba.set_num_threads(before)
 
 
@@ -86,3 +90,12 @@ def test_basin_accumulation_equals_the_serial_sweep(case):
     # and the sum over the outlets is the total (conservation of water; common practice)
     outlets = flow.outlets
     assert np.isclose(parallel[outlets].sum(), values[flow.order].sum())
+
+
+def test_small_grids_leave_the_thread_count_as_it_was():
+    # routing a grid below the parallel size runs on one thread and restores the caller's setting
+    # (common practice: a library must not change global state it does not own)
+    before = numba.get_num_threads()
+    z = np.add.outer(np.arange(20.0), np.arange(20.0)).astype(np.float32)
+    route(Dem.from_array(z, cell_size=30.0))
+    assert numba.get_num_threads() == before
