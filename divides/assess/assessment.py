@@ -812,7 +812,7 @@ def _forward_error_factors(dem: Dem, core: _Core, config: AssessConfig, run: For
     factors = [1.0]
     for i in range(_FORWARD_ERROR_RUNS):
         if progress is not None:
-            progress(f"forward run from a DEM perturbed by its error model {i + 1}/{_FORWARD_ERROR_RUNS} (rate interval)")
+            progress(f"forward run from a perturbed DEM {i + 1}/{_FORWARD_ERROR_RUNS} (DEM uncertainty in the rate interval)")
         z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
         noisy = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
         try:
