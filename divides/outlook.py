@@ -7,8 +7,9 @@ above both, so the model never imports the assessment.
 The assessment gives the concavity θ (with an interval), the slope exponent n
 and a calibration of erodibility K (from a measured erosion rate, a given K
 or a dated knickpoint). The present surface is the starting state; its open
-edges are held at their present elevations and uplift is set so that the
-present landscape is in balance (see :func:`forecast`). The model runs
+edges are held at their present elevations, and uplift and hillslope
+diffusivity are set so that the present surface is the model's steady state
+(see :func:`forecast`). The model runs
 ``years`` forward for a central parameter set and for an ensemble over the
 uncertainty of K, θ, n and the diffusivity D; the divide between the two
 sides is tracked through time. The result is a screening estimate: modelled timescales depend on the
@@ -62,9 +63,9 @@ __all__ = [
 #: Identifies the layout of :meth:`Forecast.to_dict` (``forecast.json``).
 SCHEMA = "divides.forecast/1"
 
-#: Default hillslope diffusivity (m²/yr): the low end of values usually quoted
-#: for soil-mantled slopes, 1e-3 to 1e-2 m²/yr (from memory), so that channels drive the motion.
-DEFAULT_DIFFUSIVITY = 1e-3
+#: Default hillslope diffusivity: None, fitted from the DEM with the uplift so that the present surface is the
+#: model's steady state (:func:`divides.model.forward_run.steady_balance`).
+DEFAULT_DIFFUSIVITY = None
 
 #: How uplift balances the present landscape: one rate for the whole grid, or one per side.
 UPLIFT_MODES = ("uniform", "sides")
@@ -94,6 +95,10 @@ N_FACTOR = 1.5
 #: soil-mantled hillslopes span about 1e-4 to 1e-1 m²/yr (from memory; e.g. Fernandes & Dietrich 1997,
 #: Water Resour. Res. 33; Martin 2000, ESPL 25).
 D_FACTOR = 10.0
+
+#: Ensemble members draw a fitted D log-uniformly within this factor of the fit: the fit's spread about the
+#: true D on the training part of the model benchmark (docs/validation.md).
+FIT_D_FACTOR = 1.6
 
 _MAX_STEPS = 400
 _CALIBRATION_OPTIONS = ("erosion_rate_a_mm_yr", "erosion_rate_b_mm_yr", "erodibility", "knickpoint_age_years")
@@ -493,6 +498,13 @@ def _design(n_runs: int, seed: int) -> list[tuple[float, float, float, float]]:
             for i in range(k)]
 
 
+def _member_d(d0: float | None, factor: float, q: float) -> dict[str, float | None]:
+    """A member's D: the given one spread by ``factor``, or the fitted one times its spread (run_model options)."""
+    if d0 is None:
+        return {"diffusivity": None, "diffusivity_factor": _spread(1.0, factor, q)}
+    return {"diffusivity": _spread(d0, factor, q)}
+
+
 def _spread(value: float, factor: float, q: float) -> float:
     """``value`` times ``factor`` to the power 2q − 1: log-uniform over [value / factor, value × factor]."""
     return float(value * factor ** (2.0 * q - 1.0))
@@ -511,11 +523,11 @@ def _check_options(years: Any, n_runs: Any, seed: Any, uplift: Any, diffusivity:
         raise ParameterError(f"`uplift` must be one of {', '.join(UPLIFT_MODES)} or a raster of uplift rates (m/yr) "
                              f"on the DEM's grid; got {uplift!r}")
     try:
-        d = float(diffusivity)
+        d = 0.0 if diffusivity is None else float(diffusivity)
     except (TypeError, ValueError):
         d = math.nan
     if not (math.isfinite(d) and d >= 0):
-        raise ParameterError(f"`diffusivity` must be a number >= 0 (m²/yr); got {diffusivity!r}")
+        raise ParameterError(f"`diffusivity` must be a number >= 0 (m²/yr), or None to fit it; got {diffusivity!r}")
     if not isinstance(max_steps, (int, np.integer)) or isinstance(max_steps, bool) or max_steps < MIN_STEPS:
         raise ParameterError(f"`max_steps` must be a whole number >= {MIN_STEPS}; got {max_steps!r}")
     return years_f
@@ -574,7 +586,7 @@ def forecast(
     n_runs: int = 9,
     seed: int = 0,
     uplift: str | np.ndarray = "uniform",
-    diffusivity: float = DEFAULT_DIFFUSIVITY,
+    diffusivity: float | None = DEFAULT_DIFFUSIVITY,
     max_cells: int = MAX_CELLS,
     max_steps: int = _MAX_STEPS,
     lonlat: bool = False,
@@ -599,23 +611,23 @@ def forecast(
         drawn by a seeded Latin hypercube over K (the central 95 % of the
         calibration's samples), θ (its interval), n (log-uniform within a
         factor :data:`N_FACTOR` of the assessment's) and D (log-uniform within
-        a factor :data:`D_FACTOR` of ``diffusivity``).
+        a factor :data:`D_FACTOR` of ``diffusivity``, or :data:`FIT_D_FACTOR` of the fitted D).
     seed : int
         Seed of the ensemble (and of the assessment when one is made).
     uplift : {"uniform", "sides"}
-        ``"uniform"`` (default): one uplift rate everywhere, the mean of the
-        two sides' median channel erosion rates at the start, so the
-        landscape as a whole is in balance and the side eroding faster than
-        the other loses height and gives ground, as uniform uplift and
-        erodibility assume (Willett et al. 2014). ``"sides"``: each side
-        uplifts at its own median rate (a raster split by side), so each
-        side on its own is in balance and motion comes only from where the
-        landscape departs from it. Or an array of the DEM's shape: rock
+        ``"uniform"`` (default): one uplift rate everywhere, fitted so that
+        the landscape as a whole is in the model's steady state (see Notes);
+        the side eroding faster than the other loses height and gives
+        ground, as uniform uplift and erodibility assume (Willett et al.
+        2014). ``"sides"``: one rate per side (a raster split by side), so
+        each side on its own is in balance and motion comes only from where
+        the landscape departs from it. Or an array of the DEM's shape: rock
         uplift relative to base level (m/yr), block-averaged with the DEM and
         used as given (Forte & Whipple 2018: an uplift contrast moves a
         divide that χ alone would call stable).
-    diffusivity : float
-        Hillslope diffusivity D (m²/yr); 0 turns diffusion off.
+    diffusivity : float, optional
+        Hillslope diffusivity D (m²/yr); 0 turns diffusion off. Default: fitted with the uplift so that
+        the present surface is the model's steady state (see Notes).
     max_cells : int
         DEMs larger than this along either side are block-averaged first.
     max_steps : int
@@ -654,7 +666,14 @@ def forecast(
     at its own θ and n, scaled by the spread of the calibration's K samples.
     (On the demo, K from the measured 0.70 mm/yr comes out 4.4e-5 against the
     4e-5 that grew it; from the median channel steepness it was 1.7e-5.)
-    Open edges are held at their present
+    Uplift U (and D when not given) come from the model's steady state,
+    U = K A^m S^n − D ∇²z at every cell (Perron, Kirchner & Dietrich 2009),
+    fitted by least squares over both sides' cells of the model grid
+    (:func:`divides.model.forward_run.steady_balance`): hilltops, where
+    curvature is strongest, pin D (the hilltop balance E = −D ∇²z; Roering
+    et al. 2007), channels pin U. Each run refits both at its own K, θ and
+    n, so a run starts in balance wherever the present surface is one, and
+    only what departs from it moves the divide. Open edges are held at their present
     elevations, closed edges stay closed. The divide is measured from the
     model's own routing at eleven times, as the net area side a takes from
     side b divided by the length of the present divide that still separates
@@ -707,19 +726,21 @@ def forecast(
                                                                    for e, r in lowering.items()}})
     calibrated = _calibrated(assessment, setup)
 
-    common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps))
-    d0 = float(diffusivity)
+    common = dict(years=years_f, uplift_mode=_uplift_grid(uplift, dem, factor), max_steps=int(max_steps),
+                  balance="steady")
+    d0 = None if diffusivity is None else float(diffusivity)
+    d_factor = FIT_D_FACTOR if d0 is None else D_FACTOR
     central = run_model(setup, label="central", theta=calibrated.theta0, n=calibrated.n,
-                   k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
+                        k=calibrated.erodibility(calibrated.theta0, 0.5), diffusivity=d0, **common)
     members = []
     for i, (q_k, q_theta, q_n, q_d) in enumerate(_design(int(n_runs), int(seed))):
         theta = theta_lo + (theta_hi - theta_lo) * q_theta
         n_i = _spread(calibrated.n, N_FACTOR, q_n)
         members.append(run_model(setup, label=f"member {i + 1}", theta=theta, n=n_i,
-                            k=calibrated.erodibility(theta, q_k, n_i), diffusivity=_spread(d0, D_FACTOR, q_d),
-                            **common))
+                                 k=calibrated.erodibility(theta, q_k, n_i), **_member_d(d0, d_factor, q_d),
+                                 **common))
 
-    notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup)
+    notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup, d0 is None)
     notes += [f"The base level of the {e} edge keeps falling at {_sig(1e3 * r)} mm/yr." for e, r in lowering.items()]
     if assessment.config.sea_level_m is not None:
         notes.append("The model drains only off the DEM's open edges and nodata: cells at or below the sea level "
@@ -735,9 +756,10 @@ def forecast(
                         "unit": "m^(1-2m)/yr, E = K A^m S^n"},
         "uplift_mode": "raster" if isinstance(uplift, np.ndarray) else uplift,
         "uplift_m_per_yr": {"a": central.uplift[0], "b": central.uplift[1]},
-        "diffusivity_m2_per_yr": float(diffusivity),
+        "diffusivity_m2_per_yr": central.diffusivity,
+        "diffusivity_source": "given" if d0 is not None else "fitted: steady balance of the present surface",
         "ensemble_intervals": {"n": [calibrated.n / N_FACTOR, calibrated.n * N_FACTOR],
-                               "diffusivity_m2_per_yr": [float(diffusivity) / D_FACTOR, float(diffusivity) * D_FACTOR],
+                               "diffusivity_m2_per_yr": [central.diffusivity / d_factor, central.diffusivity * d_factor],
                                "theta": [theta_lo, theta_hi]},
         "edges": {e: ("closed" if e in setup.closed else
                       f"open, lowered at {lowering[e]:g} m/yr" if e in lowering else "open, held at present elevations")
@@ -762,8 +784,9 @@ def forecast(
 
 
 def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list, calibrated: _Calibrated,
-           theta_basis: str, uplift: str | np.ndarray, setup: RunSetup) -> list[str]:
+           theta_basis: str, uplift: str | np.ndarray, setup: RunSetup, d_fitted: bool) -> list[str]:
     notes = []
+    d_factor = FIT_D_FACTOR if d_fitted else D_FACTOR
     if factor > 1:
         notes.append(f"For speed the DEM ({dem.shape[0]} x {dem.shape[1]} cells) was block-averaged by {factor} x "
                      f"{factor} to {grid.shape[0]} x {grid.shape[1]} cells of about {grid.cell_size_m[0]:,.0f} m; "
@@ -774,16 +797,21 @@ def _notes(dem: Dem, grid: Dem, factor: int, central: ForecastRun, members: list
                      "transients and can slow the modelled divide; raise max_steps for a finer run.")
     if calibrated.spread is None:
         notes.append(f"Erodibility from {calibrated.source} is taken as exact: the bands reflect θ "
-                     f"({theta_basis}), n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
+                     f"({theta_basis}), n (within a factor {N_FACTOR:g}) and D (within a factor {d_factor:g}).")
     else:
         notes.append(f"Bands span K from {calibrated.source} (central 95 % of its samples), θ ({theta_basis}), "
-                     f"n (within a factor {N_FACTOR:g}) and D (within a factor {D_FACTOR:g}).")
+                     f"n (within a factor {N_FACTOR:g}) and D (within a factor {d_factor:g}).")
     if isinstance(uplift, np.ndarray):
         notes.append("Uplift: the raster given" + (" (block-averaged with the DEM)." if factor > 1 else "."))
     else:
-        notes.append("Uplift: " + ("one rate everywhere, the mean of both sides' channel erosion rates at the start."
-                                   if uplift == "uniform" else
-                                   "each side at its own channel erosion rate at the start (fields split by side)."))
+        notes.append("Uplift: " + ("one rate everywhere" if uplift == "uniform" else
+                                   "one rate per side (fields split by side)")
+                     + ", set so that the present surface is the model's steady state, K A^m S^n − D ∇²z = U "
+                     "(least squares over both sides' cells).")
+    if d_fitted:
+        notes.append(f"Hillslope diffusivity D = {_sig(central.diffusivity)} m²/yr (central run), fitted with the "
+                     "uplift from the same steady balance (hilltop curvature against channel erosion); give "
+                     "`diffusivity` (--diffusivity) if it is known.")
     if any(r.captured for r in runs):
         notes.append("In at least one run a side's outlet came to drain through the other side (a capture): "
                      "displacements after that are those of the remaining cells.")

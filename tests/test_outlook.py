@@ -309,7 +309,8 @@ def test_disagreement_with_the_assessment_is_stated(plane_forecast):
 def test_ensemble_spans_k_theta_n_and_d(transient_ridge):
     # Issue: the ensemble spans K, θ, n and D; a Latin hypercube puts one member in each of the
     # n_runs - 1 equal slices of every interval (McKay, Beckman & Conover 1979).
-    fc = forecast(transient_ridge, "west", "east", years=2e4, erosion_rate_a_mm_yr=0.1, n_runs=5, **EDGES)
+    fc = forecast(transient_ridge, "west", "east", years=2e4, erosion_rate_a_mm_yr=0.1, n_runs=5, diffusivity=1e-3,
+                  **EDGES)
     n0, d0 = fc.central.n, fc.central.diffusivity
     ns = np.array([r.n for r in fc.members])
     ds = np.array([r.diffusivity for r in fc.members])

@@ -35,7 +35,8 @@ _DECIMALS = 7  # 1e-7 degree is about 1 cm on the ground
 _RATE_HELP = "Measured erosion rate of side {} (mm/yr), to calibrate K."
 _K_HELP = "Erodibility K of E = K ksn^n (SI units), if known."
 _THETA_HELP = "Concavity m/n (default 0.45; 'auto' estimates it)."
-_D_HELP = "Hillslope diffusivity (m²/yr; default 0.001)."
+_D_HELP = ("Hillslope diffusivity (m²/yr; default: fitted with the uplift so that the present DEM is the "
+           "model's steady state).")
 
 
 def _option(name: str, metavar: str, text: str, *, show_default: bool = False, **kwargs: Any) -> Any:
@@ -137,7 +138,6 @@ def forecast(
     import divides
     from divides.cli.dem_checks import check_enough_cells, check_side_points
     from divides.terrain.sides import parse_side
-    from divides.outlook import DEFAULT_DIFFUSIVITY
     from divides.outlook import forecast as run_forecast
     from divides.report.provenance import provenance, public_summary
     from divides.io.memory import MemoryNeed
@@ -156,7 +156,7 @@ def forecast(
             progress.stage(f"forecasting {years_f:,.0f} years ({runs} model run(s))")
             progress.announce_cold_kernels()
             result = run_forecast(surface, side_a, side_b, years=years_f, n_runs=runs, seed=seed, uplift=pattern,
-                                  diffusivity=DEFAULT_DIFFUSIVITY if diffusivity_f is None else diffusivity_f,
+                                  diffusivity=diffusivity_f,
                                   lonlat=lonlat, **options)
         progress.stage(f"writing the outputs to {target}")
         prov = provenance(surface.path, command=opt.current_command())

@@ -36,6 +36,7 @@ __all__ = [
     "MIN_STEPS",
     "ForecastRun",
     "RunSetup",
+    "SteadyBalance",
     "balance_uplift",
     "channel_cells",
     "time_steps",
@@ -44,9 +45,11 @@ __all__ = [
     "ForwardShift",
     "SideGround",
     "forward_shift",
+    "laplacian",
     "prepare",
     "run_model",
     "slopes",
+    "steady_balance",
 ]
 
 #: Larger DEMs are block-averaged to at most this many cells along each side.
@@ -194,15 +197,27 @@ def block_mean(z: np.ndarray, f: int) -> np.ndarray:
     return out
 
 
-def _upstream(flow: FlowGraph, seeds: np.ndarray) -> np.ndarray:
-    """Cells draining through any seed (each seed's upstream cells are a run of the order)."""
-    mask = np.zeros(flow.receivers.size, dtype=bool)
-    pos, count = flow.order_position, flow.upstream_count
-    for s in np.unique(seeds):
-        p = int(pos[s])
-        if p >= 0:
-            mask[flow.order[p: p + int(count[s])]] = True
-    return mask.reshape(flow.shape)
+def _side_masks(flow: FlowGraph, start_a: np.ndarray, start_b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each side now: the basins (by outlet) whose outlet was that side's at the start, and those whose
+    outlet was neither side's but most of whose cells came from the two sides, to the one that gave more.
+
+    A channel's mouth on a held edge can shift along the edge as the surface evolves, onto a cell that
+    was a basin of its own at the start: the side must follow it rather than collapse onto the old
+    mouth cell (seeds alone would keep only what still drains through that cell).
+    """
+    labels = flow.basins().ravel()
+    size = int(labels.max()) + 1
+    count = np.bincount(labels, minlength=size).astype(np.float64)
+    from_a = np.bincount(labels, weights=start_a.ravel().astype(np.float64), minlength=size)
+    from_b = np.bincount(labels, weights=start_b.ravel().astype(np.float64), minlength=size)
+    outlet = np.zeros(size, dtype=np.int64)
+    outlet[labels[flow.outlets]] = flow.outlets
+    mouth_a, mouth_b = start_a.ravel()[outlet], start_b.ravel()[outlet]
+    mostly_sides = 2.0 * (from_a + from_b) > count
+    is_a = mouth_a | (~mouth_b & mostly_sides & (from_a > from_b))
+    is_b = mouth_b | (~mouth_a & mostly_sides & (from_b > from_a))
+    is_a[0] = is_b[0] = False  # label 0: invalid cells belong to no side
+    return is_a[labels].reshape(flow.shape), is_b[labels].reshape(flow.shape)
 
 
 def _model_specs(sides: Sides, factor: int, grid: Dem) -> tuple[SideSpec, SideSpec, float]:
@@ -307,14 +322,143 @@ def time_steps(grid: Dem, years: float, *, k: float, m: float, n: float, a_ref: 
     return cell, celerity, n_steps, years / n_steps
 
 
+def laplacian(grid: Dem) -> np.ndarray:
+    """∇²z (1/m) of the surface on the 5-point stencil, per-row cell sizes; NaN on the grid's edge and next to
+    invalid cells (the stencil of the model's diffusion, :func:`divides.model.diffusion.diffusion_step`).
+
+    Examples
+    --------
+    >>> x = np.arange(5.0) * 10.0
+    >>> z = -0.01 * (x[None, :] - 20.0) ** 2 + np.zeros((5, 1))  # a parabolic ridge: ∇²z = -0.02 / m
+    >>> round(float(laplacian(Dem.from_array(z, cell_size=10.0))[2, 2]), 6)
+    -0.02
+    """
+    z = np.where(grid.valid, grid.elevation, np.nan).astype(np.float64)
+    dx, dy = np.asarray(grid.dx, dtype=np.float64), np.asarray(grid.dy, dtype=np.float64)
+    out = np.full(z.shape, np.nan)
+    c = z[1:-1, 1:-1]
+    out[1:-1, 1:-1] = ((z[1:-1, 2:] + z[1:-1, :-2] - 2.0 * c) / dx[1:-1, None] ** 2
+                       + (z[2:, 1:-1] + z[:-2, 1:-1] - 2.0 * c) / dy[1:-1, None] ** 2)
+    return out
+
+
+@dataclass(frozen=True)
+class SteadyBalance:
+    """Uplift and diffusivity that hold the present surface in the model's steady state.
+
+    Attributes
+    ----------
+    uplift : (float, float)
+        U (m/yr) of side a and side b (equal unless balanced per side).
+    diffusivity : float
+        D (m²/yr): the one given, or the least-squares one (``fitted``).
+    fitted : bool
+        D was fitted from the surface.
+    cells : int
+        Cells of both sides the balance was taken over.
+    """
+
+    uplift: tuple[float, float]
+    diffusivity: float
+    fitted: bool
+    cells: int
+
+
+#: Fewest cells a steady balance is fitted over (below: D = 0 and U the mean fluvial erosion).
+_MIN_BALANCE_CELLS = 20
+
+
+def steady_balance(setup: RunSetup, k_field: np.ndarray | float, m: float, n: float, *,
+                   diffusivity: float | None = None, by_side: bool = False,
+                   uplift: np.ndarray | None = None) -> SteadyBalance:
+    """Uplift U and diffusivity D for which the present surface is a steady state of the model.
+
+    At steady state every cell of the stream-power and linear-diffusion model obeys
+    U = K A^m S^n − D ∇²z (Perron, Kirchner & Dietrich 2009, Nature 460; the hillslope half is the
+    hilltop balance E = −D ∇²z of Roering et al. 2007, EPSL 264). Over the cells of both sides (with
+    a slope to their receiver and a full stencil) the fluvial term K A^m S^n is regressed on ∇²z by
+    least squares: the intercept is U (one for the whole landscape, or one per side with
+    ``by_side``), the slope D. Both scale with K, so the run's time still scales as 1/K.
+
+    Parameters
+    ----------
+    setup : RunSetup
+    k_field : float or ndarray
+        Erodibility K (a number or a field of the model grid's shape).
+    m, n : float
+        Exponents of E = K A^m S^n.
+    diffusivity : float, optional
+        D given (m²/yr): only U is fitted. Default: D fitted too (clipped at 0, U then refitted).
+    by_side : bool
+        One U per side (a shared D).
+    uplift : ndarray, optional
+        An uplift raster given (m/yr): only D is fitted (if not given), and U of each side is the
+        median of the raster over it.
+
+    Returns
+    -------
+    SteadyBalance
+        U below 0 is returned as 0 (a surface lowering everywhere has no uplift to balance it).
+    """
+    area = np.asarray(setup.flow.area, dtype=np.float64).ravel()
+    slope = slopes(setup.flow)
+    k_flat = np.broadcast_to(np.asarray(k_field, dtype=np.float64), setup.grid.shape).ravel()
+    lap = laplacian(setup.grid).ravel()
+    code = np.where(setup.mask_a.ravel(), 0, np.where(setup.mask_b.ravel(), 1, -1))
+    sel = (code >= 0) & (slope > 0) & np.isfinite(lap)
+    fluvial = k_flat[sel] * area[sel] ** m * slope[sel] ** n
+    curv, side = lap[sel], code[sel]
+    if uplift is not None:
+        u_cells = np.asarray(uplift, dtype=np.float64).ravel()[sel]
+        u_sides = tuple(float(np.median(uplift[mask])) for mask in (setup.mask_a, setup.mask_b))
+        d = diffusivity
+        if d is None:  # through the origin: K A^m S^n − U = D ∇²z
+            denom = float(np.sum(curv * curv))
+            d = max(float(np.sum(curv * (fluvial - u_cells))) / denom, 0.0) if denom > 0 and sel.sum() >= \
+                _MIN_BALANCE_CELLS else 0.0
+        return SteadyBalance(u_sides, float(d), diffusivity is None, int(sel.sum()))
+    groups = (side == 0, side == 1) if by_side else (np.ones(side.size, dtype=bool),)
+    design = np.column_stack([g.astype(np.float64) for g in groups])
+    fitted = diffusivity is None
+    d = 0.0 if diffusivity is None else float(diffusivity)
+    if fitted and sel.sum() >= _MIN_BALANCE_CELLS and all(g.any() for g in groups):
+        coef, *_ = np.linalg.lstsq(np.column_stack([design, curv]), fluvial, rcond=None)
+        d = max(float(coef[-1]), 0.0)
+    target = fluvial - d * curv
+    u = [float(np.mean(target[g])) if g.any() else float(np.mean(target)) if target.size else 0.0 for g in groups]
+    u_a, u_b = (u[0], u[1]) if by_side else (u[0], u[0])
+    return SteadyBalance((max(u_a, 0.0), max(u_b, 0.0)), d, fitted, int(sel.sum()))
+
+
 def run_model(setup: RunSetup, *, label: str, theta: float, n: float, k: tuple[float, float], years: float,
-         uplift_mode: str | np.ndarray, diffusivity: float, max_steps: int) -> ForecastRun:
+              uplift_mode: str | np.ndarray, diffusivity: float | None, max_steps: int, balance: str = "channels",
+              diffusivity_factor: float = 1.0) -> ForecastRun:
+    """One run from the model grid's surface, with the divide between the sides tracked.
+
+    ``balance="channels"``: uplift balances the median channel erosion of the sides
+    (:func:`balance_uplift`) and ``diffusivity`` is used as given. ``balance="steady"``: uplift
+    (and D when ``diffusivity`` is None) hold the present surface in the model's steady state
+    (:func:`steady_balance`); a fitted D is multiplied by ``diffusivity_factor`` and U refitted at it.
+    """
+    if balance not in ("channels", "steady"):
+        raise ParameterError(f"`balance` must be 'channels' or 'steady'; got {balance!r}")
+    if diffusivity is None and balance != "steady":
+        raise ParameterError("a diffusivity fitted from the surface needs balance='steady'")
     m = theta * n
     k_field: Any = k[0] if k[0] == k[1] else np.where(setup.region_a, k[0], k[1])
     u_a, u_b, s_ref, a_ref = balance_uplift(setup, np.asarray(k_field, dtype=np.float64), m, n)
-    if isinstance(uplift_mode, np.ndarray):  # a raster given: used as is
-        u_field: Any = uplift_mode
-        u_a, u_b = (float(np.median(uplift_mode[mask])) for mask in (setup.mask_a, setup.mask_b))
+    raster = uplift_mode if isinstance(uplift_mode, np.ndarray) else None
+    if balance == "steady":
+        kw = dict(by_side=uplift_mode == "sides" if raster is None else False, uplift=raster)
+        fit = steady_balance(setup, k_field, m, n, diffusivity=diffusivity, **kw)
+        diffusivity = fit.diffusivity
+        if fit.fitted and diffusivity_factor != 1.0:
+            diffusivity *= float(diffusivity_factor)
+            fit = steady_balance(setup, k_field, m, n, diffusivity=diffusivity, **kw)
+        u_a, u_b = fit.uplift
+    if raster is not None:  # a raster given: used as is
+        u_field: Any = raster
+        u_a, u_b = (float(np.median(raster[mask])) for mask in (setup.mask_a, setup.mask_b))
     elif uplift_mode == "uniform":
         u_a = u_b = 0.5 * (u_a + u_b)
         u_field = u_a
@@ -331,11 +475,12 @@ def run_model(setup: RunSetup, *, label: str, theta: float, n: float, k: tuple[f
     mask_a, mask_b = setup.mask_a, setup.mask_b
     for i, snap in enumerate(result.snapshots):
         flow = setup.flow if i == 0 else route(snap, closed_edges=setup.closed)
-        mask_a, mask_b = _upstream(flow, setup.seeds_a), _upstream(flow, setup.seeds_b)
-        both = mask_a & mask_b
-        if both.any():  # one side's outlet now drains through the other: a capture
-            captured = True
-            mask_a, mask_b = mask_a & ~both, mask_b & ~both
+        if i == 0:
+            mask_a, mask_b = setup.mask_a, setup.mask_b
+        else:
+            mask_a, mask_b = _side_masks(flow, setup.mask_a, setup.mask_b)
+        # one side's outlet now drains through the other: a capture
+        captured = captured or bool(mask_b.ravel()[setup.seeds_a].any() or mask_a.ravel()[setup.seeds_b].any())
         disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present))
         areas.append(float(np.sum(cell_area[mask_a])))
     try:

@@ -120,7 +120,7 @@ def test_without_out_it_writes_the_default_folder(run, ridge_tif, tmp_path, monk
     # --uplift: the older name of --uplift-pattern, still accepted
     code, stdout, stderr = run(ridge_tif, *BASE, "--erosion-rate-b", "0.1", "--uplift", "sides")
     assert code == 0, stderr
-    assert "Uplift: each side" in stdout and CAUTION in stdout
+    assert "Uplift: one rate per side" in stdout and CAUTION in stdout
     stem = Path(ridge_tif).stem
     assert [p.name for p in work.iterdir()] == [f"divides-{stem}-forecast"]  # ./divides-<DEM>-<command>
     head = json.loads((work / f"divides-{stem}-forecast" / "summary.json").read_text(encoding="utf-8"))

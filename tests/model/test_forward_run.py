@@ -112,3 +112,92 @@ def test_a_side_s_power_at_other_exponents_is_the_mean_over_gilbert_s_planes():
     assert run.years_unit_k == pytest.approx(0.3 * 200.0 / hand_u[0], rel=1e-9)
     # the reference channel: the threshold 3e4 m² at the median channel slope (102 of 150 channels at 0.1)
     assert run.reference == pytest.approx((3e4, 0.1))
+
+
+# ---------------------------------------------------------------- steady balance (uplift and diffusivity)
+_U, _K, _D, _M = 2e-4, 2e-5, 0.02, 0.5
+
+
+@pytest.fixture(scope="module")
+def lopsided_steady():
+    """A ridge grown to steady state under uniform U, K and D, its east base level held 30 m above the
+    west one, so the steady divide sits off centre (a lopsided steady divide; Whipple et al. 2017)."""
+    from divides.model.scenarios import ridge_surface
+    from divides.model.simulate import simulate
+
+    start = ridge_surface((24, 40), crest=0.5, noise=1.0, seed=3)
+    edges = {"north": "closed", "south": "closed", "west": 0.0, "east": 30.0}
+    return simulate(start, duration=3e6, dt=1e4, uplift=_U, erodibility=_K, m=_M, n=1.0, diffusivity=_D,
+                    edges=edges).final
+
+
+def _setup(dem):
+    from divides.model.forward_run import prepare
+
+    sides = resolve_sides(route(dem, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
+    return prepare(dem, sides, factor=1, closed_edges=CLOSED, channel_area_m2=3e4)
+
+
+def test_steady_balance_recovers_the_uplift_and_diffusivity_a_steady_landscape_was_grown_with(lopsided_steady):
+    # At steady state every cell obeys U = K A^m S^n - D lap(z) (Perron, Kirchner & Dietrich 2009,
+    # Nature 460; the hilltop half is E = -D C_ht of Roering et al. 2007): the least-squares fit over
+    # both sides must give back the U and D the landscape was grown with. Tolerances: the model splits
+    # each 1e4-yr step into incision then diffusion (first-order operator splitting), so its steady
+    # surface satisfies the continuous balance only to O(dt): about 30 % on D here, shrinking with the
+    # step (from memory of splitting error; the fit is exact on a surface that satisfies it).
+    from divides.model.forward_run import steady_balance
+
+    setup = _setup(lopsided_steady)
+    fit = steady_balance(setup, _K, _M, 1.0)
+    assert fit.fitted and fit.uplift[0] == fit.uplift[1]
+    assert fit.uplift[0] == pytest.approx(_U, rel=0.03)
+    assert fit.diffusivity == pytest.approx(_D, rel=0.4)
+    given = steady_balance(setup, _K, _M, 1.0, diffusivity=_D)
+    assert not given.fitted and given.diffusivity == _D and given.uplift[0] == pytest.approx(_U, rel=0.03)
+    # per side: both sides were grown under the same U
+    sides = steady_balance(setup, _K, _M, 1.0, by_side=True)
+    assert sides.uplift == pytest.approx((_U, _U), rel=0.05)
+
+
+def test_a_lopsided_steady_divide_stays_put_under_the_steady_balance(lopsided_steady):
+    # A steady state does not move (by definition; Whipple et al. 2017: lopsided steady divides are
+    # stable although their flanks differ). Run from it with U and D fitted to the steady balance, the
+    # divide stays within half a cell and the surface within 2 % of its relief. With a diffusivity
+    # twenty times too low (the forecast's old default, 1e-3 m²/yr), no uplift balances both the
+    # channels and the crest, and the divide moves by more than half a cell.
+    from divides.model.forward_run import run_model
+
+    setup = _setup(lopsided_steady)
+    relief = float(np.nanmax(lopsided_steady.elevation))
+    common = dict(theta=_M, n=1.0, k=(_K, _K), years=1e6, uplift_mode="uniform", max_steps=400)
+    steady = run_model(setup, label="steady", diffusivity=None, balance="steady", **common)
+    assert abs(steady.displacement_m[-1]) < 50.0  # half a 100-m cell
+    assert np.nanmean(np.abs(steady.final.elevation - lopsided_steady.elevation)) < 0.02 * relief
+    old = run_model(setup, label="old", diffusivity=1e-3, balance="steady", **common)
+    assert abs(old.displacement_m[-1]) > 50.0
+    with pytest.raises(ParameterError, match="balance='steady'"):
+        run_model(setup, label="x", diffusivity=None, **common)
+
+
+def test_a_side_follows_its_channel_when_the_mouth_shifts_along_the_edge():
+    # A side is the basins that were mostly its own at the start, not the cells draining through its
+    # start's outlet: a valley draining to the north edge at column 3 (by construction, one basin of
+    # the whole grid) whose mouth moves to column 6 is still the same side.
+    from divides.model.forward_run import _side_masks
+
+    rows, cols = 8, 10
+    r, c = np.mgrid[0:rows, 0:cols].astype(float)
+
+    def valley(col):
+        return divides.Dem.from_array(1.0 * r + 10.0 * np.abs(c - col), cell_size=100.0)
+
+    start = route(valley(3), closed_edges=("south", "west", "east"))
+    later = route(valley(6), closed_edges=("south", "west", "east"))
+    mouth = np.ravel_multi_index((0, 3), (rows, cols))
+    start_a = start.basins() == start.basins().ravel()[mouth]
+    start_b = np.zeros_like(start_a)
+    assert start_a.sum() > rows * cols // 2
+    now_a, now_b = _side_masks(later, start_a, start_b)
+    assert now_a.sum() >= start_a.sum() - cols and not now_b.any()
+    # through the old mouth cell alone, the side would have collapsed to a sliver
+    assert later.area.ravel()[mouth] < 0.1 * later.area.max()
