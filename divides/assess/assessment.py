@@ -366,17 +366,13 @@ class _NoiseRuns:
     def _run_all(self, theta: float, threshold_m2: float) -> list:
         dem, side_a, side_b, config = self._args
         quick = _quick(config)
-        cell = float(np.max(dem.cell_size_m))
-        dem_error = config.dem_error(cell)
-        spacing = (float(np.median(dem.dy)), float(np.median(dem.dx)))
+        dem_error = config.dem_error(float(np.max(dem.cell_size_m)))
         rng = np.random.default_rng(config.seed + 1)
         out = []
         for _ in range(self.count):
             if self._stop.is_set():
                 break
-            z = dem.elevation + dem_error.sample_grid(dem.shape, spacing, rng, dtype=dem.elevation.dtype)
-            run_dem = dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
-            del z
+            run_dem = _perturbed(dem, dem_error, rng)
             try:
                 run = _core(run_dem, side_a, side_b, quick, lonlat=self._lonlat, theta=theta,
                             channel_area_m2=threshold_m2, weights_fn=self._weights_fn, n_boot_theta=0,
@@ -386,6 +382,13 @@ class _NoiseRuns:
                 out.append(exc)
             run = run_dem = None
         return out
+
+
+def _perturbed(dem: Dem, dem_error: DemError, rng: np.random.Generator) -> Dem:
+    """The DEM plus one draw of its spatially correlated error field (nodata stays nodata)."""
+    spacing = (float(np.median(dem.dy)), float(np.median(dem.dx)))
+    z = dem.elevation + dem_error.sample_grid(dem.shape, spacing, rng, dtype=dem.elevation.dtype)
+    return dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype))
 
 
 def _quick(config: AssessConfig) -> AssessConfig:
@@ -808,13 +811,9 @@ def _forward_error_factors(dem: Dem, core: _Core, config: AssessConfig, run: For
         return None
     own = run.shift_cells / run.years_unit_k
     rng = np.random.default_rng(config.seed + 6)
-    cell = (float(np.median(dem.dy)), float(np.median(dem.dx)))
     # the perturbations drawn in sequence (reproducible), the runs side by side on threads: the model's
     # kernels release the GIL, so the two runs take the time of one when a second core is free
-    noisy = []
-    for _ in range(_FORWARD_ERROR_RUNS):
-        z = dem.elevation + core.dem_error.sample_grid(dem.shape, cell, rng, dtype=dem.elevation.dtype)
-        noisy.append(dataclasses.replace(dem, elevation=np.where(dem.valid, z, np.nan).astype(dem.elevation.dtype)))
+    noisy = [_perturbed(dem, core.dem_error, rng) for _ in range(_FORWARD_ERROR_RUNS)]
 
     def one(grid: Dem) -> float:
         try:
