@@ -472,13 +472,9 @@ def run_model(setup: RunSetup, *, label: str, theta: float, n: float, k: tuple[f
     disp, areas = [], []
     cell_area = setup.grid.cell_area_grid()
     captured = False
-    mask_a, mask_b = setup.mask_a, setup.mask_b
     for i, snap in enumerate(result.snapshots):
-        flow = setup.flow if i == 0 else route(snap, closed_edges=setup.closed)
-        if i == 0:
-            mask_a, mask_b = setup.mask_a, setup.mask_b
-        else:
-            mask_a, mask_b = _side_masks(flow, setup.mask_a, setup.mask_b)
+        mask_a, mask_b = (setup.mask_a, setup.mask_b) if i == 0 else \
+            _side_masks(route(snap, closed_edges=setup.closed), setup.mask_a, setup.mask_b)
         # one side's outlet now drains through the other: a capture
         captured = captured or bool(mask_b.ravel()[setup.seeds_a].any() or mask_a.ravel()[setup.seeds_b].any())
         disp.append(exchange_displacement(cell_area, (setup.mask_a, setup.mask_b), (mask_a, mask_b), setup.present))
