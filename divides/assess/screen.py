@@ -13,7 +13,7 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.verdict import CAUTION, FORWARD_NOISE_CELLS, decide, forward_disagrees
+from divides.assess.verdict import CAUTION, decide, forward_agrees, forward_disagrees
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
@@ -301,20 +301,6 @@ def _assess_pair(task: tuple, st: dict) -> list[dict]:
 def _empty(seg: DivideSegment, why: str) -> dict:
     """A segment that could not be judged: it goes to the gaps layer with ``why``."""
     return {"seg": seg, "gap": why}
-
-
-def forward_agrees(probabilities: dict, shift_cells: float) -> bool:
-    """True when the forward run moves the divide at least :data:`~divides.assess.verdict.FORWARD_NOISE_CELLS`
-    model cells (``shift_cells``, positive into b) toward the side the near-divide decision favours.
-
-    Examples
-    --------
-    >>> p = {"a": 0.2, "b": 0.5, "stable": 0.3}
-    >>> forward_agrees(p, 0.3), forward_agrees(p, -0.3), forward_agrees(p, 0.05)
-    (True, False, False)
-    """
-    toward_b = probabilities.get("b", 0.0) >= probabilities.get("a", 0.0)
-    return math.isfinite(shift_cells) and shift_cells * (1.0 if toward_b else -1.0) >= FORWARD_NOISE_CELLS
 
 
 def instability_of(probabilities: dict | None, kind: str = "main", forward_shift: float | None = None) -> float | None:

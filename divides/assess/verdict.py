@@ -13,8 +13,8 @@ from divides.assess.calibration import CLASSES, DEFAULT_THRESHOLD, DecisionModel
 from divides.assess.contrasts import MIN_SAMPLES, Contrast
 
 __all__ = ["Verdict", "decide", "NEAR_DIVIDE_METRICS", "CAUTION", "INSUFFICIENT_HELP", "MODEL_FILE",
-           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "forward_disagrees", "decision_model",
-           "right_share"]
+           "FORWARD_BASES", "FORWARD_MODEL_FILE", "FORWARD_NOISE_CELLS", "forward_agrees", "forward_disagrees",
+           "decision_model", "right_share"]
 
 #: The fitted decision models shipped with the package (docs/validation.md says how they were made):
 #: near-divide measures only, and near-divide measures with the forward run.
@@ -141,6 +141,16 @@ def right_share(confidence: float, forward: bool = False) -> tuple[float, int] |
     return None
 
 
+def _shift_along(probabilities: dict, shift_cells: float) -> tuple[str | None, float]:
+    """The side the near-divide decision favours (None on a tie: neither) and the forward run's shift
+    toward it in model cells (``shift_cells`` positive into b; NaN when there is no side or no shift)."""
+    pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
+    if pa == pb or not math.isfinite(shift_cells):
+        return None, math.nan
+    call = "b" if pb > pa else "a"
+    return call, shift_cells * (1.0 if call == "b" else -1.0)
+
+
 def forward_disagrees(probabilities: dict, shift_cells: float, min_confidence: float) -> bool:
     """True when the near-divide decision points one way at ``min_confidence`` or more while the forward
     run moves the divide at least :data:`FORWARD_NOISE_CELLS` model cells the other way (``shift_cells``
@@ -153,9 +163,23 @@ def forward_disagrees(probabilities: dict, shift_cells: float, min_confidence: f
     >>> forward_disagrees({"a": 0.1, "b": 0.8, "stable": 0.1}, -0.05, 0.5)
     False
     """
-    call = max(("a", "b"), key=lambda k: probabilities.get(k, 0.0))
-    return (probabilities.get(call, 0.0) >= min_confidence and math.isfinite(shift_cells)
-            and shift_cells * (1 if call == "b" else -1) <= -FORWARD_NOISE_CELLS)
+    call, along = _shift_along(probabilities, shift_cells)
+    return call is not None and probabilities[call] >= min_confidence and along <= -FORWARD_NOISE_CELLS
+
+
+def forward_agrees(probabilities: dict, shift_cells: float) -> bool:
+    """True when the forward run moves the divide at least :data:`FORWARD_NOISE_CELLS` model cells
+    (``shift_cells``, positive into b) toward the side the near-divide decision favours (neither on a tie).
+
+    Examples
+    --------
+    >>> p = {"a": 0.2, "b": 0.5, "stable": 0.3}
+    >>> forward_agrees(p, 0.3), forward_agrees(p, -0.3), forward_agrees(p, 0.05)
+    (True, False, False)
+    >>> forward_agrees({"a": 0.3, "b": 0.3, "stable": 0.4}, 0.3)  # a tie favours no side: mirror images agree
+    False
+    """
+    return _shift_along(probabilities, shift_cells)[1] >= FORWARD_NOISE_CELLS
 
 
 def decide(
