@@ -41,6 +41,24 @@ _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2
             "x_mid", "y_mid")
 
 
+#: Works the screening report cites, in full (author, year, title, where published); every author-year cited
+#: in its methods has its entry here (tests/report/test_screening.py).
+SCREENING_REFERENCES = (
+    "Forte, A. M., Whipple, K. X. (2018). Criteria and tools for determining drainage divide stability. "
+    "Earth and Planetary Science Letters 493, 102–117.",
+    "Gilbert, G. K. (1877). Report on the Geology of the Henry Mountains. U.S. Geographical and Geological "
+    "Survey of the Rocky Mountain Region, Washington.",
+    "Platt, J. C. (1999). Probabilistic outputs for support vector machines and comparisons to regularized "
+    "likelihood methods. In Advances in Large Margin Classifiers, MIT Press, 61–74.",
+    "Royden, L., Perron, J. T. (2013). Solutions of the stream power equation and application to the evolution "
+    "of river longitudinal profiles. Journal of Geophysical Research: Earth Surface 118, 497–518.",
+    "Scherler, D., Schwanghart, W. (2020). Drainage divide networks – Part 2: Response to perturbations. "
+    "Earth Surface Dynamics 8, 261–274.",
+    "Willett, S. D., McCoy, S. W., Perron, J. T., Goren, L., Chen, C.-Y. (2014). Dynamic reorganization of "
+    "river basins. Science 343, 1248765.",
+)
+
+
 #: The divide column of the report's table (``divide_kind`` of segments.csv).
 _KIND_WORDS = {"main": "main (basins drain apart)", "lateral": "lateral (basins drain the same way)"}
 
@@ -281,7 +299,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "cell) points the way the near-divide measures do, and a confident direction the run moves the "
            "other way is left undetermined (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
            else "") +
-        "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>")
+        "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
+        "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")
     body = "".join([
         "<h1>Regional divide screening</h1>",
         f"<p class=\"sub\">DEM {e(document['dem']['path'] or '(in memory)')} · "
