@@ -165,15 +165,19 @@ def regional_map(result: Screening):
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
     left, right, bottom, top = _display_extent(dem, frame, 1)
+    leaders = False
     for lab, row, col in _centroids(result.labels):  # basin labels at their centroids, clear of the furniture
         x, y = (float(v) * frame.scale for v in dem.xy(row, col))
         if _under_furniture((x - left) / (right - left), (y - bottom) / (top - bottom)):
             x, y, leader = _clear_spot(result.labels, lab, row, col, dem, frame, (left, right, bottom, top))
             if leader is not None:  # the whole basin is under the furniture: label beside it, a line to it
                 ax.plot([x, leader[0]], [y, leader[1]], color="#0072B2", lw=0.6, zorder=5)
+                leaders = True
         ax.text(x, y, f"B{lab}", fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
     handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
+    if leaders:  # a mark on the map has its line in the legend
+        handles.append(Line2D([], [], color="#0072B2", lw=0.6, label="leader from a basin label to its basin"))
     # below the map, so no mark is hidden under it
     ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7, frameon=False)
     ax.set_xlim(left, right)

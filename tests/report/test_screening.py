@@ -143,3 +143,23 @@ def test_every_work_the_methods_cite_is_listed_in_full(screening, forward_run):
     for author, year in cited:
         assert any(entry.startswith(author + ",") and f"({year})" in entry for entry in listed), (author, year)
     assert ("Gilbert" in methods) == forward_run
+
+
+def test_leader_lines_have_a_legend_entry(screening, monkeypatch):
+    # Issue 14 item 5: a legend for every mark. When a whole basin lies under the map furniture its label goes
+    # beside it with a leader line; with the furniture made to cover the whole map every label needs one, and
+    # the legend (read from matplotlib's own legend handles) must then name that line. (On the demo one basin
+    # is wholly under the furniture: its leader was drawn without a legend entry before.)
+    import divides.report.screening as rs
+
+    monkeypatch.setattr(rs, "_FURNITURE", ((0.0, 0.0, 1.0, 1.0),))
+    ax = rs.regional_map(screening).axes[0]
+    leaders = [ln for ln in ax.get_lines() if ln.get_color() == "#0072B2"]
+    assert len(leaders) == len(np.unique(screening.labels[screening.labels > 0]))
+    legend = {t.get_text(): h for t, h in zip(ax.get_legend().get_texts(), ax.get_legend().legend_handles)}
+    assert any("leader" in text and h.get_color() == "#0072B2" and h.get_marker() in ("None", "", None)
+               for text, h in legend.items())
+    monkeypatch.undo()
+    ax = rs.regional_map(screening).axes[0]  # the demo as it is: a leader in the legend exactly when one is drawn
+    drawn = bool([ln for ln in ax.get_lines() if ln.get_color() == "#0072B2"])
+    assert drawn == any("leader" in t.get_text() for t in ax.get_legend().get_texts())
