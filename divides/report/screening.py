@@ -41,6 +41,22 @@ _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2
             "x_mid", "y_mid")
 
 
+#: Works the screening report cites, in full (author, year, title, where published); every author-year cited
+#: in its methods has its entry here (tests/report/test_screening.py). Those the assessment report lists too
+#: are taken from its list.
+SCREENING_REFERENCES = tuple(sorted(
+    [r for r in _html.REFERENCES if r.startswith(("Forte, A. M., Whipple, K. X.", "Willett, S. D."))] + [
+        "Gilbert, G. K. (1877). Report on the Geology of the Henry Mountains. U.S. Geographical and Geological "
+        "Survey of the Rocky Mountain Region, Washington.",
+        "Platt, J. C. (1999). Probabilistic outputs for support vector machines and comparisons to regularized "
+        "likelihood methods. In Advances in Large Margin Classifiers, MIT Press, 61–74.",
+        "Royden, L., Perron, J. T. (2013). Solutions of the stream power equation and application to the "
+        "evolution of river longitudinal profiles. Journal of Geophysical Research: Earth Surface 118, 497–518.",
+        "Scherler, D., Schwanghart, W. (2020). Drainage divide networks – Part 2: Response to perturbations. "
+        "Earth Surface Dynamics 8, 261–274.",
+    ]))
+
+
 #: The divide column of the report's table (``divide_kind`` of segments.csv).
 _KIND_WORDS = {"main": "main (basins drain apart)", "lateral": "lateral (basins drain the same way)"}
 
@@ -147,15 +163,19 @@ def regional_map(result: Screening):
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
     left, right, bottom, top = _display_extent(dem, frame, 1)
+    leaders = False
     for lab, row, col in _centroids(result.labels):  # basin labels at their centroids, clear of the furniture
         x, y = (float(v) * frame.scale for v in dem.xy(row, col))
         if _under_furniture((x - left) / (right - left), (y - bottom) / (top - bottom)):
             x, y, leader = _clear_spot(result.labels, lab, row, col, dem, frame, (left, right, bottom, top))
             if leader is not None:  # the whole basin is under the furniture: label beside it, a line to it
                 ax.plot([x, leader[0]], [y, leader[1]], color="#0072B2", lw=0.6, zorder=5)
+                leaders = True
         ax.text(x, y, f"B{lab}", fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
     handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
+    if leaders:  # a mark on the map has its line in the legend
+        handles.append(Line2D([], [], color="#0072B2", lw=0.6, label="leader from a basin label to its basin"))
     # below the map, so no mark is hidden under it
     ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7, frameon=False)
     ax.set_xlim(left, right)
@@ -281,7 +301,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "cell) points the way the near-divide measures do, and a confident direction the run moves the "
            "other way is left undetermined (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
            else "") +
-        "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>")
+        "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
+        "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")
     body = "".join([
         "<h1>Regional divide screening</h1>",
         f"<p class=\"sub\">DEM {e(document['dem']['path'] or '(in memory)')} · "

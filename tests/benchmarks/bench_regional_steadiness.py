@@ -1,0 +1,255 @@
+"""Evidence that might tell still stretches of steady landscapes from moving ones (run by hand, not a test).
+
+    python tests/benchmarks/bench_regional_steadiness.py [--n 24] [--seed 0] [--per-basin]
+
+Measures, on the TRAINING regional cases only (docs/validation.md, *Regional screening*, *Evidence
+tried against the alarms of steady landscapes*), three lines of evidence beside the screening's calibrated
+probability of motion, none shipped:
+
+1. hilltop curvature: the median ∇²z of the hillslope cells (drainage area at most ``HILL_CELLS`` cells)
+   within ``RADIUS_CELLS`` cells of a segment on each side; at steady state E = −D ∇²z (Roering, Perron &
+   Kirchner 2007), so the more convex side erodes faster. Feature: the relative contrast
+   (∇²z_b − ∇²z_a) / (|∇²z_a| + |∇²z_b|), signed toward the side the decision favours;
+2. a forward run of the whole DEM under the steady balance: K = 1, D and one U (``--per-basin``: one U
+   per outlet basin of the model grid) fitted so that the present surface is the model's steady state,
+   U = K A^m S^n − D ∇²z (Perron, Kirchner & Dietrich 2009; as `divides forecast`'s balance), for
+   0.3 response times; feature: the shift agrees with the favoured side (as screen's ``forward_agrees``);
+3. per outlet basin, the linearity (R²) of channel elevation against χ (Perron & Royden 2013), a steadiness
+   test (printed per case).
+
+For each feature set it fits instability = 1 / (1 + exp(−(α + β logit p + γ·features))) per kind of
+divide, prints the leave-one-case-out log loss and AUC, and the issue's targets with the in-sample fit.
+The adoption rule was written before any of it was measured (docs/validation.md).
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import math
+
+import numpy as np
+from bench_regional import screen_case
+from scipy import ndimage
+from scipy.optimize import minimize
+
+from divides.assess.screen import _outlet_basins, forward_agrees
+from divides.model.benchmark import split_of
+from divides.model.forward_run import (
+    FORWARD_HORIZON_TAU,
+    channel_cells,
+    coarsen,
+    laplacian,
+    slopes,
+    time_steps,
+)
+from divides.model.landscape_shift import LandscapeShift
+from divides.model.outlet_exchange import match_labels, outlet_basins
+from divides.model.regional_benchmark import (
+    case_seed,
+    lateral_truth,
+    load_or_build,
+    score,
+)
+from divides.model.simulate import simulate
+from divides.profiles.chi import integrate_chi
+from divides.terrain.basins import basin_labels
+from divides.terrain.routing import route
+
+#: Cells within this distance of a segment count for its hilltop curvature (set before any result).
+RADIUS_CELLS = 3
+#: Hillslope cells: drainage area at most this many cells (set before any result).
+HILL_CELLS = 3.0
+
+
+def hilltop_contrast(line, labels, label_a, label_b, lap, area_cells) -> float:
+    """(∇²z_b − ∇²z_a) / (|∇²z_a| + |∇²z_b|) of the medians over each side's hillslope cells near the line
+    (0 when a side has fewer than three); positive: side a is more convex, erodes faster, the divide moves
+    toward b."""
+    rows, cols = labels.shape
+    r, c = np.asarray(line.row, dtype=float), np.asarray(line.col, dtype=float)
+    pad = RADIUS_CELLS + 2
+    r0, c0 = max(0, int(np.floor(r.min())) - pad), max(0, int(np.floor(c.min())) - pad)
+    r1, c1 = min(rows, int(np.ceil(r.max())) + pad + 1), min(cols, int(np.ceil(c.max())) + pad + 1)
+    t = np.linspace(0.0, 1.0, 4)[:, None]  # the line densified (its vertices lie between cells)
+    rr = (r[:-1] + (r[1:] - r[:-1]) * t).ravel() if r.size > 1 else r
+    cc = (c[:-1] + (c[1:] - c[:-1]) * t).ravel() if c.size > 1 else c
+    free = np.ones((r1 - r0, c1 - c0), dtype=bool)
+    free[np.clip(np.rint(rr).astype(int) - r0, 0, r1 - r0 - 1), np.clip(np.rint(cc).astype(int) - c0, 0, c1 - c0 - 1)] = False
+    near = (ndimage.distance_transform_edt(free) <= RADIUS_CELLS) & (area_cells[r0:r1, c0:c1] <= HILL_CELLS)
+    box_lab, box_lap = labels[r0:r1, c0:c1], lap[r0:r1, c0:c1]
+    med = []
+    for label in (label_a, label_b):
+        v = box_lap[near & (box_lab == label)]
+        v = v[np.isfinite(v)]
+        if v.size < 3:
+            return 0.0
+        med.append(float(np.median(v)))
+    scale = abs(med[0]) + abs(med[1])
+    return (med[1] - med[0]) / scale if scale > 0 else 0.0
+
+
+def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: float, per_basin: bool) -> LandscapeShift:
+    """Screen's landscape run (K = 1, 0.3 response times) with U and D of the steady balance instead of one
+    channel-balancing U and no diffusion."""
+    grid, factor = coarsen(dem)
+    closed = tuple(closed_edges)
+    flow = route(grid, closed_edges=closed)
+    before, _ = outlet_basins(flow, min_cells=1)
+    m = theta * n
+    a_ref = max(float(channel_area_m2), 2.0 * float(np.max(grid.cell_area)))
+    cells = channel_cells(flow, grid.valid, a_ref)
+    z = np.where(grid.valid, grid.elevation, np.nan)
+    relief = float(np.nanmax(z) - np.nanmin(z))
+    sl = slopes(flow)
+    fluvial = np.asarray(flow.area, dtype=float).ravel() ** m * sl ** n
+    lap = laplacian(grid).ravel()
+    lab = before.ravel().astype(np.int64)
+    groups = lab if per_basin else (lab > 0).astype(np.int64)
+    sel = (lab > 0) & (sl > 0) & np.isfinite(lap)
+    size = int(groups.max()) + 1
+    small = np.bincount(groups[sel], minlength=size) < 20
+    groups = np.where(small[groups], 0, groups)  # basins of under 20 cells share one U
+    g, f, cv = groups[sel], fluvial[sel], lap[sel]
+    count = np.maximum(np.bincount(g, minlength=size), 1).astype(float)
+    f_mean, c_mean = np.bincount(g, f, minlength=size) / count, np.bincount(g, cv, minlength=size) / count
+    dc = cv - c_mean[g]
+    d = max(float(np.sum(dc * (f - f_mean[g])) / np.sum(dc * dc)), 0.0)  # within-group least squares: shared D
+    u_field = np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(grid.shape)
+    u_ref = float(np.median(u_field[before > 0]))
+    if not (relief > 0 and u_ref > 0):
+        return LandscapeShift(grid, factor, before, before, np.arange(int(before.max()) + 1), math.inf, 0)
+    years = FORWARD_HORIZON_TAU * relief / u_ref
+    *_, dt = time_steps(grid, years, k=1.0, m=m, n=n, a_ref=a_ref, s_ref=float(np.median(sl[cells])),
+                        max_steps=60)
+    result = simulate(grid, duration=years, dt=dt, uplift=u_field, erodibility=1.0, m=m, n=n, diffusivity=d,
+                      edges={e: "closed" for e in closed})
+    after, _ = outlet_basins(route(result.final, closed_edges=closed), min_cells=1)
+    return LandscapeShift(grid, factor, before, after, match_labels(before, after, int(before.max())), years,
+                          int(result.n_steps))
+
+
+def chi_linearity(screening, theta: float) -> list[float]:
+    """R² of channel elevation against χ (from each network's mouth) per outlet basin with >= 10 channel cells."""
+    ch = screening.channels
+    chi = integrate_chi(ch.down, ch.step, ch.area, theta=theta, a0=1.0)
+    outlet = basin_labels(screening.flow, min_area_m2=screening.parameters["min_basin_area_m2"],
+                          level="outlets").ravel()[ch.cells]
+    out = []
+    for b in np.unique(outlet[outlet > 0]):
+        x, y = chi[outlet == b], ch.elevation[outlet == b]
+        if x.size >= 10 and np.var(y) > 0:
+            res = y - np.polyval(np.polyfit(x, y, 1), x)
+            out.append(1.0 - float(np.var(res) / np.var(y)))
+    return out
+
+
+def _logit(p):
+    p = np.clip(np.asarray(p, dtype=float), 1e-4, 1 - 1e-4)
+    return np.log(p / (1 - p))
+
+
+def _fit(x, y):
+    x = np.column_stack([np.ones(len(y)), x])
+    w0 = np.zeros(x.shape[1])
+    w0[1] = 1.0
+    return minimize(lambda w: float(np.sum(np.logaddexp(0, x @ w) - y * (x @ w))), w0, method="BFGS").x
+
+
+def _prob(w, x):
+    return 1.0 / (1.0 + np.exp(-(np.column_stack([np.ones(x.shape[0]), x]) @ w)))
+
+
+def _auc(x, y):
+    pos, neg = x[y == 1], x[y == 0]
+    return float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--n", type=int, default=24)
+    parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--per-basin", action="store_true", help="the steady run with one U per outlet basin")
+    args = parser.parse_args()
+    cases = []
+    for i in range(args.n):
+        if split_of(case_seed(args.seed, i)) != "training":
+            continue  # held-out cases are never read here
+        case = load_or_build(args.seed, i)
+        scr = screen_case(case)
+        lateral = lateral_truth(case)
+        truth = score(case, scr, lateral=lateral)
+        labelled = {m["rank"]: m for m in truth["main"] + truth.get("lateral", [])}
+        dem = case.dem()
+        lap = laplacian(dem)
+        area_cells = np.asarray(scr.flow.area, dtype=float).reshape(dem.shape) / case.cell_size ** 2
+        p = scr.parameters
+        run = steady_run(dem, theta=float(p["theta"]), n=float(p["n"]), closed_edges=case.closed_edges,
+                         channel_area_m2=p["channel_area_used_m2"], per_basin=args.per_basin)
+        outlet_of = _outlet_basins(scr.flow, scr.labels, p["min_basin_area_m2"], p["level"])
+        sides = outlet_of[run.on_model_grid(scr.labels)]
+        rows = []
+        for s in scr.segments:
+            a, b = s["basins"]
+            probs = s["probabilities"]
+            favoured = 0.0 if probs is None else float(np.sign(probs.get("b", 0.0) - probs.get("a", 0.0)))
+            shift = run.piece_shift(s["line"], sides, int(outlet_of[a]), int(outlet_of[b]))
+            m = labelled.get(s["rank"])
+            rows.append({"seg": s, "y": None if m is None or not (m["in_moving"] or m["in_stable"]) else float(m["in_moving"]),
+                         "curv": favoured * hilltop_contrast(s["line"], scr.labels, a, b, lap, area_cells),
+                         "run": 0.0 if probs is None or not np.isfinite(shift) else float(forward_agrees(probs, shift)),
+                         "shift": shift})
+        r2 = chi_linearity(scr, float(p["theta"]))
+        print(f"{i:>3} {case.family:<28} χ-elevation R² per outlet basin: median {np.median(r2):.4f}, "
+              f"lowest {np.min(r2):.4f}", flush=True)
+        cases.append({"case": case, "screening": scr, "lateral": lateral, "rows": rows})
+    steady = [c for c in cases if c["case"].steady]
+    shifts = [abs(r["shift"]) for c in steady for r in c["rows"] if np.isfinite(r["shift"])]
+    print(f"steady controls: median |shift| of the steady run {np.median(shifts):.2f} model cells")
+    for name, keys in (("none", ()), ("hilltop curvature", ("curv",)), ("steady run", ("run",)),
+                       ("both", ("curv", "run"))):
+        weights, report = {}, []
+        for kind in ("main", "lateral"):
+            data = [(c["case"].index, r) for c in cases for r in c["rows"]
+                    if r["y"] is not None and r["seg"]["probabilities"] is not None and r["seg"]["divide_kind"] == kind]
+            group = np.array([g for g, _ in data])
+            y = np.array([r["y"] for _, r in data])
+            q = [r["seg"]["probabilities"] for _, r in data]
+            x = np.column_stack([_logit([v.get("a", 0) + v.get("b", 0) for v in q])]
+                                + [np.array([r[k] for _, r in data]) for k in keys])
+            pred = np.zeros(y.size)
+            for g in np.unique(group):  # leave one case out
+                pred[group == g] = _prob(_fit(x[group != g], y[group != g]), x[group == g])
+            pc = np.clip(pred, 1e-4, 1 - 1e-4)
+            weights[kind] = _fit(x, y)
+            report.append(f"{kind}: {y.size} segments, leave-one-case-out log loss "
+                          f"{float(np.mean(-(y * np.log(pc) + (1 - y) * np.log(1 - pc)))):.3f}, AUC {_auc(pred, y):.3f}, "
+                          f"coefficients {np.round(weights[kind], 2).tolist()}")
+        top = order = no_alarm = alarms_main = alarms_lateral = n_top = n_order = 0
+        for c in cases:
+            segs = []
+            for r in c["rows"]:
+                s = dict(r["seg"])
+                if s["probabilities"] is not None:
+                    v = s["probabilities"]
+                    x = np.array([[float(_logit(v.get("a", 0) + v.get("b", 0)))] + [r[k] for k in keys]])
+                    s["instability"] = float(_prob(weights[s["divide_kind"]], x)[0])
+                segs.append(s)
+            segs.sort(key=lambda s: (s["instability"] is None, -(s["instability"] or 0.0), -s["length_m"]))
+            segs = [s | {"rank": k} for k, s in enumerate(segs, start=1)]
+            res = score(c["case"], dataclasses.replace(c["screening"], segments=segs), lateral=c["lateral"])
+            n_top += res["top_ok"] is not None
+            top += bool(res["top_ok"])
+            n_order += res["order_ok"] is not None
+            order += bool(res["order_ok"])
+            if c["case"].steady:
+                no_alarm += res["alarm_ok"]
+                alarms_main += res["alarms_by_kind"]["main"]
+                alarms_lateral += res["alarms_by_kind"]["lateral"]
+        print(f"{name}: " + "; ".join(report))
+        print(f"  top {top}/{n_top}, order {order}/{n_order}, steady without alarm {no_alarm}/{len(steady)}, "
+              f"alarms in steady landscapes main / lateral {alarms_main} / {alarms_lateral}")
+
+
+if __name__ == "__main__":
+    main()
