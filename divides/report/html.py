@@ -38,8 +38,8 @@ REFERENCES = (
     "profile analysis. Journal of Geophysical Research: Earth Surface 119, 138–152.",
     "Perron, J. T., Royden, L. (2013). An integral approach to bedrock river profile analysis. "
     "Earth Surface Processes and Landforms 38, 570–576.",
-    "Scherler, D., Schwanghart, W. (2020). Drainage divide networks – Part 2: Asymmetry and divide "
-    "migration. Earth Surface Dynamics 8.",
+    "Scherler, D., Schwanghart, W. (2020). Drainage divide networks – Part 2: Response to perturbations. "
+    "Earth Surface Dynamics 8, 261–274.",
     "Willett, S. D., McCoy, S. W., Perron, J. T., Goren, L., Chen, C.-Y. (2014). Dynamic reorganization "
     "of river basins. Science 343, 1248765.",
 )

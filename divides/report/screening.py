@@ -45,15 +45,13 @@ _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2
 #: in its methods has its entry here (tests/report/test_screening.py). Those the assessment report lists too
 #: are taken from its list.
 SCREENING_REFERENCES = tuple(sorted(
-    [r for r in _html.REFERENCES if r.startswith(("Forte, A. M., Whipple, K. X.", "Willett, S. D."))] + [
+    [r for r in _html.REFERENCES if r.startswith(("Forte, A. M., Whipple, K. X.", "Scherler, D.", "Willett, S. D."))] + [
         "Gilbert, G. K. (1877). Report on the Geology of the Henry Mountains. U.S. Geographical and Geological "
         "Survey of the Rocky Mountain Region, Washington.",
         "Platt, J. C. (1999). Probabilistic outputs for support vector machines and comparisons to regularized "
         "likelihood methods. In Advances in Large Margin Classifiers, MIT Press, 61–74.",
         "Royden, L., Perron, J. T. (2013). Solutions of the stream power equation and application to the "
         "evolution of river longitudinal profiles. Journal of Geophysical Research: Earth Surface 118, 497–518.",
-        "Scherler, D., Schwanghart, W. (2020). Drainage divide networks – Part 2: Response to perturbations. "
-        "Earth Surface Dynamics 8, 261–274.",
     ]))
 
 
