@@ -14,7 +14,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from divides.terrain._fill_kernels import D_COL, D_ROW
+from divides.terrain._fill_kernels import D_COL, D_ROW, grow
 
 OUTLET = 8
 PENDING = 9
@@ -350,6 +350,122 @@ def topological_order(rec, valid, n_valid):
                 stack[top] = donors[j]
                 top += 1
     return order[:k].copy() if k < n_valid else order
+
+
+#: Neighbour codes in increasing flat-index order (NW, N, NE, W, E, SW, S, SE): donors are
+#: met in the order the receiver lists of :func:`topological_order` hold them.
+_ASCENDING = np.array([5, 6, 7, 4, 0, 3, 2, 1], dtype=np.int64)
+
+
+@njit(cache=True, nogil=True)
+def order_from_codes(code, valid, rows, cols, n_valid, like):
+    """:func:`topological_order` read from the D8 codes, with each outlet basin's start.
+
+    A cell's donors are the neighbours whose code points back at it, so no receiver
+    lists are built (three passes and 8-12 bytes per cell fewer); neighbours are
+    scanned in increasing flat index, the order of those lists, so the order is the
+    same cell for cell. Roots are valid cells with code 8 or more, the cells
+    :func:`topological_order` takes as outlets (``rec[i] == i``).
+
+    Returns ``(order, starts)``: ``order`` as :func:`topological_order` (shorter than
+    ``n_valid`` on a cycle), ``starts`` as :func:`basin_starts` (``order.size`` last).
+    ``like`` is an empty array of the index dtype the order takes (int32 or int64).
+    """
+    off = np.empty(8, dtype=np.int64)
+    back = np.empty(8, dtype=np.uint8)
+    for j in range(8):
+        k = _ASCENDING[j]
+        off[j] = D_ROW[k] * cols + D_COL[k]
+        back[j] = (k + 4) % 8  # a neighbour at direction k drains here when its code is k's opposite
+    order = np.empty(n_valid, dtype=like.dtype)
+    stack = np.empty(n_valid, dtype=like.dtype)
+    starts = np.empty(1024, dtype=np.int64)
+    m = 0
+    k = 0
+    for o in range(rows * cols):
+        if not valid[o] or code[o] < 8:
+            continue
+        if m + 1 >= starts.size:
+            starts = grow(starts, m + 2)
+        starts[m] = k
+        m += 1
+        stack[0] = o
+        top = 1
+        while top > 0:
+            top -= 1
+            i = stack[top]
+            order[k] = i
+            k += 1
+            r = i // cols
+            c = i - r * cols
+            if r == 0 or r == rows - 1 or c == 0 or c == cols - 1:
+                for j in range(8):
+                    kk = _ASCENDING[j]
+                    rr = r + D_ROW[kk]
+                    cc = c + D_COL[kk]
+                    if 0 <= rr < rows and 0 <= cc < cols:
+                        nb = i + off[j]
+                        if code[nb] == back[j] and valid[nb]:
+                            stack[top] = nb
+                            top += 1
+            else:
+                for j in range(8):
+                    nb = i + off[j]
+                    if code[nb] == back[j] and valid[nb]:
+                        stack[top] = nb
+                        top += 1
+    starts[m] = k
+    order = order[:k].copy() if k < n_valid else order
+    return order, starts[: m + 1].copy()
+
+
+@njit(cache=True, nogil=True)
+def _spread_basins(starts, threads):
+    """Thread of each basin: largest first, each to the least loaded thread (serial, so no parfors)."""
+    nb = starts.size - 1
+    owner = np.zeros(nb, dtype=np.int64)
+    if threads > 1:
+        size = np.empty(nb, dtype=np.int64)
+        for b in range(nb):
+            size[b] = starts[b] - starts[b + 1]  # negated: argsort gives the largest first
+        load = np.zeros(threads, dtype=np.int64)
+        for b in np.argsort(size, kind="mergesort"):
+            t = 0
+            for u in range(1, threads):
+                if load[u] < load[t]:
+                    t = u
+            owner[b] = t
+            load[t] -= size[b]
+    return owner
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def accumulate_area(order, rec, starts, cols, cell_area, threads, out):
+    """Drainage area: :func:`accumulate_basins` of each cell's row area, basins spread evenly.
+
+    ``cell_area`` holds one area per row (``order`` holds valid cells only, so no
+    grid of areas is needed). Basins go to threads largest first, each to the least
+    loaded thread, so that a few large basins do not leave a thread idle; within a
+    basin the sums are those of the serial sweep, so the result is the same bit for
+    bit on any number of threads. ``threads`` is ``numba.get_num_threads()`` (an
+    argument: calling it in here would keep the kernel out of the cache).
+    """
+    nb = starts.size - 1
+    owner = _spread_basins(starts, threads)
+    for t in prange(threads):
+        for b in range(nb):
+            if owner[b] != t:
+                continue
+            lo = starts[b]
+            hi = starts[b + 1]
+            for j in range(lo, hi):
+                i = order[j]
+                out[i] = cell_area[i // cols]
+            for j in range(hi - 1, lo - 1, -1):
+                i = order[j]
+                r = rec[i]
+                if r != i:
+                    out[r] += out[i]
 
 
 @njit(cache=True, nogil=True)

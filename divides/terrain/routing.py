@@ -327,14 +327,12 @@ def _route_conditioned(dem: Dem, cond: Conditioned) -> FlowGraph:
         if n_stuck:
             raise InternalError(f"{n_stuck} cell(s) on flats found no exit after conditioning")
     n_valid = int(np.count_nonzero(valid))
-    order = _k.topological_order(rec, valid, n_valid)
+    order, starts = _k.order_from_codes(code, valid, rows, cols, n_valid, rec[:0])
     if order.size != n_valid:
         raise InternalError("the receiver graph has a cycle")
     area = np.zeros(n, dtype=np.float64)
-    cell_area = np.repeat(dem.cell_area, cols)
-    cell_area[~valid] = 0.0
-    _k.accumulate_basins(order, rec, _k.basin_starts(order, rec), cell_area, area)
-    del cell_area
+    _k.accumulate_area(order, rec, starts, cols, np.ascontiguousarray(dem.cell_area, dtype=np.float64),
+                       numba.get_num_threads(), area)
     return FlowGraph(
         dem=dem,
         conditioned=cond,
