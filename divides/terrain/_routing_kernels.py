@@ -105,16 +105,34 @@ def _on_edge(i, rows, cols):
     return r == 0 or r == rows - 1 or c == 0 or c == cols - 1
 
 
+#: Seed flags of a pending cell (see :func:`_flat_neighbours`).
+_NEXT_TO_HIGHER = 1
+_NEXT_TO_EXIT = 2
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _spread(nbr, off, i, seen, queue, tail, value):
+    """Enqueue the unseen flat neighbours of ``i`` (bits of ``nbr[i]``), marking them ``value``."""
+    m = nbr[i]
+    for k in range(8):
+        if m & (1 << k):
+            nb = i + off[k]
+            if seen[nb] == 0:
+                seen[nb] = value
+                queue[tail] = nb
+                tail += 1
+    return tail
+
+
 @njit(cache=True, nogil=True)
-def _flats_away(z, rows, cols, off, code, pending, label, mask):
+def _flats_away(off, nbr, flags, pending, label, mask):
     """Label the flats and set ``mask`` to the inverted distance from higher ground (0: none).
 
-    Flats are 8-connected pending cells of equal elevation; the distance is a
-    breadth-first search from the flat's cells next to higher ground, inverted
-    per flat (largest at the higher rim) so that the labels can be dropped.
+    Flats are 8-connected pending cells of equal elevation (the bits of ``nbr``); the
+    distance is a breadth-first search from the flat's cells next to higher ground,
+    inverted per flat (largest at the higher rim) so that the labels can be dropped.
     """
-    n_pending = pending.size
-    queue = np.empty(n_pending, dtype=np.int64)  # each BFS enqueues a cell at most once
+    queue = np.empty(pending.size, dtype=np.int64)  # each BFS enqueues a cell at most once
     n_labels = 0
     for s in pending:
         if label[s] != 0:
@@ -127,51 +145,29 @@ def _flats_away(z, rows, cols, off, code, pending, label, mask):
         while head < tail:
             i = queue[head]
             head += 1
-            edge = _on_edge(i, rows, cols)
-            ri, ci = i // cols, i % cols
-            for k in range(8):
-                if edge and not _inside(ri, ci, k, rows, cols):
-                    continue
-                nb = i + off[k]
-                if code[nb] == PENDING and label[nb] == 0 and z[nb] == z[i]:
-                    label[nb] = n_labels
-                    queue[tail] = nb
-                    tail += 1
+            tail = _spread(nbr, off, i, label, queue, tail, n_labels)
     away_max = np.zeros(n_labels + 1, dtype=np.int32)
     tail = 0
-    for i in pending:
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
-        for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            if z[i + off[k]] > z[i]:
-                mask[i] = 1
-                queue[tail] = i
-                tail += 1
-                break
+    for j in range(pending.size):
+        if flags[j] & _NEXT_TO_HIGHER:
+            i = pending[j]
+            mask[i] = 1
+            queue[tail] = i
+            tail += 1
     head = 0
     while head < tail:
         i = queue[head]
         head += 1
-        if mask[i] > away_max[label[i]]:
-            away_max[label[i]] = mask[i]
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
-        for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if code[nb] == PENDING and mask[nb] == 0 and z[nb] == z[i]:
-                mask[nb] = mask[i] + 1
-                queue[tail] = nb
-                tail += 1
+        d = mask[i]
+        if d > away_max[label[i]]:
+            away_max[label[i]] = d
+        tail = _spread(nbr, off, i, mask, queue, tail, d + 1)
     for i in pending:
         mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
 
 
 @njit(cache=True, nogil=True)
-def _flats_toward(z, rows, cols, off, code, pending, toward):
+def _flats_toward(off, nbr, flags, pending, toward):
     """Breadth-first distance of each pending cell from the flat's exits (0: no exit).
 
     Exits are pending cells beside a draining cell of equal elevation. Pending
@@ -179,32 +175,48 @@ def _flats_toward(z, rows, cols, off, code, pending, toward):
     """
     queue = np.empty(pending.size, dtype=np.int64)
     tail = 0
-    for i in pending:
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
-        for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if code[nb] != PENDING and z[nb] == z[i]:
-                toward[i] = 1
-                queue[tail] = i
-                tail += 1
-                break
+    for j in range(pending.size):
+        if flags[j] & _NEXT_TO_EXIT:
+            i = pending[j]
+            toward[i] = 1
+            queue[tail] = i
+            tail += 1
     head = 0
     while head < tail:
         i = queue[head]
         head += 1
+        tail = _spread(nbr, off, i, toward, queue, tail, toward[i] + 1)
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags):
+    """Per pending cell: its flat neighbours as bits of ``nbr`` and its seed flags (all threads).
+
+    Bit k of ``nbr[i]`` is set when neighbour k is pending at the same elevation (same
+    flat); ``flags`` has :data:`_NEXT_TO_HIGHER` beside higher ground and :data:`_NEXT_TO_EXIT`
+    beside a draining cell of equal elevation. Read once here, the three searches of
+    :func:`resolve_flats` touch neither ``z`` nor ``code``.
+    """
+    for j in prange(pending.size):
+        i = pending[j]
         edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
+        zi = z[i]
+        m = 0
+        f = 0
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
             nb = i + off[k]
-            if code[nb] == PENDING and toward[nb] == 0 and z[nb] == z[i]:
-                toward[nb] = toward[i] + 1
-                queue[tail] = nb
-                tail += 1
+            if z[nb] > zi:
+                f |= _NEXT_TO_HIGHER
+            elif z[nb] == zi:
+                if code[nb] == PENDING:
+                    m |= 1 << k
+                else:
+                    f |= _NEXT_TO_EXIT
+        nbr[i] = m
+        flags[j] = f
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -254,14 +266,18 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     for k in range(8):
         off[k] = D_ROW[k] * cols + D_COL[k]
     pending = pending_cells(code, rows, cols)
+    nbr = np.empty(n, dtype=np.uint8)  # read at pending cells only
+    flags = np.empty(pending.size, dtype=np.uint8)
+    _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags)
     label = np.zeros(n, dtype=np.int32)
     mask = np.zeros(n, dtype=np.int32)
     toward = np.zeros(n, dtype=np.int32)
     for task in prange(2):
         if task == 0:
-            _flats_away(z, rows, cols, off, code, pending, label, mask)
+            _flats_away(off, nbr, flags, pending, label, mask)
         else:
-            _flats_toward(z, rows, cols, off, code, pending, toward)
+            _flats_toward(off, nbr, flags, pending, toward)
+    nbr = nbr[:0]
     label = label[:0]  # release: the directions below reuse ``toward``
     for j in prange(pending.size):
         i = pending[j]
