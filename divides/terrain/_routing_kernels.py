@@ -124,46 +124,72 @@ def _spread(nbr, off, i, seen, queue, tail, value):
     return tail
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _find(parent, a):
+    """Root of ``a`` in a union-find forest (path halving)."""
+    while parent[a] != a:
+        parent[a] = parent[parent[a]]
+        a = parent[a]
+    return a
+
+
 @njit(cache=True, nogil=True)
-def _flats_away(off, nbr, flags, pending, label, mask):
-    """Label the flats and set ``mask`` to the inverted distance from higher ground (0: none).
+def _flats_away(off, nbr, flags, pending, region, mask, away_max):
+    """Set ``mask`` to the distance from higher ground (0: none), ``away_max`` to each flat's largest.
 
     Flats are 8-connected pending cells of equal elevation (the bits of ``nbr``); the
     distance is a breadth-first search from the flat's cells next to higher ground,
-    inverted per flat (largest at the higher rim) so that the labels can be dropped.
+    to be inverted per flat (largest at the higher rim): ``away_max[region[i]]`` is
+    the largest distance on the flat of cell ``i`` (where ``mask[i] > 0``), so that no
+    flat labels are needed later. The search carries the seed each cell was reached from (``region``) and
+    joins two seeds' regions wherever they meet (union-find, each root holding its
+    set's largest distance); regions of one flat always meet (a flat is connected),
+    so each joined set is one flat. The distances are those of a plain
+    breadth-first search.
     """
-    queue = np.empty(pending.size, dtype=np.int64)  # each BFS enqueues a cell at most once
-    n_labels = 0
-    for s in pending:
-        if label[s] != 0:
-            continue
-        n_labels += 1
-        label[s] = n_labels
-        head = 0
-        queue[0] = s
-        tail = 1
-        while head < tail:
-            i = queue[head]
-            head += 1
-            tail = _spread(nbr, off, i, label, queue, tail, n_labels)
-    away_max = np.zeros(n_labels + 1, dtype=np.int32)
+    queue = np.empty(pending.size, dtype=np.int64)  # each cell is enqueued at most once
     tail = 0
     for j in range(pending.size):
         if flags[j] & _NEXT_TO_HIGHER:
             i = pending[j]
             mask[i] = 1
+            region[i] = tail
             queue[tail] = i
             tail += 1
+    n_seeds = tail
+    parent = np.arange(n_seeds).astype(np.int32)
+    away_max[:n_seeds] = 1
     head = 0
     while head < tail:
         i = queue[head]
         head += 1
         d = mask[i]
-        if d > away_max[label[i]]:
-            away_max[label[i]] = d
-        tail = _spread(nbr, off, i, mask, queue, tail, d + 1)
-    for i in pending:
-        mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
+        ri = _find(parent, region[i])  # cells take the current root: later comparisons mostly agree
+        if d > away_max[ri]:
+            away_max[ri] = d
+        m = nbr[i]
+        for k in range(8):
+            if m & (1 << k):
+                nb = i + off[k]
+                if mask[nb] == 0:
+                    mask[nb] = d + 1
+                    region[nb] = ri
+                    queue[tail] = nb
+                    tail += 1
+                elif region[nb] != ri:
+                    rn = _find(parent, region[nb])
+                    if rn != ri:  # two regions of one flat meet: join them under the smaller root
+                        if rn < ri:
+                            parent[ri] = rn
+                            if away_max[ri] > away_max[rn]:
+                                away_max[rn] = away_max[ri]
+                            ri = rn
+                        else:
+                            parent[rn] = ri
+                            if away_max[rn] > away_max[ri]:
+                                away_max[ri] = away_max[rn]
+    for r in range(n_seeds):  # every region's entry becomes its flat's largest distance
+        away_max[r] = away_max[_find(parent, r)]
 
 
 @njit(cache=True, nogil=True)
@@ -269,19 +295,22 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     nbr = np.empty(n, dtype=np.uint8)  # read at pending cells only
     flags = np.empty(pending.size, dtype=np.uint8)
     _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags)
-    label = np.zeros(n, dtype=np.int32)
+    region = np.empty(n, dtype=np.int32)  # read where ``mask`` is set only
     mask = np.zeros(n, dtype=np.int32)
     toward = np.zeros(n, dtype=np.int32)
+    away_max = np.empty(pending.size, dtype=np.int32)  # per region of the away search (at most one per cell)
     for task in prange(2):
         if task == 0:
-            _flats_away(off, nbr, flags, pending, label, mask)
+            _flats_away(off, nbr, flags, pending, region, mask, away_max)
         else:
             _flats_toward(off, nbr, flags, pending, toward)
     nbr = nbr[:0]
-    label = label[:0]  # release: the directions below reuse ``toward``
     for j in prange(pending.size):
         i = pending[j]
-        mask[i] = 2 * toward[i] + mask[i] if toward[i] > 0 else -1
+        away = away_max[region[i]] - mask[i] if mask[i] > 0 else 0
+        mask[i] = 2 * toward[i] + away if toward[i] > 0 else -1
+    region = region[:0]  # release: the directions below reuse ``toward``
+    away_max = away_max[:0]
     # Steepest descent on the mask; draining neighbours of equal elevation count as 0.
     # Receivers are set first and codes after, so every cell sees its neighbours' pending state.
     stuck = np.zeros(pending.size, dtype=np.uint8)
