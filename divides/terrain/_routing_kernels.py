@@ -105,11 +105,6 @@ def _on_edge(i, rows, cols):
     return r == 0 or r == rows - 1 or c == 0 or c == cols - 1
 
 
-#: Seed flags of a pending cell (see :func:`_flat_neighbours`).
-_NEXT_TO_HIGHER = 1
-_NEXT_TO_EXIT = 2
-
-
 @njit(cache=True, nogil=True, inline="always")
 def _spread(nbr, off, i, seen, queue, tail, value):
     """Enqueue the unseen flat neighbours of ``i`` (bits of ``nbr[i]``), marking them ``value``."""
@@ -134,7 +129,7 @@ def _find(parent, a):
 
 
 @njit(cache=True, nogil=True)
-def _flats_away(off, nbr, flags, pending, region, mask, away_max):
+def _flats_away(off, nbr, higher, pending, region, mask, away_max):
     """Set ``mask`` to the distance from higher ground (0: none), ``away_max`` to each flat's largest.
 
     Flats are 8-connected pending cells of equal elevation (the bits of ``nbr``); the
@@ -150,7 +145,7 @@ def _flats_away(off, nbr, flags, pending, region, mask, away_max):
     queue = np.empty(pending.size, dtype=np.int64)  # each cell is enqueued at most once
     tail = 0
     for j in range(pending.size):
-        if flags[j] & _NEXT_TO_HIGHER:
+        if higher[j]:
             i = pending[j]
             mask[i] = 1
             region[i] = tail
@@ -193,7 +188,7 @@ def _flats_away(off, nbr, flags, pending, region, mask, away_max):
 
 
 @njit(cache=True, nogil=True)
-def _flats_toward(off, nbr, flags, pending, toward):
+def _flats_toward(off, nbr, exits, pending, toward):
     """Breadth-first distance of each pending cell from the flat's exits (0: no exit).
 
     Exits are pending cells beside a draining cell of equal elevation. Pending
@@ -202,7 +197,7 @@ def _flats_toward(off, nbr, flags, pending, toward):
     queue = np.empty(pending.size, dtype=np.int64)
     tail = 0
     for j in range(pending.size):
-        if flags[j] & _NEXT_TO_EXIT:
+        if exits[j]:
             i = pending[j]
             toward[i] = 1
             queue[tail] = i
@@ -215,13 +210,14 @@ def _flats_toward(off, nbr, flags, pending, toward):
 
 
 @njit(cache=True, nogil=True, parallel=True)
-def _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags):
-    """Per pending cell: its flat neighbours as bits of ``nbr`` and its seed flags (all threads).
+def _flat_neighbours(z, rows, cols, off, code, pending, nbr, higher, exits):
+    """Per pending cell: its neighbours on the flat and beside it, as bits (all threads).
 
     Bit k of ``nbr[i]`` is set when neighbour k is pending at the same elevation (same
-    flat); ``flags`` has :data:`_NEXT_TO_HIGHER` beside higher ground and :data:`_NEXT_TO_EXIT`
-    beside a draining cell of equal elevation. Read once here, the three searches of
-    :func:`resolve_flats` touch neither ``z`` nor ``code``.
+    flat), bit k of ``exits[j]`` (``j``: position in ``pending``) when it drains at the
+    same elevation (an exit of the flat); ``higher[j]`` is 1 beside higher ground. Read
+    once here, the searches and the descent of :func:`resolve_flats` touch neither
+    ``z`` nor ``code``.
     """
     for j in prange(pending.size):
         i = pending[j]
@@ -229,20 +225,22 @@ def _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags):
         ri, ci = i // cols, i % cols
         zi = z[i]
         m = 0
-        f = 0
+        e = 0
+        h = 0
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
             nb = i + off[k]
             if z[nb] > zi:
-                f |= _NEXT_TO_HIGHER
+                h = 1
             elif z[nb] == zi:
                 if code[nb] == PENDING:
                     m |= 1 << k
                 else:
-                    f |= _NEXT_TO_EXIT
+                    e |= 1 << k
         nbr[i] = m
-        flags[j] = f
+        exits[j] = e
+        higher[j] = h
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -293,18 +291,19 @@ def resolve_flats(z, rows, cols, dist, rec, code):
         off[k] = D_ROW[k] * cols + D_COL[k]
     pending = pending_cells(code, rows, cols)
     nbr = np.empty(n, dtype=np.uint8)  # read at pending cells only
-    flags = np.empty(pending.size, dtype=np.uint8)
-    _flat_neighbours(z, rows, cols, off, code, pending, nbr, flags)
+    higher = np.empty(pending.size, dtype=np.uint8)
+    exits = np.empty(pending.size, dtype=np.uint8)
+    _flat_neighbours(z, rows, cols, off, code, pending, nbr, higher, exits)
     region = np.empty(n, dtype=np.int32)  # read where ``mask`` is set only
     mask = np.zeros(n, dtype=np.int32)
     toward = np.zeros(n, dtype=np.int32)
     away_max = np.empty(pending.size, dtype=np.int32)  # per region of the away search (at most one per cell)
     for task in prange(2):
         if task == 0:
-            _flats_away(off, nbr, flags, pending, region, mask, away_max)
+            _flats_away(off, nbr, higher, pending, region, mask, away_max)
         else:
-            _flats_toward(off, nbr, flags, pending, toward)
-    nbr = nbr[:0]
+            _flats_toward(off, nbr, exits, pending, toward)
+    higher = higher[:0]
     for j in prange(pending.size):
         i = pending[j]
         away = away_max[region[i]] - mask[i] if mask[i] > 0 else 0
@@ -320,22 +319,20 @@ def resolve_flats(z, rows, cols, dist, rec, code):
             stuck[j] = 1
             continue
         r = i // cols
-        ci = i % cols
-        edge = r == 0 or r == rows - 1 or ci == 0 or ci == cols - 1
+        flat_nb = nbr[i]
+        exit_nb = exits[j]
         best = 0.0
         best_k = -1
         for k in range(8):
-            if edge and not _inside(r, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if z[nb] != z[i]:
-                continue
-            if code[nb] == PENDING:
-                m_nb = mask[nb]
+            bit = 1 << k
+            if flat_nb & bit:
+                m_nb = mask[i + off[k]]
                 if m_nb < 0:
                     continue
-            else:
+            elif exit_nb & bit:
                 m_nb = 0
+            else:
+                continue
             s = (mask[i] - m_nb) / dist[r, k]
             if s > best:
                 best = s
