@@ -14,7 +14,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from divides.terrain._fill_kernels import D_COL, D_ROW, grow
+from divides.terrain._fill_kernels import D_COL, D_ROW
 
 OUTLET = 8
 PENDING = 9
@@ -400,18 +400,37 @@ _ASCENDING = np.array([5, 6, 7, 4, 0, 3, 2, 1], dtype=np.int64)
 
 
 @njit(cache=True, nogil=True)
-def order_from_codes(code, valid, rows, cols, n_valid, like):
-    """:func:`topological_order` read from the D8 codes, with each outlet basin's start.
+def outlet_roots(code, valid):
+    """Flat indices of the valid cells with code 8 or more: the roots of :func:`order_from_codes`."""
+    m = 0
+    for i in range(code.size):
+        if valid[i] and code[i] >= 8:
+            m += 1
+    out = np.empty(m, dtype=np.int64)
+    m = 0
+    for i in range(code.size):
+        if valid[i] and code[i] >= 8:
+            out[m] = i
+            m += 1
+    return out
+
+
+@njit(cache=True, nogil=True)
+def order_from_codes(code, valid, rows, cols, roots, lo, hi, out, at, stack, sizes):
+    """:func:`topological_order` of the basins of ``roots[lo:hi]``, read from the D8 codes.
 
     A cell's donors are the neighbours whose code points back at it, so no receiver
     lists are built (three passes and 8-12 bytes per cell fewer); neighbours are
     scanned in increasing flat index, the order of those lists, so the order is the
-    same cell for cell. Roots are valid cells with code 8 or more, the cells
-    :func:`topological_order` takes as outlets (``rec[i] == i``).
+    same cell for cell. Roots are the valid cells with code 8 or more
+    (:func:`outlet_roots`), those :func:`topological_order` takes as outlets
+    (``rec[i] == i``), in increasing index.
 
-    Returns ``(order, starts)``: ``order`` as :func:`topological_order` (shorter than
-    ``n_valid`` on a cycle), ``starts`` as :func:`basin_starts` (``order.size`` last).
-    ``like`` is an empty array of the index dtype the order takes (int32 or int64).
+    Each basin is written depth-first to ``out`` from position ``at`` on, one after
+    the other, and its number of cells to ``sizes[b]``; ``stack`` needs room for the
+    largest basin. Returns the position after the last cell written. Basins are
+    independent, so groups of roots can run on threads into buffers of their own
+    and be joined in root order.
     """
     off = np.empty(8, dtype=np.int64)
     back = np.empty(8, dtype=np.uint8)
@@ -419,24 +438,15 @@ def order_from_codes(code, valid, rows, cols, n_valid, like):
         k = _ASCENDING[j]
         off[j] = D_ROW[k] * cols + D_COL[k]
         back[j] = (k + 4) % 8  # a neighbour at direction k drains here when its code is k's opposite
-    order = np.empty(n_valid, dtype=like.dtype)
-    stack = np.empty(n_valid, dtype=like.dtype)
-    starts = np.empty(1024, dtype=np.int64)
-    m = 0
-    k = 0
-    for o in range(rows * cols):
-        if not valid[o] or code[o] < 8:
-            continue
-        if m + 1 >= starts.size:
-            starts = grow(starts, m + 2)
-        starts[m] = k
-        m += 1
-        stack[0] = o
+    k = at
+    for b in range(lo, hi):
+        first = k
+        stack[0] = roots[b]
         top = 1
         while top > 0:
             top -= 1
             i = stack[top]
-            order[k] = i
+            out[k] = i
             k += 1
             r = i // cols
             c = i - r * cols
@@ -456,9 +466,8 @@ def order_from_codes(code, valid, rows, cols, n_valid, like):
                     if code[nb] == back[j] and valid[nb]:
                         stack[top] = nb
                         top += 1
-    starts[m] = k
-    order = order[:k].copy() if k < n_valid else order
-    return order, starts[: m + 1].copy()
+        sizes[b] = k - first
+    return k
 
 
 @njit(cache=True, nogil=True)
@@ -483,13 +492,15 @@ def _spread_basins(starts, threads):
 
 @njit(cache=True, nogil=True, parallel=True)
 def accumulate_area(order, rec, starts, cols, cell_area, threads, out):
-    """Drainage area: :func:`accumulate_basins` of each cell's row area, basins spread evenly.
+    """Drainage area: :func:`accumulate_down` of each cell's row area, one outlet basin per task.
 
     ``cell_area`` holds one area per row (``order`` holds valid cells only, so no
-    grid of areas is needed). Basins go to threads largest first, each to the least
-    loaded thread, so that a few large basins do not leave a thread idle; within a
-    basin the sums are those of the serial sweep, so the result is the same bit for
-    bit on any number of threads. ``threads`` is ``numba.get_num_threads()`` (an
+    grid of areas is needed); ``starts`` holds each basin's first position in the
+    depth-first ``order`` and ``order.size`` last. Basins go to threads largest
+    first, each to the least loaded thread, so that a few large basins do not leave
+    a thread idle. Basins never exchange water and within a basin every cell
+    receives its donors' sums in the serial sweep's sequence, so the result is the
+    same bit for bit on any number of threads. ``threads`` is ``numba.get_num_threads()`` (an
     argument: calling it in here would keep the kernel out of the cache).
     """
     nb = starts.size - 1
@@ -521,50 +532,6 @@ def accumulate_down(order, rec, values, out):
         r = rec[i]
         if r != i:
             out[r] += out[i]
-
-
-@njit(cache=True, nogil=True)
-def basin_starts(order, rec):
-    """Positions in ``order`` where each outlet's basin starts, and ``order.size`` last.
-
-    The depth-first order visits one outlet's basin at a time, outlet first,
-    so every basin is the contiguous run between two successive starts.
-    """
-    m = 0
-    for j in range(order.size):
-        i = order[j]
-        if rec[i] == i:
-            m += 1
-    out = np.empty(m + 1, dtype=np.int64)
-    m = 0
-    for j in range(order.size):
-        i = order[j]
-        if rec[i] == i:
-            out[m] = j
-            m += 1
-    out[m] = order.size
-    return out
-
-
-@njit(cache=True, nogil=True, parallel=True)
-def accumulate_basins(order, rec, starts, values, out):
-    """:func:`accumulate_down` one outlet basin per task (all threads).
-
-    Every cell receives its donors' sums in the same sequence as in the serial
-    sweep (basins never exchange water), so the floating-point result is the
-    same bit for bit.
-    """
-    for b in prange(starts.size - 1):
-        lo = starts[b]
-        hi = starts[b + 1]
-        for j in range(lo, hi):
-            i = order[j]
-            out[i] = values[i]
-        for j in range(hi - 1, lo - 1, -1):
-            i = order[j]
-            r = rec[i]
-            if r != i:
-                out[r] += out[i]
 
 
 @njit(cache=True, nogil=True)

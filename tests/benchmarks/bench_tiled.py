@@ -36,6 +36,7 @@ def _phases(dem, repeats: int = 3) -> dict:
     from divides.terrain import _fill_kernels as _fk
     from divides.terrain import _routing_kernels as _k
     from divides.terrain.conditioning import fill_depressions, outlet_mask
+    from divides.terrain.routing import flow_order
 
     rows, cols = dem.shape
     n = rows * cols
@@ -59,7 +60,7 @@ def _phases(dem, repeats: int = 3) -> dict:
         clock("D8", lambda: _k.d8_steepest(z, valid, outlets.ravel(), rows, cols, dist, rec, code))
         clock("flats", lambda: _k.resolve_flats(z, rows, cols, dist, rec, code))
         n_valid = int(np.count_nonzero(valid))
-        order, starts = clock("order", lambda: _k.order_from_codes(code, valid, rows, cols, n_valid, rec[:0]))
+        order, starts = clock("order", lambda: flow_order(code, valid, rows, cols, n_valid))
         area = np.zeros(n)
         clock("drainage area", lambda: _k.accumulate_area(order, rec, starts, cols, dem.cell_area,
                                                           numba.get_num_threads(), area))
