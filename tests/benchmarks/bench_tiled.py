@@ -21,12 +21,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).parent))
 from _harness import peak_rss_mb, sweep  # noqa: E402
-from bench_flow import fractal_dem  # noqa: E402
-
-
-def _load() -> str:
-    with open("/proc/loadavg") as fh:
-        return " ".join(fh.read().split()[:3])
+from bench_flow import fractal_dem, load_average, warm_up  # noqa: E402
 
 
 def _phases(dem, repeats: int = 3) -> dict:
@@ -72,13 +67,12 @@ def _memory(n: int) -> dict:
 
     from divides import Dem, route
 
-    route(Dem.from_array(fractal_dem(256, seed=1), cell_size=30.0))  # JIT warm-up (or cache load)
+    warm_up()  # every kernel compiled or loaded from the cache, the parallel ones too
     dem = Dem.from_array(fractal_dem(n), cell_size=30.0)
     out = {"n": n, "mode": "memory", "runs": {}}
     results = {}
     for threads in sorted({1, numba.config.NUMBA_NUM_THREADS}):
         numba.set_num_threads(threads)
-        route(dem)  # warm-up of the kernels only this size uses (strip filling on threads)
         best, cpu = float("inf"), float("inf")
         for _ in range(5):
             t0, c0 = time.perf_counter(), time.process_time()
@@ -86,7 +80,7 @@ def _memory(n: int) -> dict:
             best, cpu = min(best, time.perf_counter() - t0), min(cpu, time.process_time() - c0)
         results[threads] = flow
         out["runs"][threads] = {"cells_per_s": round(n * n / best), "wall_s": round(best, 3), "cpu_s": round(cpu, 3),
-                                "load": _load(), "phases": _phases(dem)}
+                                "load": load_average(), "phases": _phases(dem)}
     flows = list(results.values())
     a, b = flows[0], flows[-1]
     out["identical"] = bool(np.array_equal(a.direction, b.direction) and np.array_equal(a.order, b.order)
