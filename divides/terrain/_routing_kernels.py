@@ -142,7 +142,7 @@ def _flats_away(off, nbr, higher, pending, region, mask, away_max):
     so each joined set is one flat. The distances are those of a plain
     breadth-first search.
     """
-    queue = np.empty(pending.size, dtype=np.int64)  # each cell is enqueued at most once
+    queue = np.empty(pending.size, dtype=pending.dtype)  # each cell is enqueued at most once
     tail = 0
     for j in range(pending.size):
         if higher[j]:
@@ -194,7 +194,7 @@ def _flats_toward(off, nbr, exits, pending, toward):
     Exits are pending cells beside a draining cell of equal elevation. Pending
     8-neighbours of equal elevation always share a flat, so no labels are needed.
     """
-    queue = np.empty(pending.size, dtype=np.int64)
+    queue = np.empty(pending.size, dtype=pending.dtype)
     tail = 0
     for j in range(pending.size):
         if exits[j]:
@@ -244,8 +244,11 @@ def _flat_neighbours(z, rows, cols, off, code, pending, nbr, higher, exits):
 
 
 @njit(cache=True, nogil=True, parallel=True)
-def pending_cells(code, rows, cols):
-    """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads)."""
+def pending_cells(code, rows, cols, like):
+    """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads).
+
+    ``like`` is an empty array of the index dtype to use (int32 below 2³¹ cells: half the memory).
+    """
     counts = np.zeros(rows + 1, dtype=np.int64)
     for r in prange(rows):
         m = 0
@@ -255,7 +258,7 @@ def pending_cells(code, rows, cols):
         counts[r + 1] = m
     for r in range(rows):
         counts[r + 1] += counts[r]
-    out = np.empty(counts[rows], dtype=np.int64)
+    out = np.empty(counts[rows], dtype=like.dtype)
     for r in prange(rows):
         j = counts[r]
         for i in range(r * cols, (r + 1) * cols):
@@ -289,7 +292,7 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     off = np.empty(8, dtype=np.int64)
     for k in range(8):
         off[k] = D_ROW[k] * cols + D_COL[k]
-    pending = pending_cells(code, rows, cols)
+    pending = pending_cells(code, rows, cols, rec[:0])
     nbr = np.empty(n, dtype=np.uint8)  # read at pending cells only
     higher = np.empty(pending.size, dtype=np.uint8)
     exits = np.empty(pending.size, dtype=np.uint8)
