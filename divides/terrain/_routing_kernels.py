@@ -281,7 +281,10 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     exit without loops, and flow bends away from the flat's higher rim
     instead of running in parallel lines.
 
-    The two searches are independent and run at the same time; the final
+    Each flat cell's neighbours on the flat and beside it are first read into
+    bits on all threads (:func:`_flat_neighbours`); the two searches read only
+    those, are independent and run at the same time, and the away search finds
+    each flat's largest distance itself (no labelling search). The final
     descent is per cell. Every value is the one a single thread computes.
 
     Pending cells have only valid neighbours; those on a closed grid edge skip
