@@ -160,8 +160,7 @@ def _flats_away(off, nbr, higher, pending, region, mask, away_max):
         head += 1
         d = mask[i]
         ri = _find(parent, region[i])  # cells take the current root: later comparisons mostly agree
-        if d > away_max[ri]:
-            away_max[ri] = d
+        away_max[ri] = max(away_max[ri], d)
         m = nbr[i]
         for k in range(8):
             if m & (1 << k):
@@ -174,15 +173,10 @@ def _flats_away(off, nbr, higher, pending, region, mask, away_max):
                 elif region[nb] != ri:
                     rn = _find(parent, region[nb])
                     if rn != ri:  # two regions of one flat meet: join them under the smaller root
-                        if rn < ri:
-                            parent[ri] = rn
-                            if away_max[ri] > away_max[rn]:
-                                away_max[rn] = away_max[ri]
-                            ri = rn
-                        else:
-                            parent[rn] = ri
-                            if away_max[rn] > away_max[ri]:
-                                away_max[ri] = away_max[rn]
+                        low, high = min(ri, rn), max(ri, rn)
+                        parent[high] = low
+                        away_max[low] = max(away_max[low], away_max[high])
+                        ri = low
     for r in range(n_seeds):  # every region's entry becomes its flat's largest distance
         away_max[r] = away_max[_find(parent, r)]
 

@@ -37,28 +37,27 @@ def _phases(dem, repeats: int = 3) -> dict:
     n = rows * cols
     best: dict[str, list[float]] = {}
 
-    def clock(name, fn):
+    def clock(name, fn, *args):
         w, c = time.perf_counter(), time.process_time()
-        out = fn()
+        out = fn(*args)
         w, c = time.perf_counter() - w, time.process_time() - c
         b = best.setdefault(name, [float("inf"), float("inf")])
         b[0], b[1] = min(b[0], w), min(b[1], c)
         return out
 
     for _ in range(repeats):
-        outlets = clock("outlets", lambda: outlet_mask(dem))
-        filled = clock("fill", lambda: fill_depressions(dem.elevation, dem.valid, outlets)[0])
-        clock("fill totals", lambda: _fk.raised_totals(filled.ravel(), dem.elevation.ravel(), rows, cols, dem.cell_area))
+        outlets = clock("outlets", outlet_mask, dem)
+        filled = clock("fill", fill_depressions, dem.elevation, dem.valid, outlets)[0]
+        clock("fill totals", _fk.raised_totals, filled.ravel(), dem.elevation.ravel(), rows, cols, dem.cell_area)
         z, valid = filled.ravel(), dem.valid.ravel()
         dist = _k.row_distances(dem.dx, dem.dy)
         rec, code = np.empty(n, dtype=np.int32), np.empty(n, dtype=np.uint8)
-        clock("D8", lambda: _k.d8_steepest(z, valid, outlets.ravel(), rows, cols, dist, rec, code))
-        clock("flats", lambda: _k.resolve_flats(z, rows, cols, dist, rec, code))
+        clock("D8", _k.d8_steepest, z, valid, outlets.ravel(), rows, cols, dist, rec, code)
+        clock("flats", _k.resolve_flats, z, rows, cols, dist, rec, code)
         n_valid = int(np.count_nonzero(valid))
-        order, starts = clock("order", lambda: flow_order(code, valid, rows, cols, n_valid))
+        order, starts = clock("order", flow_order, code, valid, rows, cols, n_valid)
         area = np.zeros(n)
-        clock("drainage area", lambda: _k.accumulate_area(order, rec, starts, cols, dem.cell_area,
-                                                          numba.get_num_threads(), area))
+        clock("drainage area", _k.accumulate_area, order, rec, starts, cols, dem.cell_area, numba.get_num_threads(), area)
     return {k: [round(v[0], 4), round(v[1], 4)] for k, v in best.items()}
 
 
@@ -126,8 +125,8 @@ def run_one(n: int, mode: str, tile: str) -> dict:
 
 def _row(r: dict) -> str:
     if r["mode"] == "memory":
-        lines = [f"{r['n']:>5}²  in memory (route: fill + flats + D8 + order + area, best of 5); results identical "
-                 f"on all thread counts: {r['identical']}; peak RSS {r['peak_rss_mb']} MB"]
+        lines = [(f"{r['n']:>5}²  in memory (route: fill + flats + D8 + order + area, best of 5); results identical "
+                  f"on all thread counts: {r['identical']}; peak RSS {r['peak_rss_mb']} MB")]
         for threads, run in r["runs"].items():
             lines.append(f"        {threads} thread(s): {run['cells_per_s'] / 1e6:5.2f} M cells/s  (wall {run['wall_s']} s, "
                          f"CPU {run['cpu_s']} s; load average {run['load']})")
