@@ -105,111 +105,144 @@ def _on_edge(i, rows, cols):
     return r == 0 or r == rows - 1 or c == 0 or c == cols - 1
 
 
-@njit(cache=True, nogil=True)
-def _flats_away(z, rows, cols, off, code, pending, label, mask):
-    """Label the flats and set ``mask`` to the inverted distance from higher ground (0: none).
-
-    Flats are 8-connected pending cells of equal elevation; the distance is a
-    breadth-first search from the flat's cells next to higher ground, inverted
-    per flat (largest at the higher rim) so that the labels can be dropped.
-    """
-    n_pending = pending.size
-    queue = np.empty(n_pending, dtype=np.int64)  # each BFS enqueues a cell at most once
-    n_labels = 0
-    for s in pending:
-        if label[s] != 0:
-            continue
-        n_labels += 1
-        label[s] = n_labels
-        head = 0
-        queue[0] = s
-        tail = 1
-        while head < tail:
-            i = queue[head]
-            head += 1
-            edge = _on_edge(i, rows, cols)
-            ri, ci = i // cols, i % cols
-            for k in range(8):
-                if edge and not _inside(ri, ci, k, rows, cols):
-                    continue
-                nb = i + off[k]
-                if code[nb] == PENDING and label[nb] == 0 and z[nb] == z[i]:
-                    label[nb] = n_labels
-                    queue[tail] = nb
-                    tail += 1
-    away_max = np.zeros(n_labels + 1, dtype=np.int32)
-    tail = 0
-    for i in pending:
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
-        for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            if z[i + off[k]] > z[i]:
-                mask[i] = 1
-                queue[tail] = i
+@njit(cache=True, nogil=True, inline="always")
+def _spread(nbr, off, i, seen, queue, tail, value):
+    """Enqueue the unseen flat neighbours of ``i`` (bits of ``nbr[i]``), marking them ``value``."""
+    m = nbr[i]
+    for k in range(8):
+        if m & (1 << k):
+            nb = i + off[k]
+            if seen[nb] == 0:
+                seen[nb] = value
+                queue[tail] = nb
                 tail += 1
-                break
+    return tail
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _find(parent, a):
+    """Root of ``a`` in a union-find forest (path halving)."""
+    while parent[a] != a:
+        parent[a] = parent[parent[a]]
+        a = parent[a]
+    return a
+
+
+@njit(cache=True, nogil=True)
+def _flats_away(off, nbr, higher, pending, region, mask, away_max):
+    """Set ``mask`` to the distance from higher ground (0: none), ``away_max`` to each flat's largest.
+
+    Flats are 8-connected pending cells of equal elevation (the bits of ``nbr``); the
+    distance is a breadth-first search from the flat's cells next to higher ground,
+    to be inverted per flat (largest at the higher rim): ``away_max[region[i]]`` is
+    the largest distance on the flat of cell ``i`` (where ``mask[i] > 0``), so that no
+    flat labels are needed later. The search carries the seed each cell was reached from (``region``) and
+    joins two seeds' regions wherever they meet (union-find, each root holding its
+    set's largest distance); regions of one flat always meet (a flat is connected),
+    so each joined set is one flat. The distances are those of a plain
+    breadth-first search.
+    """
+    queue = np.empty(pending.size, dtype=pending.dtype)  # each cell is enqueued at most once
+    tail = 0
+    for j in range(pending.size):
+        if higher[j]:
+            i = pending[j]
+            mask[i] = 1
+            region[i] = tail
+            queue[tail] = i
+            tail += 1
+    n_seeds = tail
+    parent = np.arange(n_seeds).astype(np.int32)
+    away_max[:n_seeds] = 1
     head = 0
     while head < tail:
         i = queue[head]
         head += 1
-        if mask[i] > away_max[label[i]]:
-            away_max[label[i]] = mask[i]
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
+        d = mask[i]
+        ri = _find(parent, region[i])  # cells take the current root: later comparisons mostly agree
+        away_max[ri] = max(away_max[ri], d)
+        m = nbr[i]
         for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if code[nb] == PENDING and mask[nb] == 0 and z[nb] == z[i]:
-                mask[nb] = mask[i] + 1
-                queue[tail] = nb
-                tail += 1
-    for i in pending:
-        mask[i] = away_max[label[i]] - mask[i] if mask[i] > 0 else 0
+            if m & (1 << k):
+                nb = i + off[k]
+                if mask[nb] == 0:
+                    mask[nb] = d + 1
+                    region[nb] = ri
+                    queue[tail] = nb
+                    tail += 1
+                elif region[nb] != ri:
+                    rn = _find(parent, region[nb])
+                    if rn != ri:  # two regions of one flat meet: join them under the smaller root
+                        low, high = min(ri, rn), max(ri, rn)
+                        parent[high] = low
+                        away_max[low] = max(away_max[low], away_max[high])
+                        ri = low
+    for r in range(n_seeds):  # every region's entry becomes its flat's largest distance
+        away_max[r] = away_max[_find(parent, r)]
 
 
 @njit(cache=True, nogil=True)
-def _flats_toward(z, rows, cols, off, code, pending, toward):
+def _flats_toward(off, nbr, exits, pending, toward):
     """Breadth-first distance of each pending cell from the flat's exits (0: no exit).
 
     Exits are pending cells beside a draining cell of equal elevation. Pending
     8-neighbours of equal elevation always share a flat, so no labels are needed.
     """
-    queue = np.empty(pending.size, dtype=np.int64)
+    queue = np.empty(pending.size, dtype=pending.dtype)
     tail = 0
-    for i in pending:
-        edge = _on_edge(i, rows, cols)
-        ri, ci = i // cols, i % cols
-        for k in range(8):
-            if edge and not _inside(ri, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if code[nb] != PENDING and z[nb] == z[i]:
-                toward[i] = 1
-                queue[tail] = i
-                tail += 1
-                break
+    for j in range(pending.size):
+        if exits[j]:
+            i = pending[j]
+            toward[i] = 1
+            queue[tail] = i
+            tail += 1
     head = 0
     while head < tail:
         i = queue[head]
         head += 1
+        tail = _spread(nbr, off, i, toward, queue, tail, toward[i] + 1)
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _flat_neighbours(z, rows, cols, off, code, pending, nbr, higher, exits):
+    """Per pending cell: its neighbours on the flat and beside it, as bits (all threads).
+
+    Bit k of ``nbr[i]`` is set when neighbour k is pending at the same elevation (same
+    flat), bit k of ``exits[j]`` (``j``: position in ``pending``) when it drains at the
+    same elevation (an exit of the flat); ``higher[j]`` is 1 beside higher ground. Read
+    once here, the searches and the descent of :func:`resolve_flats` touch neither
+    ``z`` nor ``code``.
+    """
+    for j in prange(pending.size):
+        i = pending[j]
         edge = _on_edge(i, rows, cols)
         ri, ci = i // cols, i % cols
+        zi = z[i]
+        m = 0
+        e = 0
+        h = 0
         for k in range(8):
             if edge and not _inside(ri, ci, k, rows, cols):
                 continue
             nb = i + off[k]
-            if code[nb] == PENDING and toward[nb] == 0 and z[nb] == z[i]:
-                toward[nb] = toward[i] + 1
-                queue[tail] = nb
-                tail += 1
+            if z[nb] > zi:
+                h = 1
+            elif z[nb] == zi:
+                if code[nb] == PENDING:
+                    m |= 1 << k
+                else:
+                    e |= 1 << k
+        nbr[i] = m
+        exits[j] = e
+        higher[j] = h
 
 
 @njit(cache=True, nogil=True, parallel=True)
-def pending_cells(code, rows, cols):
-    """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads)."""
+def pending_cells(code, rows, cols, like):
+    """Flat indices of the cells with ``code == PENDING``, in index order (rows on all threads).
+
+    ``like`` is an empty array of the index dtype to use (int32 below 2³¹ cells: half the memory).
+    """
     counts = np.zeros(rows + 1, dtype=np.int64)
     for r in prange(rows):
         m = 0
@@ -219,7 +252,7 @@ def pending_cells(code, rows, cols):
         counts[r + 1] = m
     for r in range(rows):
         counts[r + 1] += counts[r]
-    out = np.empty(counts[rows], dtype=np.int64)
+    out = np.empty(counts[rows], dtype=like.dtype)
     for r in prange(rows):
         j = counts[r]
         for i in range(r * cols, (r + 1) * cols):
@@ -242,7 +275,10 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     exit without loops, and flow bends away from the flat's higher rim
     instead of running in parallel lines.
 
-    The two searches are independent and run at the same time; the final
+    Each flat cell's neighbours on the flat and beside it are first read into
+    bits on all threads (:func:`_flat_neighbours`); the two searches read only
+    those, are independent and run at the same time, and the away search finds
+    each flat's largest distance itself (no labelling search). The final
     descent is per cell. Every value is the one a single thread computes.
 
     Pending cells have only valid neighbours; those on a closed grid edge skip
@@ -253,19 +289,27 @@ def resolve_flats(z, rows, cols, dist, rec, code):
     off = np.empty(8, dtype=np.int64)
     for k in range(8):
         off[k] = D_ROW[k] * cols + D_COL[k]
-    pending = pending_cells(code, rows, cols)
-    label = np.zeros(n, dtype=np.int32)
+    pending = pending_cells(code, rows, cols, rec[:0])
+    nbr = np.empty(n, dtype=np.uint8)  # read at pending cells only
+    higher = np.empty(pending.size, dtype=np.uint8)
+    exits = np.empty(pending.size, dtype=np.uint8)
+    _flat_neighbours(z, rows, cols, off, code, pending, nbr, higher, exits)
+    region = np.empty(n, dtype=np.int32)  # read where ``mask`` is set only
     mask = np.zeros(n, dtype=np.int32)
     toward = np.zeros(n, dtype=np.int32)
+    away_max = np.empty(pending.size, dtype=np.int32)  # per region of the away search (at most one per cell)
     for task in prange(2):
         if task == 0:
-            _flats_away(z, rows, cols, off, code, pending, label, mask)
+            _flats_away(off, nbr, higher, pending, region, mask, away_max)
         else:
-            _flats_toward(z, rows, cols, off, code, pending, toward)
-    label = label[:0]  # release: the directions below reuse ``toward``
+            _flats_toward(off, nbr, exits, pending, toward)
+    higher = higher[:0]
     for j in prange(pending.size):
         i = pending[j]
-        mask[i] = 2 * toward[i] + mask[i] if toward[i] > 0 else -1
+        away = away_max[region[i]] - mask[i] if mask[i] > 0 else 0
+        mask[i] = 2 * toward[i] + away if toward[i] > 0 else -1
+    region = region[:0]  # release: the directions below reuse ``toward``
+    away_max = away_max[:0]
     # Steepest descent on the mask; draining neighbours of equal elevation count as 0.
     # Receivers are set first and codes after, so every cell sees its neighbours' pending state.
     stuck = np.zeros(pending.size, dtype=np.uint8)
@@ -275,22 +319,20 @@ def resolve_flats(z, rows, cols, dist, rec, code):
             stuck[j] = 1
             continue
         r = i // cols
-        ci = i % cols
-        edge = r == 0 or r == rows - 1 or ci == 0 or ci == cols - 1
+        flat_nb = nbr[i]
+        exit_nb = exits[j]
         best = 0.0
         best_k = -1
         for k in range(8):
-            if edge and not _inside(r, ci, k, rows, cols):
-                continue
-            nb = i + off[k]
-            if z[nb] != z[i]:
-                continue
-            if code[nb] == PENDING:
-                m_nb = mask[nb]
+            bit = 1 << k
+            if flat_nb & bit:
+                m_nb = mask[i + off[k]]
                 if m_nb < 0:
                     continue
-            else:
+            elif exit_nb & bit:
                 m_nb = 0
+            else:
+                continue
             s = (mask[i] - m_nb) / dist[r, k]
             if s > best:
                 best = s
@@ -352,6 +394,133 @@ def topological_order(rec, valid, n_valid):
     return order[:k].copy() if k < n_valid else order
 
 
+#: Neighbour codes in increasing flat-index order (NW, N, NE, W, E, SW, S, SE): donors are
+#: met in the order the receiver lists of :func:`topological_order` hold them.
+_ASCENDING = np.array([5, 6, 7, 4, 0, 3, 2, 1], dtype=np.int64)
+
+
+@njit(cache=True, nogil=True)
+def outlet_roots(code, valid):
+    """Flat indices of the valid cells with code 8 or more: the roots of :func:`order_from_codes`."""
+    m = 0
+    for i in range(code.size):
+        if valid[i] and code[i] >= 8:
+            m += 1
+    out = np.empty(m, dtype=np.int64)
+    m = 0
+    for i in range(code.size):
+        if valid[i] and code[i] >= 8:
+            out[m] = i
+            m += 1
+    return out
+
+
+@njit(cache=True, nogil=True)
+def order_from_codes(code, valid, rows, cols, roots, lo, hi, out, at, stack, sizes):
+    """:func:`topological_order` of the basins of ``roots[lo:hi]``, read from the D8 codes.
+
+    A cell's donors are the neighbours whose code points back at it, so no receiver
+    lists are built (three passes and 8-12 bytes per cell fewer); neighbours are
+    scanned in increasing flat index, the order of those lists, so the order is the
+    same cell for cell. Roots are the valid cells with code 8 or more
+    (:func:`outlet_roots`), those :func:`topological_order` takes as outlets
+    (``rec[i] == i``), in increasing index.
+
+    Each basin is written depth-first to ``out`` from position ``at`` on, one after
+    the other, and its number of cells to ``sizes[b]``; ``stack`` needs room for the
+    largest basin. Returns the position after the last cell written. Basins are
+    independent, so groups of roots can run on threads into buffers of their own
+    and be joined in root order.
+    """
+    off = np.empty(8, dtype=np.int64)
+    back = np.empty(8, dtype=np.uint8)
+    for j in range(8):
+        k = _ASCENDING[j]
+        off[j] = D_ROW[k] * cols + D_COL[k]
+        back[j] = (k + 4) % 8  # a neighbour at direction k drains here when its code is k's opposite
+    k = at
+    for b in range(lo, hi):
+        first = k
+        stack[0] = roots[b]
+        top = 1
+        while top > 0:
+            top -= 1
+            i = stack[top]
+            out[k] = i
+            k += 1
+            r = i // cols
+            c = i - r * cols
+            if r == 0 or r == rows - 1 or c == 0 or c == cols - 1:
+                for j in range(8):
+                    kk = _ASCENDING[j]
+                    rr = r + D_ROW[kk]
+                    cc = c + D_COL[kk]
+                    if 0 <= rr < rows and 0 <= cc < cols:
+                        nb = i + off[j]
+                        if code[nb] == back[j] and valid[nb]:
+                            stack[top] = nb
+                            top += 1
+            else:
+                for j in range(8):
+                    nb = i + off[j]
+                    if code[nb] == back[j] and valid[nb]:
+                        stack[top] = nb
+                        top += 1
+        sizes[b] = k - first
+    return k
+
+
+@njit(cache=True, nogil=True)
+def _spread_basins(starts, threads):
+    """Thread of each basin: largest first, each to the least loaded thread (serial, so no parfors)."""
+    nb = starts.size - 1
+    owner = np.zeros(nb, dtype=np.int64)
+    if threads > 1:
+        size = np.empty(nb, dtype=np.int64)
+        for b in range(nb):
+            size[b] = starts[b] - starts[b + 1]  # negated: argsort gives the largest first
+        load = np.zeros(threads, dtype=np.int64)
+        for b in np.argsort(size, kind="mergesort"):
+            t = 0
+            for u in range(1, threads):
+                if load[u] < load[t]:
+                    t = u
+            owner[b] = t
+            load[t] -= size[b]
+    return owner
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def accumulate_area(order, rec, starts, cols, cell_area, threads, out):
+    """Drainage area: :func:`accumulate_down` of each cell's row area, one outlet basin per task.
+
+    ``cell_area`` holds one area per row (``order`` holds valid cells only, so no
+    grid of areas is needed); ``starts`` holds each basin's first position in the
+    depth-first ``order`` and ``order.size`` last. Basins go to threads largest
+    first, each to the least loaded thread, so that a few large basins do not leave
+    a thread idle. Basins never exchange water and within a basin every cell
+    receives its donors' sums in the serial sweep's sequence, so the result is the
+    same bit for bit on any number of threads. ``threads`` is ``numba.get_num_threads()`` (an
+    argument: calling it in here would keep the kernel out of the cache).
+    """
+    nb = starts.size - 1
+    owner = _spread_basins(starts, threads)
+    for t in prange(threads):
+        for b in range(nb):
+            if owner[b] != t:
+                continue
+            lo = starts[b]
+            hi = starts[b + 1]
+            for j in range(lo, hi):
+                i = order[j]
+                out[i] = cell_area[i // cols]
+            for j in range(hi - 1, lo - 1, -1):
+                i = order[j]
+                r = rec[i]
+                if r != i:
+                    out[r] += out[i]
+
+
 @njit(cache=True, nogil=True)
 def accumulate_down(order, rec, values, out):
     """out[i] = sum of ``values`` over i and every cell upstream of i."""
@@ -363,50 +532,6 @@ def accumulate_down(order, rec, values, out):
         r = rec[i]
         if r != i:
             out[r] += out[i]
-
-
-@njit(cache=True, nogil=True)
-def basin_starts(order, rec):
-    """Positions in ``order`` where each outlet's basin starts, and ``order.size`` last.
-
-    The depth-first order visits one outlet's basin at a time, outlet first,
-    so every basin is the contiguous run between two successive starts.
-    """
-    m = 0
-    for j in range(order.size):
-        i = order[j]
-        if rec[i] == i:
-            m += 1
-    out = np.empty(m + 1, dtype=np.int64)
-    m = 0
-    for j in range(order.size):
-        i = order[j]
-        if rec[i] == i:
-            out[m] = j
-            m += 1
-    out[m] = order.size
-    return out
-
-
-@njit(cache=True, nogil=True, parallel=True)
-def accumulate_basins(order, rec, starts, values, out):
-    """:func:`accumulate_down` one outlet basin per task (all threads).
-
-    Every cell receives its donors' sums in the same sequence as in the serial
-    sweep (basins never exchange water), so the floating-point result is the
-    same bit for bit.
-    """
-    for b in prange(starts.size - 1):
-        lo = starts[b]
-        hi = starts[b + 1]
-        for j in range(lo, hi):
-            i = order[j]
-            out[i] = values[i]
-        for j in range(hi - 1, lo - 1, -1):
-            i = order[j]
-            r = rec[i]
-            if r != i:
-                out[r] += out[i]
 
 
 @njit(cache=True, nogil=True)

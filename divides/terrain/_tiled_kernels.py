@@ -14,7 +14,16 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from divides.terrain._fill_kernels import D_COL, D_ROW, _heap_pop, _heap_push, _packed_key, grow, padded_copy
+from divides.terrain._fill_kernels import (
+    D_COL,
+    D_ROW,
+    _heap_pop,
+    _heap_push,
+    _heap_replace_top,
+    _packed_key,
+    grow,
+    padded_copy,
+)
 
 _LOW32 = np.uint64(0xFFFFFFFF)
 
@@ -73,12 +82,13 @@ def flood_tile(z, valid, outlets, rows, cols, labels):
     pit = np.empty(1024, dtype=np.int64)
     npit = 0
     while size > 0 or npit > 0:
+        on_top = False  # the cell spread from still holds the heap's root (see _heap_replace_top)
         if npit > 0:
             npit -= 1
             c = pit[npit]
         else:
             c = np.int64(heap[0] & _LOW32)
-            size = _heap_pop(heap, size)
+            on_top = True
         if lab[c] == 0:  # a perimeter seed not reached from a lower one: a new watershed
             lab[c] = next_label
             next_label += 1
@@ -97,10 +107,15 @@ def flood_tile(z, valid, outlets, rows, cols, labels):
                     pit = grow(pit, npit + 1)
                 pit[npit] = nb
                 npit += 1
+            elif on_top:
+                _heap_replace_top(heap, size, _packed_key(is32, bits32, bits64, nb))
+                on_top = False
             else:
                 if size >= heap.size:
                     heap = grow(heap, size + 1)
                 size = _heap_push(heap, size, _packed_key(is32, bits32, bits64, nb))
+        if on_top:
+            size = _heap_pop(heap, size)
     for r in range(rows):
         base = (r + 1) * pc + 1
         for c in range(cols):

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -327,14 +329,12 @@ def _route_conditioned(dem: Dem, cond: Conditioned) -> FlowGraph:
         if n_stuck:
             raise InternalError(f"{n_stuck} cell(s) on flats found no exit after conditioning")
     n_valid = int(np.count_nonzero(valid))
-    order = _k.topological_order(rec, valid, n_valid)
+    order, starts = flow_order(code, valid, rows, cols, n_valid, itype)
     if order.size != n_valid:
         raise InternalError("the receiver graph has a cycle")
     area = np.zeros(n, dtype=np.float64)
-    cell_area = np.repeat(dem.cell_area, cols)
-    cell_area[~valid] = 0.0
-    _k.accumulate_basins(order, rec, _k.basin_starts(order, rec), cell_area, area)
-    del cell_area
+    _k.accumulate_area(order, rec, starts, cols, np.ascontiguousarray(dem.cell_area, dtype=np.float64),
+                       numba.get_num_threads(), area)
     return FlowGraph(
         dem=dem,
         conditioned=cond,
@@ -344,3 +344,55 @@ def _route_conditioned(dem: Dem, cond: Conditioned) -> FlowGraph:
         area=area.reshape(rows, cols),
         n_flat_cells=int(n_flat),
     )
+
+
+def flow_order(code: np.ndarray, valid: np.ndarray, rows: int, cols: int, n_valid: int,
+               itype=np.int32) -> tuple[np.ndarray, np.ndarray]:
+    """Topological order of the valid cells from their D8 codes, and where each outlet's basin starts.
+
+    The order is :func:`~divides.terrain._routing_kernels.topological_order`'s (depth-first
+    from each outlet in index order); ``starts`` holds each basin's first position and
+    ``order.size`` last. On more than one numba thread the basins are ordered on Python
+    threads, each taking the next small group of outlets when it is free (basin sizes are
+    not known beforehand) into a buffer of its own; the groups are then joined in outlet
+    order, so the order is the same on any number of threads. Shorter than ``n_valid``
+    when the codes hold a cycle.
+    """
+    roots = _k.outlet_roots(code, valid)
+    m = roots.size
+    sizes = np.empty(m, dtype=np.int64)
+    threads = numba.get_num_threads()
+    if threads == 1 or m < 2:
+        order = np.empty(n_valid, dtype=itype)
+        end = _k.order_from_codes(code, valid, rows, cols, roots, 0, m, order, 0, np.empty(n_valid, dtype=itype),
+                                  sizes)
+        order = order[:end].copy() if end < n_valid else order
+    else:
+        step = max(1, m // (256 * threads))  # small groups: a few large basins still spread over the threads
+        groups = [(lo, min(lo + step, m)) for lo in range(0, m, step)]
+        claim = iter(range(len(groups)))
+        lock = threading.Lock()
+
+        def work(_):
+            buf, stack = np.empty(n_valid, dtype=itype), np.empty(n_valid, dtype=itype)  # touched as filled
+            end, spans = 0, []
+            while True:
+                with lock:
+                    g = next(claim, None)
+                if g is None:
+                    return buf, spans
+                start = end
+                end = _k.order_from_codes(code, valid, rows, cols, roots, *groups[g], buf, end, stack, sizes)
+                spans.append((g, start, end))
+
+        with ThreadPoolExecutor(max_workers=threads) as pool:
+            done = list(pool.map(work, range(threads)))
+        pieces = [None] * len(groups)
+        for buf, spans in done:
+            for g, a, b in spans:
+                pieces[g] = buf[a:b]
+        order = np.concatenate(pieces).astype(itype, copy=False)
+        del done, pieces
+    starts = np.zeros(m + 1, dtype=np.int64)
+    np.cumsum(sizes, out=starts[1:])
+    return order, starts

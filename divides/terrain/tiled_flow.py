@@ -28,9 +28,8 @@ from divides.errors import InternalError, ParameterError
 from divides.io.dem import Dem
 from divides.io.tiles import ScratchTiles
 from divides.terrain import _fill_kernels as _fk
-from divides.terrain import _routing_kernels as _rk
 from divides.terrain.conditioning import Conditioned, outlet_mask
-from divides.terrain.routing import FlowGraph
+from divides.terrain.routing import FlowGraph, flow_order
 
 __all__ = ["TiledPlan", "route_by_tiles", "tiled_routing", "active_plan", "DEFAULT_TILE"]
 
@@ -164,7 +163,7 @@ def route_by_tiles(dem: Dem, plan: TiledPlan | None = None, *, sea_level: float 
     valid = dem.valid.ravel()
     rec = _receivers(code, cols)
     n_valid = int(np.count_nonzero(valid))
-    order = _rk.topological_order(rec, valid, n_valid)
+    order, _ = flow_order(code, valid, rows, cols, n_valid, rec.dtype)
     if order.size != n_valid:
         raise InternalError("the receiver graph of the tiled routing has a cycle")
     surface = filled if dem.elevation.dtype == np.float32 else filled.astype(dem.elevation.dtype)

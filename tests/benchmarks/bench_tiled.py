@@ -3,7 +3,8 @@
     python tests/benchmarks/bench_tiled.py [--sizes 2000 4000] [--tile 1024] [--mode memory|tiled]
 
 memory: fill + flats + D8 + order + area on the seeded fractal DEM of bench_flow.py, best of
-three after JIT warm-up, with 1 thread and with all numba threads (same result, checked).
+five after JIT warm-up, with 1 thread and with all numba threads (same result, checked): cells/s,
+wall and CPU seconds with the load average, and the wall / CPU seconds of each step.
 tiled: the DEM is written as a tiled GeoTIFF, routed tile by tile (serial scheduler, scratch
 tiles on disk) and the time per tile cell is used to extrapolate to 10⁹ and 10¹⁰ cells on
 a cluster (assumptions printed). Each size runs in a fresh subprocess (peak memory its own).
@@ -20,7 +21,44 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).parent))
 from _harness import peak_rss_mb, sweep  # noqa: E402
-from bench_flow import fractal_dem  # noqa: E402
+from bench_flow import fractal_dem, load_average, warm_up  # noqa: E402
+
+
+def _phases(dem, repeats: int = 3) -> dict:
+    """Wall and CPU seconds of each step of ``route`` (the steps of ``_route_conditioned``), best of ``repeats``."""
+    import numba
+
+    from divides.terrain import _fill_kernels as _fk
+    from divides.terrain import _routing_kernels as _k
+    from divides.terrain.conditioning import fill_depressions, outlet_mask
+    from divides.terrain.routing import flow_order
+
+    rows, cols = dem.shape
+    n = rows * cols
+    best: dict[str, list[float]] = {}
+
+    def clock(name, fn, *args):
+        w, c = time.perf_counter(), time.process_time()
+        out = fn(*args)
+        w, c = time.perf_counter() - w, time.process_time() - c
+        b = best.setdefault(name, [float("inf"), float("inf")])
+        b[0], b[1] = min(b[0], w), min(b[1], c)
+        return out
+
+    for _ in range(repeats):
+        outlets = clock("outlets", outlet_mask, dem)
+        filled = clock("fill", fill_depressions, dem.elevation, dem.valid, outlets)[0]
+        clock("fill totals", _fk.raised_totals, filled.ravel(), dem.elevation.ravel(), rows, cols, dem.cell_area)
+        z, valid = filled.ravel(), dem.valid.ravel()
+        dist = _k.row_distances(dem.dx, dem.dy)
+        rec, code = np.empty(n, dtype=np.int32), np.empty(n, dtype=np.uint8)
+        clock("D8", _k.d8_steepest, z, valid, outlets.ravel(), rows, cols, dist, rec, code)
+        clock("flats", _k.resolve_flats, z, rows, cols, dist, rec, code)
+        n_valid = int(np.count_nonzero(valid))
+        order, starts = clock("order", flow_order, code, valid, rows, cols, n_valid)
+        area = np.zeros(n)
+        clock("drainage area", _k.accumulate_area, order, rec, starts, cols, dem.cell_area, numba.get_num_threads(), area)
+    return {k: [round(v[0], 4), round(v[1], 4)] for k, v in best.items()}
 
 
 def _memory(n: int) -> dict:
@@ -28,21 +66,25 @@ def _memory(n: int) -> dict:
 
     from divides import Dem, route
 
-    route(Dem.from_array(fractal_dem(256, seed=1), cell_size=30.0))  # JIT warm-up (or cache load)
+    warm_up()  # every kernel compiled or loaded from the cache, the parallel ones too
     dem = Dem.from_array(fractal_dem(n), cell_size=30.0)
-    out = {"n": n, "mode": "memory"}
+    out = {"n": n, "mode": "memory", "runs": {}}
     results = {}
-    for threads in (1, numba.config.NUMBA_NUM_THREADS):
+    for threads in sorted({1, numba.config.NUMBA_NUM_THREADS}):
         numba.set_num_threads(threads)
-        best = float("inf")
-        for _ in range(3):
-            t0 = time.perf_counter()
+        best, cpu = float("inf"), float("inf")
+        for _ in range(5):
+            t0, c0 = time.perf_counter(), time.process_time()
             flow = route(dem)
-            best = min(best, time.perf_counter() - t0)
+            best, cpu = min(best, time.perf_counter() - t0), min(cpu, time.process_time() - c0)
         results[threads] = flow
-        out[f"cells_per_s_{threads}"] = round(n * n / best)
-    a, b = results.values()
-    out["identical"] = bool(np.array_equal(a.direction, b.direction) and np.array_equal(a.area, b.area))
+        out["runs"][threads] = {"cells_per_s": round(n * n / best), "wall_s": round(best, 3), "cpu_s": round(cpu, 3),
+                                "load": load_average(), "phases": _phases(dem)}
+    flows = list(results.values())
+    a, b = flows[0], flows[-1]
+    out["identical"] = bool(np.array_equal(a.direction, b.direction) and np.array_equal(a.order, b.order)
+                            and np.array_equal(a.area.view(np.uint64), b.area.view(np.uint64))
+                            and np.array_equal(a.conditioned.surface.view(np.uint32), b.conditioned.surface.view(np.uint32)))
     out["peak_rss_mb"] = peak_rss_mb()
     return out
 
@@ -83,9 +125,14 @@ def run_one(n: int, mode: str, tile: str) -> dict:
 
 def _row(r: dict) -> str:
     if r["mode"] == "memory":
-        threads = [k for k in r if k.startswith("cells_per_s_")]
-        rates = ", ".join(f"{k.rsplit('_', 1)[1]} thread(s) {r[k] / 1e6:.2f} M cells/s" for k in threads)
-        return f"{r['n']:>5}²  in memory: {rates}; identical {r['identical']}; peak RSS {r['peak_rss_mb']} MB"
+        lines = [(f"{r['n']:>5}²  in memory (route: fill + flats + D8 + order + area, best of 5); results identical "
+                  f"on all thread counts: {r['identical']}; peak RSS {r['peak_rss_mb']} MB")]
+        for threads, run in r["runs"].items():
+            lines.append(f"        {threads} thread(s): {run['cells_per_s'] / 1e6:5.2f} M cells/s  (wall {run['wall_s']} s, "
+                         f"CPU {run['cpu_s']} s; load average {run['load']})")
+            lines.append("            per step, wall / CPU s: " + "; ".join(
+                f"{name} {w:.3f}/{c:.3f}" for name, (w, c) in run["phases"].items()))
+        return "\n".join(lines)
     per_cell = r["s_per_mcell"] / 1e6
     lines = [f"{r['n']:>5}²  tiled ({r['tile']}² tiles, {r['tiles']} tiles, {r['crossing_flats']} flats across seams): "
              f"{r['seconds']} s = {r['s_per_mcell']} s per M cells on one worker; scratch "

@@ -71,8 +71,8 @@ def test_all_threads_equal_one_thread(case):
 
 
 @settings(max_examples=40, deadline=None)
-@given(rough_dems())
-def test_basin_accumulation_equals_the_serial_sweep(case):
+@given(rough_dems(), st.integers(0, 2**31 - 1))
+def test_basin_accumulation_equals_the_serial_sweep(case, seed):
     z, geographic, closed = case
     if np.count_nonzero(np.isfinite(z)) < 9:
         return
@@ -80,16 +80,60 @@ def test_basin_accumulation_equals_the_serial_sweep(case):
         flow = _route(z, geographic, closed, 1)
     except DividesError:
         return
-    rng = np.random.default_rng(0)
-    values = rng.random(flow.receivers.size)  # irrational-looking floats: any reordering shows
+    rows, cols = flow.shape
+    rng = np.random.default_rng(seed)
+    row_area = rng.random(rows) * 1e3  # irrational-looking floats: any reordering of a sum shows
+    values = np.where(flow.dem.valid, row_area[:, None], 0.0).ravel()
     serial = np.zeros_like(values)
     _k.accumulate_down(flow.order, flow.receivers, values, serial)
-    parallel = np.zeros_like(values)
-    _k.accumulate_basins(flow.order, flow.receivers, _k.basin_starts(flow.order, flow.receivers), values, parallel)
-    assert np.array_equal(serial.view(np.uint64), parallel.view(np.uint64))
+    _, starts = routing.flow_order(flow.direction, flow.dem.valid.ravel(), rows, cols, flow.order.size)
+    for threads in (1, 2, 3):  # more tasks than basins, or fewer: the same sums
+        parallel = np.zeros_like(values)
+        _k.accumulate_area(flow.order, flow.receivers, starts, cols, row_area, threads, parallel)
+        assert np.array_equal(serial.view(np.uint64), parallel.view(np.uint64))
     # and the sum over the outlets is the total (conservation of water; common practice)
     outlets = flow.outlets
     assert np.isclose(parallel[outlets].sum(), values[flow.order].sum())
+
+
+@settings(max_examples=40, deadline=None)
+@given(rough_dems())
+def test_order_on_threads_equals_the_receiver_list_order(case):
+    # The order read from the codes, on one thread and on groups of outlets on threads, equals the
+    # depth-first order over receiver lists (Braun & Willett 2013), cell for cell.
+    z, geographic, closed = case
+    if np.count_nonzero(np.isfinite(z)) < 9:
+        return
+    try:
+        flow = _route(z, geographic, closed, 1)
+    except DividesError:
+        return
+    rows, cols = flow.shape
+    valid = flow.dem.valid.ravel()
+    n_valid = int(np.count_nonzero(valid))
+    reference = _k.topological_order(flow.receivers, valid, n_valid)
+    outlets = np.flatnonzero(valid & (flow.receivers == np.arange(valid.size)))
+    before = numba.get_num_threads()
+    try:
+        for threads in sorted({1, numba.config.NUMBA_NUM_THREADS}):
+            numba.set_num_threads(threads)
+            order, starts = routing.flow_order(flow.direction, valid, rows, cols, n_valid)
+            assert np.array_equal(order, reference)
+            assert order.dtype == np.int32
+            # each basin is the run between two starts, led by its outlet
+            assert starts[-1] == n_valid and np.array_equal(order[starts[:-1]], outlets)
+    finally:
+        numba.set_num_threads(before)
+
+
+def test_order_stops_short_on_a_cycle():
+    # two cells draining into each other are reached from no outlet: the order is short, which
+    # route() reports as a cycle (common practice: a topological order exists only without cycles)
+    code = np.full(9, 8, dtype=np.uint8)
+    code[4] = 0  # centre drains east...
+    code[5] = 4  # ...and its east neighbour back west
+    order, starts = routing.flow_order(code, np.ones(9, dtype=bool), 3, 3, 9)
+    assert order.size == 7 and 4 not in order and 5 not in order and starts[-1] == 7
 
 
 def test_small_grids_leave_the_thread_count_as_it_was():
