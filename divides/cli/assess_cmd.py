@@ -514,6 +514,8 @@ def assess(
     conditioning: opt.ConditioningOption = "fill",
     tiled: opt.TiledOption = False,
     scratch: opt.ScratchOption = None,
+    workers: opt.TileWorkersOption = None,
+    scheduler: opt.TileSchedulerOption = None,
     runoff_alias: RunoffAlias = None,
     erodibility_alias: ErodibilityAlias = None,
     uplift_alias: UpliftAlias = None,
@@ -534,7 +536,8 @@ def assess(
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
     route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
-    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning)
+    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning, workers=workers,
+                                 scheduler=scheduler)
     request = assess_request(
         side_a=side_a, side_b=side_b, lonlat=lonlat, theta=theta, channel_area=channel_area,
         reference_area=reference_area, base_level=base_level, dem_error=dem_error, erosion_rate_a=erosion_rate_a,

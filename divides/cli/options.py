@@ -39,6 +39,8 @@ __all__ = [
     "DemOptions",
     "TiledOption",
     "ScratchOption",
+    "TileWorkersOption",
+    "TileSchedulerOption",
     "TiledOptions",
     "tiled_options",
     "RouteOptions",
@@ -162,6 +164,17 @@ ScratchOption = Annotated[
         "about 19 B per DEM cell).",
         show_default=False,
     ),
+]
+TileWorkersOption = Annotated[
+    int | None,
+    typer.Option("--workers", min=1, metavar="N", show_default=False,
+                 help="Threads routing the tiles when routing goes by tiles (Dask tasks); default: every core."),
+]
+TileSchedulerOption = Annotated[
+    str | None,
+    typer.Option("--scheduler", metavar="ADDRESS", show_default=False,
+                 help="When routing goes by tiles, run the tiles as tasks on an existing Dask cluster "
+                 "(e.g. tcp://10.0.0.5:8786; its workers must see the DEM and --scratch at the same paths)."),
 ]
 
 
@@ -470,11 +483,14 @@ def route_options(
 
 @dataclass(frozen=True)
 class TiledOptions:
-    """``--tiled`` and ``--scratch``, checked; :meth:`read` reads the DEM and picks in-memory or tiled routing."""
+    """``--tiled``, ``--scratch`` and where tiles run (``--workers``, ``--scheduler``), checked; :meth:`read`
+    reads the DEM and picks in-memory or tiled routing."""
 
     tiled: bool = False
     scratch: str | None = None
     conditioning: str = "fill"
+    workers: int | None = None
+    scheduler: str | None = None
 
     def read(self, read: DemOptions, task: str, remedy: str):
         """Read the DEM under the memory guard and choose how to route it.
@@ -505,12 +521,14 @@ class TiledOptions:
         dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         cells = dem.shape[0] * dem.shape[1]
         auto = self.conditioning == "fill" and not fits(cells, in_memory)
-        plan = TiledPlan(scratch=self.scratch) if self.tiled or auto else None
+        plan = (TiledPlan(scratch=self.scratch, workers=self.workers, scheduler=self.scheduler)
+                if self.tiled or auto else None)
         return dem, plan
 
 
-def tiled_options(tiled: bool = False, scratch: str | None = None, *, conditioning: str = "fill") -> TiledOptions:
-    """Check ``--tiled`` and ``--scratch`` before any work.
+def tiled_options(tiled: bool = False, scratch: str | None = None, *, conditioning: str = "fill",
+                  workers: int | None = None, scheduler: str | None = None) -> TiledOptions:
+    """Check ``--tiled`` and ``--scratch`` before any work; ``workers``/``scheduler`` say where tiles run.
 
     Raises
     ------
@@ -529,7 +547,7 @@ def tiled_options(tiled: bool = False, scratch: str | None = None, *, conditioni
         if not os.access(parent, os.W_OK | os.X_OK):
             raise OutputError(f"--scratch '{scratch}': cannot write in '{parent}'; give a writable folder")
         scratch = str(folder)
-    return TiledOptions(tiled=tiled, scratch=scratch, conditioning=conditioning)
+    return TiledOptions(tiled=tiled, scratch=scratch, conditioning=conditioning, workers=workers, scheduler=scheduler)
 
 
 @contextlib.contextmanager

@@ -7,7 +7,6 @@ work; numpy, rasterio and numba are imported inside the function so that
 
 from __future__ import annotations
 
-import dataclasses
 import json
 from pathlib import Path
 from typing import Annotated
@@ -125,7 +124,8 @@ def screen(
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
     route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
-    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning)
+    # The tiles run where the segments run: this machine's threads, or the cluster.
+    by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning, workers=workers, scheduler=scheduler)
     level = opt.parse_choice(level, option="--level", choices=LEVEL_CHOICES)
     theta_value = opt.parse_bounded(theta, option="--theta", unit="(m/n)", low=0, high=2,
                                     typical="0.35 to 0.6 in most rivers")
@@ -158,8 +158,6 @@ def screen(
 
         # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
         dem_obj, plan = by_tiles.read(read, "screen", "screen a smaller window with --bounds")
-        if plan is not None:  # the tiles run where the segments run: this machine's threads, or the cluster
-            plan = dataclasses.replace(plan, workers=workers, scheduler=scheduler)
         check_enough_cells(dem_obj)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
