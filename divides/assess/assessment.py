@@ -92,6 +92,8 @@ class Assessment:
     rate_at_divide : dict or None
         The rate from crest kinematics at the divide (near-divide erosion and flank gradients), or why
         it is withheld; ``rate`` is the forward run's when that gives one, else this.
+    forward_run : ForwardShift or None
+        The forward run from the DEM (None when it was not made).
     """
 
     config: AssessConfig
@@ -114,6 +116,7 @@ class Assessment:
     rate_withheld: str | None = None
     forward_rate: dict | None = None
     rate_at_divide: dict | None = None
+    forward_run: ForwardShift | None = None
 
     @property
     def summary(self) -> dict:
@@ -998,4 +1001,5 @@ def assess(
                       base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
                       knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
-                      rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide)
+                      rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide,
+                      forward_run=forward)
