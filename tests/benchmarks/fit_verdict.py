@@ -378,6 +378,8 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     if args.part == "training" and (args.write or args.pooled or args.training_also):
         parser.error("--part training judges the training part alone: no --write, --pooled or --training-also")
+    if args.write == "forward" and args.forward is None:
+        parser.error("--write forward needs --forward (the forward runs' shifts)")
 
     from divides.assess import evidence
 
