@@ -92,6 +92,8 @@ class Assessment:
     rate_at_divide : dict or None
         The rate from crest kinematics at the divide (near-divide erosion and flank gradients), or why
         it is withheld; ``rate`` is the forward run's when that gives one, else this.
+    forward_run : ForwardShift or None
+        The forward run from the DEM (None when it was not made).
     """
 
     config: AssessConfig
@@ -114,6 +116,7 @@ class Assessment:
     rate_withheld: str | None = None
     forward_rate: dict | None = None
     rate_at_divide: dict | None = None
+    forward_run: ForwardShift | None = None
 
     @property
     def summary(self) -> dict:
@@ -664,7 +667,8 @@ def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
     where = (f"{abs(shift):.2f} model cells toward {names['b' if shift > 0 else 'a']}"
              if abs(shift) >= FORWARD_NOISE_CELLS else f"less than {FORWARD_NOISE_CELLS:g} model cell (no direction)")
     out = [f"Forward run (the model run from this DEM for {FORWARD_HORIZON_TAU:g} response times, erodibility "
-           f"unknown, uplift balancing the present landscape): the divide moved {where}."]
+           f"unknown, uplift and hillslope diffusivity holding the present landscape in steady state): the divide "
+           f"moved {where}."]
     near = verdict.near_divide_probabilities
     if near is None and verdict.basis == "forward run":
         out.append("The near-divide measures have too few independent samples: the forward run speaks alone.")
@@ -748,11 +752,13 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
         lines.append(f"Robustness: {verdict.robustness_share:.0%} of re-runs with perturbed inputs (DEM error, "
                      "channel threshold, and θ when χ could decide) kept this verdict.")
     if rate is not None:
+        how = (f", by the forward run from this DEM, corrected for its bias on model landscapes (about "
+               f"{_sig2(float(np.exp(FORWARD_RATE_LOG_BIAS)))} times too slow there)."
+               if rate.get("method") == "forward run" else
+               ", by crest kinematics at the divide (erosion next to it over the flank gradients).")
         lines.append(f"Migration rate toward {names[rate['toward']]}: {_sig2(rate['best'])} mm/yr "
-                     f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from {_given(config, names) or cal.source}"
-                     + (", by the forward run from this DEM, corrected for its bias on model landscapes (about 3 times "
-                        "too slow there)." if rate.get("method") == "forward run" else
-                        ", by crest kinematics at the divide (erosion next to it over the flank gradients)."))
+                     f"(95 % interval {_sig2(rate['low'])} to {_sig2(rate['high'])}) from "
+                     f"{_given(config, names) or cal.source}{how}")
         lines += [f"Note: {f}." for f in rate["flags"]]
     elif withheld:
         lines.append(f"No migration rate: {withheld.removeprefix('rate withheld: ')}.")
@@ -998,4 +1004,5 @@ def assess(
                       base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
                       knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
-                      rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide)
+                      rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide,
+                      forward_run=forward)

@@ -531,19 +531,21 @@ def prepare(grid: Dem, sides: Sides, *, factor: int, closed_edges: tuple[str, ..
 
 @dataclass(frozen=True, eq=False)
 class SideGround:
-    """Drainage area and slope of one side's cells on the model grid (what its A^m S^n is made of).
+    """Drainage area, slope and curvature of one side's cells on the model grid (what its A^m S^n and its
+    steady balance are made of).
 
     Attributes
     ----------
     log_area, log_slope : ndarray
         ln A (m²) and ln S of every cell of the side (ln S = −inf where the cell has no slope).
-    channel : ndarray of bool
-        The side's reference channels among them (those whose median erosion sets the balancing uplift).
+    curvature : ndarray
+        ∇²z (1/m) of every cell (:func:`laplacian`; NaN on the grid's edge): with the cells that have a
+        slope, what the steady balance (:func:`steady_balance`) is fitted over.
     """
 
     log_area: np.ndarray
     log_slope: np.ndarray
-    channel: np.ndarray
+    curvature: np.ndarray
 
 
 #: Exponent draws evaluated at once (bounds the temporary arrays to about 32 x the model grid).
@@ -557,14 +559,26 @@ def _exponents(theta: np.ndarray | float, n: np.ndarray | float) -> tuple[np.nda
     return (th * nn).ravel(), nn.ravel()
 
 
-def _powers(log_area: np.ndarray, log_slope: np.ndarray, m: np.ndarray, n: np.ndarray, how: str) -> np.ndarray:
-    """Mean (``how="mean"``) or median of A^m S^n over the cells, for each pair of exponents (m_i, n_i)."""
+def _powers(log_area: np.ndarray, log_slope: np.ndarray, m: np.ndarray, n: np.ndarray,
+            curvature: np.ndarray | None = None) -> np.ndarray:
+    """For each pair of exponents (m_i, n_i), the mean of A^m S^n over the cells, or with ``curvature`` (∇²z of
+    the same cells, all with a slope) the uplift of the steady balance at K = 1 over them: the least-squares
+    intercept of A^m S^n on ∇²z, its slope D clipped at 0 (:func:`steady_balance`, one U for both sides)."""
     out = np.empty(m.size)
+    if curvature is not None:
+        if curvature.size == 0:
+            return np.zeros(m.size)
+        centred = curvature - np.mean(curvature)
+        spread = float(np.sum(centred * centred))
+        fit_d = curvature.size >= _MIN_BALANCE_CELLS and spread > 0
     for s in range(0, m.size, _DRAW_CHUNK):
         log_p = m[s:s + _DRAW_CHUNK, None] * log_area[None, :] + n[s:s + _DRAW_CHUNK, None] * log_slope[None, :]
         power = np.exp(log_p)  # n > 0: a cell without slope (ln S = −inf) has power 0
-        out[s:s + _DRAW_CHUNK] = np.mean(power, axis=1) if how == "mean" else np.median(power, axis=1)
-    return out
+        out[s:s + _DRAW_CHUNK] = np.mean(power, axis=1)
+        if curvature is not None and fit_d:  # U = mean(A^m S^n) − D mean(∇²z), D = cov / var
+            d = np.maximum(power @ centred / spread, 0.0)
+            out[s:s + _DRAW_CHUNK] -= d * float(np.mean(curvature))
+    return out if curvature is None else np.maximum(out, 0.0)
 
 
 @dataclass(frozen=True, eq=False)
@@ -578,16 +592,17 @@ class ForwardShift:
     cell_m : float
         Model cell size (m).
     years_unit_k : float
-        The horizon in years for K = 1 (SI units). Time scales as 1/K (E = K (A^m S^n − c) with
-        uplift balancing at the same K), so for a landscape of erodibility K the horizon is
-        ``years_unit_k / K`` and the divide moves at ``K * shift_cells * cell_m / years_unit_k`` m/yr.
+        The horizon in years for K = 1 (SI units). Time scales as 1/K (uplift and diffusivity of the steady
+        balance both scale with K, so dz/dt = K (c + d ∇²z − A^m S^n)), so for a landscape of erodibility K
+        the horizon is ``years_unit_k / K`` and the divide moves at ``K * shift_cells * cell_m / years_unit_k``
+        m/yr.
     power_a, power_b : float
         Mean of A^m S^n over each side's cells of the model grid at the start: a side's
         basin-averaged erosion rate E gives K = E / power.
     theta, n : float
         Exponents of the run (m = θ n); NaN when not recorded.
     ground : (SideGround, SideGround) or None
-        Each side's cells on the model grid, to evaluate A^m S^n at other exponents
+        Each side's cells on the model grid, to evaluate A^m S^n and the steady balance at other exponents
         (:meth:`side_powers`, :meth:`balance_power`); None when not recorded.
     reference : (float, float) or None
         Drainage area (m²) and slope of the run's reference channel: the channel threshold and the
@@ -613,16 +628,18 @@ class ForwardShift:
         """Mean of A^m S^n over each side's cells at exponents (θ_i, n_i) (``power_a``/``power_b`` at the run's)."""
         self._need_ground()
         m, nn = _exponents(theta, n)
-        a, b = (_powers(g.log_area, g.log_slope, m, nn, "mean") for g in self.ground)
+        a, b = (_powers(g.log_area, g.log_slope, m, nn) for g in self.ground)
         return a, b
 
     def balance_power(self, theta: np.ndarray | float, n: np.ndarray | float) -> np.ndarray:
-        """The balancing uplift at K = 1 at exponents (θ_i, n_i): the mean of both sides' median A^m S^n
-        over their reference channels (:func:`balance_uplift`); it sets the run's time scale, relief / U."""
+        """The run's uplift at K = 1 at exponents (θ_i, n_i): the steady balance over both sides' cells with a
+        slope and a full stencil (:func:`steady_balance`); it sets the run's time scale, relief / U."""
         self._need_ground()
         m, nn = _exponents(theta, n)
-        a, b = (_powers(g.log_area[g.channel], g.log_slope[g.channel], m, nn, "median") for g in self.ground)
-        return 0.5 * (a + b)
+        cells = [np.isfinite(g.log_slope) & np.isfinite(g.curvature) for g in self.ground]
+        pick = [np.concatenate([getattr(g, k)[c] for g, c in zip(self.ground, cells)])
+                for k in ("log_area", "log_slope", "curvature")]
+        return _powers(pick[0], pick[1], m, nn, pick[2])
 
     def reference_power(self, theta: np.ndarray | float, n: np.ndarray | float) -> np.ndarray:
         """A^m S^n of the reference channel at exponents (θ_i, n_i)."""
@@ -655,16 +672,18 @@ class ForwardShift:
 
 def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edges: tuple[str, ...],
                   channel_area_m2: float, horizon_tau: float = FORWARD_HORIZON_TAU,
-                  max_steps: int = 60, uplift_mode: str = "uniform") -> ForwardShift:
+                  max_steps: int = 60) -> ForwardShift:
     """Evidence from a short forward run: the divide's shift over a fraction of the response time, in cells.
 
-    One run of the forward model from the DEM with K unknown: K = 1 is used and
-    uplift balances the landscape ("uniform", the mean of both sides' median channel
-    erosion rates), so uplift scales with K and E = K (A^m S^n − c) makes time scale
-    as 1/K whatever n. With no hillslope diffusion the shift over a horizon given in
-    response times therefore does not depend on K (Royden & Perron 2013: K only
-    rescales time). The response time is relief / U (the landscape's relief over the
-    balancing uplift rate; Whipple 2001), the horizon ``horizon_tau`` of it.
+    One run of the forward model from the DEM with K unknown: K = 1 is used, and uplift U and
+    diffusivity D are those that hold the present surface in the model's steady state
+    (:func:`steady_balance`: U = K A^m S^n − D ∇²z by least squares over both sides' cells;
+    Perron, Kirchner & Dietrich 2009), one U for the whole landscape. A lopsided steady divide then
+    stays put while a transient, which no single U and D balance, moves it. U and D scale with K,
+    so dz/dt = K (c + d ∇²z − A^m S^n) and time scales as 1/K whatever n: the shift over a horizon
+    given in response times does not depend on K (Royden & Perron 2013: K only rescales time).
+    The response time is relief / U (the landscape's relief over the run's uplift; Whipple 2001),
+    the horizon ``horizon_tau`` of it.
 
     Parameters
     ----------
@@ -680,42 +699,33 @@ def forward_shift(dem: Dem, sides: Sides, *, theta: float, n: float, closed_edge
         Horizon in response times.
     max_steps : int
         Most time steps (>= 20): the run is a cheap line of evidence, not a forecast.
-    uplift_mode : str
-        ``"uniform"``: one uplift rate, the mean of both sides' channel erosion rates (a
-        lopsided steady divide then moves); ``"sides"``: each side uplifted at its own
-        channel erosion rate, so that only what is out of balance within a side (a
-        transient) moves the divide.
 
     Returns
     -------
     ForwardShift
         The shift in model cells (positive into side b; 0 when the landscape has no relief to
-        erode, NaN when the divide left the grid) and what turns it into a rate.
+        erode or nothing to balance, NaN when the divide left the grid) and what turns it into a rate.
     """
-    if uplift_mode not in ("uniform", "sides"):
-        raise ParameterError(f"`uplift_mode` must be 'uniform' or 'sides'; got {uplift_mode!r}")
     grid, factor = coarsen(dem)
     setup = prepare(grid, sides, factor=factor, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     m = theta * n
-    with np.errstate(divide="ignore"):  # ln 0 = −inf: a cell without slope has A^m S^n = 0
+    with np.errstate(divide="ignore", invalid="ignore"):  # ln 0 = −inf: a cell without slope has A^m S^n = 0
         log_area = np.log(np.asarray(setup.flow.area, dtype=np.float64).ravel())
         log_slope = np.log(slopes(setup.flow))
-    ground = []
-    for mask in (setup.mask_a, setup.mask_b):
-        cells = np.flatnonzero(mask.ravel())
-        channel = np.isin(cells, _channel_cells(setup, mask), assume_unique=True)
-        ground.append(SideGround(log_area[cells], log_slope[cells], channel))
-    power_a, power_b = (float(_powers(g.log_area, g.log_slope, np.array([m]), np.array([float(n)]), "mean")[0])
+    curvature = laplacian(grid).ravel()
+    ground = tuple(SideGround(log_area[mask.ravel()], log_slope[mask.ravel()], curvature[mask.ravel()])
+                   for mask in (setup.mask_a, setup.mask_b))
+    power_a, power_b = (float(_powers(g.log_area, g.log_slope, np.array([m]), np.array([float(n)]))[0])
                         for g in ground)
     cell = float(min(np.min(grid.dx), np.min(grid.dy)))
-    u_a, u_b, s_ref, a_ref = balance_uplift(setup, np.asarray(1.0), m, n)
-    recorded = {"theta": float(theta), "n": float(n), "ground": (ground[0], ground[1]), "reference": (a_ref, s_ref)}
+    _, _, s_ref, a_ref = balance_uplift(setup, np.asarray(1.0), m, n)
+    recorded = {"theta": float(theta), "n": float(n), "ground": ground, "reference": (a_ref, s_ref)}
     z = np.where(setup.mask_a | setup.mask_b, grid.elevation, np.nan)
     relief = float(np.nanmax(z) - np.nanmin(z))
-    uplift = 0.5 * (u_a + u_b)
+    uplift = steady_balance(setup, 1.0, m, n).uplift[0]
     if not (relief > 0 and uplift > 0):
         return ForwardShift(0.0, cell, math.inf, power_a, power_b, **recorded)
     years = horizon_tau * relief / uplift
-    run = run_model(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=years,
-                    uplift_mode=uplift_mode, diffusivity=0.0, max_steps=int(max_steps))
+    run = run_model(setup, label="evidence", theta=theta, n=n, k=(1.0, 1.0), years=years, uplift_mode="uniform",
+                    diffusivity=None, max_steps=int(max_steps), balance="steady")
     return ForwardShift(float(run.displacement_m[-1]) / cell, cell, years, power_a, power_b, **recorded)

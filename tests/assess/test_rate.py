@@ -383,11 +383,12 @@ def test_the_dem_error_carried_into_the_forward_rate_scales_it_and_only_widens_i
 
 def _steady_ground(ks_a: float, ks_b: float, theta: float = 0.45):
     """A forward shift over two steady channel profiles of Flint's law S = ks A^-θ (Flint 1974; Whipple & Tucker
-    1999: steady state under uniform U and K at the true θ), A = 1..21 x 1e4 m² on each side, all channels."""
+    1999: steady state under uniform U and K at the true θ), A = 1..21 x 1e4 m² on each side, all channels (no
+    curvature: the steady balance has no hillslope term, D = 0)."""
     from divides.model.forward_run import ForwardShift, SideGround
 
     area = np.arange(1, 22.0) * 1e4
-    ground = tuple(SideGround(np.log(area), np.log(ks * area**-theta), np.ones(area.size, bool)) for ks in (ks_a, ks_b))
+    ground = tuple(SideGround(np.log(area), np.log(ks * area**-theta), np.zeros(area.size)) for ks in (ks_a, ks_b))
     power = [float(np.mean((ks * area**-theta) * area**theta)) for ks in (ks_a, ks_b)]  # n = 1: ks
     return ForwardShift(shift_cells=0.5, cell_m=30.0, years_unit_k=2.0, power_a=power[0], power_b=power[1],
                         theta=theta, n=1.0, ground=ground, reference=(1e4, ks_a * 1e4**-theta))
@@ -402,7 +403,8 @@ def test_exponents_drawn_for_the_forward_rate_follow_the_slope_area_law_by_hand(
     th, n = np.array([0.45, 0.45, 0.5, 0.4]), np.array([1.0, 1.2, 1.0, 0.8])
     area = np.arange(1, 22.0) * 1e4
     d = (th - theta) * n
-    hand_u = 0.5 * (40.0**n + 20.0**n) * (11e4) ** d  # the median channel of 21 is the 11th, A = 11e4 m²
+    # the run's uplift: with no curvature the steady balance U = mean of A^m S^n over both sides' 42 cells
+    hand_u = 0.5 * (40.0**n + 20.0**n) * np.array([np.mean(area**x) for x in d])
     np.testing.assert_allclose(run.balance_power(th, n), hand_u, rtol=1e-9)
     hand_a = 40.0**n * np.array([np.mean(area**x) for x in d])
     np.testing.assert_allclose(run.side_powers(th, n)[0], hand_a, rtol=1e-9)

@@ -67,7 +67,42 @@ def _one(s, mode: str, cache: dict) -> dict:
             "truth_mm_yr": abs(s.truth["rate_m_per_yr"]) * 1e3, "verdict": v.moves_toward,
             "rate": r, "withheld": a.rate_withheld, "forward_rate": a.forward_rate,
             "rate_at_divide": a.summary["verdict"]["rate_at_divide_mm_per_yr"],
-            "forward_shift_cells": v.forward_shift_cells, "seconds": time.perf_counter() - t}
+            "forward_shift_cells": v.forward_shift_cells,
+            "forward_run": None if a.forward_run is None else
+            {"shift_cells": a.forward_run.shift_cells, "years_unit_k": a.forward_run.years_unit_k,
+             "cell_m": a.forward_run.cell_m},
+            "K": float(p["K"]), "seconds": time.perf_counter() - t}
+
+
+def _bias(recs: list[dict]) -> None:
+    """The forward run's bias (ln measured / unbiased run rate) and log-spread on these records, with the
+    leave-one-out share within a factor of 2 and covered by the bias ± 1.96 spread.
+
+    Cases: K given, the verdict right, and the run moving the divide at least 0.1 cell its way (exactly the
+    cases that get a forward rate); the run's rate with the true K is K x shift x cell / years at K = 1.
+    """
+    logs = []
+    for r in recs:
+        run = r.get("forward_run")
+        if r["mode"] != "K" or r["verdict"] != r["truth"] or run is None or not np.isfinite(run["years_unit_k"]):
+            continue
+        if abs(run["shift_cells"]) < 0.1 or ("b" if run["shift_cells"] > 0 else "a") != r["verdict"]:
+            continue
+        unbiased = r["K"] * abs(run["shift_cells"]) * run["cell_m"] / run["years_unit_k"] * 1e3
+        logs.append(np.log(r["truth_mm_yr"] / unbiased))
+    x = np.asarray(logs)
+    if x.size < 3:
+        print("\nforward run's bias: fewer than 3 cases")
+        return
+    within = covered = 0
+    for i in range(x.size):
+        rest = np.delete(x, i)
+        within += abs(x[i] - rest.mean()) <= np.log(2.0)
+        covered += abs(x[i] - rest.mean()) <= 1.96 * rest.std(ddof=1)
+    print(f"\nforward run's bias on {x.size} cases (K given, verdict right, run >= 0.1 cell its way): "
+          f"FORWARD_RATE_LOG_BIAS = {x.mean():.3f} (x{np.exp(x.mean()):.2g}), FORWARD_RATE_LOG_SPREAD = "
+          f"{x.std(ddof=1):.3f}; leave-one-out within x2 {within} ({within / x.size:.0%}), covered {covered} "
+          f"({covered / x.size:.0%})")
 
 
 def _summary(recs: list[dict], key: str, title: str, factor: float) -> None:
@@ -143,6 +178,8 @@ def main(argv: list[str] | None = None) -> int:
                            ("forward_rate", "forward run's rate")):
             _summary([r for r in done.values() if r["mode"] == mode], key, f"{args.split}, {mode} given, {label}",
                      factor)
+    if args.split == "training":  # the bias is learnt on the training part only
+        _bias(list(done.values()))
     return 0
 
 

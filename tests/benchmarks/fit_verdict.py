@@ -23,6 +23,10 @@
 4. Printed per part and per family: the confusion of truth and verdict and the
    targets of the verdict issue; the ECE; optionally a reliability diagram (PNG).
 
+``--part training`` keeps the training part only (forward runs made, models selected and judged on it
+alone; nothing written): the check of a change on training before any held-out landscape is run.
+``--write forward`` writes the forward model only (the near-divide model file is left as it is).
+
 ``--shipped`` judges the models shipped in divides/assess/ as they are (nothing is fitted),
 e.g. on a benchmark drawn with another master seed. ``--training-also SEED LO HI CONTRASTS
 FORWARD`` (repeatable) adds every landscape of another benchmark to the training part (one
@@ -318,7 +322,9 @@ def _document(model, label, l2, results, summary, args) -> dict:
 
 def _parts(args) -> tuple[str, ...]:
     """The parts judged: training and held-out, or one part of every landscape (``--pooled``)."""
-    return ("all",) if args.pooled else ("training", "held-out")
+    if args.pooled:
+        return ("all",)
+    return ("training",) if args.part == "training" else ("training", "held-out")
 
 
 def _diagram(summaries: dict, path: Path) -> None:
@@ -355,7 +361,10 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--contrasts", type=Path, default=Path("/work/benchrun/contrasts.jsonl"))
     parser.add_argument("--available", action="store_true", help="use only landscapes already in --contrasts")
     parser.add_argument("--min-confidence", type=float, default=0.8)
-    parser.add_argument("--write", action="store_true", help="write the model(s) into divides/assess/")
+    parser.add_argument("--write", nargs="?", const="both", choices=("both", "forward"), default=None,
+                        help="write both models (or with 'forward' the forward model only) into divides/assess/")
+    parser.add_argument("--part", choices=("all", "training"), default="all",
+                        help="'training': the training part alone (nothing held out is run or judged; no --write)")
     parser.add_argument("--forward", type=Path, default=None,
                         help="JSON lines of forward-run shifts (index, shift_cells; made when missing): fit and judge "
                              "the model that also reads the forward run")
@@ -367,6 +376,10 @@ def main(argv: list[str] | None = None) -> int:
                         metavar=("SEED", "LO", "HI", "CONTRASTS", "FORWARD"),
                         help="another benchmark whose landscapes all join the training part")
     args = parser.parse_args(argv)
+    if args.part == "training" and (args.write or args.pooled or args.training_also):
+        parser.error("--part training judges the training part alone: no --write, --pooled or --training-also")
+    if args.write == "forward" and args.forward is None:
+        parser.error("--write forward needs --forward (the forward runs' shifts)")
 
     from divides.assess import evidence
 
@@ -381,7 +394,7 @@ def main(argv: list[str] | None = None) -> int:
             part = [r for r in part if r["index"] < args.n]
         else:
             part = _extract(args.n, seed, grid, contrasts)
-        part = [r for r in part if r["truth"] is not None]
+        part = [r for r in part if r["truth"] is not None and (args.part == "all" or r["split"] == "training")]
         shifts = {} if forward is None else _forward(part, seed, grid, forward)
         for r in part:
             r["set"] = f"seed {seed}, grid {grid[0]}-{grid[1]}"
@@ -408,17 +421,22 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     print("\n==== near-divide measures only")
     near = _select_and_judge(recs, args)
-    docs, summaries = {False: _document(*near, args)}, {"near-divide measures": near[4]}
+    held = args.part == "all"  # the documents carry held-out reliability bins
+    docs, summaries = {False: _document(*near, args)} if held else {}, {"near-divide measures": near[4]}
     if args.forward is not None:
         print("\n==== near-divide measures and the forward run")
         fwd = _select_and_judge(recs, args, forward=True, near_model=near[0])
-        docs[True], summaries["forward run in the model"] = _document(*fwd, args), fwd[4]
+        if held:
+            docs[True] = _document(*fwd, args)
+        summaries["forward run in the model"] = fwd[4]
         print("\n==== near-divide measures decide, the forward run can only veto (lines disagree)")
         names = near[0].features
         _out_of_fold([r for r in recs if r["split"] == "training"], names, near[2], False, near[0], args, veto=True)
         summaries["forward run as veto"] = _judge(recs, args, near[0], near_model=near[0], veto=True)
     if args.write:
         for forward, doc in docs.items():
+            if args.write == "forward" and not forward:
+                continue
             OUT[forward].write_text(json.dumps(doc, indent=1, allow_nan=False) + "\n")
             print(f"wrote {OUT[forward]}")
     if args.png is not None:

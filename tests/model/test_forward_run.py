@@ -48,15 +48,6 @@ def test_the_shift_does_not_depend_on_the_scale_of_relief_for_n_1():
     assert _shift(_planes(0.2, 0.1, scale=3.0)) == pytest.approx(_shift(_planes(0.2, 0.1)), rel=1e-6, abs=1e-9)
 
 
-def test_uplift_balanced_per_side_keeps_a_lopsided_steady_divide():
-    # Each side uplifted at its own erosion rate: U_a - E_a = U_b - E_b = 0, so the crest does not
-    # move (crest kinematics; Gilbert 1877, Forte & Whipple 2018) however lopsided the flanks.
-    lopsided = _planes(0.2, 0.1)
-    assert abs(_shift(lopsided, uplift_mode="sides")) < 0.5 < _shift(lopsided)
-    with pytest.raises(ParameterError, match="uplift_mode"):
-        _shift(lopsided, uplift_mode="tilted")
-
-
 def test_coarsen_is_a_block_mean():
     # 2 x 2 block means of 0..35 laid out 6 x 6: the first block holds 0, 1, 6, 7 (mean 3.5; arithmetic)
     small, f = coarsen(divides.Dem.from_array(np.arange(36.0).reshape(6, 6), cell_size=10.0), max_cells=3)
@@ -67,16 +58,20 @@ def test_coarsen_is_a_block_mean():
 def test_a_run_at_erodibility_k_moves_the_divide_as_the_unit_run_scaled_in_time(n):
     # dz/dt = K (c - A^m S^n) with uplift balancing at the same K: the solution at K over time t equals
     # the one at K = 1 over K t (Royden & Perron 2013), so the rate of the divide is K x the unit rate.
-    from divides.model.forward_run import balance_uplift, prepare, run_model
+    # U and D of the steady balance both scale with K (U = K A^m S^n - D lap z), so they do too.
+    from divides.model.forward_run import prepare, run_model, steady_balance
 
     dem = _planes(0.2, 0.1)
     sides = resolve_sides(route(dem, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
     unit = forward_shift(dem, sides, theta=0.3, n=n, closed_edges=CLOSED, channel_area_m2=3e4)
     k = 3e-5
     setup = prepare(dem, sides, factor=1, closed_edges=CLOSED, channel_area_m2=3e4)
-    assert balance_uplift(setup, np.asarray(k), 0.3 * n, n)[0] > 0
+    fit_k, fit_1 = steady_balance(setup, k, 0.3 * n, n), steady_balance(setup, 1.0, 0.3 * n, n)
+    assert fit_k.uplift[0] > 0 and fit_k.diffusivity > 0
+    assert fit_k.uplift[0] == pytest.approx(k * fit_1.uplift[0], rel=1e-9)
+    assert fit_k.diffusivity == pytest.approx(k * fit_1.diffusivity, rel=1e-9)
     run = run_model(setup, label="K", theta=0.3, n=n, k=(k, k), years=unit.years_unit_k / k, uplift_mode="uniform",
-                    diffusivity=0.0, max_steps=60)
+                    diffusivity=None, max_steps=60, balance="steady")
     measured = run.displacement_m[-1] / (unit.years_unit_k / k)
     assert float(unit.rate_m_per_yr(k)) == pytest.approx(measured, rel=1e-6)
     assert measured > 0  # into the gentler side b (Gilbert 1877)
@@ -104,12 +99,17 @@ def test_a_side_s_power_at_other_exponents_is_the_mean_over_gilbert_s_planes():
     np.testing.assert_allclose(power_a, hand_a, rtol=1e-9)
     np.testing.assert_allclose(power_b, hand_b, rtol=1e-9)
     assert run.power_a == pytest.approx(hand_a[0], rel=1e-9)  # the run's own exponents: the recorded power
-    # The balancing uplift (K = 1): the mean of each side's median A^m S^n over its channels (A >= 3e4 m²):
-    # side a has 6 rows of A = 3..10 x 1e4 (median between 6 and 7), side b 6 rows of 3..19 x 1e4 (median 11).
-    hand_u = 0.5 * (0.5 * ((6e4) ** m + (7e4) ** m) * 0.2**n + (11e4) ** m * 0.1**n)
-    np.testing.assert_allclose(run.balance_power(theta, n), hand_u, rtol=1e-9)
+    # The run's uplift (K = 1), the steady balance U = A^m S^n - D lap z (Perron et al. 2009) by least squares
+    # over the cells with a slope and a full stencil: rows 1-4, columns 1-29. lap z is 0 on the planes and
+    # (180 + 190 - 2 x 200) / 100² = -0.003 on the crest column (A = 1e4, S = 0.2) alone, so the fitted line
+    # passes through the mean of the plane cells: U is the mean of A^m S^n over columns 1-9 (A = 2..10 x 1e4,
+    # S = 0.2) and 11-29 (A = 1..19 x 1e4, S = 0.1), provided D = (U - crest) / 0.003 comes out positive.
+    plane = np.array([(np.sum((np.arange(2, 11.0) * 1e4) ** mm * 0.2**nn)
+                       + np.sum((np.arange(1, 20.0) * 1e4) ** mm * 0.1**nn)) / 28 for mm, nn in zip(m, n)])
+    assert np.all(plane > 1e4**m * 0.2**n)  # D > 0: not clipped
+    np.testing.assert_allclose(run.balance_power(theta, n), plane, rtol=1e-9)
     # it sets the run's time scale: the horizon is 0.3 x relief (200 m) / U at the run's exponents
-    assert run.years_unit_k == pytest.approx(0.3 * 200.0 / hand_u[0], rel=1e-9)
+    assert run.years_unit_k == pytest.approx(0.3 * 200.0 / plane[0], rel=1e-9)
     # the reference channel: the threshold 3e4 m² at the median channel slope (102 of 150 channels at 0.1)
     assert run.reference == pytest.approx((3e4, 0.1))
 
@@ -177,6 +177,17 @@ def test_a_lopsided_steady_divide_stays_put_under_the_steady_balance(lopsided_st
     assert abs(old.displacement_m[-1]) > 50.0
     with pytest.raises(ParameterError, match="balance='steady'"):
         run_model(setup, label="x", diffusivity=None, **common)
+
+
+def test_the_assessment_s_forward_run_keeps_a_lopsided_steady_divide_still(lopsided_steady):
+    # The forward run of the assessment knows neither K nor U nor D: K = 1, U and D fitted to the present
+    # surface's steady balance (Perron et al. 2009). From a lopsided ridge grown to steady state (Whipple et
+    # al. 2017: stable although its flanks differ) it moves the divide less than half a cell over its
+    # horizon. (That the same run moves a divide that is out of balance is held by Gilbert's planes above.)
+    sides = resolve_sides(route(lopsided_steady, closed_edges=CLOSED), parse_side("west"), parse_side("east"))
+    run = forward_shift(lopsided_steady, sides, theta=_M, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    assert np.isfinite(run.years_unit_k) and run.years_unit_k > 0
+    assert abs(run.shift_cells) < 0.5
 
 
 def test_a_side_follows_its_channel_when_the_mouth_shifts_along_the_edge():
