@@ -88,20 +88,25 @@ def test_assess_tiled_equals_in_memory(tmp_path, capsys):
         assert tiles[key] == mem[key], key
 
 
-def test_screen_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
-    # --scheduler sends the tiles (not only the divide segments) to the cluster; the result equals
-    # the in-memory screening (reference as above). Two in-process workers keep the test short.
+def _on_a_cluster(argv, tmp_path, capsys) -> set[str]:
+    """Run ``argv --tiled`` on a fresh 2-worker in-process Dask cluster; the task kinds it ran."""
     from divides.terrain.cluster import cluster_client
 
-    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
-    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
     with cluster_client(workers=2, processes=False) as client:
-        code = run([*base, "--out", str(tmp_path / "cluster"), "--tiled", "--scratch", str(tmp_path / "scratch"),
-                    "--scheduler", client.scheduler.address])
+        code = run([*argv, "--tiled", "--scratch", str(tmp_path / "scratch"), "--scheduler", client.scheduler.address])
         ran = client.run_on_scheduler(lambda dask_scheduler: sorted(dask_scheduler.task_prefixes))
     captured = capsys.readouterr()
     assert code == 0, captured.err
-    assert {"flood", "d8", "final_area", "assess_pairs"} <= set(ran), ran
+    return set(ran)
+
+
+def test_screen_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
+    # --scheduler sends the tiles (not only the divide segments) to the cluster; the result equals
+    # the in-memory screening (reference as above). Two in-process workers keep the test short.
+    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    ran = _on_a_cluster([*base, "--out", str(tmp_path / "cluster")], tmp_path, capsys)
+    assert {"flood", "d8", "final_area", "assess_pairs"} <= ran, ran
     assert _judged(tmp_path / "cluster") == _judged(tmp_path / "mem")
 
 
@@ -109,18 +114,11 @@ def test_assess_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
     # assess --tiled --scheduler routes its tiles on that cluster, and the verdict equals the
     # in-memory assessment (reference: the in-memory path, itself checked against scikit-image's
     # reconstruction and networkx in tests/terrain).
-    from divides.terrain.cluster import cluster_client
-
     base = ["assess", UPLANDS, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
             "--no-robustness", "--no-forward-run", "--quiet"]
     assert run([*base, "--out", str(tmp_path / "mem")]) == 0
-    with cluster_client(workers=2, processes=False) as client:
-        code = run([*base, "--out", str(tmp_path / "cluster"), "--tiled", "--scratch", str(tmp_path / "scratch"),
-                    "--scheduler", client.scheduler.address])
-        ran = client.run_on_scheduler(lambda dask_scheduler: sorted(dask_scheduler.task_prefixes))
-    captured = capsys.readouterr()
-    assert code == 0, captured.err
-    assert {"flood", "d8", "final_area"} <= set(ran), ran
+    ran = _on_a_cluster([*base, "--out", str(tmp_path / "cluster")], tmp_path, capsys)
+    assert {"flood", "d8", "final_area"} <= ran, ran
     mem, tiles = (json.loads((tmp_path / name / "summary.json").read_text()) for name in ("mem", "cluster"))
     for key in ("verdict", "contrasts", "divide"):
         assert tiles[key] == mem[key], key

@@ -52,15 +52,22 @@ def _route(z, geographic, closed, threads):
         numba.set_num_threads(before)
 
 
+def _routed_once(case):
+    """The case routed on one thread, or None when it is too small to route (fewer than a 3 x 3 block)."""
+    z, geographic, closed = case
+    if np.count_nonzero(np.isfinite(z)) < 9:
+        return None
+    try:
+        return _route(z, geographic, closed, 1)
+    except DividesError:
+        return None
+
+
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(rough_dems())
 def test_all_threads_equal_one_thread(case):
     z, geographic, closed = case
-    if np.count_nonzero(np.isfinite(z)) < 9:
-        return
-    try:
-        one = _route(z, geographic, closed, 1)
-    except DividesError:  # e.g. fewer than a 3 x 3 block of valid cells
+    if (one := _routed_once(case)) is None:
         return
     both = _route(z, geographic, closed, numba.config.NUMBA_NUM_THREADS)
     assert np.array_equal(one.receivers, both.receivers)
@@ -73,12 +80,7 @@ def test_all_threads_equal_one_thread(case):
 @settings(max_examples=40, deadline=None)
 @given(rough_dems(), st.integers(0, 2**31 - 1))
 def test_basin_accumulation_equals_the_serial_sweep(case, seed):
-    z, geographic, closed = case
-    if np.count_nonzero(np.isfinite(z)) < 9:
-        return
-    try:
-        flow = _route(z, geographic, closed, 1)
-    except DividesError:
+    if (flow := _routed_once(case)) is None:
         return
     rows, cols = flow.shape
     rng = np.random.default_rng(seed)
@@ -101,12 +103,7 @@ def test_basin_accumulation_equals_the_serial_sweep(case, seed):
 def test_order_on_threads_equals_the_receiver_list_order(case):
     # The order read from the codes, on one thread and on groups of outlets on threads, equals the
     # depth-first order over receiver lists (Braun & Willett 2013), cell for cell.
-    z, geographic, closed = case
-    if np.count_nonzero(np.isfinite(z)) < 9:
-        return
-    try:
-        flow = _route(z, geographic, closed, 1)
-    except DividesError:
+    if (flow := _routed_once(case)) is None:
         return
     rows, cols = flow.shape
     valid = flow.dem.valid.ravel()
