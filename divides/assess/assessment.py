@@ -893,8 +893,11 @@ def _primary_rate(at_divide: dict | None, forward: dict | None, *, uplift_given:
     """The rate reported as the divide's (and why none is): the forward run's when it gives one (it matched the
     measured motion better on the benchmark's training part), else the rate at the divide. With an uplift
     raster the rate at the divide comes first: it reads the raster, the forward run assumes uniform uplift."""
-    divide_ok = at_divide is not None and at_divide.get("best") is not None
-    if forward is not None and forward.get("best") is not None and not (uplift_given and divide_ok):
+    def usable(rate: dict | None) -> bool:  # a rate whose samples were all undefined is no rate
+        return rate is not None and rate.get("best") is not None and bool(np.isfinite(rate["best"]))
+
+    divide_ok = usable(at_divide)
+    if usable(forward) and not (uplift_given and divide_ok):
         flags = []
         if not (PLAUSIBLE_MM_PER_YR[0] <= forward["best"] <= PLAUSIBLE_MM_PER_YR[1]):
             flags.append(f"implausible: measured divide migration rates span {PLAUSIBLE_MM_PER_YR[0]}–"
@@ -981,6 +984,8 @@ def assess(
                                  (lambda: _forward_error_factors(dem, core, config, forward, progress)))
     at_divide = rate
     rate, withheld = _primary_rate(rate, forward_rate, uplift_given=uplift_raster is not None)
+    if rate is None and withheld is None and cal.notes and not cal.available:  # a calibration that could not be used
+        withheld = cal.notes[0]
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,

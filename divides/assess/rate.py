@@ -199,6 +199,11 @@ def calibrate(
         value, error = ((erosion_rate_a_mm_yr, erosion_rate_a_error_mm_yr) if side == "a"
                         else (erosion_rate_b_mm_yr, erosion_rate_b_error_mm_yr))
         ks = ka if side == "a" else kb
+        if not np.isfinite(ks).any():  # K = E / ksn^n needs that side's steepness
+            other = "b" if side == "a" else "a"
+            return Calibration("none", notes=[
+                f"rate withheld: the erosion rate of side {side} cannot calibrate K, since no channel steepness "
+                f"(ksn) was measured on side {side}; give K, side {other}'s rate or a dated knickpoint instead"])
         e = draw(value, error, ks.size).reshape(ks.shape) * 1e-3
         k = e / ks**n
         return Calibration(f"erosion rate of side {side}", k * ka**n, k * kb**n, k)

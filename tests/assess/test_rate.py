@@ -182,6 +182,22 @@ def test_errors_of_the_inputs_carry_into_k_and_the_erosion_rates():
     assert np.mean(given.k) == pytest.approx(1e-5, rel=0.02) and np.std(given.k) == pytest.approx(3e-6, rel=0.1)
 
 
+
+def test_a_side_without_steepness_cannot_calibrate_k_from_its_rate():
+    # K = E / ksn^n (stream-power law, Howard & Kerby 1983) needs the side's steepness: without
+    # any ksn measured there, the calibration is not made and says why, and no rate comes out of it
+    # (a NaN rate once reached summary.json as a rate with empty bounds).
+    from divides.assess.assessment import _primary_rate
+
+    ksn = np.full(100, 50.0)
+    cal = calibrate(ksn_a=ksn, ksn_b=np.full(100, np.nan), n=1.0, erosion_rate_b_mm_yr=0.8)
+    assert not cal.available and cal.k is None
+    assert "side b" in cal.notes[0] and "side a's rate" in cal.notes[0]
+    assert calibrate(ksn_a=ksn, ksn_b=np.full(100, np.nan), n=1.0, erosion_rate_a_mm_yr=0.8).available
+    undefined = {"low": np.nan, "best": np.nan, "high": np.nan, "toward": "a"}
+    assert _primary_rate(None, undefined) == (None, None)
+
+
 # ---------------------------------------------------------------- the rate at the divide
 def test_rate_from_the_channel_heads_is_the_crest_speed_of_two_lowering_planes_with_uplift():
     # Two flanks lowering as planes under E = K ksn^n (ksn = S A^θ at each flank's channel head), with
