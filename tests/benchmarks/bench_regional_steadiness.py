@@ -1,6 +1,6 @@
 """Evidence that might tell still stretches of steady landscapes from moving ones (run by hand, not a test).
 
-    python tests/benchmarks/bench_regional_steadiness.py [--n 24] [--seed 0] [--per-basin]
+    python tests/benchmarks/bench_regional_steadiness.py [--n 24] [--seed 0] [--per-basin] [--forward-model]
 
 Measures, on the TRAINING regional cases only (docs/validation.md, *Regional screening*, *Evidence
 tried against the alarms of steady landscapes*), three lines of evidence beside the screening's calibrated
@@ -16,6 +16,11 @@ probability of motion, none shipped:
    0.3 response times; feature: the shift agrees with the favoured side (as screen's ``forward_agrees``);
 3. per outlet basin, the linearity (R²) of channel elevation against χ (Perron & Royden 2013), a steadiness
    test (printed per case).
+
+With ``--forward-model`` it measures instead one variant of the probabilities themselves: each segment judged
+again on its own contrasts by the decision model that reads the forward run (``decide(...,
+forward_in_decision=True)``), with the segment's shift in the steady-balance run (2.), and the instability a
+Platt scaling of logit(P(a) + P(b)) per kind of divide refitted on these probabilities.
 
 For each feature set it fits instability = 1 / (1 + exp(−(α + β logit p + γ·features))) per kind of
 divide, prints the leave-one-case-out log loss and AUC, and the issue's targets with the in-sample fit.
@@ -33,7 +38,9 @@ from bench_regional import screen_case
 from scipy import ndimage
 from scipy.optimize import minimize
 
-from divides.assess.screen import _outlet_basins, forward_agrees
+from divides.assess.contrasts import Contrast
+from divides.assess.screen import _outlet_basins, forward_agrees, motion_azimuth
+from divides.assess.verdict import decide
 from divides.model.benchmark import split_of
 from divides.model.forward_run import (
     FORWARD_HORIZON_TAU,
@@ -129,6 +136,30 @@ def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: fl
                           int(result.n_steps))
 
 
+def contrasts_of(rows: list[dict]) -> list[Contrast]:
+    """The Contrast objects back from a screened segment's ``contrasts`` (their JSON form: None for NaN)."""
+    def num(v):
+        return float("nan") if v is None else float(v)
+
+    return [Contrast(**{**c, "a": num(c["a"]), "b": num(c["b"]), "difference": num(c["difference"]),
+                        "ci95": (num(c["ci95"][0]), num(c["ci95"][1])), "consistency": num(c["consistency"]),
+                        "n_effective": num(c["n_effective"])}) for c in rows]
+
+
+def forward_judged(seg: dict, shift: float, dem, min_confidence: float) -> dict:
+    """The segment judged again by the decision model that reads the forward run, with ``shift`` (model cells,
+    positive into b, as :func:`divides.assess.verdict.decide` expects): the keys of the segment it changes.
+    Without a finite shift the near-divide model decides, as in screening."""
+    finite = bool(np.isfinite(shift))
+    v = decide(contrasts_of(seg["contrasts"]), min_confidence=min_confidence,
+               forward_shift=float(shift) if finite else None, forward_in_decision=finite)
+    a, b = seg["basins"]
+    victim = {"a": a, "b": b}.get(v.moves_toward)
+    return {"probabilities": None if v.reason == "insufficient data" else v.probabilities,
+            "confidence": v.confidence, "verdict": v.moves_toward, "moves_toward_basin": victim,
+            "motion_azimuth_deg": motion_azimuth(seg["line"], dem, v.moves_toward) if victim is not None else None}
+
+
 def chi_linearity(screening, theta: float) -> list[float]:
     """R² of channel elevation against χ (from each network's mouth) per outlet basin with >= 10 channel cells."""
     ch = screening.channels
@@ -165,11 +196,28 @@ def _auc(x, y):
     return float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
 
 
+def summarise_forward(cases: list[dict]) -> None:
+    """Print, per kind of divide and truth, how often each model calls a segment stable or gives a direction."""
+    for kind in ("main", "lateral"):
+        for label, y in (("moving", 1.0), ("not moving", 0.0)):
+            rows = [r for c in cases for r in c["rows"] if r["y"] == y and r["near"]["divide_kind"] == kind]
+            if not rows:
+                continue
+            counts = []
+            for verdicts in ([r["near"]["verdict"] for r in rows], [r["fwd"]["verdict"] for r in rows]):
+                counts.append(f"{sum(v == 'stable' for v in verdicts)} stable, "
+                              f"{sum(v in ('a', 'b') for v in verdicts)} with a direction")
+            print(f"{kind} segments {label} ({len(rows)}): near-divide model {counts[0]}; "
+                  f"forward-reading model {counts[1]}")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--n", type=int, default=24)
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--per-basin", action="store_true", help="the steady run with one U per outlet basin")
+    parser.add_argument("--forward-model", action="store_true",
+                        help="each segment judged by the decision model that reads the steady run's shift")
     args = parser.parse_args()
     cases = []
     for i in range(args.n):
@@ -189,6 +237,7 @@ def main() -> None:
         outlet_of = _outlet_basins(scr.flow, scr.labels, p["min_basin_area_m2"], p["level"])
         sides = outlet_of[run.on_model_grid(scr.labels)]
         rows = []
+        same = 0
         for s in scr.segments:
             a, b = s["basins"]
             probs = s["probabilities"]
@@ -199,6 +248,13 @@ def main() -> None:
                          "curv": favoured * hilltop_contrast(s["line"], scr.labels, a, b, lap, area_cells),
                          "run": 0.0 if probs is None or not np.isfinite(shift) else float(forward_agrees(probs, shift)),
                          "shift": shift})
+            if args.forward_model:
+                # the near-divide model on the rebuilt contrasts must give screening's probabilities back
+                near = forward_judged(s, math.nan, dem, float(p["min_confidence"]))
+                same += near["probabilities"] == probs and near["confidence"] == s["confidence"]
+                rows[-1]["fwd"] = forward_judged(s, shift, dem, float(p["min_confidence"]))
+        if args.forward_model:
+            print(f"    rebuilt contrasts give screening's decision back on {same} of {len(rows)} segments")
         r2 = chi_linearity(scr, float(p["theta"]))
         print(f"{i:>3} {case.family:<28} χ-elevation R² per outlet basin: median {np.median(r2):.4f}, "
               f"lowest {np.min(r2):.4f}", flush=True)
@@ -206,8 +262,19 @@ def main() -> None:
     steady = [c for c in cases if c["case"].steady]
     shifts = [abs(r["shift"]) for c in steady for r in c["rows"] if np.isfinite(r["shift"])]
     print(f"steady controls: median |shift| of the steady run {np.median(shifts):.2f} model cells")
-    for name, keys in (("none", ()), ("hilltop curvature", ("curv",)), ("steady run", ("run",)),
-                       ("both", ("curv", "run"))):
+    for c in cases:
+        for r in c["rows"]:
+            r["near"] = r["seg"]
+    if args.forward_model:
+        summarise_forward(cases)
+        variants = (("none (near-divide model, as shipped)", (), False), ("forward-reading model", (), True))
+    else:
+        variants = (("none", (), False), ("hilltop curvature", ("curv",), False), ("steady run", ("run",), False),
+                    ("both", ("curv", "run"), False))
+    for name, keys, forward_model in variants:
+        for c in cases:  # each segment as the near-divide or the forward-reading model judged it
+            for r in c["rows"]:
+                r["seg"] = r["near"] | r["fwd"] if forward_model else r["near"]
         weights, report = {}, []
         for kind in ("main", "lateral"):
             data = [(c["case"].index, r) for c in cases for r in c["rows"]
@@ -226,6 +293,7 @@ def main() -> None:
                           f"{float(np.mean(-(y * np.log(pc) + (1 - y) * np.log(1 - pc)))):.3f}, AUC {_auc(pred, y):.3f}, "
                           f"coefficients {np.round(weights[kind], 2).tolist()}")
         top = order = no_alarm = alarms_main = alarms_lateral = n_top = n_order = 0
+        by_truth = {1.0: 0, 0.0: 0, None: 0}  # alarms of steady landscapes by their segment's truth
         for c in cases:
             segs = []
             for r in c["rows"]:
@@ -234,6 +302,9 @@ def main() -> None:
                     v = s["probabilities"]
                     x = np.array([[float(_logit(v.get("a", 0) + v.get("b", 0)))] + [r[k] for k in keys]])
                     s["instability"] = float(_prob(weights[s["divide_kind"]], x)[0])
+                if c["case"].steady and s["instability"] is not None and s["instability"] >= 0.5 \
+                        and s["confidence"] is not None and s["confidence"] >= 0.5:
+                    by_truth[r["y"]] += 1
                 segs.append(s)
             segs.sort(key=lambda s: (s["instability"] is None, -(s["instability"] or 0.0), -s["length_m"]))
             segs = [s | {"rank": k} for k, s in enumerate(segs, start=1)]
@@ -248,7 +319,8 @@ def main() -> None:
                 alarms_lateral += res["alarms_by_kind"]["lateral"]
         print(f"{name}: " + "; ".join(report))
         print(f"  top {top}/{n_top}, order {order}/{n_order}, steady without alarm {no_alarm}/{len(steady)}, "
-              f"alarms in steady landscapes main / lateral {alarms_main} / {alarms_lateral}")
+              f"alarms in steady landscapes main / lateral {alarms_main} / {alarms_lateral} (in moving / not moving / "
+              f"slow or unmeasured stretches or pairs {by_truth[1.0]} / {by_truth[0.0]} / {by_truth[None]})")
 
 
 if __name__ == "__main__":
