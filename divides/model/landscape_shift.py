@@ -30,7 +30,7 @@ from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import DivideLine
 from divides.terrain.routing import route
 
-__all__ = ["LandscapeShift", "landscape_shift", "PIECE_RADIUS_CELLS"]
+__all__ = ["LandscapeShift", "landscape_shift", "ModelStart", "model_start", "run_from", "PIECE_RADIUS_CELLS"]
 
 #: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
 #: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
@@ -178,24 +178,56 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
     """
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
+    start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
+    slope = slopes(start.flow)[start.cells]
+    area = start.flow.area.ravel()[start.cells]
+    uplift = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
+    return run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=float(np.median(slope))
+                    if slope.size else 1.0, horizon_tau=horizon_tau, max_steps=max_steps)
+
+
+@dataclass(frozen=True, eq=False)
+class ModelStart:
+    """The start of a landscape run: the model grid, its flow and outlet basins, the exponent m, the
+    reference channel area, the channel cells and the relief (what every uplift set-up shares)."""
+
+    grid: Dem
+    factor: int
+    closed: tuple[str, ...]
+    flow: object
+    before: np.ndarray
+    m: float
+    a_ref: float
+    cells: np.ndarray
+    relief: float
+
+
+def model_start(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...],
+                channel_area_m2: float) -> ModelStart:
+    """The DEM on the model grid, routed, with its outlet basins and channels (no run yet)."""
     grid, factor = coarsen(dem)
     closed = tuple(closed_edges)
     flow = route(grid, closed_edges=closed)
     before, _ = outlet_basins(flow, min_cells=1)
-    m = theta * n
     a_ref = max(float(channel_area_m2), 2.0 * float(np.max(grid.cell_area)))
-    cells = channel_cells(flow, grid.valid, a_ref)
     z = np.where(grid.valid, grid.elevation, np.nan)
     relief = float(np.nanmax(z) - np.nanmin(z)) if np.isfinite(z).any() else 0.0
-    slope = slopes(flow)[cells]
-    uplift = float(np.median(flow.area.ravel()[cells] ** m * slope ** n)) if cells.size else 0.0
-    if not (relief > 0 and uplift > 0):
-        return LandscapeShift(grid, factor, before, before, np.arange(int(before.max()) + 1), math.inf, 0)
-    years = horizon_tau * relief / uplift
-    _, _, n_steps, dt = time_steps(grid, years, k=1.0, m=m, n=n, a_ref=a_ref, s_ref=float(np.median(slope)),
-                                   max_steps=int(max_steps))
-    result = simulate(grid, duration=years, dt=dt, uplift=uplift, erodibility=1.0, m=m, n=n, diffusivity=0.0,
-                      edges={e: "closed" for e in closed})
-    after, _ = outlet_basins(route(result.final, closed_edges=closed), min_cells=1)
-    return LandscapeShift(grid, factor, before, after, match_labels(before, after, int(before.max())), years,
+    return ModelStart(grid, factor, closed, flow, before, theta * n, a_ref, channel_cells(flow, grid.valid, a_ref),
+                      relief)
+
+
+def run_from(start: ModelStart, *, uplift: float | np.ndarray, diffusivity: float, n: float, u_scale: float,
+             s_ref: float, horizon_tau: float = FORWARD_HORIZON_TAU, max_steps: int = 60) -> LandscapeShift:
+    """Run the model from ``start`` for ``horizon_tau`` response times (relief / ``u_scale``) at K = 1 and
+    match its outlet basins; nothing is run without relief or uplift."""
+    grid, before = start.grid, start.before
+    if not (start.relief > 0 and u_scale > 0):
+        return LandscapeShift(grid, start.factor, before, before, np.arange(int(before.max()) + 1), math.inf, 0)
+    years = horizon_tau * start.relief / u_scale
+    _, _, _, dt = time_steps(grid, years, k=1.0, m=start.m, n=n, a_ref=start.a_ref, s_ref=s_ref,
+                             max_steps=int(max_steps))
+    result = simulate(grid, duration=years, dt=dt, uplift=uplift, erodibility=1.0, m=start.m, n=n,
+                      diffusivity=diffusivity, edges={e: "closed" for e in start.closed})
+    after, _ = outlet_basins(route(result.final, closed_edges=start.closed), min_cells=1)
+    return LandscapeShift(grid, start.factor, before, after, match_labels(before, after, int(before.max())), years,
                           int(result.n_steps))

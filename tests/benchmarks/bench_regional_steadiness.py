@@ -43,25 +43,18 @@ from divides.assess.screen import _outlet_basins, forward_agrees, motion_azimuth
 from divides.assess.verdict import decide
 from divides.model.benchmark import split_of
 from divides.model.forward_run import (
-    FORWARD_HORIZON_TAU,
-    channel_cells,
-    coarsen,
     laplacian,
     slopes,
-    time_steps,
 )
-from divides.model.landscape_shift import LandscapeShift
-from divides.model.outlet_exchange import match_labels, outlet_basins
+from divides.model.landscape_shift import LandscapeShift, model_start, run_from
 from divides.model.regional_benchmark import (
     case_seed,
     lateral_truth,
     load_or_build,
     score,
 )
-from divides.model.simulate import simulate
 from divides.profiles.chi import integrate_chi
 from divides.terrain.basins import basin_labels
-from divides.terrain.routing import route
 
 #: Cells within this distance of a segment count for its hilltop curvature (set before any result).
 RADIUS_CELLS = 3
@@ -99,17 +92,10 @@ def hilltop_contrast(line, labels, label_a, label_b, lap, area_cells) -> float:
 def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: float, per_basin: bool) -> LandscapeShift:
     """Screen's landscape run (K = 1, 0.3 response times) with U and D of the steady balance instead of one
     channel-balancing U and no diffusion."""
-    grid, factor = coarsen(dem)
-    closed = tuple(closed_edges)
-    flow = route(grid, closed_edges=closed)
-    before, _ = outlet_basins(flow, min_cells=1)
-    m = theta * n
-    a_ref = max(float(channel_area_m2), 2.0 * float(np.max(grid.cell_area)))
-    cells = channel_cells(flow, grid.valid, a_ref)
-    z = np.where(grid.valid, grid.elevation, np.nan)
-    relief = float(np.nanmax(z) - np.nanmin(z))
-    sl = slopes(flow)
-    fluvial = np.asarray(flow.area, dtype=float).ravel() ** m * sl ** n
+    start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
+    grid, before, m = start.grid, start.before, start.m
+    sl = slopes(start.flow)
+    fluvial = np.asarray(start.flow.area, dtype=float).ravel() ** m * sl ** n
     lap = laplacian(grid).ravel()
     lab = before.ravel().astype(np.int64)
     groups = lab if per_basin else (lab > 0).astype(np.int64)
@@ -124,16 +110,8 @@ def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: fl
     d = max(float(np.sum(dc * (f - f_mean[g])) / np.sum(dc * dc)), 0.0)  # within-group least squares: shared D
     u_field = np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(grid.shape)
     u_ref = float(np.median(u_field[before > 0]))
-    if not (relief > 0 and u_ref > 0):
-        return LandscapeShift(grid, factor, before, before, np.arange(int(before.max()) + 1), math.inf, 0)
-    years = FORWARD_HORIZON_TAU * relief / u_ref
-    *_, dt = time_steps(grid, years, k=1.0, m=m, n=n, a_ref=a_ref, s_ref=float(np.median(sl[cells])),
-                        max_steps=60)
-    result = simulate(grid, duration=years, dt=dt, uplift=u_field, erodibility=1.0, m=m, n=n, diffusivity=d,
-                      edges={e: "closed" for e in closed})
-    after, _ = outlet_basins(route(result.final, closed_edges=closed), min_cells=1)
-    return LandscapeShift(grid, factor, before, after, match_labels(before, after, int(before.max())), years,
-                          int(result.n_steps))
+    return run_from(start, uplift=u_field, diffusivity=d, n=n, u_scale=u_ref,
+                    s_ref=float(np.median(sl[start.cells])) if start.cells.size else 1.0)
 
 
 def contrasts_of(rows: list[dict]) -> list[Contrast]:
