@@ -68,7 +68,12 @@ __all__ = ["FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_S
            "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
-REGIONAL_VERSION = 2
+#: Version 3 settles the spin-up at the truth run's time step (:func:`_settle`).
+REGIONAL_VERSION = 3
+
+#: Settling (:func:`_settle`): response times between checks, and most checks after the first.
+SETTLE_CHUNK_TAU = 2.0
+MAX_SETTLE_CHUNKS = 10
 
 #: Families in the order the cases cycle through them (case i is family i mod 8; forcing on b for
 #: even i // 8, mirrored onto a for odd).
@@ -194,15 +199,16 @@ def _crest_col(z: np.ndarray) -> np.ndarray:
     return np.argmax(z, axis=1)
 
 
-def _east_of_crest(z: np.ndarray) -> np.ndarray:
-    return np.arange(z.shape[1])[None, :] > _crest_col(z)[:, None]
+def _east_of_crest(crest: np.ndarray, cols: int) -> np.ndarray:
+    """Cells east of each row's crest column (``crest``: the steady surface's, canonical frame)."""
+    return np.arange(cols)[None, :] > np.asarray(crest)[:, None]
 
 
 def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: float, k0: float):
     """Steady forcing, the change (a function of the steady surface) and the family's numbers.
 
-    Canonical frame: side a west, side b east, forcing on b. ``change(z)`` returns
-    ``(new z, forcing)``.
+    Canonical frame: side a west, side b east, forcing on b. ``change(z, crest)`` returns
+    ``(new z, forcing)``; ``crest`` is the column of each row's crest on the steady surface.
     """
     rows, cols = shape
     edges = {"north": "closed", "south": "closed", "west": "open", "east": "open"}
@@ -221,7 +227,7 @@ def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: flo
         drop = float(rng.uniform(0.1, 0.3))
         details["drop_share_of_relief"] = drop
 
-        def change(z):
+        def change(z, crest):
             z = z.copy()
             z[in_rows, -1] -= drop * float(np.nanmax(z) - np.nanmin(z))  # open edge cells hold the new level
             return z, uniform
@@ -230,8 +236,8 @@ def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: flo
         ratio = float(rng.uniform(2.0, 4.0))
         details["ratio"] = ratio
 
-        def change(z):
-            k = np.where(_east_of_crest(z) & in_rows[:, None], k0 * ratio, k0)
+        def change(z, crest):
+            k = np.where(_east_of_crest(crest, cols) & in_rows[:, None], k0 * ratio, k0)
             return z, {**uniform, "erodibility": k}
         return uniform, change, details
     if family == "runoff_gradient":
@@ -239,15 +245,15 @@ def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: flo
         details = {"ratio_at_end": ratio, "rising_toward": "north" if north else "south"}
         along = np.linspace(1.0, 0.0, rows) if north else np.linspace(0.0, 1.0, rows)
 
-        def change(z):
-            r = np.where(_east_of_crest(z), 1.0 + (ratio - 1.0) * along[:, None], 1.0)
+        def change(z, crest):
+            r = np.where(_east_of_crest(crest, cols), 1.0 + (ratio - 1.0) * along[:, None], 1.0)
             return z, {**uniform, "runoff": r}
         return uniform, change, {k: v for k, v in details.items()}
     if family == "tilt":
         g = float(rng.uniform(0.3, 0.7))
         x = np.arange(cols) / (cols - 1)
         u = np.broadcast_to(u0 * (1.0 + g * (2.0 * x - 1.0)), shape).copy()
-        return uniform, (lambda z: (z, {**uniform, "uplift": u})), {"tilt": g}
+        return uniform, (lambda z, crest: (z, {**uniform, "uplift": u})), {"tilt": g}
     if family in STEADY_FAMILIES:
         ratio = float(rng.uniform(1.5, 3.0))
         fields = {
@@ -257,7 +263,7 @@ def _plan(family: str, rng: np.random.Generator, shape: tuple[int, int], u0: flo
             "steady_runoff_contrast": {"runoff": np.where(east_half, ratio, 1.0)},
         }[family]
         steady = {**uniform, **fields}
-        return steady, (lambda z: (z, steady)), ({"ratio": ratio} if fields else {})
+        return steady, (lambda z, crest: (z, steady)), ({"ratio": ratio} if fields else {})
     raise ValueError(f"unknown regional family {family!r}; families are {', '.join(FAMILIES)}")
 
 
@@ -337,9 +343,33 @@ def _draws(master_seed: int, index: int, shape: tuple[int, int] | None) -> dict:
             "frame": _mirror if mirror else (lambda f: f)}
 
 
-def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[dict, Dem, dict, float, int]:
-    """Spin-up, change and observation: the draws, the observed surface, the forcing after the change,
-    the response time and the number of spin-up chunks."""
+def _settle(surface: Dem, forcing: dict, physics: dict, tau: float, cell: float) -> tuple[Dem, dict]:
+    """Run under the steady forcing at the truth run's time step until the truth run sees every stretch still.
+
+    The model's steady state depends on its time step (hillslope diffusion is split from incision), so a
+    surface spun up at SPIN_STEPS_PER_TAU moves again once run at STEPS_PER_TAU: on a training case settled
+    for 32 τ at the coarse step, the truth run moved stretches by up to 2.5 cells per τ. Each check is the
+    truth run itself (:func:`_continue`, no change): the surface is settled once no stretch moves one cell
+    per τ or more; between checks the run goes on for SETTLE_CHUNK_TAU response times.
+    """
+    steady = {**forcing, **physics}
+    rates: list[float] = []
+    for chunk in range(MAX_SETTLE_CHUNKS + 1):
+        run = _continue(surface, steady, tau)
+        stretches, threshold = stretch_motion(run.divide.positions, run.divide.times, cell_m=cell, tau_yr=tau)
+        rates = [abs(s["rate_m_per_yr"]) / threshold for s in stretches if s["rate_m_per_yr"] is not None]
+        if not rates or max(rates) < MOVING_CELLS_PER_TAU or chunk == MAX_SETTLE_CHUNKS:
+            break
+        more = (SETTLE_CHUNK_TAU - WINDOW_TAU) * tau
+        surface = simulate(run.final, duration=more, dt=tau / STEPS_PER_TAU, **steady).final
+    settled = bool(rates) and max(rates) < MOVING_CELLS_PER_TAU
+    return surface, {"settle_chunks": chunk, "settled": settled,
+                     "settle_max_cells_per_tau": float(max(rates)) if rates else None}
+
+
+def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[dict, Dem, dict, float, dict]:
+    """Spin-up, settling, change and observation: the draws, the observed surface, the forcing after the
+    change, the response time and the growth's record (spin-up and settling chunks, the steady crest)."""
     d = _draws(master_seed, index, shape)
     rows, cols, cell, u0, relief = d["rows"], d["cols"], d["cell"], d["u0"], d["relief"]
     physics, flip, frame = d["physics"], d["flip"], d["frame"]
@@ -347,21 +377,25 @@ def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[
                           seed=d["ridge_seed"])
     sides = ("west", "east")
     # The grown relief is 2-5 times the target, so the response time is too: a first spin-up on the
-    # target's τ, a second on the τ of the relief it grew (each stops once the divide drifts < 0.5 cell/τ).
+    # target's τ, a second on the τ of the relief it grew (each stops once the divide drifts < 0.5 cell/τ),
+    # both at the coarse spin-up step; then settling at the truth run's step (:func:`_settle`).
     surface, chunks = _spin_up(start, frame(d["spin"]), physics, relief / u0, sides)
     tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
     surface, more = _spin_up(surface, frame(d["spin"]), physics, tau, sides)
-    chunks += more
+    tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
+    surface, grown = _settle(surface, frame(d["spin"]), physics, tau, cell)
     z = surface.elevation
     tau = float(np.nanmax(z) - np.nanmin(z)) / u0
-    canonical, forcing = d["change"](flip(z))
+    crest = _crest_col(flip(z))
+    grown = {"spin_chunks": chunks + more, **grown, "steady_crest_col": crest.tolist()}
+    canonical, forcing = d["change"](flip(z), crest)
     forcing = {**frame(forcing), **physics}
     observe = d["observe"]
     surface = Dem.from_array(flip(canonical), cell_size=cell, valid_range=None)
     if observe > 0:
         steps = max(5, int(round(observe * STEPS_PER_TAU)))
         surface = simulate(surface, duration=observe * tau, dt=observe * tau / steps, **forcing).final
-    return d, surface, forcing, tau, chunks
+    return d, surface, forcing, tau, grown
 
 
 def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
@@ -371,14 +405,14 @@ def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None)
     (small cases for fast tests).
     """
     started = time.perf_counter()
-    d, surface, forcing, tau, chunks = _grow(master_seed, index, shape)
+    d, surface, forcing, tau, grown = _grow(master_seed, index, shape)
     cell, u0, physics = d["cell"], d["u0"], d["physics"]
     run = _continue(surface, forcing, tau)
     stretches, threshold = stretch_motion(run.divide.positions, run.divide.times, cell_m=cell, tau_yr=tau)
     parameters = {"K": d["k0"], "n": 1.0, "m": d["theta"], "theta": d["theta"], "U_m_per_yr": u0,
                   "D_m2_per_yr": physics["diffusivity"], "relief_m": float(np.nanmax(surface.elevation)
                                                                           - np.nanmin(surface.elevation)),
-                  "tau_yr": tau, "observed_after_tau": d["observe"], "spin_chunks": chunks, "mirrored": d["mirror"],
+                  "tau_yr": tau, "observed_after_tau": d["observe"], **grown, "mirrored": d["mirror"],
                   "family_details": d["details"]}
     return RegionalCase(master_seed=int(master_seed), index=int(index), seed=d["seed"], family=d["family"],
                         forced_side="a" if d["mirror"] else "b", split=split_of(d["seed"]),
@@ -394,24 +428,26 @@ def _continue(surface: Dem, forcing: dict, tau: float):
 
 
 #: Families whose change reads the steady surface (the crest the K patch or the runoff starts at): their
-#: forcing cannot be replayed from the observed DEM, and the case is grown again for its truth run.
+#: forcing is replayed from the steady crest kept in the record (grown again for records without it).
 READS_STEADY_SURFACE = ("erodibility_patch", "runoff_gradient")
 
 
 def continuation_forcing(case: RegionalCase) -> tuple[Dem, dict, float]:
     """The start, forcing and response time of a case's truth run, rebuilt from the case's seed.
 
-    Every draw is replayed (:func:`_draws`); for the families of :data:`READS_STEADY_SURFACE`
-    the case is grown again (20–90 s) since their forcing depends on the steady surface,
-    which is not cached. The start is the observed DEM in full precision when grown again,
-    the cached one (float32) otherwise.
+    Every draw is replayed (:func:`_draws`); the families of :data:`READS_STEADY_SURFACE` read the
+    crest of the steady surface, kept in the record (``steady_crest_col``). A record without it
+    (regional version 2) is grown again (20–90 s), and its start is then the observed DEM in full
+    precision; otherwise the start is the cached one (float32).
     """
     shape = tuple(case.elevation.shape)
-    if case.family in READS_STEADY_SURFACE:
+    crest = case.parameters.get("steady_crest_col")
+    if case.family in READS_STEADY_SURFACE and crest is None:
         _, surface, forcing, tau, _ = _grow(case.master_seed, case.index, shape)
         return surface, forcing, tau
     d = _draws(case.master_seed, case.index, shape)
-    _, forcing = d["change"](d["flip"](case.elevation.astype(np.float64)))  # the forcing only: the DEM is observed
+    canonical = d["flip"](case.elevation.astype(np.float64))
+    _, forcing = d["change"](canonical, np.asarray(crest if crest is not None else _crest_col(canonical)))
     return case.dem(), {**d["frame"](forcing), **d["physics"]}, float(case.parameters["tau_yr"])
 
 

@@ -45,10 +45,14 @@ def steady():
 def test_the_small_case_is_measured_steady(steady):
     # Uniform forcing at steady state: the divide does not move (Willett et al. 2014); checked by
     # continuing the run, the single-divide benchmark's rule on the whole divide (< 1 cell per τ).
+    # The spin-up is settled at the truth run's time step, so every stretch is still as well, not only
+    # their mean (the model's steady state depends on its step: docs/validation.md, Regional screening).
     case, _, _, _ = steady
     rates = [s["rate_m_per_yr"] for s in case.stretches]
     assert len(rates) == 10 and all(r is not None for r in rates)
     assert abs(np.mean(rates)) < MOVING_CELLS_PER_TAU * case.threshold_m_per_yr
+    assert case.parameters["settled"]
+    assert max(abs(r) for r in rates) < MOVING_CELLS_PER_TAU * case.threshold_m_per_yr
 
 
 def test_coverage_and_every_stretch_accounted_for(steady):
@@ -122,12 +126,15 @@ def steady_forward(steady):
 
 def test_the_forward_run_barely_moves_a_steady_landscape(steady_forward):
     # At steady state under uniform forcing the divide does not move (Willett et al. 2014): the forward
-    # run of the whole DEM measures every segment, and moves half of them less than the 0.1 model cell a
-    # shift is read at (FORWARD_NOISE_CELLS) and none by a model cell (the grid's resolution).
+    # run of the whole DEM measures nearly every segment (not one whose basins the run merges: NaN), and
+    # moves half of them less than the 0.1 model cell a shift is read at (FORWARD_NOISE_CELLS) and none by
+    # a model cell (the grid's resolution).
     result, _ = steady_forward
-    shifts = np.abs([s["forward_shift_cells"] for s in result.segments])
-    assert shifts.size >= 10 and np.isfinite(shifts).all()
-    assert np.median(shifts) < 0.1 and shifts.max() < 1.0
+    shifts = np.abs([np.nan if s["forward_shift_cells"] is None else s["forward_shift_cells"]
+                     for s in result.segments])
+    measured = shifts[np.isfinite(shifts)]
+    assert measured.size >= 10 and measured.size >= 0.9 * shifts.size
+    assert np.median(measured) < 0.1 and measured.max() < 1.0
 
 
 def test_a_confident_direction_the_forward_run_contradicts_is_undetermined(steady, monkeypatch):
