@@ -383,9 +383,9 @@ def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[
     tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
     surface, more = _spin_up(surface, frame(d["spin"]), physics, tau, sides)
     tau = float(np.nanmax(surface.elevation) - np.nanmin(surface.elevation)) / u0
+    # τ (and so the step) stays the one settled on: a step changed after settling would move the divide again
     surface, grown = _settle(surface, frame(d["spin"]), physics, tau, cell)
     z = surface.elevation
-    tau = float(np.nanmax(z) - np.nanmin(z)) / u0
     crest = _crest_col(flip(z))
     grown = {"spin_chunks": chunks + more, **grown, "steady_crest_col": crest.tolist()}
     canonical, forcing = d["change"](flip(z), crest)
