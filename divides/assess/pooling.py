@@ -148,7 +148,8 @@ def pool_short(rows: list[dict], *, outlets: np.ndarray, min_length_m: float,
     Returns
     -------
     list of dict
-        The rows, each with ``judged_length_m``; pooled ones updated by ``judge``.
+        The rows, each with ``judged_length_m`` and ``judged_lines`` (the lines of the stretch it
+        was judged on, its own first); pooled ones updated by ``judge``.
     """
     judged = [i for i, r in enumerate(rows) if "pts" in r]
     sub = [rows[i] for i in judged]
@@ -159,11 +160,12 @@ def pool_short(rows: list[dict], *, outlets: np.ndarray, min_length_m: float,
         length = r["seg"].line.length_m
         chain = _chain(k, sub, near, min_length_m) if length < min_length_m else [(k, False)]
         length = sum(sub[n]["seg"].line.length_m for n, _ in chain)
+        lines = [sub[n]["seg"].line for n, _ in chain]
         if len(chain) == 1:
-            out[i] = r | {"judged_length_m": length}
+            out[i] = r | {"judged_length_m": length, "judged_lines": lines}
             continue
         pts = _pooled_points([_swap_sides(sub[n]["pts"]) if flip else sub[n]["pts"] for n, flip in chain])
-        out[i] = r | judge(pts, r) | {"judged_length_m": length}
+        out[i] = r | judge(pts, r) | {"judged_length_m": length, "judged_lines": lines}
     return out
 
 

@@ -18,7 +18,7 @@ from divides.model import scenarios as S
 from divides.model.tracking import edge_catchments
 from divides.model.simulate import simulate
 from divides.terrain.basins import basin_labels
-from divides.terrain.divide_lines import divide_network
+from divides.terrain.divide_lines import DivideLine, divide_network
 
 SHAPE = (120, 100)
 CELL = 100.0
@@ -171,3 +171,28 @@ def test_azimuth_is_the_local_normal_toward_the_victim(victim, expected):
     assert (seg.label_a, seg.label_b) == (1, 2)
     az = motion_azimuth(seg.line, dem, victim)
     assert abs((az - expected + 180.0) % 360.0 - 180.0) <= 10.0
+
+
+def _line(rows, cols, cell=30.0):
+    rows, cols = np.asarray(rows, dtype=float), np.asarray(cols, dtype=float)
+    step = np.hypot(np.diff(rows), np.diff(cols)) * cell
+    zeros = np.zeros(rows.size)
+    return DivideLine(row=rows, col=cols, x=cols * cell, y=-rows * cell,
+                      distance_m=np.r_[0.0, np.cumsum(step)], elevation_m=zeros)
+
+
+@pytest.mark.parametrize("victim, expected", [("b", 90.0), ("a", 270.0)])
+def test_azimuth_of_a_crooked_piece_is_the_normal_of_the_stretch_it_was_judged_on(victim, expected):
+    # A piece running 45° across a straight north-south divide (a bend of a crooked divide) is judged on
+    # the stretch it belongs to: its normal is the stretch's, 90° or 270° (compass geometry), not the
+    # piece's own 45° off; alone the piece gives its own normal.
+    # every line walks north, so side a (on the left) is west and b east
+    dem = Dem.from_array(np.zeros((200, 40)), cell_size=30.0, crs="EPSG:32633")
+    south = _line(np.arange(129, 65, -1), np.full(64, 20.0))
+    piece = _line(np.arange(65, 59, -1), 20.0 + np.arange(6))  # north-eastward
+    north = _line(np.arange(59, -1, -1), np.full(60, 25.0))
+    off = (90.0 + 45.0 if victim == "b" else 270.0 + 45.0) % 360.0
+    alone = motion_azimuth(piece, dem, victim)
+    assert abs((alone - off + 180.0) % 360.0 - 180.0) <= 1.0
+    judged = motion_azimuth(piece, dem, victim, [piece, north, south])
+    assert abs((judged - expected + 180.0) % 360.0 - 180.0) <= 10.0
