@@ -81,7 +81,8 @@ class Screening:
         Basin label of every cell (0 = below the minimum area).
     segments : list of dict
         One per judged segment, ranked; keys of :data:`SEGMENT_PROPERTIES` plus ``line``
-        (a :class:`DivideLine`), ``contrasts``, ``reason`` and ``probabilities``.
+        (a :class:`DivideLine`), ``judged_lines`` (the stretch it was judged on, its own line
+        first), ``contrasts``, ``reason`` and ``probabilities``.
     parameters : dict
     gaps : list of dict
         Every stretch of divide between two basins that was not judged: ``basins``,
@@ -560,7 +561,7 @@ def screen(
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
             "forward_shift_cells": _finite(r.get("forward_shift_cells")),
-            "line": seg.line,
+            "line": seg.line, "judged_lines": r["judged_lines"],
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
                  "reason": g["gap"], "line": g["seg"].line} for g in gaps]

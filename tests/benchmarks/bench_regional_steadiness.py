@@ -135,7 +135,7 @@ def forward_judged(seg: dict, shift: float, dem, min_confidence: float) -> dict:
     victim = {"a": a, "b": b}.get(v.moves_toward)
     return {"probabilities": None if v.reason == "insufficient data" else v.probabilities,
             "confidence": v.confidence, "verdict": v.moves_toward, "moves_toward_basin": victim,
-            "motion_azimuth_deg": motion_azimuth(seg["line"], dem, v.moves_toward) if victim is not None else None}
+            "motion_azimuth_deg": motion_azimuth(seg["line"], dem, v.moves_toward, seg["judged_lines"]) if victim is not None else None}
 
 
 def chi_linearity(screening, theta: float) -> list[float]:
