@@ -14,10 +14,12 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.verdict import CAUTION, decide, forward_agrees, forward_disagrees
+from divides.assess.hilltops import hilltop_contrast
+from divides.assess.verdict import CAUTION, decide, forward_agrees
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.model.forward_run import laplacian
 from divides.model.landscape_shift import landscape_shift
 from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
@@ -26,7 +28,7 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "INSTABILITY_SCALING", "INSTABILITY_FORWARD", "MIN_JUDGED_CELLS", "forward_agrees"]
+           "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "forward_agrees"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -51,14 +53,17 @@ MIN_JUDGED_CELLS = 60
 #: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
 INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "lateral": (-3.71, 1.28)}
 
-#: The instability when screening's forward run gave the segment a shift (:func:`_forward_shifts`): a
-#: logistic model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma agrees))),
-#: p = P(a) + P(b) and ``agrees`` 1 when the forward run moves the segment's divide at least
-#: :data:`divides.assess.verdict.FORWARD_NOISE_CELLS` model cells toward the side the near-divide
-#: decision favours, else 0. Fitted with the scaling above on the same training cases
-#: (docs/validation.md, *Regional screening*; ``bench_regional.py --fit``).
-INSTABILITY_FORWARD: dict[str, tuple[float, float, float]] = {"main": (-6.39, 2.80, 2.18),
-                                                               "lateral": (-3.82, 1.25, 0.55)}
+#: The instability with the landscape evidence (screening's default, :func:`_landscape_evidence`): a
+#: logistic model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma_h h
+#: + gamma_r r))), p = P(a) + P(b); h the hilltop-curvature contrast signed toward the side the decision
+#: favours (:func:`divides.assess.hilltops.hilltop_contrast`; 0 when unmeasured); r = 1 when the landscape
+#: run under the steady balance moves the segment's divide at least
+#: :data:`divides.assess.verdict.FORWARD_NOISE_CELLS` model cells toward that side, else 0 (also when
+#: the run did not measure it). Fitted on the regional benchmark's version-3 training cases
+#: (docs/validation.md, *Regional screening*; ``tests/benchmarks/bench_regional.py --fit``); chosen there
+#: against the P-only scaling and each line alone by a rule written beforehand.
+INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-27.16, 2.70, 16.06, 22.42),
+                                                                      "lateral": (-3.89, 1.02, 8.07, 0.61)}
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -67,7 +72,7 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                       "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
-                      "divide_kind", "forward_shift_cells")
+                      "divide_kind", "forward_shift_cells", "hilltop_contrast")
 
 
 @dataclass(eq=False)
@@ -317,33 +322,44 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def instability_of(probabilities: dict | None, kind: str = "main", forward_shift: float | None = None) -> float | None:
-    """The probability that a segment moves, from the decision's probabilities and the forward run.
+def instability_of(probabilities: dict | None, kind: str = "main", evidence: dict | None = None) -> float | None:
+    """The probability that a segment moves, from the decision's probabilities and the landscape evidence.
 
-    P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides)
-    rescaled by the :data:`INSTABILITY_SCALING` of the segment's kind of divide
-    (``"main"`` or ``"lateral"``, :mod:`divides.assess.divide_kind`) to the measured
-    truth of divide segments of that kind in regional model landscapes; with the forward run's
-    shift of the segment (model cells, positive into b), the model of :data:`INSTABILITY_FORWARD`
-    instead. None (unknown) when the decision abstained for insufficient data.
+    P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides) rescaled to
+    the measured truth of divide segments of the same kind (``"main"`` or ``"lateral"``,
+    :mod:`divides.assess.divide_kind`) in regional model landscapes: by :data:`INSTABILITY_SCALING`
+    alone, or, with ``evidence`` (``forward_shift_cells``, model cells into b, and
+    ``hilltop_contrast``, positive when side a is the more convex; either None or NaN when not
+    measured), by the model of :data:`INSTABILITY_EVIDENCE`. None (unknown) when the decision
+    abstained for insufficient data.
 
     Examples
     --------
     >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # -5.75 + 2.86 logit 0.9 = 0.534
     0.63
+    >>> agreeing = {"forward_shift_cells": 0.5, "hilltop_contrast": 0.2}  # both toward b, the favoured side
+    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", agreeing), 2)
+    0.99
+    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", {}) < 0.01  # the run does not agree
+    True
     >>> instability_of(None) is None
     True
     """
     if probabilities is None:
         return None
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    if forward_shift is None or not math.isfinite(forward_shift):
+    logit = math.log(p / (1.0 - p))
+    if evidence is None:
         alpha, beta = INSTABILITY_SCALING[kind]
-        bump = 0.0
-    else:
-        alpha, beta, gamma = INSTABILITY_FORWARD[kind]
-        bump = gamma * float(forward_agrees(probabilities, forward_shift))
-    return float(1.0 / (1.0 + math.exp(-(alpha + beta * math.log(p / (1.0 - p)) + bump))))
+        return float(1.0 / (1.0 + math.exp(-(alpha + beta * logit))))
+    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+    favoured = math.copysign(1.0, probabilities.get("b", 0.0) - probabilities.get("a", 0.0)) \
+        if probabilities.get("b", 0.0) != probabilities.get("a", 0.0) else 0.0
+    hill = _finite(evidence.get("hilltop_contrast")) or 0.0
+    shift = _finite(evidence.get("forward_shift_cells"))
+    agrees = 0.0 if shift is None else float(forward_agrees(probabilities, shift))
+    t = alpha + beta * logit + g_hill * favoured * hill + g_run * agrees
+    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 
 def _finite(v: float | None) -> float | None:
@@ -380,23 +396,28 @@ def _judge_pooled(pts, row: dict, st: dict) -> dict:
     return pooled
 
 
-def _forward_shifts(dem: Dem, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray, config: AssessConfig,
-                    threshold: float) -> dict:
-    """One forward run of the whole DEM (:func:`divides.model.landscape_shift.landscape_shift`) and each
-    segment's shift in it (``forward_shift_cells``, model cells into side b; NaN when not measured).
+def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray,
+                        config: AssessConfig, threshold: float) -> dict:
+    """Each segment's lines of evidence beyond its near-divide contrasts.
 
-    The pieces of divide are judged between the outlet basins of their two sides.
+    ``forward_shift_cells``: the segment's shift (model cells into side b; NaN when not measured) in one
+    run of the whole DEM under its steady balance (:func:`divides.model.landscape_shift.landscape_shift`,
+    ``balance="steady"``), the pieces judged between the outlet basins of their two sides;
+    ``hilltop_contrast``: :func:`divides.assess.hilltops.hilltop_contrast` on the DEM.
     """
     from divides.terrain.tiled_flow import tiled_routing
 
     with tiled_routing(None):  # the model grid is at most 300 x 300 cells: routed in memory even with --tiled
         run = landscape_shift(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
-                              channel_area_m2=threshold)
+                              channel_area_m2=threshold, balance="steady")
     sides = outlet_of[run.on_model_grid(labels)]
+    curvature = laplacian(dem)
+    area_cells = np.asarray(flow.area, dtype=np.float64).reshape(dem.shape) / np.maximum(dem.cell_area_grid(), 1e-300)
     for r in rows:
         seg = r["seg"]
         r["forward_shift_cells"] = run.piece_shift(seg.line, sides, int(outlet_of[seg.label_a]),
                                                    int(outlet_of[seg.label_b]))
+        r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
     return {"model_cell_m": run.cell_m, "block": run.factor, "years_at_unit_k": run.years_unit_k,
             "steps": run.n_steps}
 
@@ -433,7 +454,7 @@ def screen(
     runoff: np.ndarray | None = None,
     erodibility_raster: np.ndarray | None = None,
     uplift_raster: np.ndarray | None = None,
-    forward_run: bool = False,
+    forward_run: bool = True,
     **options,
 ) -> Screening:
     """Screen every divide of a DEM for instability.
@@ -462,11 +483,14 @@ def screen(
         verdict across a rock or climate contrast can point the wrong way
         (Forte & Whipple 2018).
     forward_run : bool
-        Run the forward model once over the whole DEM (0.3 response times, K unknown, one balancing
-        uplift; :func:`divides.model.landscape_shift.landscape_shift`) and read each segment's shift in
-        it: the instability then follows :data:`INSTABILITY_FORWARD`, and a confident near-divide direction
-        the run moves the other way is left undetermined. Off by default: on the training cases of the
-        regional benchmark it did not improve the ranking or the alarms (docs/validation.md).
+        Read two lines of landscape evidence beside the near-divide contrasts (default): each
+        segment's shift in one forward run of the whole DEM under its steady balance (0.3
+        response times, K unknown, U and D fitted so the present surface is the model's steady
+        state; :func:`divides.model.landscape_shift.landscape_shift`) and its hilltop-curvature
+        contrast (:func:`divides.assess.hilltops.hilltop_contrast`); the instability then follows
+        :data:`INSTABILITY_EVIDENCE`. False: the near-divide contrasts alone
+        (:data:`INSTABILITY_SCALING`), a few seconds sooner and with more alarms in steady
+        landscapes on the regional benchmark (docs/validation.md).
     **options
         Fields of :class:`divides.config.AssessConfig` (``theta`` must be a number here).
 
@@ -534,16 +558,11 @@ def screen(
     rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     directions = drainage_directions(labels, outlet_of, outlets)
-    forward = _forward_shifts(dem, rows, labels, outlet_of, config, threshold) if config.forward_run else None
+    forward = (_landscape_evidence(dem, flow, rows, labels, outlet_of, config, threshold) if config.forward_run
+               else None)
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
-        shift = r.get("forward_shift_cells")
-        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], shift)
-        # as assess's veto: a confident near-divide direction the forward run moves the other way is undetermined
-        if r["probabilities"] is not None and shift is not None \
-                and forward_disagrees(r["probabilities"], shift, config.min_confidence):
-            r["moves_toward"] = r["verdict"] = r["basis"] = "undetermined"
-            r["reason"] = "lines disagree"
+        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
     # ranked by the probability of motion; abstentions for insufficient data (unknown) last
     rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
     out = []
@@ -561,6 +580,7 @@ def screen(
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
             "forward_shift_cells": _finite(r.get("forward_shift_cells")),
+            "hilltop_contrast": _finite(r.get("hilltop_contrast")),
             "line": seg.line, "judged_lines": r["judged_lines"],
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,

@@ -70,9 +70,10 @@ SchedulerOption = Annotated[
 ScreenForwardRunOption = Annotated[
     bool,
     typer.Option("--forward-run/--no-forward-run",
-                 help="Also run the model forward once over the whole DEM (0.3 response times) and read each "
-                      "segment's shift in it (a few seconds more; it did not improve the ranking on the regional "
-                      "benchmark, docs/validation.md)."),
+                 help="Read the landscape evidence beside the near-divide measures: one forward run of the whole "
+                      "DEM under its steady balance (0.3 response times) and the hilltop curvature next to each "
+                      "segment (default; fewer alarms in steady landscapes on the regional benchmark, "
+                      "docs/validation.md). --no-forward-run: the near-divide measures alone, a few seconds sooner."),
 ]
 TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
 
@@ -92,7 +93,7 @@ def screen(
     closed_edges: opt.ClosedEdgesOption = None,
     workers: WorkersOption = None,
     scheduler: SchedulerOption = None,
-    forward_run: ScreenForwardRunOption = False,
+    forward_run: ScreenForwardRunOption = True,
     tiled: opt.TiledOption = False,
     scratch: opt.ScratchOption = None,
     seed: opt.SeedOption = 0,

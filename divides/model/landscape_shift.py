@@ -2,8 +2,9 @@
 
 Screening's line of evidence beside the near-divide contrasts: the DEM block-averaged to
 the model grid (:func:`divides.model.forward_run.coarsen`), one run of
-:func:`divides.model.simulate` with K unknown (K = 1) and one uplift rate balancing the
-present landscape (the median K A^m S^n of its channels), over
+:func:`divides.model.simulate` with K unknown (K = 1) and an uplift balancing the present
+landscape (the median K A^m S^n of its channels, or U and D of its steady balance,
+:func:`steady_uplift`), over
 :data:`divides.model.forward_run.FORWARD_HORIZON_TAU` response times (relief / U), as the
 single-divide forward run (:func:`divides.model.forward_run.forward_shift`) does between two
 sides. The outlet basins of the start are matched to those of the end
@@ -23,14 +24,15 @@ from scipy import ndimage
 
 from divides.errors import ParameterError
 from divides.io.dem import Dem
-from divides.model.forward_run import FORWARD_HORIZON_TAU, channel_cells, coarsen, slopes, time_steps
+from divides.model.forward_run import FORWARD_HORIZON_TAU, channel_cells, coarsen, laplacian, slopes, time_steps
 from divides.model.outlet_exchange import match_labels, outlet_basins
 from divides.model.simulate import simulate
 from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import DivideLine
 from divides.terrain.routing import route
 
-__all__ = ["LandscapeShift", "landscape_shift", "ModelStart", "model_start", "run_from", "PIECE_RADIUS_CELLS"]
+__all__ = ["LandscapeShift", "landscape_shift", "ModelStart", "model_start", "run_from", "steady_uplift",
+           "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
 
 #: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
 #: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
@@ -150,7 +152,8 @@ def _most_common(values: np.ndarray) -> int:
 
 
 def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
-                    horizon_tau: float = FORWARD_HORIZON_TAU, max_steps: int = 60) -> LandscapeShift:
+                    horizon_tau: float = FORWARD_HORIZON_TAU, max_steps: int = 60,
+                    balance: str = "channels") -> LandscapeShift:
     """One forward run of a whole DEM over ``horizon_tau`` response times, K unknown.
 
     Parameters
@@ -166,24 +169,74 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
         Horizon in response times.
     max_steps : int
         Most time steps (>= 20).
+    balance : {"channels", "steady"}
+        How uplift balances the present landscape: ``"channels"``, one rate, the median
+        A^m S^n of its channels at K = 1, without diffusion; ``"steady"``, one rate and a
+        diffusivity fitted so that the present surface is the model's steady state
+        (:func:`steady_uplift`).
 
     Returns
     -------
     LandscapeShift
-        Outlet basins of the model grid at the start and at the end of the run. Uplift is one
-        rate, the median A^m S^n of the landscape's channels at K = 1, so uplift scales with K
-        and the shift over a horizon in response times does not depend on K (Royden & Perron
-        2013); the response time is relief / U (Whipple 2001). Without relief or channels that
-        drain downhill nothing is run (``n_steps`` 0, every shift 0).
+        Outlet basins of the model grid at the start and at the end of the run. Uplift
+        scales with K, so the shift over a horizon in response times does not depend on K
+        (Royden & Perron 2013); the response time is relief / U (Whipple 2001). Without
+        relief or channels that drain downhill nothing is run (``n_steps`` 0, every shift 0).
     """
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
+    if balance not in ("channels", "steady"):
+        raise ParameterError(f"balance must be 'channels' or 'steady'; got {balance!r}")
     start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     slope = slopes(start.flow)[start.cells]
+    s_ref = float(np.median(slope)) if slope.size else 1.0
+    if balance == "steady":
+        uplift, diffusivity = steady_uplift(start, n)
+        u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
+        return run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
+                        horizon_tau=horizon_tau, max_steps=max_steps)
     area = start.flow.area.ravel()[start.cells]
     uplift = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
-    return run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=float(np.median(slope))
-                    if slope.size else 1.0, horizon_tau=horizon_tau, max_steps=max_steps)
+    return run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=s_ref,
+                    horizon_tau=horizon_tau, max_steps=max_steps)
+
+
+#: Outlet basins of fewer model cells share one uplift rate in :func:`steady_uplift` (``per_basin``).
+MIN_BALANCE_CELLS = 20
+
+
+def steady_uplift(start: ModelStart, n: float, *, per_basin: bool = False) -> tuple[np.ndarray, float]:
+    """Uplift field and diffusivity (K = 1) for which the present surface is the model's steady state.
+
+    At steady state every cell obeys U = K A^m S^n − D ∇²z (Perron, Kirchner & Dietrich 2009; the
+    hillslope half is the hilltop balance of Roering, Perron & Kirchner 2007). Over the model grid's
+    cells in an outlet basin with a slope to their receiver and a full stencil, A^m S^n is regressed on
+    ∇²z by least squares: the slope is D (clipped at 0), the intercept U, one for the whole landscape or,
+    with ``per_basin``, one per outlet basin (basins under :data:`MIN_BALANCE_CELLS` cells share one)
+    with a shared D. U below 0 is returned as 0.
+
+    Returns
+    -------
+    (ndarray, float)
+        U on the model grid (m/yr at K = 1) and D (m²/yr at K = 1).
+    """
+    grid, before = start.grid, start.before
+    sl = slopes(start.flow)
+    fluvial = np.asarray(start.flow.area, dtype=np.float64).ravel() ** start.m * sl ** n
+    lap = laplacian(grid).ravel()
+    lab = before.ravel().astype(np.int64)
+    groups = lab if per_basin else (lab > 0).astype(np.int64)
+    sel = (lab > 0) & (sl > 0) & np.isfinite(lap)
+    size = int(groups.max()) + 1
+    small = np.bincount(groups[sel], minlength=size) < MIN_BALANCE_CELLS
+    groups = np.where(small[groups], 0, groups)
+    g, f, c = groups[sel], fluvial[sel], lap[sel]
+    count = np.maximum(np.bincount(g, minlength=size), 1).astype(np.float64)
+    f_mean, c_mean = np.bincount(g, f, minlength=size) / count, np.bincount(g, c, minlength=size) / count
+    dc = c - c_mean[g]
+    spread = float(np.sum(dc * dc))
+    d = max(float(np.sum(dc * (f - f_mean[g])) / spread), 0.0) if spread > 0 else 0.0
+    return np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(grid.shape), d
 
 
 @dataclass(frozen=True, eq=False)

@@ -600,7 +600,7 @@ def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
                 truth = {"a": "b", "b": "a"}[truth]
         out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                     "probabilities": s.get("probabilities"), "kind": s.get("divide_kind"), "length_m": s["length_m"],
-                    "forward_shift_cells": s.get("forward_shift_cells"),
+                    "forward_shift_cells": s.get("forward_shift_cells"), "hilltop_contrast": s.get("hilltop_contrast"),
                     "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
                     "in_stable": truth == "stable",
                     "rate_cells_per_tau": None if p is None or p["rate_m_per_yr"] is None
@@ -642,7 +642,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                      "kind": s.get("divide_kind"), "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
-                     "forward_shift_cells": s.get("forward_shift_cells"), "reason": s.get("reason"),
+                     "forward_shift_cells": s.get("forward_shift_cells"), "hilltop_contrast": s.get("hilltop_contrast"),
+                     "reason": s.get("reason"),
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
                      "measured_azimuth": 270.0 if toward == "a" else 90.0,

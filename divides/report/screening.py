@@ -38,7 +38,7 @@ MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
             "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells",
-            "x_mid", "y_mid")
+            "hilltop_contrast", "x_mid", "y_mid")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -48,8 +48,12 @@ SCREENING_REFERENCES = tuple(sorted(
     [r for r in _html.REFERENCES if r.startswith(("Forte, A. M., Whipple, K. X.", "Scherler, D.", "Willett, S. D."))] + [
         "Gilbert, G. K. (1877). Report on the Geology of the Henry Mountains. U.S. Geographical and Geological "
         "Survey of the Rocky Mountain Region, Washington.",
+        "Perron, J. T., Kirchner, J. W., Dietrich, W. E. (2009). Formation of evenly spaced ridges and valleys. "
+        "Nature 460, 502–505.",
         "Platt, J. C. (1999). Probabilistic outputs for support vector machines and comparisons to regularized "
         "likelihood methods. In Advances in Large Margin Classifiers, MIT Press, 61–74.",
+        "Roering, J. J., Perron, J. T., Kirchner, J. W. (2007). Functional relationships between denudation and "
+        "hillslope form and relief. Earth and Planetary Science Letters 264, 245–258.",
         "Royden, L., Perron, J. T. (2013). Solutions of the stream power equation and application to the "
         "evolution of river longitudinal profiles. Journal of Geophysical Research: Earth Surface 118, 497–518.",
     ]))
@@ -75,6 +79,7 @@ def segment_rows(result: Screening) -> list[dict]:
             "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
             "forward_shift_cells": None if s.get("forward_shift_cells") is None
             else round(float(s["forward_shift_cells"]), 3),
+            "hilltop_contrast": None if s.get("hilltop_contrast") is None else round(float(s["hilltop_contrast"]), 3),
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
@@ -90,6 +95,7 @@ def segment_features(result: Screening) -> list[dict]:
                                    "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
                                    "divide_kind")}
         props["forward_shift_cells"] = s.get("forward_shift_cells")
+        props["hilltop_contrast"] = s.get("hilltop_contrast")
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
@@ -293,11 +299,13 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "(Platt 1999) to how often divide segments of regional model landscapes with that probability lay in "
         "stretches that moved: the calibrated probability that the segment moves; it is unknown when too few "
         "independent samples were found. Divides between tributaries of the same trunk are not assessed. "
-        + ("A forward run of the landscape-evolution model over the whole DEM (0.3 response times, erodibility "
-           "unknown, one uplift rate balancing the present channels) moved each segment by the area its two "
-           "basins exchanged next to it; the instability then also reads whether that shift (at least 0.1 model "
-           "cell) points the way the near-divide measures do, and a confident direction the run moves the "
-           "other way is left undetermined (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
+        + ("Two lines of landscape evidence join it: a forward run of the landscape-evolution model over the "
+           "whole DEM (0.3 response times, erodibility unknown, uplift and hillslope diffusivity fitted so the "
+           "present surface is the model's steady state; Perron et al. 2009) moves each segment "
+           "by the area its two basins exchange next to it, and the curvature of the hilltops next to it says "
+           "which side lowers faster (E = −D ∇²z; Roering et al. 2007). The instability then "
+           "reads whether the run moves the segment at least 0.1 model cell the way the near-divide measures "
+           "point, and whether the hilltops agree (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
            else "") +
         "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
         "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")

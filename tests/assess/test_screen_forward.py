@@ -1,4 +1,5 @@
-"""Screening with one forward run of the whole DEM (`screen(..., forward_run=True)`)."""
+"""Screening's landscape evidence: one forward run of the whole DEM under its steady balance and the
+hilltop curvature (`screen(..., forward_run=True)`, the default)."""
 
 from __future__ import annotations
 
@@ -8,7 +9,7 @@ import numpy as np
 import pytest
 
 import divides
-from divides.assess.screen import INSTABILITY_FORWARD, INSTABILITY_SCALING, forward_agrees, screen
+from divides.assess.screen import INSTABILITY_EVIDENCE, INSTABILITY_SCALING, forward_agrees, screen
 
 OPTIONS = dict(theta=0.1, closed_edges=("north", "south"), channel_area_m2=3e4, workers=1, level="outlets")
 
@@ -21,17 +22,18 @@ def _book(west_gradient: float, east_gradient: float, rows: int = 21, cols: int 
     return divides.Dem.from_array(z, cell_size=100.0)
 
 
-def _instability(p: dict, kind: str, shift: float | None) -> float:
-    # The documented models (docs/methods.md): Platt scaling without the forward run, and with it the
-    # logistic model that adds the forward run's agreement with the near-divide side.
+def _instability(p: dict, kind: str, shift: float | None, hill: float | None = None) -> float:
+    # The documented models (docs/methods.md §7b): Platt scaling without the landscape evidence, and with it
+    # the logistic model adding the hilltop contrast toward the favoured side and the run's agreement.
     q = p["a"] + p["b"]
     z = math.log(q / (1.0 - q))
-    if shift is None:
+    if shift is None and hill is None:
         alpha, beta = INSTABILITY_SCALING[kind]
         return 1.0 / (1.0 + math.exp(-(alpha + beta * z)))
-    alpha, beta, gamma = INSTABILITY_FORWARD[kind]
-    agrees = (shift if p["b"] >= p["a"] else -shift) >= 0.1
-    return 1.0 / (1.0 + math.exp(-(alpha + beta * z + gamma * agrees)))
+    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+    favoured = 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
+    agrees = shift is not None and favoured * shift >= 0.1
+    return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * favoured * (hill or 0.0) + g_run * agrees)))
 
 
 @pytest.mark.parametrize(("west", "east"), [(0.2, 0.1), (0.1, 0.2)])
@@ -39,26 +41,28 @@ def test_the_forward_run_moves_the_divide_into_the_gentler_flank(west, east):
     # Gilbert (1877): at uniform uplift and erodibility the steeper flank erodes faster, so the crest
     # moves into the gentler side; the segment's shift (positive into its basin b) points there.
     dem = _book(west, east)
-    result = screen(dem, forward_run=True, **OPTIONS)
+    result = screen(dem, **OPTIONS)
     main = [s for s in result.segments if s["divide_kind"] == "main"]
     assert len(main) == 1
     s = main[0]
     gentle = result.labels[10, -2] if west > east else result.labels[10, 1]
     victim = s["basins"][1] if s["forward_shift_cells"] > 0 else s["basins"][0]
     assert abs(s["forward_shift_cells"]) > 0.5 and victim == gentle
-    assert s["instability"] == pytest.approx(_instability(s["probabilities"], "main", s["forward_shift_cells"]),
-                                             abs=1e-9)
+    assert s["instability"] == pytest.approx(
+        _instability(s["probabilities"], "main", s["forward_shift_cells"], s["hilltop_contrast"]), abs=1e-9)
     assert result.parameters["forward_run"] is True and result.parameters["forward_run_grid"]["steps"] >= 20
 
 
-def test_equal_flanks_give_no_shift_and_the_default_makes_no_forward_run():
-    # Symmetric flanks stay (Gilbert 1877): less than the 0.1 model cell a shift is read at.
-    on = screen(_book(0.15, 0.15), forward_run=True, **OPTIONS)
-    off = screen(_book(0.15, 0.15), **OPTIONS)
+def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
+    # Symmetric flanks stay (Gilbert 1877): less than the 0.1 model cell a shift is read at. Without the run
+    # (forward_run=False) neither line of landscape evidence is measured and the P-only scaling applies.
+    on = screen(_book(0.15, 0.15), **OPTIONS)
+    off = screen(_book(0.15, 0.15), forward_run=False, **OPTIONS)
     (s_on,) = [s for s in on.segments if s["divide_kind"] == "main"]
     (s_off,) = [s for s in off.segments if s["divide_kind"] == "main"]
     assert abs(s_on["forward_shift_cells"]) < 0.1
     assert not forward_agrees(s_on["probabilities"], s_on["forward_shift_cells"])
-    assert s_off["forward_shift_cells"] is None and off.parameters["forward_run"] is False
-    assert "forward_run_grid" not in off.parameters
+    assert on.parameters["forward_run"] is True
+    assert s_off["forward_shift_cells"] is None and s_off["hilltop_contrast"] is None
+    assert off.parameters["forward_run"] is False and "forward_run_grid" not in off.parameters
     assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)

@@ -4,7 +4,7 @@ The cases come from :mod:`divides.model.regional_benchmark`: a ridge between the
 east edges grown with the project's forward model, long along the divide, several outlet
 basins per side; the truth is measured by continuing the run (docs/validation.md,
 *Regional screening*). The fast tests grow one steady case small (120 x 96 cells) from its
-seed; the slow ones run the held-out cases of the validation.
+seed; the slow ones run the held-out cases of the validation (master seed 1).
 """
 
 from __future__ import annotations
@@ -107,6 +107,10 @@ def test_lateral_outlet_divides_carry_their_own_truth_and_kind(steady):
         assert p["length_m"] <= 4 * small * case.cell_size
 
 
+@pytest.mark.xfail(strict=True, reason="known miss (docs/validation.md, Regional screening): with the landscape "
+                   "evidence one main-divide segment of this small steady case reaches instability 0.52 at "
+                   "confidence 0.85 (the run moves it 0.18 model cell toward the side the decision favours); none "
+                   "from the near-divide contrasts alone (next tests)")
 def test_no_false_alarm_on_a_steady_landscape(steady):
     # Issue 14 item 4: no segment with instability >= 0.5 and confidence >= 0.5 in a steady landscape
     # (uniform forcing at a steady state checked by continuing the run; Willett et al. 2014).
@@ -114,20 +118,12 @@ def test_no_false_alarm_on_a_steady_landscape(steady):
     assert scored["alarms"] == 0
 
 
-@pytest.fixture(scope="module")
-def steady_forward(steady):
-    case = steady[0]
-    result = screen(case.dem(), theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
-                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2, forward_run=True)
-    return result, score(case, result)
-
-
-def test_the_forward_run_barely_moves_a_steady_landscape(steady_forward):
-    # At steady state under uniform forcing the divide does not move (Willett et al. 2014): the forward
-    # run of the whole DEM measures nearly every segment (not one whose basins the run merges: NaN), and
-    # moves half of them less than the 0.1 model cell a shift is read at (FORWARD_NOISE_CELLS) and none by
-    # a model cell (the grid's resolution).
-    result, _ = steady_forward
+def test_the_forward_run_barely_moves_a_steady_landscape(steady):
+    # At steady state under uniform forcing the divide does not move (Willett et al. 2014): the run of the
+    # whole DEM under its steady balance measures nearly every segment (not one whose basins the run merges:
+    # NaN), and moves half of them less than the 0.1 model cell a shift is read at (FORWARD_NOISE_CELLS) and
+    # none by a model cell (the grid's resolution).
+    _, result, _, _ = steady
     shifts = np.abs([np.nan if s["forward_shift_cells"] is None else s["forward_shift_cells"]
                      for s in result.segments])
     measured = shifts[np.isfinite(shifts)]
@@ -135,45 +131,26 @@ def test_the_forward_run_barely_moves_a_steady_landscape(steady_forward):
     assert np.median(measured) < 0.1 and measured.max() < 1.0
 
 
-def test_a_confident_direction_the_forward_run_contradicts_is_undetermined(steady, monkeypatch):
-    # assess's rule 5 (docs/methods.md §7): a direction at min_confidence or more that the forward run
-    # moves at least FORWARD_NOISE_CELLS the other way is left undetermined; screening applies the same rule.
-    # The run is replaced by one moving every segment a full cell against the side its decision favours.
-    import divides.assess.screen as screening
-
-    def against(dem, rows, *args):
-        for r in rows:
-            p = r["probabilities"] or {"a": 0.0, "b": 0.0}
-            r["forward_shift_cells"] = -1.0 if p["b"] >= p["a"] else 1.0
-        return {"steps": 0}
-
-    monkeypatch.setattr(screening, "_forward_shifts", against)
+def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alone(steady):
+    # As above, without the landscape evidence (forward_run=False: the P-only scaling).
     case = steady[0]
     result = screen(case.dem(), theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
-                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2, forward_run=True, min_confidence=0.5)
-    confident = [s for s in result.segments if s["probabilities"] is not None
-                 and max(s["probabilities"]["a"], s["probabilities"]["b"]) >= 0.5]
-    assert confident
-    for s in confident:
-        assert s["verdict"] == "undetermined" and s["reason"] == "lines disagree" and s["moves_toward_basin"] is None
-    assert all(s["reason"] != "lines disagree" for s in result.segments if s not in confident)
-
-
-def test_no_false_alarm_on_a_steady_landscape_with_the_forward_run(steady_forward):
-    # As above, with screening's forward run and its own instability model (INSTABILITY_FORWARD).
-    _, scored = steady_forward
-    assert scored["alarms"] == 0
+                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2, forward_run=False)
+    assert score(case, result)["alarms"] == 0
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-HELD_OUT = [i for i in range(24) if split_of(case_seed(0, i)) == "held-out"]
+#: The held-out cases of the regional draw kept unseen until the shipped screening was fixed: master seed 1
+#: (version 3; master seed 0's held-out cases informed the second round of choices, docs/validation.md).
+HELD_OUT_SEED = 1
+HELD_OUT = [i for i in range(24) if split_of(case_seed(HELD_OUT_SEED, i)) == "held-out"]
 
 
 @pytest.fixture(scope="module")
 def held_out():
     out = []
     for i in HELD_OUT:
-        case = load_or_build(0, i)  # cached under ~/.cache/divides/regional
+        case = load_or_build(HELD_OUT_SEED, i)  # cached under ~/.cache/divides/regional (built if missing)
         out.append(score(case, _screen(case), lateral=lateral_truth(case)))  # the truth cached beside the case
     return out
 
@@ -204,18 +181,16 @@ def _lateral_log_loss(held_out, scaling) -> tuple[float, float, float]:
 def test_held_out_lateral_instability_is_calibrated_in_the_large(held_out):
     # Lateral outlet-basin segments against the area their pair of basins exchanged: with their own Platt
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
-    # (calibration in the large; common practice): 0.069 against 0.076 when written.
+    # (calibration in the large; common practice): 0.083 against 0.061 when written.
     _, mean_own, moved = _lateral_log_loss(held_out, INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="known miss (docs/validation.md, Regional screening): on the held-out lateral "
-                   "segments the main divide's scaling scores a lower log loss (0.163) than their own (0.181), "
-                   "which wins on training (0.201 against 0.247)")
 def test_held_out_lateral_own_scaling_beats_the_main_divides(held_out):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
-    # divide's on the held-out cases.
+    # divide's on the held-out cases: 0.179 against 0.239 when written (on master seed 0's held-out cases it
+    # did not: 0.181 against 0.163; docs/validation.md).
     own, _, _ = _lateral_log_loss(held_out, INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(held_out, INSTABILITY_SCALING["main"])
     assert own < main
@@ -223,7 +198,8 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(held_out):
 
 @pytest.mark.slow
 @pytest.mark.xfail(strict=True, reason="known misses per family in docs/validation.md (Regional screening): top "
-                   "3 of 4 cases, order 1 of 3, steady landscapes without an alarm 3 of 4 (steady_erodibility_contrast)")
+                   "3 of 4 held-out cases, order 2 of 3, steady landscapes without an alarm 4 of 6 (two "
+                   "steady_runoff_contrast alarms up to 0.64, one steady_symmetric at 0.56)")
 def test_held_out_ranking_and_alarm_targets(held_out):
     assert all(r["top_ok"] is not False for r in held_out)
     assert all(r["order_ok"] is not False for r in held_out)

@@ -2,15 +2,16 @@
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
                                               [--generate-only] [--json FILE] [--fit] [--markdown]
-                                              [--forward-run]
+                                              [--no-forward-run]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
 shipped decision model and prints the targets of issue 14 per case and per
 split (docs/validation.md, *Regional screening*). Re-run it after any change
 to the decision model: it is the one command behind the figures there.
-With --forward-run each DEM is screened with screen's forward run (off by
-default); --fit then also prints its INSTABILITY_FORWARD.
+Each DEM is screened with screening's landscape evidence (the steady-balance
+run and the hilltop curvature; --no-forward-run: the near-divide contrasts
+alone); --fit prints INSTABILITY_EVIDENCE and the P-only INSTABILITY_SCALING.
 """
 
 from __future__ import annotations
@@ -83,40 +84,50 @@ def _logit(p):
     return np.log(p / (1 - p))
 
 
-def _labelled(rows: list[dict], kind: str | None, forward: bool = False) -> tuple[list, list[float]]:
-    """P(a) + P(b) and the truth (1 moving, 0 not moving) of every segment of ``kind`` (None: all) with both.
+def evidence_features(m: dict) -> list[float]:
+    """logit(P(a) + P(b)), the hilltop contrast signed toward the favoured side and the run's agreement
+    (0 when unmeasured), as screen.instability_of reads them with INSTABILITY_EVIDENCE."""
+    import numpy as np
+
+    from divides.assess.screen import forward_agrees
+
+    p = m["probabilities"]
+    favoured = float(np.sign(p.get("b", 0.0) - p.get("a", 0.0)))
+    hill = m.get("hilltop_contrast")
+    shift = m.get("forward_shift_cells")
+    return [float(_logit(p.get("a", 0.0) + p.get("b", 0.0))), favoured * (hill or 0.0),
+            0.0 if shift is None else float(forward_agrees(p, shift))]
+
+
+def _labelled(rows: list[dict], kind: str | None, evidence: bool = False) -> tuple[list, list[float]]:
+    """P(a) + P(b) (with ``evidence``, :func:`evidence_features`) and the truth (1 moving, 0 not moving)
+    of every segment of ``kind`` (None: all) with both.
 
     Main-divide segments at least 70 % in moving stretches are 1, at least 70 % in stable ones 0;
     segments between neighbouring outlet basins draining off the same edge take the class of their pair
     (area exchanged); the rest, and segments without probabilities, are left out. ``kind`` is the
-    screening's own (``divide_kind``), the one its scaling is chosen by. With ``forward``, only segments the
-    forward run gave a shift, each as (P(a) + P(b), 1 when the forward run agrees with the near-divide side).
+    screening's own (``divide_kind``), the one its scaling is chosen by.
     """
-    from divides.assess.screen import forward_agrees
-
     x, y = [], []
     for r in rows:
         for m in r["main"] + r.get("lateral", []):
             p = m["probabilities"]
             if p is None or not (m["in_moving"] or m["in_stable"]) or (kind is not None and m["kind"] != kind):
                 continue
-            if forward and m.get("forward_shift_cells") is None:
-                continue
-            q = p.get("a", 0.0) + p.get("b", 0.0)
-            x.append((q, float(forward_agrees(p, m["forward_shift_cells"]))) if forward else q)
+            x.append(evidence_features(m) if evidence else p.get("a", 0.0) + p.get("b", 0.0))
             y.append(1.0 if m["in_moving"] else 0.0)
     return x, y
 
 
-def fit_instability(rows: list[dict], kind: str, forward: bool = False) -> dict:
+def fit_instability(rows: list[dict], kind: str, evidence: bool = False) -> dict:
     """Platt scaling (Platt 1999) of P(a) + P(b) to the measured truth of the segments of one kind; with
-    ``forward``, the logistic model that adds the forward run's agreement (screen.INSTABILITY_FORWARD)."""
+    ``evidence``, the logistic model of screen.INSTABILITY_EVIDENCE (coefficients ``w``)."""
     import numpy as np
     from scipy.optimize import minimize
 
-    x, y = _labelled(rows, kind, forward)
+    x, y = _labelled(rows, kind, evidence)
     y = np.asarray(y)
-    design = np.column_stack([_logit([v[0] for v in x]), [v[1] for v in x]]) if forward else _logit(x)[:, None]
+    design = np.asarray(x, dtype=float) if evidence else _logit(x)[:, None]
     design = np.column_stack([np.ones(y.size), design])
 
     def loss(w):
@@ -124,7 +135,7 @@ def fit_instability(rows: list[dict], kind: str, forward: bool = False) -> dict:
         return float(np.sum(np.logaddexp(0.0, t) - y * t))
 
     w = minimize(loss, np.r_[0.0, 1.0, np.zeros(design.shape[1] - 2)], method="BFGS").x
-    return {"kind": kind, "alpha": float(w[0]), "beta": float(w[1]), "gamma": float(w[2]) if forward else None,
+    return {"kind": kind, "alpha": float(w[0]), "beta": float(w[1]), "w": [float(v) for v in w],
             "n": int(y.size), "moving": int(y.sum()), "log_loss": loss(w) / max(y.size, 1)}
 
 
@@ -173,8 +184,8 @@ def main() -> None:
     parser.add_argument("--fit", action="store_true",
                         help="print the instability's Platt scaling fitted on the cases run (use --split training)")
     parser.add_argument("--markdown", action="store_true", help="print the per-case rows of docs/validation.md")
-    parser.add_argument("--forward-run", action="store_true",
-                        help="screen with the forward run over the whole DEM (screen's forward_run=True)")
+    parser.add_argument("--no-forward-run", action="store_true",
+                        help="screen with the near-divide contrasts alone (screen's forward_run=False)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
@@ -201,7 +212,7 @@ def main() -> None:
                                  stretch_class(s, case.threshold_m_per_yr)] for s in case.stretches), flush=True)
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
-        extra["forward_run"] = args.forward_run
+        extra["forward_run"] = not args.no_forward_run
         result = score(case, screen_case(case, **extra), lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
@@ -217,12 +228,11 @@ def main() -> None:
         print("INSTABILITY_SCALING = {" + ", ".join(f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f})' for k, f in fits.items())
               + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
                                     for k, f in fits.items()))
-        fits = {k: fit_instability(rows, k, forward=True) for k in KINDS}
-        if all(f["n"] for f in fits.values()):
-            print("INSTABILITY_FORWARD = {" + ", ".join(
-                f'"{k}": ({f["alpha"]:.2f}, {f["beta"]:.2f}, {f["gamma"]:.2f})' for k, f in fits.items())
-                + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
-                                      for k, f in fits.items()))
+        fits = {k: fit_instability(rows, k, evidence=True) for k in KINDS}
+        print("INSTABILITY_EVIDENCE = {" + ", ".join(
+            f'"{k}": (' + ", ".join(f"{v:.2f}" for v in f["w"]) + ")" for k, f in fits.items())
+            + "}  # " + "; ".join(f"{k}: {f['n']} segments ({f['moving']} moving), log loss {f['log_loss']:.3f}"
+                                  for k, f in fits.items()))
     for split in ("training", "held-out"):
         part = [r for r in rows if r["split"] == split]
         if not part:
@@ -242,10 +252,6 @@ def main() -> None:
                   f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling "
                   f"{single['log_loss']:.3f} / {single['auc']:.2f}, of the shipped scaling {shipped['log_loss']:.3f} / {shipped['auc']:.2f}, "
                   f"of the instability given {given['log_loss']:.3f} / {given['auc']:.2f}")
-        vetoed = [m for r in part for m in r["main"] if m.get("reason") == "lines disagree"]
-        if vetoed:
-            print(f"  main segments left undetermined by the forward run: {len(vetoed)} (in moving stretches "
-                  f"{sum(m['in_moving'] for m in vetoed)}, not moving {sum(m['in_stable'] for m in vetoed)})")
         lat = [m for r in part for m in r.get("lateral", [])]
         steady_lat = [m for r in steady for m in r.get("lateral", [])]
         print(f"  lateral outlet-basin segments {len(lat)}: truth moving {sum(m['in_moving'] for m in lat)}, "

@@ -4,10 +4,11 @@
 
 Measures, on the TRAINING regional cases only (docs/validation.md, *Regional screening*, *Evidence
 tried against the alarms of steady landscapes*), three lines of evidence beside the screening's calibrated
-probability of motion, none shipped:
+probability of motion from the near-divide contrasts; the rule written beforehand chose 1. and 2. together
+on the version-3 cases, and screening reads both by default (divides.assess.screen.INSTABILITY_EVIDENCE):
 
-1. hilltop curvature: the median ∇²z of the hillslope cells (drainage area at most ``HILL_CELLS`` cells)
-   within ``RADIUS_CELLS`` cells of a segment on each side; at steady state E = −D ∇²z (Roering, Perron &
+1. hilltop curvature: the median ∇²z of the hillslope cells (drainage area at most ``HILLSLOPE_CELLS`` cells)
+   within ``HILLTOP_RADIUS_CELLS`` cells of a segment on each side; at steady state E = −D ∇²z (Roering, Perron &
    Kirchner 2007), so the more convex side erodes faster. Feature: the relative contrast
    (∇²z_b − ∇²z_a) / (|∇²z_a| + |∇²z_b|), signed toward the side the decision favours;
 2. a forward run of the whole DEM under the steady balance: K = 1, D and one U (``--per-basin``: one U
@@ -35,10 +36,10 @@ import math
 
 import numpy as np
 from bench_regional import screen_case
-from scipy import ndimage
 from scipy.optimize import minimize
 
 from divides.assess.contrasts import Contrast
+from divides.assess.hilltops import hilltop_contrast
 from divides.assess.screen import _outlet_basins, forward_agrees, motion_azimuth
 from divides.assess.verdict import decide
 from divides.model.benchmark import split_of
@@ -46,7 +47,7 @@ from divides.model.forward_run import (
     laplacian,
     slopes,
 )
-from divides.model.landscape_shift import LandscapeShift, model_start, run_from
+from divides.model.landscape_shift import LandscapeShift, landscape_shift, model_start, run_from, steady_uplift
 from divides.model.regional_benchmark import (
     case_seed,
     lateral_truth,
@@ -56,62 +57,17 @@ from divides.model.regional_benchmark import (
 from divides.profiles.chi import integrate_chi
 from divides.terrain.basins import basin_labels
 
-#: Cells within this distance of a segment count for its hilltop curvature (set before any result).
-RADIUS_CELLS = 3
-#: Hillslope cells: drainage area at most this many cells (set before any result).
-HILL_CELLS = 3.0
-
-
-def hilltop_contrast(line, labels, label_a, label_b, lap, area_cells) -> float:
-    """(∇²z_b − ∇²z_a) / (|∇²z_a| + |∇²z_b|) of the medians over each side's hillslope cells near the line
-    (0 when a side has fewer than three); positive: side a is more convex, erodes faster, the divide moves
-    toward b."""
-    rows, cols = labels.shape
-    r, c = np.asarray(line.row, dtype=float), np.asarray(line.col, dtype=float)
-    pad = RADIUS_CELLS + 2
-    r0, c0 = max(0, int(np.floor(r.min())) - pad), max(0, int(np.floor(c.min())) - pad)
-    r1, c1 = min(rows, int(np.ceil(r.max())) + pad + 1), min(cols, int(np.ceil(c.max())) + pad + 1)
-    t = np.linspace(0.0, 1.0, 4)[:, None]  # the line densified (its vertices lie between cells)
-    rr = (r[:-1] + (r[1:] - r[:-1]) * t).ravel() if r.size > 1 else r
-    cc = (c[:-1] + (c[1:] - c[:-1]) * t).ravel() if c.size > 1 else c
-    free = np.ones((r1 - r0, c1 - c0), dtype=bool)
-    free[np.clip(np.rint(rr).astype(int) - r0, 0, r1 - r0 - 1), np.clip(np.rint(cc).astype(int) - c0, 0, c1 - c0 - 1)] = False
-    near = (ndimage.distance_transform_edt(free) <= RADIUS_CELLS) & (area_cells[r0:r1, c0:c1] <= HILL_CELLS)
-    box_lab, box_lap = labels[r0:r1, c0:c1], lap[r0:r1, c0:c1]
-    med = []
-    for label in (label_a, label_b):
-        v = box_lap[near & (box_lab == label)]
-        v = v[np.isfinite(v)]
-        if v.size < 3:
-            return 0.0
-        med.append(float(np.median(v)))
-    scale = abs(med[0]) + abs(med[1])
-    return (med[1] - med[0]) / scale if scale > 0 else 0.0
-
-
 def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: float, per_basin: bool) -> LandscapeShift:
-    """Screen's landscape run (K = 1, 0.3 response times) with U and D of the steady balance instead of one
-    channel-balancing U and no diffusion."""
+    """Screen's landscape run under the steady balance (K = 1, 0.3 response times): U and D fitted so that the
+    present surface is the model's steady state, one U for the whole DEM (screening's) or one per outlet basin."""
+    if not per_basin:
+        return landscape_shift(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2,
+                               balance="steady")
     start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
-    grid, before, m = start.grid, start.before, start.m
-    sl = slopes(start.flow)
-    fluvial = np.asarray(start.flow.area, dtype=float).ravel() ** m * sl ** n
-    lap = laplacian(grid).ravel()
-    lab = before.ravel().astype(np.int64)
-    groups = lab if per_basin else (lab > 0).astype(np.int64)
-    sel = (lab > 0) & (sl > 0) & np.isfinite(lap)
-    size = int(groups.max()) + 1
-    small = np.bincount(groups[sel], minlength=size) < 20
-    groups = np.where(small[groups], 0, groups)  # basins of under 20 cells share one U
-    g, f, cv = groups[sel], fluvial[sel], lap[sel]
-    count = np.maximum(np.bincount(g, minlength=size), 1).astype(float)
-    f_mean, c_mean = np.bincount(g, f, minlength=size) / count, np.bincount(g, cv, minlength=size) / count
-    dc = cv - c_mean[g]
-    d = max(float(np.sum(dc * (f - f_mean[g])) / np.sum(dc * dc)), 0.0)  # within-group least squares: shared D
-    u_field = np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(grid.shape)
-    u_ref = float(np.median(u_field[before > 0]))
-    return run_from(start, uplift=u_field, diffusivity=d, n=n, u_scale=u_ref,
-                    s_ref=float(np.median(sl[start.cells])) if start.cells.size else 1.0)
+    uplift, diffusivity = steady_uplift(start, n, per_basin=True)
+    slope = slopes(start.flow)[start.cells]
+    return run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=float(np.median(uplift[start.before > 0])),
+                    s_ref=float(np.median(slope)) if slope.size else 1.0)
 
 
 def contrasts_of(rows: list[dict]) -> list[Contrast]:
@@ -202,7 +158,7 @@ def main() -> None:
         if split_of(case_seed(args.seed, i)) != "training":
             continue  # held-out cases are never read here
         case = load_or_build(args.seed, i)
-        scr = screen_case(case)
+        scr = screen_case(case, forward_run=False)  # each line of evidence is measured here
         lateral = lateral_truth(case)
         truth = score(case, scr, lateral=lateral)
         labelled = {m["rank"]: m for m in truth["main"] + truth.get("lateral", [])}

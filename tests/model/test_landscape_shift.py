@@ -27,9 +27,9 @@ def _book(west_gradient: float, east_gradient: float, *, rows: int = 13, cols: i
     return divides.Dem.from_array(z, cell_size=cell)
 
 
-def _shift(dem: divides.Dem) -> tuple[float, int]:
+def _shift(dem: divides.Dem, *, theta: float = 0.1, balance: str = "channels") -> tuple[float, int]:
     """Shift (model cells, positive into the east valley) of the divide between the two valleys, and the block size."""
-    run = landscape_shift(dem, theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    run = landscape_shift(dem, theta=theta, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4, balance=balance)
     labels, _ = outlet_basins(route(dem, closed_edges=CLOSED), min_cells=1)
     mid = dem.shape[0] // 2
     west, east = int(labels[mid, 1]), int(labels[mid, -2])
@@ -90,3 +90,51 @@ def test_a_horizon_that_is_not_positive_is_refused():
     with pytest.raises(ParameterError, match="horizon"):
         landscape_shift(_book(0.2, 0.1), theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4,
                         horizon_tau=0.0)
+
+
+@pytest.mark.parametrize("balance", ["channels", "steady"])
+def test_under_either_balance_the_steeper_flank_gains_ground(balance):
+    # Gilbert (1877), as above, with the uplift balancing the channels or the steady balance (U and D fitted).
+    into_east, _ = _shift(_book(0.2, 0.1), balance=balance)
+    into_west, _ = _shift(_book(0.1, 0.2), balance=balance)
+    assert into_east > 0.5 and into_west < -0.5
+
+
+# ---------------------------------------------------------------- the steady balance of a whole DEM
+_U, _K, _D, _M = 2e-4, 2e-5, 0.02, 0.5
+
+
+@pytest.fixture(scope="module")
+def lopsided_steady():
+    """A ridge with a valley per flank grown to steady state under uniform U, K and D, its east base level
+    held 30 m above the west one, so the steady divide sits off centre (Whipple et al. 2017)."""
+    from divides.model.scenarios import ridge_surface
+    from divides.model.simulate import simulate
+
+    start = ridge_surface((24, 40), crest=0.5, noise=1.0, seed=3)
+    edges = {"north": "closed", "south": "closed", "west": 0.0, "east": 30.0}
+    return simulate(start, duration=3e6, dt=1e4, uplift=_U, erodibility=_K, m=_M, n=1.0, diffusivity=_D,
+                    edges=edges).final
+
+
+def test_steady_uplift_recovers_the_uplift_and_diffusivity_over_k(lopsided_steady):
+    # At steady state every cell obeys U = K A^m S^n - D lap(z) (Perron, Kirchner & Dietrich 2009; the
+    # hilltop half is Roering et al. 2007): at K = 1 the fit over the whole DEM gives back U / K and D / K.
+    # Tolerances as for the assessment's balance (tests/model/test_forward_run.py): the model splits each
+    # step into incision then diffusion, so its steady surface meets the continuous balance to O(dt).
+    from divides.model.landscape_shift import model_start, steady_uplift
+
+    start = model_start(lopsided_steady, theta=_M, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    uplift, diffusivity = steady_uplift(start, 1.0)
+    inside = uplift[start.before > 0]
+    assert np.all(inside == inside[0])  # one rate for the whole landscape
+    assert inside[0] == pytest.approx(_U / _K, rel=0.05)
+    assert diffusivity == pytest.approx(_D / _K, rel=0.4)
+    per_basin, d_shared = steady_uplift(start, 1.0, per_basin=True)  # every basin was grown under the same U
+    assert np.allclose(per_basin[start.before > 0], _U / _K, rtol=0.1)
+    assert d_shared == pytest.approx(_D / _K, rel=0.4)
+
+
+def test_an_unknown_balance_is_refused():
+    with pytest.raises(ParameterError, match="balance"):
+        landscape_shift(_book(0.2, 0.1), theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4, balance="x")

@@ -127,8 +127,9 @@ def test_every_work_the_methods_cite_is_listed_in_full(screening, forward_run):
     # Issue 14 item 5: a methods and references section. Every author-year citation of the screening report's
     # methods (with the forward run's sentence too) must have its full entry in the list below them; the
     # years and journals of the entries are from the papers themselves (from memory: Forte & Whipple 2018
-    # EPSL 493; Gilbert 1877 Henry Mountains; Platt 1999 MIT Press; Royden & Perron 2013 JGR-ES 118;
-    # Scherler & Schwanghart 2020 ESurf 8; Willett et al. 2014 Science 343).
+    # EPSL 493; Gilbert 1877 Henry Mountains; Perron et al. 2009 Nature 460; Platt 1999 MIT Press; Roering et
+    # al. 2007 EPSL 264; Royden & Perron 2013 JGR-ES 118; Scherler & Schwanghart 2020 ESurf 8; Willett et al.
+    # 2014 Science 343).
     import dataclasses
     import re
 

@@ -1,0 +1,41 @@
+"""Hilltop-curvature contrast across a divide (`divides.assess.hilltops`)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from divides.assess.hilltops import hilltop_contrast
+from divides.io.dem import Dem
+from divides.model.forward_run import laplacian
+from divides.terrain.divide_lines import divide_between
+
+
+def _ridge(curv_a: float, curv_b: float, rows: int = 30, cols: int = 41, cell: float = 10.0):
+    # A north-south ridge of two parabolic flanks meeting at the middle column: z = -c x² / 2 on each side,
+    # so ∇²z = -c exactly on the 5-point stencil away from the crest (side a west, label 1; b east, 2).
+    x = (np.arange(cols) - cols // 2) * cell
+    z = np.where(x < 0, -0.5 * curv_a * x ** 2, -0.5 * curv_b * x ** 2)
+    dem = Dem.from_array(np.tile(z, (rows, 1)) + 1000.0, cell_size=cell)
+    labels = np.where(np.arange(cols) <= cols // 2, 1, 2)[None, :].repeat(rows, axis=0).astype(np.int32)
+    return dem, labels
+
+
+@pytest.mark.parametrize(("curv_a", "curv_b"), [(0.02, 0.01), (0.01, 0.02), (0.01, 0.01)])
+def test_the_contrast_is_the_relative_difference_of_the_sides_curvatures(curv_a, curv_b):
+    # At steady state a hilltop lowers at E = -D ∇²z (Roering, Perron & Kirchner 2007): the more convex side
+    # erodes faster. Analytic flanks: (c_b - c_a) / (|c_a| + |c_b|) of ∇²z = -c per side, that is
+    # (curv_a - curv_b) / (curv_a + curv_b): +1/3 when a is twice as convex, -1/3 mirrored, 0 when equal.
+    dem, labels = _ridge(curv_a, curv_b)
+    line = divide_between(dem, labels == 1, labels == 2).lines[0]  # side a (west) on the left
+    area_cells = np.ones(dem.shape)  # every cell a hillslope cell
+    got = hilltop_contrast(line, labels, 1, 2, laplacian(dem), area_cells)
+    assert got == pytest.approx((curv_a - curv_b) / (curv_a + curv_b), abs=0.02)
+
+
+def test_without_hillslope_cells_on_a_side_the_contrast_is_zero():
+    # Fewer than three hillslope cells on a side: nothing measured, no contrast (documented).
+    dem, labels = _ridge(0.02, 0.01)
+    line = divide_between(dem, labels == 1, labels == 2).lines[0]
+    area_cells = np.where(labels == 1, 100.0, 1.0)  # side a all channel cells
+    assert hilltop_contrast(line, labels, 1, 2, laplacian(dem), area_cells) == 0.0
