@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 import os
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -176,14 +176,13 @@ def motion_azimuth(line: DivideLine, dem: Dem, toward: str,
     lines = list(stretch) if stretch else [line]
     mid = int(np.clip(round(float(np.median(line.row))), 0, dem.shape[0] - 1))
     dx, dy = float(dem.dx[mid]), float(dem.dy[mid])
+    own = np.array([(line.col[-1] - line.col[0]) * dx, -(line.row[-1] - line.row[0]) * dy])  # rows grow south
     east = np.concatenate([np.asarray(ln.col, dtype=np.float64) for ln in lines]) * dx
-    north = -np.concatenate([np.asarray(ln.row, dtype=np.float64) for ln in lines]) * dy  # rows grow southward
-    spread = np.cov(np.vstack([east, north])) if east.size > 1 else np.zeros((2, 2))
-    _, vectors = np.linalg.eigh(np.atleast_2d(spread))
-    axis = vectors[:, -1]
-    own = np.array([(line.col[-1] - line.col[0]) * dx, -(line.row[-1] - line.row[0]) * dy])
+    north = -np.concatenate([np.asarray(ln.row, dtype=np.float64) for ln in lines]) * dy
+    spread = np.cov(np.vstack([east, north]))
     if not np.any(own) or not np.any(spread):
         return None
+    axis = np.linalg.eigh(spread)[1][:, -1]  # the principal axis: eigenvector of the largest eigenvalue
     if float(axis @ own) < 0:
         axis = -axis
     sign = 1.0 if toward == "b" else -1.0
@@ -353,8 +352,8 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
         alpha, beta = INSTABILITY_SCALING[kind]
         return float(1.0 / (1.0 + math.exp(-(alpha + beta * logit))))
     alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
-    favoured = math.copysign(1.0, probabilities.get("b", 0.0) - probabilities.get("a", 0.0)) \
-        if probabilities.get("b", 0.0) != probabilities.get("a", 0.0) else 0.0
+    pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
+    favoured = float((pb > pa) - (pb < pa))  # +1 toward b, -1 toward a, 0 on a tie
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
     shift = _finite(evidence.get("forward_shift_cells"))
     agrees = 0.0 if shift is None else float(forward_agrees(probabilities, shift))
