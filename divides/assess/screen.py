@@ -28,7 +28,7 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "forward_agrees"]
+           "evidence_features", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "forward_agrees"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -346,19 +346,30 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     """
     if probabilities is None:
         return None
-    p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    logit = math.log(p / (1.0 - p))
+    logit, hill, agrees = evidence_features(probabilities, evidence or {})
     if evidence is None:
         alpha, beta = INSTABILITY_SCALING[kind]
-        return float(1.0 / (1.0 + math.exp(-(alpha + beta * logit))))
-    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+        t = alpha + beta * logit
+    else:
+        alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+        t = alpha + beta * logit + g_hill * hill + g_run * agrees
+    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+
+
+def evidence_features(probabilities: dict, evidence: dict) -> tuple[float, float, float]:
+    """What :func:`instability_of` reads: logit(P(a) + P(b)) (P clipped to [1e-4, 1 - 1e-4]), the hilltop
+    contrast signed toward the side the decision favours (0 on a tie or unmeasured), and 1.0 when the run
+    moves the divide at least FORWARD_NOISE_CELLS toward that side (:func:`forward_agrees`), else 0.0.
+
+    ``evidence`` holds ``hilltop_contrast`` and ``forward_shift_cells`` (None or NaN when not measured).
+    """
+    p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
     pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
     favoured = float((pb > pa) - (pb < pa))  # +1 toward b, -1 toward a, 0 on a tie
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
     shift = _finite(evidence.get("forward_shift_cells"))
     agrees = 0.0 if shift is None else float(forward_agrees(probabilities, shift))
-    t = alpha + beta * logit + g_hill * favoured * hill + g_run * agrees
-    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+    return math.log(p / (1.0 - p)), favoured * hill, agrees
 
 
 def _finite(v: float | None) -> float | None:

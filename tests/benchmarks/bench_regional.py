@@ -21,7 +21,7 @@ import json
 import time
 
 from divides.assess.divide_kind import KINDS
-from divides.assess.screen import INSTABILITY_SCALING
+from divides.assess.screen import INSTABILITY_SCALING, evidence_features
 
 #: Channel threshold of the validation in cells: the default fallback (about 350 cells here) left six
 #: basins above the minimum area and no judged main-divide segment in training case 1.
@@ -84,23 +84,8 @@ def _logit(p):
     return np.log(p / (1 - p))
 
 
-def evidence_features(m: dict) -> list[float]:
-    """logit(P(a) + P(b)), the hilltop contrast signed toward the favoured side and the run's agreement
-    (0 when unmeasured), as screen.instability_of reads them with INSTABILITY_EVIDENCE."""
-    import numpy as np
-
-    from divides.assess.screen import forward_agrees
-
-    p = m["probabilities"]
-    favoured = float(np.sign(p.get("b", 0.0) - p.get("a", 0.0)))
-    hill = m.get("hilltop_contrast")
-    shift = m.get("forward_shift_cells")
-    return [float(_logit(p.get("a", 0.0) + p.get("b", 0.0))), favoured * (hill or 0.0),
-            0.0 if shift is None else float(forward_agrees(p, shift))]
-
-
 def _labelled(rows: list[dict], kind: str | None, evidence: bool = False) -> tuple[list, list[float]]:
-    """P(a) + P(b) (with ``evidence``, :func:`evidence_features`) and the truth (1 moving, 0 not moving)
+    """P(a) + P(b) (with ``evidence``, screen's ``evidence_features``) and the truth (1 moving, 0 not moving)
     of every segment of ``kind`` (None: all) with both.
 
     Main-divide segments at least 70 % in moving stretches are 1, at least 70 % in stable ones 0;
@@ -114,7 +99,7 @@ def _labelled(rows: list[dict], kind: str | None, evidence: bool = False) -> tup
             p = m["probabilities"]
             if p is None or not (m["in_moving"] or m["in_stable"]) or (kind is not None and m["kind"] != kind):
                 continue
-            x.append(evidence_features(m) if evidence else p.get("a", 0.0) + p.get("b", 0.0))
+            x.append(list(evidence_features(p, m)) if evidence else p.get("a", 0.0) + p.get("b", 0.0))
             y.append(1.0 if m["in_moving"] else 0.0)
     return x, y
 
