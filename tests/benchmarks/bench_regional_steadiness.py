@@ -14,7 +14,8 @@ on the version-3 cases, and screening reads both by default (divides.assess.scre
 2. a forward run of the whole DEM under the steady balance: K = 1, D and one U (``--per-basin``: one U
    per outlet basin of the model grid) fitted so that the present surface is the model's steady state,
    U = K A^m S^n − D ∇²z (Perron, Kirchner & Dietrich 2009; as `divides forecast`'s balance), for
-   0.3 response times; feature: the shift agrees with the favoured side (as screen's ``forward_agrees``);
+   0.3 response times; feature: the shift agrees with the favoured side by ``--agree-cells`` model cells or
+   more (default 0.1, as screen's ``forward_agrees``);
 3. per outlet basin, the linearity (R²) of channel elevation against χ (Perron & Royden 2013), a steadiness
    test (printed per case).
 
@@ -40,8 +41,8 @@ from scipy.optimize import minimize
 
 from divides.assess.contrasts import Contrast
 from divides.assess.hilltops import hilltop_contrast
-from divides.assess.screen import _outlet_basins, forward_agrees, motion_azimuth
-from divides.assess.verdict import decide
+from divides.assess.screen import _outlet_basins, motion_azimuth
+from divides.assess.verdict import FORWARD_NOISE_CELLS, decide
 from divides.model.benchmark import split_of
 from divides.model.forward_run import (
     laplacian,
@@ -150,6 +151,8 @@ def main() -> None:
     parser.add_argument("--n", type=int, default=24)
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--per-basin", action="store_true", help="the steady run with one U per outlet basin")
+    parser.add_argument("--agree-cells", type=float, default=FORWARD_NOISE_CELLS,
+                        help="the run agrees when it moves the segment this many model cells toward the favoured side")
     parser.add_argument("--forward-model", action="store_true",
                         help="each segment judged by the decision model that reads the steady run's shift")
     args = parser.parse_args()
@@ -180,7 +183,8 @@ def main() -> None:
             m = labelled.get(s["rank"])
             rows.append({"seg": s, "y": None if m is None or not (m["in_moving"] or m["in_stable"]) else float(m["in_moving"]),
                          "curv": favoured * hilltop_contrast(s["line"], scr.labels, a, b, lap, area_cells),
-                         "run": 0.0 if probs is None or not np.isfinite(shift) else float(forward_agrees(probs, shift)),
+                         "run": 0.0 if probs is None or not np.isfinite(shift) or favoured == 0.0
+                         else float(favoured * shift >= args.agree_cells),
                          "shift": shift})
             if args.forward_model:
                 # the near-divide model on the rebuilt contrasts must give screening's probabilities back
