@@ -676,7 +676,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_alarms"] = sum(1 for m in lat if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
                                     and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"])
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
-                                            "judged_length_m", "n_points", "facing_share")}
+                                            "judged_length_m", "n_points", "facing_share", "divide_kind",
+                                            "forward_shift_cells", "hilltop_contrast")}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
     out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
     out["alarm_ok"] = (not case.steady) or not alarms
