@@ -4,10 +4,12 @@ The cases come from :mod:`divides.model.regional_benchmark`: a ridge between the
 east edges grown with the project's forward model, long along the divide, several outlet
 basins per side; the truth is measured by continuing the run (docs/validation.md,
 *Regional screening*). The fast tests grow one steady case small (120 x 96 cells) from its
-seed; the slow ones run the held-out cases of the validation (master seed 1).
+seed; the slow ones run the held-out cases of the validation (master seeds 1 and 2).
 """
 
 from __future__ import annotations
+
+import functools
 
 import numpy as np
 import pytest
@@ -153,23 +155,33 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-#: The held-out cases of the regional draw kept unseen until the shipped screening was fixed: master seed 1
-#: (version 3; master seed 0's held-out cases informed the second round of choices, docs/validation.md).
-HELD_OUT_SEED = 1
-HELD_OUT = [i for i in range(24) if split_of(case_seed(HELD_OUT_SEED, i)) == "held-out"]
+#: Fresh held-out draws of the regional benchmark, each kept unseen until the shipped screening was fixed
+#: (version 3): master seed 1 judged the second round's choice, master seed 2 the shipped default again,
+#: with nothing chosen on it (docs/validation.md, *Regional screening*). Master seed 0's held-out cases
+#: informed the second round of choices and are not used here.
+HELD_OUT_SEEDS = (1, 2)
 
 
-@pytest.fixture(scope="module")
-def held_out():
+@functools.lru_cache(maxsize=None)
+def _held_out(seed: int) -> tuple[dict, ...]:
     out = []
-    for i in HELD_OUT:
-        case = load_or_build(HELD_OUT_SEED, i)  # cached under ~/.cache/divides/regional (built if missing)
+    for i in range(24):
+        if split_of(case_seed(seed, i)) != "held-out":
+            continue
+        case = load_or_build(seed, i)  # cached under ~/.cache/divides/regional (built if missing)
         out.append(score(case, _screen(case), lateral=lateral_truth(case)))  # the truth cached beside the case
-    return out
+    return tuple(out)
+
+
+def _known_miss(seed: int, why: str):
+    return pytest.param(seed, marks=pytest.mark.xfail(strict=True, reason=f"known miss on master seed {seed} "
+                                                      f"(docs/validation.md, Regional screening): {why}"))
 
 
 @pytest.mark.slow
-def test_held_out_coverage(held_out):
+@pytest.mark.parametrize("seed", HELD_OUT_SEEDS)
+def test_held_out_coverage(seed):
+    held_out = _held_out(seed)
     assert len(held_out) >= 6
     assert all(r["coverage"] >= TARGETS["coverage"] for r in held_out)
 
@@ -191,29 +203,48 @@ def _lateral_log_loss(held_out, scaling) -> tuple[float, float, float]:
 
 
 @pytest.mark.slow
-def test_held_out_lateral_instability_is_calibrated_in_the_large(held_out):
+@pytest.mark.parametrize("seed", HELD_OUT_SEEDS)
+def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # Lateral outlet-basin segments against the area their pair of basins exchanged: with their own Platt
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
-    # (calibration in the large; common practice): 0.083 against 0.061 when written.
-    _, mean_own, moved = _lateral_log_loss(held_out, INSTABILITY_SCALING["lateral"])
+    # (calibration in the large; common practice): 0.083 against 0.061 (seed 1) and 0.086 against 0.054
+    # (seed 2) when written.
+    _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
 
 @pytest.mark.slow
-def test_held_out_lateral_own_scaling_beats_the_main_divides(held_out):
+@pytest.mark.parametrize("seed", HELD_OUT_SEEDS)
+def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
-    # divide's on the held-out cases: 0.179 against 0.239 when written (on master seed 0's held-out cases it
-    # did not: 0.181 against 0.163; docs/validation.md).
-    own, _, _ = _lateral_log_loss(held_out, INSTABILITY_SCALING["lateral"])
-    main, _, _ = _lateral_log_loss(held_out, INSTABILITY_SCALING["main"])
+    # divide's on the held-out cases: 0.179 against 0.239 (seed 1) and 0.126 against 0.141 (seed 2) when
+    # written (on master seed 0's held-out cases it did not: 0.181 against 0.163; docs/validation.md).
+    own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
+    main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="known misses per family in docs/validation.md (Regional screening): top "
-                   "3 of 4 held-out cases, order 2 of 3, steady landscapes without an alarm 4 of 6 (two "
-                   "steady_runoff_contrast alarms up to 0.64, one steady_symmetric at 0.56)")
-def test_held_out_ranking_and_alarm_targets(held_out):
-    assert all(r["top_ok"] is not False for r in held_out)
-    assert all(r["order_ok"] is not False for r in held_out)
-    assert all(r["alarm_ok"] for r in held_out)
+@pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (case 0 ranks a still segment "
+                                                 "second)"), 2])
+def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
+    # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
+    # 45 degrees of the measured motion; 8 of 8 transient cases of seed 2 when written.
+    assert all(r["top_ok"] is not False for r in _held_out(seed))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", [_known_miss(1, "two steady_runoff_contrast alarms up to 0.64 and one "
+                                                 "steady_symmetric at 0.56"), 2])
+def test_held_out_steady_landscapes_raise_no_alarm(seed):
+    # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 7 of 7
+    # steady cases of seed 2 when written.
+    assert all(r["alarm_ok"] for r in _held_out(seed))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("seed", [_known_miss(1, "order in 2 of 3 cases (erodibility_patch case 1: 25 pairs)"),
+                                  _known_miss(2, "order in 1 of 4 cases (erodibility_patch case 1: 11 pairs; "
+                                                 "partial_base_level_fall cases 8 and 16: 22 and 2)")])
+def test_held_out_still_segments_rank_below_moving_ones(seed):
+    assert all(r["order_ok"] is not False for r in _held_out(seed))
