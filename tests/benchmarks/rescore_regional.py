@@ -1,0 +1,200 @@
+"""Candidate instability models rescored on screened regional cases, leave one case out (run by hand, not a test).
+
+    python tests/benchmarks/rescore_regional.py FILE.jsonl [FILE.jsonl ...]
+
+Reads the per-case JSON lines that ``bench_regional.py --json`` writes (every segment with its
+decision probabilities, its landscape evidence and, for main and lateral outlet-basin segments, its
+truth), and for each candidate model of the instability prints issue 14's targets (top, order, steady
+landscapes without an alarm) and the log loss, AUC and calibration error of the instability on main and
+lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
+changes only the instability, not the decision, its confidence or the motion azimuth.
+
+The candidates are those of the fourth to seventh rounds of docs/validation.md (*Regional screening*);
+``shipped`` is screen.INSTABILITY_EVIDENCE as it is, not refitted. Fits are maximum likelihood with a
+Gaussian prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data
+nearly separate). Give it training cases only.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+from collections.abc import Callable
+
+import numpy as np
+from scipy.optimize import minimize
+
+from divides.assess.screen import INSTABILITY_EVIDENCE, INSTABILITY_SCALING, evidence_features, instability_of
+
+PRIOR_SD = 10.0
+KINDS = ("main", "lateral")
+
+
+def _shift(m: dict) -> float | None:
+    v = m.get("forward_shift_cells")
+    return None if v is None or not math.isfinite(v) else float(v)
+
+
+def _toward(p: dict, m: dict) -> float | None:
+    """The run's shift toward the side the decision favours (model cells; None when unmeasured)."""
+    s = _shift(m)
+    favoured = float((p.get("b", 0.0) > p.get("a", 0.0)) - (p.get("b", 0.0) < p.get("a", 0.0)))
+    return None if s is None else favoured * s
+
+
+def _gate(t: float, unmeasured: bool) -> Callable[[dict, dict], list[float]]:
+    def features(p, m):
+        lp, h, _ = evidence_features(p, m)
+        s = _toward(p, m)
+        r = 0.0 if s is None else float(s >= t and s != 0.0)
+        return [lp, h, r, float(s is None)] if unmeasured else [lp, h, r]
+    return features
+
+
+def _with_shift(gate: bool) -> Callable[[dict, dict], list[float]]:
+    def features(p, m):
+        lp, h, r = evidence_features(p, m)
+        s = float(np.clip(_toward(p, m) or 0.0, -2.0, 2.0))
+        return [lp, h, r, s] if gate else [lp, h, s]
+    return features
+
+
+def _beyond_one(p: dict, m: dict) -> list[float]:
+    return [float(np.clip((_toward(p, m) or 0.0) - 1.0, 0.0, 2.0))]
+
+
+def _shipped_offset(p: dict, m: dict, kind: str) -> float:
+    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+    lp, h, r = evidence_features(p, m)
+    return alpha + beta * lp + g_hill * h + g_run * r
+
+
+#: name -> (features, offset by the shipped model, unmeasured shift falls back to the P-only scaling);
+#: features None: the shipped model, nothing fitted.
+CANDIDATES: dict[str, tuple] = {
+    "shipped": (None, False, False),
+    "refit": (_gate(0.1, False), False, False),
+    "shift": (_with_shift(False), False, False),
+    "gate+shift": (_with_shift(True), False, False),
+    **{f"gate{t:g}+unmeasured": (_gate(t, True), False, False) for t in (0.1, 0.25, 0.5, 1.0)},
+    **{f"gate{t:g}": (_gate(t, False), False, False) for t in (0.25, 0.5, 1.0)},
+    "shipped, unmeasured as P-only": (None, False, True),
+    "shipped + beyond 1 cell": (_beyond_one, True, False),
+    "shipped + beyond 1 cell, unmeasured as P-only": (_beyond_one, True, True),
+}
+
+
+def _kind(m: dict) -> str | None:
+    return m.get("kind") or m.get("divide_kind")
+
+
+def _labelled(rows: list[dict]):
+    for r in rows:
+        for m in r["main"] + r.get("lateral", []):
+            if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"]):
+                yield m, float(m["in_moving"])
+
+
+def fit(rows: list[dict], kind: str, candidate: str) -> np.ndarray | None:
+    """The candidate's coefficients for one kind of divide (None for the shipped model)."""
+    features, offset, _ = CANDIDATES[candidate]
+    if features is None:
+        return None
+    data = [(features(m["probabilities"], m), y, _shipped_offset(m["probabilities"], m, kind) if offset else 0.0)
+            for m, y in _labelled(rows) if _kind(m) == kind]
+    x = np.asarray([d[0] for d in data], dtype=float)
+    y = np.asarray([d[1] for d in data])
+    o = np.asarray([d[2] for d in data])
+    design = x if offset else np.column_stack([np.ones(y.size), x])
+    penalised = slice(0, None) if offset else slice(1, None)
+
+    def loss(w):
+        t = o + design @ w
+        return float(np.sum(np.logaddexp(0.0, t) - y * t) + np.sum(w[penalised] ** 2) / (2 * PRIOR_SD ** 2))
+
+    def grad(w):
+        t = o + design @ w
+        g = design.T @ (1.0 / (1.0 + np.exp(-t)) - y)
+        g[penalised] += w[penalised] / PRIOR_SD ** 2
+        return g
+
+    return minimize(loss, np.zeros(design.shape[1]), jac=grad, method="BFGS").x
+
+
+def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
+    p, kind = m["probabilities"], _kind(m)
+    if p is None or kind not in KINDS:
+        return m["instability"]
+    features, offset, fallback = CANDIDATES[candidate]
+    evidence = {"forward_shift_cells": m.get("forward_shift_cells"), "hilltop_contrast": m.get("hilltop_contrast")}
+    if fallback and _shift(m) is None:
+        return instability_of(p, kind)
+    if features is None:
+        return instability_of(p, kind, evidence)
+    x = np.asarray(features(p, m))
+    t = (_shipped_offset(p, m, kind) + x @ w) if offset else (w[0] + x @ w[1:])
+    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+
+
+def targets(case: dict) -> dict:
+    """Issue 14's targets of one case from the instabilities in ``_i`` (regional_benchmark.score's rules)."""
+    main = sorted(case["main"], key=lambda m: (m["_i"] is None, -(m["_i"] or 0.0), m["rank"]))
+    n_moving = sum(m["in_moving"] for m in main)
+    top = None
+    if case["moving_stretches"] and n_moving:
+        def error(m):
+            return None if m["azimuth"] is None else abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0)
+        top = all(m["in_moving"] and error(m) is not None and error(m) <= 45.0 for m in main[:min(3, n_moving)])
+    movers = [i for i, m in enumerate(main) if m["in_moving"]]
+    still = [i for i, m in enumerate(main) if m["in_stable"]]
+    alarms = sum(1 for m in case["main"] + case["others"] if m["_i"] is not None and m["_i"] >= 0.5
+                 and m["confidence"] is not None and m["confidence"] >= 0.5)
+    steady = case["family"].startswith("steady_")
+    return {"top": top, "order": (max(movers) < min(still)) if movers and still else None,
+            "alarms": alarms if steady else None, "alarm_ok": (alarms == 0) if steady else None}
+
+
+def scores(rows: list[dict], kind: str) -> tuple[float, float, float, int, int]:
+    """Log loss, AUC (Mann-Whitney), expected calibration error (ten bins) of ``_i``; segments, moving."""
+    pairs = [(m["_i"], y) for m, y in _labelled(rows) if _kind(m) == kind]
+    x = np.clip(np.asarray([p[0] for p in pairs], dtype=float), 1e-4, 1 - 1e-4)
+    y = np.asarray([p[1] for p in pairs])
+    pos, neg = x[y == 1], x[y == 0]
+    auc = float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
+    bins = np.minimum((x * 10).astype(int), 9)
+    ece = sum(abs(x[bins == b].mean() - y[bins == b].mean()) * np.sum(bins == b) for b in np.unique(bins)) / y.size
+    return float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))), auc, float(ece), int(y.size), int(y.sum())
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
+    parser.add_argument("--candidates", nargs="*", default=list(CANDIDATES), choices=list(CANDIDATES))
+    args = parser.parse_args()
+    rows = [dict(json.loads(line), _file=f) for f in args.files for line in open(f)]
+    print(f"{len(rows)} cases; the P-only scaling for unmeasured shifts: {INSTABILITY_SCALING}")
+    for candidate in args.candidates:
+        results = []
+        for case in rows:
+            others = [r for r in rows if r is not case]
+            w = {k: fit(others, k, candidate) for k in KINDS}
+            for m in case["main"] + case.get("lateral", []) + case["others"]:
+                m["_i"] = instability(m, w.get(_kind(m)), candidate)
+            results.append(targets(case))
+        top = [v["top"] for v in results if v["top"] is not None]
+        order = [v["order"] for v in results if v["order"] is not None]
+        steady = [v["alarm_ok"] for v in results if v["alarm_ok"] is not None]
+        main_s, lateral_s = scores(rows, "main"), scores(rows, "lateral")
+        full = {k: fit(rows, k, candidate) for k in KINDS}
+        print(f"{candidate}: targets {sum(top) + sum(order) + sum(steady)} (top {sum(top)}/{len(top)}, order "
+              f"{sum(order)}/{len(order)}, steady without alarm {sum(steady)}/{len(steady)}, alarms in steady "
+              f"landscapes {sum(v['alarms'] for v in results if v['alarms'] is not None)}); main log loss "
+              f"{main_s[0]:.3f}, AUC {main_s[1]:.3f}, ECE {main_s[2]:.3f} ({main_s[3]} segments, {main_s[4]} moving); "
+              f"lateral {lateral_s[0]:.3f}, {lateral_s[1]:.3f}, {lateral_s[2]:.3f} ({lateral_s[3]}, {lateral_s[4]}); "
+              "fitted on all: " + "; ".join(f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w))
+                                            for k, w in full.items()), flush=True)
+
+
+if __name__ == "__main__":
+    main()
