@@ -9,7 +9,7 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to seventh rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to ninth rounds of docs/validation.md (*Regional screening*);
 ``shipped`` is screen.INSTABILITY_EVIDENCE as it is, not refitted. Fits are maximum likelihood with a
 Gaussian prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data
 nearly separate). Give it training cases only.
@@ -60,6 +60,28 @@ def _with_shift(gate: bool) -> Callable[[dict, dict], list[float]]:
     return features
 
 
+def _split(t: float) -> Callable[[dict, dict], list[float]]:
+    """A logistic model on (logit p, h) of its own where the run moves the divide >= t cells toward the
+    favoured side, and another where it does not (the interaction with the agreement r)."""
+    def features(p, m):
+        lp, h, _ = evidence_features(p, m)
+        s = _toward(p, m)
+        r = float(s is not None and s >= t and s != 0.0)
+        return [r, r * lp, r * h, (1.0 - r) * lp, (1.0 - r) * h]
+    return features
+
+
+def _gated(t: float) -> Callable[[dict, dict], list[float]]:
+    """(logit p, h) count only where the run moves the divide >= t cells toward the favoured side; elsewhere
+    the instability is one constant."""
+    def features(p, m):
+        lp, h, _ = evidence_features(p, m)
+        s = _toward(p, m)
+        r = float(s is not None and s >= t and s != 0.0)
+        return [r, r * lp, r * h]
+    return features
+
+
 def _beyond_one(p: dict, m: dict) -> list[float]:
     return [float(np.clip((_toward(p, m) or 0.0) - 1.0, 0.0, 2.0))]
 
@@ -82,6 +104,8 @@ CANDIDATES: dict[str, tuple] = {
     "shipped, unmeasured as P-only": (None, False, True),
     "shipped + beyond 1 cell": (_beyond_one, True, False),
     "shipped + beyond 1 cell, unmeasured as P-only": (_beyond_one, True, True),
+    **{f"split{t:g}": (_split(t), False, True) for t in (0.1, 0.25, 0.5)},
+    **{f"gated{t:g}": (_gated(t), False, True) for t in (0.1, 0.25, 0.5)},
 }
 
 
@@ -98,11 +122,11 @@ def _labelled(rows: list[dict]):
 
 def fit(rows: list[dict], kind: str, candidate: str) -> np.ndarray | None:
     """The candidate's coefficients for one kind of divide (None for the shipped model)."""
-    features, offset, _ = CANDIDATES[candidate]
+    features, offset, fallback = CANDIDATES[candidate]
     if features is None:
         return None
     data = [(features(m["probabilities"], m), y, _shipped_offset(m["probabilities"], m, kind) if offset else 0.0)
-            for m, y in _labelled(rows) if _kind(m) == kind]
+            for m, y in _labelled(rows) if _kind(m) == kind and not (fallback and _shift(m) is None)]
     x = np.asarray([d[0] for d in data], dtype=float)
     y = np.asarray([d[1] for d in data])
     o = np.asarray([d[2] for d in data])
