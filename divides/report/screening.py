@@ -125,22 +125,25 @@ def regional_map(result: Screening):
     cmap = colormaps["plasma"]  # perceptually uniform, dark (low) to bright yellow (high): high contrast on grey
     norm = Normalize(0.0, 1.0)
 
-    def xy(line):
-        return np.column_stack([line.x * frame.scale, line.y * frame.scale])
+    def xy(line, basins=None):
+        keep = slice(None) if basins is None else _between(line, result.labels, *basins)
+        return np.column_stack([line.x[keep] * frame.scale, line.y[keep] * frame.scale])
 
     judged = [s for s in result.segments if s["instability"] is not None]
     unknown = [s for s in result.segments if s["instability"] is None]
     handles = []
     if judged:
-        ax.add_collection(LineCollection([xy(s["line"]) for s in judged], colors="white", linewidths=5.0, zorder=3))
-        ax.add_collection(LineCollection([xy(s["line"]) for s in judged], linewidths=3.0, zorder=3.1,
+        lines = [xy(s["line"], s["basins"]) for s in judged]
+        ax.add_collection(LineCollection(lines, colors="white", linewidths=5.0, zorder=3, capstyle="round"))
+        ax.add_collection(LineCollection(lines, linewidths=3.0, zorder=3.1, capstyle="round",
                                          colors=[cmap(norm(s["instability"])) for s in judged]))
     if unknown:
-        ax.add_collection(LineCollection([xy(s["line"]) for s in unknown], colors="0.2", linewidths=1.6,
-                                         linestyles=(0, (4, 2)), zorder=3))
+        ax.add_collection(LineCollection([xy(s["line"], s["basins"]) for s in unknown], colors="0.2",
+                                         linewidths=1.6, linestyles=(0, (4, 2)), zorder=3))
         handles.append(Line2D([], [], color="0.2", lw=1.6, ls=(0, (4, 2)), label="judged: insufficient data"))
     if result.gaps:
-        ax.add_collection(LineCollection([xy(g["line"]) for g in result.gaps], colors="black", linewidths=1.0,
+        ax.add_collection(LineCollection([xy(g["line"], g["basins"]) for g in result.gaps], colors="black",
+                                         linewidths=1.0,
                                          linestyles=(0, (1, 1.5)), zorder=3))
         handles.append(Line2D([], [], color="black", lw=1.0, ls=(0, (1, 1.5)), label="not assessed (gap; see table)"))
     span = max(dem.bounds[2] - dem.bounds[0], dem.bounds[3] - dem.bounds[1]) * frame.scale
@@ -202,6 +205,25 @@ _FURNITURE = ((0.85, 0.66, 1.0, 1.0), (0.0, 0.0, 0.27, 0.14))
 
 def _under_furniture(fx: float, fy: float) -> bool:
     return any(x0 <= fx <= x1 and y0 <= fy <= y1 for x0, y0, x1, y1 in _FURNITURE)
+
+
+def _between(line, labels: np.ndarray, label_a: int, label_b: int) -> slice:
+    """The vertices of a segment's line drawn on the map: without the one or two at either end that run past a
+    junction into a third basin (no cell of either basin within one cell). Drawn in full, those ends of the
+    lines meeting at a junction cross each other and read as marks; the layers keep the whole line."""
+    r = np.clip(np.rint(np.asarray(line.row)).astype(np.int64), 0, labels.shape[0] - 1)
+    c = np.clip(np.rint(np.asarray(line.col)).astype(np.int64), 0, labels.shape[1] - 1)
+    seen_a = np.zeros(r.size, dtype=bool)
+    seen_b = np.zeros(r.size, dtype=bool)
+    for dr in (-1, 0, 1):
+        for dc in (-1, 0, 1):
+            near = labels[np.clip(r + dr, 0, labels.shape[0] - 1), np.clip(c + dc, 0, labels.shape[1] - 1)]
+            seen_a |= near == label_a
+            seen_b |= near == label_b
+    own = seen_a & seen_b
+    if np.count_nonzero(own) < 2:
+        return slice(None)
+    return slice(int(np.argmax(own)), int(own.size - np.argmax(own[::-1])))
 
 
 def _clear_spot(labels: np.ndarray, lab: int, row: float, col: float, dem, frame, extent

@@ -164,3 +164,28 @@ def test_leader_lines_have_a_legend_entry(screening, monkeypatch):
     ax = rs.regional_map(screening).axes[0]  # the demo as it is: a leader in the legend exactly when one is drawn
     drawn = bool([ln for ln in ax.get_lines() if ln.get_color() == "#0072B2"])
     assert drawn == any("leader" in t.get_text() for t in ax.get_legend().get_texts())
+
+
+def test_map_lines_stop_at_the_junction_of_three_basins():
+    # Three basins meeting at a T (analytic geometry: basin 1 west of col 19.5, 2 north-east and 3 south-east
+    # of row 19.5): the traced divide lines run past the junction into the third basin, by about 1.5 cells,
+    # and on the map their crossing ends read as marks without a legend (issue 14). The map draws each line
+    # only where both its basins lie within a cell: no more than half a cell past the junction.
+    from divides import Dem
+    from divides.report.screening import _between
+    from divides.terrain.divide_lines import divide_network
+
+    lab = np.zeros((40, 40), dtype=np.int64)
+    lab[:, :20], lab[:20, 20:], lab[20:, 20:] = 1, 2, 3
+    flat = Dem.from_array(np.zeros((40, 40)), cell_size=10.0)
+    segments = {(s.label_a, s.label_b): s.line for s in divide_network(flat, lab)}
+    assert set(segments) == {(1, 2), (1, 3), (2, 3)}
+    north, south, east = segments[(1, 2)], segments[(1, 3)], segments[(2, 3)]
+    assert north.row.max() > 20.5 and south.row.min() < 18.5 and east.col.min() < 18.5  # traced: past the junction
+    drawn = {k: _between(line, lab, *k) for k, line in segments.items()}
+    assert north.row[drawn[(1, 2)]].max() <= 20.0 and north.col[drawn[(1, 2)]].max() <= 20.5
+    assert south.row[drawn[(1, 3)]].min() >= 19.0 and south.col[drawn[(1, 3)]].max() <= 20.5
+    assert east.col[drawn[(2, 3)]].min() >= 19.0
+    # away from the junction nothing is cut: the lines still reach the DEM's edges
+    assert north.row[drawn[(1, 2)]].min() == 0.0 and south.row[drawn[(1, 3)]].max() == 39.0
+    assert east.col[drawn[(2, 3)]].max() == 39.0
