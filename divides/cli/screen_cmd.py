@@ -187,13 +187,14 @@ def screen(
                                f"{100 * share:.0f} % of the divides between outlet basins judged")
                + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson).")
     if segs and top:
+        from divides.report.labels import probability_text
+
         typer.echo(f"{'rank':>4}  {'instab.':>7}  {'conf.':>5}  {'length m':>9}  {'basins':>11}  {'toward':>6}  bearing")
         for s in segs[:top]:
             toward = "-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"])
             bearing = "-" if s["motion_azimuth_deg"] is None else f"{s['motion_azimuth_deg']:.0f}°"
-            instab = "unknown" if s["instability"] is None else f"{s['instability']:.2f}"
-            typer.echo(f"{s['rank']:>4}  {instab:>7}  {s['confidence']:5.2f}  {s['length_m']:9,.0f}  "
-                       f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
+            typer.echo(f"{s['rank']:>4}  {probability_text(s['instability']):>7}  {probability_text(s['confidence']):>5}"
+                       f"  {s['length_m']:9,.0f}  {s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "
                "professionals decide.")
     typer.echo(f"Report:  {written / 'report.html'}")

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["PARAMETER_LABELS", "parameter_label", "parameter_value", "CONDITIONING_LABELS"]
+__all__ = ["PARAMETER_LABELS", "parameter_label", "parameter_value", "CONDITIONING_LABELS", "probability_text"]
 
 #: Parameter key -> (plain name, unit; "" for none).
 PARAMETER_LABELS: dict[str, tuple[str, str]] = {
@@ -115,3 +115,20 @@ def parameter_value(value: Any) -> str:
     if isinstance(value, (list, tuple)):
         return ", ".join(parameter_value(v) for v in value) or "none"
     return str(value)
+
+
+def probability_text(p: float | None) -> str:
+    """A probability to two decimals, never shown as certain: ">0.99" and "<0.01" at the ends, "unknown" for None.
+
+    Examples
+    --------
+    >>> [probability_text(v) for v in (0.99981, 0.5, 0.0004, None)]
+    ['>0.99', '0.50', '<0.01', 'unknown']
+    """
+    if p is None:
+        return "unknown"
+    if p >= 0.995:
+        return ">0.99"
+    if p < 0.005:
+        return "<0.01"
+    return f"{p:.2f}"

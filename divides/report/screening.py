@@ -21,7 +21,7 @@ from divides.report import html as _html
 
 from divides.report import figures as _figures
 from divides.report.figures import _HALO, _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
-from divides.report.labels import parameter_label, parameter_value
+from divides.report.labels import parameter_label, parameter_value, probability_text
 from divides.report.layers import _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
@@ -286,9 +286,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
     header = ["rank", "instability", "confidence", "length (m)", "basins", "divide", "moves toward basin",
               "bearing (°)", "basis"]
-    table = _html._table(header, [[str(r["rank"]),
-                                   "unknown" if r["instability"] is None else f"{r['instability']:.2f}",
-                                   f"{r['confidence']:.2f}",
+    table = _html._table(header, [[str(r["rank"]), probability_text(r["instability"]),
+                                   probability_text(r["confidence"]),
                                    f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",

@@ -189,3 +189,35 @@ def test_map_lines_stop_at_the_junction_of_three_basins():
     # away from the junction nothing is cut: the lines still reach the DEM's edges
     assert north.row[drawn[(1, 2)]].min() == 0.0 and south.row[drawn[(1, 3)]].max() == 39.0
     assert east.col[drawn[(2, 3)]].max() == 39.0
+
+
+def test_the_report_never_shows_a_probability_as_certain(screening, tmp_path):
+    # Numbers rounded to what supports them (common practice): an instability or confidence of 0.9998 is
+    # not a certainty, so the report's table reads ">0.99" (and "<0.01"), never "1.00" or "0.00".
+    out = screening.write(tmp_path / "screen")
+
+    class Cells(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.rows, self._in = [], False
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "tr":
+                self.rows.append([])
+            self._in = tag == "td"
+
+        def handle_data(self, data):
+            if self._in and self.rows:
+                self.rows[-1].append(data.strip())
+
+        def handle_endtag(self, tag):
+            self._in = False if tag == "td" else self._in
+
+    parser = Cells()
+    parser.feed((out / "report.html").read_text())
+    ranked = [r for r in parser.rows if len(r) >= 3 and r[0].isdigit()]
+    assert ranked
+    shown = [v for r in ranked for v in r[1:3]]
+    assert not {"1.00", "0.00"} & set(shown)
+    top = max((s["instability"] for s in screening.segments if s["instability"] is not None), default=0.0)
+    assert top < 0.995 or ">0.99" in shown
