@@ -64,8 +64,8 @@ from divides.model.tracking import edge_catchments
 
 __all__ = ["FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE", "REGIONAL_VERSION",
            "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed", "continuation_forcing",
-           "lateral_truth", "load_or_build", "measure_lateral", "score", "segment_stretch_shares", "stretch_class",
-           "stretch_motion"]
+           "lateral_truth", "load_or_build", "measure_lateral", "raises_alarm", "ranking_targets", "score",
+           "segment_stretch_shares", "stretch_class", "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
 #: Version 3 settles the spin-up at the truth run's time step (:func:`_settle`).
@@ -650,8 +650,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
                      "azimuth": s["motion_azimuth_deg"], "in_moving": moving >= share,
                      "in_stable": sh["stable"] >= share})
     main.sort(key=lambda m: m["rank"])
-    alarms = [s for s in screening.segments if s["instability"] is not None and s["instability"] >= TARGETS["alarm"]
-              and s["confidence"] is not None and s["confidence"] >= TARGETS["alarm"]]
+    alarms = [s for s in screening.segments if raises_alarm(s)]
     classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
     moving_truth = any(c in ("a", "b") for c in classes)
     out: dict[str, Any] = {
@@ -661,8 +660,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         "stretches": len(case.stretches), "coverage": screening.coverage.get("share"),
         "segments": len(screening.segments), "main_segments": len(main),
         "alarms": len(alarms), "max_alarm": max((s["instability"] for s in alarms), default=None),
-        "alarms_main": sum(1 for m in main if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
-                           and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"]),
+        "alarms_main": sum(1 for m in main if raises_alarm(m)),
         "main_insufficient": sum(1 for m in main if m["instability"] is None),
     }
     out["main"] = main
@@ -673,14 +671,31 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_segments"] = len(lat)
         out["lateral_moving"] = sum(m["in_moving"] for m in lat)
         out["lateral_stable"] = sum(m["in_stable"] for m in lat)
-        out["lateral_alarms"] = sum(1 for m in lat if m["instability"] is not None and m["instability"] >= TARGETS["alarm"]
-                                    and m["confidence"] is not None and m["confidence"] >= TARGETS["alarm"])
+        out["lateral_alarms"] = sum(1 for m in lat if raises_alarm(m))
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
                                             "forward_shift_cells", "hilltop_contrast")}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
     out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
     out["alarm_ok"] = (not case.steady) or not alarms
+    out.update(ranking_targets(main, moving_truth=moving_truth, top=top))
+    return out
+
+
+def raises_alarm(segment: dict) -> bool:
+    """Instability and confidence both at least ``TARGETS["alarm"]`` (an alarm in a steady landscape)."""
+    return all(segment[k] is not None and segment[k] >= TARGETS["alarm"] for k in ("instability", "confidence"))
+
+
+def ranking_targets(main: list[dict], *, moving_truth: bool, top: int = 3) -> dict:
+    """The top and order targets of one case from its main-divide segments in rank order (:func:`score`).
+
+    Each segment needs ``rank``, ``in_moving``, ``in_stable``, ``azimuth`` and ``measured_azimuth``;
+    the first min(``top``, segments in moving stretches) get ``azimuth_error``. Returns ``top`` (those
+    segments), ``top_ok`` (None without a moving stretch), ``moving_segments``, ``stable_segments``,
+    ``order_violations`` and ``order_ok`` (None without both kinds).
+    """
+    out: dict[str, Any] = {}
     n_moving = sum(m["in_moving"] for m in main)
     if moving_truth and n_moving:
         head = main[: min(top, n_moving)]
@@ -695,12 +710,10 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["top"], out["top_ok"] = [], None
     movers = [m for m in main if m["in_moving"]]
     still = [m for m in main if m["in_stable"]]
-    worst_mover = max((m["rank"] for m in movers), default=None)
-    best_still = min((m["rank"] for m in still), default=None)
     out["moving_segments"], out["stable_segments"] = len(movers), len(still)
     if movers and still:
         out["order_violations"] = sum(1 for m in movers for s in still if s["rank"] < m["rank"])
-        out["order_ok"] = worst_mover < best_still
+        out["order_ok"] = max(m["rank"] for m in movers) < min(s["rank"] for s in still)
     else:
         out["order_violations"], out["order_ok"] = 0, None
     return out

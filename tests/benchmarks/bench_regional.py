@@ -22,6 +22,7 @@ import time
 
 from divides.assess.divide_kind import KINDS
 from divides.assess.screen import INSTABILITY_SCALING, evidence_features
+from divides.model.regional_benchmark import raises_alarm
 
 #: Channel threshold of the validation in cells: the default fallback (about 350 cells here) left six
 #: basins above the minimum area and no judged main-divide segment in training case 1.
@@ -71,12 +72,6 @@ def _markdown(r: dict) -> str:
             f"({r['alarms_by_kind']['main']} / {r['alarms_by_kind']['lateral']}) | {_fmt(r['max_alarm'])} |")
 
 
-def _alarm(m: dict) -> bool:
-    """Instability and confidence both at least 0.5 (the no-alarm target)."""
-    return (m["instability"] is not None and m["instability"] >= 0.5 and m["confidence"] is not None
-            and m["confidence"] >= 0.5)
-
-
 def _logit(p):
     import numpy as np
 
@@ -124,39 +119,44 @@ def fit_instability(rows: list[dict], kind: str, evidence: bool = False) -> dict
             "n": int(y.size), "moving": int(y.sum()), "log_loss": loss(w) / max(y.size, 1)}
 
 
-def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, float] | None) -> dict:
-    """Log loss and AUC (Mann-Whitney) against the truth per segment of P(a) + P(b) (``scaling`` None)
-    or of its Platt scaling ``(alpha, beta)``."""
+def probability_scores(x, y) -> dict:
+    """Log loss, AUC (Mann-Whitney) and expected calibration error (ten equal bins) of probabilities ``x``
+    against outcomes ``y`` (1 moving, 0 not moving); probabilities clipped to [1e-4, 1 - 1e-4]."""
     import numpy as np
 
-    x, y = _labelled(rows, kind)
-    x, y = np.asarray(x, dtype=float), np.asarray(y)
-    if scaling is not None:
-        x = 1.0 / (1.0 + np.exp(-(scaling[0] + scaling[1] * _logit(x))))
-    x = np.clip(x, 1e-4, 1 - 1e-4)
-    loss = float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))) if y.size else float("nan")
+    x, y = np.clip(np.asarray(x, dtype=float), 1e-4, 1 - 1e-4), np.asarray(y, dtype=float)
+    if not y.size:
+        return {"n": 0, "moving": 0, "log_loss": float("nan"), "auc": float("nan"), "ece": float("nan")}
     pos, neg = x[y == 1], x[y == 0]
     auc = float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :]))) \
         if pos.size and neg.size else float("nan")
-    return {"n": int(y.size), "moving": int(y.sum()), "log_loss": loss, "auc": auc}
+    bins = np.minimum((x * 10).astype(int), 9)
+    ece = sum(abs(x[bins == b].mean() - y[bins == b].mean()) * np.sum(bins == b) for b in np.unique(bins)) / y.size
+    return {"n": int(y.size), "moving": int(y.sum()), "log_loss": float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))),
+            "auc": auc, "ece": float(ece)}
 
 
-def given_scores(rows: list[dict], kind: str) -> dict:
-    """Log loss and AUC of the instability the screening gave (with or without the forward run)."""
+def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, float] | None) -> dict:
+    """:func:`probability_scores` of P(a) + P(b) (``scaling`` None) or of its Platt scaling ``(alpha, beta)``."""
     import numpy as np
 
+    x, y = _labelled(rows, kind)
+    x = np.asarray(x, dtype=float)
+    if scaling is not None:
+        x = 1.0 / (1.0 + np.exp(-(scaling[0] + scaling[1] * _logit(x))))
+    return probability_scores(x, y)
+
+
+def given_scores(rows: list[dict], kind: str, key: str = "instability") -> dict:
+    """:func:`probability_scores` of the instability the screening gave (or of another value under ``key``)."""
     x, y = [], []
     for r in rows:
         for m in r["main"] + r.get("lateral", []):
             if m["probabilities"] is None or not (m["in_moving"] or m["in_stable"]) or m["kind"] != kind:
                 continue
-            x.append(m["instability"])
+            x.append(m[key])
             y.append(1.0 if m["in_moving"] else 0.0)
-    x, y = np.clip(np.asarray(x, dtype=float), 1e-4, 1 - 1e-4), np.asarray(y)
-    pos, neg = x[y == 1], x[y == 0]
-    return {"log_loss": float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))) if y.size else float("nan"),
-            "auc": float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
-            if pos.size and neg.size else float("nan")}
+    return probability_scores(x, y)
 
 
 def main() -> None:
@@ -244,7 +244,7 @@ def main() -> None:
               f"unmeasured {sum(m['truth'] is None for m in lat)}; in steady controls {len(steady_lat)} "
               f"(moving {sum(m['in_moving'] for m in steady_lat)}, not moving {sum(m['in_stable'] for m in steady_lat)})")
         for k in KINDS:  # the score's lists are by the benchmark's edges; they agree with the kinds
-            alarmed = [m for r in steady for m in r.get(k, []) if _alarm(m)]
+            alarmed = [m for r in steady for m in r.get(k, []) if raises_alarm(m)]
             print(f"  {k}-divide alarms in steady controls by the truth of the segment: "
                   f"moving {sum(m['in_moving'] for m in alarmed)}, not moving {sum(m['in_stable'] for m in alarmed)}, "
                   f"slow or unmeasured {sum(not (m['in_moving'] or m['in_stable']) for m in alarmed)}")

@@ -23,9 +23,16 @@ import math
 from collections.abc import Callable
 
 import numpy as np
+from bench_regional import probability_scores  # this folder (scripts run from here)
 from scipy.optimize import minimize
 
-from divides.assess.screen import INSTABILITY_EVIDENCE, INSTABILITY_SCALING, evidence_features, instability_of
+from divides.assess.screen import (
+    INSTABILITY_EVIDENCE,
+    INSTABILITY_SCALING,
+    evidence_features,
+    instability_of,
+)
+from divides.model.regional_benchmark import raises_alarm, ranking_targets
 
 PRIOR_SD = 10.0
 KINDS = ("main", "lateral")
@@ -162,33 +169,20 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
 
 
 def targets(case: dict) -> dict:
-    """Issue 14's targets of one case from the instabilities in ``_i`` (regional_benchmark.score's rules)."""
-    main = sorted(case["main"], key=lambda m: (m["_i"] is None, -(m["_i"] or 0.0), m["rank"]))
-    n_moving = sum(m["in_moving"] for m in main)
-    top = None
-    if case["moving_stretches"] and n_moving:
-        def error(m):
-            return None if m["azimuth"] is None else abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0)
-        top = all(m["in_moving"] and error(m) is not None and error(m) <= 45.0 for m in main[:min(3, n_moving)])
-    movers = [i for i, m in enumerate(main) if m["in_moving"]]
-    still = [i for i, m in enumerate(main) if m["in_stable"]]
-    alarms = sum(1 for m in case["main"] + case["others"] if m["_i"] is not None and m["_i"] >= 0.5
-                 and m["confidence"] is not None and m["confidence"] >= 0.5)
+    """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
+    ranked = sorted(case["main"], key=lambda m: (m["_i"] is None, -(m["_i"] or 0.0), m["rank"]))
+    main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
+    out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
     steady = case["family"].startswith("steady_")
-    return {"top": top, "order": (max(movers) < min(still)) if movers and still else None,
-            "alarms": alarms if steady else None, "alarm_ok": (alarms == 0) if steady else None}
+    alarms = sum(raises_alarm({**m, "instability": m["_i"]}) for m in case["main"] + case["others"])
+    return {"top": out["top_ok"], "order": out["order_ok"], "alarms": alarms if steady else None,
+            "alarm_ok": (alarms == 0) if steady else None}
 
 
-def scores(rows: list[dict], kind: str) -> tuple[float, float, float, int, int]:
-    """Log loss, AUC (Mann-Whitney), expected calibration error (ten bins) of ``_i``; segments, moving."""
+def scores(rows: list[dict], kind: str) -> dict:
+    """bench_regional.probability_scores of ``_i`` on the segments of ``kind`` with a truth."""
     pairs = [(m["_i"], y) for m, y in _labelled(rows) if _kind(m) == kind]
-    x = np.clip(np.asarray([p[0] for p in pairs], dtype=float), 1e-4, 1 - 1e-4)
-    y = np.asarray([p[1] for p in pairs])
-    pos, neg = x[y == 1], x[y == 0]
-    auc = float(np.mean((pos[:, None] > neg[None, :]) + 0.5 * (pos[:, None] == neg[None, :])))
-    bins = np.minimum((x * 10).astype(int), 9)
-    ece = sum(abs(x[bins == b].mean() - y[bins == b].mean()) * np.sum(bins == b) for b in np.unique(bins)) / y.size
-    return float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))), auc, float(ece), int(y.size), int(y.sum())
+    return probability_scores([p[0] for p in pairs], [p[1] for p in pairs])
 
 
 def main() -> None:
@@ -196,7 +190,10 @@ def main() -> None:
     parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
     parser.add_argument("--candidates", nargs="*", default=list(CANDIDATES), choices=list(CANDIDATES))
     args = parser.parse_args()
-    rows = [dict(json.loads(line), _file=f) for f in args.files for line in open(f)]
+    rows = []
+    for name in args.files:
+        with open(name) as fh:
+            rows += [json.loads(line) for line in fh]
     print(f"{len(rows)} cases; the P-only scaling for unmeasured shifts: {INSTABILITY_SCALING}")
     for candidate in args.candidates:
         results = []
@@ -209,13 +206,13 @@ def main() -> None:
         top = [v["top"] for v in results if v["top"] is not None]
         order = [v["order"] for v in results if v["order"] is not None]
         steady = [v["alarm_ok"] for v in results if v["alarm_ok"] is not None]
-        main_s, lateral_s = scores(rows, "main"), scores(rows, "lateral")
+        m, lat = scores(rows, "main"), scores(rows, "lateral")
         full = {k: fit(rows, k, candidate) for k in KINDS}
         print(f"{candidate}: targets {sum(top) + sum(order) + sum(steady)} (top {sum(top)}/{len(top)}, order "
               f"{sum(order)}/{len(order)}, steady without alarm {sum(steady)}/{len(steady)}, alarms in steady "
               f"landscapes {sum(v['alarms'] for v in results if v['alarms'] is not None)}); main log loss "
-              f"{main_s[0]:.3f}, AUC {main_s[1]:.3f}, ECE {main_s[2]:.3f} ({main_s[3]} segments, {main_s[4]} moving); "
-              f"lateral {lateral_s[0]:.3f}, {lateral_s[1]:.3f}, {lateral_s[2]:.3f} ({lateral_s[3]}, {lateral_s[4]}); "
+              f"{m['log_loss']:.3f}, AUC {m['auc']:.3f}, ECE {m['ece']:.3f} ({m['n']} segments, {m['moving']} moving); "
+              f"lateral {lat['log_loss']:.3f}, {lat['auc']:.3f}, {lat['ece']:.3f} ({lat['n']}, {lat['moving']}); "
               "fitted on all: " + "; ".join(f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w))
                                             for k, w in full.items()), flush=True)
 
