@@ -125,8 +125,8 @@ def regional_map(result: Screening):
     cmap = colormaps["plasma"]  # perceptually uniform, dark (low) to bright yellow (high): high contrast on grey
     norm = Normalize(0.0, 1.0)
 
-    def xy(line, basins=None):
-        keep = slice(None) if basins is None else _between(line, result.labels, *basins)
+    def xy(line, basins):
+        keep = _between(line, result.labels, *basins)
         return np.column_stack([line.x[keep] * frame.scale, line.y[keep] * frame.scale])
 
     judged = [s for s in result.segments if s["instability"] is not None]
@@ -143,8 +143,7 @@ def regional_map(result: Screening):
         handles.append(Line2D([], [], color="0.2", lw=1.6, ls=(0, (4, 2)), label="judged: insufficient data"))
     if result.gaps:
         ax.add_collection(LineCollection([xy(g["line"], g["basins"]) for g in result.gaps], colors="black",
-                                         linewidths=1.0,
-                                         linestyles=(0, (1, 1.5)), zorder=3))
+                                         linewidths=1.0, linestyles=(0, (1, 1.5)), zorder=3))
         handles.append(Line2D([], [], color="black", lw=1.0, ls=(0, (1, 1.5)), label="not assessed (gap; see table)"))
     span = max(dem.bounds[2] - dem.bounds[0], dem.bounds[3] - dem.bounds[1]) * frame.scale
     arrows = False
