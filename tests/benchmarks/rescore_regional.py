@@ -9,7 +9,7 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to ninth rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to tenth rounds of docs/validation.md (*Regional screening*);
 ``shipped`` is screen.INSTABILITY_EVIDENCE as it is, not refitted. Fits are maximum likelihood with a
 Gaussian prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data
 nearly separate). Give it training cases only.
@@ -89,6 +89,21 @@ def _gated(t: float) -> Callable[[dict, dict], list[float]]:
     return features
 
 
+def _basin_agrees(p: dict, m: dict) -> float:
+    """1.0 when the run with one U per outlet basin (``forward_shift_basin_cells``, round 10) moves the divide
+    >= 0.1 cell toward the favoured side; unmeasured counts as not."""
+    s = m.get("forward_shift_basin_cells")
+    return _gate(0.1, False)(p, {"forward_shift_cells": s})[2] if s is not None else 0.0
+
+
+def _both_runs(product: bool) -> Callable[[dict, dict], list[float]]:
+    def features(p, m):
+        lp, h, r = evidence_features(p, m)
+        rb = _basin_agrees(p, m)
+        return [lp, h, r * rb] if product else [lp, h, r, rb]
+    return features
+
+
 def _beyond_one(p: dict, m: dict) -> list[float]:
     return [float(np.clip((_toward(p, m) or 0.0) - 1.0, 0.0, 2.0))]
 
@@ -113,6 +128,9 @@ CANDIDATES: dict[str, tuple] = {
     "shipped + beyond 1 cell, unmeasured as P-only": (_beyond_one, True, True),
     **{f"split{t:g}": (_split(t), False, True) for t in (0.1, 0.25, 0.5)},
     **{f"gated{t:g}": (_gated(t), False, True) for t in (0.1, 0.25, 0.5)},
+    "shipped, both runs agree": (None, False, False),
+    "both runs, refitted": (_both_runs(False), False, False),
+    "both runs agree, refitted": (_both_runs(True), False, False),
 }
 
 
@@ -162,6 +180,8 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
     if fallback and _shift(m) is None:
         return instability_of(p, kind)
     if features is None:
+        if candidate == "shipped, both runs agree":  # r counts only where the per-basin run agrees too
+            evidence["forward_shift_cells"] = evidence["forward_shift_cells"] if _basin_agrees(p, m) else 0.0
         return instability_of(p, kind, evidence)
     x = np.asarray(features(p, m))
     t = (_shipped_offset(p, m, kind) + x @ w) if offset else (w[0] + x @ w[1:])
