@@ -31,8 +31,8 @@ from divides.model.tracking import exchange_displacement
 from divides.terrain.divide_lines import DivideLine
 from divides.terrain.routing import route
 
-__all__ = ["LandscapeShift", "landscape_shift", "ModelStart", "model_start", "run_from", "steady_uplift",
-           "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
+__all__ = ["LandscapeShift", "landscape_shift", "landscape_shifts", "ModelStart", "model_start", "run_from",
+           "steady_uplift", "BALANCES", "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
 
 #: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
 #: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
@@ -169,11 +169,12 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
         Horizon in response times.
     max_steps : int
         Most time steps (>= 20).
-    balance : {"channels", "steady"}
+    balance : {"channels", "steady", "steady-basins"}
         How uplift balances the present landscape: ``"channels"``, one rate, the median
         A^m S^n of its channels at K = 1, without diffusion; ``"steady"``, one rate and a
         diffusivity fitted so that the present surface is the model's steady state
-        (:func:`steady_uplift`).
+        (:func:`steady_uplift`); ``"steady-basins"``, the same with one rate per outlet basin,
+        which absorbs a contrast of uplift, erodibility or runoff between whole basins.
 
     Returns
     -------
@@ -183,22 +184,40 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
         (Royden & Perron 2013); the response time is relief / U (Whipple 2001). Without
         relief or channels that drain downhill nothing is run (``n_steps`` 0, every shift 0).
     """
+    return landscape_shifts(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2,
+                            horizon_tau=horizon_tau, max_steps=max_steps, balances=(balance,))[0]
+
+
+def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
+                     balances: tuple[str, ...], horizon_tau: float = FORWARD_HORIZON_TAU,
+                     max_steps: int = 60) -> list[LandscapeShift]:
+    """:func:`landscape_shift` under each of ``balances``, from one model grid (routed once): the runs share
+    :meth:`LandscapeShift.on_model_grid` and their outlet basins at the start."""
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
-    if balance not in ("channels", "steady"):
-        raise ParameterError(f"balance must be 'channels' or 'steady'; got {balance!r}")
+    for balance in balances:
+        if balance not in BALANCES:
+            raise ParameterError(f"balance must be one of {', '.join(map(repr, BALANCES))}; got {balance!r}")
     start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     slope = slopes(start.flow)[start.cells]
     s_ref = float(np.median(slope)) if slope.size else 1.0
-    if balance == "steady":
-        uplift, diffusivity = steady_uplift(start, n)
+    runs = []
+    for balance in balances:
+        if balance == "channels":
+            area = start.flow.area.ravel()[start.cells]
+            uplift = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
+            runs.append(run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=s_ref,
+                                 horizon_tau=horizon_tau, max_steps=max_steps))
+            continue
+        uplift, diffusivity = steady_uplift(start, n, per_basin=balance == "steady-basins")
         u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
-        return run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
-                        horizon_tau=horizon_tau, max_steps=max_steps)
-    area = start.flow.area.ravel()[start.cells]
-    uplift = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
-    return run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=s_ref,
-                    horizon_tau=horizon_tau, max_steps=max_steps)
+        runs.append(run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
+                             horizon_tau=horizon_tau, max_steps=max_steps))
+    return runs
+
+
+#: The balances :func:`landscape_shift` can run under.
+BALANCES = ("channels", "steady", "steady-basins")
 
 
 #: Outlet basins of fewer model cells share one uplift rate in :func:`steady_uplift` (``per_basin``).

@@ -600,7 +600,9 @@ def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
                 truth = {"a": "b", "b": "a"}[truth]
         out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                     "probabilities": s.get("probabilities"), "kind": s.get("divide_kind"), "length_m": s["length_m"],
-                    "forward_shift_cells": s.get("forward_shift_cells"), "hilltop_contrast": s.get("hilltop_contrast"),
+                    "forward_shift_cells": s.get("forward_shift_cells"),
+                    "forward_shift_basin_cells": s.get("forward_shift_basin_cells"),
+                    "hilltop_contrast": s.get("hilltop_contrast"),
                     "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
                     "in_stable": truth == "stable",
                     "rate_cells_per_tau": None if p is None or p["rate_m_per_yr"] is None
@@ -642,7 +644,9 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                      "kind": s.get("divide_kind"), "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
-                     "forward_shift_cells": s.get("forward_shift_cells"), "hilltop_contrast": s.get("hilltop_contrast"),
+                     "forward_shift_cells": s.get("forward_shift_cells"),
+                     "forward_shift_basin_cells": s.get("forward_shift_basin_cells"),
+                     "hilltop_contrast": s.get("hilltop_contrast"),
                      "reason": s.get("reason"),
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
@@ -674,7 +678,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_alarms"] = sum(1 for m in lat if raises_alarm(m))
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
-                                            "forward_shift_cells", "hilltop_contrast")}
+                                            "forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
     out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
     out["alarm_ok"] = (not case.steady) or not alarms

@@ -38,7 +38,7 @@ MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
             "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells",
-            "hilltop_contrast", "x_mid", "y_mid")
+            "forward_shift_basin_cells", "hilltop_contrast", "x_mid", "y_mid")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -59,6 +59,10 @@ SCREENING_REFERENCES = tuple(sorted(
     ]))
 
 
+#: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
+INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment moves (0–1)",
+                     False: "instability = calibrated probability that the segment moves"}
+
 #: The divide column of the report's table (``divide_kind`` of segments.csv).
 _KIND_WORDS = {"main": "main (basins drain apart)", "lateral": "lateral (basins drain the same way)"}
 
@@ -77,9 +81,8 @@ def segment_rows(result: Screening) -> list[dict]:
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
             "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
-            "forward_shift_cells": None if s.get("forward_shift_cells") is None
-            else round(float(s["forward_shift_cells"]), 3),
-            "hilltop_contrast": None if s.get("hilltop_contrast") is None else round(float(s["hilltop_contrast"]), 3),
+            **{k: None if s.get(k) is None else round(float(s[k]), 3)
+               for k in ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")},
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
@@ -94,8 +97,7 @@ def segment_features(result: Screening) -> list[dict]:
         props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                                    "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
                                    "divide_kind")}
-        props["forward_shift_cells"] = s.get("forward_shift_cells")
-        props["hilltop_contrast"] = s.get("hilltop_contrast")
+        props.update({k: s.get(k) for k in ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")})
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
@@ -191,7 +193,7 @@ def regional_map(result: Screening):
     ax.set_aspect(frame.aspect)
     map_furniture(fig, ax, dem, frame)
     fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), ax=ax, shrink=0.7,
-                 label="instability = calibrated probability that the segment moves")
+                 label=INSTABILITY_WORDS[bool(result.parameters.get("forward_run"))])
     ax.set_title("Divide segments by instability; arrows point toward the basin losing ground", fontsize=10)
     return fig
 
@@ -293,6 +295,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 7})
     p = result.parameters
+    words = INSTABILITY_WORDS[bool(p.get("forward_run"))]
     caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}</div>"
     lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
@@ -319,13 +322,16 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "(Platt 1999) to how often divide segments of regional model landscapes with that probability lay in "
         "stretches that moved: the calibrated probability that the segment moves; it is unknown when too few "
         "independent samples were found. Divides between tributaries of the same trunk are not assessed. "
-        + ("Two lines of landscape evidence join it: a forward run of the landscape-evolution model over the "
-           "whole DEM (0.3 response times, erodibility unknown, uplift and hillslope diffusivity fitted so the "
-           "present surface is the model's steady state; Perron et al. 2009) moves each segment "
-           "by the area its two basins exchange next to it, and the curvature of the hilltops next to it says "
-           "which side lowers faster (E = −D ∇²z; Roering et al. 2007). The instability then "
-           "reads whether the run moves the segment at least 0.1 model cell the way the near-divide measures "
-           "point, and whether the hilltops agree (Gilbert 1877; Royden &amp; Perron 2013). " if p.get("forward_run")
+        + ("Two lines of landscape evidence join it: two forward runs of the landscape-evolution model over the "
+           "whole DEM (0.3 response times, erodibility unknown, hillslope diffusivity and uplift fitted so the "
+           "present surface is the model's steady state, one uplift rate for the DEM and one per outlet basin; "
+           "Perron et al. 2009) move each segment by the area its two basins exchange next to it, and the "
+           "curvature of the hilltops next to it says which side lowers faster (E = −D ∇²z; Roering et al. "
+           "2007). The instability then reads whether both runs move the segment at least half a model cell the "
+           "way the near-divide measures point, and whether the hilltops agree (Gilbert 1877; Royden &amp; "
+           "Perron 2013). With this evidence the instability is a score that ranks the segments, not a "
+           "calibrated probability: a segment the runs do not move gets little even when it moves (its "
+           "reliability on held-out model landscapes is in docs/validation.md). " if p.get("forward_run")
            else "") +
         "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
         "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")
@@ -336,7 +342,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         f"report of {e(_dt.datetime.now(_dt.timezone.utc).date().isoformat())}</p>",
         caution,
         f"<section class=\"verdict\" id=\"verdict\"><p class=\"lead\">{lead}</p>"
-        "<p>Instability = the calibrated probability that the segment moves. "
+        f"<p>{e(words[:1].upper() + words[1:])}. "
         "A screening ranks where to look first, it does not replace an assessment of each divide "
         "(<code>divides assess</code>) and field work.</p>" + coverage + gap_table + "</section>",
         "<figure><img alt=\"regional map\" src=\"data:image/png;base64,"

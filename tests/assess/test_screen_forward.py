@@ -1,5 +1,5 @@
-"""Screening's landscape evidence: one forward run of the whole DEM under its steady balance and the
-hilltop curvature (`screen(..., forward_run=True)`, the default)."""
+"""Screening's landscape evidence: two forward runs of the whole DEM under its steady balance (one uplift rate,
+one per outlet basin) and the hilltop curvature (`screen(..., forward_run=True)`, the default)."""
 
 from __future__ import annotations
 
@@ -22,17 +22,18 @@ def _book(west_gradient: float, east_gradient: float, rows: int = 21, cols: int 
     return divides.Dem.from_array(z, cell_size=100.0)
 
 
-def _instability(p: dict, kind: str, shift: float | None, hill: float | None = None) -> float:
+def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = None) -> float:
     # The documented models (docs/methods.md §7b): Platt scaling without the landscape evidence, and with it
-    # the logistic model adding the hilltop contrast toward the favoured side and the run's agreement.
+    # the logistic model adding the hilltop contrast toward the favoured side and the runs' agreement (both
+    # runs move the divide at least half a model cell toward the favoured side).
     q = p["a"] + p["b"]
     z = math.log(q / (1.0 - q))
-    if shift is None and hill is None:
+    if shifts is None and hill is None:
         alpha, beta = INSTABILITY_SCALING[kind]
         return 1.0 / (1.0 + math.exp(-(alpha + beta * z)))
     alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
     favoured = 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
-    agrees = shift is not None and favoured * shift >= 0.1
+    agrees = favoured != 0 and all(s is not None and favoured * s >= 0.5 for s in shifts)
     return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * favoured * (hill or 0.0) + g_run * agrees)))
 
 
@@ -48,21 +49,24 @@ def test_the_forward_run_moves_the_divide_into_the_gentler_flank(west, east):
     gentle = result.labels[10, -2] if west > east else result.labels[10, 1]
     victim = s["basins"][1] if s["forward_shift_cells"] > 0 else s["basins"][0]
     assert abs(s["forward_shift_cells"]) > 0.5 and victim == gentle
-    assert s["instability"] == pytest.approx(
-        _instability(s["probabilities"], "main", s["forward_shift_cells"], s["hilltop_contrast"]), abs=1e-9)
+    shifts = (s["forward_shift_cells"], s["forward_shift_basin_cells"])
+    assert s["instability"] == pytest.approx(_instability(s["probabilities"], "main", shifts, s["hilltop_contrast"]),
+                                             abs=1e-9)
     assert result.parameters["forward_run"] is True and result.parameters["forward_run_grid"]["steps"] >= 20
 
 
 def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
-    # Symmetric flanks stay (Gilbert 1877): less than the 0.1 model cell a shift is read at. Without the run
-    # (forward_run=False) neither line of landscape evidence is measured and the P-only scaling applies.
+    # Symmetric flanks stay (Gilbert 1877), under either run: less than the 0.1 model cell a shift is read at.
+    # Without the runs (forward_run=False) no line of landscape evidence is measured and the P-only scaling
+    # applies.
     on = screen(_book(0.15, 0.15), **OPTIONS)
     off = screen(_book(0.15, 0.15), forward_run=False, **OPTIONS)
     (s_on,) = [s for s in on.segments if s["divide_kind"] == "main"]
     (s_off,) = [s for s in off.segments if s["divide_kind"] == "main"]
-    assert abs(s_on["forward_shift_cells"]) < 0.1
+    assert abs(s_on["forward_shift_cells"]) < 0.1 and abs(s_on["forward_shift_basin_cells"]) < 0.1
     assert not forward_agrees(s_on["probabilities"], s_on["forward_shift_cells"])
     assert on.parameters["forward_run"] is True
-    assert s_off["forward_shift_cells"] is None and s_off["hilltop_contrast"] is None
+    assert s_off["forward_shift_cells"] is None and s_off["forward_shift_basin_cells"] is None
+    assert s_off["hilltop_contrast"] is None
     assert off.parameters["forward_run"] is False and "forward_run_grid" not in off.parameters
     assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)

@@ -2,7 +2,7 @@
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
                                               [--generate-only] [--json FILE] [--fit] [--markdown]
-                                              [--no-forward-run] [--per-basin-run]
+                                              [--no-forward-run]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
@@ -38,29 +38,6 @@ def screen_case(case, **overrides):
     options = dict(theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2)
     return screen(case.dem(), **{**options, **overrides})
-
-
-def add_per_basin_shifts(case, screening, result: dict) -> None:
-    """Each scored segment's shift (model cells into b) in the steady-balance run with one U per outlet basin
-    (bench_regional_steadiness.steady_run), as ``forward_shift_basin_cells`` (None where not measured)."""
-    import math
-
-    from bench_regional_steadiness import steady_run
-
-    from divides.assess.screen import _outlet_basins
-    from divides.terrain.tiled_flow import tiled_routing
-
-    p = screening.parameters
-    outlet_of = _outlet_basins(screening.flow, screening.labels, p["min_basin_area_m2"], p["level"])
-    with tiled_routing(None):
-        run = steady_run(case.dem(), theta=case.parameters["theta"], n=1.0, closed_edges=case.closed_edges,
-                         channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2, per_basin=True)
-    sides = outlet_of[run.on_model_grid(screening.labels)]
-    shift = {s["rank"]: run.piece_shift(s["line"], sides, int(outlet_of[s["basins"][0]]), int(outlet_of[s["basins"][1]]))
-             for s in screening.segments}
-    for m in result["main"] + result.get("lateral", []) + result["others"]:
-        v = shift.get(m["rank"])
-        m["forward_shift_basin_cells"] = None if v is None or not math.isfinite(v) else float(v)
 
 
 def _fmt(v, spec=".2f"):
@@ -194,9 +171,6 @@ def main() -> None:
     parser.add_argument("--markdown", action="store_true", help="print the per-case rows of docs/validation.md")
     parser.add_argument("--no-forward-run", action="store_true",
                         help="screen with the near-divide contrasts alone (screen's forward_run=False)")
-    parser.add_argument("--per-basin-run", action="store_true",
-                        help="also write each segment's shift in a steady-balance run with one U per outlet basin "
-                             "(forward_shift_basin_cells; for rescore_regional.py, not part of the screening)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
     args = parser.parse_args()
@@ -224,10 +198,7 @@ def main() -> None:
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
         extra["forward_run"] = not args.no_forward_run
-        screening = screen_case(case, **extra)
-        result = score(case, screening, lateral=lateral_truth(case))
-        if args.per_basin_run:
-            add_per_basin_shifts(case, screening, result)
+        result = score(case, screen_case(case, **extra), lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
     if args.generate_only:

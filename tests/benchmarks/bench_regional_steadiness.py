@@ -46,9 +46,8 @@ from divides.assess.verdict import FORWARD_NOISE_CELLS, decide
 from divides.model.benchmark import split_of
 from divides.model.forward_run import (
     laplacian,
-    slopes,
 )
-from divides.model.landscape_shift import LandscapeShift, landscape_shift, model_start, run_from, steady_uplift
+from divides.model.landscape_shift import LandscapeShift, landscape_shift
 from divides.model.regional_benchmark import (
     case_seed,
     lateral_truth,
@@ -60,15 +59,10 @@ from divides.terrain.basins import basin_labels
 
 def steady_run(dem, *, theta: float, n: float, closed_edges, channel_area_m2: float, per_basin: bool) -> LandscapeShift:
     """Screen's landscape run under the steady balance (K = 1, 0.3 response times): U and D fitted so that the
-    present surface is the model's steady state, one U for the whole DEM (screening's) or one per outlet basin."""
-    if not per_basin:
-        return landscape_shift(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2,
-                               balance="steady")
-    start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
-    uplift, diffusivity = steady_uplift(start, n, per_basin=True)
-    slope = slopes(start.flow)[start.cells]
-    return run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=float(np.median(uplift[start.before > 0])),
-                    s_ref=float(np.median(slope)) if slope.size else 1.0)
+    present surface is the model's steady state, one U for the whole DEM or one per outlet basin (screening
+    reads both)."""
+    return landscape_shift(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2,
+                           balance="steady-basins" if per_basin else "steady")
 
 
 def contrasts_of(rows: list[dict]) -> list[Contrast]:

@@ -9,8 +9,9 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to tenth rounds of docs/validation.md (*Regional screening*);
-``shipped`` is screen.INSTABILITY_EVIDENCE as it is, not refitted. Fits are maximum likelihood with a
+The candidates are those of the fourth to twelfth rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 11's winner); ``shipped before round 11`` its
+coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell), not refitted. Fits are maximum likelihood with a
 Gaussian prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data
 nearly separate). Give it training cases only.
 """
@@ -38,32 +39,51 @@ PRIOR_SD = 10.0
 KINDS = ("main", "lateral")
 
 
-def _shift(m: dict) -> float | None:
-    v = m.get("forward_shift_cells")
+def _shift(m: dict, key: str = "forward_shift_cells") -> float | None:
+    v = m.get(key)
     return None if v is None or not math.isfinite(v) else float(v)
 
 
-def _toward(p: dict, m: dict) -> float | None:
-    """The run's shift toward the side the decision favours (model cells; None when unmeasured)."""
-    s = _shift(m)
+def _toward(p: dict, m: dict, key: str = "forward_shift_cells") -> float | None:
+    """A run's shift toward the side the decision favours (model cells; None when unmeasured)."""
+    s = _shift(m, key)
     favoured = float((p.get("b", 0.0) > p.get("a", 0.0)) - (p.get("b", 0.0) < p.get("a", 0.0)))
     return None if s is None else favoured * s
 
 
+def _agrees(p: dict, m: dict, t: float, key: str = "forward_shift_cells") -> float:
+    """1.0 when a run moves the divide >= t cells toward the favoured side (unmeasured or a tie: 0.0)."""
+    s = _toward(p, m, key)
+    return float(s is not None and s >= t and s != 0.0)
+
+
+def _both_agree(p: dict, m: dict, t: float) -> float:
+    """1.0 when both runs (one U; one U per outlet basin, round 10) agree by t cells."""
+    return _agrees(p, m, t) * _agrees(p, m, t, "forward_shift_basin_cells")
+
+
+def _lp_h(p: dict, m: dict) -> tuple[float, float]:
+    """logit(P(a) + P(b)) and the signed hilltop contrast, as screen.evidence_features reads them."""
+    lp, h, _ = evidence_features(p, m)
+    return lp, h
+
+
+def _old_r(p: dict, m: dict) -> float:
+    """The run term of the model shipped before round 11: the one-U run agrees by 0.1 cell."""
+    return _agrees(p, m, 0.1)
+
+
 def _gate(t: float, unmeasured: bool) -> Callable[[dict, dict], list[float]]:
     def features(p, m):
-        lp, h, _ = evidence_features(p, m)
-        s = _toward(p, m)
-        r = 0.0 if s is None else float(s >= t and s != 0.0)
-        return [lp, h, r, float(s is None)] if unmeasured else [lp, h, r]
+        r = _agrees(p, m, t)
+        return [*_lp_h(p, m), r, float(_shift(m) is None)] if unmeasured else [*_lp_h(p, m), r]
     return features
 
 
 def _with_shift(gate: bool) -> Callable[[dict, dict], list[float]]:
     def features(p, m):
-        lp, h, r = evidence_features(p, m)
         s = float(np.clip(_toward(p, m) or 0.0, -2.0, 2.0))
-        return [lp, h, r, s] if gate else [lp, h, s]
+        return [*_lp_h(p, m), _old_r(p, m), s] if gate else [*_lp_h(p, m), s]
     return features
 
 
@@ -71,9 +91,7 @@ def _split(t: float) -> Callable[[dict, dict], list[float]]:
     """A logistic model on (logit p, h) of its own where the run moves the divide >= t cells toward the
     favoured side, and another where it does not (the interaction with the agreement r)."""
     def features(p, m):
-        lp, h, _ = evidence_features(p, m)
-        s = _toward(p, m)
-        r = float(s is not None and s >= t and s != 0.0)
+        (lp, h), r = _lp_h(p, m), _agrees(p, m, t)
         return [r, r * lp, r * h, (1.0 - r) * lp, (1.0 - r) * h]
     return features
 
@@ -82,25 +100,38 @@ def _gated(t: float) -> Callable[[dict, dict], list[float]]:
     """(logit p, h) count only where the run moves the divide >= t cells toward the favoured side; elsewhere
     the instability is one constant."""
     def features(p, m):
-        lp, h, _ = evidence_features(p, m)
-        s = _toward(p, m)
-        r = float(s is not None and s >= t and s != 0.0)
+        (lp, h), r = _lp_h(p, m), _agrees(p, m, t)
         return [r, r * lp, r * h]
     return features
 
 
-def _basin_agrees(p: dict, m: dict) -> float:
-    """1.0 when the run with one U per outlet basin (``forward_shift_basin_cells``, round 10) moves the divide
-    >= 0.1 cell toward the favoured side; unmeasured counts as not."""
-    s = m.get("forward_shift_basin_cells")
-    return _gate(0.1, False)(p, {"forward_shift_cells": s})[2] if s is not None else 0.0
-
-
-def _both_runs(product: bool) -> Callable[[dict, dict], list[float]]:
+def _both_runs(product: bool, t: float = 0.1) -> Callable[[dict, dict], list[float]]:
     def features(p, m):
-        lp, h, r = evidence_features(p, m)
-        rb = _basin_agrees(p, m)
-        return [lp, h, r * rb] if product else [lp, h, r, rb]
+        if product:
+            return [*_lp_h(p, m), _both_agree(p, m, t)]
+        return [*_lp_h(p, m), _old_r(p, m), _agrees(p, m, 0.1, "forward_shift_basin_cells")]
+    return features
+
+
+def _shipped_with(r: Callable[[dict, dict], float]) -> Callable[[dict, dict, str], float]:
+    """The linear predictor of INSTABILITY_EVIDENCE's coefficients with the run term ``r``."""
+    def predictor(p, m, kind):
+        alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+        lp, h = _lp_h(p, m)
+        return alpha + beta * lp + g_hill * h + g_run * r(p, m)
+    return predictor
+
+
+_OLD = _shipped_with(_old_r)
+
+
+def _recalibrated(t: float) -> Callable[[dict, dict], list[float]]:
+    """The linear predictor with both runs agreeing by t cells, i.e. logit of that score (round 12's Platt
+    recalibration), clipped to [1e-9, 1 - 1e-9] as a probability."""
+    predictor = _shipped_with(lambda p, m: _both_agree(p, m, t))
+
+    def features(p, m):
+        return [float(np.clip(predictor(p, m, _kind(m)), -20.72, 20.72))]
     return features
 
 
@@ -108,30 +139,31 @@ def _beyond_one(p: dict, m: dict) -> list[float]:
     return [float(np.clip((_toward(p, m) or 0.0) - 1.0, 0.0, 2.0))]
 
 
-def _shipped_offset(p: dict, m: dict, kind: str) -> float:
-    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
-    lp, h, r = evidence_features(p, m)
-    return alpha + beta * lp + g_hill * h + g_run * r
-
-
-#: name -> (features, offset by the shipped model, unmeasured shift falls back to the P-only scaling);
-#: features None: the shipped model, nothing fitted.
+#: name -> (features, offset by the model shipped before round 11, unmeasured one-U shift falls back to the
+#: P-only scaling); a callable in place of features: a model with INSTABILITY_EVIDENCE's coefficients and that
+#: run term, nothing fitted. "shipped now" is screen.instability_of as it is (round 11's winner).
 CANDIDATES: dict[str, tuple] = {
-    "shipped": (None, False, False),
+    "shipped now": ("now", False, False),
+    "shipped before round 11": (_OLD, False, False),
     "refit": (_gate(0.1, False), False, False),
     "shift": (_with_shift(False), False, False),
     "gate+shift": (_with_shift(True), False, False),
     **{f"gate{t:g}+unmeasured": (_gate(t, True), False, False) for t in (0.1, 0.25, 0.5, 1.0)},
     **{f"gate{t:g}": (_gate(t, False), False, False) for t in (0.25, 0.5, 1.0)},
-    "shipped, unmeasured as P-only": (None, False, True),
-    "shipped + beyond 1 cell": (_beyond_one, True, False),
-    "shipped + beyond 1 cell, unmeasured as P-only": (_beyond_one, True, True),
+    "shipped before round 11, unmeasured as P-only": (_OLD, False, True),
+    "shipped before round 11 + beyond 1 cell": (_beyond_one, True, False),
+    "shipped before round 11 + beyond 1 cell, unmeasured as P-only": (_beyond_one, True, True),
     **{f"split{t:g}": (_split(t), False, True) for t in (0.1, 0.25, 0.5)},
     **{f"gated{t:g}": (_gated(t), False, True) for t in (0.1, 0.25, 0.5)},
-    "shipped, both runs agree": (None, False, False),
+    "both runs agree by 0.1, shipped coefficients": (_shipped_with(lambda p, m: _both_agree(p, m, 0.1)), False, False),
     "both runs, refitted": (_both_runs(False), False, False),
     "both runs agree, refitted": (_both_runs(True), False, False),
+    **{f"both runs agree by {t:g}, shipped coefficients": (_shipped_with(lambda p, m, t=t: _both_agree(p, m, t)),
+                                                            False, False) for t in (0.25, 0.5)},
+    **{f"both runs agree by {t:g}, refitted": (_both_runs(True, t), False, False) for t in (0.25, 0.5)},
+    "both runs agree by 0.5, recalibrated": (_recalibrated(0.5), False, False),
 }
+_FIXED = [c[0] for c in CANDIDATES.values() if getattr(c[0], "__name__", "") == "predictor"]
 
 
 def _kind(m: dict) -> str | None:
@@ -146,11 +178,11 @@ def _labelled(rows: list[dict]):
 
 
 def fit(rows: list[dict], kind: str, candidate: str) -> np.ndarray | None:
-    """The candidate's coefficients for one kind of divide (None for the shipped model)."""
+    """The candidate's coefficients for one kind of divide (None when nothing is fitted)."""
     features, offset, fallback = CANDIDATES[candidate]
-    if features is None:
+    if features == "now" or features in _FIXED:
         return None
-    data = [(features(m["probabilities"], m), y, _shipped_offset(m["probabilities"], m, kind) if offset else 0.0)
+    data = [(features(m["probabilities"], m), y, _OLD(m["probabilities"], m, kind) if offset else 0.0)
             for m, y in _labelled(rows) if _kind(m) == kind and not (fallback and _shift(m) is None)]
     x = np.asarray([d[0] for d in data], dtype=float)
     y = np.asarray([d[1] for d in data])
@@ -176,15 +208,15 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
     if p is None or kind not in KINDS:
         return m["instability"]
     features, offset, fallback = CANDIDATES[candidate]
-    evidence = {"forward_shift_cells": m.get("forward_shift_cells"), "hilltop_contrast": m.get("hilltop_contrast")}
     if fallback and _shift(m) is None:
         return instability_of(p, kind)
-    if features is None:
-        if candidate == "shipped, both runs agree":  # r counts only where the per-basin run agrees too
-            evidence["forward_shift_cells"] = evidence["forward_shift_cells"] if _basin_agrees(p, m) else 0.0
-        return instability_of(p, kind, evidence)
-    x = np.asarray(features(p, m))
-    t = (_shipped_offset(p, m, kind) + x @ w) if offset else (w[0] + x @ w[1:])
+    if features == "now":
+        return instability_of(p, kind, m)
+    if features in _FIXED:
+        t = features(p, m, kind)
+    else:
+        x = np.asarray(features(p, m))
+        t = (_OLD(p, m, kind) + x @ w) if offset else (w[0] + x @ w[1:])
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 

@@ -92,9 +92,10 @@ def test_a_horizon_that_is_not_positive_is_refused():
                         horizon_tau=0.0)
 
 
-@pytest.mark.parametrize("balance", ["channels", "steady"])
+@pytest.mark.parametrize("balance", ["channels", "steady", "steady-basins"])
 def test_under_either_balance_the_steeper_flank_gains_ground(balance):
-    # Gilbert (1877), as above, with the uplift balancing the channels or the steady balance (U and D fitted).
+    # Gilbert (1877), as above, with the uplift balancing the channels or the steady balance (U and D fitted,
+    # one U or one per outlet basin).
     into_east, _ = _shift(_book(0.2, 0.1), balance=balance)
     into_west, _ = _shift(_book(0.1, 0.2), balance=balance)
     assert into_east > 0.5 and into_west < -0.5
@@ -138,3 +139,18 @@ def test_steady_uplift_recovers_the_uplift_and_diffusivity_over_k(lopsided_stead
 def test_an_unknown_balance_is_refused():
     with pytest.raises(ParameterError, match="balance"):
         landscape_shift(_book(0.2, 0.1), theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4, balance="x")
+
+
+def test_runs_under_several_balances_share_one_model_grid():
+    # Screening reads two runs (one U; one U per outlet basin) from one routed model grid: each equals the
+    # run made on its own, so sharing the start changes nothing.
+    from divides.model.landscape_shift import landscape_shifts
+
+    dem = _book(0.2, 0.1)
+    options = dict(theta=0.1, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    shared = landscape_shifts(dem, balances=("steady", "steady-basins"), **options)
+    for run, balance in zip(shared, ("steady", "steady-basins")):
+        alone = landscape_shift(dem, balance=balance, **options)
+        assert np.array_equal(run.before, alone.before) and np.array_equal(run.after, alone.after)
+        assert run.n_steps == alone.n_steps
+
