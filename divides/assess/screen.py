@@ -439,9 +439,9 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         r["forward_shift_cells"], r["forward_shift_basin_cells"] = (run.piece_shift(seg.line, sides, a, b)
                                                                     for run in runs)
         r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
-    run = runs[0]
-    return {"model_cell_m": run.cell_m, "block": run.factor, "years_at_unit_k": run.years_unit_k,
-            "steps": run.n_steps}
+    first = runs[0]  # the grid is shared; the one-U run's horizon and steps
+    return {"model_cell_m": first.cell_m, "block": first.factor, "years_at_unit_k": first.years_unit_k,
+            "steps": first.n_steps}
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:

@@ -151,6 +151,10 @@ def _most_common(values: np.ndarray) -> int:
     return int(uniq[np.argmax(counts)])
 
 
+#: The balances :func:`landscape_shift` can run under.
+BALANCES = ("channels", "steady", "steady-basins")
+
+
 def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
                     horizon_tau: float = FORWARD_HORIZON_TAU, max_steps: int = 60,
                     balance: str = "channels") -> LandscapeShift:
@@ -214,10 +218,6 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
         runs.append(run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
                              horizon_tau=horizon_tau, max_steps=max_steps))
     return runs
-
-
-#: The balances :func:`landscape_shift` can run under.
-BALANCES = ("channels", "steady", "steady-basins")
 
 
 #: Outlet basins of fewer model cells share one uplift rate in :func:`steady_uplift` (``per_basin``).
