@@ -193,8 +193,9 @@ def screen(
         for s in segs[:top]:
             toward = "-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"])
             bearing = "-" if s["motion_azimuth_deg"] is None else f"{s['motion_azimuth_deg']:.0f}°"
-            typer.echo(f"{s['rank']:>4}  {probability_text(s['instability']):>7}  {probability_text(s['confidence']):>5}"
-                       f"  {s['length_m']:9,.0f}  {s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
+            instab, conf = probability_text(s["instability"]), probability_text(s["confidence"])
+            typer.echo(f"{s['rank']:>4}  {instab:>7}  {conf:>5}  {s['length_m']:9,.0f}  "
+                       f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "
                "professionals decide.")
     typer.echo(f"Report:  {written / 'report.html'}")

@@ -132,8 +132,8 @@ def probability_scores(x, y) -> dict:
         if pos.size and neg.size else float("nan")
     bins = np.minimum((x * 10).astype(int), 9)
     ece = sum(abs(x[bins == b].mean() - y[bins == b].mean()) * np.sum(bins == b) for b in np.unique(bins)) / y.size
-    return {"n": int(y.size), "moving": int(y.sum()), "log_loss": float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x)))),
-            "auc": auc, "ece": float(ece)}
+    loss = float(np.mean(-(y * np.log(x) + (1 - y) * np.log(1 - x))))
+    return {"n": int(y.size), "moving": int(y.sum()), "log_loss": loss, "auc": auc, "ece": float(ece)}
 
 
 def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, float] | None) -> dict:

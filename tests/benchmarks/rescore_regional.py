@@ -10,10 +10,10 @@ lateral segments, each case scored by the model fitted without it. No DEM is scr
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
 The candidates are those of the fourth to twelfth rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 11's winner); ``shipped before round 11`` its
-coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell), not refitted. Fits are maximum likelihood with a
-Gaussian prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data
-nearly separate). Give it training cases only.
+``shipped now`` is screen.instability_of as it is (round 11's winner), ``shipped before round 11`` its
+coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is
+refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
+(it keeps the fit finite where the data nearly separate). Give it training cases only.
 """
 
 from __future__ import annotations
