@@ -9,7 +9,7 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twelfth rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to thirteenth rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 11's winner), ``shipped before round 11`` its
 coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is
 refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
@@ -135,6 +135,17 @@ def _recalibrated(t: float) -> Callable[[dict, dict], list[float]]:
     return features
 
 
+def _ordered_left_out(gamma: float) -> Callable[[dict, dict, str], float]:
+    """Round 13: the present default plus (1 - r) gamma clip(M, 0, 2), M the larger |shift| of the two runs."""
+    present = _shipped_with(lambda p, m: _both_agree(p, m, 0.5))
+
+    def predictor(p, m, kind):
+        shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
+        left_out = 1.0 - _both_agree(p, m, 0.5)
+        return present(p, m, kind) + left_out * gamma * float(np.clip(max(shifts, default=0.0), 0.0, 2.0))
+    return predictor
+
+
 def _beyond_one(p: dict, m: dict) -> list[float]:
     return [float(np.clip((_toward(p, m) or 0.0) - 1.0, 0.0, 2.0))]
 
@@ -162,6 +173,8 @@ CANDIDATES: dict[str, tuple] = {
                                                             False, False) for t in (0.25, 0.5)},
     **{f"both runs agree by {t:g}, refitted": (_both_runs(True, t), False, False) for t in (0.25, 0.5)},
     "both runs agree by 0.5, recalibrated": (_recalibrated(0.5), False, False),
+    **{f"present, left-out segments ordered by the larger shift, gamma {g:g}": (_ordered_left_out(g), False, False)
+       for g in (1.0, 3.0)},
 }
 _FIXED = [c[0] for c in CANDIDATES.values() if getattr(c[0], "__name__", "") == "predictor"]
 
