@@ -70,10 +70,12 @@ SchedulerOption = Annotated[
 ScreenForwardRunOption = Annotated[
     bool,
     typer.Option("--forward-run/--no-forward-run",
-                 help="Read the landscape evidence beside the near-divide measures: one forward run of the whole "
-                      "DEM under its steady balance (0.3 response times) and the hilltop curvature next to each "
-                      "segment (default; fewer alarms in steady landscapes on the regional benchmark, "
-                      "docs/validation.md). --no-forward-run: the near-divide measures alone, a few seconds sooner."),
+                 help="Read the landscape evidence beside the near-divide measures: two forward runs of the whole "
+                      "DEM under its steady balance (0.3 response times; one uplift rate, and one per outlet basin) "
+                      "and the hilltop curvature next to each segment (default; fewer alarms in steady landscapes "
+                      "on the regional benchmark, docs/validation.md; instability is then a ranking score). "
+                      "--no-forward-run: the near-divide measures alone (a calibrated probability), a few seconds "
+                      "sooner."),
 ]
 TopOption = Annotated[int, typer.Option("--top", min=0, metavar="N", help="Segments listed on the terminal.")]
 
