@@ -4,7 +4,7 @@ The cases come from :mod:`divides.model.regional_benchmark`: a ridge between the
 east edges grown with the project's forward model, long along the divide, several outlet
 basins per side; the truth is measured by continuing the run (docs/validation.md,
 *Regional screening*). The fast tests grow one steady case small (120 x 96 cells) from its
-seed; the slow ones run the held-out cases of the validation (master seeds 1 and 2).
+seed; the slow ones run the held-out cases of the validation (master seeds 1-4).
 """
 
 from __future__ import annotations
@@ -118,18 +118,20 @@ def test_no_false_alarm_on_a_steady_landscape(steady):
     assert scored["alarms"] == 0
 
 
-def _forward_shifts(result) -> np.ndarray:
-    return np.abs([np.nan if s["forward_shift_cells"] is None else s["forward_shift_cells"] for s in result.segments])
+def _forward_shifts(result, key: str = "forward_shift_cells") -> np.ndarray:
+    return np.abs([np.nan if s[key] is None else s[key] for s in result.segments])
 
 
-def test_the_forward_run_barely_moves_a_steady_landscape(steady):
-    # At steady state under uniform forcing the divide does not move (Willett et al. 2014): the run of the
-    # whole DEM under its steady balance moves half of the segments it measures less than the 0.1 model cell
-    # a shift is read at (FORWARD_NOISE_CELLS) and none by a model cell (the grid's resolution).
+@pytest.mark.parametrize("key", ["forward_shift_cells", "forward_shift_basin_cells"])
+def test_the_forward_run_barely_moves_a_steady_landscape(steady, key):
+    # At steady state under uniform forcing the divide does not move (Willett et al. 2014): either run of the
+    # whole DEM under its steady balance (one uplift rate; one per outlet basin) measures nearly every segment
+    # (not one whose basins the run merges: NaN) and moves half of those it measures less than the 0.1 model
+    # cell a shift is read at (FORWARD_NOISE_CELLS) and none by a model cell (the grid's resolution).
     _, result, _, _ = steady
-    shifts = _forward_shifts(result)
+    shifts = _forward_shifts(result, key)
     measured = shifts[np.isfinite(shifts)]
-    assert measured.size >= 10
+    assert measured.size >= 10 and measured.size >= 0.9 * shifts.size
     assert np.median(measured) < 0.1 and measured.max() < 1.0
 
 
@@ -217,8 +219,8 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
     # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2) and 0.131
-    # against 0.150 (seed 4) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181 against 0.163 and 0.232
-    # against 0.209; docs/validation.md).
+    # against 0.150 (seed 4) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
+    # against 0.163 and 0.232 against 0.209; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
