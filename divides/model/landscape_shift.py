@@ -209,12 +209,11 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
     for balance in balances:
         if balance == "channels":
             area = start.flow.area.ravel()[start.cells]
-            uplift = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
-            runs.append(run_from(start, uplift=uplift, diffusivity=0.0, n=n, u_scale=uplift, s_ref=s_ref,
-                                 horizon_tau=horizon_tau, max_steps=max_steps))
-            continue
-        uplift, diffusivity = steady_uplift(start, n, per_basin=balance == "steady-basins")
-        u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
+            uplift = u_scale = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
+            diffusivity = 0.0
+        else:
+            uplift, diffusivity = steady_uplift(start, n, per_basin=balance == "steady-basins")
+            u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
         runs.append(run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
                              horizon_tau=horizon_tau, max_steps=max_steps))
     return runs
