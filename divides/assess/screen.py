@@ -15,7 +15,7 @@ from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
 from divides.assess.hilltops import hilltop_contrast
-from divides.assess.verdict import CAUTION, decide, forward_agrees
+from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
@@ -28,8 +28,7 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "evidence_features", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS",
-           "forward_agrees"]
+           "evidence_features", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 
 import divides
-from divides.assess.screen import INSTABILITY_EVIDENCE, INSTABILITY_SCALING, forward_agrees, screen
+from divides.assess.screen import INSTABILITY_EVIDENCE, INSTABILITY_SCALING, screen
+from divides.assess.verdict import forward_agrees
 
 OPTIONS = dict(theta=0.1, closed_edges=("north", "south"), channel_area_m2=3e4, workers=1, level="outlets")
 
