@@ -28,7 +28,8 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "evidence_features", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS"]
+           "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
+           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -70,6 +71,13 @@ INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-
 #: :data:`INSTABILITY_EVIDENCE`: a divide moving 2 cells per response time (the benchmark's "moving")
 #: covers 0.6 cell over the runs' 0.3 response times. Chosen against 0.25 on training cases (round 11).
 RUNS_AGREE_CELLS = 0.5
+
+#: With the landscape evidence, segments scored below this rank after every other judged segment, ordered by
+#: the one-uplift-rate run's shift toward the favoured side (:func:`rank_key`). Below it the score no longer
+#: tells moving divides from still ones: it is set by logit p and h many logits under any meaningful value.
+#: Chosen against 0.5 and against the smaller or larger of both runs' shifts on 57 training cases by a rule
+#: written beforehand (docs/validation.md, *Regional screening*, round 14).
+RUN_ORDER_BELOW = 0.01
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -372,12 +380,44 @@ def evidence_features(probabilities: dict, evidence: dict) -> tuple[float, float
     ``forward_shift_basin_cells`` (one rate per outlet basin), model cells into b; None or NaN when not measured.
     """
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
-    favoured = float((pb > pa) - (pb < pa))  # +1 toward b, -1 toward a, 0 on a tie
+    favoured = _favoured(probabilities)
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
     shifts = [_finite(evidence.get(k)) for k in ("forward_shift_cells", "forward_shift_basin_cells")]
     agrees = float(favoured != 0 and all(s is not None and favoured * s >= RUNS_AGREE_CELLS for s in shifts))
     return math.log(p / (1.0 - p)), favoured * hill, agrees
+
+
+def rank_key(instability: float | None, probabilities: dict | None, evidence: dict | None = None) -> tuple:
+    """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
+
+    Segments rank by instability; with the landscape ``evidence`` (as :func:`instability_of`), those
+    scored below :data:`RUN_ORDER_BELOW` rank after the rest, by the one-uplift-rate run's shift
+    toward the side the decision favours (larger first; unmeasured or a tie after measured; then by
+    instability). Unknown instability (None) ranks last.
+
+    Examples
+    --------
+    >>> pulled = {"forward_shift_cells": 1.5}  # 1.5 cells into b, the favoured side
+    >>> still = {"forward_shift_cells": 0.1}
+    >>> toward_b = {"a": 0.05, "b": 0.85, "stable": 0.1}
+    >>> rank_key(1e-6, toward_b, pulled) < rank_key(1e-3, toward_b, still) < rank_key(None, None)
+    True
+    >>> rank_key(0.3, toward_b, still) < rank_key(1e-3, toward_b, pulled)
+    True
+    """
+    if instability is None:
+        return (2, 0.0, 0.0)
+    if evidence is None or instability >= RUN_ORDER_BELOW:
+        return (0, -instability, 0.0)
+    favoured, shift = _favoured(probabilities or {}), _finite(evidence.get("forward_shift_cells"))
+    toward = favoured * shift if shift is not None and favoured != 0 else None
+    return (1, math.inf if toward is None else -toward, -instability)
+
+
+def _favoured(probabilities: dict) -> float:
+    """+1.0 when the decision favours motion toward b, -1.0 toward a, 0.0 on a tie."""
+    pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
+    return float((pb > pa) - (pb < pa))
 
 
 def _finite(v: float | None) -> float | None:
@@ -521,7 +561,8 @@ def screen(
         Judged segments ranked by instability (:func:`instability_of`: P(toward a) + P(toward b)
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
-        when it abstained for insufficient data); every other stretch of divide between two
+        when it abstained for insufficient data; with the forward run, segments scored below
+        :data:`RUN_ORDER_BELOW` by the run's shift, :func:`rank_key`); every other stretch of divide between two
         basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
         outlet basins.
     """
@@ -584,8 +625,9 @@ def screen(
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
-    # ranked by the probability of motion; abstentions for insufficient data (unknown) last
-    rows.sort(key=lambda r: (r["instability"] is None, -(r["instability"] or 0.0), -r["seg"].line.length_m))
+    # ranked by the score (below RUN_ORDER_BELOW by the run's shift); abstentions for insufficient data last
+    rows.sort(key=lambda r: (*rank_key(r["instability"], r["probabilities"], r if config.forward_run else None),
+                             -r["seg"].line.length_m))
     out = []
     for rank, r in enumerate(rows, start=1):
         seg = r["seg"]

@@ -13,7 +13,9 @@ The candidates are those of the fourth to thirteenth rounds of docs/validation.m
 ``shipped now`` is screen.instability_of as it is (round 11's winner), ``shipped before round 11`` its
 coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is
 refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
-(it keeps the fit finite where the data nearly separate). Give it training cases only.
+(it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the segments
+too (round 14: below a score t, by a landscape run's shift); "by instability" (default) is the order of
+rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
 """
 
 from __future__ import annotations
@@ -32,6 +34,7 @@ from divides.assess.screen import (
     INSTABILITY_SCALING,
     evidence_features,
     instability_of,
+    rank_key,
 )
 from divides.model.regional_benchmark import raises_alarm, ranking_targets
 
@@ -233,9 +236,48 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 
-def targets(case: dict) -> dict:
+def _run_key(pick: Callable[[list[float]], float] | None) -> Callable[[dict], float]:
+    """A segment's runs' shift toward the favoured side: the one-U run's (``pick`` None) or ``pick`` of both
+    measured ones; -inf when unmeasured or without probabilities."""
+    def key(m):
+        p = m["probabilities"]
+        if p is None:
+            return -math.inf
+        if pick is None:
+            s = _toward(p, m)
+            return -math.inf if s is None else s
+        both = [_toward(p, m, k) for k in ("forward_shift_cells", "forward_shift_basin_cells")]
+        return pick(both) if None not in both else -math.inf
+    return key
+
+
+#: round 14: name -> (t, run key); segments scored below t rank after the others, by the run key (larger first).
+#: "by instability" is the ranking of rounds 4-13; "shipped" is screen.rank_key (round 14's winner, K2 below 0.01).
+RANKINGS: dict[str, tuple[float, Callable[[dict], float]] | None | str] = {
+    "by instability": None,
+    "shipped": "shipped",
+    **{f"{name}, below {t:g}": (t, _run_key(pick)) for t in (0.01, 0.5)
+       for name, pick in (("K1 smaller of both runs", min), ("K2 one-U run", None), ("K3 larger of both runs", max))},
+}
+
+
+def order_key(ranking: str) -> Callable[[dict], tuple]:
+    """The sort key of a round-14 ranking over segments whose instability is in ``_i``."""
+    rule = RANKINGS[ranking]
+
+    def key(m):
+        i = m["_i"]
+        if rule == "shipped":
+            return (*rank_key(i, m["probabilities"], m), m["rank"])
+        if rule is None or i is None or i >= rule[0]:
+            return (i is None, 0, -(i or 0.0), 0.0, m["rank"])
+        return (False, 1, -rule[1](m), -i, m["rank"])
+    return key
+
+
+def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
-    ranked = sorted(case["main"], key=lambda m: (m["_i"] is None, -(m["_i"] or 0.0), m["rank"]))
+    ranked = sorted(case["main"], key=order_key(ranking))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
     out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
     steady = case["family"].startswith("steady_")
@@ -254,6 +296,8 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
     parser.add_argument("--candidates", nargs="*", default=list(CANDIDATES), choices=list(CANDIDATES))
+    parser.add_argument("--rankings", nargs="*", default=["by instability"], choices=list(RANKINGS),
+                        help="orders of the segments (round 14), each scored with every candidate")
     args = parser.parse_args()
     rows = []
     for name in args.files:
@@ -261,26 +305,29 @@ def main() -> None:
             rows += [json.loads(line) for line in fh]
     print(f"{len(rows)} cases; the P-only scaling for unmeasured shifts: {INSTABILITY_SCALING}")
     for candidate in args.candidates:
-        results = []
+        results: dict[str, list[dict]] = {r: [] for r in args.rankings}
         for case in rows:
             others = [r for r in rows if r is not case]
             w = {k: fit(others, k, candidate) for k in KINDS}
             for m in case["main"] + case.get("lateral", []) + case["others"]:
                 m["_i"] = instability(m, w.get(_kind(m)), candidate)
-            results.append(targets(case))
-        top = [v["top"] for v in results if v["top"] is not None]
-        order = [v["order"] for v in results if v["order"] is not None]
-        steady = [v["alarm_ok"] for v in results if v["alarm_ok"] is not None]
+            for ranking in args.rankings:
+                results[ranking].append(targets(case, ranking))
         m, lat = scores(rows, "main"), scores(rows, "lateral")
         full = {k: fit(rows, k, candidate) for k in KINDS}
-        print(f"{candidate}: targets {sum(top) + sum(order) + sum(steady)} (top {sum(top)}/{len(top)}, order "
-              f"{sum(order)}/{len(order)}, steady without alarm {sum(steady)}/{len(steady)}, alarms in steady "
-              f"landscapes {sum(v['alarms'] for v in results if v['alarms'] is not None)}); main log loss "
-              f"{m['log_loss']:.3f}, AUC {m['auc']:.3f}, ECE {m['ece']:.3f} ({m['n']} segments, {m['moving']} moving); "
-              f"lateral {lat['log_loss']:.3f}, {lat['auc']:.3f}, {lat['ece']:.3f} ({lat['n']}, {lat['moving']}); "
-              "fitted on all: " + "; ".join(f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w))
-                                            for k, w in full.items()), flush=True)
-
+        for ranking, res in results.items():
+            top = [v["top"] for v in res if v["top"] is not None]
+            order = [v["order"] for v in res if v["order"] is not None]
+            steady = [v["alarm_ok"] for v in res if v["alarm_ok"] is not None]
+            name = candidate if ranking == "by instability" else f"{candidate}, ranked {ranking}"
+            print(f"{name}: targets {sum(top) + sum(order) + sum(steady)} (top {sum(top)}/{len(top)}, order "
+                  f"{sum(order)}/{len(order)}, steady without alarm {sum(steady)}/{len(steady)}, alarms in steady "
+                  f"landscapes {sum(v['alarms'] for v in res if v['alarms'] is not None)}); main log loss "
+                  f"{m['log_loss']:.3f}, AUC {m['auc']:.3f}, ECE {m['ece']:.3f} ({m['n']} segments, {m['moving']} "
+                  f"moving); lateral {lat['log_loss']:.3f}, {lat['auc']:.3f}, {lat['ece']:.3f} ({lat['n']}, "
+                  f"{lat['moving']}); fitted on all: " + "; ".join(
+                      f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w)) for k, w in full.items()),
+                  flush=True)
 
 if __name__ == "__main__":
     main()
