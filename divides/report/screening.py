@@ -327,11 +327,14 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "present surface is the model's steady state, one uplift rate for the DEM and one per outlet basin; "
            "Perron et al. 2009) move each segment by the area its two basins exchange next to it, and the "
            "curvature of the hilltops next to it says which side lowers faster (E = −D ∇²z; Roering et al. "
-           "2007). The instability then reads whether both runs move the segment at least half a model cell the "
-           "way the near-divide measures point, and whether the hilltops agree (Gilbert 1877; Royden &amp; "
+           "2007). The instability then reads whether the one-uplift-rate run moves the segment at least half a "
+           "model cell the way the near-divide measures point without the per-basin run moving it as far the "
+           "other way, and whether the hilltops agree (Gilbert 1877; Royden &amp; "
            "Perron 2013). With this evidence the instability is a score that ranks the segments, not a "
            "calibrated probability: a segment the runs do not move gets little even when it moves (its "
-           "reliability on held-out model landscapes is in docs/validation.md). " if p.get("forward_run")
+           "reliability on held-out model landscapes is in docs/validation.md). Segments scored below 0.01 "
+           "rank after the rest, furthest moved toward the favoured side by the one-uplift-rate run first. "
+           if p.get("forward_run")
            else "") +
         "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
         "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")

@@ -9,10 +9,10 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to thirteenth rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 11's winner), ``shipped before round 11`` its
-coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is
-refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
+The candidates are those of the fourth to seventeenth rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 17's winner; "both runs agree by 0.5, shipped
+coefficients" is round 11's), ``shipped before round 11`` its coefficients with the run term they were fitted
+with (the one-U run agreeing by 0.1 cell); neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
 (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the segments
 too (round 14: below a score t, by a landscape run's shift); "by instability" (default) is the order of
 rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
@@ -90,11 +90,11 @@ def _with_shift(gate: bool) -> Callable[[dict, dict], list[float]]:
     return features
 
 
-def _split(t: float) -> Callable[[dict, dict], list[float]]:
-    """A logistic model on (logit p, h) of its own where the run moves the divide >= t cells toward the
-    favoured side, and another where it does not (the interaction with the agreement r)."""
+def _split(t: float, both: bool = False) -> Callable[[dict, dict], list[float]]:
+    """A logistic model on (logit p, h) of its own where the run (``both``: both runs) moves the divide >= t cells
+    toward the favoured side, and another where it does not (the interaction with the agreement r)."""
     def features(p, m):
-        (lp, h), r = _lp_h(p, m), _agrees(p, m, t)
+        (lp, h), r = _lp_h(p, m), (_both_agree(p, m, t) if both else _agrees(p, m, t))
         return [r, r * lp, r * h, (1.0 - r) * lp, (1.0 - r) * h]
     return features
 
@@ -179,7 +179,35 @@ CANDIDATES: dict[str, tuple] = {
     **{f"present, left-out segments ordered by the larger shift, gamma {g:g}": (_ordered_left_out(g), False, False)
        for g in (1.0, 3.0)},
 }
+
+#: Round 15: the main divide's instability as shipped, the lateral one's refitted: (logit p, h, r) with r both runs
+#: agreeing by 0.5 cell (L1), or one model of (logit p, h) per side of that agreement (L2).
+CANDIDATES.update({
+    "lateral refitted with both runs agreeing by 0.5 (L1)": ({"main": "now", "lateral": _both_runs(True, 0.5)},
+                                                             False, False),
+    "lateral split by both runs agreeing by 0.5 (L2)": ({"main": "now", "lateral": _split(0.5, both=True)},
+                                                        False, False),
+})
+
+
+def _not_contradicted(c: float, strict: bool) -> Callable[[dict, dict], float]:
+    """Round 16: 1.0 when the one-U run moves the divide >= 0.5 cell toward the favoured side and the per-basin run's
+    shift toward it is >= c (> c when ``strict``; unmeasured: 0.0)."""
+    def r(p, m):
+        t2 = _toward(p, m, "forward_shift_basin_cells")
+        return _agrees(p, m, 0.5) * float(t2 is not None and (t2 > c if strict else t2 >= c))
+    return r
+
+
+CANDIDATES.update({f"one-U run agrees by 0.5, per-basin run's shift {'>' if strict else '>='} {c:g}": (
+    _shipped_with(_not_contradicted(c, strict)), False, False) for c, strict in ((-0.5, True), (-0.25, False), (0.0, False))})
 _FIXED = [c[0] for c in CANDIDATES.values() if getattr(c[0], "__name__", "") == "predictor"]
+
+
+def _of_kind(candidate: str, kind: str | None) -> tuple:
+    """The candidate's (features, offset, fallback) for one kind of divide (round 15 gives each kind its own)."""
+    features, offset, fallback = CANDIDATES[candidate]
+    return (features.get(kind, "now") if isinstance(features, dict) else features), offset, fallback
 
 
 def _kind(m: dict) -> str | None:
@@ -195,7 +223,7 @@ def _labelled(rows: list[dict]):
 
 def fit(rows: list[dict], kind: str, candidate: str) -> np.ndarray | None:
     """The candidate's coefficients for one kind of divide (None when nothing is fitted)."""
-    features, offset, fallback = CANDIDATES[candidate]
+    features, offset, fallback = _of_kind(candidate, kind)
     if features == "now" or features in _FIXED:
         return None
     data = [(features(m["probabilities"], m), y, _OLD(m["probabilities"], m, kind) if offset else 0.0)
@@ -223,7 +251,7 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
     p, kind = m["probabilities"], _kind(m)
     if p is None or kind not in KINDS:
         return m["instability"]
-    features, offset, fallback = CANDIDATES[candidate]
+    features, offset, fallback = _of_kind(candidate, kind)
     if fallback and _shift(m) is None:
         return instability_of(p, kind)
     if features == "now":
