@@ -80,7 +80,8 @@ RUNS_AGREE_CELLS = 0.5
 #: the one-uplift-rate run's shift toward the favoured side (:func:`rank_key`). Below it the score no longer
 #: tells moving divides from still ones: it is set by logit p and h many logits under any meaningful value.
 #: Chosen against 0.5 and against the smaller or larger of both runs' shifts on 57 training cases by a rule
-#: written beforehand (docs/validation.md, *Regional screening*, round 14).
+#: written beforehand (docs/validation.md, *Regional screening*, round 14). Segments the decision abstained on
+#: join them when the runs move their divide (round 18, on 105 training cases: order target 18/27 against 14/27).
 RUN_ORDER_BELOW = 0.01
 
 #: Why divides between tributaries of the same trunk are not judged.
@@ -399,7 +400,9 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
     Segments rank by instability; with the landscape ``evidence`` (as :func:`instability_of`), those
     scored below :data:`RUN_ORDER_BELOW` rank after the rest, by the one-uplift-rate run's shift
     toward the side the decision favours (larger first; unmeasured or a tie after measured; then by
-    instability). Unknown instability (None) ranks last.
+    instability). Unknown instability (None: the decision abstained) ranks last, unless that run moves
+    the divide at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move it as far the other
+    way: then it joins the segments scored below :data:`RUN_ORDER_BELOW`, by the size of that shift.
 
     Examples
     --------
@@ -410,14 +413,26 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
     True
     >>> rank_key(0.3, toward_b, still) < rank_key(1e-3, toward_b, pulled)
     True
+    >>> moved = {"forward_shift_cells": -1.0, "forward_shift_basin_cells": -0.4}  # 1 and 0.4 cell into a
+    >>> rank_key(1e-3, toward_b, pulled) < rank_key(None, None, moved) < rank_key(1e-3, toward_b, still)
+    True
     """
     if instability is None:
-        return (2, 0.0, 0.0)
+        return (1, -abs(shift), 0.0) if evidence is not None and (shift := _run_moves(evidence)) else (2, 0.0, 0.0)
     if evidence is None or instability >= RUN_ORDER_BELOW:
         return (0, -instability, 0.0)
     favoured, shift = _favoured(probabilities or {}), _finite(evidence.get("forward_shift_cells"))
     toward = favoured * shift if shift is not None and favoured != 0 else None
     return (1, math.inf if toward is None else -toward, -instability)
+
+
+def _run_moves(evidence: dict) -> float | None:
+    """The one-uplift-rate run's shift of a segment the decision abstained on, when it is at least
+    :data:`RUNS_AGREE_CELLS` and the per-basin run does not move the divide as far the other way; else None."""
+    one_u, per_basin = (_finite(evidence.get(k)) for k in ("forward_shift_cells", "forward_shift_basin_cells"))
+    if one_u is None or per_basin is None or abs(one_u) < RUNS_AGREE_CELLS:
+        return None
+    return one_u if math.copysign(1.0, one_u) * per_basin > -RUNS_AGREE_CELLS else None
 
 
 def _favoured(probabilities: dict) -> float:

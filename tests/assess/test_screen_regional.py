@@ -71,13 +71,17 @@ def test_coverage_and_every_stretch_accounted_for(steady):
 def test_ranks_follow_the_documented_order(steady):
     # docs/methods.md §7b, re-derived here: segments scored >= 0.01 rank by score; those below (20 of 31 here,
     # 19 with a measured run) after them, by the one-U run's shift toward the side the decision favours
-    # (unmeasured or no side favoured after), then by score; unknown last; ties by length. Here the order differs
-    # from the score's alone.
+    # (unmeasured or no side favoured after), then by score; unknown last, unless the one-U run moves the divide
+    # half a cell or more and the per-basin run does not move it as far the other way (then among those below
+    # 0.01, by the size of that shift); ties by length. Here the order differs from the score's alone.
     _, result, _, _ = steady
 
     def key(s):
         i, p = s["instability"], s["probabilities"]
         if i is None:
+            one_u, per_basin = s["forward_shift_cells"], s["forward_shift_basin_cells"]
+            if one_u is not None and per_basin is not None and abs(one_u) >= 0.5 and np.sign(one_u) * per_basin > -0.5:
+                return (1, -abs(one_u), 0.0, -s["length_m"])
             return (2, 0.0, 0.0, -s["length_m"])
         if i >= 0.01:
             return (0, -i, 0.0, -s["length_m"])
@@ -179,11 +183,11 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seeds 3 and 4,
-#: kept unseen until the shipped screening (round 11) was fixed; seeds 1 and 2, fresh for earlier defaults (seed
-#: 1's held-out cases were among the training cases of round 11, seed 2's were not). Master seed 0's held-out
-#: cases informed the second round of choices and are not used here.
-HELD_OUT_SEEDS = (1, 2, 3, 4)
+#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 6, kept unseen
+#: until the shipped screening (round 17) was fixed; seeds 1-5, fresh for earlier defaults (seed 1's held-out
+#: cases were among the training cases of rounds 4-17, seed 5's among those of rounds 15-17). Master seed 0's
+#: held-out cases informed the second round of choices and are not used here.
+HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6)
 
 
 @functools.lru_cache(maxsize=None)
@@ -232,18 +236,19 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # Lateral outlet-basin segments against the area their pair of basins exchanged: with their own Platt
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
     # (calibration in the large; common practice): 0.083 against 0.061 (seed 1), 0.086 against 0.054
-    # (seed 2), 0.098 against 0.131 (seed 3) and 0.071 against 0.039 (seed 4) when written.
+    # (seed 2), 0.098 against 0.131 (seed 3), 0.071 against 0.039 (seed 4), 0.063 against 0.041 (seed 5) and
+    # 0.073 against 0.052 (seed 6) when written.
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, _known_miss(3, "the main divide's scaling scores 0.209 against the "
-                                                       "lateral segments' own 0.232"), 4])
+                                                       "lateral segments' own 0.232"), 4, 5, 6])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
-    # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2) and 0.131
-    # against 0.150 (seed 4) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
+    # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
+    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5) and 0.140 against 0.151 (seed 6) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
     # against 0.163 and 0.232 against 0.209; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
@@ -251,31 +256,43 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (case 0 ranks a still segment "
-                                                 "second)"), 2, 3, 4])
+@pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (partial_base_level_fall case 0 "
+                                                 "ranks a still segment among its first)"), 2, 3, 4,
+                                  _known_miss(5, "top target in 7 of 8 cases (partial_base_level_fall case 8: "
+                                                 "no main segment scored 0.01 or more, the first lies in a still "
+                                                 "stretch)"), 6])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
-    # 45 degrees of the measured motion; 8 of 8, 3 of 3 and 4 of 4 transient cases of seeds 2, 3 and 4 when
-    # written.
+    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 4 of 4 and 5 of 5 transient cases of seeds 2, 3, 4
+    # and 6 when written.
     assert all(r["top_ok"] is not False for r in _held_out(seed))
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", HELD_OUT_SEEDS)
+@pytest.mark.parametrize("seed", [1, 2, 3, 4,
+                                  _known_miss(5, "2 of 4 steady cases without an alarm (one lateral segment each "
+                                                 "in steady_uplift_contrast case 5 and steady_runoff_contrast "
+                                                 "case 23)"),
+                                  _known_miss(6, "6 of 8 steady cases without an alarm (one lateral segment each "
+                                                 "in steady_uplift_contrast case 5, 0.70, and "
+                                                 "steady_erodibility_contrast case 22, 0.59)")])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
     # 7 of 7, 3 of 3 and 8 of 8 steady cases of seeds 1-4 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before
-    # both landscape runs had to agree).
+    # the run had to move a segment half a cell, round 11).
     assert all(r["alarm_ok"] for r in _held_out(seed))
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [_known_miss(1, "order in 1 of 3 cases (partial_base_level_fall case 0, "
-                                                 "erodibility_patch case 1)"),
-                                  _known_miss(2, "order in 2 of 4 cases (erodibility_patch case 1, "
-                                                 "partial_base_level_fall case 8)"),
-                                  _known_miss(3, "order in 0 of 2 cases (partial_base_level_fall case 0: 4 pairs; "
-                                                 "erodibility_patch case 9: 9 pairs)"),
-                                  _known_miss(4, "order in 1 of 2 cases (erodibility_patch case 17: 4 pairs)")])
+@pytest.mark.parametrize("seed", [_known_miss(1, "order in 2 of 3 cases (erodibility_patch case 1: 24 pairs)"),
+                                  _known_miss(2, "order in 2 of 4 cases (erodibility_patch case 1: 11 pairs, "
+                                                 "partial_base_level_fall case 8: 28)"),
+                                  _known_miss(3, "order in 0 of 2 cases (partial_base_level_fall case 0: 18 pairs; "
+                                                 "erodibility_patch case 9: 12)"),
+                                  _known_miss(4, "order in 1 of 2 cases (erodibility_patch case 17: 10 pairs)"),
+                                  _known_miss(5, "order in 3 of 5 cases (erodibility_patch case 1: 6 pairs, "
+                                                 "partial_base_level_fall case 8: 1)"),
+                                  _known_miss(6, "order in 0 of 4 cases (erodibility_patch cases 1 and 17: 16 and "
+                                                 "36 pairs, partial_base_level_fall cases 8 and 16: 2 and 20)")])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     assert all(r["order_ok"] is not False for r in _held_out(seed))

@@ -289,12 +289,35 @@ RANKINGS: dict[str, tuple[float, Callable[[dict], float]] | None | str] = {
 }
 
 
+def _unknown_joins(variant: str) -> Callable[[dict], float | None]:
+    """Round 18: the one-U run's |shift| of an unknown segment that joins the tier below 0.01, else None.
+    U1: the per-basin run does not move it >= 0.5 cell the other way; U2: U1 and |shift| >= 0.5; U3: measured."""
+    def key(m):
+        s1, s2 = _shift(m), _shift(m, "forward_shift_basin_cells")
+        if s1 is None or s1 == 0.0:
+            return None
+        if variant == "U3":
+            return abs(s1)
+        if s2 is None or math.copysign(1.0, s1) * s2 <= -0.5 or (variant == "U2" and abs(s1) < 0.5):
+            return None
+        return abs(s1)
+    return key
+
+
+RANKINGS.update({f"shipped, unknown segments by the run ({v})": ("unknown", _unknown_joins(v)) for v in ("U1", "U2", "U3")})
+
+
 def order_key(ranking: str) -> Callable[[dict], tuple]:
     """The sort key of a round-14 ranking over segments whose instability is in ``_i``."""
     rule = RANKINGS[ranking]
 
     def key(m):
         i = m["_i"]
+        if isinstance(rule, tuple) and rule[0] == "unknown":
+            joins = rule[1](m) if i is None else None
+            if joins is not None:
+                return (1, -joins, 0.0, m["rank"])
+            return (*rank_key(i, m["probabilities"], m), m["rank"])
         if rule == "shipped":
             return (*rank_key(i, m["probabilities"], m), m["rank"])
         if rule is None or i is None or i >= rule[0]:
