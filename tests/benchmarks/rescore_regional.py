@@ -201,6 +201,31 @@ def _not_contradicted(c: float, strict: bool) -> Callable[[dict, dict], float]:
 
 CANDIDATES.update({f"one-U run agrees by 0.5, per-basin run's shift {'>' if strict else '>='} {c:g}": (
     _shipped_with(_not_contradicted(c, strict)), False, False) for c, strict in ((-0.5, True), (-0.25, False), (0.0, False))})
+
+
+def _present_r(p: dict, m: dict) -> float:
+    """The shipped r (round 17): screen.evidence_features' third value."""
+    return evidence_features(p, m)[2]
+
+
+def _lateral_present(p: dict, m: dict) -> list[float]:
+    return [*_lp_h(p, m), _present_r(p, m)]
+
+
+def _lateral_no_hill(p: dict, m: dict) -> list[float]:
+    return [_lp_h(p, m)[0], _present_r(p, m)]
+
+
+def _lateral_split_present(p: dict, m: dict) -> list[float]:
+    (lp, h), r = _lp_h(p, m), _present_r(p, m)
+    return [r, r * lp, r * h, (1.0 - r) * lp, (1.0 - r) * h]
+
+
+#: Round 19: the main divide's instability as shipped, the lateral one's refitted with the present r.
+CANDIDATES.update({name: ({"main": "now", "lateral": f}, False, False) for name, f in (
+    ("lateral refitted with the present r (M1)", _lateral_present),
+    ("lateral refitted with the present r, no hilltops (M2)", _lateral_no_hill),
+    ("lateral split by the present r (M3)", _lateral_split_present))})
 _FIXED = [c[0] for c in CANDIDATES.values() if getattr(c[0], "__name__", "") == "predictor"]
 
 
