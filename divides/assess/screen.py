@@ -81,7 +81,8 @@ RUNS_AGREE_CELLS = 0.5
 #: tells moving divides from still ones: it is set by logit p and h many logits under any meaningful value.
 #: Chosen against 0.5 and against the smaller or larger of both runs' shifts on 57 training cases by a rule
 #: written beforehand (docs/validation.md, *Regional screening*, round 14). Segments the decision abstained on
-#: join them when the runs move their divide (round 18, on 105 training cases: order target 18/27 against 14/27).
+#: join them when the runs move their divide (round 18, on 105 training cases: order target 18/27 against 14/27);
+#: segments the run did not measure come first among them (round 20, 129 cases: 24/34 against 20/34).
 RUN_ORDER_BELOW = 0.01
 
 #: Why divides between tributaries of the same trunk are not judged.
@@ -399,8 +400,8 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
 
     Segments rank by instability; with the landscape ``evidence`` (as :func:`instability_of`), those
     scored below :data:`RUN_ORDER_BELOW` rank after the rest, by the one-uplift-rate run's shift
-    toward the side the decision favours (larger first; unmeasured or a tie after measured; then by
-    instability). Unknown instability (None: the decision abstained) ranks last, unless that run moves
+    toward the side the decision favours (larger first; unmeasured or no side favoured before measured:
+    no run evidence is not evidence of stillness; then by instability). Unknown instability (None: the decision abstained) ranks last, unless that run moves
     the divide at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move it as far the other
     way: then it joins the segments scored below :data:`RUN_ORDER_BELOW`, by the size of that shift.
 
@@ -411,7 +412,7 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
     >>> toward_b = {"a": 0.05, "b": 0.85, "stable": 0.1}
     >>> rank_key(1e-6, toward_b, pulled) < rank_key(1e-3, toward_b, still) < rank_key(None, None)
     True
-    >>> rank_key(0.3, toward_b, still) < rank_key(1e-3, toward_b, pulled)
+    >>> rank_key(0.3, toward_b, still) < rank_key(1e-3, toward_b, {}) < rank_key(1e-3, toward_b, pulled)
     True
     >>> moved = {"forward_shift_cells": -1.0, "forward_shift_basin_cells": -0.4}  # 1 and 0.4 cell into a
     >>> rank_key(1e-3, toward_b, pulled) < rank_key(None, None, moved) < rank_key(1e-3, toward_b, still)
@@ -423,7 +424,7 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
         return (0, -instability, 0.0)
     favoured, shift = _favoured(probabilities or {}), _finite(evidence.get("forward_shift_cells"))
     toward = favoured * shift if shift is not None and favoured != 0 else None
-    return (1, math.inf if toward is None else -toward, -instability)
+    return (1, -math.inf if toward is None else -toward, -instability)
 
 
 def _run_moves(evidence: dict) -> float | None:

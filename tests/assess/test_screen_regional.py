@@ -71,7 +71,7 @@ def test_coverage_and_every_stretch_accounted_for(steady):
 def test_ranks_follow_the_documented_order(steady):
     # docs/methods.md §7b, re-derived here: segments scored >= 0.01 rank by score; those below (20 of 31 here,
     # 19 with a measured run) after them, by the one-U run's shift toward the side the decision favours
-    # (unmeasured or no side favoured after), then by score; unknown last, unless the one-U run moves the divide
+    # (unmeasured or no side favoured first), then by score; unknown last, unless the one-U run moves the divide
     # half a cell or more and the per-basin run does not move it as far the other way (then among those below
     # 0.01, by the size of that shift); ties by length. Here the order differs from the score's alone.
     _, result, _, _ = steady
@@ -87,7 +87,7 @@ def test_ranks_follow_the_documented_order(steady):
             return (0, -i, 0.0, -s["length_m"])
         side = 0.0 if p["a"] == p["b"] else (1.0 if p["b"] > p["a"] else -1.0)
         shift = s["forward_shift_cells"]
-        toward = side * shift if shift is not None and side != 0.0 else -np.inf
+        toward = side * shift if shift is not None and side != 0.0 else np.inf
         return (1, -toward, -i, -s["length_m"])
 
     ranks = [s["rank"] for s in result.segments]
@@ -164,7 +164,7 @@ def test_the_forward_run_barely_moves_a_steady_landscape(steady, key):
 
 
 @pytest.mark.xfail(strict=True, reason="known miss: on the settled small case (regional version 3) one 293-m main "
-                   "segment (rank 29; 22 before round 14) is not measured by the run, under either balance: the "
+                   "segment (rank 10; 22 before round 14) is not measured by the run, under either balance: the "
                    "cells next to it go to a third basin, so none of its length is still shared by its two basins at the end "
                    "(divides.model.tracking.exchange_displacement)")
 def test_the_forward_run_measures_every_segment_of_a_steady_landscape(steady):
@@ -183,11 +183,11 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 6, kept unseen
-#: until the shipped screening (round 17) was fixed; seeds 1-5, fresh for earlier defaults (seed 1's held-out
-#: cases were among the training cases of rounds 4-17, seed 5's among those of rounds 15-17). Master seed 0's
-#: held-out cases informed the second round of choices and are not used here.
-HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6)
+#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 7, kept unseen
+#: until the shipped screening (round 18) was fixed; seeds 1-6, fresh for earlier defaults (seed 1's held-out
+#: cases were among the training cases of rounds 4-19, seeds 5's and 6's among those of rounds 15-19 and 18-19).
+#: Master seed 0's held-out cases informed the second round of choices and are not used here.
+HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7)
 
 
 @functools.lru_cache(maxsize=None)
@@ -236,19 +236,20 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # Lateral outlet-basin segments against the area their pair of basins exchanged: with their own Platt
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
     # (calibration in the large; common practice): 0.083 against 0.061 (seed 1), 0.086 against 0.054
-    # (seed 2), 0.098 against 0.131 (seed 3), 0.071 against 0.039 (seed 4), 0.063 against 0.041 (seed 5) and
-    # 0.073 against 0.052 (seed 6) when written.
+    # (seed 2), 0.098 against 0.131 (seed 3), 0.071 against 0.039 (seed 4), 0.063 against 0.041 (seed 5),
+    # 0.073 against 0.052 (seed 6) and 0.064 against 0.042 (seed 7) when written.
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, _known_miss(3, "the main divide's scaling scores 0.209 against the "
-                                                       "lateral segments' own 0.232"), 4, 5, 6])
+                                                       "lateral segments' own 0.232"), 4, 5, 6, 7])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
     # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
-    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5) and 0.140 against 0.151 (seed 6) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
+    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6) and 0.128 against
+    # 0.131 (seed 7) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
     # against 0.163 and 0.232 against 0.209; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
@@ -260,7 +261,9 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                                  "ranks a still segment among its first)"), 2, 3, 4,
                                   _known_miss(5, "top target in 7 of 8 cases (partial_base_level_fall case 8: "
                                                  "no main segment scored 0.01 or more, the first lies in a still "
-                                                 "stretch)"), 6])
+                                                 "stretch)"), 6,
+                                  _known_miss(7, "top target in 5 of 6 cases (partial_base_level_fall case 8: "
+                                                 "its second-ranked main segment has no direction)")])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
     # 45 degrees of the measured motion; 8 of 8, 3 of 3, 4 of 4 and 5 of 5 transient cases of seeds 2, 3, 4
@@ -275,7 +278,10 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                                  "case 23)"),
                                   _known_miss(6, "6 of 8 steady cases without an alarm (one lateral segment each "
                                                  "in steady_uplift_contrast case 5, 0.70, and "
-                                                 "steady_erodibility_contrast case 22, 0.59)")])
+                                                 "steady_erodibility_contrast case 22, 0.59)"),
+                                  _known_miss(7, "8 of 10 steady cases without an alarm (one lateral segment each "
+                                                 "in steady_symmetric case 12, 0.65, a segment measured moving, and "
+                                                 "steady_uplift_contrast case 13, 0.58)")])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
     # 7 of 7, 3 of 3 and 8 of 8 steady cases of seeds 1-4 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before
@@ -284,15 +290,17 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [_known_miss(1, "order in 2 of 3 cases (erodibility_patch case 1: 24 pairs)"),
-                                  _known_miss(2, "order in 2 of 4 cases (erodibility_patch case 1: 11 pairs, "
-                                                 "partial_base_level_fall case 8: 28)"),
+@pytest.mark.parametrize("seed", [1,
+                                  _known_miss(2, "order in 3 of 4 cases (partial_base_level_fall case 8: 14 pairs)"),
                                   _known_miss(3, "order in 0 of 2 cases (partial_base_level_fall case 0: 18 pairs; "
                                                  "erodibility_patch case 9: 12)"),
                                   _known_miss(4, "order in 1 of 2 cases (erodibility_patch case 17: 10 pairs)"),
-                                  _known_miss(5, "order in 3 of 5 cases (erodibility_patch case 1: 6 pairs, "
-                                                 "partial_base_level_fall case 8: 1)"),
-                                  _known_miss(6, "order in 0 of 4 cases (erodibility_patch cases 1 and 17: 16 and "
-                                                 "36 pairs, partial_base_level_fall cases 8 and 16: 2 and 20)")])
+                                  _known_miss(5, "order in 4 of 5 cases (partial_base_level_fall case 8: 1 pair)"),
+                                  _known_miss(6, "order in 2 of 4 cases (partial_base_level_fall case 8: 2 pairs, "
+                                                 "erodibility_patch case 17: 4)"),
+                                  _known_miss(7, "order in 1 of 4 cases (partial_base_level_fall cases 0 and 16: 5 "
+                                                 "and 1 pairs, erodibility_patch case 1: 4)")])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
+    # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
+    # moving stretch; 3 of 3 transient cases of seed 1 when written (1 of 3 before rounds 14-18's ranking).
     assert all(r["order_ok"] is not False for r in _held_out(seed))

@@ -332,6 +332,10 @@ def _unknown_joins(variant: str) -> Callable[[dict], float | None]:
 RANKINGS.update({f"shipped, unknown segments by the run ({v})": ("unknown", _unknown_joins(v)) for v in ("U1", "U2", "U3")})
 
 
+RANKINGS.update({f"shipped, unmeasured run {name} ({v})": ("unmeasured", key) for v, name, key in (
+    ("V1", "first", -math.inf), ("V2", "as 0", 0.0))})
+
+
 def order_key(ranking: str) -> Callable[[dict], tuple]:
     """The sort key of a round-14 ranking over segments whose instability is in ``_i``."""
     rule = RANKINGS[ranking]
@@ -343,6 +347,11 @@ def order_key(ranking: str) -> Callable[[dict], tuple]:
             if joins is not None:
                 return (1, -joins, 0.0, m["rank"])
             return (*rank_key(i, m["probabilities"], m), m["rank"])
+        if isinstance(rule, tuple) and rule[0] == "unmeasured":  # round 20
+            k = rank_key(i, m["probabilities"], m)
+            if k[0] == 1 and abs(k[1]) == math.inf and i is not None:
+                return (1, rule[1], -i, m["rank"])
+            return (*k, m["rank"])
         if rule == "shipped":
             return (*rank_key(i, m["probabilities"], m), m["rank"])
         if rule is None or i is None or i >= rule[0]:
