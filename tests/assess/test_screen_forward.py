@@ -25,8 +25,8 @@ def _book(west_gradient: float, east_gradient: float, rows: int = 21, cols: int 
 
 def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = None) -> float:
     # The documented models (docs/methods.md §7b): Platt scaling without the landscape evidence, and with it
-    # the logistic model adding the hilltop contrast toward the favoured side and the runs' agreement (the one-U
-    # run moves the divide at least half a model cell toward the favoured side, the per-basin run not as far away).
+    # the logistic model adding the hilltop contrast toward the favoured side and the runs' agreement (both
+    # runs move the divide at least half a model cell toward the favoured side).
     q = p["a"] + p["b"]
     z = math.log(q / (1.0 - q))
     if shifts is None and hill is None:
@@ -34,9 +34,7 @@ def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = 
         return 1.0 / (1.0 + math.exp(-(alpha + beta * z)))
     alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
     favoured = 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
-    one_u, per_basin = shifts
-    agrees = (favoured != 0 and one_u is not None and per_basin is not None and favoured * one_u >= 0.5
-              and favoured * per_basin > -0.5)
+    agrees = favoured != 0 and all(s is not None and favoured * s >= 0.5 for s in shifts)
     return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * favoured * (hill or 0.0) + g_run * agrees)))
 
 

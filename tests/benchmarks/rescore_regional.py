@@ -9,9 +9,9 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to seventeenth rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 17's winner; "both runs agree by 0.5, shipped
-coefficients" is round 11's), ``shipped before round 11`` its coefficients with the run term they were fitted
+The candidates are those of the fourth to twenty-first rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 11's r, kept by round 21; "both runs agree by 0.5,
+shipped coefficients" is the same model, and round 16's c = -0.5 candidate round 17's r), ``shipped before round 11`` its coefficients with the run term they were fitted
 with (the one-U run agreeing by 0.1 cell); neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
 (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the segments
 too (round 14: below a score t, by a landscape run's shift); "by instability" (default) is the order of
@@ -336,12 +336,20 @@ RANKINGS.update({f"shipped, unmeasured run {name} ({v})": ("unmeasured", key) fo
     ("V1", "first", -math.inf), ("V2", "as 0", 0.0))})
 
 
+RANKINGS["R18: rounds 14 and 18"] = ("14+18", _unknown_joins("U2"))
+
+
 def order_key(ranking: str) -> Callable[[dict], tuple]:
     """The sort key of a round-14 ranking over segments whose instability is in ``_i``."""
     rule = RANKINGS[ranking]
 
     def key(m):
         i = m["_i"]
+        if isinstance(rule, tuple) and rule[0] == "14+18":  # round 21: round 14's order, unknown joiners (U2)
+            joins = rule[1](m) if i is None else None
+            if joins is not None:  # in the tier below 0.01 of round 14's key
+                return (False, 1, -joins, 0.0, m["rank"])
+            return order_key("K2 one-U run, below 0.01")(m)
         if isinstance(rule, tuple) and rule[0] == "unknown":
             joins = rule[1](m) if i is None else None
             if joins is not None:
