@@ -183,11 +183,11 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 7, kept unseen
-#: until the shipped screening (round 18) was fixed; seeds 1-6, fresh for earlier defaults (seed 1's held-out
-#: cases were among the training cases of rounds 4-19, seeds 5's and 6's among those of rounds 15-19 and 18-19).
-#: Master seed 0's held-out cases informed the second round of choices and are not used here.
-HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7)
+#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 9, kept unseen
+#: until the shipped screening (round 21) was fixed; seeds 1-8, fresh for earlier defaults (seed 1's held-out
+#: cases were among the training cases of rounds 4-21, seeds 5-8's among those of the later rounds). Master seed
+#: 0's held-out cases informed the second round of choices and are not used here.
+HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9)
 
 
 @functools.lru_cache(maxsize=None)
@@ -237,19 +237,20 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
     # (calibration in the large; common practice): 0.083 against 0.061 (seed 1), 0.086 against 0.054
     # (seed 2), 0.098 against 0.131 (seed 3), 0.071 against 0.039 (seed 4), 0.063 against 0.041 (seed 5),
-    # 0.073 against 0.052 (seed 6) and 0.064 against 0.042 (seed 7) when written.
+    # 0.073 against 0.052 (seed 6), 0.064 against 0.042 (seed 7), 0.066 against 0.074 (seed 8) and 0.066 against
+    # 0.026 (seed 9) when written.
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, _known_miss(3, "the main divide's scaling scores 0.209 against the "
-                                                       "lateral segments' own 0.232"), 4, 5, 6, 7])
+                                                       "lateral segments' own 0.232"), 4, 5, 6, 7, 8, 9])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
     # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
-    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6) and 0.128 against
-    # 0.131 (seed 7) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
+    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6), 0.128 against 0.131
+    # (seed 7), 0.202 against 0.229 (seed 8) and 0.119 against 0.161 (seed 9) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
     # against 0.163 and 0.232 against 0.209; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
@@ -262,12 +263,16 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                   _known_miss(5, "top target in 7 of 8 cases (partial_base_level_fall case 8: "
                                                  "no main segment scored 0.01 or more, the first lies in a still "
                                                  "stretch)"), 6,
-                                  _known_miss(7, "top target in 5 of 6 cases (partial_base_level_fall case 8: "
-                                                 "its second-ranked main segment has no direction)")])
+                                  _known_miss(7, "top target in 3 of 6 cases (partial_base_level_fall cases 0, 8 "
+                                                 "and 16: top segments in moving stretches without a direction, "
+                                                 "or in a still one)"), 8,
+                                  _known_miss(9, "top target in 2 of 3 cases (partial_base_level_fall case 16: no "
+                                                 "main segment scored 0.01 or more, the first three lie in still "
+                                                 "stretches)")])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
-    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 4 of 4 and 5 of 5 transient cases of seeds 2, 3, 4
-    # and 6 when written.
+    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 4 of 4, 5 of 5 and 8 of 8 transient cases of seeds 2,
+    # 3, 4, 6 and 8 when written.
     assert all(r["top_ok"] is not False for r in _held_out(seed))
 
 
@@ -277,14 +282,16 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                                  "in steady_uplift_contrast case 5 and steady_runoff_contrast "
                                                  "case 23)"),
                                   _known_miss(6, "6 of 8 steady cases without an alarm (one lateral segment each "
-                                                 "in steady_uplift_contrast case 5, 0.70, and "
-                                                 "steady_erodibility_contrast case 22, 0.59)"),
-                                  _known_miss(7, "8 of 10 steady cases without an alarm (one lateral segment each "
-                                                 "in steady_symmetric case 12, 0.65, a segment measured moving, and "
-                                                 "steady_uplift_contrast case 13, 0.58)")])
+                                                 "in steady_uplift_contrast case 5 and steady_erodibility_contrast "
+                                                 "case 22)"),
+                                  _known_miss(7, "9 of 10 steady cases without an alarm (one lateral segment in "
+                                                 "steady_uplift_contrast case 13)"),
+                                  _known_miss(8, "5 of 7 steady cases without an alarm (a main segment in "
+                                                 "steady_uplift_contrast case 13, two lateral ones in "
+                                                 "steady_uplift_contrast case 21)"), 9])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
-    # 7 of 7, 3 of 3 and 8 of 8 steady cases of seeds 1-4 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before
+    # 7 of 7, 3 of 3, 8 of 8 and 9 of 9 steady cases of seeds 1-4 and 9 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before
     # the run had to move a segment half a cell, round 11).
     assert all(r["alarm_ok"] for r in _held_out(seed))
 
@@ -292,12 +299,16 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2,
                                   _known_miss(3, "order in 1 of 2 cases (partial_base_level_fall case 0: 6 pairs)"),
-                                  _known_miss(4, "order in 1 of 2 cases (erodibility_patch case 17: 3 pairs)"),
-                                  _known_miss(5, "order in 4 of 5 cases (partial_base_level_fall case 8: 1 pair)"),
-                                  _known_miss(6, "order in 2 of 4 cases (partial_base_level_fall case 8: 2 pairs, "
-                                                 "erodibility_patch case 17: 4)"),
-                                  _known_miss(7, "order in 2 of 4 cases (partial_base_level_fall cases 0 and 16: 11 "
-                                                 "and 1 pairs)")])
+                                  _known_miss(4, "order in 0 of 2 cases (partial_base_level_fall case 8: 6 pairs, "
+                                                 "erodibility_patch case 17: 3)"),
+                                  _known_miss(5, "order in 4 of 5 cases (partial_base_level_fall case 8: 3 pairs)"),
+                                  _known_miss(6, "order in 3 of 4 cases (partial_base_level_fall case 8: 2 pairs)"),
+                                  _known_miss(7, "order in 2 of 4 cases (partial_base_level_fall cases 0 and 16: 35 "
+                                                 "and 1 pairs)"),
+                                  _known_miss(8, "order in 1 of 5 cases (partial_base_level_fall cases 0 and 16: 2 "
+                                                 "and 9 pairs, erodibility_patch cases 9 and 17: 2 and 1)"),
+                                  _known_miss(9, "order in 1 of 3 cases (runoff_gradient case 2: 4 pairs, "
+                                                 "partial_base_level_fall case 16: 80)")])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3 and 4 of 4 transient cases of seeds 1 and 2 when written (1 of 3 and 2 of 4 before
