@@ -394,12 +394,15 @@ def evidence_features(probabilities: dict, evidence: dict) -> tuple[float, float
 def rank_key(instability: float | None, probabilities: dict | None, evidence: dict | None = None) -> tuple:
     """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
 
-    Segments rank by instability; with the landscape ``evidence`` (as :func:`instability_of`), those
-    scored below :data:`RUN_ORDER_BELOW` rank after the rest, by the one-uplift-rate run's shift
-    toward the side the decision favours (larger first; unmeasured or no side favoured before measured:
-    no run evidence is not evidence of stillness; then by instability). Unknown instability (None: the decision abstained) ranks last, unless that run moves
-    the divide at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move it as far the other
-    way: then it joins the segments scored below :data:`RUN_ORDER_BELOW`, by the size of that shift.
+    Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
+    (None: the decision abstained) last. With it, in three tiers:
+
+    1. instability at least :data:`RUN_ORDER_BELOW`, by instability;
+    2. below it, by the one-uplift-rate run's shift toward the side the decision favours, larger first
+       (unmeasured or no side favoured first: no run evidence is not evidence of stillness), then by
+       instability; an unknown segment joins this tier, by the size of that run's shift, when the shift is
+       at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move the divide as far the other way;
+    3. other unknown segments.
 
     Examples
     --------
@@ -580,9 +583,9 @@ def screen(
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
         when it abstained for insufficient data; with the forward run, segments scored below
-        :data:`RUN_ORDER_BELOW` by the run's shift, :func:`rank_key`); every other stretch of divide between two
-        basins is a gap with its reason, and ``coverage`` gives the judged share of the divides between
-        outlet basins.
+        :data:`RUN_ORDER_BELOW` by the run's shift, :func:`rank_key`); every other stretch of divide
+        between two basins is a gap with its reason, and ``coverage`` gives the judged share of the
+        divides between outlet basins.
     """
     config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):

@@ -165,7 +165,8 @@ def test_the_forward_run_barely_moves_a_steady_landscape(steady, key):
 
 @pytest.mark.xfail(strict=True, reason="known miss: on the settled small case (regional version 3) one 293-m main "
                    "segment (rank 10; 22 before round 14) is not measured by the run, under either balance: the "
-                   "cells next to it go to a third basin, so none of its length is still shared by its two basins at the end "
+                   "cells next to it go to a third basin, so none of its length is still shared by its two basins "
+                   "at the end "
                    "(divides.model.tracking.exchange_displacement)")
 def test_the_forward_run_measures_every_segment_of_a_steady_landscape(steady):
     # As above: on a steady landscape every segment's shift is measured (finite).
@@ -250,8 +251,8 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
     # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
     # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6), 0.128 against 0.131
-    # (seed 7), 0.202 against 0.229 (seed 8) and 0.119 against 0.161 (seed 9) when written (on master seed 0's and seed 3's held-out cases it did not: 0.181
-    # against 0.163 and 0.232 against 0.209; docs/validation.md).
+    # (seed 7), 0.202 against 0.229 (seed 8) and 0.119 against 0.161 (seed 9) when written (on master seed 0's
+    # and seed 3's held-out cases it did not: 0.181 against 0.163 and 0.232 against 0.209; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
@@ -291,8 +292,8 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                                  "steady_uplift_contrast case 21)"), 9])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
-    # 7 of 7, 3 of 3, 8 of 8 and 9 of 9 steady cases of seeds 1-4 and 9 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before
-    # the run had to move a segment half a cell, round 11).
+    # 7 of 7, 3 of 3, 8 of 8 and 9 of 9 steady cases of seeds 1-4 and 9 when written (seeds 1 and 4: 4 of 6 and
+    # 6 of 8 before the runs had to move a segment half a cell, round 11).
     assert all(r["alarm_ok"] for r in _held_out(seed))
 
 

@@ -11,11 +11,12 @@ changes only the instability, not the decision, its confidence or the motion azi
 
 The candidates are those of the fourth to twenty-first rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 11's r, kept by round 21; "both runs agree by 0.5,
-shipped coefficients" is the same model, and round 16's c = -0.5 candidate round 17's r), ``shipped before round 11`` its coefficients with the run term they were fitted
-with (the one-U run agreeing by 0.1 cell); neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the intercept
-(it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the segments
-too (round 14: below a score t, by a landscape run's shift); "by instability" (default) is the order of
-rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
+shipped coefficients" is the same model, and round 16's c = -0.5 candidate is round 17's r), ``shipped before
+round 11`` its coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell);
+neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
+intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
+segments too (rounds 14-21: below a score, by a landscape run's shift; :data:`RANKINGS`); "by instability"
+(default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
 """
 
 from __future__ import annotations
@@ -200,11 +201,12 @@ def _not_contradicted(c: float, strict: bool) -> Callable[[dict, dict], float]:
 
 
 CANDIDATES.update({f"one-U run agrees by 0.5, per-basin run's shift {'>' if strict else '>='} {c:g}": (
-    _shipped_with(_not_contradicted(c, strict)), False, False) for c, strict in ((-0.5, True), (-0.25, False), (0.0, False))})
+    _shipped_with(_not_contradicted(c, strict)), False, False)
+    for c, strict in ((-0.5, True), (-0.25, False), (0.0, False))})
 
 
 def _present_r(p: dict, m: dict) -> float:
-    """The shipped r (round 17): screen.evidence_features' third value."""
+    """The shipped r (then round 17's): screen.evidence_features' third value."""
     return evidence_features(p, m)[2]
 
 
@@ -289,29 +291,18 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 
-def _run_key(pick: Callable[[list[float]], float] | None) -> Callable[[dict], float]:
+def _run_key(pick: Callable[[list[float]], float] | None) -> Callable[[dict], float | None]:
     """A segment's runs' shift toward the favoured side: the one-U run's (``pick`` None) or ``pick`` of both
-    measured ones; -inf when unmeasured or without probabilities."""
+    measured ones; None when unmeasured, without a favoured side or without probabilities."""
     def key(m):
         p = m["probabilities"]
         if p is None:
-            return -math.inf
+            return None
         if pick is None:
-            s = _toward(p, m)
-            return -math.inf if s is None else s
+            return _toward(p, m)
         both = [_toward(p, m, k) for k in ("forward_shift_cells", "forward_shift_basin_cells")]
-        return pick(both) if None not in both else -math.inf
+        return pick(both) if None not in both else None
     return key
-
-
-#: round 14: name -> (t, run key); segments scored below t rank after the others, by the run key (larger first).
-#: "by instability" is the ranking of rounds 4-13; "shipped" is screen.rank_key (round 14's winner, K2 below 0.01).
-RANKINGS: dict[str, tuple[float, Callable[[dict], float]] | None | str] = {
-    "by instability": None,
-    "shipped": "shipped",
-    **{f"{name}, below {t:g}": (t, _run_key(pick)) for t in (0.01, 0.5)
-       for name, pick in (("K1 smaller of both runs", min), ("K2 one-U run", None), ("K3 larger of both runs", max))},
-}
 
 
 def _unknown_joins(variant: str) -> Callable[[dict], float | None]:
@@ -329,48 +320,44 @@ def _unknown_joins(variant: str) -> Callable[[dict], float | None]:
     return key
 
 
-RANKINGS.update({f"shipped, unknown segments by the run ({v})": ("unknown", _unknown_joins(v)) for v in ("U1", "U2", "U3")})
-
-
-RANKINGS.update({f"shipped, unmeasured run {name} ({v})": ("unmeasured", key) for v, name, key in (
-    ("V1", "first", -math.inf), ("V2", "as 0", 0.0))})
-
-
-RANKINGS["R18: rounds 14 and 18"] = ("14+18", _unknown_joins("U2"))
-
-
-def order_key(ranking: str) -> Callable[[dict], tuple]:
-    """The sort key of a round-14 ranking over segments whose instability is in ``_i``."""
-    rule = RANKINGS[ranking]
-
+def _tiered(t: float, run: Callable[[dict], float | None], unmeasured: float = -math.inf,
+            unknown: Callable[[dict], float | None] | None = None) -> Callable[[dict], tuple]:
+    """Rounds 14-20: segments scored >= t by score; those below after them by ``run`` (larger first; a segment
+    without a run value takes ``unmeasured``: -inf last, +inf first), then by score; unknown ones last, but
+    those ``unknown`` gives a value join the tier below t with it."""
     def key(m):
         i = m["_i"]
-        if isinstance(rule, tuple) and rule[0] == "14+18":  # round 21: round 14's order, unknown joiners (U2)
-            joins = rule[1](m) if i is None else None
-            if joins is not None:  # in the tier below 0.01 of round 14's key
-                return (False, 1, -joins, 0.0, m["rank"])
-            return order_key("K2 one-U run, below 0.01")(m)
-        if isinstance(rule, tuple) and rule[0] == "unknown":
-            joins = rule[1](m) if i is None else None
-            if joins is not None:
-                return (1, -joins, 0.0, m["rank"])
-            return (*rank_key(i, m["probabilities"], m), m["rank"])
-        if isinstance(rule, tuple) and rule[0] == "unmeasured":  # round 20
-            k = rank_key(i, m["probabilities"], m)
-            if k[0] == 1 and abs(k[1]) == math.inf and i is not None:
-                return (1, rule[1], -i, m["rank"])
-            return (*k, m["rank"])
-        if rule == "shipped":
-            return (*rank_key(i, m["probabilities"], m), m["rank"])
-        if rule is None or i is None or i >= rule[0]:
-            return (i is None, 0, -(i or 0.0), 0.0, m["rank"])
-        return (False, 1, -rule[1](m), -i, m["rank"])
+        if i is None:
+            joins = unknown(m) if unknown is not None else None
+            return (2, 0.0, 0.0) if joins is None else (1, -joins, 0.0)
+        if i >= t:
+            return (0, -i, 0.0)
+        v = run(m)
+        return (1, -(unmeasured if v is None else v), -i)
     return key
+
+
+_K2, _U2 = _run_key(None), _unknown_joins("U2")
+
+#: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
+#: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key.
+RANKINGS: dict[str, Callable[[dict], tuple]] = {
+    "by instability": _tiered(-math.inf, _K2),
+    "shipped": lambda m: rank_key(m["_i"], m["probabilities"], m),
+    **{f"{name}, below {t:g}": _tiered(t, _run_key(pick)) for t in (0.01, 0.5)
+       for name, pick in (("K1 smaller of both runs", min), ("K2 one-U run", None), ("K3 larger of both runs", max))},
+    **{f"shipped, unknown segments by the run ({v})": _tiered(0.01, _K2, unknown=_unknown_joins(v))
+       for v in ("U1", "U2", "U3")},
+    **{f"shipped, unmeasured run {name} ({v})": _tiered(0.01, _K2, unmeasured=value, unknown=_U2)
+       for v, name, value in (("V1", "first", math.inf), ("V2", "as 0", 0.0))},
+    "R18: rounds 14 and 18": _tiered(0.01, _K2, unknown=_U2),
+}
 
 
 def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
-    ranked = sorted(case["main"], key=order_key(ranking))
+    ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
     out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
     steady = case["family"].startswith("steady_")
@@ -419,7 +406,8 @@ def main() -> None:
                   f"{m['log_loss']:.3f}, AUC {m['auc']:.3f}, ECE {m['ece']:.3f} ({m['n']} segments, {m['moving']} "
                   f"moving); lateral {lat['log_loss']:.3f}, {lat['auc']:.3f}, {lat['ece']:.3f} ({lat['n']}, "
                   f"{lat['moving']}); fitted on all: " + "; ".join(
-                      f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w)) for k, w in full.items()),
+                      f"{k} " + ("shipped" if w is None else ", ".join(f"{v:.2f}" for v in w))
+                      for k, w in full.items()),
                   flush=True)
 
 if __name__ == "__main__":
