@@ -141,7 +141,7 @@ def test_no_false_alarm_on_a_steady_landscape(steady):
     # Issue 14 item 4: no segment with instability >= 0.5 and confidence >= 0.5 in a steady landscape
     # (uniform forcing at a steady state checked by continuing the run; Willett et al. 2014). With one
     # landscape run alone, one segment here reached 0.52 (that run moved it 0.18 model cell toward the
-    # favoured side; a strict expected failure until the run had to move it 0.5 cell, round 11).
+    # favoured side; a strict expected failure until both runs had to agree by 0.5 cell).
     _, _, scored, _ = steady
     assert scored["alarms"] == 0
 
