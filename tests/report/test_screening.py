@@ -50,8 +50,11 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     ranks = [f["properties"]["rank"] for f in gj["features"]]
     assert ranks == list(range(1, len(ranks) + 1))
     inst = [f["properties"]["instability"] for f in gj["features"]]
-    known = [v for v in inst if v is not None]
-    assert inst[: len(known)] == sorted(known, reverse=True)  # unknowns ranked last
+    assert inst == [s["instability"] for s in screening.segments]  # the file keeps the screening's ranking
+    # docs/methods.md §7b: segments scored 0.01 or more rank first, by score, and every unknown one after them
+    # (the whole order is re-derived in tests/assess/test_screen_regional.py)
+    first = [v for v in inst if v is not None and v >= 0.01]
+    assert 0 < len(first) < len(inst) and inst[: len(first)] == sorted(first, reverse=True)
     # the gaps layer (RFC 7946): every stretch of divide left out, with its reason
     gaps = json.loads((out / "layers" / "screen_gaps.geojson").read_text())
     assert gaps["type"] == "FeatureCollection" and "crs" not in gaps
