@@ -293,7 +293,7 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
 
 def _run_key(pick: Callable[[list[float]], float] | None) -> Callable[[dict], float | None]:
     """A segment's runs' shift toward the favoured side: the one-U run's (``pick`` None) or ``pick`` of both
-    measured ones; None when unmeasured, without a favoured side or without probabilities."""
+    measured ones (0 when no side is favoured); None when unmeasured or without probabilities."""
     def key(m):
         p = m["probabilities"]
         if p is None:
@@ -377,7 +377,7 @@ def main() -> None:
     parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
     parser.add_argument("--candidates", nargs="*", default=list(CANDIDATES), choices=list(CANDIDATES))
     parser.add_argument("--rankings", nargs="*", default=["by instability"], choices=list(RANKINGS),
-                        help="orders of the segments (round 14), each scored with every candidate")
+                        help="orders of the segments (rounds 14-21), each scored with every candidate")
     args = parser.parse_args()
     rows = []
     for name in args.files:
