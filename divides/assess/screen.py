@@ -386,8 +386,8 @@ def evidence_features(probabilities: dict, evidence: dict) -> tuple[float, float
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
     favoured = _favoured(probabilities)
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
-    shifts = [_finite(evidence.get(k)) for k in ("forward_shift_cells", "forward_shift_basin_cells")]
-    agrees = float(favoured != 0 and all(s is not None and favoured * s >= RUNS_AGREE_CELLS for s in shifts))
+    agrees = float(favoured != 0 and all(s is not None and favoured * s >= RUNS_AGREE_CELLS
+                                         for s in _run_shifts(evidence)))
     return math.log(p / (1.0 - p)), favoured * hill, agrees
 
 
@@ -421,7 +421,7 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
         return (1, -abs(shift), 0.0) if evidence is not None and (shift := _run_moves(evidence)) else (2, 0.0, 0.0)
     if evidence is None or instability >= RUN_ORDER_BELOW:
         return (0, -instability, 0.0)
-    favoured, shift = _favoured(probabilities or {}), _finite(evidence.get("forward_shift_cells"))
+    favoured, shift = _favoured(probabilities or {}), _run_shifts(evidence)[0]
     toward = favoured * shift if shift is not None and favoured != 0 else None
     return (1, -math.inf if toward is None else -toward, -instability)
 
@@ -429,10 +429,15 @@ def rank_key(instability: float | None, probabilities: dict | None, evidence: di
 def _run_moves(evidence: dict) -> float | None:
     """The one-uplift-rate run's shift of a segment the decision abstained on, when it is at least
     :data:`RUNS_AGREE_CELLS` and the per-basin run does not move the divide as far the other way; else None."""
-    one_u, per_basin = (_finite(evidence.get(k)) for k in ("forward_shift_cells", "forward_shift_basin_cells"))
+    one_u, per_basin = _run_shifts(evidence)
     if one_u is None or per_basin is None or abs(one_u) < RUNS_AGREE_CELLS:
         return None
     return one_u if math.copysign(1.0, one_u) * per_basin > -RUNS_AGREE_CELLS else None
+
+
+def _run_shifts(evidence: dict) -> tuple[float | None, float | None]:
+    """The one-uplift-rate and per-basin runs' shifts of a segment (model cells into b; None when unmeasured)."""
+    return _finite(evidence.get("forward_shift_cells")), _finite(evidence.get("forward_shift_basin_cells"))
 
 
 def _favoured(probabilities: dict) -> float:
