@@ -20,7 +20,8 @@ from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
 from divides.model.forward_run import laplacian
-from divides.model.landscape_shift import landscape_shifts
+from divides.model.landscape_shift import landscape_shifts, model_start
+from divides.model.transience import basin_transience
 from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
 from divides.terrain.channels import Channels, extract_channels
@@ -29,7 +30,8 @@ from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
-           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW"]
+           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
+           "TRANSIENT_BASIN"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -59,12 +61,14 @@ INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "l
 #: + gamma_r r))), p = P(a) + P(b); h the hilltop-curvature contrast signed toward the side the decision
 #: favours (:func:`divides.assess.hilltops.hilltop_contrast`; 0 when unmeasured); r = 1 when both landscape
 #: runs under the steady balance, one with one uplift rate and one with one rate per outlet basin, move the
-#: segment's divide at least :data:`RUNS_AGREE_CELLS` model cells toward that side, else 0 (also when either
-#: run did not measure it). The coefficients were fitted on the regional benchmark's version-3 training cases
-#: with r read from the first run alone at 0.1 cell; r as it is now was chosen on 57 training cases (round 11)
-#: and kept on 153 against reading the per-basin run only against contradiction (rounds 17 and 21; rules written
-#: beforehand, docs/validation.md, *Regional screening*). A score in [0, 1] that ranks segments by how likely
-#: they move, not a calibrated probability: its reliability is in docs/validation.md.
+#: segment's divide at least :data:`RUNS_AGREE_CELLS` model cells toward that side, or, on a main divide whose
+#: aggressor's basin is transient (:data:`TRANSIENT_BASIN`), the first does and the second does not move it as
+#: far the other way; else 0 (also when either run did not measure it). The coefficients were fitted on the
+#: regional benchmark's version-3 training cases with r read from the first run alone at 0.1 cell; r of both runs
+#: was chosen on 57 training cases (round 11), kept on 153 against reading the per-basin run only against
+#: contradiction everywhere (rounds 17 and 21), and widened to transient aggressors on 177 (round 22; rules
+#: written beforehand, docs/validation.md, *Regional screening*). A score in [0, 1] that ranks segments by how
+#: likely they move, not a calibrated probability: its reliability is in docs/validation.md.
 INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-27.16, 2.70, 16.06, 22.42),
                                                                       "lateral": (-3.89, 1.02, 8.07, 0.61)}
 
@@ -72,6 +76,15 @@ INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-
 #: :data:`INSTABILITY_EVIDENCE`: a divide moving 2 cells per response time (the benchmark's "moving")
 #: covers 0.6 cell over the runs' 0.3 response times. Chosen against 0.25 on training cases (round 11).
 RUNS_AGREE_CELLS = 0.5
+
+#: A basin is transient for :data:`INSTABILITY_EVIDENCE`'s r when the absolute value of its transience
+#: (:func:`divides.model.transience.basin_transience`, ln of its lower over its upper channels' erosion rate) is at
+#: least this: where the aggressor's basin is transient, the run with one rate per outlet basin, which takes a fall
+#: of base level for a steady contrast, need only not contradict the one-rate run. Chosen against 0.2 and 0.4 and
+#: against the signed transience or the aggressor's minus the victim's on 177 training cases by a rule written
+#: beforehand (docs/validation.md, *Regional screening*, round 22): 190 targets against 189, main log loss 0.400
+#: against 0.549.
+TRANSIENT_BASIN = 0.1
 
 #: With the landscape evidence, segments scored below this rank after every other judged segment, ordered by
 #: the one-uplift-rate run's shift toward the favoured side (:func:`rank_key`). Below it the score no longer
@@ -82,6 +95,10 @@ RUNS_AGREE_CELLS = 0.5
 #: segments the run did not measure come first among them (round 20, 129 cases: 24/34 against 20/34).
 RUN_ORDER_BELOW = 0.01
 
+#: Each segment's landscape evidence (:func:`_landscape_evidence`; None when not measured).
+EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
+                 "transience_b")
+
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
                   "is calibrated on divides between basins that drain apart)")
@@ -89,7 +106,7 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                       "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
-                      "divide_kind", "forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")
+                      "divide_kind", *EVIDENCE_KEYS)
 
 
 @dataclass(eq=False)
@@ -364,7 +381,7 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     """
     if probabilities is None:
         return None
-    logit, hill, agrees = evidence_features(probabilities, evidence or {})
+    logit, hill, agrees = evidence_features(probabilities, evidence or {}, kind)
     if evidence is None:
         alpha, beta = INSTABILITY_SCALING[kind]
         t = alpha + beta * logit
@@ -374,21 +391,34 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 
-def evidence_features(probabilities: dict, evidence: dict) -> tuple[float, float, float]:
+def evidence_features(probabilities: dict, evidence: dict, kind: str = "main") -> tuple[float, float, float]:
     """What :func:`instability_of` reads: logit(P(a) + P(b)) (P clipped to [1e-4, 1 - 1e-4]), the hilltop
-    contrast signed toward the side the decision favours (0 on a tie or unmeasured), and 1.0 when both landscape
-    runs move the divide at least :data:`RUNS_AGREE_CELLS` toward that side, else 0.0 (also when either is
+    contrast signed toward the side the decision favours (0 on a tie or unmeasured), and r: 1.0 when the run with
+    one uplift rate moves the divide at least :data:`RUNS_AGREE_CELLS` toward that side and the run with one rate
+    per outlet basin either does so too or, on a ``"main"`` divide whose aggressor's basin is transient
+    (:func:`_aggressor_transient`), does not move it as far the other way; else 0.0 (also when a run is
     unmeasured).
 
-    ``evidence`` holds ``hilltop_contrast``, ``forward_shift_cells`` (the run with one uplift rate) and
-    ``forward_shift_basin_cells`` (one rate per outlet basin), model cells into b; None or NaN when not measured.
+    ``evidence`` holds ``hilltop_contrast``, ``forward_shift_cells`` (the run with one uplift rate),
+    ``forward_shift_basin_cells`` (one rate per outlet basin), model cells into b, and ``transience_a`` and
+    ``transience_b`` (:func:`divides.model.transience.basin_transience` of each side's basin); None or NaN when not
+    measured.
     """
     p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
     favoured = _favoured(probabilities)
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
-    agrees = float(favoured != 0 and all(s is not None and favoured * s >= RUNS_AGREE_CELLS
-                                         for s in _run_shifts(evidence)))
-    return math.log(p / (1.0 - p)), favoured * hill, agrees
+    one_u, per_basin = (None if s is None else favoured * s for s in _run_shifts(evidence))
+    agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= RUNS_AGREE_CELLS and (
+        per_basin >= RUNS_AGREE_CELLS or (kind == "main" and per_basin > -RUNS_AGREE_CELLS
+                                          and _aggressor_transient(favoured, evidence)))
+    return math.log(p / (1.0 - p)), favoured * hill, float(agrees)
+
+
+def _aggressor_transient(favoured: float, evidence: dict) -> bool:
+    """The basin on the side away from the favoured one (the aggressor) is out of steady state: the absolute
+    value of its ``transience_a`` or ``transience_b`` is at least :data:`TRANSIENT_BASIN` (False when unmeasured)."""
+    t = _finite(evidence.get("transience_a" if favoured > 0 else "transience_b"))
+    return t is not None and abs(t) >= TRANSIENT_BASIN
 
 
 def rank_key(instability: float | None, probabilities: dict | None, evidence: dict | None = None) -> tuple:
@@ -492,9 +522,12 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
     """
     from divides.terrain.tiled_flow import tiled_routing
 
+    options = dict(theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
+                   channel_area_m2=threshold)
     with tiled_routing(None):  # the model grid is at most 300 x 300 cells: routed in memory even with --tiled
-        runs = landscape_shifts(dem, theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
-                                channel_area_m2=threshold, balances=("steady", "steady-basins"))
+        start = model_start(dem, **options)
+        runs = landscape_shifts(dem, balances=("steady", "steady-basins"), start=start, **options)
+    transience = basin_transience(start, float(config.n))
     sides = outlet_of[runs[0].on_model_grid(labels)]
     curvature = laplacian(dem)
     area_cells = np.asarray(flow.area, dtype=np.float64).reshape(dem.shape) / np.maximum(dem.cell_area_grid(), 1e-300)
@@ -503,6 +536,8 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         a, b = int(outlet_of[seg.label_a]), int(outlet_of[seg.label_b])
         r["forward_shift_cells"], r["forward_shift_basin_cells"] = (run.piece_shift(seg.line, sides, a, b)
                                                                     for run in runs)
+        r["transience_a"], r["transience_b"] = (float(transience[k]) if k else math.nan
+                                                for k in runs[0].piece_basins(seg.line, sides, a, b))
         r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
     first = runs[0]  # the grid is shared; the one-U run's horizon and steps
     return {"model_cell_m": first.cell_m, "block": first.factor, "years_at_unit_k": first.years_unit_k,
@@ -668,9 +703,7 @@ def screen(
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
-            "forward_shift_cells": _finite(r.get("forward_shift_cells")),
-            "forward_shift_basin_cells": _finite(r.get("forward_shift_basin_cells")),
-            "hilltop_contrast": _finite(r.get("hilltop_contrast")),
+            **{k: _finite(r.get(k)) for k in EVIDENCE_KEYS},
             "line": seg.line, "judged_lines": r["judged_lines"],
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,

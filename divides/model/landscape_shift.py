@@ -32,7 +32,7 @@ from divides.terrain.divide_lines import DivideLine
 from divides.terrain.routing import route
 
 __all__ = ["LandscapeShift", "landscape_shift", "landscape_shifts", "ModelStart", "model_start", "run_from",
-           "steady_uplift", "BALANCES", "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
+           "steady_uplift", "balance_terms", "BALANCES", "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
 
 #: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
 #: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
@@ -115,6 +115,29 @@ class LandscapeShift:
         """
         if self.n_steps == 0:
             return 0.0
+        box, near, (r, c), (run_a, run_b) = self._near_piece(line, sides, label_a, label_b, radius_cells)
+        if run_a == 0 or run_b == 0 or run_a == run_b:
+            return math.nan
+        end_a, end_b = int(self.match[run_a]), int(self.match[run_b])
+        if end_a == 0 or end_b == 0 or end_a == end_b:
+            return math.nan
+        end, start = self.after[box], self.before[box]
+        r0, c0 = box[0].start, box[1].start
+        piece = DivideLine(r - r0, c - c0, np.asarray(line.x), np.asarray(line.y), np.asarray(line.distance_m),
+                           np.asarray(line.elevation_m))
+        moved = exchange_displacement(self._cell_area[box], (near & (start == run_a), near & (start == run_b)),
+                                      (near & (end == end_a), near & (end == end_b)), [piece])
+        return float(moved) / self.cell_m
+
+    def piece_basins(self, line: DivideLine, sides: np.ndarray, label_a: int, label_b: int,
+                     radius_cells: int = PIECE_RADIUS_CELLS) -> tuple[int, int]:
+        """The outlet basins of the start (labels of ``before``; 0: none) that hold most of each side's cells
+        within ``radius_cells`` model cells of a piece of divide (arguments as :meth:`piece_shift`)."""
+        return self._near_piece(line, sides, label_a, label_b, radius_cells)[3]
+
+    def _near_piece(self, line: DivideLine, sides: np.ndarray, label_a: int, label_b: int, radius_cells: int):
+        """The box of the model grid around a piece, its cells within ``radius_cells``, the piece's model-grid
+        coordinates and the run's basins of either side (:meth:`piece_basins`)."""
         f = self.factor
         r = (np.asarray(line.row, dtype=np.float64) - 0.5 * (f - 1)) / f
         c = (np.asarray(line.col, dtype=np.float64) - 0.5 * (f - 1)) / f
@@ -130,17 +153,7 @@ class LandscapeShift:
         start, side = self.before[box], np.asarray(sides)[box]
         run_a = _most_common(start[near & (side == label_a) & (start > 0)])
         run_b = _most_common(start[near & (side == label_b) & (start > 0)])
-        if run_a == 0 or run_b == 0 or run_a == run_b:
-            return math.nan
-        end_a, end_b = int(self.match[run_a]), int(self.match[run_b])
-        if end_a == 0 or end_b == 0 or end_a == end_b:
-            return math.nan
-        end = self.after[box]
-        piece = DivideLine(r - r0, c - c0, np.asarray(line.x), np.asarray(line.y), np.asarray(line.distance_m),
-                           np.asarray(line.elevation_m))
-        moved = exchange_displacement(self._cell_area[box], (near & (start == run_a), near & (start == run_b)),
-                                      (near & (end == end_a), near & (end == end_b)), [piece])
-        return float(moved) / self.cell_m
+        return box, near, (r, c), (run_a, run_b)
 
 
 def _most_common(values: np.ndarray) -> int:
@@ -194,15 +207,17 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
 
 def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
                      balances: tuple[str, ...], horizon_tau: float = FORWARD_HORIZON_TAU,
-                     max_steps: int = 60) -> list[LandscapeShift]:
-    """:func:`landscape_shift` under each of ``balances``, from one model grid (routed once): the runs share
-    :meth:`LandscapeShift.on_model_grid` and their outlet basins at the start."""
+                     max_steps: int = 60, start: ModelStart | None = None) -> list[LandscapeShift]:
+    """:func:`landscape_shift` under each of ``balances``, from one model grid (routed once, or ``start`` when
+    given: :func:`model_start` of the same DEM and options): the runs share :meth:`LandscapeShift.on_model_grid`
+    and their outlet basins at the start."""
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
     for balance in balances:
         if balance not in BALANCES:
             raise ParameterError(f"balance must be one of {', '.join(map(repr, BALANCES))}; got {balance!r}")
-    start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
+    if start is None:
+        start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     slope = slopes(start.flow)[start.cells]
     s_ref = float(np.median(slope)) if slope.size else 1.0
     runs = []
@@ -238,13 +253,9 @@ def steady_uplift(start: ModelStart, n: float, *, per_basin: bool = False) -> tu
     (ndarray, float)
         U on the model grid (m/yr at K = 1) and D (m²/yr at K = 1).
     """
-    grid, before = start.grid, start.before
-    sl = slopes(start.flow)
-    fluvial = np.asarray(start.flow.area, dtype=np.float64).ravel() ** start.m * sl ** n
-    lap = laplacian(grid).ravel()
-    lab = before.ravel().astype(np.int64)
+    fluvial, lap, sel = balance_terms(start, n)
+    lab = start.before.ravel().astype(np.int64)
     groups = lab if per_basin else (lab > 0).astype(np.int64)
-    sel = (lab > 0) & (sl > 0) & np.isfinite(lap)
     size = int(groups.max()) + 1
     small = np.bincount(groups[sel], minlength=size) < MIN_BALANCE_CELLS
     groups = np.where(small[groups], 0, groups)
@@ -254,7 +265,16 @@ def steady_uplift(start: ModelStart, n: float, *, per_basin: bool = False) -> tu
     dc = c - c_mean[g]
     spread = float(np.sum(dc * dc))
     d = max(float(np.sum(dc * (f - f_mean[g])) / spread), 0.0) if spread > 0 else 0.0
-    return np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(grid.shape), d
+    return np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(start.grid.shape), d
+
+
+def balance_terms(start: ModelStart, n: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The two halves of the steady balance on the model grid, flat: A^m S^n (K = 1) and ∇²z, and the cells
+    it is read on (in an outlet basin, a slope to their receiver and a full stencil)."""
+    sl = slopes(start.flow)
+    fluvial = np.asarray(start.flow.area, dtype=np.float64).ravel() ** start.m * sl ** n
+    lap = laplacian(start.grid).ravel()
+    return fluvial, lap, (start.before.ravel() > 0) & (sl > 0) & np.isfinite(lap)
 
 
 @dataclass(frozen=True, eq=False)

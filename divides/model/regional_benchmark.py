@@ -111,6 +111,11 @@ STRETCH_SHARE = 0.1
 #: from the measured truth of training cases 1–5 before any of them was screened.
 STRETCH_MOVING_CELLS_PER_TAU = 2.0
 
+#: A screened segment's landscape evidence, kept per segment in the benchmark's results: those of
+#: divides.assess.screen.EVIDENCE_KEYS (this room does not import screening; a test checks they match).
+EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
+                 "transience_b")
+
 #: The targets of issue 14 item 4 (docs/validation.md, *Regional screening*).
 TARGETS = {
     "top_in_moving_share": 0.7,   # top-ranked main-divide segments lie >= 70 % in moving stretches
@@ -600,9 +605,7 @@ def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
                 truth = {"a": "b", "b": "a"}[truth]
         out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                     "probabilities": s.get("probabilities"), "kind": s.get("divide_kind"), "length_m": s["length_m"],
-                    "forward_shift_cells": s.get("forward_shift_cells"),
-                    "forward_shift_basin_cells": s.get("forward_shift_basin_cells"),
-                    "hilltop_contrast": s.get("hilltop_contrast"),
+                    **{k: s.get(k) for k in EVIDENCE_KEYS},
                     "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
                     "in_stable": truth == "stable",
                     "rate_cells_per_tau": None if p is None or p["rate_m_per_yr"] is None
@@ -644,9 +647,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
                      "kind": s.get("divide_kind"), "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
-                     "forward_shift_cells": s.get("forward_shift_cells"),
-                     "forward_shift_basin_cells": s.get("forward_shift_basin_cells"),
-                     "hilltop_contrast": s.get("hilltop_contrast"),
+                     **{k: s.get(k) for k in EVIDENCE_KEYS},
                      "reason": s.get("reason"),
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
@@ -678,7 +679,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_alarms"] = sum(1 for m in lat if raises_alarm(m))
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
-                                            "forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")}
+                                            *EVIDENCE_KEYS)}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
     out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
     out["alarm_ok"] = (not case.steady) or not alarms

@@ -94,7 +94,7 @@ def _labelled(rows: list[dict], kind: str | None, evidence: bool = False) -> tup
             p = m["probabilities"]
             if p is None or not (m["in_moving"] or m["in_stable"]) or (kind is not None and m["kind"] != kind):
                 continue
-            x.append(list(evidence_features(p, m)) if evidence else p.get("a", 0.0) + p.get("b", 0.0))
+            x.append(list(evidence_features(p, m, m["kind"])) if evidence else p.get("a", 0.0) + p.get("b", 0.0))
             y.append(1.0 if m["in_moving"] else 0.0)
     return x, y
 

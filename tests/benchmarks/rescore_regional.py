@@ -9,11 +9,11 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twenty-first rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 11's r, kept by round 21; "both runs agree by 0.5,
-shipped coefficients" is the same model, and round 16's c = -0.5 candidate is round 17's r), ``shipped before
-round 11`` its coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell);
-neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
+The candidates are those of the fourth to twenty-second rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)"; "both runs agree
+by 0.5, shipped coefficients" is round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate
+is round 17's r), ``shipped before round 11`` its coefficients with the run term they were fitted with (the one-U
+run agreeing by 0.1 cell); neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
 intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
 segments too (rounds 14-21: below a score, by a landscape run's shift; :data:`RANKINGS`); "by instability"
 (default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
@@ -48,11 +48,15 @@ def _shift(m: dict, key: str = "forward_shift_cells") -> float | None:
     return None if v is None or not math.isfinite(v) else float(v)
 
 
+def _favoured(p: dict) -> float:
+    """+1.0 when the decision favours motion toward b (a is the aggressor), -1.0 toward a, 0.0 on a tie."""
+    return float((p.get("b", 0.0) > p.get("a", 0.0)) - (p.get("b", 0.0) < p.get("a", 0.0)))
+
+
 def _toward(p: dict, m: dict, key: str = "forward_shift_cells") -> float | None:
     """A run's shift toward the side the decision favours (model cells; None when unmeasured)."""
     s = _shift(m, key)
-    favoured = float((p.get("b", 0.0) > p.get("a", 0.0)) - (p.get("b", 0.0) < p.get("a", 0.0)))
-    return None if s is None else favoured * s
+    return None if s is None else _favoured(p) * s
 
 
 def _agrees(p: dict, m: dict, t: float, key: str = "forward_shift_cells") -> float:
@@ -206,8 +210,9 @@ CANDIDATES.update({f"one-U run agrees by 0.5, per-basin run's shift {'>' if stri
 
 
 def _present_r(p: dict, m: dict) -> float:
-    """The shipped r (then round 17's): screen.evidence_features' third value."""
-    return evidence_features(p, m)[2]
+    """Round 17's r, shipped when round 19 was scored (the one-U run agrees by 0.5, the per-basin run's shift
+    > -0.5)."""
+    return _not_contradicted(-0.5, True)(p, m)
 
 
 def _lateral_present(p: dict, m: dict) -> list[float]:
@@ -228,7 +233,37 @@ CANDIDATES.update({name: ({"main": "now", "lateral": f}, False, False) for name,
     ("lateral refitted with the present r (M1)", _lateral_present),
     ("lateral refitted with the present r, no hilltops (M2)", _lateral_no_hill),
     ("lateral split by the present r (M3)", _lateral_split_present))})
-_FIXED = [c[0] for c in CANDIDATES.values() if getattr(c[0], "__name__", "") == "predictor"]
+
+
+def _transient_r(form: str, tau: float) -> Callable[[dict, dict], float]:
+    """Round 22: round 11's r, or 1.0 where the one-U run moves the divide >= 0.5 cell toward the favoured side,
+    the per-basin run's shift toward it is > -0.5 (unmeasured: no), and the aggressor's basin is transient:
+    ``form`` "A" its transience >= tau, "AA" its absolute value, "D" it minus the victim's (NaN: no)."""
+    def r(p, m):
+        if _both_agree(p, m, 0.5):  # round 11's r
+            return 1.0
+        t2 = _toward(p, m, "forward_shift_basin_cells")
+        favoured = _favoured(p)
+        if not (_agrees(p, m, 0.5) and t2 is not None and t2 > -0.5 and favoured):
+            return 0.0
+        aggressor, victim = (_shift(m, k) for k in (("transience_a", "transience_b") if favoured > 0
+                                                     else ("transience_b", "transience_a")))
+        value = {"A": aggressor, "AA": None if aggressor is None else abs(aggressor),
+                 "D": None if aggressor is None or victim is None else aggressor - victim}[form]
+        return float(value is not None and value >= tau)
+    return r
+
+
+#: Round 22: main segments with round 11's r widened to transient aggressor basins (shipped coefficients); lateral
+#: as shipped.
+CANDIDATES.update({f"transient aggressor {form}({tau:g})": ({"main": _shipped_with(_transient_r(form, tau)),
+                                                            "lateral": "now"}, False, False)
+                   for form in ("AA", "A", "D") for tau in (0.1, 0.2, 0.4)})
+
+
+def _fixed(features) -> bool:
+    """A candidate part with INSTABILITY_EVIDENCE's coefficients and its own run term (nothing fitted)."""
+    return getattr(features, "__name__", "") == "predictor"
 
 
 def _of_kind(candidate: str, kind: str | None) -> tuple:
@@ -251,7 +286,7 @@ def _labelled(rows: list[dict]):
 def fit(rows: list[dict], kind: str, candidate: str) -> np.ndarray | None:
     """The candidate's coefficients for one kind of divide (None when nothing is fitted)."""
     features, offset, fallback = _of_kind(candidate, kind)
-    if features == "now" or features in _FIXED:
+    if features == "now" or _fixed(features):
         return None
     data = [(features(m["probabilities"], m), y, _OLD(m["probabilities"], m, kind) if offset else 0.0)
             for m, y in _labelled(rows) if _kind(m) == kind and not (fallback and _shift(m) is None)]
@@ -283,7 +318,7 @@ def instability(m: dict, w: np.ndarray | None, candidate: str) -> float | None:
         return instability_of(p, kind)
     if features == "now":
         return instability_of(p, kind, m)
-    if features in _FIXED:
+    if _fixed(features):
         t = features(p, m, kind)
     else:
         x = np.asarray(features(p, m))
