@@ -376,6 +376,11 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     >>> one_run = {"forward_shift_cells": 0.8, "forward_shift_basin_cells": -0.3, "hilltop_contrast": 0.2}
     >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", one_run) < 0.01  # the runs disagree
     True
+    >>> fall = {**one_run, "forward_shift_basin_cells": 0.1, "transience_a": -0.4}  # a, the aggressor, transient
+    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", fall), 2)
+    0.99
+    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", {**fall, "transience_a": 0.05}) < 0.01
+    True
     >>> instability_of(None) is None
     True
     """

@@ -3,7 +3,7 @@
 At steady state every channel cell erodes at the uplift rate, E = K A^m S^n − D ∇²z = U (Perron, Kirchner &
 Dietrich 2009), so a basin lopsided against its neighbour by a steady contrast of uplift, erodibility or runoff is
 steep throughout. After its base level falls, the reach below the migrating knickpoint erodes faster than the
-reach above it, which has not yet felt the fall (Whipple & Tucker 1999; Crosby & Whipple 2006). Screening reads
+reach above it, which has not yet felt the fall (Whipple & Tucker 1999). Screening reads
 the contrast between a basin's lower and upper channels to tell the two apart, since a run of the landscape with
 one uplift rate per basin (:func:`divides.model.landscape_shift.steady_uplift`) absorbs both alike.
 """
@@ -25,8 +25,10 @@ def basin_transience(start: ModelStart, n: float) -> np.ndarray:
     E = A^m S^n − D ∇²z at K = 1 (D of the one-uplift steady balance, :func:`steady_uplift`) over the
     basin's channel cells (``start.cells`` whose balance can be read, :func:`balance_terms`), split into a
     lower and an upper half by elevation (the middle cell of an odd count goes up); E_lower and E_upper are
-    the medians of the halves. About 0 at steady state whatever U and K are (the ratio cancels them);
-    positive while a fall of base level climbs the basin.
+    the medians of the halves. About 0 at steady state whatever U and K are, as long as they are uniform within
+    the basin (the ratio cancels them); away from 0 while a fall of base level climbs the basin (negative once a
+    step has passed the lower half and restored the old slope below it), and where the basin straddles a
+    contrast of uplift, erodibility or runoff.
 
     Parameters
     ----------

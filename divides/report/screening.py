@@ -15,6 +15,7 @@ from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 
+from divides.assess.screen import EVIDENCE_KEYS
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
@@ -37,8 +38,8 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", "forward_shift_cells",
-            "forward_shift_basin_cells", "hilltop_contrast", "x_mid", "y_mid")
+            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS,
+            "x_mid", "y_mid")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -56,6 +57,9 @@ SCREENING_REFERENCES = tuple(sorted(
         "hillslope form and relief. Earth and Planetary Science Letters 264, 245–258.",
         "Royden, L., Perron, J. T. (2013). Solutions of the stream power equation and application to the "
         "evolution of river longitudinal profiles. Journal of Geophysical Research: Earth Surface 118, 497–518.",
+        "Whipple, K. X., Tucker, G. E. (1999). Dynamics of the stream-power river incision model: implications "
+        "for height limits of mountain ranges, landscape response timescales, and research needs. Journal of "
+        "Geophysical Research 104(B8), 17661–17674.",
     ]))
 
 
@@ -82,7 +86,7 @@ def segment_rows(result: Screening) -> list[dict]:
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
             "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
             **{k: None if s.get(k) is None else round(float(s[k]), 3)
-               for k in ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")},
+               for k in EVIDENCE_KEYS},
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
         })
     return rows
@@ -97,7 +101,7 @@ def segment_features(result: Screening) -> list[dict]:
         props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
                                    "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
                                    "divide_kind")}
-        props.update({k: s.get(k) for k in ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast")})
+        props.update({k: s.get(k) for k in EVIDENCE_KEYS})
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
@@ -328,8 +332,11 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "Perron et al. 2009) move each segment by the area its two basins exchange next to it, and the "
            "curvature of the hilltops next to it says which side lowers faster (E = −D ∇²z; Roering et al. "
            "2007). The instability then reads whether both runs move the segment at least half a model cell the "
-           "way the near-divide measures point, and whether the hilltops agree (Gilbert 1877; Royden &amp; "
-           "Perron 2013). With this evidence the instability is a score that ranks the segments, not a "
+           "way the near-divide measures point (on a main divide whose eroding basin is out of steady state, its "
+           "lower channels eroding unlike its upper ones, whether the first does and the second does not move it "
+           "as far the other way: the second takes a fall of base level for steady uplift), and whether the "
+           "hilltops agree (Gilbert 1877; Royden &amp; Perron 2013; Whipple &amp; Tucker 1999). With this "
+           "evidence the instability is a score that ranks the segments, not a "
            "calibrated probability: a segment the runs do not move gets little even when it moves (its "
            "reliability on held-out model landscapes is in docs/validation.md). Segments scored below 0.01 "
            "rank after the rest, furthest moved toward the favoured side by the one-uplift-rate run first "

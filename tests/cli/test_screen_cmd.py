@@ -80,17 +80,18 @@ def test_existing_output_folder_is_refused(tmp_path, capsys):
 
 def test_screen_forward_run_is_asked_for_and_written(tmp_path, capsys):
     # --forward-run (the default, as docs/output-formats.md says): every segment the runs measured carries
-    # both runs' shifts in segments.geojson and segments.csv, screening.json records the run, and the
-    # report says what they added.
+    # both runs' shifts and its basins' transience in segments.geojson and segments.csv, screening.json records
+    # the run, and the report says what they added.
     out = tmp_path / "s"
     code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--level", "outlets", "--forward-run"])
     assert code == 0, capsys.readouterr().err
     doc = json.loads((out / "screening.json").read_text())
     assert doc["parameters"]["forward_run"] is True and doc["parameters"]["forward_run_grid"]["steps"] >= 20
     features = json.loads((out / "segments.geojson").read_text())["features"]
-    for key in ("forward_shift_cells", "forward_shift_basin_cells"):
-        shifts = [f["properties"][key] for f in features]
-        assert shifts and any(v is not None for v in shifts)
+    evidence = ("forward_shift_cells", "forward_shift_basin_cells", "transience_a", "transience_b")
+    for key in evidence:
+        values = [f["properties"][key] for f in features]
+        assert values and any(v is not None for v in values)
     with open(out / "segments.csv", newline="") as fh:
-        assert {"forward_shift_cells", "forward_shift_basin_cells"} <= set(next(csv.reader(fh)))
+        assert set(evidence) <= set(next(csv.reader(fh)))
     assert "forward runs of the landscape-evolution model" in (out / "report.html").read_text()

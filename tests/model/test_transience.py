@@ -44,8 +44,8 @@ def test_steady_basins_are_not_transient(steady_ridge):
 
 
 def test_a_fall_of_base_level_makes_only_the_fallen_basins_transient(steady_ridge):
-    # A 50 m drop of the west base level climbs the west channels as a knickpoint (Whipple & Tucker 1999;
-    # Crosby & Whipple 2006): 0.2 Myr on, the west basins' lower and upper channels erode at rates that differ
+    # A 50 m drop of the west base level climbs the west channels as a knickpoint (Whipple & Tucker
+    # 1999): 0.2 Myr on, the west basins' lower and upper channels erode at rates that differ
     # by far more than the steady tolerance, whichever half the wave is in; the east basins stay steady.
     from divides.model.simulate import simulate
 
