@@ -13,7 +13,8 @@ The candidates are those of the fourth to twenty-second rounds of docs/validatio
 ``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)"; "both runs agree
 by 0.5, shipped coefficients" is round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate
 is round 17's r), ``shipped before round 11`` its coefficients with the run term they were fitted with (the one-U
-run agreeing by 0.1 cell); neither is refitted. Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
+run agreeing by 0.1 cell); neither is refitted. A candidate whose part for one kind of divide is "now" takes the
+shipped model of that kind as it is when the script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
 intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
 segments too (rounds 14-21: below a score, by a landscape run's shift; :data:`RANKINGS`); "by instability"
 (default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
@@ -31,7 +32,6 @@ from bench_regional import probability_scores  # this folder (scripts run from h
 from scipy.optimize import minimize
 
 from divides.assess.screen import (
-    INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
     evidence_features,
     instability_of,
@@ -41,6 +41,10 @@ from divides.model.regional_benchmark import raises_alarm, ranking_targets
 
 PRIOR_SD = 10.0
 KINDS = ("main", "lateral")
+
+#: screen.INSTABILITY_EVIDENCE as fitted (version 3); round 23 set the lateral hilltop coefficient to 0 in the shipped
+#: model. Past candidates keep these, so that their figures do not move with the shipped model.
+FITTED = {"main": (-27.16, 2.70, 16.06, 22.42), "lateral": (-3.89, 1.02, 8.07, 0.61)}
 
 
 def _shift(m: dict, key: str = "forward_shift_cells") -> float | None:
@@ -122,9 +126,9 @@ def _both_runs(product: bool, t: float = 0.1) -> Callable[[dict, dict], list[flo
 
 
 def _shipped_with(r: Callable[[dict, dict], float]) -> Callable[[dict, dict, str], float]:
-    """The linear predictor of INSTABILITY_EVIDENCE's coefficients with the run term ``r``."""
+    """The linear predictor of the fitted evidence coefficients (:data:`FITTED`) with the run term ``r``."""
     def predictor(p, m, kind):
-        alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
+        alpha, beta, g_hill, g_run = FITTED[kind]
         lp, h = _lp_h(p, m)
         return alpha + beta * lp + g_hill * h + g_run * r(p, m)
     return predictor
@@ -159,7 +163,7 @@ def _beyond_one(p: dict, m: dict) -> list[float]:
 
 
 #: name -> (features, offset by the model shipped before round 11, unmeasured one-U shift falls back to the
-#: P-only scaling); a callable in place of features: a model with INSTABILITY_EVIDENCE's coefficients and that
+#: P-only scaling); a callable in place of features: a model with the fitted evidence coefficients and that
 #: run term, nothing fitted. "shipped now" is screen.instability_of as it is (round 11's winner).
 CANDIDATES: dict[str, tuple] = {
     "shipped now": ("now", False, False),
@@ -254,15 +258,42 @@ def _transient_r(form: str, tau: float) -> Callable[[dict, dict], float]:
     return r
 
 
-#: Round 22: main segments with round 11's r widened to transient aggressor basins (shipped coefficients); lateral
-#: as shipped.
+#: Round 22: main segments with round 11's r widened to transient aggressor basins (fitted coefficients); lateral
+#: as shipped then (round 11's r).
+_ROUND_11 = _shipped_with(lambda p, m: _both_agree(p, m, 0.5))
 CANDIDATES.update({f"transient aggressor {form}({tau:g})": ({"main": _shipped_with(_transient_r(form, tau)),
-                                                            "lateral": "now"}, False, False)
+                                                            "lateral": _ROUND_11}, False, False)
                    for form in ("AA", "A", "D") for tau in (0.1, 0.2, 0.4)})
 
 
+
+def _lateral_hill(gate: bool) -> Callable[[dict, dict, str], float]:
+    """Round 23: the fitted lateral coefficients with the hilltop term left out (``gate`` False) or counted only
+    where both runs agree (r = 1)."""
+    def predictor(p, m, kind):
+        alpha, beta, g_hill, g_run = FITTED[kind]
+        lp, h, r = evidence_features(p, m, kind)
+        return alpha + beta * lp + (g_hill * h * r if gate else 0.0) + g_run * r
+    return predictor
+
+
+def _lateral_gate_refit(p: dict, m: dict) -> list[float]:
+    lp, h, r = evidence_features(p, m, "lateral")
+    return [lp, h * r, r]
+
+
+#: Round 23: the main divide's instability as shipped, the lateral one's hilltop term dropped or gated by r.
+CANDIDATES.update({
+    "lateral without hilltops (L-noh)": ({"main": "now", "lateral": _lateral_hill(False)}, False, False),
+    "lateral hilltops only where both runs agree (L-gate)": ({"main": "now", "lateral": _lateral_hill(True)},
+                                                             False, False),
+    "lateral refitted on logit p, h r, r (L-gate-refit)": ({"main": "now", "lateral": _lateral_gate_refit},
+                                                           False, False),
+})
+
+
 def _fixed(features) -> bool:
-    """A candidate part with INSTABILITY_EVIDENCE's coefficients and its own run term (nothing fitted)."""
+    """A candidate part with the fitted evidence coefficients and its own run term (nothing fitted)."""
     return getattr(features, "__name__", "") == "predictor"
 
 
