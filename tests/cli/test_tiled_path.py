@@ -2,8 +2,9 @@
 
 Reference for the results: the in-memory path of the same command on the same DEM (routing by
 tiles equals in-memory routing: tests/terrain/test_tiled_flow.py, whose reference is
-test_routing.py's scikit-image and networkx checks). The demo landscape is a float32 GeoTIFF
-of 30 m cells, so drainage areas are whole m² and every number must match.
+test_routing.py's scikit-image and networkx checks). The demo landscape, stored here as float32 (the tiled
+path's precision; the demo file itself is float64), has 30 m cells, so drainage areas are whole m² and every
+number must match.
 """
 
 from __future__ import annotations
@@ -16,7 +17,20 @@ import pytest
 from divides.cli.app import run
 from divides.io import memory
 
-UPLANDS = str(Path(__file__).resolve().parents[2] / "demo" / "uplands.tif")
+DEMO = Path(__file__).resolve().parents[2] / "demo" / "uplands.tif"
+
+
+@pytest.fixture(scope="module")
+def uplands(tmp_path_factory) -> str:
+    """The demo landscape as a float32 GeoTIFF (its centimetre values, rounded to float32)."""
+    import rasterio
+
+    path = tmp_path_factory.mktemp("uplands") / "uplands.tif"
+    with rasterio.open(DEMO) as src:
+        profile, z = {**src.profile, "dtype": "float32"}, src.read(1).astype("float32")
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(z, 1)
+    return str(path)
 
 
 def _judged(folder: Path) -> dict:
@@ -24,9 +38,9 @@ def _judged(folder: Path) -> dict:
     return {k: doc[k] for k in ("segments", "gaps", "coverage", "n_basins")}
 
 
-def test_screen_tiled_equals_in_memory_and_clears_its_scratch(tmp_path, capsys):
+def test_screen_tiled_equals_in_memory_and_clears_its_scratch(tmp_path, capsys, uplands):
     scratch = tmp_path / "scratch"
-    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
+    base = ["screen", uplands, "--quiet", "--level", "outlets"]
     assert run([*base, "--out", str(tmp_path / "mem")]) == 0
     assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled", "--scratch", str(scratch)]) == 0
     capsys.readouterr()
@@ -34,41 +48,41 @@ def test_screen_tiled_equals_in_memory_and_clears_its_scratch(tmp_path, capsys):
     assert scratch.is_dir() and list(scratch.iterdir()) == []  # the intermediate tiles are gone
 
 
-def test_tiled_path_starts_by_itself_when_routing_would_not_fit(tmp_path, capsys, monkeypatch):
+def test_tiled_path_starts_by_itself_when_routing_would_not_fit(tmp_path, capsys, monkeypatch, uplands):
     # No machine here is too small for the demo: make "in-memory routing fits" false, as the
     # guard would find on a DEM larger than memory, and the command must route by tiles itself.
     monkeypatch.setattr(memory, "fits", lambda cells, per_cell: False)
-    code = run(["screen", UPLANDS, "--out", str(tmp_path / "auto"), "--level", "outlets"])
+    code = run(["screen", uplands, "--out", str(tmp_path / "auto"), "--level", "outlets"])
     captured = capsys.readouterr()
     assert code == 0, captured.err
     assert "routing by tiles" in captured.err
 
 
 @pytest.mark.parametrize("command", ["screen", "assess"])
-def test_tiled_with_breaching_is_one_line(tmp_path, capsys, command):
+def test_tiled_with_breaching_is_one_line(tmp_path, capsys, command, uplands):
     sides = ["--side-a", "west", "--side-b", "east"] if command == "assess" else []
     out = tmp_path / "never"
-    code = run([command, UPLANDS, *sides, "--out", str(out), "--tiled", "--conditioning", "breach"])
+    code = run([command, uplands, *sides, "--out", str(out), "--tiled", "--conditioning", "breach"])
     captured = capsys.readouterr()
     lines = captured.err.strip().splitlines()
     assert code == 2 and len(lines) == 1 and "--tiled" in lines[0] and "Traceback" not in captured.err
     assert not out.exists()
 
 
-def test_scratch_that_is_a_file_is_one_line(tmp_path, capsys):
+def test_scratch_that_is_a_file_is_one_line(tmp_path, capsys, uplands):
     blocker = tmp_path / "file"
     blocker.write_text("x")
-    code = run(["screen", UPLANDS, "--out", str(tmp_path / "never"), "--tiled", "--scratch", str(blocker)])
+    code = run(["screen", uplands, "--out", str(tmp_path / "never"), "--tiled", "--scratch", str(blocker)])
     lines = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(lines) == 1 and "--scratch" in lines[0]
 
 
 @pytest.mark.parametrize("tiled", [False, True])
-def test_when_nothing_fits_the_guard_names_bounds(tmp_path, capsys, monkeypatch, tiled):
+def test_when_nothing_fits_the_guard_names_bounds(tmp_path, capsys, monkeypatch, tiled, uplands):
     # 100 kB cannot hold the demo (36 000 cells x tens of bytes) on either path.
     monkeypatch.setenv(memory.MEMORY_LIMIT_ENV, "100K")
     out = tmp_path / "never"
-    code = run(["screen", UPLANDS, "--out", str(out)] + (["--tiled"] if tiled else []))
+    code = run(["screen", uplands, "--out", str(out)] + (["--tiled"] if tiled else []))
     captured = capsys.readouterr()
     lines = captured.err.strip().splitlines()
     assert code == 2 and len(lines) == 1, captured.err
@@ -77,8 +91,8 @@ def test_when_nothing_fits_the_guard_names_bounds(tmp_path, capsys, monkeypatch,
     assert not out.exists()
 
 
-def test_assess_tiled_equals_in_memory(tmp_path, capsys):
-    base = ["assess", UPLANDS, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
+def test_assess_tiled_equals_in_memory(tmp_path, capsys, uplands):
+    base = ["assess", uplands, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
             "--no-robustness", "--quiet"]
     assert run([*base, "--out", str(tmp_path / "mem")]) == 0
     assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled", "--scratch", str(tmp_path / "scratch")]) == 0
@@ -100,21 +114,21 @@ def _on_a_cluster(argv, tmp_path, capsys) -> set[str]:
     return set(ran)
 
 
-def test_screen_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
+def test_screen_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys, uplands):
     # --scheduler sends the tiles (not only the divide segments) to the cluster; the result equals
     # the in-memory screening (reference as above). Two in-process workers keep the test short.
-    base = ["screen", UPLANDS, "--quiet", "--level", "outlets"]
+    base = ["screen", uplands, "--quiet", "--level", "outlets"]
     assert run([*base, "--out", str(tmp_path / "mem")]) == 0
     ran = _on_a_cluster([*base, "--out", str(tmp_path / "cluster")], tmp_path, capsys)
     assert {"flood", "d8", "final_area", "assess_pairs"} <= ran, ran
     assert _judged(tmp_path / "cluster") == _judged(tmp_path / "mem")
 
 
-def test_assess_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys):
+def test_assess_tiled_runs_its_tiles_on_the_cluster_given(tmp_path, capsys, uplands):
     # assess --tiled --scheduler routes its tiles on that cluster, and the verdict equals the
     # in-memory assessment (reference: the in-memory path, itself checked against scikit-image's
     # reconstruction and networkx in tests/terrain).
-    base = ["assess", UPLANDS, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
+    base = ["assess", uplands, "--side-a", "west", "--side-b", "east", "--closed-edges", "north,south",
             "--no-robustness", "--no-forward-run", "--quiet"]
     assert run([*base, "--out", str(tmp_path / "mem")]) == 0
     ran = _on_a_cluster([*base, "--out", str(tmp_path / "cluster")], tmp_path, capsys)
