@@ -30,8 +30,7 @@ from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
-           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
-           "TRANSIENT_BASIN"]
+           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",

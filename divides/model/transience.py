@@ -1,11 +1,11 @@
-"""How far each outlet basin of a landscape is from steady state: lower channels eroding faster than upper ones.
+"""How far each outlet basin of a landscape is from steady state: its lower and upper channels eroding unlike.
 
 At steady state every channel cell erodes at the uplift rate, E = K A^m S^n − D ∇²z = U (Perron, Kirchner &
 Dietrich 2009), so a basin lopsided against its neighbour by a steady contrast of uplift, erodibility or runoff is
-steep throughout. After its base level falls, the reach below the migrating knickpoint erodes faster than the
-reach above it, which has not yet felt the fall (Whipple & Tucker 1999). Screening reads
-the contrast between a basin's lower and upper channels to tell the two apart, since a run of the landscape with
-one uplift rate per basin (:func:`divides.model.landscape_shift.steady_uplift`) absorbs both alike.
+steep throughout. While a fall of its base level climbs it, the reach the knickpoint has passed and the reach it
+has not yet reached erode at different rates (Whipple & Tucker 1999). Screening reads the contrast between a
+basin's lower and upper channels to tell the two apart, since a run of the landscape with one uplift rate per
+basin (:func:`divides.model.landscape_shift.steady_uplift`) absorbs both alike.
 """
 
 from __future__ import annotations
