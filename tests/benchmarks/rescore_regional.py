@@ -9,13 +9,14 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twenty-second rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)"; "both runs agree
-by 0.5, shipped coefficients" is round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate
-is round 17's r), ``shipped before round 11`` its coefficients with the run term they were fitted with (the one-U
-run agreeing by 0.1 cell); neither is refitted. A candidate whose part for one kind of divide is "now" takes the
-shipped model of that kind as it is when the script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian prior of sd 10 on every coefficient but the
-intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
+The candidates are those of the fourth to twenty-third rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)" on main divides,
+round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is round 11's r, shipped in
+rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped before round 11`` its
+coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is refitted.
+A candidate whose part for one kind of divide is "now" takes the shipped model of that kind as it is when the
+script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
+prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
 segments too (rounds 14-21: below a score, by a landscape run's shift; :data:`RANKINGS`); "by instability"
 (default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
 """
