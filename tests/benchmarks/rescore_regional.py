@@ -9,16 +9,17 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twenty-third rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to twenty-fourth rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)" on main divides,
 round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is round 11's r, shipped in
 rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped before round 11`` its
 coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is refitted.
 A candidate whose part for one kind of divide is "now" takes the shipped model of that kind as it is when the
 script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
-prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate). ``--rankings`` scores orders of the
-segments too (rounds 14-21: below a score, by a landscape run's shift; :data:`RANKINGS`); "by instability"
-(default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
+prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
+``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
+24: transient aggressors first; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13 and
+"shipped" screen.rank_key. Give it training cases only.
 """
 
 from __future__ import annotations
@@ -34,6 +35,7 @@ from scipy.optimize import minimize
 
 from divides.assess.screen import (
     INSTABILITY_SCALING,
+    TRANSIENT_BASIN,
     evidence_features,
     instability_of,
     rank_key,
@@ -408,7 +410,7 @@ _K2, _U2 = _run_key(None), _unknown_joins("U2")
 
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key; T1 (round 24) is added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: rank_key(m["_i"], m["probabilities"], m),
@@ -420,6 +422,21 @@ RANKINGS: dict[str, Callable[[dict], tuple]] = {
        for v, name, value in (("V1", "first", math.inf), ("V2", "as 0", 0.0))},
     "R18: rounds 14 and 18": _tiered(0.01, _K2, unknown=_U2),
 }
+
+
+def _transient_first(m: dict) -> tuple:
+    """Round 24 (T1): screen.rank_key, but in its second tier the segments whose aggressor's basin (away from the
+    favoured side) has |transience| >= TRANSIENT_BASIN come first (unknown segments joining the tier do not)."""
+    key = rank_key(m["_i"], m["probabilities"], m)
+    if key[0] != 1:
+        return (key[0], 0, *key[1:])
+    p = m["probabilities"]
+    side = _favoured(p) if m["_i"] is not None and p is not None else 0.0
+    t = _shift(m, "transience_a" if side > 0 else "transience_b") if side else None
+    return (1, 0 if t is not None and abs(t) >= TRANSIENT_BASIN else 1, *key[1:])
+
+
+RANKINGS["T1: transient aggressors first below 0.01"] = _transient_first
 
 
 def targets(case: dict, ranking: str = "by instability") -> dict:
