@@ -264,8 +264,8 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
     # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6), 0.128 against 0.131
     # (seed 7), 0.202 against 0.229 (seed 8), 0.119 against 0.161 (seed 9), 0.165 against 0.192 (seed 10) and
-    # 0.205 against 0.258 (seed 12) when written (on master seeds 0's, 3's and 11's held-out cases it did not: 0.181 against 0.163, 0.232 against
-    # 0.209 and 0.117 against 0.110; docs/validation.md).
+    # 0.205 against 0.258 (seed 12) when written (on master seeds 0's, 3's and 11's held-out cases it did not:
+    # 0.181 against 0.163, 0.232 against 0.209 and 0.117 against 0.110; docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
@@ -298,9 +298,9 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
     # 7 of 7, 3 of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6 and 6 of 6 steady cases of seeds 1-7
-    # and 9-12 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before the runs had to move a segment half a cell, round 11;
-    # seeds 5, 6, 7 and 10: 2 of 4, 6 of 8, 9 of 10 and 5 of 6 before the lateral divides left the hilltops out,
-    # round 23).
+    # and 9-12 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before the runs had to move a segment half a cell,
+    # round 11; seeds 5, 6, 7 and 10: 2 of 4, 6 of 8, 9 of 10 and 5 of 6 before the lateral divides left the
+    # hilltops out, round 23).
     assert all(r["alarm_ok"] for r in _held_out(seed))
 
 
