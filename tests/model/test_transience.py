@@ -65,3 +65,15 @@ def test_basins_too_small_to_read_are_not_measured(steady_ridge):
     cells = np.bincount(start.before.ravel()[start.cells], minlength=t.size)
     assert np.all(np.isnan(t[cells < MIN_BALANCE_CELLS]))
     assert np.isnan(t[0])
+
+
+def test_a_landscape_too_small_to_read_gives_no_transience():
+    # A tilted plane of 8 x 8 cells has no basin with MIN_BALANCE_CELLS channel cells: every basin is unmeasured
+    # (NaN), and nothing fails.
+    import divides
+
+    z = np.add.outer(np.arange(8.0), np.arange(8.0)) * 5.0
+    start = model_start(divides.Dem.from_array(z, cell_size=30.0), theta=0.5, n=1.0, closed_edges=(),
+                        channel_area_m2=2e3)
+    t = basin_transience(start, 1.0)
+    assert t.size == int(start.before.max()) + 1 and np.isnan(t).all()
