@@ -24,11 +24,12 @@ def _book(west_gradient: float, east_gradient: float, rows: int = 21, cols: int 
 
 
 def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = None,
-                 transience: tuple = (None, None)) -> float:
+                 transience: tuple = (None, None), spread: tuple = (None, None)) -> float:
     # The documented models (docs/methods.md §7b): Platt scaling without the landscape evidence, and with it
     # the logistic model adding the hilltop contrast toward the favoured side and the runs' agreement (both
     # runs move the divide at least half a model cell toward the favoured side, or, on a main divide whose
-    # aggressor's basin has |transience| >= 0.1, the first does and the second not half a cell the other way).
+    # aggressor's basin has |transience| >= 0.1 and >= twice its spread under the DEM error model, the first does
+    # and the second not half a cell the other way).
     q = p["a"] + p["b"]
     z = math.log(q / (1.0 - q))
     if shifts is None and hill is None:
@@ -37,8 +38,8 @@ def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = 
     alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
     favoured = 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
     one_u, per_basin = (None if s is None else favoured * s for s in shifts)
-    aggressor = transience[0] if favoured > 0 else transience[1]
-    transient = kind == "main" and aggressor is not None and abs(aggressor) >= 0.1
+    aggressor, sd = (transience[0], spread[0]) if favoured > 0 else (transience[1], spread[1])
+    transient = kind == "main" and aggressor is not None and sd is not None and abs(aggressor) >= max(0.1, 2 * sd)
     agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= 0.5 and (
         per_basin >= 0.5 or (transient and per_basin > -0.5))
     return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * favoured * (hill or 0.0) + g_run * agrees)))
@@ -58,7 +59,7 @@ def test_the_forward_run_moves_the_divide_into_the_gentler_flank(west, east):
     assert abs(s["forward_shift_cells"]) > 0.5 and victim == gentle
     shifts = (s["forward_shift_cells"], s["forward_shift_basin_cells"])
     expected = _instability(s["probabilities"], "main", shifts, s["hilltop_contrast"],
-                            (s["transience_a"], s["transience_b"]))
+                            (s["transience_a"], s["transience_b"]), (s["transience_sd_a"], s["transience_sd_b"]))
     assert s["instability"] == pytest.approx(expected, abs=1e-9)
     assert result.parameters["forward_run"] is True and result.parameters["forward_run_grid"]["steps"] >= 20
 

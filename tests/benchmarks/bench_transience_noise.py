@@ -5,8 +5,9 @@
 Screening reads a basin as transient when |T| >= TRANSIENT_BASIN (divides.model.transience.basin_transience,
 T = ln(E_lower / E_upper)). At steady state T is 0 up to discretisation (tests/model/test_transience.py); this
 adds DEM error from the project's error model (exponential covariance, divides.terrain.dem_error.DemError) to
-steady landscapes and prints, per error level, the share of measured basins with |T| >= TRANSIENT_BASIN and the
-largest |T|:
+steady landscapes and prints, per error level, the share of measured basins with |T| >= TRANSIENT_BASIN, the share
+that is also at least twice its spread under screening's default DEM error model (1 m over 3 cells;
+divides.model.transience.transience_spread, round 25), and the largest |T|:
 
 - the small ridge of tests/model/test_transience.py (40 x 60 cells of 100 m, 72 m of relief), grown steady;
 - the steady regional benchmark cases of master seed 0's training split (divides.model.regional_benchmark;
@@ -22,7 +23,7 @@ import numpy as np
 import divides
 from divides.assess.screen import TRANSIENT_BASIN
 from divides.model.landscape_shift import model_start
-from divides.model.transience import basin_transience
+from divides.model.transience import basin_transience, transience_spread
 from divides.terrain.dem_error import DemError
 
 #: (σ in m, correlation length in cells); length 0 is white error.
@@ -57,21 +58,26 @@ def regional_steady(seed: int = 0) -> list[tuple[str, divides.Dem, dict]]:
 
 
 def transient_share(dem: divides.Dem, options: dict, sigma: float, length_cells: int, draws: int) -> tuple:
-    """Share of measured basins with |T| >= TRANSIENT_BASIN over ``draws`` error fields, and the largest |T|."""
+    """Share of measured basins with |T| >= TRANSIENT_BASIN over ``draws`` error fields, the share that also has
+    |T| >= 2 sd (sd: divides.model.transience.transience_spread under screening's default error model, 1 m over
+    3 cells), and the largest |T|."""
     z = np.asarray(dem.elevation, dtype=np.float64)
     cell = float(min(np.min(dem.dx), np.min(dem.dy)))
-    error = DemError(sigma, length_cells * cell)
-    flagged, measured, largest = 0, 0, 0.0
+    error, assumed = DemError(sigma, length_cells * cell), DemError(1.0, 3.0 * cell)
+    flagged, significant, measured, largest = 0, 0, 0, 0.0
     for k in range(draws if sigma > 0 else 1):
         noisy = z + error.sample_grid(z.shape, (float(np.mean(dem.dy)), float(np.mean(dem.dx))),
                                       np.random.default_rng(k))
         grid = (divides.Dem.from_array(noisy, cell_size=cell) if dem.crs is None
                 else divides.Dem.from_array(noisy, transform=dem.transform, crs=dem.crs))
-        t = basin_transience(model_start(grid, n=1.0, **options), 1.0)
-        t = np.abs(t[np.isfinite(t)])
+        start = model_start(grid, n=1.0, **options)
+        t, sd = basin_transience(start, 1.0), transience_spread(start, 1.0, assumed)
+        ok = np.isfinite(t)
+        t, sd = np.abs(t[ok]), sd[ok]
         flagged, measured = flagged + int(np.sum(t >= TRANSIENT_BASIN)), measured + t.size
+        significant += int(np.sum((t >= TRANSIENT_BASIN) & (t >= 2.0 * sd)))
         largest = max(largest, float(t.max()) if t.size else 0.0)
-    return flagged / max(measured, 1), largest, measured
+    return flagged / max(measured, 1), significant / max(measured, 1), largest, measured
 
 
 def main() -> None:
@@ -83,10 +89,10 @@ def main() -> None:
         z = np.asarray(dem.elevation, dtype=np.float64)
         print(f"{name}: {dem.shape[0]} x {dem.shape[1]} cells, relief {np.nanmax(z) - np.nanmin(z):.0f} m")
         for sigma, length in ERRORS:
-            share, largest, n = transient_share(dem, options, sigma, length, args.draws)
+            share, significant, largest, n = transient_share(dem, options, sigma, length, args.draws)
             kind = "white" if length == 0 else f"L = {length} cells"
-            print(f"  sigma {sigma:4.2f} m, {kind:<14} basins with |T| >= {TRANSIENT_BASIN:g}: {share:5.0%} "
-                  f"(of {n}), largest |T| {largest:.2f}", flush=True)
+            print(f"  sigma {sigma:4.2f} m, {kind:<14} basins with |T| >= {TRANSIENT_BASIN:g}: {share:5.0%}, "
+                  f"and >= 2 sd: {significant:5.0%} (of {n}), largest |T| {largest:.2f}", flush=True)
 
 
 if __name__ == "__main__":

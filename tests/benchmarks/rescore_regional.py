@@ -9,10 +9,10 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twenty-fourth rounds of docs/validation.md (*Regional screening*);
-``shipped now`` is screen.instability_of as it is (round 22's "transient aggressor AA(0.1)" on main divides,
-round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is round 11's r, shipped in
-rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped before round 11`` its
+The candidates are those of the fourth to twenty-fifth rounds of docs/validation.md (*Regional screening*);
+``shipped now`` is screen.instability_of as it is (round 25's "transient aggressor S2(0.1), significant under DEM
+error" on main divides, round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is
+round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped before round 11`` its
 coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is refitted.
 A candidate whose part for one kind of divide is "now" takes the shipped model of that kind as it is when the
 script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
@@ -245,7 +245,8 @@ CANDIDATES.update({name: ({"main": "now", "lateral": f}, False, False) for name,
 def _transient_r(form: str, tau: float) -> Callable[[dict, dict], float]:
     """Round 22: round 11's r, or 1.0 where the one-U run moves the divide >= 0.5 cell toward the favoured side,
     the per-basin run's shift toward it is > -0.5 (unmeasured: no), and the aggressor's basin is transient:
-    ``form`` "A" its transience >= tau, "AA" its absolute value, "D" it minus the victim's (NaN: no)."""
+    ``form`` "A" its transience >= tau, "AA" its absolute value, "D" it minus the victim's, "S2" (round 25) its
+    absolute value >= tau and >= twice its spread under the DEM error model (NaN: no)."""
     def r(p, m):
         if _both_agree(p, m, 0.5):  # round 11's r
             return 1.0
@@ -255,6 +256,9 @@ def _transient_r(form: str, tau: float) -> Callable[[dict, dict], float]:
             return 0.0
         aggressor, victim = (_shift(m, k) for k in (("transience_a", "transience_b") if favoured > 0
                                                      else ("transience_b", "transience_a")))
+        if form == "S2":  # round 25: |T| >= tau and at least twice its spread under the DEM error model
+            sd = _shift(m, "transience_sd_a" if favoured > 0 else "transience_sd_b")
+            return float(aggressor is not None and sd is not None and abs(aggressor) >= max(tau, 2.0 * sd))
         value = {"A": aggressor, "AA": None if aggressor is None else abs(aggressor),
                  "D": None if aggressor is None or victim is None else aggressor - victim}[form]
         return float(value is not None and value >= tau)
@@ -284,6 +288,11 @@ def _lateral_gate_refit(p: dict, m: dict) -> list[float]:
     lp, h, r = evidence_features(p, m, "lateral")
     return [lp, h * r, r]
 
+
+#: Round 25: round 22's transient aggressor read only when |T| is at least twice its spread under the DEM error
+#: model (transience_sd_a / _b); lateral as shipped (round 23).
+CANDIDATES["transient aggressor S2(0.1), significant under DEM error"] = (
+    {"main": _shipped_with(_transient_r("S2", 0.1)), "lateral": "now"}, False, False)
 
 #: Round 23: the main divide's instability as shipped, the lateral one's hilltop term dropped or gated by r.
 CANDIDATES.update({

@@ -88,7 +88,8 @@ def test_screen_forward_run_is_asked_for_and_written(tmp_path, capsys):
     doc = json.loads((out / "screening.json").read_text())
     assert doc["parameters"]["forward_run"] is True and doc["parameters"]["forward_run_grid"]["steps"] >= 20
     features = json.loads((out / "segments.geojson").read_text())["features"]
-    evidence = ("forward_shift_cells", "forward_shift_basin_cells", "transience_a", "transience_b")
+    evidence = ("forward_shift_cells", "forward_shift_basin_cells", "transience_a", "transience_b",
+                "transience_sd_a", "transience_sd_b")
     for key in evidence:
         values = [f["properties"][key] for f in features]
         assert values and any(v is not None for v in values)

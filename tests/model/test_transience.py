@@ -77,3 +77,19 @@ def test_a_landscape_too_small_to_read_gives_no_transience():
                         channel_area_m2=2e3)
     t = basin_transience(start, 1.0)
     assert t.size == int(start.before.max()) + 1 and np.isnan(t).all()
+
+
+def test_the_spread_under_dem_error_grows_with_the_error(steady_ridge):
+    # Propagation of error (common practice): with no DEM error every draw gives the same T (spread 0); the spread
+    # of T over draws of correlated error grows with the error's sigma; basins without a T have no spread.
+    from divides.model.transience import transience_spread
+    from divides.terrain.dem_error import DemError
+
+    start = model_start(steady_ridge, theta=_M, n=1.0, closed_edges=("north", "south"), channel_area_m2=3e4)
+    t = basin_transience(start, 1.0)
+    measured = np.isfinite(t)
+    none, small, large = (transience_spread(start, 1.0, DemError(sigma, 300.0), draws=8)
+                          for sigma in (0.0, 0.25, 2.0))
+    np.testing.assert_array_equal(none[measured], 0.0)
+    assert np.median(large[measured]) > 2.0 * np.median(small[measured]) > 0.0
+    assert np.all(np.isnan(large[~measured]))
