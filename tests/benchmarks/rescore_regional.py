@@ -12,8 +12,9 @@ changes only the instability, not the decision, its confidence or the motion azi
 The candidates are those of the fourth to twenty-fifth rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 25's "transient aggressor S2(0.1), significant under DEM
 error" on main divides, round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is
-round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped before round 11`` its
-coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell); neither is refitted.
+round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped
+before round 11`` its coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell);
+neither is refitted.
 A candidate whose part for one kind of divide is "now" takes the shipped model of that kind as it is when the
 script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
 prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
