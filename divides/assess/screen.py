@@ -67,8 +67,8 @@ INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "l
 #: coefficients were fitted on the regional benchmark's version-3 training cases with r read from the first run
 #: alone at 0.1 cell; r of both runs was chosen on 57 training cases (round 11), kept on 153 against reading the
 #: per-basin run only against contradiction everywhere (rounds 17 and 21), and widened to transient aggressors on
-#: 177 (rounds 22 and 25; rules written beforehand, docs/validation.md, *Regional screening*). On lateral divides the hilltop term is left out
-#: (gamma_h fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady
+#: 177 (rounds 22 and 25; rules written beforehand, docs/validation.md, *Regional screening*). On lateral divides
+#: the hilltop term is left out (gamma_h fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady
 #: landscapes against 13, lateral log loss 0.157 against 0.141): at steady state the side with the faster uplift
 #: has the more convex hilltops, so h reads a steady contrast as motion. A score in [0, 1] that ranks segments by
 #: how likely they move, not a calibrated probability: its reliability is in docs/validation.md.
