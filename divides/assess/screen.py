@@ -56,22 +56,22 @@ MIN_JUDGED_CELLS = 60
 #: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
 INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "lateral": (-3.71, 1.28)}
 
-#: The instability with the landscape evidence (screening's default, :func:`_landscape_evidence`): a
-#: logistic model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma_h h
-#: + gamma_r r))), p = P(a) + P(b); h the hilltop-curvature contrast signed toward the side the decision
-#: favours (:func:`divides.assess.hilltops.hilltop_contrast`; 0 when unmeasured); r = 1 when both landscape
-#: runs under the steady balance, one with one uplift rate and one with one rate per outlet basin, move the
-#: segment's divide at least :data:`RUNS_AGREE_CELLS` model cells toward that side, or, on a main divide whose
-#: aggressor's basin is transient (:data:`TRANSIENT_BASIN`, :data:`TRANSIENT_SPREADS`), the first does and the
-#: second does not move it as far the other way; else 0 (also when either run did not measure it). The
-#: coefficients were fitted on the regional benchmark's version-3 training cases with r read from the first run
-#: alone at 0.1 cell; r of both runs was chosen on 57 training cases (round 11), kept on 153 against reading the
-#: per-basin run only against contradiction everywhere (rounds 17 and 21), and widened to transient aggressors on
-#: 177 (rounds 22 and 25; rules written beforehand, docs/validation.md, *Regional screening*). On lateral divides
-#: the hilltop term is left out (gamma_h fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady
-#: landscapes against 13, lateral log loss 0.157 against 0.141): at steady state the side with the faster uplift
-#: has the more convex hilltops, so h reads a steady contrast as motion. A score in [0, 1] that ranks segments by
-#: how likely they move, not a calibrated probability: its reliability is in docs/validation.md.
+#: The instability with the landscape evidence (screening's default, :func:`_landscape_evidence`): a logistic model
+#: per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma_h h + gamma_r r))), p = P(a) + P(b);
+#: h the hilltop-curvature contrast signed toward the side the decision favours
+#: (:func:`divides.assess.hilltops.hilltop_contrast`; 0 when unmeasured); r = 1 when both landscape runs under the
+#: steady balance, one with one uplift rate and one with one rate per outlet basin, move the segment's divide at
+#: least :data:`RUNS_AGREE_CELLS` model cells toward that side, or, on a main divide whose aggressor's basin is
+#: transient (:data:`TRANSIENT_BASIN`, :data:`TRANSIENT_SPREADS`), the first does and the second does not move it as
+#: far the other way; else 0 (also when either run did not measure it). The coefficients were fitted on the regional
+#: benchmark's version-3 training cases with r read from the first run alone at 0.1 cell; r of both runs was chosen
+#: on 57 training cases (round 11), kept on 153 against reading the per-basin run only against contradiction
+#: everywhere (rounds 17 and 21), and widened to transient aggressors on 177 (rounds 22 and 25; rules written
+#: beforehand, docs/validation.md, *Regional screening*). On lateral divides the hilltop term is left out (gamma_h
+#: fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady landscapes against
+#: 13, lateral log loss 0.157 against 0.141): at steady state the side with the faster uplift has the more convex
+#: hilltops, so h reads a steady contrast as motion. A score in [0, 1] that ranks segments by how likely they move,
+#: not a calibrated probability: its reliability is in docs/validation.md.
 INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-27.16, 2.70, 16.06, 22.42),
                                                                       "lateral": (-3.89, 1.02, 0.0, 0.61)}
 
