@@ -4,7 +4,7 @@ The cases come from :mod:`divides.model.regional_benchmark`: a ridge between the
 east edges grown with the project's forward model, long along the divide, several outlet
 basins per side; the truth is measured by continuing the run (docs/validation.md,
 *Regional screening*). The fast tests grow one steady case small (120 x 96 cells) from its
-seed; the slow ones run the held-out cases of the validation (master seeds 1-13).
+seed; the slow ones run the held-out cases of the validation (master seeds 1-14).
 """
 
 from __future__ import annotations
@@ -193,11 +193,11 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 
 
 # ---------------------------------------------------------------------------- slow: held-out cases
-#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seeds 11-13, kept
-#: unseen until the shipped screening (round 23) was fixed; seeds 1-10, fresh for earlier defaults (seed 1's held-out
+#: Held-out draws of the regional benchmark (docs/validation.md, *Regional screening*): master seed 14, kept unseen
+#: until the shipped screening (round 25) was fixed; seeds 1-13, fresh for earlier defaults (seed 1's held-out
 #: cases were among the training cases of rounds 4-23, seeds 5-9's among those of the later rounds). Master seed
 #: 0's held-out cases informed the second round of choices and are not used here.
-HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13)
+HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14)
 
 
 @functools.lru_cache(maxsize=None)
@@ -249,7 +249,7 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # (seed 2), 0.098 against 0.131 (seed 3), 0.071 against 0.039 (seed 4), 0.063 against 0.041 (seed 5),
     # 0.073 against 0.052 (seed 6), 0.064 against 0.042 (seed 7), 0.066 against 0.074 (seed 8), 0.066 against
     # 0.026 (seed 9), 0.063 against 0.053 (seed 10), 0.068 against 0.054 (seed 11), 0.069 against 0.060
-    # (seed 12) and 0.058 against 0.056 (seed 13) when written.
+    # (seed 12), 0.058 against 0.056 (seed 13) and 0.069 against 0.068 (seed 14) when written.
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
 
@@ -258,22 +258,24 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
 @pytest.mark.parametrize("seed", [1, 2, _known_miss(3, "the main divide's scaling scores 0.209 against the "
                                                        "lateral segments' own 0.232"), 4, 5, 6, 7, 8, 9, 10,
                                   _known_miss(11, "the main divide's scaling scores 0.110 against the lateral "
-                                                  "segments' own 0.117"), 12, 13])
+                                                  "segments' own 0.117"), 12, 13, 14])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
-    # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main
-    # divide's on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131
-    # against 0.150 (seed 4), 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6), 0.128 against 0.131
-    # (seed 7), 0.202 against 0.229 (seed 8), 0.119 against 0.161 (seed 9), 0.165 against 0.192 (seed 10) and
-    # 0.205 against 0.258 (seed 12) and 0.195 against 0.222 (seed 13) when written (on master seeds 0's, 3's and
-    # 11's held-out cases it did not:
-    # 0.181 against 0.163, 0.232 against 0.209 and 0.117 against 0.110; docs/validation.md).
+    # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main divide's
+    # on the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131 against 0.150 (seed 4),
+    # 0.152 against 0.174 (seed 5), 0.140 against 0.151 (seed 6), 0.128 against 0.131 (seed 7), 0.202 against 0.229
+    # (seed 8), 0.119 against 0.161 (seed 9), 0.165 against 0.192 (seed 10), 0.205 against 0.258 (seed 12), 0.195
+    # against 0.222 (seed 13) and 0.181 against 0.196 (seed 14) when written (on master seeds 0's, 3's and 11's
+    # held-out cases it did not: 0.181 against 0.163, 0.232 against 0.209 and 0.117 against 0.110;
+    # docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [1, 2, 3, 4,
+@pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (partial_base_level_fall case 0: no "
+                                                 "main segment scored 0.01 or more; the first has no measured "
+                                                 "direction, the next two lie in slow stretches)"), 2, 3, 4,
                                   _known_miss(5, "top target in 7 of 8 cases (partial_base_level_fall case 8: "
                                                  "its third main segment, ranked 27th, lies in a still stretch)"),
                                   6,
@@ -283,24 +285,24 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                                  "main segment scored 0.01 or more, the first three lie in still "
                                                  "stretches)"), 10, 11,
                                   _known_miss(12, "top target in 3 of 4 cases (partial_base_level_fall case 16: its "
-                                                  "top three lie in moving stretches but have no direction)"), 13])
+                                                  "top three lie in moving stretches but have no direction)"), 13, 14])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
-    # 45 degrees of the measured motion; 4 of 4, 8 of 8, 3 of 3, 4 of 4, 5 of 5, 8 of 8, 11 of 11, 3 of 3 and 6 of
-    # 6 transient cases of seeds 1, 2, 3, 4, 6, 8, 10, 11 and 13 when written (seed 1: 3 of 4 before round 22 read
-    # the transience).
+    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 4 of 4, 5 of 5, 8 of 8, 11 of 11, 3 of 3, 6 of 6 and 4 of
+    # 4 transient cases of seeds 2, 3, 4, 6, 8, 10, 11, 13 and 14 when written (seed 1: 4 of 4 from round 22 until
+    # round 25 asked the transience to stand out of the DEM error).
     assert all(r["top_ok"] is not False for r in _held_out(seed))
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6, 7,
                                   _known_miss(8, "6 of 7 steady cases without an alarm (a main segment in "
-                                                 "steady_uplift_contrast case 13, 0.53)"), 9, 10, 11, 12, 13])
+                                                 "steady_uplift_contrast case 13, 0.53)"), 9, 10, 11, 12, 13, 14])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
-    # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6,
-    # 7 of 7, 3 of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6 and 4 of 4 steady cases of
-    # seeds 1-7 and 9-13 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before the runs had to move a segment half
-    # a cell, round 11; seeds 5, 6, 7 and 10: 2 of 4, 6 of 8, 9 of 10 and 5 of 6 before the lateral divides left the
+    # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6, 7 of 7,
+    # 3 of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6, 4 of 4 and 5 of 5 steady cases of
+    # seeds 1-7 and 9-14 when written (seeds 1 and 4: 4 of 6 and 6 of 8 before the runs had to move a segment half a
+    # cell, round 11; seeds 5, 6, 7 and 10: 2 of 4, 6 of 8, 9 of 10 and 5 of 6 before the lateral divides left the
     # hilltops out, round 23).
     assert all(r["alarm_ok"] for r in _held_out(seed))
 
@@ -308,11 +310,11 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2,
                                   _known_miss(3, "order in 1 of 2 cases (partial_base_level_fall case 0: 6 pairs)"),
-                                  _known_miss(4, "order in 0 of 2 cases (partial_base_level_fall case 8: 5 pairs, "
+                                  _known_miss(4, "order in 0 of 2 cases (partial_base_level_fall case 8: 6 pairs, "
                                                  "erodibility_patch case 17: 3)"),
                                   _known_miss(5, "order in 4 of 5 cases (partial_base_level_fall case 8: 1 pair)"),
                                   _known_miss(6, "order in 3 of 4 cases (partial_base_level_fall case 8: 2 pairs)"),
-                                  _known_miss(7, "order in 2 of 4 cases (partial_base_level_fall cases 0 and 16: 11 "
+                                  _known_miss(7, "order in 2 of 4 cases (partial_base_level_fall cases 0 and 16: 17 "
                                                  "and 1 pairs)"),
                                   _known_miss(8, "order in 1 of 5 cases (partial_base_level_fall cases 0 and 16: 2 "
                                                  "and 9 pairs, erodibility_patch cases 9 and 17: 2 and 1)"),
@@ -322,7 +324,8 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
                                   _known_miss(11, "order in 1 of 2 cases (partial_base_level_fall case 0: 6 pairs)"),
                                   _known_miss(12, "order in 0 of 1 case (partial_base_level_fall case 16: 10 pairs)"),
                                   _known_miss(13, "order in 1 of 3 cases (erodibility_patch case 1: 6 pairs, "
-                                                  "partial_base_level_fall case 8: 1)")])
+                                                  "partial_base_level_fall case 8: 1)"),
+                                  _known_miss(14, "order in 1 of 2 cases (erodibility_patch case 1: 10 pairs)")])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3 and 4 of 4 transient cases of seeds 1 and 2 when written (1 of 3 and 2 of 4 before
