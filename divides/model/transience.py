@@ -56,7 +56,10 @@ def transience_spread(start: ModelStart, n: float, error: DemError, *, draws: in
     Each field of ``error`` (:meth:`divides.terrain.dem_error.DemError.sample_grid`, on the model grid as given:
     an overestimate where the grid is block-averaged) is added to the grid's routed surface, and E is recomputed
     along the same flow graph, over the same channel cells and halves, with the same D; slopes that the error turns
-    uphill count as 0. NaN where :func:`basin_transience` is NaN or fewer than two draws give a value.
+    uphill count as 0. NaN where :func:`basin_transience` is NaN or fewer than two draws give a value. Known
+    difference: ∇²z is taken of the routed (filled) surface here and of the grid's own elevations in
+    :func:`basin_transience`; they differ only in filled depressions of the model grid (not aligned, as the
+    validation of round 25 was measured with it so).
     """
     fluvial, lap, diffusivity, cells, groups = _prepare(start, n)
     size = int(start.before.max()) + 1
