@@ -61,15 +61,19 @@ from divides.model.benchmark import (
 from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
+from divides.terrain.dem_error import DemError
 
-__all__ = ["FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE", "REGIONAL_VERSION",
-           "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed", "continuation_forcing",
-           "lateral_truth", "load_or_build", "measure_lateral", "raises_alarm", "ranking_targets", "score",
-           "segment_stretch_shares", "stretch_class", "stretch_motion"]
+__all__ = ["ERROR_STREAM", "FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE",
+           "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed",
+           "continuation_forcing", "lateral_truth", "load_or_build", "measure_lateral", "raises_alarm",
+           "ranking_targets", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
 #: Version 3 settles the spin-up at the truth run's time step (:func:`_settle`).
 REGIONAL_VERSION = 3
+
+#: Random stream of the DEM error added to an observed surface (:meth:`RegionalCase.dem`).
+ERROR_STREAM = 15
 
 #: Settling (:func:`_settle`): response times between checks, and most checks after the first.
 SETTLE_CHUNK_TAU = 2.0
@@ -175,8 +179,18 @@ class RegionalCase:
 
     closed_edges = ("north", "south")
 
-    def dem(self) -> Dem:
-        return Dem.from_array(self.elevation.astype(np.float64), cell_size=self.cell_size, valid_range=None)
+    def dem(self, error: DemError | None = None) -> Dem:
+        """The observed DEM; with ``error``, plus one field of that DEM error.
+
+        The field is drawn from the case's own seed (stream :data:`ERROR_STREAM`), so it is the same on every
+        call and independent of the draws a screening makes; the truth stays that of the surface without error
+        (a real DEM is the ground plus its error).
+        """
+        z = self.elevation.astype(np.float64)
+        if error is not None:
+            rng = np.random.default_rng([self.seed, ERROR_STREAM])
+            z += error.sample_grid(z.shape, self.cell_size, rng)
+        return Dem.from_array(z, cell_size=self.cell_size, valid_range=None)
 
     @property
     def steady(self) -> bool:

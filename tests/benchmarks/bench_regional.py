@@ -2,7 +2,8 @@
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
                                               [--generate-only] [--json FILE] [--fit] [--markdown]
-                                              [--no-forward-run]
+                                              [--no-forward-run] [--dem-error SIGMA [--dem-error-cells L]
+                                              [--screen-assumes-default]]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
@@ -12,6 +13,9 @@ to the decision model: it is the one command behind the figures there.
 Each DEM is screened with screening's landscape evidence (the steady-balance
 run and the hilltop curvature; --no-forward-run: the near-divide contrasts
 alone); --fit prints INSTABILITY_EVIDENCE and the P-only INSTABILITY_SCALING.
+--dem-error screens each observed surface plus one field of correlated DEM error (σ in m, exponential
+covariance over L cells, default 3; RegionalCase.dem), the truth staying that of the surface without it;
+screening is told the error (dem_error_m, dem_error_length_m) unless --screen-assumes-default.
 """
 
 from __future__ import annotations
@@ -32,12 +36,16 @@ CHANNEL_CELLS = 50
 SINGLE_SCALING = (-1.28, 1.25)
 
 
-def screen_case(case, **overrides):
+def screen_case(case, error=None, told: bool = True, **overrides):
+    """Screen ``case`` with the validation's options; with ``error`` (a DemError) its DEM carries that error,
+    and screening is told it when ``told``."""
     from divides.assess.screen import screen
 
     options = dict(theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2)
-    return screen(case.dem(), **{**options, **overrides})
+    if error is not None and told:
+        options.update(dem_error_m=error.sigma_m, dem_error_length_m=error.length_m)
+    return screen(case.dem(error), **{**options, **overrides})
 
 
 def _fmt(v, spec=".2f"):
@@ -173,7 +181,14 @@ def main() -> None:
                         help="screen with the near-divide contrasts alone (screen's forward_run=False)")
     parser.add_argument("--min-judged-cells", type=float, default=None,
                         help="pool segments shorter than this many cells (default: screen's MIN_JUDGED_CELLS)")
+    parser.add_argument("--dem-error", type=float, default=None, metavar="SIGMA",
+                        help="add correlated DEM error of this σ (m) to each observed surface before screening")
+    parser.add_argument("--dem-error-cells", type=float, default=3.0, metavar="L",
+                        help="correlation length of that error in cells (default 3)")
+    parser.add_argument("--screen-assumes-default", action="store_true",
+                        help="do not tell screening the error added (it keeps its default error model)")
     args = parser.parse_args()
+    from divides.terrain.dem_error import DemError
     from divides.model.benchmark import split_of
     from divides.model.regional_benchmark import (
         case_seed,
@@ -198,7 +213,9 @@ def main() -> None:
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
         extra["forward_run"] = not args.no_forward_run
-        result = score(case, screen_case(case, **extra), lateral=lateral_truth(case))
+        error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
+        result = score(case, screen_case(case, error, not args.screen_assumes_default, **extra),
+                       lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
     if args.generate_only:

@@ -8,11 +8,13 @@ import pytest
 from divides.model.benchmark import split_of
 from divides.model.regional_benchmark import (
     FAMILIES,
+    RegionalCase,
     case_seed,
     segment_stretch_shares,
     stretch_class,
     stretch_motion,
 )
+from divides.terrain.dem_error import DemError
 from divides.terrain.divide_lines import DivideLine
 
 
@@ -68,3 +70,24 @@ def test_cases_are_reproducible_and_split_before_generation():
     splits = [split_of(s) for s in seeds]
     assert 6 <= splits.count("held-out") <= 18  # SHA-256 split: half in expectation (binomial, 24 draws)
     assert {FAMILIES[i % len(FAMILIES)] for i in range(8)} == set(FAMILIES)
+
+
+def _flat_case(seed: int) -> RegionalCase:
+    return RegionalCase(master_seed=0, index=0, seed=seed, family="steady_symmetric", forced_side="a",
+                        split="training", elevation=np.full((120, 160), 500.0, np.float32), cell_size=30.0,
+                        parameters={}, stretches=[], threshold_m_per_yr=1e-3, seconds=0.0)
+
+
+def test_a_case_observed_with_dem_error_is_the_surface_plus_one_reproducible_field():
+    case = _flat_case(7)
+    assert np.array_equal(case.dem().elevation, np.full((120, 160), 500.0))
+    error = DemError(2.0, 90.0)  # 2 m over 3 cells
+    field = case.dem(error).elevation - 500.0
+    assert np.array_equal(field, case.dem(error).elevation - 500.0)  # same field on every call
+    assert not np.allclose(field, _flat_case(8).dem(error).elevation - 500.0)  # each case its own
+    # The exponential covariance (the error model's definition, divides.terrain.dem_error): sd σ, and
+    # neighbours correlated by exp(-1/3) = 0.72. 19 200 cells over 3-cell lengths: about 300 independent
+    # samples, so the sample sd is within 20 % (common practice).
+    assert field.std() == pytest.approx(2.0, rel=0.2)
+    lag1 = np.corrcoef(field[:, 1:].ravel(), field[:, :-1].ravel())[0, 1]
+    assert lag1 == pytest.approx(np.exp(-1 / 3), abs=0.08)
