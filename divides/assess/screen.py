@@ -14,7 +14,7 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.hilltops import hilltop_contrast, hilltop_spread
+from divides.assess.hilltops import hilltop_contrast
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
@@ -107,8 +107,8 @@ TRANSIENT_SPREADS = 2.0
 RUN_ORDER_BELOW = 0.01
 
 #: Each segment's landscape evidence (:func:`_landscape_evidence`; None when not measured).
-EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "hilltop_sd",
-                 "transience_a", "transience_b", "transience_sd_a", "transience_sd_b")
+EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
+                 "transience_b", "transience_sd_a", "transience_sd_b")
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -540,8 +540,7 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
     NaN when not measured) in two runs of the whole DEM under its steady balance
     (:func:`divides.model.landscape_shift.landscape_shifts`), with one uplift rate and with one per outlet
     basin (which absorbs a contrast between whole basins), the pieces judged between the outlet basins of
-    their two sides; ``hilltop_contrast``: :func:`divides.assess.hilltops.hilltop_contrast` on the DEM, and
-    ``hilltop_sd`` its spread under the DEM error model (:func:`divides.assess.hilltops.hilltop_spread`).
+    their two sides; ``hilltop_contrast``: :func:`divides.assess.hilltops.hilltop_contrast` on the DEM.
     """
     from divides.terrain.tiled_flow import tiled_routing
 
@@ -551,14 +550,12 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         start = model_start(dem, **options)
         runs = landscape_shifts(dem, balances=("steady", "steady-basins"), start=start, **options)
     transience = basin_transience(start, float(config.n))
-    error = config.dem_error(float(np.max(dem.cell_size_m)))
-    spread = transience_spread(start, float(config.n), error, seed=config.seed)
+    spread = transience_spread(start, float(config.n), config.dem_error(float(np.max(dem.cell_size_m))),
+                               seed=config.seed)
     sides = outlet_of[runs[0].on_model_grid(labels)]
     curvature = laplacian(dem)
     area_cells = np.asarray(flow.area, dtype=np.float64).reshape(dem.shape) / np.maximum(dem.cell_area_grid(), 1e-300)
-    hill_sd = hilltop_spread([(r["seg"].line, r["seg"].label_a, r["seg"].label_b) for r in rows], labels, curvature,
-                             area_cells, dem.dx, dem.dy, error, seed=config.seed)
-    for r, sd in zip(rows, hill_sd):
+    for r in rows:
         seg = r["seg"]
         a, b = int(outlet_of[seg.label_a]), int(outlet_of[seg.label_b])
         r["forward_shift_cells"], r["forward_shift_basin_cells"] = (run.piece_shift(seg.line, sides, a, b)
@@ -567,7 +564,6 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         r["transience_a"], r["transience_b"] = (float(transience[k]) if k else math.nan for k in basins)
         r["transience_sd_a"], r["transience_sd_b"] = (float(spread[k]) if k else math.nan for k in basins)
         r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
-        r["hilltop_sd"] = float(sd)
     first = runs[0]  # the grid is shared; the one-U run's horizon and steps
     return {"model_cell_m": first.cell_m, "block": first.factor, "years_at_unit_k": first.years_unit_k,
             "steps": first.n_steps}

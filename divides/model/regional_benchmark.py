@@ -117,8 +117,8 @@ STRETCH_MOVING_CELLS_PER_TAU = 2.0
 
 #: A screened segment's landscape evidence, kept per segment in the benchmark's results: those of
 #: divides.assess.screen.EVIDENCE_KEYS (this room does not import screening; a test checks they match).
-EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "hilltop_sd",
-                 "transience_a", "transience_b", "transience_sd_a", "transience_sd_b")
+EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
+                 "transience_b", "transience_sd_a", "transience_sd_b")
 
 #: The targets of issue 14 item 4 (docs/validation.md, *Regional screening*).
 TARGETS = {

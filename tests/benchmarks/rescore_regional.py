@@ -35,7 +35,6 @@ from bench_regional import probability_scores  # this folder (scripts run from h
 from scipy.optimize import minimize
 
 from divides.assess.screen import (
-    INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
     TRANSIENT_BASIN,
     evidence_features,
@@ -302,19 +301,6 @@ CANDIDATES.update({
                                                                             evidence_features(p, m, "main")[2]],
                                                       "lateral": "now"}, False, False),
 })
-def _hill_significant(spreads: float) -> Callable[[dict, dict, str], float]:
-    """Round 29: the shipped model with the hilltop term counted only where |h| is at least ``spreads`` times its
-    spread under the DEM error model (``hilltop_sd``; unmeasured: not counted)."""
-    def predictor(p, m, kind):
-        alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
-        lp, h, r = evidence_features(p, m, kind)
-        sd = _shift(m, "hilltop_sd")
-        return alpha + beta * lp + (g_hill * h if sd is not None and abs(h) >= spreads * sd else 0.0) + g_run * r
-    return predictor
-
-
-CANDIDATES["main hilltops significant under DEM error (HS2)"] = ({"main": _hill_significant(2.0), "lateral": "now"},
-                                                                 False, False)
 #: Round 26 (scored under DEM error): round 23's default, round 22's transient aggressor AA(0.1) without the spread.
 CANDIDATES["round 23's default: transient aggressor AA(0.1), lateral as now"] = (
     {"main": _shipped_with(_transient_r("AA", 0.1)), "lateral": "now"}, False, False)
