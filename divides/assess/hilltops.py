@@ -14,7 +14,7 @@ from scipy import ndimage
 
 from divides.terrain.divide_lines import DivideLine
 
-__all__ = ["hilltop_contrast", "HILLTOP_RADIUS_CELLS", "HILLSLOPE_CELLS"]
+__all__ = ["hilltop_contrast", "hilltop_curvature", "HILLTOP_RADIUS_CELLS", "HILLSLOPE_CELLS"]
 
 #: Cells within this distance of a piece of divide count for its hilltops (set before any fit).
 HILLTOP_RADIUS_CELLS = 3
@@ -75,3 +75,41 @@ def hilltop_contrast(line: DivideLine, labels: np.ndarray, label_a: int, label_b
         medians.append(float(np.median(v)))
     scale = abs(medians[0]) + abs(medians[1])
     return (medians[1] - medians[0]) / scale if scale > 0 else 0.0
+
+
+def hilltop_curvature(elevation: np.ndarray, valid: np.ndarray, dx: np.ndarray, dy: np.ndarray,
+                      radius_cells: int) -> np.ndarray:
+    """∇²z (1/m) of a least-squares quadratic surface fitted over the (2R + 1)² cells around each cell.
+
+    Curvature read over a window at least as wide as the DEM error's correlation length, so that the error,
+    which the 5-point stencil amplifies, averages out (Hurst et al. 2012 fit a quadratic surface over a window
+    for the same reason). On a symmetric window the centred x², y², xy, x and y columns are orthogonal, so the
+    x² coefficient is a 1-D quadratic fit along each row averaged over the window's rows:
+    a = Σ (k² − m) z_k / Σ (k² − m)², m the mean of k² over k = −R..R, and ∂²z/∂x² = 2a / dx².
+
+    Parameters
+    ----------
+    elevation : ndarray
+    valid : ndarray of bool
+    dx, dy : ndarray
+        East and north cell sizes (m) of every row.
+    radius_cells : int
+        R, at least 1.
+
+    Returns
+    -------
+    ndarray of float
+        NaN where the window leaves the grid or holds an invalid cell.
+    """
+    r = max(int(radius_cells), 1)
+    k = np.arange(-r, r + 1, dtype=np.float64)
+    w = k ** 2 - np.mean(k ** 2)
+    w /= np.sum(w ** 2)
+    z = np.where(valid, elevation, np.nan).astype(np.float64)
+    box = np.full(2 * r + 1, 1.0 / (2 * r + 1))
+    along_x = ndimage.correlate1d(ndimage.correlate1d(z, w, axis=1, mode="constant", cval=np.nan),
+                                  box, axis=0, mode="constant", cval=np.nan)
+    along_y = ndimage.correlate1d(ndimage.correlate1d(z, w, axis=0, mode="constant", cval=np.nan),
+                                  box, axis=1, mode="constant", cval=np.nan)
+    dx, dy = np.asarray(dx, dtype=np.float64), np.asarray(dy, dtype=np.float64)
+    return 2.0 * (along_x / dx[:, None] ** 2 + along_y / dy[:, None] ** 2)

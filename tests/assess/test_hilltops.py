@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from divides.assess.hilltops import hilltop_contrast
+from divides.assess.hilltops import hilltop_contrast, hilltop_curvature
 from divides.io.dem import Dem
 from divides.model.forward_run import laplacian
 from divides.terrain.divide_lines import divide_between
@@ -39,3 +39,20 @@ def test_without_hillslope_cells_on_a_side_the_contrast_is_zero():
     line = divide_between(dem, labels == 1, labels == 2).lines[0]
     area_cells = np.where(labels == 1, 100.0, 1.0)  # side a all channel cells
     assert hilltop_contrast(line, labels, 1, 2, laplacian(dem), area_cells) == 0.0
+
+
+def test_the_windowed_curvature_is_exact_on_a_quadratic_surface_and_averages_error_out():
+    # Exact on any quadratic surface (a least-squares fit of a quadratic reproduces it): ∇²z = 2 (-0.01) + 2 (-0.02)
+    # whatever the xy, x and y terms, with dx 10 m and dy 12 m.
+    x, y = np.arange(41) * 10.0, np.arange(30) * 12.0
+    z = -0.01 * (x[None, :] - 200) ** 2 - 0.02 * (y[:, None] - 150) ** 2 + 0.003 * x[None, :] * y[:, None] + 0.5 * x
+    got = hilltop_curvature(z, np.ones(z.shape, bool), np.full(30, 10.0), np.full(30, 12.0), 3)
+    assert np.all(np.isnan(got[:3])) and np.all(np.isnan(got[:, -3:]))  # windows leaving the grid
+    assert np.nanmax(np.abs(got + 0.06)) < 1e-9
+    # White error of σ = 1 m on 1 m cells: the variance of a least-squares coefficient with orthogonal columns is
+    # σ² / Σ (u - ū)² (from memory: any regression text), so Var(∇²z) = 8 / ((2R + 1) Σ (k² - m)²): 4 at R = 1
+    # (Σ = 2/3), 8 / 70 at R = 2, 8 / 588 at R = 3; the 5-point stencil's is 20.
+    e = np.random.default_rng(0).standard_normal((400, 400))
+    for radius, expected in ((1, 4.0), (2, 8 / 70), (3, 8 / 588)):
+        got = hilltop_curvature(e, np.ones(e.shape, bool), np.ones(400), np.ones(400), radius)
+        assert np.nanvar(got) == pytest.approx(expected, rel=0.1)  # over 3000 independent windows even at R = 3
