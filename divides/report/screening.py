@@ -49,6 +49,8 @@ SCREENING_REFERENCES = tuple(sorted(
     [r for r in _html.REFERENCES if r.startswith(("Forte, A. M., Whipple, K. X.", "Scherler, D.", "Willett, S. D."))] + [
         "Gilbert, G. K. (1877). Report on the Geology of the Henry Mountains. U.S. Geographical and Geological "
         "Survey of the Rocky Mountain Region, Washington.",
+        "Hurst, M. D., Mudd, S. M., Walcott, R., Attal, M., Yoo, K. (2012). Using hilltop curvature to derive the "
+        "spatial distribution of erosion rates. Journal of Geophysical Research: Earth Surface 117, F02017.",
         "Perron, J. T., Kirchner, J. W., Dietrich, W. E. (2009). Formation of evenly spaced ridges and valleys. "
         "Nature 460, 502–505.",
         "Platt, J. C. (1999). Probabilistic outputs for support vector machines and comparisons to regularized "
@@ -330,8 +332,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "whole DEM (0.3 response times, erodibility unknown, hillslope diffusivity and uplift fitted so the "
            "present surface is the model's steady state, one uplift rate for the DEM and one per outlet basin; "
            "Perron et al. 2009) move each segment by the area its two basins exchange next to it, and the "
-           "curvature of the hilltops next to it says which side lowers faster (E = −D ∇²z; Roering et al. "
-           "2007). The instability then reads whether both runs move the segment at least half a model cell the "
+           "curvature of the hilltops next to it, fitted over the DEM error's correlation length, says which "
+           "side lowers faster (E = −D ∇²z; Roering et al. 2007; Hurst et al. 2012). The instability then reads "
+           "whether both runs move the segment at least half a model cell the "
            "way the near-divide measures point (on a main divide whose eroding basin is out of steady state, its "
            "lower channels eroding unlike its upper ones beyond what the DEM error explains, whether the first "
            "does and the second does not move it "
