@@ -294,16 +294,21 @@ def _lateral_gate_refit(p: dict, m: dict) -> list[float]:
 #: model (transience_sd_a / _b); lateral as shipped (round 23).
 CANDIDATES["transient aggressor S2(0.1), significant under DEM error"] = (
     {"main": _shipped_with(_transient_r("S2", 0.1)), "lateral": "now"}, False, False)
-#: Round 28: main divides without the hilltop term (round 23's change to lateral ones), with the shipped r.
-CANDIDATES.update({
-    "main without hilltops (M-noh)": ({"main": _lateral_hill(False), "lateral": "now"}, False, False),
-    "main refitted without hilltops (M-noh-refit)": ({"main": lambda p, m: [evidence_features(p, m, "main")[0],
-                                                                            evidence_features(p, m, "main")[2]],
-                                                      "lateral": "now"}, False, False),
-})
 #: Round 26 (scored under DEM error): round 23's default, round 22's transient aggressor AA(0.1) without the spread.
 CANDIDATES["round 23's default: transient aggressor AA(0.1), lateral as now"] = (
     {"main": _shipped_with(_transient_r("AA", 0.1)), "lateral": "now"}, False, False)
+
+
+def _main_no_hill(p: dict, m: dict) -> list[float]:
+    lp, _, r = evidence_features(p, m, "main")
+    return [lp, r]
+
+
+#: Round 28: main divides without the hilltop term (round 23's change to lateral ones), with the shipped r.
+CANDIDATES.update({
+    "main without hilltops (M-noh)": ({"main": _lateral_hill(False), "lateral": "now"}, False, False),
+    "main refitted without hilltops (M-noh-refit)": ({"main": _main_no_hill, "lateral": "now"}, False, False),
+})
 
 #: Round 23: the main divide's instability as shipped, the lateral one's hilltop term dropped or gated by r.
 CANDIDATES.update({
