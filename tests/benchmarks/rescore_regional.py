@@ -464,6 +464,19 @@ def _transient_first(m: dict) -> tuple:
 RANKINGS["T1: transient aggressors first below 0.01"] = _transient_first
 
 
+def _either_way(m: dict) -> tuple:
+    """Round 31 (A1): screen.rank_key, but its second tier (known segments below 0.01) by the one-U run's |shift|,
+    either direction, larger first (unmeasured first), then by instability."""
+    key = rank_key(m["_i"], m["probabilities"], m)
+    if key[0] != 1 or m["_i"] is None:
+        return key
+    shift = _shift(m)
+    return (1, -math.inf if shift is None else -abs(shift), -m["_i"])
+
+
+RANKINGS["A1: below 0.01 by the one-U run's shift either way"] = _either_way
+
+
 def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
