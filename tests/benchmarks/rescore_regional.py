@@ -9,7 +9,7 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to twenty-fifth rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to thirty-first rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 25's "transient aggressor S2(0.1), significant under DEM
 error" on main divides, round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is
 round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped
@@ -19,8 +19,8 @@ A candidate whose part for one kind of divide is "now" takes the shipped model o
 script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
 prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
 ``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
-24: transient aggressors first; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13 and
-"shipped" screen.rank_key. Give it training cases only.
+24: transient aggressors first; round 31: the run's shift either way; :data:`RANKINGS`); "by instability"
+(default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
 """
 
 from __future__ import annotations
