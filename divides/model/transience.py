@@ -56,25 +56,25 @@ def transience_spread(start: ModelStart, n: float, error: DemError, *, draws: in
     Each field of ``error`` (:meth:`divides.terrain.dem_error.DemError.sample_grid`, on the model grid as given:
     an overestimate where the grid is block-averaged) is added to the grid's routed surface, and E is recomputed
     along the same flow graph, over the same channel cells and halves, with the same D; slopes that the error turns
-    uphill count as 0. NaN where :func:`basin_transience` is NaN or fewer than two draws give a value. Known
-    difference: ∇²z is taken of the routed (filled) surface here and of the grid's own elevations in
-    :func:`basin_transience`; they differ only in filled depressions of the model grid (not aligned, as the
-    validation of round 25 was measured with it so).
+    uphill count as 0; ∇²z is taken of the grid's own elevations plus the field, as :func:`basin_transience`
+    takes it (round 32; before, of the routed surface). NaN where :func:`basin_transience` is NaN or fewer than
+    two draws give a value.
     """
     fluvial, lap, diffusivity, cells, groups = _prepare(start, n)
     size = int(start.before.max()) + 1
     flow, grid = start.flow, start.grid
     surface = np.asarray(flow.conditioned.surface, dtype=np.float64)
+    ground = np.asarray(grid.elevation, dtype=np.float64)
     receivers, dist = flow.receivers.ravel(), np.asarray(flow.distance, dtype=np.float64).ravel()
     area_m = np.asarray(flow.area, dtype=np.float64).ravel()[cells] ** start.m
     spacing = (float(np.mean(grid.dy)), float(np.mean(grid.dx)))
     rng = np.random.default_rng(seed)
     values = np.full((max(int(draws), 0), size), math.nan)
     for k in range(values.shape[0]):
-        z = surface + error.sample_grid(surface.shape, spacing, rng)
-        flat = z.ravel()
+        e = error.sample_grid(surface.shape, spacing, rng)
+        flat = (surface + e).ravel()
         slope = np.maximum((flat[cells] - flat[receivers[cells]]) / np.maximum(dist[cells], 1e-300), 0.0)
-        curvature = laplacian(replace(grid, elevation=z)).ravel()[cells]
+        curvature = laplacian(replace(grid, elevation=ground + e)).ravel()[cells]
         values[k] = _ratios(area_m * slope ** n - diffusivity * curvature, groups, size)
     counts = np.sum(np.isfinite(values), axis=0)
     out = np.full(size, math.nan)
