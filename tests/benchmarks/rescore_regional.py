@@ -19,7 +19,8 @@ A candidate whose part for one kind of divide is "now" takes the shipped model o
 script is run (the other candidates keep their own definitions). Fits are maximum likelihood with a Gaussian
 prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
 ``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
-24: transient aggressors first; round 31: the run's shift either way; :data:`RANKINGS`); "by instability"
+24: transient aggressors first; round 31: the run's shift either way; round 33: the larger of both runs' shifts
+either way; :data:`RANKINGS`); "by instability"
 (default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
 """
 
@@ -475,6 +476,24 @@ def _either_way(m: dict) -> tuple:
 
 
 RANKINGS["A1: below 0.01 by the one-U run's shift either way"] = _either_way
+
+
+def _larger_either_way(unmeasured_first: bool) -> Callable[[dict], tuple]:
+    """Round 33: screen.rank_key, but its second tier (known segments below 0.01 and the unknown ones that join it)
+    by the larger |shift| of the two runs, either direction, larger first; a segment neither run measured comes
+    first (A3) or counts as 0 (A3-0); then by instability."""
+    def key(m):
+        k = rank_key(m["_i"], m["probabilities"], m)
+        if k[0] != 1:
+            return k
+        shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
+        size = max(shifts) if shifts else (math.inf if unmeasured_first else 0.0)
+        return (1, -size, 0.0 if m["_i"] is None else -m["_i"])
+    return key
+
+
+RANKINGS["A3: below 0.01 by the larger shift of both runs either way"] = _larger_either_way(True)
+RANKINGS["A3-0: as A3, unmeasured as 0"] = _larger_either_way(False)
 
 
 def targets(case: dict, ranking: str = "by instability") -> dict:
