@@ -100,12 +100,14 @@ TRANSIENT_BASIN = 0.1
 TRANSIENT_SPREADS = 2.0
 
 #: With the landscape evidence, segments scored below this rank after every other judged segment, ordered by
-#: the one-uplift-rate run's shift toward the favoured side (:func:`rank_key`). Below it the score no longer
-#: tells moving divides from still ones: it is set by logit p and h many logits under any meaningful value.
-#: Chosen against 0.5 and against the smaller or larger of both runs' shifts on 57 training cases by a rule
-#: written beforehand (docs/validation.md, *Regional screening*, round 14). Segments the decision abstained on
-#: join them when the runs move their divide (round 18, on 105 training cases: order target 18/27 against 14/27);
-#: segments the run did not measure come first among them (round 20, 129 cases: 24/34 against 20/34).
+#: the larger shift of the two landscape runs, either way (:func:`rank_key`). Below it the score no longer tells
+#: moving divides from still ones: it is set by logit p and h many logits under any meaningful value. The tier was
+#: chosen against 0.5 on 57 training cases (round 14); segments the decision abstained on join it when the runs
+#: move their divide (round 18, 105 cases: order target 18/27 against 14/27); segments no run measured come first
+#: (round 20, 129 cases: 24/34 against 20/34); the key, the larger |shift| of both runs in either direction, replaced
+#: the one-uplift-rate run's shift toward the favoured side in round 33 (177 cases: 207, 200 and 187 targets
+#: against 203, 198 and 184 under 0, 1 and 5 m of DEM error). Rules written beforehand (docs/validation.md,
+#: *Regional screening*).
 RUN_ORDER_BELOW = 0.01
 
 #: Each segment's landscape evidence (:func:`_landscape_evidence`; None when not measured).
@@ -445,39 +447,38 @@ def _aggressor_transient(favoured: float, evidence: dict) -> bool:
     return t is not None and sd is not None and abs(t) >= max(TRANSIENT_BASIN, TRANSIENT_SPREADS * sd)
 
 
-def rank_key(instability: float | None, probabilities: dict | None, evidence: dict | None = None) -> tuple:
+def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
 
     Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
     (None: the decision abstained) last. With it, in three tiers:
 
     1. instability at least :data:`RUN_ORDER_BELOW`, by instability;
-    2. below it, by the one-uplift-rate run's shift toward the side the decision favours, larger first
-       (unmeasured or no side favoured first: no run evidence is not evidence of stillness), then by
-       instability; an unknown segment joins this tier, by the size of that run's shift, when the shift is
-       at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move the divide as far the other way;
+    2. below it, by the larger |shift| of the two landscape runs (one uplift rate; one per outlet basin), either
+       direction, larger first (neither run measured first: no run evidence is not evidence of stillness), then
+       by instability; an unknown segment joins this tier when the one-uplift-rate run moves its divide at least
+       :data:`RUNS_AGREE_CELLS` and the per-basin run does not move it as far the other way;
     3. other unknown segments.
 
     Examples
     --------
-    >>> pulled = {"forward_shift_cells": 1.5}  # 1.5 cells into b, the favoured side
-    >>> still = {"forward_shift_cells": 0.1}
-    >>> toward_b = {"a": 0.05, "b": 0.85, "stable": 0.1}
-    >>> rank_key(1e-6, toward_b, pulled) < rank_key(1e-3, toward_b, still) < rank_key(None, None)
+    >>> pulled = {"forward_shift_cells": 1.5, "forward_shift_basin_cells": 0.1}  # 1.5 cells into b, one rate
+    >>> pushed = {"forward_shift_cells": -0.2, "forward_shift_basin_cells": -1.0}  # 1 cell into a, per basin
+    >>> still = {"forward_shift_cells": 0.1, "forward_shift_basin_cells": 0.0}
+    >>> rank_key(1e-6, pulled) < rank_key(1e-6, pushed) < rank_key(1e-3, still) < rank_key(None)
     True
-    >>> rank_key(0.3, toward_b, still) < rank_key(1e-3, toward_b, {}) < rank_key(1e-3, toward_b, pulled)
+    >>> rank_key(0.3, still) < rank_key(1e-3, {}) < rank_key(1e-3, pushed)
     True
     >>> moved = {"forward_shift_cells": -1.0, "forward_shift_basin_cells": -0.4}  # 1 and 0.4 cell into a
-    >>> rank_key(1e-3, toward_b, pulled) < rank_key(None, None, moved) < rank_key(1e-3, toward_b, still)
+    >>> rank_key(1e-3, pulled) < rank_key(None, moved) < rank_key(1e-3, still) < rank_key(None, still)
     True
     """
-    if instability is None:
-        return (1, -abs(shift), 0.0) if evidence is not None and (shift := _run_moves(evidence)) else (2, 0.0, 0.0)
-    if evidence is None or instability >= RUN_ORDER_BELOW:
+    if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW):
         return (0, -instability, 0.0)
-    favoured, shift = _favoured(probabilities or {}), _run_shifts(evidence)[0]
-    toward = favoured * shift if shift is not None and favoured != 0 else None
-    return (1, -math.inf if toward is None else -toward, -instability)
+    if evidence is None or (instability is None and _run_moves(evidence) is None):
+        return (2, 0.0, 0.0)
+    size = max((abs(s) for s in _run_shifts(evidence) if s is not None), default=math.inf)
+    return (1, -size, 0.0 if instability is None else -instability)
 
 
 def _run_moves(evidence: dict) -> float | None:
@@ -652,7 +653,7 @@ def screen(
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
         when it abstained for insufficient data; with the forward run, segments scored below
-        :data:`RUN_ORDER_BELOW` by the run's shift, :func:`rank_key`); every other stretch of divide
+        :data:`RUN_ORDER_BELOW` by the runs' shifts, :func:`rank_key`); every other stretch of divide
         between two basins is a gap with its reason, and ``coverage`` gives the judged share of the
         divides between outlet basins.
     """
@@ -715,8 +716,8 @@ def screen(
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
-    # ranked by the score (below RUN_ORDER_BELOW by the run's shift); abstentions for insufficient data last
-    rows.sort(key=lambda r: (*rank_key(r["instability"], r["probabilities"], r if config.forward_run else None),
+    # ranked by the score (below RUN_ORDER_BELOW by the runs' shifts); abstentions for insufficient data last
+    rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
                              -r["seg"].line.length_m))
     out = []
     for rank, r in enumerate(rows, start=1):

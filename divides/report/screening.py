@@ -343,8 +343,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "1999). With this evidence the instability is a score that ranks the segments, not a "
            "calibrated probability: a segment the runs do not move gets little even when it moves (its "
            "reliability on held-out model landscapes is in docs/validation.md). Segments scored below 0.01 "
-           "rank after the rest, furthest moved toward the favoured side by the one-uplift-rate run first "
-           "(those it could not measure before all); "
+           "rank after the rest, furthest moved by either run, either way, first "
+           "(those neither could measure before all); "
            "segments of unknown instability that the runs move join them. "
            if p.get("forward_run")
            else "") +

@@ -37,6 +37,7 @@ from scipy.optimize import minimize
 
 from divides.assess.screen import (
     INSTABILITY_SCALING,
+    RUN_ORDER_BELOW,
     TRANSIENT_BASIN,
     evidence_features,
     instability_of,
@@ -434,12 +435,26 @@ def _tiered(t: float, run: Callable[[dict], float | None], unmeasured: float = -
 
 _K2, _U2 = _run_key(None), _unknown_joins("U2")
 
+
+def _round20(m: dict) -> tuple:
+    """screen.rank_key as shipped in rounds 20-32: below 0.01 by the one-U run's shift toward the favoured side
+    (unmeasured or no side favoured first), then by instability; unknown segments join by round 18's U2."""
+    i, p = m["_i"], m["probabilities"]
+    if i is None:
+        joins = _U2(m)
+        return (2, 0.0, 0.0) if joins is None else (1, -joins, 0.0)
+    if i >= RUN_ORDER_BELOW:
+        return (0, -i, 0.0)
+    side, shift = _favoured(p or {}), _shift(m)
+    return (1, -math.inf if shift is None or not side else -side * shift, -i)
+
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
 #: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key; T1 (round 24) is added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
-    "shipped": lambda m: rank_key(m["_i"], m["probabilities"], m),
+    "shipped": lambda m: rank_key(m["_i"], m),
+    "round 20 (shipped in rounds 20-32)": _round20,
     **{f"{name}, below {t:g}": _tiered(t, _run_key(pick)) for t in (0.01, 0.5)
        for name, pick in (("K1 smaller of both runs", min), ("K2 one-U run", None), ("K3 larger of both runs", max))},
     **{f"shipped, unknown segments by the run ({v})": _tiered(0.01, _K2, unknown=_unknown_joins(v))
@@ -451,9 +466,9 @@ RANKINGS: dict[str, Callable[[dict], tuple]] = {
 
 
 def _transient_first(m: dict) -> tuple:
-    """Round 24 (T1): screen.rank_key, but in its second tier the segments whose aggressor's basin (away from the
+    """Round 24 (T1): round 20's ranking, but in its second tier the segments whose aggressor's basin (away from the
     favoured side) has |transience| >= TRANSIENT_BASIN come first (unknown segments joining the tier do not)."""
-    key = rank_key(m["_i"], m["probabilities"], m)
+    key = _round20(m)
     if key[0] != 1:
         return (key[0], 0, *key[1:])
     p = m["probabilities"]
@@ -466,9 +481,9 @@ RANKINGS["T1: transient aggressors first below 0.01"] = _transient_first
 
 
 def _either_way(m: dict) -> tuple:
-    """Round 31 (A1): screen.rank_key, but its second tier (known segments below 0.01) by the one-U run's |shift|,
+    """Round 31 (A1): round 20's ranking, but its second tier (known segments below 0.01) by the one-U run's |shift|,
     either direction, larger first (unmeasured first), then by instability."""
-    key = rank_key(m["_i"], m["probabilities"], m)
+    key = _round20(m)
     if key[0] != 1 or m["_i"] is None:
         return key
     shift = _shift(m)
@@ -479,11 +494,11 @@ RANKINGS["A1: below 0.01 by the one-U run's shift either way"] = _either_way
 
 
 def _larger_either_way(unmeasured_first: bool) -> Callable[[dict], tuple]:
-    """Round 33: screen.rank_key, but its second tier (known segments below 0.01 and the unknown ones that join it)
+    """Round 33: round 20's ranking, but its second tier (known segments below 0.01 and the unknown ones that join it)
     by the larger |shift| of the two runs, either direction, larger first; a segment neither run measured comes
-    first (A3) or counts as 0 (A3-0); then by instability."""
+    first (A3, shipped: screen.rank_key) or counts as 0 (A3-0); then by instability."""
     def key(m):
-        k = rank_key(m["_i"], m["probabilities"], m)
+        k = _round20(m)
         if k[0] != 1:
             return k
         shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
