@@ -663,9 +663,6 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
                      **{k: s.get(k) for k in EVIDENCE_KEYS},
                      "reason": s.get("reason"),
-                     # where the segment lies (grid rows it spans, mean column): for rankings that read neighbours
-                     "row_range": [float(s["line"].row.min()), float(s["line"].row.max())],
-                     "col_mean": float(s["line"].col.mean()),
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
                      "measured_azimuth": 270.0 if toward == "a" else 90.0,

@@ -448,9 +448,11 @@ def _round20(m: dict) -> tuple:
     side, shift = _favoured(p or {}), _shift(m)
     return (1, -math.inf if shift is None or not side else -side * shift, -i)
 
+
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key; T1 (round 24) is added below.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 33's since then), "round 20"
+#: the one it replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: rank_key(m["_i"], m),
