@@ -20,8 +20,8 @@ script is run (the other candidates keep their own definitions). Fits are maximu
 prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
 ``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
 24: transient aggressors first; round 31: the run's shift either way; round 33: the larger of both runs' shifts
-either way; :data:`RANKINGS`); "by instability"
-(default) is the order of rounds 4-13 and "shipped" screen.rank_key. Give it training cases only.
+either way; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13, "shipped" screen.rank_key
+and "round 20" the key it replaced in round 33. Give it training cases only.
 """
 
 from __future__ import annotations
