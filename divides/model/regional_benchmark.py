@@ -62,6 +62,7 @@ from divides.model.scenarios import ridge_surface
 from divides.model.simulate import simulate
 from divides.model.tracking import edge_catchments
 from divides.terrain.dem_error import DemError
+from divides.terrain.line_gaps import line_gaps
 
 __all__ = ["ERROR_STREAM", "FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE",
            "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed",
@@ -597,6 +598,10 @@ def _edge_of_labels(flow, labels: np.ndarray) -> np.ndarray:
 #: would read a third of the not-moving limit on it (set before any screening was scored against it).
 LATERAL_MIN_LENGTH_CELLS = 10
 
+#: Main segments whose lines come within this many cells of each other are recorded as neighbours
+#: (:func:`score`), the widest gap a ranking of round 34 reads (docs/validation.md, *Regional screening*).
+NEIGHBOUR_RECORD_CELLS = 10.0
+
 
 def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
     """Segments between neighbouring outlet basins draining off the same edge, with the truth of their pair."""
@@ -650,11 +655,12 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
     """
     edge = _edge_of_labels(screening.flow, screening.labels)
     share = TARGETS["top_in_moving_share"]
-    main = []
+    main, lines = [], []
     for s in screening.segments:
         a, b = s["basins"]
         if {int(edge[a]), int(edge[b])} != {1, 2}:
             continue
+        lines.append(s["line"])
         sh = segment_stretch_shares(s["line"], case.stretches, case.threshold_m_per_yr)
         moving = sh["a"] + sh["b"]
         toward = "a" if sh["a"] >= sh["b"] else "b"
@@ -668,6 +674,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
                      "measured_azimuth": 270.0 if toward == "a" else 90.0,
                      "azimuth": s["motion_azimuth_deg"], "in_moving": moving >= share,
                      "in_stable": sh["stable"] >= share})
+    _record_neighbours(main, lines)
     main.sort(key=lambda m: m["rank"])
     alarms = [s for s in screening.segments if raises_alarm(s)]
     classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
@@ -699,6 +706,17 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
     out["alarm_ok"] = (not case.steady) or not alarms
     out.update(ranking_targets(main, moving_truth=moving_truth, top=top))
     return out
+
+
+def _record_neighbours(main: list[dict], lines: list) -> None:
+    """Each main segment's ``neighbours``: [rank, gap in cells] of the other main segments whose lines come within
+    :data:`NEIGHBOUR_RECORD_CELLS` of its own (:func:`divides.terrain.line_gaps.line_gaps`), for rescoring rankings
+    that read them."""
+    for m in main:
+        m["neighbours"] = []
+    for i, j, gap in zip(*line_gaps(lines, NEIGHBOUR_RECORD_CELLS)):
+        main[i]["neighbours"].append([main[j]["rank"], round(float(gap), 2)])
+        main[j]["neighbours"].append([main[i]["rank"], round(float(gap), 2)])
 
 
 def raises_alarm(segment: dict) -> bool:

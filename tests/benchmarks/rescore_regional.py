@@ -511,10 +511,31 @@ def _larger_either_way(unmeasured_first: bool) -> Callable[[dict], tuple]:
 
 RANKINGS["A3: below 0.01 by the larger shift of both runs either way"] = _larger_either_way(True)
 RANKINGS["A3-0: as A3, unmeasured as 0"] = _larger_either_way(False)
+_A3 = _larger_either_way(True)
+
+
+def _beside_scored(gap: float, score: float) -> Callable[[dict], tuple]:
+    """Round 34: A3, but in its second tier a main segment with another main segment within ``gap`` cells scored at
+    least ``score`` comes first (``_near``: the gaps and scores of its recorded neighbours, set by :func:`targets`)."""
+    def key(m):
+        k = _A3(m)
+        if k[0] != 1:
+            return k
+        near = any(g <= gap and i is not None and i >= score for g, i in m["_near"])
+        return (1, -float(near), *k[1:])
+    return key
+
+
+for _gap, _score, _name in ((2, 0.01, "N2"), (5, 0.01, "N5"), (10, 0.01, "N10"), (5, 0.5, "N5-0.5")):
+    RANKINGS[f"{_name}: below 0.01, beside a main segment scored >= {_score:g} within {_gap} cells first"] = \
+        _beside_scored(_gap, _score)
 
 
 def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
+    by_rank = {m["rank"]: m for m in case["main"]}
+    for m in case["main"]:
+        m["_near"] = [(gap, by_rank[r]["_i"]) for r, gap in m.get("neighbours", [])]
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
     out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
