@@ -25,12 +25,13 @@ from divides.profiles.chi import chi_weights, integrate_chi
 from divides.terrain.basins import basin_labels
 from divides.terrain.channels import Channels, extract_channels
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
+from divides.terrain.line_gaps import line_gaps
 from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
-           "TRANSIENT_SPREADS"]
+           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -110,9 +111,21 @@ TRANSIENT_SPREADS = 2.0
 #: *Regional screening*).
 RUN_ORDER_BELOW = 0.01
 
-#: Each segment's landscape evidence (:func:`_landscape_evidence`; None when not measured).
+#: In the tier below :data:`RUN_ORDER_BELOW`, a main segment whose line comes within this many cells of another main
+#: segment's scored at least :data:`NEIGHBOUR_SCORE` ranks first (:func:`rank_key`): a divide moves along a stretch
+#: several segments long, so a weakly scored piece beside a strongly scored one is more likely moving than one whose
+#: neighbours score low too. Chosen against 2 and 10 cells and a neighbour scored >= 0.5 in round 34 (177 training
+#: cases, rule written beforehand; docs/validation.md, *Regional screening*): 212, 204 and 189 targets under 0, 1 and
+#: 5 m of DEM error against 207, 200 and 187 without the term (order 42, 38 and 31 of 48 against 37, 34 and 29).
+NEIGHBOUR_CELLS = 5.0
+
+#: ... scored at least this (the tier's own bound: a neighbour the score already ranks above the tier).
+NEIGHBOUR_SCORE = RUN_ORDER_BELOW
+
+#: Each segment's evidence beyond its near-divide contrasts (:func:`_landscape_evidence` and
+#: :func:`_neighbour_instability`; None when not measured).
 EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
-                 "transience_b", "transience_sd_a", "transience_sd_b")
+                 "transience_b", "transience_sd_a", "transience_sd_b", "neighbour_instability")
 
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
@@ -454,10 +467,12 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     (None: the decision abstained) last. With it, in three tiers:
 
     1. instability at least :data:`RUN_ORDER_BELOW`, by instability;
-    2. below it, by the larger |shift| of the two landscape runs (one uplift rate; one per outlet basin), either
-       direction, larger first (neither run measured first: no run evidence is not evidence of stillness), then
-       by instability; an unknown segment joins this tier when the one-uplift-rate run moves its divide at least
-       :data:`RUNS_AGREE_CELLS` and the per-basin run does not move it as far the other way;
+    2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
+       :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
+       rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
+       is not evidence of stillness), then by instability; an unknown segment joins this tier when the
+       one-uplift-rate run moves its divide at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move
+       it as far the other way;
     3. other unknown segments.
 
     Examples
@@ -472,13 +487,33 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     >>> moved = {"forward_shift_cells": -1.0, "forward_shift_basin_cells": -0.4}  # 1 and 0.4 cell into a
     >>> rank_key(1e-3, pulled) < rank_key(None, moved) < rank_key(1e-3, still) < rank_key(None, still)
     True
+    >>> beside = {**still, "neighbour_instability": 0.9}  # next to a segment scored 0.9
+    >>> rank_key(0.3, still) < rank_key(1e-6, beside) < rank_key(1e-3, {}) < rank_key(1e-3, pulled)
+    True
     """
     if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW):
-        return (0, -instability, 0.0)
+        return (0, -instability, 0.0, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
-        return (2, 0.0, 0.0)
+        return (2, 0.0, 0.0, 0.0)
     size = max((abs(s) for s in _run_shifts(evidence) if s is not None), default=math.inf)
-    return (1, -size, 0.0 if instability is None else -instability)
+    beside = _finite(evidence.get("neighbour_instability"))
+    return (1, -float(beside is not None and beside >= NEIGHBOUR_SCORE), -size,
+            0.0 if instability is None else -instability)
+
+
+def _neighbour_instability(rows: list[dict]) -> None:
+    """Set each main segment's ``neighbour_instability``: the largest instability of the other main segments whose
+    lines come within :data:`NEIGHBOUR_CELLS` of its own (:func:`divides.terrain.line_gaps.line_gaps`); None for
+    lateral segments and where no scored main segment is that near. Lateral divides are left out: their own
+    truth (the area two basins exchange) was not read for this term."""
+    main = [r for r in rows if r["divide_kind"] == "main"]
+    for r in rows:
+        r["neighbour_instability"] = None
+    i, j, _ = line_gaps([r["seg"].line for r in main], NEIGHBOUR_CELLS)
+    for p, q in zip(i.tolist(), j.tolist()):
+        for r, other in ((main[p], main[q]), (main[q], main[p])):
+            if other["instability"] is not None:
+                r["neighbour_instability"] = max(other["instability"], r["neighbour_instability"] or 0.0)
 
 
 def _run_moves(evidence: dict) -> float | None:
@@ -716,6 +751,8 @@ def screen(
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
+    if config.forward_run:
+        _neighbour_instability(rows)
     # ranked by the score (below RUN_ORDER_BELOW by the runs' shifts); abstentions for insufficient data last
     rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
                              -r["seg"].line.length_m))

@@ -119,7 +119,7 @@ STRETCH_MOVING_CELLS_PER_TAU = 2.0
 #: A screened segment's landscape evidence, kept per segment in the benchmark's results: those of
 #: divides.assess.screen.EVIDENCE_KEYS (this room does not import screening; a test checks they match).
 EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
-                 "transience_b", "transience_sd_a", "transience_sd_b")
+                 "transience_b", "transience_sd_a", "transience_sd_b", "neighbour_instability")
 
 #: The targets of issue 14 item 4 (docs/validation.md, *Regional screening*).
 TARGETS = {

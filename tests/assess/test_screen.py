@@ -122,3 +122,30 @@ def test_a_segment_matches_assess_on_the_same_two_basins(landscapes):
             assert mine["b"] == pytest.approx(theirs["b"], rel=0.05, abs=1e-6)
     victim = {"a": EDGE_LABELS["east"], "b": EDGE_LABELS["west"]}.get(full.verdict.moves_toward)
     assert seg["moves_toward_basin"] == victim
+
+
+def test_weak_main_segments_beside_strong_ones_come_first_below_the_tier():
+    # Round 34's ranking (docs/methods.md §7b; a definition, common practice for a ranking rule): below 0.01 a main
+    # segment whose line comes within 5 cells of another main segment scored >= 0.01 ranks before the others of the
+    # tier, even when the runs move them further; lateral segments do not read it.
+    from types import SimpleNamespace
+
+    from divides.assess.screen import _neighbour_instability, rank_key
+
+    def row(kind, col0, instability, shift):
+        line = SimpleNamespace(row=np.zeros(10), col=np.arange(col0, col0 + 10.0))
+        return {"seg": SimpleNamespace(line=line), "divide_kind": kind, "instability": instability,
+                "forward_shift_cells": shift, "forward_shift_basin_cells": 0.0}
+
+    strong = row("main", 0, 0.6, 2.0)
+    beside = row("main", 13, 1e-6, 0.1)         # 4 cells past strong's end
+    far = row("main", 40, 1e-6, 1.5)            # 31 cells away, moved further by the run
+    lateral = row("lateral", 12, 1e-6, 0.2)     # lateral, 3 cells away
+    unknown = row("main", -14, None, 0.0)       # beside strong, but neither scored nor moved: stays last
+    rows = [far, lateral, unknown, beside, strong]
+    _neighbour_instability(rows)
+    assert beside["neighbour_instability"] == 0.6 and strong["neighbour_instability"] == 1e-6
+    assert far["neighbour_instability"] is None and lateral["neighbour_instability"] is None
+    assert unknown["neighbour_instability"] == 0.6
+    order = sorted(rows, key=lambda r: rank_key(r["instability"], r))
+    assert order == [strong, beside, far, lateral, unknown]

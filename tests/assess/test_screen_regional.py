@@ -73,18 +73,30 @@ def test_ranks_follow_the_documented_order(steady):
     # 19 with a measured run) after them, by the larger |shift| of the two landscape runs in either direction
     # (neither measured first), then by score; unknown last, unless the one-U run moves the divide half a cell or
     # more and the per-basin run does not move it as far the other way (then among those below 0.01, by the
-    # larger |shift|); ties by length. Here the order differs from the score's alone.
+    # larger |shift|); ties by length. Since round 34, a main segment below 0.01 whose line comes within 5 cells of
+    # another main segment's scored >= 0.01 comes first in that tier (neighbours found here by brute force with
+    # scipy's cdist). Here the order differs from the score's alone.
+    from scipy.spatial.distance import cdist
+
     _, result, _, _ = steady
+    main = [s for s in result.segments if s["divide_kind"] == "main"]
+
+    def beside_scored(s):
+        if s["divide_kind"] != "main":
+            return False
+        xy = np.column_stack([s["line"].row, s["line"].col])
+        return any(o is not s and o["instability"] is not None and o["instability"] >= 0.01
+                   and cdist(xy, np.column_stack([o["line"].row, o["line"].col])).min() <= 5.0 for o in main)
 
     def key(s):
         i, one_u, per_basin = s["instability"], s["forward_shift_cells"], s["forward_shift_basin_cells"]
         if i is not None and i >= 0.01:
-            return (0, -i, 0.0, -s["length_m"])
+            return (0, -i, 0.0, 0.0, -s["length_m"])
         if i is None and not (one_u is not None and per_basin is not None and abs(one_u) >= 0.5
                               and np.sign(one_u) * per_basin > -0.5):
-            return (2, 0.0, 0.0, -s["length_m"])
+            return (2, 0.0, 0.0, 0.0, -s["length_m"])
         size = max((abs(v) for v in (one_u, per_basin) if v is not None), default=np.inf)
-        return (1, -size, 0.0 if i is None else -i, -s["length_m"])
+        return (1, -float(beside_scored(s)), -size, 0.0 if i is None else -i, -s["length_m"])
 
     ranks = [s["rank"] for s in result.segments]
     assert ranks == list(range(1, len(ranks) + 1))
