@@ -20,8 +20,9 @@ script is run (the other candidates keep their own definitions). Fits are maximu
 prior of sd 10 on every coefficient but the intercept (it keeps the fit finite where the data nearly separate).
 ``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
 24: transient aggressors first; round 31: the run's shift either way; round 33: the larger of both runs' shifts
-either way; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13, "shipped" screen.rank_key
-and "round 20" the key it replaced in round 33. Give it training cases only.
+either way; round 34: main segments beside a strongly scored main segment first, from the gaps between main segments
+that the records keep since then; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13,
+"shipped" screen.rank_key (round 34's N5) and "round 20" the key round 33 replaced. Give it training cases only.
 """
 
 from __future__ import annotations
@@ -37,6 +38,7 @@ from scipy.optimize import minimize
 
 from divides.assess.screen import (
     INSTABILITY_SCALING,
+    NEIGHBOUR_CELLS,
     RUN_ORDER_BELOW,
     TRANSIENT_BASIN,
     evidence_features,
@@ -451,8 +453,9 @@ def _round20(m: dict) -> tuple:
 
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 33's since then), "round 20"
-#: the one it replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33) are added below.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 34's N5 since then), "round
+#: 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33, shipped in round 33), N2, N5,
+#: N10 and N5-0.5 (round 34) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: rank_key(m["_i"], m),
@@ -534,8 +537,10 @@ for _gap, _score, _name in ((2, 0.01, "N2"), (5, 0.01, "N5"), (10, 0.01, "N10"),
 def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
     by_rank = {m["rank"]: m for m in case["main"]}
-    for m in case["main"]:
+    for m in case["main"]:  # the neighbours' scores under the candidate (screen.rank_key reads the largest)
         m["_near"] = [(gap, by_rank[r]["_i"]) for r, gap in m.get("neighbours", [])]
+        m["neighbour_instability"] = max((i for gap, i in m["_near"] if gap <= NEIGHBOUR_CELLS and i is not None),
+                                         default=None)
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
     out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
