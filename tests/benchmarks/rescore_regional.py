@@ -30,6 +30,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 from collections.abc import Callable
 
 import numpy as np
@@ -324,6 +325,20 @@ CANDIDATES.update({
 })
 
 
+def _present_main(p: dict, m: dict) -> list[float]:
+    return list(evidence_features(p, m, "main"))
+
+
+def _present_lateral(p: dict, m: dict) -> list[float]:
+    lp, _, r = evidence_features(p, m, "lateral")
+    return [lp, r]
+
+
+#: Round 35: the shipped features (round 25's r, round 30's hilltops, none on lateral divides) with their coefficients
+#: refitted (F-E0 on the files scored; F-all with ``--fit-with`` the same cases under other DEM errors).
+CANDIDATES["F: present features refitted"] = ({"main": _present_main, "lateral": _present_lateral}, False, False)
+
+
 def _fixed(features) -> bool:
     """A candidate part with the fitted evidence coefficients and its own run term (nothing fitted)."""
     return getattr(features, "__name__", "") == "predictor"
@@ -556,29 +571,44 @@ def scores(rows: list[dict], kind: str) -> dict:
     return probability_scores([p[0] for p in pairs], [p[1] for p in pairs])
 
 
+def _load(names: list[str]) -> list[dict]:
+    """The cases of bench_regional.py --json outputs, each keyed by its file's name and its index (``_case``)."""
+    rows = []
+    for name in names:
+        with open(name) as fh:
+            for line in fh:
+                row = json.loads(line)
+                rows.append({**row, "_case": (os.path.basename(name), row["index"])})
+    return rows
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
     parser.add_argument("--candidates", nargs="*", default=list(CANDIDATES), choices=list(CANDIDATES))
     parser.add_argument("--rankings", nargs="*", default=["by instability"], choices=list(RANKINGS),
                         help="orders of the segments (rounds 14-21), each scored with every candidate")
+    parser.add_argument("--fit-with", nargs="*", default=[], metavar="FILE",
+                        help="outputs for the same cases screened otherwise (e.g. under another DEM error), used in "
+                             "the fits only; a case (file name and index) is left out of its own fit in every file")
+    parser.add_argument("--fit-with-only", action="store_true",
+                        help="fit on the --fit-with files alone (e.g. score under DEM error what was fitted without)")
     args = parser.parse_args()
-    rows = []
-    for name in args.files:
-        with open(name) as fh:
-            rows += [json.loads(line) for line in fh]
-    print(f"{len(rows)} cases; the P-only scaling for unmeasured shifts: {INSTABILITY_SCALING}")
+    rows, extra = _load(args.files), _load(args.fit_with)
+    fitted_on = (lambda: extra) if args.fit_with_only else (lambda: rows + extra)
+    print(f"{len(rows)} cases ({len(extra)} more for fitting); the P-only scaling for unmeasured shifts: "
+          f"{INSTABILITY_SCALING}")
     for candidate in args.candidates:
         results: dict[str, list[dict]] = {r: [] for r in args.rankings}
         for case in rows:
-            others = [r for r in rows if r is not case]
+            others = [r for r in fitted_on() if r["_case"] != case["_case"]]
             w = {k: fit(others, k, candidate) for k in KINDS}
             for m in case["main"] + case.get("lateral", []) + case["others"]:
                 m["_i"] = instability(m, w.get(_kind(m)), candidate)
             for ranking in args.rankings:
                 results[ranking].append(targets(case, ranking))
         m, lat = scores(rows, "main"), scores(rows, "lateral")
-        full = {k: fit(rows, k, candidate) for k in KINDS}
+        full = {k: fit(fitted_on(), k, candidate) for k in KINDS}
         for ranking, res in results.items():
             top = [v["top"] for v in res if v["top"] is not None]
             order = [v["order"] for v in res if v["order"] is not None]
