@@ -73,8 +73,10 @@ INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "l
 #: beforehand, docs/validation.md, *Regional screening*). On lateral divides the hilltop term is left out (gamma_h
 #: fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady landscapes against
 #: 13, lateral log loss 0.157 against 0.141): at steady state the side with the faster uplift has the more convex
-#: hilltops, so h reads a steady contrast as motion. A score in [0, 1] that ranks segments by how likely they move,
-#: not a calibrated probability: its reliability is in docs/validation.md.
+#: hilltops, so h reads a steady contrast as motion. Refitted on these features in round 35 (not adopted), the run
+#: term weakens (main gamma_r 4.85) and segments neither run moves score >= 0.5 on their contrasts alone: main log
+#: loss 0.14 against 0.44 but 45-87 alarms in steady landscapes against 3. A score in [0, 1] that ranks segments by
+#: how likely they move, not a calibrated probability: its reliability is in docs/validation.md.
 INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-27.16, 2.70, 16.06, 22.42),
                                                                       "lateral": (-3.89, 1.02, 0.0, 0.61)}
 
