@@ -102,8 +102,9 @@ TRANSIENT_BASIN = 0.1
 #: 1 m of correlated error 5 % against 44 % on a small ridge, and fewer in each of master seed 0's steady cases.
 TRANSIENT_SPREADS = 2.0
 
-#: With the landscape evidence, segments scored below this rank after every other judged segment, ordered by
-#: the larger shift of the two landscape runs, either way (:func:`rank_key`). Below it the score no longer tells
+#: With the landscape evidence, segments scored below this rank after every other judged segment, main segments
+#: beside a strongly scored one first (:data:`NEIGHBOUR_CELLS`, round 34), each group ordered by the larger shift of
+#: the two landscape runs, either way (:func:`rank_key`). Below it the score no longer tells
 #: moving divides from still ones: it is set by logit p and h many logits under any meaningful value. The tier was
 #: chosen against 0.5 on 57 training cases (round 14); segments the decision abstained on join it when the runs
 #: move their divide (round 18, 105 cases: order target 18/27 against 14/27); segments no run measured come first
@@ -690,9 +691,9 @@ def screen(
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
         when it abstained for insufficient data; with the forward run, segments scored below
-        :data:`RUN_ORDER_BELOW` by the runs' shifts, :func:`rank_key`); every other stretch of divide
-        between two basins is a gap with its reason, and ``coverage`` gives the judged share of the
-        divides between outlet basins.
+        :data:`RUN_ORDER_BELOW` by their neighbours and the runs' shifts, :func:`rank_key`); every other
+        stretch of divide between two basins is a gap with its reason, and ``coverage`` gives the judged
+        share of the divides between outlet basins.
     """
     config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):
@@ -755,7 +756,7 @@ def screen(
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
     if config.forward_run:
         _neighbour_instability(rows)
-    # ranked by the score (below RUN_ORDER_BELOW by the runs' shifts); abstentions for insufficient data last
+    # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
     rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
                              -r["seg"].line.length_m))
     out = []
