@@ -680,7 +680,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
     classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
     moving_truth = any(c in ("a", "b") for c in classes)
     out: dict[str, Any] = {
-        "index": case.index, "family": case.family, "split": case.split, "forced_side": case.forced_side,
+        "master_seed": case.master_seed, "index": case.index, "family": case.family, "split": case.split,
+        "forced_side": case.forced_side,
         "moving_stretches": sum(c in ("a", "b") for c in classes),
         "stable_stretches": sum(c == "stable" for c in classes),
         "stretches": len(case.stretches), "coverage": screening.coverage.get("share"),

@@ -572,13 +572,14 @@ def scores(rows: list[dict], kind: str) -> dict:
 
 
 def _load(names: list[str]) -> list[dict]:
-    """The cases of bench_regional.py --json outputs, each keyed by its file's name and its index (``_case``)."""
+    """The cases of bench_regional.py --json outputs, each keyed by its master seed and index (``_case``; by its
+    file's name and index in outputs written before the records kept the master seed)."""
     rows = []
     for name in names:
         with open(name) as fh:
             for line in fh:
                 row = json.loads(line)
-                rows.append({**row, "_case": (os.path.basename(name), row["index"])})
+                rows.append({**row, "_case": (row.get("master_seed", os.path.basename(name)), row["index"])})
     return rows
 
 
@@ -590,7 +591,7 @@ def main() -> None:
                         help="orders of the segments (rounds 14-21), each scored with every candidate")
     parser.add_argument("--fit-with", nargs="*", default=[], metavar="FILE",
                         help="outputs for the same cases screened otherwise (e.g. under another DEM error), used in "
-                             "the fits only; a case (file name and index) is left out of its own fit in every file")
+                             "the fits only; a case (master seed and index) is left out of its own fit in every file")
     parser.add_argument("--fit-with-only", action="store_true",
                         help="fit on the --fit-with files alone (e.g. score under DEM error what was fitted without)")
     args = parser.parse_args()
