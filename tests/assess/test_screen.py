@@ -147,5 +147,6 @@ def test_weak_main_segments_beside_strong_ones_come_first_below_the_tier():
     assert beside["neighbour_instability"] == 0.6 and strong["neighbour_instability"] == 1e-6
     assert far["neighbour_instability"] is None and lateral["neighbour_instability"] is None
     assert unknown["neighbour_instability"] == 0.6
-    order = sorted(rows, key=lambda r: rank_key(r["instability"], r))
-    assert order == [strong, beside, far, lateral, unknown]
+    names = {id(strong): "strong", id(beside): "beside", id(far): "far", id(lateral): "lateral", id(unknown): "unknown"}
+    order = [names[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
+    assert order == ["strong", "beside", "far", "lateral", "unknown"]
