@@ -38,6 +38,7 @@ from bench_regional import probability_scores  # this folder (scripts run from h
 from scipy.optimize import minimize
 
 from divides.assess.screen import (
+    CHAIN_CELLS,
     INSTABILITY_SCALING,
     NEIGHBOUR_CELLS,
     RUN_ORDER_BELOW,
@@ -549,13 +550,68 @@ for _gap, _score, _name in ((2, 0.01, "N2"), (5, 0.01, "N5"), (10, 0.01, "N10"),
         _beside_scored(_gap, _score)
 
 
+def _size(m: dict) -> float | None:
+    """The larger |shift| of the two landscape runs (None when neither measured the segment)."""
+    shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
+    return max(shifts) if shifts else None
+
+
+def _chained(moved: float) -> Callable[[dict], tuple]:
+    """Round 36: round 34's key, the neighbours' largest score passed along chains of main segments scored below
+    0.01 that either run moves at least ``moved`` cells (``_chain``: that score, set by :func:`targets`)."""
+    def key(m):
+        k = _A3(m)
+        if k[0] != 1:
+            return k
+        return (1, -float(m["_chain"][moved] is not None and m["_chain"][moved] >= RUN_ORDER_BELOW), *k[1:])
+    return key
+
+
+CHAIN_MOVED = (1.0, 0.5)
+for _moved, _name in zip(CHAIN_MOVED, ("C1", "C0.5")):
+    RANKINGS[f"{_name}: as N5, the neighbours' scores passed along segments below 0.01 moved >= {_moved:g} cell"] = \
+        _chained(_moved)
+
+
+def _chain_scores(main: list[dict], by_rank: dict, moved: float) -> None:
+    """Each main segment's ``_chain[moved]``: the largest score of the other main segments within NEIGHBOUR_CELLS of
+    it, or of those scored >= 0.01 that reach it through main segments each within NEIGHBOUR_CELLS of the next, scored
+    below 0.01 (or unknown) and moved at least ``moved`` cells by either run (round 36)."""
+    near = {m["rank"]: [r for r, gap in m.get("neighbours", []) if gap <= NEIGHBOUR_CELLS] for m in main}
+    value = {m["rank"]: max((i for gap, i in m["_near"] if gap <= NEIGHBOUR_CELLS and i is not None), default=None)
+             for m in main}
+
+    def conduit(r):
+        m = by_rank[r]
+        return (m["_i"] is None or m["_i"] < RUN_ORDER_BELOW) and (_size(m) or 0.0) >= moved
+
+    for source in main:
+        score = source["_i"]
+        if score is None or score < RUN_ORDER_BELOW:
+            continue
+        stack = [r for r in near[source["rank"]] if conduit(r)]
+        seen = set(stack)
+        while stack:
+            for r in near[stack.pop()]:
+                if r == source["rank"]:
+                    continue
+                value[r] = score if value[r] is None else max(value[r], score)
+                if r not in seen and conduit(r):
+                    seen.add(r)
+                    stack.append(r)
+    for m in main:
+        m.setdefault("_chain", {})[moved] = value[m["rank"]]
+
+
 def targets(case: dict, ranking: str = "by instability") -> dict:
     """Issue 14's targets of one case from the instabilities in ``_i``, by regional_benchmark.score's rules."""
     by_rank = {m["rank"]: m for m in case["main"]}
-    for m in case["main"]:  # the neighbours' scores under the candidate (screen.rank_key reads the largest)
+    for m in case["main"]:
         m["_near"] = [(gap, by_rank[r]["_i"]) for r, gap in m.get("neighbours", [])]
-        m["neighbour_instability"] = max((i for gap, i in m["_near"] if gap <= NEIGHBOUR_CELLS and i is not None),
-                                         default=None)
+    for moved in CHAIN_MOVED:
+        _chain_scores(case["main"], by_rank, moved)
+    for m in case["main"]:  # the neighbours' scores under the candidate, as screen._neighbour_instability reads them
+        m["neighbour_instability"] = m["_chain"][CHAIN_CELLS]
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
     out = ranking_targets(main, moving_truth=case["moving_stretches"] > 0)
