@@ -150,3 +150,32 @@ def test_weak_main_segments_beside_strong_ones_come_first_below_the_tier():
     names = {id(strong): "strong", id(beside): "beside", id(far): "far", id(lateral): "lateral", id(unknown): "unknown"}
     order = [names[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
     assert order == ["strong", "beside", "far", "lateral", "unknown"]
+
+
+def test_a_strong_score_passes_along_segments_the_runs_move():
+    # Round 36 (docs/methods.md §7b; a definition, common practice for a ranking rule): below 0.01 the score of a
+    # strongly scored main segment reaches, through main segments each within 5 cells of the next, scored below 0.01
+    # and moved >= 1 cell by either run, the segments beyond them; a segment moved less stops the chain.
+    from types import SimpleNamespace
+
+    from divides.assess.screen import _neighbour_instability, rank_key
+
+    def row(col0, instability, shift):
+        line = SimpleNamespace(row=np.zeros(10), col=np.arange(col0, col0 + 10.0))
+        return {"seg": SimpleNamespace(line=line), "divide_kind": "main", "instability": instability,
+                "forward_shift_cells": 0.0, "forward_shift_basin_cells": shift}
+
+    strong = row(0, 0.7, 2.0)
+    carrier = row(13, 1e-6, -1.5)   # beside strong, moved 1.5 cells by the per-basin run: passes the score on
+    reached = row(26, 1e-6, 0.2)    # beside the carrier only
+    weak = row(-26, 1e-6, 0.6)      # beside the blocker only
+    blocker = row(-13, 1e-6, 0.5)   # beside strong, moved 0.5 cell: stops the chain
+    other = row(60, 1e-6, 0.9)      # far from all, moved further than the reached and the weak
+    rows = [other, weak, blocker, reached, carrier, strong]
+    _neighbour_instability(rows)
+    assert carrier["neighbour_instability"] == blocker["neighbour_instability"] == 0.7
+    assert reached["neighbour_instability"] == 0.7 and weak["neighbour_instability"] == 1e-6
+    assert strong["neighbour_instability"] == 1e-6 and other["neighbour_instability"] is None
+    names = {id(r): n for r, n in zip(rows, ["other", "weak", "blocker", "reached", "carrier", "strong"])}
+    order = [names[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
+    assert order == ["strong", "carrier", "blocker", "reached", "other", "weak"]

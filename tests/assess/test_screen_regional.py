@@ -74,19 +74,35 @@ def test_ranks_follow_the_documented_order(steady):
     # (neither measured first), then by score; unknown last, unless the one-U run moves the divide half a cell or
     # more and the per-basin run does not move it as far the other way (then among those below 0.01, by the
     # larger |shift|); ties by length. Since round 34, a main segment below 0.01 whose line comes within 5 cells of
-    # another main segment's scored >= 0.01 comes first in that tier (neighbours found here by brute force with
-    # scipy's cdist). Here the order differs from the score's alone.
+    # another main segment's scored >= 0.01 comes first in that tier, and since round 36 one reached from such a
+    # segment through main segments each within 5 cells of the next, below 0.01 and moved >= 1 cell by either run
+    # (neighbours found here by brute force with scipy's cdist). Here the order differs from the score's alone.
     from scipy.spatial.distance import cdist
 
     _, result, _, _ = steady
     main = [s for s in result.segments if s["divide_kind"] == "main"]
+    xy = [np.column_stack([s["line"].row, s["line"].col]) for s in main]
+    near = [[j for j in range(len(main)) if j != i and cdist(xy[i], xy[j]).min() <= 5.0] for i in range(len(main))]
+
+    def low_and_moved(s):
+        moved = max((abs(v) for v in (s["forward_shift_cells"], s["forward_shift_basin_cells"]) if v is not None),
+                    default=0.0)
+        return (s["instability"] is None or s["instability"] < 0.01) and moved >= 1.0
+
+    reached = set()
+    for i, s in enumerate(main):
+        if s["instability"] is not None and s["instability"] >= 0.01:
+            todo, seen = [i], {i}
+            while todo:  # the strong segment's neighbours, and those of the chains it starts
+                for j in near[todo.pop()]:
+                    if j != i:
+                        reached.add(id(main[j]))
+                    if j not in seen and low_and_moved(main[j]):
+                        seen.add(j)
+                        todo.append(j)
 
     def beside_scored(s):
-        if s["divide_kind"] != "main":
-            return False
-        xy = np.column_stack([s["line"].row, s["line"].col])
-        return any(o is not s and o["instability"] is not None and o["instability"] >= 0.01
-                   and cdist(xy, np.column_stack([o["line"].row, o["line"].col])).min() <= 5.0 for o in main)
+        return id(s) in reached
 
     def key(s):
         i, one_u, per_basin = s["instability"], s["forward_shift_cells"], s["forward_shift_basin_cells"]
