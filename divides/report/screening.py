@@ -15,7 +15,7 @@ from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 
-from divides.assess.screen import EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE
+from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
@@ -344,7 +344,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "calibrated probability: a segment the runs do not move gets little even when it moves (its "
            "reliability on held-out model landscapes is in docs/validation.md). Segments scored below 0.01 "
            f"rank after the rest: on main divides, those within {NEIGHBOUR_CELLS:g} cells of a main segment "
-           f"scored {NEIGHBOUR_SCORE:g} or more "
+           f"scored {NEIGHBOUR_SCORE:g} or more, or linked to one by a chain of weak segments that a run moves "
+           f"{CHAIN_CELLS:g} model cell or more, "
            "first (a divide moves along a stretch several segments long); each group furthest moved by either "
            "run, either way, first (those neither could measure before all); "
            "segments of unknown instability that the runs move join them. "
