@@ -21,8 +21,9 @@ prior of sd 10 on every coefficient but the intercept (it keeps the fit finite w
 ``--rankings`` scores orders of the segments too (rounds 14-21: below a score, by a landscape run's shift; round
 24: transient aggressors first; round 31: the run's shift either way; round 33: the larger of both runs' shifts
 either way; round 34: main segments beside a strongly scored main segment first, from the gaps between main segments
-that the records keep since then; :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13,
-"shipped" screen.rank_key (round 34's N5) and "round 20" the key round 33 replaced. Give it training cases only.
+that the records keep since then; round 36: those scores passed along chains of segments the runs move;
+:data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13, "shipped" screen.rank_key (round 36's C1)
+and "round 20" the key round 33 replaced. Give it training cases only.
 """
 
 from __future__ import annotations
@@ -469,9 +470,9 @@ def _round20(m: dict) -> tuple:
 
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 34's N5 since then), "round
-#: 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33, shipped in round 33), N2, N5,
-#: N10 and N5-0.5 (round 34) are added below.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 36's C1 since then), "round
+#: 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33), N2, N5, N10 and N5-0.5
+#: (round 34; N5 shipped) and C1 and C0.5 (round 36) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: rank_key(m["_i"], m),
