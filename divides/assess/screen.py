@@ -31,7 +31,7 @@ from divides.terrain.routing import FlowGraph, route
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
-           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS"]
+           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -512,43 +512,69 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
 
 
 def _neighbour_instability(rows: list[dict]) -> None:
-    """Set each main segment's ``neighbour_instability``: the largest instability of the other main segments whose
-    lines come within :data:`NEIGHBOUR_CELLS` of its own (:func:`divides.terrain.line_gaps.line_gaps`), or of those
-    scored at least :data:`NEIGHBOUR_SCORE` that reach it through a chain of main segments, each that near the next,
-    scored below :data:`RUN_ORDER_BELOW` (or unknown) and moved at least :data:`CHAIN_CELLS` by either landscape run;
-    None for lateral segments and where no scored main segment is that near. Lateral divides are left out: their
-    own truth (the area two basins exchange) was not read for this term."""
+    """Set each main segment's ``neighbour_instability`` (:func:`neighbour_scores`, the neighbours found by
+    :func:`divides.terrain.line_gaps.line_gaps`); None for lateral segments. Lateral divides are left out: their own
+    truth (the area two basins exchange) was not read for this term."""
     main = [r for r in rows if r["divide_kind"] == "main"]
-    for r in rows:
-        r["neighbour_instability"] = None
     near: list[list[int]] = [[] for _ in main]
     for p, q in zip(*(a.tolist() for a in line_gaps([r["seg"].line for r in main], NEIGHBOUR_CELLS)[:2])):
         near[p].append(q)
         near[q].append(p)
+    moved = [max((abs(s) for s in _run_shifts(r) if s is not None), default=None) for r in main]
+    for r in rows:
+        r["neighbour_instability"] = None
+    for r, value in zip(main, neighbour_scores(near, [r["instability"] for r in main], moved)):
+        r["neighbour_instability"] = value
+
+
+def neighbour_scores(near: Sequence[Sequence[int]], scores: Sequence[float | None], moved: Sequence[float | None],
+                     chain_cells: float | None = None) -> list[float | None]:
+    """Each main segment's largest neighbour score: the largest instability of the other main segments within
+    :data:`NEIGHBOUR_CELLS` of it, or of those scored at least :data:`NEIGHBOUR_SCORE` that reach it through a chain
+    of main segments, each that near the next, scored below :data:`RUN_ORDER_BELOW` (or unknown) and moved at least
+    ``chain_cells`` (default :data:`CHAIN_CELLS`) by either landscape run; None where no scored segment is that near.
+
+    Parameters
+    ----------
+    near : sequence of sequences of int
+        For each segment, the indices of the others within :data:`NEIGHBOUR_CELLS` (both ways).
+    scores : sequence of float or None
+        Each segment's instability (None: unknown).
+    moved : sequence of float or None
+        Each segment's larger |shift| of the two landscape runs (model cells; None: neither measured it).
+    chain_cells : float, optional
+
+    Examples
+    --------
+    >>> near = [[1], [0, 2], [1, 3], [2]]  # four segments in a row
+    >>> neighbour_scores(near, [0.8, 1e-6, 1e-6, 1e-6], [2.0, 1.5, 0.3, 1.2])  # the second passes 0.8 on
+    [1e-06, 0.8, 0.8, 1e-06]
+    """
+    chain = CHAIN_CELLS if chain_cells is None else chain_cells
+    value: list[float | None] = [None] * len(scores)
 
     def lift(k: int, score: float | None) -> None:
         if score is not None:
-            main[k]["neighbour_instability"] = max(score, main[k]["neighbour_instability"] or 0.0)
+            value[k] = score if value[k] is None else max(value[k], score)
 
     def conduit(k: int) -> bool:
-        r = main[k]
-        moved = max((abs(s) for s in _run_shifts(r) if s is not None), default=0.0)
-        return (r["instability"] is None or r["instability"] < RUN_ORDER_BELOW) and moved >= CHAIN_CELLS
+        return (scores[k] is None or scores[k] < RUN_ORDER_BELOW) and (moved[k] or 0.0) >= chain
 
-    for k, r in enumerate(main):
+    for k, score in enumerate(scores):
         for j in near[k]:
-            lift(j, r["instability"])
-        if r["instability"] is None or r["instability"] < NEIGHBOUR_SCORE:
+            lift(j, score)
+        if score is None or score < NEIGHBOUR_SCORE:
             continue
         stack = [j for j in near[k] if conduit(j)]  # the chains from a strongly scored segment
         seen = set(stack)
         while stack:
             for j in near[stack.pop()]:
                 if j != k:
-                    lift(j, r["instability"])
+                    lift(j, score)
                     if j not in seen and conduit(j):
                         seen.add(j)
                         stack.append(j)
+    return value
 
 
 def _run_moves(evidence: dict) -> float | None:

@@ -46,6 +46,7 @@ from divides.assess.screen import (
     TRANSIENT_BASIN,
     evidence_features,
     instability_of,
+    neighbour_scores,
     rank_key,
 )
 from divides.model.regional_benchmark import raises_alarm, ranking_targets
@@ -574,34 +575,14 @@ for _moved, _name in zip(CHAIN_MOVED, ("C1", "C0.5")):
         _chained(_moved)
 
 
-def _chain_scores(main: list[dict], by_rank: dict, moved: float) -> None:
-    """Each main segment's ``_chain[moved]``: the largest score of the other main segments within NEIGHBOUR_CELLS of
-    it, or of those scored >= 0.01 that reach it through main segments each within NEIGHBOUR_CELLS of the next, scored
-    below 0.01 (or unknown) and moved at least ``moved`` cells by either run (round 36)."""
-    near = {m["rank"]: [r for r, gap in m.get("neighbours", []) if gap <= NEIGHBOUR_CELLS] for m in main}
-    value = {m["rank"]: max((i for gap, i in m["_near"] if gap <= NEIGHBOUR_CELLS and i is not None), default=None)
-             for m in main}
-
-    def conduit(r):
-        m = by_rank[r]
-        return (m["_i"] is None or m["_i"] < RUN_ORDER_BELOW) and (_size(m) or 0.0) >= moved
-
-    for source in main:
-        score = source["_i"]
-        if score is None or score < RUN_ORDER_BELOW:
-            continue
-        stack = [r for r in near[source["rank"]] if conduit(r)]
-        seen = set(stack)
-        while stack:
-            for r in near[stack.pop()]:
-                if r == source["rank"]:
-                    continue
-                value[r] = score if value[r] is None else max(value[r], score)
-                if r not in seen and conduit(r):
-                    seen.add(r)
-                    stack.append(r)
-    for m in main:
-        m.setdefault("_chain", {})[moved] = value[m["rank"]]
+def _chain_scores(main: list[dict], moved: float) -> None:
+    """Each main segment's ``_chain[moved]``: screen.neighbour_scores from its recorded neighbours within
+    NEIGHBOUR_CELLS, the candidate's scores and chains through segments moved at least ``moved`` cells (round 36)."""
+    index = {m["rank"]: k for k, m in enumerate(main)}
+    near = [[index[r] for r, gap in m.get("neighbours", []) if gap <= NEIGHBOUR_CELLS] for m in main]
+    values = neighbour_scores(near, [m["_i"] for m in main], [_size(m) for m in main], moved)
+    for m, value in zip(main, values):
+        m.setdefault("_chain", {})[moved] = value
 
 
 def targets(case: dict, ranking: str = "by instability") -> dict:
@@ -610,7 +591,7 @@ def targets(case: dict, ranking: str = "by instability") -> dict:
     for m in case["main"]:
         m["_near"] = [(gap, by_rank[r]["_i"]) for r, gap in m.get("neighbours", [])]
     for moved in CHAIN_MOVED:
-        _chain_scores(case["main"], by_rank, moved)
+        _chain_scores(case["main"], moved)
     for m in case["main"]:  # the neighbours' scores under the candidate, as screen._neighbour_instability reads them
         m["neighbour_instability"] = m["_chain"][CHAIN_CELLS]
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
