@@ -126,7 +126,7 @@ NEIGHBOUR_CELLS = 5.0
 NEIGHBOUR_SCORE = RUN_ORDER_BELOW
 
 #: ... or reaching it through a chain of main segments below the tier that either landscape run moves at least this
-#: many model cells (:func:`_neighbour_instability`): a stretch that moves as a whole carries the score of its strongly
+#: many model cells (:func:`neighbour_scores`): a stretch that moves as a whole carries the score of its strongly
 #: scored pieces to the weak ones the runs move. Chosen against 0.5 cell in round 36 (177 training cases, rule written
 #: beforehand): 214, 206 and 194 targets under 0, 1 and 5 m of DEM error against 213, 206 and 194 and round 34's 212,
 #: 204 and 189 (order 44, 40 and 36 of 48 against 42, 38 and 31).
@@ -505,7 +505,8 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
         return (0, -instability, 0.0, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
-    size = max((abs(s) for s in _run_shifts(evidence) if s is not None), default=math.inf)
+    size = _run_size(evidence)
+    size = math.inf if size is None else size
     beside = _finite(evidence.get("neighbour_instability"))
     return (1, -float(beside is not None and beside >= NEIGHBOUR_SCORE), -size,
             0.0 if instability is None else -instability)
@@ -520,7 +521,7 @@ def _neighbour_instability(rows: list[dict]) -> None:
     for p, q in zip(*(a.tolist() for a in line_gaps([r["seg"].line for r in main], NEIGHBOUR_CELLS)[:2])):
         near[p].append(q)
         near[q].append(p)
-    moved = [max((abs(s) for s in _run_shifts(r) if s is not None), default=None) for r in main]
+    moved = [_run_size(r) for r in main]
     for r in rows:
         r["neighbour_instability"] = None
     for r, value in zip(main, neighbour_scores(near, [r["instability"] for r in main], moved)):
@@ -584,6 +585,11 @@ def _run_moves(evidence: dict) -> float | None:
     if one_u is None or per_basin is None or abs(one_u) < RUNS_AGREE_CELLS:
         return None
     return one_u if math.copysign(1.0, one_u) * per_basin > -RUNS_AGREE_CELLS else None
+
+
+def _run_size(evidence: dict) -> float | None:
+    """The larger |shift| of the two landscape runs (model cells; None when neither measured the segment)."""
+    return max((abs(s) for s in _run_shifts(evidence) if s is not None), default=None)
 
 
 def _run_shifts(evidence: dict) -> tuple[float | None, float | None]:

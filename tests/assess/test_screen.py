@@ -124,58 +124,50 @@ def test_a_segment_matches_assess_on_the_same_two_basins(landscapes):
     assert seg["moves_toward_basin"] == victim
 
 
+
+def _divide_row(col0: float, instability: float | None, one_u: float, per_basin: float, kind: str = "main") -> dict:
+    """A screening row along row 0 of the grid, ten vertices from ``col0``, with both runs' shifts."""
+    from types import SimpleNamespace
+
+    line = SimpleNamespace(row=np.zeros(10), col=np.arange(col0, col0 + 10.0))
+    return {"seg": SimpleNamespace(line=line), "divide_kind": kind, "instability": instability,
+            "forward_shift_cells": one_u, "forward_shift_basin_cells": per_basin}
+
+
+def _ranked(named: dict) -> list[str]:
+    """The names of ``named``'s rows in screening's order, after setting their neighbours' scores."""
+    from divides.assess.screen import _neighbour_instability, rank_key
+
+    rows = list(named.values())
+    _neighbour_instability(rows)
+    by_id = {id(r): n for n, r in named.items()}
+    return [by_id[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
+
+
 def test_weak_main_segments_beside_strong_ones_come_first_below_the_tier():
     # Round 34's ranking (docs/methods.md §7b; a definition, common practice for a ranking rule): below 0.01 a main
     # segment whose line comes within 5 cells of another main segment scored >= 0.01 ranks before the others of the
     # tier, even when the runs move them further; lateral segments do not read it.
-    from types import SimpleNamespace
-
-    from divides.assess.screen import _neighbour_instability, rank_key
-
-    def row(kind, col0, instability, shift):
-        line = SimpleNamespace(row=np.zeros(10), col=np.arange(col0, col0 + 10.0))
-        return {"seg": SimpleNamespace(line=line), "divide_kind": kind, "instability": instability,
-                "forward_shift_cells": shift, "forward_shift_basin_cells": 0.0}
-
-    strong = row("main", 0, 0.6, 2.0)
-    beside = row("main", 13, 1e-6, 0.1)         # 4 cells past strong's end
-    far = row("main", 40, 1e-6, 1.5)            # 31 cells away, moved further by the run
-    lateral = row("lateral", 12, 1e-6, 0.2)     # lateral, 3 cells away
-    unknown = row("main", -14, None, 0.0)       # beside strong, but neither scored nor moved: stays last
-    rows = [far, lateral, unknown, beside, strong]
-    _neighbour_instability(rows)
-    assert beside["neighbour_instability"] == 0.6 and strong["neighbour_instability"] == 1e-6
-    assert far["neighbour_instability"] is None and lateral["neighbour_instability"] is None
-    assert unknown["neighbour_instability"] == 0.6
-    names = {id(strong): "strong", id(beside): "beside", id(far): "far", id(lateral): "lateral", id(unknown): "unknown"}
-    order = [names[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
-    assert order == ["strong", "beside", "far", "lateral", "unknown"]
+    rows = {"far": _divide_row(40, 1e-6, 1.5, 0.0),                   # 31 cells away, moved further by the run
+            "lateral": _divide_row(12, 1e-6, 0.2, 0.0, "lateral"),    # lateral, 3 cells away
+            "unknown": _divide_row(-14, None, 0.0, 0.0),              # beside strong, neither scored nor moved: last
+            "beside": _divide_row(13, 1e-6, 0.1, 0.0),                # 4 cells past strong's end
+            "strong": _divide_row(0, 0.6, 2.0, 0.0)}
+    assert _ranked(rows) == ["strong", "beside", "far", "lateral", "unknown"]
+    near = {n: r["neighbour_instability"] for n, r in rows.items()}
+    assert near == {"far": None, "lateral": None, "unknown": 0.6, "beside": 0.6, "strong": 1e-6}
 
 
 def test_a_strong_score_passes_along_segments_the_runs_move():
     # Round 36 (docs/methods.md §7b; a definition, common practice for a ranking rule): below 0.01 the score of a
     # strongly scored main segment reaches, through main segments each within 5 cells of the next, scored below 0.01
     # and moved >= 1 cell by either run, the segments beyond them; a segment moved less stops the chain.
-    from types import SimpleNamespace
-
-    from divides.assess.screen import _neighbour_instability, rank_key
-
-    def row(col0, instability, shift):
-        line = SimpleNamespace(row=np.zeros(10), col=np.arange(col0, col0 + 10.0))
-        return {"seg": SimpleNamespace(line=line), "divide_kind": "main", "instability": instability,
-                "forward_shift_cells": 0.0, "forward_shift_basin_cells": shift}
-
-    strong = row(0, 0.7, 2.0)
-    carrier = row(13, 1e-6, -1.5)   # beside strong, moved 1.5 cells by the per-basin run: passes the score on
-    reached = row(26, 1e-6, 0.2)    # beside the carrier only
-    weak = row(-26, 1e-6, 0.6)      # beside the blocker only
-    blocker = row(-13, 1e-6, 0.5)   # beside strong, moved 0.5 cell: stops the chain
-    other = row(60, 1e-6, 0.9)      # far from all, moved further than the reached and the weak
-    rows = [other, weak, blocker, reached, carrier, strong]
-    _neighbour_instability(rows)
-    assert carrier["neighbour_instability"] == blocker["neighbour_instability"] == 0.7
-    assert reached["neighbour_instability"] == 0.7 and weak["neighbour_instability"] == 1e-6
-    assert strong["neighbour_instability"] == 1e-6 and other["neighbour_instability"] is None
-    names = {id(r): n for r, n in zip(rows, ["other", "weak", "blocker", "reached", "carrier", "strong"])}
-    order = [names[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
-    assert order == ["strong", "carrier", "blocker", "reached", "other", "weak"]
+    rows = {"other": _divide_row(60, 1e-6, 0.0, 0.9),     # far from all, moved further than the reached and the weak
+            "weak": _divide_row(-26, 1e-6, 0.0, 0.6),     # beside the blocker only
+            "blocker": _divide_row(-13, 1e-6, 0.0, 0.5),  # beside strong, moved 0.5 cell: stops the chain
+            "reached": _divide_row(26, 1e-6, 0.0, 0.2),   # beside the carrier only
+            "carrier": _divide_row(13, 1e-6, 0.0, -1.5),  # beside strong, moved 1.5 cells by the per-basin run
+            "strong": _divide_row(0, 0.7, 0.0, 2.0)}
+    assert _ranked(rows) == ["strong", "carrier", "blocker", "reached", "other", "weak"]
+    near = {n: r["neighbour_instability"] for n, r in rows.items()}
+    assert near == {"other": None, "weak": 1e-6, "blocker": 0.7, "reached": 0.7, "carrier": 0.7, "strong": 1e-6}

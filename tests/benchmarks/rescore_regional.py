@@ -516,6 +516,12 @@ def _either_way(m: dict) -> tuple:
 RANKINGS["A1: below 0.01 by the one-U run's shift either way"] = _either_way
 
 
+def _size(m: dict) -> float | None:
+    """The larger |shift| of the two landscape runs (None when neither measured the segment)."""
+    shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
+    return max(shifts) if shifts else None
+
+
 def _larger_either_way(unmeasured_first: bool) -> Callable[[dict], tuple]:
     """Round 33: round 20's ranking, but its second tier (known segments below 0.01 and the unknown ones that join it)
     by the larger |shift| of the two runs, either direction, larger first; a segment neither run measured comes
@@ -524,8 +530,8 @@ def _larger_either_way(unmeasured_first: bool) -> Callable[[dict], tuple]:
         k = _round20(m)
         if k[0] != 1:
             return k
-        shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
-        size = max(shifts) if shifts else (math.inf if unmeasured_first else 0.0)
+        size = _size(m)
+        size = size if size is not None else (math.inf if unmeasured_first else 0.0)
         return (1, -size, 0.0 if m["_i"] is None else -m["_i"])
     return key
 
@@ -550,12 +556,6 @@ def _beside_scored(gap: float, score: float) -> Callable[[dict], tuple]:
 for _gap, _score, _name in ((2, 0.01, "N2"), (5, 0.01, "N5"), (10, 0.01, "N10"), (5, 0.5, "N5-0.5")):
     RANKINGS[f"{_name}: below 0.01, beside a main segment scored >= {_score:g} within {_gap} cells first"] = \
         _beside_scored(_gap, _score)
-
-
-def _size(m: dict) -> float | None:
-    """The larger |shift| of the two landscape runs (None when neither measured the segment)."""
-    shifts = [abs(v) for v in (_shift(m), _shift(m, "forward_shift_basin_cells")) if v is not None]
-    return max(shifts) if shifts else None
 
 
 def _chained(moved: float) -> Callable[[dict], tuple]:
