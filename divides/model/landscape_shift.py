@@ -32,7 +32,7 @@ from divides.terrain.divide_lines import DivideLine
 from divides.terrain.routing import route
 
 __all__ = ["LandscapeShift", "landscape_shift", "landscape_shifts", "ModelStart", "model_start", "run_from",
-           "steady_uplift", "balance_terms", "BALANCES", "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
+           "steady_uplift", "local_uplift", "balance_terms", "BALANCES", "MIN_BALANCE_CELLS", "PIECE_RADIUS_CELLS"]
 
 #: Model cells on either side of a piece of divide whose exchange counts as its motion: several times
 #: the shift of a divide moving 2 cells per response time over the horizon (0.6 cell), so that the area it
@@ -164,8 +164,9 @@ def _most_common(values: np.ndarray) -> int:
     return int(uniq[np.argmax(counts)])
 
 
-#: The balances :func:`landscape_shift` can run under.
-BALANCES = ("channels", "steady", "steady-basins")
+#: The balances :func:`landscape_shift` can run under; ``"steady-local<σ>"`` (σ a number of model cells, e.g.
+#: ``"steady-local10"``) is :func:`local_uplift` at that σ.
+BALANCES = ("channels", "steady", "steady-basins", "steady-local<σ>")
 
 
 def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
@@ -191,7 +192,10 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
         A^m S^n of its channels at K = 1, without diffusion; ``"steady"``, one rate and a
         diffusivity fitted so that the present surface is the model's steady state
         (:func:`steady_uplift`); ``"steady-basins"``, the same with one rate per outlet basin,
-        which absorbs a contrast of uplift, erodibility or runoff between whole basins.
+        which absorbs a contrast of uplift, erodibility or runoff between whole basins;
+        ``"steady-local<σ>"``, the rate read within each outlet basin over a Gaussian window of σ
+        model cells (:func:`local_uplift`), which absorbs contrasts wider than the window wherever
+        they lie.
 
     Returns
     -------
@@ -214,8 +218,7 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
     for balance in balances:
-        if balance not in BALANCES:
-            raise ParameterError(f"balance must be one of {', '.join(map(repr, BALANCES))}; got {balance!r}")
+        _local_sigma(balance)  # checks the name
     if start is None:
         start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     slope = slopes(start.flow)[start.cells]
@@ -227,7 +230,9 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
             uplift = u_scale = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
             diffusivity = 0.0
         else:
-            uplift, diffusivity = steady_uplift(start, n, per_basin=balance == "steady-basins")
+            sigma = _local_sigma(balance)
+            uplift, diffusivity = (steady_uplift(start, n, per_basin=balance == "steady-basins") if sigma is None
+                                   else local_uplift(start, n, sigma))
             u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
         runs.append(run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
                              horizon_tau=horizon_tau, max_steps=max_steps))
@@ -266,6 +271,58 @@ def steady_uplift(start: ModelStart, n: float, *, per_basin: bool = False) -> tu
     spread = float(np.sum(dc * dc))
     d = max(float(np.sum(dc * (f - f_mean[g])) / spread), 0.0) if spread > 0 else 0.0
     return np.maximum(f_mean - d * c_mean, 0.0)[groups].reshape(start.grid.shape), d
+
+
+def local_uplift(start: ModelStart, n: float, sigma_cells: float) -> tuple[np.ndarray, float]:
+    """Uplift field and diffusivity (K = 1) of the steady balance read locally within each outlet basin.
+
+    Each cell's U is the steady residual A^m S^n − D ∇²z (D of :func:`steady_uplift` with ``per_basin``) averaged
+    over the readable cells (:func:`balance_terms`) of its own outlet basin, weighted by a Gaussian of
+    ``sigma_cells`` model cells (normalised convolution, Knutsson & Westin 1993). A contrast of uplift,
+    erodibility or runoff wider than the window is absorbed wherever it lies, also inside a basin (the per-basin
+    rate of :func:`steady_uplift` absorbs only contrasts that follow the basins' boundaries); a contrast
+    narrower than the window, such as the step of a knickpoint, is spread over it. Basins of fewer than
+    :data:`MIN_BALANCE_CELLS` readable cells, and cells with no readable cell of their basin within three σ,
+    keep :func:`steady_uplift`'s per-basin rate. U below 0 is returned as 0.
+    """
+    if not (math.isfinite(sigma_cells) and sigma_cells > 0):
+        raise ParameterError(f"the local balance's window must be > 0 model cells; got {sigma_cells!r}")
+    basin_u, diffusivity = steady_uplift(start, n, per_basin=True)
+    fluvial, lap, sel = balance_terms(start, n)
+    shape = start.grid.shape
+    weight = sel.reshape(shape)
+    residual = np.where(sel, fluvial - diffusivity * np.where(sel, lap, 0.0), 0.0).reshape(shape)
+    uplift = basin_u.copy()
+    pad = int(math.ceil(3.0 * sigma_cells))
+    for label, box in enumerate(ndimage.find_objects(start.before), start=1):
+        if box is None:
+            continue
+        box = tuple(slice(max(b.start - pad, 0), b.stop + pad) for b in box)
+        inside = start.before[box] == label
+        readable = inside & weight[box]
+        if np.count_nonzero(readable) < MIN_BALANCE_CELLS:
+            continue
+        total = ndimage.gaussian_filter(np.where(readable, residual[box], 0.0), sigma_cells, mode="constant",
+                                        truncate=3.0)
+        count = ndimage.gaussian_filter(readable.astype(np.float64), sigma_cells, mode="constant", truncate=3.0)
+        near = inside & (count > 1e-9)
+        uplift[box][near] = total[near] / count[near]
+    return np.maximum(uplift, 0.0), diffusivity
+
+
+def _local_sigma(balance: str) -> float | None:
+    """σ (model cells) of a ``"steady-local<σ>"`` balance; None for the other balances; ParameterError otherwise."""
+    if balance in BALANCES[:3]:
+        return None
+    prefix = "steady-local"
+    try:
+        sigma = float(balance[len(prefix):]) if balance.startswith(prefix) else math.nan
+    except ValueError:
+        sigma = math.nan
+    if not (math.isfinite(sigma) and sigma > 0):
+        raise ParameterError(f"balance must be one of {', '.join(map(repr, BALANCES))} (σ > 0 model cells); "
+                             f"got {balance!r}")
+    return sigma
 
 
 def balance_terms(start: ModelStart, n: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -167,6 +167,36 @@ def given_scores(rows: list[dict], kind: str, key: str = "instability") -> dict:
     return probability_scores(x, y)
 
 
+def _record_extra_runs(balances: tuple[str, ...]) -> None:
+    """Make every screening of this process also run the landscape under ``balances`` and keep each segment's
+    shift in them (``forward_shift_<balance>_cells``, model cells into b) in the records (round 37)."""
+    import divides.assess.screen as screening
+    import divides.model.regional_benchmark as benchmark
+    from divides.model.landscape_shift import landscape_shifts, model_start
+    from divides.terrain.tiled_flow import tiled_routing
+
+    keys = tuple(f"forward_shift_{b}_cells" for b in balances)
+    evidence = screening._landscape_evidence
+
+    def with_extra_runs(dem, flow, rows, labels, outlet_of, config, threshold):
+        out = evidence(dem, flow, rows, labels, outlet_of, config, threshold)
+        options = dict(theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
+                       channel_area_m2=threshold)
+        with tiled_routing(None):
+            start = model_start(dem, **options)
+            runs = landscape_shifts(dem, balances=balances, start=start, **options)
+        sides = outlet_of[runs[0].on_model_grid(labels)]
+        for r in rows:
+            a, b = int(outlet_of[r["seg"].label_a]), int(outlet_of[r["seg"].label_b])
+            for key, run in zip(keys, runs):
+                r[key] = run.piece_shift(r["seg"].line, sides, a, b)
+        return out
+
+    screening._landscape_evidence = with_extra_runs
+    screening.EVIDENCE_KEYS = (*screening.EVIDENCE_KEYS, *keys)
+    benchmark.EVIDENCE_KEYS = (*benchmark.EVIDENCE_KEYS, *keys)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--n", type=int, default=24)
@@ -187,7 +217,13 @@ def main() -> None:
                         help="correlation length of that error in cells (default 3)")
     parser.add_argument("--screen-assumes-default", action="store_true",
                         help="do not tell screening the error added (it keeps its default error model)")
+    parser.add_argument("--extra-balances", nargs="*", default=(), metavar="BALANCE",
+                        help="also run the landscape under these balances (e.g. steady-local10) and record each "
+                             "segment's shift as forward_shift_<balance>_cells (a measuring aid; the screening's "
+                             "own figures do not change)")
     args = parser.parse_args()
+    if args.extra_balances:
+        _record_extra_runs(tuple(args.extra_balances))
     from divides.terrain.dem_error import DemError
     from divides.model.benchmark import split_of
     from divides.model.regional_benchmark import (
