@@ -621,6 +621,16 @@ def _load(names: list[str]) -> list[dict]:
     return rows
 
 
+def _replace_run(rows: list[dict], key: str) -> None:
+    """Round 37: every segment's ``forward_shift_basin_cells`` replaced by its ``key`` (a run under another
+    balance), so that every candidate and ranking reads that run where it read the per-basin one."""
+    for row in rows:
+        for m in row["main"] + row.get("lateral", []) + row["others"]:
+            if key not in m:
+                raise SystemExit(f"--per-basin-from: the records have no {key!r}; screen with --extra-balances")
+            m["forward_shift_basin_cells"] = m[key]
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("files", nargs="+", help="bench_regional.py --json outputs (training cases)")
@@ -632,8 +642,13 @@ def main() -> None:
                              "the fits only; a case (master seed and index) is left out of its own fit in every file")
     parser.add_argument("--fit-with-only", action="store_true",
                         help="fit on the --fit-with files alone (e.g. score under DEM error what was fitted without)")
+    parser.add_argument("--per-basin-from", default=None, metavar="KEY",
+                        help="read every segment's per-basin run from this record key instead (round 37: e.g. "
+                             "forward_shift_steady-local10_cells, recorded by bench_regional.py --extra-balances)")
     args = parser.parse_args()
     rows, extra = _load(args.files), _load(args.fit_with)
+    if args.per_basin_from:
+        _replace_run(rows + extra, args.per_basin_from)
     fitted_on = (lambda: extra) if args.fit_with_only else (lambda: rows + extra)
     print(f"{len(rows)} cases ({len(extra)} more for fitting); the P-only scaling for unmeasured shifts: "
           f"{INSTABILITY_SCALING}")
