@@ -65,6 +65,15 @@ SCREENING_REFERENCES = tuple(sorted(
     ]))
 
 
+#: The known limits every screening report states (measured on the regional model landscapes, docs/methods.md §7b).
+SCREENING_LIMITS = (
+    "<b>Known limits</b> (on model landscapes whose motion was measured): a steady contrast of uplift, rock strength "
+    "or runoff can look like a moving divide, most of all a step of uplift that crosses the basins (an active "
+    "fault, say), which no line of evidence here tells from a knickpoint climbing them; a change of rock strength "
+    "or runoff that the topography does not show yet goes unseen; where a divide moves along part of its length, "
+    "still segments next to the moving stretch can rank among it; DEM error lowers every figure."
+)
+
 #: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
 INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment moves (0–1)",
                      False: "instability = calibrated probability that the segment moves"}
@@ -351,6 +360,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "segments of unknown instability that the runs move join them. "
            if p.get("forward_run")
            else "") +
+        f"{SCREENING_LIMITS} "
         "Details: docs/methods.md §7b; figures: docs/validation.md (Regional screening).</p>"
         "<h3>References</h3><ol>" + "".join(f"<li>{e(r)}</li>" for r in SCREENING_REFERENCES) + "</ol>")
     body = "".join([

@@ -149,6 +149,22 @@ def test_every_work_the_methods_cite_is_listed_in_full(screening, forward_run):
     assert ("Gilbert" in methods) == forward_run
 
 
+@pytest.mark.parametrize("forward_run", [False, True])
+def test_the_methods_state_the_known_false_alarms(screening, forward_run):
+    # The report carries the usual cautions and, beside them, the limits measured on the regional benchmark
+    # (docs/methods.md 7b, Known limits): the false alarms of steady contrasts, an uplift step across the basins
+    # above all, and the changes the topography does not show yet.
+    import dataclasses
+
+    from divides.report.screening import _report, segment_rows
+
+    result = dataclasses.replace(screening, parameters={**screening.parameters, "forward_run": forward_run})
+    text = _report(result, b"", segment_rows(result), result.to_dict())
+    methods = text.split("<h2>Methods and references</h2>")[1].split("<h3>References</h3>")[0]
+    assert "<b>Known limits</b>" in methods
+    assert "step of uplift that crosses the basins" in methods and "does not show yet" in methods
+
+
 def test_leader_lines_have_a_legend_entry(screening, monkeypatch):
     # Issue 14 item 5: a legend for every mark. When a whole basin lies under the map furniture its label goes
     # beside it with a leader line; with the furniture made to cover the whole map every label needs one, and
