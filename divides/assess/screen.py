@@ -30,7 +30,7 @@ from divides.terrain.routing import FlowGraph, route
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
-           "RUNS_AGREE_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
+           "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
            "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
@@ -64,7 +64,8 @@ INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "l
 #: 177 training cases gave 203 targets against 199 without error and 184 against 175 with 5 m of it, alarms 3
 #: against 5 there; coefficients as fitted on the 5-point stencil); r = 1 when both landscape runs under the
 #: steady balance, one with one uplift rate and one with one rate per outlet basin, move the segment's divide at
-#: least :data:`RUNS_AGREE_CELLS` model cells toward that side, or, on a main divide whose aggressor's basin is
+#: least :data:`RUNS_AGREE_CELLS` model cells toward that side (on main divides the first at least
+#: :data:`MAIN_ONE_U_CELLS`, round 38), or, on a main divide whose aggressor's basin is
 #: transient (:data:`TRANSIENT_BASIN`, :data:`TRANSIENT_SPREADS`), the first does and the second does not move it as
 #: far the other way; else 0 (also when either run did not measure it). The coefficients were fitted on the regional
 #: benchmark's version-3 training cases with r read from the first run alone at 0.1 cell; r of both runs was chosen
@@ -84,6 +85,15 @@ INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-
 #: :data:`INSTABILITY_EVIDENCE`: a divide moving 2 cells per response time (the benchmark's "moving")
 #: covers 0.6 cell over the runs' 0.3 response times. Chosen against 0.25 on training cases (round 11).
 RUNS_AGREE_CELLS = 0.5
+
+#: On main divides r asks the one-uplift-rate run for a longer shift toward the favoured side, in both of its branches
+#: (:func:`evidence_features`): in steady contrast landscapes it moves segments by up to about a cell where the
+#: basins straddle the contrast, and with the per-basin run doing so too, or the aggressor's basin read as transient,
+#: that was enough for an alarm. Chosen against 0.5 (round 36's default) and 1 cell in round 38 (177 training cases,
+#: rule written beforehand; docs/validation.md, *Regional screening*): 215, 209 and 197 targets under 0, 1 and 5 m of
+#: DEM error against 214, 206 and 194, alarms in steady landscapes 1, 1 and 0 against 3, 3 and 3; main log loss 0.538
+#: against 0.435 under 0 m (the score is not a calibrated probability).
+MAIN_ONE_U_CELLS = 0.75
 
 #: A basin is transient for :data:`INSTABILITY_EVIDENCE`'s r when the absolute value of its transience
 #: (:func:`divides.model.transience.basin_transience`, ln of its lower over its upper channels' erosion rate) is at
@@ -414,6 +424,11 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     >>> one_run = {"forward_shift_cells": 0.8, "forward_shift_basin_cells": -0.3, "hilltop_contrast": 0.2}
     >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", one_run) < 0.01  # the runs disagree
     True
+    >>> short = {**agreeing, "forward_shift_cells": 0.6}  # the one-U run 0.6 cell: enough on lateral divides only
+    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", short) < 0.01
+    True
+    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "lateral", short), 2)  # -3.89 + 1.02 logit 0.9 + 0.61
+    0.26
     >>> fall = {**one_run, "forward_shift_basin_cells": 0.1, "transience_a": -0.4, "transience_sd_a": 0.1}
     >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", fall), 2)
     0.99
@@ -439,7 +454,8 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
 def evidence_features(probabilities: dict, evidence: dict, kind: str = "main") -> tuple[float, float, float]:
     """What :func:`instability_of` reads: logit(P(a) + P(b)) (P clipped to [1e-4, 1 - 1e-4]), the hilltop
     contrast signed toward the side the decision favours (0 on a tie or unmeasured), and r: 1.0 when the run with
-    one uplift rate moves the divide at least :data:`RUNS_AGREE_CELLS` toward that side and the run with one rate
+    one uplift rate moves the divide at least :data:`RUNS_AGREE_CELLS` toward that side (:data:`MAIN_ONE_U_CELLS` on
+    a ``"main"`` divide) and the run with one rate
     per outlet basin either does so too or, on a ``"main"`` divide whose aggressor's basin is transient
     (:func:`_aggressor_transient`), does not move it as far the other way; else 0.0 (also when a run is
     unmeasured).
@@ -454,7 +470,8 @@ def evidence_features(probabilities: dict, evidence: dict, kind: str = "main") -
     favoured = _favoured(probabilities)
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
     one_u, per_basin = (None if s is None else favoured * s for s in _run_shifts(evidence))
-    agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= RUNS_AGREE_CELLS and (
+    one_u_cells = MAIN_ONE_U_CELLS if kind == "main" else RUNS_AGREE_CELLS
+    agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= one_u_cells and (
         per_basin >= RUNS_AGREE_CELLS or (kind == "main" and per_basin > -RUNS_AGREE_CELLS
                                           and _aggressor_transient(favoured, evidence)))
     return math.log(p / (1.0 - p)), favoured * hill, float(agrees)

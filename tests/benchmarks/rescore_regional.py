@@ -40,10 +40,12 @@ from scipy.optimize import minimize
 
 from divides.assess.screen import (
     CHAIN_CELLS,
+    RUNS_AGREE_CELLS,
     INSTABILITY_SCALING,
     NEIGHBOUR_CELLS,
     RUN_ORDER_BELOW,
     TRANSIENT_BASIN,
+    _aggressor_transient,
     evidence_features,
     instability_of,
     neighbour_scores,
@@ -340,6 +342,25 @@ def _present_lateral(p: dict, m: dict) -> list[float]:
 #: Round 35: the shipped features (round 25's r, round 30's hilltops, none on lateral divides) with their coefficients
 #: refitted (F-E0 on the files scored; F-all with ``--fit-with`` the same cases under other DEM errors).
 CANDIDATES["F: present features refitted"] = ({"main": _present_main, "lateral": _present_lateral}, False, False)
+
+
+def _one_u_at(t: float) -> Callable[[dict, dict], float]:
+    """Round 38: the shipped r with the one-U run's threshold at ``t`` model cells in both of its branches (both runs
+    agreeing; the transient aggressor's), the per-basin run's thresholds as shipped (``RUNS_AGREE_CELLS``)."""
+    def r(p, m):
+        favoured = _favoured(p)
+        one_u, per_basin = _toward(p, m), _toward(p, m, "forward_shift_basin_cells")
+        if not favoured or one_u is None or per_basin is None or one_u < t:
+            return 0.0
+        if per_basin >= RUNS_AGREE_CELLS:
+            return 1.0
+        return float(per_basin > -RUNS_AGREE_CELLS and _aggressor_transient(favoured, m))
+    return r
+
+
+#: Round 38: the main divides' r with a longer one-U shift; lateral divides as shipped.
+CANDIDATES.update({f"R{t:g}: the main divides' one-U run at {t:g} cell": (
+    {"main": _shipped_with(_one_u_at(t)), "lateral": "now"}, False, False) for t in (0.5, 0.75, 1.0)})
 
 
 def _fixed(features) -> bool:
