@@ -427,7 +427,7 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     >>> short = {**agreeing, "forward_shift_cells": 0.6}  # the one-U run 0.6 cell: enough on lateral divides only
     >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", short) < 0.01
     True
-    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "lateral", short), 2)  # -3.89 + 1.02 logit 0.9 + 0.61
+    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "lateral", short), 2)  # logit 0.9 = 2.20
     0.26
     >>> fall = {**one_run, "forward_shift_basin_cells": 0.1, "transience_a": -0.4, "transience_sd_a": 0.1}
     >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", fall), 2)
