@@ -161,6 +161,17 @@ def stepped_steady():
     return grown, simulate(grown, duration=3e5, dt=1e4, **forcing).final
 
 
+_SIGMA = 2.0  # the local balance's window in these tests (model cells; the model grid is the DEM's here)
+
+
+def _balances_of(grown: divides.Dem):
+    """The model start of ``grown`` and its local (σ = _SIGMA) and per-basin steady balances, each (U, D)."""
+    from divides.model.landscape_shift import local_uplift, model_start, steady_uplift
+
+    start = model_start(grown, theta=_M, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
+    return start, local_uplift(start, 1.0, _SIGMA), steady_uplift(start, 1.0, per_basin=True)
+
+
 def _west_cells_per_row(labels: np.ndarray) -> np.ndarray:
     """Cells per row in the outlet basins that drain off the west edge (the divide's column, row by row)."""
     return np.isin(labels, np.setdiff1d(np.unique(labels[:, 0]), [0])).sum(axis=1)
@@ -171,17 +182,11 @@ def test_the_local_balance_recovers_an_uplift_step_inside_a_basin(stepped_steady
     # over a window gives back U / K on either side of the step, away from it; one rate per basin cannot (it is one
     # value across the step). Tolerance as for the whole-landscape fit above (0.05 on U; the fitted D is off by up
     # to 0.4, and the residual carries that error on curved cells).
-    from divides.model.landscape_shift import local_uplift, model_start, steady_uplift
-
-    grown, _ = stepped_steady
-    start = model_start(grown, theta=_M, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
-    sigma = 2.0
-    local, _ = local_uplift(start, 1.0, sigma)
-    per_basin, _ = steady_uplift(start, 1.0, per_basin=True)
+    start, (local, _), (per_basin, _) = _balances_of(stepped_steady[0])
     main = np.isin(start.before, np.flatnonzero(np.bincount(start.before.ravel()) >= 50)) & (start.before > 0)
     cols = np.broadcast_to(np.arange(40), main.shape)
-    slow = main & (cols < _STEP_COL - 3 * sigma)
-    fast = main & (cols >= _STEP_COL + 2 * sigma)
+    slow = main & (cols < _STEP_COL - 3 * _SIGMA)
+    fast = main & (cols >= _STEP_COL + 2 * _SIGMA)
     assert fast.sum() >= 20 and slow.sum() >= 200
     assert np.median(local[slow]) == pytest.approx(_U / _K, rel=0.05)
     assert np.median(local[fast]) == pytest.approx(2.0 * _U / _K, rel=0.1)
@@ -209,24 +214,20 @@ def test_the_local_balance_is_the_gaussian_weighted_mean_of_its_basin(stepped_st
     # The normalised convolution (Knutsson & Westin 1993) re-derived by brute force: each cell's U is the mean of the
     # steady residual over the readable cells of its own basin, weighted by exp(-d^2 / 2 sigma^2) within 3 sigma
     # (square window, as a separable Gaussian filter truncated there).
-    from divides.model.landscape_shift import balance_terms, local_uplift, model_start, steady_uplift
+    from divides.model.landscape_shift import MIN_BALANCE_CELLS, balance_terms
 
-    grown, _ = stepped_steady
-    start = model_start(grown, theta=_M, n=1.0, closed_edges=CLOSED, channel_area_m2=3e4)
-    sigma = 2.0
-    local, d = local_uplift(start, 1.0, sigma)
-    basin_u, d_basins = steady_uplift(start, 1.0, per_basin=True)
+    start, (local, d), (basin_u, d_basins) = _balances_of(stepped_steady[0])
     assert d == d_basins
     fluvial, lap, sel = balance_terms(start, 1.0)
     rows, cols = start.grid.shape
     lab, readable = start.before.ravel(), sel
     counts = np.bincount(lab[readable], minlength=lab.max() + 1)
-    reach = int(round(3 * sigma))
+    reach = int(round(3 * _SIGMA))
     for i in range(rows * cols):
         k = lab[i]
         if k == 0:
             continue
-        if counts[k] < 20:  # MIN_BALANCE_CELLS: small basins keep the per-basin rate
+        if counts[k] < MIN_BALANCE_CELLS:  # small basins keep the per-basin rate
             assert local.ravel()[i] == basin_u.ravel()[i]
             continue
         r, c = divmod(i, cols)
@@ -235,7 +236,7 @@ def test_the_local_balance_is_the_gaussian_weighted_mean_of_its_basin(stepped_st
             for cc in range(max(c - reach, 0), min(c + reach + 1, cols)):
                 j = rr * cols + cc
                 if lab[j] == k and readable[j]:
-                    w = math.exp(-((rr - r) ** 2 + (cc - c) ** 2) / (2 * sigma ** 2))
+                    w = math.exp(-((rr - r) ** 2 + (cc - c) ** 2) / (2 * _SIGMA ** 2))
                     num += w * (fluvial[j] - d * lap[j])
                     den += w
         expected = max(num / den, 0.0) if den > 0 else max(basin_u.ravel()[i], 0.0)
