@@ -451,11 +451,12 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
 
 
-def evidence_features(probabilities: dict, evidence: dict, kind: str = "main") -> tuple[float, float, float]:
+def evidence_features(probabilities: dict, evidence: dict, kind: str = "main", *,
+                      one_u_cells: float | None = None) -> tuple[float, float, float]:
     """What :func:`instability_of` reads: logit(P(a) + P(b)) (P clipped to [1e-4, 1 - 1e-4]), the hilltop
     contrast signed toward the side the decision favours (0 on a tie or unmeasured), and r: 1.0 when the run with
     one uplift rate moves the divide at least :data:`RUNS_AGREE_CELLS` toward that side (:data:`MAIN_ONE_U_CELLS` on
-    a ``"main"`` divide) and the run with one rate
+    a ``"main"`` divide; ``one_u_cells`` when given, for rescoring other thresholds) and the run with one rate
     per outlet basin either does so too or, on a ``"main"`` divide whose aggressor's basin is transient
     (:func:`_aggressor_transient`), does not move it as far the other way; else 0.0 (also when a run is
     unmeasured).
@@ -470,7 +471,8 @@ def evidence_features(probabilities: dict, evidence: dict, kind: str = "main") -
     favoured = _favoured(probabilities)
     hill = _finite(evidence.get("hilltop_contrast")) or 0.0
     one_u, per_basin = (None if s is None else favoured * s for s in _run_shifts(evidence))
-    one_u_cells = MAIN_ONE_U_CELLS if kind == "main" else RUNS_AGREE_CELLS
+    if one_u_cells is None:
+        one_u_cells = MAIN_ONE_U_CELLS if kind == "main" else RUNS_AGREE_CELLS
     agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= one_u_cells and (
         per_basin >= RUNS_AGREE_CELLS or (kind == "main" and per_basin > -RUNS_AGREE_CELLS
                                           and _aggressor_transient(favoured, evidence)))

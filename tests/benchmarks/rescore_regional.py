@@ -9,10 +9,11 @@ landscapes without an alarm) and the log loss, AUC and calibration error of the 
 lateral segments, each case scored by the model fitted without it. No DEM is screened again: a candidate
 changes only the instability, not the decision, its confidence or the motion azimuth.
 
-The candidates are those of the fourth to thirty-first rounds of docs/validation.md (*Regional screening*);
+The candidates are those of the fourth to thirty-eighth rounds of docs/validation.md (*Regional screening*);
 ``shipped now`` is screen.instability_of as it is (round 25's "transient aggressor S2(0.1), significant under DEM
-error" on main divides, round 23's "L-noh" on lateral ones; "both runs agree by 0.5, shipped coefficients" is
-round 11's r, shipped in rounds 11-16 and 21, and round 16's c = -0.5 candidate is round 17's r), ``shipped
+error" on main divides with round 38's one-U run at 0.75 cell, "R0.75"; round 23's "L-noh" on lateral ones;
+"both runs agree by 0.5, shipped coefficients" is round 11's r, shipped in rounds 11-16 and 21, and round 16's
+c = -0.5 candidate is round 17's r), ``shipped
 before round 11`` its coefficients with the run term they were fitted with (the one-U run agreeing by 0.1 cell);
 neither is refitted.
 A candidate whose part for one kind of divide is "now" takes the shipped model of that kind as it is when the
@@ -23,7 +24,8 @@ prior of sd 10 on every coefficient but the intercept (it keeps the fit finite w
 either way; round 34: main segments beside a strongly scored main segment first, from the gaps between main segments
 that the records keep since then; round 36: those scores passed along chains of segments the runs move;
 :data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13, "shipped" screen.rank_key (round 36's C1)
-and "round 20" the key round 33 replaced. Give it training cases only.
+and "round 20" the key round 33 replaced. ``--per-basin-from`` reads another run in place of the per-basin one
+(round 37). Give it training cases only.
 """
 
 from __future__ import annotations
@@ -40,12 +42,10 @@ from scipy.optimize import minimize
 
 from divides.assess.screen import (
     CHAIN_CELLS,
-    RUNS_AGREE_CELLS,
     INSTABILITY_SCALING,
     NEIGHBOUR_CELLS,
     RUN_ORDER_BELOW,
     TRANSIENT_BASIN,
-    _aggressor_transient,
     evidence_features,
     instability_of,
     neighbour_scores,
@@ -346,15 +346,9 @@ CANDIDATES["F: present features refitted"] = ({"main": _present_main, "lateral":
 
 def _one_u_at(t: float) -> Callable[[dict, dict], float]:
     """Round 38: the shipped r with the one-U run's threshold at ``t`` model cells in both of its branches (both runs
-    agreeing; the transient aggressor's), the per-basin run's thresholds as shipped (``RUNS_AGREE_CELLS``)."""
+    agreeing; the transient aggressor's), the per-basin run's thresholds as shipped."""
     def r(p, m):
-        favoured = _favoured(p)
-        one_u, per_basin = _toward(p, m), _toward(p, m, "forward_shift_basin_cells")
-        if not favoured or one_u is None or per_basin is None or one_u < t:
-            return 0.0
-        if per_basin >= RUNS_AGREE_CELLS:
-            return 1.0
-        return float(per_basin > -RUNS_AGREE_CELLS and _aggressor_transient(favoured, m))
+        return evidence_features(p, m, "main", one_u_cells=t)[2]
     return r
 
 
