@@ -290,8 +290,8 @@ def local_uplift(start: ModelStart, n: float, sigma_cells: float) -> tuple[np.nd
     basin_u, diffusivity = steady_uplift(start, n, per_basin=True)
     fluvial, lap, sel = balance_terms(start, n)
     shape = start.grid.shape
-    weight = sel.reshape(shape)
-    residual = np.where(sel, fluvial - diffusivity * np.where(sel, lap, 0.0), 0.0).reshape(shape)
+    readable_all = sel.reshape(shape)
+    residual = np.where(sel, fluvial - diffusivity * lap, 0.0).reshape(shape)  # NaN ∇²z lies outside sel
     uplift = basin_u.copy()
     pad = int(math.ceil(3.0 * sigma_cells))
     for label, box in enumerate(ndimage.find_objects(start.before), start=1):
@@ -299,7 +299,7 @@ def local_uplift(start: ModelStart, n: float, sigma_cells: float) -> tuple[np.nd
             continue
         box = tuple(slice(max(b.start - pad, 0), b.stop + pad) for b in box)
         inside = start.before[box] == label
-        readable = inside & weight[box]
+        readable = inside & readable_all[box]
         if np.count_nonzero(readable) < MIN_BALANCE_CELLS:
             continue
         total = ndimage.gaussian_filter(np.where(readable, residual[box], 0.0), sigma_cells, mode="constant",
