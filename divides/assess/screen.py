@@ -493,9 +493,10 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
 
     Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
-    (None: the decision abstained) last. With it, in three tiers:
+    (None: the decision abstained) last. With it (the segment's row, its ``verdict`` included), in three tiers:
 
-    1. instability at least :data:`RUN_ORDER_BELOW`, by instability;
+    1. instability at least :data:`RUN_ORDER_BELOW`: first the segments the decision gives a direction (``verdict``
+       "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39);
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
@@ -519,9 +520,14 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     >>> beside = {**still, "neighbour_instability": 0.9}  # next to a segment scored 0.9
     >>> rank_key(0.3, still) < rank_key(1e-6, beside) < rank_key(1e-3, {}) < rank_key(1e-3, pulled)
     True
+    >>> points = {**still, "verdict": "b"}
+    >>> rank_key(0.1, points) < rank_key(0.4, {**still, "verdict": "undetermined"}) < rank_key(1e-3, pulled)
+    True
     """
     if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW):
-        return (0, -instability, 0.0, 0.0)
+        # a top-tier segment without a direction has no motion azimuth to act on (round 39)
+        aimless = evidence is not None and evidence.get("verdict") not in ("a", "b")
+        return (0, float(aimless), -instability, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
     size = _run_size(evidence)

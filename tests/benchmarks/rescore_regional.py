@@ -590,6 +590,28 @@ for _moved, _name in zip(CHAIN_MOVED, ("C1", "C0.5")):
         _chained(_moved)
 
 
+def _points(m: dict) -> bool:
+    """Whether the decision gives the segment a direction (a verdict toward a or b), hence a motion azimuth."""
+    return m.get("verdict") in ("a", "b")
+
+
+def _pointing_first(tiers: tuple[int, ...], demote: bool = False) -> Callable[[dict], tuple]:
+    """Round 39: screen.rank_key, but within each tier in ``tiers`` the segments with a direction first (D1: the top
+    tier; D3: the top two); with ``demote`` (D2) top-tier segments without one join the tier below instead."""
+    def key(m):
+        i = m["_i"]
+        if demote and i is not None and i >= RUN_ORDER_BELOW and not _points(m):
+            k = rank_key(0.0, m)  # ordered as the segments scored below RUN_ORDER_BELOW, then by the score
+            return (k[0], 0.0, *k[1:3], -i)
+        k = rank_key(i, m)
+        return (k[0], float(k[0] in tiers and not _points(m)), *k[1:])
+    return key
+
+
+for _name, _tiers, _demote in (("D1", (0,), False), ("D2", (), True), ("D3", (0, 1), False)):
+    RANKINGS[f"{_name}: segments with a direction first (round 39)"] = _pointing_first(_tiers, _demote)
+
+
 def _chain_scores(main: list[dict], moved: float) -> None:
     """Each main segment's ``_chain[moved]``: screen.neighbour_scores from its recorded neighbours within
     NEIGHBOUR_CELLS, the candidate's scores and chains through segments moved at least ``moved`` cells (round 36)."""
