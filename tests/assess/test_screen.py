@@ -171,3 +171,14 @@ def test_a_strong_score_passes_along_segments_the_runs_move():
     assert _ranked(rows) == ["strong", "carrier", "blocker", "reached", "other", "weak"]
     near = {n: r["neighbour_instability"] for n, r in rows.items()}
     assert near == {"other": None, "weak": 1e-6, "blocker": 0.7, "reached": 0.7, "carrier": 0.7, "strong": 1e-6}
+
+
+def test_segments_that_point_come_first_in_the_top_tier():
+    # Round 39 (docs/methods.md §7b; a definition, common practice for a ranking rule): among segments scored 0.01 or
+    # more, those the decision gives a direction (a verdict toward a or b, hence a motion azimuth) rank before those
+    # without one, however high the latter score; below 0.01 the tier's own order stands.
+    rows = {"aimless": _divide_row(0, 0.9, 2.0, 0.0), "stable": _divide_row(40, 0.5, 2.0, 0.0),
+            "points": _divide_row(80, 0.05, 0.0, 0.0), "weak": _divide_row(120, 1e-6, 3.0, 0.0)}
+    for name, verdict in (("aimless", "undetermined"), ("stable", "stable"), ("points", "b"), ("weak", "a")):
+        rows[name]["verdict"] = verdict
+    assert _ranked(rows) == ["points", "aimless", "stable", "weak"]
