@@ -118,7 +118,8 @@ def screen(
 
     Writes segments.geojson (RFC 7946), segments.csv, screening.json, a
     regional map and report.html to --out, and lists the least stable
-    segments. A screening ranks where to look first: assess a divide of
+    segments (among those scored 0.01 or more, the ones with a known
+    direction of motion first). A screening ranks where to look first: assess a divide of
     interest with 'divides assess', and verify in the field; local codes and
     licensed professionals decide.
     \f
