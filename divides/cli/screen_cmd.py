@@ -119,9 +119,9 @@ def screen(
     Writes segments.geojson (RFC 7946), segments.csv, screening.json, a
     regional map and report.html to --out, and lists the least stable
     segments (among those scored 0.01 or more, the ones with a known
-    direction of motion first). A screening ranks where to look first: assess a divide of
-    interest with 'divides assess', and verify in the field; local codes and
-    licensed professionals decide.
+    direction of motion first). A screening ranks where to look first:
+    assess a divide of interest with 'divides assess', and verify in the
+    field; local codes and licensed professionals decide.
     \f
     Exit codes: 0 done; 2 a bad input or option (one line on stderr, nothing
     written); 1 an internal error.

@@ -23,8 +23,9 @@ prior of sd 10 on every coefficient but the intercept (it keeps the fit finite w
 24: transient aggressors first; round 31: the run's shift either way; round 33: the larger of both runs' shifts
 either way; round 34: main segments beside a strongly scored main segment first, from the gaps between main segments
 that the records keep since then; round 36: those scores passed along chains of segments the runs move;
-:data:`RANKINGS`); "by instability" (default) is the order of rounds 4-13, "shipped" screen.rank_key (round 36's C1)
-and "round 20" the key round 33 replaced. ``--per-basin-from`` reads another run in place of the per-basin one
+round 39: segments with a direction first; :data:`RANKINGS`); "by instability" (default) is the order of rounds
+4-13, "shipped" screen.rank_key (round 36's C1 with round 39's D1; C1 alone was shipped in rounds 36-38) and "round
+20" the key round 33 replaced. ``--per-basin-from`` reads another run in place of the per-basin one
 (round 37). Give it training cases only.
 """
 
@@ -486,9 +487,10 @@ def _round20(m: dict) -> tuple:
 
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 36's C1 since then), "round
-#: 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33), N2, N5, N10 and N5-0.5
-#: (round 34; N5 shipped) and C1 and C0.5 (round 36) are added below.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 36's C1 with round 39's D1
+#: since then), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33), N2, N5,
+#: N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds 36-38) and D1-D3 (round 39;
+#: D1 shipped) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: rank_key(m["_i"], m),
@@ -597,7 +599,8 @@ def _points(m: dict) -> bool:
 
 def _pointing_first(tiers: tuple[int, ...], demote: bool = False) -> Callable[[dict], tuple]:
     """Round 39: screen.rank_key, but within each tier in ``tiers`` the segments with a direction first (D1: the top
-    tier; D3: the top two); with ``demote`` (D2) top-tier segments without one join the tier below instead."""
+    tier; D3: the top two); with ``demote`` (D2) top-tier segments without one join the tier below instead. Written
+    on round 38's rank_key (C1); since D1 shipped, rank_key holds D1 itself, and each candidate ranks as it did."""
     def key(m):
         i = m["_i"]
         if demote and i is not None and i >= RUN_ORDER_BELOW and not _points(m):
