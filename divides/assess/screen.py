@@ -31,7 +31,8 @@ from divides.terrain.routing import FlowGraph, route
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
-           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores"]
+           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores",
+           "RUN_BASIN_CELLS"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -134,6 +135,13 @@ NEIGHBOUR_CELLS = 5.0
 
 #: ... scored at least this (the tier's own bound: a neighbour the score already ranks above the tier).
 NEIGHBOUR_SCORE = RUN_ORDER_BELOW
+
+#: The landscape runs work on the DEM block-averaged to at most 300 cells a side, so on a wide DEM a small basin
+#: spans few model cells. Below this many model cells in the smallest basin screened (``min_basin_area_m2``) the
+#: screening says its landscape evidence is coarse (``forward_run_grid``). Round 40 (99 training cases, the runs'
+#: grid capped at 150-50 cells a side as on a DEM 2-6 times wider): with 62 model cells or more the targets held
+#: (120 of 121), with 28, 16 and 10 they fell (153 of 166, 63 of 70, 81 of 102); 50 lies in the untried gap.
+RUN_BASIN_CELLS = 50.0
 
 #: ... or reaching it through a chain of main segments below the tier that either landscape run moves at least this
 #: many model cells (:func:`neighbour_scores`): a stretch that moves as a whole carries the score of its strongly
@@ -663,7 +671,7 @@ def _judge_pooled(pts, row: dict, st: dict) -> dict:
 
 
 def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray,
-                        config: AssessConfig, threshold: float) -> dict:
+                        config: AssessConfig, threshold: float, min_area_m2: float) -> dict:
     """Each segment's lines of evidence beyond its near-divide contrasts.
 
     ``forward_shift_cells`` and ``forward_shift_basin_cells``: the segment's shift (model cells into side b;
@@ -672,6 +680,9 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
     basin (which absorbs a contrast between whole basins), the pieces judged between the outlet basins of
     their two sides; ``hilltop_contrast``: :func:`divides.assess.hilltops.hilltop_contrast` on the DEM's curvature
     fitted over the DEM error's correlation length (:func:`divides.assess.hilltops.hilltop_curvature`).
+    Returns the run's grid: ``model_cell_m``, ``block``, ``years_at_unit_k``, ``steps``, and
+    ``smallest_basin_model_cells`` (``min_area_m2`` in model cells) with ``coarse_for_basins`` (fewer than
+    :data:`RUN_BASIN_CELLS`).
     """
     from divides.terrain.tiled_flow import tiled_routing
 
@@ -697,8 +708,10 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         r["transience_sd_a"], r["transience_sd_b"] = (float(spread[k]) if k else math.nan for k in basins)
         r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
     first = runs[0]  # the grid is shared; the one-U run's horizon and steps
+    smallest = float(min_area_m2) / float(np.median(start.grid.cell_area))
     return {"model_cell_m": first.cell_m, "block": first.factor, "years_at_unit_k": first.years_unit_k,
-            "steps": first.n_steps}
+            "steps": first.n_steps, "smallest_basin_model_cells": smallest,
+            "coarse_for_basins": smallest < RUN_BASIN_CELLS}
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:
@@ -838,8 +851,8 @@ def screen(
     rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     directions = drainage_directions(labels, outlet_of, outlets)
-    forward = (_landscape_evidence(dem, flow, rows, labels, outlet_of, config, threshold) if config.forward_run
-               else None)
+    forward = (_landscape_evidence(dem, flow, rows, labels, outlet_of, config, threshold, min_area)
+               if config.forward_run else None)
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)

@@ -15,7 +15,7 @@ from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 
-from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE
+from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
@@ -32,7 +32,7 @@ from divides.report.writer import staged_output
 if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
-__all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map"]
+__all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -73,6 +73,29 @@ SCREENING_LIMITS = (
     "or runoff that the topography does not show yet goes unseen; where a divide moves along part of its length, "
     "still segments next to the moving stretch can rank among it; DEM error lowers every figure."
 )
+
+def coarse_runs_note(parameters: dict) -> str | None:
+    """The caution a screening carries when its landscape runs resolve the smallest screened basin in fewer than
+    :data:`divides.assess.screen.RUN_BASIN_CELLS` model cells (``forward_run_grid``; None otherwise).
+
+    Examples
+    --------
+    >>> coarse_runs_note({"forward_run_grid": {"smallest_basin_model_cells": 28.0, "coarse_for_basins": True,
+    ...                                        "block": 14}})[:53]
+    'The landscape runs are coarse for the smallest basins'
+    >>> coarse_runs_note({"forward_run_grid": {"smallest_basin_model_cells": 250.0, "coarse_for_basins": False}})
+    """
+    grid = parameters.get("forward_run_grid") or {}
+    if not grid.get("coarse_for_basins"):
+        return None
+    block = int(grid.get("block", 1))
+    finer = ("screen a smaller window of the DEM (--bounds), which the runs resolve more finely, or raise "
+             "--min-basin-area" if block > 1 else "raise --min-basin-area")
+    return (f"The landscape runs are coarse for the smallest basins: the smallest basin screened spans "
+            f"{grid['smallest_basin_model_cells']:.0f} model cells of {block} × {block} DEM cells, and on model "
+            f"landscapes moving divides were missed more often below {RUN_BASIN_CELLS:g}. Low instabilities here "
+            f"are weak evidence that a divide is still; {finer}.")
+
 
 #: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
 INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment moves (0–1)",
@@ -311,7 +334,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 7})
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))]
-    caution = f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}</div>"
+    coarse = coarse_runs_note(p)
+    caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
+               + ("" if coarse is None else f" {e(coarse)}") + "</div>")
     lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
     cov = result.coverage or {}

@@ -79,3 +79,23 @@ def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
     assert s_off["hilltop_contrast"] is None
     assert off.parameters["forward_run"] is False and "forward_run_grid" not in off.parameters
     assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)
+
+
+@pytest.mark.parametrize(("cols", "min_area", "block", "cells"), [(41, 6e5, 1, 60.0), (301, 6e5, 2, 15.0)])
+def test_the_run_grid_says_when_it_is_coarse_for_the_smallest_basin(cols, min_area, block, cells):
+    # The runs' grid is the DEM block-averaged to at most 300 cells a side (forward_run.MAX_CELLS): 41 columns
+    # stay, 301 become 151 blocks of 2 x 2. The smallest basin screened, 6e5 m², spans 6e5 / (block x 100 m)²
+    # model cells (arithmetic): 60 or 15; below RUN_BASIN_CELLS (50, docs/validation.md round 40) the screening
+    # says its landscape evidence is coarse, in its parameters and its report's caution.
+    from divides.assess.screen import RUN_BASIN_CELLS
+    from divides.report.screening import coarse_runs_note
+
+    result = screen(_book(0.2, 0.1, cols=cols), min_basin_area_m2=min_area, **OPTIONS)
+    grid = result.parameters["forward_run_grid"]
+    assert grid["block"] == block and grid["model_cell_m"] == pytest.approx(100.0 * block)
+    assert grid["smallest_basin_model_cells"] == pytest.approx(cells)
+    assert grid["coarse_for_basins"] is (cells < RUN_BASIN_CELLS)
+    note = coarse_runs_note(result.parameters)
+    assert (note is None) is (cells >= RUN_BASIN_CELLS)
+    if note is not None:
+        assert "spans 15 model cells of 2 × 2 DEM cells" in note and "--bounds" in note
