@@ -19,6 +19,7 @@ from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.model.forward_run import MAX_CELLS
 from divides.model.landscape_shift import landscape_shifts, model_start
 from divides.model.transience import basin_transience, transience_spread
 from divides.profiles.chi import chi_weights, integrate_chi
@@ -32,7 +33,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motio
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
            "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores",
-           "RUN_BASIN_CELLS"]
+           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -136,9 +137,19 @@ NEIGHBOUR_CELLS = 5.0
 #: ... scored at least this (the tier's own bound: a neighbour the score already ranks above the tier).
 NEIGHBOUR_SCORE = RUN_ORDER_BELOW
 
-#: The landscape runs work on the DEM block-averaged to at most 300 cells a side, so on a wide DEM a small basin
-#: spans few model cells. Below this many model cells in the smallest basin screened (``min_basin_area_m2``) the
-#: screening says its landscape evidence is coarse (``forward_run_grid``). Round 40 (99 training cases, the runs'
+#: Model cells of the smallest basin screened (``min_basin_area_m2``) the landscape runs keep where they can
+#: (:func:`run_block`): every regional benchmark case was checked at this resolution (5 x 50 cells at block 1).
+#: Round 41 (rule written beforehand): a wider DEM's runs are no longer block-averaged to 300 cells a side
+#: regardless of its basins.
+RUN_CHECKED_CELLS = 250.0
+
+#: ... but the model grid stays within this many cells a side (16 times the model cells of a 300-cell side, a cost
+#: bound set beforehand in round 40).
+RUN_MAX_SIDE = 1200
+
+#: The landscape runs' grid can be coarse for small basins on a wide DEM (:data:`RUN_MAX_SIDE`). Below this many
+#: model cells in the smallest basin screened (``min_basin_area_m2``) the screening says its landscape evidence is
+#: coarse (``forward_run_grid``). Round 40 (99 training cases, the runs'
 #: grid capped at 150-50 cells a side as on a DEM 2-6 times wider): with 62 model cells or more the targets held
 #: (120 of 121), with 28, 16 and 10 they fell (153 of 166, 63 of 70, 81 of 102); 50 lies in the untried gap.
 RUN_BASIN_CELLS = 50.0
@@ -670,8 +681,26 @@ def _judge_pooled(pts, row: dict, st: dict) -> dict:
     return pooled
 
 
+def run_block(shape: tuple[int, int], min_area_m2: float, cell_area_m2: float) -> int:
+    """DEM cells per model cell along a side for the landscape runs: the largest whole number b at which the smallest
+    basin screened spans at least :data:`RUN_CHECKED_CELLS` model cells, but no more than the 300-cell side of
+    :data:`divides.model.forward_run.MAX_CELLS` asks and no fewer than :data:`RUN_MAX_SIDE` does (round 41).
+
+    Examples
+    --------
+    >>> run_block((4000, 4000), 5e6, 900.0)  # 5 km² basins of 30 m cells: 5e6 / (4 x 30)² = 347 model cells
+    4
+    >>> run_block((250, 180), 250 * 900.0, 900.0), run_block((20000, 20000), 5e6, 900.0)  # small DEM; cost bound
+    (1, 17)
+    """
+    side = max(shape)
+    today = max(1, math.ceil(side / MAX_CELLS))
+    fits = max(1, math.floor(math.sqrt(float(min_area_m2) / (RUN_CHECKED_CELLS * float(cell_area_m2)))))
+    return max(math.ceil(side / RUN_MAX_SIDE), min(today, fits))
+
+
 def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.ndarray, outlet_of: np.ndarray,
-                        config: AssessConfig, threshold: float, min_area_m2: float) -> dict:
+                        config: AssessConfig, threshold: float, min_area_m2: float, workers: int = 1) -> dict:
     """Each segment's lines of evidence beyond its near-divide contrasts.
 
     ``forward_shift_cells`` and ``forward_shift_basin_cells``: the segment's shift (model cells into side b;
@@ -688,9 +717,10 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
 
     options = dict(theta=float(config.theta), n=float(config.n), closed_edges=config.closed_edges,
                    channel_area_m2=threshold)
-    with tiled_routing(None):  # the model grid is at most 300 x 300 cells: routed in memory even with --tiled
-        start = model_start(dem, **options)
-        runs = landscape_shifts(dem, balances=("steady", "steady-basins"), start=start, **options)
+    with tiled_routing(None):  # the model grid is at most RUN_MAX_SIDE cells a side: routed in memory even with --tiled
+        block = run_block(dem.shape, min_area_m2, float(np.median(dem.cell_area)))
+        start = model_start(dem, block=block, **options)
+        runs = landscape_shifts(dem, balances=("steady", "steady-basins"), start=start, workers=workers, **options)
     cell = float(np.max(dem.cell_size_m))
     error = config.dem_error(cell)
     transience = basin_transience(start, float(config.n))
@@ -851,7 +881,8 @@ def screen(
     rows = pool_short([r for r in rows if "gap" not in r], outlets=outlets, min_length_m=pool_m,
                       judge=lambda pts, row: _judge_pooled(pts, row, shared.data))
     directions = drainage_directions(labels, outlet_of, outlets)
-    forward = (_landscape_evidence(dem, flow, rows, labels, outlet_of, config, threshold, min_area)
+    forward = (_landscape_evidence(dem, flow, rows, labels, outlet_of, config, threshold, min_area,
+                                   workers=max(1, workers or os.cpu_count() or 1))  # the runs are local
                if config.forward_run else None)
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)

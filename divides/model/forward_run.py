@@ -141,14 +141,16 @@ class ForecastRun:
 
 
 
-def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
-    """Block-average a DEM so that neither side exceeds ``max_cells`` cells.
+def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS, block: int | None = None) -> tuple[Dem, int]:
+    """Block-average a DEM so that neither side exceeds ``max_cells`` cells (or by ``block`` cells a side, when given).
 
     Parameters
     ----------
     dem : Dem
     max_cells : int
         Largest number of cells along either side of the result.
+    block : int, optional
+        Cells of the DEM per cell of the result along a side, instead (a whole number >= 1).
 
     Returns
     -------
@@ -166,8 +168,10 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS) -> tuple[Dem, int]:
     """
     if not isinstance(max_cells, (int, np.integer)) or isinstance(max_cells, bool) or max_cells < 3:
         raise ParameterError(f"`max_cells` must be a whole number >= 3; got {max_cells!r}")
+    if block is not None and (not isinstance(block, (int, np.integer)) or isinstance(block, bool) or block < 1):
+        raise ParameterError(f"`block` must be a whole number >= 1; got {block!r}")
     rows, cols = dem.shape
-    f = max(1, math.ceil(max(rows, cols) / max_cells))
+    f = max(1, math.ceil(max(rows, cols) / max_cells)) if block is None else int(block)
     if f == 1:
         return dem, 1
     out = block_mean(np.where(dem.valid, dem.elevation, np.nan), f)

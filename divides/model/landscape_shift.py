@@ -211,10 +211,11 @@ def landscape_shift(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str
 
 def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...], channel_area_m2: float,
                      balances: tuple[str, ...], horizon_tau: float = FORWARD_HORIZON_TAU,
-                     max_steps: int = 60, start: ModelStart | None = None) -> list[LandscapeShift]:
+                     max_steps: int = 60, start: ModelStart | None = None, workers: int = 1) -> list[LandscapeShift]:
     """:func:`landscape_shift` under each of ``balances``, from one model grid (routed once, or ``start`` when
     given: :func:`model_start` of the same DEM and options): the runs share :meth:`LandscapeShift.on_model_grid`
-    and their outlet basins at the start."""
+    and their outlet basins at the start. With ``workers`` > 1 the runs go side by side as Dask tasks on that many
+    threads (the same results: each run is deterministic and reads ``start`` only)."""
     if not (np.isfinite(horizon_tau) and horizon_tau > 0):
         raise ParameterError(f"the forward run's horizon must be > 0 response times; got {horizon_tau!r}")
     for balance in balances:
@@ -223,8 +224,8 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
         start = model_start(dem, theta=theta, n=n, closed_edges=closed_edges, channel_area_m2=channel_area_m2)
     slope = slopes(start.flow)[start.cells]
     s_ref = float(np.median(slope)) if slope.size else 1.0
-    runs = []
-    for balance in balances:
+
+    def one(balance: str) -> LandscapeShift:
         if balance == "channels":
             area = start.flow.area.ravel()[start.cells]
             uplift = u_scale = float(np.median(area ** start.m * slope ** n)) if start.cells.size else 0.0
@@ -234,9 +235,15 @@ def landscape_shifts(dem: Dem, *, theta: float, n: float, closed_edges: tuple[st
             uplift, diffusivity = (steady_uplift(start, n, per_basin=balance == "steady-basins") if sigma is None
                                    else local_uplift(start, n, sigma))
             u_scale = float(np.median(uplift[start.before > 0])) if np.any(start.before > 0) else 0.0
-        runs.append(run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
-                             horizon_tau=horizon_tau, max_steps=max_steps))
-    return runs
+        return run_from(start, uplift=uplift, diffusivity=diffusivity, n=n, u_scale=u_scale, s_ref=s_ref,
+                        horizon_tau=horizon_tau, max_steps=max_steps)
+
+    if workers > 1 and len(balances) > 1:
+        import dask
+
+        return list(dask.compute(*[dask.delayed(one, pure=False)(b) for b in balances], scheduler="threads",
+                                 num_workers=min(int(workers), len(balances))))
+    return [one(balance) for balance in balances]
 
 
 #: Outlet basins of fewer model cells share one uplift rate in :func:`steady_uplift` (``per_basin``).
@@ -351,9 +358,10 @@ class ModelStart:
 
 
 def model_start(dem: Dem, *, theta: float, n: float, closed_edges: tuple[str, ...],
-                channel_area_m2: float) -> ModelStart:
-    """The DEM on the model grid, routed, with its outlet basins and channels (no run yet)."""
-    grid, factor = coarsen(dem)
+                channel_area_m2: float, block: int | None = None) -> ModelStart:
+    """The DEM on the model grid (block-averaged to at most 300 cells a side, or by ``block`` cells a side when
+    given; :func:`divides.model.forward_run.coarsen`), routed, with its outlet basins and channels (no run yet)."""
+    grid, factor = coarsen(dem, block=block)
     closed = tuple(closed_edges)
     flow = route(grid, closed_edges=closed)
     before, _ = outlet_basins(flow, min_cells=1)

@@ -81,12 +81,15 @@ def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
     assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)
 
 
-@pytest.mark.parametrize(("cols", "min_area", "block", "cells"), [(41, 6e5, 1, 60.0), (301, 6e5, 2, 15.0)])
-def test_the_run_grid_says_when_it_is_coarse_for_the_smallest_basin(cols, min_area, block, cells):
-    # The runs' grid is the DEM block-averaged to at most 300 cells a side (forward_run.MAX_CELLS): 41 columns
-    # stay, 301 become 151 blocks of 2 x 2. The smallest basin screened, 6e5 m², spans 6e5 / (block x 100 m)²
-    # model cells (arithmetic): 60 or 15; below RUN_BASIN_CELLS (50, docs/validation.md round 40) the screening
-    # says its landscape evidence is coarse, in its parameters and its report's caution.
+@pytest.mark.parametrize(("cols", "min_area", "block", "cells"),
+                         [(41, 6e5, 1, 60.0), (301, 6e5, 1, 60.0), (301, 1e7, 2, 250.0), (2401, 6e5, 3, 6e5 / 9e4)])
+def test_the_run_grid_resolves_the_smallest_basin_within_a_cost_bound(cols, min_area, block, cells):
+    # Round 41 (docs/validation.md; run_block): the runs' block is the largest whole number b with the smallest
+    # basin, min_area, spanning >= 250 model cells of (b x 100 m)², but no more than a 300-cell side asks
+    # (ceil(cols / 300)) and no fewer than a 1200-cell side does (ceil(cols / 1200)). By hand: 41 and 301 columns
+    # with 6e5 m² run at block 1 (60 model cells; a 300-cell cap alone gave 301 columns block 2); with 1e7 m², 301
+    # columns run at 2 (250 cells); 2401 columns are bound to 3 (6e5 / 300² = 6.7 cells). Below RUN_BASIN_CELLS
+    # (50, round 40) the screening says its landscape evidence is coarse, in its parameters and report's caution.
     from divides.assess.screen import RUN_BASIN_CELLS
     from divides.report.screening import coarse_runs_note
 
@@ -98,4 +101,4 @@ def test_the_run_grid_says_when_it_is_coarse_for_the_smallest_basin(cols, min_ar
     note = coarse_runs_note(result.parameters)
     assert (note is None) is (cells >= RUN_BASIN_CELLS)
     if note is not None:
-        assert "spans 15 model cells of 2 × 2 DEM cells" in note and "--bounds" in note
+        assert "spans 7 model cells of 3 × 3 DEM cells" in note and "--bounds" in note
