@@ -22,6 +22,10 @@ __all__ = ["KINDS", "drainage_directions", "kind_of"]
 KINDS = ("main", "lateral")
 
 
+#: Rows of the label grid :func:`drainage_directions` reads at a time.
+_ROWS = 256
+
+
 def drainage_directions(labels: np.ndarray, outlet_basin: np.ndarray, outlets: np.ndarray) -> np.ndarray:
     """(row, col) vector from the centroid of each label's outlet basin to its outlet (index = label).
 
@@ -45,14 +49,21 @@ def drainage_directions(labels: np.ndarray, outlet_basin: np.ndarray, outlets: n
     >>> d[1].tolist(), d[2].tolist()
     ([-0.5, -2.5], [0.5, -2.5])
     """
-    lab = np.asarray(labels).ravel()
-    rows, cols = np.divmod(np.arange(lab.size), np.asarray(labels).shape[1])
-    basin = np.asarray(outlet_basin)[lab]
-    n = int(basin.max()) + 1 if basin.size else 1
-    count = np.bincount(basin, minlength=n).astype(float)
+    labels, outlet_basin = np.asarray(labels), np.asarray(outlet_basin)
+    n = int(outlet_basin.max()) + 1 if outlet_basin.size else 1
+    count, row_sum, col_sum = np.zeros(n), np.zeros(n), np.zeros(n)
+    cols = np.arange(labels.shape[1], dtype=np.float64)
+    # a few rows at a time: the sums of whole row and column numbers are exact in float64 (below 2**53), so the
+    # centroids are those of the whole grid at once, without four grid-sized index arrays
+    for r0 in range(0, labels.shape[0], _ROWS):
+        basin = outlet_basin[labels[r0:r0 + _ROWS]]
+        count += np.bincount(basin.ravel(), minlength=n)
+        row_sum += np.bincount(basin.ravel(), np.repeat(np.arange(r0, r0 + basin.shape[0], dtype=np.float64),
+                                                        basin.shape[1]), n)
+        col_sum += np.bincount(basin.ravel(), np.tile(cols, basin.shape[0]), n)
     with np.errstate(invalid="ignore", divide="ignore"):
-        centroid = np.column_stack([np.bincount(basin, rows, n) / count, np.bincount(basin, cols, n) / count])
-    return np.asarray(outlets, dtype=float) - centroid[np.asarray(outlet_basin)]
+        centroid = np.column_stack([row_sum / count, col_sum / count])
+    return np.asarray(outlets, dtype=float) - centroid[outlet_basin]
 
 
 def kind_of(directions: np.ndarray, a: int, b: int) -> str:

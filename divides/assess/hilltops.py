@@ -14,7 +14,7 @@ from scipy import ndimage
 
 from divides.terrain.divide_lines import DivideLine
 
-__all__ = ["hilltop_contrast", "hilltop_curvature", "HILLTOP_RADIUS_CELLS", "HILLSLOPE_CELLS"]
+__all__ = ["hilltop_contrast", "hilltop_curvature", "hilltop_window", "HILLTOP_RADIUS_CELLS", "HILLSLOPE_CELLS"]
 
 #: Cells within this distance of a piece of divide count for its hilltops (set before any fit).
 HILLTOP_RADIUS_CELLS = 3
@@ -22,9 +22,19 @@ HILLTOP_RADIUS_CELLS = 3
 HILLSLOPE_CELLS = 3.0
 
 
+def hilltop_window(line: DivideLine, shape: tuple[int, int],
+                   radius_cells: int = HILLTOP_RADIUS_CELLS) -> tuple[int, int, int, int]:
+    """Rows ``r0:r1`` and columns ``c0:c1`` of the grid :func:`hilltop_contrast` reads around a piece of divide."""
+    r, c = np.asarray(line.row, dtype=np.float64), np.asarray(line.col, dtype=np.float64)
+    pad = int(radius_cells) + 2
+    r0, c0 = max(0, int(np.floor(r.min())) - pad), max(0, int(np.floor(c.min())) - pad)
+    r1, c1 = min(shape[0], int(np.ceil(r.max())) + pad + 1), min(shape[1], int(np.ceil(c.max())) + pad + 1)
+    return r0, r1, c0, c1
+
+
 def hilltop_contrast(line: DivideLine, labels: np.ndarray, label_a: int, label_b: int, curvature: np.ndarray,
                      area_cells: np.ndarray, *, radius_cells: int = HILLTOP_RADIUS_CELLS,
-                     hill_cells: float = HILLSLOPE_CELLS) -> float:
+                     hill_cells: float = HILLSLOPE_CELLS, origin: tuple[int, int] = (0, 0)) -> float:
     """Relative contrast of hilltop curvature across a piece of divide.
 
     Parameters
@@ -36,13 +46,16 @@ def hilltop_contrast(line: DivideLine, labels: np.ndarray, label_a: int, label_b
     label_a, label_b : int
         The basins on the piece's sides a and b.
     curvature : ndarray
-        ∇²z of the DEM (1/m; NaN where the stencil is incomplete).
+        ∇²z of the DEM (1/m; NaN where the stencil is incomplete): the grid, or a part of it from ``origin``
+        holding :func:`hilltop_window`.
     area_cells : ndarray
-        Drainage area in cells.
+        Drainage area in cells (the same part of the grid).
     radius_cells : int
         Cells within this distance of the piece count.
     hill_cells : float
         Cells draining at most this many cells are hillslope cells.
+    origin : (int, int)
+        Grid row and column of ``curvature[0, 0]`` and ``area_cells[0, 0]``.
 
     Returns
     -------
@@ -51,21 +64,20 @@ def hilltop_contrast(line: DivideLine, labels: np.ndarray, label_a: int, label_b
         piece: in [−1, 1], positive when side a is the more convex (erodes faster; the divide
         moves toward b). 0 when a side has fewer than three such cells.
     """
-    rows, cols = labels.shape
     r, c = np.asarray(line.row, dtype=np.float64), np.asarray(line.col, dtype=np.float64)
     if r.size == 0:
         return 0.0
-    pad = int(radius_cells) + 2
-    r0, c0 = max(0, int(np.floor(r.min())) - pad), max(0, int(np.floor(c.min())) - pad)
-    r1, c1 = min(rows, int(np.ceil(r.max())) + pad + 1), min(cols, int(np.ceil(c.max())) + pad + 1)
+    r0, r1, c0, c1 = hilltop_window(line, labels.shape, radius_cells)
+    o_r, o_c = origin
     t = np.linspace(0.0, 1.0, 4)[:, None]  # the line densified: its vertices lie between cells
     rr = (r[:-1] + (r[1:] - r[:-1]) * t).ravel() if r.size > 1 else r
     cc = (c[:-1] + (c[1:] - c[:-1]) * t).ravel() if c.size > 1 else c
     free = np.ones((r1 - r0, c1 - c0), dtype=bool)
     free[np.clip(np.rint(rr).astype(np.int64) - r0, 0, r1 - r0 - 1),
          np.clip(np.rint(cc).astype(np.int64) - c0, 0, c1 - c0 - 1)] = False
-    near = (ndimage.distance_transform_edt(free) <= radius_cells) & (area_cells[r0:r1, c0:c1] <= hill_cells)
-    box_labels, box_curv = labels[r0:r1, c0:c1], curvature[r0:r1, c0:c1]
+    near = (ndimage.distance_transform_edt(free) <= radius_cells) & (
+        area_cells[r0 - o_r:r1 - o_r, c0 - o_c:c1 - o_c] <= hill_cells)
+    box_labels, box_curv = labels[r0:r1, c0:c1], curvature[r0 - o_r:r1 - o_r, c0 - o_c:c1 - o_c]
     medians = []
     for label in (label_a, label_b):
         v = box_curv[near & (box_labels == label)]

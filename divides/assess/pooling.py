@@ -32,19 +32,31 @@ def _end_tangent(line: DivideLine, last: bool, reach_cells: float = 4.0) -> np.n
     return v / size if size > 0 else v
 
 
+#: Cells :func:`label_outlets` reads at a time.
+_CELLS = 1 << 22
+
+
 def label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
     """(row, col) of the outlet every label finally drains to (index = label; NaN for 0)."""
-    basins = flow.basins().ravel()
     lab = labels.ravel()
-    outlet_cell = np.zeros(int(basins.max()) + 1, dtype=np.int64)
-    outlet_cell[basins[flow.outlets]] = flow.outlets
     some_cell = np.full(int(lab.max()) + 1, -1, dtype=np.int64)
-    cells = np.flatnonzero(lab)
-    some_cell[lab[cells]] = cells  # any cell of the label: all of them drain to the same outlet
+    for i0 in range(0, lab.size, _CELLS):  # no index array the size of the grid
+        part = lab[i0:i0 + _CELLS]
+        cells = np.flatnonzero(part)
+        some_cell[part[cells]] = cells + i0  # any cell of the label: all of them drain to the same outlet
     out = np.full((some_cell.size, 2), np.nan)
     has = some_cell >= 0
     has[0] = False
-    r, c = np.divmod(outlet_cell[basins[some_cell[has]]], flow.shape[1])
+    # down the receivers from one cell of each label to the outlet (its own receiver), all labels at once:
+    # no grid of basin numbers is built
+    cell = some_cell[has]
+    receivers = flow.receivers.ravel()
+    for _ in range(receivers.size):  # a path visits each cell once at most
+        below = receivers[cell]
+        if np.array_equal(below, cell):
+            break
+        cell = below
+    r, c = np.divmod(cell, flow.shape[1])
     out[has] = np.column_stack([r, c])
     return out
 

@@ -14,7 +14,7 @@ from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.hilltops import hilltop_contrast, hilltop_curvature
+from divides.assess.hilltops import hilltop_contrast, hilltop_curvature, hilltop_window
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
@@ -726,8 +726,8 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
     transience = basin_transience(start, float(config.n))
     spread = transience_spread(start, float(config.n), error, seed=config.seed)
     sides = outlet_of[runs[0].on_model_grid(labels)]
-    curvature = hilltop_curvature(dem.elevation, dem.valid, dem.dx, dem.dy, round(error.length_m / cell))
-    area_cells = np.asarray(flow.area, dtype=np.float64).reshape(dem.shape) / np.maximum(dem.cell_area_grid(), 1e-300)
+    reach = max(1, round(error.length_m / cell))  # the curvature's window radius (hilltop_curvature's R)
+    area = np.asarray(flow.area, dtype=np.float64).reshape(dem.shape)
     for r in rows:
         seg = r["seg"]
         a, b = int(outlet_of[seg.label_a]), int(outlet_of[seg.label_b])
@@ -736,12 +736,26 @@ def _landscape_evidence(dem: Dem, flow: FlowGraph, rows: list[dict], labels: np.
         basins = runs[0].piece_basins(seg.line, sides, a, b)
         r["transience_a"], r["transience_b"] = (float(transience[k]) if k else math.nan for k in basins)
         r["transience_sd_a"], r["transience_sd_b"] = (float(spread[k]) if k else math.nan for k in basins)
-        r["hilltop_contrast"] = hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells)
+        r["hilltop_contrast"] = _hilltop_contrast(dem, area, labels, seg, reach)
     first = runs[0]  # the grid is shared; the one-U run's horizon and steps
     smallest = float(min_area_m2) / float(np.median(start.grid.cell_area))
     return {"model_cell_m": first.cell_m, "block": first.factor, "years_at_unit_k": first.years_unit_k,
             "steps": first.n_steps, "smallest_basin_model_cells": smallest,
             "coarse_for_basins": smallest < RUN_BASIN_CELLS}
+
+
+def _hilltop_contrast(dem: Dem, area: np.ndarray, labels: np.ndarray, seg: DivideSegment, reach: int) -> float:
+    """:func:`divides.assess.hilltops.hilltop_contrast` of a segment, its curvature (window radius ``reach``) and
+    drainage area in cells (``area`` / max(cell area, 1e-300)) computed on the part of the grid it reads, widened by
+    ``reach``: the values of the whole grid (each window sees the same cells), without two grid-sized arrays."""
+    r0, r1, c0, c1 = hilltop_window(seg.line, dem.shape)
+    a0, a1 = max(0, r0 - reach), min(dem.shape[0], r1 + reach)
+    b0, b1 = max(0, c0 - reach), min(dem.shape[1], c1 + reach)
+    curvature = hilltop_curvature(dem.elevation[a0:a1, b0:b1], dem.valid[a0:a1, b0:b1], dem.dx[a0:a1],
+                                  dem.dy[a0:a1], reach)
+    cell_area = np.where(dem.valid[a0:a1, b0:b1], dem.cell_area[a0:a1, None], 0.0)
+    area_cells = area[a0:a1, b0:b1] / np.maximum(cell_area, 1e-300)
+    return hilltop_contrast(seg.line, labels, seg.label_a, seg.label_b, curvature, area_cells, origin=(a0, b0))
 
 
 def _run_tasks(tasks: list[tuple], shared: _Shared, n_workers: int, scheduler: str | None) -> list[list[dict]]:

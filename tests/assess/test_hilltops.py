@@ -56,3 +56,29 @@ def test_the_windowed_curvature_is_exact_on_a_quadratic_surface_and_averages_err
     for radius, expected in ((1, 4.0), (2, 8 / 70), (3, 8 / 588)):
         got = hilltop_curvature(e, np.ones(e.shape, bool), np.ones(400), np.ones(400), radius)
         assert np.nanvar(got) == pytest.approx(expected, rel=0.1)  # over 3000 independent windows even at R = 3
+
+
+def test_the_contrast_read_on_the_window_around_a_segment_equals_the_whole_grid():
+    # Screening reads each segment's hilltops on the part of the grid around it, its curvature computed there with
+    # the window's radius of cells beyond it (divides.assess.screen._hilltop_contrast), so a DEM of 10^8 cells
+    # needs no grid-sized curvature: every cell it reads sees the window the whole grid gives (common practice for
+    # a local filter), so the contrast is the same, near holes and the grid's edges too.
+    from types import SimpleNamespace
+
+    from divides.assess.screen import _hilltop_contrast
+    from divides.terrain.divide_lines import DivideSegment
+
+    rng = np.random.default_rng(3)
+    rows, cols = 60, 50
+    z = np.cumsum(rng.normal(size=(rows, cols)), axis=0) + 5.0 * rng.normal(size=(rows, cols))
+    valid = rng.random(z.shape) > 0.02
+    dem = Dem.from_array(np.where(valid, z, np.nan), cell_size=30.0)
+    area = rng.choice([1.0, 2.0, 3.0, 50.0], size=(rows, cols)) * 900.0
+    labels = np.where(np.arange(cols)[None, :] < 25, 1, 2) * np.ones((rows, 1), dtype=int)
+    curvature = hilltop_curvature(dem.elevation, dem.valid, dem.dx, dem.dy, 3)
+    area_cells = area / np.maximum(dem.cell_area_grid(), 1e-300)
+    for row in (8.0, 20.0, 52.0):  # the widened window reaching the top edge; inside; cut by the bottom edge
+        line = SimpleNamespace(row=np.array([row, row + 1.0, row + 1.0]), col=np.array([24.5, 24.5, 25.0]))
+        seg = DivideSegment(1, 2, line, None, None)
+        whole = hilltop_contrast(line, labels, 1, 2, curvature, area_cells)
+        assert whole != 0.0 and _hilltop_contrast(dem, area, labels, seg, 3) == whole
