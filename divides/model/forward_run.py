@@ -174,7 +174,7 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS, block: int | None = None) -
     f = max(1, math.ceil(max(rows, cols) / max_cells)) if block is None else int(block)
     if f == 1:
         return dem, 1
-    out = block_mean(np.where(dem.valid, dem.elevation, np.nan), f)
+    out = block_mean(dem.elevation, f, valid=dem.valid)
     transform = dem.transform @ Affine.scale(f)
     if dem.crs is None:
         cell = (float(np.median(dem.dx)) * f, float(np.median(dem.dy)) * f)
@@ -184,20 +184,36 @@ def coarsen(dem: Dem, *, max_cells: int = MAX_CELLS, block: int | None = None) -
     return small, f
 
 
-def block_mean(z: np.ndarray, f: int) -> np.ndarray:
-    """Mean of each f x f block of ``z`` (edges padded by repetition); NaN where fewer than half are finite."""
-    z = np.asarray(z, dtype=np.float64)
+#: Cells of the grid :func:`block_mean` reads at a time (whole rows of blocks).
+BLOCK_MEAN_CELLS = 1 << 22
+
+
+def block_mean(z: np.ndarray, f: int, valid: np.ndarray | None = None) -> np.ndarray:
+    """Mean of each f x f block of ``z`` (edges padded by repetition); NaN where fewer than half are finite.
+
+    ``valid`` (optional, the shape of ``z``): cells outside it count as NaN. The grid is read a few rows of blocks
+    at a time, so a DEM of 10^8 cells needs no grid-sized copies (each block's mean is the same).
+    """
+    z = np.asarray(z)
     if f == 1:
-        return z.copy()
+        z = np.asarray(z, dtype=np.float64)
+        return (z.copy() if valid is None else np.where(valid, z, np.nan)).astype(np.float64)
     rows, cols = z.shape
-    rr, cc = math.ceil(rows / f) * f, math.ceil(cols / f) * f
-    blocks = np.pad(z, ((0, rr - rows), (0, cc - cols)), mode="edge").reshape(rr // f, f, cc // f, f)
-    ok = np.isfinite(blocks)
-    count = ok.sum(axis=(1, 3))
-    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
-    out = np.full(count.shape, np.nan)
-    keep = 2 * count >= f * f
-    out[keep] = total[keep] / count[keep]
+    nr, nc = math.ceil(rows / f), math.ceil(cols / f)
+    out = np.full((nr, nc), np.nan)
+    step = max(1, BLOCK_MEAN_CELLS // (f * f * nc))  # rows of blocks at a time
+    for b0 in range(0, nr, step):
+        b1 = min(nr, b0 + step)
+        part = np.asarray(z[b0 * f: b1 * f], dtype=np.float64)
+        if valid is not None:
+            part = np.where(valid[b0 * f: b1 * f], part, np.nan)
+        blocks = np.pad(part, ((0, (b1 - b0) * f - part.shape[0]), (0, nc * f - cols)),
+                        mode="edge").reshape(b1 - b0, f, nc, f)
+        ok = np.isfinite(blocks)
+        count = ok.sum(axis=(1, 3))
+        total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
+        keep = 2 * count >= f * f
+        out[b0:b1][keep] = total[keep] / count[keep]
     return out
 
 

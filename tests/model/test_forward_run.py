@@ -54,6 +54,29 @@ def test_coarsen_is_a_block_mean():
     assert (f, small.shape, float(small.dx[0]), float(small.elevation[0, 0])) == (2, (3, 3), 20.0, 3.5)
 
 
+def test_the_block_mean_read_a_few_rows_of_blocks_at_a_time_is_the_mean_of_each_block(monkeypatch):
+    # Each f x f block's mean of its finite cells, NaN when fewer than half are (definition; the last rows and
+    # columns padded by repeating the edge), by brute force over a grid with holes, whether the grid is read whole
+    # or one row of blocks at a time (so a DEM of 10^8 cells needs no grid-sized copies).
+    import divides.model.forward_run as fr
+
+    rng = np.random.default_rng(4)
+    z = rng.normal(500.0, 50.0, size=(23, 31))
+    valid = rng.random(z.shape) > 0.3
+    f = 4
+    padded = np.pad(np.where(valid, z, np.nan), ((0, 1), (0, 1)), mode="edge")  # 24 x 32
+    expected = np.full((6, 8), np.nan)
+    for i in range(6):
+        for j in range(8):
+            block = padded[f * i: f * i + f, f * j: f * j + f]
+            if 2 * np.isfinite(block).sum() >= f * f:
+                expected[i, j] = np.nanmean(block)
+    assert np.isnan(expected).any() and np.isfinite(expected).any()
+    np.testing.assert_allclose(fr.block_mean(z, f, valid=valid), expected, rtol=1e-12)
+    monkeypatch.setattr(fr, "BLOCK_MEAN_CELLS", 1)
+    np.testing.assert_allclose(fr.block_mean(z, f, valid=valid), expected, rtol=1e-12)
+
+
 @pytest.mark.parametrize("n", [1.0, 1.5])
 def test_a_run_at_erodibility_k_moves_the_divide_as_the_unit_run_scaled_in_time(n):
     # dz/dt = K (c - A^m S^n) with uplift balancing at the same K: the solution at K over time t equals
