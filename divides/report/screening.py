@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
+from scipy import ndimage
 from matplotlib import colormaps
 from matplotlib.collections import LineCollection
 from matplotlib.cm import ScalarMappable
@@ -209,11 +210,13 @@ def regional_map(result: Screening):
     handles.append(Line2D([], [], ls="none", marker="o", mfc="white", mec="black", ms=8,
                           label=f"rank (top {min(MAP_RANKS, len(result.segments))}, as in the table)"))
     left, right, bottom, top = _display_extent(dem, frame, 1)
-    leaders = False
+    leaders, boxes = False, None
     for lab, row, col in _centroids(result.labels):  # basin labels at their centroids, clear of the furniture
         x, y = (float(v) * frame.scale for v in dem.xy(row, col))
         if _under_furniture((x - left) / (right - left), (y - bottom) / (top - bottom)):
-            x, y, leader = _clear_spot(result.labels, lab, row, col, dem, frame, (left, right, bottom, top))
+            boxes = ndimage.find_objects(result.labels) if boxes is None else boxes  # one pass for all basins
+            x, y, leader = _clear_spot(result.labels, lab, row, col, dem, frame, (left, right, bottom, top),
+                                       boxes[lab - 1])
             if leader is not None:  # the whole basin is under the furniture: label beside it, a line to it
                 ax.plot([x, leader[0]], [y, leader[1]], color="#0072B2", lw=0.6, zorder=5)
                 leaders = True
@@ -265,16 +268,19 @@ def _between(line, labels: np.ndarray, label_a: int, label_b: int) -> slice:
     return slice(int(np.argmax(own)), int(own.size - np.argmax(own[::-1])))
 
 
-def _clear_spot(labels: np.ndarray, lab: int, row: float, col: float, dem, frame, extent
-                ) -> tuple[float, float, tuple[float, float] | None]:
+def _clear_spot(labels: np.ndarray, lab: int, row: float, col: float, dem, frame, extent,
+                box: tuple[slice, slice] | None = None) -> tuple[float, float, tuple[float, float] | None]:
     """Where a basin label goes when its centroid lies under the map furniture (map coordinates).
 
     The basin's cell nearest its centroid that is clear of the furniture, and no leader; when the
     whole basin is under it, a spot beside the furniture's box, level with the centroid, and the
-    centroid for a leader line. Only labels that collide come here, so scanning the label grid once per such basin is cheap.
+    centroid for a leader line. Only labels that collide come here, each scanning its own bounding ``box`` (the
+    rows and columns of :func:`scipy.ndimage.find_objects`; the whole grid when None).
     """
     left, right, bottom, top = extent
-    rows, cols = np.nonzero(labels == lab)
+    box = box or (slice(0, labels.shape[0]), slice(0, labels.shape[1]))
+    rows, cols = np.nonzero(labels[box] == lab)
+    rows, cols = rows + box[0].start, cols + box[1].start
     x, y = (np.asarray(v, dtype=np.float64) * frame.scale for v in dem.xy(rows, cols))
     fx, fy = (x - left) / (right - left), (y - bottom) / (top - bottom)
     clear = ~np.logical_or.reduce([(fx >= x0) & (fx <= x1) & (fy >= y0) & (fy <= y1) for x0, y0, x1, y1 in _FURNITURE])
