@@ -149,9 +149,9 @@ RUN_MAX_SIDE = 1200
 
 #: The landscape runs' grid can be coarse for small basins on a wide DEM (:data:`RUN_MAX_SIDE`). Below this many
 #: model cells in the smallest basin screened (``min_basin_area_m2``) the screening says its landscape evidence is
-#: coarse (``forward_run_grid``). Round 40 (99 training cases, the runs'
-#: grid capped at 150-50 cells a side as on a DEM 2-6 times wider): with 62 model cells or more the targets held
-#: (120 of 121), with 28, 16 and 10 they fell (153 of 166, 63 of 70, 81 of 102); 50 lies in the untried gap.
+#: coarse (``forward_run_grid``). Round 40 (99 training cases, the runs' grid capped at 150-50 cells a side as on a
+#: DEM 2-6 times wider): with 62 model cells or more the targets held (120 of 121), with 28, 16 and 10 they fell
+#: (153 of 166, 63 of 70, 81 of 102); 50 lies in the untried gap, chosen after those figures.
 RUN_BASIN_CELLS = 50.0
 
 #: ... or reaching it through a chain of main segments below the tier that either landscape run moves at least this

@@ -197,7 +197,7 @@ def block_mean(z: np.ndarray, f: int, valid: np.ndarray | None = None) -> np.nda
     z = np.asarray(z)
     if f == 1:
         z = np.asarray(z, dtype=np.float64)
-        return (z.copy() if valid is None else np.where(valid, z, np.nan)).astype(np.float64)
+        return z.copy() if valid is None else np.where(valid, z, np.nan)
     rows, cols = z.shape
     nr, nc = math.ceil(rows / f), math.ceil(cols / f)
     out = np.full((nr, nc), np.nan)

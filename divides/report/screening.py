@@ -9,12 +9,12 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy import ndimage
 from matplotlib import colormaps
 from matplotlib.collections import LineCollection
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
+from scipy import ndimage
 
 from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
 from divides.assess.verdict import CAUTION
@@ -74,6 +74,7 @@ SCREENING_LIMITS = (
     "or runoff that the topography does not show yet goes unseen; where a divide moves along part of its length, "
     "still segments next to the moving stretch can rank among it; DEM error lowers every figure."
 )
+
 
 def coarse_runs_note(parameters: dict) -> str | None:
     """The caution a screening carries when its landscape runs resolve the smallest screened basin in fewer than
