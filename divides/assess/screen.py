@@ -13,8 +13,22 @@ from divides._jsonable import to_jsonable
 from divides.assess.contrasts import compute_contrasts
 from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
-from divides.assess.pooling import label_outlets, pool_short
 from divides.assess.hilltops import hilltop_contrast, hilltop_curvature, hilltop_window
+from divides.assess.pooling import label_outlets, pool_short
+from divides.assess.segment_motion import (
+    INSTABILITY_EVIDENCE,
+    INSTABILITY_SCALING,
+    MAIN_ONE_U_CELLS,
+    RUNS_AGREE_CELLS,
+    TRANSIENT_BASIN,
+    TRANSIENT_SPREADS,
+    evidence_features,
+    finite_or_none,
+    instability_of,
+    motion_probability,
+    run_shifts,
+    run_size,
+)
 from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
@@ -48,71 +62,6 @@ MIN_SEGMENT_CELLS = 4
 #: (docs/validation.md, *Regional screening*).
 MIN_JUDGED_CELLS = 60
 
-#: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
-#: of the regional benchmark, one per kind of divide (:mod:`divides.assess.divide_kind`):
-#: instability = 1 / (1 + exp(-(alpha + beta logit p))). ``main``: segments between outlet basins that
-#: drain apart, truth per stretch of the main divide (a segment moves when at least 70 % of it lies in
-#: stretches moving 2 cells per response time or more); ``lateral``: between outlet basins that drain the
-#: same way, truth from the area the two basins exchange. Fitted on its training cases, settled at the
-#: truth run's time step (version 3; docs/validation.md, *Regional screening*); refit with
-#: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
-INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "lateral": (-3.71, 1.28)}
-
-#: The instability with the landscape evidence (screening's default, :func:`_landscape_evidence`): a logistic model
-#: per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma_h h + gamma_r r))), p = P(a) + P(b);
-#: h the hilltop-curvature contrast signed toward the side the decision favours
-#: (:func:`divides.assess.hilltops.hilltop_contrast`; 0 when unmeasured; since round 30 of curvature fitted over a
-#: window as wide as the DEM error's correlation length, :func:`divides.assess.hilltops.hilltop_curvature`, which on
-#: 177 training cases gave 203 targets against 199 without error and 184 against 175 with 5 m of it, alarms 3
-#: against 5 there; coefficients as fitted on the 5-point stencil); r = 1 when both landscape runs under the
-#: steady balance, one with one uplift rate and one with one rate per outlet basin, move the segment's divide at
-#: least :data:`RUNS_AGREE_CELLS` model cells toward that side (on main divides the first at least
-#: :data:`MAIN_ONE_U_CELLS`, round 38), or, on a main divide whose aggressor's basin is
-#: transient (:data:`TRANSIENT_BASIN`, :data:`TRANSIENT_SPREADS`), the first does and the second does not move it as
-#: far the other way; else 0 (also when either run did not measure it). The coefficients were fitted on the regional
-#: benchmark's version-3 training cases with r read from the first run alone at 0.1 cell; r of both runs was chosen
-#: on 57 training cases (round 11), kept on 153 against reading the per-basin run only against contradiction
-#: everywhere (rounds 17 and 21), and widened to transient aggressors on 177 (rounds 22 and 25; rules written
-#: beforehand, docs/validation.md, *Regional screening*). On lateral divides the hilltop term is left out (gamma_h
-#: fitted 8.07, set to 0 in round 23 on the 177 cases: 199 targets against 190, 3 alarms in steady landscapes against
-#: 13, lateral log loss 0.157 against 0.141): at steady state the side with the faster uplift has the more convex
-#: hilltops, so h reads a steady contrast as motion. Refitted on these features in round 35 (not adopted), the run
-#: term weakens (main gamma_r 4.85) and segments neither run moves score >= 0.5 on their contrasts alone: main log
-#: loss 0.14 against 0.44 but 45-87 alarms in steady landscapes against 3. A score in [0, 1] that ranks segments by
-#: how likely they move, not a calibrated probability: its reliability is in docs/validation.md.
-INSTABILITY_EVIDENCE: dict[str, tuple[float, float, float, float]] = {"main": (-27.16, 2.70, 16.06, 22.42),
-                                                                      "lateral": (-3.89, 1.02, 0.0, 0.61)}
-
-#: Model cells both landscape runs must move a divide toward the favoured side for r = 1 in
-#: :data:`INSTABILITY_EVIDENCE`: a divide moving 2 cells per response time (the benchmark's "moving")
-#: covers 0.6 cell over the runs' 0.3 response times. Chosen against 0.25 on training cases (round 11).
-RUNS_AGREE_CELLS = 0.5
-
-#: On main divides r asks the one-uplift-rate run for a longer shift toward the favoured side, in both of its branches
-#: (:func:`evidence_features`): in steady contrast landscapes it moves segments by up to about a cell where the
-#: basins straddle the contrast, and with the per-basin run doing so too, or the aggressor's basin read as transient,
-#: that was enough for an alarm. Chosen against 0.5 (round 36's default) and 1 cell in round 38 (177 training cases,
-#: rule written beforehand; docs/validation.md, *Regional screening*): 215, 209 and 197 targets under 0, 1 and 5 m of
-#: DEM error against 214, 206 and 194, alarms in steady landscapes 1, 1 and 0 against 3, 3 and 3; main log loss 0.538
-#: against 0.435 under 0 m (the score is not a calibrated probability).
-MAIN_ONE_U_CELLS = 0.75
-
-#: A basin is transient for :data:`INSTABILITY_EVIDENCE`'s r when the absolute value of its transience
-#: (:func:`divides.model.transience.basin_transience`, ln of its lower over its upper channels' erosion rate) is at
-#: least this: where the aggressor's basin is transient, the run with one rate per outlet basin, which takes a fall
-#: of base level for a steady contrast, need only not contradict the one-rate run. Chosen against 0.2 and 0.4 and
-#: against the signed transience or the aggressor's minus the victim's on 177 training cases by a rule written
-#: beforehand (docs/validation.md, *Regional screening*, round 22): 190 targets against 189, main log loss 0.400
-#: against 0.549.
-TRANSIENT_BASIN = 0.1
-
-#: ... and at least this many times its standard deviation over draws of the DEM error model
-#: (:func:`divides.model.transience.transience_spread`, the screening's ``dem_error_m`` and ``dem_error_length_m``):
-#: on its own |T| >= 0.1 reads 17-93 % of the basins of the regional benchmark's steady landscapes, and more under
-#: DEM error, as transient (tests/benchmarks/bench_transience_noise.py). Round 25 (rule written beforehand, 177
-#: training cases): 199 targets as before, main log loss 0.426 against 0.400; steady basins read transient under
-#: 1 m of correlated error 5 % against 44 % on a small ridge, and fewer in each of master seed 0's steady cases.
-TRANSIENT_SPREADS = 2.0
 
 #: With the landscape evidence, segments scored below this rank after every other judged segment, main segments
 #: beside a strongly scored one first (:data:`NEIGHBOUR_CELLS`, round 34), each group ordered by the larger shift of
@@ -171,9 +120,9 @@ LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not ass
                   "is calibrated on divides between basins that drain apart)")
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
-SEGMENT_PROPERTIES = ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                      "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "mean_chi_a", "mean_chi_b",
-                      "divide_kind", *EVIDENCE_KEYS)
+SEGMENT_PROPERTIES = ("rank", "instability", "motion_probability", "confidence", "length_m", "basins",
+                      "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
+                      "mean_chi_a", "mean_chi_b", "divide_kind", *EVIDENCE_KEYS)
 
 
 @dataclass(eq=False)
@@ -422,92 +371,6 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def instability_of(probabilities: dict | None, kind: str = "main", evidence: dict | None = None) -> float | None:
-    """How likely a segment moves, from the decision's probabilities and the landscape evidence.
-
-    P(a) + P(b) of the calibrated decision (fitted on whole divides between two sides) rescaled to
-    the measured truth of divide segments of the same kind (``"main"`` or ``"lateral"``,
-    :mod:`divides.assess.divide_kind`) in regional model landscapes: by :data:`INSTABILITY_SCALING`
-    alone (a calibrated probability), or, with ``evidence`` (``forward_shift_cells`` and
-    ``forward_shift_basin_cells``, model cells into b, and ``hilltop_contrast``, positive when side a
-    is the more convex; each None or NaN when not measured), by the score of
-    :data:`INSTABILITY_EVIDENCE`. None (unknown) when the decision abstained for insufficient data.
-
-    Examples
-    --------
-    >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # -5.75 + 2.86 logit 0.9 = 0.534
-    0.63
-    >>> agreeing = {"forward_shift_cells": 0.8, "forward_shift_basin_cells": 0.6, "hilltop_contrast": 0.2}
-    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", agreeing), 2)  # all toward b
-    0.99
-    >>> one_run = {"forward_shift_cells": 0.8, "forward_shift_basin_cells": -0.3, "hilltop_contrast": 0.2}
-    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", one_run) < 0.01  # the runs disagree
-    True
-    >>> short = {**agreeing, "forward_shift_cells": 0.6}  # the one-U run 0.6 cell: enough on lateral divides only
-    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", short) < 0.01
-    True
-    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "lateral", short), 2)  # logit 0.9 = 2.20
-    0.26
-    >>> fall = {**one_run, "forward_shift_basin_cells": 0.1, "transience_a": -0.4, "transience_sd_a": 0.1}
-    >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", fall), 2)
-    0.99
-    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", {**fall, "transience_a": 0.05}) < 0.01
-    True
-    >>> instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", {**fall, "transience_sd_a": 0.3}) < 0.01
-    True
-    >>> instability_of(None) is None
-    True
-    """
-    if probabilities is None:
-        return None
-    logit, hill, agrees = evidence_features(probabilities, evidence or {}, kind)
-    if evidence is None:
-        alpha, beta = INSTABILITY_SCALING[kind]
-        t = alpha + beta * logit
-    else:
-        alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
-        t = alpha + beta * logit + g_hill * hill + g_run * agrees
-    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
-
-
-def evidence_features(probabilities: dict, evidence: dict, kind: str = "main", *,
-                      one_u_cells: float | None = None) -> tuple[float, float, float]:
-    """What :func:`instability_of` reads: logit(P(a) + P(b)) (P clipped to [1e-4, 1 - 1e-4]), the hilltop
-    contrast signed toward the side the decision favours (0 on a tie or unmeasured), and r: 1.0 when the run with
-    one uplift rate moves the divide at least :data:`RUNS_AGREE_CELLS` toward that side (:data:`MAIN_ONE_U_CELLS` on
-    a ``"main"`` divide; ``one_u_cells`` when given, for rescoring other thresholds) and the run with one rate
-    per outlet basin either does so too or, on a ``"main"`` divide whose aggressor's basin is transient
-    (:func:`_aggressor_transient`), does not move it as far the other way; else 0.0 (also when a run is
-    unmeasured).
-
-    ``evidence`` holds ``hilltop_contrast``, ``forward_shift_cells`` (the run with one uplift rate),
-    ``forward_shift_basin_cells`` (one rate per outlet basin), model cells into b, ``transience_a`` and
-    ``transience_b`` (:func:`divides.model.transience.basin_transience` of each side's basin) and
-    ``transience_sd_a`` and ``transience_sd_b`` (their spread under the DEM error model,
-    :func:`divides.model.transience.transience_spread`); None or NaN when not measured.
-    """
-    p = min(max(float(probabilities.get("a", 0.0) + probabilities.get("b", 0.0)), 1e-4), 1.0 - 1e-4)
-    favoured = _favoured(probabilities)
-    hill = _finite(evidence.get("hilltop_contrast")) or 0.0
-    one_u, per_basin = (None if s is None else favoured * s for s in _run_shifts(evidence))
-    if one_u_cells is None:
-        one_u_cells = MAIN_ONE_U_CELLS if kind == "main" else RUNS_AGREE_CELLS
-    agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= one_u_cells and (
-        per_basin >= RUNS_AGREE_CELLS or (kind == "main" and per_basin > -RUNS_AGREE_CELLS
-                                          and _aggressor_transient(favoured, evidence)))
-    return math.log(p / (1.0 - p)), favoured * hill, float(agrees)
-
-
-def _aggressor_transient(favoured: float, evidence: dict) -> bool:
-    """The basin on the side away from the favoured one (the aggressor) is out of steady state: the absolute
-    value of its ``transience_a`` or ``transience_b`` is at least :data:`TRANSIENT_BASIN` and at least
-    :data:`TRANSIENT_SPREADS` times its spread under the DEM error model (``transience_sd_a`` or ``_b``; False
-    when either is unmeasured)."""
-    side = "a" if favoured > 0 else "b"
-    t, sd = _finite(evidence.get(f"transience_{side}")), _finite(evidence.get(f"transience_sd_{side}"))
-    return t is not None and sd is not None and abs(t) >= max(TRANSIENT_BASIN, TRANSIENT_SPREADS * sd)
-
-
 def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
 
@@ -549,9 +412,9 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
         return (0, float(aimless), -instability, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
-    size = _run_size(evidence)
+    size = run_size(evidence)
     size = math.inf if size is None else size
-    beside = _finite(evidence.get("neighbour_instability"))
+    beside = finite_or_none(evidence.get("neighbour_instability"))
     return (1, -float(beside is not None and beside >= NEIGHBOUR_SCORE), -size,
             0.0 if instability is None else -instability)
 
@@ -565,7 +428,7 @@ def _neighbour_instability(rows: list[dict]) -> None:
     for p, q in zip(*(a.tolist() for a in line_gaps([r["seg"].line for r in main], NEIGHBOUR_CELLS)[:2])):
         near[p].append(q)
         near[q].append(p)
-    moved = [_run_size(r) for r in main]
+    moved = [run_size(r) for r in main]
     for r in rows:
         r["neighbour_instability"] = None
     for r, value in zip(main, neighbour_scores(near, [r["instability"] for r in main], moved)):
@@ -625,30 +488,10 @@ def neighbour_scores(near: Sequence[Sequence[int]], scores: Sequence[float | Non
 def _run_moves(evidence: dict) -> float | None:
     """The one-uplift-rate run's shift of a segment the decision abstained on, when it is at least
     :data:`RUNS_AGREE_CELLS` and the per-basin run does not move the divide as far the other way; else None."""
-    one_u, per_basin = _run_shifts(evidence)
+    one_u, per_basin = run_shifts(evidence)
     if one_u is None or per_basin is None or abs(one_u) < RUNS_AGREE_CELLS:
         return None
     return one_u if math.copysign(1.0, one_u) * per_basin > -RUNS_AGREE_CELLS else None
-
-
-def _run_size(evidence: dict) -> float | None:
-    """The larger |shift| of the two landscape runs (model cells; None when neither measured the segment)."""
-    return max((abs(s) for s in _run_shifts(evidence) if s is not None), default=None)
-
-
-def _run_shifts(evidence: dict) -> tuple[float | None, float | None]:
-    """The one-uplift-rate and per-basin runs' shifts of a segment (model cells into b; None when unmeasured)."""
-    return _finite(evidence.get("forward_shift_cells")), _finite(evidence.get("forward_shift_basin_cells"))
-
-
-def _favoured(probabilities: dict) -> float:
-    """+1.0 when the decision favours motion toward b, -1.0 toward a, 0.0 on a tie."""
-    pa, pb = probabilities.get("a", 0.0), probabilities.get("b", 0.0)
-    return float((pb > pa) - (pb < pa))
-
-
-def _finite(v: float | None) -> float | None:
-    return None if v is None or not math.isfinite(v) else float(v)
 
 
 def _row(seg: DivideSegment, pts, contrasts, verdict) -> dict:
@@ -903,6 +746,10 @@ def screen(
         r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
     if config.forward_run:
         _neighbour_instability(rows)
+    for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
+        beside = (r.get("neighbour_instability") or 0.0) >= NEIGHBOUR_SCORE
+        r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"],
+                                                     r if config.forward_run else None, beside=beside)
     # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
     rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
                              -r["seg"].line.length_m))
@@ -911,7 +758,8 @@ def screen(
         seg = r["seg"]
         victim = {"a": seg.label_a, "b": seg.label_b}.get(r["moves_toward"])
         out.append({
-            "rank": rank, "instability": r["instability"], "confidence": r["confidence"],
+            "rank": rank, "instability": r["instability"], "motion_probability": r["motion_probability"],
+            "confidence": r["confidence"],
             "length_m": seg.line.length_m, "basins": [seg.label_a, seg.label_b],
             "moves_toward_basin": victim,
             "motion_azimuth_deg": (motion_azimuth(seg.line, dem, r["moves_toward"], r["judged_lines"])
@@ -920,7 +768,7 @@ def screen(
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
-            **{k: _finite(r.get(k)) for k in EVIDENCE_KEYS},
+            **{k: finite_or_none(r.get(k)) for k in EVIDENCE_KEYS},
             "line": seg.line, "judged_lines": r["judged_lines"],
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,

@@ -623,7 +623,8 @@ def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
             if truth in ("a", "b") and ta > tb:
                 truth = {"a": "b", "b": "a"}[truth]
         out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
-                    "probabilities": s.get("probabilities"), "kind": s.get("divide_kind"), "length_m": s["length_m"],
+                    "motion_probability": s.get("motion_probability"), "probabilities": s.get("probabilities"),
+                    "kind": s.get("divide_kind"), "length_m": s["length_m"],
                     **{k: s.get(k) for k in EVIDENCE_KEYS},
                     "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
                     "in_stable": truth == "stable",
@@ -665,7 +666,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         moving = sh["a"] + sh["b"]
         toward = "a" if sh["a"] >= sh["b"] else "b"
         main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
-                     "kind": s.get("divide_kind"), "verdict": s.get("verdict"),
+                     "motion_probability": s.get("motion_probability"), "kind": s.get("divide_kind"),
+                     "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
                      **{k: s.get(k) for k in EVIDENCE_KEYS},
                      "reason": s.get("reason"),
@@ -699,7 +701,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_moving"] = sum(m["in_moving"] for m in lat)
         out["lateral_stable"] = sum(m["in_stable"] for m in lat)
         out["lateral_alarms"] = sum(1 for m in lat if raises_alarm(m))
-    out["others"] = [{k: s.get(k) for k in ("rank", "instability", "confidence", "probabilities", "length_m",
+    out["others"] = [{k: s.get(k) for k in ("rank", "instability", "motion_probability", "confidence",
+                                            "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
                                             *EVIDENCE_KEYS)}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]

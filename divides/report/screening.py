@@ -38,8 +38,8 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
 
-_COLUMNS = ("rank", "instability", "confidence", "length_m", "basin_1", "basin_2", "moves_toward_basin",
-            "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS,
+_COLUMNS = ("rank", "instability", "motion_probability", "confidence", "length_m", "basin_1", "basin_2",
+            "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS,
             "x_mid", "y_mid")
 
 
@@ -116,6 +116,9 @@ def segment_rows(result: Screening) -> list[dict]:
         rows.append({
             "rank": s["rank"], "confidence": s["confidence"],
             "instability": None if s["instability"] is None else round(float(s["instability"]), 4),
+            # two decimals: its calibration error on held-out model landscapes is about 0.01-0.02
+            "motion_probability": None if s.get("motion_probability") is None
+            else round(float(s["motion_probability"]), 2),
             "length_m": round(float(s["length_m"]), 1), "basin_1": s["basins"][0], "basin_2": s["basins"][1],
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
@@ -134,9 +137,9 @@ def segment_features(result: Screening) -> list[dict]:
     for s in result.segments:
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
-        props = {k: s[k] for k in ("rank", "instability", "confidence", "length_m", "basins", "moves_toward_basin",
-                                   "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
-                                   "divide_kind")}
+        props = {k: s.get(k) for k in ("rank", "instability", "motion_probability", "confidence", "length_m",
+                                       "basins", "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis",
+                                       "n_points", "facing_share", "divide_kind")}
         props.update({k: s.get(k) for k in EVIDENCE_KEYS})
         props["basins"] = [int(b) for b in s["basins"]]
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
@@ -330,17 +333,18 @@ def _parameter_table(params: dict) -> str:
 def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = MAP_RANKS) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
-    header = ["rank", "instability", "confidence", "length (m)", "basins", "divide", "moves toward basin",
-              "bearing (°)", "basis"]
+    header = ["rank", "instability", "P(moving)", "confidence", "length (m)", "basins", "divide",
+              "moves toward basin", "bearing (°)", "basis"]
     table = _html._table(header, [[str(r["rank"]), probability_text(r["instability"]),
-                                   probability_text(r["confidence"]),
+                                   probability_text(r["motion_probability"]), probability_text(r["confidence"]),
                                    f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
-                                   e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 7})
+                                   e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 4, 8})
     p = result.parameters
-    words = INSTABILITY_WORDS[bool(p.get("forward_run"))]
+    words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
+        "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
     coarse = coarse_runs_note(p)
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + ("" if coarse is None else f" {e(coarse)}") + "</div>")
@@ -383,7 +387,11 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "divides, whether the hilltops agree (Gilbert 1877; Royden &amp; Perron 2013; Whipple &amp; Tucker "
            "1999). With this evidence the instability is a score that ranks the segments, not a "
            "calibrated probability: a segment the runs do not move gets little even when it moves (its "
-           "reliability on held-out model landscapes is in docs/validation.md). Of the segments scored 0.01 or "
+           "reliability on held-out model landscapes is in docs/validation.md). <b>P(moving)</b>, beside it, "
+           "is the calibrated probability that the segment moves: a logistic model of the same evidence, the "
+           "size of the runs' shift and whether a strongly scored main segment lies next to it, fitted on "
+           "the training cases of the regional model landscapes (Platt 1999). It is calibrated to their mix, "
+           "in which 37 % of the segments of main divides move: where moving divides are rarer it reads high. Of the segments scored 0.01 or "
            "more, those the decision gives a direction rank first. Segments scored below 0.01 "
            f"rank after the rest: on main divides, those within {NEIGHBOUR_CELLS:g} cells of a main segment "
            f"scored {NEIGHBOUR_SCORE:g} or more, or linked to one by a chain of weak segments that a run moves "

@@ -290,6 +290,11 @@ def main() -> None:
                   f"{raw['log_loss']:.3f} / {raw['auc']:.2f}, of the single main-divide scaling "
                   f"{single['log_loss']:.3f} / {single['auc']:.2f}, of the shipped scaling {shipped['log_loss']:.3f} / {shipped['auc']:.2f}, "
                   f"of the instability given {given['log_loss']:.3f} / {given['auc']:.2f}")
+            if any(m.get("motion_probability") is not None for r in part for m in r["main"]):
+                prob = given_scores(part, k, "motion_probability")
+                print(f"  {k}: probability of motion (round 42): log loss {prob['log_loss']:.3f}, AUC "
+                      f"{prob['auc']:.2f}, calibration error {prob['ece']:.3f}; the instability's "
+                      f"{given['ece']:.3f}")
         lat = [m for r in part for m in r.get("lateral", [])]
         steady_lat = [m for r in steady for m in r.get("lateral", [])]
         print(f"  lateral outlet-basin segments {len(lat)}: truth moving {sum(m['in_moving'] for m in lat)}, "

@@ -1,0 +1,208 @@
+"""Round 42: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
+leaving one case out (run by hand, not a test).
+
+    python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... [--fit-all]
+
+Reads the per-case JSON lines of ``bench_regional.py --json`` (training cases only), one group of files per
+condition of DEM error, and for each kind of divide (main, lateral) and each candidate of docs/validation.md
+(*Round 42*) prints, per condition, the log loss, AUC and expected calibration error of the probability of every
+segment in a moving or still stretch, each case scored by coefficients fitted without it (its conditions left out
+together), beside those of the instability the shipped default gives; then the reliability of the candidate that
+the round's rule ships. ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship).
+The instability and the neighbours' scores are recomputed with the shipped model (``rescore_regional.py``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import re
+from collections.abc import Callable
+
+import numpy as np
+from bench_regional import probability_scores  # this folder (scripts run from here)
+from rescore_regional import PRIOR_SD, _size, instability, targets
+from scipy.optimize import minimize
+
+from divides.assess.screen import NEIGHBOUR_SCORE, evidence_features
+
+KINDS = ("main", "lateral")
+CLIP = 1e-12
+RUN_CAP = 5.0
+
+
+def _z(m: dict) -> float:
+    """The logit of the instability, clipped to [CLIP, 1 - CLIP]."""
+    p = min(max(m["_i"], CLIP), 1.0 - CLIP)
+    return math.log(p / (1.0 - p))
+
+
+def _runs(m: dict) -> list[float]:
+    """The larger |shift| of the two runs capped at RUN_CAP (0 unmeasured) and 1 when neither measured it."""
+    s = _size(m)
+    return [0.0 if s is None else min(s, RUN_CAP), float(s is None)]
+
+
+def _beside(m: dict, kind: str) -> list[float]:
+    nb = m.get("neighbour_instability")
+    return [float(nb is not None and nb >= NEIGHBOUR_SCORE)] if kind == "main" else []
+
+
+def _p2(m: dict, kind: str) -> list[float]:
+    logit, hill, agrees = evidence_features(m["probabilities"], m, kind)
+    return [logit, hill, agrees, *_runs(m), *_beside(m, kind)]
+
+
+#: name -> features of a segment of a kind (the intercept is added by the fit)
+CANDIDATES: dict[str, Callable[[dict, str], list[float]]] = {
+    "P0": lambda m, kind: [_z(m)],
+    "P1": lambda m, kind: [_z(m), *_runs(m), *_beside(m, kind)],
+    "P2": _p2,
+}
+
+
+def shipped(m: dict, kind: str) -> list[float]:
+    """The features as the package computes them (divides.assess.segment_motion, round 42's P2), for the check that
+    it reproduces the candidate that shipped (printed by :func:`main`)."""
+    from divides.assess.segment_motion import motion_features
+
+    return list(motion_features(kind, m["probabilities"], m, beside=bool(_beside(m, kind) == [1.0])))
+
+
+def fit(x: np.ndarray, y: np.ndarray, start: np.ndarray | None = None) -> np.ndarray:
+    """Maximum-likelihood logistic coefficients (intercept first), Gaussian prior of sd PRIOR_SD on the others."""
+    design = np.column_stack([np.ones(y.size), x])
+
+    def loss(w):
+        t = design @ w
+        return float(np.sum(np.logaddexp(0.0, t) - y * t) + np.sum(w[1:] ** 2) / (2 * PRIOR_SD ** 2))
+
+    def grad(w):
+        t = design @ w
+        g = design.T @ (1.0 / (1.0 + np.exp(-t)) - y)
+        g[1:] += w[1:] / PRIOR_SD ** 2
+        return g
+
+    w0 = np.zeros(design.shape[1]) if start is None else start
+    return minimize(loss, w0, jac=grad, method="BFGS").x
+
+
+def predict(w: np.ndarray, x: np.ndarray) -> np.ndarray:
+    t = w[0] + x @ w[1:]
+    return 1.0 / (1.0 + np.exp(-np.clip(t, -700, 700)))
+
+
+def _cases(names: list[str]) -> list[dict]:
+    """The cases of bench_regional.py --json outputs, each keyed (``_case``) by its master seed and index; records
+    written before they kept the master seed take it from their path (``seedN.jsonl`` or a folder ``JN``)."""
+    rows = []
+    for name in names:
+        found = re.search(r"seed(\d+)", os.path.basename(name)) or re.search(r"J(\d+)", os.path.dirname(name))
+        with open(name) as fh:
+            for line in fh:
+                row = json.loads(line)
+                seed = row.get("master_seed", int(found.group(1)) if found else name)
+                rows.append({**row, "_case": (seed, row["index"])})
+    return rows
+
+
+def segments(groups: dict[str, list[str]]) -> list[dict]:
+    """Every main and lateral segment in a moving or still stretch: its case, condition, kind, outcome, the
+    shipped instability (``_i``) and the recomputed neighbours' scores."""
+    out = []
+    for cond, files in groups.items():
+        for case in _cases(files):
+            for m in case["main"] + case.get("lateral", []) + case["others"]:
+                m["_i"] = instability(m, None, "shipped now")
+            targets(case, "shipped")  # sets each main segment's neighbour_instability under the shipped model
+            for kind, rows in (("main", case["main"]), ("lateral", case.get("lateral", []))):
+                for m in rows:
+                    if m["_i"] is None or not (m["in_moving"] or m["in_stable"]):
+                        continue
+                    out.append({"case": case["_case"], "cond": cond, "kind": kind, "y": float(m["in_moving"]),
+                                "m": m})
+    return out
+
+
+def loco(rows: list[dict], features: Callable[[dict, str], list[float]], kind: str) -> np.ndarray:
+    """Each segment's probability from coefficients fitted without its case."""
+    sel = [r for r in rows if r["kind"] == kind]
+    x = np.asarray([features(r["m"], kind) for r in sel], dtype=float)
+    y = np.asarray([r["y"] for r in sel])
+    cases = np.asarray([hash(r["case"]) for r in sel])
+    w_all = fit(x, y)
+    p = np.empty(y.size)
+    for c in np.unique(cases):
+        out = cases == c
+        p[out] = predict(fit(x[~out], y[~out], w_all), x[out])
+    return p
+
+
+def reliability(p: np.ndarray, y: np.ndarray) -> list[tuple[str, int, float, float]]:
+    """Ten equal bins: label, count, mean probability, share moving."""
+    bins = np.minimum((p * 10).astype(int), 9)
+    return [(f"{b / 10:.1f}-{(b + 1) / 10:.1f}", int(np.sum(bins == b)), float(p[bins == b].mean()),
+             float(y[bins == b].mean())) for b in range(10) if np.any(bins == b)]
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--condition", nargs="+", action="append", required=True, metavar=("NAME", "FILE"),
+                        help="a condition's name, then its bench_regional.py --json outputs")
+    parser.add_argument("--fit-all", action="store_true", help="print the coefficients fitted on every case")
+    args = parser.parse_args()
+    groups = {g[0]: g[1:] for g in args.condition}
+    rows = segments(groups)
+    same = all(shipped(r["m"], r["kind"]) == _p2(r["m"], r["kind"]) for r in rows)
+    print(f"divides.assess.segment_motion.motion_features equals P2's features on all {len(rows)} segments: {same}")
+    names = list(CANDIDATES)
+    table: dict[tuple[str, str, str], dict] = {}
+    for kind in KINDS:
+        sel = [r for r in rows if r["kind"] == kind]
+        y = np.asarray([r["y"] for r in sel])
+        conds = np.asarray([r["cond"] for r in sel])
+        given = np.asarray([r["m"]["_i"] for r in sel])
+        for cond in groups:
+            table[(kind, "instability", cond)] = probability_scores(given[conds == cond], y[conds == cond])
+        for name in names:
+            p = loco(rows, CANDIDATES[name], kind)
+            for cond in groups:
+                table[(kind, name, cond)] = probability_scores(p[conds == cond], y[conds == cond])
+            if args.fit_all:
+                x = np.asarray([CANDIDATES[name](r["m"], kind) for r in sel], dtype=float)
+                print(f"{kind} {name} fitted on every case: {np.round(fit(x, y), 3).tolist()}")
+        print(f"\n{kind}: {len(sel)} segments ({int(y.sum())} moving), leave one case out")
+        print("| probability | " + " | ".join(f"{c} log loss | {c} ECE | {c} AUC" for c in groups) + " |")
+        print("| --- " * (1 + 3 * len(groups)) + "|")
+        for name in ["instability", *names]:
+            cells = [f"{table[(kind, name, c)]['log_loss']:.3f} | {table[(kind, name, c)]['ece']:.3f} | "
+                     f"{table[(kind, name, c)]['auc']:.3f}" for c in groups]
+            print(f"| {name} | " + " | ".join(cells) + " |")
+    qualified = [n for n in names if all(
+        table[("main", n, c)]["log_loss"] < table[("main", "instability", c)]["log_loss"]
+        and table[("main", n, c)]["ece"] < table[("main", "instability", c)]["ece"]
+        and table[("lateral", n, c)]["log_loss"] <= table[("lateral", "instability", c)]["log_loss"] + 0.005
+        for c in groups)]
+    if not qualified:
+        print("\nnone qualifies")
+        return
+    total = {n: sum(table[("main", n, c)]["log_loss"] for c in groups) for n in qualified}
+    best = min(total.values())
+    # within 0.005 of the best, the one with fewer coefficients (the candidates are listed by size)
+    ship = next(n for n in qualified if total[n] <= best + 0.005)
+    print(f"\nqualify: {qualified}; summed main log loss {({n: round(v, 4) for n, v in total.items()})}; ships: {ship}")
+    for kind in KINDS:
+        sel = [r for r in rows if r["kind"] == kind]
+        y = np.asarray([r["y"] for r in sel])
+        conds = np.asarray([r["cond"] for r in sel])
+        p = loco(rows, CANDIDATES[ship], kind)
+        for cond in groups:
+            print(f"\nreliability, {ship}, {kind}, {cond} (leave one case out): bin | n | mean probability | moving")
+            for label, n, mp, share in reliability(p[conds == cond], y[conds == cond]):
+                print(f"| {label} | {n} | {mp:.3f} | {share:.3f} |")
+
+
+if __name__ == "__main__":
+    main()
