@@ -27,7 +27,8 @@ def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = 
                  transience: tuple = (None, None), spread: tuple = (None, None)) -> float:
     # The documented models (docs/methods.md §7b): Platt scaling without the landscape evidence, and with it
     # the logistic model adding the hilltop contrast toward the favoured side and the runs' agreement (both
-    # runs move the divide at least half a model cell toward the favoured side, or, on a main divide whose
+    # runs move the divide at least half a model cell toward the favoured side, the first three quarters of one on
+    # a main divide, or, on a main divide whose
     # aggressor's basin has |transience| >= 0.1 and >= twice its spread under the DEM error model, the first does
     # and the second not half a cell the other way).
     q = p["a"] + p["b"]
@@ -36,13 +37,45 @@ def _instability(p: dict, kind: str, shifts: tuple | None, hill: float | None = 
         alpha, beta = INSTABILITY_SCALING[kind]
         return 1.0 / (1.0 + math.exp(-(alpha + beta * z)))
     alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
-    favoured = 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
+    agrees = _runs_agree(p, kind, shifts, transience, spread)
+    return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * _favoured(p) * (hill or 0.0) + g_run * agrees)))
+
+
+def _favoured(p: dict) -> float:
+    return 1.0 if p["b"] > p["a"] else (-1.0 if p["a"] > p["b"] else 0.0)
+
+
+def _runs_agree(p: dict, kind: str, shifts: tuple, transience: tuple = (None, None),
+                spread: tuple = (None, None)) -> bool:
+    favoured = _favoured(p)
     one_u, per_basin = (None if s is None else favoured * s for s in shifts)
     aggressor, sd = (transience[0], spread[0]) if favoured > 0 else (transience[1], spread[1])
     transient = kind == "main" and aggressor is not None and sd is not None and abs(aggressor) >= max(0.1, 2 * sd)
-    agrees = favoured != 0 and one_u is not None and per_basin is not None and one_u >= 0.5 and (
+    first = 0.75 if kind == "main" else 0.5  # round 38: the one-uplift-rate run asked for more on main divides
+    return favoured != 0 and one_u is not None and per_basin is not None and one_u >= first and (
         per_basin >= 0.5 or (transient and per_basin > -0.5))
-    return 1.0 / (1.0 + math.exp(-(alpha + beta * z + g_hill * favoured * (hill or 0.0) + g_run * agrees)))
+
+
+def _motion_probability(s: dict, kind: str) -> float:
+    # The documented model of the probability of motion (docs/methods.md §7b, round 42), written out by hand: the
+    # logistic function of logit(P(a) + P(b)), the hilltop contrast toward the favoured side, the runs' agreement
+    # (as in _instability), the larger |shift| of the two runs capped at 5 model cells (0 and u = 1 when neither
+    # measured it) and, on main divides, whether a main segment within reach scores 0.01 or more.
+    from divides.assess.segment_motion import MOTION_PROBABILITY
+
+    p = s["probabilities"]
+    q = p["a"] + p["b"]
+    hill = _favoured(p) * (s["hilltop_contrast"] or 0.0)
+    shifts = (s["forward_shift_cells"], s["forward_shift_basin_cells"])
+    agrees = float(_runs_agree(p, kind, shifts, (s["transience_a"], s["transience_b"]),
+                               (s["transience_sd_a"], s["transience_sd_b"])))
+    sizes = [abs(v) for v in shifts if v is not None]
+    size, unmeasured = (min(max(sizes), 5.0), 0.0) if sizes else (0.0, 1.0)
+    features = [math.log(q / (1.0 - q)), hill, agrees, size, unmeasured]
+    if kind == "main":
+        features.append(float((s["neighbour_instability"] or 0.0) >= 0.01))
+    c = MOTION_PROBABILITY[kind]
+    return 1.0 / (1.0 + math.exp(-(c[0] + sum(w * x for w, x in zip(c[1:], features)))))
 
 
 @pytest.mark.parametrize(("west", "east"), [(0.2, 0.1), (0.1, 0.2)])
@@ -62,6 +95,7 @@ def test_the_forward_run_moves_the_divide_into_the_gentler_flank(west, east):
                             (s["transience_a"], s["transience_b"]), (s["transience_sd_a"], s["transience_sd_b"]))
     assert s["instability"] == pytest.approx(expected, abs=1e-9)
     assert result.parameters["forward_run"] is True and result.parameters["forward_run_grid"]["steps"] >= 20
+    assert s["motion_probability"] == pytest.approx(_motion_probability(s, "main"), abs=1e-9)
 
 
 def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
@@ -79,6 +113,9 @@ def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
     assert s_off["hilltop_contrast"] is None
     assert off.parameters["forward_run"] is False and "forward_run_grid" not in off.parameters
     assert s_off["instability"] == pytest.approx(_instability(s_off["probabilities"], "main", None), abs=1e-9)
+    # without the runs the instability is the calibrated probability itself, and the probability of motion is it
+    assert s_off["motion_probability"] == s_off["instability"]
+    assert s_on["motion_probability"] == pytest.approx(_motion_probability(s_on, "main"), abs=1e-9)
 
 
 @pytest.mark.parametrize(("cols", "min_area", "block", "cells"),

@@ -43,6 +43,9 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
         # instability: P(motion) of the calibrated decision, null when it abstained for insufficient data
         assert (props["instability"] is None) == (props["basis"] == "insufficient data")
         assert props["instability"] is None or 0.0 <= props["instability"] <= 1.0
+        # the calibrated probability of motion (round 42) is known exactly where the instability is
+        assert (props["motion_probability"] is None) == (props["instability"] is None)
+        assert props["motion_probability"] is None or 0.0 <= props["motion_probability"] <= 1.0
         assert 0.0 <= props["confidence"] <= 1.0
         assert props["moves_toward_basin"] in (None, *props["basins"])
         az = props["motion_azimuth_deg"]
@@ -69,6 +72,8 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
         rows = list(csv.DictReader(fh))
     assert len(rows) == len(ranks)
     assert {"rank", "instability", "confidence", "length_m", "moves_toward_basin", "motion_azimuth_deg"} <= set(rows[0])
+    # two decimals, what a calibration error of 0.01-0.02 supports (common practice)
+    assert all(r["motion_probability"] == "" or len(r["motion_probability"].split(".")[-1]) <= 2 for r in rows)
     parser = HTMLParser()
     text = (out / "report.html").read_text()
     parser.feed(text)
