@@ -9,6 +9,8 @@ condition of DEM error, and for each kind of divide (main, lateral) and each can
 segment in a moving or still stretch, each case scored by coefficients fitted without it (its conditions left out
 together), beside those of the instability the shipped default gives; then the reliability of the candidate that
 the round's rule ships. ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship).
+``--rankings`` (round 43) instead scores orders of the segments of ``rescore_regional.RANKINGS``, each case's
+probability of motion (P2) fitted without it.
 The instability and the neighbours' scores are recomputed with the shipped model (``rescore_regional.py``).
 """
 
@@ -23,7 +25,7 @@ from collections.abc import Callable
 
 import numpy as np
 from bench_regional import probability_scores  # this folder (scripts run from here)
-from rescore_regional import PRIOR_SD, _size, instability, targets
+from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import NEIGHBOUR_SCORE, evidence_features
@@ -108,22 +110,48 @@ def _cases(names: list[str]) -> list[dict]:
     return rows
 
 
-def segments(groups: dict[str, list[str]]) -> list[dict]:
-    """Every main and lateral segment in a moving or still stretch: its case, condition, kind, outcome, the
-    shipped instability (``_i``) and the recomputed neighbours' scores."""
-    out = []
+def prepared(groups: dict[str, list[str]]) -> dict[str, list[dict]]:
+    """The cases of each condition, every segment with the shipped instability (``_i``) and every main segment with
+    the neighbours' scores recomputed under the shipped model."""
+    out = {}
     for cond, files in groups.items():
-        for case in _cases(files):
+        out[cond] = _cases(files)
+        for case in out[cond]:
             for m in case["main"] + case.get("lateral", []) + case["others"]:
                 m["_i"] = instability(m, None, "shipped now")
             targets(case, "shipped")  # sets each main segment's neighbour_instability under the shipped model
-            for kind, rows in (("main", case["main"]), ("lateral", case.get("lateral", []))):
-                for m in rows:
+    return out
+
+
+def segments(cases: dict[str, list[dict]]) -> list[dict]:
+    """Every main and lateral segment in a moving or still stretch of the :func:`prepared` cases: its case,
+    condition, kind, outcome and record."""
+    out = []
+    for cond, rows in cases.items():
+        for case in rows:
+            for kind, segs in (("main", case["main"]), ("lateral", case.get("lateral", []))):
+                for m in segs:
                     if m["_i"] is None or not (m["in_moving"] or m["in_stable"]):
                         continue
                     out.append({"case": case["_case"], "cond": cond, "kind": kind, "y": float(m["in_moving"]),
                                 "m": m})
     return out
+
+
+def attach_loco(cases: dict[str, list[dict]], rows: list[dict], features: Callable[[dict, str], list[float]]) -> None:
+    """Round 43: every main segment of a known score gets ``_p``, its probability of motion from ``features``'
+    coefficients fitted on the labelled main segments of the other cases (all conditions)."""
+    sel = [r for r in rows if r["kind"] == "main"]
+    x = np.asarray([features(r["m"], "main") for r in sel], dtype=float)
+    y = np.asarray([r["y"] for r in sel])
+    ids = np.asarray([hash(r["case"]) for r in sel])
+    w_all = fit(x, y)
+    weights = {c: fit(x[ids != c], y[ids != c], w_all) for c in np.unique(ids)}
+    for part in cases.values():
+        for case in part:
+            w = weights.get(hash(case["_case"]), w_all)  # a case without a labelled segment: fitted on all
+            for m in case["main"]:
+                m["_p"] = None if m["_i"] is None else float(predict(w, np.asarray([features(m, "main")]))[0])
 
 
 def loco(rows: list[dict], features: Callable[[dict, str], list[float]], kind: str) -> np.ndarray:
@@ -152,9 +180,26 @@ def main() -> None:
     parser.add_argument("--condition", nargs="+", action="append", required=True, metavar=("NAME", "FILE"),
                         help="a condition's name, then its bench_regional.py --json outputs")
     parser.add_argument("--fit-all", action="store_true", help="print the coefficients fitted on every case")
+    parser.add_argument("--rankings", nargs="*", default=[], choices=list(RANKINGS),
+                        help="round 43: score these orders of the segments, each case's probability of motion (P2) "
+                             "fitted without it, and stop")
     args = parser.parse_args()
     groups = {g[0]: g[1:] for g in args.condition}
-    rows = segments(groups)
+    cases = prepared(groups)
+    rows = segments(cases)
+    if args.rankings:
+        attach_loco(cases, rows, CANDIDATES["P2"])
+        print("| ranking | " + " | ".join(f"{c} targets (top, order, no alarm)" for c in groups) + " | sum |")
+        print("| --- " * (2 + len(groups)) + "|")
+        for name in args.rankings:
+            cells, total = [], 0
+            for cond in groups:
+                t = [targets(case, name) for case in cases[cond]]
+                n = {k: sum(bool(x[k]) for x in t if x[k] is not None) for k in ("top", "order", "alarm_ok")}
+                cells.append(f"{sum(n.values())} ({n['top']}, {n['order']}, {n['alarm_ok']})")
+                total += sum(n.values())
+            print(f"| {name} | " + " | ".join(cells) + f" | {total} |")
+        return
     same = all(shipped(r["m"], r["kind"]) == _p2(r["m"], r["kind"]) for r in rows)
     print(f"divides.assess.segment_motion.motion_features equals P2's features on all {len(rows)} segments: {same}")
     names = list(CANDIDATES)

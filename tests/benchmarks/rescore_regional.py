@@ -615,6 +615,42 @@ for _name, _tiers, _demote in (("D1", (0,), False), ("D2", (), True), ("D3", (0,
     RANKINGS[f"{_name}: segments with a direction first (round 39)"] = _pointing_first(_tiers, _demote)
 
 
+def _q1(m: dict) -> tuple:
+    """Round 43's Q1: the probability of motion (``_p``) in place of the score: P >= 0.5 first (those with a
+    direction first, by P); below, the shipped second tier's groups and keys, then P."""
+    p = m.get("_p")
+    if p is not None and p >= 0.5:
+        return (0, float(not _points(m)), -p, 0.0)
+    k = rank_key(None if m["_i"] is None else 0.0, m)
+    return (*k[:3], -(p or 0.0))
+
+
+def _q2(m: dict) -> tuple:
+    """Round 43's Q2: the shipped tiers, each ordered by P within its groups (unknown segments the runs move, which
+    have no P, after the scored ones of the second tier)."""
+    p, k = m.get("_p"), rank_key(m["_i"], m)
+    if k[0] == 0:
+        return (0, k[1], -p, 0.0)
+    if k[0] == 1:
+        return (1, 0.0, -p, 0.0) if p is not None else (1, 1.0, k[2], 0.0)
+    return k
+
+
+def _q3(m: dict) -> tuple:
+    """Round 43's Q3: by P alone, P >= 0.5 with a direction first; unknown segments the runs move after every scored
+    one, the other unknown ones last."""
+    p = m.get("_p")
+    if p is not None:
+        return (0 if p >= 0.5 and _points(m) else 1, -p, 0.0, 0.0)
+    k = rank_key(None, m)
+    return (2 + k[0] - 1, *k[1:])
+
+
+RANKINGS["Q1: the probability of motion in place of the score (round 43)"] = _q1
+RANKINGS["Q2: the shipped tiers ordered by the probability of motion (round 43)"] = _q2
+RANKINGS["Q3: by the probability of motion alone (round 43)"] = _q3
+
+
 def _chain_scores(main: list[dict], moved: float) -> None:
     """Each main segment's ``_chain[moved]``: screen.neighbour_scores from its recorded neighbours within
     NEIGHBOUR_CELLS, the candidate's scores and chains through segments moved at least ``moved`` cells (round 36)."""
