@@ -29,6 +29,7 @@ from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import NEIGHBOUR_SCORE, evidence_features
+from divides.model.regional_benchmark import raises_alarm
 
 KINDS = ("main", "lateral")
 CLIP = 1e-12
@@ -138,20 +139,24 @@ def segments(cases: dict[str, list[dict]]) -> list[dict]:
     return out
 
 
-def attach_loco(cases: dict[str, list[dict]], rows: list[dict], features: Callable[[dict, str], list[float]]) -> None:
-    """Round 43: every main segment of a known score gets ``_p``, its probability of motion from ``features``'
-    coefficients fitted on the labelled main segments of the other cases (all conditions)."""
-    sel = [r for r in rows if r["kind"] == "main"]
-    x = np.asarray([features(r["m"], "main") for r in sel], dtype=float)
-    y = np.asarray([r["y"] for r in sel])
-    ids = np.asarray([hash(r["case"]) for r in sel])
-    w_all = fit(x, y)
-    weights = {c: fit(x[ids != c], y[ids != c], w_all) for c in np.unique(ids)}
-    for part in cases.values():
-        for case in part:
-            w = weights.get(hash(case["_case"]), w_all)  # a case without a labelled segment: fitted on all
-            for m in case["main"]:
-                m["_p"] = None if m["_i"] is None else float(predict(w, np.asarray([features(m, "main")]))[0])
+def attach_loco(cases: dict[str, list[dict]], rows: list[dict], features: Callable[[dict, str], list[float]],
+                kinds: tuple[str, ...] = ("main",)) -> None:
+    """Rounds 43 and 44: every segment of a known score and of one of ``kinds`` (main and lateral segments, and the
+    others) gets ``_p``, its probability of motion from ``features``' coefficients fitted on the labelled segments
+    of its kind in the other cases (all conditions)."""
+    for kind in kinds:
+        sel = [r for r in rows if r["kind"] == kind]
+        x = np.asarray([features(r["m"], kind) for r in sel], dtype=float)
+        y = np.asarray([r["y"] for r in sel])
+        ids = np.asarray([hash(r["case"]) for r in sel])
+        w_all = fit(x, y)
+        weights = {c: fit(x[ids != c], y[ids != c], w_all) for c in np.unique(ids)}
+        for part in cases.values():
+            for case in part:
+                w = weights.get(hash(case["_case"]), w_all)  # a case without a labelled segment: fitted on all
+                for m in case["main"] + case.get("lateral", []) + case["others"]:
+                    if (m.get("kind") or m.get("divide_kind")) == kind:
+                        m["_p"] = None if m["_i"] is None else float(predict(w, np.asarray([features(m, kind)]))[0])
 
 
 def loco(rows: list[dict], features: Callable[[dict, str], list[float]], kind: str) -> np.ndarray:
@@ -183,6 +188,9 @@ def main() -> None:
     parser.add_argument("--rankings", nargs="*", default=[], choices=list(RANKINGS),
                         help="round 43: score these orders of the segments, each case's probability of motion (P2) "
                              "fitted without it, and stop")
+    parser.add_argument("--alarms", action="store_true",
+                        help="round 44: the steady landscapes' alarms read from the score and from the probability "
+                             "of motion (both kinds, each case's fitted without it), and stop")
     args = parser.parse_args()
     groups = {g[0]: g[1:] for g in args.condition}
     cases = prepared(groups)
@@ -199,6 +207,20 @@ def main() -> None:
                 cells.append(f"{sum(n.values())} ({n['top']}, {n['order']}, {n['alarm_ok']})")
                 total += sum(n.values())
             print(f"| {name} | " + " | ".join(cells) + f" | {total} |")
+        return
+    if args.alarms:
+        attach_loco(cases, rows, CANDIDATES["P2"], KINDS)
+        print("| alarms read from | " + " | ".join(f"{c} steady landscapes without an alarm (segments alarmed)"
+                                                for c in groups) + " |")
+        print("| --- " * (1 + len(groups)) + "|")
+        for key in ("_i", "_p"):
+            cells = []
+            for cond in groups:
+                steady = [case for case in cases[cond] if case["family"].startswith("steady_")]
+                alarmed = [sum(raises_alarm({**m, "instability": m[key]}) for m in case["main"] + case["others"])
+                           for case in steady]
+                cells.append(f"{sum(a == 0 for a in alarmed)}/{len(steady)} ({sum(alarmed)})")
+            print(f"| {'the score' if key == '_i' else 'the probability of motion'} | " + " | ".join(cells) + " |")
         return
     same = all(shipped(r["m"], r["kind"]) == _p2(r["m"], r["kind"]) for r in rows)
     print(f"divides.assess.segment_motion.motion_features equals P2's features on all {len(rows)} segments: {same}")
