@@ -646,9 +646,37 @@ def _q3(m: dict) -> tuple:
     return (2 + k[0] - 1, *k[1:])
 
 
+def _q1a(m: dict) -> tuple:
+    """Round 45's Q1a: the first tier takes the segments scored >= RUN_ORDER_BELOW and those with P >= 0.5, those
+    with a direction first, each group by the score."""
+    p, i = m.get("_p"), m["_i"]
+    if i is not None and (i >= RUN_ORDER_BELOW or (p is not None and p >= 0.5)):
+        return (0, float(not _points(m)), -i, 0.0)
+    return rank_key(i, m)
+
+
+def _q1b(m: dict) -> tuple:
+    """Round 45's Q1b: the first tier keeps only the segments scored >= RUN_ORDER_BELOW with P >= 0.5; the others
+    join the second tier."""
+    p, i = m.get("_p"), m["_i"]
+    if i is not None and i >= RUN_ORDER_BELOW and (p is None or p < 0.5):
+        k = rank_key(0.0, m)  # ordered as the segments scored below RUN_ORDER_BELOW, then by the score
+        return (*k[:3], -i)
+    return rank_key(i, m)
+
+
+def _q1c(m: dict) -> tuple:
+    """Round 45's Q1c: the shipped first tier, those with a direction first, each group by P."""
+    k = rank_key(m["_i"], m)
+    return (0, k[1], -m["_p"], 0.0) if k[0] == 0 else k
+
+
 RANKINGS["Q1: the probability of motion in place of the score (round 43)"] = _q1
 RANKINGS["Q2: the shipped tiers ordered by the probability of motion (round 43)"] = _q2
 RANKINGS["Q3: by the probability of motion alone (round 43)"] = _q3
+RANKINGS["Q1a: round 43's first tier, its promotion alone (round 45)"] = _q1a
+RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
+RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
 
 def _chain_scores(main: list[dict], moved: float) -> None:
