@@ -39,8 +39,8 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "motion_probability", "confidence", "length_m", "basin_1", "basin_2",
-            "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS,
-            "x_mid", "y_mid")
+            "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind",
+            *EVIDENCE_KEYS, "x_mid", "y_mid")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
