@@ -749,7 +749,8 @@ def screen(
     for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
         beside = (r.get("neighbour_instability") or 0.0) >= NEIGHBOUR_SCORE
         r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"],
-                                                     r if config.forward_run else None, beside=beside)
+                                                     r if config.forward_run else None, beside=beside,
+                                                     dem_error_m=config.dem_error_m)
     # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
     rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
                              -r["seg"].line.length_m))

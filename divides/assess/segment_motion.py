@@ -12,7 +12,8 @@ import math
 
 __all__ = ["instability_of", "evidence_features", "motion_features", "motion_probability", "run_shifts",
            "run_size", "finite_or_none", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MOTION_PROBABILITY",
-           "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "RUN_SIZE_CAP"]
+           "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "RUN_SIZE_CAP",
+           "TOLD_ERROR_CAP_M"]
 
 #: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
 #: of the regional benchmark, one per kind of divide (:mod:`divides.assess.divide_kind`):
@@ -82,27 +83,34 @@ TRANSIENT_SPREADS = 2.0
 
 
 #: The probability of motion with the landscape evidence (:func:`motion_probability`): a logistic model per kind of
-#: divide, P = 1 / (1 + exp(-(c0 + c1 logit p + c2 h + c3 r + c4 s + c5 u [+ c6 n]))), with p, h and r as in
+#: divide, P = 1 / (1 + exp(-(c0 + c1 logit p + c2 h + c3 r + c4 s + c5 u [+ c6 n] + c7 e))), with p, h and r as in
 #: :data:`INSTABILITY_EVIDENCE` (:func:`evidence_features`), s the larger |shift| of the two landscape runs capped at
-#: :data:`RUN_SIZE_CAP` model cells (0 when neither measured the segment), u = 1 when neither did, and on main divides
+#: :data:`RUN_SIZE_CAP` model cells (0 when neither measured the segment), u = 1 when neither did, on main divides
 #: n = 1 when a main segment within reach scores at least the ranking's tier (``neighbour_instability``,
-#: :func:`divides.assess.screen.rank_key`). Round 42 (docs/validation.md, *Regional screening*; rule written before
-#: its figures): fitted by maximum likelihood (Gaussian prior of sd 10 on all but c0) on every main and lateral
-#: segment in a moving or still stretch of the 359 training cases under 0, 1 and 5 m of DEM error (23 401 main, 8747
-#: moving; 32 289 lateral, 1810 moving). Each case scored by coefficients fitted without it: main log loss 0.096,
-#: 0.093 and 0.151 and calibration error 0.010, 0.009 and 0.018 under 0, 1 and 5 m, against 0.510, 0.544 and 1.060
-#: and 0.071, 0.075 and 0.133 for the instability; lateral log loss 0.111, 0.117 and 0.139 against 0.158, 0.163 and
-#: 0.176. Chosen over the instability's logit alone and that logit with s, u and n. c4 < 0: at a given p, h and r a
-#: larger shift more often comes from a steady contrast that the per-basin run misreads (round 37). Calibrated to the
-#: benchmark's mix of landscapes (37 % of main segments moving): where moving divides are rarer, it reads high.
+#: :func:`divides.assess.screen.rank_key`), and e the DEM error the screening is told (``dem_error_m``), read from 0 to
+#: :data:`TOLD_ERROR_CAP_M`. Fitted by maximum likelihood (Gaussian prior of sd 10 on all but c0) on every main and
+#: lateral segment in a moving or still stretch of the 359 training cases under 0, 1 and 5 m of DEM error (told 1, 1
+#: and 5 m; 23 401 main readings, 8747 moving; 32 289 lateral, 1810 moving). Round 42 (rules written before their
+#: figures; docs/validation.md, *Regional screening*) chose the features without e over the instability's logit
+#: alone and that logit with s, u and n; round 46 added e, since one fit read low under 5 m of error. Each case
+#: scored by coefficients fitted without it: main log loss 0.095, 0.092 and 0.146 and calibration error 0.004, 0.005
+#: and 0.009 under 0, 1 and 5 m (0.096, 0.093, 0.151 and 0.010, 0.009, 0.018 without e; the instability's 0.510,
+#: 0.544, 1.060 and 0.071, 0.075, 0.133); lateral log loss 0.110, 0.117 and 0.136. c4 < 0: at a given p, h and r a
+#: larger shift more often comes from a steady contrast that the per-basin run misreads (round 37). c7 > 0: noisier
+#: evidence of the same size has more motion behind it. Calibrated to the benchmark's mix of landscapes (37 % of main
+#: segments moving): where moving divides are rarer, it reads high.
 MOTION_PROBABILITY: dict[str, tuple[float, ...]] = {
-    "main": (-3.921, 1.405, 14.325, 3.599, -0.842, 0.015, 3.678),
-    "lateral": (-4.878, 1.049, 4.114, 2.342, 1.010, 0.318),
+    "main": (-4.598, 1.469, 13.272, 3.535, -0.813, 0.129, 3.774, 0.216),
+    "lateral": (-5.296, 1.111, 3.799, 2.363, 1.029, 0.343, 0.146),
 }
 
 #: The landscape runs' shift is read up to this many model cells by :data:`MOTION_PROBABILITY` (a moving divide
 #: covers about 0.6 cell over the runs' 0.3 response times; beyond a few cells the shift says no more).
 RUN_SIZE_CAP = 5.0
+
+#: The DEM error a screening is told is read up to this many metres by :data:`MOTION_PROBABILITY`: the most its
+#: training cases were told; a larger error is outside what it was fitted on.
+TOLD_ERROR_CAP_M = 5.0
 
 
 def instability_of(probabilities: dict | None, kind: str = "main", evidence: dict | None = None) -> float | None:
@@ -213,38 +221,42 @@ def finite_or_none(v: float | None) -> float | None:
     return None if v is None or not math.isfinite(v) else float(v)
 
 
-def motion_features(kind: str, probabilities: dict, evidence: dict, *, beside: bool = False) -> tuple[float, ...]:
+def motion_features(kind: str, probabilities: dict, evidence: dict, *, beside: bool = False,
+                    dem_error_m: float = 1.0) -> tuple[float, ...]:
     """What :func:`motion_probability` reads (:data:`MOTION_PROBABILITY`, without the intercept): logit p, h and r
-    (:func:`evidence_features`), s, u, and on a ``"main"`` divide n (``beside``: a main segment within reach scores
-    at least the ranking's tier).
+    (:func:`evidence_features`), s, u, on a ``"main"`` divide n (``beside``: a main segment within reach scores at
+    least the ranking's tier), and e (``dem_error_m``, the DEM error the screening is told, read from 0 to
+    :data:`TOLD_ERROR_CAP_M`).
 
     Examples
     --------
     >>> ev = {"forward_shift_cells": -7.0, "forward_shift_basin_cells": None, "hilltop_contrast": 0.2}
     >>> [round(v, 3) for v in motion_features("main", {"a": 0.5, "b": 0.0, "stable": 0.5}, ev, beside=True)]
-    [0.0, -0.2, 0.0, 5.0, 0.0, 1.0]
-    >>> [round(v, 3) for v in motion_features("lateral", {"a": 0.0, "b": 0.5, "stable": 0.5}, {})]
-    [0.0, 0.0, 0.0, 0.0, 1.0]
+    [0.0, -0.2, 0.0, 5.0, 0.0, 1.0, 1.0]
+    >>> [round(v, 3) for v in motion_features("lateral", {"a": 0.0, "b": 0.5, "stable": 0.5}, {}, dem_error_m=9.0)]
+    [0.0, 0.0, 0.0, 0.0, 1.0, 5.0]
     """
     logit, hill, agrees = evidence_features(probabilities, evidence, kind)
     size = run_size(evidence)
     runs = (0.0 if size is None else min(size, RUN_SIZE_CAP), float(size is None))
-    return (logit, hill, agrees, *runs, *((float(beside),) if kind == "main" else ()))
+    told = min(max(float(dem_error_m), 0.0), TOLD_ERROR_CAP_M)
+    return (logit, hill, agrees, *runs, *((float(beside),) if kind == "main" else ()), told)
 
 
 def motion_probability(probabilities: dict | None, kind: str = "main", evidence: dict | None = None, *,
-                       beside: bool = False) -> float | None:
+                       beside: bool = False, dem_error_m: float = 1.0) -> float | None:
     """The probability that a divide segment moves, calibrated on the regional benchmark's training cases.
 
     With the landscape ``evidence`` (as for :func:`instability_of`) the model of :data:`MOTION_PROBABILITY` for the
-    segment's ``kind``; without it the instability itself, which is then the decision's P(a) + P(b) calibrated by
-    :data:`INSTABILITY_SCALING`. None (unknown) when the decision abstained for insufficient data.
+    segment's ``kind`` (``beside`` and ``dem_error_m`` as for :func:`motion_features`); without it the instability
+    itself, which is then the decision's P(a) + P(b) calibrated by :data:`INSTABILITY_SCALING`. None (unknown) when
+    the decision abstained for insufficient data.
 
     Examples
     --------
-    >>> p = {"a": 0.0, "b": 0.5, "stable": 0.5}  # logit p = 0; no run measured the segment
-    >>> round(motion_probability(p, "main", {}), 4)  # 1 / (1 + exp(3.921 - 0.015)) by hand
-    0.0197
+    >>> p = {"a": 0.0, "b": 0.5, "stable": 0.5}  # logit p = 0; no run measured the segment; told 1 m
+    >>> round(motion_probability(p, "main", {}), 4)  # 1 / (1 + exp(4.598 - 0.129 - 0.216)) by hand
+    0.014
     >>> motion_probability(p, "main") == instability_of(p, "main")
     True
     >>> motion_probability(None) is None
@@ -255,5 +267,6 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     if evidence is None:
         return instability_of(probabilities, kind)
     c = MOTION_PROBABILITY[kind]
-    t = c[0] + sum(w * x for w, x in zip(c[1:], motion_features(kind, probabilities, evidence, beside=beside)))
+    features = motion_features(kind, probabilities, evidence, beside=beside, dem_error_m=dem_error_m)
+    t = c[0] + sum(w * x for w, x in zip(c[1:], features))
     return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0

@@ -56,11 +56,12 @@ def _runs_agree(p: dict, kind: str, shifts: tuple, transience: tuple = (None, No
         per_basin >= 0.5 or (transient and per_basin > -0.5))
 
 
-def _motion_probability(s: dict, kind: str) -> float:
-    # The documented model of the probability of motion (docs/methods.md §7b, round 42), written out by hand: the
-    # logistic function of logit(P(a) + P(b)), the hilltop contrast toward the favoured side, the runs' agreement
+def _motion_probability(s: dict, kind: str, told_m: float = 1.0) -> float:
+    # The documented model of the probability of motion (docs/methods.md §7b, rounds 42 and 46), written out by hand:
+    # the logistic function of logit(P(a) + P(b)), the hilltop contrast toward the favoured side, the runs' agreement
     # (as in _instability), the larger |shift| of the two runs capped at 5 model cells (0 and u = 1 when neither
-    # measured it) and, on main divides, whether a main segment within reach scores 0.01 or more.
+    # measured it), on main divides whether a main segment within reach scores 0.01 or more, and the DEM error the
+    # screening is told, read up to 5 m.
     from divides.assess.segment_motion import MOTION_PROBABILITY
 
     p = s["probabilities"]
@@ -74,6 +75,7 @@ def _motion_probability(s: dict, kind: str) -> float:
     features = [math.log(q / (1.0 - q)), hill, agrees, size, unmeasured]
     if kind == "main":
         features.append(float((s["neighbour_instability"] or 0.0) >= 0.01))
+    features.append(min(told_m, 5.0))
     c = MOTION_PROBABILITY[kind]
     return 1.0 / (1.0 + math.exp(-(c[0] + sum(w * x for w, x in zip(c[1:], features)))))
 
@@ -116,6 +118,9 @@ def test_equal_flanks_give_no_shift_and_the_run_can_be_left_out():
     # without the runs the instability is the calibrated probability itself, and the probability of motion is it
     assert s_off["motion_probability"] == s_off["instability"]
     assert s_on["motion_probability"] == pytest.approx(_motion_probability(s_on, "main"), abs=1e-9)
+    # the DEM error the screening is told reaches the probability (round 46; read up to 5 m, segment_motion's doctest)
+    (s_err,) = [s for s in screen(_book(0.15, 0.15), dem_error_m=3.0, **OPTIONS).segments if s["divide_kind"] == "main"]
+    assert s_err["motion_probability"] == pytest.approx(_motion_probability(s_err, "main", 3.0), abs=1e-9)
 
 
 @pytest.mark.parametrize(("cols", "min_area", "block", "cells"),

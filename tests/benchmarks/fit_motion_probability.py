@@ -58,20 +58,26 @@ def _p2(m: dict, kind: str) -> list[float]:
     return [logit, hill, agrees, *_runs(m), *_beside(m, kind)]
 
 
-#: name -> features of a segment of a kind (the intercept is added by the fit)
+#: The DEM error a screening is told is read up to this many metres by round 46's P2e (the most the training cases
+#: were told).
+TOLD_CAP_M = 5.0
+
+#: name -> features of a segment of a kind (the intercept is added by the fit); P0-P2 are round 42's, P2e round 46's
 CANDIDATES: dict[str, Callable[[dict, str], list[float]]] = {
     "P0": lambda m, kind: [_z(m)],
     "P1": lambda m, kind: [_z(m), *_runs(m), *_beside(m, kind)],
     "P2": _p2,
+    "P2e": lambda m, kind: [*_p2(m, kind), min(m["_told_m"], TOLD_CAP_M)],
 }
 
 
 def shipped(m: dict, kind: str) -> list[float]:
-    """The features as the package computes them (divides.assess.segment_motion, round 42's P2), for the check that
+    """The features as the package computes them (divides.assess.segment_motion, round 46's P2e), for the check that
     it reproduces the candidate that shipped (printed by :func:`main`)."""
     from divides.assess.segment_motion import motion_features
 
-    return list(motion_features(kind, m["probabilities"], m, beside=bool(_beside(m, kind) == [1.0])))
+    return list(motion_features(kind, m["probabilities"], m, beside=bool(_beside(m, kind) == [1.0]),
+                                dem_error_m=m["_told_m"]))
 
 
 def fit(x: np.ndarray, y: np.ndarray, start: np.ndarray | None = None) -> np.ndarray:
@@ -111,15 +117,17 @@ def _cases(names: list[str]) -> list[dict]:
     return rows
 
 
-def prepared(groups: dict[str, list[str]]) -> dict[str, list[dict]]:
-    """The cases of each condition, every segment with the shipped instability (``_i``) and every main segment with
-    the neighbours' scores recomputed under the shipped model."""
+def prepared(groups: dict[str, list[str]], told: dict[str, float] | None = None) -> dict[str, list[dict]]:
+    """The cases of each condition, every segment with the shipped instability (``_i``) and the DEM error its
+    screening was told (``_told_m``, from ``told`` by condition; the default 1 m when not given), and every main
+    segment with the neighbours' scores recomputed under the shipped model."""
     out = {}
     for cond, files in groups.items():
         out[cond] = _cases(files)
         for case in out[cond]:
             for m in case["main"] + case.get("lateral", []) + case["others"]:
                 m["_i"] = instability(m, None, "shipped now")
+                m["_told_m"] = (told or {}).get(cond, 1.0)
             targets(case, "shipped")  # sets each main segment's neighbour_instability under the shipped model
     return out
 
@@ -185,6 +193,10 @@ def main() -> None:
     parser.add_argument("--condition", nargs="+", action="append", required=True, metavar=("NAME", "FILE"),
                         help="a condition's name, then its bench_regional.py --json outputs")
     parser.add_argument("--fit-all", action="store_true", help="print the coefficients fitted on every case")
+    parser.add_argument("--candidates", nargs="*", default=["P0", "P1", "P2"], choices=list(CANDIDATES),
+                        help="the calibrations to score (round 42's by default; round 46: P2 P2e)")
+    parser.add_argument("--told-error", nargs="*", default=[], metavar="COND=M",
+                        help="the DEM error each condition's screenings were told, in m (default 1, the screening's)")
     parser.add_argument("--rankings", nargs="*", default=[], choices=list(RANKINGS),
                         help="round 43: score these orders of the segments, each case's probability of motion (P2) "
                              "fitted without it, and stop")
@@ -193,7 +205,8 @@ def main() -> None:
                              "of motion (both kinds, each case's fitted without it), and stop")
     args = parser.parse_args()
     groups = {g[0]: g[1:] for g in args.condition}
-    cases = prepared(groups)
+    told = {k: float(v) for k, v in (t.split("=") for t in args.told_error)}
+    cases = prepared(groups, told)
     rows = segments(cases)
     if args.rankings:
         attach_loco(cases, rows, CANDIDATES["P2"])
@@ -222,9 +235,9 @@ def main() -> None:
                 cells.append(f"{sum(a == 0 for a in alarmed)}/{len(steady)} ({sum(alarmed)})")
             print(f"| {'the score' if key == '_i' else 'the probability of motion'} | " + " | ".join(cells) + " |")
         return
-    same = all(shipped(r["m"], r["kind"]) == _p2(r["m"], r["kind"]) for r in rows)
-    print(f"divides.assess.segment_motion.motion_features equals P2's features on all {len(rows)} segments: {same}")
-    names = list(CANDIDATES)
+    same = all(shipped(r["m"], r["kind"]) == CANDIDATES["P2e"](r["m"], r["kind"]) for r in rows)
+    print(f"divides.assess.segment_motion.motion_features equals P2e's features on all {len(rows)} segments: {same}")
+    names = list(args.candidates)
     table: dict[tuple[str, str, str], dict] = {}
     for kind in KINDS:
         sel = [r for r in rows if r["kind"] == kind]
