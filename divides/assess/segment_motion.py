@@ -81,7 +81,6 @@ TRANSIENT_BASIN = 0.1
 #: 1 m of correlated error 5 % against 44 % on a small ridge, and fewer in each of master seed 0's steady cases.
 TRANSIENT_SPREADS = 2.0
 
-
 #: The probability of motion with the landscape evidence (:func:`motion_probability`): a logistic model per kind of
 #: divide, P = 1 / (1 + exp(-(c0 + c1 logit p + c2 h + c3 r + c4 s + c5 u [+ c6 n] + c7 e))), with p, h and r as in
 #: :data:`INSTABILITY_EVIDENCE` (:func:`evidence_features`), s the larger |shift| of the two landscape runs capped at
