@@ -1,17 +1,21 @@
-"""Round 42: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
+"""Rounds 42-46: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
 leaving one case out (run by hand, not a test).
 
-    python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... [--fit-all]
+    python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
+        [--candidates P2 P2e] [--told-error E0=1 E1=1 E5=5] [--fit-all | --rankings NAME ... | --alarms]
 
 Reads the per-case JSON lines of ``bench_regional.py --json`` (training cases only), one group of files per
 condition of DEM error, and for each kind of divide (main, lateral) and each candidate of docs/validation.md
-(*Round 42*) prints, per condition, the log loss, AUC and expected calibration error of the probability of every
-segment in a moving or still stretch, each case scored by coefficients fitted without it (its conditions left out
-together), beside those of the instability the shipped default gives; then the reliability of the candidate that
-the round's rule ships. ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship).
-``--rankings`` (round 43) instead scores orders of the segments of ``rescore_regional.RANKINGS``, each case's
-probability of motion (P2) fitted without it.
-The instability and the neighbours' scores are recomputed with the shipped model (``rescore_regional.py``).
+(*Regional screening*, rounds 42 and 46; round 42's P0-P2 by default) prints, per condition, the log loss, AUC and
+expected calibration error of the probability of every segment in a moving or still stretch, each case scored by
+coefficients fitted without it (its conditions left out together), beside those of the instability the shipped
+default gives; then, by round 42's rule, the candidate that ships and its reliability. ``--told-error`` gives the
+DEM error each condition's screenings were told (round 46's P2e reads it; 1 m, the screening's default, when not
+given). ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship). ``--rankings``
+(rounds 43 and 45) instead scores orders of the segments of ``rescore_regional.RANKINGS``, and ``--alarms`` (round
+44) the steady landscapes' alarms read from the probability, each case's probability (P2) fitted without it. The
+instability and the neighbours' scores are recomputed with the shipped model (``rescore_regional.py``), and the
+script checks that the package computes the shipped candidate's features as it does.
 """
 
 from __future__ import annotations
@@ -29,6 +33,7 @@ from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import NEIGHBOUR_SCORE, evidence_features
+from divides.assess.segment_motion import motion_features
 from divides.model.regional_benchmark import raises_alarm
 
 KINDS = ("main", "lateral")
@@ -74,8 +79,6 @@ CANDIDATES: dict[str, Callable[[dict, str], list[float]]] = {
 def shipped(m: dict, kind: str) -> list[float]:
     """The features as the package computes them (divides.assess.segment_motion, round 46's P2e), for the check that
     it reproduces the candidate that shipped (printed by :func:`main`)."""
-    from divides.assess.segment_motion import motion_features
-
     return list(motion_features(kind, m["probabilities"], m, beside=bool(_beside(m, kind) == [1.0]),
                                 dem_error_m=m["_told_m"]))
 
