@@ -4,7 +4,7 @@ A divide between two outlet basins is a *main* divide when the two basins drain 
 from each other (the two flanks of a range) and a *lateral* one when they drain the same
 way (two valleys side by side on one flank, each reaching the base level on its own).
 The two kinds differ in what their near-divide asymmetries mean, so screening calibrates
-the probability of motion separately for each (:data:`divides.assess.screen.INSTABILITY_SCALING`).
+the probability of motion separately for each (:data:`divides.assess.segment_motion.INSTABILITY_SCALING`).
 
 A basin's drainage direction is the vector from its centroid to its outlet; two basins
 drain the same way when those directions are less than 90° apart. This reads the whole

@@ -5,7 +5,7 @@
 Measures, on the TRAINING regional cases only (docs/validation.md, *Regional screening*, *Evidence
 tried against the alarms of steady landscapes*), three lines of evidence beside the screening's calibrated
 probability of motion from the near-divide contrasts; the rule written beforehand chose 1. and 2. together
-on the version-3 cases, and screening reads both by default (divides.assess.screen.INSTABILITY_EVIDENCE):
+on the version-3 cases, and screening reads both by default (divides.assess.segment_motion.INSTABILITY_EVIDENCE):
 
 1. hilltop curvature: the median ∇²z of the hillslope cells (drainage area at most ``HILLSLOPE_CELLS`` cells)
    within ``HILLTOP_RADIUS_CELLS`` cells of a segment on each side; at steady state E = −D ∇²z (Roering, Perron &
