@@ -32,7 +32,7 @@ from bench_regional import probability_scores  # this folder (scripts run from h
 from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
-from divides.assess.screen import NEIGHBOUR_SCORE, evidence_features
+from divides.assess.screen import INSTABILITY_EVIDENCE, NEIGHBOUR_SCORE, evidence_features
 from divides.assess.segment_motion import motion_features
 from divides.model.regional_benchmark import raises_alarm
 
@@ -184,6 +184,60 @@ def loco(rows: list[dict], features: Callable[[dict, str], list[float]], kind: s
     return p
 
 
+def _lateral_terms(m: dict) -> tuple[float, float]:
+    """Round 47: a lateral segment's shipped logit (screen.INSTABILITY_EVIDENCE) and min(h, 0), h its hilltop
+    contrast toward the favoured side."""
+    alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE["lateral"]
+    logit, hill, agrees = evidence_features(m["probabilities"], m, "lateral")
+    return alpha + beta * logit + g_hill * hill + g_run * agrees, min(hill, 0.0)
+
+
+def fit_veto(o: np.ndarray, x: np.ndarray, y: np.ndarray) -> float:
+    """Round 47's g >= 0: maximum likelihood of y ~ logistic(o + g x), Gaussian prior of sd PRIOR_SD on g."""
+    def loss(g):
+        t = o + g[0] * x
+        return float(np.sum(np.logaddexp(0.0, t) - y * t) + g[0] ** 2 / (2 * PRIOR_SD ** 2))
+    return max(0.0, float(minimize(loss, np.zeros(1), method="Nelder-Mead").x[0]))
+
+
+def lateral_veto(cases: dict[str, list[dict]], rows: list[dict]) -> None:
+    """Round 47: print, per condition, the steady landscapes without an alarm and the lateral log loss of the shipped
+    score, V1 (its logit + g min(h, 0), g fitted without the case) and V2 (at most 0.49 where h < 0)."""
+    sel = [r for r in rows if r["kind"] == "lateral"]
+    terms = np.asarray([_lateral_terms(r["m"]) for r in sel])
+    y = np.asarray([r["y"] for r in sel])
+    ids = np.asarray([hash(r["case"]) for r in sel])
+    g_all = fit_veto(terms[:, 0], terms[:, 1], y)
+    g_out = {c: fit_veto(terms[ids != c, 0], terms[ids != c, 1], y[ids != c]) for c in np.unique(ids)}
+    print(f"V1: g fitted on every case {g_all:.3f}; without one case "
+          f"{min(g_out.values()):.3f}-{max(g_out.values()):.3f}")
+
+    def score(m: dict, case: dict, name: str) -> float | None:
+        i, kind = m["_i"], m.get("kind") or m.get("divide_kind")
+        if i is None or kind != "lateral" or name == "shipped":
+            return i
+        t, veto = _lateral_terms(m)
+        if name == "V1":
+            t += g_out.get(hash(case["_case"]), g_all) * veto
+            return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+        return min(i, 0.49) if veto < 0 else i
+
+    print("| lateral score | " + " | ".join(f"{c}: steady landscapes without an alarm, lateral log loss"
+                                            for c in cases) + " |")
+    print("| --- " * (1 + len(cases)) + "|")
+    for name in ("shipped", "V1", "V2"):
+        cells = []
+        for cond, part in cases.items():
+            steady = [c for c in part if c["family"].startswith("steady_")]
+            ok = sum(not any(raises_alarm({**m, "instability": score(m, c, name)}) for m in c["main"] + c["others"])
+                     for c in steady)
+            lat = [(score(m, c, name), float(m["in_moving"])) for c in part for m in c.get("lateral", [])
+                   if m["_i"] is not None and (m["in_moving"] or m["in_stable"])]
+            loss = probability_scores([v for v, _ in lat], [t for _, t in lat])["log_loss"]
+            cells.append(f"{ok}/{len(steady)}, {loss:.3f}")
+        print(f"| {name} | " + " | ".join(cells) + " |")
+
+
 def reliability(p: np.ndarray, y: np.ndarray) -> list[tuple[str, int, float, float]]:
     """Ten equal bins: label, count, mean probability, share moving."""
     bins = np.minimum((p * 10).astype(int), 9)
@@ -203,6 +257,8 @@ def main() -> None:
     parser.add_argument("--rankings", nargs="*", default=[], choices=list(RANKINGS),
                         help="round 43: score these orders of the segments, each case's probability of motion (P2) "
                              "fitted without it, and stop")
+    parser.add_argument("--lateral-veto", action="store_true",
+                        help="round 47: the lateral score with hilltops that contradict its direction, and stop")
     parser.add_argument("--alarms", action="store_true",
                         help="round 44: the steady landscapes' alarms read from the score and from the probability "
                              "of motion (both kinds, each case's fitted without it), and stop")
@@ -223,6 +279,9 @@ def main() -> None:
                 cells.append(f"{sum(n.values())} ({n['top']}, {n['order']}, {n['alarm_ok']})")
                 total += sum(n.values())
             print(f"| {name} | " + " | ".join(cells) + f" | {total} |")
+        return
+    if args.lateral_veto:
+        lateral_veto(cases, rows)
         return
     if args.alarms:
         attach_loco(cases, rows, CANDIDATES["P2"], KINDS)
