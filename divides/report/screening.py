@@ -116,9 +116,10 @@ def segment_rows(result: Screening) -> list[dict]:
         rows.append({
             "rank": s["rank"], "confidence": s["confidence"],
             "instability": None if s["instability"] is None else round(float(s["instability"]), 4),
-            # two decimals: its calibration error on held-out model landscapes is 0.02-0.08
+            # two decimals, as its calibration error on held-out model landscapes (0.02-0.08) supports, and never 0
+            # or 1: a model's probability is not a certainty
             "motion_probability": None if s.get("motion_probability") is None
-            else round(float(s["motion_probability"]), 2),
+            else round(min(max(float(s["motion_probability"]), 0.01), 0.99), 2),
             "length_m": round(float(s["length_m"]), 1), "basin_1": s["basins"][0], "basin_2": s["basins"][1],
             "moves_toward_basin": s["moves_toward_basin"],
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
@@ -385,8 +386,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "whether the first does and the second does not move it as far the other way: the second takes a "
            "fall of base level for steady uplift), and, on main "
            "divides, whether the hilltops agree; on lateral divides, hilltops against the direction keep the "
-           "score below 0.5 (Gilbert 1877; Royden &amp; Perron 2013; Whipple &amp; Tucker 1999). With this evidence the instability is a score that ranks the segments, not a "
-           "calibrated probability: a segment the runs do not move gets little even when it moves (its "
+           "score below 0.5 (Gilbert 1877; Royden &amp; Perron 2013; Whipple &amp; Tucker 1999). With this "
+           "evidence the instability is a score that ranks the segments, not a calibrated probability: a segment the runs do not move gets little even when it moves (its "
            "reliability on held-out model landscapes is in docs/validation.md). <b>P(moving)</b>, beside it, "
            "is the calibrated probability that the segment moves: a logistic model of the same evidence, the "
            "size of the runs' shift, whether a strongly scored main segment lies next to it and the DEM error "
