@@ -95,8 +95,8 @@ def coarse_runs_note(parameters: dict) -> str | None:
              "--min-basin-area" if block > 1 else "raise --min-basin-area")
     return (f"The landscape runs are coarse for the smallest basins: the smallest basin screened spans "
             f"{grid['smallest_basin_model_cells']:.0f} model cells of {block} × {block} DEM cells, and on model "
-            f"landscapes moving divides were missed more often below {RUN_BASIN_CELLS:g}. Low instabilities here "
-            f"are weak evidence that a divide is still; {finer}.")
+            f"landscapes moving divides were missed more often below {RUN_BASIN_CELLS:g}. Low instabilities and "
+            f"probabilities of motion here are weak evidence that a divide is still; {finer}.")
 
 
 #: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
