@@ -47,7 +47,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motio
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
            "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores",
-           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block"]
+           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block", "PROMOTE_TOLD_ERROR_M"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -74,6 +74,15 @@ MIN_JUDGED_CELLS = 60
 #: against 203, 198 and 184 under 0, 1 and 5 m of DEM error). Rules written beforehand (docs/validation.md,
 #: *Regional screening*).
 RUN_ORDER_BELOW = 0.01
+
+#: Where the screening is told a DEM error of at least this many metres, segments whose probability of motion
+#: (:func:`divides.assess.segment_motion.motion_probability`) is 0.5 or more join the first tier of :func:`rank_key`
+#: whatever their score: under noise the score's gate (both runs agreeing) misses more moving segments, and the
+#: probability weighs the same evidence smoothly. Round 48 (366 training cases, rule written beforehand after round
+#: 45's figures, disclosed): under 5 m of DEM error 431 targets against 421 (top 167 against 156, order 79 against 80);
+#: without error and with 1 m the promotion lost order targets (86 and 80 against 92 and 88), so it waits for a told
+#: error midway between the training cases' 1 and 5 m.
+PROMOTE_TOLD_ERROR_M = 3.0
 
 #: In the tier below :data:`RUN_ORDER_BELOW`, a main segment whose line comes within this many cells of another main
 #: segment's scored at least :data:`NEIGHBOUR_SCORE` ranks first (:func:`rank_key`): a divide moves along a stretch
@@ -371,14 +380,16 @@ def _empty(seg: DivideSegment, why: str) -> dict:
     return {"seg": seg, "gap": why}
 
 
-def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
+def rank_key(instability: float | None, evidence: dict | None = None, *, promote: bool = False) -> tuple:
     """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
 
     Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
     (None: the decision abstained) last. With it (the segment's row, its ``verdict`` included), in three tiers:
 
-    1. instability at least :data:`RUN_ORDER_BELOW`: first the segments the decision gives a direction (``verdict``
-       "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39);
+    1. instability at least :data:`RUN_ORDER_BELOW` (with ``promote``, as where the screening is told a DEM error of
+       :data:`PROMOTE_TOLD_ERROR_M` or more, also a ``motion_probability`` of 0.5 or more; round 48): first the
+       segments the decision gives a direction (``verdict`` "a" or "b", hence a motion azimuth), then those without
+       one, each by instability (round 39);
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
@@ -405,8 +416,14 @@ def rank_key(instability: float | None, evidence: dict | None = None) -> tuple:
     >>> points = {**still, "verdict": "b"}
     >>> rank_key(0.1, points) < rank_key(0.4, {**still, "verdict": "undetermined"}) < rank_key(1e-3, pulled)
     True
+    >>> likely = {**points, "motion_probability": 0.7}  # scored 1e-6, but probably moving
+    >>> rank_key(1e-6, likely, promote=True) < rank_key(0.4, {**still, "verdict": "undetermined"})
+    True
+    >>> rank_key(1e-6, likely) > rank_key(0.4, {**still, "verdict": "undetermined"})  # told under 3 m
+    True
     """
-    if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW):
+    likely = promote and evidence is not None and (finite_or_none(evidence.get("motion_probability")) or 0.0) >= 0.5
+    if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW or likely):
         # a top-tier segment without a direction has no motion azimuth to act on (round 39)
         aimless = evidence is not None and evidence.get("verdict") not in ("a", "b")
         return (0, float(aimless), -instability, 0.0)
@@ -752,7 +769,8 @@ def screen(
                                                      r if config.forward_run else None, beside=beside,
                                                      dem_error_m=config.dem_error_m)
     # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
-    rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None),
+    promote = config.dem_error_m >= PROMOTE_TOLD_ERROR_M
+    rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None, promote=promote),
                              -r["seg"].line.length_m))
     out = []
     for rank, r in enumerate(rows, start=1):

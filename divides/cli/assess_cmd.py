@@ -64,7 +64,8 @@ DemErrorOption = Annotated[
     str | None,
     typer.Option("--dem-error", metavar="M", show_default=False,
                  help="Vertical standard error of the DEM (m, default 1): noise of the robustness re-runs and of "
-                 "the rate's interval, and the smallest knickpoint step."),
+                 "the rate's interval, and the smallest knickpoint step; in a screening also read by the "
+                 "probability of motion and, from 3 m, by the ranking."),
 ]
 DemErrorLengthOption = Annotated[
     str | None,

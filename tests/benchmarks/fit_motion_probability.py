@@ -257,6 +257,8 @@ def main() -> None:
     parser.add_argument("--rankings", nargs="*", default=[], choices=list(RANKINGS),
                         help="round 43: score these orders of the segments, each case's probability of motion (P2) "
                              "fitted without it, and stop")
+    parser.add_argument("--probability", default="P2", choices=list(CANDIDATES),
+                        help="the probability of motion --rankings reads (rounds 43 and 45: P2; round 48: P2e)")
     parser.add_argument("--lateral-veto", action="store_true",
                         help="round 47: the lateral score with hilltops that contradict its direction, and stop")
     parser.add_argument("--alarms", action="store_true",
@@ -268,7 +270,7 @@ def main() -> None:
     cases = prepared(groups, told)
     rows = segments(cases)
     if args.rankings:
-        attach_loco(cases, rows, CANDIDATES["P2"])
+        attach_loco(cases, rows, CANDIDATES[args.probability])
         print("| ranking | " + " | ".join(f"{c} targets (top, order, no alarm)" for c in groups) + " | sum |")
         print("| --- " * (2 + len(groups)) + "|")
         for name in args.rankings:

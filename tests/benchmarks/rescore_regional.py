@@ -675,6 +675,8 @@ RANKINGS["Q1: the probability of motion in place of the score (round 43)"] = _q1
 RANKINGS["Q2: the shipped tiers ordered by the probability of motion (round 43)"] = _q2
 RANKINGS["Q3: by the probability of motion alone (round 43)"] = _q3
 RANKINGS["Q1a: round 43's first tier, its promotion alone (round 45)"] = _q1a
+RANKINGS["E3: Q1a where the told DEM error is 3 m or more (round 48)"] = \
+    lambda m: _q1a(m) if m.get("_told_m", 1.0) >= 3.0 else rank_key(m["_i"], m)
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
