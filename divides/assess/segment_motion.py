@@ -104,8 +104,9 @@ LATERAL_HILLS_AGAINST_MAX = 0.49
 #: alone and that logit with s, u and n; round 46 added e, since one fit read low under 5 m of error. Each case
 #: scored by coefficients fitted without it: main log loss 0.095, 0.092 and 0.146 and calibration error 0.004, 0.005
 #: and 0.009 under 0, 1 and 5 m (0.096, 0.093, 0.151 and 0.010, 0.009, 0.018 without e; the instability's 0.510,
-#: 0.544, 1.060 and 0.071, 0.075, 0.133); lateral log loss 0.110, 0.117 and 0.136. c4 < 0: at a given p, h and r a
-#: larger shift more often comes from a steady contrast that the per-basin run misreads (round 37). c7 > 0: noisier
+#: 0.544, 1.060 and 0.071, 0.075, 0.133); lateral log loss 0.110, 0.117 and 0.136. On main divides c4 < 0: at a
+#: given p, h and r a larger shift more often comes from a steady contrast that the per-basin run misreads (round
+#: 37). c7 > 0: noisier
 #: evidence of the same size has more motion behind it. Calibrated to the benchmark's mix of landscapes (37 % of main
 #: segments moving): where moving divides are rarer, it reads high.
 MOTION_PROBABILITY: dict[str, tuple[float, ...]] = {
