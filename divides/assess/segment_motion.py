@@ -266,7 +266,9 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     """The probability that a divide segment moves, calibrated on the regional benchmark's training cases.
 
     With the landscape ``evidence`` (as for :func:`instability_of`) the model of :data:`MOTION_PROBABILITY` for the
-    segment's ``kind`` (``beside`` and ``dem_error_m`` as for :func:`motion_features`); without it the instability
+    segment's ``kind`` (``beside`` and ``dem_error_m`` as for :func:`motion_features`), on a lateral divide whose
+    hilltops contradict the direction at most :data:`LATERAL_HILLS_AGAINST_MAX` (round 49: on the training cases
+    its lateral log loss and calibration error fell slightly under every DEM error); without it the instability
     itself, which is then the decision's P(a) + P(b) calibrated by :data:`INSTABILITY_SCALING`. None (unknown) when
     the decision abstained for insufficient data.
 
@@ -277,6 +279,11 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     0.014
     >>> motion_probability(p, "main") == instability_of(p, "main")
     True
+    >>> runs = {"forward_shift_cells": 3.0, "forward_shift_basin_cells": 3.0}  # both runs 3 cells toward b
+    >>> round(motion_probability({"a": 0.01, "b": 0.98, "stable": 0.01}, "lateral", runs), 3)
+    0.996
+    >>> motion_probability({"a": 0.01, "b": 0.98, "stable": 0.01}, "lateral", {**runs, "hilltop_contrast": -0.05})
+    0.49
     >>> motion_probability(None) is None
     True
     """
@@ -287,4 +294,7 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     c = MOTION_PROBABILITY[kind]
     features = motion_features(kind, probabilities, evidence, beside=beside, dem_error_m=dem_error_m)
     t = c[0] + sum(w * x for w, x in zip(c[1:], features))
-    return float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+    probability = float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
+    if kind == "lateral" and features[1] < 0.0:  # the hilltops contradict the direction (rounds 47 and 49)
+        return min(probability, LATERAL_HILLS_AGAINST_MAX)
+    return probability
