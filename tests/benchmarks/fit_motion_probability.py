@@ -1,8 +1,9 @@
-"""Rounds 42-46: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
+"""Rounds 42-49: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
 leaving one case out (run by hand, not a test).
 
     python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
-        [--candidates P2 P2e] [--told-error E0=1 E1=1 E5=5] [--fit-all | --rankings NAME ... | --alarms]
+        [--candidates P2 P2e] [--told-error E0=1 E1=1 E5=5] [--probability P2e]
+        [--fit-all | --rankings NAME ... | --alarms | --lateral-veto | --lateral-cap]
 
 Reads the per-case JSON lines of ``bench_regional.py --json`` (training cases only), one group of files per
 condition of DEM error, and for each kind of divide (main, lateral) and each candidate of docs/validation.md
@@ -12,10 +13,11 @@ coefficients fitted without it (its conditions left out together), beside those 
 default gives; then, by round 42's rule, the candidate that ships and its reliability. ``--told-error`` gives the
 DEM error each condition's screenings were told (round 46's P2e reads it; 1 m, the screening's default, when not
 given). ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship). ``--rankings``
-(rounds 43 and 45) instead scores orders of the segments of ``rescore_regional.RANKINGS``, and ``--alarms`` (round
-44) the steady landscapes' alarms read from the probability, each case's probability (P2) fitted without it. The
-instability and the neighbours' scores are recomputed with the shipped model (``rescore_regional.py``), and the
-script checks that the package computes the shipped candidate's features as it does.
+(rounds 43, 45 and 48) instead scores orders of the segments of ``rescore_regional.RANKINGS``, ``--alarms`` (round
+44) the steady landscapes' alarms read from the probability, each case's probability fitted without it;
+``--lateral-veto`` scores round 47's candidates and ``--lateral-cap`` round 49's. The instability and the
+neighbours' scores are recomputed with the shipped model (``rescore_regional.py``), and the script checks that the
+package computes the shipped candidate's features as it does.
 """
 
 from __future__ import annotations
@@ -33,7 +35,7 @@ from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import INSTABILITY_EVIDENCE, NEIGHBOUR_SCORE, evidence_features
-from divides.assess.segment_motion import motion_features
+from divides.assess.segment_motion import LATERAL_HILLS_AGAINST_MAX, motion_features
 from divides.model.regional_benchmark import raises_alarm
 
 KINDS = ("main", "lateral")
@@ -238,6 +240,25 @@ def lateral_veto(cases: dict[str, list[dict]], rows: list[dict]) -> None:
         print(f"| {name} | " + " | ".join(cells) + " |")
 
 
+def lateral_cap(rows: list[dict], groups: dict[str, list[str]]) -> None:
+    """Round 49: print, per condition, the lateral log loss and calibration error of P2e (each case's fitted without
+    it) and of the same capped at LATERAL_HILLS_AGAINST_MAX where the hilltops contradict the direction (h < 0)."""
+    sel = [r for r in rows if r["kind"] == "lateral"]
+    p = loco(rows, CANDIDATES["P2e"], "lateral")
+    y = np.asarray([r["y"] for r in sel])
+    cond = np.asarray([r["cond"] for r in sel])
+    against = np.asarray([evidence_features(r["m"]["probabilities"], r["m"], "lateral")[1] < 0.0 for r in sel])
+    capped = np.where(against, np.minimum(p, LATERAL_HILLS_AGAINST_MAX), p)
+    print("| lateral probability | " + " | ".join(f"{c} log loss, ECE" for c in groups) + " |")
+    print("| --- " * (1 + len(groups)) + "|")
+    for name, q in (("P2e", p), ("C1", capped)):
+        cells = [probability_scores(q[cond == c], y[cond == c]) for c in groups]
+        print(f"| {name} | " + " | ".join(f"{sc['log_loss']:.4f}, {sc['ece']:.4f}" for sc in cells) + " |")
+    changed = against & (p > LATERAL_HILLS_AGAINST_MAX)
+    print("lowered:", {c: int(np.sum(changed & (cond == c))) for c in groups},
+          "of which moving:", {c: int(np.sum(changed & (cond == c) & (y == 1))) for c in groups})
+
+
 def reliability(p: np.ndarray, y: np.ndarray) -> list[tuple[str, int, float, float]]:
     """Ten equal bins: label, count, mean probability, share moving."""
     bins = np.minimum((p * 10).astype(int), 9)
@@ -261,6 +282,8 @@ def main() -> None:
                         help="the probability of motion --rankings reads (rounds 43 and 45: P2; round 48: P2e)")
     parser.add_argument("--lateral-veto", action="store_true",
                         help="round 47: the lateral score with hilltops that contradict its direction, and stop")
+    parser.add_argument("--lateral-cap", action="store_true",
+                        help="round 49: the lateral probability of motion with and without round 47's cap, and stop")
     parser.add_argument("--alarms", action="store_true",
                         help="round 44: the steady landscapes' alarms read from the score and from the probability "
                              "of motion (both kinds, each case's fitted without it), and stop")
@@ -284,6 +307,9 @@ def main() -> None:
         return
     if args.lateral_veto:
         lateral_veto(cases, rows)
+        return
+    if args.lateral_cap:
+        lateral_cap(rows, groups)
         return
     if args.alarms:
         attach_loco(cases, rows, CANDIDATES["P2"], KINDS)
