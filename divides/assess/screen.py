@@ -47,7 +47,8 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motio
            "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
            "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
            "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores",
-           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block", "PROMOTE_TOLD_ERROR_M"]
+           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block", "PROMOTE_TOLD_ERROR_M",
+           "beside_scored"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -431,9 +432,15 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
         return (2, 0.0, 0.0, 0.0)
     size = run_size(evidence)
     size = math.inf if size is None else size
+    return (1, -float(beside_scored(evidence)), -size, 0.0 if instability is None else -instability)
+
+
+def beside_scored(evidence: dict) -> bool:
+    """Whether a main segment scored at least :data:`NEIGHBOUR_SCORE` lies beside this one or reaches it through a
+    chain (its ``neighbour_instability``, :func:`neighbour_scores`); what :func:`rank_key`'s second tier and the
+    probability of motion (:func:`divides.assess.segment_motion.motion_features`) read."""
     beside = finite_or_none(evidence.get("neighbour_instability"))
-    return (1, -float(beside is not None and beside >= NEIGHBOUR_SCORE), -size,
-            0.0 if instability is None else -instability)
+    return beside is not None and beside >= NEIGHBOUR_SCORE
 
 
 def _neighbour_instability(rows: list[dict]) -> None:
@@ -764,9 +771,8 @@ def screen(
     if config.forward_run:
         _neighbour_instability(rows)
     for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
-        beside = (r.get("neighbour_instability") or 0.0) >= NEIGHBOUR_SCORE
         r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"],
-                                                     r if config.forward_run else None, beside=beside,
+                                                     r if config.forward_run else None, beside=beside_scored(r),
                                                      dem_error_m=config.dem_error_m)
     # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
     promote = config.dem_error_m >= PROMOTE_TOLD_ERROR_M

@@ -34,7 +34,7 @@ from bench_regional import probability_scores  # this folder (scripts run from h
 from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
-from divides.assess.screen import INSTABILITY_EVIDENCE, NEIGHBOUR_SCORE, evidence_features
+from divides.assess.screen import INSTABILITY_EVIDENCE, beside_scored, evidence_features
 from divides.assess.segment_motion import LATERAL_HILLS_AGAINST_MAX, motion_features
 from divides.model.regional_benchmark import raises_alarm
 
@@ -56,8 +56,7 @@ def _runs(m: dict) -> list[float]:
 
 
 def _beside(m: dict, kind: str) -> list[float]:
-    nb = m.get("neighbour_instability")
-    return [float(nb is not None and nb >= NEIGHBOUR_SCORE)] if kind == "main" else []
+    return [float(beside_scored(m))] if kind == "main" else []
 
 
 def _p2(m: dict, kind: str) -> list[float]:

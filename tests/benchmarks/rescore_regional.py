@@ -45,6 +45,7 @@ from divides.assess.screen import (
     CHAIN_CELLS,
     INSTABILITY_SCALING,
     NEIGHBOUR_CELLS,
+    PROMOTE_TOLD_ERROR_M,
     RUN_ORDER_BELOW,
     TRANSIENT_BASIN,
     evidence_features,
@@ -676,7 +677,8 @@ RANKINGS["Q2: the shipped tiers ordered by the probability of motion (round 43)"
 RANKINGS["Q3: by the probability of motion alone (round 43)"] = _q3
 RANKINGS["Q1a: round 43's first tier, its promotion alone (round 45)"] = _q1a
 RANKINGS["E3: Q1a where the told DEM error is 3 m or more (round 48)"] = \
-    lambda m: _q1a(m) if m.get("_told_m", 1.0) >= 3.0 else rank_key(m["_i"], m)
+    lambda m: rank_key(m["_i"], {**m, "motion_probability": m.get("_p")},
+                       promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)  # screen.rank_key as shipped
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
