@@ -12,7 +12,8 @@ from divides.assess.points import METRICS, MIN_FACING, DividePoints
 from divides.terrain.dem_error import DemError
 
 __all__ = ["Contrast", "DivideSamples", "PRACTICAL_SHARE", "SPREAD_RATIO", "LARGE_SHARE", "MIN_SAMPLES",
-           "INSUFFICIENT", "compute_contrasts", "block_bootstrap_mean", "divide_samples", "interval_of_mean"]
+           "ROUNDING_SHARE", "INSUFFICIENT", "compute_contrasts", "block_bootstrap_mean", "divide_samples",
+           "interval_of_mean"]
 
 #: Near-divide metrics: read at the same samples, they describe the present state of the divide.
 NEAR_DIVIDE = ("channel_elevation", "hillslope_gradient", "local_relief", "hillslope_relief")
@@ -244,6 +245,13 @@ PRACTICAL_SHARE = 0.05
 #: Schwanghart 2020), while moving divides in the validation scenarios show ratios of 2-12.
 SPREAD_RATIO = 2.0
 
+#: A sample's across-divide difference at most this share of its larger value is rounding, taken as none: on a model
+#: steady state the two flanks of a divide can be equal to the last digits, and the signs of the rounding errors then
+#: made a consistency (|mean| / spread of rounding errors) and a z of their own, which changed when the same DEM was
+#: turned or mirrored (tests/assess/test_screen.py). Far above float64 rounding (about 1e-15 of a value after a few
+#: operations) and far below what any DEM resolves (float32 keeps about 1e-7 of a value).
+ROUNDING_SHARE = 1e-9
+
 #: A large difference (at least this share of the metric's size) needs only to exceed its
 #: spread once (consistency >= 1) instead of SPREAD_RATIO times: a strong asymmetry can vary
 #: along a real divide and still be evidence.
@@ -311,6 +319,7 @@ def compute_contrasts(
             samples.key_b[keep])
         a, b = va[keep], vb[keep]
         diff = a - b
+        diff[np.abs(diff) <= ROUNDING_SHARE * np.maximum(np.abs(a), np.abs(b))] = 0.0
         mean = float(diff.mean()) if n else float("nan")
         floor_sd = _floor_sd(metric, dem_error, cell_m)
         variance = float(diff.var(ddof=1)) if n > 1 else 0.0

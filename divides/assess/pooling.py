@@ -37,17 +37,36 @@ _CELLS = 1 << 22
 
 
 def label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
-    """(row, col) of the outlet every label finally drains to (index = label; NaN for 0)."""
+    """(row, col) of where every label drains to (index = label; NaN for 0).
+
+    A label that holds outlets of its own (an outlet basin; at the ``"edges"`` level a whole DEM edge's basins)
+    gets their mean, each weighted by the area draining to it; a label without one (a tributary) the outlet that
+    its cells finally drain to. One outlet per label gives that outlet either way. Read from a label's last cell
+    alone, an edge region's "outlet" was wherever the raster order ended (its south end on a north-up grid), so
+    the two flanks of a range could read as draining the same way and the screening's kind of divide changed when
+    the DEM was turned (tests/assess/test_screen.py).
+    """
     lab = labels.ravel()
-    some_cell = np.full(int(lab.max()) + 1, -1, dtype=np.int64)
+    n = int(lab.max()) + 1
+    out = np.full((n, 2), np.nan)
+    # the outlets each label holds, weighted by their drainage area
+    cells = np.asarray(flow.outlets)
+    own = lab[cells]
+    cells, own = cells[own > 0], own[own > 0]
+    weight = flow.area.ravel()[cells].astype(np.float64)
+    r, c = np.divmod(cells, flow.shape[1])
+    total = np.bincount(own, weight, n)
+    holds = total > 0
+    out[holds] = np.column_stack([np.bincount(own, weight * r, n)[holds],
+                                  np.bincount(own, weight * c, n)[holds]]) / total[holds, None]
+    some_cell = np.full(n, -1, dtype=np.int64)
     for i0 in range(0, lab.size, _CELLS):  # no index array the size of the grid
         part = lab[i0:i0 + _CELLS]
         cells = np.flatnonzero(part)
         some_cell[part[cells]] = cells + i0  # any cell of the label: all of them drain to the same outlet
-    out = np.full((some_cell.size, 2), np.nan)
-    has = some_cell >= 0
+    has = (some_cell >= 0) & ~holds
     has[0] = False
-    # down the receivers from one cell of each label to the outlet (its own receiver), all labels at once:
+    # down the receivers from one cell of each other label to the outlet (its own receiver), all labels at once:
     # no grid of basin numbers is built
     cell = some_cell[has]
     receivers = flow.receivers.ravel()

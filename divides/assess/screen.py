@@ -667,7 +667,7 @@ def screen(
     dem : Dem
     min_basin_area_m2 : float, optional
         Smallest basin whose divides are screened (default: 5 × the channel threshold).
-    level : {"tributaries", "outlets"}
+    level : {"tributaries", "outlets", "edges"}
         Which basins (see :func:`divides.terrain.basins.basin_labels`).
     max_segment_m : float, optional
         Longer divide segments are cut into pieces (default: 100 cells).
