@@ -52,6 +52,7 @@ from divides.assess.screen import (
     instability_of,
     neighbour_scores,
     rank_key,
+    run_size,
 )
 from divides.model.regional_benchmark import raises_alarm, ranking_targets
 
@@ -679,6 +680,18 @@ RANKINGS["Q1a: round 43's first tier, its promotion alone (round 45)"] = _q1a
 RANKINGS["E3: Q1a where the told DEM error is 3 m or more (round 48)"] = \
     lambda m: rank_key(m["_i"], {**m, "motion_probability": m.get("_p")},
                        promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)  # screen.rank_key as shipped
+
+
+def _u1(m: dict) -> tuple:
+    """Round 50's U1: E3 (round 48, as shipped then), and a segment neither landscape run measured joins the first
+    tier when its probability of motion is 0.5 or more, at any told error."""
+    p = m.get("_p")
+    unmeasured = run_size(m) is None
+    return rank_key(m["_i"], {**m, "motion_probability": p},
+                    promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or unmeasured)
+
+
+RANKINGS["U1: E3, and segments neither run measured promoted by the probability of motion (round 50)"] = _u1
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
