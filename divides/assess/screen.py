@@ -82,7 +82,10 @@ RUN_ORDER_BELOW = 0.01
 #: probability weighs the same evidence smoothly. Round 48 (366 training cases, rule written beforehand after round
 #: 45's figures, disclosed): under 5 m of DEM error 431 targets against 421 (top 167 against 156, order 79 against 80);
 #: without error and with 1 m the promotion lost order targets (86 and 80 against 92 and 88), so it waits for a told
-#: error midway between the training cases' 1 and 5 m.
+#: error midway between the training cases' 1 and 5 m. Segments that neither landscape run measured are promoted
+#: so at any told error (round 50): the score reads an unmeasured run as one that did not move the divide, the
+#: probability of motion has a term of its own for it (378 training cases: 1351 targets against 1350, none fewer under
+#: any condition; on a range screened by DEM edges, a directed segment at 0.999 no longer ranks below a stable one).
 PROMOTE_TOLD_ERROR_M = 3.0
 
 #: In the tier below :data:`RUN_ORDER_BELOW`, a main segment whose line comes within this many cells of another main
@@ -387,10 +390,10 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
     (None: the decision abstained) last. With it (the segment's row, its ``verdict`` included), in three tiers:
 
-    1. instability at least :data:`RUN_ORDER_BELOW` (with ``promote``, as where the screening is told a DEM error of
-       :data:`PROMOTE_TOLD_ERROR_M` or more, also a ``motion_probability`` of 0.5 or more; round 48): first the
-       segments the decision gives a direction (``verdict`` "a" or "b", hence a motion azimuth), then those without
-       one, each by instability (round 39);
+    1. instability at least :data:`RUN_ORDER_BELOW`, or a ``motion_probability`` of 0.5 or more where ``promote``
+       (as where the screening is told a DEM error of :data:`PROMOTE_TOLD_ERROR_M` or more; round 48) or where neither
+       landscape run measured the segment (round 50): first the segments the decision gives a direction (``verdict``
+       "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39);
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
@@ -422,8 +425,12 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     True
     >>> rank_key(1e-6, likely) > rank_key(0.4, {**still, "verdict": "undetermined"})  # told under 3 m
     True
+    >>> unmeasured = {"verdict": "b", "motion_probability": 0.99}  # neither run measured it
+    >>> rank_key(1e-6, unmeasured) < rank_key(0.4, {**still, "verdict": "undetermined"})  # at any told error
+    True
     """
-    likely = promote and evidence is not None and (finite_or_none(evidence.get("motion_probability")) or 0.0) >= 0.5
+    likely = (evidence is not None and (promote or run_size(evidence) is None)
+              and (finite_or_none(evidence.get("motion_probability")) or 0.0) >= 0.5)
     if instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW or likely):
         # a top-tier segment without a direction has no motion azimuth to act on (round 39)
         aimless = evidence is not None and evidence.get("verdict") not in ("a", "b")

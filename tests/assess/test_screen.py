@@ -51,15 +51,13 @@ def test_truth_is_what_the_set_up_intends(landscapes):
     assert abs(np.nanmean(shift[half + 20:])) < 25.0  # the rest stays within half a cell
 
 
-@pytest.mark.xfail(strict=True, reason="measured since the divide kind of an edge's region was fixed (the flanks "
-                   "drain apart: main, no longer lateral): the directed northern segment (toward the west, "
-                   "probability of motion 0.999), which neither landscape run measured, scores 0 and ranks 4th, "
-                   "below a stable southern one beside the strongly scored middle segment (docs/validation.md, "
-                   "Regional screening, frame invariance)")
 def test_perturbed_segments_rank_first_and_point_west(landscapes):
     # With the erodibility raster, χ is weighted by K^(-1/n) (generalised χ; Gelwick et al. 2024),
     # so every line of evidence may speak: all perturbed segments rank first and point west.
     _, snap, _, k = landscapes
+    # Their segments are main ones (the flanks drain apart); the directed northern ones, which neither landscape run
+    # measures at the edges level, rank first by their probability of motion (round 50; a strict xfail between the
+    # fix of the edges' divide kind and round 50: a stable southern segment ranked above them).
     # Segments of 3 km (60 cells): since issue 11 a 1.5 km segment has 13-14 divide samples but
     # about 4 independent ones for channel elevation and hillslope relief (their across-divide
     # differences are of the size of the assumed 1 m DEM error, whose correlation then binds),

@@ -487,15 +487,23 @@ def _round20(m: dict) -> tuple:
     return (1, -math.inf if shift is None or not side else -side * shift, -i)
 
 
+def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
+    """screen.rank_key of a segment as shipped before round 50, its probability of motion ``p``: without ``promote``
+    (round 48: a told error of 3 m or more) a segment neither landscape run measured was not promoted by it."""
+    seen = p if promote or run_size(m) is not None else None
+    return rank_key(m["_i"], {**m, "motion_probability": seen}, promote=promote)
+
+
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
 #: the ranking of rounds 4-13; K1-K3 round 14's candidates, U1-U3 round 18's (on K2 below 0.01), V1-V2 round
-#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key (round 36's C1 with round 39's D1
-#: since then), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and A3-0 (round 33), N2, N5,
-#: N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds 36-38) and D1-D3 (round 39;
-#: D1 shipped) are added below.
+#: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key as shipped from round 39 to 47
+#: (round 36's C1 with round 39's D1), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and
+#: A3-0 (round 33), N2, N5, N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds
+#: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48) and U1 (round 50, screen.rank_key as shipped now) are added
+#: below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
-    "shipped": lambda m: rank_key(m["_i"], m),
+    "shipped": lambda m: _before_round50(m, m.get("motion_probability")),
     "round 20 (shipped in rounds 20-32)": _round20,
     **{f"{name}, below {t:g}": _tiered(t, _run_key(pick)) for t in (0.01, 0.5)
        for name, pick in (("K1 smaller of both runs", min), ("K2 one-U run", None), ("K3 larger of both runs", max))},
@@ -678,17 +686,14 @@ RANKINGS["Q2: the shipped tiers ordered by the probability of motion (round 43)"
 RANKINGS["Q3: by the probability of motion alone (round 43)"] = _q3
 RANKINGS["Q1a: round 43's first tier, its promotion alone (round 45)"] = _q1a
 RANKINGS["E3: Q1a where the told DEM error is 3 m or more (round 48)"] = \
-    lambda m: rank_key(m["_i"], {**m, "motion_probability": m.get("_p")},
-                       promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)  # screen.rank_key as shipped
+    lambda m: _before_round50(m, m.get("_p"), m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)
 
 
 def _u1(m: dict) -> tuple:
-    """Round 50's U1: E3 (round 48, as shipped then), and a segment neither landscape run measured joins the first
-    tier when its probability of motion is 0.5 or more, at any told error."""
-    p = m.get("_p")
-    unmeasured = run_size(m) is None
-    return rank_key(m["_i"], {**m, "motion_probability": p},
-                    promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or unmeasured)
+    """Round 50's U1, shipped: E3 (round 48), and a segment neither landscape run measured joins the first tier when
+    its probability of motion is 0.5 or more, at any told error (screen.rank_key as shipped)."""
+    return rank_key(m["_i"], {**m, "motion_probability": m.get("_p")},
+                    promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)
 
 
 RANKINGS["U1: E3, and segments neither run measured promoted by the probability of motion (round 50)"] = _u1
