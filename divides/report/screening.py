@@ -394,7 +394,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "size of the runs' shift, whether a strongly scored main segment lies next to it and the DEM error "
            "the screening is told (read up to 5 m), fitted on "
            "the training cases of the regional model landscapes (Platt 1999); on held-out ones its calibration "
-           "error was 0.02–0.03 with up to 1 m of DEM error and 0.03–0.08 with 5 m. It is calibrated to their "
+           "error was 0.02–0.04 with up to 1 m of DEM error and 0.03–0.08 with 5 m. It is calibrated to their "
            "mix, "
            "in which 37 % of the segments of main divides move: where moving divides are rarer it reads high, and "
            "still divides whose evidence looks like that of moving ones can get 0.5 or more, so the ranking and "
