@@ -697,6 +697,22 @@ def _u1(m: dict) -> tuple:
 
 
 RANKINGS["U1: E3, and segments neither run measured promoted by the probability of motion (round 50)"] = _u1
+
+
+def _pointing_promoted(least: float) -> Callable[[dict], tuple]:
+    """Round 51's W5 and W9: U1, and a segment the decision gives a direction joins the first tier when its
+    probability of motion is at least ``least``, at any told error."""
+    def key(m: dict) -> tuple:
+        p = m.get("_p")
+        promote = (m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M
+                   or (_points(m) and p is not None and p >= least) or run_size(m) is None)
+        return rank_key(m["_i"], {**m, "motion_probability": p}, promote=promote)
+    return key
+
+
+for _least, _name in ((0.5, "W5"), (0.9, "W9")):
+    RANKINGS[f"{_name}: U1, and segments with a direction promoted at P >= {_least:g} (round 51)"] = \
+        _pointing_promoted(_least)
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
