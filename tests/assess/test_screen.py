@@ -190,6 +190,23 @@ def test_turning_or_mirroring_the_dem_turns_the_screening(landscapes, turn, leve
 
 
 
+def test_raising_the_whole_dem_changes_nothing(landscapes):
+    # Frame invariance in the vertical (common practice): erosion, χ and every near-divide measure read elevation
+    # differences from a base level found on the DEM, so adding 1500 m everywhere leaves the screening as it was.
+    _, snap, _, k = landscapes
+    options = {**OPTIONS, "level": "tributaries", "min_basin_area_m2": 2e5, "erodibility_raster": k}
+    base = screen(snap, max_segment_m=3000.0, **options)
+    raised = screen(divides.Dem.from_array(snap.elevation + 1500.0, cell_size=snap.cell_size_m), max_segment_m=3000.0,
+                    **options)
+    assert len(raised.segments) == len(base.segments) >= 4
+    for a, b in zip(base.segments, raised.segments):  # in rank order
+        assert (a["basins"], a["divide_kind"], a["verdict"]) == (b["basins"], b["divide_kind"], b["verdict"])
+        for key in ("confidence", "instability", "motion_probability", "forward_shift_cells", "hilltop_contrast"):
+            assert (a[key] is None) == (b[key] is None)
+            if a[key] is not None and np.isfinite(a[key]):
+                assert b[key] == pytest.approx(a[key], abs=1e-6)
+
+
 def _divide_row(col0: float, instability: float | None, one_u: float, per_basin: float, kind: str = "main") -> dict:
     """A screening row along row 0 of the grid, ten vertices from ``col0``, with both runs' shifts."""
     from types import SimpleNamespace
