@@ -49,27 +49,25 @@ def label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
     lab = labels.ravel()
     n = int(lab.max()) + 1
     out = np.full((n, 2), np.nan)
-    # the outlets each label holds, weighted by their drainage area
-    cells = np.asarray(flow.outlets)
-    own = lab[cells]
-    cells, own = cells[own > 0], own[own > 0]
-    weight = flow.area.ravel()[cells].astype(np.float64)
-    r, c = np.divmod(cells, flow.shape[1])
-    total = np.bincount(own, weight, n)
-    holds = total > 0
-    out[holds] = np.column_stack([np.bincount(own, weight * r, n)[holds],
-                                  np.bincount(own, weight * c, n)[holds]]) / total[holds, None]
+    receivers, area = flow.receivers.ravel(), flow.area.ravel()
     some_cell = np.full(n, -1, dtype=np.int64)
+    sums = np.zeros((3, n))  # each label's outlets: their drainage area, and its products with row and column
     for i0 in range(0, lab.size, _CELLS):  # no index array the size of the grid
         part = lab[i0:i0 + _CELLS]
         cells = np.flatnonzero(part)
-        some_cell[part[cells]] = cells + i0  # any cell of the label: all of them drain to the same outlet
+        some_cell[part[cells]] = cells + i0  # any cell of the label (what a label without outlets drains to)
+        mouths = cells[receivers[i0 + cells] == i0 + cells]  # the label's own outlets in this piece
+        weight = area[i0 + mouths].astype(np.float64)
+        r, c = np.divmod(i0 + mouths, flow.shape[1])
+        for k, w in enumerate((weight, weight * r, weight * c)):
+            sums[k] += np.bincount(part[mouths], w, n)
+    holds = sums[0] > 0
+    out[holds] = (sums[1:, holds] / sums[0, holds]).T
     has = (some_cell >= 0) & ~holds
     has[0] = False
     # down the receivers from one cell of each other label to the outlet (its own receiver), all labels at once:
     # no grid of basin numbers is built
     cell = some_cell[has]
-    receivers = flow.receivers.ravel()
     for _ in range(receivers.size):  # a path visits each cell once at most
         below = receivers[cell]
         if np.array_equal(below, cell):

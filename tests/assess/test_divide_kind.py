@@ -44,3 +44,26 @@ def test_each_label_drains_to_its_routed_outlet_read_in_pieces(monkeypatch):
         r, c = divmod(int(cell), 40)
         assert whole[labels[r, c]].tolist() == [r, c]
     assert np.isnan(whole[0]).all()
+
+
+def test_a_label_of_many_outlets_drains_to_their_area_weighted_mean(monkeypatch):
+    # A label holding several outlets (at the "edges" level, every basin draining off one edge) is read at the mean
+    # of their (row, col), each weighted by the area draining to it (definition; brute force over the routed outlets),
+    # whether read whole or a few cells at a time; a label of one basin keeps its outlet.
+    rng = np.random.default_rng(11)
+    flow = route(divides.Dem.from_array(rng.uniform(0, 10, size=(30, 40)), cell_size=10.0))
+    basins = flow.basins()
+    labels = np.where(basins > 0, 1 + (basins % 2), 0)  # odd and even basins: two labels of many outlets each
+    labels[basins == 1] = 3  # basin 1 alone
+    whole = pooling.label_outlets(flow, labels)
+    monkeypatch.setattr(pooling, "_CELLS", 97)
+    np.testing.assert_allclose(pooling.label_outlets(flow, labels), whole, rtol=0, atol=1e-9)
+    area = flow.area.ravel()
+    for label in (1, 2, 3):
+        mouths = [int(c) for c in flow.outlets if labels.ravel()[c] == label]
+        assert mouths
+        w = area[mouths]
+        rows, cols = np.divmod(np.asarray(mouths), 40)
+        expected = [np.sum(w * rows) / np.sum(w), np.sum(w * cols) / np.sum(w)]
+        np.testing.assert_allclose(whole[label], expected, rtol=0, atol=1e-9)
+    assert len([c for c in flow.outlets if labels.ravel()[c] == 3]) == 1
