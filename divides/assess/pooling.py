@@ -41,10 +41,8 @@ def label_outlets(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
 
     A label that holds outlets of its own (an outlet basin; at the ``"edges"`` level a whole DEM edge's basins)
     gets their mean, each weighted by the area draining to it; a label without one (a tributary) the outlet that
-    its cells finally drain to. One outlet per label gives that outlet either way. Read from a label's last cell
-    alone, an edge region's "outlet" was wherever the raster order ended (its south end on a north-up grid), so
-    the two flanks of a range could read as draining the same way and the screening's kind of divide changed when
-    the DEM was turned (tests/assess/test_screen.py).
+    its cells finally drain to. One outlet per label gives that outlet either way; an edge's region read at one of
+    its outlets could point anywhere along the edge (docs/validation.md, *Frame invariance*).
     """
     lab = labels.ravel()
     n = int(lab.max()) + 1
