@@ -190,6 +190,25 @@ def test_turning_or_mirroring_the_dem_turns_the_screening(landscapes, turn, leve
 
 
 
+def test_a_screening_says_when_the_runs_did_not_measure_its_main_segments(landscapes):
+    # No evidence is not evidence of stillness (the project's rule): at the edges level the landscape runs measure
+    # only the middle one of this range's five 3-km main segments (a piece spans several of their basins a side),
+    # and the screening says so; at the tributaries level they measure its main segment and it does not.
+    from divides.report.screening import unmeasured_runs_note
+
+    _, snap, _, k = landscapes
+    edges = screen(snap, max_segment_m=3000.0, erodibility_raster=k, **OPTIONS)
+    main = [s for s in edges.segments if s["divide_kind"] == "main"]
+    unmeasured = [s for s in main if s["forward_shift_cells"] is None and s["forward_shift_basin_cells"] is None]
+    assert len(main) == 5 and len(unmeasured) == 4
+    note = unmeasured_runs_note(edges.segments, edges.parameters)
+    assert note.startswith("The landscape runs did not measure 4 of the 5 main-divide")
+    basins = screen(snap, max_segment_m=3000.0, erodibility_raster=k, **{**OPTIONS, "level": "tributaries"},
+                    min_basin_area_m2=2e5)
+    assert any(s["divide_kind"] == "main" and s["forward_shift_cells"] is not None for s in basins.segments)
+    assert unmeasured_runs_note(basins.segments, basins.parameters) is None
+
+
 def test_raising_the_whole_dem_changes_nothing(landscapes):
     # Frame invariance in the vertical (common practice): erosion, χ and every near-divide measure read elevation
     # differences from a base level found on the DEM, so adding 1500 m everywhere leaves the screening as it was.
