@@ -189,7 +189,6 @@ def test_turning_or_mirroring_the_dem_turns_the_screening(landscapes, turn, leve
     assert compared >= 2
 
 
-
 def test_a_screening_says_when_the_runs_did_not_measure_its_main_segments(landscapes):
     # No evidence is not evidence of stillness (the project's rule): at the edges level the landscape runs measure
     # only the middle one of this range's five 3-km main segments (a piece spans several of their basins a side),

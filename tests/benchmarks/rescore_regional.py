@@ -704,8 +704,7 @@ def _pointing_promoted(least: float) -> Callable[[dict], tuple]:
     probability of motion is at least ``least``, at any told error."""
     def key(m: dict) -> tuple:
         p = m.get("_p")
-        promote = (m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M
-                   or (_points(m) and p is not None and p >= least) or run_size(m) is None)
+        promote = m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or (_points(m) and p is not None and p >= least)
         return rank_key(m["_i"], {**m, "motion_probability": p}, promote=promote)
     return key
 
@@ -713,6 +712,7 @@ def _pointing_promoted(least: float) -> Callable[[dict], tuple]:
 for _least, _name in ((0.5, "W5"), (0.9, "W9")):
     RANKINGS[f"{_name}: U1, and segments with a direction promoted at P >= {_least:g} (round 51)"] = \
         _pointing_promoted(_least)
+
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
