@@ -154,7 +154,8 @@ class DivideSamples:
     values : dict
         Metric -> (side a, side b) arrays, one value per sample (χ may be NaN).
     xy : ndarray, shape (n, 2)
-        Mean map position of each sample's divide points.
+        Mean position of each sample's divide points, metres east and north (``DividePoints.east_m``,
+        ``north_m``): the DEM error's correlation is read over these distances.
     key_a, key_b : ndarray of int
         Source cell of each sample on each side.
     """
@@ -227,7 +228,8 @@ def divide_samples(points: DividePoints) -> DivideSamples:
         with np.errstate(invalid="ignore"):
             values[metric] = tuple(np.array([np.nanmean(v[m]) if np.isfinite(v[m]).any() else np.nan
                                              for m in members]) for v in (va, vb))
-    xy = np.array([[points.x[m].mean(), points.y[m].mean()] for m in members]).reshape(-1, 2)
+    # in metres, not in the CRS's unit: on a geographic DEM degrees read as metres made every sample one
+    xy = np.array([[points.east_m[m].mean(), points.north_m[m].mean()] for m in members]).reshape(-1, 2)
     key_a = np.array([ka[m[0]] for m in members], dtype=np.int64)
     key_b = np.array([kb[m[0]] for m in members], dtype=np.int64)
     return DivideSamples(members, values, xy, key_a, key_b)

@@ -9,11 +9,12 @@ from scipy import ndimage
 
 from divides.assess import _assess_kernels as _k
 from divides.errors import InternalError
+from divides.io.dem import Dem
 from divides.terrain.divide_lines import Divide
 from divides.terrain.routing import FlowGraph
 
 __all__ = ["MIN_FACING", "DividePoints", "UpstreamMean", "NearDivideFields", "near_divide_fields", "sample_divide",
-           "upstream_mean", "gradient_magnitude", "local_relief", "METRICS"]
+           "upstream_mean", "gradient_magnitude", "local_relief", "local_metres", "METRICS"]
 
 #: Points whose two sides do not both drain away from the divide (cosine between the normal
 #: and the way to each side's reference channel below this) are left out of the contrasts:
@@ -207,6 +208,10 @@ class DividePoints:
     ----------
     x, y : ndarray
         Point coordinates (DEM CRS).
+    east_m, north_m : ndarray
+        The points' local positions in metres (east, and north from the grid's first row), from the DEM's cell
+        sizes: distances between points are measured in them (the DEM error's correlation), whatever the CRS's
+        unit (degrees on a geographic DEM, feet on some projected ones).
     line, distance_m : ndarray
         Divide line of each point and distance along it (m).
     elevation_m : ndarray
@@ -241,6 +246,8 @@ class DividePoints:
     ref_b: np.ndarray
     normal: np.ndarray
     facing: np.ndarray
+    east_m: np.ndarray
+    north_m: np.ndarray
     values: dict = field(default_factory=dict)
 
     @property
@@ -357,8 +364,31 @@ def sample_divide(
             cos = sign * (east * normal[:, 0] + north * normal[:, 1]) / length
         cosines.append(np.where(ok & (length > 0), cos, -1.0))
     facing = np.minimum(cosines[0], cosines[1])
+    east_m, north_m = local_metres(dem, cat["row"], cat["col"])
     return DividePoints(
         x=np.asarray(x), y=np.asarray(y), line=cat["line"], distance_m=cat["dist"], elevation_m=cat["z"],
         cell_a=cat["ca"], cell_b=cat["cb"], head_a=heads["a"], head_b=heads["b"], ref_a=refs["a"],
-        ref_b=refs["b"], normal=normal, facing=facing, values=values,
+        ref_b=refs["b"], normal=normal, facing=facing, east_m=east_m, north_m=north_m, values=values,
     )
+
+
+def local_metres(dem: Dem, row: np.ndarray, col: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Positions (grid rows and columns, fractional) as metres east and north of the first row's first cell.
+
+    East is the column times the cell width of the point's row; north sums the cell heights of the rows above
+    (centre to centre), so on a geographic DEM, whose cells narrow toward the poles, distances between nearby points
+    are those on the ground to well under 1 % over a few degrees of latitude.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from divides.io.dem import Dem
+    >>> dem = Dem.from_array(np.zeros((4, 5)), cell_size=(30.0, 20.0))
+    >>> [v.tolist() for v in local_metres(dem, np.array([0.0, 2.5]), np.array([1.0, 4.0]))]
+    [[30.0, 120.0], [-0.0, -50.0]]
+    """
+    row, col = np.asarray(row, dtype=np.float64), np.asarray(col, dtype=np.float64)
+    dy = np.asarray(dem.dy, dtype=np.float64)
+    centres = np.concatenate([[0.0], np.cumsum(0.5 * (dy[:-1] + dy[1:]))])  # row centres, m south of row 0's
+    rows_i = np.clip(np.round(row).astype(np.int64), 0, dem.shape[0] - 1)
+    return col * np.asarray(dem.dx, dtype=np.float64)[rows_i], -np.interp(row, np.arange(dy.size), centres)

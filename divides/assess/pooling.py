@@ -141,7 +141,7 @@ def _pooled_points(parts: list[DividePoints]) -> DividePoints:
     first = parts[0]
     cat = {f: np.concatenate([getattr(p, f) for p in parts])
            for f in ("x", "y", "distance_m", "elevation_m", "cell_a", "cell_b", "head_a", "head_b", "ref_a", "ref_b",
-                     "facing")}
+                     "facing", "east_m", "north_m")}
     cat["line"] = np.concatenate([np.full(p.size, k) for k, p in enumerate(parts)])
     cat["normal"] = np.concatenate([p.normal.reshape(-1, 2) for p in parts])
     values = {k: tuple(np.concatenate([p.values[k][s] for p in parts]) for s in (0, 1)) for k in first.values}

@@ -182,7 +182,8 @@ def _points(n, head_a, head_b, values, *, facing=1.0):
     ids = np.asarray(head_a), np.asarray(head_b)
     return DividePoints(x=x, y=np.zeros(n), line=np.zeros(n, int), distance_m=x, elevation_m=np.full(n, 500.0),
                         cell_a=np.arange(n), cell_b=np.arange(n), head_a=ids[0], head_b=ids[1], ref_a=ids[0],
-                        ref_b=ids[1], normal=np.tile([1.0, 0.0], (n, 1)), facing=np.full(n, facing), values=values)
+                        ref_b=ids[1], normal=np.tile([1.0, 0.0], (n, 1)), facing=np.full(n, facing), east_m=x,
+                        north_m=np.zeros(n), values=values)
 
 
 def test_samples_are_one_per_pair_of_channel_heads_for_every_metric():

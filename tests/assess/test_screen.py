@@ -208,6 +208,53 @@ def test_a_screening_says_when_the_runs_did_not_measure_its_main_segments(landsc
     assert unmeasured_runs_note(basins.segments, basins.parameters) is None
 
 
+def _geographic(dem: divides.Dem, lat: float = 45.0) -> divides.Dem:
+    """The same grid of elevations as a longitude/latitude DEM (WGS 84) whose cells are about as large, at ``lat``."""
+    from affine import Affine
+
+    dy = dem.cell_size_m[1] / 111_132.0  # metres per degree of latitude and of longitude at 45° (from memory)
+    dx = dem.cell_size_m[0] / (111_320.0 * np.cos(np.radians(lat)))
+    top = lat + 0.5 * dem.shape[0] * dy
+    return divides.Dem.from_array(dem.elevation, transform=Affine(dx, 0.0, 10.0, 0.0, -dy, top), crs=4326)
+
+
+def test_a_geographic_dem_screens_like_the_same_grid_in_metres(landscapes):
+    # The same elevations on a longitude/latitude grid whose cells are 50.0-50.1 m on the ground: distances between
+    # divide samples must be read in metres, not degrees (degrees read as metres made every sample of a divide one,
+    # and its directed segments undetermined). Cells 0.2 % larger: the results agree, not to the last digit.
+    _, snap, _, k = landscapes
+    options = {**OPTIONS, "level": "tributaries", "min_basin_area_m2": 2e5, "erodibility_raster": k}
+    base = screen(snap, max_segment_m=3000.0, **options)
+    geo = screen(_geographic(snap), max_segment_m=3000.0, **options)
+    assert geo.dem.geographic and len(geo.segments) == len(base.segments) >= 4
+    directed = 0
+    for a, b in zip(base.segments, geo.segments):  # in rank order
+        assert (a["basins"], a["divide_kind"], a["verdict"]) == (b["basins"], b["divide_kind"], b["verdict"])
+        assert b["length_m"] == pytest.approx(a["length_m"], rel=0.01)
+        if a["verdict"] in ("a", "b"):
+            directed += 1
+            assert b["confidence"] == pytest.approx(a["confidence"], abs=0.02)
+            assert abs((b["motion_azimuth_deg"] - a["motion_azimuth_deg"] + 180.0) % 360.0 - 180.0) < 1.0
+        for ca, cb in zip(a["contrasts"], b["contrasts"]):
+            assert cb["n_effective"] == pytest.approx(ca["n_effective"], rel=0.05, abs=0.1)
+    assert directed >= 2
+
+
+def test_a_geographic_dem_is_assessed_like_the_same_grid_in_metres(landscapes):
+    # As above for one divide (`assess`, the west and east regions): each contrast's independent samples are counted
+    # over metres (110 of 110 samples both ways; degrees read as metres left 36-104), and the decision agrees.
+    _, snap, _, _ = landscapes
+    options = dict(theta=0.5, closed_edges=("north", "south"), channel_area_m2=1e5, robustness=False,
+                   n_bootstrap=200, forward_run=False)
+    plain = divides.assess(snap, "east", "west", **options)
+    geo = divides.assess(_geographic(snap), "east", "west", **options)
+    assert geo.verdict.moves_toward == plain.verdict.moves_toward
+    for side in ("a", "b", "stable"):
+        assert geo.verdict.probabilities[side] == pytest.approx(plain.verdict.probabilities[side], abs=0.02)
+    for c, g in zip(plain.contrasts, geo.contrasts):
+        assert c.n_effective >= 10 and g.n_effective == pytest.approx(c.n_effective, rel=0.05)
+
+
 def test_raising_the_whole_dem_changes_nothing(landscapes):
     # Frame invariance in the vertical (common practice): erosion, χ and every near-divide measure read elevation
     # differences from a base level found on the DEM, so adding 1500 m everywhere leaves the screening as it was.
