@@ -218,15 +218,28 @@ def _geographic(dem: divides.Dem, lat: float = 45.0) -> divides.Dem:
     return divides.Dem.from_array(dem.elevation, transform=Affine(dx, 0.0, 10.0, 0.0, -dy, top), crs=4326)
 
 
-def test_a_geographic_dem_screens_like_the_same_grid_in_metres(landscapes):
-    # The same elevations on a longitude/latitude grid whose cells are 50.0-50.1 m on the ground: distances between
-    # divide samples must be read in metres, not degrees (degrees read as metres made every sample of a divide one,
-    # and its directed segments undetermined). Cells 0.2 % larger: the results agree, not to the last digit.
+def _in_feet(dem: divides.Dem) -> divides.Dem:
+    """The same grid in a projected CRS whose unit is the US survey foot (EPSG:2277; 1200 / 3937 m, from memory)."""
+    from affine import Affine
+
+    foot = 1200.0 / 3937.0
+    cell = dem.cell_size_m[0] / foot
+    return divides.Dem.from_array(dem.elevation, transform=Affine(cell, 0.0, 2e6, 0.0, -cell, 1e7), crs=2277)
+
+
+@pytest.mark.parametrize("crs", ["geographic", "feet"])
+def test_a_geographic_dem_screens_like_the_same_grid_in_metres(landscapes, crs):
+    # The same elevations on a longitude/latitude grid whose cells are 50.0-50.1 m on the ground, or in a CRS in feet:
+    # distances between divide samples must be read in metres, not the CRS's unit (degrees read as metres made every
+    # sample of a divide one, and its directed segments undetermined; feet, 3.3 times too many independent samples,
+    # and a segment scored 0.09 read 0.58). Geographic cells are 0.2 % larger: the results agree, not to the last digit.
     _, snap, _, k = landscapes
     options = {**OPTIONS, "level": "tributaries", "min_basin_area_m2": 2e5, "erodibility_raster": k}
     base = screen(snap, max_segment_m=3000.0, **options)
-    geo = screen(_geographic(snap), max_segment_m=3000.0, **options)
-    assert geo.dem.geographic and len(geo.segments) == len(base.segments) >= 4
+    other = _geographic(snap) if crs == "geographic" else _in_feet(snap)
+    assert other.geographic == (crs == "geographic") and other.cell_size_m[0] == pytest.approx(50.0, rel=0.005)
+    geo = screen(other, max_segment_m=3000.0, **options)
+    assert len(geo.segments) == len(base.segments) >= 4
     directed = 0
     for a, b in zip(base.segments, geo.segments):  # in rank order
         assert (a["basins"], a["divide_kind"], a["verdict"]) == (b["basins"], b["divide_kind"], b["verdict"])
@@ -235,6 +248,8 @@ def test_a_geographic_dem_screens_like_the_same_grid_in_metres(landscapes):
             directed += 1
             assert b["confidence"] == pytest.approx(a["confidence"], abs=0.02)
             assert abs((b["motion_azimuth_deg"] - a["motion_azimuth_deg"] + 180.0) % 360.0 - 180.0) < 1.0
+        if a["instability"] is not None:
+            assert b["instability"] == pytest.approx(a["instability"], abs=0.02)
         for ca, cb in zip(a["contrasts"], b["contrasts"]):
             assert cb["n_effective"] == pytest.approx(ca["n_effective"], rel=0.05, abs=0.1)
     assert directed >= 2
