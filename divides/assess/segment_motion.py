@@ -106,9 +106,8 @@ LATERAL_HILLS_AGAINST_MAX = 0.49
 #: and 0.009 under 0, 1 and 5 m (0.096, 0.093, 0.151 and 0.010, 0.009, 0.018 without e; the instability's 0.510,
 #: 0.544, 1.060 and 0.071, 0.075, 0.133); lateral log loss 0.110, 0.117 and 0.136. On main divides c4 < 0: at a
 #: given p, h and r a larger shift more often comes from a steady contrast that the per-basin run misreads (round
-#: 37). c7 > 0: noisier
-#: evidence of the same size has more motion behind it. Calibrated to the benchmark's mix of landscapes (37 % of main
-#: segments moving): where moving divides are rarer, it reads high.
+#: 37). c7 > 0: noisier evidence of the same size has more motion behind it. Calibrated to the benchmark's mix of
+#: landscapes (37 % of main segments moving): where moving divides are rarer, it reads high.
 MOTION_PROBABILITY: dict[str, tuple[float, ...]] = {
     "main": (-4.598, 1.469, 13.272, 3.535, -0.813, 0.129, 3.774, 0.216),
     "lateral": (-5.296, 1.111, 3.799, 2.363, 1.029, 0.343, 0.146),
@@ -174,9 +173,13 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
         alpha, beta, g_hill, g_run = INSTABILITY_EVIDENCE[kind]
         t = alpha + beta * logit + g_hill * hill + g_run * agrees
     score = float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
-    if evidence is not None and kind == "lateral" and hill < 0.0:
-        return min(score, LATERAL_HILLS_AGAINST_MAX)
-    return score
+    return score if evidence is None else _hills_against(score, kind, hill)
+
+
+def _hills_against(value: float, kind: str, hill: float) -> float:
+    """``value`` capped at :data:`LATERAL_HILLS_AGAINST_MAX` on a lateral divide whose hilltops contradict the
+    favoured side (``hill`` < 0, :func:`evidence_features`; rounds 47 and 49)."""
+    return min(value, LATERAL_HILLS_AGAINST_MAX) if kind == "lateral" and hill < 0.0 else value
 
 
 def evidence_features(probabilities: dict, evidence: dict, kind: str = "main", *,
@@ -294,7 +297,4 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     c = MOTION_PROBABILITY[kind]
     features = motion_features(kind, probabilities, evidence, beside=beside, dem_error_m=dem_error_m)
     t = c[0] + sum(w * x for w, x in zip(c[1:], features))
-    probability = float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0
-    if kind == "lateral" and features[1] < 0.0:  # the hilltops contradict the direction (rounds 47 and 49)
-        return min(probability, LATERAL_HILLS_AGAINST_MAX)
-    return probability
+    return _hills_against(float(1.0 / (1.0 + math.exp(-t))) if t > -700 else 0.0, kind, features[1])

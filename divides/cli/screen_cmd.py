@@ -202,11 +202,10 @@ def screen(
             moving = probability_text(s.get("motion_probability"))
             typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>5}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
-    from divides.report.screening import coarse_runs_note, unmeasured_runs_note
+    from divides.report.screening import runs_notes
 
-    for note in (coarse_runs_note(result.parameters), unmeasured_runs_note(result.segments, result.parameters)):
-        if note is not None:
-            typer.echo(f"Caution: {note}")
+    for note in runs_notes(result):
+        typer.echo(f"Caution: {note}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "
                "professionals decide.")
     typer.echo(f"Report:  {written / 'report.html'}")

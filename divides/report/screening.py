@@ -35,7 +35,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
-           "unmeasured_runs_note", "UNMEASURED_NOTE_SHARE"]
+           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -132,6 +132,13 @@ def unmeasured_runs_note(segments: list[dict], parameters: dict) -> str | None:
             "that spans several of the runs' basins on a side, as at --level edges, is not measured). Their "
             "instability reads no run evidence as no motion; they rank by their probability of motion when it "
             "is 0.5 or more, and a low score there is not evidence that the divide is still.")
+
+
+def runs_notes(result: Screening) -> list[str]:
+    """The cautions a screening's landscape runs call for (:func:`coarse_runs_note`, :func:`unmeasured_runs_note`),
+    as the report and the command line print them."""
+    notes = (coarse_runs_note(result.parameters), unmeasured_runs_note(result.segments, result.parameters))
+    return [n for n in notes if n is not None]
 
 
 #: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
@@ -381,9 +388,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
         "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
-    notes = [n for n in (coarse_runs_note(p), unmeasured_runs_note(result.segments, p)) if n is not None]
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
-               + "".join(f" {e(n)}" for n in notes) + "</div>")
+               + "".join(f" {e(n)}" for n in runs_notes(result)) + "</div>")
     lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
     cov = result.coverage or {}
@@ -430,8 +436,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
            "the screening is told (read up to 5 m), fitted on "
            "the training cases of the regional model landscapes (Platt 1999); on held-out ones its calibration "
            "error was 0.02–0.04 with up to 1 m of DEM error and 0.03–0.08 with 5 m. It is calibrated to their "
-           "mix, "
-           "in which 37 % of the segments of main divides move: where moving divides are rarer it reads high, and "
+           "mix, in which 37 % of the segments of main divides move: where moving divides are rarer it reads high, and "
            "still divides whose evidence looks like that of moving ones can get 0.5 or more, so the ranking and "
            "the instability, not P(moving), say where to look first. Of the segments scored 0.01 or "
            "more (and those with P(moving) of 0.5 or more that neither landscape run measured or, where the "
