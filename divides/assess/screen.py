@@ -254,6 +254,30 @@ def motion_azimuth(line: DivideLine, dem: Dem, toward: str,
     return float(math.degrees(math.atan2(sign * axis[1], -sign * axis[0])) % 360.0)
 
 
+def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> None:
+    """Raise before the long work when fewer than two basins reach ``min_area``: there is no divide to screen.
+
+    Raises
+    ------
+    ParameterError
+        With the two largest candidates' areas (edge regions, or outlet basins), so the user sees what to change.
+    """
+    found = np.unique(labels[labels > 0])
+    if found.size >= 2:
+        return
+    if level == "edges":  # the regions of every open edge, however small
+        every = basin_labels(flow, min_area_m2=np.finfo(float).tiny, level="edges").ravel()
+        sizes = np.bincount(every, weights=np.repeat(flow.dem.cell_area, flow.shape[1]), minlength=5)[1:]
+    else:
+        sizes = flow.area.ravel()[flow.outlets]
+    two = np.sort(np.concatenate([sizes, np.zeros(2)]))[::-1][:2] / 1e6
+    what = "edge regions" if level == "edges" else "outlet basins"
+    edges = ", or close fewer DEM edges" if flow.conditioned.closed_edges else ""
+    raise ParameterError(f"no divide to screen: {found.size} basin(s) drain at least the minimum basin area of "
+                         f"{min_area / 1e6:.3g} km² (the two largest {what} drain {two[0]:.3g} and {two[1]:.3g} "
+                         f"km²); give a smaller minimum basin area{edges}")
+
+
 def _outlet_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> np.ndarray:
     """The outlet basin of every label (index = label; 0 for 0).
 
@@ -725,6 +749,7 @@ def screen(
     threshold = channels.threshold.value_m2
     min_area = float(min_basin_area_m2) if min_basin_area_m2 is not None else 5.0 * threshold
     labels = basin_labels(flow, min_area_m2=min_area, level=level)
+    _check_two_basins(flow, labels, min_area, level)
     cell = float(np.max(dem.cell_size_m))
     max_len = float(max_segment_m) if max_segment_m is not None else 100.0 * cell
     if not (np.isfinite(max_len) and max_len > 4 * cell):

@@ -49,7 +49,7 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
     min_area_m2 : float
         Smallest basin kept (m²).
     level : {"tributaries", "outlets", "edges"}
-        ``"edges"``: one region per DEM edge, every cell draining off it
+        ``"edges"``: one region per open DEM edge, every cell draining off it
         (labels of :data:`EDGE_LABELS`; ``min_area_m2`` drops smaller regions).
         ``"outlets"``: one basin per outlet draining at least ``min_area_m2``.
         ``"tributaries"``: also split each basin where two branches of at
@@ -80,7 +80,10 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
     if level == "edges":
         seeds = np.zeros(n, dtype=bool)
         values = np.zeros(n, dtype=np.float32)  # labels 1-4, exact in float32
-        for edge in ("west", "south", "east", "north"):  # a corner goes to the later edge in this list
+        # a corner goes to the later edge in this list; a closed edge drains nothing, so its corners go to the
+        # open edges beside it (else a corner's few cells became a region named after an edge no water leaves by)
+        closed = flow.conditioned.closed_edges
+        for edge in (e for e in ("west", "south", "east", "north") if e not in closed):
             idx = edge_outlets(flow, edge)
             seeds[idx] = True
             values[idx] = EDGE_LABELS[edge]

@@ -14,6 +14,7 @@ import pytest
 
 import divides
 from divides.assess.screen import screen
+from divides.errors import ParameterError
 from divides.model import scenarios as S
 from divides.model.simulate import simulate
 from divides.terrain.basins import EDGE_LABELS
@@ -285,6 +286,21 @@ def test_raising_the_whole_dem_changes_nothing(landscapes):
             assert (a[key] is None) == (b[key] is None)
             if a[key] is not None and np.isfinite(a[key]):
                 assert b[key] == pytest.approx(a[key], abs=1e-6)
+
+
+@pytest.mark.parametrize("level", ["edges", "outlets"])
+def test_a_dem_with_no_divide_to_screen_is_refused_with_the_largest_basin(level):
+    # A plane falling west, north, south and east edges closed but the west: D8 drains each row straight west
+    # (diagonals are less steep; common practice): one edge region of 0.06 km² and 20 outlet basins of 3000 m². With
+    # a minimum of 10^4 m² there is nothing to screen: one clear error naming the largest candidates, not an empty
+    # screening.
+    z = np.tile(np.arange(30, dtype=float), (20, 1)) * 2.0  # rises 2 m per 10 m cell eastward
+    plane = divides.Dem.from_array(z, cell_size=10.0)
+    expected = {"edges": r"1 basin\(s\).*two largest edge regions drain 0.06 and 0 km²",
+                "outlets": r"0 basin\(s\).*two largest outlet basins drain 0.003 and 0.003 km²"}[level]
+    with pytest.raises(ParameterError, match="no divide to screen: " + expected):
+        screen(plane, theta=0.5, closed_edges=("north", "south", "east"), level=level, min_basin_area_m2=1e4,
+               channel_area_m2=500.0)
 
 
 def _divide_row(col0: float, instability: float | None, one_u: float, per_basin: float, kind: str = "main") -> dict:

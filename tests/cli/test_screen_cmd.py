@@ -55,6 +55,7 @@ def test_screen_json_is_strict(tmp_path, capsys):
         (["--max-segment", "-5"], "--max-segment"),
         (["--min-basin-area", "abc"], "--min-basin-area"),
         (["--runoff", "missing.tif"], "--runoff"),
+        (["--min-basin-area", "1e12"], "minimum basin area"),  # no basin that large: nothing to screen
     ],
 )
 def test_bad_options_exit_2_with_one_line_and_nothing_written(tmp_path, capsys, extra, needle):

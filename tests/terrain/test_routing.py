@@ -16,6 +16,7 @@ from scipy import ndimage
 
 from divides import Dem, route
 from divides.errors import GridError
+from divides.terrain.basins import EDGE_LABELS, basin_labels
 from divides.terrain.routing import DIRECTION_INVALID, DIRECTION_OUTLET
 
 NEIGHBOURS = [(0, 1), (1, 1), (1, 0), (1, -1), (0, -1), (-1, -1), (-1, 0), (-1, 1)]
@@ -287,6 +288,33 @@ def test_closed_edges_drain_inward(dem, closed):
     assert nx.is_directed_acyclic_graph(g)
     assert {v for v in g.nodes if g.out_degree(v) == 0} == set(flow.outlets.tolist())
     assert flow.area.ravel()[flow.outlets].sum() == pytest.approx(dem.cell_area_grid().sum(), rel=1e-12)
+
+
+@settings(max_examples=40, deadline=None)
+@given(dem=dems, closed=st.sets(st.sampled_from(["north", "south", "east", "west"]), max_size=3))
+def test_edge_regions_are_named_after_the_open_edge_their_water_leaves_by(dem, closed):
+    # At the edges level each cell is labelled with the edge its water leaves by, read from its outlet by networkx;
+    # a closed edge is a wall (common practice), so no region is named after it: before the fix, a corner outlet of
+    # an open edge went to a closed north or south edge, and its few cells became a region named after a wall.
+    flow = route(dem, closed_edges=closed)
+    labels = basin_labels(flow, min_area_m2=1e-6, level="edges").ravel()
+    rows, cols = dem.shape
+    valid_rows, valid_cols = np.nonzero(dem.valid)
+    outermost = {"north": lambda r, c: r == valid_rows[valid_cols == c].min(),
+                 "south": lambda r, c: r == valid_rows[valid_cols == c].max(),
+                 "west": lambda r, c: c == valid_cols[valid_rows == r].min(),
+                 "east": lambda r, c: c == valid_cols[valid_rows == r].max()}
+    g = _graph(flow)
+    outlets = set(flow.outlets.tolist())
+    for v in g.nodes:
+        o = v if v in outlets else next(iter(nx.descendants(g, v) & outlets))
+        r, c = divmod(o, cols)
+        label = int(labels[v])
+        if label:
+            edge = next(e for e, k in EDGE_LABELS.items() if k == label)
+            assert edge not in closed and outermost[edge](r, c)
+        else:  # unlabelled: its water leaves through nodata or below sea level, not by an open edge
+            assert not any(outermost[e](r, c) for e in set(EDGE_LABELS) - closed)
 
 
 def _reference_flat_codes(z: np.ndarray, code: np.ndarray, rows: int, cols: int, dist: np.ndarray) -> np.ndarray:
