@@ -713,6 +713,23 @@ for _least, _name in ((0.5, "W5"), (0.9, "W9")):
     RANKINGS[f"{_name}: U1, and segments with a direction promoted at P >= {_least:g} (round 51)"] = \
         _pointing_promoted(_least)
 
+def _second_tier_by_p(beside_first: bool) -> Callable[[dict], tuple]:
+    """Round 52's Z1 (``beside_first``) and Z2: U1, and where the screening is told PROMOTE_TOLD_ERROR_M or more, the
+    second tier ordered by P (Z1: the segments beside a strongly scored one still first) in place of the runs' shift;
+    its segments without a P after those with one, by the runs' shift."""
+    def key(m: dict) -> tuple:
+        k, p = _u1(m), m.get("_p")
+        if k[0] != 1 or m.get("_told_m", 1.0) < PROMOTE_TOLD_ERROR_M:
+            return k
+        beside = k[1] if beside_first else 0.0
+        return (1, beside, 0.0, -p) if p is not None else (1, beside, 1.0, k[2])
+    return key
+
+
+RANKINGS["Z1: U1, and told 3 m or more, the second tier by P after the beside-scored (round 52)"] = \
+    _second_tier_by_p(True)
+RANKINGS["Z2: U1, and told 3 m or more, the second tier by P alone (round 52)"] = _second_tier_by_p(False)
+
 RANKINGS["Q1b: round 43's first tier, its demotion alone (round 45)"] = _q1b
 RANKINGS["Q1c: round 43's first tier, its order alone (round 45)"] = _q1c
 
