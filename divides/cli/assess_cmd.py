@@ -357,36 +357,6 @@ def _read_raster_on_grid(option: str, path: str, dem: Dem, read: opt.DemOptions)
     return values
 
 
-def _check_against_dem(request: AssessRequest, dem: Dem) -> None:
-    """Checks that need the DEM: relief, sea level, channel and reference areas against its size."""
-    import numpy as np
-
-    z = dem.elevation[dem.valid]
-    low, high = float(np.min(z)), float(np.max(z))
-    if high - low <= 0:
-        raise ParameterError(f"DEM '{dem.path}' is flat (every valid cell at {low:g} m): with no relief there are no "
-                             "channels and no divide; check the file, its nodata value and --vertical-unit")
-    sea = request.options.get("sea_level_m")
-    if sea is not None and sea >= high:
-        raise ParameterError(f"--sea-level {sea:g} m is at or above the highest cell of the DEM ({high:g} m): "
-                             "everything would be sea; give a level below the land")
-    total = float(np.sum(dem.cell_area_grid()))
-    cell = float(np.median(dem.cell_area))
-    for option, key in (("--channel-area", "channel_area_m2"), ("--reference-area", "reference_area_m2")):
-        value = request.options.get(key)
-        if value is None:
-            continue
-        if value >= total:
-            raise ParameterError(f"{option} {value:g} m² is not smaller than the whole DEM ({total:.4g} m²); "
-                                 "give a drainage area well inside it (often 1e4 to 1e6 m²)")
-        if key == "channel_area_m2" and value < 2 * cell:
-            raise ParameterError(f"{option} {value:g} m² is smaller than two cells ({2 * cell:.4g} m²): every cell "
-                                 "would be a channel; give at least that (often 1e4 to 1e6 m²)")
-        if key == "reference_area_m2" and value < cell:
-            raise ParameterError(f"{option} {value:g} m² is smaller than one cell ({cell:.4g} m²); give at least "
-                                 "one cell, usually the channel area")
-
-
 def run_assessment(
     read: opt.DemOptions,
     request: AssessRequest,
@@ -418,7 +388,7 @@ def run_assessment(
     """
     import divides
     from divides.assess.sides import parse_side
-    from divides.cli.dem_checks import check_enough_cells, check_side_points
+    from divides.cli.dem_checks import check_enough_cells, check_options_against_dem, check_side_points
     from divides.report.writer import STAGES, write_assessment
 
     # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
@@ -427,7 +397,9 @@ def run_assessment(
     by_tiles = by_tiles or opt.TiledOptions(conditioning=request.options.get("conditioning", "fill"))
     dem, plan = by_tiles.read(read, "assess", "assess a smaller window around the divide with --bounds")
     check_enough_cells(dem)
-    _check_against_dem(request, dem)
+    check_options_against_dem(dem, sea_level=request.options.get("sea_level_m"),
+                              channel_area=request.options.get("channel_area_m2"),
+                              reference_area=request.options.get("reference_area_m2"))
     for option, text in (("--side-a", request.side_a), ("--side-b", request.side_b)):
         spec = parse_side(text, lonlat=request.lonlat)
         check_side_points(dem, spec.points, option=option, text=text, lonlat=request.lonlat)

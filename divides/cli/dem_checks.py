@@ -10,12 +10,13 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING
 
-from divides.errors import GridError, SideError
+from divides.errors import GridError, ParameterError, SideError
 
 if TYPE_CHECKING:  # pragma: no cover - type hints only
     from divides.io.dem import Dem
 
-__all__ = ["MIN_INTERIOR_CELLS", "check_enough_cells", "check_side_points", "check_finite_points"]
+__all__ = ["MIN_INTERIOR_CELLS", "check_enough_cells", "check_options_against_dem", "check_side_points",
+           "check_finite_points"]
 
 #: Fewest valid cells with eight valid neighbours: a 5 × 5 block of data. Below it there is no room
 #: for two basins and a divide between them (cells on the edge of the data are outlets).
@@ -51,6 +52,42 @@ def check_enough_cells(dem: Dem) -> None:
             f"{used_cols} column(s), {interior} with all eight neighbours valid; at least a 5 x 5 block of data "
             "is needed: check the file, its nodata value, --band and --bounds"
         )
+
+
+def check_options_against_dem(dem: Dem, *, sea_level: float | None = None, channel_area: float | None = None,
+                              reference_area: float | None = None) -> None:
+    """Refuse a flat DEM, and options the DEM makes impossible: a sea level at or above all land, a channel or
+    reference area not smaller than the DEM or below one or two cells.
+
+    Raises
+    ------
+    ParameterError
+        The first mistake found, naming the option and what is accepted.
+    """
+    import numpy as np
+
+    z = dem.elevation[dem.valid]
+    low, high = float(np.min(z)), float(np.max(z))
+    if high - low <= 0:
+        raise ParameterError(f"DEM '{dem.path}' is flat (every valid cell at {low:g} m): with no relief there are no "
+                             "channels and no divide; check the file, its nodata value and --vertical-unit")
+    if sea_level is not None and sea_level >= high:
+        raise ParameterError(f"--sea-level {sea_level:g} m is at or above the highest cell of the DEM ({high:g} m): "
+                             "everything would be sea; give a level below the land")
+    total = float(np.sum(dem.cell_area_grid()))
+    cell = float(np.median(dem.cell_area))
+    for option, value in (("--channel-area", channel_area), ("--reference-area", reference_area)):
+        if value is None:
+            continue
+        if value >= total:
+            raise ParameterError(f"{option} {value:g} m² is not smaller than the whole DEM ({total:.4g} m²); "
+                                 "give a drainage area well inside it (often 1e4 to 1e6 m²)")
+        if option == "--channel-area" and value < 2 * cell:
+            raise ParameterError(f"{option} {value:g} m² is smaller than two cells ({2 * cell:.4g} m²): every cell "
+                                 "would be a channel; give at least that (often 1e4 to 1e6 m²)")
+        if option == "--reference-area" and value < cell:
+            raise ParameterError(f"{option} {value:g} m² is smaller than one cell ({cell:.4g} m²); give at least "
+                                 "one cell, usually the channel area")
 
 
 def check_finite_points(spec_points: tuple[tuple[float, float], ...], *, option: str, text: str) -> None:

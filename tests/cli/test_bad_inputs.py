@@ -61,6 +61,10 @@ def _assess(dem: str, *extra: str, sides: tuple[str, str] = ("west", "east")) ->
     return ["assess", dem, "--side-a", sides[0], "--side-b", sides[1], "--no-robustness", *extra]
 
 
+def _screen(dem: str, *extra: str) -> list[str]:
+    return ["screen", dem, "--theta", "0.45", "--no-forward-run", *extra]
+
+
 # Each case: (id, build(inputs) -> argv, words the one line must contain). The words come
 # from the brief's demand that the line says what is wrong (the option, file or value).
 def _truncated(i: Inputs) -> list[str]:
@@ -215,6 +219,20 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
     ("missing --side-b", lambda i: ["assess", i.ridge(), "--side-a", "west", "--out", str(i.out)], ("--side-b",)),
     ("unknown option", lambda i: _assess(i.ridge(), "--colour", "--out", str(i.out)), ("--colour",)),
     ("demo into an existing folder", _demo_existing_out, ("already exists", "--overwrite")),
+    # screen checks the DEM as assess does (before, it screened a flat DEM or a sea above the land into an empty
+    # screening, and took a channel area of one cell)
+    ("screen a flat DEM", lambda i: _screen(i.tif("flat.tif", np.full((40, 60), 250.0, np.float32)), "--out",
+                                            str(i.out)), ("flat", "no relief")),
+    ("screen with the sea above the land", lambda i: _screen(i.ridge(), "--sea-level", "1e4", "--out", str(i.out)),
+     ("--sea-level",)),
+    ("screen with a channel area under two cells", lambda i: _screen(i.ridge(), "--channel-area", "1", "--out",
+                                                                     str(i.out)), ("--channel-area", "two cells")),
+    ("screen with a channel area as large as the DEM", lambda i: _screen(i.ridge(), "--channel-area", "1e12",
+                                                                         "--out", str(i.out)),
+     ("--channel-area", "whole DEM")),
+    ("screen with no basin above the minimum area", lambda i: _screen(i.ridge(), "--min-basin-area", "1e11",
+                                                                      "--out", str(i.out)),
+     ("no divide to screen", "minimum basin area")),
 ]
 
 
