@@ -66,15 +66,15 @@ def check_options_against_dem(dem: Dem, *, sea_level: float | None = None, chann
     """
     import numpy as np
 
-    z = dem.elevation[dem.valid]
-    low, high = float(np.min(z)), float(np.max(z))
+    # reductions over the whole grid, without copying it (DEMs of 10^9 cells): elevations are NaN off the data
+    low, high = float(np.nanmin(dem.elevation)), float(np.nanmax(dem.elevation))
     if high - low <= 0:
         raise ParameterError(f"DEM '{dem.path}' is flat (every valid cell at {low:g} m): with no relief there are no "
                              "channels and no divide; check the file, its nodata value and --vertical-unit")
     if sea_level is not None and sea_level >= high:
         raise ParameterError(f"--sea-level {sea_level:g} m is at or above the highest cell of the DEM ({high:g} m): "
                              "everything would be sea; give a level below the land")
-    total = float(np.sum(dem.cell_area_grid()))
+    total = float(np.dot(dem.cell_area, np.count_nonzero(dem.valid, axis=1)))
     cell = float(np.median(dem.cell_area))
     for option, value in (("--channel-area", channel_area), ("--reference-area", reference_area)):
         if value is None:
