@@ -170,6 +170,11 @@ class Screening:
     gaps: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
 
+    @property
+    def n_basins(self) -> int:
+        """Number of basins labelled (at ``level="edges"`` the labels are those of the edges kept, not 1..n)."""
+        return int(np.count_nonzero(np.bincount(self.labels.ravel())[1:]))
+
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
         return to_jsonable({
@@ -177,7 +182,7 @@ class Screening:
             "dem": {"path": self.dem.path, "crs": None if self.dem.crs is None else self.dem.crs.to_string(),
                     "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m)},
             "parameters": self.parameters,
-            "n_basins": int(self.labels.max()),
+            "n_basins": self.n_basins,
             "coverage": self.coverage,
             "gaps": [{k: g[k] for k in ("basins", "length_m", "reason")} for g in self.gaps],
             "segments": [{k: s[k] for k in SEGMENT_PROPERTIES}

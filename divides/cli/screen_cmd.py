@@ -186,7 +186,7 @@ def screen(
     segs = result.segments
     moving = sum(s["moves_toward_basin"] is not None for s in segs)
     share = (result.coverage or {}).get("share")
-    typer.echo(f"{len(segs)} divide segments between {int(result.labels.max())} basins; "
+    typer.echo(f"{len(segs)} divide segments between {result.n_basins} basins; "
                f"{moving} show evidence of motion.")
     typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
                                f"{100 * share:.0f} % of the divides between outlet basins judged")

@@ -390,7 +390,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in runs_notes(result)) + "</div>")
-    lead = (f"{len(rows)} divide segments between {int(result.labels.max())} basins of at least "
+    lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
     cov = result.coverage or {}
     share = cov.get("share")

@@ -288,6 +288,18 @@ def test_raising_the_whole_dem_changes_nothing(landscapes):
                 assert b[key] == pytest.approx(a[key], abs=1e-6)
 
 
+@pytest.mark.parametrize("level", ["edges", "tributaries"])
+def test_the_basin_count_is_the_number_of_labelled_basins(landscapes, level):
+    # At the edges level the labels are the edges' own (east 2, west 4 here): the count of basins is how many are
+    # labelled (numpy's unique as the reference), not the largest label ("between 4 basins" before, for two).
+    _, snap, _, _ = landscapes
+    result = screen(snap, max_segment_m=3000.0, **{**OPTIONS, "level": level, "min_basin_area_m2": 2e5})
+    expected = np.unique(result.labels[result.labels > 0]).size
+    assert result.n_basins == result.to_dict()["n_basins"] == expected
+    if level == "edges":
+        assert expected == 2
+
+
 @pytest.mark.parametrize("level", ["edges", "outlets"])
 def test_a_dem_with_no_divide_to_screen_is_refused_with_the_largest_basin(level):
     # A plane falling west, north, south and east edges closed but the west: D8 drains each row straight west
