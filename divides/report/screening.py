@@ -378,8 +378,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
     header = ["rank", "instability", "P(moving)", "confidence", "length (m)", "basins", "divide",
               "moves toward basin", "bearing (°)", "basis"]
-    table = _html._table(header, [[str(r["rank"]), probability_text(r["instability"]),
-                                   probability_text(r["motion_probability"]), probability_text(r["confidence"]),
+    table = _html._table(header, [[str(r["rank"]), e(probability_text(r["instability"])),  # "<0.01" is escaped
+                                   e(probability_text(r["motion_probability"])), e(probability_text(r["confidence"])),
                                    f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",
