@@ -203,8 +203,12 @@ def screen(
             moving = probability_text(s.get("motion_probability"))
             typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>5}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
-    from divides.report.screening import runs_notes
+    from divides.report.screening import edge_of, runs_notes
 
+    if level == "edges" and segs:  # the labels are the edges' own
+        named = sorted({b for s in segs for b in s["basins"]})
+        typer.echo("Basins are the land draining off each edge: " + ", ".join(f"{b} {edge_of(b)}" for b in named)
+                   + ".")
     for note in runs_notes(result):
         typer.echo(f"Caution: {note}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "

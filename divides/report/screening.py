@@ -20,6 +20,7 @@ from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, N
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
+from divides.terrain.basins import EDGE_LABELS
 from divides.report import html as _html
 
 from divides.report import figures as _figures
@@ -35,7 +36,8 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
-           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE"]
+           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text",
+           "edge_of"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -203,6 +205,26 @@ def _iter_gap_features(result: Screening):
                        {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"], "reason": g["reason"]})
 
 
+def edge_of(label: int) -> str | None:
+    """The DEM edge a label names at ``level="edges"`` (:data:`~divides.terrain.basins.EDGE_LABELS`), else None."""
+    return next((edge for edge, k in EDGE_LABELS.items() if k == int(label)), None)
+
+
+def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
+    """A basin's label as the report shows it: "B7"; at ``level="edges"``, where the labels are the edges'
+    (:data:`~divides.terrain.basins.EDGE_LABELS`), with the edge's name ("B4 west", or "B4 (west edge)" when ``long``).
+
+    Examples
+    --------
+    >>> basin_text(7, "tributaries"), basin_text(4, "edges"), basin_text(2, "edges", long=True)
+    ('B7', 'B4 west', 'B2 (east edge)')
+    """
+    edge = edge_of(label) if level == "edges" else None
+    if edge is None:
+        return f"B{label}"
+    return f"B{label} ({edge} edge)" if long else f"B{label} {edge}"
+
+
 def regional_map(result: Screening):
     """Hillshade with every segment coloured by instability and arrows toward the victim basin."""
     dem = result.dem
@@ -267,9 +289,11 @@ def regional_map(result: Screening):
             if leader is not None:  # the whole basin is under the furniture: label beside it, a line to it
                 ax.plot([x, leader[0]], [y, leader[1]], color="#0072B2", lw=0.6, zorder=5)
                 leaders = True
-        ax.text(x, y, f"B{lab}", fontsize=7, color="#0072B2",
+        ax.text(x, y, basin_text(lab, result.parameters.get("level")), fontsize=7, color="#0072B2",
                 fontweight="bold", ha="center", va="center", zorder=5, path_effects=_HALO)
-    handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8, label="basin label (B + number)"))
+    edges = " and the edge it drains off" if result.parameters.get("level") == "edges" else ""
+    handles.append(Line2D([], [], ls="none", marker="$B$", color="#0072B2", ms=8,
+                          label=f"basin label (B + number{edges})"))
     if leaders:  # a mark on the map has its line in the legend
         handles.append(Line2D([], [], color="#0072B2", lw=0.6, label="leader from a basin label to its basin"))
     # below the map, so no mark is hidden under it
@@ -376,13 +400,17 @@ def _parameter_table(params: dict) -> str:
 def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = MAP_RANKS) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
+
+    def name(label: int) -> str:
+        return basin_text(label, result.parameters.get("level"))
+
     header = ["rank", "instability", "P(moving)", "confidence", "length (m)", "basins", "divide",
               "moves toward basin", "bearing (°)", "basis"]
     table = _html._table(header, [[str(r["rank"]), e(probability_text(r["instability"])),  # "<0.01" is escaped
                                    e(probability_text(r["motion_probability"])), e(probability_text(r["confidence"])),
-                                   f"{r['length_m']:,.0f}", f"B{r['basin_1']} | B{r['basin_2']}",
+                                   f"{r['length_m']:,.0f}", f"{name(r['basin_1'])} | {name(r['basin_2'])}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
-                                   "—" if r["moves_toward_basin"] is None else f"B{r['moves_toward_basin']}",
+                                   "—" if r["moves_toward_basin"] is None else name(r["moves_toward_basin"]),
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 4, 8})
     p = result.parameters

@@ -112,3 +112,13 @@ def test_screen_says_when_its_runs_are_coarse_for_the_smallest_basins(tmp_path, 
     grid = json.loads((out / "screening.json").read_text())["parameters"]["forward_run_grid"]
     assert grid["coarse_for_basins"] is True and grid["smallest_basin_model_cells"] == pytest.approx(40.0)
     assert "The landscape runs are coarse" in (out / "report.html").read_text()
+
+
+def test_screen_names_the_edges_at_the_edges_level(tmp_path, capsys):
+    # At --level edges the numbers in the table are the edges' labels; a line says which edge each is (the naming
+    # itself is checked against the flow in tests/report/test_screening.py).
+    code = run(["screen", UPLANDS, "--out", str(tmp_path / "e"), "--quiet", "--level", "edges", "--closed-edges",
+                "north,south"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert "Basins are the land draining off each edge: 2 east, 4 west." in captured.out.splitlines()

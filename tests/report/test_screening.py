@@ -251,3 +251,27 @@ def test_the_report_never_shows_a_probability_as_certain(screening, tmp_path):
     assert not {"1.00", "0.00"} & set(shown)
     top = max((s["instability"] for s in screening.segments if s["instability"] is not None), default=0.0)
     assert top < 0.995 or ">0.99" in shown
+
+
+def test_edge_regions_are_named_after_the_edge_they_drain_off(tmp_path):
+    # At the edges level the basin labels are the edges' own; the map, the table and the command line name them
+    # ("B4 west"). The name is checked against where the region's water leaves the grid, followed cell by cell down
+    # the receivers (common practice: a region draining off the west edge ends in column 0).
+    from divides.report.screening import edge_of
+
+    result = screen(divides.read_dem(DEMO), theta=0.45, level="edges", closed_edges=("north", "south"))
+    page = (result.write(tmp_path / "edges") / "report.html").read_text()
+    rows, cols = result.labels.shape
+    rec = result.flow.receivers
+    on_edge = {"west": lambda r, c: c == 0, "east": lambda r, c: c == cols - 1,
+               "north": lambda r, c: r == 0, "south": lambda r, c: r == rows - 1}
+    named = sorted(set(np.unique(result.labels)) - {0})
+    assert len(named) == 2
+    for label in named:
+        for cell in np.flatnonzero(result.labels.ravel() == label)[::97]:
+            while rec[cell] != cell:
+                cell = rec[cell]
+            assert on_edge[edge_of(label)](*divmod(int(cell), cols))
+        assert f"B{label} {edge_of(label)}" in page
+    first = result.segments[0]
+    assert f"B{first['basins'][0]} {edge_of(first['basins'][0])} | B{first['basins'][1]}" in page  # the table
