@@ -173,7 +173,7 @@ class Screening:
     @property
     def n_basins(self) -> int:
         """Number of basins labelled (at ``level="edges"`` the labels are those of the edges kept, not 1..n)."""
-        return int(np.count_nonzero(np.bincount(self.labels.ravel())[1:]))
+        return _labelled_count(self.labels)
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
@@ -259,6 +259,23 @@ def motion_azimuth(line: DivideLine, dem: Dem, toward: str,
     return float(math.degrees(math.atan2(sign * axis[1], -sign * axis[0])) % 360.0)
 
 
+def _labelled_count(labels: np.ndarray, rows_at_once: int | None = None) -> int:
+    """How many distinct labels above 0 a label grid holds, counted a block of rows at a time (no sort and no
+    grid-sized copy of a 10^9-cell grid).
+
+    Examples
+    --------
+    >>> _labelled_count(np.array([[0, 4, 4], [2, 0, 4]]), rows_at_once=1)
+    2
+    """
+    top = int(labels.max()) if labels.size else 0
+    seen = np.zeros(top + 1, dtype=bool)
+    step = rows_at_once or max(1, (1 << 22) // max(1, labels.shape[-1]))
+    for r in range(0, labels.shape[0], step):
+        seen |= np.bincount(labels[r:r + step].ravel(), minlength=top + 1) > 0
+    return int(np.count_nonzero(seen[1:]))
+
+
 def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> None:
     """Raise before the long work when fewer than two basins reach ``min_area``: there is no divide to screen.
 
@@ -267,8 +284,8 @@ def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, leve
     ParameterError
         With the two largest candidates' areas (edge regions, or outlet basins), so the user sees what to change.
     """
-    found = np.unique(labels[labels > 0])
-    if found.size >= 2:
+    found = _labelled_count(labels)
+    if found >= 2:
         return
     if level == "edges":  # the regions of every open edge, however small
         every = basin_labels(flow, min_area_m2=np.finfo(float).tiny, level="edges").ravel()
@@ -278,7 +295,7 @@ def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, leve
     two = np.sort(np.concatenate([sizes, np.zeros(2)]))[::-1][:2] / 1e6
     what = "edge regions" if level == "edges" else "outlet basins"
     edges = ", or close fewer DEM edges" if flow.conditioned.closed_edges else ""
-    raise ParameterError(f"no divide to screen: {found.size} basin(s) drain at least the minimum basin area of "
+    raise ParameterError(f"no divide to screen: {found} basin(s) drain at least the minimum basin area of "
                          f"{min_area / 1e6:.3g} km² (the two largest {what} drain {two[0]:.3g} and {two[1]:.3g} "
                          f"km²); give a smaller minimum basin area{edges}")
 
