@@ -193,15 +193,16 @@ def screen(
                + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson).")
     if segs and top:
         from divides.report.labels import probability_text
+        from divides.report.screening import confidence_text
 
-        typer.echo(f"{'rank':>4}  {'instab.':>7}  {'P(mov.)':>7}  {'conf.':>5}  {'length m':>9}  {'basins':>11}  "
+        typer.echo(f"{'rank':>4}  {'instab.':>7}  {'P(mov.)':>7}  {'conf.':>7}  {'length m':>9}  {'basins':>11}  "
                    f"{'toward':>6}  bearing")
         for s in segs[:top]:
             toward = "-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"])
             bearing = "-" if s["motion_azimuth_deg"] is None else f"{s['motion_azimuth_deg']:.0f}°"
-            instab, conf = probability_text(s["instability"]), probability_text(s["confidence"])
+            instab, conf = probability_text(s["instability"]), confidence_text(s)
             moving = probability_text(s.get("motion_probability"))
-            typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>5}  {s['length_m']:9,.0f}  "
+            typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>7}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
     from divides.report.screening import edge_of, runs_notes
 

@@ -37,7 +37,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
            "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text",
-           "edge_of"]
+           "edge_of", "confidence_text"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -208,6 +208,19 @@ def _iter_gap_features(result: Screening):
 def edge_of(label: int) -> str | None:
     """The DEM edge a label names at ``level="edges"`` (:data:`~divides.terrain.basins.EDGE_LABELS`), else None."""
     return next((edge for edge, k in EDGE_LABELS.items() if k == int(label)), None)
+
+
+def confidence_text(segment: dict) -> str:
+    """A segment's confidence as the table shows it: "unknown" where the decision abstained for insufficient data
+    (its confidence of 0 is no evidence either way), else :func:`~divides.report.labels.probability_text`.
+
+    Examples
+    --------
+    >>> confidence_text({"basis": "insufficient data", "confidence": 0.0}), confidence_text({"basis": "none",
+    ...                                                                                       "confidence": 0.91})
+    ('unknown', '0.91')
+    """
+    return "unknown" if segment.get("basis") == "insufficient data" else probability_text(segment["confidence"])
 
 
 def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
@@ -407,7 +420,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     header = ["rank", "instability", "P(moving)", "confidence", "length (m)", "basins", "divide",
               "moves toward basin", "bearing (°)", "basis"]
     table = _html._table(header, [[str(r["rank"]), e(probability_text(r["instability"])),  # "<0.01" is escaped
-                                   e(probability_text(r["motion_probability"])), e(probability_text(r["confidence"])),
+                                   e(probability_text(r["motion_probability"])), e(confidence_text(r)),
                                    f"{r['length_m']:,.0f}", f"{name(r['basin_1'])} | {name(r['basin_2'])}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else name(r["moves_toward_basin"]),

@@ -6,6 +6,7 @@ import csv
 import json
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from divides.cli.app import run
@@ -122,3 +123,26 @@ def test_screen_names_the_edges_at_the_edges_level(tmp_path, capsys):
     captured = capsys.readouterr()
     assert code == 0, captured.err
     assert "Basins are the land draining off each edge: 2 east, 4 west." in captured.out.splitlines()
+
+
+def test_a_segment_without_enough_data_shows_an_unknown_confidence(write_geotiff, tmp_path, capsys):
+    # A decision that abstained for insufficient data has confidence 0 in the contract; shown as "<0.01" it read as
+    # evidence. The table (command line and report) says "unknown" there, as for its instability.
+    from affine import Affine
+
+    c = np.arange(60, dtype=np.float64)
+    z = (100.0 + np.minimum(c * 2.0, (59 - c) * 2.0)[None, :] + np.random.default_rng(0).random((40, 60)))
+    dem = write_geotiff("ridge.tif", z.astype(np.float32), crs="EPSG:32630",
+                        transform=Affine(30.0, 0.0, 500_000.0, 0.0, -30.0, 4_000_000.0))
+    out = tmp_path / "s"
+    code = run(["screen", str(dem), "--out", str(out), "--min-basin-area", "5e4", "--top", "50"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    doc = json.loads((out / "screening.json").read_text())
+    abstained = [s["rank"] for s in doc["segments"] if s["reason"] == "insufficient data"]
+    assert abstained  # this small ridge has short divides
+    rows = {int(line.split()[0]): line.split() for line in captured.out.splitlines() if line[:4].strip().isdigit()}
+    for rank in abstained:
+        assert rows[rank][1:4] == ["unknown", "unknown", "unknown"]
+    assert "<td class=\"n\">unknown</td><td class=\"n\">unknown</td><td class=\"n\">unknown</td>" in (
+        out / "report.html").read_text()
