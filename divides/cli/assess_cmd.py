@@ -354,6 +354,15 @@ def _read_raster_on_grid(option: str, path: str, dem: Dem, read: opt.DemOptions)
     if np.any(values[good] <= 0):
         raise ParameterError(f"{option} raster '{path}' holds {float(values[good].min()):g}; "
                              "its values must be positive (relative values: 1 = typical)")
+    holes = int(np.count_nonzero(dem.valid)) - int(np.count_nonzero(good))
+    if holes:  # read as the raster's reference value (docs/methods.md §3): say so, it is not the user's number
+        import warnings
+
+        from divides.errors import DividesWarning
+
+        warnings.warn(f"{option} raster '{path}' has no value on {holes} of the DEM's cells "
+                      f"({100 * holes / dem.n_valid:.2g} %); they are read as its typical (reference) value",
+                      DividesWarning, stacklevel=2)
     return values
 
 

@@ -146,3 +146,23 @@ def test_a_segment_without_enough_data_shows_an_unknown_confidence(write_geotiff
         assert rows[rank][1:4] == ["unknown", "unknown", "unknown"]
     assert "<td class=\"n\">unknown</td><td class=\"n\">unknown</td><td class=\"n\">unknown</td>" in (
         out / "report.html").read_text()
+
+
+def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
+    # A raster's holes are read as its reference value (docs/methods.md §3); the user is told how many cells that is
+    # (a 10 x 10 block of NaN on a fully valid DEM: 100 cells).
+    import rasterio
+
+    with rasterio.open(UPLANDS) as src:
+        profile = {**src.profile, "dtype": "float32", "nodata": None}
+        rain = np.ones(src.shape, dtype=np.float32)
+        assert src.read(1, masked=True).mask.sum() == 0
+    rain[10:20, 10:20] = np.nan
+    path = tmp_path / "rain.tif"
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(rain, 1)
+    code = run(["screen", UPLANDS, "--out", str(tmp_path / "s"), "--runoff-raster", str(path), "--no-forward-run"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    warned = [line for line in captured.err.splitlines() if "warning" in line and "--runoff-raster" in line]
+    assert len(warned) == 1 and "100 of the DEM's cells" in warned[0]
