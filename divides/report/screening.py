@@ -20,7 +20,6 @@ from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, N
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
-from divides.terrain.basins import EDGE_LABELS
 from divides.report import html as _html
 
 from divides.report import figures as _figures
@@ -31,13 +30,13 @@ from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
 from divides.report.text import provenance_line
 from divides.report.writer import staged_output
+from divides.terrain.basins import EDGE_LABELS
 
 if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
-           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text",
-           "edge_of", "confidence_text"]
+           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
