@@ -276,6 +276,17 @@ def _labelled_count(labels: np.ndarray, rows_at_once: int | None = None) -> int:
     return int(np.count_nonzero(seen[1:]))
 
 
+def _holes(dem: Dem, grid) -> int:
+    """Valid DEM cells where a weighting raster has no finite value (0 for a single value), a block of rows at a
+    time."""
+    arr = np.asarray(grid)
+    if arr.shape != dem.shape:
+        return 0
+    step = max(1, (1 << 22) // max(1, dem.shape[1]))
+    return sum(int(np.count_nonzero(dem.valid[r:r + step] & ~np.isfinite(arr[r:r + step])))
+               for r in range(0, dem.shape[0], step))
+
+
 def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> None:
     """Raise before the long work when fewer than two basins reach ``min_area``: there is no divide to screen.
 
@@ -862,5 +873,9 @@ def screen(
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
     if forward is not None:
         params["forward_run_grid"] = forward
+    holes = {name: _holes(dem, grid) for name, grid in (("runoff", runoff), ("erodibility", erodibility_raster),
+                                                         ("uplift", uplift_raster)) if grid is not None}
+    if holes:  # cells where a raster has no value read its reference (profiles.chi.chi_weights)
+        params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage)

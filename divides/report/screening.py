@@ -36,7 +36,8 @@ if TYPE_CHECKING:  # pragma: no cover - types only
     from divides.assess.screen import Screening
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
-           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text"]
+           "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text",
+           "raster_holes_note"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -133,6 +134,24 @@ def unmeasured_runs_note(segments: list[dict], parameters: dict) -> str | None:
             "that spans several of the runs' basins on a side, as at --level edges, is not measured). Their "
             "instability reads no run evidence as no motion; they rank by their probability of motion when it "
             "is 0.5 or more, and a low score there is not evidence that the divide is still.")
+
+
+def raster_holes_note(parameters: dict, n_valid: int) -> str | None:
+    """The caution a screening carries when a weighting raster had no value on some of the DEM's cells
+    (``raster_holes_cells``; read there as its reference value); None otherwise.
+
+    Examples
+    --------
+    >>> raster_holes_note({"raster_holes_cells": {"runoff": 100, "uplift": 0}}, 36000)
+    "The runoff raster has no value on 100 of the DEM's cells (0.28 %); χ read its typical (reference) value there."
+    >>> raster_holes_note({"raster_holes_cells": {"runoff": 0}}, 36000)
+    """
+    holes = {k: v for k, v in (parameters.get("raster_holes_cells") or {}).items() if v}
+    if not holes:
+        return None
+    parts = [f"The {name} raster has no value on {n} of the DEM's cells ({100 * n / max(n_valid, 1):.2g} %)"
+             for name, n in holes.items()]
+    return "; ".join(parts) + "; χ read its typical (reference) value there."
 
 
 def runs_notes(result: Screening) -> list[str]:
@@ -428,8 +447,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
         "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
+    notes = [*runs_notes(result), raster_holes_note(p, result.dem.n_valid)]
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
-               + "".join(f" {e(n)}" for n in runs_notes(result)) + "</div>")
+               + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
     lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "
             f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
     cov = result.coverage or {}

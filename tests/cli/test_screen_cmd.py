@@ -166,3 +166,8 @@ def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
     assert code == 0, captured.err
     warned = [line for line in captured.err.splitlines() if "warning" in line and "--runoff-raster" in line]
     assert len(warned) == 1 and "100 of the DEM's cells" in warned[0]
+    # and the outputs keep it: screening.json's parameters and the report's caution
+    assert json.loads((tmp_path / "s" / "screening.json").read_text())["parameters"]["raster_holes_cells"] == {
+        "runoff": 100}
+    page = (tmp_path / "s" / "report.html").read_text()
+    assert "The runoff raster has no value on 100 of the DEM&#x27;s cells" in page
