@@ -276,7 +276,7 @@ def _labelled_count(labels: np.ndarray, rows_at_once: int | None = None) -> int:
     return int(np.count_nonzero(seen[1:]))
 
 
-def _holes(dem: Dem, grid) -> int:
+def _holes(dem: Dem, grid: np.ndarray | float) -> int:
     """Valid DEM cells where a weighting raster has no finite value (0 for a single value), a block of rows at a
     time."""
     arr = np.asarray(grid)
