@@ -43,12 +43,12 @@ from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_netwo
 from divides.terrain.line_gaps import line_gaps
 from divides.terrain.routing import FlowGraph, route
 
-__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "motion_azimuth", "instability_of",
-           "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MIN_JUDGED_CELLS",
-           "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS", "TRANSIENT_BASIN",
-           "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS", "neighbour_scores",
-           "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block", "PROMOTE_TOLD_ERROR_M",
-           "beside_scored"]
+__all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL_BASINS_REASON", "motion_azimuth",
+           "instability_of", "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE",
+           "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
+           "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
+           "neighbour_scores", "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block",
+           "PROMOTE_TOLD_ERROR_M", "beside_scored"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -132,6 +132,10 @@ EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_co
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
                   "is calibrated on divides between basins that drain apart)")
+
+#: The reason of a gap beside land in basins below the minimum area (basin 0 in the gaps layer).
+SMALL_BASINS_REASON = ("beside basins smaller than the minimum basin area: not screened (a smaller minimum "
+                       "basin area screens them)")
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "motion_probability", "confidence", "length_m", "basins",
@@ -287,6 +291,15 @@ def _holes(dem: Dem, grid: np.ndarray | float) -> int:
                for r in range(0, dem.shape[0], step))
 
 
+def _labelled_area_share(dem: Dem, labels: np.ndarray) -> float:
+    """Share of the DEM's valid area in labelled basins (those screened), a block of rows at a time."""
+    step = max(1, (1 << 22) // max(1, dem.shape[1]))
+    inside = sum(float(np.dot(dem.cell_area[r:r + step], np.count_nonzero(labels[r:r + step] > 0, axis=1)))
+                 for r in range(0, dem.shape[0], step))
+    total = float(np.dot(dem.cell_area, np.count_nonzero(dem.valid, axis=1)))
+    return inside / total if total > 0 else 0.0
+
+
 def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> None:
     """Raise before the long work when fewer than two basins reach ``min_area``: there is no divide to screen.
 
@@ -329,8 +342,8 @@ def _outlet_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: 
 
 def _coverage(segments: list[dict], gaps: list[dict], outlet_of: np.ndarray) -> dict:
     """Share of the length of the divides between outlet basins that lies in judged segments."""
-    def between_outlets(basins):
-        return outlet_of[basins[0]] != outlet_of[basins[1]]
+    def between_outlets(basins):  # 0: the land in basins below the minimum area
+        return 0 not in basins and outlet_of[basins[0]] != outlet_of[basins[1]]
 
     judged = sum(s["length_m"] for s in segments if between_outlets(s["basins"]))
     left = sum(g["length_m"] for g in gaps if between_outlets(g["basins"]))
@@ -794,7 +807,13 @@ def screen(
     outlet_of = _outlet_basins(flow, labels, min_area, level)
     by_pair: dict[tuple[int, int], list[DivideSegment]] = {}
     gaps: list[dict] = []
-    for seg in divide_network(dem, labels, min_vertices=2):
+    # the land in basins below the minimum area is traced as one more region, so that the divides beside it are
+    # written as gaps too (on a flank drained by many small basins the main divide lies there)
+    small = int(labels.max()) + 1
+    for seg in divide_network(dem, np.where((labels == 0) & dem.valid, small, labels), min_vertices=2):
+        if seg.label_b == small:  # label_a < label_b
+            gaps.append(_empty(DivideSegment(seg.label_a, 0, seg.line, seg.cells_a, seg.cells_b), SMALL_BASINS_REASON))
+            continue
         for piece in _split(seg.line, max_len):
             part = DivideSegment(seg.label_a, seg.label_b, piece, seg.cells_a, seg.cells_b)
             if piece.length_m < MIN_SEGMENT_CELLS * cell:
@@ -864,7 +883,7 @@ def screen(
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
                  "reason": g["gap"], "line": g["seg"].line} for g in gaps]
-    coverage = _coverage(out, gap_rows, outlet_of)
+    coverage = _coverage(out, gap_rows, outlet_of) | {"screened_area_share": _labelled_area_share(dem, labels)}
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
     used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
     params = {**used, "chi_weighted": weighted,

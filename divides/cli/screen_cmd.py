@@ -190,7 +190,8 @@ def screen(
                f"{moving} show evidence of motion.")
     typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
                                f"{100 * share:.0f} % of the divides between outlet basins judged")
-               + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson).")
+               + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson); the screened basins "
+               f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % of the DEM.")
     if segs and top:
         from divides.report.labels import probability_text
         from divides.report.screening import confidence_text

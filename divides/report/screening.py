@@ -457,7 +457,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     coverage = ("<p>Coverage: " + ("no divide between outlet basins" if share is None else
                 f"{100 * share:.0f} % of the {cov['outlet_divides_length_m'] / 1000:,.1f} km of divide between "
                 "outlet basins lies in judged segments") + f"; {len(result.gaps)} stretches were left out "
-                "(layers/screen_gaps.geojson), by reason:</p>")
+                "(layers/screen_gaps.geojson), by reason, below. The screened basins cover "
+                f"{100 * cov.get('screened_area_share', 1.0):.0f} % of the DEM; the divides beside smaller basins "
+                "are gaps.</p>")
     gap_table = _html._table(["reason", "length (km)"], [[e(k), f"{v / 1000:,.2f}"] for k, v in
                                                            cov.get("gap_length_by_reason_m", {}).items()],
                              numeric={1})

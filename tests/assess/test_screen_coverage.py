@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy.spatial import cKDTree
 
-from divides.assess.screen import INSTABILITY_SCALING, LATERAL_REASON, motion_azimuth, screen
+from divides.assess.screen import INSTABILITY_SCALING, LATERAL_REASON, SMALL_BASINS_REASON, motion_azimuth, screen
 from divides.io.dem import Dem
 from divides.model import scenarios as S
 from divides.model.tracking import edge_catchments
@@ -34,14 +34,23 @@ def steady():
     return final, later, scenario.options["uplift"]
 
 
-def _edge_midpoints(labels: np.ndarray):
-    """Mid-points (row, col) and label pairs of every pair of 4-neighbour cells in two basins."""
+def _with_small(labels: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, int]:
+    """The labels with the valid land of basins below the minimum area as one more label (returned too)."""
+    small = int(labels.max()) + 1
+    return np.where((labels == 0) & valid, small, labels), small
+
+
+def _edge_midpoints(labels: np.ndarray, valid: np.ndarray):
+    """Mid-points (row, col) and label pairs of every pair of 4-neighbour cells in two basins, the land of basins
+    below the minimum area counting as basin 0."""
+    lab, small = _with_small(labels, valid)
     pts, pairs = [], []
     for dr, dc in ((0, 1), (1, 0)):
-        first, second = labels[: labels.shape[0] - dr, : labels.shape[1] - dc], labels[dr:, dc:]
+        first, second = lab[: lab.shape[0] - dr, : lab.shape[1] - dc], lab[dr:, dc:]
         r, c = np.nonzero((first != second) & (first > 0) & (second > 0))
         pts.append(np.column_stack([r + dr / 2.0, c + dc / 2.0]))
-        pairs.append(np.sort(np.column_stack([first[r, c], second[r, c]]), axis=1))
+        pair = np.column_stack([first[r, c], second[r, c]])
+        pairs.append(np.sort(np.where(pair == small, 0, pair), axis=1))
     return np.concatenate(pts), np.concatenate(pairs)
 
 
@@ -61,15 +70,18 @@ def test_every_stretch_of_divide_is_a_segment_or_a_gap(steady, level):
     labels = result.labels
     pieces = result.segments + result.gaps
     # 1. Geometry: segments and gaps add up to the whole traced divide of every pair of basins
-    #    (the traced lines of divide_network, cut into pieces that share their end vertices).
+    #    (the traced lines of divide_network, cut into pieces that share their end vertices), the divides beside the
+    #    land of basins below the minimum area included (basin 0: gaps, their reason said)
     whole = {}
-    for seg in divide_network(final, labels, min_vertices=2):
-        key = (seg.label_a, seg.label_b)
+    lab, small = _with_small(labels, final.valid)
+    for seg in divide_network(final, lab, min_vertices=2):
+        key = (0, seg.label_a) if seg.label_b == small else (seg.label_a, seg.label_b)
         whole[key] = whole.get(key, 0.0) + seg.line.length_m
     parts = {}
     for p in pieces:
-        key = tuple(p["basins"])
+        key = tuple(sorted(p["basins"]))
         parts[key] = parts.get(key, 0.0) + p["length_m"]
+        assert (0 in key) == (p.get("reason") == SMALL_BASINS_REASON)
     assert set(parts) == set(whole)
     for key, length in whole.items():
         assert parts[key] == pytest.approx(length, rel=1e-9)
@@ -77,7 +89,7 @@ def test_every_stretch_of_divide_is_a_segment_or_a_gap(steady, level):
     #    of a curve of length L at angle φ measures L (|cos φ| + |sin φ|), between L and √2 L
     #    (Manhattan length of a line; common geometry). Smoothing the trace may shorten
     #    corners by up to about a cell at each junction, hence the 5 % slack.
-    mids, pairs = _edge_midpoints(labels)
+    mids, pairs = _edge_midpoints(labels, final.valid)
     staircase = mids.shape[0] * CELL
     total = sum(p["length_m"] for p in pieces)
     assert staircase / np.sqrt(2) * 0.95 <= total <= staircase * 1.05
@@ -86,14 +98,14 @@ def test_every_stretch_of_divide_is_a_segment_or_a_gap(steady, level):
     owner = np.concatenate([np.full(p["line"].row.size, i) for i, p in enumerate(pieces)])
     dist, j = cKDTree(vertices).query(mids)
     assert np.all(dist <= 2.0)
-    same = np.array([tuple(pieces[owner[k]]["basins"]) == tuple(pr) for k, pr in zip(j, pairs)])
+    same = np.array([tuple(sorted(pieces[owner[k]]["basins"])) == tuple(pr) for k, pr in zip(j, pairs)])
     assert same.mean() > 0.95  # near triple junctions an edge may be closest to a third pair's piece
     # 4. Coverage computed independently: the share of boundary edges between different outlet
     #    basins whose nearest piece is a judged segment.
     outlets = basin_labels(result.flow, min_area_m2=result.parameters["min_basin_area_m2"], level="outlets")
     out_of = np.zeros(labels.max() + 1, dtype=int)
     out_of[labels.ravel()] = outlets.ravel()
-    apart = out_of[pairs[:, 0]] != out_of[pairs[:, 1]]
+    apart = (out_of[pairs[:, 0]] != out_of[pairs[:, 1]]) & (pairs[:, 0] > 0)  # basin 0: below the minimum
     judged = owner[j] < len(result.segments)
     share = judged[apart].mean()
     assert result.coverage["share"] == pytest.approx(share, abs=0.05)
@@ -106,6 +118,9 @@ def test_every_stretch_of_divide_is_a_segment_or_a_gap(steady, level):
         assert all_share == pytest.approx(judged.mean(), abs=0.05) and all_share < 1.0
     for g in result.gaps:
         assert g["reason"]
+    # 5. The share of the DEM in screened basins, against the labels counted with numpy (the cells are of one size)
+    assert result.coverage["screened_area_share"] == pytest.approx(
+        np.count_nonzero(labels > 0) / np.count_nonzero(final.valid), rel=1e-9)
 
 
 def test_lateral_divides_are_not_assessed(steady):
