@@ -163,6 +163,8 @@ class Screening:
     coverage : dict
         ``share`` of the length of the divides between outlet basins in judged segments,
         with the lengths behind it (see :func:`_coverage`).
+    n_basins : int
+        Number of basins labelled (at ``level="edges"`` the labels are the edges' own, not 1..n).
     """
 
     dem: Dem
@@ -173,11 +175,7 @@ class Screening:
     parameters: dict = field(default_factory=dict)
     gaps: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
-
-    @property
-    def n_basins(self) -> int:
-        """Number of basins labelled (at ``level="edges"`` the labels are those of the edges kept, not 1..n)."""
-        return _labelled_count(self.labels)
+    n_basins: int = 0
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
@@ -263,20 +261,30 @@ def motion_azimuth(line: DivideLine, dem: Dem, toward: str,
     return float(math.degrees(math.atan2(sign * axis[1], -sign * axis[0])) % 360.0)
 
 
-def _labelled_count(labels: np.ndarray, rows_at_once: int | None = None) -> int:
-    """How many distinct labels above 0 a label grid holds, counted a block of rows at a time (no sort and no
-    grid-sized copy of a 10^9-cell grid).
+def _row_blocks(shape: tuple[int, int], cells: int = 1 << 22) -> list[slice]:
+    """Blocks of whole rows of about ``cells`` cells: grid-wide counts without a grid-sized temporary (10^9 cells).
 
     Examples
     --------
-    >>> _labelled_count(np.array([[0, 4, 4], [2, 0, 4]]), rows_at_once=1)
+    >>> _row_blocks((5, 2), cells=4)
+    [slice(0, 2, None), slice(2, 4, None), slice(4, 6, None)]
+    """
+    step = max(1, cells // max(1, shape[1]))
+    return [slice(r, r + step) for r in range(0, shape[0], step)]
+
+
+def _labelled_count(labels: np.ndarray) -> int:
+    """How many distinct labels above 0 a label grid holds (no sort and no copy of the grid).
+
+    Examples
+    --------
+    >>> _labelled_count(np.array([[0, 4, 4], [2, 0, 4]]))
     2
     """
     top = int(labels.max()) if labels.size else 0
     seen = np.zeros(top + 1, dtype=bool)
-    step = rows_at_once or max(1, (1 << 22) // max(1, labels.shape[-1]))
-    for r in range(0, labels.shape[0], step):
-        seen |= np.bincount(labels[r:r + step].ravel(), minlength=top + 1) > 0
+    for rows in _row_blocks(labels.shape):
+        seen |= np.bincount(labels[rows].ravel(), minlength=top + 1) > 0
     return int(np.count_nonzero(seen[1:]))
 
 
@@ -286,22 +294,20 @@ def _holes(dem: Dem, grid: np.ndarray | float) -> int:
     arr = np.asarray(grid)
     if arr.shape != dem.shape:
         return 0
-    step = max(1, (1 << 22) // max(1, dem.shape[1]))
-    return sum(int(np.count_nonzero(dem.valid[r:r + step] & ~np.isfinite(arr[r:r + step])))
-               for r in range(0, dem.shape[0], step))
+    return sum(int(np.count_nonzero(dem.valid[rows] & ~np.isfinite(arr[rows]))) for rows in _row_blocks(dem.shape))
 
 
 def _labelled_area_share(dem: Dem, labels: np.ndarray) -> float:
     """Share of the DEM's valid area in labelled basins (those screened), a block of rows at a time."""
-    step = max(1, (1 << 22) // max(1, dem.shape[1]))
-    inside = sum(float(np.dot(dem.cell_area[r:r + step], np.count_nonzero(labels[r:r + step] > 0, axis=1)))
-                 for r in range(0, dem.shape[0], step))
+    inside = sum(float(np.dot(dem.cell_area[rows], np.count_nonzero(labels[rows] > 0, axis=1)))
+                 for rows in _row_blocks(dem.shape))
     total = float(np.dot(dem.cell_area, np.count_nonzero(dem.valid, axis=1)))
     return inside / total if total > 0 else 0.0
 
 
-def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> None:
-    """Raise before the long work when fewer than two basins reach ``min_area``: there is no divide to screen.
+def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> int:
+    """The number of basins labelled; raise before the long work when fewer than two reach ``min_area``: there is no
+    divide to screen.
 
     Raises
     ------
@@ -310,7 +316,7 @@ def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, leve
     """
     found = _labelled_count(labels)
     if found >= 2:
-        return
+        return found
     if level == "edges":  # the regions of every open edge, however small
         every = basin_labels(flow, min_area_m2=np.finfo(float).tiny, level="edges").ravel()
         sizes = np.bincount(every, weights=np.repeat(flow.dem.cell_area, flow.shape[1]), minlength=5)[1:]
@@ -795,7 +801,7 @@ def screen(
     threshold = channels.threshold.value_m2
     min_area = float(min_basin_area_m2) if min_basin_area_m2 is not None else 5.0 * threshold
     labels = basin_labels(flow, min_area_m2=min_area, level=level)
-    _check_two_basins(flow, labels, min_area, level)
+    n_basins = _check_two_basins(flow, labels, min_area, level)
     cell = float(np.max(dem.cell_size_m))
     max_len = float(max_segment_m) if max_segment_m is not None else 100.0 * cell
     if not (np.isfinite(max_len) and max_len > 4 * cell):
@@ -897,4 +903,4 @@ def screen(
     if holes:  # cells where a raster has no value read its reference (profiles.chi.chi_weights)
         params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
-                     gaps=gap_rows, coverage=coverage)
+                     gaps=gap_rows, coverage=coverage, n_basins=n_basins)
