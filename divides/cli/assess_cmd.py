@@ -397,7 +397,8 @@ def run_assessment(
     """
     import divides
     from divides.assess.sides import parse_side
-    from divides.cli.dem_checks import check_enough_cells, check_options_against_dem, check_side_points
+    from divides.cli.dem_checks import (check_closed_edges, check_enough_cells, check_options_against_dem,
+                                        check_side_points)
     from divides.report.writer import STAGES, write_assessment
 
     # Read and check in silence: a mistake the DEM reveals is one error line, with no progress before it.
@@ -409,6 +410,7 @@ def run_assessment(
     check_options_against_dem(dem, sea_level=request.options.get("sea_level_m"),
                               channel_area=request.options.get("channel_area_m2"),
                               reference_area=request.options.get("reference_area_m2"))
+    check_closed_edges(dem, request.options.get("closed_edges", ()))
     for option, text in (("--side-a", request.side_a), ("--side-b", request.side_b)):
         spec = parse_side(text, lonlat=request.lonlat)
         check_side_points(dem, spec.points, option=option, text=text, lonlat=request.lonlat)

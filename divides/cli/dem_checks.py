@@ -10,13 +10,13 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING
 
-from divides.errors import GridError, ParameterError, SideError
+from divides.errors import DividesWarning, GridError, ParameterError, SideError
 
 if TYPE_CHECKING:  # pragma: no cover - type hints only
     from divides.io.dem import Dem
 
-__all__ = ["MIN_INTERIOR_CELLS", "check_enough_cells", "check_options_against_dem", "check_side_points",
-           "check_finite_points"]
+__all__ = ["MIN_INTERIOR_CELLS", "check_closed_edges", "check_enough_cells", "check_options_against_dem",
+           "check_side_points", "check_finite_points"]
 
 #: Fewest valid cells with eight valid neighbours: a 5 × 5 block of data. Below it there is no room
 #: for two basins and a divide between them (cells on the edge of the data are outlets).
@@ -88,6 +88,51 @@ def check_options_against_dem(dem: Dem, *, sea_level: float | None = None, chann
         if option == "--reference-area" and value < cell:
             raise ParameterError(f"{option} {value:g} m² is smaller than one cell ({cell:.4g} m²); give at least "
                                  "one cell, usually the channel area")
+
+
+def check_closed_edges(dem: Dem, closed_edges: tuple[str, ...]) -> None:
+    """Refuse a closed edge whose outermost row or column holds no data, and warn where it is partly nodata.
+
+    A closure acts on the grid's outermost row or column; a valid cell beside nodata stays an outlet
+    (docs/methods.md §1). Behind a nodata collar (as after reprojection) a closed edge would close nothing,
+    silently: the message gives the ``--bounds`` of the data, which crop the collar.
+
+    Raises
+    ------
+    ParameterError
+        A closed edge's outermost line has no valid cell.
+    """
+    import warnings
+
+    import numpy as np
+
+    valid = dem.valid
+    lines = {"north": valid[0, :], "south": valid[-1, :], "west": valid[:, 0], "east": valid[:, -1]}
+    for edge in closed_edges:
+        line = lines[edge]
+        n_valid = int(np.count_nonzero(line))
+        what = "row" if edge in ("north", "south") else "column"
+        if n_valid == 0:
+            box = ",".join(f"{v:.12g}" for v in _data_bounds(dem))
+            raise ParameterError(f"--closed-edges {edge}: the DEM's outermost {edge} {what} holds no data (a nodata "
+                                 "collar), so nothing would be closed (cells beside nodata drain off the DEM); crop "
+                                 f"the collar with --bounds {box} (the extent of the data) or leave {edge} open")
+        if n_valid < line.size:
+            warnings.warn(f"--closed-edges {edge}: {line.size - n_valid} of the {line.size} cells of the DEM's "
+                          f"outermost {edge} {what} are nodata; valid cells beside nodata drain off the DEM, so the "
+                          f"closure holds on that {what}'s {n_valid} valid cells only", DividesWarning, stacklevel=2)
+
+
+def _data_bounds(dem: Dem) -> tuple[float, float, float, float]:
+    """``(left, bottom, right, top)`` of the rows and columns that hold valid cells."""
+    import numpy as np
+
+    rows = np.flatnonzero(dem.valid.any(axis=1))
+    cols = np.flatnonzero(dem.valid.any(axis=0))
+    t = dem.transform
+    xs = (t.c + cols[0] * t.a, t.c + (cols[-1] + 1) * t.a)
+    ys = (t.f + rows[0] * t.e, t.f + (rows[-1] + 1) * t.e)
+    return min(xs), min(ys), max(xs), max(ys)
 
 
 def check_finite_points(spec_points: tuple[tuple[float, float], ...], *, option: str, text: str) -> None:

@@ -157,7 +157,7 @@ def screen(
     progress = opt.Progress(3, quiet=quiet)
     with opt.quiet_warnings(quiet):
         from divides.assess.screen import screen as run_screen
-        from divides.cli.dem_checks import check_enough_cells, check_options_against_dem
+        from divides.cli.dem_checks import check_closed_edges, check_enough_cells, check_options_against_dem
         from divides.report.screening import write_screening
         from divides.terrain.tiled_flow import tiled_routing
 
@@ -165,6 +165,7 @@ def screen(
         dem_obj, plan = by_tiles.read(read, "screen", "screen a smaller window with --bounds")
         check_enough_cells(dem_obj)
         check_options_against_dem(dem_obj, sea_level=route.sea_level, channel_area=options["channel_area_m2"])
+        check_closed_edges(dem_obj, route.closed_edges)
         grids = {k: _read_raster_on_grid(o, p, dem_obj, read) for k, (o, p) in rasters.items()}
         # A mistake found early in the work (no basin above --min-basin-area) stays the only line printed.
         with progress.held(HOLD_SECONDS):

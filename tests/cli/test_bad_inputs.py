@@ -134,6 +134,12 @@ def _nodata_point(i: Inputs) -> list[str]:
     return _assess(dem, "--out", str(i.out), sides=(f"{x},{y}", "east"))
 
 
+def _collared(i: Inputs) -> str:
+    """The ridge behind three rows of nodata on the north: the data span x 500000-501800, y 3998800-4000000."""
+    z = np.vstack([np.full((3, 60), -9999.0, np.float32), _ridge()])
+    return i.tif("collar.tif", z, transform=TRANSFORM @ Affine.translation(0, -3), nodata=-9999.0)
+
+
 def _demo_existing_out(i: Inputs) -> list[str]:
     i.out.mkdir()
     (i.out / "keep.txt").write_text("mine")
@@ -182,6 +188,14 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
                                                            "1e5", "--out", str(i.out)), ("--knickpoint-age",)),
     ("closed edge that is also a side", lambda i: _assess(i.ridge(), "--closed-edges", "west", "--out", str(i.out)),
      ("--closed-edges", "--side-a")),
+    # a closure acts on the grid's outermost row: behind a nodata collar it would close nothing (docs/methods.md §1);
+    # the --bounds offered are the data's extent, from the construction above (60 x 40 cells of 30 m)
+    ("closed edge behind a nodata collar", lambda i: _assess(_collared(i), "--closed-edges", "north", "--out",
+                                                             str(i.out)),
+     ("--closed-edges north", "collar", "--bounds 500000,3998800,501800,4000000")),
+    ("screen with a closed edge behind a nodata collar",
+     lambda i: _screen(_collared(i), "--closed-edges", "south,north", "--out", str(i.out)),
+     ("--closed-edges north", "--bounds 500000,3998800,501800,4000000")),
     ("every edge closed", lambda i: _assess(i.ridge(), "--closed-edges", "north,south,east,west", "--out",
                                             str(i.out)), ("--closed-edges",)),
     ("unknown closed edge", lambda i: _assess(i.ridge(), "--closed-edges", "up", "--out", str(i.out)),

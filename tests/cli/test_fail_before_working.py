@@ -200,3 +200,39 @@ def test_held_progress_lines_appear_when_the_time_is_up():
     progress.discard()
     progress.release()
     assert "second" not in stream.getvalue()
+
+
+def test_the_bounds_offered_for_a_nodata_collar_give_the_closure_asked_for(capsys, write_geotiff, tmp_path):
+    """Reference: the same ridge without the collar, closed on the north. The closure acts on the grid's outermost
+    row (docs/methods.md §1), so behind a collar the run is refused; with the --bounds the error offers, the
+    collared DEM must give exactly the result of the DEM without it."""
+    import json
+    import re
+
+    plain = write_geotiff("plain.tif", _ridge(), crs=CRS, transform=TRANSFORM)
+    z = np.vstack([np.full((4, 60), -9999.0, np.float32), _ridge(), np.full((2, 60), -9999.0, np.float32)])
+    collared = write_geotiff("collar.tif", z, crs=CRS, transform=TRANSFORM @ Affine.translation(0, -4), nodata=-9999.0)
+    base = ["--side-a", "west", "--side-b", "east", "--closed-edges", "north", "--no-robustness", "--no-forward-run"]
+    code, out, err = _run(capsys, ["assess", str(collared), *base, "--out", str(tmp_path / "refused")])
+    _one_error_line(code, out, err, "collar")
+    box = re.search(r"--bounds (\S+) ", err).group(1)
+    summaries = []
+    for name, dem, extra in (("plain", plain, []), ("cropped", collared, ["--bounds", box])):
+        code, _, err = _run(capsys, ["assess", str(dem), *base, *extra, "--out", str(tmp_path / name), "--quiet"])
+        assert code == 0, err
+        summaries.append(json.loads((tmp_path / name / "summary.json").read_text()))
+    for key in ("verdict", "contrasts", "divide", "sides"):
+        assert summaries[0][key] == summaries[1][key], key
+
+
+def test_a_closed_edge_partly_on_nodata_is_warned_with_its_counts(capsys, write_geotiff, tmp_path):
+    z = _ridge()
+    z[:3, :25] = -9999.0  # the north-west corner is nodata: 25 of the north row's 60 cells
+    dem = write_geotiff("corner.tif", z, crs=CRS, transform=TRANSFORM, nodata=-9999.0)
+    n_nodata = int(np.count_nonzero(z[0] == -9999.0))  # counted on the array written, with numpy
+    code, _, err = _run(capsys, ["assess", str(dem), "--side-a", "west", "--side-b", "east", "--closed-edges",
+                                 "north,south", "--no-robustness", "--no-forward-run", "--out", str(tmp_path / "o")])
+    assert code == 0, err
+    warned = [line for line in err.splitlines() if line.startswith("divides: warning: --closed-edges")]
+    assert len(warned) == 1, err  # the north row only: the south row is whole
+    assert f"{n_nodata} of the 60 cells" in warned[0] and f"{60 - n_nodata} valid cells" in warned[0]
