@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextvars
 import dataclasses
 import threading
+from collections.abc import Sequence
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 
@@ -22,6 +23,7 @@ from divides.assess.contrasts import (
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
+from divides.assess.raster_holes import raster_holes_cells, raster_holes_note
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -683,7 +685,7 @@ def _forward_lines(verdict: Verdict, names: dict) -> list[str]:
 
 def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict | None, knickpoints: list,
           equilibrium: EquilibriumDivide, cal: Calibration, *, same_channel: bool = False,
-          config: AssessConfig | None = None, withheld: str | None = None) -> str:
+          config: AssessConfig | None = None, withheld: str | None = None, cautions: Sequence[str] = ()) -> str:
     names = {k: (f"{given} (side {k})" if given else f"side {k} ({side.spec.text})")
              for k, side, given in (("a", sides.a, getattr(config, "name_a", None)),
                                     ("b", sides.b, getattr(config, "name_b", None)))}
@@ -779,7 +781,7 @@ def _text(verdict: Verdict, contrasts: list[Contrast], sides: Sides, rate: dict 
     if eq["median_distance_m"] is not None:
         lines.append(f"Equilibrium divide (first-order): about {eq['median_distance_m']:,.0f} m "
                      f"from the present divide, toward {names.get(eq['toward'], eq['toward'])}.")
-    lines.append(CAUTION)
+    lines += [*cautions, CAUTION]
     return "\n".join(lines)
 
 
@@ -988,9 +990,12 @@ def assess(
         withheld = cal.notes[0]
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
+    holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
+    holes_note = raster_holes_note({"raster_holes_cells": holes}, dem.n_valid)
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
-                                                      config=config, withheld=withheld))
+                                                      config=config, withheld=withheld,
+                                                      cautions=[holes_note] if holes_note else []))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,
@@ -1005,6 +1010,8 @@ def assess(
         "lonlat": lonlat,
         "weights": core.profiles.weights,
     }
+    if holes:  # cells where a raster has no value read its reference (profiles.chi.chi_weights)
+        automatic["raster_holes_cells"] = holes
     return Assessment(config=config, dem=dem, flow=core.flow, channels=core.channels, sides=core.sides,
                       base=core.base, divide=core.divide, profiles=core.profiles, points=core.points,
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,

@@ -15,6 +15,7 @@ from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.hilltops import hilltop_contrast, hilltop_curvature, hilltop_window
 from divides.assess.pooling import label_outlets, pool_short
+from divides.assess.raster_holes import raster_holes_cells
 from divides.assess.segment_motion import (
     INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
@@ -33,6 +34,7 @@ from divides.assess.verdict import CAUTION, decide
 from divides.config import AssessConfig
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.io.memory import row_blocks
 from divides.model.forward_run import MAX_CELLS
 from divides.model.landscape_shift import landscape_shifts, model_start
 from divides.model.transience import basin_transience, transience_spread
@@ -261,18 +263,6 @@ def motion_azimuth(line: DivideLine, dem: Dem, toward: str,
     return float(math.degrees(math.atan2(sign * axis[1], -sign * axis[0])) % 360.0)
 
 
-def _row_blocks(shape: tuple[int, int], cells: int = 1 << 22) -> list[slice]:
-    """Blocks of whole rows of about ``cells`` cells: grid-wide counts without a grid-sized temporary (10^9 cells).
-
-    Examples
-    --------
-    >>> _row_blocks((5, 2), cells=4)
-    [slice(0, 2, None), slice(2, 4, None), slice(4, 6, None)]
-    """
-    step = max(1, cells // max(1, shape[1]))
-    return [slice(r, r + step) for r in range(0, shape[0], step)]
-
-
 def _labelled_count(labels: np.ndarray) -> int:
     """How many distinct labels above 0 a label grid holds (no sort and no copy of the grid).
 
@@ -283,24 +273,15 @@ def _labelled_count(labels: np.ndarray) -> int:
     """
     top = int(labels.max()) if labels.size else 0
     seen = np.zeros(top + 1, dtype=bool)
-    for rows in _row_blocks(labels.shape):
+    for rows in row_blocks(labels.shape):
         seen |= np.bincount(labels[rows].ravel(), minlength=top + 1) > 0
     return int(np.count_nonzero(seen[1:]))
-
-
-def _holes(dem: Dem, grid: np.ndarray | float) -> int:
-    """Valid DEM cells where a weighting raster has no finite value (0 for a single value), a block of rows at a
-    time."""
-    arr = np.asarray(grid)
-    if arr.shape != dem.shape:
-        return 0
-    return sum(int(np.count_nonzero(dem.valid[rows] & ~np.isfinite(arr[rows]))) for rows in _row_blocks(dem.shape))
 
 
 def _labelled_area_share(dem: Dem, labels: np.ndarray) -> float:
     """Share of the DEM's valid area in labelled basins (those screened), a block of rows at a time."""
     inside = sum(float(np.dot(dem.cell_area[rows], np.count_nonzero(labels[rows] > 0, axis=1)))
-                 for rows in _row_blocks(dem.shape))
+                 for rows in row_blocks(dem.shape))
     total = float(np.dot(dem.cell_area, np.count_nonzero(dem.valid, axis=1)))
     return inside / total if total > 0 else 0.0
 
@@ -898,8 +879,7 @@ def screen(
               "divide_spacing_used_m": spacing, "workers": n_workers if scheduler is None else "cluster"}
     if forward is not None:
         params["forward_run_grid"] = forward
-    holes = {name: _holes(dem, grid) for name, grid in (("runoff", runoff), ("erodibility", erodibility_raster),
-                                                         ("uplift", uplift_raster)) if grid is not None}
+    holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
     if holes:  # cells where a raster has no value read its reference (profiles.chi.chi_weights)
         params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 from divides.errors import GridError
 
 __all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_cell", "check_fits", "fits",
-           "format_bytes", "MEMORY_LIMIT_ENV"]
+           "format_bytes", "row_blocks", "MEMORY_LIMIT_ENV"]
 
 #: Peak bytes per DEM cell of each task, beyond reading the DEM itself; ``<task>_tiled`` is the
 #: same task with conditioning and routing by tiles (:mod:`divides.terrain.tiled_flow`).
@@ -202,3 +202,15 @@ def check_fits(name: str, rows: int, cols: int, read_per_cell: float, need: Memo
         f"{format_bytes(total)} (~{per_cell:.0f} B/cell), {format_bytes(free)} is available; "
         f"{remedy} (at most about {side} x {side} cells fit)"
     )
+
+
+def row_blocks(shape: tuple[int, int], cells: int = 1 << 22) -> list[slice]:
+    """Blocks of whole rows of about ``cells`` cells: grid-wide counts without a grid-sized temporary (10^9 cells).
+
+    Examples
+    --------
+    >>> row_blocks((5, 2), cells=4)
+    [slice(0, 2, None), slice(2, 4, None), slice(4, 6, None)]
+    """
+    step = max(1, cells // max(1, shape[1]))
+    return [slice(r, r + step) for r in range(0, shape[0], step)]

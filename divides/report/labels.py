@@ -53,6 +53,7 @@ PARAMETER_LABELS: dict[str, tuple[str, str]] = {
     "lonlat": ("Side points given as longitude, latitude", ""),
     "weights": ("Weights of χ (runoff, erodibility, uplift rasters)", ""),
     "chi_weighted": ("χ weighted by rasters", ""),
+    "raster_holes_cells": ("DEM cells where a weighting raster has no value (read as its typical value)", "cells"),
     "min_basin_area_m2": ("Smallest basin screened", "m²"),
     "level": ("Basins compared", ""),
     "max_segment_m": ("Longest divide segment", "m"),

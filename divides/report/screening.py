@@ -16,6 +16,7 @@ from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 from scipy import ndimage
 
+from divides.assess.raster_holes import raster_holes_note
 from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
@@ -134,24 +135,6 @@ def unmeasured_runs_note(segments: list[dict], parameters: dict) -> str | None:
             "that spans several of the runs' basins on a side, as at --level edges, is not measured). Their "
             "instability reads no run evidence as no motion; they rank by their probability of motion when it "
             "is 0.5 or more, and a low score there is not evidence that the divide is still.")
-
-
-def raster_holes_note(parameters: dict, n_valid: int) -> str | None:
-    """The caution a screening carries when a weighting raster had no value on some of the DEM's cells
-    (``raster_holes_cells``; read there as its reference value); None otherwise.
-
-    Examples
-    --------
-    >>> raster_holes_note({"raster_holes_cells": {"runoff": 100, "uplift": 0}}, 36000)
-    "The runoff raster has no value on 100 of the DEM's cells (0.28 %); χ read its typical (reference) value there."
-    >>> raster_holes_note({"raster_holes_cells": {"runoff": 0}}, 36000)
-    """
-    holes = {k: v for k, v in (parameters.get("raster_holes_cells") or {}).items() if v}
-    if not holes:
-        return None
-    parts = [f"The {name} raster has no value on {n} of the DEM's cells ({100 * n / max(n_valid, 1):.2g} %)"
-             for name, n in holes.items()]
-    return "; ".join(parts) + "; χ read its typical (reference) value there."
 
 
 def runs_notes(result: Screening) -> list[str]:

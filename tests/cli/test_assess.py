@@ -167,6 +167,22 @@ def test_runoff_raster_weights_chi(tmp_path):
     assert b < plain[1] and a > plain[0]
 
 
+def test_a_weighting_raster_with_holes_is_named_in_the_verdict_and_summary(tmp_path):
+    # A raster's holes are read as its reference value (docs/methods.md §3); the assessment's outputs say on how many
+    # cells (a 10 x 10 block of NaN on the fully valid demo DEM: 100 cells, 100 / 36,000 = 0.28 %).
+    with rasterio.open(UPLANDS) as src:
+        rain = np.ones((src.height, src.width))
+    rain[10:20, 10:20] = np.nan
+    code, out, err = _run(["assess", str(UPLANDS), *BASE, "--json", "--quiet", "--out", str(tmp_path / "a"),
+                           "--runoff-raster", _write_like_dem(tmp_path / "rain.tif", rain)])
+    assert code == 0, err
+    summary = json.loads(out)
+    assert summary["parameters"]["raster_holes_cells"] == {"runoff": 100}
+    note = "The runoff raster has no value on 100 of the DEM's cells (0.28 %)"
+    assert note in summary["verdict"]["text"] and note in (tmp_path / "a" / "verdict.txt").read_text()
+    assert note.replace("'", "&#x27;") in (tmp_path / "a" / "report.html").read_text()
+
+
 def test_lonlat_points_snap_like_crs_points(tmp_path):
     # A valley mouth by the east edge (the lowest cell of the second column from the east, as rasterio
     # reads it), in the DEM's CRS and converted to longitude/latitude with pyproj.
