@@ -278,11 +278,17 @@ def _labelled_count(labels: np.ndarray) -> int:
     return int(np.count_nonzero(seen[1:]))
 
 
-def _labelled_area_share(dem: Dem, labels: np.ndarray) -> float:
-    """Share of the DEM's valid area in labelled basins (those screened), a block of rows at a time."""
-    inside = sum(float(np.dot(dem.cell_area[rows], np.count_nonzero(labels[rows] > 0, axis=1)))
-                 for rows in row_blocks(dem.shape))
-    total = float(np.dot(dem.cell_area, np.count_nonzero(dem.valid, axis=1)))
+def _labelled_area_share(dem: Dem, labels: np.ndarray, sea_level: float | None = None) -> float:
+    """Share of the DEM's valid area (above ``sea_level`` when given: the sea is no basin) in labelled basins (those
+    screened), a block of rows at a time."""
+    inside = total = 0.0
+    for rows in row_blocks(dem.shape):
+        land = dem.valid[rows]
+        if sea_level is not None:
+            with np.errstate(invalid="ignore"):
+                land = land & (dem.elevation[rows] > sea_level)
+        inside += float(np.dot(dem.cell_area[rows], np.count_nonzero(labels[rows] > 0, axis=1)))
+        total += float(np.dot(dem.cell_area[rows], np.count_nonzero(land, axis=1)))
     return inside / total if total > 0 else 0.0
 
 
@@ -870,7 +876,8 @@ def screen(
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
                  "reason": g["gap"], "line": g["seg"].line} for g in gaps]
-    coverage = _coverage(out, gap_rows, outlet_of) | {"screened_area_share": _labelled_area_share(dem, labels)}
+    share = _labelled_area_share(dem, labels, config.sea_level_m)
+    coverage = _coverage(out, gap_rows, outlet_of) | {"screened_area_share": share}
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
     used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
     params = {**used, "chi_weighted": weighted,

@@ -184,6 +184,8 @@ def screen(
         typer.echo(json.dumps(json.loads((written / "screening.json").read_text(encoding="utf-8")), indent=2,
                               allow_nan=False))
         return
+    from divides.report.screening import area_of, edge_of, runs_notes
+
     segs = result.segments
     moving = sum(s["moves_toward_basin"] is not None for s in segs)
     share = (result.coverage or {}).get("share")
@@ -192,7 +194,7 @@ def screen(
     typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
                                f"{100 * share:.0f} % of the divides between outlet basins judged")
                + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson); the screened basins "
-               f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % of the DEM.")
+               f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % {area_of(result.parameters)}.")
     if segs and top:
         from divides.report.labels import probability_text
         from divides.report.screening import confidence_text
@@ -206,7 +208,6 @@ def screen(
             moving = probability_text(s.get("motion_probability"))
             typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>7}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
-    from divides.report.screening import edge_of, runs_notes
 
     if level == "edges" and segs:  # the labels are the edges' own
         named = sorted({b for s in segs for b in s["basins"]})

@@ -38,7 +38,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
            "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text",
-           "raster_holes_note"]
+           "raster_holes_note", "area_of"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -135,6 +135,18 @@ def unmeasured_runs_note(segments: list[dict], parameters: dict) -> str | None:
             "that spans several of the runs' basins on a side, as at --level edges, is not measured). Their "
             "instability reads no run evidence as no motion; they rank by their probability of motion when it "
             "is 0.5 or more, and a low score there is not evidence that the divide is still.")
+
+
+def area_of(parameters: dict) -> str:
+    """What the screened area share is a share of: the DEM, or its land above ``--sea-level`` when one was given.
+
+    Examples
+    --------
+    >>> area_of({"sea_level_m": 150.0})
+    "of the DEM's land (above the sea level of 150 m)"
+    """
+    sea = parameters.get("sea_level_m")
+    return "of the DEM" if sea is None else f"of the DEM's land (above the sea level of {sea:g} m)"
 
 
 def runs_notes(result: Screening) -> list[str]:
@@ -441,7 +453,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
                 f"{100 * share:.0f} % of the {cov['outlet_divides_length_m'] / 1000:,.1f} km of divide between "
                 "outlet basins lies in judged segments") + f"; {len(result.gaps)} stretches were left out "
                 "(layers/screen_gaps.geojson), by reason, below. The screened basins cover "
-                f"{100 * cov.get('screened_area_share', 1.0):.0f} % of the DEM; the divides beside smaller basins "
+                f"{100 * cov.get('screened_area_share', 1.0):.0f} % {area_of(p)}; the divides beside smaller basins "
                 "are gaps.</p>")
     gap_table = _html._table(["reason", "length (km)"], [[e(k), f"{v / 1000:,.2f}"] for k, v in
                                                            cov.get("gap_length_by_reason_m", {}).items()],

@@ -123,6 +123,17 @@ def test_every_stretch_of_divide_is_a_segment_or_a_gap(steady, level):
         np.count_nonzero(labels > 0) / np.count_nonzero(final.valid), rel=1e-9)
 
 
+def test_with_a_sea_level_the_screened_area_is_a_share_of_the_land(steady):
+    # The sea is no basin: cells at or below --sea-level are outlets (docs/methods.md §1), so the screened share is of
+    # the cells above it, counted with numpy (cells of one size); the lowest 15 % of the land goes under the sea.
+    final, _, _ = steady
+    sea = float(np.nanpercentile(final.elevation[final.valid], 15))
+    result = screen(final, level="outlets", sea_level_m=sea, **OPTIONS)
+    land = np.count_nonzero(final.valid & (final.elevation > sea))
+    assert result.coverage["screened_area_share"] == pytest.approx(np.count_nonzero(result.labels > 0) / land,
+                                                                   rel=1e-9)
+
+
 def test_lateral_divides_are_not_assessed(steady):
     # Tributaries of one trunk (the same outlet basin) are never given a direction: their
     # divides are gaps with the reason, so no lateral segment carries a confident direction
