@@ -23,7 +23,8 @@ from divides.assess.contrasts import (
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
-from divides.assess.raster_holes import raster_holes_cells, raster_holes_note
+from divides.assess.missing_data import (interior_nodata_cells, interior_nodata_note, raster_holes_cells,
+                                         raster_holes_note)
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -119,6 +120,7 @@ class Assessment:
     forward_rate: dict | None = None
     rate_at_divide: dict | None = None
     forward_run: ForwardShift | None = None
+    interior_nodata_cells: int = 0
 
     @property
     def summary(self) -> dict:
@@ -160,7 +162,8 @@ class Assessment:
         return to_jsonable({
             "schema": SCHEMA,
             "dem": {"path": dem.path, "crs": None if dem.crs is None else dem.crs.to_string(),
-                    "shape": list(dem.shape), "cell_size_m": list(dem.cell_size_m), "geographic": dem.geographic},
+                    "shape": list(dem.shape), "cell_size_m": list(dem.cell_size_m), "geographic": dem.geographic,
+                    "interior_nodata_cells": self.interior_nodata_cells},
             "parameters": {**self.config.to_dict(), **self.automatic},
             "sides": sides,
             "divide": {**self.divide.summary(), "n_samples": self.points.size, "saddles": self.divide.saddles},
@@ -991,11 +994,12 @@ def assess(
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
-    holes_note = raster_holes_note({"raster_holes_cells": holes}, dem.n_valid)
+    voids = interior_nodata_cells(dem.valid)
+    cautions = [note for note in (raster_holes_note({"raster_holes_cells": holes}, dem.n_valid),
+                                  interior_nodata_note(voids, dem.n_valid)) if note]
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
-                                                      config=config, withheld=withheld,
-                                                      cautions=[holes_note] if holes_note else []))
+                                                      config=config, withheld=withheld, cautions=cautions))
     automatic = {
         "theta_used": core.profiles.theta,
         "theta_source": core.profiles.theta_source,
@@ -1017,4 +1021,4 @@ def assess(
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
                       knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
                       rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide,
-                      forward_run=forward)
+                      forward_run=forward, interior_nodata_cells=voids)

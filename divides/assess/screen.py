@@ -15,7 +15,7 @@ from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.hilltops import hilltop_contrast, hilltop_curvature, hilltop_window
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.raster_holes import raster_holes_cells
+from divides.assess.missing_data import interior_nodata_cells, raster_holes_cells
 from divides.assess.segment_motion import (
     INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
@@ -167,6 +167,8 @@ class Screening:
         with the lengths behind it (see :func:`_coverage`).
     n_basins : int
         Number of basins labelled (at ``level="edges"`` the labels are the edges' own, not 1..n).
+    interior_nodata_cells : int
+        Nodata cells inside the DEM's data (:func:`divides.assess.missing_data.interior_nodata_cells`).
     """
 
     dem: Dem
@@ -178,13 +180,15 @@ class Screening:
     gaps: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
     n_basins: int = 0
+    interior_nodata_cells: int = 0
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
         return to_jsonable({
             "schema": "divides.screening/1",
             "dem": {"path": self.dem.path, "crs": None if self.dem.crs is None else self.dem.crs.to_string(),
-                    "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m)},
+                    "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m),
+                    "interior_nodata_cells": self.interior_nodata_cells},
             "parameters": self.parameters,
             "n_basins": self.n_basins,
             "coverage": self.coverage,
@@ -890,4 +894,5 @@ def screen(
     if holes:  # cells where a raster has no value read its reference (profiles.chi.chi_weights)
         params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
-                     gaps=gap_rows, coverage=coverage, n_basins=n_basins)
+                     gaps=gap_rows, coverage=coverage, n_basins=n_basins,
+                     interior_nodata_cells=interior_nodata_cells(dem.valid))

@@ -184,7 +184,7 @@ def screen(
         typer.echo(json.dumps(json.loads((written / "screening.json").read_text(encoding="utf-8")), indent=2,
                               allow_nan=False))
         return
-    from divides.report.screening import area_of, edge_of, runs_notes
+    from divides.report.screening import area_of, data_notes, edge_of, runs_notes
 
     segs = result.segments
     moving = sum(s["moves_toward_basin"] is not None for s in segs)
@@ -213,7 +213,7 @@ def screen(
         named = sorted({b for s in segs for b in s["basins"]})
         typer.echo("Basins are the land draining off each edge: " + ", ".join(f"{b} {edge_of(b)}" for b in named)
                    + ".")
-    for note in runs_notes(result):
+    for note in [*runs_notes(result), *data_notes(result)]:
         typer.echo(f"Caution: {note}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "
                "professionals decide.")

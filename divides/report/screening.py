@@ -16,7 +16,7 @@ from matplotlib.colors import Normalize
 from matplotlib.lines import Line2D
 from scipy import ndimage
 
-from divides.assess.raster_holes import raster_holes_note
+from divides.assess.missing_data import interior_nodata_note, raster_holes_note
 from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
@@ -38,7 +38,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
            "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text",
-           "raster_holes_note", "area_of"]
+           "area_of", "data_notes"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -153,6 +153,13 @@ def runs_notes(result: Screening) -> list[str]:
     """The cautions a screening's landscape runs call for (:func:`coarse_runs_note`, :func:`unmeasured_runs_note`),
     as the report and the command line print them."""
     notes = (coarse_runs_note(result.parameters), unmeasured_runs_note(result.segments, result.parameters))
+    return [n for n in notes if n is not None]
+
+
+def data_notes(result: Screening) -> list[str]:
+    """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data."""
+    notes = (raster_holes_note(result.parameters, result.dem.n_valid),
+             interior_nodata_note(result.interior_nodata_cells, result.dem.n_valid))
     return [n for n in notes if n is not None]
 
 
@@ -442,7 +449,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
         "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
-    notes = [*runs_notes(result), raster_holes_note(p, result.dem.n_valid)]
+    notes = [*runs_notes(result), *data_notes(result)]
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
     lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "

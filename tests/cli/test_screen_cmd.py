@@ -148,6 +148,26 @@ def test_a_segment_without_enough_data_shows_an_unknown_confidence(write_geotiff
         out / "report.html").read_text()
 
 
+def test_nodata_inside_the_data_is_named_in_the_outputs(tmp_path, capsys):
+    # A hole of nodata inside the data is read like the sea (docs/methods.md §1): the screening counts its cells
+    # (a 4 x 5 block of NaN on the fully valid demo DEM: 20) in screening.json, the report and on the command line.
+    import rasterio
+
+    with rasterio.open(UPLANDS) as src:
+        profile = {**src.profile, "dtype": "float32", "nodata": None}
+        z = src.read(1).astype(np.float32)
+    z[60:64, 30:35] = np.nan
+    path = tmp_path / "lake.tif"
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(z, 1)
+    code = run(["screen", str(path), "--out", str(tmp_path / "s"), "--no-forward-run"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert "Caution: The DEM has 20 nodata cells inside its data" in captured.out
+    assert json.loads((tmp_path / "s" / "screening.json").read_text())["dem"]["interior_nodata_cells"] == 20
+    assert "The DEM has 20 nodata cells inside its data" in (tmp_path / "s" / "report.html").read_text()
+
+
 def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
     # A raster's holes are read as its reference value (docs/methods.md §3); the user is told how many cells that is
     # (a 10 x 10 block of NaN on a fully valid DEM: 100 cells).
