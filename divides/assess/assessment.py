@@ -950,6 +950,7 @@ def assess(
         ``result.summary`` is the ``summary.json`` document; ``result.verdict`` the verdict.
     """
     config = AssessConfig.from_options(**options)
+    voids = interior_nodata_cells(dem.valid)  # before routing: its label grid then adds nothing to the peak
 
     def weights_fn(flow: FlowGraph) -> ChiWeights | None:
         if runoff is None and erodibility_raster is None and uplift_raster is None:
@@ -994,7 +995,6 @@ def assess(
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
-    voids = interior_nodata_cells(dem.valid)
     cautions = [note for note in (raster_holes_note({"raster_holes_cells": holes}, dem.n_valid),
                                   interior_nodata_note(voids, dem.n_valid)) if note]
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,

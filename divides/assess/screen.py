@@ -786,6 +786,7 @@ def screen(
     config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):
         raise ParameterError("screen needs a fixed theta (e.g. 0.45); estimate it with `divides inspect` first")
+    voids = interior_nodata_cells(dem.valid)  # before routing: its label grid then adds nothing to the peak
     flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
                  closed_edges=config.closed_edges)
     channels = extract_channels(flow, threshold_m2=config.channel_area_m2)
@@ -895,4 +896,4 @@ def screen(
         params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage, n_basins=n_basins,
-                     interior_nodata_cells=interior_nodata_cells(dem.valid))
+                     interior_nodata_cells=voids)
