@@ -62,6 +62,9 @@ def inspect(
         ``[left, bottom, right, top]`` in CRS units.
     ``valid_share``
         Fraction (0–1) of the cells holding an elevation.
+    ``interior_nodata_cells``
+        Nodata cells in holes inside the data (not reaching the grid's edge): their rims drain into them as
+        outlets (:func:`divides.assess.missing_data.interior_nodata_cells`).
     ``elevation_m``, ``vertical_unit``
         ``[min, max]`` in metres; the unit the file stores them in.
     ``conditioning``
@@ -112,6 +115,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
 
     import divides
 
+    from divides.assess.missing_data import interior_nodata_cells
     from divides.io.memory import MemoryNeed
 
     need = MemoryNeed.of("inspect", "inspect a smaller window with --bounds")
@@ -161,6 +165,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
         "cell_height_range_m": [float(np.min(dem.dy)), float(np.max(dem.dy))],
         "bounds": [float(b) for b in described["bounds"]],
         "valid_share": described["valid_share"],
+        "interior_nodata_cells": interior_nodata_cells(dem.valid),
         "elevation_m": described["elevation_m"],
         "vertical_unit": dem.vertical_unit,
         "conditioning": {
@@ -333,7 +338,9 @@ def format_report(report: dict[str, Any]) -> str:
         ("Grid", f"{rows:,} rows x {cols:,} cols = {report['n_cells']:,} cells"),
         ("Cell size", cell_text),
         ("Bounds", bounds_text),
-        ("Valid cells", f"{100 * report['valid_share']:.2f} %"),
+        ("Valid cells", f"{100 * report['valid_share']:.2f} %" + (
+            f"; {report['interior_nodata_cells']:,} nodata cells inside the data: their rims drain into them as "
+            "outlets (lakes, or voids to fill first)" if report["interior_nodata_cells"] else "")),
         ("Elevation", z_text),
         ("Conditioning", cond_text),
         ("Outlets", f"{report['n_outlets']:,} ({report['n_outlets_draining_others']:,} draining more than their own cell)"),

@@ -376,3 +376,37 @@ def test_text_says_why_its_theta_differs_from_the_default(capsys):
     assert run(["inspect", str(UPLANDS)]) == 0
     text = " ".join(capsys.readouterr().out.split())
     assert "use the reference θ = 0.45" in text
+
+
+def test_nodata_inside_the_data_is_counted_apart_from_a_collar(capsys, tmp_path, reference):
+    # The demo DEM behind a 4-row nodata collar, with two holes inside the data: 3 x 4 and 2 x 2 cells = 16. The
+    # holes' rims drain into them as outlets (docs/methods.md §1); the collar is where the DEM ends. Counted with
+    # scipy's connected components of the 8-neighbour nodata graph, keeping those off the grid's edge.
+    z = np.vstack([np.full((4, reference["cols"]), np.nan), reference["z"]])
+    z[40:43, 50:54] = np.nan
+    z[100:102, 200:202] = np.nan
+    profile = {"driver": "GTiff", "height": z.shape[0], "width": z.shape[1], "count": 1, "dtype": "float64",
+               "crs": reference["crs"], "transform": reference["transform"] @ Affine.translation(0, -4)}
+    path = tmp_path / "holes.tif"
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(z, 1)
+    nodata = np.isnan(z)
+    idx = -np.ones(z.shape, dtype=np.int64)
+    idx[nodata] = np.arange(nodata.sum())
+    pairs = []
+    for dr, dc in ((0, 1), (1, 0), (1, 1), (1, -1)):
+        a = idx[max(0, -dr): z.shape[0] - max(0, dr), max(0, -dc): z.shape[1] - max(0, dc)]
+        b = idx[max(0, dr):, max(0, dc): z.shape[1] + min(0, dc) or None][: a.shape[0], : a.shape[1]]
+        keep = (a >= 0) & (b >= 0)
+        pairs.append(np.column_stack([a[keep], b[keep]]))
+    edges = np.concatenate(pairs)
+    n = int(nodata.sum())
+    _, comp = connected_components(coo_matrix((np.ones(len(edges)), (edges[:, 0], edges[:, 1])), shape=(n, n)),
+                                   directed=False)
+    border = np.zeros(z.shape, dtype=bool)
+    border[[0, -1], :] = border[:, [0, -1]] = True
+    outer = np.unique(comp[idx[nodata & border]])
+    expected = int(np.count_nonzero(~np.isin(comp, outer)))
+    assert expected == 16
+    assert _inspect_json(capsys, path)["interior_nodata_cells"] == expected
+    assert "16 nodata cells inside the data" in _field(_inspect(capsys, path), "Valid cells")
