@@ -136,7 +136,8 @@ def forecast(
                                overwrite=overwrite)
 
     import divides
-    from divides.cli.dem_checks import check_closed_edges, check_enough_cells, check_side_points
+    from divides.cli.dem_checks import (check_closed_edges, check_enough_cells, check_options_against_dem,
+                                        check_side_points)
     from divides.terrain.sides import parse_side
     from divides.outlook import forecast as run_forecast
     from divides.report.provenance import provenance, public_summary
@@ -147,6 +148,7 @@ def forecast(
         need = MemoryNeed.of("forecast", "forecast on a smaller window around the divide with --bounds")
         surface = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
         check_enough_cells(surface)
+        check_options_against_dem(surface, sea_level=route.sea_level, channel_area=options.get("channel_area_m2"))
         check_closed_edges(surface, route.closed_edges)
         for option, text in (("--side-a", side_a), ("--side-b", side_b)):
             check_side_points(surface, parse_side(text, lonlat=lonlat).points, option=option, text=text,

@@ -65,6 +65,11 @@ def _screen(dem: str, *extra: str) -> list[str]:
     return ["screen", dem, "--theta", "0.45", "--no-forward-run", *extra]
 
 
+def _forecast(dem: str, *extra: str) -> list[str]:
+    return ["forecast", dem, "--side-a", "west", "--side-b", "east", "--erosion-rate-a", "0.7", "--years", "1e4",
+            *extra]
+
+
 # Each case: (id, build(inputs) -> argv, words the one line must contain). The words come
 # from the brief's demand that the line says what is wrong (the option, file or value).
 def _truncated(i: Inputs) -> list[str]:
@@ -197,8 +202,7 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
      lambda i: _screen(_collared(i), "--closed-edges", "south,north", "--out", str(i.out)),
      ("--closed-edges north", "--bounds 500000,3998800,501800,4000000")),
     ("forecast with a closed edge behind a nodata collar",
-     lambda i: ["forecast", _collared(i), "--side-a", "west", "--side-b", "east", "--closed-edges", "north",
-                "--erosion-rate-a", "0.7", "--years", "1e4", "--out", str(i.out)],
+     lambda i: _forecast(_collared(i), "--closed-edges", "north", "--out", str(i.out)),
      ("--closed-edges north", "--bounds 500000,3998800,501800,4000000")),
     ("every edge closed", lambda i: _assess(i.ridge(), "--closed-edges", "north,south,east,west", "--out",
                                             str(i.out)), ("--closed-edges",)),
@@ -248,6 +252,14 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
     ("screen with a channel area as large as the DEM", lambda i: _screen(i.ridge(), "--channel-area", "1e12",
                                                                          "--out", str(i.out)),
      ("--channel-area", "whole DEM")),
+    # forecast checks the DEM as assess does (before, a flat DEM or a sea above the land ended in "side a has no
+    # channels ... lower --channel-area", and a channel area of one m² ran with every cell a channel)
+    ("forecast a flat DEM", lambda i: _forecast(i.tif("flat.tif", np.full((40, 60), 250.0, np.float32)), "--out",
+                                                str(i.out)), ("flat", "no relief")),
+    ("forecast with the sea above the land", lambda i: _forecast(i.ridge(), "--sea-level", "1e4", "--out",
+                                                                 str(i.out)), ("--sea-level",)),
+    ("forecast with a channel area under two cells", lambda i: _forecast(i.ridge(), "--channel-area", "1", "--out",
+                                                                         str(i.out)), ("--channel-area", "two cells")),
     ("screen with no basin above the minimum area", lambda i: _screen(i.ridge(), "--min-basin-area", "1e11",
                                                                       "--out", str(i.out)),
      ("no divide to screen", "minimum basin area")),
