@@ -116,10 +116,14 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
     import divides
 
     from divides.assess.missing_data import interior_nodata_cells
+    from divides.cli.dem_checks import check_closed_edges, check_options_against_dem
     from divides.io.memory import MemoryNeed
 
     need = MemoryNeed.of("inspect", "inspect a smaller window with --bounds")
     dem = divides.read_dem(read.path, **read.read_kwargs(), memory=need)
+    # a flat DEM or a sea above the land has no drainage to describe and nothing to suggest
+    check_options_against_dem(dem, sea_level=flow_options.sea_level)
+    check_closed_edges(dem, flow_options.closed_edges)
     graph = divides.route(dem, **flow_options.route_kwargs())
 
     crs = dem.crs

@@ -260,6 +260,12 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
                                                                  str(i.out)), ("--sea-level",)),
     ("forecast with a channel area under two cells", lambda i: _forecast(i.ridge(), "--channel-area", "1", "--out",
                                                                          str(i.out)), ("--channel-area", "two cells")),
+    # inspect too (before, it described a flat DEM or an all-sea one and suggested a channel area for it)
+    ("inspect a flat DEM", lambda i: ["inspect", i.tif("flat.tif", np.full((40, 60), 250.0, np.float32))],
+     ("flat", "no relief")),
+    ("inspect with the sea above the land", lambda i: ["inspect", i.ridge(), "--sea-level", "1e4"], ("--sea-level",)),
+    ("inspect with a closed edge behind a nodata collar",
+     lambda i: ["inspect", _collared(i), "--closed-edges", "north"], ("--closed-edges north", "collar")),
     ("screen with no basin above the minimum area", lambda i: _screen(i.ridge(), "--min-basin-area", "1e11",
                                                                       "--out", str(i.out)),
      ("no divide to screen", "minimum basin area")),
