@@ -124,6 +124,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
     # a flat DEM or a sea above the land has no drainage to describe and nothing to suggest
     check_options_against_dem(dem, sea_level=flow_options.sea_level)
     check_closed_edges(dem, flow_options.closed_edges)
+    voids = interior_nodata_cells(dem.valid)  # before routing, as assess and screen count them
     graph = divides.route(dem, **flow_options.route_kwargs())
 
     crs = dem.crs
@@ -169,7 +170,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
         "cell_height_range_m": [float(np.min(dem.dy)), float(np.max(dem.dy))],
         "bounds": [float(b) for b in described["bounds"]],
         "valid_share": described["valid_share"],
-        "interior_nodata_cells": interior_nodata_cells(dem.valid),
+        "interior_nodata_cells": voids,
         "elevation_m": described["elevation_m"],
         "vertical_unit": dem.vertical_unit,
         "conditioning": {
