@@ -128,7 +128,9 @@ def forecast(
     theta_v = None if theta is None else opt.parse_theta(theta)
     if theta_v is not None:
         options["theta"] = theta_v
-    n_v = _optional_number(n, "--n", "a slope exponent between 0.5 and 4")
+    # the same range and message as assess, which the forecast's assessment runs under
+    n_v = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4, low_inclusive=True,
+                            typical="1 unless known otherwise")
     if n_v is not None:
         options["n"] = n_v
     # fail before the long part: the folder first

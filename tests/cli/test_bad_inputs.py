@@ -222,6 +222,8 @@ CASES: list[tuple[str, Callable[[Inputs], list[str]], tuple[str, ...]]] = [
     ("erosion rate nan", lambda i: _assess(i.ridge(), "--erosion-rate-b", "nan", "--out", str(i.out)),
      ("--erosion-rate-b",)),
     ("slope exponent 10", lambda i: _assess(i.ridge(), "--n", "10", "--out", str(i.out)), ("--n", "'10'")),
+    ("forecast with slope exponent 10", lambda i: _forecast(i.ridge(), "--n", "10", "--out", str(i.out)),
+     ("--n", "'10'", "0.5")),
     ("negative seed", lambda i: _assess(i.ridge(), "--seed", "-1", "--out", str(i.out)), ("--seed",)),
     ("base level above every channel", lambda i: _assess(i.ridge(), "--base-level", "5000", "--out", str(i.out)),
      ("base level",)),
