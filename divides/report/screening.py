@@ -24,7 +24,8 @@ from divides.io.writing import atomic_write, write_feature_collection, write_jso
 from divides.report import html as _html
 
 from divides.report import figures as _figures
-from divides.report.figures import _HALO, _display_extent, _figure, _frame, _hillshade, map_furniture, to_png
+from divides.report.figures import (_HALO, _display_extent, _figure, _frame, _hillshade, _map_size, map_furniture,
+                                    to_png)
 from divides.report.labels import parameter_label, parameter_value, probability_text
 from divides.report.layers import _feature, _lonlat, csv_text
 from divides.report.provenance import provenance as _provenance
@@ -262,7 +263,7 @@ def regional_map(result: Screening):
     """Hillshade with every segment coloured by instability and arrows toward the victim basin."""
     dem = result.dem
     frame = _frame(dem)
-    fig = _figure(8.0, 8.0 * dem.shape[0] / max(dem.shape[1], 1) * 0.9 + 1.8)
+    fig = _figure(*_map_size(dem, frame, extra=2.0))  # the map's height, plus title, axis labels and the legend
     ax = fig.add_subplot()
     _hillshade(ax, dem, frame)
     cmap = colormaps["plasma"]  # perceptually uniform, dark (low) to bright yellow (high): high contrast on grey
@@ -329,8 +330,8 @@ def regional_map(result: Screening):
                           label=f"basin label (B + number{edges})"))
     if leaders:  # a mark on the map has its line in the legend
         handles.append(Line2D([], [], color="#0072B2", lw=0.6, label="leader from a basin label to its basin"))
-    # below the map, so no mark is hidden under it
-    ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, fontsize=7, frameon=False)
+    # below the map (and its axis labels), so no mark is hidden under it and no band is left empty
+    fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=7, frameon=False)
     ax.set_xlim(left, right)
     ax.set_ylim(bottom, top)
     ax.set_xlabel(frame.xlabel)

@@ -91,7 +91,7 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     assert any(type(a).__name__ == "AnchoredSizeBar" for a in ax.artists)
     assert {str(s["rank"]) for s in screening.segments[:25]} <= texts
     assert {f"B{b}" for b in first["basins"]} <= texts
-    legend = [t.get_text() for t in ax.get_legend().get_texts()]
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
     assert any("rank" in t for t in legend) and any("basin" in t for t in legend)
     assert "EPSG" in ax.get_xlabel() or screening.dem.crs.name in ax.get_xlabel()
 
@@ -180,16 +180,17 @@ def test_leader_lines_have_a_legend_entry(screening, monkeypatch):
     import divides.report.screening as rs
 
     monkeypatch.setattr(rs, "_FURNITURE", ((0.0, 0.0, 1.0, 1.0),))
-    ax = rs.regional_map(screening).axes[0]
+    fig = rs.regional_map(screening)
+    ax, key = fig.axes[0], fig.legends[0]
     leaders = [ln for ln in ax.get_lines() if ln.get_color() == "#0072B2"]
     assert len(leaders) == len(np.unique(screening.labels[screening.labels > 0]))
-    legend = {t.get_text(): h for t, h in zip(ax.get_legend().get_texts(), ax.get_legend().legend_handles)}
+    legend = {t.get_text(): h for t, h in zip(key.get_texts(), key.legend_handles)}
     assert any("leader" in text and h.get_color() == "#0072B2" and h.get_marker() in ("None", "", None)
                for text, h in legend.items())
     monkeypatch.undo()
-    ax = rs.regional_map(screening).axes[0]  # the demo as it is: a leader in the legend exactly when one is drawn
-    drawn = bool([ln for ln in ax.get_lines() if ln.get_color() == "#0072B2"])
-    assert drawn == any("leader" in t.get_text() for t in ax.get_legend().get_texts())
+    fig = rs.regional_map(screening)  # the demo as it is: a leader in the legend exactly when one is drawn
+    drawn = bool([ln for ln in fig.axes[0].get_lines() if ln.get_color() == "#0072B2"])
+    assert drawn == any("leader" in t.get_text() for t in fig.legends[0].get_texts())
 
 
 def test_map_lines_stop_at_the_junction_of_three_basins():
