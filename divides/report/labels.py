@@ -100,13 +100,23 @@ def parameter_label(key: str, labels: dict[str, tuple[str, str]] | None = None) 
 
 
 def parameter_value(value: Any) -> str:
-    """A value in words: numbers to 4 significant digits, yes/no, lists joined, dicts as "name: value"."""
+    """A value in words: numbers to 4 significant digits, yes/no, lists joined, dicts as "name: value".
+
+    Large numbers are written out with thousands separators (an area of 2,426,000 m², not 2.426e+06);
+    small ones keep the exponent (an erodibility of 1e-05).
+
+    Examples
+    --------
+    >>> [parameter_value(v) for v in (2425780.2, 0.45, 1e-5, 3698.0, True, None)]
+    ['2,426,000', '0.45', '1e-05', '3698', 'yes', '— (not given)']
+    """
     if value is None:
         return "— (not given)"
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
-        return f"{value:.4g}"
+        text = f"{value:.4g}"
+        return f"{float(text):,.0f}" if "e+" in text else text
     if isinstance(value, dict):
         parts = []
         for k, v in value.items():

@@ -80,6 +80,11 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     text = (out / "report.html").read_text()
     parser.feed(text)
     assert "licensed professionals" in text and "http://" not in text and "https://" not in text
+    # numbers to what they support: no lengths to the millimetre in the methods, no exponents in the table
+    # (common practice); the lengths named are the parameters', in km to 3 significant digits
+    assert not re.search(r"\d\.\d{4,}", text) and not re.search(r">[-\d.]+e\+\d+<", text)
+    p = doc["parameters"]
+    assert f"segments of at most {p['max_segment_m'] / 1000:.3g} km" in text
     assert (out / "figures" / "regional_map.png").stat().st_size > 10_000
     # the map's marks are tied to the table: rank and basin labels, a legend, scale bar, north arrow, CRS
     first = screening.segments[0]
