@@ -190,7 +190,7 @@ def screen(
     moving = sum(s["moves_toward_basin"] is not None for s in segs)
     share = (result.coverage or {}).get("share")
     typer.echo(f"{len(segs)} divide segments between {result.n_basins} basins; "
-               f"{moving} show evidence of motion.")
+               f"{moving} {'shows' if moving == 1 else 'show'} evidence of motion.")
     typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
                                f"{100 * share:.0f} % of the divides between outlet basins judged")
                + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson); the screened basins "

@@ -454,7 +454,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
     lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "
-            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} show evidence of motion.")
+            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} {'shows' if directed == 1 else 'show'} evidence of motion.")
     cov = result.coverage or {}
     share = cov.get("share")
     coverage = ("<p>Coverage: " + ("no divide between outlet basins" if share is None else
