@@ -200,14 +200,13 @@ def segment_rows(result: Screening) -> list[dict]:
 def segment_features(result: Screening) -> list[dict]:
     """RFC 7946 LineString features (WGS 84 lon/lat), one per segment, ranked."""
     features = []
-    for s in result.segments:
+    for s, row in zip(result.segments, segment_rows(result)):  # the values rounded as in segments.csv
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
-        props = {k: s.get(k) for k in ("rank", "instability", "motion_probability", "confidence", "length_m",
-                                       "basins", "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis",
-                                       "n_points", "facing_share", "divide_kind")}
-        props.update({k: s.get(k) for k in EVIDENCE_KEYS})
+        props = {k: row[k] for k in ("rank", "instability", "motion_probability", "confidence", "length_m")}
         props["basins"] = [int(b) for b in s["basins"]]
+        props.update({k: row[k] for k in ("moves_toward_basin", "motion_azimuth_deg", "verdict", "basis",
+                                          "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS)})
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
     return features
@@ -223,7 +222,8 @@ def _iter_gap_features(result: Screening):
     for g in result.gaps:
         lon, lat = _lonlat(result.dem, g["line"].x, g["line"].y)
         yield _feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
-                       {"basins": [int(b) for b in g["basins"]], "length_m": g["length_m"], "reason": g["reason"]})
+                       {"basins": [int(b) for b in g["basins"]], "length_m": round(float(g["length_m"]), 1),
+                        "reason": g["reason"]})
 
 
 def edge_of(label: int) -> str | None:
@@ -454,7 +454,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
     lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "
-            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} {'shows' if directed == 1 else 'show'} evidence of motion.")
+            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} "
+            f"{'shows' if directed == 1 else 'show'} evidence of motion.")
     cov = result.coverage or {}
     share = cov.get("share")
     coverage = ("<p>Coverage: " + ("no divide between outlet basins" if share is None else

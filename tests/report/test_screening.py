@@ -54,7 +54,8 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     ranks = [f["properties"]["rank"] for f in gj["features"]]
     assert ranks == list(range(1, len(ranks) + 1))
     inst = [f["properties"]["instability"] for f in gj["features"]]
-    assert inst == [s["instability"] for s in screening.segments]  # the file keeps the screening's ranking
+    # the file keeps the screening's ranking, to the four decimals segments.csv gives
+    assert inst == [None if s["instability"] is None else round(s["instability"], 4) for s in screening.segments]
     # docs/methods.md §7b: segments scored 0.01 or more rank first, by score, and every unknown one after them
     # (the whole order is re-derived in tests/assess/test_screen_regional.py)
     first = [v for v in inst if v is not None and v >= 0.01]
@@ -72,6 +73,11 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     with open(out / "segments.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert len(rows) == len(ranks)
+    # the GIS layer and the table carry the same numbers, rounded alike (a length to 0.1 m, a bearing to 0.1°)
+    for feat, row in zip(gj["features"], rows):
+        for key in ("instability", "motion_probability", "length_m", "motion_azimuth_deg"):
+            value = feat["properties"][key]
+            assert (row[key] == "") if value is None else float(row[key]) == value, key
     assert {"rank", "instability", "confidence", "length_m", "moves_toward_basin", "motion_azimuth_deg"} <= set(rows[0])
     # two decimals, what a calibration error of 0.02-0.08 supports, and never shown as certain (common practice)
     assert all(r["motion_probability"] == "" or len(r["motion_probability"].split(".")[-1]) <= 2 for r in rows)
