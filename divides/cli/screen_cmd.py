@@ -213,6 +213,13 @@ def screen(
         named = sorted({b for s in segs for b in s["basins"]})
         typer.echo("Basins are the land draining off each edge: " + ", ".join(f"{b} {edge_of(b)}" for b in named)
                    + ".")
+    if segs and top:  # the next step for the segment to assess first (the report lists more)
+        from divides.report.follow_up import assess_command, basin_sides, follow_up_segments
+
+        first = follow_up_segments(segs, limit=1)[0]
+        command = assess_command(result, first, basin_sides(result), dem_file=str(read.path),
+                                 command=opt.current_command())
+        typer.echo(f"Assess rank {first['rank']} on its own: {command}")
     for note in [*runs_notes(result), *data_notes(result)]:
         typer.echo(f"Caution: {note}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "

@@ -28,6 +28,7 @@ from divides.report.figures import (_HALO, _display_extent, _figure, _frame, _hi
                                     to_png)
 from divides.report.labels import parameter_label, parameter_value, probability_text
 from divides.report.layers import _feature, _lonlat, csv_text
+from divides.report.follow_up import assess_command, basin_sides, follow_up_segments
 from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
 from divides.report.text import provenance_line
@@ -46,7 +47,7 @@ MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "motion_probability", "confidence", "length_m", "basin_1", "basin_2",
             "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind",
-            *EVIDENCE_KEYS, "x_mid", "y_mid")
+            *EVIDENCE_KEYS, "x_mid", "y_mid", "side_1", "side_2")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -172,8 +173,9 @@ INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment 
 _KIND_WORDS = {"main": "main (basins drain apart)", "lateral": "lateral (basins drain the same way)"}
 
 
-def segment_rows(result: Screening) -> list[dict]:
-    """One table row per segment (the columns of segments.csv)."""
+def segment_rows(result: Screening, sides: dict[int, str] | None = None) -> list[dict]:
+    """One table row per segment (the columns of segments.csv); ``sides``: :func:`basin_sides` of ``result``."""
+    sides = basin_sides(result) if sides is None else sides
     rows = []
     for s in result.segments:
         line = s["line"]
@@ -193,14 +195,16 @@ def segment_rows(result: Screening) -> list[dict]:
             **{k: None if s.get(k) is None else round(float(s[k]), 3)
                for k in EVIDENCE_KEYS},
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
+            "side_1": sides.get(int(s["basins"][0])), "side_2": sides.get(int(s["basins"][1])),
         })
     return rows
 
 
-def segment_features(result: Screening) -> list[dict]:
-    """RFC 7946 LineString features (WGS 84 lon/lat), one per segment, ranked."""
+def segment_features(result: Screening, rows: list[dict] | None = None) -> list[dict]:
+    """RFC 7946 LineString features (WGS 84 lon/lat), one per segment, ranked; ``rows``: its :func:`segment_rows`."""
     features = []
-    for s, row in zip(result.segments, segment_rows(result)):  # the values rounded as in segments.csv
+    rows = segment_rows(result) if rows is None else rows
+    for s, row in zip(result.segments, rows):  # the values rounded as in segments.csv
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
         props = {k: row[k] for k in ("rank", "instability", "motion_probability", "confidence", "length_m")}
@@ -431,7 +435,28 @@ def _parameter_table(params: dict) -> str:
     return _html._table(["Parameter", "Value", "Unit", "Key in screening.json"], rows, numeric={1})
 
 
-def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top: int = MAP_RANKS) -> str:
+def _follow_up(result: Screening, sides: dict[int, str], document: dict) -> str:
+    """The report's section with the ``divides assess`` command of the segments to assess first."""
+    e = _html._e
+    prov = document.get("provenance") or {}
+    level = result.parameters.get("level")
+    rows = [[str(s["rank"]), f"{basin_text(s['basins'][0], level)} | {basin_text(s['basins'][1], level)}",
+             f"<code>{e(assess_command(result, s, sides, dem_file=prov.get('dem_file'), command=prov.get('command')))}"
+             "</code>"] for s in follow_up_segments(result.segments) if all(int(b) in sides for b in s["basins"])]
+    if not rows:
+        return ""
+    what = ("the edges' names: a side is all the land draining off its edge" if level == "edges" else
+            "the points at their mouths in the DEM's CRS, also in segments.csv as side_1 and side_2; a side is "
+            "everything draining to its mouth, its tributaries' basins included, so the assessment compares the "
+            "whole divide between them")
+    return ("<h2>Following up</h2><p>To assess a segment's divide on its own, run <code>divides assess</code> with "
+            f"its two basins as the sides ({what}) and the options this screening read the DEM and judged with. "
+            "Segments with a direction first:</p>"
+            + _html._table(["rank", "basins", "command"], rows, numeric={0}))
+
+
+def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sides: dict[int, str] | None = None,
+            top: int = MAP_RANKS) -> str:
     e = _html._e
     directed = sum(r["moves_toward_basin"] is not None for r in rows)
 
@@ -537,6 +562,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, top
         "<span class=\"note\">(files: figures/regional_map.png, figures/regional_map.svg)</span>"
         "</figcaption></figure>",
         f"<h2>The {min(top, len(rows))} least stable segments</h2>", table,
+        _follow_up(result, basin_sides(result) if sides is None else sides, document),
         methods, "<h2>Parameters</h2>", _parameter_table(p),
         "<h2>Caution</h2>", caution,
         f"<footer id=\"provenance\"><p>{e(provenance_line(document.get('provenance') or {}))}</p></footer>",
@@ -555,13 +581,15 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
     the command line, None from Python); no output holds a folder path.
     ``cli`` makes errors name ``--out``/``--overwrite``.
     """
-    rows = segment_rows(result)
+    sides = basin_sides(result)
+    rows = segment_rows(result, sides)
     prov = _provenance(result.dem.path, command=command)
     document = public_summary(result.to_dict(), prov)
+    document["basin_sides"] = {str(k): v for k, v in sides.items()}
     with staged_output(out_dir, overwrite=overwrite, cli=cli) as tmp:
         write_json(tmp / "screening.json", document)
         if result.dem.crs is not None:
-            write_feature_collection(tmp / "segments.geojson", segment_features(result))
+            write_feature_collection(tmp / "segments.geojson", segment_features(result, rows))
             write_feature_collection(tmp / "layers" / "screen_gaps.geojson", _iter_gap_features(result),
                                      parents=True)
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
@@ -571,7 +599,7 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
             f.write_bytes(png)
         with atomic_write(tmp / "figures" / "regional_map.svg", parents=True) as f:
             f.write_bytes(_figures.to_svg(fig))
-        write_text(tmp / "report.html", _report(result, png, rows, document))
+        write_text(tmp / "report.html", _report(result, png, rows, document, sides))
         # marks the folder as a divides output, so --overwrite may replace it later
         write_json(tmp / "summary.json", {"schema": "divides.screening/1", "provenance": prov,
                                           "n_segments": len(rows), "coverage": document.get("coverage")})

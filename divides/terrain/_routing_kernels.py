@@ -573,3 +573,16 @@ def first_downstream_value(order, rec, is_target, values, out):
         else:
             r = rec[i]
             out[i] = np.nan if r == i else out[r]
+
+
+@njit(cache=True, nogil=True)
+def label_mouths(labels, area, n_labels):
+    """Flat index of each label's cell of largest drainage area (index = label); -1 where a label has no cell."""
+    mouth = np.full(n_labels + 1, -1, dtype=np.int64)
+    best = np.full(n_labels + 1, -1.0)
+    for i in range(labels.size):
+        lab = labels[i]
+        if lab > 0 and area[i] > best[lab]:
+            best[lab] = area[i]
+            mouth[lab] = i
+    return mouth

@@ -8,7 +8,7 @@ from divides.errors import ParameterError
 from divides.terrain import _routing_kernels as _rk
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["basin_labels", "edge_outlets", "LEVELS", "EDGE_LABELS"]
+__all__ = ["basin_labels", "basin_mouths", "edge_outlets", "LEVELS", "EDGE_LABELS"]
 
 LEVELS = ("tributaries", "outlets", "edges")
 
@@ -102,3 +102,39 @@ def basin_labels(flow: FlowGraph, *, min_area_m2: float, level: str = "tributari
         sizes = np.bincount(labels, weights=np.repeat(flow.dem.cell_area, flow.shape[1]), minlength=5)
         labels[sizes[labels] < min_area_m2] = 0
     return labels.reshape(flow.shape)
+
+
+def basin_mouths(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
+    """The mouth of every basin of :func:`basin_labels` at level ``"outlets"`` or ``"tributaries"``.
+
+    Every cell of such a basin drains through one cell of it, its mouth (the outlet, or the
+    cell where the branch joins its trunk), which has the basin's largest drainage area.
+    That cell is the point to give ``divides assess`` for the basin as a side.
+
+    Parameters
+    ----------
+    flow : FlowGraph
+    labels : ndarray of int, DEM shape
+        Basin labels (0 = no basin).
+
+    Returns
+    -------
+    ndarray of int64
+        Flat index (``row * cols + col``) of each label's mouth; index = label, -1 for 0
+        and for labels without cells.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from divides.io.dem import Dem
+    >>> from divides.terrain.routing import route
+    >>> z = np.add.outer(np.arange(6.0, 0, -1), np.abs(np.arange(7) - 3.0))  # a valley draining south
+    >>> flow = route(Dem.from_array(z, cell_size=10.0))
+    >>> labels = basin_labels(flow, min_area_m2=1000.0, level="outlets")
+    >>> divmod(int(basin_mouths(flow, labels)[1]), 7)  # row, column: the valley's outlet on the south edge
+    (5, 3)
+    """
+    lab = np.ascontiguousarray(labels, dtype=np.int32).ravel()
+    top = int(lab.max()) if lab.size else 0
+    return _rk.label_mouths(lab, flow.area.ravel(), top)
+

@@ -191,3 +191,32 @@ def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
         "runoff": 100}
     page = (tmp_path / "s" / "report.html").read_text()
     assert "The runoff raster has no value on 100 of the DEM&#x27;s cells" in page
+
+
+def test_the_follow_up_command_of_a_screened_segment_runs(tmp_path, capsys):
+    # The report gives each segment to assess first its `divides assess` command: its two basins' mouths as the
+    # sides and the options the screening read the DEM with. The command must run as written (the DEM by its
+    # path here) and assess the two basins named; the sides are those of segments.csv.
+    import html
+    import re
+    import shlex
+
+    out = tmp_path / "s"
+    code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--closed-edges", "north,south",
+                "--no-forward-run"])
+    assert code == 0, capsys.readouterr().err
+    text = (out / "report.html").read_text()
+    commands = [html.unescape(c) for c in re.findall(r"<code>(divides assess [^<]*)</code>", text)]
+    assert commands
+    words = shlex.split(commands[0])
+    assert words[2] == Path(UPLANDS).name
+    assert words[words.index("--closed-edges") + 1] == "north,south"
+    with open(out / "segments.csv", newline="") as fh:
+        rows = {(r["side_1"], r["side_2"]): r for r in csv.DictReader(fh)}
+    row = rows[(words[words.index("--side-a") + 1], words[words.index("--side-b") + 1])]
+    assert words[words.index("--name-a") + 1] == f"B{row['basin_1']}"
+    capsys.readouterr()
+    code = run(["assess", UPLANDS, *words[3:], "--no-robustness", "--quiet", "--out", str(tmp_path / "a")])
+    assert code == 0, capsys.readouterr().err
+    summary = json.loads((tmp_path / "a" / "summary.json").read_text())
+    assert f"B{row['basin_1']}" in json.dumps(summary) and f"B{row['basin_2']}" in json.dumps(summary)

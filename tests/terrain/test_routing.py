@@ -16,7 +16,7 @@ from scipy import ndimage
 
 from divides import Dem, route
 from divides.errors import GridError
-from divides.terrain.basins import EDGE_LABELS, basin_labels
+from divides.terrain.basins import EDGE_LABELS, basin_labels, basin_mouths
 from divides.terrain.routing import DIRECTION_INVALID, DIRECTION_OUTLET
 
 NEIGHBOURS = [(0, 1), (1, 1), (1, 0), (1, -1), (0, -1), (-1, -1), (-1, 0), (-1, 1)]
@@ -265,6 +265,19 @@ def test_real_dem_from_matplotlib_sample_data():
         assert flow.area.ravel()[outlet] == pytest.approx(expected, rel=1e-3)
         assert np.count_nonzero(labels == label) == members.size
     assert flow.area.max() > 50e6  # a real river drains tens of km² of this 25 x 32 km tile
+    # Each tributary basin's mouth (the point a follow-up assessment takes as its side) is the one cell of the
+    # basin whose flow leaves it; every other cell's path stays inside the basin down to it (read from the
+    # networkx graph: the mouth's ancestors hold the whole basin; common practice)
+    tribs = basin_labels(flow, min_area_m2=5e6, level="tributaries")
+    mouths = basin_mouths(flow, tribs)
+    flat = tribs.ravel()
+    assert mouths[0] == -1 and flat.max() >= 20
+    for label in range(1, flat.max() + 1):
+        m = int(mouths[label])
+        rec = int(flow.receivers[m])
+        assert flat[m] == label and (rec == m or flat[rec] != label)
+        members = np.flatnonzero(flat == label)
+        assert set(members.tolist()) <= {m, *nx.ancestors(g, m)}
 
 
 

@@ -1,0 +1,154 @@
+"""The ``divides assess`` command that follows up a screened divide segment.
+
+A screening ranks where to look; the next step is an assessment of one divide with
+its two basins as the sides. A basin's side is the point at its mouth (the one cell
+every other cell of it drains through, :func:`divides.terrain.basins.basin_mouths`),
+or, where the screening labelled the regions of the DEM's edges, the edge's name.
+The command repeats the options the screening read the DEM and judged the divides
+with, so that both look at the same surface, channels and concavity.
+"""
+
+from __future__ import annotations
+
+import shlex
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from divides.config import AssessConfig
+from divides.terrain.basins import basin_mouths
+
+if TYPE_CHECKING:
+    from divides.assess.screen import Screening
+
+__all__ = ["basin_sides", "assess_command", "follow_up_segments", "FOLLOW_UP_ROWS"]
+
+#: Segments given a follow-up command in the report: those with a direction first, then by rank.
+FOLLOW_UP_ROWS = 5
+
+#: Options of ``divides screen`` that ``divides assess`` takes alike: how the DEM is read, and the rasters
+#: that weight χ (taken from the screening's command line as typed; flags take no value).
+_READ_OPTIONS = ("--band", "--bounds", "--vertical-unit", "--cell-size", "--runoff-raster", "--erodibility-raster",
+                 "--uplift-raster")
+_READ_FLAGS = ("--tiled",)
+
+
+def basin_sides(result: Screening) -> dict[int, str]:
+    """The side SPEC of every basin of a screening, as ``divides assess --side-a`` takes it.
+
+    Parameters
+    ----------
+    result : Screening
+
+    Returns
+    -------
+    dict
+        Label -> ``"x,y"`` of the basin's mouth in the DEM's CRS (to 1e-7 of a degree on a
+        geographic DEM, about 1 cm, else to 0.01 of the CRS unit), or the edge's name at
+        ``level="edges"``.
+    """
+    labels = result.labels
+    if result.parameters.get("level") == "edges":
+        from divides.terrain.basins import EDGE_LABELS
+
+        present = set(np.unique(labels).tolist())
+        return {k: edge for edge, k in EDGE_LABELS.items() if k in present}
+    mouths = basin_mouths(result.flow, labels)
+    digits = 7 if result.dem.geographic else 2
+    cols = result.dem.shape[1]
+    sides = {}
+    for label in np.flatnonzero(mouths >= 0):
+        row, col = divmod(int(mouths[label]), cols)
+        x, y = result.dem.xy(row, col)
+        sides[int(label)] = f"{round(float(x), digits):.{digits}f},{round(float(y), digits):.{digits}f}"
+    return sides
+
+
+def _typed(command: Sequence[str] | None) -> list[str]:
+    """The reading options of the screening's command line (after the program name), as typed."""
+    words = list(command or [])
+    out: list[str] = []
+    i = 0
+    while i < len(words):
+        word = words[i]
+        name = word.split("=", 1)[0]
+        if name in _READ_FLAGS:
+            out.append(word)
+        elif name in _READ_OPTIONS:
+            if "=" in word:
+                out.append(word)
+            elif i + 1 < len(words):
+                out += [word, words[i + 1]]
+                i += 1
+        i += 1
+    return out
+
+
+def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, dem_file: str | None,
+                   command: Sequence[str] | None = None, names: Sequence[str] | None = None) -> str:
+    """The ``divides assess`` command line for one screened segment's divide.
+
+    Parameters
+    ----------
+    result : Screening
+    segment : dict
+        One of ``result.segments``.
+    sides : dict
+        :func:`basin_sides` of ``result``.
+    dem_file : str or None
+        The DEM's file name (``DEM.tif`` when it was built in memory).
+    command : sequence of str, optional
+        The screening's command line (provenance ``command``), for its reading options.
+    names : two str, optional
+        Names for the two basins (default ``B<label>``).
+
+    Returns
+    -------
+    str
+        A shell-quoted command: side a is the segment's lower label, as in its verdict.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> fake = SimpleNamespace(parameters={"theta": 0.45, "channel_area_used_m2": 1e6, "dem_error_m": 1.0,
+    ...                                    "closed_edges": [], "conditioning": "fill"})
+    >>> print(assess_command(fake, {"basins": [37, 49]}, {37: "1.00,2.00", 49: "3.00,4.00"}, dem_file="my dem.tif",
+    ...                      command=["divides", "screen", "my dem.tif", "--bounds", "0,0,9,9", "--out", "s"]))
+    ... # doctest: +NORMALIZE_WHITESPACE
+    divides assess 'my dem.tif' --side-a 1.00,2.00 --side-b 3.00,4.00 --name-a B37 --name-b B49
+    --theta 0.45 --channel-area 1e+06 --bounds 0,0,9,9
+    """
+    a, b = (int(v) for v in segment["basins"])
+    name_a, name_b = names if names is not None else (f"B{a}", f"B{b}")
+    p: dict[str, Any] = result.parameters
+    words = ["divides", "assess", dem_file or "DEM.tif", "--side-a", sides[a], "--side-b", sides[b],
+             "--name-a", name_a, "--name-b", name_b, "--theta", f"{p['theta']:g}"]
+    if p.get("channel_area_used_m2"):  # the screening's own pick, which an assessment would otherwise redo
+        words += ["--channel-area", f"{p['channel_area_used_m2']:.4g}"]
+    defaults = AssessConfig()
+    if p.get("dem_error_m") is not None and p["dem_error_m"] != defaults.dem_error_m:
+        words += ["--dem-error", f"{p['dem_error_m']:g}"]
+    if p.get("dem_error_length_m") is not None:
+        words += ["--dem-error-length", f"{p['dem_error_length_m']:g}"]
+    if p.get("closed_edges"):
+        words += ["--closed-edges", ",".join(p["closed_edges"])]
+    if p.get("sea_level_m") is not None:
+        words += ["--sea-level", f"{p['sea_level_m']:g}"]
+    if p.get("conditioning") not in (None, "fill"):
+        words += ["--conditioning", str(p["conditioning"])]
+    return shlex.join(words + _typed(command))
+
+
+def follow_up_segments(segments: Sequence[dict], limit: int = FOLLOW_UP_ROWS) -> list[dict]:
+    """The segments worth an assessment first: those the decision gives a direction, in rank order, then
+    the rest by rank, at most ``limit``.
+
+    Examples
+    --------
+    >>> [s["rank"] for s in follow_up_segments([{"rank": 1, "moves_toward_basin": None},
+    ...                                         {"rank": 2, "moves_toward_basin": 7}], limit=2)]
+    [2, 1]
+    """
+    directed = [s for s in segments if s.get("moves_toward_basin") is not None]
+    return (directed + [s for s in segments if s.get("moves_toward_basin") is None])[:limit]
