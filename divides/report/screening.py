@@ -263,6 +263,17 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
     return f"B{label} ({edge} edge)" if long else f"B{label} {edge}"
 
 
+#: P(moving) from which a segment's arrow is drawn as motion; below it, as the direction the near-divide measures
+#: favour, with its own legend entry (a probability under one half says the segment more likely does not move).
+LIKELY_MOTION = 0.5
+
+#: Arrow colour, width and legend by whether motion is likely (P(moving) >= LIKELY_MOTION, or no probability).
+_ARROWS = {
+    True: ("#009E73", 1.8, "motion toward the victim basin (P(moving) ≥ 0.5)"),
+    False: ("0.45", 1.2, "direction favoured, motion unlikely (P(moving) < 0.5)"),
+}
+
+
 def regional_map(result: Screening):
     """Hillshade with every segment coloured by instability and arrows toward the victim basin."""
     dem = result.dem
@@ -294,11 +305,14 @@ def regional_map(result: Screening):
                                          linewidths=1.0, linestyles=(0, (1, 1.5)), zorder=3))
         handles.append(Line2D([], [], color="black", lw=1.0, ls=(0, (1, 1.5)), label="not assessed (gap; see table)"))
     span = max(dem.bounds[2] - dem.bounds[0], dem.bounds[3] - dem.bounds[1]) * frame.scale
-    arrows = False
+    kinds = set()
     for s in result.segments:
         if s["motion_azimuth_deg"] is None:
             continue
-        arrows = True
+        # a direction the near-divide measures favour where the probability of motion is small is drawn apart:
+        # on a hazard map an arrow reads as motion
+        likely = s.get("motion_probability") is None or s["motion_probability"] >= LIKELY_MOTION
+        kinds.add(likely)
         line = s["line"]
         mid = line.x.size // 2
         az = np.radians(s["motion_azimuth_deg"])
@@ -306,9 +320,11 @@ def regional_map(result: Screening):
         ax.annotate("", xy=(line.x[mid] * frame.scale + length * np.sin(az),
                             line.y[mid] * frame.scale + length * np.cos(az)),
                     xytext=(line.x[mid] * frame.scale, line.y[mid] * frame.scale),
-                    arrowprops={"arrowstyle": "-|>", "color": "#009E73", "lw": 1.8}, zorder=4)
-    if arrows:
-        handles.append(Line2D([], [], color="#009E73", lw=1.8, marker=">", label="motion toward the victim basin"))
+                    arrowprops={"arrowstyle": "-|>", "color": _ARROWS[likely][0], "lw": _ARROWS[likely][1]},
+                    zorder=4)
+    for likely in sorted(kinds, reverse=True):
+        color, width, label = _ARROWS[likely]
+        handles.append(Line2D([], [], color=color, lw=width, marker=">", label=label))
     for s in result.segments[:MAP_RANKS]:  # the ranks of the table, at each segment's mid-point
         line = s["line"]
         mid = line.x.size // 2
@@ -558,7 +574,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
         "<figure><img alt=\"regional map\" src=\"data:image/png;base64,"
         + base64.b64encode(png).decode("ascii") + "\"><figcaption>Divide segments coloured by instability "
         "(plasma: colour-blind safe, dark to bright); circled numbers are the ranks of the table below, "
-        "B-numbers the basins; arrows point toward the basin losing ground; dotted lines were not assessed. "
+        "B-numbers the basins; arrows point toward the basin losing ground (grey where the probability of motion is "
+        "under 0.5: a direction the near-divide measures favour, not a likely motion); dotted lines were not assessed. "
         "<span class=\"note\">(files: figures/regional_map.png, figures/regional_map.svg)</span>"
         "</figcaption></figure>",
         f"<h2>The {min(top, len(rows))} least stable segments</h2>", table,

@@ -8,6 +8,7 @@ import re
 from html.parser import HTMLParser
 
 import numpy as np
+from matplotlib.colors import to_hex
 import pytest
 from pyproj import Transformer
 
@@ -287,3 +288,24 @@ def test_edge_regions_are_named_after_the_edge_they_drain_off(tmp_path):
         assert f"B{label} {edge_of(label)}" in page
     first = result.segments[0]
     assert f"B{first['basins'][0]} {edge_of(first['basins'][0])} | B{first['basins'][1]}" in page  # the table
+
+
+def test_arrows_where_motion_is_unlikely_are_drawn_apart(screening):
+    # A segment's arrow reads as motion on a hazard map. Where the decision favours a direction but the probability
+    # of motion is under 0.5, the map draws it grey with a legend entry of its own (a legend for every mark, issue 14
+    # item 5); arrows of likely motion stay green. Checked on the demo's screening with one segment's probability
+    # set on either side of 0.5.
+    import dataclasses
+
+    import divides.report.screening as rs
+
+    directed = next(i for i, s in enumerate(screening.segments) if s["motion_azimuth_deg"] is not None)
+    for p, colour, words in ((0.2, "0.45", "motion unlikely"), (0.8, "#009E73", "motion toward the victim basin")):
+        segments = [dict(s, motion_probability=p) if i == directed else dict(s, motion_azimuth_deg=None)
+                    for i, s in enumerate(screening.segments)]
+        fig = rs.regional_map(dataclasses.replace(screening, segments=segments))
+        arrows = [t for t in fig.axes[0].texts if getattr(t, "arrow_patch", None) is not None
+                  and t.get_gid() != "north-arrow"]
+        assert len(arrows) == 1 and to_hex(arrows[0].arrow_patch.get_edgecolor()) == to_hex(colour)
+        labels = [t.get_text() for t in fig.legends[0].get_texts()]
+        assert sum("P(moving)" in t for t in labels) == 1 and any(words in t for t in labels)
