@@ -184,30 +184,33 @@ def screen(
         typer.echo(json.dumps(json.loads((written / "screening.json").read_text(encoding="utf-8")), indent=2,
                               allow_nan=False))
         return
-    from divides.report.screening import area_of, data_notes, edge_of, runs_notes
+    from divides.report.screening import area_of, data_notes, directions_text, edge_of, runs_notes
 
     segs = result.segments
-    moving = sum(s["moves_toward_basin"] is not None for s in segs)
     share = (result.coverage or {}).get("share")
-    typer.echo(f"{len(segs)} divide segments between {result.n_basins} basins; "
-               f"{moving} {'shows' if moving == 1 else 'show'} evidence of motion.")
+    typer.echo(f"{len(segs)} divide segments between {result.n_basins} basins; {directions_text(segs)}.")
     typer.echo("Coverage: " + ("no divide between outlet basins" if share is None else
                                f"{100 * share:.0f} % of the divides between outlet basins judged")
                + f"; {len(result.gaps)} stretches not assessed (layers/screen_gaps.geojson); the screened basins "
                f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % {area_of(result.parameters)}.")
     if segs and top:
         from divides.report.labels import probability_text
-        from divides.report.screening import confidence_text
+        from divides.report.screening import confidence_text, likely_motion
 
         typer.echo(f"{'rank':>4}  {'instab.':>7}  {'P(mov.)':>7}  {'conf.':>7}  {'length m':>9}  {'basins':>11}  "
                    f"{'toward':>6}  bearing")
+        unlikely = False
         for s in segs[:top]:
-            toward = "-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"])
+            toward = ("-" if s["moves_toward_basin"] is None else str(s["moves_toward_basin"]) if likely_motion(s)
+                      else f"({s['moves_toward_basin']})")
+            unlikely |= toward.startswith("(")
             bearing = "-" if s["motion_azimuth_deg"] is None else f"{s['motion_azimuth_deg']:.0f}°"
             instab, conf = probability_text(s["instability"]), confidence_text(s)
             moving = probability_text(s.get("motion_probability"))
             typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>7}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
+        if unlikely:
+            typer.echo("(n): the direction the near-divide measures favour; motion unlikely (P(moving) < 0.5).")
 
     if level == "edges" and segs:  # the labels are the edges' own
         named = sorted({b for s in segs for b in s["basins"]})

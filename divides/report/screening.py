@@ -267,6 +267,34 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
 #: favour, with its own legend entry (a probability under one half says the segment more likely does not move).
 LIKELY_MOTION = 0.5
 
+def likely_motion(segment: dict) -> bool:
+    """Whether a segment's direction is drawn and written as motion: its probability of motion is at least
+    :data:`LIKELY_MOTION` (or it has none). Otherwise the direction is the one the near-divide measures favour.
+
+    Examples
+    --------
+    >>> likely_motion({"motion_probability": 0.07}), likely_motion({"motion_probability": 0.93})
+    (False, True)
+    """
+    p = segment.get("motion_probability")
+    return p is None or p >= LIKELY_MOTION
+
+
+def directions_text(segments: list[dict]) -> str:
+    """How many segments the decision gives a direction, and how many of them are likely to move.
+
+    Examples
+    --------
+    >>> directions_text([{"moves_toward_basin": 2, "motion_probability": 0.9},
+    ...                  {"moves_toward_basin": 4, "motion_probability": 0.1}, {"moves_toward_basin": None}])
+    '2 given a direction, 1 of them likely to move (P(moving) ≥ 0.5)'
+    """
+    directed = [s for s in segments if s.get("moves_toward_basin") is not None]
+    likely = sum(likely_motion(s) for s in directed)
+    return (f"{len(directed)} given a direction" if not directed else
+            f"{len(directed)} given a direction, {likely} of them likely to move (P(moving) ≥ 0.5)")
+
+
 #: Arrow colour, width and legend by whether motion is likely (P(moving) >= LIKELY_MOTION, or no probability).
 _ARROWS = {
     True: ("#009E73", 1.8, "motion toward the victim basin (P(moving) ≥ 0.5)"),
@@ -311,7 +339,7 @@ def regional_map(result: Screening):
             continue
         # a direction the near-divide measures favour where the probability of motion is small is drawn apart:
         # on a hazard map an arrow reads as motion
-        likely = s.get("motion_probability") is None or s["motion_probability"] >= LIKELY_MOTION
+        likely = likely_motion(s)
         kinds.add(likely)
         line = s["line"]
         mid = line.x.size // 2
@@ -474,7 +502,6 @@ def _follow_up(result: Screening, sides: dict[int, str], document: dict) -> str:
 def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sides: dict[int, str] | None = None,
             top: int = MAP_RANKS) -> str:
     e = _html._e
-    directed = sum(r["moves_toward_basin"] is not None for r in rows)
 
     def name(label: int) -> str:
         return basin_text(label, result.parameters.get("level"))
@@ -485,7 +512,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
                                    e(probability_text(r["motion_probability"])), e(confidence_text(r)),
                                    f"{r['length_m']:,.0f}", f"{name(r['basin_1'])} | {name(r['basin_2'])}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
-                                   "—" if r["moves_toward_basin"] is None else name(r["moves_toward_basin"]),
+                                   "—" if r["moves_toward_basin"] is None else name(r["moves_toward_basin"])
+                                   + ("" if likely_motion(r) else " (motion unlikely)"),
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
                                    e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 4, 8})
     p = result.parameters
@@ -495,8 +523,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
     lead = (f"{len(rows)} divide segments between {result.n_basins} basins of at least "
-            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {directed} "
-            f"{'shows' if directed == 1 else 'show'} evidence of motion.")
+            f"{p['min_basin_area_m2'] / 1e6:.3g} km² ({e(p['level'])}); {e(directions_text(result.segments))}.")
     cov = result.coverage or {}
     share = cov.get("share")
     coverage = ("<p>Coverage: " + ("no divide between outlet basins" if share is None else

@@ -301,11 +301,15 @@ def test_arrows_where_motion_is_unlikely_are_drawn_apart(screening):
 
     directed = next(i for i, s in enumerate(screening.segments) if s["motion_azimuth_deg"] is not None)
     for p, colour, words in ((0.2, "0.45", "motion unlikely"), (0.8, "#009E73", "motion toward the victim basin")):
-        segments = [dict(s, motion_probability=p) if i == directed else dict(s, motion_azimuth_deg=None)
-                    for i, s in enumerate(screening.segments)]
+        segments = [dict(s, motion_probability=p) if i == directed else
+                    dict(s, motion_azimuth_deg=None, moves_toward_basin=None) for i, s in enumerate(screening.segments)]
         fig = rs.regional_map(dataclasses.replace(screening, segments=segments))
         arrows = [t for t in fig.axes[0].texts if getattr(t, "arrow_patch", None) is not None
                   and t.get_gid() != "north-arrow"]
         assert len(arrows) == 1 and to_hex(arrows[0].arrow_patch.get_edgecolor()) == to_hex(colour)
         labels = [t.get_text() for t in fig.legends[0].get_texts()]
         assert sum("P(moving)" in t for t in labels) == 1 and any(words in t for t in labels)
+        # the report's table says it in words beside the basin
+        changed = dataclasses.replace(screening, segments=segments)
+        text = rs._report(changed, b"", rs.segment_rows(changed), changed.to_dict())
+        assert ("(motion unlikely)" in text) == (p < 0.5)
