@@ -175,8 +175,9 @@ def pool_short(rows: list[dict], *, outlets: np.ndarray, min_length_m: float,
     Returns
     -------
     list of dict
-        The rows, each with ``judged_length_m`` and ``judged_lines`` (the lines of the stretch it
-        was judged on, its own first); pooled ones updated by ``judge``.
+        The rows, each with ``judged_length_m``, ``judged_lines`` (the lines of the stretch it
+        was judged on, its own first) and ``judged_pairs`` (their pairs of basins, each as
+        (label on the segment's side a, label on its side b)); pooled ones updated by ``judge``.
     """
     judged = [i for i, r in enumerate(rows) if "pts" in r]
     sub = [rows[i] for i in judged]
@@ -188,11 +189,14 @@ def pool_short(rows: list[dict], *, outlets: np.ndarray, min_length_m: float,
         chain = _chain(k, sub, near, min_length_m) if length < min_length_m else [(k, False)]
         length = sum(sub[n]["seg"].line.length_m for n, _ in chain)
         lines = [sub[n]["seg"].line for n, _ in chain]
+        pairs = [(s.label_b, s.label_a) if flip else (s.label_a, s.label_b) for s, flip in
+                 ((sub[n]["seg"], flip) for n, flip in chain)]
+        stretch = {"judged_length_m": length, "judged_lines": lines, "judged_pairs": pairs}
         if len(chain) == 1:
-            out[i] = r | {"judged_length_m": length, "judged_lines": lines}
+            out[i] = r | stretch
             continue
         pts = _pooled_points([_swap_sides(sub[n]["pts"]) if flip else sub[n]["pts"] for n, flip in chain])
-        out[i] = r | judge(pts, r) | {"judged_length_m": length, "judged_lines": lines}
+        out[i] = r | judge(pts, r) | stretch
     return out
 
 

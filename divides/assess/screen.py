@@ -157,7 +157,8 @@ class Screening:
     segments : list of dict
         One per judged segment, ranked; keys of :data:`SEGMENT_PROPERTIES` plus ``line``
         (a :class:`DivideLine`), ``judged_lines`` (the stretch it was judged on, its own line
-        first), ``contrasts``, ``reason`` and ``probabilities``.
+        first), ``judged_pairs`` (the pairs of basins of those lines, oriented as the segment's),
+        ``contrasts``, ``reason`` and ``probabilities``.
     parameters : dict
     gaps : list of dict
         Every stretch of divide between two basins that was not judged: ``basins``,
@@ -877,7 +878,7 @@ def screen(
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
             **{k: finite_or_none(r.get(k)) for k in EVIDENCE_KEYS},
-            "line": seg.line, "judged_lines": r["judged_lines"],
+            "line": seg.line, "judged_lines": r["judged_lines"], "judged_pairs": r["judged_pairs"],
         })
     gap_rows = [{"basins": [g["seg"].label_a, g["seg"].label_b], "length_m": g["seg"].line.length_m,
                  "reason": g["gap"], "line": g["seg"].line} for g in gaps]

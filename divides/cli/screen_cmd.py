@@ -222,7 +222,7 @@ def screen(
         first = follow_up_segments(segs, limit=1)[0]
         command = assess_command(result, first, basin_sides(result), dem_file=str(read.path),
                                  command=opt.current_command())
-        typer.echo(f"Assess rank {first['rank']} on its own: {command}")
+        typer.echo(f"Assess the divide of rank {first['rank']} in full: {command}")
     for note in [*runs_notes(result), *data_notes(result)]:
         typer.echo(f"Caution: {note}")
     typer.echo("A screening ranks where to look first; verify in the field. Local codes and licensed "

@@ -1,11 +1,15 @@
 """The ``divides assess`` command that follows up a screened divide segment.
 
-A screening ranks where to look; the next step is an assessment of one divide with
-its two basins as the sides. A basin's side is the point at its mouth (the one cell
-every other cell of it drains through, :func:`divides.terrain.basins.basin_mouths`),
-or, where the screening labelled the regions of the DEM's edges, the edge's name.
-The command repeats the options the screening read the DEM and judged the divides
-with, so that both look at the same surface, channels and concavity.
+A screening ranks where to look; the next step is an assessment of the divide the segment
+lies on. Its sides are the two rivers the segment's basins belong to (their outlet basins),
+each given by the point at its mouth (the one cell every other cell of it drains through,
+:func:`divides.terrain.basins.basin_mouths`), or, where the screening labelled the regions
+of the DEM's edges, the edge's name. A tributary basin's own divide with its neighbour is
+often a kilometre or two, too short to hold the independent samples an assessment needs
+(the screening pools such a segment with the divide continuing it); the rivers' divide
+holds the segment and its continuation. The command repeats the options the screening read
+the DEM and judged the divides with, so that both look at the same surface, channels and
+concavity, and snaps the points no further than half a cell, so each stays on its mouth.
 """
 
 from __future__ import annotations
@@ -17,12 +21,12 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from divides.config import AssessConfig
-from divides.terrain.basins import basin_mouths
+from divides.terrain.basins import basin_labels, basin_mouths
 
 if TYPE_CHECKING:
     from divides.assess.screen import Screening
 
-__all__ = ["basin_sides", "assess_command", "follow_up_segments", "FOLLOW_UP_ROWS"]
+__all__ = ["basin_sides", "assess_command", "follow_up_segments", "stretch_sides", "FOLLOW_UP_ROWS"]
 
 #: Segments given a follow-up command in the report: those with a direction first, then by rank.
 FOLLOW_UP_ROWS = 5
@@ -44,17 +48,23 @@ def basin_sides(result: Screening) -> dict[int, str]:
     Returns
     -------
     dict
-        Label -> ``"x,y"`` of the basin's mouth in the DEM's CRS (to 1e-7 of a degree on a
-        geographic DEM, about 1 cm, else to 0.01 of the CRS unit), or the edge's name at
-        ``level="edges"``.
+        Label -> ``"x,y"`` of the mouth of the river (outlet basin) the basin belongs to, in the
+        DEM's CRS (to 1e-7 of a degree on a geographic DEM, about 1 cm, else to 0.01 of the CRS
+        unit), or the edge's name at ``level="edges"``.
     """
     labels = result.labels
-    if result.parameters.get("level") == "edges":
+    level = result.parameters.get("level")
+    if level == "edges":
         from divides.terrain.basins import EDGE_LABELS
 
         present = set(np.unique(labels).tolist())
         return {k: edge for edge, k in EDGE_LABELS.items() if k in present}
     mouths = basin_mouths(result.flow, labels)
+    if level == "tributaries":  # every cell of a tributary basin drains to its river's outlet: read it at the mouth
+        rivers = basin_labels(result.flow, min_area_m2=result.parameters["min_basin_area_m2"], level="outlets")
+        river_mouths = basin_mouths(result.flow, rivers)
+        river_of = rivers.ravel()[np.maximum(mouths, 0)]
+        mouths = np.where((mouths >= 0) & (river_of > 0), river_mouths[river_of], mouths)
     digits = 7 if result.dem.geographic else 2
     cols = result.dem.shape[1]
     sides = {}
@@ -112,18 +122,25 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
     --------
     >>> from types import SimpleNamespace
     >>> fake = SimpleNamespace(parameters={"theta": 0.45, "channel_area_used_m2": 1e6, "dem_error_m": 1.0,
-    ...                                    "closed_edges": [], "conditioning": "fill"})
+    ...                                    "closed_edges": [], "conditioning": "fill", "level": "tributaries"},
+    ...                        dem=SimpleNamespace(dx=np.array([30.0]), dy=np.array([30.0])))
     >>> print(assess_command(fake, {"basins": [37, 49]}, {37: "1.00,2.00", 49: "3.00,4.00"}, dem_file="my dem.tif",
     ...                      command=["divides", "screen", "my dem.tif", "--bounds", "0,0,9,9", "--out", "s"]))
     ... # doctest: +NORMALIZE_WHITESPACE
-    divides assess 'my dem.tif' --side-a 1.00,2.00 --side-b 3.00,4.00 --name-a B37 --name-b B49
-    --theta 0.45 --channel-area 1e+06 --bounds 0,0,9,9
+    divides assess 'my dem.tif' --side-a 1.00,2.00 --side-b 3.00,4.00 --name-a 'river of B37'
+    --name-b 'river of B49' --theta 0.45 --snap-radius 15 --channel-area 1e+06 --bounds 0,0,9,9
     """
     a, b = (int(v) for v in segment["basins"])
-    name_a, name_b = names if names is not None else (f"B{a}", f"B{b}")
     p: dict[str, Any] = result.parameters
-    words = ["divides", "assess", dem_file or "DEM.tif", "--side-a", sides[a], "--side-b", sides[b],
+    side_a, side_b = (sides[a], sides[b]) if p.get("level") == "edges" else stretch_sides(segment, sides)
+    if names is not None:
+        name_a, name_b = names
+    else:
+        name_a, name_b = (_side_name(label, spec, p.get("level")) for label, spec in ((a, side_a), (b, side_b)))
+    words = ["divides", "assess", dem_file or "DEM.tif", "--side-a", side_a, "--side-b", side_b,
              "--name-a", name_a, "--name-b", name_b, "--theta", f"{p['theta']:g}"]
+    if p.get("level") != "edges":  # each point is a mouth: no snapping onto a larger channel nearby
+        words += ["--snap-radius", f"{0.5 * _smallest_cell_m(result):.3g}"]
     if p.get("channel_area_used_m2"):  # the screening's own pick, which an assessment would otherwise redo
         words += ["--channel-area", f"{p['channel_area_used_m2']:.4g}"]
     defaults = AssessConfig()
@@ -138,6 +155,42 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
     if p.get("conditioning") not in (None, "fill"):
         words += ["--conditioning", str(p["conditioning"])]
     return shlex.join(words + _typed(command))
+
+
+def stretch_sides(segment: dict, sides: dict[int, str]) -> tuple[str, str]:
+    """Side SPECs a and b of the stretch of divide a segment was judged on.
+
+    A short segment is judged with the segments continuing it (``judged_pairs``, each pair
+    oriented as the segment's); each side is then every river (mouth) those pairs hold on it,
+    joined with ``;``, so that the assessment reads the stretch the screening judged. A river
+    that lies on both sides (a divide that winds round it) is left to the segment's own pair.
+
+    Examples
+    --------
+    >>> stretch_sides({"basins": [3, 8], "judged_pairs": [(3, 8), (5, 8), (5, 9)]},
+    ...               {3: "1,1", 5: "2,2", 8: "7,7", 9: "7,7"})
+    ('1,1;2,2', '7,7')
+    """
+    a, b = (int(v) for v in segment["basins"])
+    pairs = segment.get("judged_pairs") or [(a, b)]
+    on_a = list(dict.fromkeys(sides[int(x)] for x, _ in pairs if int(x) in sides))
+    on_b = list(dict.fromkeys(sides[int(y)] for _, y in pairs if int(y) in sides))
+    if set(on_a) & set(on_b) or not on_a or not on_b:
+        return sides[a], sides[b]
+    return ";".join(on_a), ";".join(on_b)
+
+
+def _side_name(label: int, spec: str, level: str | None) -> str:
+    """The name of a side in the follow-up: the river of a tributary basin, or the rivers along the stretch."""
+    rivers = spec.count(";") + 1
+    if rivers > 1:
+        return f"{rivers} rivers on the side of B{label}"
+    return f"river of B{label}" if level == "tributaries" else f"B{label}"
+
+
+def _smallest_cell_m(result: Screening) -> float:
+    """The DEM's smallest cell side in metres (cells narrow toward the poles on a geographic DEM)."""
+    return float(min(np.min(result.dem.dx), np.min(result.dem.dy)))
 
 
 def follow_up_segments(segments: Sequence[dict], limit: int = FOLLOW_UP_ROWS) -> list[dict]:

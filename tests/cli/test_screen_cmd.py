@@ -194,9 +194,10 @@ def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
 
 
 def test_the_follow_up_command_of_a_screened_segment_runs(tmp_path, capsys):
-    # The report gives each segment to assess first its `divides assess` command: its two basins' mouths as the
-    # sides and the options the screening read the DEM with. The command must run as written (the DEM by its
-    # path here) and assess the two basins named; the sides are those of segments.csv.
+    # The report gives each segment to assess first its `divides assess` command: the rivers on either side of the
+    # stretch the segment was judged on, by their mouths (segments.csv's side_1 and side_2 hold each basin's river),
+    # and the options the screening read the DEM with. The command must run as written (the DEM by its path here)
+    # and assess the two sides named, the segment's basins' rivers among them.
     import html
     import re
     import shlex
@@ -206,15 +207,17 @@ def test_the_follow_up_command_of_a_screened_segment_runs(tmp_path, capsys):
                 "--no-forward-run"])
     assert code == 0, capsys.readouterr().err
     text = (out / "report.html").read_text()
-    commands = [html.unescape(c) for c in re.findall(r"<code>(divides assess [^<]*)</code>", text)]
-    assert commands
-    words = shlex.split(commands[0])
+    found = re.findall(r'<tr><td class="n">(\d+)</td><td>[^<]*</td><td><code>(divides assess [^<]*)</code>', text)
+    assert found
+    rank, command = int(found[0][0]), html.unescape(found[0][1])
+    words = shlex.split(command)
     assert words[2] == Path(UPLANDS).name
     assert words[words.index("--closed-edges") + 1] == "north,south"
     with open(out / "segments.csv", newline="") as fh:
-        rows = {(r["side_1"], r["side_2"]): r for r in csv.DictReader(fh)}
-    row = rows[(words[words.index("--side-a") + 1], words[words.index("--side-b") + 1])]
-    assert words[words.index("--name-a") + 1] == f"B{row['basin_1']}"
+        row = next(r for r in csv.DictReader(fh) if int(r["rank"]) == rank)
+    side_a, side_b = (words[words.index(o) + 1].split(";") for o in ("--side-a", "--side-b"))
+    assert row["side_1"] in side_a and row["side_2"] in side_b and not set(side_a) & set(side_b)
+    assert f"B{row['basin_1']}" in words[words.index("--name-a") + 1]
     capsys.readouterr()
     code = run(["assess", UPLANDS, *words[3:], "--no-robustness", "--quiet", "--out", str(tmp_path / "a")])
     assert code == 0, capsys.readouterr().err

@@ -313,3 +313,22 @@ def test_arrows_where_motion_is_unlikely_are_drawn_apart(screening):
         changed = dataclasses.replace(screening, segments=segments)
         text = rs._report(changed, b"", rs.segment_rows(changed), changed.to_dict())
         assert ("(motion unlikely)" in text) == (p < 0.5)
+
+
+def test_the_follow_up_reads_the_stretch_each_segment_was_judged_on(screening):
+    # A short segment is judged with the segments continuing it; its follow-up assessment takes the rivers of every
+    # pair of basins along that stretch, each on the side it holds. Each pooled neighbour keeps a basin of the chain
+    # before it on the same side (docs/methods.md §7b), so an orientation mixed up would put that basin on the other
+    # side. The segment's own pair comes first, and its rivers lie on their sides, apart (a divide that winds round a
+    # river leaves the follow-up to the segment's own pair). On the demo 28 of 30 segments are pooled.
+    from divides.report.follow_up import basin_sides, stretch_sides
+
+    pooled = [s for s in screening.segments if len(s["judged_pairs"]) > 1]
+    assert len(pooled) >= 10
+    sides = basin_sides(screening)
+    for s in screening.segments:
+        pairs = s["judged_pairs"]
+        assert tuple(pairs[0]) == tuple(s["basins"]) and len(pairs) == len(s["judged_lines"])
+        assert all(any(x == a or y == b for a, b in pairs[:k]) for k, (x, y) in enumerate(pairs) if k)
+        side_a, side_b = (text.split(";") for text in stretch_sides(s, sides))
+        assert sides[s["basins"][0]] in side_a and sides[s["basins"][1]] in side_b and not set(side_a) & set(side_b)
