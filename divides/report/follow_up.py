@@ -1,15 +1,16 @@
 """The ``divides assess`` command that follows up a screened divide segment.
 
 A screening ranks where to look; the next step is an assessment of the divide the segment
-lies on. Its sides are the two rivers the segment's basins belong to (their outlet basins),
-each given by the point at its mouth (the one cell every other cell of it drains through,
+lies on. Its sides are the rivers (outlet basins) on either side of the stretch of divide
+the segment was judged on (its own pair of basins and those it was pooled with), each given
+by the point at its mouth (the one cell every other cell of it drains through,
 :func:`divides.terrain.basins.basin_mouths`), or, where the screening labelled the regions
 of the DEM's edges, the edge's name. A tributary basin's own divide with its neighbour is
-often a kilometre or two, too short to hold the independent samples an assessment needs
-(the screening pools such a segment with the divide continuing it); the rivers' divide
-holds the segment and its continuation. The command repeats the options the screening read
-the DEM and judged the divides with, so that both look at the same surface, channels and
-concavity, and snaps the points no further than half a cell, so each stays on its mouth.
+often a kilometre or two, too short to hold the independent samples an assessment needs;
+the rivers' divide holds the stretch the screening judged. The command repeats the options
+the screening read the DEM and judged the divides with, so that both look at the same
+surface, channels and concavity, and snaps the points no further than half a cell, so each
+stays on its mouth.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from divides.config import AssessConfig
-from divides.terrain.basins import basin_labels, basin_mouths
+from divides.terrain.basins import EDGE_LABELS, basin_labels, basin_mouths
 
 if TYPE_CHECKING:
     from divides.assess.screen import Screening
@@ -55,8 +56,6 @@ def basin_sides(result: Screening) -> dict[int, str]:
     labels = result.labels
     level = result.parameters.get("level")
     if level == "edges":
-        from divides.terrain.basins import EDGE_LABELS
-
         present = set(np.unique(labels).tolist())
         return {k: edge for edge, k in EDGE_LABELS.items() if k in present}
     mouths = basin_mouths(result.flow, labels)
@@ -96,7 +95,7 @@ def _typed(command: Sequence[str] | None) -> list[str]:
 
 
 def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, dem_file: str | None,
-                   command: Sequence[str] | None = None, names: Sequence[str] | None = None) -> str:
+                   command: Sequence[str] | None = None) -> str:
     """The ``divides assess`` command line for one screened segment's divide.
 
     Parameters
@@ -110,13 +109,13 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
         The DEM's file name (``DEM.tif`` when it was built in memory).
     command : sequence of str, optional
         The screening's command line (provenance ``command``), for its reading options.
-    names : two str, optional
-        Names for the two basins (default ``B<label>``).
 
     Returns
     -------
     str
-        A shell-quoted command: side a is the segment's lower label, as in its verdict.
+        A shell-quoted command: side a holds the segment's lower label, as in its verdict; each
+        side is named after the segment's basin on it (``river of B7``, or ``3 rivers on the side
+        of B7`` for a stretch; ``B7`` when the labels are the rivers or the edges).
 
     Examples
     --------
@@ -133,10 +132,7 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
     a, b = (int(v) for v in segment["basins"])
     p: dict[str, Any] = result.parameters
     side_a, side_b = (sides[a], sides[b]) if p.get("level") == "edges" else stretch_sides(segment, sides)
-    if names is not None:
-        name_a, name_b = names
-    else:
-        name_a, name_b = (_side_name(label, spec, p.get("level")) for label, spec in ((a, side_a), (b, side_b)))
+    name_a, name_b = (_side_name(label, spec, p.get("level")) for label, spec in ((a, side_a), (b, side_b)))
     words = ["divides", "assess", dem_file or "DEM.tif", "--side-a", side_a, "--side-b", side_b,
              "--name-a", name_a, "--name-b", name_b, "--theta", f"{p['theta']:g}"]
     if p.get("level") != "edges":  # each point is a mouth: no snapping onto a larger channel nearby
