@@ -188,10 +188,9 @@ def pool_short(rows: list[dict], *, outlets: np.ndarray, min_length_m: float,
         length = r["seg"].line.length_m
         chain = _chain(k, sub, near, min_length_m) if length < min_length_m else [(k, False)]
         length = sum(sub[n]["seg"].line.length_m for n, _ in chain)
-        lines = [sub[n]["seg"].line for n, _ in chain]
-        pairs = [(s.label_b, s.label_a) if flip else (s.label_a, s.label_b) for s, flip in
-                 ((sub[n]["seg"], flip) for n, flip in chain)]
-        stretch = {"judged_length_m": length, "judged_lines": lines, "judged_pairs": pairs}
+        segs = [(sub[n]["seg"], flip) for n, flip in chain]
+        stretch = {"judged_length_m": length, "judged_lines": [s.line for s, _ in segs],
+                   "judged_pairs": [(s.label_b, s.label_a) if flip else (s.label_a, s.label_b) for s, flip in segs]}
         if len(chain) == 1:
             out[i] = r | stretch
             continue

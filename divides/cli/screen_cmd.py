@@ -195,7 +195,7 @@ def screen(
                f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % {area_of(result.parameters)}.")
     if segs and top:
         from divides.report.labels import probability_text
-        from divides.report.screening import confidence_text, likely_motion
+        from divides.report.screening import LIKELY_MOTION, confidence_text, likely_motion
 
         typer.echo(f"{'rank':>4}  {'instab.':>7}  {'P(mov.)':>7}  {'conf.':>7}  {'length m':>9}  {'basins':>11}  "
                    f"{'toward':>6}  bearing")
@@ -210,7 +210,8 @@ def screen(
             typer.echo(f"{s['rank']:>4}  {instab:>7}  {moving:>7}  {conf:>7}  {s['length_m']:9,.0f}  "
                        f"{s['basins'][0]:>5} | {s['basins'][1]:<3}  {toward:>6}  {bearing}")
         if unlikely:
-            typer.echo("(n): the direction the near-divide measures favour; motion unlikely (P(moving) < 0.5).")
+            typer.echo("(n): the direction the near-divide measures favour; motion unlikely "
+                       f"(P(moving) < {LIKELY_MOTION:g}).")
 
     if level == "edges" and segs:  # the labels are the edges' own
         named = sorted({b for s in segs for b in s["basins"]})

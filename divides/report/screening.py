@@ -267,6 +267,7 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
 #: favour, with its own legend entry (a probability under one half says the segment more likely does not move).
 LIKELY_MOTION = 0.5
 
+
 def likely_motion(segment: dict) -> bool:
     """Whether a segment's direction is drawn and written as motion: its probability of motion is at least
     :data:`LIKELY_MOTION` (or it has none). Otherwise the direction is the one the near-divide measures favour.
@@ -292,13 +293,13 @@ def directions_text(segments: list[dict]) -> str:
     directed = [s for s in segments if s.get("moves_toward_basin") is not None]
     likely = sum(likely_motion(s) for s in directed)
     return (f"{len(directed)} given a direction" if not directed else
-            f"{len(directed)} given a direction, {likely} of them likely to move (P(moving) ≥ 0.5)")
+            f"{len(directed)} given a direction, {likely} of them likely to move (P(moving) ≥ {LIKELY_MOTION:g})")
 
 
 #: Arrow colour, width and legend by whether motion is likely (P(moving) >= LIKELY_MOTION, or no probability).
 _ARROWS = {
-    True: ("#009E73", 1.8, "motion toward the victim basin (P(moving) ≥ 0.5)"),
-    False: ("0.45", 1.2, "direction favoured, motion unlikely (P(moving) < 0.5)"),
+    True: ("#009E73", 1.8, f"motion toward the victim basin (P(moving) ≥ {LIKELY_MOTION:g})"),
+    False: ("0.45", 1.2, f"direction favoured, motion unlikely (P(moving) < {LIKELY_MOTION:g})"),
 }
 
 
