@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from divides.config import AssessConfig
-from divides.terrain.basins import EDGE_LABELS, basin_labels, basin_mouths
+from divides.terrain.basins import EDGE_LABELS, basin_mouths, outlets_of
 
 if TYPE_CHECKING:
     from divides.assess.screen import Screening
@@ -53,17 +53,13 @@ def basin_sides(result: Screening) -> dict[int, str]:
         DEM's CRS (to 1e-7 of a degree on a geographic DEM, about 1 cm, else to 0.01 of the CRS
         unit), or the edge's name at ``level="edges"``.
     """
-    labels = result.labels
     level = result.parameters.get("level")
+    mouths = basin_mouths(result.flow, result.labels)  # one pass over the grid, no sort of it
     if level == "edges":
-        present = set(np.unique(labels).tolist())
-        return {k: edge for edge, k in EDGE_LABELS.items() if k in present}
-    mouths = basin_mouths(result.flow, labels)
-    if level == "tributaries":  # every cell of a tributary basin drains to its river's outlet: read it at the mouth
-        rivers = basin_labels(result.flow, min_area_m2=result.parameters["min_basin_area_m2"], level="outlets")
-        river_mouths = basin_mouths(result.flow, rivers)
-        river_of = rivers.ravel()[np.maximum(mouths, 0)]
-        mouths = np.where((mouths >= 0) & (river_of > 0), river_mouths[river_of], mouths)
+        return {k: edge for edge, k in EDGE_LABELS.items() if k < mouths.size and mouths[k] >= 0}
+    if level == "tributaries":  # a tributary basin's river is the outlet basin its mouth drains to
+        found = mouths >= 0
+        mouths[found] = outlets_of(result.flow, mouths[found])
     digits = 7 if result.dem.geographic else 2
     cols = result.dem.shape[1]
     sides = {}

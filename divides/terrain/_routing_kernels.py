@@ -586,3 +586,15 @@ def label_mouths(labels, area, n_labels):
             best[lab] = area[i]
             mouth[lab] = i
     return mouth
+
+
+@njit(cache=True, nogil=True)
+def drain_to_outlets(rec, starts):
+    """The outlet (``rec[i] == i``) each start cell drains to, following the receivers down."""
+    out = np.empty(starts.size, dtype=np.int64)
+    for k in range(starts.size):
+        i = starts[k]
+        while rec[i] != i:
+            i = rec[i]
+        out[k] = i
+    return out

@@ -8,7 +8,7 @@ from divides.errors import ParameterError
 from divides.terrain import _routing_kernels as _rk
 from divides.terrain.routing import FlowGraph
 
-__all__ = ["basin_labels", "basin_mouths", "edge_outlets", "LEVELS", "EDGE_LABELS"]
+__all__ = ["basin_labels", "basin_mouths", "outlets_of", "edge_outlets", "LEVELS", "EDGE_LABELS"]
 
 LEVELS = ("tributaries", "outlets", "edges")
 
@@ -138,3 +138,28 @@ def basin_mouths(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
     top = int(lab.max()) if lab.size else 0
     return _rk.label_mouths(lab, flow.area.ravel(), top)
 
+def outlets_of(flow: FlowGraph, cells: np.ndarray) -> np.ndarray:
+    """The outlet each cell drains to (flat indices), down the receivers: no grid-sized array.
+
+    Parameters
+    ----------
+    flow : FlowGraph
+    cells : ndarray of int
+        Flat indices (``row * cols + col``).
+
+    Returns
+    -------
+    ndarray of int64
+        The flat index of the outlet (a cell that is its own receiver) of each cell.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from divides.io.dem import Dem
+    >>> from divides.terrain.routing import route
+    >>> z = np.add.outer(np.arange(6.0, 0, -1), np.abs(np.arange(7) - 3.0))  # a valley draining south
+    >>> flow = route(Dem.from_array(z, cell_size=10.0))
+    >>> [divmod(int(i), 7) for i in outlets_of(flow, np.array([1 * 7 + 2, 3 * 7 + 3]))]
+    [(5, 3), (5, 3)]
+    """
+    return _rk.drain_to_outlets(flow.receivers, np.asarray(cells, dtype=np.int64).ravel())

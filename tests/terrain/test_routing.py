@@ -16,7 +16,7 @@ from scipy import ndimage
 
 from divides import Dem, route
 from divides.errors import GridError
-from divides.terrain.basins import EDGE_LABELS, basin_labels, basin_mouths
+from divides.terrain.basins import EDGE_LABELS, basin_labels, basin_mouths, outlets_of
 from divides.terrain.routing import DIRECTION_INVALID, DIRECTION_OUTLET
 
 NEIGHBOURS = [(0, 1), (1, 1), (1, 0), (1, -1), (0, -1), (-1, -1), (-1, 0), (-1, 1)]
@@ -278,6 +278,10 @@ def test_real_dem_from_matplotlib_sample_data():
         assert flat[m] == label and (rec == m or flat[rec] != label)
         members = np.flatnonzero(flat == label)
         assert set(members.tolist()) <= {m, *nx.ancestors(g, m)}
+    # and the outlet each mouth drains to is its one descendant without a receiver (the river's mouth)
+    found = mouths[mouths >= 0]
+    sinks = [next(v for v in [m, *nx.descendants(g, int(m))] if g.out_degree(v) == 0) for m in found]
+    assert outlets_of(flow, found).tolist() == sinks
 
 
 
