@@ -133,6 +133,8 @@ def basin_mouths(flow: FlowGraph, labels: np.ndarray) -> np.ndarray:
     >>> labels = basin_labels(flow, min_area_m2=1000.0, level="outlets")
     >>> divmod(int(basin_mouths(flow, labels)[1]), 7)  # row, column: the valley's outlet on the south edge
     (5, 3)
+    >>> [divmod(int(i), 7) for i in outlets_of(flow, np.array([1 * 7 + 2, 3 * 7 + 3]))]  # two cells draining there
+    [(5, 3), (5, 3)]
     """
     lab = np.ascontiguousarray(labels, dtype=np.int32).ravel()
     top = int(lab.max()) if lab.size else 0
@@ -150,16 +152,7 @@ def outlets_of(flow: FlowGraph, cells: np.ndarray) -> np.ndarray:
     Returns
     -------
     ndarray of int64
-        The flat index of the outlet (a cell that is its own receiver) of each cell.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from divides.io.dem import Dem
-    >>> from divides.terrain.routing import route
-    >>> z = np.add.outer(np.arange(6.0, 0, -1), np.abs(np.arange(7) - 3.0))  # a valley draining south
-    >>> flow = route(Dem.from_array(z, cell_size=10.0))
-    >>> [divmod(int(i), 7) for i in outlets_of(flow, np.array([1 * 7 + 2, 3 * 7 + 3]))]
-    [(5, 3), (5, 3)]
+        The flat index of the outlet (a cell that is its own receiver) of each cell
+        (an example is in :func:`basin_mouths`).
     """
     return _rk.drain_to_outlets(flow.receivers, np.asarray(cells, dtype=np.int64).ravel())
