@@ -516,9 +516,10 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
                                    f"{r['length_m']:,.0f}", f"{name(r['basin_1'])} | {name(r['basin_2'])}",
                                    e(_KIND_WORDS.get(r["divide_kind"], str(r["divide_kind"]))),
                                    "—" if r["moves_toward_basin"] is None else name(r["moves_toward_basin"])
-                                   + ("" if likely_motion(r) else " (motion unlikely)"),
+                                   + ("" if likely_motion(seg) else " (motion unlikely)"),
                                    "—" if r["motion_azimuth_deg"] is None else f"{r['motion_azimuth_deg']:.0f}",
-                                   e(r["basis"])] for r in rows[:top]], numeric={0, 1, 2, 3, 4, 8})
+                                   e(r["basis"])]  # the segment's unrounded probability decides, as on the map
+                                  for r, seg in zip(rows[:top], result.segments)], numeric={0, 1, 2, 3, 4, 8})
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
         "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
@@ -605,7 +606,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
         + base64.b64encode(png).decode("ascii") + "\"><figcaption>Divide segments coloured by instability "
         "(plasma: colour-blind safe, dark to bright); circled numbers are the ranks of the table below, "
         "B-numbers the basins; arrows point toward the basin losing ground (grey where the probability of motion is "
-        "under 0.5: a direction the near-divide measures favour, not a likely motion); dotted lines were not assessed. "
+        f"under {LIKELY_MOTION:g}: a direction the near-divide measures favour, not a likely motion); dotted lines "
+        "were not assessed. "
         "<span class=\"note\">(files: figures/regional_map.png, figures/regional_map.svg)</span>"
         "</figcaption></figure>",
         f"<h2>The {min(top, len(rows))} least stable segments</h2>", table,
