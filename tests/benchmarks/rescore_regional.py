@@ -499,8 +499,8 @@ def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
 #: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key as shipped from round 39 to 47
 #: (round 36's C1 with round 39's D1), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and
 #: A3-0 (round 33), N2, N5, N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds
-#: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48) and U1 (round 50, screen.rank_key as shipped now) are added
-#: below.
+#: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48), U1 (round 50, screen.rank_key as shipped now), W5 and W9
+#: (round 51), Z1 and Z2 (round 52) and M5 and M9 (round 53) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: _before_round50(m, m.get("motion_probability")),
@@ -712,6 +712,32 @@ def _pointing_promoted(least: float) -> Callable[[dict], tuple]:
 for _least, _name in ((0.5, "W5"), (0.9, "W9")):
     RANKINGS[f"{_name}: U1, and segments with a direction promoted at P >= {_least:g} (round 51)"] = \
         _pointing_promoted(_least)
+
+
+def _run_toward_verdict(m: dict) -> float | None:
+    """The larger shift of the two landscape runs toward the side the decision gives (model cells; None when the
+    segment has no direction or neither run measured it)."""
+    if not _points(m):
+        return None
+    sign = 1.0 if m["verdict"] == "b" else -1.0
+    shifts = [sign * s for s in (_shift(m), _shift(m, "forward_shift_basin_cells")) if s is not None]
+    return max(shifts) if shifts else None
+
+
+def _pointing_promoted_run(least: float) -> Callable[[dict], tuple]:
+    """Round 53's M5 and M9: as round 51's W5 and W9, but the promoted segment must also be moved at least
+    CHAIN_CELLS toward the side the decision gives by either landscape run."""
+    def key(m: dict) -> tuple:
+        p, toward = m.get("_p"), _run_toward_verdict(m)
+        promote = m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or (
+            p is not None and p >= least and toward is not None and toward >= CHAIN_CELLS)
+        return rank_key(m["_i"], {**m, "motion_probability": p}, promote=promote)
+    return key
+
+
+for _least, _name in ((0.5, "M5"), (0.9, "M9")):
+    RANKINGS[f"{_name}: W{_least * 10:g}, and a landscape run moves the segment >= 1 cell its way (round 53)"] = \
+        _pointing_promoted_run(_least)
 
 def _second_tier_by_p(beside_first: bool) -> Callable[[dict], tuple]:
     """Round 52's Z1 (``beside_first``) and Z2: U1, and where the screening is told PROMOTE_TOLD_ERROR_M or more, the
