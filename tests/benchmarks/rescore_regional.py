@@ -500,7 +500,7 @@ def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
 #: (round 36's C1 with round 39's D1), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and
 #: A3-0 (round 33), N2, N5, N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds
 #: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48), U1 (round 50, screen.rank_key as shipped now), W5 and W9
-#: (round 51), Z1 and Z2 (round 52) and M5 and M9 (round 53) are added below.
+#: (round 51), Z1 and Z2 (round 52), M5 and M9 (round 53) and G1 and G2 (round 54) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: _before_round50(m, m.get("motion_probability")),
@@ -738,6 +738,26 @@ def _pointing_promoted_run(least: float) -> Callable[[dict], tuple]:
 for _least, _name in ((0.5, "M5"), (0.9, "M9")):
     RANKINGS[f"{_name}: W{_least * 10:g}, and a landscape run moves the segment >= 1 cell its way (round 53)"] = \
         _pointing_promoted_run(_least)
+
+
+def _aimless_demoted_when_noisy(p_below: float | None) -> Callable[[dict], tuple]:
+    """Round 54's G1 (``p_below`` 0.5) and G2 (None): U1, and where the screening is told PROMOTE_TOLD_ERROR_M or
+    more, a first-tier segment without a direction (G1: and a probability of motion below ``p_below``) joins the
+    second tier, ordered as its segments and then by the score (round 39's D2 under noise)."""
+    def key(m: dict) -> tuple:
+        k, p = _u1(m), m.get("_p")
+        if (k[0] != 0 or _points(m) or m.get("_told_m", 1.0) < PROMOTE_TOLD_ERROR_M
+                or (p_below is not None and p is not None and p >= p_below)):
+            return k
+        second = rank_key(0.0, {**m, "motion_probability": None})
+        return (*second[:3], -m["_i"])
+    return key
+
+
+RANKINGS["G1: U1, and told 3 m or more, first-tier segments without a direction at P < 0.5 join the second tier "
+         "(round 54)"] = _aimless_demoted_when_noisy(0.5)
+RANKINGS["G2: U1, and told 3 m or more, every first-tier segment without a direction joins the second tier "
+         "(round 54)"] = _aimless_demoted_when_noisy(None)
 
 def _second_tier_by_p(beside_first: bool) -> Callable[[dict], tuple]:
     """Round 52's Z1 (``beside_first``) and Z2: U1, and where the screening is told PROMOTE_TOLD_ERROR_M or more, the
