@@ -487,11 +487,20 @@ def _round20(m: dict) -> tuple:
     return (1, -math.inf if shift is None or not side else -side * shift, -i)
 
 
+def _rank_key_to_53(i: float | None, evidence: dict, promote: bool = False) -> tuple:
+    """screen.rank_key as shipped from round 48 to round 53: with ``promote``, a first-tier segment without a direction
+    stayed in the first tier (round 54 moves it to the second)."""
+    likely = (promote or run_size(evidence) is None) and (evidence.get("motion_probability") or 0.0) >= 0.5
+    if i is not None and (i >= RUN_ORDER_BELOW or likely):
+        return (0, float(not _points(evidence)), -i, 0.0)
+    return rank_key(i, evidence, promote=promote)
+
+
 def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
     """screen.rank_key of a segment as shipped before round 50, its probability of motion ``p``: without ``promote``
     (round 48: a told error of 3 m or more) a segment neither landscape run measured was not promoted by it."""
     seen = p if promote or run_size(m) is not None else None
-    return rank_key(m["_i"], {**m, "motion_probability": seen}, promote=promote)
+    return _rank_key_to_53(m["_i"], {**m, "motion_probability": seen}, promote=promote)
 
 
 #: name -> sort key over segments whose instability is in ``_i`` (ties by the screened rank). "by instability" is
@@ -499,8 +508,9 @@ def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
 #: 20's (on U2), R18 round 21's (rounds 14 and 18); "shipped" is screen.rank_key as shipped from round 39 to 47
 #: (round 36's C1 with round 39's D1), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and
 #: A3-0 (round 33), N2, N5, N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds
-#: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48), U1 (round 50, screen.rank_key as shipped now), W5 and W9
-#: (round 51), Z1 and Z2 (round 52), M5 and M9 (round 53) and G1 and G2 (round 54) are added below.
+#: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48), U1 (round 50, shipped to round 53), W5 and W9 (round 51),
+#: Z1 and Z2 (round 52), M5 and M9 (round 53) and G1 and G2 (round 54; G2 is screen.rank_key as shipped now) are
+#: added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: _before_round50(m, m.get("motion_probability")),
@@ -690,10 +700,10 @@ RANKINGS["E3: Q1a where the told DEM error is 3 m or more (round 48)"] = \
 
 
 def _u1(m: dict) -> tuple:
-    """Round 50's U1, shipped: E3 (round 48), and a segment neither landscape run measured joins the first tier when
-    its probability of motion is 0.5 or more, at any told error (screen.rank_key as shipped)."""
-    return rank_key(m["_i"], {**m, "motion_probability": m.get("_p")},
-                    promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)
+    """Round 50's U1, shipped to round 53: E3 (round 48), and a segment neither landscape run measured joins the first
+    tier when its probability of motion is 0.5 or more, at any told error."""
+    return _rank_key_to_53(m["_i"], {**m, "motion_probability": m.get("_p")},
+                           promote=m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M)
 
 
 RANKINGS["U1: E3, and segments neither run measured promoted by the probability of motion (round 50)"] = _u1
@@ -705,7 +715,7 @@ def _pointing_promoted(least: float) -> Callable[[dict], tuple]:
     def key(m: dict) -> tuple:
         p = m.get("_p")
         promote = m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or (_points(m) and p is not None and p >= least)
-        return rank_key(m["_i"], {**m, "motion_probability": p}, promote=promote)
+        return _rank_key_to_53(m["_i"], {**m, "motion_probability": p}, promote=promote)
     return key
 
 
@@ -731,7 +741,7 @@ def _pointing_promoted_run(least: float) -> Callable[[dict], tuple]:
         p, toward = m.get("_p"), _run_toward_verdict(m)
         promote = m.get("_told_m", 1.0) >= PROMOTE_TOLD_ERROR_M or (
             p is not None and p >= least and toward is not None and toward >= CHAIN_CELLS)
-        return rank_key(m["_i"], {**m, "motion_probability": p}, promote=promote)
+        return _rank_key_to_53(m["_i"], {**m, "motion_probability": p}, promote=promote)
     return key
 
 
@@ -743,7 +753,8 @@ for _least, _name in ((0.5, "M5"), (0.9, "M9")):
 def _aimless_demoted_when_noisy(p_below: float | None) -> Callable[[dict], tuple]:
     """Round 54's G1 (``p_below`` 0.5) and G2 (None): U1, and where the screening is told PROMOTE_TOLD_ERROR_M or
     more, a first-tier segment without a direction (G1: and a probability of motion below ``p_below``) joins the
-    second tier, ordered as its segments and then by the score (round 39's D2 under noise)."""
+    second tier, ordered as its segments and then by the score (round 39's D2 under noise). G2 shipped: it is
+    screen.rank_key now."""
     def key(m: dict) -> tuple:
         k, p = _u1(m), m.get("_p")
         if (k[0] != 0 or _points(m) or m.get("_told_m", 1.0) < PROMOTE_TOLD_ERROR_M
