@@ -770,6 +770,7 @@ RANKINGS["G1: U1, and told 3 m or more, first-tier segments without a direction 
 RANKINGS["G2: U1, and told 3 m or more, every first-tier segment without a direction joins the second tier "
          "(round 54)"] = _aimless_demoted_when_noisy(None)
 
+
 def _second_tier_by_p(beside_first: bool) -> Callable[[dict], tuple]:
     """Round 52's Z1 (``beside_first``) and Z2: U1, and where the screening is told PROMOTE_TOLD_ERROR_M or more, the
     second tier ordered by P (Z1: the segments beside a strongly scored one still first) in place of the runs' shift;
