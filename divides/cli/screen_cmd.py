@@ -158,6 +158,7 @@ def screen(
     with opt.quiet_warnings(quiet):
         from divides.assess.screen import screen as run_screen
         from divides.cli.dem_checks import check_closed_edges, check_enough_cells, check_options_against_dem
+        from divides.report.follow_up import basin_sides
         from divides.report.screening import write_screening
         from divides.terrain.tiled_flow import tiled_routing
 
@@ -179,7 +180,9 @@ def screen(
                                     workers=workers, scheduler=scheduler, forward_run=forward_run, **grids,
                                     **{k: v for k, v in options.items() if v is not None})
         progress.stage(f"writing the outputs to {folder}")
-        written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True)
+        sides = basin_sides(result)  # one pass over the grid, for the outputs and the follow-up line below
+        written = write_screening(result, folder, overwrite=overwrite, command=opt.current_command(), cli=True,
+                                  sides=sides)
     if json_output:  # the document written, provenance included
         typer.echo(json.dumps(json.loads((written / "screening.json").read_text(encoding="utf-8")), indent=2,
                               allow_nan=False))
@@ -218,10 +221,10 @@ def screen(
         typer.echo("Basins are the land draining off each edge: " + ", ".join(f"{b} {edge_of(b)}" for b in named)
                    + ".")
     if segs and top:  # the next step for the segment to assess first (the report lists more)
-        from divides.report.follow_up import assess_command, basin_sides, follow_up_segments
+        from divides.report.follow_up import assess_command, follow_up_segments
 
         first = follow_up_segments(segs, limit=1)[0]
-        command = assess_command(result, first, basin_sides(result), dem_file=str(read.path),
+        command = assess_command(result, first, sides, dem_file=str(read.path),
                                  command=opt.current_command())
         typer.echo(f"Assess the divide of rank {first['rank']} in full: {command}")
     for note in [*runs_notes(result), *data_notes(result)]:

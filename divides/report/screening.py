@@ -623,15 +623,17 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
 
 
 def write_screening(result: Screening, out_dir, *, overwrite: bool = False, command: list[str] | None = None,
-                    cli: bool = False) -> Path:
+                    cli: bool = False, sides: dict[int, str] | None = None) -> Path:
     """Write a screening's outputs into ``out_dir`` atomically (see :func:`divides.report.writer.staged_output`).
 
     ``screening.json`` and the ``summary.json`` marker carry ``provenance``
     (see :func:`divides.report.provenance.provenance`; ``command`` as run on
     the command line, None from Python); no output holds a folder path.
-    ``cli`` makes errors name ``--out``/``--overwrite``.
+    ``cli`` makes errors name ``--out``/``--overwrite``. ``sides``: the
+    :func:`divides.report.follow_up.basin_sides` of ``result`` where the
+    caller has them already (computed here otherwise).
     """
-    sides = basin_sides(result)
+    sides = basin_sides(result) if sides is None else sides
     rows = segment_rows(result, sides)
     prov = _provenance(result.dem.path, command=command)
     document = public_summary(result.to_dict(), prov)
