@@ -228,12 +228,12 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 #: Master seed 0's held-out cases informed the second round of choices and are not used here.
 HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 23, 24, 25, 26, 27, 28,
                   29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53,
-                  54)
+                  54, 55, 56, 57)
 
 #: The held-out draws fresh to the probability of motion (round 42): its training cases took in every earlier one
 #: (seed 26 alone is fresh to round 46's told error, which seed 25's figures under 5 m of error prompted).
 PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46,
-                     47, 48, 49, 50, 51, 52, 53, 54)
+                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57)
 
 
 @functools.lru_cache(maxsize=None)
@@ -298,8 +298,8 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # 0.067 against 0.060 (seed 41), 0.073 against 0.062 (seed 42), 0.058 against 0.043 (seed 43), 0.065 against
     # 0.056 (seed 44), 0.073 against 0.096 (seed 45), 0.081 against 0.057 (seed 46), 0.077 against 0.067 (seed 47),
     # 0.072 against 0.029 (seed 49), 0.083 against 0.091 (seed 50), 0.060 against 0.047 (seed 51), 0.085 against
-    # 0.035 (seed 52: a difference of 0.04997), 0.052 against 0.044 (seed 53) and 0.056 against 0.062 (seed 54) when
-    # written;
+    # 0.035 (seed 52: a difference of 0.04997), 0.052 against 0.044 (seed 53), 0.056 against 0.062 (seed 54), 0.061
+    # against 0.065 (seed 55), 0.060 against 0.067 (seed 56) and 0.077 against 0.039 (seed 57) when written;
     # not on seed 48 (0.069 against 0.017: 4 of 238 lateral segments with a truth moved).
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
@@ -321,7 +321,9 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
                                                   "segments' own 0.094"), 36, 37, 38, 39, 40, 41, 42, 43, 44, 45,
                                   46, 47, 48, 49, 50, 51, 52, 53,
                                   _known_miss(54, "the main divide's scaling scores 0.149 against the lateral "
-                                                  "segments' own 0.159")])
+                                                  "segments' own 0.159"), 55,
+                                  _known_miss(56, "the main divide's scaling scores 0.111 against the lateral "
+                                                  "segments' own 0.144"), 57])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main divide's on
     # the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131 against 0.150 (seed 4),
@@ -337,11 +339,13 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # against 0.174 (seed 42), 0.145 against 0.170 (seed 43), 0.177 against 0.200 (seed 44), 0.209 against 0.225
     # (seed 45), 0.186 against 0.265 (seed 46), 0.153 against 0.159 (seed 47), 0.093 against 0.109 (seed 48), 0.113
     # against 0.133 (seed 49), 0.246 against 0.311 (seed 50), 0.181 against 0.222 (seed 51), 0.097 against 0.134
-    # (seed 52) and 0.181 against 0.237 (seed 53) when written
+    # (seed 52), 0.181 against 0.237 (seed 53), 0.202 against 0.244 (seed 55) and 0.103 against 0.122 (seed 57) when
+    # written
     # (on master
     # seeds 0's, 3's and 11's held-out cases it did not: 0.181 against 0.163, 0.232 against 0.209 and 0.117 against
     # 0.110, and on seeds 30's, 32's, 34's and 35's 0.103 against 0.087, 0.219 against 0.189, 0.211 against 0.205
-    # and 0.094 against 0.085, and on seed 54's 0.159 against 0.149; docs/validation.md).
+    # and 0.094 against 0.085, and on seeds 54's and 56's 0.159 against 0.149 and 0.144 against 0.111;
+    # docs/validation.md).
     own, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     main, _, _ = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["main"])
     assert own < main
@@ -410,6 +414,16 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                                   "direction)"), 53,
                                   _known_miss(54, "top target in 4 of 5 cases (partial_base_level_fall case 16: its "
                                                   "second main segment lies in a moving stretch without a "
+                                                  "direction)"),
+                                  _known_miss(55, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
+                                                  "first main segment lies 57 % in moving stretches, its second in "
+                                                  "one, neither with a direction)"),
+                                  _known_miss(56, "top target in 5 of 7 cases (partial_base_level_fall case 0: its "
+                                                  "first main segment lies 55 % in moving stretches, its second "
+                                                  "has no direction; case 8: its second lies 8 % in moving "
+                                                  "stretches)"),
+                                  _known_miss(57, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
+                                                  "three first main segments lie in moving stretches without a "
                                                   "direction)")])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
@@ -443,13 +457,14 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                   50, 51,
                                   _known_miss(52, "5 of 6 steady cases without an alarm (two lateral segments in "
                                                   "steady_erodibility_contrast case 22, 0.64 and 0.61 at confidence "
-                                                  "0.99, in stretches that did not move)"), 53, 54])
+                                                  "0.99, in stretches that did not move)"), 53, 54, 55, 56, 57])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6, 7 of 7, 3
     # of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6, 4 of 4, 5 of 5, 7 of 7, 6 of 6 and 6 of 6
     # steady cases of seeds 1-7 and 9-17, 6 of 6 of seeds 21, 23, 28, 29, 30 and 34, 7 of 7 of seeds 24, 31 and 32, 8 of
     # 8 of seed 33, 4 of 4 of seed 25, 3 of 3 of seed 27, 5, 9, 6, 5, 6, 6, 5, 7, 4, 5, 6, 4 and 5 of as many of seeds
-    # 35-40 and 42-48, 5 of 5, 6 of 6 and 8 of 8 of seeds 49-51 and 5 of 5 and 4 of 4 of seeds 53 and 54 when
+    # 35-40 and 42-48, 5 of 5, 6 of 6 and 8 of 8 of seeds 49-51, 5 of 5 and 4 of 4 of seeds 53 and 54 and 6 of 6,
+    # 3 of 3 and 3 of 3 of seeds 55-57 when
     # written, 5 of
     # 5 of seed 26 since round 47 capped lateral segments whose hilltops contradict their direction (4 of 5 before, two
     # such lateral segments in
@@ -493,15 +508,15 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
                                   _known_miss(49, "order in 2 of 3 cases (partial_base_level_fall case 8: 1 pair)"),
                                   50,
                                   _known_miss(51, "order in 2 of 3 cases (partial_base_level_fall case 0: 4 pairs)"),
-                                  52, 53, 54])
+                                  52, 53, 54, 55, 56, 57])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3, 4 of 4, 2 of 2, 5 of 5, 4 of 4, 4 of 4, 3 of 3, 6 of 6, 2 of 2, 1 of 1, 3 of 3, 4 of 4 and
     # 4 of 4 transient cases of seeds 1, 2, 3, 5, 6, 7, 9, 10, 11, 12, 16, 17 and 19 when written, 1 of 1 of seed 20
     # and 4 of 4, 2 of 2, 1 of 1, 5 of 5, 4 of 4, 3 of 3, 4 of 4, 5 of 5, 3 of 3, 6 of 6 and 6 of 6 of seeds 23, 24,
     # 26, 27, 29, 30, 31, 32, 35, 36 and 37, and 5 of 5 of seed 39, 3 of 3 of seeds 40 and 42, 4 of 4 of seed 41,
-    # 3 of 3 of seed 44, 5 of 5 of seed 45, 1 of 1 of seed 48, 3 of 3 of seed 50 and 3 of 3, 1 of 1 and 3 of 3 of
-    # seeds 52-54
+    # 3 of 3 of seed 44, 5 of 5 of seed 45, 1 of 1 of seed 48, 3 of 3 of seed 50, 3 of 3, 1 of 1 and 3 of 3 of
+    # seeds 52-54 and 3 of 3, 5 of 5 and 6 of 6 of seeds 55-57
     # (seed 2: 2 of 4 before rounds
     # 14-20's ranking; seed 5: 4 of 5 before round 30; seed 9: 1 of 3 before round 33 ranked the weakly scored
     # segments by the larger shift of both runs; seeds 3, 6, 11 and 16: 1 of 2, 3 of 4, 1 of 2 and 2 of 3 before
@@ -545,7 +560,9 @@ def test_held_out_probability_of_motion_is_calibrated(seed):
     # against 0.062 and 0.483 on seed 49 (196, 50 moving), 0.018 and 0.077 against 0.109 and 0.606 on seed 50 (250, 96
     # moving), 0.024 and 0.138 against 0.097 and 0.678 on seed 51 (342, 106 moving), 0.027 and 0.050 against 0.065
     # and 0.365 on seed 52 (234, 56 moving), 0.007 and 0.008 against 0.042 and 0.340 on seed 53 (224, 90 moving) and
-    # 0.031 and 0.127 against 0.115 and 0.944 on seed 54 (181, 88 moving) when written (round
+    # 0.031 and 0.127 against 0.115 and 0.944 on seed 54 (181, 88 moving), 0.027 and 0.087 against 0.113 and 0.856 on
+    # seed 55 (281, 124 moving), 0.026 and 0.106 against 0.095 and 0.690 on seed 56 (198, 96 moving) and 0.047 and
+    # 0.210 against 0.094 and 0.754 on seed 57 (213, 95 moving) when written (round
     # 42's fit: 0.022, 0.019 and 0.042 on seeds 23-25). A draw's figure varies: on 12-case draws of the training
     # cases it exceeded 0.05 in 11 % (docs/validation.md).
     main = [m for r in _held_out(seed) for m in r["main"]
