@@ -155,10 +155,11 @@ def test_every_work_the_methods_cite_is_listed_in_full(screening, forward_run):
     import dataclasses
     import re
 
+    from divides.report.follow_up import basin_sides
     from divides.report.screening import _report, segment_rows
 
     result = dataclasses.replace(screening, parameters={**screening.parameters, "forward_run": forward_run})
-    text = _report(result, b"", segment_rows(result), result.to_dict())
+    text = _report(result, b"", segment_rows(result), result.to_dict(), basin_sides(result))
     methods = text.split("<h2>Methods and references</h2>")[1].split("<h3>References</h3>")[0]
     listed = re.findall(r"<li>(.*?)</li>", text.split("<h3>References</h3>")[1].split("</ol>")[0])
     cited = re.findall(r"([A-Z][a-z]+)(?: et al\.| &amp; [A-Z][a-z]+)? ((?:18|19|20)\d\d)", methods)
@@ -175,10 +176,11 @@ def test_the_methods_state_the_known_false_alarms(screening, forward_run):
     # above all, and the changes the topography does not show yet.
     import dataclasses
 
+    from divides.report.follow_up import basin_sides
     from divides.report.screening import _report, segment_rows
 
     result = dataclasses.replace(screening, parameters={**screening.parameters, "forward_run": forward_run})
-    text = _report(result, b"", segment_rows(result), result.to_dict())
+    text = _report(result, b"", segment_rows(result), result.to_dict(), basin_sides(result))
     methods = text.split("<h2>Methods and references</h2>")[1].split("<h3>References</h3>")[0]
     assert "<b>Known limits</b>" in methods
     assert "step of uplift that crosses the basins" in methods and "does not show yet" in methods
@@ -311,7 +313,7 @@ def test_arrows_where_motion_is_unlikely_are_drawn_apart(screening):
         assert sum("P(moving)" in t for t in labels) == 1 and any(words in t for t in labels)
         # the report's table says it in words beside the basin
         changed = dataclasses.replace(screening, segments=segments)
-        text = rs._report(changed, b"", rs.segment_rows(changed), changed.to_dict())
+        text = rs._report(changed, b"", rs.segment_rows(changed), changed.to_dict(), rs.basin_sides(changed))
         assert ("(motion unlikely)" in text) == (p < 0.5)
 
 
