@@ -771,6 +771,30 @@ RANKINGS["G2: U1, and told 3 m or more, every first-tier segment without a direc
          "(round 54)"] = _aimless_demoted_when_noisy(None)
 
 
+_G2 = ("G2: U1, and told 3 m or more, every first-tier segment without a direction joins the second tier "
+       "(round 54)")
+
+
+def _directed_by_run(least: float | None) -> Callable[[dict], tuple]:
+    """Round 55's S1 (``least`` 0.9) and S2 (None): G2, and the first-tier segments with a direction (S1: those scored
+    at least ``least``, ahead of the others) ordered by the larger shift of the two landscape runs toward the side the
+    decision gives (larger first; neither run measured first), then by the score. Where the score saturates, it no
+    longer tells a divide that moves fast from one that barely moves."""
+    def key(m: dict) -> tuple:
+        k = RANKINGS[_G2](m)
+        if k[0] != 0 or k[1] != 0.0 or (least is not None and m["_i"] < least):
+            return k
+        toward = _run_toward_verdict(m)
+        return (0, 0.0, -2.0, -math.inf if toward is None else -toward, -m["_i"])
+    return key
+
+
+RANKINGS["S1: G2, and first-tier segments with a direction scored >= 0.9 first, by the runs' shift their way "
+         "(round 55)"] = _directed_by_run(0.9)
+RANKINGS["S2: G2, and every first-tier segment with a direction by the runs' shift its way (round 55)"] = \
+    _directed_by_run(None)
+
+
 def _second_tier_by_p(beside_first: bool) -> Callable[[dict], tuple]:
     """Round 52's Z1 (``beside_first``) and Z2: U1, and where the screening is told PROMOTE_TOLD_ERROR_M or more, the
     second tier ordered by P (Z1: the segments beside a strongly scored one still first) in place of the runs' shift;
