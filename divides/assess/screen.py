@@ -50,7 +50,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
            "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
            "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
            "neighbour_scores", "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block",
-           "PROMOTE_TOLD_ERROR_M", "beside_scored"]
+           "PROMOTE_TOLD_ERROR_M", "SATURATED_SCORE", "beside_scored"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -93,6 +93,14 @@ RUN_ORDER_BELOW = 0.01
 #: 54, 224 training cases, rule written beforehand: under 5 m of DEM error 256 targets against 254, order 40 of 62
 #: against 38, top and alarms unchanged).
 PROMOTE_TOLD_ERROR_M = 3.0
+
+#: First-tier segments with a direction scored at least this come first in :func:`rank_key`, ordered by the larger
+#: shift of the two landscape runs toward the side the decision gives (neither run measured first), then by the score:
+#: near 1 the score says a divide probably moves, not which of several moves fastest. Round 55 (224 training cases,
+#: rule and the bound written beforehand; docs/validation.md, *Regional screening*): 789 targets against 788 summed
+#: over 0, 1 and 5 m of DEM error (top 104 of 110 against 103 under 5 m, none fewer), the whole first tier so ordered
+#: 784.
+SATURATED_SCORE = 0.9
 
 #: In the tier below :data:`RUN_ORDER_BELOW`, a main segment whose line comes within this many cells of another main
 #: segment's scored at least :data:`NEIGHBOUR_SCORE` ranks first (:func:`rank_key`): a divide moves along a stretch
@@ -466,7 +474,9 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
        (as where the screening is told a DEM error of :data:`PROMOTE_TOLD_ERROR_M` or more; round 48) or where neither
        landscape run measured the segment (round 50): first the segments the decision gives a direction (``verdict``
        "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39); where
-       ``promote``, those without one join the second tier instead (round 54);
+       ``promote``, those without one join the second tier instead (round 54). Segments with a direction scored at
+       least :data:`SATURATED_SCORE` lead, by the larger shift of the two runs toward the side the decision gives
+       (neither run measured first), then by instability (round 55);
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
@@ -504,6 +514,9 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     >>> unmeasured = {"verdict": "b", "motion_probability": 0.99}  # neither run measured it
     >>> rank_key(1e-6, unmeasured) < rank_key(0.4, {**still, "verdict": "undetermined"})  # at any told error
     True
+    >>> fast, slow = {**pulled, "verdict": "b"}, {**still, "verdict": "b"}  # both scored near 1, moved 1.5 and 0.1
+    >>> rank_key(0.95, fast) < rank_key(0.99, slow) < rank_key(0.6, fast)
+    True
     """
     likely = (evidence is not None and (promote or run_size(evidence) is None)
               and (finite_or_none(evidence.get("motion_probability")) or 0.0) >= 0.5)
@@ -512,12 +525,22 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     aimless = evidence is not None and evidence.get("verdict") not in ("a", "b")
     if (instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW or likely)
             and not (aimless and promote)):
+        if evidence is not None and not aimless and instability >= SATURATED_SCORE:  # round 55
+            toward = _run_toward(evidence)
+            return (0, 0.0, -2.0, -math.inf if toward is None else -toward, -instability)
         return (0, float(aimless), -instability, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
     size = run_size(evidence)
     size = math.inf if size is None else size
     return (1, -float(beside_scored(evidence)), -size, 0.0 if instability is None else -instability)
+
+
+def _run_toward(evidence: dict) -> float | None:
+    """The larger shift of the two landscape runs toward the side the decision gives (``verdict`` "a" or "b"; model
+    cells; None when neither run measured the segment)."""
+    sign = 1.0 if evidence.get("verdict") == "b" else -1.0  # the runs' shifts are into b
+    return max((sign * s for s in run_shifts(evidence) if s is not None), default=None)
 
 
 def beside_scored(evidence: dict) -> bool:

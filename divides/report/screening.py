@@ -17,7 +17,14 @@ from matplotlib.lines import Line2D
 from scipy import ndimage
 
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
-from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
+from divides.assess.screen import (
+    CHAIN_CELLS,
+    EVIDENCE_KEYS,
+    NEIGHBOUR_CELLS,
+    NEIGHBOUR_SCORE,
+    RUN_BASIN_CELLS,
+    SATURATED_SCORE,
+)
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
@@ -580,7 +587,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
            "still divides whose evidence looks like that of moving ones can get 0.5 or more, so the ranking and "
            "the instability, not P(moving), say where to look first. Of the segments scored 0.01 or "
            "more (and those with P(moving) of 0.5 or more that neither landscape run measured or, where the "
-           "screening is told a DEM error of 3 m or more, any), those the decision gives a direction rank first; "
+           "screening is told a DEM error of 3 m or more, any), those the decision gives a direction rank first, "
+           f"those of them scored {SATURATED_SCORE:g} or more ahead, furthest moved their way by either landscape run "
+           "first (near 1 the score no longer tells which divide moves fastest); "
            "where it is told 3 m or more, those without one rank with the segments scored below 0.01. "
            "Segments scored below 0.01 "
            f"rank after the rest: on main divides, those within {NEIGHBOUR_CELLS:g} cells of a main segment "

@@ -509,8 +509,8 @@ def _before_round50(m: dict, p: float | None, promote: bool = False) -> tuple:
 #: (round 36's C1 with round 39's D1), "round 20" the one round 33 replaced; T1 (round 24), A1 (round 31), A3 and
 #: A3-0 (round 33), N2, N5, N10 and N5-0.5 (round 34; N5 shipped), C1 and C0.5 (round 36; C1 shipped in rounds
 #: 36-38), D1-D3 (round 39; D1 shipped), E3 (round 48), U1 (round 50, shipped to round 53), W5 and W9 (round 51),
-#: Z1 and Z2 (round 52), M5 and M9 (round 53) and G1 and G2 (round 54; G2 is screen.rank_key as shipped now) are
-#: added below.
+#: Z1 and Z2 (round 52), M5 and M9 (round 53), G1 and G2 (round 54; G2 shipped) and S1 and S2 (round 55; S1 is
+#: screen.rank_key as shipped now) are added below.
 RANKINGS: dict[str, Callable[[dict], tuple]] = {
     "by instability": _tiered(-math.inf, _K2),
     "shipped": lambda m: _before_round50(m, m.get("motion_probability")),
@@ -753,8 +753,8 @@ for _least, _name in ((0.5, "M5"), (0.9, "M9")):
 def _aimless_demoted_when_noisy(p_below: float | None) -> Callable[[dict], tuple]:
     """Round 54's G1 (``p_below`` 0.5) and G2 (None): U1, and where the screening is told PROMOTE_TOLD_ERROR_M or
     more, a first-tier segment without a direction (G1: and a probability of motion below ``p_below``) joins the
-    second tier, ordered as its segments and then by the score (round 39's D2 under noise). G2 shipped: it is
-    screen.rank_key now."""
+    second tier, ordered as its segments and then by the score (round 39's D2 under noise). G2 shipped in round 54;
+    screen.rank_key now is round 55's S1, built on it."""
     def key(m: dict) -> tuple:
         k, p = _u1(m), m.get("_p")
         if (k[0] != 0 or _points(m) or m.get("_told_m", 1.0) < PROMOTE_TOLD_ERROR_M
@@ -779,7 +779,7 @@ def _directed_by_run(least: float | None) -> Callable[[dict], tuple]:
     """Round 55's S1 (``least`` 0.9) and S2 (None): G2, and the first-tier segments with a direction (S1: those scored
     at least ``least``, ahead of the others) ordered by the larger shift of the two landscape runs toward the side the
     decision gives (larger first; neither run measured first), then by the score. Where the score saturates, it no
-    longer tells a divide that moves fast from one that barely moves."""
+    longer tells a divide that moves fast from one that barely moves. S1 shipped: it is screen.rank_key now."""
     def key(m: dict) -> tuple:
         k = RANKINGS[_G2](m)
         if k[0] != 0 or k[1] != 0.0 or (least is not None and m["_i"] < least):
