@@ -767,12 +767,9 @@ def _aimless_demoted_when_noisy(p_below: float | None) -> Callable[[dict], tuple
 
 RANKINGS["G1: U1, and told 3 m or more, first-tier segments without a direction at P < 0.5 join the second tier "
          "(round 54)"] = _aimless_demoted_when_noisy(0.5)
-RANKINGS["G2: U1, and told 3 m or more, every first-tier segment without a direction joins the second tier "
-         "(round 54)"] = _aimless_demoted_when_noisy(None)
-
-
 _G2 = ("G2: U1, and told 3 m or more, every first-tier segment without a direction joins the second tier "
        "(round 54)")
+RANKINGS[_G2] = _aimless_demoted_when_noisy(None)
 
 
 def _directed_by_run(least: float | None) -> Callable[[dict], tuple]:
