@@ -23,6 +23,7 @@ from divides.assess.segment_motion import (
     RUNS_AGREE_CELLS,
     TRANSIENT_BASIN,
     TRANSIENT_SPREADS,
+    bounded_instability,
     evidence_features,
     finite_or_none,
     instability_of,
@@ -50,7 +51,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
            "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
            "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
            "neighbour_scores", "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block",
-           "PROMOTE_TOLD_ERROR_M", "SATURATED_SCORE", "beside_scored"]
+           "PROMOTE_TOLD_ERROR_M", "beside_scored"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -93,14 +94,6 @@ RUN_ORDER_BELOW = 0.01
 #: 54, 224 training cases, rule written beforehand: under 5 m of DEM error 256 targets against 254, order 40 of 62
 #: against 38, top and alarms unchanged).
 PROMOTE_TOLD_ERROR_M = 3.0
-
-#: First-tier segments with a direction scored at least this come first in :func:`rank_key`, ordered by the larger
-#: shift of the two landscape runs toward the side the decision gives (neither run measured first), then by the score:
-#: near 1 the score says a divide probably moves, not which of several moves fastest. Round 55 (224 training cases,
-#: rule and the bound written beforehand; docs/validation.md, *Regional screening*): 789 targets against 788 summed
-#: over 0, 1 and 5 m of DEM error (top 104 of 110 against 103 under 5 m, none fewer), the whole first tier so ordered
-#: 784.
-SATURATED_SCORE = 0.9
 
 #: In the tier below :data:`RUN_ORDER_BELOW`, a main segment whose line comes within this many cells of another main
 #: segment's scored at least :data:`NEIGHBOUR_SCORE` ranks first (:func:`rank_key`): a divide moves along a stretch
@@ -151,7 +144,7 @@ SMALL_BASINS_REASON = ("beside basins smaller than the minimum basin area: not s
                        "basin area screens them)")
 
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
-SEGMENT_PROPERTIES = ("rank", "instability", "motion_probability", "confidence", "length_m", "basins",
+SEGMENT_PROPERTIES = ("rank", "instability", "ranking_score", "motion_probability", "confidence", "length_m", "basins",
                       "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
                       "mean_chi_a", "mean_chi_b", "divide_kind", *EVIDENCE_KEYS)
 
@@ -474,9 +467,7 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
        (as where the screening is told a DEM error of :data:`PROMOTE_TOLD_ERROR_M` or more; round 48) or where neither
        landscape run measured the segment (round 50): first the segments the decision gives a direction (``verdict``
        "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39); where
-       ``promote``, those without one join the second tier instead (round 54). Segments with a direction scored at
-       least :data:`SATURATED_SCORE` lead, by the larger shift of the two runs toward the side the decision gives
-       (neither run measured first), then by instability (round 55);
+       ``promote``, those without one join the second tier instead (round 54);
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
@@ -514,9 +505,6 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     >>> unmeasured = {"verdict": "b", "motion_probability": 0.99}  # neither run measured it
     >>> rank_key(1e-6, unmeasured) < rank_key(0.4, {**still, "verdict": "undetermined"})  # at any told error
     True
-    >>> fast, slow = {**pulled, "verdict": "b"}, {**still, "verdict": "b"}  # both scored near 1, moved 1.5 and 0.1
-    >>> rank_key(0.95, fast) < rank_key(0.99, slow) < rank_key(0.6, fast)
-    True
     """
     likely = (evidence is not None and (promote or run_size(evidence) is None)
               and (finite_or_none(evidence.get("motion_probability")) or 0.0) >= 0.5)
@@ -525,22 +513,12 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     aimless = evidence is not None and evidence.get("verdict") not in ("a", "b")
     if (instability is not None and (evidence is None or instability >= RUN_ORDER_BELOW or likely)
             and not (aimless and promote)):
-        if evidence is not None and not aimless and instability >= SATURATED_SCORE:  # round 55
-            toward = _run_toward(evidence)
-            return (0, 0.0, -2.0, -math.inf if toward is None else -toward, -instability)
         return (0, float(aimless), -instability, 0.0)
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
     size = run_size(evidence)
     size = math.inf if size is None else size
     return (1, -float(beside_scored(evidence)), -size, 0.0 if instability is None else -instability)
-
-
-def _run_toward(evidence: dict) -> float | None:
-    """The larger shift of the two landscape runs toward the side the decision gives (``verdict`` "a" or "b"; model
-    cells; None when neither run measured the segment)."""
-    sign = 1.0 if evidence.get("verdict") == "b" else -1.0  # the runs' shifts are into b
-    return max((sign * s for s in run_shifts(evidence) if s is not None), default=None)
 
 
 def beside_scored(evidence: dict) -> bool:
@@ -812,7 +790,9 @@ def screen(
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
         when it abstained for insufficient data; with the forward run, segments scored below
-        :data:`RUN_ORDER_BELOW` by their neighbours and the runs' shifts, :func:`rank_key`); every other
+        :data:`RUN_ORDER_BELOW` by their neighbours and the runs' shifts, :func:`rank_key`; that score is
+        ``ranking_score``, and ``instability`` is it never above ``motion_probability``,
+        :func:`~divides.assess.segment_motion.bounded_instability`); every other
         stretch of divide between two basins is a gap with its reason, and ``coverage`` gives the judged
         share of the divides between outlet basins.
     """
@@ -899,7 +879,8 @@ def screen(
         seg = r["seg"]
         victim = {"a": seg.label_a, "b": seg.label_b}.get(r["moves_toward"])
         out.append({
-            "rank": rank, "instability": r["instability"], "motion_probability": r["motion_probability"],
+            "rank": rank, "instability": bounded_instability(r["instability"], r["motion_probability"]),
+            "ranking_score": r["instability"], "motion_probability": r["motion_probability"],
             "confidence": r["confidence"],
             "length_m": seg.line.length_m, "basins": [seg.label_a, seg.label_b],
             "moves_toward_basin": victim,

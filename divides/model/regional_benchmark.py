@@ -622,8 +622,9 @@ def _lateral_rows(case: RegionalCase, screening, lateral: dict) -> list[dict]:
             truth = stretch_class(p, case.threshold_m_per_yr)  # "b": into the pair's second basin
             if truth in ("a", "b") and ta > tb:
                 truth = {"a": "b", "b": "a"}[truth]
-        out.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
-                    "motion_probability": s.get("motion_probability"), "probabilities": s.get("probabilities"),
+        out.append({"rank": s["rank"], "instability": s["instability"], "ranking_score": s.get("ranking_score"),
+                    "confidence": s["confidence"], "motion_probability": s.get("motion_probability"),
+                    "probabilities": s.get("probabilities"),
                     "kind": s.get("divide_kind"), "length_m": s["length_m"],
                     **{k: s.get(k) for k in EVIDENCE_KEYS},
                     "verdict": s.get("verdict"), "truth": truth, "in_moving": truth in ("a", "b"),
@@ -665,7 +666,8 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         sh = segment_stretch_shares(s["line"], case.stretches, case.threshold_m_per_yr)
         moving = sh["a"] + sh["b"]
         toward = "a" if sh["a"] >= sh["b"] else "b"
-        main.append({"rank": s["rank"], "instability": s["instability"], "confidence": s["confidence"],
+        main.append({"rank": s["rank"], "instability": s["instability"], "ranking_score": s.get("ranking_score"),
+                     "confidence": s["confidence"],
                      "motion_probability": s.get("motion_probability"), "kind": s.get("divide_kind"),
                      "verdict": s.get("verdict"),
                      "probabilities": s.get("probabilities"), "judged_length_m": s.get("judged_length_m"),
@@ -701,7 +703,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         out["lateral_moving"] = sum(m["in_moving"] for m in lat)
         out["lateral_stable"] = sum(m["in_stable"] for m in lat)
         out["lateral_alarms"] = sum(1 for m in lat if raises_alarm(m))
-    out["others"] = [{k: s.get(k) for k in ("rank", "instability", "motion_probability", "confidence",
+    out["others"] = [{k: s.get(k) for k in ("rank", "instability", "ranking_score", "motion_probability", "confidence",
                                             "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
                                             *EVIDENCE_KEYS)}

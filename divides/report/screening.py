@@ -17,14 +17,7 @@ from matplotlib.lines import Line2D
 from scipy import ndimage
 
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
-from divides.assess.screen import (
-    CHAIN_CELLS,
-    EVIDENCE_KEYS,
-    NEIGHBOUR_CELLS,
-    NEIGHBOUR_SCORE,
-    RUN_BASIN_CELLS,
-    SATURATED_SCORE,
-)
+from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
@@ -52,9 +45,9 @@ __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features"
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
 
-_COLUMNS = ("rank", "instability", "motion_probability", "confidence", "length_m", "basin_1", "basin_2",
-            "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share", "divide_kind",
-            *EVIDENCE_KEYS, "x_mid", "y_mid", "side_1", "side_2")
+_COLUMNS = ("rank", "instability", "ranking_score", "motion_probability", "confidence", "length_m", "basin_1",
+            "basin_2", "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
+            "divide_kind", *EVIDENCE_KEYS, "x_mid", "y_mid", "side_1", "side_2")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -173,7 +166,7 @@ def data_notes(result: Screening) -> list[str]:
 
 
 #: What the instability is, with the landscape evidence (True) and from the near-divide contrasts alone.
-INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment moves (0–1)",
+INSTABILITY_WORDS = {True: "instability: a score ranking how likely the segment moves, at most P(moving) (0–1)",
                      False: "instability = calibrated probability that the segment moves"}
 
 #: The divide column of the report's table (``divide_kind`` of segments.csv).
@@ -190,6 +183,7 @@ def segment_rows(result: Screening, sides: dict[int, str] | None = None) -> list
         rows.append({
             "rank": s["rank"], "confidence": s["confidence"],
             "instability": None if s["instability"] is None else round(float(s["instability"]), 4),
+            "ranking_score": None if s.get("ranking_score") is None else round(float(s["ranking_score"]), 4),
             # two decimals, as its calibration error on held-out model landscapes (0.02-0.08) supports, and never 0
             # or 1: a model's probability is not a certainty
             "motion_probability": None if s.get("motion_probability") is None
@@ -214,7 +208,8 @@ def segment_features(result: Screening, rows: list[dict] | None = None) -> list[
     for s, row in zip(result.segments, rows):  # the values rounded as in segments.csv
         line = s["line"]
         lon, lat = _lonlat(result.dem, line.x, line.y)
-        props = {k: row[k] for k in ("rank", "instability", "motion_probability", "confidence", "length_m")}
+        props = {k: row[k] for k in ("rank", "instability", "ranking_score", "motion_probability", "confidence",
+                                     "length_m")}
         props["basins"] = [int(b) for b in s["basins"]]
         props.update({k: row[k] for k in ("moves_toward_basin", "motion_azimuth_deg", "verdict", "basis",
                                           "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS)})
@@ -575,9 +570,11 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
            "fall of base level for steady uplift), and, on main "
            "divides, whether the hilltops agree; on lateral divides, hilltops against the direction keep the "
            "score below 0.5 (Gilbert 1877; Royden &amp; Perron 2013; Whipple &amp; Tucker 1999). With this "
-           "evidence the instability is a score that ranks the segments, not a calibrated probability: a "
-           "segment the runs do not move gets little even when it moves (its reliability on held-out model "
-           "landscapes is in docs/validation.md). <b>P(moving)</b>, beside it, "
+           "evidence the segments rank by a score (ranking_score in segments.csv), not a calibrated probability: "
+           "a segment the runs do not move gets little even when it moves (its reliability on held-out model "
+           "landscapes is in docs/validation.md). The instability is that score, never above P(moving), so an "
+           "instability of 0.5 or more means both read the segment as more likely moving than not. "
+           "<b>P(moving)</b>, beside it, "
            "is the calibrated probability that the segment moves: a logistic model of the same evidence, the "
            "size of the runs' shift, whether a strongly scored main segment lies next to it and the DEM error "
            "the screening is told (read up to 5 m), fitted on "
@@ -587,9 +584,7 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
            "still divides whose evidence looks like that of moving ones can get 0.5 or more, so the ranking and "
            "the instability, not P(moving), say where to look first. Of the segments scored 0.01 or "
            "more (and those with P(moving) of 0.5 or more that neither landscape run measured or, where the "
-           "screening is told a DEM error of 3 m or more, any), those the decision gives a direction rank first, "
-           f"those of them scored {SATURATED_SCORE:g} or more ahead, furthest moved their way by either landscape run "
-           "first (near 1 the score no longer tells which divide moves fastest); "
+           "screening is told a DEM error of 3 m or more, any), those the decision gives a direction rank first; "
            "where it is told 3 m or more, those without one rank with the segments scored below 0.01. "
            "Segments scored below 0.01 "
            f"rank after the rest: on main divides, those within {NEIGHBOUR_CELLS:g} cells of a main segment "

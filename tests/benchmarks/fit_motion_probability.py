@@ -3,7 +3,7 @@ leaving one case out (run by hand, not a test).
 
     python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
         [--candidates P2 P2e] [--told-error E0=1 E1=1 E5=5] [--probability P2e]
-        [--fit-all | --rankings NAME ... | --alarms | --lateral-veto | --lateral-cap]
+        [--fit-all | --rankings NAME ... | --alarms | --lateral-veto | --lateral-cap | --instability-cap]
 
 Reads the per-case JSON lines of ``bench_regional.py --json`` (training cases only), one group of files per
 condition of DEM error, and for each kind of divide (main, lateral) and each candidate of docs/validation.md
@@ -16,7 +16,9 @@ given). ``--fit-all`` prints each candidate's coefficients fitted on every case 
 ``--rankings`` (rounds 43, 45, 48 and 50–55) instead scores orders of the segments of ``rescore_regional.RANKINGS``,
 ``--alarms`` (round 44) the steady landscapes' alarms read from the probability, each case's probability fitted
 without it;
-``--lateral-veto`` scores round 47's candidates and ``--lateral-cap`` round 49's. The instability and the
+``--lateral-veto`` scores round 47's candidates, ``--lateral-cap`` round 49's and ``--instability-cap`` round 57's
+(the instability reported as the smaller of the score and the probability, ``--probability``'s, each case's fitted
+without it and capped as shipped on lateral divides whose hilltops contradict them). The instability and the
 neighbours' scores are recomputed with the shipped model (``rescore_regional.py``), and the script checks that the
 package computes the shipped candidate's features as it does.
 """
@@ -259,6 +261,35 @@ def lateral_cap(rows: list[dict], groups: dict[str, list[str]]) -> None:
           "of which moving:", {c: int(np.sum(changed & (cond == c) & (y == 1))) for c in groups})
 
 
+def instability_cap(cases: dict[str, list[dict]], rows: list[dict],
+                    features: Callable[[dict, str], list[float]]) -> None:
+    """Round 57: print, per condition, the steady landscapes without an alarm (segments alarmed) and the main segments
+    in moving stretches that raise the alarm, with the instability read from the score and from the smaller of the
+    score and the probability of motion (each case's fitted without it; round 49's cap on lateral divides)."""
+    attach_loco(cases, rows, features, KINDS)
+    for part in cases.values():
+        for case in part:
+            for m in case["main"] + case.get("lateral", []) + case["others"]:
+                kind = m.get("kind") or m.get("divide_kind")
+                p = m.get("_p")
+                if p is not None and kind == "lateral" and evidence_features(m["probabilities"], m, kind)[1] < 0:
+                    p = min(p, LATERAL_HILLS_AGAINST_MAX)
+                m["_cap"] = m["_i"] if m["_i"] is None or p is None else min(m["_i"], p)
+    print("| instability | " + " | ".join(f"{c}: steady landscapes without an alarm (segments alarmed); main segments "
+                                          "in moving stretches alarmed" for c in cases) + " |")
+    print("| --- " * (1 + len(cases)) + "|")
+    for key, name in (("_i", "the score (shipped)"), ("_cap", "C: the smaller of the score and the probability")):
+        cells = []
+        for part in cases.values():
+            steady = [case for case in part if case["family"].startswith("steady_")]
+            alarmed = [sum(raises_alarm({**m, "instability": m[key]}) for m in case["main"] + case["others"])
+                       for case in steady]
+            hits = sum(raises_alarm({**m, "instability": m[key]}) for case in part for m in case["main"]
+                       if m["in_moving"])
+            cells.append(f"{sum(a == 0 for a in alarmed)}/{len(steady)} ({sum(alarmed)}); {hits}")
+        print(f"| {name} | " + " | ".join(cells) + " |")
+
+
 def reliability(p: np.ndarray, y: np.ndarray) -> list[tuple[str, int, float, float]]:
     """Ten equal bins: label, count, mean probability, share moving."""
     bins = np.minimum((p * 10).astype(int), 9)
@@ -284,6 +315,8 @@ def main() -> None:
                         help="round 47: the lateral score with hilltops that contradict its direction, and stop")
     parser.add_argument("--lateral-cap", action="store_true",
                         help="round 49: the lateral probability of motion with and without round 47's cap, and stop")
+    parser.add_argument("--instability-cap", action="store_true",
+                        help="round 57: alarms with the instability capped at the probability of motion")
     parser.add_argument("--alarms", action="store_true",
                         help="round 44: the steady landscapes' alarms read from the score and from the probability "
                              "of motion (both kinds, each case's fitted without it), and stop")
@@ -310,6 +343,9 @@ def main() -> None:
         return
     if args.lateral_cap:
         lateral_cap(rows, groups)
+        return
+    if args.instability_cap:
+        instability_cap(cases, rows, CANDIDATES[args.probability])
         return
     if args.alarms:
         attach_loco(cases, rows, CANDIDATES["P2"], KINDS)

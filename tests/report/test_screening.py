@@ -55,12 +55,19 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     ranks = [f["properties"]["rank"] for f in gj["features"]]
     assert ranks == list(range(1, len(ranks) + 1))
     inst = [f["properties"]["instability"] for f in gj["features"]]
-    # the file keeps the screening's ranking, to the four decimals segments.csv gives
+    score = [f["properties"]["ranking_score"] for f in gj["features"]]
+    # the file keeps the screening's ranking score and instability, to the four decimals segments.csv gives
+    assert score == [None if s["ranking_score"] is None else round(s["ranking_score"], 4) for s in screening.segments]
     assert inst == [None if s["instability"] is None else round(s["instability"], 4) for s in screening.segments]
+    # round 57 (docs/methods.md §7b): the instability is the score, never above the probability of motion
+    for s in screening.segments:
+        assert (s["instability"] is None) == (s["ranking_score"] is None)
+        assert s["instability"] is None or s["instability"] == min(s["ranking_score"], s["motion_probability"])
+    assert any(v is not None and v < s for v, s in zip(inst, score))  # the bound acts on this DEM
     # docs/methods.md §7b: segments scored 0.01 or more rank first, by score, and every unknown one after them
     # (the whole order is re-derived in tests/assess/test_screen_regional.py)
-    first = [v for v in inst if v is not None and v >= 0.01]
-    assert 0 < len(first) < len(inst) and inst[: len(first)] == sorted(first, reverse=True)
+    first = [v for v in score if v is not None and v >= 0.01]
+    assert 0 < len(first) < len(score) and score[: len(first)] == sorted(first, reverse=True)
     # the gaps layer (RFC 7946): every stretch of divide left out, with its reason
     gaps = json.loads((out / "layers" / "screen_gaps.geojson").read_text())
     assert gaps["type"] == "FeatureCollection" and "crs" not in gaps
