@@ -77,7 +77,8 @@ def test_ranks_follow_the_documented_order(steady):
     # larger |shift|); ties by length. Since round 34, a main segment below 0.01 whose line comes within 5 cells of
     # another main segment's scored >= 0.01 comes first in that tier, and since round 36 one reached from such a
     # segment through main segments each within 5 cells of the next, below 0.01 and moved >= 1 cell by either run
-    # (neighbours found here by brute force with scipy's cdist). Here the order differs from the score's alone.
+    # (neighbours found here by brute force with scipy's cdist). Here the order differs from the score's alone. The
+    # score is the segments' ranking_score (their instability is it bounded by the probability of motion, round 57).
     from scipy.spatial.distance import cdist
 
     _, result, _, _ = steady
@@ -88,11 +89,11 @@ def test_ranks_follow_the_documented_order(steady):
     def low_and_moved(s):
         moved = max((abs(v) for v in (s["forward_shift_cells"], s["forward_shift_basin_cells"]) if v is not None),
                     default=0.0)
-        return (s["instability"] is None or s["instability"] < 0.01) and moved >= 1.0
+        return (s["ranking_score"] is None or s["ranking_score"] < 0.01) and moved >= 1.0
 
     reached = set()
     for i, s in enumerate(main):
-        if s["instability"] is not None and s["instability"] >= 0.01:
+        if s["ranking_score"] is not None and s["ranking_score"] >= 0.01:
             todo, seen = [i], {i}
             while todo:  # the strong segment's neighbours, and those of the chains it starts
                 for j in near[todo.pop()]:
@@ -106,7 +107,7 @@ def test_ranks_follow_the_documented_order(steady):
         return id(s) in reached
 
     def key(s):
-        i, one_u, per_basin = s["instability"], s["forward_shift_cells"], s["forward_shift_basin_cells"]
+        i, one_u, per_basin = s["ranking_score"], s["forward_shift_cells"], s["forward_shift_basin_cells"]
         if i is not None and i >= 0.01:
             return (0, -i, 0.0, 0.0, -s["length_m"])
         if i is None and not (one_u is not None and per_basin is not None and abs(one_u) >= 0.5
@@ -118,7 +119,7 @@ def test_ranks_follow_the_documented_order(steady):
     ranks = [s["rank"] for s in result.segments]
     assert ranks == list(range(1, len(ranks) + 1))
     assert [s["rank"] for s in sorted(result.segments, key=key)] == ranks
-    assert sum(s["instability"] is not None and s["instability"] < 0.01 for s in result.segments) >= 10
+    assert sum(s["ranking_score"] is not None and s["ranking_score"] < 0.01 for s in result.segments) >= 10
 
 
 def test_every_main_divide_segment_is_judged_on_pooled_samples(steady):
@@ -613,5 +614,5 @@ def test_held_out_probability_of_motion_is_calibrated(seed):
     y = [float(m["in_moving"]) for m in main]
     assert len(main) >= 100 and 0 < sum(y) < len(y)
     loss, ece = _log_loss_and_calibration([m["motion_probability"] for m in main], y)
-    loss_score, _ = _log_loss_and_calibration([m["instability"] for m in main], y)
+    loss_score, _ = _log_loss_and_calibration([m["ranking_score"] for m in main], y)
     assert ece <= 0.05 and loss < loss_score
