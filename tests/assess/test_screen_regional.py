@@ -229,12 +229,12 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 #: Master seed 0's held-out cases informed the second round of choices and are not used here.
 HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 23, 24, 25, 26, 27, 28,
                   29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53,
-                  54, 55, 56, 57, 58, 59, 60, 62)
+                  54, 55, 56, 57, 58, 59, 60, 62, 63)
 
 #: The held-out draws fresh to the probability of motion (round 42): its training cases took in every earlier one
 #: (seed 26 alone is fresh to round 46's told error, which seed 25's figures under 5 m of error prompted).
 PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46,
-                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 62)
+                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 62, 63)
 
 
 @functools.lru_cache(maxsize=None)
@@ -301,8 +301,8 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # 0.072 against 0.029 (seed 49), 0.083 against 0.091 (seed 50), 0.060 against 0.047 (seed 51), 0.085 against
     # 0.035 (seed 52: a difference of 0.04997), 0.052 against 0.044 (seed 53), 0.056 against 0.062 (seed 54), 0.061
     # against 0.065 (seed 55), 0.060 against 0.067 (seed 56), 0.077 against 0.039 (seed 57), 0.076 against 0.060
-    # (seed 58), 0.063 against 0.049 (seed 59), 0.064 against 0.040 (seed 60) and 0.063 against 0.048 (seed 62) when
-    # written;
+    # (seed 58), 0.063 against 0.049 (seed 59), 0.064 against 0.040 (seed 60), 0.063 against 0.048 (seed 62) and
+    # 0.084 against 0.101 (seed 63) when written;
     # not on seed 48 (0.069 against 0.017: 4 of 238 lateral segments with a truth moved).
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
@@ -326,7 +326,7 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
                                   _known_miss(54, "the main divide's scaling scores 0.149 against the lateral "
                                                   "segments' own 0.159"), 55,
                                   _known_miss(56, "the main divide's scaling scores 0.111 against the lateral "
-                                                  "segments' own 0.144"), 57, 58, 59, 60, 62])
+                                                  "segments' own 0.144"), 57, 58, 59, 60, 62, 63])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main divide's on
     # the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131 against 0.150 (seed 4),
@@ -343,8 +343,8 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # (seed 45), 0.186 against 0.265 (seed 46), 0.153 against 0.159 (seed 47), 0.093 against 0.109 (seed 48), 0.113
     # against 0.133 (seed 49), 0.246 against 0.311 (seed 50), 0.181 against 0.222 (seed 51), 0.097 against 0.134
     # (seed 52), 0.181 against 0.237 (seed 53), 0.202 against 0.244 (seed 55), 0.103 against 0.122 (seed 57), 0.166
-    # against 0.204 (seed 58), 0.165 against 0.208 (seed 59), 0.122 against 0.129 (seed 60) and 0.189 against 0.263
-    # (seed 62) when written
+    # against 0.204 (seed 58), 0.165 against 0.208 (seed 59), 0.122 against 0.129 (seed 60), 0.189 against 0.263
+    # (seed 62) and 0.280 against 0.371 (seed 63) when written
     # (on master
     # seeds 0's, 3's and 11's held-out cases it did not: 0.181 against 0.163, 0.232 against 0.209 and 0.117 against
     # 0.110, and on seeds 30's, 32's, 34's and 35's 0.103 against 0.087, 0.219 against 0.189, 0.211 against 0.205
@@ -358,14 +358,9 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (partial_base_level_fall case 0: no "
                                                  "main segment scored 0.01 or more; the second and third by the "
-                                                 "runs' shifts lie outside moving stretches)"),
-                                  _known_miss(2, "top target in 7 of 8 cases (erodibility_patch case 1: its second "
-                                                 "main segment lies 60 % in moving stretches; 8 of 8 before round "
-                                                 "55)"), 3,
-                                  _known_miss(4, "top target in 3 of 4 cases (partial_base_level_fall case 8: its "
-                                                 "first main segment lies 53 % in moving stretches; before round 55 "
-                                                 "runoff_gradient case 2, its second segment 48 degrees from the "
-                                                 "measured motion)"), 5, 6,
+                                                 "runs' shifts lie outside moving stretches)"), 2, 3,
+                                  _known_miss(4, "top target in 3 of 4 cases (runoff_gradient case 2: its second "
+                                                 "segment points 48 degrees from the measured motion)"), 5, 6,
                                   _known_miss(7, "top target in 5 of 6 cases (partial_base_level_fall case 16: its "
                                                  "second and third segments lie in moving stretches without a "
                                                  "direction)"), 8,
@@ -381,26 +376,19 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                   _known_miss(17, "top target in 4 of 5 cases (partial_base_level_fall case 8: "
                                                   "its second main segment has no direction, its third lies "
                                                   "37 % in moving stretches)"), 18,
-                                  19,
-                                  _known_miss(20, "top target in 5 of 6 cases (erodibility_patch case 1: its second "
-                                                  "main segment points 64 degrees from the measured motion; 6 of 6 "
-                                                  "before round 55)"), 21,
-                                  _known_miss(23, "top target in 7 of 8 cases (erodibility_patch case 1: its third "
-                                                  "main segment points 46 degrees from the measured motion; 8 of 8 "
-                                                  "before round 55)"), 24,
+                                  _known_miss(19, "top target in 5 of 6 cases (runoff_gradient case 2: its third "
+                                                  "main segment points 49 degrees from the measured motion)"), 20, 21,
+                                  23, 24,
                                   _known_miss(25, "top target in 6 of 8 cases (partial_base_level_fall case 8: its "
                                                   "third main segment, 94 % in moving stretches, has no direction; "
-                                                  "case 16: its third lies in a still stretch)"),
-                                  _known_miss(26, "top target in 1 of 2 cases (tilt case 19: its third main segment "
-                                                  "points 48 degrees from the measured motion; 2 of 2 before round "
-                                                  "55)"),
+                                                  "case 16: its third lies in a still stretch)"), 26,
                                   _known_miss(27, "top target in 5 of 6 cases (partial_base_level_fall case 8: its "
                                                   "first main segment lies 59 % in moving stretches)"),
-                                  28, 29,
-                                  _known_miss(30, "top target in 4 of 6 cases (partial_base_level_fall case 0: its "
-                                                  "second main segment lies 33 % in moving stretches; tilt case 19, "
-                                                  "since round 55: its first points 53 degrees from the measured "
-                                                  "motion)"),
+                                  _known_miss(28, "top target in 7 of 8 cases (runoff_gradient case 2: its third "
+                                                  "main segment points 148 degrees from the measured motion)"),
+                                  29,
+                                  _known_miss(30, "top target in 5 of 6 cases (partial_base_level_fall case 0: its "
+                                                  "third main segment lies 33 % in moving stretches)"),
                                   _known_miss(31, "top target in 5 of 6 cases (partial_base_level_fall case 16: its "
                                                   "third main segment lies 40 % in moving stretches, without a "
                                                   "direction)"), 32,
@@ -408,10 +396,7 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                                   "moving stretch; the first main segment lies in a still one)"),
                                   _known_miss(34, "top target in 5 of 6 cases (partial_base_level_fall case 0: one "
                                                   "moving stretch; the second main segment lies in a still one)"),
-                                  35, 36,
-                                  _known_miss(37, "top target in 7 of 8 cases (erodibility_patch case 9: its first "
-                                                  "main segment lies 65 % in moving stretches; 8 of 8 before round "
-                                                  "55)"),
+                                  35, 36, 37,
                                   _known_miss(38, "top target in 2 of 4 cases (partial_base_level_fall case 0: two of "
                                                   "ten stretches moving, its first main segment lies 54 % in them; "
                                                   "case 16: one moving stretch, its top two lie in still ones)"),
@@ -420,28 +405,23 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                   40, 41, 42,
                                   _known_miss(43, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
                                                   "third main segment lies in a moving stretch without a direction)"),
-                                  _known_miss(44, "top target in 4 of 5 cases (partial_base_level_fall case 16: its "
+                                  _known_miss(44, "top target in 3 of 5 cases (partial_base_level_fall case 16: its "
                                                   "second main segment lies in a moving stretch without a direction, "
-                                                  "its third 51 % in moving stretches without one; 3 of 5 before "
-                                                  "round 55)"),
+                                                  "its third 51 % in moving stretches without one; runoff_gradient "
+                                                  "case 18: its first points 52 degrees from the measured motion)"),
                                   _known_miss(45, "top target in 5 of 7 cases (partial_base_level_fall case 8: its "
                                                   "third main segment lies in a moving stretch without a direction; "
                                                   "erodibility_patch case 9: its third points 48 degrees from the "
                                                   "measured motion)"), 46, 47, 48, 49, 50, 51,
                                   _known_miss(52, "top target in 3 of 4 cases (partial_base_level_fall case 0: its "
                                                   "three first main segments lie in moving stretches without a "
-                                                  "direction)"),
-                                  _known_miss(53, "top target in 4 of 5 cases (erodibility_patch case 9: its third "
-                                                  "main segment points 49 degrees from the measured motion; 5 of 5 "
-                                                  "before round 55)"),
+                                                  "direction)"), 53,
                                   _known_miss(54, "top target in 4 of 5 cases (partial_base_level_fall case 16: its "
                                                   "second main segment lies in a moving stretch without a "
                                                   "direction)"),
-                                  _known_miss(55, "top target in 5 of 7 cases (partial_base_level_fall case 16: its "
+                                  _known_miss(55, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
                                                   "first main segment lies 57 % in moving stretches, its second in "
-                                                  "one, neither with a direction; erodibility_patch case 9, since "
-                                                  "round 55: its first two point 52 and 58 degrees from the "
-                                                  "measured motion)"),
+                                                  "one, neither with a direction)"),
                                   _known_miss(56, "top target in 5 of 7 cases (partial_base_level_fall case 0: its "
                                                   "first main segment lies 55 % in moving stretches, its second "
                                                   "has no direction; case 8: its second lies 8 % in moving "
@@ -449,44 +429,44 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                   _known_miss(57, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
                                                   "three first main segments lie in moving stretches without a "
                                                   "direction)"), 58, 59,
-                                  _known_miss(60, "top target in 4 of 8 cases (partial_base_level_fall case 8: its "
+                                  _known_miss(60, "top target in 5 of 8 cases (partial_base_level_fall case 8: its "
                                                   "second main segment lies 20 % in moving stretches, without a "
                                                   "direction; case 16: its three first lie in moving stretches "
                                                   "without a direction; erodibility_patch case 9: its first points "
-                                                  "47 degrees from the measured motion; case 17: its second 52)"),
+                                                  "47 degrees from the measured motion)"),
                                   _known_miss(62, "top target in 5 of 6 cases (partial_base_level_fall case 8: its "
                                                   "first main segment lies 19 % in moving stretches, its second in a "
-                                                  "still one without a direction)")])
+                                                  "still one without a direction)"),
+                                  _known_miss(63, "top target in 6 of 7 cases (tilt case 11: its three first main "
+                                                  "segments point 46, 45 and 47 degrees from the measured motion)")])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
-    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 8 of 8, 5 of 5, 8 of 8, 11 of 11, 3 of 3, 6 of 6, 4 of 4, 7
-    # of 7, 9 of 9, 6 of 6, 7 of 7, 8 of 8, 2 of 2, 2 of 2 and 9 of 9 transient cases of seeds 2, 3, 5, 6, 8, 10, 11,
-    # 13, 14, 15, 18, 20, 21, 23, 24, 26 and 29 (seeds 2, 20, 23 and 26 until round 55), 6 of 6 and 8 of 8 of seeds 19
-    # and 28 since round 55 (5 of 6 and 7 of 8 before: a runoff_gradient segment 49 and 148 degrees off), and 7 of 7,
-    # 5 of 5, 7 of 7 and 8 of 8 of seeds 32, 35, 36 and 37 (37 until round 55), and 5 of 5, 6 of 6 and 7 of 7 of
-    # seeds 40-42, 4 of 4, 7 of 7 and 3 of 3 of seeds 46-48 and 4 of 4, 5 of 5 and 7 of 7 of seeds 49-51, 5 of 5 of
-    # seed 53 (until round 55) and 6 of 6 and 9 of 9 of seeds 58 and 59 when written (seed 1: 4 of 4 from round 22
-    # until round 25 asked the transience to stand out of the DEM error; seed 4: 4 of 4 and seed 5: 7 of 8 before
-    # round 30 read the hilltops' curvature over a window).
+    # 45 degrees of the measured motion; 8 of 8, 3 of 3, 8 of 8, 5 of 5, 8 of 8, 11 of 11, 3 of 3, 6 of 6, 4 of 4,
+    # 7 of 7, 9 of 9, 6 of 6, 7 of 7, 8 of 8, 2 of 2, 2 of 2 and 9 of 9 transient cases of seeds 2, 3, 5, 6, 8, 10,
+    # 11, 13, 14, 15, 18, 20, 21, 23, 24, 26 and 29, and 7 of 7, 5 of 5, 7 of 7 and 8 of 8 of seeds 32, 35, 36 and
+    # 37, and 5 of 5, 6 of 6 and 7 of 7 of seeds 40-42, 4 of 4, 7 of 7 and 3 of 3 of seeds 46-48 and 4 of 4, 5 of 5
+    # and 7 of 7 of seeds 49-51, 5 of 5 of seed 53 and 6 of 6 and 9 of 9 of seeds 58 and 59 when written
+    # (seed 1: 4 of
+    # 4 from round 22 until round 25 asked the transience to stand out of the DEM error; seed 4: 4 of 4 and seed 5: 7
+    # of 8 before round 30 read the hilltops' curvature over a window). Round 55's ranking, from its adoption until
+    # round 57 withdrew it, moved the statuses of seeds 2, 19, 20, 23, 26, 28, 37, 44, 53, 55 and 60 (both ways;
+    # docs/validation.md).
     assert all(r["top_ok"] is not False for r in _held_out(seed))
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17,
                                   _known_miss(18, "5 of 6 steady cases without an alarm (a main segment in "
-                                                  "steady_uplift_contrast case 21, 0.87; also one of 0.99 before "
-                                                  "round 38)"),
+                                                  "steady_uplift_contrast case 21, 0.59: scored 0.87, probability of "
+                                                  "motion 0.59; also one of 0.99 before round 38)"),
                                   _known_miss(19, "7 of 8 steady cases without an alarm (a lateral segment in "
-                                                  "steady_uplift_contrast case 21, 0.62 at confidence 0.99, without "
-                                                  "run evidence)"),
+                                                  "steady_uplift_contrast case 21, 0.54 at confidence 0.99: scored "
+                                                  "0.62 without run evidence, probability of motion 0.54)"),
                                   _known_miss(20, "7 of 8 steady cases without an alarm (two lateral segments in "
                                                   "steady_erodibility_contrast case 6, 0.62 and 0.60, that both runs "
                                                   "move; their pair of basins moves slowly, 1-2 cells per response "
                                                   "time)"), 21, 23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33,
-                                  34, 35, 36, 37, 38, 39, 40,
-                                  _known_miss(41, "2 of 3 steady cases without an alarm (a lateral segment in "
-                                                  "steady_uplift_contrast case 13, 0.51 at confidence 0.98, in a "
-                                                  "stretch that did not move)"), 42, 43, 44, 45, 46, 47, 48, 49,
+                                  34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49,
                                   50, 51,
                                   _known_miss(52, "5 of 6 steady cases without an alarm (two lateral segments in "
                                                   "steady_erodibility_contrast case 22, 0.64 and 0.61 at confidence "
@@ -496,15 +476,16 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                                   "steady_uplift_contrast case 13, 0.60 and 0.57 at confidence "
                                                   "0.98-0.99, their pair measured slow, and in "
                                                   "steady_erodibility_contrast case 14, 0.61 at 0.99, in a still "
-                                                  "pair)")])
+                                                  "pair)"), 63])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6, 7 of 7, 3
     # of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6, 4 of 4, 5 of 5, 7 of 7, 6 of 6 and 6 of 6
     # steady cases of seeds 1-7 and 9-17, 6 of 6 of seeds 21, 23, 28, 29, 30 and 34, 7 of 7 of seeds 24, 31 and 32, 8 of
     # 8 of seed 33, 4 of 4 of seed 25, 3 of 3 of seed 27, 5, 9, 6, 5, 6, 6, 5, 7, 4, 5, 6, 4 and 5 of as many of seeds
     # 35-40 and 42-48, 5 of 5, 6 of 6 and 8 of 8 of seeds 49-51, 5 of 5 and 4 of 4 of seeds 53 and 54 and 6 of 6,
-    # 3 of 3 and 3 of 3 of seeds 55-57 and 7 of 7, 7 of 7 and 4 of 4 of seeds 58-60 when
-    # written, 5 of
+    # 3 of 3 and 3 of 3 of seeds 55-57, 7 of 7, 7 of 7 and 4 of 4 of seeds 58-60 and 8 of 8 of seed 63 when
+    # written, 3 of 3 of seed 41 since round 57 bounded the instability by the probability of motion (2 of 3 before:
+    # a lateral segment in steady_uplift_contrast case 13 scored 0.51, probability of motion 0.48), 5 of
     # 5 of seed 26 since round 47 capped lateral segments whose hilltops contradict their direction (4 of 5 before, two
     # such lateral segments in
     # steady_erodibility_contrast case 6 at 0.72 and 0.70; seed 26 then joined the training cases), 7 of 7 of seed 8
@@ -549,7 +530,7 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
                                   _known_miss(51, "order in 2 of 3 cases (partial_base_level_fall case 0: 4 pairs)"),
                                   52, 53, 54, 55, 56, 57, 58,
                                   _known_miss(59, "order in 4 of 5 cases (erodibility_patch case 1: 15 pairs)"),
-                                  60, 62])
+                                  60, 62, 63])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3, 4 of 4, 2 of 2, 5 of 5, 4 of 4, 4 of 4, 3 of 3, 6 of 6, 2 of 2, 1 of 1, 3 of 3, 4 of 4 and
@@ -557,7 +538,8 @@ def test_held_out_still_segments_rank_below_moving_ones(seed):
     # and 4 of 4, 2 of 2, 1 of 1, 5 of 5, 4 of 4, 3 of 3, 4 of 4, 5 of 5, 3 of 3, 6 of 6 and 6 of 6 of seeds 23, 24,
     # 26, 27, 29, 30, 31, 32, 35, 36 and 37, and 5 of 5 of seed 39, 3 of 3 of seeds 40 and 42, 4 of 4 of seed 41,
     # 3 of 3 of seed 44, 5 of 5 of seed 45, 1 of 1 of seed 48, 3 of 3 of seed 50, 3 of 3, 1 of 1 and 3 of 3 of
-    # seeds 52-54, 3 of 3, 5 of 5 and 6 of 6 of seeds 55-57 and 4 of 4, 5 of 5 and 3 of 3 of seeds 58, 60 and 62
+    # seeds 52-54, 3 of 3, 5 of 5 and 6 of 6 of seeds 55-57 and 4 of 4, 5 of 5, 3 of 3 and 4 of 4 of seeds 58, 60,
+    # 62 and 63
     # (seed 2: 2 of 4 before rounds
     # 14-20's ranking; seed 5: 4 of 5 before round 30; seed 9: 1 of 3 before round 33 ranked the weakly scored
     # segments by the larger shift of both runs; seeds 3, 6, 11 and 16: 1 of 2, 3 of 4, 1 of 2 and 2 of 3 before
@@ -576,7 +558,9 @@ def _log_loss_and_calibration(p, y) -> tuple[float, float]:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", PROBABILITY_SEEDS)
+@pytest.mark.parametrize("seed", [s if s != 63 else _known_miss(63, "calibration error 0.051 (log loss 0.181 against "
+                                                                 "the score's 0.580; 356 segments, 129 moving)")
+                                  for s in PROBABILITY_SEEDS])
 def test_held_out_probability_of_motion_is_calibrated(seed):
     # Round 42 (docs/validation.md; target written before the draw's figures were read): on the held-out main
     # segments in moving or still stretches, the probability of motion's calibration error is at most 0.05 and its
