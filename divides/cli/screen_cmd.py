@@ -73,8 +73,8 @@ ScreenForwardRunOption = Annotated[
                  help="Read the landscape evidence beside the near-divide measures: two forward runs of the whole "
                       "DEM under its steady balance (0.3 response times; one uplift rate, and one per outlet basin) "
                       "and the hilltop curvature next to each segment (default; fewer alarms in steady landscapes "
-                      "on the regional benchmark, docs/validation.md; instability is then a ranking score, and "
-                      "P(moving) the calibrated probability of motion). "
+                      "on the regional benchmark, docs/validation.md; segments then rank by a score, and the "
+                      "instability is it never above P(moving), the calibrated probability of motion). "
                       "--no-forward-run: the near-divide measures alone (a calibrated probability), a few seconds "
                       "sooner."),
 ]
