@@ -229,12 +229,12 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 #: Master seed 0's held-out cases informed the second round of choices and are not used here.
 HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 23, 24, 25, 26, 27, 28,
                   29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53,
-                  54, 55, 56, 57, 58, 59, 60, 62, 63)
+                  54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68)
 
 #: The held-out draws fresh to the probability of motion (round 42): its training cases took in every earlier one
 #: (seed 26 alone is fresh to round 46's told error, which seed 25's figures under 5 m of error prompted).
 PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46,
-                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 62, 63)
+                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68)
 
 
 @functools.lru_cache(maxsize=None)
@@ -301,8 +301,8 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # 0.072 against 0.029 (seed 49), 0.083 against 0.091 (seed 50), 0.060 against 0.047 (seed 51), 0.085 against
     # 0.035 (seed 52: a difference of 0.04997), 0.052 against 0.044 (seed 53), 0.056 against 0.062 (seed 54), 0.061
     # against 0.065 (seed 55), 0.060 against 0.067 (seed 56), 0.077 against 0.039 (seed 57), 0.076 against 0.060
-    # (seed 58), 0.063 against 0.049 (seed 59), 0.064 against 0.040 (seed 60), 0.063 against 0.048 (seed 62) and
-    # 0.084 against 0.101 (seed 63) when written;
+    # (seed 58), 0.063 against 0.049 (seed 59), 0.064 against 0.040 (seed 60), 0.063 against 0.048 (seed 62),
+    # 0.084 against 0.101 (seed 63), 0.060 against 0.052 (seed 67) and 0.078 against 0.073 (seed 68) when written;
     # not on seed 48 (0.069 against 0.017: 4 of 238 lateral segments with a truth moved).
     _, mean_own, moved = _lateral_log_loss(_held_out(seed), INSTABILITY_SCALING["lateral"])
     assert abs(mean_own - moved) < 0.05
@@ -326,7 +326,7 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
                                   _known_miss(54, "the main divide's scaling scores 0.149 against the lateral "
                                                   "segments' own 0.159"), 55,
                                   _known_miss(56, "the main divide's scaling scores 0.111 against the lateral "
-                                                  "segments' own 0.144"), 57, 58, 59, 60, 62, 63])
+                                                  "segments' own 0.144"), 57, 58, 59, 60, 62, 63, 67, 68])
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main divide's on
     # the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131 against 0.150 (seed 4),
@@ -344,7 +344,8 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # against 0.133 (seed 49), 0.246 against 0.311 (seed 50), 0.181 against 0.222 (seed 51), 0.097 against 0.134
     # (seed 52), 0.181 against 0.237 (seed 53), 0.202 against 0.244 (seed 55), 0.103 against 0.122 (seed 57), 0.166
     # against 0.204 (seed 58), 0.165 against 0.208 (seed 59), 0.122 against 0.129 (seed 60), 0.189 against 0.263
-    # (seed 62) and 0.280 against 0.371 (seed 63) when written
+    # (seed 62), 0.280 against 0.371 (seed 63), 0.161 against 0.178 (seed 67) and 0.191 against 0.225 (seed 68) when
+    # written
     # (on master
     # seeds 0's, 3's and 11's held-out cases it did not: 0.181 against 0.163, 0.232 against 0.209 and 0.117 against
     # 0.110, and on seeds 30's, 32's, 34's and 35's 0.103 against 0.087, 0.219 against 0.189, 0.211 against 0.205
@@ -438,14 +439,18 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
                                                   "first main segment lies 19 % in moving stretches, its second in a "
                                                   "still one without a direction)"),
                                   _known_miss(63, "top target in 6 of 7 cases (tilt case 11: its three first main "
-                                                  "segments point 46, 45 and 47 degrees from the measured motion)")])
+                                                  "segments point 46, 45 and 47 degrees from the measured motion)"),
+                                  67,
+                                  _known_miss(68, "top target in 8 of 9 cases (partial_base_level_fall case 0: its "
+                                                  "third main segment lies 68 % in moving stretches, without a "
+                                                  "direction)")])
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
     # 45 degrees of the measured motion; 8 of 8, 3 of 3, 8 of 8, 5 of 5, 8 of 8, 11 of 11, 3 of 3, 6 of 6, 4 of 4,
     # 7 of 7, 9 of 9, 6 of 6, 7 of 7, 8 of 8, 2 of 2, 2 of 2 and 9 of 9 transient cases of seeds 2, 3, 5, 6, 8, 10,
     # 11, 13, 14, 15, 18, 20, 21, 23, 24, 26 and 29, and 7 of 7, 5 of 5, 7 of 7 and 8 of 8 of seeds 32, 35, 36 and
     # 37, and 5 of 5, 6 of 6 and 7 of 7 of seeds 40-42, 4 of 4, 7 of 7 and 3 of 3 of seeds 46-48 and 4 of 4, 5 of 5
-    # and 7 of 7 of seeds 49-51, 5 of 5 of seed 53 and 6 of 6 and 9 of 9 of seeds 58 and 59 when written
+    # and 7 of 7 of seeds 49-51, 5 of 5 of seed 53 and 6 of 6, 9 of 9 and 5 of 5 of seeds 58, 59 and 67 when written
     # (seed 1: 4 of
     # 4 from round 22 until round 25 asked the transience to stand out of the DEM error; seed 4: 4 of 4 and seed 5: 7
     # of 8 before round 30 read the hilltops' curvature over a window). Round 55's ranking, from its adoption until
@@ -476,14 +481,15 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
                                                   "steady_uplift_contrast case 13, 0.60 and 0.57 at confidence "
                                                   "0.98-0.99, their pair measured slow, and in "
                                                   "steady_erodibility_contrast case 14, 0.61 at 0.99, in a still "
-                                                  "pair)"), 63])
+                                                  "pair)"), 63, 67, 68])
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6, 7 of 7, 3
     # of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6, 4 of 4, 5 of 5, 7 of 7, 6 of 6 and 6 of 6
     # steady cases of seeds 1-7 and 9-17, 6 of 6 of seeds 21, 23, 28, 29, 30 and 34, 7 of 7 of seeds 24, 31 and 32, 8 of
     # 8 of seed 33, 4 of 4 of seed 25, 3 of 3 of seed 27, 5, 9, 6, 5, 6, 6, 5, 7, 4, 5, 6, 4 and 5 of as many of seeds
     # 35-40 and 42-48, 5 of 5, 6 of 6 and 8 of 8 of seeds 49-51, 5 of 5 and 4 of 4 of seeds 53 and 54 and 6 of 6,
-    # 3 of 3 and 3 of 3 of seeds 55-57, 7 of 7, 7 of 7 and 4 of 4 of seeds 58-60 and 8 of 8 of seed 63 when
+    # 3 of 3 and 3 of 3 of seeds 55-57, 7 of 7, 7 of 7 and 4 of 4 of seeds 58-60 and 8 of 8, 6 of 6 and 9 of 9 of
+    # seeds 63, 67 and 68 when
     # written, 3 of 3 of seed 41 since round 57 bounded the instability by the probability of motion (2 of 3 before:
     # a lateral segment in steady_uplift_contrast case 13 scored 0.51, probability of motion 0.48), 5 of
     # 5 of seed 26 since round 47 capped lateral segments whose hilltops contradict their direction (4 of 5 before, two
@@ -530,7 +536,10 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
                                   _known_miss(51, "order in 2 of 3 cases (partial_base_level_fall case 0: 4 pairs)"),
                                   52, 53, 54, 55, 56, 57, 58,
                                   _known_miss(59, "order in 4 of 5 cases (erodibility_patch case 1: 15 pairs)"),
-                                  60, 62, 63])
+                                  60, 62, 63,
+                                  _known_miss(67, "order in 1 of 3 cases (partial_base_level_fall case 0: 1 pair; "
+                                                  "runoff_gradient case 18: 1 pair)"),
+                                  _known_miss(68, "order in 5 of 6 cases (erodibility_patch case 9: 5 pairs)")])
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3, 4 of 4, 2 of 2, 5 of 5, 4 of 4, 4 of 4, 3 of 3, 6 of 6, 2 of 2, 1 of 1, 3 of 3, 4 of 4 and
@@ -539,7 +548,7 @@ def test_held_out_still_segments_rank_below_moving_ones(seed):
     # 26, 27, 29, 30, 31, 32, 35, 36 and 37, and 5 of 5 of seed 39, 3 of 3 of seeds 40 and 42, 4 of 4 of seed 41,
     # 3 of 3 of seed 44, 5 of 5 of seed 45, 1 of 1 of seed 48, 3 of 3 of seed 50, 3 of 3, 1 of 1 and 3 of 3 of
     # seeds 52-54, 3 of 3, 5 of 5 and 6 of 6 of seeds 55-57 and 4 of 4, 5 of 5, 3 of 3 and 4 of 4 of seeds 58, 60,
-    # 62 and 63
+    # 62 and 63 when written
     # (seed 2: 2 of 4 before rounds
     # 14-20's ranking; seed 5: 4 of 5 before round 30; seed 9: 1 of 3 before round 33 ranked the weakly scored
     # segments by the larger shift of both runs; seeds 3, 6, 11 and 16: 1 of 2, 3 of 4, 1 of 2 and 2 of 3 before
@@ -590,7 +599,8 @@ def test_held_out_probability_of_motion_is_calibrated(seed):
     # 0.210 against 0.094 and 0.754 on seed 57 (213, 95 moving), 0.032 and 0.114 against 0.067 and 0.536 on seed 58
     # (282, 100 moving), 0.019 and 0.050 against 0.067 and 0.394 on seed 59 (341, 131 moving) and 0.037 and 0.070
     # against 0.074 and 0.568 on seed 60 (277, 118 moving) and 0.008 and 0.039 against 0.048 and 0.289 on seed 62
-    # (287, 83 moving) when written (round
+    # (287, 83 moving), 0.021 and 0.123 against 0.066 and 0.524 on seed 67 (241, 68 moving) and 0.028 and 0.100
+    # against 0.099 and 0.797 on seed 68 (391, 145 moving) when written (round
     # 42's fit: 0.022, 0.019 and 0.042 on seeds 23-25). A draw's figure varies: on 12-case draws of the training
     # cases it exceeded 0.05 in 11 % (docs/validation.md).
     main = [m for r in _held_out(seed) for m in r["main"]
