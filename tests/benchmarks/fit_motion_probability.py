@@ -1,4 +1,4 @@
-"""Rounds 42-49: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
+"""Rounds 42-57: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
 leaving one case out (run by hand, not a test).
 
     python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
@@ -13,7 +13,7 @@ coefficients fitted without it (its conditions left out together), beside those 
 default gives; then, by round 42's rule, the candidate that ships and its reliability. ``--told-error`` gives the
 DEM error each condition's screenings were told (round 46's P2e reads it; 1 m, the screening's default, when not
 given). ``--fit-all`` prints each candidate's coefficients fitted on every case (what would ship).
-``--rankings`` (rounds 43, 45, 48 and 50–55) instead scores orders of the segments of ``rescore_regional.RANKINGS``,
+``--rankings`` (rounds 43, 45, 48, 50–56 and 57) instead scores orders of the segments of ``rescore_regional.RANKINGS``,
 ``--alarms`` (round 44) the steady landscapes' alarms read from the probability, each case's probability fitted
 without it;
 ``--lateral-veto`` scores round 47's candidates, ``--lateral-cap`` round 49's and ``--instability-cap`` round 57's
