@@ -38,7 +38,7 @@ from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import INSTABILITY_EVIDENCE, beside_scored, evidence_features
-from divides.assess.segment_motion import LATERAL_HILLS_AGAINST_MAX, motion_features
+from divides.assess.segment_motion import LATERAL_HILLS_AGAINST_MAX, bounded_instability, motion_features
 from divides.model.regional_benchmark import raises_alarm
 
 KINDS = ("main", "lateral")
@@ -274,7 +274,7 @@ def instability_cap(cases: dict[str, list[dict]], rows: list[dict],
                 p = m.get("_p")
                 if p is not None and kind == "lateral" and evidence_features(m["probabilities"], m, kind)[1] < 0:
                     p = min(p, LATERAL_HILLS_AGAINST_MAX)
-                m["_cap"] = m["_i"] if m["_i"] is None or p is None else min(m["_i"], p)
+                m["_cap"] = bounded_instability(m["_i"], p)
     print("| instability | " + " | ".join(f"{c}: steady landscapes without an alarm (segments alarmed); main segments "
                                           "in moving stretches alarmed" for c in cases) + " |")
     print("| --- " * (1 + len(cases)) + "|")

@@ -63,7 +63,7 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
     for s in screening.segments:
         assert (s["instability"] is None) == (s["ranking_score"] is None)
         assert s["instability"] is None or s["instability"] == min(s["ranking_score"], s["motion_probability"])
-    assert any(v is not None and v < s for v, s in zip(inst, score))  # the bound acts on this DEM
+    assert any(v is not None and v < c for v, c in zip(inst, score))  # the bound acts on this DEM
     # docs/methods.md §7b: segments scored 0.01 or more rank first, by score, and every unknown one after them
     # (the whole order is re-derived in tests/assess/test_screen_regional.py)
     first = [v for v in score if v is not None and v >= 0.01]
