@@ -100,19 +100,20 @@ LATERAL_HILLS_AGAINST_MAX = 0.49
 #: n = 1 when a main segment within reach scores at least the ranking's tier (``neighbour_instability``,
 #: :func:`divides.assess.screen.rank_key`), and e the DEM error the screening is told (``dem_error_m``), read from 0 to
 #: :data:`TOLD_ERROR_CAP_M`. Fitted by maximum likelihood (Gaussian prior of sd 10 on all but c0) on every main and
-#: lateral segment in a moving or still stretch of the 359 training cases under 0, 1 and 5 m of DEM error (told 1, 1
-#: and 5 m; 23 401 main readings, 8747 moving; 32 289 lateral, 1810 moving). Round 42 (rules written before their
+#: lateral segment in a moving or still stretch of the 316 training cases of round 58, screened with 120-cell judged
+#: stretches (:data:`divides.assess.screen.MIN_JUDGED_CELLS`), under 0, 1 and 5 m of DEM error (told 1, 1 and 5 m;
+#: 21 207 main readings, 7726 moving; 27 860 lateral, 1541 moving; round 59). Round 42 (rules written before their
 #: figures; docs/validation.md, *Regional screening*) chose the features without e over the instability's logit
 #: alone and that logit with s, u and n; round 46 added e, since one fit read low under 5 m of error. Each case
-#: scored by coefficients fitted without it: main log loss 0.095, 0.092 and 0.146 and calibration error 0.004, 0.005
-#: and 0.009 under 0, 1 and 5 m (0.096, 0.093, 0.151 and 0.010, 0.009, 0.018 without e; the instability's 0.510,
-#: 0.544, 1.060 and 0.071, 0.075, 0.133); lateral log loss 0.110, 0.117 and 0.136. On main divides c4 < 0: at a
-#: given p, h and r a larger shift more often comes from a steady contrast that the per-basin run misreads (round
-#: 37). c7 > 0: noisier evidence of the same size has more motion behind it. Calibrated to the benchmark's mix of
-#: landscapes (37 % of main segments moving): where moving divides are rarer, it reads high.
+#: scored by coefficients fitted without it: main log loss 0.087, 0.094 and 0.125 and calibration error 0.006, 0.008
+#: and 0.006 under 0, 1 and 5 m (the instability's 0.510, 0.569, 1.170 and 0.069, 0.075, 0.141); lateral log loss
+#: 0.125, 0.121 and 0.145. On main divides c4 < 0: at a given p, h and r a larger shift more often comes from a
+#: steady contrast that the per-basin run misreads (round 37). c7 > 0: noisier evidence of the same size has more
+#: motion behind it. Calibrated to the benchmark's mix of landscapes (36 % of main segments moving): where moving
+#: divides are rarer, it reads high.
 MOTION_PROBABILITY: dict[str, tuple[float, ...]] = {
-    "main": (-4.598, 1.469, 13.272, 3.535, -0.813, 0.129, 3.774, 0.216),
-    "lateral": (-5.296, 1.111, 3.799, 2.363, 1.029, 0.343, 0.146),
+    "main": (-5.2, 1.967, 13.089, 3.456, -1.056, 0.066, 3.377, 0.221),
+    "lateral": (-5.224, 1.151, 3.199, 2.431, 0.95, -2.544, 0.148),
 }
 
 #: The landscape runs' shift is read up to this many model cells by :data:`MOTION_PROBABILITY` (a moving divide
@@ -303,11 +304,12 @@ def motion_probability(probabilities: dict | None, kind: str = "main", evidence:
     Examples
     --------
     >>> p = {"a": 0.0, "b": 0.5, "stable": 0.5}  # logit p = 0; no run measured the segment; told 1 m
-    >>> round(motion_probability(p, "main", {}), 4)  # 1 / (1 + exp(4.598 - 0.129 - 0.216)) by hand
-    0.014
+    >>> round(motion_probability(p, "main", {}), 4)  # 1 / (1 + exp(5.2 - 0.066 - 0.221)) by hand
+    0.0073
     >>> motion_probability(p, "main") == instability_of(p, "main")
     True
     >>> runs = {"forward_shift_cells": 3.0, "forward_shift_basin_cells": 3.0}  # both runs 3 cells toward b
+    >>> # 1 / (1 + exp(5.224 - 1.151 ln 99 - 2.431 - 0.95 * 3 - 0.148)) by hand
     >>> round(motion_probability({"a": 0.01, "b": 0.98, "stable": 0.01}, "lateral", runs), 3)
     0.996
     >>> motion_probability({"a": 0.01, "b": 0.98, "stable": 0.01}, "lateral", {**runs, "hilltop_contrast": -0.05})
