@@ -64,10 +64,11 @@ def test_outputs_follow_the_screen_contract(screening, tmp_path):
         assert (s["instability"] is None) == (s["ranking_score"] is None)
         assert s["instability"] is None or s["instability"] == min(s["ranking_score"], s["motion_probability"])
     assert any(v is not None and v < c for v, c in zip(inst, score))  # the bound acts on this DEM
-    # docs/methods.md §7b: segments scored 0.01 or more rank first, by score, and every unknown one after them
-    # (the whole order is re-derived in tests/assess/test_screen_regional.py)
-    first = [v for v in score if v is not None and v >= 0.01]
-    assert 0 < len(first) < len(score) and score[: len(first)] == sorted(first, reverse=True)
+    # docs/methods.md §7b: segments scored 0.01 or more rank first, those the decision gives a direction before
+    # those without one, each by score (the whole order is re-derived in tests/assess/test_screen_regional.py)
+    first = [(s["verdict"] not in ("a", "b"), -v) for s, v in zip(screening.segments, score)
+             if v is not None and v >= 0.01]
+    assert 0 < len(first) < len(score) and score[0] == -first[0][1] and first == sorted(first)
     # the gaps layer (RFC 7946): every stretch of divide left out, with its reason
     gaps = json.loads((out / "layers" / "screen_gaps.geojson").read_text())
     assert gaps["type"] == "FeatureCollection" and "crs" not in gaps
