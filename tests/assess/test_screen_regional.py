@@ -226,15 +226,142 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 #: defaults
 #: (seed 1's held-out cases were among the training cases of rounds 4-33, seeds 5-9's among those of the later
 #: rounds, and since round 42 those of seeds 2-4 and 10-21 among the training cases of the probability of motion).
-#: Master seed 0's held-out cases informed the second round of choices and are not used here.
+#: Master seed 0's held-out cases informed the second round of choices and are not used here; those of seeds 37-42
+#: were among the training cases of rounds 53-59. Seeds 69 and 70 were drawn after round 59's default was fixed.
 HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 23, 24, 25, 26, 27, 28,
                   29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53,
-                  54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68)
+                  54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68, 69, 70)
 
-#: The held-out draws fresh to the probability of motion (round 42): its training cases took in every earlier one
-#: (seed 26 alone is fresh to round 46's told error, which seed 25's figures under 5 m of error prompted).
-PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46,
-                     47, 48, 49, 50, 51, 52, 53, 54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68)
+#: The held-out draws fresh to the probability of motion: round 59 fitted it on the 120-cell records of 316
+#: training cases, which take in the held-out cases of master seeds 37-42 (so those are left out here), and none of
+#: seeds 23-36, 43-60, 62, 63 and 67-70 (round 42's and 46's fits took in every draw before seed 23).
+PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52,
+                     53, 54, 55, 56, 57, 58, 59, 60, 62, 63, 67, 68, 69, 70)
+
+
+#: Known misses per slow held-out test (strict expected failures, each with its measured reason). Since round 59
+#: (120-cell judged stretches, the probability of motion refitted; docs/validation.md, *Regional screening*) every
+#: status and reason is the one measured with its default on all held-out draws; the figures in the tests' comments
+#: are from when each draw was written.
+TOP_MISSES: dict[int, str] = {
+    1: "top target in 3 of 4 cases (partial_base_level_fall case 0: main segments ranked second outside moving "
+       "stretches, no direction; third outside moving stretches)",
+    5: "top target in 7 of 8 cases (partial_base_level_fall case 8: main segments ranked third in a moving stretch, "
+       "no direction)",
+    8: "top target in 7 of 8 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+       "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    9: "top target in 2 of 3 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+       "no direction; second outside moving stretches, no direction; third outside moving stretches, no direction)",
+    12: "top target in 3 of 4 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+        "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    16: "top target in 6 of 7 cases (partial_base_level_fall case 8: main segments ranked third 19 % in moving "
+        "stretches, no direction)",
+    17: "top target in 4 of 5 cases (partial_base_level_fall case 8: main segments ranked second in a moving stretch, "
+        "no direction; third 37 % in moving stretches, no direction)",
+    25: "top target in 6 of 8 cases (partial_base_level_fall case 8: main segments ranked third 37 % in moving "
+        "stretches; partial_base_level_fall case 16: main segments ranked second in a moving stretch, no direction; "
+        "third outside moving stretches, no direction)",
+    27: "top target in 5 of 6 cases (partial_base_level_fall case 8: main segments ranked first 5 % in moving "
+        "stretches; second outside moving stretches)",
+    30: "top target in 4 of 6 cases (partial_base_level_fall case 0: main segments ranked third 33 % in moving "
+        "stretches; partial_base_level_fall case 8: main segments ranked first in a moving stretch, no direction; "
+        "second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    31: "top target in 5 of 6 cases (partial_base_level_fall case 16: main segments ranked first 40 % in moving "
+        "stretches; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    33: "top target in 4 of 6 cases (partial_base_level_fall case 0: main segments ranked first outside moving "
+        "stretches, no direction; partial_base_level_fall case 16: main segments ranked first in a moving stretch, no "
+        "direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    34: "top target in 5 of 6 cases (partial_base_level_fall case 0: main segments ranked second outside moving "
+        "stretches, no direction)",
+    38: "top target in 2 of 4 cases (partial_base_level_fall case 0: main segments ranked second outside moving "
+        "stretches; third 54 % in moving stretches, no direction; partial_base_level_fall case 16: main segments "
+        "ranked first outside moving stretches, no direction; second outside moving stretches, no direction)",
+    39: "top target in 5 of 6 cases (erodibility_patch case 1: main segments ranked first in a moving stretch, no "
+        "direction)",
+    43: "top target in 6 of 7 cases (partial_base_level_fall case 8: main segments ranked third in a moving stretch, "
+        "no direction)",
+    44: "top target in 4 of 5 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+        "no direction; second 51 % in moving stretches, no direction; third outside moving stretches, no direction)",
+    52: "top target in 3 of 4 cases (partial_base_level_fall case 0: main segments ranked first in a moving stretch, "
+        "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    54: "top target in 4 of 5 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+        "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    55: "top target in 6 of 7 cases (partial_base_level_fall case 16: main segments ranked first 57 % in moving "
+        "stretches, no direction; second in a moving stretch, no direction)",
+    56: "top target in 5 of 7 cases (partial_base_level_fall case 0: main segments ranked first 55 % in moving "
+        "stretches, no direction; second in a moving stretch, no direction; partial_base_level_fall case 8: main "
+        "segments ranked first in a moving stretch, no direction; second 8 % in moving stretches, no direction)",
+    57: "top target in 6 of 7 cases (partial_base_level_fall case 16: main segments ranked first in a moving stretch, "
+        "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    60: "top target in 6 of 8 cases (partial_base_level_fall case 8: main segments ranked second 20 % in moving "
+        "stretches, no direction; partial_base_level_fall case 16: main segments ranked first in a moving stretch, no "
+        "direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
+    62: "top target in 5 of 6 cases (partial_base_level_fall case 8: main segments ranked first 19 % in moving "
+        "stretches, no direction; second outside moving stretches, no direction)",
+    68: "top target in 8 of 9 cases (partial_base_level_fall case 0: main segments ranked third 68 % in moving "
+        "stretches)",
+    69: "top target in 7 of 8 cases (erodibility_patch case 9: main segments ranked third 45.1 degrees off the "
+        "measured motion)",
+}
+
+ORDER_MISSES: dict[int, str] = {
+    4: "order in 1 of 2 cases (partial_base_level_fall case 8: 6 pairs)",
+    8: "order in 2 of 5 cases (erodibility_patch case 9: 4 pairs; partial_base_level_fall case 16: 2 pairs; "
+       "erodibility_patch case 17: 1 pair)",
+    13: "order in 2 of 3 cases (partial_base_level_fall case 8: 1 pair)",
+    14: "order in 1 of 2 cases (erodibility_patch case 1: 2 pairs)",
+    15: "order in 4 of 5 cases (erodibility_patch case 17: 2 pairs)",
+    18: "order in 7 of 8 cases (erodibility_patch case 9: 12 pairs)",
+    21: "order in 5 of 6 cases (runoff_gradient case 18: 2 pairs)",
+    25: "order in 3 of 4 cases (partial_base_level_fall case 16: 9 pairs)",
+    28: "order in 3 of 4 cases (runoff_gradient case 2: 1 pair)",
+    33: "order in 4 of 5 cases (partial_base_level_fall case 0: 2 pairs)",
+    34: "order in 2 of 3 cases (partial_base_level_fall case 0: 1 pair)",
+    38: "order in 1 of 3 cases (partial_base_level_fall case 0: 4 pairs; partial_base_level_fall case 16: 4 pairs)",
+    43: "order in 2 of 3 cases (erodibility_patch case 1: 2 pairs)",
+    44: "order in 2 of 3 cases (partial_base_level_fall case 16: 6 pairs)",
+    47: "order in 5 of 6 cases (runoff_gradient case 18: 2 pairs)",
+    49: "order in 2 of 3 cases (partial_base_level_fall case 8: 1 pair)",
+    51: "order in 2 of 3 cases (partial_base_level_fall case 0: 4 pairs)",
+    59: "order in 4 of 5 cases (erodibility_patch case 1: 15 pairs)",
+    67: "order in 1 of 3 cases (partial_base_level_fall case 0: 1 pair; runoff_gradient case 18: 1 pair)",
+    68: "order in 5 of 6 cases (erodibility_patch case 9: 2 pairs)",
+    70: "order in 3 of 4 cases (runoff_gradient case 18: 1 pair)",
+}
+
+ALARM_MISSES: dict[int, str] = {
+    18: "4 of 6 steady cases without an alarm (a main segment in steady_symmetric case 12 at 0.56, probability of "
+        "motion 0.82, confidence 0.55; a main segment in steady_uplift_contrast case 21 at 0.50, probability of "
+        "motion 0.50, confidence 0.93)",
+    41: "2 of 3 steady cases without an alarm (a lateral segment in steady_uplift_contrast case 13 at 0.51, "
+        "probability of motion 0.51, confidence 0.98)",
+    62: "7 of 8 steady cases without an alarm (a lateral segment in steady_uplift_contrast case 13 at 0.60, "
+        "probability of motion 0.75, confidence 0.98; a lateral segment in steady_uplift_contrast case 13 at 0.57, "
+        "probability of motion 0.61, confidence 0.98)",
+}
+
+LATERAL_SCALING_MISSES: dict[int, str] = {
+    3: "the main divide's scaling scores 0.199 against the lateral segments' own 0.225",
+    6: "the main divide's scaling scores 0.134 against the lateral segments' own 0.135",
+    17: "the main divide's scaling scores 0.123 against the lateral segments' own 0.124",
+    26: "the main divide's scaling scores 0.186 against the lateral segments' own 0.188",
+    30: "the main divide's scaling scores 0.085 against the lateral segments' own 0.104",
+    32: "the main divide's scaling scores 0.246 against the lateral segments' own 0.250",
+    34: "the main divide's scaling scores 0.212 against the lateral segments' own 0.220",
+    35: "the main divide's scaling scores 0.082 against the lateral segments' own 0.092",
+    52: "the main divide's scaling scores 0.075 against the lateral segments' own 0.081",
+    54: "the main divide's scaling scores 0.148 against the lateral segments' own 0.158",
+    56: "the main divide's scaling scores 0.100 against the lateral segments' own 0.144",
+    70: "the main divide's scaling scores 0.145 against the lateral segments' own 0.155",
+}
+
+LATERAL_MEAN_MISSES: dict[int, str] = {
+    39: "the lateral segments' mean instability 0.073 against a moved share of 0.130",
+}
+
+PROBABILITY_MISSES: dict[int, str] = {
+    25: "calibration error 0.053 (log loss 0.195 against the score's 1.186; 271 segments, 128 moving)",
+}
 
 
 @functools.lru_cache(maxsize=None)
@@ -251,6 +378,11 @@ def _held_out(seed: int) -> tuple[dict, ...]:
 def _known_miss(seed: int, why: str):
     return pytest.param(seed, marks=pytest.mark.xfail(strict=True, reason=f"known miss on master seed {seed} "
                                                       f"(docs/validation.md, Regional screening): {why}"))
+
+
+def _with_misses(seeds: tuple[int, ...], misses: dict[int, str]) -> list:
+    """The seeds to test, each known miss as a strict expected failure with its measured reason."""
+    return [_known_miss(s, misses[s]) if s in misses else s for s in seeds]
 
 
 @pytest.mark.slow
@@ -278,9 +410,7 @@ def _lateral_log_loss(held_out, scaling) -> tuple[float, float, float]:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [s if s != 48 else _known_miss(48, "the lateral segments' mean instability 0.069 "
-                                                                 "against a moved share of 0.017")
-                                  for s in HELD_OUT_SEEDS])
+@pytest.mark.parametrize("seed", _with_misses(HELD_OUT_SEEDS, LATERAL_MEAN_MISSES))
 def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
     # Lateral outlet-basin segments against the area their pair of basins exchanged: with their own Platt
     # scaling, fitted on training cases, the mean instability is within 0.05 of the share that moved
@@ -309,24 +439,7 @@ def test_held_out_lateral_instability_is_calibrated_in_the_large(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [1, 2, _known_miss(3, "the main divide's scaling scores 0.209 against the "
-                                                       "lateral segments' own 0.232"), 4, 5, 6, 7, 8, 9, 10,
-                                  _known_miss(11, "the main divide's scaling scores 0.110 against the lateral "
-                                                  "segments' own 0.117"), 12, 13, 14, 15, 16, 17, 18, 19, 20, 21,
-                                  23, 24, 25, 26, 27, 28, 29,
-                                  _known_miss(30, "the main divide's scaling scores 0.087 against the lateral "
-                                                  "segments' own 0.103"), 31,
-                                  _known_miss(32, "the main divide's scaling scores 0.189 against the lateral "
-                                                  "segments' own 0.219"), 33,
-                                  _known_miss(34, "the main divide's scaling scores 0.205 against the lateral "
-                                                  "segments' own 0.211"),
-                                  _known_miss(35, "the main divide's scaling scores 0.085 against the lateral "
-                                                  "segments' own 0.094"), 36, 37, 38, 39, 40, 41, 42, 43, 44, 45,
-                                  46, 47, 48, 49, 50, 51, 52, 53,
-                                  _known_miss(54, "the main divide's scaling scores 0.149 against the lateral "
-                                                  "segments' own 0.159"), 55,
-                                  _known_miss(56, "the main divide's scaling scores 0.111 against the lateral "
-                                                  "segments' own 0.144"), 57, 58, 59, 60, 62, 63, 67, 68])
+@pytest.mark.parametrize("seed", _with_misses(HELD_OUT_SEEDS, LATERAL_SCALING_MISSES))
 def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
     # By log loss (a proper scoring rule; common practice) the lateral segments' own scaling beats the main divide's on
     # the held-out cases: 0.179 against 0.239 (seed 1), 0.126 against 0.141 (seed 2), 0.131 against 0.150 (seed 4),
@@ -357,93 +470,7 @@ def test_held_out_lateral_own_scaling_beats_the_main_divides(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [_known_miss(1, "top target in 3 of 4 cases (partial_base_level_fall case 0: no "
-                                                 "main segment scored 0.01 or more; the second and third by the "
-                                                 "runs' shifts lie outside moving stretches)"), 2, 3,
-                                  _known_miss(4, "top target in 3 of 4 cases (runoff_gradient case 2: its second "
-                                                 "segment points 48 degrees from the measured motion)"), 5, 6,
-                                  _known_miss(7, "top target in 5 of 6 cases (partial_base_level_fall case 16: its "
-                                                 "second and third segments lie in moving stretches without a "
-                                                 "direction)"), 8,
-                                  _known_miss(9, "top target in 2 of 3 cases (partial_base_level_fall case 16: no "
-                                                 "main segment scored 0.01 or more, the first two lie in still "
-                                                 "stretches, the third in a moving one without a direction)"),
-                                  10, 11,
-                                  _known_miss(12, "top target in 3 of 4 cases (partial_base_level_fall case 16: its "
-                                                  "top three lie in moving stretches but have no direction)"), 13, 14,
-                                  15, _known_miss(16, "top target in 6 of 7 cases (partial_base_level_fall case 8: "
-                                                      "its first main segment has no direction, its third lies "
-                                                      "19 % in moving stretches)"),
-                                  _known_miss(17, "top target in 4 of 5 cases (partial_base_level_fall case 8: "
-                                                  "its second main segment has no direction, its third lies "
-                                                  "37 % in moving stretches)"), 18,
-                                  _known_miss(19, "top target in 5 of 6 cases (runoff_gradient case 2: its third "
-                                                  "main segment points 49 degrees from the measured motion)"), 20, 21,
-                                  23, 24,
-                                  _known_miss(25, "top target in 6 of 8 cases (partial_base_level_fall case 8: its "
-                                                  "third main segment, 94 % in moving stretches, has no direction; "
-                                                  "case 16: its third lies in a still stretch)"), 26,
-                                  _known_miss(27, "top target in 5 of 6 cases (partial_base_level_fall case 8: its "
-                                                  "first main segment lies 59 % in moving stretches)"),
-                                  _known_miss(28, "top target in 7 of 8 cases (runoff_gradient case 2: its third "
-                                                  "main segment points 148 degrees from the measured motion)"),
-                                  29,
-                                  _known_miss(30, "top target in 5 of 6 cases (partial_base_level_fall case 0: its "
-                                                  "third main segment lies 33 % in moving stretches)"),
-                                  _known_miss(31, "top target in 5 of 6 cases (partial_base_level_fall case 16: its "
-                                                  "third main segment lies 40 % in moving stretches, without a "
-                                                  "direction)"), 32,
-                                  _known_miss(33, "top target in 5 of 6 cases (partial_base_level_fall case 0: one "
-                                                  "moving stretch; the first main segment lies in a still one)"),
-                                  _known_miss(34, "top target in 5 of 6 cases (partial_base_level_fall case 0: one "
-                                                  "moving stretch; the second main segment lies in a still one)"),
-                                  35, 36, 37,
-                                  _known_miss(38, "top target in 2 of 4 cases (partial_base_level_fall case 0: two of "
-                                                  "ten stretches moving, its first main segment lies 54 % in them; "
-                                                  "case 16: one moving stretch, its top two lie in still ones)"),
-                                  _known_miss(39, "top target in 5 of 6 cases (erodibility_patch case 1: two main "
-                                                  "segments, the one in a moving stretch without a direction)"),
-                                  40, 41, 42,
-                                  _known_miss(43, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
-                                                  "third main segment lies in a moving stretch without a direction)"),
-                                  _known_miss(44, "top target in 3 of 5 cases (partial_base_level_fall case 16: its "
-                                                  "second main segment lies in a moving stretch without a direction, "
-                                                  "its third 51 % in moving stretches without one; runoff_gradient "
-                                                  "case 18: its first points 52 degrees from the measured motion)"),
-                                  _known_miss(45, "top target in 5 of 7 cases (partial_base_level_fall case 8: its "
-                                                  "third main segment lies in a moving stretch without a direction; "
-                                                  "erodibility_patch case 9: its third points 48 degrees from the "
-                                                  "measured motion)"), 46, 47, 48, 49, 50, 51,
-                                  _known_miss(52, "top target in 3 of 4 cases (partial_base_level_fall case 0: its "
-                                                  "three first main segments lie in moving stretches without a "
-                                                  "direction)"), 53,
-                                  _known_miss(54, "top target in 4 of 5 cases (partial_base_level_fall case 16: its "
-                                                  "second main segment lies in a moving stretch without a "
-                                                  "direction)"),
-                                  _known_miss(55, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
-                                                  "first main segment lies 57 % in moving stretches, its second in "
-                                                  "one, neither with a direction)"),
-                                  _known_miss(56, "top target in 5 of 7 cases (partial_base_level_fall case 0: its "
-                                                  "first main segment lies 55 % in moving stretches, its second "
-                                                  "has no direction; case 8: its second lies 8 % in moving "
-                                                  "stretches)"),
-                                  _known_miss(57, "top target in 6 of 7 cases (partial_base_level_fall case 16: its "
-                                                  "three first main segments lie in moving stretches without a "
-                                                  "direction)"), 58, 59,
-                                  _known_miss(60, "top target in 5 of 8 cases (partial_base_level_fall case 8: its "
-                                                  "second main segment lies 20 % in moving stretches, without a "
-                                                  "direction; case 16: its three first lie in moving stretches "
-                                                  "without a direction; erodibility_patch case 9: its first points "
-                                                  "47 degrees from the measured motion)"),
-                                  _known_miss(62, "top target in 5 of 6 cases (partial_base_level_fall case 8: its "
-                                                  "first main segment lies 19 % in moving stretches, its second in a "
-                                                  "still one without a direction)"),
-                                  _known_miss(63, "top target in 6 of 7 cases (tilt case 11: its three first main "
-                                                  "segments point 46, 45 and 47 degrees from the measured motion)"),
-                                  67,
-                                  _known_miss(68, "top target in 8 of 9 cases (partial_base_level_fall case 0: its "
-                                                  "third main segment lies 68 % in moving stretches, without a "
-                                                  "direction)")])
+@pytest.mark.parametrize("seed", _with_misses(HELD_OUT_SEEDS, TOP_MISSES))
 def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
     # Issue 14's target: the highest-ranked main-divide segments lie in moving stretches and point within
     # 45 degrees of the measured motion; 8 of 8, 3 of 3, 8 of 8, 5 of 5, 8 of 8, 11 of 11, 3 of 3, 6 of 6, 4 of 4,
@@ -460,28 +487,7 @@ def test_held_out_top_ranked_segments_move_where_the_truth_moves(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17,
-                                  _known_miss(18, "5 of 6 steady cases without an alarm (a main segment in "
-                                                  "steady_uplift_contrast case 21, 0.59: scored 0.87, probability of "
-                                                  "motion 0.59; also one of 0.99 before round 38)"),
-                                  _known_miss(19, "7 of 8 steady cases without an alarm (a lateral segment in "
-                                                  "steady_uplift_contrast case 21, 0.54 at confidence 0.99: scored "
-                                                  "0.62 without run evidence, probability of motion 0.54)"),
-                                  _known_miss(20, "7 of 8 steady cases without an alarm (two lateral segments in "
-                                                  "steady_erodibility_contrast case 6, 0.62 and 0.60, that both runs "
-                                                  "move; their pair of basins moves slowly, 1-2 cells per response "
-                                                  "time)"), 21, 23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33,
-                                  34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49,
-                                  50, 51,
-                                  _known_miss(52, "5 of 6 steady cases without an alarm (two lateral segments in "
-                                                  "steady_erodibility_contrast case 22, 0.64 and 0.61 at confidence "
-                                                  "0.99, in stretches that did not move)"), 53, 54, 55, 56, 57, 58,
-                                  59, 60,
-                                  _known_miss(62, "6 of 8 steady cases without an alarm (lateral segments in "
-                                                  "steady_uplift_contrast case 13, 0.60 and 0.57 at confidence "
-                                                  "0.98-0.99, their pair measured slow, and in "
-                                                  "steady_erodibility_contrast case 14, 0.61 at 0.99, in a still "
-                                                  "pair)"), 63, 67, 68])
+@pytest.mark.parametrize("seed", _with_misses(HELD_OUT_SEEDS, ALARM_MISSES))
 def test_held_out_steady_landscapes_raise_no_alarm(seed):
     # Issue 14's target: no segment with instability and confidence both >= 0.5 in a steady landscape; 6 of 6, 7 of 7, 3
     # of 3, 8 of 8, 4 of 4, 8 of 8, 10 of 10, 9 of 9, 6 of 6, 6 of 6, 6 of 6, 4 of 4, 5 of 5, 7 of 7, 6 of 6 and 6 of 6
@@ -503,43 +509,7 @@ def test_held_out_steady_landscapes_raise_no_alarm(seed):
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [1, 2, 3,
-                                  _known_miss(4, "order in 1 of 2 cases (partial_base_level_fall case 8: 6 pairs)"),
-                                  5, 6, 7,
-                                  _known_miss(8, "order in 3 of 5 cases (erodibility_patch case 9: 4 pairs, "
-                                                 "partial_base_level_fall case 16: 2; 4 of 5 in round 34)"),
-                                  9, 10, 11, 12,
-                                  _known_miss(13, "order in 2 of 3 cases (partial_base_level_fall case 8: 1 pair; "
-                                                  "3 of 3 in round 34)"),
-                                  _known_miss(14, "order in 1 of 2 cases (erodibility_patch case 1: 2 pairs)"),
-                                  _known_miss(15, "order in 4 of 5 cases (erodibility_patch case 17: 2 pairs)"),
-                                  16, 17,
-                                  _known_miss(18, "order in 7 of 8 cases (erodibility_patch case 9: 12 pairs; "
-                                                  "runoff_gradient case 18 with 1 pair before round 38)"), 19, 20,
-                                  _known_miss(21, "order in 5 of 6 cases (runoff_gradient case 18: 2 pairs; a moving "
-                                                  "segment scored 0 that neither run moves half a cell)"), 23, 24,
-                                  _known_miss(25, "order in 3 of 4 cases (partial_base_level_fall case 16: 9 pairs)"),
-                                  26, 27,
-                                  _known_miss(28, "order in 3 of 4 cases (runoff_gradient case 2: 1 pair)"), 29, 30,
-                                  31, 32,
-                                  _known_miss(33, "order in 4 of 5 cases (partial_base_level_fall case 0: 2 pairs)"),
-                                  _known_miss(34, "order in 2 of 3 cases (partial_base_level_fall case 0: 1 pair)"),
-                                  35, 36, 37,
-                                  _known_miss(38, "order in 1 of 3 cases (partial_base_level_fall case 0: 3 pairs, "
-                                                  "case 16: 4)"), 39, 40, 41, 42,
-                                  _known_miss(43, "order in 2 of 3 cases (erodibility_patch case 1: 2 pairs)"), 44,
-                                  45, _known_miss(46, "order in 3 of 4 cases (erodibility_patch case 17: 8 pairs)"),
-                                  _known_miss(47, "order in 4 of 6 cases (erodibility_patch case 1: 8 pairs; "
-                                                  "runoff_gradient case 18: 2)"), 48,
-                                  _known_miss(49, "order in 2 of 3 cases (partial_base_level_fall case 8: 1 pair)"),
-                                  50,
-                                  _known_miss(51, "order in 2 of 3 cases (partial_base_level_fall case 0: 4 pairs)"),
-                                  52, 53, 54, 55, 56, 57, 58,
-                                  _known_miss(59, "order in 4 of 5 cases (erodibility_patch case 1: 15 pairs)"),
-                                  60, 62, 63,
-                                  _known_miss(67, "order in 1 of 3 cases (partial_base_level_fall case 0: 1 pair; "
-                                                  "runoff_gradient case 18: 1 pair)"),
-                                  _known_miss(68, "order in 5 of 6 cases (erodibility_patch case 9: 5 pairs)")])
+@pytest.mark.parametrize("seed", _with_misses(HELD_OUT_SEEDS, ORDER_MISSES))
 def test_held_out_still_segments_rank_below_moving_ones(seed):
     # Issue 14's target: every main-divide segment in a stretch that does not move ranks below every one in a
     # moving stretch; 3 of 3, 4 of 4, 2 of 2, 5 of 5, 4 of 4, 4 of 4, 3 of 3, 6 of 6, 2 of 2, 1 of 1, 3 of 3, 4 of 4 and
@@ -567,9 +537,7 @@ def _log_loss_and_calibration(p, y) -> tuple[float, float]:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", [s if s != 63 else _known_miss(63, "calibration error 0.051 (log loss 0.181 against "
-                                                                 "the score's 0.580; 356 segments, 129 moving)")
-                                  for s in PROBABILITY_SEEDS])
+@pytest.mark.parametrize("seed", _with_misses(PROBABILITY_SEEDS, PROBABILITY_MISSES))
 def test_held_out_probability_of_motion_is_calibrated(seed):
     # Round 42 (docs/validation.md; target written before the draw's figures were read): on the held-out main
     # segments in moving or still stretches, the probability of motion's calibration error is at most 0.05 and its
