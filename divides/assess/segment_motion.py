@@ -22,10 +22,11 @@ __all__ = ["instability_of", "bounded_instability", "evidence_features",
 #: instability = 1 / (1 + exp(-(alpha + beta logit p))). ``main``: segments between outlet basins that
 #: drain apart, truth per stretch of the main divide (a segment moves when at least 70 % of it lies in
 #: stretches moving 2 cells per response time or more); ``lateral``: between outlet basins that drain the
-#: same way, truth from the area the two basins exchange. Fitted on its training cases, settled at the
-#: truth run's time step (version 3; docs/validation.md, *Regional screening*); refit with
-#: ``tests/benchmarks/bench_regional.py --fit`` whenever the decision model changes.
-INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-5.75, 2.86), "lateral": (-3.71, 1.28)}
+#: same way, truth from the area the two basins exchange. Fitted on the 316 training cases of round 58 with
+#: 120-cell judged stretches, no DEM error (6992 main segments, 2555 moving; 9293 lateral, 518 moving; round 60,
+#: docs/validation.md, *Regional screening*); refit with ``tests/benchmarks/bench_regional.py --fit`` whenever the
+#: decision model or the judged stretch changes. Read only without the landscape evidence (``forward_run=False``).
+INSTABILITY_SCALING: dict[str, tuple[float, float]] = {"main": (-4.29, 2.06), "lateral": (-3.79, 1.22)}
 
 #: The instability with the landscape evidence (the default of :func:`divides.assess.screen.screen`): a logistic
 #: model per kind of divide, instability = 1 / (1 + exp(-(alpha + beta logit p + gamma_h h + gamma_r r))),
@@ -138,8 +139,8 @@ def instability_of(probabilities: dict | None, kind: str = "main", evidence: dic
 
     Examples
     --------
-    >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # -5.75 + 2.86 logit 0.9 = 0.534
-    0.63
+    >>> round(instability_of({"a": 0.45, "b": 0.45, "stable": 0.1}), 2)  # -4.29 + 2.06 logit 0.9 = 0.236
+    0.56
     >>> agreeing = {"forward_shift_cells": 0.8, "forward_shift_basin_cells": 0.6, "hilltop_contrast": 0.2}
     >>> round(instability_of({"a": 0.05, "b": 0.85, "stable": 0.1}, "main", agreeing), 2)  # all toward b
     0.99
