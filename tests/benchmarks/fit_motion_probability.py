@@ -3,7 +3,8 @@ leaving one case out (run by hand, not a test).
 
     python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
         [--candidates P2 P2e] [--told-error E0=1 E1=1 E5=5] [--probability P2e]
-        [--fit-all | --rankings NAME ... | --alarms | --lateral-veto | --lateral-cap | --instability-cap]
+        [--fit-all | --rankings NAME ... | --alarms | --lateral-veto | --lateral-cap | --instability-cap |
+         --near-divide-scaling]
 
 Reads the per-case JSON lines of ``bench_regional.py --json`` (training cases only), one group of files per
 condition of DEM error, and for each kind of divide (main, lateral) and each candidate of docs/validation.md
@@ -16,6 +17,7 @@ given). ``--fit-all`` prints each candidate's coefficients fitted on every case 
 ``--rankings`` (rounds 43, 45, 48, 50–56 and 57) instead scores orders of the segments of ``rescore_regional.RANKINGS``,
 ``--alarms`` (round 44) the steady landscapes' alarms read from the probability, each case's probability fitted
 without it;
+``--near-divide-scaling`` refits round 60's Platt scaling of the near-divide decision on the first condition's cases;
 ``--lateral-veto`` scores round 47's candidates, ``--lateral-cap`` round 49's and ``--instability-cap`` round 57's
 (the instability reported as the smaller of the score and the probability, ``--probability``'s, each case's fitted
 without it and capped as shipped on lateral divides whose hilltops contradict them). The instability and the
@@ -33,12 +35,17 @@ import re
 from collections.abc import Callable
 
 import numpy as np
-from bench_regional import probability_scores  # this folder (scripts run from here)
+from bench_regional import fit_instability, probability_scores  # this folder (scripts run from here)
 from rescore_regional import PRIOR_SD, RANKINGS, _size, instability, targets
 from scipy.optimize import minimize
 
 from divides.assess.screen import INSTABILITY_EVIDENCE, beside_scored, evidence_features
-from divides.assess.segment_motion import LATERAL_HILLS_AGAINST_MAX, bounded_instability, motion_features
+from divides.assess.segment_motion import (
+    INSTABILITY_SCALING,
+    LATERAL_HILLS_AGAINST_MAX,
+    bounded_instability,
+    motion_features,
+)
 from divides.model.regional_benchmark import raises_alarm
 
 KINDS = ("main", "lateral")
@@ -290,6 +297,53 @@ def instability_cap(cases: dict[str, list[dict]], rows: list[dict],
         print(f"| {name} | " + " | ".join(cells) + " |")
 
 
+def near_divide_scaling(groups: dict[str, list[str]], fit_on: str = "E0") -> None:
+    """Round 60: the Platt scaling of P(a) + P(b) per kind (``INSTABILITY_SCALING``, read without the landscape
+    evidence) refitted on the ``fit_on`` condition's cases, each case scored under every condition by the scaling
+    fitted without it, beside the shipped one: log loss and calibration error per kind, and the steady landscapes
+    a ``--no-forward-run`` screening leaves without an alarm."""
+    cases = {cond: _cases(files) for cond, files in groups.items()}
+    fits = {k: fit_instability(cases[fit_on], k) for k in KINDS}
+    print("fitted on every case: " + "; ".join(f"{k} ({f['alpha']:.2f}, {f['beta']:.2f}), {f['n']} segments, "
+                                               f"{f['moving']} moving" for k, f in fits.items()))
+    left_out = {}
+    for case in cases[fit_on]:
+        rest = [c for c in cases[fit_on] if c["_case"] != case["_case"]]
+        left_out[case["_case"]] = {k: (lambda f: (f["alpha"], f["beta"]))(fit_instability(rest, k)) for k in KINDS}
+
+    def scaled(p: dict, kind: str, ab: tuple[float, float]) -> float:
+        return 1.0 / (1.0 + math.exp(-min(max(ab[0] + ab[1] * evidence_features(p, {}, kind)[0], -700.0), 700.0)))
+
+    total = {"shipped": 0.0, "refitted": 0.0}
+    print("| condition | kind | segments (moving) | shipped log loss (ECE) | refitted (ECE) |\n" + "| --- " * 5 + "|")
+    for cond, rows in cases.items():
+        for kind in KINDS:
+            cells = []
+            for name in total:
+                p, y = [], []
+                for case in rows:
+                    ab = INSTABILITY_SCALING[kind] if name == "shipped" else left_out[case["_case"]][kind]
+                    for m in case["main"] + case.get("lateral", []):
+                        if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"]) and m["kind"] == kind:
+                            p.append(scaled(m["probabilities"], kind, ab))
+                            y.append(float(m["in_moving"]))
+                sc = probability_scores(p, y)
+                total[name] += sc["log_loss"]
+                cells.append(f"{sc['log_loss']:.3f} ({sc['ece']:.3f})")
+            print(f"| {cond} | {kind} | {sc['n']} ({sc['moving']}) | " + " | ".join(cells) + " |")
+    print("summed log loss: " + ", ".join(f"{k} {v:.3f}" for k, v in total.items()))
+    for cond, rows in cases.items():
+        steady = [c for c in rows if c["family"].startswith("steady_")]
+        for name in total:
+            quiet = sum(not any(
+                m["probabilities"] is not None and (m["confidence"] or 0.0) >= 0.5 and scaled(
+                    m["probabilities"], kind, INSTABILITY_SCALING[kind] if name == "shipped"
+                    else left_out[case["_case"]][kind]) >= 0.5
+                for m in case["main"] + case["others"] for kind in [m.get("divide_kind") or m["kind"]])
+                for case in steady)
+            print(f"{cond}, {name}: steady landscapes without an alarm (--no-forward-run) {quiet}/{len(steady)}")
+
+
 def reliability(p: np.ndarray, y: np.ndarray) -> list[tuple[str, int, float, float]]:
     """Ten equal bins: label, count, mean probability, share moving."""
     bins = np.minimum((p * 10).astype(int), 9)
@@ -317,12 +371,17 @@ def main() -> None:
                         help="round 49: the lateral probability of motion with and without round 47's cap, and stop")
     parser.add_argument("--instability-cap", action="store_true",
                         help="round 57: alarms with the instability capped at the probability of motion")
+    parser.add_argument("--near-divide-scaling", action="store_true",
+                        help="round 60: INSTABILITY_SCALING refitted on the first condition's cases, and stop")
     parser.add_argument("--alarms", action="store_true",
                         help="round 44: the steady landscapes' alarms read from the score and from the probability "
                              "of motion (both kinds, each case's fitted without it), and stop")
     args = parser.parse_args()
     groups = {g[0]: g[1:] for g in args.condition}
     told = {k: float(v) for k, v in (t.split("=") for t in args.told_error)}
+    if args.near_divide_scaling:
+        near_divide_scaling(groups, next(iter(groups)))
+        return
     cases = prepared(groups, told)
     rows = segments(cases)
     if args.rankings:
