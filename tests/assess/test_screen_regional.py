@@ -242,7 +242,8 @@ PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 43,
 #: Known misses per slow held-out test (strict expected failures, each with its measured reason). Since round 59
 #: (120-cell judged stretches, the probability of motion refitted; docs/validation.md, *Regional screening*) every
 #: status and reason is the one measured with its default on all held-out draws, the lateral ones with round 60's
-#: near-divide scaling; the figures in the tests' comments are from when each draw was written.
+#: near-divide scaling; the figures in the tests' comments are from when each draw was written. The tables are
+#: printed, measured again, by tests/benchmarks/held_out_statuses.py.
 TOP_MISSES: dict[int, str] = {
     1: "top target in 3 of 4 cases (partial_base_level_fall case 0: main segments ranked second outside moving "
        "stretches, no direction; third outside moving stretches)",
