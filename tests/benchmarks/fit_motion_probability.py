@@ -1,4 +1,4 @@
-"""Rounds 42-59: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
+"""Rounds 42-60: candidate calibrations of the probability of motion, fitted on screened regional cases and scored
 leaving one case out (run by hand, not a test).
 
     python tests/benchmarks/fit_motion_probability.py --condition E0 FILE.jsonl ... --condition E1 ... \
