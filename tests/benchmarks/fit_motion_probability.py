@@ -311,8 +311,10 @@ def near_divide_scaling(groups: dict[str, list[str]], fit_on: str = "E0") -> Non
         rest = [c for c in cases[fit_on] if c["_case"] != case["_case"]]
         left_out[case["_case"]] = {k: (lambda f: (f["alpha"], f["beta"]))(fit_instability(rest, k)) for k in KINDS}
 
-    def scaled(p: dict, kind: str, ab: tuple[float, float]) -> float:
-        return 1.0 / (1.0 + math.exp(-min(max(ab[0] + ab[1] * evidence_features(p, {}, kind)[0], -700.0), 700.0)))
+    def scaled(p: dict, kind: str, name: str, case: dict) -> float:
+        """P(a) + P(b) of a segment of ``case`` Platt-scaled by the shipped or the left-out fit (``name``)."""
+        alpha, beta = INSTABILITY_SCALING[kind] if name == "shipped" else left_out[case["_case"]][kind]
+        return 1.0 / (1.0 + math.exp(-min(max(alpha + beta * evidence_features(p, {}, kind)[0], -700.0), 700.0)))
 
     total = {"shipped": 0.0, "refitted": 0.0}
     print("| condition | kind | segments (moving) | shipped log loss (ECE) | refitted (ECE) |\n" + "| --- " * 5 + "|")
@@ -322,10 +324,9 @@ def near_divide_scaling(groups: dict[str, list[str]], fit_on: str = "E0") -> Non
             for name in total:
                 p, y = [], []
                 for case in rows:
-                    ab = INSTABILITY_SCALING[kind] if name == "shipped" else left_out[case["_case"]][kind]
                     for m in case["main"] + case.get("lateral", []):
                         if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"]) and m["kind"] == kind:
-                            p.append(scaled(m["probabilities"], kind, ab))
+                            p.append(scaled(m["probabilities"], kind, name, case))
                             y.append(float(m["in_moving"]))
                 sc = probability_scores(p, y)
                 total[name] += sc["log_loss"]
@@ -336,11 +337,9 @@ def near_divide_scaling(groups: dict[str, list[str]], fit_on: str = "E0") -> Non
         steady = [c for c in rows if c["family"].startswith("steady_")]
         for name in total:
             quiet = sum(not any(
-                m["probabilities"] is not None and (m["confidence"] or 0.0) >= 0.5 and scaled(
-                    m["probabilities"], kind, INSTABILITY_SCALING[kind] if name == "shipped"
-                    else left_out[case["_case"]][kind]) >= 0.5
-                for m in case["main"] + case["others"] for kind in [m.get("divide_kind") or m["kind"]])
-                for case in steady)
+                m["probabilities"] is not None and raises_alarm(
+                    {**m, "instability": scaled(m["probabilities"], m.get("divide_kind") or m["kind"], name, case)})
+                for m in case["main"] + case["others"]) for case in steady)
             print(f"{cond}, {name}: steady landscapes without an alarm (--no-forward-run) {quiet}/{len(steady)}")
 
 

@@ -21,6 +21,8 @@ import textwrap
 from collections.abc import Callable
 from pathlib import Path
 
+from divides.model.regional_benchmark import raises_alarm
+
 TESTS = Path(__file__).resolve().parents[1] / "assess" / "test_screen_regional.py"
 ORDINAL = ("first", "second", "third")
 
@@ -69,7 +71,7 @@ def _alarm(cases: list[dict], _) -> str:
               for c in steady if not c["alarm_ok"]
               for kind, segments in (("main", c["main"]), ("lateral", c.get("others", [])))
               for m in segments
-              if m.get("instability") is not None and m["instability"] >= 0.5 and (m.get("confidence") or 0) >= 0.5]
+              if raises_alarm(m)]
     return f"{sum(bool(c['alarm_ok']) for c in steady)} of {len(steady)} steady cases without an alarm " \
            f"({'; '.join(alarms)})"
 
