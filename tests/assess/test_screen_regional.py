@@ -549,6 +549,17 @@ def _log_loss_and_calibration(p, y) -> tuple[float, float]:
     return float(np.mean(-(y * np.log(p) + (1 - y) * np.log(1 - p)))), float(ece)
 
 
+def _probability_figures(held_out) -> tuple[float, float, float, int, int]:
+    """Log loss and calibration error of the probability of motion, and the ranking score's log loss, on the held-out
+    main segments in moving or still stretches; their number and how many moved."""
+    main = [m for r in held_out for m in r["main"]
+            if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"])]
+    y = [float(m["in_moving"]) for m in main]
+    loss, ece = _log_loss_and_calibration([m["motion_probability"] for m in main], y)
+    loss_score, _ = _log_loss_and_calibration([m["ranking_score"] for m in main], y)
+    return loss, ece, loss_score, len(main), int(sum(y))
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("seed", _with_misses(PROBABILITY_SEEDS, PROBABILITY_MISSES))
 def test_held_out_probability_of_motion_is_calibrated(seed):
@@ -584,10 +595,6 @@ def test_held_out_probability_of_motion_is_calibrated(seed):
     # against 0.099 and 0.797 on seed 68 (391, 145 moving) when written (round
     # 42's fit: 0.022, 0.019 and 0.042 on seeds 23-25). A draw's figure varies: on 12-case draws of the training
     # cases it exceeded 0.05 in 11 % (docs/validation.md).
-    main = [m for r in _held_out(seed) for m in r["main"]
-            if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"])]
-    y = [float(m["in_moving"]) for m in main]
-    assert len(main) >= 100 and 0 < sum(y) < len(y)
-    loss, ece = _log_loss_and_calibration([m["motion_probability"] for m in main], y)
-    loss_score, _ = _log_loss_and_calibration([m["ranking_score"] for m in main], y)
+    loss, ece, loss_score, n, moving = _probability_figures(_held_out(seed))
+    assert n >= 100 and 0 < moving < n
     assert ece <= 0.05 and loss < loss_score

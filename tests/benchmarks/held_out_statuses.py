@@ -88,13 +88,9 @@ def _lateral_mean(cases: list[dict], tests) -> str:
 
 
 def _probability(cases: list[dict], tests) -> str:
-    main = [m for c in cases for m in c["main"]
-            if m["probabilities"] is not None and (m["in_moving"] or m["in_stable"])]
-    y = [float(m["in_moving"]) for m in main]
-    loss, ece = tests._log_loss_and_calibration([m["motion_probability"] for m in main], y)
-    score, _ = tests._log_loss_and_calibration([m["ranking_score"] for m in main], y)
-    return (f"calibration error {ece:.3f} (log loss {loss:.3f} against the score's {score:.3f}; {len(main)} segments, "
-            f"{int(sum(y))} moving)")
+    loss, ece, score, n, moving = tests._probability_figures(cases)
+    return (f"calibration error {ece:.3f} (log loss {loss:.3f} against the score's {score:.3f}; {n} segments, "
+            f"{moving} moving)")
 
 
 #: table name -> (test, its reason, the module's tuple of draws it runs on)
