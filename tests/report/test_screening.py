@@ -342,3 +342,29 @@ def test_the_follow_up_reads_the_stretch_each_segment_was_judged_on(screening):
         assert all(any(x == a or y == b for a, b in pairs[:k]) for k, (x, y) in enumerate(pairs) if k)
         side_a, side_b = (text.split(";") for text in stretch_sides(s, sides))
         assert sides[s["basins"][0]] in side_a and sides[s["basins"][1]] in side_b and not set(side_a) & set(side_b)
+
+
+@pytest.mark.parametrize("forward_run", [False, True])
+def test_map_words_stay_clear_of_each_other(screening, forward_run):
+    # Issue 14 item 5: a map read against its table. The colour bar's label reads beside its bar (no longer than
+    # it), and the title, the axis labels, the colour bar's label and the legend's entries overlap nothing else
+    # (on the demo the bar's one-line label ran past the bar's ends and across the legend). Judged on the boxes
+    # matplotlib's renderer draws after its layout (a general-purpose reference), not on the placement rule.
+    import dataclasses
+
+    from divides.report.screening import regional_map
+
+    result = dataclasses.replace(screening, parameters={**screening.parameters, "forward_run": forward_run})
+    fig = regional_map(result)
+    fig.canvas.draw()  # the constrained layout places the legend and the colour bar when drawn
+    renderer = fig.canvas.get_renderer()
+    ax, bar = fig.axes[0], fig.axes[1]
+    assert bar.yaxis.label.get_text().startswith("instability")
+    label = bar.yaxis.label.get_window_extent(renderer)
+    assert label.height <= bar.get_window_extent(renderer).height + 1, bar.yaxis.label.get_text()
+    words = [w for w in (ax.title, ax.xaxis.label, ax.yaxis.label, bar.yaxis.label, *fig.legends[0].get_texts())
+             if w.get_text()]
+    boxes = [w.get_window_extent(renderer) for w in words]
+    for i in range(len(words)):
+        for j in range(i + 1, len(words)):
+            assert not boxes[i].overlaps(boxes[j]), (words[i].get_text(), words[j].get_text())
