@@ -326,6 +326,14 @@ def _scale_bar(ax, dem: Dem, frame: _Frame) -> None:
     ax.add_artist(bar)
 
 
+def _map_height_in(fig: Figure, dem: Dem, frame: _Frame) -> float:
+    """About the height (inches) of a map's data area: the width :func:`_map_size` leaves beside it times the DEM's
+    aspect, or less where the figure's height caps the map (the height less the room of the largest ``extra``, 2 in)."""
+    left, bottom, right, top = dem.bounds
+    ratio = (top - bottom) * frame.aspect / max(right - left, 1e-12)
+    return min(max(fig.get_figwidth() - 2.2, 0.5) * ratio, max(fig.get_figheight() - 2.0, 0.5))
+
+
 def _north_arrow(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
     from matplotlib.transforms import ScaledTranslation
 
@@ -335,14 +343,22 @@ def _north_arrow(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
     ux, uy = np.sin(rad), np.cos(rad) * frame.aspect
     norm = float(np.hypot(ux, uy)) or 1.0
     ux, uy = ux / norm, uy / norm
-    length = 0.42  # inches
-    base = (0.93, 0.78)
-    tip = ax.transAxes + ScaledTranslation(ux * length, uy * length, fig.dpi_scale_trans)
-    label = ax.transAxes + ScaledTranslation(ux * (length + 0.13), uy * (length + 0.13), fig.dpi_scale_trans)
-    ax.annotate("", xy=base, xycoords=tip, xytext=base, textcoords=ax.transAxes, zorder=9, gid="north-arrow",
+    text = "N" if true else "N (grid)"
+    size = 9.0  # points
+    # placed from the map's top right corner in inches, its length a share of the map's height, so that on a
+    # short map (a strip of DEM) the arrow and its letter stay inside the map, clear of the title
+    length = min(0.42, 0.15 * _map_height_in(fig, dem, frame))  # inches
+    half = 0.5 * len(text) * 0.6 * size / 72.0  # the letter's half-width, a character 0.6 em wide
+    corner, x0, y0 = (1.0, 1.0), -(0.08 + max(half, 0.1)), -0.14  # the letter's centre from the corner
+
+    def at(back: float):  # ``back`` inches from the letter, against the arrow's direction
+        return ax.transAxes + ScaledTranslation(x0 - back * ux, y0 - back * uy, fig.dpi_scale_trans)
+
+    label, tip, base = at(0.0), at(0.13), at(0.13 + length)
+    ax.annotate("", xy=corner, xycoords=tip, xytext=corner, textcoords=base, zorder=9, gid="north-arrow",
                 arrowprops=dict(arrowstyle="-|>,head_width=0.35,head_length=0.7", color="black", lw=1.6,
                                 shrinkA=0, shrinkB=0, path_effects=_HALO))
-    ax.text(*base, "N" if true else "N (grid)", transform=label, ha="center", va="center", fontsize=9,
+    ax.text(*corner, text, transform=label, ha="center", va="center", fontsize=size,
             fontweight="bold", zorder=9, path_effects=_HALO)
 
 

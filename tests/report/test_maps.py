@@ -143,3 +143,29 @@ def test_named_sides_appear_in_the_figures(demo_result):
     assert "River Tallow (side a)" in title and "Quern Water (side b)" in title
     texts = [t.get_text() for ax in figures.contrast_figure(named).axes for t in ax.texts]
     assert any("into Quern Water (side b)" in t for t in texts)
+
+
+@pytest.mark.parametrize("shape", [(10, 10), (70, 240), (40, 400), (300, 60)])
+def test_north_arrow_stays_inside_the_map_whatever_its_shape(shape):
+    # A strip of DEM makes a short map: the arrow and its "N" must stay inside the map and clear of the title above
+    # it (a 0.42 in arrow from 78 % of the height ran through the title of a 70 x 240 cell map). Judged on the boxes
+    # matplotlib's renderer draws after the constrained layout (a general-purpose reference).
+    dem = divides.Dem.from_array(np.zeros(shape), cell_size=30.0)
+    frame = figures._frame(dem)
+    fig = figures._figure(*figures._map_size(dem, frame, extra=2.0))
+    ax = fig.add_subplot()
+    ext = figures._extent(dem, frame)
+    ax.set_xlim(ext[0], ext[1])
+    ax.set_ylim(ext[2], ext[3])
+    ax.set_aspect(frame.aspect)
+    ax.set_title("a title as long as the regional map's, above the map", fontsize=10)
+    figures.map_furniture(fig, ax, dem, frame)
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    inside = ax.get_window_extent(renderer)
+    (arrow,) = _furniture(ax)[1]
+    letter = next(t for t in ax.texts if t.get_text() in ("N", "N (grid)"))
+    for mark in (arrow, letter):
+        box = mark.get_window_extent(renderer)
+        assert inside.x0 <= box.x0 and box.x1 <= inside.x1 and inside.y0 <= box.y0 and box.y1 <= inside.y1, shape
+    assert not letter.get_window_extent(renderer).overlaps(ax.title.get_window_extent(renderer))
