@@ -51,7 +51,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
            "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
            "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
            "neighbour_scores", "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block",
-           "PROMOTE_TOLD_ERROR_M", "beside_scored"]
+           "PROMOTE_TOLD_ERROR_M", "beside_scored", "interleave_kinds"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
@@ -459,7 +459,8 @@ def _empty(seg: DivideSegment, why: str) -> dict:
 
 
 def rank_key(instability: float | None, evidence: dict | None = None, *, promote: bool = False) -> tuple:
-    """Sort key of a segment in the screening's ranking (ascending: rank 1 first).
+    """Sort key of a segment in the screening's ranking (ascending: rank 1 first; each kind of divide keeps this order
+    when :func:`interleave_kinds` merges the kinds).
 
     Without the landscape ``evidence`` (as :func:`instability_of`) segments rank by instability, unknown
     (None: the decision abstained) last. With it (the segment's row, its ``verdict`` included), in three tiers:
@@ -520,6 +521,41 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     size = run_size(evidence)
     size = math.inf if size is None else size
     return (1, -float(beside_scored(evidence)), -size, 0.0 if instability is None else -instability)
+
+
+def interleave_kinds(kinds: Sequence[str], probabilities: Sequence[float | None]) -> list[int]:
+    """The order of segments already ranked (by :func:`rank_key`) in which each kind of divide keeps its own order and
+    the kinds are interleaved by each segment's *reach*: the largest probability of motion from it to the end of its
+    kind's list (unknown read as 0), larger first, ties in the present order (round 62, docs/validation.md).
+
+    :func:`rank_key`'s tiers were chosen on the main segments' targets; their score is a different function for each
+    kind (:data:`INSTABILITY_EVIDENCE`), so a main segment likely to move whose score the per-basin run gated to 0
+    ranked below lateral segments unlikely to move. Each kind's own order, and so the main targets, is unchanged.
+
+    Parameters
+    ----------
+    kinds : sequence of str
+        Each segment's ``divide_kind``, in the present order.
+    probabilities : sequence of float or None
+        Each segment's probability of motion (:func:`~divides.assess.segment_motion.motion_probability`).
+
+    Returns
+    -------
+    list of int
+        Indices into the present order.
+
+    Examples
+    --------
+    >>> interleave_kinds(["main", "lateral", "lateral", "main", "main"], [0.9, 0.3, 0.2, 0.01, 0.95])
+    [0, 3, 4, 1, 2]
+    """
+    reach = [0.0] * len(kinds)
+    for kind in set(kinds):
+        best = 0.0
+        for i in reversed([i for i, k in enumerate(kinds) if k == kind]):
+            best = max(best, probabilities[i] or 0.0)
+            reach[i] = best
+    return sorted(range(len(kinds)), key=lambda i: (-reach[i], i))
 
 
 def beside_scored(evidence: dict) -> bool:
@@ -791,8 +827,9 @@ def screen(
         of the calibrated decision, :func:`divides.assess.verdict.decide`, rescaled to the
         regional benchmark's truth of the segment's divide kind, ``divide_kind``; None, ranked last,
         when it abstained for insufficient data; with the forward run, segments scored below
-        :data:`RUN_ORDER_BELOW` by their neighbours and the runs' shifts, :func:`rank_key`; that score is
-        ``ranking_score``, and ``instability`` is it never above ``motion_probability``,
+        :data:`RUN_ORDER_BELOW` by their neighbours and the runs' shifts, :func:`rank_key`, main and lateral
+        segments interleaved by :func:`interleave_kinds` where told less than :data:`PROMOTE_TOLD_ERROR_M`; that
+        score is ``ranking_score``, and ``instability`` is it never above ``motion_probability``,
         :func:`~divides.assess.segment_motion.bounded_instability`); every other
         stretch of divide between two basins is a gap with its reason, and ``coverage`` gives the judged
         share of the divides between outlet basins.
@@ -875,6 +912,9 @@ def screen(
     promote = config.dem_error_m >= PROMOTE_TOLD_ERROR_M
     rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None, promote=promote),
                              -r["seg"].line.length_m))
+    if config.forward_run and not promote:  # told that much error, the promotion interleaves the likely movers
+        rows = [rows[i] for i in interleave_kinds([r["divide_kind"] for r in rows],
+                                                  [r["motion_probability"] for r in rows])]
     out = []
     for rank, r in enumerate(rows, start=1):
         seg = r["seg"]

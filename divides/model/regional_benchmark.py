@@ -706,7 +706,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
     out["others"] = [{k: s.get(k) for k in ("rank", "instability", "ranking_score", "motion_probability", "confidence",
                                             "probabilities", "length_m",
                                             "judged_length_m", "n_points", "facing_share", "divide_kind",
-                                            *EVIDENCE_KEYS)}
+                                            "verdict", *EVIDENCE_KEYS)}
                      for s in screening.segments if {int(edge[s["basins"][0]]), int(edge[s["basins"][1]])} != {1, 2}]
     out["coverage_ok"] = out["coverage"] is not None and out["coverage"] >= TARGETS["coverage"]
     out["alarm_ok"] = (not case.steady) or not alarms

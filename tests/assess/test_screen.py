@@ -372,3 +372,26 @@ def test_segments_that_point_come_first_in_the_top_tier():
     for name, verdict in (("aimless", "undetermined"), ("stable", "stable"), ("points", "b"), ("weak", "a")):
         rows[name]["verdict"] = verdict
     assert _ranked(rows) == ["points", "aimless", "stable", "weak"]
+
+
+def test_each_kind_keeps_its_order_and_sorted_kinds_merge_by_probability():
+    # Round 62 (docs/methods.md §7b): main and lateral segments are interleaved by each one's reach, the largest
+    # probability of motion from it to the end of its kind's list. Two properties of that definition, checked on
+    # random rankings: each kind's own order is kept (so the main targets cannot change), and where each kind is
+    # already sorted by its probability, as without the landscape evidence, the result is the stable merge of the two
+    # sorted lists, i.e. one stable sort by probability (the merge of sorted runs; common practice).
+    from divides.assess.screen import interleave_kinds
+
+    rng = np.random.default_rng(62)
+    for _ in range(200):
+        n = int(rng.integers(1, 30))
+        kinds = list(rng.choice(["main", "lateral"], size=n))
+        p = [None if rng.random() < 0.1 else float(v) for v in rng.random(n)]
+        order = interleave_kinds(kinds, p)
+        assert sorted(order) == list(range(n))
+        for kind in ("main", "lateral"):
+            assert [i for i in order if kinds[i] == kind] == [i for i in range(n) if kinds[i] == kind]
+        q = [0.0 if v is None else v for v in p]
+        ranked = sorted(range(n), key=lambda i: (kinds[i], -q[i], i))  # each kind sorted by probability
+        merged = interleave_kinds([kinds[i] for i in ranked], [q[i] for i in ranked])
+        assert [q[ranked[i]] for i in merged] == sorted(q, reverse=True)

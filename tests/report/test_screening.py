@@ -368,3 +368,20 @@ def test_map_words_stay_clear_of_each_other(screening, forward_run):
     for i in range(len(words)):
         for j in range(i + 1, len(words)):
             assert not boxes[i].overlaps(boxes[j]), (words[i].get_text(), words[j].get_text())
+
+
+def test_main_segments_likely_to_move_rank_above_lateral_ones_unlikely_to(screening):
+    # Round 62: on the demo the main divide's segments likely to move (probability of motion >= 0.5), whose score the
+    # per-basin run gated to 0, ranked 23-30 of 30, below lateral segments unlikely to move. Each kind keeps its own
+    # order (rank_key's), and the kinds are interleaved by the probability of motion (a definition; common practice).
+    from divides.assess.screen import rank_key
+
+    segments = screening.segments
+    likely_main = [s["rank"] for s in segments if s["divide_kind"] == "main" and s["motion_probability"] >= 0.5]
+    unlikely_lateral = [s["rank"] for s in segments
+                        if s["divide_kind"] == "lateral" and (s["motion_probability"] or 0.0) < 0.5]
+    assert len(likely_main) >= 5 and unlikely_lateral
+    assert max(likely_main) < min(unlikely_lateral)
+    main = [s for s in segments if s["divide_kind"] == "main"]
+    keys = [(*rank_key(s["ranking_score"], s), -s["length_m"]) for s in main]
+    assert keys == sorted(keys)  # the main segments in rank_key's order
