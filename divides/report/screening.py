@@ -617,7 +617,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
            f"{CHAIN_CELLS:g} model cell or more, "
            "first (a divide moves along a stretch several segments long); each group furthest moved by either "
            "run, either way, first (those neither could measure before all); "
-           "segments of unknown instability that the runs move join them. "
+           "segments of unknown instability that the runs move join them. Main and lateral divides are each "
+           "ranked so and, unless the screening is told a DEM error of 3 m or more, merged by P(moving), so "
+           "that a main divide likely to move does not rank below lateral ones unlikely to. "
            if p.get("forward_run")
            else "") +
         f"{SCREENING_LIMITS} "
