@@ -14,7 +14,9 @@ basins) and prints, for the ranking as screened and for the orders of rounds 61 
 
 Orders: ``as screened`` (the records' ranks); ``K0`` one sort of all segments by
 :func:`divides.assess.screen.rank_key` (as shipped before round 62; rebuilt only from records that keep every
-segment's verdict, written since round 62); ``K2`` each kind in the order screened, the kinds interleaved by
+segment's verdict, written since round 62); ``K1`` each kind in the order screened, the kinds interleaved by the
+running minimum of the probability of motion down each kind's list (round 61, not adopted); ``K2`` each kind in the
+order screened, the kinds interleaved by
 :func:`divides.assess.screen.interleave_kinds`; ``K3`` K2 where the screening is told (``--told``, metres) less than
 ``PROMOTE_TOLD_ERROR_M``, the order screened otherwise (round 62's rule: on records screened since, the order as
 screened). Each kind's order screened is rank_key's before and after round 62. A segment is moving when the truth
@@ -31,7 +33,7 @@ import json
 from divides.assess.screen import PROMOTE_TOLD_ERROR_M, interleave_kinds, rank_key
 from divides.model.regional_benchmark import ranking_targets
 
-ORDERS = ("as screened", "K0", "K2", "K3")
+ORDERS = ("as screened", "K0", "K1", "K2", "K3")
 
 
 def _segments(case: dict) -> list[dict]:
@@ -54,6 +56,13 @@ def reranked(segs: list[dict], order: str, told_m: float) -> dict[int, int] | No
             return None
         segs = sorted(segs, key=lambda s: (*rank_key(s["ranking_score"], s, promote=promote), -s["length_m"],
                                            s["rank"]))
+    elif order == "K1":
+        floor: dict[str, float] = {}
+        key = []
+        for s in segs:  # the running minimum of each kind's probabilities, unknown read as 0
+            floor[s["divide_kind"]] = min(floor.get(s["divide_kind"], 1.0), s["motion_probability"] or 0.0)
+            key.append(floor[s["divide_kind"]])
+        segs = [segs[i] for i in sorted(range(len(segs)), key=lambda i: (-key[i], i))]
     elif order == "K2" or (order == "K3" and not promote):
         segs = [segs[i] for i in interleave_kinds([s["divide_kind"] for s in segs],
                                                   [s["motion_probability"] for s in segs])]
