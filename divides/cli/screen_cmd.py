@@ -198,7 +198,8 @@ def screen(
                f"cover {100 * result.coverage.get('screened_area_share', 1.0):.0f} % {area_of(result.parameters)}.")
     if segs and top:
         from divides.report.labels import probability_text
-        from divides.report.screening import LIKELY_MOTION, confidence_text, likely_motion
+        from divides.report.screening import (LIKELY_MOTION, SMALL_SCORE_NOTE, confidence_text, likely_motion,
+                                              small_score)
 
         typer.echo(f"{'rank':>4}  {'instab.':>7}  {'P(mov.)':>7}  {'conf.':>7}  {'length m':>9}  {'basins':>11}  "
                    f"{'toward':>6}  bearing")
@@ -215,6 +216,8 @@ def screen(
         if unlikely:
             typer.echo("(n): the direction the near-divide measures favour; motion unlikely "
                        f"(P(moving) < {LIKELY_MOTION:g}).")
+        if any(small_score(s) for s in segs[:top]):
+            typer.echo(SMALL_SCORE_NOTE[:1].upper() + SMALL_SCORE_NOTE[1:])
 
     if level == "edges" and segs:  # the labels are the edges' own
         named = sorted({b for s in segs for b in s["basins"]})

@@ -284,6 +284,27 @@ def likely_motion(segment: dict) -> bool:
     return p is None or p >= LIKELY_MOTION
 
 
+#: Why a segment likely to move (P(moving) of at least LIKELY_MOTION) can show a small instability: the score the
+#: instability is bounded by asks both landscape runs to move it (docs/methods.md §7b).
+SMALL_SCORE_NOTE = ("instability below 0.5 beside P(moving) of 0.5 or more: the score an alarm reads stays low "
+                    "unless both landscape runs move the divide the favoured way; P(moving) is the calibrated "
+                    "probability that the segment moves, and places main and lateral divides in one ranking.")
+
+
+def small_score(segment: dict) -> bool:
+    """Whether a segment is likely to move (:func:`likely_motion`, with a probability) while its instability, which
+    an alarm reads, is below 0.5 (:data:`SMALL_SCORE_NOTE`).
+
+    Examples
+    --------
+    >>> small_score({"instability": 1e-5, "motion_probability": 0.96}), small_score({"instability": 0.9,
+    ...                                                                               "motion_probability": 0.96})
+    (True, False)
+    """
+    p, i = segment.get("motion_probability"), segment.get("instability")
+    return p is not None and i is not None and p >= LIKELY_MOTION and i < 0.5
+
+
 def directions_text(segments: list[dict]) -> str:
     """How many segments the decision gives a direction, and how many of them are likely to move.
 
@@ -550,7 +571,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
                                   for r, seg in zip(rows[:top], result.segments)], numeric={0, 1, 2, 3, 4, 8})
     p = result.parameters
     words = INSTABILITY_WORDS[bool(p.get("forward_run"))] + (
-        "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "")
+        "; P(moving): the calibrated probability that it moves" if p.get("forward_run") else "") + (
+        "; " + SMALL_SCORE_NOTE.split(";")[0] if any(small_score(s) for s in result.segments[:top]) else "")
     notes = [*runs_notes(result), *data_notes(result)]
     caution = (f"<div class=\"caution\" role=\"note\"><b>Caution.</b> {e(CAUTION)}"
                + "".join(f" {e(n)}" for n in notes if n is not None) + "</div>")
