@@ -38,12 +38,8 @@ ORDERS = ("as screened", "K0", "K1", "K2", "K3")
 
 def _segments(case: dict) -> list[dict]:
     """Every segment of a case with its ``truth`` ("moving", "still" or None), in the order screened."""
-    truth: dict[int, str | None] = {}
-    for m in case["main"]:
-        truth[m["rank"]] = "moving" if m["in_moving"] else ("still" if m["in_stable"] else None)
-    for lat in case.get("lateral", []):
-        t = lat.get("truth")
-        truth[lat["rank"]] = "moving" if t in ("a", "b") else ("still" if t == "stable" else None)
+    truth = {m["rank"]: "moving" if m["in_moving"] else ("still" if m["in_stable"] else None)
+             for m in (*case["main"], *case.get("lateral", []))}  # the benchmark's own classes of both kinds
     segs = [{**m, "divide_kind": m.get("kind")} for m in case["main"]] + list(case["others"])
     return sorted(({**s, "truth": truth.get(s["rank"])} for s in segs), key=lambda s: s["rank"])
 
