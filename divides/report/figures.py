@@ -329,9 +329,7 @@ def _scale_bar(ax, dem: Dem, frame: _Frame) -> None:
 def _map_height_in(fig: Figure, dem: Dem, frame: _Frame) -> float:
     """About the height (inches) of a map's data area: the width :func:`_map_size` leaves beside it times the DEM's
     aspect, or less where the figure's height caps the map (the height less the room of the largest ``extra``, 2 in)."""
-    left, bottom, right, top = dem.bounds
-    ratio = (top - bottom) * frame.aspect / max(right - left, 1e-12)
-    return min(max(fig.get_figwidth() - 2.2, 0.5) * ratio, max(fig.get_figheight() - 2.0, 0.5))
+    return min(max(fig.get_figwidth() - 2.2, 0.5) * _map_ratio(dem, frame), max(fig.get_figheight() - 2.0, 0.5))
 
 
 def _north_arrow(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
@@ -395,9 +393,13 @@ def _map_axes(fig: Figure, result: Assessment, frame: _Frame):
 
 def _map_size(dem: Dem, frame: _Frame, *, width: float = 8.0, extra: float = 1.6) -> tuple[float, float]:
     """Figure size whose height fits the map: axes about 2.2 in narrower than the figure, plus ``extra``."""
+    return width, float(np.clip((width - 2.2) * _map_ratio(dem, frame) + extra, 4.0, 11.0))
+
+
+def _map_ratio(dem: Dem, frame: _Frame) -> float:
+    """The map's height over its width as drawn (the DEM's extent, its vertical axis stretched by ``frame.aspect``)."""
     left, bottom, right, top = dem.bounds
-    ratio = (top - bottom) * frame.aspect / max(right - left, 1e-12)
-    return width, float(np.clip((width - 2.2) * ratio + extra, 4.0, 11.0))
+    return (top - bottom) * frame.aspect / max(right - left, 1e-12)
 
 
 def _metres_to_axis(dem: Dem, frame: _Frame, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
