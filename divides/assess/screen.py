@@ -473,7 +473,8 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
-       is not evidence of stillness), then by instability; an unknown segment joins this tier when the
+       is not evidence of stillness; a shift under :data:`RUNS_AGREE_CELLS` reads as 0, round 63), then by
+       instability; an unknown segment joins this tier when the
        one-uplift-rate run moves its divide at least :data:`RUNS_AGREE_CELLS` and the per-basin run does not move
        it as far the other way;
     3. other unknown segments.
@@ -484,6 +485,9 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     >>> pushed = {"forward_shift_cells": -0.2, "forward_shift_basin_cells": -1.0}  # 1 cell into a, per basin
     >>> still = {"forward_shift_cells": 0.1, "forward_shift_basin_cells": 0.0}
     >>> rank_key(1e-6, pulled) < rank_key(1e-6, pushed) < rank_key(1e-3, still) < rank_key(None)
+    True
+    >>> nudged = {"forward_shift_cells": 0.0, "forward_shift_basin_cells": 0.4}  # under half a cell: a tie
+    >>> rank_key(1e-3, still) < rank_key(1e-6, nudged) < rank_key(1e-9, still)
     True
     >>> rank_key(0.3, still) < rank_key(1e-3, {}) < rank_key(1e-3, pushed)
     True
@@ -519,7 +523,8 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
     if evidence is None or (instability is None and _run_moves(evidence) is None):
         return (2, 0.0, 0.0, 0.0)
     size = run_size(evidence)
-    size = math.inf if size is None else size
+    # a shift under half a cell is within what resampling the same landscape half a cell moves it (round 63): a tie
+    size = math.inf if size is None else (0.0 if size < RUNS_AGREE_CELLS else size)
     return (1, -float(beside_scored(evidence)), -size, 0.0 if instability is None else -instability)
 
 

@@ -72,7 +72,7 @@ def test_coverage_and_every_stretch_accounted_for(steady):
 def test_ranks_follow_the_documented_order(steady):
     # docs/methods.md §7b, re-derived here: segments scored >= 0.01 rank by score; those below (20 of 31 here,
     # 19 with a measured run) after them, by the larger |shift| of the two landscape runs in either direction
-    # (neither measured first), then by score; unknown last, unless the one-U run moves the divide half a cell or
+    # (neither measured first; under half a cell read as 0 since round 63), then by score; unknown last, unless the one-U run moves the divide half a cell or
     # more and the per-basin run does not move it as far the other way (then among those below 0.01, by the
     # larger |shift|); ties by length. Since round 34, a main segment below 0.01 whose line comes within 5 cells of
     # another main segment's scored >= 0.01 comes first in that tier, and since round 36 one reached from such a
@@ -115,6 +115,7 @@ def test_ranks_follow_the_documented_order(steady):
                               and np.sign(one_u) * per_basin > -0.5):
             return (2, 0.0, 0.0, 0.0, -s["length_m"])
         size = max((abs(v) for v in (one_u, per_basin) if v is not None), default=np.inf)
+        size = 0.0 if size < 0.5 else size  # since round 63 a shift under half a cell is a tie
         return (1, -float(beside_scored(s)), -size, 0.0 if i is None else -i, -s["length_m"])
 
     # Since round 62 (told less than 3 m of DEM error, as here) main and lateral segments each keep that order and the
