@@ -55,7 +55,7 @@ def half_cell(dem):
     out[:-1, :-1] = 0.25 * (z[:-1, :-1] + z[1:, :-1] + z[:-1, 1:] + z[1:, 1:])
     out[-1, :-1] = 0.5 * (z[-1, :-1] + z[-1, 1:])
     out[:-1, -1] = 0.5 * (z[:-1, -1] + z[1:, -1])
-    moved = dem.transform * Affine.translation(0.5, 0.5)
+    moved = dem.transform @ Affine.translation(0.5, 0.5)
     return Dem.from_array(out, transform=moved, crs=dem.crs,
                           cell_size=None if dem.crs is not None else float(abs(dem.transform.a)))
 

@@ -91,3 +91,29 @@ def test_a_case_observed_with_dem_error_is_the_surface_plus_one_reproducible_fie
     assert field.std() == pytest.approx(2.0, rel=0.2)
     lag1 = np.corrcoef(field[:, 1:].ravel(), field[:, :-1].ravel())[0, 1]
     assert lag1 == pytest.approx(np.exp(-1 / 3), abs=0.08)
+
+
+def test_half_cell_resampling_is_bilinear_at_the_cell_corners():
+    # The benchmark's condition H (tests/benchmarks/bench_regional.py): each elevation is the bilinear interpolation
+    # of the DEM half a cell east and south of a centre, checked against scipy.ndimage.map_coordinates (order 1, a
+    # general-purpose reference library); the last row and column interpolate along the edge, the map coordinates
+    # move half a cell with the samples.
+    import sys
+    from pathlib import Path
+
+    from scipy.ndimage import map_coordinates
+
+    from divides.io.dem import Dem
+
+    sys.path.insert(0, str(Path(__file__).parents[1] / "benchmarks"))
+    from bench_regional import half_cell
+
+    z = np.random.default_rng(3).normal(100.0, 20.0, (7, 9))
+    dem = Dem.from_array(z, cell_size=30.0)
+    out = half_cell(dem)
+    rows, cols = np.mgrid[0:7, 0:9].astype(float) + 0.5
+    expected = map_coordinates(z, [np.minimum(rows, 6.0), np.minimum(cols, 8.0)], order=1)
+    np.testing.assert_allclose(out.elevation, expected, rtol=0, atol=1e-9)
+    assert out.shape == dem.shape
+    # the centre of the resampled first cell lies on the corner of the source's first four cells
+    assert out.xy(0, 0) == pytest.approx(dem.xy(0.5, 0.5))
