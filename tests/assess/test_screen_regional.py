@@ -74,12 +74,12 @@ def test_ranks_follow_the_documented_order(steady):
     # 19 with a measured run) after them, by the larger |shift| of the two landscape runs in either direction
     # (neither measured first; under half a cell read as 0 since round 63), then by score; unknown last, unless the
     # one-U run moves the divide half a cell or more and the per-basin run does not move it as far the other way
-    # (then among those below 0.01, by the larger |shift|); ties by length. Since round 34, a main segment below 0.01 whose line comes within 5 cells of
-    # another main segment's scored >= 0.01 comes first in that tier, and since round 36 one reached from such a
-    # segment through main segments each within 5 cells of the next, below 0.01 and moved >= 1 cell by either run
-    # (neighbours found here by brute force with scipy's cdist). Here the order differs from the score's alone. The
-    # score is the segments' ranking_score (their instability is it bounded by the probability of motion, round 57).
-    # The interleaving of round 62 is below.
+    # (then among those below 0.01, by the larger |shift|); ties by length. Since round 34, a main segment below 0.01
+    # whose line comes within 5 cells of another main segment's scored >= 0.01 comes first in that tier, and since
+    # round 36 one reached from such a segment through main segments each within 5 cells of the next, below 0.01 and
+    # moved >= 1 cell by either run (neighbours found here by brute force with scipy's cdist). Here the order differs
+    # from the score's alone. The score is the segments' ranking_score (their instability is it bounded by the
+    # probability of motion, round 57). The interleaving of round 62 is below.
     from scipy.spatial.distance import cdist
 
     _, result, _, _ = steady

@@ -277,8 +277,8 @@ def main() -> None:
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
         extra["forward_run"] = not args.no_forward_run
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
-        result = score(case, screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra),
-                       lateral=lateral_truth(case))
+        screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
+        result = score(case, screening, lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
     if args.generate_only:
