@@ -140,6 +140,29 @@ def unmeasured_runs_note(segments: list[dict], parameters: dict) -> str | None:
             "is 0.5 or more, and a low score there is not evidence that the divide is still.")
 
 
+def no_main_divide_note(segments: list[dict], parameters: dict) -> str | None:
+    """The caution a screening carries when it judged segments but none on a main divide (between basins that drain
+    apart; None otherwise, and at ``--level edges``, whose basins are the edges' own).
+
+    The basins beyond a range's crest can all be smaller than the minimum basin area, as where the DEM reaches only a
+    little past it: the crest is then a gap of that reason and the coverage of the divides between outlet basins can
+    still read 100 %.
+
+    Examples
+    --------
+    >>> no_main_divide_note([{"divide_kind": "lateral"}], {"min_basin_area_m2": 2.5e6, "level": "tributaries"})[:48]
+    'No judged segment lies on a main divide (between'
+    >>> no_main_divide_note([{"divide_kind": "main"}, {"divide_kind": "lateral"}], {"level": "tributaries"}) is None
+    True
+    """
+    if not segments or parameters.get("level") == "edges" or any(s.get("divide_kind") == "main" for s in segments):
+        return None
+    return ("No judged segment lies on a main divide (between basins that drain apart): every basin screened drains "
+            "the same way. If the DEM holds a range's crest, the basins beyond it are smaller than the minimum basin "
+            f"area ({parameters.get('min_basin_area_m2', float('nan')) / 1e6:.3g} km²) and the crest is a gap "
+            "(layers/screen_gaps.geojson); a smaller --min-basin-area screens it.")
+
+
 def area_of(parameters: dict) -> str:
     """What the screened area share is a share of: the DEM, or its land above ``--sea-level`` when one was given.
 
@@ -160,9 +183,11 @@ def runs_notes(result: Screening) -> list[str]:
 
 
 def data_notes(result: Screening) -> list[str]:
-    """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data."""
+    """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data, no main divide
+    judged (:func:`no_main_divide_note`)."""
     notes = (raster_holes_note(result.parameters, result.dem.n_valid),
-             interior_nodata_note(result.interior_nodata_cells, result.dem.n_valid))
+             interior_nodata_note(result.interior_nodata_cells, result.dem.n_valid),
+             no_main_divide_note(result.segments, result.parameters))
     return [n for n in notes if n is not None]
 
 

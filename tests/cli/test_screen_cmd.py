@@ -35,6 +35,31 @@ def test_screen_writes_the_contract_files_and_lists_segments(tmp_path, capsys):
     assert "<th>divide</th>" in html
     for kind, words in (("main", "main (basins drain apart)"), ("lateral", "lateral (basins drain the same way)")):
         assert (words in html) == any(r["divide_kind"] == kind for r in rows[:25]), kind
+    assert "No judged segment lies on a main divide" not in captured.out  # the demo's crest is judged
+
+
+def test_a_crest_left_to_small_basins_is_named(tmp_path, capsys):
+    # The demo DEM cut at column 110, 2-20 cells west of its crest (columns 112-130 by the highest cell of each row):
+    # every basin draining west is then below the default minimum basin area, so no main-divide segment is judged,
+    # while the divides between the outlet basins left are all covered. The command line and the report say so.
+    import rasterio
+    from affine import Affine
+
+    with rasterio.open(UPLANDS) as src:
+        profile = {**src.profile, "width": src.width - 110, "transform": src.transform @ Affine.translation(110, 0)}
+        z = src.read(1)[:, 110:]
+    path = tmp_path / "east_flank.tif"
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(z, 1)
+    out = tmp_path / "s"
+    code = run(["screen", str(path), "--out", str(out), "--no-forward-run"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    document = json.loads((out / "screening.json").read_text())
+    assert document["segments"] and all(s["divide_kind"] == "lateral" for s in document["segments"])
+    assert document["coverage"]["share"] == pytest.approx(1.0)
+    assert "Caution: No judged segment lies on a main divide" in captured.out
+    assert "No judged segment lies on a main divide" in (out / "report.html").read_text()
 
 
 def test_screen_json_is_strict(tmp_path, capsys):
