@@ -268,4 +268,5 @@ def test_a_likely_mover_with_a_small_instability_is_explained(tmp_path, capsys):
             table = list(csv.DictReader(fh))[:25]
         in_table = any(float(r["instability"]) < 0.5 and float(r["motion_probability"]) >= 0.5 for r in table)
         assert in_table
-        assert ("the score an alarm reads stays low unless both landscape runs" in (out / "report.html").read_text()) == in_table
+        report = (out / "report.html").read_text()
+        assert ("the score an alarm reads stays low unless both landscape runs" in report) == in_table
