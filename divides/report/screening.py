@@ -210,7 +210,7 @@ def segment_rows(result: Screening, sides: dict[int, str] | None = None) -> list
             "rank": s["rank"], "confidence": s["confidence"],
             "instability": None if s["instability"] is None else round(float(s["instability"]), 4),
             "ranking_score": None if s.get("ranking_score") is None else round(float(s["ranking_score"]), 4),
-            # two decimals, as its calibration error on held-out model landscapes (0.02-0.08) supports, and never 0
+            # two decimals, as its calibration error on held-out model landscapes (0.01-0.08) supports, and never 0
             # or 1: a model's probability is not a certainty
             "motion_probability": None if s.get("motion_probability") is None
             else round(min(max(float(s["motion_probability"]), 0.01), 0.99), 2),
@@ -651,7 +651,8 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
            "size of the runs' shift, whether a strongly scored main segment lies next to it and the DEM error "
            "the screening is told (read up to 5 m), fitted on "
            "the training cases of the regional model landscapes (Platt 1999); on held-out ones its calibration "
-           "error was 0.02–0.04 with up to 1 m of DEM error and 0.03–0.08 with 5 m. It is calibrated to their "
+           "error was 0.01–0.07 per model landscape draw without DEM error and up to 0.08 with 5 m. It is "
+           "calibrated to their "
            "mix, in which 37 % of the segments of main divides move: where moving divides are rarer it reads high, and "
            "still divides whose evidence looks like that of moving ones can get 0.5 or more, so the ranking and "
            "the instability, not P(moving), say where to look first. Of the segments scored 0.01 or "
