@@ -158,9 +158,9 @@ def no_main_divide_note(segments: list[dict], parameters: dict) -> str | None:
     if not segments or parameters.get("level") == "edges" or any(s.get("divide_kind") == "main" for s in segments):
         return None
     return ("No judged segment lies on a main divide (between basins that drain apart): every two neighbouring basins "
-            "screened drain the same way. If the DEM holds a range's crest, the basins beyond it are smaller than the minimum basin "
-            f"area ({parameters.get('min_basin_area_m2', float('nan')) / 1e6:.3g} km²) and the crest is a gap "
-            "(layers/screen_gaps.geojson); a smaller --min-basin-area screens it.")
+            "screened drain the same way. If the DEM holds a range's crest, the basins beyond it are smaller than the "
+            f"minimum basin area ({parameters.get('min_basin_area_m2', float('nan')) / 1e6:.3g} km²) and the crest "
+            "is a gap (layers/screen_gaps.geojson); a smaller --min-basin-area screens it.")
 
 
 def area_of(parameters: dict) -> str:
