@@ -326,10 +326,15 @@ def _scale_bar(ax, dem: Dem, frame: _Frame) -> None:
     ax.add_artist(bar)
 
 
+#: How much narrower than its figure a map's axes are (inches): the axis labels and the colour bar beside it.
+_MAP_SIDE_IN = 2.2
+
+
 def _map_height_in(fig: Figure, dem: Dem, frame: _Frame) -> float:
     """About the height (inches) of a map's data area: the width :func:`_map_size` leaves beside it times the DEM's
     aspect, or less where the figure's height caps the map (the height less the room of the largest ``extra``, 2 in)."""
-    return min(max(fig.get_figwidth() - 2.2, 0.5) * _map_ratio(dem, frame), max(fig.get_figheight() - 2.0, 0.5))
+    width = max(fig.get_figwidth() - _MAP_SIDE_IN, 0.5)
+    return min(width * _map_ratio(dem, frame), max(fig.get_figheight() - 2.0, 0.5))
 
 
 def _north_arrow(fig: Figure, ax, dem: Dem, frame: _Frame) -> None:
@@ -392,8 +397,8 @@ def _map_axes(fig: Figure, result: Assessment, frame: _Frame):
 
 
 def _map_size(dem: Dem, frame: _Frame, *, width: float = 8.0, extra: float = 1.6) -> tuple[float, float]:
-    """Figure size whose height fits the map: axes about 2.2 in narrower than the figure, plus ``extra``."""
-    return width, float(np.clip((width - 2.2) * _map_ratio(dem, frame) + extra, 4.0, 11.0))
+    """Figure size whose height fits the map: axes :data:`_MAP_SIDE_IN` narrower than the figure, plus ``extra``."""
+    return width, float(np.clip((width - _MAP_SIDE_IN) * _map_ratio(dem, frame) + extra, 4.0, 11.0))
 
 
 def _map_ratio(dem: Dem, frame: _Frame) -> float:
