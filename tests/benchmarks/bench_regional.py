@@ -3,7 +3,7 @@
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
                                               [--generate-only] [--json FILE] [--fit] [--markdown]
                                               [--no-forward-run] [--dem-error SIGMA [--dem-error-cells L]
-                                              [--screen-assumes-default]] [--half-cell]
+                                              [--screen-assumes-default]] [--half-cell] [--auto-channel-area]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
@@ -18,6 +18,8 @@ covariance over L cells, default 3; RegionalCase.dem), the truth staying that of
 screening is told the error (dem_error_m, dem_error_length_m) unless --screen-assumes-default.
 --half-cell screens each DEM resampled half a cell off its grid (:func:`half_cell`): the same landscape sampled at
 other points, as a reprojection or a resampling of a real DEM samples it; the truth stays that of the model grid.
+--auto-channel-area screens with the channel area screening reads from the DEM by default (slope–area data) instead of
+the validation's fixed :data:`CHANNEL_CELLS`.
 """
 
 from __future__ import annotations
@@ -244,6 +246,8 @@ def main() -> None:
                         help="do not tell screening the error added (it keeps its default error model)")
     parser.add_argument("--half-cell", action="store_true",
                         help="screen each DEM resampled half a cell off its grid (half_cell; the truth unchanged)")
+    parser.add_argument("--auto-channel-area", action="store_true",
+                        help="screen with screening's default channel area (read from the DEM), not CHANNEL_CELLS")
     parser.add_argument("--extra-balances", nargs="*", default=(), metavar="BALANCE",
                         help="also run the landscape under these balances (e.g. steady-local10) and record each "
                              "segment's shift as forward_shift_<balance>_cells (a measuring aid; the screening's "
@@ -276,6 +280,8 @@ def main() -> None:
             continue
         extra = {} if args.min_judged_cells is None else {"min_judged_m": args.min_judged_cells * case.cell_size}
         extra["forward_run"] = not args.no_forward_run
+        if args.auto_channel_area:
+            extra["channel_area_m2"] = None
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
         screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
         result = score(case, screening, lateral=lateral_truth(case))
