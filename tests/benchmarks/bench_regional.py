@@ -255,8 +255,9 @@ def main() -> None:
     args = parser.parse_args()
     if args.extra_balances:
         _record_extra_runs(tuple(args.extra_balances))
-    from divides.terrain.dem_error import DemError
+    from divides.errors import DividesError
     from divides.model.benchmark import split_of
+    from divides.terrain.dem_error import DemError
     from divides.model.regional_benchmark import (
         case_seed,
         lateral_truth,
@@ -265,7 +266,7 @@ def main() -> None:
         stretch_class,
     )
 
-    rows = []
+    rows, refused = [], []
     for i in range(args.n):
         if args.split != "all" and split_of(case_seed(args.seed, i)) != args.split:
             continue  # the split is known from the seed before the case is built
@@ -283,7 +284,16 @@ def main() -> None:
         if args.auto_channel_area:
             extra["channel_area_m2"] = None
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
-        screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
+        try:
+            screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
+        except DividesError as exc:  # a refusal is a miss of every target the case has, not a crash of the run
+            classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
+            refused.append({"master_seed": case.master_seed, "index": case.index, "family": case.family,
+                            "split": case.split, "refused": str(exc),
+                            "moving_stretches": sum(c in ("a", "b") for c in classes),
+                            "stable_stretches": sum(c == "stable" for c in classes)})
+            print(f"{i:>3} {case.split:<9} {case.family:<28} refused: {exc}", flush=True)
+            continue
         result = score(case, screening, lateral=lateral_truth(case))
         rows.append(result)
         print(_line(result), flush=True)
@@ -291,7 +301,7 @@ def main() -> None:
         return
     if args.json:
         with open(args.json, "w") as fh:
-            fh.writelines(json.dumps(r, default=float) + "\n" for r in rows)
+            fh.writelines(json.dumps(r, default=float) + "\n" for r in rows + refused)
     if args.markdown:
         print("\n".join(_markdown(r) for r in rows))
     if args.fit:
@@ -311,6 +321,8 @@ def main() -> None:
         judged = [r for r in part if r["top_ok"] is not None]
         ordered = [r for r in part if r["order_ok"] is not None]
         steady = [r for r in part if r["family"].startswith("steady_")]
+        if any(r["split"] == split for r in refused):
+            print(f"{split}: {sum(r['split'] == split for r in refused)} cases refused (not counted below)")
         print(f"{split}: {len(part)} cases; top ok {sum(bool(r['top_ok']) for r in judged)}/{len(judged)}; "
               f"order ok {sum(bool(r['order_ok']) for r in ordered)}/{len(ordered)}; "
               f"steady without alarm {sum(r['alarm_ok'] for r in steady)}/{len(steady)}; "
