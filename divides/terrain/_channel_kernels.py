@@ -88,26 +88,3 @@ def link_and_order(down):
             elif s == top[d]:
                 ties[d] += 1
     return n_donors, link, strahler, n_links
-
-
-@njit(cache=True, nogil=True, parallel=True)
-def drop_slope(z, rec, dist, drop, max_steps, out):
-    """Gradient from each cell down its flow path to the first cell at least ``drop`` lower.
-
-    ``out[i]`` = (z[i] − z[j]) / path length, ``j`` the first cell down the path whose elevation is ``drop`` or more
-    below z[i]; NaN where an outlet or ``max_steps`` steps come first. ``z`` must not rise downstream (a
-    conditioned surface); ``dist`` is each cell's distance to its receiver.
-    """
-    for i in prange(rec.size):
-        j = i
-        length = 0.0
-        out[i] = np.nan
-        for _ in range(max_steps):
-            r = rec[j]
-            if r == j:
-                break
-            length += dist[j]
-            j = r
-            if z[i] - z[j] >= drop:
-                out[i] = (z[i] - z[j]) / length
-                break
