@@ -4,6 +4,7 @@
                                               [--generate-only] [--json FILE] [--fit] [--markdown]
                                               [--no-forward-run] [--dem-error SIGMA [--dem-error-cells L]
                                               [--screen-assumes-default]] [--half-cell] [--auto-channel-area]
+                                              [--channel-area-rule S|CAP0.2|CLIP0.2|CLIP0.5]
 
 Builds (or reads from ~/.cache/divides/regional) the regional cases of
 divides.model.regional_benchmark one at a time, screens each DEM with the
@@ -19,7 +20,7 @@ screening is told the error (dem_error_m, dem_error_length_m) unless --screen-as
 --half-cell screens each DEM resampled half a cell off its grid (:func:`half_cell`): the same landscape sampled at
 other points, as a reprojection or a resampling of a real DEM samples it; the truth stays that of the model grid.
 --auto-channel-area screens with the channel area screening reads from the DEM by default (slope–area data) instead of
-the validation's fixed :data:`CHANNEL_CELLS`.
+the validation's fixed :data:`CHANNEL_CELLS`; --channel-area-rule with round 64's candidate rule for that default.
 """
 
 from __future__ import annotations
@@ -62,6 +63,28 @@ def half_cell(dem):
                           cell_size=None if dem.crs is not None else float(abs(dem.transform.a)))
 
 
+#: Round 64's candidate defaults of the screening's channel area: (floor in cells, cap as a share of the valid area).
+CHANNEL_AREA_RULES = {"S": (None, None), "CAP0.2": (None, 0.002), "CLIP0.2": (50, 0.002), "CLIP0.5": (50, 0.005)}
+
+
+def rule_channel_area(dem, rule: str, closed_edges) -> float:
+    """The channel area (m²) round 64's candidate ``rule`` gives ``dem``: the slope–area value, floored and capped."""
+    from divides.assess.assessment import AssessConfig
+    from divides.terrain.channels import suggest_channel_threshold
+    from divides.terrain.routing import route
+
+    config = AssessConfig.from_options(closed_edges=closed_edges)
+    flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m, closed_edges=closed_edges)
+    value = suggest_channel_threshold(flow).value_m2
+    floor, cap = CHANNEL_AREA_RULES[rule]
+    cell = float(dem.cell_area_grid()[dem.valid].mean())
+    if floor is not None:
+        value = max(value, floor * cell)
+    if cap is not None:
+        value = min(value, cap * float(dem.cell_area_grid()[dem.valid].sum()))
+    return value
+
+
 def screen_case(case, error=None, told: bool = True, *, resample: bool = False, **overrides):
     """Screen ``case`` with the validation's options; with ``error`` (a DemError) its DEM carries that error,
     and screening is told it when ``told``; with ``resample`` the DEM is :func:`half_cell`'s."""
@@ -72,7 +95,11 @@ def screen_case(case, error=None, told: bool = True, *, resample: bool = False, 
     if error is not None and told:
         options.update(dem_error_m=error.sigma_m, dem_error_length_m=error.length_m)
     dem = case.dem(error)
-    return screen(half_cell(dem) if resample else dem, **{**options, **overrides})
+    dem = half_cell(dem) if resample else dem
+    rule = overrides.pop("channel_area_rule", None)
+    if rule is not None:
+        overrides["channel_area_m2"] = rule_channel_area(dem, rule, case.closed_edges)
+    return screen(dem, **{**options, **overrides})
 
 
 def _fmt(v, spec=".2f"):
@@ -248,6 +275,8 @@ def main() -> None:
                         help="screen each DEM resampled half a cell off its grid (half_cell; the truth unchanged)")
     parser.add_argument("--auto-channel-area", action="store_true",
                         help="screen with screening's default channel area (read from the DEM), not CHANNEL_CELLS")
+    parser.add_argument("--channel-area-rule", choices=tuple(CHANNEL_AREA_RULES), default=None,
+                        help="screen with round 64's candidate default channel area (CHANNEL_AREA_RULES)")
     parser.add_argument("--extra-balances", nargs="*", default=(), metavar="BALANCE",
                         help="also run the landscape under these balances (e.g. steady-local10) and record each "
                              "segment's shift as forward_shift_<balance>_cells (a measuring aid; the screening's "
@@ -283,6 +312,8 @@ def main() -> None:
         extra["forward_run"] = not args.no_forward_run
         if args.auto_channel_area:
             extra["channel_area_m2"] = None
+        if args.channel_area_rule:
+            extra["channel_area_rule"] = args.channel_area_rule
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
         try:
             screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
