@@ -16,7 +16,6 @@ import typer
 from divides.cli import options as opt
 from divides.cli.assess_cmd import (
     HOLD_SECONDS,
-    ChannelAreaOption,
     DemErrorLengthOption,
     DemErrorOption,
     ErodibilityAlias,
@@ -49,6 +48,14 @@ MaxSegmentOption = Annotated[
     str | None,
     typer.Option("--max-segment", metavar="M", show_default=False,
                  help="Cut longer divide segments into pieces of at most this length (m); default 100 cells."),
+]
+# the bounds are divides.assess.screen's CHANNEL_AREA_MIN_CELLS and CHANNEL_AREA_SHARE, repeated to keep --help
+# light (tests/cli check they agree)
+ScreenChannelAreaOption = Annotated[
+    str | None,
+    typer.Option("--channel-area", metavar="M2", show_default=False,
+                 help="Drainage area (m²) where channels begin; default: read from the DEM's slope-area data, at least "
+                 "50 cells and at most 0.2 % of its valid area."),
 ]
 ScreenThetaOption = Annotated[
     str,
@@ -87,7 +94,7 @@ def screen(
     level: LevelOption = "tributaries",
     max_segment: MaxSegmentOption = None,
     theta: ScreenThetaOption = "0.45",
-    channel_area: ChannelAreaOption = None,
+    channel_area: ScreenChannelAreaOption = None,
     dem_error: DemErrorOption = None,
     dem_error_length: DemErrorLengthOption = None,
     runoff: RunoffOption = None,

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -15,6 +16,7 @@ __all__ = [
     "Channels",
     "ThresholdChoice",
     "FALLBACK_THRESHOLD_M2",
+    "bounded_channel_threshold",
     "extract_channels",
     "slope_area_break",
     "suggest_channel_threshold",
@@ -151,6 +153,46 @@ def suggest_channel_threshold(flow: FlowGraph) -> ThresholdChoice:
     )
 
 
+def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: float | None = None) -> ThresholdChoice:
+    """:func:`suggest_channel_threshold`'s area, raised to ``min_cells`` cells and then capped at ``max_share`` of the
+    DEM's valid area.
+
+    A slope–area hinge can lie far down the channel scaling (a bend left by a knickpoint or a contrast) and the
+    fallback can take 1 % of a small DEM; a caller that needs many basins (screening, whose minimum basin area is
+    a multiple of the channel area) bounds it. The cap wins over the floor; the reason says which bound held.
+
+    Parameters
+    ----------
+    flow : FlowGraph
+    max_share : float
+        Largest share of the valid area, in (0, 1].
+    min_cells : float, optional
+        Smallest channel area in cells (the median cell area).
+
+    Returns
+    -------
+    ThresholdChoice
+        ``source`` as :func:`suggest_channel_threshold`'s; ``reason`` names the bound when one held.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from divides import Dem, route
+    >>> plane = route(Dem.from_array(np.add.outer(np.arange(40.0), np.zeros(40)), cell_size=30.0))
+    >>> round(bounded_channel_threshold(plane, max_share=0.002).value_m2)  # 0.2 % of 40 x 40 cells of 900 m²
+    2880
+    """
+    choice = suggest_channel_threshold(flow)
+    value, reason = choice.value_m2, choice.reason
+    cell = float(np.median(flow.dem.cell_area))
+    if min_cells is not None and value < min_cells * cell:
+        value, reason = min_cells * cell, f"{reason}; raised to {min_cells:g} cells ({min_cells * cell:.3g} m²)"
+    cap = max_share * float(flow.dem.valid.sum(axis=1) @ flow.dem.cell_area)  # per row: no grid of areas
+    if value > cap:
+        value, reason = cap, f"{reason}; capped at {100 * max_share:g} % of the DEM's valid area ({cap:.3g} m²)"
+    return ThresholdChoice(value, choice.source, reason)
+
+
 @dataclass(frozen=True, eq=False)
 class Channels:
     """A channel network: every cell whose drainage area reaches the threshold.
@@ -280,7 +322,8 @@ class Channels:
         }
 
 
-def extract_channels(flow: FlowGraph, *, threshold_m2: float | None = None) -> Channels:
+def extract_channels(flow: FlowGraph, *, threshold_m2: float | None = None,
+                     default: Callable[[FlowGraph], ThresholdChoice] = suggest_channel_threshold) -> Channels:
     """Channel network of every cell draining at least ``threshold_m2``.
 
     Parameters
@@ -288,7 +331,9 @@ def extract_channels(flow: FlowGraph, *, threshold_m2: float | None = None) -> C
     flow : FlowGraph
     threshold_m2 : float, optional
         Channel-initiation drainage area (m²). By default it is read from the
-        data (:func:`suggest_channel_threshold`).
+        data by ``default``.
+    default : callable
+        The threshold's choice where none is given (:func:`suggest_channel_threshold`, or e.g. a bounded one).
 
     Returns
     -------
@@ -304,7 +349,7 @@ def extract_channels(flow: FlowGraph, *, threshold_m2: float | None = None) -> C
     (3, 1)
     """
     if threshold_m2 is None:
-        choice = suggest_channel_threshold(flow)
+        choice = default(flow)
     else:
         if not (np.isfinite(threshold_m2) and threshold_m2 > 0):
             raise ParameterError(f"channel threshold must be a positive area in m²; got {threshold_m2!r}")

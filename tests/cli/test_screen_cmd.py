@@ -270,3 +270,12 @@ def test_a_likely_mover_with_a_small_instability_is_explained(tmp_path, capsys):
         assert in_table
         report = (out / "report.html").read_text()
         assert ("the score an alarm reads stays low unless both landscape runs" in report) == in_table
+
+
+def test_screen_help_states_the_default_channel_area_bounds(capsys):
+    # the help repeats screening's cap rather than importing the screening module (docs/methods.md §2)
+    from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
+
+    assert run(["screen", "--help"]) == 0
+    words = " ".join(capsys.readouterr().out.split())
+    assert f"at least {CHANNEL_AREA_MIN_CELLS:g} cells and at most {100 * CHANNEL_AREA_SHARE:g} % of its valid area" in words

@@ -10,6 +10,7 @@ from divides import Dem, route
 from divides.errors import ParameterError
 from divides.terrain.channels import (
     FALLBACK_THRESHOLD_M2,
+    bounded_channel_threshold,
     extract_channels,
     slope_area_break,
     suggest_channel_threshold,
@@ -95,6 +96,27 @@ def test_slope_area_break_recovers_a_known_break():
     assert abs(np.log10(found) - np.log10(a_c)) <= 0.15  # within 1.5 bins of 0.1 decade
     # a single power law has no break
     assert slope_area_break(area, 0.3 * (area / a_c) ** -0.5 * np.exp(rng.normal(0, 0.3, area.size))) is None
+
+
+def test_bounded_threshold_caps_then_floors_as_documented():
+    # The documented rule (docs/methods.md §2), by arithmetic: a plane's fallback (50 cells of 900 m² here) is capped
+    # at a share of the valid area, a floor raises it, and the cap wins over the floor; nodata cells are not area.
+    z = np.add.outer(np.arange(40.0), np.zeros(40))
+    z[:5, :8] = np.nan
+    flow = route(Dem.from_array(z, cell_size=30.0))
+    valid_m2 = (40 * 40 - 5 * 8) * 900.0
+    plain = suggest_channel_threshold(flow)
+    assert plain.value_m2 == pytest.approx(50 * 900.0)
+    capped = bounded_channel_threshold(flow, max_share=0.002)
+    assert capped.value_m2 == pytest.approx(0.002 * valid_m2)
+    assert capped.source == plain.source and "capped at 0.2 %" in capped.reason
+    raised = bounded_channel_threshold(flow, max_share=1.0, min_cells=80)
+    assert raised.value_m2 == pytest.approx(80 * 900.0) and "raised to 80 cells" in raised.reason
+    assert bounded_channel_threshold(flow, max_share=0.002, min_cells=80).value_m2 == pytest.approx(0.002 * valid_m2)
+    untouched = bounded_channel_threshold(flow, max_share=1.0)
+    assert (untouched.value_m2, untouched.reason) == (plain.value_m2, plain.reason)
+    net = extract_channels(flow, default=lambda f: bounded_channel_threshold(f, max_share=0.002))
+    assert net.threshold.value_m2 == capped.value_m2
 
 
 def test_threshold_fallback_and_user_value():
