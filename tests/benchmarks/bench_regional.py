@@ -68,7 +68,7 @@ CHANNEL_AREA_RULES = {"S": (None, None), "CAP0.2": (None, 0.002), "CLIP0.2": (50
 
 
 def rule_channel_area(dem, rule: str, closed_edges) -> float:
-    """The channel area (m²) round 64's candidate ``rule`` gives ``dem``: the slope–area value, floored and capped."""
+    """The channel area (m²) round 64's candidate ``rule`` gives ``dem``: the slope–area value floored, capped."""
     from divides.assess.assessment import AssessConfig
     from divides.terrain.channels import suggest_channel_threshold
     from divides.terrain.routing import route

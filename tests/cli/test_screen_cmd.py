@@ -278,4 +278,5 @@ def test_screen_help_states_the_default_channel_area_bounds(capsys):
 
     assert run(["screen", "--help"]) == 0
     words = " ".join(capsys.readouterr().out.split())
-    assert f"at least {CHANNEL_AREA_MIN_CELLS:g} cells and at most {100 * CHANNEL_AREA_SHARE:g} % of its valid area" in words
+    bounds = f"at least {CHANNEL_AREA_MIN_CELLS:g} cells and at most {100 * CHANNEL_AREA_SHARE:g} % of its valid area"
+    assert bounds in words
