@@ -34,7 +34,8 @@ from divides.assess.screen import INSTABILITY_SCALING, evidence_features
 from divides.model.regional_benchmark import raises_alarm
 
 #: Channel threshold of the validation in cells: the default fallback (about 350 cells here) left six
-#: basins above the minimum area and no judged main-divide segment in training case 1.
+#: basins above the minimum area and no judged main-divide segment in training case 1. Condition A
+#: (--auto-channel-area) reads the screening's own default instead, bounded since round 64.
 CHANNEL_CELLS = 50
 
 #: The one scaling shipped before each kind of divide had its own (fitted on main-divide segments only).
@@ -70,19 +71,15 @@ CHANNEL_AREA_RULES = {"S": (None, None), "CAP0.2": (None, 0.002), "CLIP0.2": (50
 def rule_channel_area(dem, rule: str, closed_edges) -> float:
     """The channel area (m²) round 64's candidate ``rule`` gives ``dem``: the slope–area value floored, capped."""
     from divides.assess.assessment import AssessConfig
-    from divides.terrain.channels import suggest_channel_threshold
+    from divides.terrain.channels import bounded_channel_threshold, suggest_channel_threshold
     from divides.terrain.routing import route
 
     config = AssessConfig.from_options(closed_edges=closed_edges)
     flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m, closed_edges=closed_edges)
-    value = suggest_channel_threshold(flow).value_m2
     floor, cap = CHANNEL_AREA_RULES[rule]
-    cell = float(dem.cell_area_grid()[dem.valid].mean())
-    if floor is not None:
-        value = max(value, floor * cell)
-    if cap is not None:
-        value = min(value, cap * float(dem.cell_area_grid()[dem.valid].sum()))
-    return value
+    choice = (suggest_channel_threshold(flow) if cap is None else
+              bounded_channel_threshold(flow, max_share=cap, min_cells=floor))
+    return choice.value_m2
 
 
 def screen_case(case, error=None, told: bool = True, *, resample: bool = False, **overrides):
