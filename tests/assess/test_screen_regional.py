@@ -339,6 +339,10 @@ TOP_MISSES: dict[int, str] = {
         "measured motion)",
     78: "top target in 5 of 6 cases (partial_base_level_fall case 8: main segments ranked first in a moving stretch, "
         "no direction; second outside moving stretches, no direction; third outside moving stretches, no direction)",
+    79: "top target in 6 of 8 cases (partial_base_level_fall case 16: main segments ranked first outside moving "
+        "stretches, no direction; second 36 % in moving stretches; erodibility_patch case 17: main segments ranked "
+        "first in a moving stretch, no direction; second in a moving stretch, no direction; third in a moving "
+        "stretch, no direction)",
 }
 
 ORDER_MISSES: dict[int, str] = {
