@@ -81,7 +81,9 @@ def inspect(
     ``suggested``
         Parameters for ``divides assess``: ``channel_area_m2``
         (``value``, ``cells``, ``source``: ``"slope-area break"`` or
-        ``"fallback"``, ``reason``) and ``theta`` (``value``, ``ci95``,
+        ``"fallback"``, ``reason``), ``screen_channel_area_m2`` (``value``,
+        ``cells``, ``reason``: what ``divides screen`` reads without
+        ``--channel-area``, the same bounded) and ``theta`` (``value``, ``ci95``,
         ``source``: ``"collinearity"``, ``"slope-area"`` or ``"reference"``,
         ``reason``, and both estimates under ``collinearity`` and
         ``slope_area``: ``value``, ``ci95``, ``n_units``, ``note``).
@@ -226,12 +228,15 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
     from divides.errors import DividesError
     from divides.profiles.analysis import network_concavity
     from divides.profiles.concavity import REFERENCE_THETA
-    from divides.terrain.channels import extract_channels, suggest_channel_threshold
+    from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
+    from divides.terrain.channels import bounded_channel_threshold, extract_channels, suggest_channel_threshold
 
     choice = suggest_channel_threshold(graph)
     cell = float(np.median(graph.dem.cell_area))
     area = {"value": float(choice.value_m2), "cells": float(choice.value_m2 / cell), "source": choice.source,
             "reason": choice.reason}
+    bounded = bounded_channel_threshold(graph, max_share=CHANNEL_AREA_SHARE, min_cells=CHANNEL_AREA_MIN_CELLS)
+    screen_area = {"value": float(bounded.value_m2), "cells": float(bounded.value_m2 / cell), "reason": bounded.reason}
     estimates: dict[str, Any] = {}
     try:
         channels = extract_channels(graph, threshold_m2=choice.value_m2)
@@ -267,6 +272,7 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
                  f"the reference value {REFERENCE_THETA} is common practice"
     return {
         "channel_area_m2": area,
+        "screen_channel_area_m2": screen_area,
         "theta": {
             "value": float(value),
             "ci95": _interval(ci),
@@ -357,6 +363,13 @@ def format_report(report: dict[str, Any]) -> str:
     area, theta = suggested["channel_area_m2"], suggested["theta"]
     out.append(f"{'Channel area':<{width}}{_num(area['value'])} m² ({_num(area['cells'])} cells): {area['reason']}"
                f" -> --channel-area {area['value']:.6g}")
+    bounded = suggested["screen_channel_area_m2"]
+    if bounded["value"] != area["value"]:
+        from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
+
+        out.append(f"{'':<{width}}(screen without --channel-area reads {_num(bounded['value'])} m² "
+                   f"({_num(bounded['cells'])} cells): at least {CHANNEL_AREA_MIN_CELLS:g} cells, at most "
+                   f"{100 * CHANNEL_AREA_SHARE:g} % of the valid area)")
     out.append(f"{'Theta':<{width}}{theta['value']:.2f} ({theta['source']}): {theta['reason']}"
                f" -> --theta {theta['value']:.2f}" + (" or --theta auto" if theta["source"] == "collinearity" else ""))
     if theta["source"] != "reference":

@@ -410,3 +410,16 @@ def test_nodata_inside_the_data_is_counted_apart_from_a_collar(capsys, tmp_path,
     assert expected == 16
     assert _inspect_json(capsys, path)["interior_nodata_cells"] == expected
     assert "16 nodata cells inside the data" in _field(_inspect(capsys, path), "Valid cells")
+
+
+def test_the_screening_default_channel_area_is_the_suggestion_bounded(capsys, reference):
+    # docs/methods.md §2 (round 64): screen reads the suggested area raised to 50 cells and capped at 0.2 % of the
+    # valid area; checked by arithmetic on the demo's cell count and cell size read by rasterio.
+    report = _inspect_json(capsys, UPLANDS)
+    area, bounded = report["suggested"]["channel_area_m2"], report["suggested"]["screen_channel_area_m2"]
+    dx, dy = reference["res"]
+    valid = int(np.isfinite(reference["z"]).sum())
+    expected = min(max(area["value"], 50 * dx * dy), 0.002 * valid * dx * dy)
+    assert bounded["value"] == pytest.approx(expected) and bounded["cells"] == pytest.approx(expected / (dx * dy))
+    text = _inspect(capsys, UPLANDS)
+    assert f"screen without --channel-area reads {bounded['value']:,.0f} m²" in text
