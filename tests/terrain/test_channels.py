@@ -98,7 +98,7 @@ def test_slope_area_break_recovers_a_known_break():
     assert slope_area_break(area, 0.3 * (area / a_c) ** -0.5 * np.exp(rng.normal(0, 0.3, area.size))) is None
 
 
-def test_bounded_threshold_caps_then_floors_as_documented():
+def test_bounded_threshold_floors_then_caps_as_documented():
     # The documented rule (docs/methods.md §2), by arithmetic: a plane's fallback (50 cells of 900 m² here) is capped
     # at a share of the valid area, a floor raises it, and the cap wins over the floor; nodata cells are not area.
     z = np.add.outer(np.arange(40.0), np.zeros(40))
