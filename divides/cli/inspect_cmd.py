@@ -225,17 +225,18 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
 
     import numpy as np
 
+    from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
     from divides.errors import DividesError
     from divides.profiles.analysis import network_concavity
     from divides.profiles.concavity import REFERENCE_THETA
-    from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
     from divides.terrain.channels import bounded_channel_threshold, extract_channels, suggest_channel_threshold
 
     choice = suggest_channel_threshold(graph)
     cell = float(np.median(graph.dem.cell_area))
     area = {"value": float(choice.value_m2), "cells": float(choice.value_m2 / cell), "source": choice.source,
             "reason": choice.reason}
-    bounded = bounded_channel_threshold(graph, max_share=CHANNEL_AREA_SHARE, min_cells=CHANNEL_AREA_MIN_CELLS)
+    bounded = bounded_channel_threshold(graph, max_share=CHANNEL_AREA_SHARE, min_cells=CHANNEL_AREA_MIN_CELLS,
+                                        choice=choice)
     screen_area = {"value": float(bounded.value_m2), "cells": float(bounded.value_m2 / cell), "reason": bounded.reason}
     estimates: dict[str, Any] = {}
     try:

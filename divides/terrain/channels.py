@@ -153,7 +153,8 @@ def suggest_channel_threshold(flow: FlowGraph) -> ThresholdChoice:
     )
 
 
-def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: float | None = None) -> ThresholdChoice:
+def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: float | None = None,
+                              choice: ThresholdChoice | None = None) -> ThresholdChoice:
     """:func:`suggest_channel_threshold`'s area, raised to ``min_cells`` cells and then capped at ``max_share`` of the
     DEM's valid area.
 
@@ -168,6 +169,8 @@ def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: f
         Largest share of the valid area, in (0, 1].
     min_cells : float, optional
         Smallest channel area in cells (the median cell area).
+    choice : ThresholdChoice, optional
+        :func:`suggest_channel_threshold`'s result when the caller has it (it reads the whole grid).
 
     Returns
     -------
@@ -182,7 +185,7 @@ def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: f
     >>> round(bounded_channel_threshold(plane, max_share=0.002).value_m2)  # 0.2 % of 40 x 40 cells of 900 m²
     2880
     """
-    choice = suggest_channel_threshold(flow)
+    choice = suggest_channel_threshold(flow) if choice is None else choice
     value, reason = choice.value_m2, choice.reason
     cell = float(np.median(flow.dem.cell_area))
     if min_cells is not None and value < min_cells * cell:

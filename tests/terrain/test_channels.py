@@ -115,6 +115,7 @@ def test_bounded_threshold_floors_then_caps_as_documented():
     assert bounded_channel_threshold(flow, max_share=0.002, min_cells=80).value_m2 == pytest.approx(0.002 * valid_m2)
     untouched = bounded_channel_threshold(flow, max_share=1.0)
     assert (untouched.value_m2, untouched.reason) == (plain.value_m2, plain.reason)
+    assert bounded_channel_threshold(flow, max_share=0.002, choice=plain) == capped  # the caller's own reading
     net = extract_channels(flow, default=lambda f: bounded_channel_threshold(f, max_share=0.002))
     assert net.threshold.value_m2 == capped.value_m2
 
