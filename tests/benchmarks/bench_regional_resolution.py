@@ -13,8 +13,7 @@ screens them (the channel area held at the same m²), on three grids of the same
 Each screening is scored against the same truth, the stretches' rows scaled with the grid. With
 ``--length-in-native-cells`` the refined grid is screened with the DEM error's correlation length at three native
 cells (the default is three cells of the grid screened). With ``--auto-channel-area`` each grid is screened with the
-screening's own default channel area (round 64), a refusal counted as a miss of every target the case has. A
-measurement: nothing is chosen from it.
+screening's own default channel area (round 64), refusals counted apart. A measurement: nothing is chosen from it.
 """
 
 from __future__ import annotations
