@@ -138,7 +138,7 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
         kind, unit = "projected", crs.linear_units_factor[0]
 
     described = dem.describe()
-    valid_area = float(np.sum(dem.cell_area_grid()))
+    valid_area = dem.valid_area_m2
     outlets = graph.outlets
     labels = graph.basins().ravel()
     area = graph.area.ravel()

@@ -265,6 +265,11 @@ class Dem:
         return int(np.count_nonzero(self.valid))
 
     @property
+    def valid_area_m2(self) -> float:
+        """Area (m²) of the valid cells, summed per row (no grid of cell areas)."""
+        return float(np.count_nonzero(self.valid, axis=1) @ self.cell_area)
+
+    @property
     def bounds(self) -> tuple[float, float, float, float]:
         """``(left, bottom, right, top)`` in CRS units."""
         rows, cols = self.shape

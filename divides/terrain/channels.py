@@ -142,7 +142,7 @@ def suggest_channel_threshold(flow: FlowGraph) -> ThresholdChoice:
     cell = float(np.median(flow.dem.cell_area))
     if found is not None and found >= 10 * cell:
         return ThresholdChoice(found, "slope-area break", f"break in slope–area scaling at {found:.3g} m²")
-    total = float(flow.dem.cell_area_grid().sum())
+    total = flow.dem.valid_area_m2
     value = float(np.clip(FALLBACK_THRESHOLD_M2, 50 * cell, max(50 * cell, 0.01 * total)))
     value = min(value, max(cell, 0.05 * total))  # a tiny DEM still gets channels
     return ThresholdChoice(
@@ -190,7 +190,7 @@ def bounded_channel_threshold(flow: FlowGraph, *, max_share: float, min_cells: f
     cell = float(np.median(flow.dem.cell_area))
     if min_cells is not None and value < min_cells * cell:
         value, reason = min_cells * cell, f"{reason}; raised to {min_cells:g} cells ({min_cells * cell:.3g} m²)"
-    cap = max_share * float(flow.dem.valid.sum(axis=1) @ flow.dem.cell_area)  # per row: no grid of areas
+    cap = max_share * flow.dem.valid_area_m2
     if value > cap:
         value, reason = cap, f"{reason}; capped at {100 * max_share:g} % of the DEM's valid area ({cap:.3g} m²)"
     return ThresholdChoice(value, choice.source, reason)
