@@ -83,6 +83,9 @@ class AssessConfig:
         Cells at or below it are outlets.
     conditioning : str
         "fill" or "breach".
+    voids : str
+        Holes of nodata inside the DEM's data: "fill" (harmonic interpolation from their rims,
+        :func:`divides.terrain.voids.fill_voids`) or "outlets" (left as nodata: water, a base level).
     closed_edges : tuple of str
         DEM edges that are not outlets (e.g. a DEM cut along a known divide).
     snap_radius_m : float or None
@@ -123,6 +126,7 @@ class AssessConfig:
     knickpoint_age_error_years: float | None = None
     sea_level_m: float | None = None
     conditioning: str = "fill"
+    voids: str = "fill"
     closed_edges: tuple = ()
     snap_radius_m: float | None = None
     seed: int = 0
@@ -165,6 +169,8 @@ class AssessConfig:
             raise ParameterError(f"n_noise_runs must be a whole number >= 0; got {self.n_noise_runs!r}")
         if self.conditioning not in ("fill", "breach"):
             raise ParameterError(f"conditioning must be 'fill' or 'breach'; got {self.conditioning!r}")
+        if self.voids not in ("fill", "outlets"):  # divides.terrain.voids.VOID_HANDLING
+            raise ParameterError(f"voids must be 'fill' or 'outlets'; got {self.voids!r}")
         bad_edges = set(self.closed_edges) - {"north", "south", "east", "west"}
         if isinstance(self.closed_edges, str) or bad_edges:
             raise ParameterError(f"closed_edges must be a list of north, south, east, west; got {self.closed_edges!r}")

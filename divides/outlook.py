@@ -30,6 +30,7 @@ from divides._jsonable import to_jsonable
 from divides.assess.verdict import CAUTION
 from divides.errors import ParameterError
 from divides.io.dem import Dem
+from divides.terrain.voids import fill_voids
 from divides.model.forcing import check_positive, open_edge
 from divides.model.forward_run import (
     MAX_CELLS,
@@ -717,6 +718,7 @@ def forecast(
                                  f"{assessment.sides.b.spec.text!r}, not {side_a!r} and {side_b!r}")
     if not assessment.calibration.available:
         raise ParameterError(NEEDS_CALIBRATION)
+    dem, _ = fill_voids(dem, assessment.config.voids)  # the model runs on the surface the assessment read
     theta_lo, theta_hi, theta_basis = _theta_interval(assessment)
     grid, factor = coarsen(dem, max_cells=max_cells)
     setup = prepare(grid, assessment.sides, factor=factor, closed_edges=tuple(assessment.config.closed_edges),

@@ -23,8 +23,7 @@ from divides.assess.contrasts import (
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
-from divides.assess.missing_data import (interior_nodata_cells, interior_nodata_note, raster_holes_cells,
-                                         raster_holes_note)
+from divides.assess.missing_data import interior_nodata_note, raster_holes_cells, raster_holes_note
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -58,6 +57,7 @@ from divides.terrain.divide_lines import Divide, divide_between
 from divides.terrain.routing import FlowGraph, route
 from divides.terrain.sides import BaseLevel, Sides, common_base_level, parse_side, resolve_sides
 from divides.terrain.tiled_flow import active_plan
+from divides.terrain.voids import VoidFill, fill_voids
 
 __all__ = ["Assessment", "assess", "SCHEMA"]
 
@@ -97,6 +97,9 @@ class Assessment:
         it is withheld; ``rate`` is the forward run's when that gives one, else this.
     forward_run : ForwardShift or None
         The forward run from the DEM (None when it was not made).
+    voids : VoidFill
+        The holes of nodata inside the DEM's data and whether they were filled
+        (:func:`divides.terrain.voids.fill_voids`; ``dem`` is the filled DEM).
     """
 
     config: AssessConfig
@@ -120,7 +123,7 @@ class Assessment:
     forward_rate: dict | None = None
     rate_at_divide: dict | None = None
     forward_run: ForwardShift | None = None
-    interior_nodata_cells: int = 0
+    voids: VoidFill = VoidFill()
 
     @property
     def summary(self) -> dict:
@@ -163,7 +166,7 @@ class Assessment:
             "schema": SCHEMA,
             "dem": {"path": dem.path, "crs": None if dem.crs is None else dem.crs.to_string(),
                     "shape": list(dem.shape), "cell_size_m": list(dem.cell_size_m), "geographic": dem.geographic,
-                    "interior_nodata_cells": self.interior_nodata_cells},
+                    "interior_nodata_cells": self.voids.cells, "voids": self.voids.to_dict()},
             "parameters": {**self.config.to_dict(), **self.automatic},
             "sides": sides,
             "divide": {**self.divide.summary(), "n_samples": self.points.size, "saddles": self.divide.saddles},
@@ -950,7 +953,7 @@ def assess(
         ``result.summary`` is the ``summary.json`` document; ``result.verdict`` the verdict.
     """
     config = AssessConfig.from_options(**options)
-    voids = interior_nodata_cells(dem.valid)  # before routing: its label grid then adds nothing to the peak
+    dem, voids = fill_voids(dem, config.voids)  # before routing: its label grid then adds nothing to the peak
 
     def weights_fn(flow: FlowGraph) -> ChiWeights | None:
         if runoff is None and erodibility_raster is None and uplift_raster is None:
@@ -1021,4 +1024,4 @@ def assess(
                       contrasts=core.contrasts, verdict=verdict, calibration=cal, rate=rate,
                       knickpoints=knickpoints, equilibrium=equilibrium, robustness=runs, automatic=automatic,
                       rate_withheld=withheld, forward_rate=forward_rate, rate_at_divide=at_divide,
-                      forward_run=forward, interior_nodata_cells=voids)
+                      forward_run=forward, voids=voids)

@@ -2,8 +2,9 @@
 
 - Where a weighting raster (runoff, erodibility, uplift) has no value, χ reads the raster's typical (reference)
   value (:func:`divides.profiles.chi.chi_weights`): the number there is not the user's.
-- Nodata inside the DEM's data (a hole its edge does not reach: a lake masked out, a void) is read as off the DEM,
-  so the valid cells around it are outlets (docs/methods.md §1), as a coast would be.
+- Nodata inside the DEM's data (a hole its edge does not reach: a void, or a lake masked out) is filled by
+  harmonic interpolation by default, or, told so, read as off the DEM, so that the valid cells around it are
+  outlets as a coast would be (docs/methods.md §1).
 
 An assessment and a screening record how many cells each concerns and say so beside their verdicts.
 """
@@ -11,10 +12,10 @@ An assessment and a screening record how many cells each concerns and say so bes
 from __future__ import annotations
 
 import numpy as np
-from scipy import ndimage
 
 from divides.io.dem import Dem
 from divides.io.memory import row_blocks
+from divides.terrain.voids import VoidFill, interior_holes
 
 __all__ = ["raster_holes", "raster_holes_cells", "raster_holes_note", "interior_nodata_cells", "interior_nodata_note"]
 
@@ -58,7 +59,7 @@ def raster_holes_note(parameters: dict, n_valid: int) -> str | None:
 
 
 def interior_nodata_cells(valid: np.ndarray) -> int:
-    """Nodata cells in holes that do not reach the grid's edge (8-connected), whose rims drain into them as outlets.
+    """Nodata cells in holes that do not reach the grid's edge (8-connected).
 
     A nodata collar (reaching the edge) is not counted: the DEM simply ends there.
 
@@ -68,29 +69,33 @@ def interior_nodata_cells(valid: np.ndarray) -> int:
     >>> interior_nodata_cells(valid)
     2
     """
-    invalid = ~np.asarray(valid, dtype=bool)
-    if not invalid.any():
+    if np.asarray(valid, dtype=bool).all():
         return 0
-    labels, n = ndimage.label(invalid, structure=np.ones((3, 3), dtype=bool))
-    reach_edge = np.zeros(n + 1, dtype=bool)
-    for line in (labels[0], labels[-1], labels[:, 0], labels[:, -1]):
-        reach_edge[line] = True
-    counts = np.zeros(n + 1, dtype=np.int64)
-    for rows in row_blocks(labels.shape):  # no grid-sized int64 copy (10^9 cells)
-        counts += np.bincount(labels[rows].ravel(), minlength=n + 1)
-    return int(counts[1:][~reach_edge[1:]].sum())
+    _, interior, counts = interior_holes(valid)
+    return int(counts[interior].sum())
 
 
-def interior_nodata_note(n_cells: int, n_valid: int) -> str | None:
-    """The caution for nodata inside the DEM's data (:func:`interior_nodata_cells`); None when there is none.
+def interior_nodata_note(voids: VoidFill, n_valid: int) -> str | None:
+    """The caution for nodata inside the DEM's data (:func:`divides.terrain.voids.fill_voids`); None when there
+    is none. ``n_valid``: valid cells of the DEM analysed (filled cells included).
 
     Examples
     --------
-    >>> interior_nodata_note(120, 36000).split(":")[0]
-    'The DEM has 120 nodata cells inside its data (0.33 % of the valid cells)'
+    >>> note = interior_nodata_note(VoidFill("fill", holes=2, cells=120, largest_cells=100, filled_cells=120), 36120)
+    >>> note.split(":")[0]
+    'The DEM has 120 nodata cells inside its data (0.33 % of the valid cells, 2 holes, the largest 100 cells)'
+    >>> "filled by harmonic interpolation" in note
+    True
     """
-    if not n_cells:
+    if not voids.cells:
         return None
-    return (f"The DEM has {n_cells} nodata cells inside its data ({100 * n_cells / max(n_valid, 1):.2g} % of the valid "
-            "cells): the land around them drains into them as into the sea, so a basin there ends at their rim; if "
-            "they are voids in the data rather than water, fill them before this analysis.")
+    share = 100 * voids.cells / max(n_valid - voids.filled_cells, 1)  # of the cells the DEM gave
+    where = (f"The DEM has {voids.cells} nodata cells inside its data ({share:.2g} % "
+             f"of the valid cells, {voids.holes} hole{'s' if voids.holes != 1 else ''}, the largest "
+             f"{voids.largest_cells} cells)")
+    if voids.filled_cells:
+        return (where + ": they were filled by harmonic interpolation from their rims, so channels and divides "
+                "crossing them follow a smooth surface, not measured ground; if they are water (a base level), "
+                "run again with voids left as outlets (--voids outlets).")
+    return (where + ": the land around them drains into them as into the sea, so a basin there ends at their rim; "
+            "if they are voids in the data rather than water, fill them (--voids fill, the default).")

@@ -16,7 +16,7 @@ from divides.assess.divide_kind import drainage_directions, kind_of
 from divides.assess.points import MIN_FACING, near_divide_fields, sample_divide
 from divides.assess.hilltops import hilltop_contrast, hilltop_curvature, hilltop_window
 from divides.assess.pooling import label_outlets, pool_short
-from divides.assess.missing_data import interior_nodata_cells, raster_holes_cells
+from divides.assess.missing_data import raster_holes_cells
 from divides.assess.segment_motion import (
     INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
@@ -46,6 +46,7 @@ from divides.terrain.channels import Channels, bounded_channel_threshold, extrac
 from divides.terrain.divide_lines import DivideLine, DivideSegment, divide_network
 from divides.terrain.line_gaps import line_gaps
 from divides.terrain.routing import FlowGraph, route
+from divides.terrain.voids import VoidFill, fill_voids
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL_BASINS_REASON", "motion_azimuth",
            "instability_of", "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE",
@@ -57,7 +58,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
-                 "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning",
+                 "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning", "voids",
                  "closed_edges", "seed", "min_confidence", "forward_run")
 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
@@ -186,8 +187,9 @@ class Screening:
         with the lengths behind it (see :func:`_coverage`).
     n_basins : int
         Number of basins labelled (at ``level="edges"`` the labels are the edges' own, not 1..n).
-    interior_nodata_cells : int
-        Nodata cells inside the DEM's data (:func:`divides.assess.missing_data.interior_nodata_cells`).
+    voids : VoidFill
+        The holes of nodata inside the DEM's data and whether they were filled
+        (:func:`divides.terrain.voids.fill_voids`; ``dem`` is the filled DEM).
     """
 
     dem: Dem
@@ -199,7 +201,7 @@ class Screening:
     gaps: list = field(default_factory=list)
     coverage: dict = field(default_factory=dict)
     n_basins: int = 0
-    interior_nodata_cells: int = 0
+    voids: VoidFill = VoidFill()
 
     def to_dict(self) -> dict:
         """JSON-ready summary (without the lines)."""
@@ -207,7 +209,7 @@ class Screening:
             "schema": "divides.screening/1",
             "dem": {"path": self.dem.path, "crs": None if self.dem.crs is None else self.dem.crs.to_string(),
                     "shape": list(self.dem.shape), "cell_size_m": list(self.dem.cell_size_m),
-                    "interior_nodata_cells": self.interior_nodata_cells},
+                    "interior_nodata_cells": self.voids.cells, "voids": self.voids.to_dict()},
             "parameters": self.parameters,
             "n_basins": self.n_basins,
             "coverage": self.coverage,
@@ -855,7 +857,7 @@ def screen(
     config = AssessConfig.from_options(**{**options, "forward_run": bool(forward_run)})
     if isinstance(config.theta, str):
         raise ParameterError("screen needs a fixed theta (e.g. 0.45); estimate it with `divides inspect` first")
-    voids = interior_nodata_cells(dem.valid)  # before routing: its label grid then adds nothing to the peak
+    dem, voids = fill_voids(dem, config.voids)  # before routing: its label grid then adds nothing to the peak
     flow = route(dem, conditioning=config.conditioning, sea_level=config.sea_level_m,
                  closed_edges=config.closed_edges)
     channels = extract_channels(flow, threshold_m2=config.channel_area_m2,
@@ -972,4 +974,4 @@ def screen(
         params["raster_holes_cells"] = holes
     return Screening(dem=dem, flow=flow, channels=channels, labels=labels, segments=out, parameters=params,
                      gaps=gap_rows, coverage=coverage, n_basins=n_basins,
-                     interior_nodata_cells=voids)
+                     voids=voids)

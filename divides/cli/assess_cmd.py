@@ -300,7 +300,8 @@ def assess_request(
         if spec.edge is not None and spec.edge in route.closed_edges:
             raise ParameterError(f"{option} {spec.edge!r} is also in --closed-edges: nothing drains off a closed edge; "
                                  "give an open edge or points for that side, or leave that edge open")
-    options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges)
+    options.update(conditioning=route.conditioning, sea_level_m=route.sea_level, closed_edges=route.closed_edges,
+                   voids=route.voids)
     options = {key: value for key, value in options.items() if value is not None}
     rasters = check_raster_paths(runoff=runoff, erodibility=erodibility, uplift=uplift, aliases=raster_aliases)
     return AssessRequest(side_a=side_a, side_b=side_b, lonlat=lonlat, options=options, rasters=rasters)
@@ -496,6 +497,7 @@ def assess(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    voids: opt.VoidsOption = "fill",
     tiled: opt.TiledOption = False,
     scratch: opt.ScratchOption = None,
     workers: opt.TileWorkersOption = None,
@@ -519,7 +521,8 @@ def assess(
     written); 1 an internal error (one line and the path of a log).
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges,
+                              voids=voids)
     by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning, workers=workers,
                                  scheduler=scheduler)
     request = assess_request(

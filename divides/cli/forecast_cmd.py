@@ -87,6 +87,7 @@ def forecast(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    voids: opt.VoidsOption = "fill",
     uplift_alias: UpliftPatternAlias = None,
 ) -> None:
     """Forecast where the divide between two sides will be in T years.
@@ -102,7 +103,8 @@ def forecast(
     step and grid, and on the calibration.
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges,
+                              voids=voids)
     years_f = opt.parse_number(years, option="--years", accepted="a positive number of years", positive=True)
     rate_a = _optional_number(erosion_rate_a, "--erosion-rate-a", "an erosion rate in mm/yr (> 0)")
     rate_b = _optional_number(erosion_rate_b, "--erosion-rate-b", "an erosion rate in mm/yr (> 0)")
@@ -122,7 +124,7 @@ def forecast(
                              snap_radius=snap_radius, seed=seed, route=route, name_a=name_a, name_b=name_b)
     options: dict[str, Any] = {
         "erosion_rate_a_mm_yr": rate_a, "erosion_rate_b_mm_yr": rate_b, "erodibility": k,
-        **{key: request.options[key] for key in ("closed_edges", "conditioning", "sea_level_m", "channel_area_m2",
+        **{key: request.options[key] for key in ("closed_edges", "conditioning", "voids", "sea_level_m", "channel_area_m2",
                                                   "snap_radius_m", "name_a", "name_b") if key in request.options},
     }
     theta_v = None if theta is None else opt.parse_theta(theta)

@@ -35,6 +35,7 @@ def inspect(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    voids: opt.VoidsOption = "fill",
     closed_edges: opt.ClosedEdgesOption = None,
 ) -> None:
     """Describe a DEM: its grid, georeference, elevations, how it drains, and suggested parameters.
@@ -62,9 +63,10 @@ def inspect(
         ``[left, bottom, right, top]`` in CRS units.
     ``valid_share``
         Fraction (0–1) of the cells holding an elevation.
-    ``interior_nodata_cells``
-        Nodata cells in holes inside the data (not reaching the grid's edge): their rims drain into them as
-        outlets (:func:`divides.assess.missing_data.interior_nodata_cells`).
+    ``interior_nodata_cells``, ``voids``
+        Nodata cells in holes inside the data (not reaching the grid's edge), and ``handling`` (``"fill"``:
+        filled by harmonic interpolation before routing; ``"outlets"``: their rims drain into them), ``holes``,
+        ``cells``, ``largest_cells``, ``filled_cells`` (:func:`divides.terrain.voids.fill_voids`).
     ``elevation_m``, ``vertical_unit``
         ``[min, max]`` in metres; the unit the file stores them in.
     ``conditioning``
@@ -89,7 +91,8 @@ def inspect(
         ``slope_area``: ``value``, ``ci95``, ``n_units``, ``note``).
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    flow = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    flow = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges,
+                              voids=voids)
     with opt.quiet_warnings(quiet):
         report = inspect_report(read, flow)
     # Everything is computed before anything is printed: a failure prints no partial output.
@@ -117,7 +120,6 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
 
     import divides
 
-    from divides.assess.missing_data import interior_nodata_cells
     from divides.cli.dem_checks import check_closed_edges, check_options_against_dem
     from divides.io.memory import MemoryNeed
 
@@ -126,8 +128,10 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
     # a flat DEM or a sea above the land has no drainage to describe and nothing to suggest
     check_options_against_dem(dem, sea_level=flow_options.sea_level)
     check_closed_edges(dem, flow_options.closed_edges)
-    voids = interior_nodata_cells(dem.valid)  # before routing, as assess and screen count them
-    graph = divides.route(dem, **flow_options.route_kwargs())
+    from divides.terrain.voids import fill_voids
+
+    filled, voids = fill_voids(dem, flow_options.voids)  # before routing, as assess and screen do
+    graph = divides.route(filled, **flow_options.route_kwargs())
 
     crs = dem.crs
     if crs is None:
@@ -137,8 +141,8 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
     else:
         kind, unit = "projected", crs.linear_units_factor[0]
 
-    described = dem.describe()
-    valid_area = dem.valid_area_m2
+    described = dem.describe()  # the DEM as given
+    valid_area = filled.valid_area_m2  # the basins' land
     outlets = graph.outlets
     labels = graph.basins().ravel()
     area = graph.area.ravel()
@@ -172,7 +176,8 @@ def inspect_report(read: opt.DemOptions, flow_options: opt.RouteOptions, *, top:
         "cell_height_range_m": [float(np.min(dem.dy)), float(np.max(dem.dy))],
         "bounds": [float(b) for b in described["bounds"]],
         "valid_share": described["valid_share"],
-        "interior_nodata_cells": voids,
+        "interior_nodata_cells": voids.cells,
+        "voids": voids.to_dict(),
         "elevation_m": described["elevation_m"],
         "vertical_unit": dem.vertical_unit,
         "conditioning": {
@@ -351,8 +356,11 @@ def format_report(report: dict[str, Any]) -> str:
         ("Cell size", cell_text),
         ("Bounds", bounds_text),
         ("Valid cells", f"{100 * report['valid_share']:.2f} %" + (
-            f"; {report['interior_nodata_cells']:,} nodata cells inside the data: their rims drain into them as "
-            "outlets (lakes, or voids to fill first)" if report["interior_nodata_cells"] else "")),
+            f"; {report['interior_nodata_cells']:,} nodata cells inside the data"
+            + (" filled by harmonic interpolation (--voids outlets leaves them as outlets, for water)"
+               if report["voids"]["filled_cells"] else
+               ": their rims drain into them as outlets (for water; --voids fill fills voids)")
+            if report["interior_nodata_cells"] else "")),
         ("Elevation", z_text),
         ("Conditioning", cond_text),
         ("Outlets", f"{report['n_outlets']:,} ({report['n_outlets_draining_others']:,} draining more than their own cell)"),

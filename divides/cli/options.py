@@ -86,6 +86,9 @@ VERTICAL_UNIT_CHOICES: tuple[str, ...] = ("m", "ft", "us-ft")
 #: Accepted ``--conditioning`` values (``divides.terrain.conditioning.CONDITIONING_METHODS``).
 CONDITIONING_CHOICES: tuple[str, ...] = ("fill", "breach")
 
+#: Accepted ``--voids`` values (``divides.terrain.voids.VOID_HANDLING``).
+VOID_CHOICES: tuple[str, ...] = ("fill", "outlets")
+
 # ---------------------------------------------------------------- the options
 DemArgument = Annotated[
     str,
@@ -144,6 +147,15 @@ ConditioningOption = Annotated[
         "--conditioning",
         metavar="fill|breach",
         help="How depressions are removed before routing: fill them, or breach pits first (high-resolution DEMs).",
+    ),
+]
+VoidsOption = Annotated[
+    str,
+    typer.Option(
+        "--voids",
+        metavar="fill|outlets",
+        help="Holes of nodata inside the DEM's data: fill them by smooth (harmonic) interpolation from their rims "
+        "(voids in the data), or leave them as outlets the land around drains into (water masked out).",
     ),
 ]
 
@@ -431,9 +443,11 @@ class RouteOptions:
     conditioning: str = "fill"
     sea_level: float | None = None
     closed_edges: tuple[str, ...] = ()
+    voids: str = "fill"
 
     def route_kwargs(self) -> dict[str, Any]:
-        """Keyword arguments of :func:`divides.route` (the DEM excluded)."""
+        """Keyword arguments of :func:`divides.route` (the DEM excluded; ``voids`` is applied before, by
+        :func:`divides.terrain.voids.fill_voids`)."""
         return {"conditioning": self.conditioning, "sea_level": self.sea_level, "closed_edges": self.closed_edges}
 
 
@@ -462,7 +476,8 @@ def dem_options(
 
 
 def route_options(
-    *, conditioning: str = "fill", sea_level: str | None = None, closed_edges: str | None = None
+    *, conditioning: str = "fill", sea_level: str | None = None, closed_edges: str | None = None,
+    voids: str = "fill",
 ) -> RouteOptions:
     """Check the routing options as typed.
 
@@ -470,7 +485,7 @@ def route_options(
     ------
     ParameterError
         Unknown conditioning method, a sea level that is not a finite number,
-        or closed edges that are not DEM edges.
+        closed edges that are not DEM edges, or an unknown handling of voids.
     """
     return RouteOptions(
         conditioning=parse_choice(conditioning, option="--conditioning", choices=CONDITIONING_CHOICES),
@@ -478,6 +493,7 @@ def route_options(
         if sea_level is None
         else parse_number(sea_level, option="--sea-level", accepted="an elevation in metres"),
         closed_edges=parse_closed_edges(closed_edges),
+        voids=parse_choice(voids, option="--voids", choices=VOID_CHOICES),
     )
 
 

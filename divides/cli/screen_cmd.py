@@ -118,6 +118,7 @@ def screen(
     cell_size: opt.CellSizeOption = None,
     sea_level: opt.SeaLevelOption = None,
     conditioning: opt.ConditioningOption = "fill",
+    voids: opt.VoidsOption = "fill",
     runoff_alias: RunoffAlias = None,
     erodibility_alias: ErodibilityAlias = None,
     uplift_alias: UpliftAlias = None,
@@ -135,7 +136,8 @@ def screen(
     written); 1 an internal error.
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
-    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges)
+    route = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges,
+                              voids=voids)
     # The tiles run where the segments run: this machine's threads, or the cluster.
     by_tiles = opt.tiled_options(tiled, scratch, conditioning=route.conditioning, workers=workers, scheduler=scheduler)
     level = opt.parse_choice(level, option="--level", choices=LEVEL_CHOICES)
@@ -146,7 +148,7 @@ def screen(
         "channel_area_m2": opt.parse_bounded(channel_area, option="--channel-area", unit="m²", low=0,
                                              high=float("inf"), typical="often 1e4 to 1e6 m²"),
         "seed": seed, "conditioning": route.conditioning, "sea_level_m": route.sea_level,
-        "closed_edges": route.closed_edges,
+        "closed_edges": route.closed_edges, "voids": route.voids,
     }
     if dem_error is not None:
         options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,

@@ -146,6 +146,8 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
         words += ["--sea-level", f"{p['sea_level_m']:g}"]
     if p.get("conditioning") not in (None, "fill"):
         words += ["--conditioning", str(p["conditioning"])]
+    if p.get("voids") not in (None, "fill"):
+        words += ["--voids", str(p["voids"])]
     return shlex.join(words + _typed(command))
 
 

@@ -35,6 +35,7 @@ PARAMETER_LABELS: dict[str, tuple[str, str]] = {
     "knickpoint_age_years": ("Knickpoint age given", "years"),
     "sea_level_m": ("Sea level (cells at or below drain off the DEM)", "m"),
     "conditioning": ("Depression handling", ""),
+    "voids": ("Nodata holes inside the DEM (fill: interpolated; outlets: drained into)", ""),
     "closed_edges": ("DEM edges closed to flow", ""),
     "snap_radius_m": ("Snapping radius of side points", "m"),
     "seed": ("Random seed", ""),

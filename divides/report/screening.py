@@ -186,7 +186,7 @@ def data_notes(result: Screening) -> list[str]:
     """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data, no main divide
     judged (:func:`no_main_divide_note`)."""
     notes = (raster_holes_note(result.parameters, result.dem.n_valid),
-             interior_nodata_note(result.interior_nodata_cells, result.dem.n_valid),
+             interior_nodata_note(result.voids, result.dem.n_valid),
              no_main_divide_note(result.segments, result.parameters))
     return [n for n in notes if n is not None]
 

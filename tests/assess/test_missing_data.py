@@ -1,7 +1,7 @@
 """Cells without data: holes of nodata inside a DEM's data, counted against a graph library.
 
-A hole that does not reach the grid's edge is read like the sea (its rim drains into it; docs/methods.md §1), so
-the tool counts its cells and says so. The reference: networkx's connected components of the 8-neighbour graph of
+A hole that does not reach the grid's edge is filled, or, told so, read like the sea (its rim drains into it;
+docs/methods.md §1); either way the tool counts its cells and says so. The reference: networkx's connected components of the 8-neighbour graph of
 the nodata cells (a general-purpose library), keeping those with no cell on the grid's edge.
 """
 
@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
 from divides.assess.missing_data import interior_nodata_cells, interior_nodata_note
+from divides.terrain.voids import VoidFill
 
 
 def _reference(valid: np.ndarray) -> int:
@@ -40,8 +41,10 @@ def test_interior_nodata_is_counted_as_the_graph_library_counts_it(nodata):
 def test_a_collar_is_not_a_hole_and_a_lake_is():
     valid = np.ones((20, 30), dtype=bool)
     valid[:3] = False  # a collar along the north edge: the DEM ends there
-    assert interior_nodata_cells(valid) == 0 and interior_nodata_note(0, valid.sum()) is None
+    assert interior_nodata_cells(valid) == 0 and interior_nodata_note(VoidFill(), valid.sum()) is None
     valid[10:13, 10:15] = False  # a lake of 15 cells inside the data
     valid[3, 4] = False  # next to the collar: part of it
     assert interior_nodata_cells(valid) == 15
-    assert "15 nodata cells inside its data" in interior_nodata_note(15, int(valid.sum()))
+    lake = VoidFill("outlets", holes=1, cells=15, largest_cells=15)
+    assert "15 nodata cells inside its data" in interior_nodata_note(lake, int(valid.sum()))
+    assert "drains into them" in interior_nodata_note(lake, int(valid.sum()))

@@ -199,6 +199,33 @@ def test_the_default_channel_area_keeps_the_targets_of_the_steady_case(steady):
     assert scored["coverage"] >= TARGETS["coverage"] and scored["alarms"] == 0
 
 
+def test_voids_filled_on_the_divide_keep_the_intact_screening(steady):
+    # Three holes punched into the steady case's DEM, one across its main divide: filled (the default), the screening
+    # traces the divides of the intact DEM (the same lengths between outlet basins and in gaps, within 1 %) and keeps
+    # the targets a steady landscape has (coverage >= 90 %, no alarm; steadiness measured by continuing the run from
+    # the intact DEM). Left as outlets the holes' rims drain into them and the divides beside them change.
+    import dataclasses
+
+    case, intact, _, _ = steady
+    z = case.dem().elevation.copy()
+    crest = int(np.median(np.argmax(z, axis=1)))
+    for rows, cols in ((slice(40, 46), slice(crest - 4, crest + 4)), (slice(80, 84), slice(20, 25)),
+                       (slice(90, 93), slice(70, 76))):
+        z[rows, cols] = np.nan
+    holed = dataclasses.replace(case.dem(), elevation=z, valid=np.isfinite(z))
+    runs = {voids: screen(holed, theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
+                          channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2, voids=voids)
+            for voids in ("fill", "outlets")}
+    gaps = {name: sum(g["length_m"] for g in r.gaps) for name, r in {"intact": intact, **runs}.items()}
+    assert runs["fill"].voids.filled_cells == 48 + 20 + 18
+    assert runs["fill"].coverage["outlet_divides_length_m"] == pytest.approx(
+        intact.coverage["outlet_divides_length_m"], rel=0.01)
+    assert gaps["fill"] == pytest.approx(gaps["intact"], rel=0.01)
+    scored = score(case, runs["fill"])
+    assert scored["coverage"] >= TARGETS["coverage"] and scored["alarms"] == 0
+    assert gaps["outlets"] > 1.1 * gaps["intact"]
+
+
 def test_the_benchmark_keeps_every_line_of_evidence():
     # The benchmark's results carry each segment's landscape evidence under the names screening writes, so that
     # candidates are rescored on what screening reads (tests/benchmarks/rescore_regional.py).

@@ -184,8 +184,8 @@ def test_a_weighting_raster_with_holes_is_named_in_the_verdict_and_summary(tmp_p
 
 
 def test_nodata_inside_the_data_is_counted_and_named(tmp_path):
-    # A hole of nodata inside the data is read like the sea: its rim drains into it (docs/methods.md §1). The outputs
-    # say how many cells: a 4 x 5 block of NaN in the west of the fully valid demo DEM is 20 cells.
+    # A hole of nodata inside the data is filled by default (docs/methods.md §1). The outputs say how many cells and
+    # what was done: a 4 x 5 block of NaN in the west of the fully valid demo DEM is 20 cells.
     with rasterio.open(UPLANDS) as src:
         z = src.read(1).astype(np.float64)
     z[60:64, 30:35] = np.nan
@@ -193,8 +193,9 @@ def test_nodata_inside_the_data_is_counted_and_named(tmp_path):
                            "--out", str(tmp_path / "a")])
     assert code == 0, err
     summary = json.loads(out)
-    assert summary["dem"]["interior_nodata_cells"] == 20
+    assert summary["dem"]["interior_nodata_cells"] == 20 and summary["dem"]["voids"]["filled_cells"] == 20
     assert "The DEM has 20 nodata cells inside its data" in summary["verdict"]["text"]
+    assert "filled by harmonic interpolation" in summary["verdict"]["text"]
 
 
 def test_lonlat_points_snap_like_crs_points(tmp_path):

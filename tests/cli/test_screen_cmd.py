@@ -82,6 +82,7 @@ def test_screen_json_is_strict(tmp_path, capsys):
         (["--min-basin-area", "abc"], "--min-basin-area"),
         (["--runoff", "missing.tif"], "--runoff"),
         (["--min-basin-area", "1e12"], "minimum basin area"),  # no basin that large: nothing to screen
+        (["--voids", "lakes"], "--voids"),
     ],
 )
 def test_bad_options_exit_2_with_one_line_and_nothing_written(tmp_path, capsys, extra, needle):
@@ -173,9 +174,11 @@ def test_a_segment_without_enough_data_shows_an_unknown_confidence(write_geotiff
         out / "report.html").read_text()
 
 
-def test_nodata_inside_the_data_is_named_in_the_outputs(tmp_path, capsys):
-    # A hole of nodata inside the data is read like the sea (docs/methods.md §1): the screening counts its cells
-    # (a 4 x 5 block of NaN on the fully valid demo DEM: 20) in screening.json, the report and on the command line.
+@pytest.mark.parametrize("voids", ["fill", "outlets"])
+def test_nodata_inside_the_data_is_named_in_the_outputs(tmp_path, capsys, voids):
+    # A hole of nodata inside the data is filled, or with --voids outlets read like the sea (docs/methods.md §1): the
+    # screening counts its cells (a 4 x 5 block of NaN on the fully valid demo DEM: 20) and says what it did with
+    # them in screening.json, the report and on the command line.
     import rasterio
 
     with rasterio.open(UPLANDS) as src:
@@ -185,11 +188,17 @@ def test_nodata_inside_the_data_is_named_in_the_outputs(tmp_path, capsys):
     path = tmp_path / "lake.tif"
     with rasterio.open(path, "w", **profile) as dst:
         dst.write(z, 1)
-    code = run(["screen", str(path), "--out", str(tmp_path / "s"), "--no-forward-run"])
+    code = run(["screen", str(path), "--out", str(tmp_path / "s"), "--no-forward-run", "--voids", voids])
     captured = capsys.readouterr()
     assert code == 0, captured.err
     assert "Caution: The DEM has 20 nodata cells inside its data" in captured.out
-    assert json.loads((tmp_path / "s" / "screening.json").read_text())["dem"]["interior_nodata_cells"] == 20
+    document = json.loads((tmp_path / "s" / "screening.json").read_text())
+    assert document["dem"]["interior_nodata_cells"] == 20
+    assert document["dem"]["voids"] == {"handling": voids, "holes": 1, "cells": 20, "largest_cells": 20,
+                                        "filled_cells": 20 if voids == "fill" else 0}
+    assert document["parameters"]["voids"] == voids
+    said = "filled by harmonic interpolation" if voids == "fill" else "drains into them"
+    assert said in captured.out
     assert "The DEM has 20 nodata cells inside its data" in (tmp_path / "s" / "report.html").read_text()
 
 
