@@ -27,6 +27,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from divides._jsonable import to_jsonable
+from divides.assess.missing_data import interior_nodata_note
 from divides.assess.verdict import CAUTION
 from divides.errors import ParameterError
 from divides.io.dem import Dem
@@ -718,7 +719,7 @@ def forecast(
                                  f"{assessment.sides.b.spec.text!r}, not {side_a!r} and {side_b!r}")
     if not assessment.calibration.available:
         raise ParameterError(NEEDS_CALIBRATION)
-    dem, _ = fill_voids(dem, assessment.config.voids)  # the model runs on the surface the assessment read
+    dem, voids = fill_voids(dem, assessment.config.voids)  # the model runs on the surface the assessment read
     theta_lo, theta_hi, theta_basis = _theta_interval(assessment)
     grid, factor = coarsen(dem, max_cells=max_cells)
     setup = prepare(grid, assessment.sides, factor=factor, closed_edges=tuple(assessment.config.closed_edges),
@@ -744,6 +745,7 @@ def forecast(
 
     notes = _notes(dem, grid, factor, central, members, calibrated, theta_basis, uplift, setup, d0 is None)
     notes += [f"The base level of the {e} edge keeps falling at {_sig(1e3 * r)} mm/yr." for e, r in lowering.items()]
+    notes += [note for note in (interior_nodata_note(voids, dem.n_valid),) if note]
     if assessment.config.sea_level_m is not None:
         notes.append("The model drains only off the DEM's open edges and nodata: cells at or below the sea level "
                      "given to the assessment are not held as outlets.")

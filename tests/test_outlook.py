@@ -63,6 +63,25 @@ def test_divide_between_lowering_planes_follows_the_kinematic_track(n, k, years)
     assert fc.moves_toward == "b"
 
 
+def test_a_void_in_a_plane_is_filled_and_the_crest_keeps_its_kinematic_track():
+    # A hole of nodata inside plane a, filled by harmonic interpolation (the default), is the plane again (a plane
+    # solves Laplace's equation exactly), so the forecast's crest follows the kinematic track of the intact planes
+    # (as in the test above); left as nodata it would be an outlet on the flank.
+    import dataclasses
+
+    k, n, years = 1e-3, 1.0, 1.5e6
+    intact = _planes(10)
+    z = intact.elevation.copy()
+    z[3:7, 5:10] = np.nan
+    holed = dataclasses.replace(intact, elevation=z, valid=np.isfinite(z))
+    fc = forecast(holed, "west", "east", years=years, n=n, erodibility=k, **_PLANE_OPTIONS)
+    assert fc.dem.valid.all() and any("20 nodata cells" in note and "filled" in note for note in fc.notes)
+    lo, hi = _plane_speed_bounds(k, n)
+    t, d = fc.times, fc.central.displacement_m
+    assert np.all(d >= lo * t - DX - 1e-9) and np.all(d <= hi * t + DX + 1e-9), np.c_[t, d, lo * t]
+    assert fc.moves_toward == "b"
+
+
 def test_planes_each_in_balance_keep_their_divide():
     # uplift="sides": each plane is uplifted at its own lowering rate, so both stand still
     # (E - U = 0 on each flank) and so does their intersection (same kinematics, V = 0).

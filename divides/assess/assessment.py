@@ -23,7 +23,8 @@ from divides.assess.contrasts import (
 )
 from divides.assess.equilibrium import EquilibriumDivide, equilibrium_divide
 from divides.assess.points import DividePoints, NearDivideFields, near_divide_fields, sample_divide
-from divides.assess.missing_data import interior_nodata_note, raster_holes_cells, raster_holes_note
+from divides.assess.missing_data import (filled_divide_note, interior_nodata_note, raster_holes_cells,
+                                         raster_holes_note)
 from divides.assess.rate import (
     PLAUSIBLE_MM_PER_YR,
     Calibration,
@@ -169,7 +170,8 @@ class Assessment:
                     "interior_nodata_cells": self.voids.cells, "voids": self.voids.to_dict()},
             "parameters": {**self.config.to_dict(), **self.automatic},
             "sides": sides,
-            "divide": {**self.divide.summary(), "n_samples": self.points.size, "saddles": self.divide.saddles},
+            "divide": {**self.divide.summary(), "n_samples": self.points.size, "saddles": self.divide.saddles,
+                       "filled_share": _filled_share(self.voids, self.divide)},
             "profiles": {
                 "theta": {"value": self.profiles.theta, "ci95": list(theta_ci),
                           "method": self.profiles.theta_source},
@@ -918,6 +920,14 @@ def _primary_rate(at_divide: dict | None, forward: dict | None, *, uplift_given:
     return None, (at_divide or {}).get("withheld")
 
 
+def _filled_share(voids: VoidFill, divide: Divide) -> float:
+    """Share of the divide's vertices on cells filled by interpolation (:meth:`VoidFill.share_along`)."""
+    if not divide.lines:
+        return 0.0
+    return voids.share_along(np.concatenate([line.row for line in divide.lines]),
+                             np.concatenate([line.col for line in divide.lines]))
+
+
 def assess(
     dem: Dem,
     side_a: str,
@@ -998,8 +1008,9 @@ def assess(
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
+    over_filled = _filled_share(voids, core.divide)
     cautions = [note for note in (raster_holes_note({"raster_holes_cells": holes}, dem.n_valid),
-                                  interior_nodata_note(voids, dem.n_valid)) if note]
+                                  interior_nodata_note(voids, dem.n_valid), filled_divide_note(over_filled)) if note]
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
                                                       config=config, withheld=withheld, cautions=cautions))

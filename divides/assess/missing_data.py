@@ -17,7 +17,8 @@ from divides.io.dem import Dem
 from divides.io.memory import row_blocks
 from divides.terrain.voids import VoidFill, interior_holes
 
-__all__ = ["raster_holes", "raster_holes_cells", "raster_holes_note", "interior_nodata_cells", "interior_nodata_note"]
+__all__ = ["raster_holes", "raster_holes_cells", "raster_holes_note", "interior_nodata_cells", "interior_nodata_note",
+           "filled_divide_note"]
 
 
 def raster_holes(dem: Dem, grid: np.ndarray | float) -> int:
@@ -99,3 +100,19 @@ def interior_nodata_note(voids: VoidFill, n_valid: int) -> str | None:
                 "run again with voids left as outlets (--voids outlets).")
     return (where + ": the land around them drains into them as into the sea, so a basin there ends at their rim; "
             "if they are voids in the data rather than water, fill them (--voids fill, the default).")
+
+
+def filled_divide_note(share: float) -> str | None:
+    """The caution for a divide that runs partly over holes filled by interpolation (``share`` of its length,
+    :meth:`divides.terrain.voids.VoidFill.share_along`); None when it does not.
+
+    Examples
+    --------
+    >>> filled_divide_note(0.123)
+    '12 % of the divide runs over holes of nodata filled by interpolation: the verdict reads interpolated ground there.'
+    >>> filled_divide_note(0.0)
+    """
+    if not share:
+        return None
+    return (f"{100 * share:.2g} % of the divide runs over holes of nodata filled by interpolation: the verdict reads "
+            "interpolated ground there.")

@@ -58,8 +58,8 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
 
 #: The fields of AssessConfig a screening reads (only these are reported).
 _USED_OPTIONS = ("theta", "n", "a0_m2", "channel_area_m2", "reference_area_m2", "dem_error_m", "dem_error_length_m",
-                 "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning", "voids",
-                 "closed_edges", "seed", "min_confidence", "forward_run")
+                 "relief_radius_m", "divide_spacing_m", "block_m", "n_bootstrap", "sea_level_m", "conditioning",
+                 "voids", "closed_edges", "seed", "min_confidence", "forward_run")
 
 #: Shorter traced pieces of divide (in cells) are gaps: too short to sample both sides.
 MIN_SEGMENT_CELLS = 4
@@ -161,7 +161,7 @@ SMALL_BASINS_REASON = ("beside basins smaller than the minimum basin area: not s
 #: Properties of each segment in segments.geojson / segments.csv (stable names).
 SEGMENT_PROPERTIES = ("rank", "instability", "ranking_score", "motion_probability", "confidence", "length_m", "basins",
                       "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
-                      "mean_chi_a", "mean_chi_b", "divide_kind", *EVIDENCE_KEYS)
+                      "mean_chi_a", "mean_chi_b", "divide_kind", "filled_share", *EVIDENCE_KEYS)
 
 
 @dataclass(eq=False)
@@ -953,6 +953,7 @@ def screen(
             "probabilities": r["probabilities"], "n_points": r["n_points"], "facing_share": r["facing_share"],
             "mean_chi_a": r["mean_chi_a"], "mean_chi_b": r["mean_chi_b"], "contrasts": r["contrasts"],
             "judged_length_m": r["judged_length_m"], "divide_kind": r["divide_kind"],
+            "filled_share": voids.share_along(seg.line.row, seg.line.col),
             **{k: finite_or_none(r.get(k)) for k in EVIDENCE_KEYS},
             "line": seg.line, "judged_lines": r["judged_lines"], "judged_pairs": r["judged_pairs"],
         })

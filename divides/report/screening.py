@@ -41,14 +41,14 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
            "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text",
-           "area_of", "data_notes"]
+           "area_of", "data_notes", "filled_segments_note"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
 
 _COLUMNS = ("rank", "instability", "ranking_score", "motion_probability", "confidence", "length_m", "basin_1",
             "basin_2", "moves_toward_basin", "motion_azimuth_deg", "verdict", "basis", "n_points", "facing_share",
-            "divide_kind", *EVIDENCE_KEYS, "x_mid", "y_mid", "side_1", "side_2")
+            "divide_kind", "filled_share", *EVIDENCE_KEYS, "x_mid", "y_mid", "side_1", "side_2")
 
 
 #: Works the screening report cites, in full (author, year, title, where published); every author-year cited
@@ -182,11 +182,36 @@ def runs_notes(result: Screening) -> list[str]:
     return [n for n in notes if n is not None]
 
 
+#: Ranks listed by name in :func:`filled_segments_note`.
+FILLED_RANKS_LISTED = 10
+
+
+def filled_segments_note(segments: list[dict]) -> str | None:
+    """The caution for segments that run over holes of nodata filled by interpolation; None when none does.
+
+    Examples
+    --------
+    >>> filled_segments_note([{"rank": 2, "filled_share": 0.4}, {"rank": 5, "filled_share": 0.0},
+    ...                       {"rank": 9, "filled_share": 0.12}])  # doctest: +ELLIPSIS
+    'Segments ranked 2 and 9 run partly over holes of nodata filled by interpolation (up to 40 % of their length)...'
+    """
+    over = [(s["rank"], s.get("filled_share") or 0.0) for s in segments if (s.get("filled_share") or 0.0) > 0]
+    if not over:
+        return None
+    ranks = [str(r) for r, _ in over[:FILLED_RANKS_LISTED]]
+    listed = ranks[0] if len(ranks) == 1 else ", ".join(ranks[:-1]) + " and " + ranks[-1]
+    more = f" (and {len(over) - len(ranks)} more)" if len(over) > len(ranks) else ""
+    return (f"Segment{'s' if len(over) > 1 else ''} ranked {listed}{more} run{'' if len(over) > 1 else 's'} partly "
+            f"over holes of nodata filled by interpolation (up to {100 * max(f for _, f in over):.0f} % of their "
+            "length): their verdicts read interpolated ground there.")
+
+
 def data_notes(result: Screening) -> list[str]:
-    """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data, no main divide
-    judged (:func:`no_main_divide_note`)."""
+    """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data and the segments
+    over it once filled (:func:`filled_segments_note`), no main divide judged (:func:`no_main_divide_note`)."""
     notes = (raster_holes_note(result.parameters, result.dem.n_valid),
              interior_nodata_note(result.voids, result.dem.n_valid),
+             filled_segments_note(result.segments),
              no_main_divide_note(result.segments, result.parameters))
     return [n for n in notes if n is not None]
 
@@ -219,6 +244,7 @@ def segment_rows(result: Screening, sides: dict[int, str] | None = None) -> list
             "motion_azimuth_deg": None if s["motion_azimuth_deg"] is None else round(s["motion_azimuth_deg"], 1),
             "verdict": s["verdict"], "basis": s["basis"], "n_points": s["n_points"],
             "facing_share": round(float(s["facing_share"]), 3), "divide_kind": s["divide_kind"],
+            "filled_share": round(float(s.get("filled_share", 0.0)), 3),
             **{k: None if s.get(k) is None else round(float(s[k]), 3)
                for k in EVIDENCE_KEYS},
             "x_mid": float(line.x[mid]), "y_mid": float(line.y[mid]),
@@ -238,7 +264,8 @@ def segment_features(result: Screening, rows: list[dict] | None = None) -> list[
                                      "length_m")}
         props["basins"] = [int(b) for b in s["basins"]]
         props.update({k: row[k] for k in ("moves_toward_basin", "motion_azimuth_deg", "verdict", "basis",
-                                          "n_points", "facing_share", "divide_kind", *EVIDENCE_KEYS)})
+                                          "n_points", "facing_share", "divide_kind", "filled_share",
+                                          *EVIDENCE_KEYS)})
         features.append(_feature({"type": "LineString", "coordinates": np.column_stack([lon, lat]).tolist()},
                                  props))
     return features

@@ -51,6 +51,8 @@ class VoidFill:
         Cells of the largest hole.
     filled_cells : int
         Cells given an elevation (``cells`` when filled, 0 when left as outlets).
+    filled : ndarray of bool or None
+        The filled cells (None when none was filled).
     """
 
     handling: str = "fill"
@@ -58,10 +60,31 @@ class VoidFill:
     cells: int = 0
     largest_cells: int = 0
     filled_cells: int = 0
+    filled: np.ndarray | None = dataclasses.field(default=None, repr=False, compare=False)
 
     def to_dict(self) -> dict:
-        """JSON-ready fields."""
-        return dataclasses.asdict(self)
+        """JSON-ready fields (without the grid)."""
+        return {f.name: getattr(self, f.name) for f in dataclasses.fields(self) if f.name != "filled"}
+
+    def share_along(self, row: np.ndarray, col: np.ndarray) -> float:
+        """Share of a line's vertices (fractional grid coordinates) that touch a filled cell.
+
+        Examples
+        --------
+        >>> mask = np.zeros((4, 4), bool); mask[1, 1] = True
+        >>> VoidFill(filled=mask).share_along(np.array([0.5, 2.5, 3.0]), np.array([1.0, 1.0, 3.0]))
+        0.3333333333333333
+        """
+        if self.filled is None or np.size(row) == 0:
+            return 0.0
+        r, c = np.asarray(row, dtype=float), np.asarray(col, dtype=float)
+        rows, cols = self.filled.shape
+        touch = np.zeros(r.shape, dtype=bool)
+        for rr in (np.floor(r), np.ceil(r)):  # a vertex lies between cells: it touches those around it
+            for cc in (np.floor(c), np.ceil(c)):
+                touch |= self.filled[np.clip(rr.astype(np.int64), 0, rows - 1),
+                                     np.clip(cc.astype(np.int64), 0, cols - 1)]
+        return float(np.mean(touch))
 
 
 def interior_holes(valid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -140,6 +163,7 @@ def fill_voids(dem: Dem, handling: str = "fill") -> tuple[Dem, VoidFill]:
         return dem, report
     z = dem.elevation.copy()
     valid = dem.valid.copy()
+    filled = np.zeros(dem.shape, dtype=bool)
     boxes = ndimage.find_objects(labels)
     for lab in inner:
         rs, cs = boxes[lab - 1]
@@ -148,7 +172,9 @@ def fill_voids(dem: Dem, handling: str = "fill") -> tuple[Dem, VoidFill]:
         hole = labels[win] == lab
         z[win][hole] = _harmonic(z[win], hole, dem.dx[win[0]], dem.dy[win[0]])
         valid[win][hole] = True
-    return dataclasses.replace(dem, elevation=z, valid=valid), dataclasses.replace(report, filled_cells=report.cells)
+        filled[win][hole] = True
+    return (dataclasses.replace(dem, elevation=z, valid=valid),
+            dataclasses.replace(report, filled_cells=report.cells, filled=filled))
 
 
 def _harmonic(z: np.ndarray, hole: np.ndarray, dx: np.ndarray, dy: np.ndarray) -> np.ndarray:

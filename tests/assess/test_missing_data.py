@@ -1,8 +1,9 @@
 """Cells without data: holes of nodata inside a DEM's data, counted against a graph library.
 
 A hole that does not reach the grid's edge is filled, or, told so, read like the sea (its rim drains into it;
-docs/methods.md §1); either way the tool counts its cells and says so. The reference: networkx's connected components of the 8-neighbour graph of
-the nodata cells (a general-purpose library), keeping those with no cell on the grid's edge.
+docs/methods.md §1); either way the tool counts its cells and says so. The reference: networkx's connected
+components of the 8-neighbour graph of the nodata cells (a general-purpose library), keeping those with no cell on
+the grid's edge.
 """
 
 from __future__ import annotations

@@ -224,6 +224,18 @@ def test_voids_filled_on_the_divide_keep_the_intact_screening(steady):
     scored = score(case, runs["fill"])
     assert scored["coverage"] >= TARGETS["coverage"] and scored["alarms"] == 0
     assert gaps["outlets"] > 1.1 * gaps["intact"]
+    # the segments over a filled hole say so (the share of their vertices touching it), those that keep a cell away
+    # from every filled cell do not (distances by scipy's Euclidean distance transform)
+    from scipy.ndimage import distance_transform_edt
+
+    away = distance_transform_edt(~runs["fill"].voids.filled)
+    for s in runs["fill"].segments:
+        r, c = np.rint(s["line"].row).astype(int), np.rint(s["line"].col).astype(int)
+        nearest = away[np.clip(r, 0, away.shape[0] - 1), np.clip(c, 0, away.shape[1] - 1)].min()
+        assert (nearest <= 1.5) if s["filled_share"] > 0 else (nearest >= 1), (nearest, s["filled_share"])
+    assert max(s["filled_share"] for s in runs["fill"].segments) > 0
+    assert all(s["filled_share"] == 0 for s in runs["outlets"].segments)
+
 
 
 def test_the_benchmark_keeps_every_line_of_evidence():

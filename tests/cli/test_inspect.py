@@ -380,7 +380,8 @@ def test_text_says_why_its_theta_differs_from_the_default(capsys):
 
 def test_nodata_inside_the_data_is_counted_apart_from_a_collar(capsys, tmp_path, reference):
     # The demo DEM behind a 4-row nodata collar, with two holes inside the data: 3 x 4 and 2 x 2 cells = 16. The
-    # holes' rims drain into them as outlets (docs/methods.md §1); the collar is where the DEM ends. Counted with
+    # holes are filled by default, or with --voids outlets their rims drain into them (docs/methods.md §1); the
+    # collar is where the DEM ends. Counted with
     # scipy's connected components of the 8-neighbour nodata graph, keeping those off the grid's edge.
     z = np.vstack([np.full((4, reference["cols"]), np.nan), reference["z"]])
     z[40:43, 50:54] = np.nan
@@ -409,7 +410,12 @@ def test_nodata_inside_the_data_is_counted_apart_from_a_collar(capsys, tmp_path,
     expected = int(np.count_nonzero(~np.isin(comp, outer)))
     assert expected == 16
     assert _inspect_json(capsys, path)["interior_nodata_cells"] == expected
-    assert "16 nodata cells inside the data" in _field(_inspect(capsys, path), "Valid cells")
+    assert "16 nodata cells inside the data filled" in _field(_inspect(capsys, path), "Valid cells")
+    told = _inspect_json(capsys, path, "--voids", "outlets")
+    assert told["voids"] == {"handling": "outlets", "holes": 2, "cells": 16, "largest_cells": 12, "filled_cells": 0}
+    # the two holes' rims are outlets draining more than their own cell: more outlets than when filled
+    assert told["n_outlets"] > _inspect_json(capsys, path)["n_outlets"]
+    assert "drain into them as outlets" in _field(_inspect(capsys, path, "--voids", "outlets"), "Valid cells")
 
 
 def test_the_screening_default_channel_area_is_the_suggestion_bounded(capsys, reference):
