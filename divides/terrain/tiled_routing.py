@@ -389,7 +389,9 @@ def route_raster_tiled(
     Tiles are read with rasterio windows, kept between stages in a scratch
     folder and run as Dask tasks: on a new ``LocalCluster`` of ``workers``
     processes, or on the cluster at ``scheduler`` (whose workers must see
-    ``path``, ``scratch`` and ``out_dir`` at the same paths).
+    ``path``, ``scratch`` and ``out_dir`` at the same paths). Holes of nodata
+    inside the data are outlets here, as the raster stores them: the commands
+    fill them in memory first (:func:`divides.terrain.voids.fill_voids`).
 
     Parameters
     ----------
