@@ -161,18 +161,20 @@ def fill_voids(dem: Dem, handling: str = "fill") -> tuple[Dem, VoidFill]:
                       largest_cells=int(counts[inner].max(initial=0)))
     if handling == "outlets" or inner.size == 0:
         return dem, report
-    z = dem.elevation.copy()
-    valid = dem.valid.copy()
-    filled = np.zeros(dem.shape, dtype=bool)
     boxes = ndimage.find_objects(labels)
+    holes = []
     for lab in inner:
         rs, cs = boxes[lab - 1]
         # an interior hole's box widened by one cell stays on the grid and holds its whole rim
         win = (slice(rs.start - 1, rs.stop + 1), slice(cs.start - 1, cs.stop + 1))
-        hole = labels[win] == lab
+        holes.append((win, labels[win] == lab))
+    del labels, boxes  # the label grid (4 B per cell) goes before the grid-sized copies
+    z = dem.elevation.copy()
+    filled = np.zeros(dem.shape, dtype=bool)
+    for win, hole in holes:
         z[win][hole] = _harmonic(z[win], hole, dem.dx[win[0]], dem.dy[win[0]])
-        valid[win][hole] = True
         filled[win][hole] = True
+    valid = dem.valid | filled
     return (dataclasses.replace(dem, elevation=z, valid=valid),
             dataclasses.replace(report, filled_cells=report.cells, filled=filled))
 
