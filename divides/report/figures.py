@@ -42,6 +42,8 @@ __all__ = [
     "FIGURES",
     "CAPTIONS",
     "SIDE_COLOURS",
+    "FILLED_HATCH",
+    "filled_voids",
     "MAX_DISPLAY_PX",
     "render_figures",
     "to_png",
@@ -218,6 +220,35 @@ def _hillshade(ax, dem: Dem, frame: _Frame) -> None:
     ax.imshow(shade, cmap="gray", vmin=0, vmax=1, extent=_display_extent(dem, frame, step),
               interpolation="bilinear", origin="upper", zorder=0,
               aspect=frame.aspect)  # imshow would reset the aspect to 1
+
+
+#: Hatch of the cells filled by interpolation on the maps (a pattern, not a colour: the maps' colours all mean
+#: something else).
+FILLED_HATCH = "xxxx"
+
+
+def filled_voids(ax, dem: Dem, frame: _Frame, voids) -> list:
+    """Hatch and outline the cells filled by interpolation (``voids``: a :class:`divides.terrain.voids.VoidFill`);
+    the legend handle, or none when nothing was filled. A display cell is marked when any cell of its block was
+    filled, so a small hole stays visible on a large DEM."""
+    filled = getattr(voids, "filled", None)
+    if filled is None or not filled.any():
+        return []
+    step = _stride(dem.shape)
+    if step > 1:
+        rows, cols = filled.shape
+        pad = np.pad(filled, ((0, -rows % step), (0, -cols % step)))
+        filled = pad.reshape(pad.shape[0] // step, step, pad.shape[1] // step, step).any(axis=(1, 3))
+    left, right, bottom, top = _display_extent(dem, frame, step)
+    n_rows, n_cols = filled.shape
+    # cell centres of the grid padded by one empty cell all round, so every outline closes
+    xs = left + (right - left) / n_cols * (np.arange(n_cols + 2) - 0.5)
+    ys = top + (bottom - top) / n_rows * (np.arange(n_rows + 2) - 0.5)
+    grid = np.pad(filled.astype(float), 1)
+    ax.contourf(xs, ys, grid, levels=[0.5, 1.5], colors="none", hatches=[FILLED_HATCH], zorder=1.5)
+    ax.contour(xs, ys, grid, levels=[0.5], colors="0.15", linewidths=0.8, zorder=1.6)
+    return [Patch(facecolor="none", edgecolor="0.15", hatch=FILLED_HATCH, lw=0.8,
+                  label="nodata filled by interpolation")]
 
 
 def _side_tint(ax, result: Assessment, frame: _Frame, alpha: float = 0.22) -> None:
@@ -566,6 +597,7 @@ def map_figure(result: Assessment) -> Figure:
     handles += _draw_arrows(ax, result, frame)
     handles += _draw_equilibrium(ax, result, frame)
     handles += _draw_knickpoints(ax, result, frame)
+    handles += filled_voids(ax, result.dem, frame, result.voids)
     ax.set_title(f"Divide between {side_label(result, 'a')} and {side_label(result, 'b')}\n{_verdict_title(result)}",
                  fontsize=11)
     fig.legend(handles=handles, loc="outside lower center", ncol=3, fontsize=8, frameon=False)

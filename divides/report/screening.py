@@ -25,8 +25,8 @@ from divides.io.writing import atomic_write, write_feature_collection, write_jso
 from divides.report import html as _html
 
 from divides.report import figures as _figures
-from divides.report.figures import (_HALO, _display_extent, _figure, _frame, _hillshade, _map_size, map_furniture,
-                                    to_png)
+from divides.report.figures import (_HALO, _display_extent, _figure, _frame, _hillshade, _map_size, filled_voids,
+                                    map_furniture, to_png)
 from divides.report.labels import parameter_label, parameter_value, probability_text
 from divides.report.layers import _feature, _lonlat, csv_text
 from divides.report.follow_up import assess_command, basin_sides, follow_up_segments
@@ -415,7 +415,7 @@ def regional_map(result: Screening):
 
     judged = [s for s in result.segments if s["instability"] is not None]
     unknown = [s for s in result.segments if s["instability"] is None]
-    handles = []
+    handles = filled_voids(ax, dem, frame, result.voids)
     if judged:
         lines = [xy(s["line"], s["basins"]) for s in judged]
         ax.add_collection(LineCollection(lines, colors="white", linewidths=5.0, zorder=3, capstyle="round"))

@@ -169,3 +169,18 @@ def test_north_arrow_stays_inside_the_map_whatever_its_shape(shape):
         box = mark.get_window_extent(renderer)
         assert inside.x0 <= box.x0 and box.x1 <= inside.x1 and inside.y0 <= box.y0 and box.y1 <= inside.y1, shape
     assert not letter.get_window_extent(renderer).overlaps(ax.title.get_window_extent(renderer))
+
+
+def test_the_divide_map_marks_filled_voids_in_its_legend(demo_result):
+    # A legend for every mark: the assessment's map hatches the cells filled by interpolation and names them in its
+    # legend; with none filled there is neither.
+    from divides.report.figures import map_figure
+    from divides.terrain.voids import VoidFill
+
+    mask = np.zeros(demo_result.dem.shape, dtype=bool)
+    mask[60:70, 40:52] = True
+    for voids, marked in ((VoidFill("fill", 1, 120, 120, 120, filled=mask), True), (VoidFill(), False)):
+        fig = map_figure(dataclasses.replace(demo_result, voids=voids))
+        labels = [t.get_text() for t in fig.legends[0].get_texts()]
+        hatched = [c for c in fig.axes[0].collections if list(getattr(c, "hatches", None) or []) == ["xxxx"]]
+        assert ("nodata filled by interpolation" in labels) == marked == bool(hatched)

@@ -325,6 +325,32 @@ def test_arrows_where_motion_is_unlikely_are_drawn_apart(screening):
         assert ("(motion unlikely)" in text) == (p < 0.5)
 
 
+def test_filled_voids_are_marked_on_the_map_with_a_legend_entry(screening):
+    # A legend for every mark (issue 14 item 5): cells filled by interpolation are hatched and outlined on the map,
+    # with their own legend entry, and the outline encloses the hole (checked with matplotlib's own path test at the
+    # hole's centre, and away from it). Without filled cells, no mark and no entry.
+    import dataclasses
+
+    import divides.report.screening as rs
+    from divides.terrain.voids import VoidFill
+
+    mask = np.zeros(screening.dem.shape, dtype=bool)
+    mask[60:70, 40:52] = True
+    voids = VoidFill("fill", holes=1, cells=120, largest_cells=120, filled_cells=120, filled=mask)
+    for given, marked in ((voids, True), (VoidFill(), False)):
+        fig = rs.regional_map(dataclasses.replace(screening, voids=given))
+        labels = [t.get_text() for t in fig.legends[0].get_texts()]
+        assert ("nodata filled by interpolation" in labels) == marked
+    x, y = screening.dem.xy(np.array([65.0]), np.array([46.0]))
+    far_x, far_y = screening.dem.xy(np.array([10.0]), np.array([10.0]))
+    fig = rs.regional_map(dataclasses.replace(screening, voids=voids))
+    outline = [c for c in fig.axes[0].collections if list(getattr(c, "hatches", None) or []) == ["xxxx"]]
+    paths = [p for c in outline for p in c.get_paths()]
+    scale = 1e-3  # the map's km
+    assert any(p.contains_point((x[0] * scale, y[0] * scale)) for p in paths)
+    assert not any(p.contains_point((far_x[0] * scale, far_y[0] * scale)) for p in paths)
+
+
 def test_the_follow_up_reads_the_stretch_each_segment_was_judged_on(screening):
     # A short segment is judged with the segments continuing it; its follow-up assessment takes the rivers of every
     # pair of basins along that stretch, each on the side it holds. Each pooled neighbour keeps a basin of the chain
