@@ -1008,9 +1008,9 @@ def assess(
     equilibrium = equilibrium_divide(dem, core.points, theta=core.profiles.theta,
                                      reference_area_m2=core.reference_area_m2, a0_m2=config.a0_m2)
     holes = raster_holes_cells(dem, runoff=runoff, erodibility=erodibility_raster, uplift=uplift_raster)
-    over_filled = _filled_share(voids, core.divide)
     cautions = [note for note in (raster_holes_note({"raster_holes_cells": holes}, dem.n_valid),
-                                  interior_nodata_note(voids, dem.n_valid), filled_divide_note(over_filled)) if note]
+                                  interior_nodata_note(voids, dem.n_valid),
+                                  filled_divide_note(_filled_share(voids, core.divide))) if note]
     verdict = dataclasses.replace(verdict, text=_text(verdict, core.contrasts, core.sides, rate, knickpoints,
                                                       equilibrium, cal, same_channel=core.same_channel,
                                                       config=config, withheld=withheld, cautions=cautions))

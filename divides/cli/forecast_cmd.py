@@ -125,8 +125,8 @@ def forecast(
     options: dict[str, Any] = {
         "erosion_rate_a_mm_yr": rate_a, "erosion_rate_b_mm_yr": rate_b, "erodibility": k,
         **{key: request.options[key] for key in ("closed_edges", "conditioning", "voids", "sea_level_m",
-                                                  "channel_area_m2",
-                                                  "snap_radius_m", "name_a", "name_b") if key in request.options},
+                                                  "channel_area_m2", "snap_radius_m", "name_a", "name_b")
+           if key in request.options},
     }
     theta_v = None if theta is None else opt.parse_theta(theta)
     if theta_v is not None:

@@ -92,7 +92,7 @@ def inspect(
     """
     read = opt.dem_options(dem, band=band, bounds=bounds, vertical_unit=vertical_unit, cell_size=cell_size)
     flow = opt.route_options(conditioning=conditioning, sea_level=sea_level, closed_edges=closed_edges,
-                              voids=voids)
+                             voids=voids)
     with opt.quiet_warnings(quiet):
         report = inspect_report(read, flow)
     # Everything is computed before anything is printed: a failure prints no partial output.
