@@ -36,6 +36,7 @@ __all__ = [
     "divide_line_features",
     "knickpoint_features",
     "equilibrium_features",
+    "filled_void_features",
     "geojson_layers",
     "tables",
     "csv_text",
@@ -323,6 +324,41 @@ def equilibrium_features(result: Assessment) -> list[dict]:
     return features
 
 
+def filled_void_features(dem: Dem, voids) -> list[dict]:
+    """RFC 7946 Polygons (WGS 84 lon/lat) of the holes of nodata filled by interpolation, one per hole (8-connected):
+    ``hole``, ``cells``, ``area_m2``; empty when none was filled (``voids``: a
+    :class:`divides.terrain.voids.VoidFill`)."""
+    filled = getattr(voids, "filled", None)
+    if filled is None or not filled.any():
+        return []
+    from rasterio.features import shapes
+    from scipy import ndimage
+
+    labels, n = ndimage.label(filled, structure=np.ones((3, 3), dtype=bool))
+    cells = np.bincount(labels.ravel(), minlength=n + 1)
+    rows = np.nonzero(filled)[0]
+    area = np.bincount(labels[filled], weights=dem.cell_area[rows], minlength=n + 1)
+    rings_of: dict[int, list] = {}
+    for geometry, value in shapes(labels.astype(np.int32), mask=filled, connectivity=8, transform=dem.transform):
+        rings = []
+        for k, ring in enumerate(geometry["coordinates"]):
+            xy = np.asarray(ring, dtype=np.float64)
+            lon, lat = _lonlat(dem, xy[:, 0], xy[:, 1])
+            # RFC 7946 §3.1.6: exterior rings counterclockwise, holes clockwise (shoelace sign)
+            ccw = float(np.sum(lon[:-1] * lat[1:] - lon[1:] * lat[:-1])) > 0
+            step = 1 if ccw == (k == 0) else -1
+            rings.append(np.column_stack([lon, lat])[::step].tolist())
+        rings_of.setdefault(int(value), []).append(rings)
+    features = []
+    for hole in sorted(rings_of):
+        polygons = rings_of[hole]
+        geometry = ({"type": "Polygon", "coordinates": polygons[0]} if len(polygons) == 1
+                    else {"type": "MultiPolygon", "coordinates": polygons})
+        features.append(_feature(geometry, {"hole": hole, "cells": int(cells[hole]),
+                                            "area_m2": round(float(area[hole]), 1)}))
+    return features
+
+
 def geojson_layers(result: Assessment) -> dict[str, dict]:
     """Every GeoJSON layer as a FeatureCollection (empty dict when the DEM has no CRS)."""
     if result.dem.crs is None:
@@ -334,6 +370,9 @@ def geojson_layers(result: Assessment) -> dict[str, dict]:
         "knickpoints": _collection(knickpoint_features(result)),
         "equilibrium_divide": _collection(equilibrium_features(result)),
     }
+    holes = filled_void_features(result.dem, result.voids)
+    if holes:  # only where holes of nodata were filled
+        layers["filled_voids"] = _collection(holes)
     _name_sides(result, layers)
     return layers
 

@@ -28,7 +28,7 @@ from divides.report import figures as _figures
 from divides.report.figures import (_HALO, _display_extent, _figure, _frame, _hillshade, _map_size, filled_voids,
                                     map_furniture, to_png)
 from divides.report.labels import parameter_label, parameter_value, probability_text
-from divides.report.layers import _feature, _lonlat, csv_text
+from divides.report.layers import _feature, _lonlat, csv_text, filled_void_features
 from divides.report.follow_up import assess_command, basin_sides, follow_up_segments
 from divides.report.provenance import provenance as _provenance
 from divides.report.provenance import public_summary
@@ -752,6 +752,9 @@ def write_screening(result: Screening, out_dir, *, overwrite: bool = False, comm
             write_feature_collection(tmp / "segments.geojson", segment_features(result, rows))
             write_feature_collection(tmp / "layers" / "screen_gaps.geojson", _iter_gap_features(result),
                                      parents=True)
+            holes = filled_void_features(result.dem, result.voids)
+            if holes:  # only where holes of nodata were filled
+                write_feature_collection(tmp / "layers" / "filled_voids.geojson", holes)
         write_text(tmp / "segments.csv", csv_text(rows, _COLUMNS))
         fig = regional_map(result)
         png = to_png(fig)

@@ -200,6 +200,10 @@ def test_nodata_inside_the_data_is_named_in_the_outputs(tmp_path, capsys, voids)
     said = "filled by harmonic interpolation" if voids == "fill" else "drains into them"
     assert said in captured.out
     assert "The DEM has 20 nodata cells inside its data" in (tmp_path / "s" / "report.html").read_text()
+    layer = tmp_path / "s" / "layers" / "filled_voids.geojson"  # the filled hole as a polygon, only when filled
+    assert layer.exists() == (voids == "fill")
+    if voids == "fill":
+        assert [f["properties"]["cells"] for f in json.loads(layer.read_text())["features"]] == [20]
 
 
 def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):

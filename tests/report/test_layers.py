@@ -45,7 +45,16 @@ def _check_geometry(geom: dict) -> None:
         assert len(coords) >= 2  # RFC 7946 §3.1.4
         for pos in coords:
             _check_position(pos)
-    else:  # the layers only use points and lines
+    elif kind in ("Polygon", "MultiPolygon"):
+        for polygon in (coords if kind == "MultiPolygon" else [coords]):
+            for k, ring in enumerate(polygon):
+                # RFC 7946 §3.1.6: closed rings of four or more positions, exterior counterclockwise, holes clockwise
+                assert len(ring) >= 4 and ring[0] == ring[-1]
+                for pos in ring:
+                    _check_position(pos)
+                lon, lat = np.array(ring).T
+                assert (float(np.sum(lon[:-1] * lat[1:] - lon[1:] * lat[:-1])) > 0) == (k == 0)
+    else:  # the layers use points, lines and (filled holes) polygons
         pytest.fail(f"unexpected geometry {kind}")
 
 
@@ -314,3 +323,35 @@ def test_csv_quotes_awkward_text() -> None:
     text = layers.csv_text([{"name": 'a "quoted", comma', "value": float("nan"), "flag": True}])
     rows = list(csv.reader(text.splitlines()))  # stdlib parser: RFC 4180 quoting
     assert rows == [["name", "value", "flag"], ['a "quoted", comma', "", "true"]]
+
+
+def test_filled_holes_are_a_polygon_layer_of_their_true_area(demo_result) -> None:
+    # Holes of nodata filled by interpolation are written as RFC 7946 polygons, one per hole (8-connected), with
+    # their cell count and area; the polygon's geodesic area on WGS 84 (pyproj's Geod, a general-purpose reference)
+    # matches the cells' area (12 x 10 and 3 x 3 cells of 30 m, within 0.5 % for the UTM scale factor). A hole
+    # with an island of data inside has the island as an interior ring. Without filled cells: no layer.
+    import dataclasses
+
+    from pyproj import Geod
+
+    from divides.terrain.voids import VoidFill
+
+    assert "filled_voids" not in layers.geojson_layers(demo_result)
+    mask = np.zeros(demo_result.dem.shape, dtype=bool)
+    mask[60:70, 40:52] = True
+    mask[64:66, 45:47] = False  # an island of data inside the first hole
+    mask[100:103, 150:153] = True
+    voids = VoidFill("fill", holes=2, cells=int(mask.sum()), largest_cells=116, filled_cells=int(mask.sum()),
+                     filled=mask)
+    doc = layers.geojson_layers(dataclasses.replace(demo_result, voids=voids))["filled_voids"]
+    _check_feature_collection(json.loads(json.dumps(doc, allow_nan=False)))
+    props = [f["properties"] for f in doc["features"]]
+    assert [p["cells"] for p in props] == [116, 9]
+    geod = Geod(ellps="WGS84")
+    for feature, cells in zip(doc["features"], (116, 9), strict=True):
+        rings = feature["geometry"]["coordinates"]
+        assert len(rings) == (2 if cells == 116 else 1)
+        area = sum(abs(geod.polygon_area_perimeter(*np.array(ring).T)[0]) * (1 if k == 0 else -1)
+                   for k, ring in enumerate(rings))
+        assert area == pytest.approx(cells * 900.0, rel=5e-3)
+        assert feature["properties"]["area_m2"] == pytest.approx(cells * 900.0)
