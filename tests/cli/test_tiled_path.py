@@ -48,6 +48,30 @@ def test_screen_tiled_equals_in_memory_and_clears_its_scratch(tmp_path, capsys, 
     assert scratch.is_dir() and list(scratch.iterdir()) == []  # the intermediate tiles are gone
 
 
+def test_screen_tiled_fills_voids_as_in_memory(tmp_path, capsys, uplands):
+    # Holes of nodata are filled before routing on either path (docs/methods.md §1), so the tiled screening of a
+    # holed DEM is the in-memory one, filled cells and their layer included.
+    import numpy as np
+    import rasterio
+
+    path = tmp_path / "holed.tif"
+    with rasterio.open(uplands) as src:
+        profile, z = src.profile, src.read(1)
+    z[60:66, 100:108] = np.nan
+    z[20:23, 30:35] = np.nan
+    with rasterio.open(path, "w", **{**profile, "nodata": float("nan")}) as dst:
+        dst.write(z, 1)
+    base = ["screen", str(path), "--quiet", "--level", "outlets"]
+    assert run([*base, "--out", str(tmp_path / "mem")]) == 0
+    assert run([*base, "--out", str(tmp_path / "tiles"), "--tiled"]) == 0
+    capsys.readouterr()
+    assert _judged(tmp_path / "tiles") == _judged(tmp_path / "mem")
+    voids = json.loads((tmp_path / "tiles" / "screening.json").read_text())["dem"]["voids"]
+    assert voids["filled_cells"] == 48 + 15
+    assert (tmp_path / "tiles" / "layers" / "filled_voids.geojson").read_text() == (
+        tmp_path / "mem" / "layers" / "filled_voids.geojson").read_text()
+
+
 def test_tiled_path_starts_by_itself_when_routing_would_not_fit(tmp_path, capsys, monkeypatch, uplands):
     # No machine here is too small for the demo: make "in-memory routing fits" false, as the
     # guard would find on a DEM larger than memory, and the command must route by tiles itself.
