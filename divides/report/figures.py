@@ -231,7 +231,7 @@ def filled_voids(ax, dem: Dem, frame: _Frame, voids) -> list:
     """Hatch and outline the cells filled by interpolation (``voids``: a :class:`divides.terrain.voids.VoidFill`);
     the legend handle, or none when nothing was filled. A display cell is marked when any cell of its block was
     filled, so a small hole stays visible on a large DEM."""
-    filled = getattr(voids, "filled", None)
+    filled = voids.filled
     if filled is None or not filled.any():
         return []
     step = _stride(dem.shape)

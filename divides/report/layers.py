@@ -328,7 +328,7 @@ def filled_void_features(dem: Dem, voids) -> list[dict]:
     """RFC 7946 Polygons (WGS 84 lon/lat) of the holes of nodata filled by interpolation, one per hole (8-connected):
     ``hole``, ``cells``, ``area_m2``; empty when none was filled (``voids``: a
     :class:`divides.terrain.voids.VoidFill`)."""
-    filled = getattr(voids, "filled", None)
+    filled = voids.filled
     if filled is None or not filled.any():
         return []
     from rasterio.features import shapes

@@ -257,7 +257,11 @@ def test_option_choices_match_the_library():
     # the library's own lists are the reference.
     from divides.cli import options
     from divides.io.reading import VERTICAL_UNITS
+    from divides.config import AssessConfig
     from divides.terrain.conditioning import CONDITIONING_METHODS
+    from divides.terrain.voids import VOID_HANDLING
 
     assert options.VERTICAL_UNIT_CHOICES == tuple(VERTICAL_UNITS)
     assert options.CONDITIONING_CHOICES == tuple(CONDITIONING_METHODS)
+    assert options.VOID_CHOICES == tuple(VOID_HANDLING)
+    assert all(AssessConfig(voids=v).voids == v for v in VOID_HANDLING)  # config.py repeats them too
