@@ -27,6 +27,9 @@ __all__ = ["BYTES_PER_CELL", "MemoryNeed", "available_bytes", "read_bytes_per_ce
 #: assess: 964 MB at 2000² less the 0.25 GB interpreter (bench_assess.py) = 178 B/cell -> 190, whose
 #: peak is not routing either;
 #: forecast: one model grid set per run (bench_model.py: ~16 float64 grids) ≈ 130 B/cell.
+#: A DEM with interior holes of nodata keeps a filled copy and its mask through the task (5.2 B/cell measured on
+#: float32, bench_screen.py --holes 200 against 0 at 3000²), not charged: the read's charge is as much more than
+#: the read keeps for float input, 2-4 B/cell short for integer input (docs/large-dems.md).
 BYTES_PER_CELL: dict[str, float] = {
     "route": 40.0,
     "inspect": 60.0,

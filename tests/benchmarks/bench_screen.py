@@ -1,12 +1,14 @@
 """Wall time and peak memory of regional screening (run by hand, not a test).
 
     python tests/benchmarks/bench_screen.py [--sizes 1000 2000 4000] [--level tributaries] [--forward_run no]
+                                            [--holes 0]
 
 Screens every divide between sub-basins of the ridge DEM of bench_network.py
 (1 km² channels, basins of at least 5 km², 3 km segments, both cores), after a
 JIT warm-up on a small grid. Each size runs in a fresh subprocess. By default the screening reads its
 landscape evidence (screen's ``forward_run``: the whole-DEM run under the steady balance and the hilltop
-curvature), whose share of the time is reported; ``--forward_run no`` leaves it out.
+curvature), whose share of the time is reported; ``--forward_run no`` leaves it out. ``--holes N`` punches N voids
+of nodata (bench_voids.py's) into the DEM, which the screening fills first.
 """
 
 from __future__ import annotations
@@ -19,9 +21,10 @@ from pathlib import Path
 sys.path.insert(0, str(Path(__file__).parent))
 from _harness import sweep  # noqa: E402
 from bench_network import ridge_dem  # noqa: E402
+from bench_voids import punch_holes  # noqa: E402
 
 
-def run_one(n: int, level: str, forward_run: str = "yes") -> dict:
+def run_one(n: int, level: str, forward_run: str = "yes", holes: str = "0") -> dict:
     import divides.assess.screen as screening
     from divides import Dem
     from divides.assess.screen import screen
@@ -41,7 +44,10 @@ def run_one(n: int, level: str, forward_run: str = "yes") -> dict:
     screening._landscape_evidence = clocked
     # warm-up: basins of 2 km² on the small grid (at 5 km² it holds one basin: no divide to screen, an error)
     screen(Dem.from_array(ridge_dem(200), cell_size=30.0), **{**options, "min_basin_area_m2": 2e6})
-    dem = Dem.from_array(ridge_dem(n), cell_size=30.0)
+    z = ridge_dem(n)
+    punch_holes(z, int(holes))
+    dem = Dem.from_array(z, cell_size=30.0)
+    del z
     spent.clear()
     t0 = time.perf_counter()
     result = screen(dem, **options)
@@ -62,4 +68,5 @@ def _row(r: dict) -> str:
 
 
 if __name__ == "__main__":
-    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000], extra={"level": "tributaries", "forward_run": "yes"})
+    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000], extra={"level": "tributaries", "forward_run": "yes",
+                                                                              "holes": "0"})

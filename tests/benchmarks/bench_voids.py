@@ -42,6 +42,17 @@ def _fill(path: str) -> None:
           f"{holes / seconds:,.0f} filled cells/s, peak memory {(peak - base) / 2**20:,.0f} MB beyond the DEM")
 
 
+def punch_holes(z: np.ndarray, count: int, seed: int = 7) -> None:
+    """Set ``count`` seeded voids of 6 x 8 to 60 x 80 cells to NaN, in place, clear of the grid's edge."""
+    rng = np.random.default_rng(seed)
+    rows, cols = z.shape
+    for _ in range(count):
+        scale = int(rng.integers(1, 11))
+        h, w = 6 * scale, 8 * scale
+        r, c = int(rng.integers(2, rows - h - 2)), int(rng.integers(2, cols - w - 2))
+        z[r:r + h, c:c + w] = np.nan
+
+
 def main() -> None:
     if len(sys.argv) == 3 and sys.argv[1] == "--child":
         _fill(sys.argv[2])
@@ -54,12 +65,7 @@ def main() -> None:
 
     n = args.size
     z = fractal_dem(n, seed=3)
-    rng = np.random.default_rng(7)
-    for _ in range(args.holes):
-        scale = int(rng.integers(1, 11))
-        h, w = 6 * scale, 8 * scale
-        r, c = int(rng.integers(2, n - h - 2)), int(rng.integers(2, n - w - 2))
-        z[r:r + h, c:c + w] = np.nan
+    punch_holes(z, args.holes)
     if args.big:
         lo = (n - args.big) // 2
         z[lo:lo + args.big, lo:lo + args.big] = np.nan
