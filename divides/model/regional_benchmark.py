@@ -99,7 +99,7 @@ RANGES: dict[str, tuple[float, float]] = {
     "rows": (200, 260),                  # along the main divide
     "cols": (150, 170),                  # across it
     "cell_m": (30.0, 90.0),
-    "theta": (0.4, 0.6),                 # n = 1
+    "theta": (0.4, 0.6),                 # m / n; n = 1 (build's n)
     "uplift_m_per_yr": (2e-4, 1e-3),     # log-uniform
     "mean_flank_gradient": (0.05, 0.15),  # sets the target relief (as the single-divide benchmark)
     "hillslope_cells": (1.0, 3.0),       # log-uniform; D = U l^(1+2θ) / ks
@@ -326,11 +326,12 @@ def stretch_motion(positions: np.ndarray, times: np.ndarray, *, cell_m: float, t
 
 
 # ---------------------------------------------------------------------------- building
-def _draws(master_seed: int, index: int, shape: tuple[int, int] | None) -> dict:
+def _draws(master_seed: int, index: int, shape: tuple[int, int] | None, n: float = 1.0) -> dict:
     """Every random draw of a case, in the order :func:`build` has always made them.
 
     Nothing here runs the model, so the forcing of a cached case can be rebuilt from its
-    seed (:func:`continuation_forcing`).
+    seed (:func:`continuation_forcing`). ``n`` (the slope exponent, not drawn) leaves every draw as it is:
+    the concavity θ = m / n is drawn, and K is set so that the steady steepness is the same (K = U / ks^n).
     """
     seed = case_seed(master_seed, index)
     rng = np.random.default_rng(seed)
@@ -349,10 +350,10 @@ def _draws(master_seed: int, index: int, shape: tuple[int, int] | None) -> dict:
     half = 0.5 * (cols - 1) * cell
     relief = float(rng.uniform(*RANGES["mean_flank_gradient"])) * half
     ks = relief / _chi_estimate(half, cell, theta)
-    k0 = u0 / ks
+    k0 = u0 / ks ** n
     lo, hi = RANGES["hillslope_cells"]
     ell = float(math.exp(rng.uniform(math.log(lo), math.log(hi)))) * cell
-    physics = {"m": theta, "n": 1.0, "diffusivity": u0 * ell ** (1.0 + 2.0 * theta) / ks}
+    physics = {"m": theta * n, "n": float(n), "diffusivity": u0 * ell ** (1.0 + 2.0 * theta) / ks}
     spin, change, details = _plan(family, rng, (rows, cols), u0, k0)
     ridge_seed = int(rng.integers(2**31))
     observe = float(rng.uniform(*RANGES["observe_tau"])) if family not in STEADY_FAMILIES else 0.0
@@ -387,10 +388,11 @@ def _settle(surface: Dem, forcing: dict, physics: dict, tau: float, cell: float)
                      "settle_max_cells_per_tau": float(max(rates)) if rates else None}
 
 
-def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[dict, Dem, dict, float, dict]:
+def _grow(master_seed: int, index: int, shape: tuple[int, int] | None,
+          n: float = 1.0) -> tuple[dict, Dem, dict, float, dict]:
     """Spin-up, settling, change and observation: the draws, the observed surface, the forcing after the
     change, the response time and the growth's record (spin-up and settling chunks, the steady crest)."""
-    d = _draws(master_seed, index, shape)
+    d = _draws(master_seed, index, shape, n)
     rows, cols, cell, u0, relief = d["rows"], d["cols"], d["cell"], d["u0"], d["relief"]
     physics, flip, frame = d["physics"], d["flip"], d["frame"]
     start = ridge_surface((rows, cols), cell_size=cell, relief=0.3 * relief, noise=max(1.0, 0.01 * relief),
@@ -418,18 +420,19 @@ def _grow(master_seed: int, index: int, shape: tuple[int, int] | None) -> tuple[
     return d, surface, forcing, tau, grown
 
 
-def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None) -> RegionalCase:
+def build(master_seed: int, index: int, *, shape: tuple[int, int] | None = None, n: float = 1.0) -> RegionalCase:
     """Build regional case ``index`` of ``master_seed`` (no cache): spin-up, change, observation, truth.
 
     ``shape`` replaces the drawn grid (rows, cols) and leaves every other draw as it is
-    (small cases for fast tests).
+    (small cases for fast tests); ``n``, the slope exponent of every run (1 in the benchmark's cases),
+    too (:func:`_draws`).
     """
     started = time.perf_counter()
-    d, surface, forcing, tau, grown = _grow(master_seed, index, shape)
+    d, surface, forcing, tau, grown = _grow(master_seed, index, shape, n)
     cell, u0, physics = d["cell"], d["u0"], d["physics"]
     run = _continue(surface, forcing, tau)
     stretches, threshold = stretch_motion(run.divide.positions, run.divide.times, cell_m=cell, tau_yr=tau)
-    parameters = {"K": d["k0"], "n": 1.0, "m": d["theta"], "theta": d["theta"], "U_m_per_yr": u0,
+    parameters = {"K": d["k0"], "n": physics["n"], "m": physics["m"], "theta": d["theta"], "U_m_per_yr": u0,
                   "D_m2_per_yr": physics["diffusivity"], "relief_m": float(np.nanmax(surface.elevation)
                                                                           - np.nanmin(surface.elevation)),
                   "tau_yr": tau, "observed_after_tau": d["observe"], **grown, "mirrored": d["mirror"],
@@ -462,10 +465,11 @@ def continuation_forcing(case: RegionalCase) -> tuple[Dem, dict, float]:
     """
     shape = tuple(case.elevation.shape)
     crest = case.parameters.get("steady_crest_col")
+    n = float(case.parameters.get("n", 1.0))
     if case.family in READS_STEADY_SURFACE and crest is None:
-        _, surface, forcing, tau, _ = _grow(case.master_seed, case.index, shape)
+        _, surface, forcing, tau, _ = _grow(case.master_seed, case.index, shape, n)
         return surface, forcing, tau
-    d = _draws(case.master_seed, case.index, shape)
+    d = _draws(case.master_seed, case.index, shape, n)
     canonical = d["flip"](case.elevation.astype(np.float64))
     _, forcing = d["change"](canonical, np.asarray(crest if crest is not None else _crest_col(canonical)))
     return case.dem(), {**d["frame"](forcing), **d["physics"]}, float(case.parameters["tau_yr"])
@@ -516,7 +520,8 @@ def lateral_truth(case: RegionalCase, *, cache_dir: str | Path | None = None) ->
     if cache_dir == "":
         return measure_lateral(case)
     root = Path(cache_dir) if cache_dir is not None else cache_root()
-    path = (root / f"lateral-v{LATERAL_VERSION}" / f"v{case.version}" / f"seed{case.master_seed}"
+    variant = exponent_variant(float(case.parameters.get("n", 1.0)))
+    path = (root / f"lateral-v{LATERAL_VERSION}" / f"v{case.version}{variant}" / f"seed{case.master_seed}"
             / f"{case.index:04d}.npz")
     if path.exists():
         with np.load(path, allow_pickle=False) as data:
@@ -536,15 +541,27 @@ def cache_root() -> Path:
     return Path(base) / "divides" / "regional"
 
 
-def load_or_build(master_seed: int, index: int, *, cache_dir: str | Path | None = None) -> RegionalCase:
-    """The cached case, built and cached first if missing (``cache_dir=""``: no cache)."""
+def exponent_variant(n: float) -> str:
+    """The cache folder's suffix of cases grown with slope exponent ``n`` ("" for the benchmark's n = 1).
+
+    Examples
+    --------
+    >>> exponent_variant(1.0), exponent_variant(1.5)
+    ('', '-n1.5')
+    """
+    return "" if float(n) == 1.0 else f"-n{float(n):g}"
+
+
+def load_or_build(master_seed: int, index: int, *, cache_dir: str | Path | None = None,
+                  n: float = 1.0) -> RegionalCase:
+    """The cached case, built and cached first if missing (``cache_dir=""``: no cache); ``n`` as :func:`build`."""
     if cache_dir == "":
-        return build(master_seed, index)
+        return build(master_seed, index, n=n)
     root = Path(cache_dir) if cache_dir is not None else cache_root()
-    path = root / f"v{REGIONAL_VERSION}" / f"seed{int(master_seed)}" / f"{int(index):04d}.npz"
+    path = root / f"v{REGIONAL_VERSION}{exponent_variant(n)}" / f"seed{int(master_seed)}" / f"{int(index):04d}.npz"
     if path.exists():
         return RegionalCase.load(path)
-    case = build(master_seed, index)
+    case = build(master_seed, index, n=n)
     case.save(path)
     return case
 

@@ -82,13 +82,17 @@ def rule_channel_area(dem, rule: str, closed_edges) -> float:
     return choice.value_m2
 
 
-def screen_case(case, error=None, told: bool = True, *, resample: bool = False, **overrides):
+def screen_case(case, error=None, told: bool = True, *, resample: bool = False, tell_n: bool = False,
+                **overrides):
     """Screen ``case`` with the validation's options; with ``error`` (a DemError) its DEM carries that error,
-    and screening is told it when ``told``; with ``resample`` the DEM is :func:`half_cell`'s."""
+    and screening is told it when ``told``; with ``resample`` the DEM is :func:`half_cell`'s; ``tell_n``: the
+    screening is told the case's slope exponent (else it assumes its default, 1)."""
     from divides.assess.screen import screen
 
     options = dict(theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0,
                    channel_area_m2=CHANNEL_CELLS * case.cell_size ** 2)
+    if tell_n:
+        options["n"] = float(case.parameters["n"])
     if error is not None and told:
         options.update(dem_error_m=error.sigma_m, dem_error_length_m=error.length_m)
     dem = case.dem(error)
@@ -278,6 +282,10 @@ def main() -> None:
                         help="also run the landscape under these balances (e.g. steady-local10) and record each "
                              "segment's shift as forward_shift_<balance>_cells (a measuring aid; the screening's "
                              "own figures do not change)")
+    parser.add_argument("--slope-exponent", type=float, default=1.0, metavar="N",
+                        help="cases grown with this slope exponent n (the benchmark's are 1; others are cached apart)")
+    parser.add_argument("--tell-n", action="store_true",
+                        help="tell the screening the cases' slope exponent (else it assumes its default, 1)")
     args = parser.parse_args()
     if args.extra_balances:
         _record_extra_runs(tuple(args.extra_balances))
@@ -297,7 +305,7 @@ def main() -> None:
         if args.split != "all" and split_of(case_seed(args.seed, i)) != args.split:
             continue  # the split is known from the seed before the case is built
         t0 = time.perf_counter()
-        case = load_or_build(args.seed, i)
+        case = load_or_build(args.seed, i, n=args.slope_exponent)
         built = time.perf_counter() - t0
         if args.generate_only:
             print(f"{i:>3} {case.split:<9} {case.family:<28} built in {built:.0f} s; stretches (cells/τ) "
@@ -313,7 +321,8 @@ def main() -> None:
             extra["channel_area_rule"] = args.channel_area_rule
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
         try:
-            screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell, **extra)
+            screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell,
+                                    tell_n=args.tell_n, **extra)
         except DividesError as exc:  # a refusal is a miss of every target the case has, not a crash of the run
             classes = [stretch_class(s, case.threshold_m_per_yr) for s in case.stretches]
             refused.append({"master_seed": case.master_seed, "index": case.index, "family": case.family,
