@@ -22,6 +22,7 @@ from divides.cli.assess_cmd import (
     ErodibilityRasterOption,
     RunoffAlias,
     RunoffOption,
+    SlopeExponentOption,
     UpliftAlias,
     UpliftRasterOption,
     _read_raster_on_grid,
@@ -94,6 +95,7 @@ def screen(
     level: LevelOption = "tributaries",
     max_segment: MaxSegmentOption = None,
     theta: ScreenThetaOption = "0.45",
+    n: SlopeExponentOption = None,
     channel_area: ScreenChannelAreaOption = None,
     dem_error: DemErrorOption = None,
     dem_error_length: DemErrorLengthOption = None,
@@ -150,6 +152,9 @@ def screen(
         "seed": seed, "conditioning": route.conditioning, "sea_level_m": route.sea_level,
         "closed_edges": route.closed_edges, "voids": route.voids,
     }
+    if n is not None:  # the landscape runs and the basins' transience read it
+        options["n"] = opt.parse_bounded(n, option="--n", unit="(slope exponent)", low=0.5, high=4,
+                                         low_inclusive=True, typical="1 unless known otherwise")
     if dem_error is not None:
         options["dem_error_m"] = opt.parse_bounded(dem_error, option="--dem-error", unit="m", low=0, high=100,
                                                    low_inclusive=True)

@@ -136,6 +136,8 @@ def assess_command(result: Screening, segment: dict, sides: dict[int, str], *, d
     if p.get("channel_area_used_m2"):  # the screening's own pick, which an assessment would otherwise redo
         words += ["--channel-area", f"{p['channel_area_used_m2']:.4g}"]
     defaults = AssessConfig()
+    if p.get("n") is not None and p["n"] != defaults.n:
+        words += ["--n", f"{p['n']:g}"]
     if p.get("dem_error_m") is not None and p["dem_error_m"] != defaults.dem_error_m:
         words += ["--dem-error", f"{p['dem_error_m']:g}"]
     if p.get("dem_error_length_m") is not None:

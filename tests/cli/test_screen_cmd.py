@@ -83,6 +83,7 @@ def test_screen_json_is_strict(tmp_path, capsys):
         (["--runoff", "missing.tif"], "--runoff"),
         (["--min-basin-area", "1e12"], "minimum basin area"),  # no basin that large: nothing to screen
         (["--voids", "lakes"], "--voids"),
+        (["--n", "0"], "--n"),
     ],
 )
 def test_bad_options_exit_2_with_one_line_and_nothing_written(tmp_path, capsys, extra, needle):
@@ -234,23 +235,24 @@ def test_a_weighting_raster_with_holes_is_named_in_a_warning(tmp_path, capsys):
 def test_the_follow_up_command_of_a_screened_segment_runs(tmp_path, capsys):
     # The report gives each segment to assess first its `divides assess` command: the rivers on either side of the
     # stretch the segment was judged on, by their mouths (segments.csv's side_1 and side_2 hold each basin's river),
-    # and the options the screening read the DEM with. The command must run as written (the DEM by its path here)
-    # and assess the two sides named, the segment's basins' rivers among them.
+    # and the options the screening read the DEM with, and its slope exponent n. The command must run as written (the
+    # DEM by its path here) and assess the two sides named, the segment's basins' rivers among them.
     import html
     import re
     import shlex
 
     out = tmp_path / "s"
     code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--closed-edges", "north,south",
-                "--no-forward-run"])
+                "--no-forward-run", "--n", "1.5"])
     assert code == 0, capsys.readouterr().err
+    assert json.loads((out / "screening.json").read_text())["parameters"]["n"] == 1.5
     text = (out / "report.html").read_text()
     found = re.findall(r'<tr><td class="n">(\d+)</td><td>[^<]*</td><td><code>(divides assess [^<]*)</code>', text)
     assert found
     rank, command = int(found[0][0]), html.unescape(found[0][1])
     words = shlex.split(command)
     assert words[2] == Path(UPLANDS).name
-    assert words[words.index("--closed-edges") + 1] == "north,south"
+    assert words[words.index("--closed-edges") + 1] == "north,south" and words[words.index("--n") + 1] == "1.5"
     with open(out / "segments.csv", newline="") as fh:
         row = next(r for r in csv.DictReader(fh) if int(r["rank"]) == rank)
     side_a, side_b = (words[words.index(o) + 1].split(";") for o in ("--side-a", "--side-b"))
