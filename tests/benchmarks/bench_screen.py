@@ -68,5 +68,5 @@ def _row(r: dict) -> str:
 
 
 if __name__ == "__main__":
-    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000], extra={"level": "tributaries", "forward_run": "yes",
-                                                                              "holes": "0"})
+    sweep(__file__, __doc__, run_one, _row, [1000, 2000, 4000],
+          extra={"level": "tributaries", "forward_run": "yes", "holes": "0"})
