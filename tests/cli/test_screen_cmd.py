@@ -110,9 +110,9 @@ def test_existing_output_folder_is_refused(tmp_path, capsys):
 def test_screen_forward_run_is_asked_for_and_written(tmp_path, capsys):
     # --forward-run (the default, as docs/output-formats.md says): every segment the runs measured carries
     # both runs' shifts and its basins' transience in segments.geojson and segments.csv, screening.json records
-    # the run, and the report says what they added.
+    # the run, and the report says what they added, with the slope exponent the runs were given.
     out = tmp_path / "s"
-    code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--level", "outlets", "--forward-run"])
+    code = run(["screen", UPLANDS, "--out", str(out), "--quiet", "--level", "outlets", "--forward-run", "--n", "1.5"])
     assert code == 0, capsys.readouterr().err
     doc = json.loads((out / "screening.json").read_text())
     assert doc["parameters"]["forward_run"] is True and doc["parameters"]["forward_run_grid"]["steps"] >= 20
@@ -124,7 +124,8 @@ def test_screen_forward_run_is_asked_for_and_written(tmp_path, capsys):
         assert values and any(v is not None for v in values)
     with open(out / "segments.csv", newline="") as fh:
         assert set(evidence) <= set(next(csv.reader(fh)))
-    assert "forward runs of the landscape-evolution model" in (out / "report.html").read_text()
+    report = (out / "report.html").read_text()
+    assert "forward runs of the landscape-evolution model" in report and "slope exponent n = 1.5;" in report
 
 
 def test_screen_says_when_its_runs_are_coarse_for_the_smallest_basins(tmp_path, capsys):
