@@ -15,10 +15,9 @@ import numpy as np
 
 from divides.io.dem import Dem
 from divides.io.memory import row_blocks
-from divides.terrain.voids import VoidFill, interior_holes
+from divides.terrain.voids import VoidFill
 
-__all__ = ["raster_holes", "raster_holes_cells", "raster_holes_note", "interior_nodata_cells", "interior_nodata_note",
-           "filled_divide_note"]
+__all__ = ["raster_holes", "raster_holes_cells", "raster_holes_note", "interior_nodata_note", "filled_divide_note"]
 
 
 def raster_holes(dem: Dem, grid: np.ndarray | float) -> int:
@@ -57,23 +56,6 @@ def raster_holes_note(parameters: dict, n_valid: int) -> str | None:
     parts = [f"The {name} raster has no value on {n} of the DEM's cells ({100 * n / max(n_valid, 1):.2g} %)"
              for name, n in holes.items()]
     return "; ".join(parts) + "; χ read its typical (reference) value there."
-
-
-def interior_nodata_cells(valid: np.ndarray) -> int:
-    """Nodata cells in holes that do not reach the grid's edge (8-connected).
-
-    A nodata collar (reaching the edge) is not counted: the DEM simply ends there.
-
-    Examples
-    --------
-    >>> valid = np.ones((5, 6), bool); valid[2, 2:4] = False; valid[0, 5] = False
-    >>> interior_nodata_cells(valid)
-    2
-    """
-    if np.asarray(valid, dtype=bool).all():
-        return 0
-    _, interior, counts = interior_holes(valid)
-    return int(counts[interior].sum())
 
 
 def interior_nodata_note(voids: VoidFill, n_valid: int) -> str | None:

@@ -14,8 +14,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from divides.assess.missing_data import interior_nodata_cells, interior_nodata_note
-from divides.terrain.voids import VoidFill
+from divides.assess.missing_data import interior_nodata_note
+from divides.terrain.voids import VoidFill, interior_holes
+
+
+def interior_nodata_cells(valid: np.ndarray) -> int:
+    """The tool's count of nodata cells in holes that do not reach the grid's edge (as fill_voids counts them)."""
+    _, interior, counts = interior_holes(valid)
+    return int(counts[interior].sum())
 
 
 def _reference(valid: np.ndarray) -> int:
