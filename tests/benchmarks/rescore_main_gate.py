@@ -33,7 +33,11 @@ from divides.assess.screen import (
     neighbour_scores,
     rank_key,
 )
-from divides.model.regional_benchmark import STEADY_FAMILIES, raises_alarm, ranking_targets
+from divides.model.regional_benchmark import (
+    STEADY_FAMILIES,
+    raises_alarm,
+    ranking_targets,
+)
 
 _SHIPPED = segment_motion.evidence_features
 
@@ -118,8 +122,11 @@ def main() -> None:
     parser.add_argument("--family", default=None, help="only cases of this family")
     parser.add_argument("--split", default="training")
     args = parser.parse_args()
-    cases = [c for f in args.records for c in map(json.loads, open(f))
-             if c["split"] == args.split and (args.family is None or c["family"] == args.family)]
+    cases = []
+    for name in args.records:
+        with open(name) as fh:
+            cases += [c for c in map(json.loads, fh)
+                      if c["split"] == args.split and (args.family is None or c["family"] == args.family)]
     for label in ["shipped", *args.gate]:
         b, t = (None, None) if label == "shipped" else map(float, label.split(":"))
         with gate(b, t):
