@@ -103,6 +103,16 @@ def screen_case(case, error=None, told: bool = True, *, resample: bool = False, 
     return screen(dem, **{**options, **overrides})
 
 
+def suggested_theta(case) -> float:
+    """The concavity `divides inspect` suggests for ``case``'s DEM (its own routing, the closed edges as screened):
+    what a user who does not know θ would screen with."""
+    import divides
+    from divides.cli.inspect_cmd import suggest_parameters
+
+    graph = divides.route(case.dem(), closed_edges=case.closed_edges)
+    return float(suggest_parameters(graph)["theta"]["value"])
+
+
 def _fmt(v, spec=".2f"):
     return "–" if v is None else format(v, spec)
 
@@ -286,6 +296,9 @@ def main() -> None:
                         help="cases grown with this slope exponent n (the benchmark's are 1; others are cached apart)")
     parser.add_argument("--tell-n", action="store_true",
                         help="tell the screening the cases' slope exponent (else it assumes its default, 1)")
+    parser.add_argument("--theta", default=None, metavar="VALUE|inspect",
+                        help="screen with this concavity, or with the one `divides inspect` suggests from each DEM, "
+                        "instead of the case's true θ (round 69)")
     args = parser.parse_args()
     if args.extra_balances:
         _record_extra_runs(tuple(args.extra_balances))
@@ -319,6 +332,8 @@ def main() -> None:
             extra["channel_area_m2"] = None
         if args.channel_area_rule:
             extra["channel_area_rule"] = args.channel_area_rule
+        if args.theta is not None:
+            extra["theta"] = suggested_theta(case) if args.theta == "inspect" else float(args.theta)
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
         try:
             screening = screen_case(case, error, not args.screen_assumes_default, resample=args.half_cell,
@@ -332,6 +347,7 @@ def main() -> None:
             print(f"{i:>3} {case.split:<9} {case.family:<28} refused: {exc}", flush=True)
             continue
         result = score(case, screening, lateral=lateral_truth(case))
+        result["theta_screened"] = extra.get("theta", case.parameters["theta"])
         rows.append(result)
         print(_line(result), flush=True)
     if args.generate_only:
