@@ -233,7 +233,7 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
     from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
     from divides.errors import DividesError
     from divides.profiles.analysis import network_concavity
-    from divides.profiles.concavity import REFERENCE_THETA
+    from divides.profiles.concavity import REFERENCE_THETA, bounded_by_data
     from divides.terrain.channels import bounded_channel_threshold, extract_channels, suggest_channel_threshold
 
     choice = suggest_channel_threshold(graph)
@@ -252,7 +252,8 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
     else:
         problem = ""
     found = {k: e for k, e in estimates.items() if math.isfinite(e.value)}
-    collinear, slope_area = found.get("collinearity"), found.get("slope_area")
+    loose = {k: e for k, e in found.items() if not bounded_by_data(e)}  # round 70: not bounded by the data
+    collinear, slope_area = (found.get(k) if k not in loose else None for k in ("collinearity", "slope_area"))
 
     def words(e: Any) -> str:
         lo, hi = _interval(e.ci95)
@@ -269,13 +270,17 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
     elif slope_area is not None:
         value, ci, source = slope_area.value, slope_area.ci95, "slope-area"
         why = estimates["collinearity"].note if "collinearity" in estimates else problem
+        if "collinearity" in loose:
+            why = f"its θ = {words(loose['collinearity'])} is not bounded by the data"
         reason = f"slope–area regression of the channels gives θ = {words(slope_area)}; collinearity could not tell" + (
             f" ({why})" if why else "")
     else:
         value, ci, source = REFERENCE_THETA, (float("nan"), float("nan")), "reference"
-        notes = "; ".join(filter(None, [problem, *(e.note for e in estimates.values())]))
-        reason = f"neither collinearity nor slope–area could estimate θ{f' ({notes})' if notes else ''}; " \
-                 f"the reference value {REFERENCE_THETA} is common practice"
+        notes = "; ".join(filter(None, [problem, *(f"{k.replace('_', '–')} gives θ = {words(e)}, an interval that "
+                                                   "reaches the end of the 0.05–0.95 searched or beyond"
+                                                   if k in loose else e.note for k, e in estimates.items())]))
+        what = "the data do not bound θ" if loose else "neither collinearity nor slope–area could estimate θ"
+        reason = f"{what}{f' ({notes})' if notes else ''}; the reference value {REFERENCE_THETA} is common practice"
     return {
         "channel_area_m2": area,
         "screen_channel_area_m2": screen_area,

@@ -11,6 +11,7 @@ from divides.profiles import _profile_kernels as _k
 from divides.profiles.chi import ChiWeights, integrate_chi
 from divides.profiles.concavity import (
     REFERENCE_THETA,
+    bounded_by_data,
     concavity_by_collinearity,
     concavity_by_slope_area,
 )
@@ -168,7 +169,8 @@ def analyse_profiles(
     theta : float or "auto"
         Concavity for χ and ksn. ``"auto"`` uses the collinearity estimate of
         both sides, each network scored against its own trunk and the networks
-        combined (falling back to the reference 0.45 when it cannot be made);
+        combined (falling back to the reference 0.45 when it cannot be made or
+        the data do not bound it, :func:`~divides.profiles.concavity.bounded_by_data`);
         the default is the reference value 0.45 (common practice).
     a0 : float
         Reference area (m²).
@@ -229,7 +231,7 @@ def analyse_profiles(
     if isinstance(theta, str):
         if theta != "auto":
             raise ParameterError(f"theta must be a number or 'auto'; got {theta!r}")
-        if np.isfinite(conc["both"].value):
+        if bounded_by_data(conc["both"]):  # not an estimate at the edge of the scan or with a loose interval
             theta_value, source = conc["both"].value, "collinearity"
         else:
             theta_value, source = REFERENCE_THETA, "reference"

@@ -13,7 +13,7 @@ from divides.profiles import _profile_kernels as _k
 from divides.profiles.chi import integrate_chi
 
 __all__ = ["ConcavityEstimate", "REFERENCE_THETA", "THETA_GRID", "disorder", "concavity_by_collinearity",
-           "concavity_by_slope_area"]
+           "concavity_by_slope_area", "bounded_by_data"]
 
 #: The usual reference concavity for normalised steepness (Wobus et al. 2006; Kirby & Whipple 2012).
 REFERENCE_THETA = 0.45
@@ -61,6 +61,29 @@ class ConcavityEstimate:
         """JSON-ready form (without the scan details)."""
         return {"value": _nan_none(self.value), "ci95": [_nan_none(v) for v in self.ci95],
                 "method": self.method, "n_units": self.n_units, "note": self.note}
+
+
+def bounded_by_data(estimate: ConcavityEstimate) -> bool:
+    """Whether ``estimate`` may stand in for θ: finite, with a 95 % interval that lies inside the range the
+    collinearity search scans (:data:`THETA_GRID`'s ends, 0.05–0.95).
+
+    An interval that reaches an end of the searched range (the minimum found at its edge) or runs beyond it (a loose
+    slope–area regression) says the data do not bound θ there; the reference :data:`REFERENCE_THETA` serves better
+    (round 70, docs/validation.md: such estimates, 0.002 and 2.79 on two model landscapes of true θ 0.53 and 0.44,
+    raised an alarm in a steady landscape and made screening refuse).
+
+    Examples
+    --------
+    >>> bounded_by_data(ConcavityEstimate(0.41, (0.31, 0.52), "collinearity"))
+    True
+    >>> bounded_by_data(ConcavityEstimate(0.002, (0.002, 0.64), "collinearity"))  # the scan's lowest value
+    False
+    >>> bounded_by_data(ConcavityEstimate(2.79, (0.62, 4.96), "slope-area"))
+    False
+    """
+    lo, hi = estimate.ci95
+    return bool(np.isfinite(estimate.value) and np.isfinite(lo) and np.isfinite(hi)
+                and THETA_GRID[0] < lo and hi < THETA_GRID[-1])
 
 
 def _nan_none(v: float) -> float | None:

@@ -371,6 +371,43 @@ def test_suggested_theta_falls_back_to_the_reference_value(capsys, write_geotiff
     assert "could" in theta["reason"] and "0.45" in theta["reason"]
 
 
+@pytest.mark.parametrize("collinear, slope_area", [
+    ((0.002, (0.002, 0.64)), (1.10, (0.86, 1.33))),  # the scan's lowest value; a loose, steep regression
+    (None, (2.79, (0.62, 4.96))),  # collinearity cannot tell; five area bins
+])
+def test_suggested_theta_is_not_an_estimate_the_data_do_not_bound(capsys, monkeypatch, collinear, slope_area):
+    # Estimates that two model landscapes of true θ 0.53 and 0.44 gave (docs/validation.md, round 69): an optimum at
+    # the end of the searched range is a boundary solution, not an estimate (common practice), and natural rivers'
+    # concavity lies in 0.2-0.8 (Whipple 2004; Gailleton et al. 2021). The reference 0.45 (Wobus et al. 2006) is
+    # suggested instead, the estimates named in the reason; screen accepts the suggestion.
+    import divides.profiles.analysis as analysis
+    from divides.profiles.concavity import ConcavityEstimate
+
+    nan = (float("nan"), float("nan"))
+    estimates = {
+        "collinearity": ConcavityEstimate(*(collinear or (float("nan"), nan)), "collinearity", 15 if collinear else 0,
+                                          "" if collinear else "too few channel links"),
+        "slope_area": ConcavityEstimate(*slope_area, "slope-area", 5),
+    }
+    monkeypatch.setattr(analysis, "network_concavity", lambda *a, **k: estimates)
+    theta = _inspect_json(capsys, UPLANDS)["suggested"]["theta"]
+    assert (theta["value"], theta["source"]) == (0.45, "reference")
+    assert "do not bound" in theta["reason"] and f"{slope_area[0]:.2f}" in theta["reason"]
+    assert theta["slope_area"]["value"] == slope_area[0]  # the estimates are still reported
+
+
+def test_suggested_theta_keeps_a_bounded_estimate_beside_a_loose_one(capsys, monkeypatch):
+    import divides.profiles.analysis as analysis
+    from divides.profiles.concavity import ConcavityEstimate
+
+    estimates = {"collinearity": ConcavityEstimate(0.002, (0.002, 0.64), "collinearity", 15),
+                 "slope_area": ConcavityEstimate(0.48, (0.40, 0.56), "slope-area", 9)}
+    monkeypatch.setattr(analysis, "network_concavity", lambda *a, **k: estimates)
+    theta = _inspect_json(capsys, UPLANDS)["suggested"]["theta"]
+    assert (theta["value"], theta["source"]) == (0.48, "slope-area")
+    assert "not bounded by the data" in theta["reason"]
+
+
 def test_text_says_why_its_theta_differs_from_the_default(capsys):
     # the reference θ of common practice (0.45) is what assess, screen and the demo use unless told otherwise
     assert run(["inspect", str(UPLANDS)]) == 0

@@ -32,6 +32,26 @@ def test_real_dem_concavity_in_the_range_of_natural_rivers(jacksboro):
     assert 0.2 <= est["slope_area"].value <= 0.8
 
 
+def test_auto_theta_sets_aside_an_estimate_the_data_do_not_bound(jacksboro, monkeypatch):
+    # An optimum at the end of the searched range is a boundary solution, not an estimate (common practice); natural
+    # rivers' best-fit concavity lies in 0.2-0.8 (Whipple 2004; Gailleton et al. 2021), so θ = 0.002 with an
+    # interval to 0.64 is not one to compute χ with: the reference 0.45 (Wobus et al. 2006) is used instead.
+    import divides.profiles.analysis as analysis
+    from divides.profiles.concavity import ConcavityEstimate
+
+    flow, channels = jacksboro
+    sides = divides.resolve_sides(flow, divides.parse_side("west"), divides.parse_side("east"))
+    base = divides.common_base_level(channels, sides)
+    edge = ConcavityEstimate(0.002, (0.002, 0.64), "collinearity", 15)
+    monkeypatch.setattr(analysis, "concavity_by_collinearity", lambda *a, **k: edge)
+    result = analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
+    assert (result.theta, result.theta_source) == (0.45, "reference")
+    inside = ConcavityEstimate(0.52, (0.41, 0.63), "collinearity", 15)
+    monkeypatch.setattr(analysis, "concavity_by_collinearity", lambda *a, **k: inside)
+    result = analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
+    assert (result.theta, result.theta_source) == (0.52, "collinearity")
+
+
 def test_real_dem_sides_run_to_completion(jacksboro):
     flow, channels = jacksboro
     sides = divides.resolve_sides(flow, divides.parse_side("west"), divides.parse_side("east"))
