@@ -53,7 +53,7 @@ __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL
            "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
            "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
            "neighbour_scores", "RUN_BASIN_CELLS", "RUN_CHECKED_CELLS", "RUN_MAX_SIDE", "run_block",
-           "PROMOTE_TOLD_ERROR_M", "beside_scored", "interleave_kinds", "CHANNEL_AREA_SHARE",
+           "PROMOTE_TOLD_ERROR_M", "beside_scored", "interleave_kinds", "rank_segments", "CHANNEL_AREA_SHARE",
            "CHANNEL_AREA_MIN_CELLS"]
 
 #: The fields of AssessConfig a screening reads (only these are reported).
@@ -146,7 +146,7 @@ RUN_BASIN_CELLS = 50.0
 CHAIN_CELLS = 1.0
 
 #: Each segment's evidence beyond its near-divide contrasts (:func:`_landscape_evidence` and
-#: :func:`_neighbour_instability`; None when not measured).
+#: :func:`rank_segments`; None when not measured).
 EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_contrast", "transience_a",
                  "transience_b", "transience_sd_a", "transience_sd_b", "neighbour_instability")
 
@@ -485,7 +485,7 @@ def rank_key(instability: float | None, evidence: dict | None = None, *, promote
        landscape run measured the segment (round 50): first the segments the decision gives a direction (``verdict``
        "a" or "b", hence a motion azimuth), then those without one, each by instability (round 39); where
        ``promote``, those without one join the second tier instead (round 54);
-    2. below it, first the segments whose ``neighbour_instability`` (:func:`_neighbour_instability`) is at least
+    2. below it, first the segments whose ``neighbour_instability`` (:func:`rank_segments`) is at least
        :data:`NEIGHBOUR_SCORE`; within each group by the larger |shift| of the two landscape runs (one uplift
        rate; one per outlet basin), either direction, larger first (neither run measured first: no run evidence
        is not evidence of stillness; a shift under :data:`RUNS_AGREE_CELLS` reads as 0, round 63), then by
@@ -586,20 +586,73 @@ def beside_scored(evidence: dict) -> bool:
     return beside is not None and beside >= NEIGHBOUR_SCORE
 
 
-def _neighbour_instability(rows: list[dict]) -> None:
-    """Set each main segment's ``neighbour_instability`` (:func:`neighbour_scores`, the neighbours found by
-    :func:`divides.terrain.line_gaps.line_gaps`); None for lateral segments. Lateral divides are left out: their own
-    truth (the area two basins exchange) was not read for this term."""
+def _main_neighbours(rows: list[dict]) -> list[list[int]]:
+    """For each main segment of ``rows`` (in their order), the indices among them of the others whose lines come
+    within :data:`NEIGHBOUR_CELLS` (:func:`divides.terrain.line_gaps.line_gaps`)."""
     main = [r for r in rows if r["divide_kind"] == "main"]
     near: list[list[int]] = [[] for _ in main]
     for p, q in zip(*(a.tolist() for a in line_gaps([r["seg"].line for r in main], NEIGHBOUR_CELLS)[:2])):
         near[p].append(q)
         near[q].append(p)
-    moved = [run_size(r) for r in main]
+    return near
+
+
+def _set_neighbour_scores(rows: list[dict], near: Sequence[Sequence[int]]) -> None:
+    """Set each main segment's ``neighbour_instability`` (:func:`neighbour_scores` of the rows' ``instability``,
+    ``near`` as :func:`_main_neighbours` gives it); None on other kinds, whose own truth (the area two basins exchange)
+    was not read for this term."""
+    main = [r for r in rows if r["divide_kind"] == "main"]
     for r in rows:
         r["neighbour_instability"] = None
-    for r, value in zip(main, neighbour_scores(near, [r["instability"] for r in main], moved)):
+    for r, value in zip(main, neighbour_scores(near, [r["instability"] for r in main], [run_size(r) for r in main])):
         r["neighbour_instability"] = value
+
+
+def rank_segments(rows: list[dict], lengths: Sequence[float], near: Sequence[Sequence[int]] | None, *,
+                  dem_error_m: float) -> list[dict]:
+    """Score, probability of motion and order of judged segments: what :func:`screen` does once each segment is
+    judged and, with the landscape evidence, measured by the runs (also replayed from the regional benchmark's
+    records by ``tests/benchmarks/rescore_main_gate.py``).
+
+    Parameters
+    ----------
+    rows : list of dict
+        Each segment's ``probabilities`` (None: insufficient data), ``divide_kind`` and ``verdict``, and with the
+        landscape evidence the fields of :data:`EVIDENCE_KEYS` but ``neighbour_instability``. Each gets
+        ``instability`` (the ranking score, :func:`instability_of`), with the evidence ``neighbour_instability`` (main
+        segments: :func:`neighbour_scores`; None on other kinds, whose own truth was not read for this term), and
+        ``motion_probability``.
+    lengths : sequence of float
+        Each segment's length (m): longer first among equals.
+    near : sequence of sequences of int, or None
+        For each main segment (the rows of ``divide_kind`` "main", in their order), the indices among them of those
+        within :data:`NEIGHBOUR_CELLS`; None without the landscape evidence.
+    dem_error_m : float
+        The DEM error the screening is told (the probability of motion reads it; :data:`PROMOTE_TOLD_ERROR_M`).
+
+    Returns
+    -------
+    list of dict
+        ``rows`` in rank order (:func:`rank_key`; with the evidence and told less than :data:`PROMOTE_TOLD_ERROR_M`,
+        the kinds interleaved by :func:`interleave_kinds`).
+    """
+    evidence = near is not None
+    for r in rows:
+        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if evidence else None)
+    if evidence:
+        _set_neighbour_scores(rows, near)
+    for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
+        r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"], r if evidence else None,
+                                                     beside=beside_scored(r), dem_error_m=dem_error_m)
+    # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
+    promote = dem_error_m >= PROMOTE_TOLD_ERROR_M
+    order = sorted(range(len(rows)), key=lambda i: (
+        *rank_key(rows[i]["instability"], rows[i] if evidence else None, promote=promote), -lengths[i]))
+    rows = [rows[i] for i in order]
+    if evidence and not promote:  # told that much error, the promotion interleaves the likely movers
+        rows = [rows[i] for i in interleave_kinds([r["divide_kind"] for r in rows],
+                                                  [r["motion_probability"] for r in rows])]
+    return rows
 
 
 def neighbour_scores(near: Sequence[Sequence[int]], scores: Sequence[float | None], moved: Sequence[float | None],
@@ -923,20 +976,8 @@ def screen(
                if config.forward_run else None)
     for r in rows:  # each kind of divide has its own calibration of the probability of motion
         r["divide_kind"] = kind_of(directions, r["seg"].label_a, r["seg"].label_b)
-        r["instability"] = instability_of(r["probabilities"], r["divide_kind"], r if config.forward_run else None)
-    if config.forward_run:
-        _neighbour_instability(rows)
-    for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
-        r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"],
-                                                     r if config.forward_run else None, beside=beside_scored(r),
-                                                     dem_error_m=config.dem_error_m)
-    # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
-    promote = config.dem_error_m >= PROMOTE_TOLD_ERROR_M
-    rows.sort(key=lambda r: (*rank_key(r["instability"], r if config.forward_run else None, promote=promote),
-                             -r["seg"].line.length_m))
-    if config.forward_run and not promote:  # told that much error, the promotion interleaves the likely movers
-        rows = [rows[i] for i in interleave_kinds([r["divide_kind"] for r in rows],
-                                                  [r["motion_probability"] for r in rows])]
+    rows = rank_segments(rows, [r["seg"].line.length_m for r in rows],
+                         _main_neighbours(rows) if config.forward_run else None, dem_error_m=config.dem_error_m)
     out = []
     for rank, r in enumerate(rows, start=1):
         seg = r["seg"]

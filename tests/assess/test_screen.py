@@ -326,10 +326,10 @@ def _divide_row(col0: float, instability: float | None, one_u: float, per_basin:
 
 def _ranked(named: dict) -> list[str]:
     """The names of ``named``'s rows in screening's order, after setting their neighbours' scores."""
-    from divides.assess.screen import _neighbour_instability, rank_key
+    from divides.assess.screen import _main_neighbours, _set_neighbour_scores, rank_key
 
     rows = list(named.values())
-    _neighbour_instability(rows)
+    _set_neighbour_scores(rows, _main_neighbours(rows))
     by_id = {id(r): n for n, r in named.items()}
     return [by_id[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
 

@@ -4,15 +4,14 @@
 
 Reads the per-case JSON lines of ``bench_regional.py --json`` (every segment's decision probabilities, landscape
 evidence, length and, for main segments, the neighbours recorded within ten cells and the truth per stretch) and
-replays what :func:`divides.assess.screen.screen` does after the landscape runs: the score
-(:func:`~divides.assess.segment_motion.instability_of`), the neighbours' scores, the probability of motion told
-``--told`` metres of DEM error, the ranking (:func:`~divides.assess.screen.rank_key`, the kinds interleaved below
-:data:`~divides.assess.screen.PROMOTE_TOLD_ERROR_M`) and the reported instability. It prints issue 14's targets
+replays what :func:`divides.assess.screen.screen` does after the landscape runs
+(:func:`~divides.assess.screen.rank_segments`: the score, the neighbours' scores, the probability of motion told
+``--told`` metres of DEM error, the ranking) and the reported instability. It prints issue 14's targets
 (top, order, steady landscapes without an alarm) and the main probability of motion's calibration error for the
 shipped gate and for each ``--gate B:T``: a main segment's run term r is 1 also where the run with one rate per
 outlet basin moves its divide at least B model cells toward the side the decision favours and the one-uplift-rate
-run at least T (round 68, docs/validation.md, *Regional screening*). ``--check`` first reports how many cases the
-replay of the shipped gate ranks exactly as recorded (records written by the current code should all match).
+run at least T (round 68, docs/validation.md, *Regional screening*). Each line also counts the cases the replay ranks
+exactly as recorded: under the shipped gate, every case of records written by the current code.
 Give it training cases only.
 """
 
@@ -25,14 +24,7 @@ from contextlib import contextmanager
 from bench_regional import probability_scores  # this folder (scripts run from here)
 
 from divides.assess import segment_motion
-from divides.assess.screen import (
-    NEIGHBOUR_CELLS,
-    PROMOTE_TOLD_ERROR_M,
-    beside_scored,
-    interleave_kinds,
-    neighbour_scores,
-    rank_key,
-)
+from divides.assess.screen import NEIGHBOUR_CELLS, rank_segments
 from divides.model.regional_benchmark import (
     STEADY_FAMILIES,
     raises_alarm,
@@ -64,27 +56,15 @@ def gate(basin_cells: float | None, one_u_cells: float | None):
 
 
 def replay(case: dict, told_m: float) -> tuple[list[dict], list[dict]]:
-    """Every segment of ``case`` scored and ranked again (new ``rank``, ``instability``, ``motion_probability``),
-    and its main segments in the new order."""
+    """Every segment of ``case`` scored and ranked again by :func:`divides.assess.screen.rank_segments` (new
+    ``rank``, reported ``instability``, ``motion_probability``; the recorded rank kept as ``recorded_rank``), and its
+    main segments in the new order. The main segments' neighbours are those the record keeps within
+    :data:`~divides.assess.screen.NEIGHBOUR_CELLS`."""
     main = [{**m, "divide_kind": "main"} for m in case["main"]]
     segs = main + [dict(s) for s in case["others"]]
-    for s in segs:
-        s["instability"] = segment_motion.instability_of(s["probabilities"], s["divide_kind"], s)
     at = {m["rank"]: i for i, m in enumerate(main)}
     near = [[at[r] for r, gap in m["neighbours"] if gap <= NEIGHBOUR_CELLS and r in at] for m in main]
-    lifted = neighbour_scores(near, [m["instability"] for m in main], [segment_motion.run_size(m) for m in main])
-    for s in segs:
-        s["neighbour_instability"] = None
-    for m, value in zip(main, lifted):
-        m["neighbour_instability"] = value
-    for s in segs:
-        s["motion_probability"] = segment_motion.motion_probability(
-            s["probabilities"], s["divide_kind"], s, beside=beside_scored(s), dem_error_m=told_m)
-    promote = told_m >= PROMOTE_TOLD_ERROR_M
-    segs.sort(key=lambda s: (*rank_key(s["instability"], s, promote=promote), -s["length_m"]))
-    if not promote:
-        segs = [segs[i] for i in interleave_kinds([s["divide_kind"] for s in segs],
-                                                  [s["motion_probability"] for s in segs])]
+    segs = rank_segments(segs, [s["length_m"] for s in segs], near, dem_error_m=told_m)
     for rank, s in enumerate(segs, start=1):
         s["recorded_rank"], s["rank"] = s["rank"], rank
         s["instability"] = segment_motion.bounded_instability(s["instability"], s["motion_probability"])

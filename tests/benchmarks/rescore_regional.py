@@ -830,7 +830,7 @@ def targets(case: dict, ranking: str = "by instability") -> dict:
         m["_near"] = [(gap, by_rank[r]["_i"]) for r, gap in m.get("neighbours", [])]
     for moved in CHAIN_MOVED:
         _chain_scores(case["main"], moved)
-    for m in case["main"]:  # the neighbours' scores under the candidate, as screen._neighbour_instability reads them
+    for m in case["main"]:  # the neighbours' scores under the candidate, as screen.rank_segments reads them
         m["neighbour_instability"] = m["_chain"][CHAIN_CELLS]
     ranked = sorted(case["main"], key=lambda m: (*RANKINGS[ranking](m), m["rank"]))
     main = [{**m, "rank": i + 1, "instability": m["_i"]} for i, m in enumerate(ranked)]
