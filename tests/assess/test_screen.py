@@ -334,6 +334,25 @@ def _ranked(named: dict) -> list[str]:
     return [by_id[id(r)] for r in sorted(rows, key=lambda r: rank_key(r["instability"], r))]
 
 
+def test_without_the_landscape_evidence_segments_rank_by_the_decision_longer_first_abstentions_last():
+    # A ranking rule (docs/methods.md §7b; common practice for a ranking): without the landscape runs the score is a
+    # monotone calibration of P(a) + P(b) (Platt 1999), so segments rank by it, the longer first where it ties, and
+    # those the decision abstained on (no probabilities: insufficient data) last whatever their length.
+    from divides.assess.screen import rank_segments
+
+    def row(name, moving):
+        probs = None if moving is None else {"a": moving, "b": 0.0, "stable": 1.0 - moving}
+        return {"name": name, "probabilities": probs, "divide_kind": "main", "verdict": "undetermined"}
+
+    rows = [row("abstained", None), row("likely", 0.9), row("short tie", 0.5), row("unlikely", 0.1),
+            row("long tie", 0.5)]
+    ranked = rank_segments(rows, [5000.0, 100.0, 200.0, 300.0, 400.0], None, dem_error_m=1.0)
+    assert [r["name"] for r in ranked] == ["likely", "long tie", "short tie", "unlikely", "abstained"]
+    assert ranked[-1]["instability"] is None and ranked[-1]["motion_probability"] is None
+    scores = [r["instability"] for r in ranked[:-1]]
+    assert scores == sorted(scores, reverse=True) and all(0.0 < v < 1.0 for v in scores)
+
+
 def test_weak_main_segments_beside_strong_ones_come_first_below_the_tier():
     # Round 34's ranking (docs/methods.md §7b; a definition, common practice for a ranking rule): below 0.01 a main
     # segment whose line comes within 5 cells of another main segment scored >= 0.01 ranks before the others of the
