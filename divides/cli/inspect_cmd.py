@@ -233,7 +233,7 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
     from divides.assess.screen import CHANNEL_AREA_MIN_CELLS, CHANNEL_AREA_SHARE
     from divides.errors import DividesError
     from divides.profiles.analysis import network_concavity
-    from divides.profiles.concavity import REFERENCE_THETA, bounded_by_data
+    from divides.profiles.concavity import REFERENCE_THETA, THETA_GRID, bounded_by_data
     from divides.terrain.channels import bounded_channel_threshold, extract_channels, suggest_channel_threshold
 
     choice = suggest_channel_threshold(graph)
@@ -276,8 +276,9 @@ def suggest_parameters(graph: Any) -> dict[str, Any]:
             f" ({why})" if why else "")
     else:
         value, ci, source = REFERENCE_THETA, (float("nan"), float("nan")), "reference"
+        searched = f"{THETA_GRID[0]:.2f}–{THETA_GRID[-1]:.2f}"
         notes = "; ".join(filter(None, [problem, *(f"{k.replace('_', '–')} gives θ = {words(e)}, an interval that "
-                                                   "reaches the end of the 0.05–0.95 searched or beyond"
+                                                   f"reaches the end of the {searched} searched or beyond"
                                                    if k in loose else e.note for k, e in estimates.items())]))
         what = "the data do not bound θ" if loose else "neither collinearity nor slope–area could estimate θ"
         reason = f"{what}{f' ({notes})' if notes else ''}; the reference value {REFERENCE_THETA} is common practice"
