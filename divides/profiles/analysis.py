@@ -188,7 +188,8 @@ def analyse_profiles(
         Slope exponent of the stream-power law, for whether each knickpoint has
         a defined upstream speed (``celerity_defined``, ``celerity_note``).
     n_boot : int
-        Bootstrap resamples for the concavity intervals.
+        Bootstrap resamples for the concavity intervals (with fewer than 2 there is no interval, so ``"auto"``
+        takes the reference 0.45).
     seed : int
         Random seed.
     chi_only : bool
