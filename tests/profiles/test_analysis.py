@@ -36,7 +36,7 @@ def test_auto_theta_sets_aside_an_estimate_the_data_do_not_bound(jacksboro, monk
     # An optimum at the end of the searched range is a boundary solution, not an estimate (common practice); natural
     # rivers' best-fit concavity lies in 0.2-0.8 (Whipple 2004; Gailleton et al. 2021), so θ = 0.002 with an
     # interval to 0.64 is not one to compute χ with: the reference 0.45 (Wobus et al. 2006) is used instead.
-    import divides.profiles.analysis as analysis
+    import divides.profiles.analysis as analysis  # patched and called through one module object
     from divides.profiles.concavity import ConcavityEstimate
 
     flow, channels = jacksboro
@@ -44,11 +44,11 @@ def test_auto_theta_sets_aside_an_estimate_the_data_do_not_bound(jacksboro, monk
     base = divides.common_base_level(channels, sides)
     edge = ConcavityEstimate(0.002, (0.002, 0.64), "collinearity", 15)
     monkeypatch.setattr(analysis, "concavity_by_collinearity", lambda *a, **k: edge)
-    result = analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
+    result = analysis.analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
     assert (result.theta, result.theta_source) == (0.45, "reference")
     inside = ConcavityEstimate(0.52, (0.41, 0.63), "collinearity", 15)
     monkeypatch.setattr(analysis, "concavity_by_collinearity", lambda *a, **k: inside)
-    result = analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
+    result = analysis.analyse_profiles(channels, sides, base, theta="auto", n_boot=0)
     assert (result.theta, result.theta_source) == (0.52, "collinearity")
 
 
