@@ -1,7 +1,7 @@
 """Regional screening against measured truth per stretch of the main divide (run by hand, not a test).
 
     python tests/benchmarks/bench_regional.py [--n 24] [--seed 0] [--split training|held-out|all]
-                                              [--generate-only] [--json FILE] [--fit] [--markdown]
+                                              [--generate-only [--hide-truth]] [--json FILE] [--fit] [--markdown]
                                               [--no-forward-run] [--dem-error SIGMA [--dem-error-cells L]
                                               [--screen-assumes-default]] [--half-cell] [--auto-channel-area]
                                               [--channel-area-rule S|CAP0.2|CLIP0.2|CLIP0.5]
@@ -268,6 +268,9 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--split", choices=("training", "held-out", "all"), default="training")
     parser.add_argument("--generate-only", action="store_true")
+    parser.add_argument("--hide-truth", action="store_true",
+                        help="with --generate-only: also measure the lateral truth, print no truth at all (for a "
+                             "held-out draw before its judgement)")
     parser.add_argument("--json", default=None, help="write the per-case results as JSON lines")
     parser.add_argument("--fit", action="store_true",
                         help="print the instability's Platt scaling fitted on the cases run (use --split training)")
@@ -320,6 +323,10 @@ def main() -> None:
         t0 = time.perf_counter()
         case = load_or_build(args.seed, i, n=args.slope_exponent)
         built = time.perf_counter() - t0
+        if args.generate_only and args.hide_truth:
+            lateral_truth(case)  # cached, so that screenings run side by side later only read it
+            print(f"{i:>3} {case.split:<9} {case.family:<28} built in {time.perf_counter() - t0:.0f} s", flush=True)
+            continue
         if args.generate_only:
             print(f"{i:>3} {case.split:<9} {case.family:<28} built in {built:.0f} s; stretches (cells/τ) "
                   + " ".join(f"{s['rate_m_per_yr'] / case.threshold_m_per_yr:+.1f}"
