@@ -752,12 +752,23 @@ def ranking_targets(main: list[dict], *, moving_truth: bool, top: int = 3) -> di
 
     Each segment needs ``rank``, ``in_moving``, ``in_stable``, ``azimuth`` and ``measured_azimuth``;
     the first min(``top``, segments in moving stretches) get ``azimuth_error``. Returns ``top`` (those
-    segments), ``top_ok`` (None without a moving stretch), ``moving_segments``, ``stable_segments``,
-    ``order_violations`` and ``order_ok`` (None without both kinds).
+    segments), ``top_ok`` (None without a moving stretch; False where stretches move but no main segment lies in
+    one, as where the screening judged none there: nothing it ranks points at the motion), ``moving_segments``,
+    ``stable_segments``, ``order_violations`` and ``order_ok`` (None without both kinds).
+
+    Examples
+    --------
+    >>> still = {"rank": 1, "in_moving": False, "in_stable": True, "azimuth": None, "measured_azimuth": 90.0}
+    >>> ranking_targets([still], moving_truth=True)["top_ok"], ranking_targets([], moving_truth=True)["top_ok"]
+    (False, False)
+    >>> ranking_targets([still], moving_truth=False)["top_ok"] is None
+    True
     """
     out: dict[str, Any] = {}
     n_moving = sum(m["in_moving"] for m in main)
-    if moving_truth and n_moving:
+    if moving_truth and not n_moving:  # before 5 December 2026 such a case was left out of the top target
+        out["top"], out["top_ok"] = [], False
+    elif moving_truth:
         head = main[: min(top, n_moving)]
         for m in head:
             m["azimuth_error"] = (None if m["azimuth"] is None else

@@ -10,6 +10,7 @@ from divides.model.regional_benchmark import (
     FAMILIES,
     RegionalCase,
     case_seed,
+    ranking_targets,
     segment_stretch_shares,
     stretch_class,
     stretch_motion,
@@ -62,6 +63,41 @@ def test_a_segment_shares_its_length_among_the_stretches_it_crosses():
     assert shares["stable"] == pytest.approx(1 / 3, abs=1 / 60)
     assert shares["slow"] == pytest.approx(1 / 6, abs=1 / 60)
     assert sum(shares.values()) == pytest.approx(1.0)
+
+
+def _segment(rank: int, place: str, azimuth: float | None) -> dict:
+    return {"rank": rank, "in_moving": place == "moving", "in_stable": place == "still", "azimuth": azimuth,
+            "measured_azimuth": 90.0, "moving_share": float(place == "moving"), "instability": None,
+            "confidence": None}
+
+
+def test_the_ranking_targets_are_the_issue_s_definitions():
+    # Issue 14's targets, from its text: the top-ranked main segments (as many as lie in moving stretches, up to
+    # three) lie in moving stretches and point within 45 degrees of the measured motion; every still segment ranks
+    # below every moving one. Worked by hand on five segments.
+    main = [_segment(1, "moving", 100.0), _segment(2, "moving", 134.0), _segment(3, "still", None),
+            _segment(4, "moving", 90.0), _segment(5, "still", 270.0)]
+    out = ranking_targets(main, moving_truth=True)
+    assert [t["rank"] for t in out["top"]] == [1, 2, 3] and out["top_ok"] is False  # rank 3 lies in a still stretch
+    assert out["order_violations"] == 1 and out["order_ok"] is False  # rank 3 (still) above rank 4 (moving)
+    main[2], main[3] = _segment(3, "moving", 90.0), _segment(4, "still", None)
+    out = ranking_targets(main, moving_truth=True)
+    assert out["top_ok"] is True and out["order_ok"] is True and out["order_violations"] == 0
+    main[1] = _segment(2, "moving", 136.0)  # 46 degrees off the measured motion
+    assert ranking_targets(main, moving_truth=True)["top_ok"] is False
+    main[1] = _segment(2, "moving", None)  # no direction: nothing to act on
+    assert ranking_targets(main, moving_truth=True)["top_ok"] is False
+
+
+def test_a_landscape_whose_moving_stretches_no_segment_covers_misses_the_top_target():
+    # Where stretches move but no main segment lies in one (the screening judged none there, or none at all), the
+    # top target is missed, not left out (it was left out before 5 December 2026); without a moving stretch it is
+    # not asked (issue 14's text).
+    still = [_segment(1, "still", 90.0), _segment(2, "still", None)]
+    assert ranking_targets(still, moving_truth=True)["top_ok"] is False
+    assert ranking_targets([], moving_truth=True)["top_ok"] is False
+    assert ranking_targets(still, moving_truth=False)["top_ok"] is None
+    assert ranking_targets(still, moving_truth=True)["order_ok"] is None  # no moving segment to order against
 
 
 def test_cases_are_reproducible_and_split_before_generation():
