@@ -141,7 +141,7 @@ def _markdown(r: dict) -> str:
     lat = (f"{r['lateral_segments']} ({r['lateral_moving']} / {r['lateral_stable']})" if "lateral" in r else "–")
     return (f"| {r['index']} | {r['family']} | {r['forced_side']} | {r['moving_stretches']} / {r['stable_stretches']} / "
             f"{slow} | {r['main_segments']} ({r['moving_segments']} / {r['stable_segments']}) | {lat} | "
-            f"{r['coverage']:.0%} | {top or '–'} | {no(r['top_ok'])} | {order} | {r['alarms']} "
+            f"{_fmt(r['coverage'], '.0%')} | {top or '–'} | {no(r['top_ok'])} | {order} | {r['alarms']} "
             f"({r['alarms_by_kind']['main']} / {r['alarms_by_kind']['lateral']}) | {_fmt(r['max_alarm'])} |")
 
 

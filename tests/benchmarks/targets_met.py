@@ -16,8 +16,10 @@ import json
 import sys
 
 
-def targets_met(rows: list[dict]) -> tuple[collections.Counter, dict[str, collections.Counter]]:
-    """The counts of one condition and its misses by family."""
+def targets_met(rows: list[dict], missed: list[str] | None = None,
+                ) -> tuple[collections.Counter, dict[str, collections.Counter]]:
+    """The counts of one condition and its misses by family; each miss also appended to ``missed`` as
+    "target family seed/index" when given."""
     t: collections.Counter = collections.Counter()
     misses: dict[str, collections.Counter] = collections.defaultdict(collections.Counter)
     for r in rows:
@@ -26,6 +28,8 @@ def targets_met(rows: list[dict]) -> tuple[collections.Counter, dict[str, collec
         t["refused"] += refused
         if refused:
             misses[r["family"]]["refused"] += 1
+            if missed is not None:
+                missed.append(f"refused {r['family']} {r['master_seed']}/{r['index']}")
         both = r["moving_stretches"] > 0 and r["stable_stretches"] > 0
         for key, applies, ok in (
                 ("top", r["moving_stretches"] > 0, bool(r.get("top_ok"))),
@@ -38,6 +42,8 @@ def targets_met(rows: list[dict]) -> tuple[collections.Counter, dict[str, collec
                 t[key] += met
                 if not met and not refused:
                     misses[r["family"]][key] += 1
+                    if missed is not None:
+                        missed.append(f"{key} {r['family']} {r['master_seed']}/{r['index']}")
     t["sum"] = t["top"] + t["order"] + t["no_alarm"] + t["coverage"]
     return t, misses
 
