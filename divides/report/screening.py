@@ -18,7 +18,8 @@ from matplotlib.lines import Line2D
 from scipy import ndimage
 
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
-from divides.assess.screen import CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS
+from divides.assess.screen import (CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS,
+                                   SMALL_BASINS_REASON)
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
@@ -41,7 +42,7 @@ if TYPE_CHECKING:  # pragma: no cover - types only
 
 __all__ = ["write_screening", "segment_features", "segment_rows", "gap_features", "regional_map", "coarse_runs_note",
            "unmeasured_runs_note", "runs_notes", "UNMEASURED_NOTE_SHARE", "basin_text", "edge_of", "confidence_text",
-           "area_of", "data_notes", "filled_segments_note"]
+           "area_of", "data_notes", "filled_segments_note", "small_basins_note"]
 
 #: Segments whose rank is written on the map (the top of the report's table).
 MAP_RANKS = 25
@@ -163,6 +164,27 @@ def no_main_divide_note(segments: list[dict], parameters: dict) -> str | None:
             "is a gap (layers/screen_gaps.geojson); a smaller --min-basin-area screens it.")
 
 
+def small_basins_note(coverage: dict, parameters: dict) -> str | None:
+    """The caution a screening carries when less than half the DEM (its land, with a sea level) drains through the
+    basins screened, the rest through basins smaller than the minimum basin area (None otherwise): a DEM drained
+    mostly by short basins, or a minimum basin area too large for it, leaves most of the land unread, whatever the
+    coverage of the divides between the outlet basins screened says.
+
+    Examples
+    --------
+    >>> small_basins_note({"screened_area_share": 0.04}, {"min_basin_area_m2": 1.1e6})[:80]
+    'Only 4 % of the DEM drains through basins of at least the minimum basin area (1.'
+    >>> small_basins_note({"screened_area_share": 0.54}, {"min_basin_area_m2": 1.1e6}) is None
+    True
+    """
+    share = coverage.get("screened_area_share", 1.0)
+    if share >= 0.5:
+        return None
+    return (f"Only {100 * share:.0f} % {area_of(parameters)} drains through basins of at least the minimum basin "
+            f"area ({parameters.get('min_basin_area_m2', float('nan')) / 1e6:.3g} km²): the divides of the rest "
+            "were not screened, and a smaller --min-basin-area screens them.")
+
+
 def area_of(parameters: dict) -> str:
     """What the screened area share is a share of: the DEM, or its land above ``--sea-level`` when one was given.
 
@@ -208,11 +230,13 @@ def filled_segments_note(segments: list[dict]) -> str | None:
 
 def data_notes(result: Screening) -> list[str]:
     """The cautions the data call for: a weighting raster's holes, nodata inside the DEM's data and the segments
-    over it once filled (:func:`filled_segments_note`), no main divide judged (:func:`no_main_divide_note`)."""
+    over it once filled (:func:`filled_segments_note`), no main divide judged (:func:`no_main_divide_note`) or else
+    most of the land left to basins below the minimum area (:func:`small_basins_note`)."""
+    no_main = no_main_divide_note(result.segments, result.parameters)
     notes = (raster_holes_note(result.parameters, result.dem.n_valid),
              interior_nodata_note(result.voids, result.dem.n_valid),
              filled_segments_note(result.segments),
-             no_main_divide_note(result.segments, result.parameters))
+             no_main if no_main is not None else small_basins_note(result.coverage or {}, result.parameters))
     return [n for n in notes if n is not None]
 
 

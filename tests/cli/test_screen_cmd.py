@@ -36,6 +36,7 @@ def test_screen_writes_the_contract_files_and_lists_segments(tmp_path, capsys):
     for kind, words in (("main", "main (basins drain apart)"), ("lateral", "lateral (basins drain the same way)")):
         assert (words in html) == any(r["divide_kind"] == kind for r in rows[:25]), kind
     assert "No judged segment lies on a main divide" not in captured.out  # the demo's crest is judged
+    assert "drains through basins of at least the minimum basin area" not in captured.out  # most of it is screened
 
 
 def test_a_crest_left_to_small_basins_is_named(tmp_path, capsys):
@@ -60,6 +61,31 @@ def test_a_crest_left_to_small_basins_is_named(tmp_path, capsys):
     assert document["coverage"]["share"] == pytest.approx(1.0)
     assert "Caution: No judged segment lies on a main divide" in captured.out
     assert "No judged segment lies on a main divide" in (out / "report.html").read_text()
+
+
+def test_land_left_to_basins_below_the_minimum_area_is_named(tmp_path, capsys):
+    # The demo DEM cut to columns 90-160 (2.1 km across its crest): with a minimum basin area of 1 km² two basins
+    # qualify, they share no divide, and 31 % of the DEM drains through them. Nothing is judged; rather than only
+    # "no divide between outlet basins", the command line and the report say how much land was left unread and how
+    # to read it (common practice: say what the user can change).
+    import rasterio
+    from affine import Affine
+
+    with rasterio.open(UPLANDS) as src:
+        profile = {**src.profile, "width": 70, "transform": src.transform @ Affine.translation(90, 0)}
+        z = src.read(1)[:, 90:160]
+    path = tmp_path / "crest_strip.tif"
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(z, 1)
+    out = tmp_path / "s"
+    code = run(["screen", str(path), "--out", str(out), "--no-forward-run", "--min-basin-area", "1e6"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    document = json.loads((out / "screening.json").read_text())
+    assert not document["segments"] and document["coverage"]["screened_area_share"] < 0.5
+    note = "Caution: Only 31 % of the DEM drains through basins of at least the minimum basin area (1 km²)"
+    assert note in captured.out and "a smaller --min-basin-area screens them" in captured.out
+    assert note[9:] in (out / "report.html").read_text()
 
 
 def test_screen_json_is_strict(tmp_path, capsys):
