@@ -295,20 +295,20 @@ def test_no_false_alarm_on_a_steady_landscape_from_the_near_divide_contrasts_alo
 #: Master seed 0's held-out cases informed the second round of choices and are not used here; those of seeds 37-42
 #: were among the training cases of rounds 53-60. Seeds 69-72 were drawn after round 59's default was fixed, and
 #: the held-out cases of seeds 61 and 64-66 (whose training cases rounds 56-60 read) first generated then; those of
-#: seeds 73-76 after round 62 was decided on their training cases; seed 79's after round 64, seeds 80-104's after it.
+#: seeds 73-76 after round 62 was decided on their training cases; seed 79's after round 64, seeds 80-108's after it.
 HELD_OUT_SEEDS = (1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16, 17, 18, 19, 20, 21, 23, 24, 25, 26, 27, 28,
                   29, 30, 31, 32, 33, 34, 35, 36, 37, 38, 39, 40, 41, 42, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52, 53,
                   54, 55, 56, 57, 58, 59, 60, 61, 62, 63, 64, 65, 66, 67, 68, 69, 70, 71, 72, 73, 74, 75, 76, 77,
                   78, 79, 80, 81, 82, 83, 84, 85, 86, 87, 88, 89, 90, 91, 92, 93, 94, 95, 96, 97, 98, 99, 100,
-                  101, 102, 103, 104)
+                  101, 102, 103, 104, 105, 106, 107, 108)
 
 #: The held-out draws fresh to the probability of motion: round 59 fitted it on the 120-cell records of 316
 #: training cases, which take in the held-out cases of master seeds 37-42 (so those are left out here), and none of
-#: seeds 23-36 and 43-104 (round 42's and 46's fits took in every draw before seed 23).
+#: seeds 23-36 and 43-108 (round 42's and 46's fits took in every draw before seed 23).
 PROBABILITY_SEEDS = (23, 24, 25, 26, 27, 28, 29, 30, 31, 32, 33, 34, 35, 36, 43, 44, 45, 46, 47, 48, 49, 50, 51, 52,
                      53, 54, 55, 56, 57, 58, 59, 60, 61, 62, 63, 64, 65, 66, 67, 68, 69, 70, 71, 72, 73, 74, 75, 76, 77,
                      78, 79, 80, 81, 82, 83, 84, 85, 86, 87, 88, 89, 90, 91, 92, 93, 94, 95, 96, 97, 98, 99,
-                     100, 101, 102, 103, 104)
+                     100, 101, 102, 103, 104, 105, 106, 107, 108)
 
 
 #: Known misses per slow held-out test (strict expected failures, each with its measured reason). Since round 59
@@ -400,6 +400,12 @@ TOP_MISSES: dict[int, str] = {
         "no direction; third in a moving stretch, no direction)",
     101: "top target in 7 of 8 cases (partial_base_level_fall case 8: main segments ranked first outside moving "
          "stretches; second outside moving stretches; third in a moving stretch, no direction)",
+    106: "top target in 6 of 7 cases (tilt case 11: main segments ranked first in a moving stretch, no direction)",
+    107: "top target in 3 of 5 cases (partial_base_level_fall case 8: main segments ranked second in a moving stretch, "
+         "no direction; third 36 % in moving stretches, no direction; partial_base_level_fall case 16: main segments "
+         "ranked first in a moving stretch, no direction; third in a moving stretch, no direction)",
+    108: "top target in 6 of 7 cases (partial_base_level_fall case 8: main segments ranked first in a moving stretch, "
+         "no direction; second in a moving stretch, no direction; third outside moving stretches, no direction)",
 }
 
 ORDER_MISSES: dict[int, str] = {
@@ -444,6 +450,10 @@ ORDER_MISSES: dict[int, str] = {
     95: "order in 5 of 7 cases (erodibility_patch case 1: 3 pairs; erodibility_patch case 9: 1 pair)",
     97: "order in 3 of 4 cases (runoff_gradient case 18: 1 pair)",
     101: "order in 4 of 6 cases (partial_base_level_fall case 0: 1 pair; partial_base_level_fall case 8: 4 pairs)",
+    105: "order in 3 of 4 cases (runoff_gradient case 18: 1 pair)",
+    106: "order in 2 of 3 cases (partial_base_level_fall case 0: 1 pair)",
+    107: "order in 2 of 3 cases (partial_base_level_fall case 8: 3 pairs)",
+    108: "order in 3 of 4 cases (erodibility_patch case 17: 5 pairs)",
 }
 
 ALARM_MISSES: dict[int, str] = {
@@ -482,12 +492,15 @@ LATERAL_SCALING_MISSES: dict[int, str] = {
     94: "the main divide's scaling scores 0.246 against the lateral segments' own 0.251",
     97: "the main divide's scaling scores 0.111 against the lateral segments' own 0.113",
     102: "the main divide's scaling scores 0.128 against the lateral segments' own 0.134",
+    106: "the main divide's scaling scores 0.262 against the lateral segments' own 0.277",
+    108: "the main divide's scaling scores 0.305 against the lateral segments' own 0.315",
 }
 
 LATERAL_MEAN_MISSES: dict[int, str] = {
     32: "the lateral segments' mean instability 0.060 against a moved share of 0.115",
     39: "the lateral segments' mean instability 0.064 against a moved share of 0.130",
     64: "the lateral segments' mean instability 0.061 against a moved share of 0.118",
+    108: "the lateral segments' mean instability 0.049 against a moved share of 0.105",
 }
 
 PROBABILITY_MISSES: dict[int, str] = {
@@ -496,6 +509,7 @@ PROBABILITY_MISSES: dict[int, str] = {
     83: "calibration error 0.050 (log loss 0.134 against the score's 0.516; 326 segments, 93 moving)",
     85: "calibration error 0.063 (log loss 0.192 against the score's 0.974; 209 segments, 64 moving)",
     93: "calibration error 0.027 (log loss 0.029 against the score's 0.002; 146 segments, 21 moving)",
+    107: "calibration error 0.071 (log loss 0.123 against the score's 0.976; 195 segments, 80 moving)",
 }
 
 
@@ -532,8 +546,15 @@ def test_held_out_coverage(seed):
 DEFAULT_AREA_SEEDS = HELD_OUT_SEEDS[::8]
 
 
+#: Known misses of the default channel area's coverage (measured by hand: held_out_statuses.py does not run it).
+DEFAULT_AREA_MISSES: dict[int, str] = {
+    106: "tilt case 11: no divide between outlet basins (the basins of at least the minimum basin area drain 4 % of "
+         "the DEM; the hundred-and-sixth to hundred-and-ninth judgements)",
+}
+
+
 @pytest.mark.slow
-@pytest.mark.parametrize("seed", DEFAULT_AREA_SEEDS)
+@pytest.mark.parametrize("seed", _with_misses(DEFAULT_AREA_SEEDS, DEFAULT_AREA_MISSES))
 def test_held_out_default_channel_area_screens_every_case(seed):
     # Round 64: without a channel area the screening's default (the slope-area value, 50 cells to 0.2 % of the DEM)
     # screens every held-out case and covers >= 90 % of the divides between outlet basins (measured on all 77 draws:
@@ -543,7 +564,8 @@ def test_held_out_default_channel_area_screens_every_case(seed):
             continue
         case = load_or_build(seed, i)
         result = screen(case.dem(), theta=case.parameters["theta"], closed_edges=case.closed_edges, workers=1, seed=0)
-        assert score(case, result)["coverage"] >= TARGETS["coverage"]
+        coverage = score(case, result)["coverage"]  # None: no divide between outlet basins
+        assert coverage is not None and coverage >= TARGETS["coverage"], f"case {i}"
 
 
 def _lateral_log_loss(held_out, scaling) -> tuple[float, float, float]:

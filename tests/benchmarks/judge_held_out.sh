@@ -26,7 +26,8 @@ for s in "$@"; do
   done
   if [ -n "${N:-}" ]; then
     for c in "u:" "t:--tell-n" "A:--auto-channel-area"; do
-      jobs+=("$bench --seed $s --slope-exponent $N ${c#*:} --json $out/N$N${c%%:*}-$s.jsonl > $out/N$N${c%%:*}-$s.log 2>&1")
+      name=N$N${c%%:*}-$s
+      jobs+=("$bench --seed $s --slope-exponent $N ${c#*:} --json $out/$name.jsonl > $out/$name.log 2>&1")
     done
   fi
 done
