@@ -20,13 +20,13 @@ import numpy as np
 KINDS = ("main", "lateral")
 
 
-def segments(paths: list[str], kind: str) -> tuple[np.ndarray, np.ndarray]:
-    """Probabilities of motion and outcomes (1 moved) of one kind's held-out segments with a truth."""
+def segments(paths: list[str], kind: str, split: str = "held-out") -> tuple[np.ndarray, np.ndarray]:
+    """Probabilities of motion and outcomes (1 moved) of one kind's segments with a truth in ``split``'s cases."""
     x, y = [], []
     for path in paths:
         for line in open(path):
             r = json.loads(line)
-            if r["split"] != "held-out" or "refused" in r:
+            if r["split"] != split or "refused" in r:
                 continue
             for m in r["main"] + r.get("lateral", []):
                 if m["kind"] == kind and m.get("motion_probability") is not None and (m["in_moving"] or m["in_stable"]):
