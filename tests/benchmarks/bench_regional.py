@@ -220,8 +220,9 @@ def scaled_scores(rows: list[dict], kind: str | None, scaling: tuple[float, floa
     return probability_scores(x, y)
 
 
-def given_scores(rows: list[dict], kind: str, key: str = "instability") -> dict:
-    """:func:`probability_scores` of the instability the screening gave (or of another value under ``key``)."""
+def given_values(rows: list[dict], kind: str, key: str = "instability") -> tuple[list[float], list[float]]:
+    """The instability the screening gave (or another value under ``key``) and the truth (1 moving, 0 not moving)
+    of every judged segment of ``kind`` in a moving or a still stretch (main) or pair (lateral)."""
     x, y = [], []
     for r in rows:
         for m in r["main"] + r.get("lateral", []):
@@ -229,7 +230,12 @@ def given_scores(rows: list[dict], kind: str, key: str = "instability") -> dict:
                 continue
             x.append(m[key])
             y.append(1.0 if m["in_moving"] else 0.0)
-    return probability_scores(x, y)
+    return x, y
+
+
+def given_scores(rows: list[dict], kind: str, key: str = "instability") -> dict:
+    """:func:`probability_scores` of the instability the screening gave (or of another value under ``key``)."""
+    return probability_scores(*given_values(rows, kind, key))
 
 
 def _record_extra_runs(balances: tuple[str, ...]) -> None:

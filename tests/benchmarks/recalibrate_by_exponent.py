@@ -17,14 +17,9 @@ import re
 import sys
 
 import numpy as np
-from bench_regional import probability_scores
+from bench_regional import _logit, probability_scores
 from reliability_regional import KINDS, reliability, segments
 from scipy.optimize import minimize
-
-
-def _logit(p: np.ndarray) -> np.ndarray:
-    p = np.clip(p, 1e-4, 1 - 1e-4)
-    return np.log(p / (1 - p))
 
 
 def fit(parts: list[tuple[np.ndarray, np.ndarray]]) -> tuple[float, float]:

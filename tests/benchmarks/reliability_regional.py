@@ -6,7 +6,7 @@ Reads bench_regional.py records (each set: the held-out cases of the files GLOB 
 per kind of divide, bins each judged segment in a
 moving or a still stretch (main) or pair (lateral) by its ``motion_probability`` (ten bins of 0.1), then prints
 and draws, per bin, the segments, their mean probability and the share that moved, with a 95 % Wilson interval
-(Wilson 1927), and the calibration error (the count-weighted mean gap, as ``bench_regional.probability_scores``).
+(Wilson 1927), and the calibration error (``bench_regional.probability_scores``).
 Segments of one landscape are not independent, so the intervals are narrower than the data warrant.
 """
 from __future__ import annotations
@@ -16,22 +16,17 @@ import json
 import sys
 
 import numpy as np
+from bench_regional import given_values, probability_scores
 
 KINDS = ("main", "lateral")
 
 
 def segments(paths: list[str], kind: str, split: str = "held-out") -> tuple[np.ndarray, np.ndarray]:
-    """Probabilities of motion and outcomes (1 moved) of one kind's segments with a truth in ``split``'s cases."""
-    x, y = [], []
-    for path in paths:
-        for line in open(path):
-            r = json.loads(line)
-            if r["split"] != split or "refused" in r:
-                continue
-            for m in r["main"] + r.get("lateral", []):
-                if m["kind"] == kind and m.get("motion_probability") is not None and (m["in_moving"] or m["in_stable"]):
-                    x.append(m["motion_probability"])
-                    y.append(float(m["in_moving"]))
+    """Probabilities of motion and outcomes (1 moved) of one kind's segments with a truth in ``split``'s cases
+    (:func:`bench_regional.given_values`)."""
+    rows = [r for path in paths for line in open(path)
+            if (r := json.loads(line))["split"] == split and "refused" not in r]
+    x, y = given_values(rows, kind, "motion_probability")
     return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
 
 
@@ -73,7 +68,7 @@ def main() -> None:
         for ax, kind in zip(row, KINDS):
             x, y = segments(paths, kind)
             rows = reliability(x, y)
-            ece = sum(n * abs(p - f) for n, p, f, _, _ in rows) / x.size
+            ece = probability_scores(x, y)["ece"]
             print(f"{label}, {kind}: {x.size} segments, {int(y.sum())} moved; calibration error {ece:.3f}")
             for n, p, f, lo, hi in rows:
                 print(f"  mean P {p:.3f}: {n:>5} segments, moved {f:.3f} (95 % interval {lo:.3f}-{hi:.3f})")
