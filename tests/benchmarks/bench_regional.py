@@ -273,6 +273,8 @@ def main() -> None:
     parser.add_argument("--n", type=int, default=24)
     parser.add_argument("--seed", type=int, default=0)
     parser.add_argument("--split", choices=("training", "held-out", "all"), default="training")
+    parser.add_argument("--family", default=None,
+                        help="only the cases of this family (e.g. partial_base_level_fall; known from the index)")
     parser.add_argument("--generate-only", action="store_true")
     parser.add_argument("--hide-truth", action="store_true",
                         help="with --generate-only: also measure the lateral truth, print no truth at all (for a "
@@ -315,6 +317,7 @@ def main() -> None:
     from divides.model.benchmark import split_of
     from divides.terrain.dem_error import DemError
     from divides.model.regional_benchmark import (
+        FAMILIES,
         case_seed,
         lateral_truth,
         load_or_build,
@@ -326,6 +329,8 @@ def main() -> None:
     for i in range(args.n):
         if args.split != "all" and split_of(case_seed(args.seed, i)) != args.split:
             continue  # the split is known from the seed before the case is built
+        if args.family is not None and FAMILIES[i % len(FAMILIES)] != args.family:
+            continue
         t0 = time.perf_counter()
         case = load_or_build(args.seed, i, n=args.slope_exponent)
         built = time.perf_counter() - t0
