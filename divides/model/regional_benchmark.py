@@ -706,6 +706,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
         "moving_stretches": sum(c in ("a", "b") for c in classes),
         "stable_stretches": sum(c == "stable" for c in classes),
         "stretches": len(case.stretches), "coverage": screening.coverage.get("share"),
+        "screened_area_share": screening.coverage.get("screened_area_share"),
         "segments": len(screening.segments), "main_segments": len(main),
         "alarms": len(alarms), "max_alarm": max((s["instability"] for s in alarms), default=None),
         "alarms_main": sum(1 for m in main if raises_alarm(m)),

@@ -53,7 +53,8 @@ def _top(cases: list[dict], _) -> str:
                 off = t["azimuth_error"]
                 parts.append(f"{ORDINAL[i]} {off:.1f} degrees off the measured motion" if off < 46 else
                              f"{ORDINAL[i]} {off:.0f} degrees off the measured motion")
-        missed.append(f"{c['family']} case {c['index']}: main segments ranked " + "; ".join(parts))
+        missed.append(f"{c['family']} case {c['index']}: " + ("main segments ranked " + "; ".join(parts) if parts
+                      else "no main segment in a moving stretch"))
     return f"top target in {sum(bool(c['top_ok']) for c in judged)} of {len(judged)} cases ({'; '.join(missed)})"
 
 
