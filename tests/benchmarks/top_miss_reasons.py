@@ -9,7 +9,8 @@ stretches), ``no direction`` (the decision's reason: insufficient data, below th
 or ``off`` (pointing more than 45° from the measured motion). A missed case is a *ranking miss* when its main
 segments in moving stretches include at least as many pointing within 45° as the target asks for (a ranking that put
 them first would meet it), else a *decision miss*. Also counts, over every main segment in a moving stretch, the
-decision's reasons, so that the share of moving segments the decision gives a direction is seen beside the misses.
+decision's reasons, so that the share of moving segments the decision gives a direction is seen beside the misses,
+and how often the decision's probabilities lean the measured way where it gives none.
 """
 from __future__ import annotations
 
@@ -36,6 +37,12 @@ def why(m: dict) -> str:
     if err is None:
         return f"no direction ({m.get('reason') or 'no reason recorded'})"
     return "ok" if err <= AZIMUTH_DEG else "off"
+
+
+def leans_right(m: dict) -> bool:
+    """Whether the decision's probabilities lean toward the side the measured motion heads for (a: west, 270°)."""
+    p = m["probabilities"]
+    return (p["a"] > p["b"]) == (m["measured_azimuth"] == 270.0)
 
 
 def case_reasons(r: dict, top: int = 3) -> dict:
@@ -74,6 +81,10 @@ def main() -> None:
                 movers[why(m)] += 1
     print("main segments in moving stretches (every scored case): "
           + ", ".join(f"{k} {v}" for k, v in sorted(movers.items())))
+    leaning = [leans_right(m) for r in scored for m in r["main"]
+               if m["in_moving"] and m.get("azimuth") is None and m.get("probabilities")]
+    print(f"of those without a direction but with probabilities, the decision leans toward the measured motion "
+          f"(P(toward it) > P(toward the other side)) in {sum(leaning)} of {len(leaning)}")
 
 
 if __name__ == "__main__":
