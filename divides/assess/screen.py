@@ -317,31 +317,6 @@ def _labelled_area_share(dem: Dem, labels: np.ndarray, sea_level: float | None =
     return inside / total if total > 0 else 0.0
 
 
-#: The multiples of the channel area a default minimum basin area tries, largest first (round 73 candidate M; set
-#: before its figures, not fitted): 5 × unless its basins drain less than :data:`SCREENED_SHARE_MIN` of the land.
-MIN_AREA_MULTIPLES = (5.0, 2.0, 1.0)
-
-#: The share of the DEM's land the basins of a default minimum basin area should drain (round 73 candidate M).
-SCREENED_SHARE_MIN = 0.5
-
-
-def drained_min_area(dem: Dem, flow: FlowGraph, threshold_m2: float, level: str,
-                     sea_level: float | None = None) -> float:
-    """The largest of :data:`MIN_AREA_MULTIPLES` × the channel area whose basins drain at least
-    :data:`SCREENED_SHARE_MIN` of the DEM's land, else the smallest multiple (round 73's candidate M, measured on the
-    regional benchmark's training cases; docs/validation.md).
-
-    On a range front drained by many short catchments the basins of 5 × the channel area can drain a small share of
-    the DEM, and the divides of the rest are left unread; smaller basins bring them in.
-    """
-    for k in MIN_AREA_MULTIPLES:
-        area = k * threshold_m2
-        if _labelled_area_share(dem, basin_labels(flow, min_area_m2=area, level=level), sea_level) \
-                >= SCREENED_SHARE_MIN:
-            return area
-    return MIN_AREA_MULTIPLES[-1] * threshold_m2
-
-
 def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> int:
     """The number of basins labelled; raise before the long work when fewer than two reach ``min_area``: there is no
     divide to screen.

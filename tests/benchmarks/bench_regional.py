@@ -97,14 +97,6 @@ def screen_case(case, error=None, told: bool = True, *, resample: bool = False, 
         options.update(dem_error_m=error.sigma_m, dem_error_length_m=error.length_m)
     dem = case.dem(error)
     dem = half_cell(dem) if resample else dem
-    if overrides.pop("min_area_rule", None) == "M":  # round 73's candidate, at the fixed channel area
-        from divides.assess.screen import drained_min_area
-        from divides.config import AssessConfig
-        from divides.terrain.routing import route
-
-        config = AssessConfig.from_options(theta=options["theta"], closed_edges=case.closed_edges)
-        flow = route(dem, conditioning=config.conditioning, closed_edges=config.closed_edges)
-        overrides["min_basin_area_m2"] = drained_min_area(dem, flow, options["channel_area_m2"], "tributaries")
     rule = overrides.pop("channel_area_rule", None)
     if rule is not None:
         overrides["channel_area_m2"] = rule_channel_area(dem, rule, case.closed_edges)
@@ -307,8 +299,6 @@ def main() -> None:
                         help="screen with screening's default channel area (read from the DEM), not CHANNEL_CELLS")
     parser.add_argument("--channel-area-rule", choices=tuple(CHANNEL_AREA_RULES), default=None,
                         help="screen with round 64's candidate default channel area (CHANNEL_AREA_RULES)")
-    parser.add_argument("--min-area-rule", choices=("M",), default=None,
-                        help="screen with round 73's candidate default minimum basin area (drained_min_area)")
     parser.add_argument("--extra-balances", nargs="*", default=(), metavar="BALANCE",
                         help="also run the landscape under these balances (e.g. steady-local10) and record each "
                              "segment's shift as forward_shift_<balance>_cells (a measuring aid; the screening's "
@@ -360,8 +350,6 @@ def main() -> None:
             extra["channel_area_m2"] = None
         if args.channel_area_rule:
             extra["channel_area_rule"] = args.channel_area_rule
-        if args.min_area_rule:
-            extra["min_area_rule"] = args.min_area_rule
         if args.theta is not None:
             extra["theta"] = suggested_theta(case) if args.theta == "inspect" else float(args.theta)
         error = None if args.dem_error is None else DemError(args.dem_error, args.dem_error_cells * case.cell_size)
