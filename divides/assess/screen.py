@@ -317,6 +317,26 @@ def _labelled_area_share(dem: Dem, labels: np.ndarray, sea_level: float | None =
     return inside / total if total > 0 else 0.0
 
 
+#: Below this share of the DEM's land in the basins screened, the screening also measures the share basins of
+#: :data:`SMALLER_AREA_MULTIPLES` × the channel area would drain (``coverage["smaller_basin_shares"]``), so that its
+#: caution can name a minimum basin area that reads the land (:func:`divides.report.screening.small_basins_note`).
+#: Advice only: round 73 kept the default minimum basin area (docs/validation.md).
+SCREENED_SHARE_CAUTION = 0.5
+
+#: Multiples of the channel area whose basins' share of the land a screening that leaves most of it unread reports,
+#: those under its minimum basin area (5 × is the default minimum basin area).
+SMALLER_AREA_MULTIPLES = (5.0, 2.0, 1.0)
+
+
+def _smaller_basin_shares(dem: Dem, flow: FlowGraph, threshold: float, min_area: float, level: str,
+                          sea_level: float | None) -> list[dict]:
+    """The land share (:func:`_labelled_area_share`) the basins of each of :data:`SMALLER_AREA_MULTIPLES` ×
+    ``threshold`` smaller than ``min_area`` would drain."""
+    areas = [k * threshold for k in SMALLER_AREA_MULTIPLES if k * threshold < min_area]
+    return [{"min_basin_area_m2": a, "screened_area_share":
+             _labelled_area_share(dem, basin_labels(flow, min_area_m2=a, level=level), sea_level)} for a in areas]
+
+
 def _check_two_basins(flow: FlowGraph, labels: np.ndarray, min_area: float, level: str) -> int:
     """The number of basins labelled; raise before the long work when fewer than two reach ``min_area``: there is no
     divide to screen.
@@ -1002,6 +1022,9 @@ def screen(
                  "reason": g["gap"], "line": g["seg"].line} for g in gaps]
     share = _labelled_area_share(dem, labels, config.sea_level_m)
     coverage = _coverage(out, gap_rows, outlet_of) | {"screened_area_share": share}
+    if share < SCREENED_SHARE_CAUTION:
+        coverage["smaller_basin_shares"] = _smaller_basin_shares(dem, flow, threshold, min_area, level,
+                                                                 config.sea_level_m)
     weighted = runoff is not None or erodibility_raster is not None or uplift_raster is not None
     used = {k: v for k, v in config.to_dict().items() if k in _USED_OPTIONS}
     params = {**used, "chi_weighted": weighted,

@@ -19,7 +19,7 @@ from scipy import ndimage
 
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
 from divides.assess.screen import (CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS,
-                                   SMALL_BASINS_REASON)
+                                   SCREENED_SHARE_CAUTION, SMALL_BASINS_REASON)
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
@@ -170,19 +170,36 @@ def small_basins_note(coverage: dict, parameters: dict) -> str | None:
     mostly by short basins, or a minimum basin area too large for it, leaves most of the land unread, whatever the
     coverage of the divides between the outlet basins screened says.
 
+    Where the screening measured what smaller basins would drain (``smaller_basin_shares``), the note names them, so
+    that the user can pick a ``--min-basin-area``; smaller basins have shorter divides, more of them judged on too few
+    samples.
+
     Examples
     --------
     >>> small_basins_note({"screened_area_share": 0.04}, {"min_basin_area_m2": 1.1e6})[:80]
     'Only 4 % of the DEM drains through basins of at least the minimum basin area (1.'
+    >>> smaller = [{"min_basin_area_m2": 4.4e5, "screened_area_share": 0.44},
+    ...            {"min_basin_area_m2": 2.2e5, "screened_area_share": 0.91}]
+    >>> note = small_basins_note({"screened_area_share": 0.34, "smaller_basin_shares": smaller},
+    ...                          {"min_basin_area_m2": 1.1e6})
+    >>> note[note.index("Basins"):note.index(":", note.index("Basins"))]
+    'Basins of at least 0.44 km² drain 44 %, of at least 0.22 km² 91 %'
     >>> small_basins_note({"screened_area_share": 0.54}, {"min_basin_area_m2": 1.1e6}) is None
     True
     """
     share = coverage.get("screened_area_share", 1.0)
-    if share >= 0.5:
+    if share >= SCREENED_SHARE_CAUTION:
         return None
-    return (f"Only {100 * share:.0f} % {area_of(parameters)} drains through basins of at least the minimum basin "
+    head = (f"Only {100 * share:.0f} % {area_of(parameters)} drains through basins of at least the minimum basin "
             f"area ({parameters.get('min_basin_area_m2', float('nan')) / 1e6:.3g} km²): the divides of the rest "
-            "were not screened, and a smaller --min-basin-area screens them.")
+            "were not screened")
+    smaller = coverage.get("smaller_basin_shares") or []
+    if not smaller:
+        return head + ", and a smaller --min-basin-area screens them."
+    shares = [f"{s['min_basin_area_m2'] / 1e6:.3g} km²{' drain' if i == 0 else ''} "
+              f"{100 * s['screened_area_share']:.0f} %" for i, s in enumerate(smaller)]
+    return (f"{head}. Basins of at least {', of at least '.join(shares)}: a smaller --min-basin-area screens them, "
+            "with shorter divides, more of them judged on too few samples.")
 
 
 def area_of(parameters: dict) -> str:

@@ -86,6 +86,15 @@ def test_land_left_to_basins_below_the_minimum_area_is_named(tmp_path, capsys):
     note = "Caution: Only 31 % of the DEM drains through basins of at least the minimum basin area (1 km²)"
     assert note in captured.out and "a smaller --min-basin-area screens them" in captured.out
     assert note[9:] in (out / "report.html").read_text()
+    # it names what smaller basins would drain: 5, 2 and 1 × the channel area, each under the minimum asked for;
+    # every cell of a basin of at least some area lies in one of at least any smaller area: the shares cannot fall
+    channel = document["parameters"]["channel_area_used_m2"]
+    smaller = document["coverage"]["smaller_basin_shares"]
+    assert [s["min_basin_area_m2"] for s in smaller] == pytest.approx([k * channel for k in (5, 2, 1) if k * channel < 1e6])
+    shares = [document["coverage"]["screened_area_share"]] + [s["screened_area_share"] for s in smaller]
+    assert smaller and shares == sorted(shares)
+    for s in smaller:
+        assert f"{s['min_basin_area_m2'] / 1e6:.3g} km²" in captured.out
 
 
 def test_screen_json_is_strict(tmp_path, capsys):
