@@ -19,7 +19,7 @@ from scipy import ndimage
 
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
 from divides.assess.screen import (CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS,
-                                   SCREENED_SHARE_CAUTION, SMALL_BASINS_REASON)
+                                   SCREENED_SHARE_CAUTION)
 from divides.assess.segment_motion import run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text

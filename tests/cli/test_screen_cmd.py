@@ -90,7 +90,8 @@ def test_land_left_to_basins_below_the_minimum_area_is_named(tmp_path, capsys):
     # every cell of a basin of at least some area lies in one of at least any smaller area: the shares cannot fall
     channel = document["parameters"]["channel_area_used_m2"]
     smaller = document["coverage"]["smaller_basin_shares"]
-    assert [s["min_basin_area_m2"] for s in smaller] == pytest.approx([k * channel for k in (5, 2, 1) if k * channel < 1e6])
+    expected = [k * channel for k in (5, 2, 1) if k * channel < 1e6]
+    assert [s["min_basin_area_m2"] for s in smaller] == pytest.approx(expected)
     shares = [document["coverage"]["screened_area_share"]] + [s["screened_area_share"] for s in smaller]
     assert smaller and shares == sorted(shares)
     for s in smaller:
