@@ -45,6 +45,17 @@ def leans_right(m: dict) -> bool:
     return (p["a"] > p["b"]) == (m["measured_azimuth"] == 270.0)
 
 
+def run_way(m: dict, key: str, cells: float = 0.5) -> str:
+    """Whether a landscape run's shift of the divide (``key``, model cells into b) heads the measured way: "toward",
+    "away", "under <cells>" (the screening's :data:`~divides.assess.segment_motion.RUNS_AGREE_CELLS`) or "none"."""
+    v = m.get(key)
+    if v is None:
+        return "none"
+    if abs(v) < cells:
+        return f"under {cells:g} cell"
+    return "toward" if (v > 0) == (m["measured_azimuth"] == 90.0) else "away"
+
+
 def case_reasons(r: dict, top: int = 3) -> dict:
     """The reasons of one case's top-listed main segments and whether its miss is one of the ranking."""
     main = sorted(r["main"], key=lambda m: m["rank"])
@@ -85,6 +96,10 @@ def main() -> None:
                if m["in_moving"] and m.get("azimuth") is None and m.get("probabilities")]
     print(f"of those without a direction but with probabilities, the decision leans toward the measured motion "
           f"(P(toward it) > P(toward the other side)) in {sum(leaning)} of {len(leaning)}")
+    for key in ("forward_shift_cells", "forward_shift_basin_cells"):
+        runs = collections.Counter(run_way(m, key) for r in scored for m in r["main"]
+                                   if m["in_moving"] and m.get("azimuth") is None and m.get("probabilities"))
+        print(f"  {key} of those: " + ", ".join(f"{k} {v}" for k, v in sorted(runs.items())))
 
 
 if __name__ == "__main__":
