@@ -96,10 +96,12 @@ def main() -> None:
                if m["in_moving"] and m.get("azimuth") is None and m.get("probabilities")]
     print(f"of those without a direction but with probabilities, the decision leans toward the measured motion "
           f"(P(toward it) > P(toward the other side)) in {sum(leaning)} of {len(leaning)}")
-    for key in ("forward_shift_cells", "forward_shift_basin_cells"):
-        runs = collections.Counter(run_way(m, key) for r in scored for m in r["main"]
-                                   if m["in_moving"] and m.get("azimuth") is None and m.get("probabilities"))
-        print(f"  {key} of those: " + ", ".join(f"{k} {v}" for k, v in sorted(runs.items())))
+    for aimless in (True, False):
+        for key in ("forward_shift_cells", "forward_shift_basin_cells"):
+            runs = collections.Counter(run_way(m, key) for r in scored for m in r["main"] if m["in_moving"] and (
+                m.get("azimuth") is None and m.get("probabilities") if aimless else m.get("azimuth") is not None))
+            print(f"  {key} of the moving segments {'without a direction' if aimless else 'that point'}: "
+                  + ", ".join(f"{k} {v}" for k, v in sorted(runs.items())))
 
 
 if __name__ == "__main__":
