@@ -693,6 +693,7 @@ def score(case: RegionalCase, screening, *, top: int = 3, lateral: dict | None =
                      "n_points": s.get("n_points"), "facing_share": s.get("facing_share"),
                      "length_m": s["length_m"], "moving_share": moving, "stable_share": sh["stable"],
                      "measured_azimuth": 270.0 if toward == "a" else 90.0,
+                     "b_side": "west" if int(edge[b]) == 1 else "east",  # the map side of the screening's side b
                      "azimuth": s["motion_azimuth_deg"], "in_moving": moving >= share,
                      "in_stable": sh["stable"] >= share})
     _record_neighbours(main, lines)

@@ -39,21 +39,28 @@ def why(m: dict) -> str:
     return "ok" if err <= AZIMUTH_DEG else "off"
 
 
+def _toward_b(m: dict) -> bool:
+    """Whether the measured motion heads into the screening's side b (its basin ``b_side`` of the map: the
+    screening's sides are its basin labels, a the lower; the truth's are west and east)."""
+    return (m["measured_azimuth"] == 90.0) == (m["b_side"] == "east")
+
+
 def leans_right(m: dict) -> bool:
-    """Whether the decision's probabilities lean toward the side the measured motion heads for (a: west, 270°)."""
+    """Whether the decision's probabilities lean toward the side the measured motion heads for."""
     p = m["probabilities"]
-    return (p["a"] > p["b"]) == (m["measured_azimuth"] == 270.0)
+    return (p["b"] > p["a"]) == _toward_b(m)
 
 
 def run_way(m: dict, key: str, cells: float = 0.5) -> str:
-    """Whether a landscape run's shift of the divide (``key``, model cells into b) heads the measured way: "toward",
-    "away", "under <cells>" (the screening's :data:`~divides.assess.segment_motion.RUNS_AGREE_CELLS`) or "none"."""
+    """Whether a landscape run's shift of the divide (``key``, model cells into the screening's side b) heads the
+    measured way: "toward", "away", "under <cells>" (the screening's
+    :data:`~divides.assess.segment_motion.RUNS_AGREE_CELLS`) or "none"."""
     v = m.get(key)
     if v is None:
         return "none"
     if abs(v) < cells:
         return f"under {cells:g} cell"
-    return "toward" if (v > 0) == (m["measured_azimuth"] == 90.0) else "away"
+    return "toward" if (v > 0) == _toward_b(m) else "away"
 
 
 def case_reasons(r: dict, top: int = 3) -> dict:
