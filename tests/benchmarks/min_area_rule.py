@@ -13,23 +13,24 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 
 from bench_regional import CHANNEL_CELLS, screen_case
 
-from divides.assess.screen import _labelled_area_share
+from divides.assess.screen import SCREENED_SHARE_CAUTION, SMALLER_AREA_MULTIPLES, _smaller_basin_shares
 from divides.config import AssessConfig
 from divides.errors import DividesError
 from divides.model.benchmark import split_of
 from divides.model.regional_benchmark import FAMILIES, case_seed, lateral_truth, load_or_build, score
-from divides.terrain.basins import basin_labels
 from divides.terrain.routing import route
 
 TARGETS = ("top_ok", "order_ok", "alarm_ok", "coverage_ok")
 
 #: Candidate M: the multiples of the channel area a default minimum basin area tries, largest first (5 × is the
-#: screening's default), and the share of the DEM's land their basins should drain (set before the figures).
-MIN_AREA_MULTIPLES = (5.0, 2.0, 1.0)
-SCREENED_SHARE_MIN = 0.5
+#: screening's default), and the share of the DEM's land their basins should drain (set before the figures; the
+#: screening's caution reads the same multiples and share).
+MIN_AREA_MULTIPLES = SMALLER_AREA_MULTIPLES
+SCREENED_SHARE_MIN = SCREENED_SHARE_CAUTION
 
 
 def shares(case) -> list[float]:
@@ -38,8 +39,7 @@ def shares(case) -> list[float]:
     config = AssessConfig.from_options(theta=case.parameters["theta"], closed_edges=case.closed_edges)
     flow = route(dem, conditioning=config.conditioning, closed_edges=config.closed_edges)
     area = CHANNEL_CELLS * case.cell_size ** 2
-    return [_labelled_area_share(dem, basin_labels(flow, min_area_m2=k * area, level="tributaries"))
-            for k in MIN_AREA_MULTIPLES]
+    return [s["screened_area_share"] for s in _smaller_basin_shares(dem, flow, area, math.inf, "tributaries", None)]
 
 
 def _scored(case, **extra) -> dict:
