@@ -65,8 +65,8 @@ from divides.terrain.dem_error import DemError
 from divides.terrain.line_gaps import line_gaps
 
 __all__ = ["ERROR_STREAM", "FAMILIES", "LATERAL_MIN_CELLS", "LATERAL_MIN_LENGTH_CELLS", "READS_STEADY_SURFACE",
-           "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "build", "cache_root", "case_seed",
-           "continuation_forcing", "lateral_truth", "load_or_build", "measure_lateral", "raises_alarm",
+           "REGIONAL_VERSION", "STEADY_FAMILIES", "TARGETS", "RegionalCase", "azimuth_error", "build", "cache_root",
+           "case_seed", "continuation_forcing", "lateral_truth", "load_or_build", "measure_lateral", "raises_alarm",
            "ranking_targets", "score", "segment_stretch_shares", "stretch_class", "stretch_motion"]
 
 #: Bump whenever a range, family or step changes (cached cases of another version are not reused).
@@ -749,6 +749,19 @@ def raises_alarm(segment: dict) -> bool:
     return all(segment[k] is not None and segment[k] >= TARGETS["alarm"] for k in ("instability", "confidence"))
 
 
+def azimuth_error(m: dict) -> float | None:
+    """Degrees between a main segment's ``azimuth`` and its ``measured_azimuth`` (0–180; None without a direction).
+
+    Examples
+    --------
+    >>> azimuth_error({"azimuth": 350.0, "measured_azimuth": 90.0}), azimuth_error({"azimuth": None})
+    (100.0, None)
+    """
+    if m["azimuth"] is None:
+        return None
+    return abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0)
+
+
 def ranking_targets(main: list[dict], *, moving_truth: bool, top: int = 3) -> dict:
     """The top and order targets of one case from its main-divide segments in rank order (:func:`score`).
 
@@ -773,8 +786,7 @@ def ranking_targets(main: list[dict], *, moving_truth: bool, top: int = 3) -> di
     elif moving_truth:
         head = main[: min(top, n_moving)]
         for m in head:
-            m["azimuth_error"] = (None if m["azimuth"] is None else
-                                  abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0))
+            m["azimuth_error"] = azimuth_error(m)
         out["top"] = [{k: m[k] for k in ("rank", "instability", "confidence", "moving_share", "azimuth",
                                          "measured_azimuth", "azimuth_error")} for m in head]
         out["top_ok"] = all(m["in_moving"] and m["azimuth_error"] is not None

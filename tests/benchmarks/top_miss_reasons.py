@@ -19,21 +19,17 @@ import glob
 import json
 import sys
 
-#: The target's azimuth tolerance (issue 14; regional_benchmark.TARGETS["azimuth_deg"]).
-AZIMUTH_DEG = 45.0
+from divides.model.regional_benchmark import TARGETS, azimuth_error
 
-
-def _error(m: dict) -> float | None:
-    if m.get("azimuth") is None:
-        return None
-    return abs((m["azimuth"] - m["measured_azimuth"] + 180.0) % 360.0 - 180.0)
+#: The target's azimuth tolerance (issue 14).
+AZIMUTH_DEG = TARGETS["azimuth_deg"]
 
 
 def why(m: dict) -> str:
     """Why one top-listed main segment fails the top target ("ok" where it does not)."""
     if not m["in_moving"]:
         return "outside"
-    err = _error(m)
+    err = azimuth_error(m)
     if err is None:
         return f"no direction ({m.get('reason') or 'no reason recorded'})"
     return "ok" if err <= AZIMUTH_DEG else "off"
@@ -68,7 +64,7 @@ def case_reasons(r: dict, top: int = 3) -> dict:
     main = sorted(r["main"], key=lambda m: m["rank"])
     movers = [m for m in main if m["in_moving"]]
     head = main[: min(top, len(movers))] if movers else []
-    pointing = sum(1 for m in movers if (e := _error(m)) is not None and e <= AZIMUTH_DEG)
+    pointing = sum(1 for m in movers if (e := azimuth_error(m)) is not None and e <= AZIMUTH_DEG)
     return {"reasons": [why(m) for m in head], "ranks": [m["rank"] for m in head],
             "probabilities": [m.get("motion_probability") for m in head],
             "ranking_miss": bool(movers) and pointing >= min(top, len(movers))}
