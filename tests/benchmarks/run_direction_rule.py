@@ -1,0 +1,108 @@
+"""Round 74's candidate F (docs/validation.md, *Regional screening*; run by hand, not a test).
+
+    python tests/benchmarks/run_direction_rule.py [the options of bench_regional.py]
+    python tests/benchmarks/run_direction_rule.py --tally DIR   # D-<condition>-<seed>.jsonl: bench_regional.py's
+                                                                # records; F-<condition>-<seed>.jsonl: this script's
+
+Screens as ``bench_regional.py`` does, with one change on the screening's path: where the near-divide decision gives
+a segment no direction because it falls below the confidence threshold, the segment is judged again by the
+calibrated decision that reads a forward run (``decide(..., forward_in_decision=True)``, the same threshold), its
+forward shift the one-uplift-rate landscape run's (``forward_shift_cells``: model cells, positive into b, the unit
+that decision was fitted on). The segment takes that decision's direction, basis, reason and confidence only where it
+names a side; its probabilities, and so its score, instability, probability of motion and tier, stay the near-divide
+decision's. Records gain ``run_direction`` (1 on the segments so given a direction).
+
+``--tally`` prints round 74's counts per condition, default (D) against F: the deciding cases (training cases but the
+partial base-level falls of master seeds up to :data:`READ_PBLF_LAST`, which round 72 read) and, beside them, those
+partial base-level falls; then each case where F changes a target, and how many segments F gave a direction.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from pathlib import Path
+
+import bench_regional
+from bench_regional_steadiness import contrasts_of
+
+import divides.assess.screen as screening
+import divides.model.regional_benchmark as benchmark
+from divides.assess.verdict import DEFAULT_THRESHOLD, decide
+from targets_met import targets_met
+
+#: The near-divide decision's reason when no outcome reaches the threshold (divides.assess.verdict.decide).
+BELOW_THRESHOLD = "below the confidence threshold"
+
+#: Round 72 read the partial base-level falls among the training cases of master seeds 117 to this one.
+READ_PBLF_LAST = 140
+
+
+def run_direction(row: dict, min_confidence: float = DEFAULT_THRESHOLD) -> dict:
+    """The keys of a screened ``row`` that candidate F changes (empty where it changes none)."""
+    shift = row.get("forward_shift_cells")
+    if row.get("reason") != BELOW_THRESHOLD or shift is None or not math.isfinite(shift):
+        return {}
+    v = decide(contrasts_of(row["contrasts"]), min_confidence=min_confidence, forward_shift=float(shift),
+               forward_in_decision=True)
+    if v.moves_toward not in ("a", "b"):
+        return {}
+    return {"verdict": v.moves_toward, "moves_toward": v.moves_toward, "basis": v.basis, "reason": v.reason,
+            "confidence": v.confidence, "run_direction": True}
+
+
+def _patch() -> None:
+    """Make every screening of this process apply candidate F just before it ranks its segments."""
+    ranked = screening.rank_segments
+
+    def with_run_direction(rows, lengths, near, *, dem_error_m):
+        if near is not None:  # only with the landscape evidence: the runs measured the shift
+            for r in rows:
+                r.update(run_direction(r))
+        return ranked(rows, lengths, near, dem_error_m=dem_error_m)
+
+    screening.rank_segments = with_run_direction
+    screening.EVIDENCE_KEYS = (*screening.EVIDENCE_KEYS, "run_direction")
+    benchmark.EVIDENCE_KEYS = (*benchmark.EVIDENCE_KEYS, "run_direction")
+
+
+def _records(out: Path, variant: str, condition: str) -> list[dict]:
+    rows = [json.loads(line) for p in sorted(out.glob(f"{variant}-{condition}-*.jsonl")) for line in open(p)]
+    return [r for r in rows if r["split"] == "training"]
+
+
+def _read_pblf(r: dict) -> bool:
+    return r["family"] == "partial_base_level_fall" and r["master_seed"] <= READ_PBLF_LAST
+
+
+def _outcomes(r: dict) -> tuple:
+    return tuple(r.get(k) if "refused" not in r else None for k in ("top_ok", "order_ok", "alarm_ok"))
+
+
+def tally(out: Path) -> None:
+    """Print round 74's counts from the records in ``out`` (see the module's docstring)."""
+    conditions = sorted({p.stem.split("-")[1] for p in out.glob("D-*.jsonl")})
+    for condition in conditions:
+        by_variant = {v: _records(out, v, condition) for v in ("D", "F")}
+        for part, keep in (("deciding", lambda r: not _read_pblf(r)), ("round 72's", _read_pblf)):
+            for v, rows in by_variant.items():
+                t, _ = targets_met([r for r in rows if keep(r)])
+                given = sum(bool(m.get("run_direction")) for r in rows if keep(r) for m in r.get("main", []))
+                print(f"{condition} {part} {v}: {t['cases']} cases ({t['refused']} refused); top {t['top']}/"
+                      f"{t['top_n']}, order {t['order']}/{t['order_n']}, no alarm {t['no_alarm']}/"
+                      f"{t['no_alarm_n']}; main segments given a direction by F {given}")
+        default = {(r["master_seed"], r["index"]): r for r in by_variant["D"]}
+        for r in by_variant["F"]:
+            d = default.get((r["master_seed"], r["index"]))
+            if d is not None and _outcomes(d) != _outcomes(r):
+                print(f"  {condition} {r['family']} {r['master_seed']}/{r['index']}: top, order, no alarm "
+                      f"{_outcomes(d)} -> {_outcomes(r)}")
+
+
+if __name__ == "__main__":
+    if sys.argv[1:2] == ["--tally"]:
+        tally(Path(sys.argv[2]))
+    else:
+        _patch()
+        bench_regional.main()
