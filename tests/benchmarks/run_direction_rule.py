@@ -1,8 +1,9 @@
 """Round 74's candidate F (docs/validation.md, *Regional screening*; run by hand, not a test).
 
-    python tests/benchmarks/run_direction_rule.py [the options of bench_regional.py]
+    python tests/benchmarks/run_direction_rule.py [--runs-agree] [the options of bench_regional.py]
     python tests/benchmarks/run_direction_rule.py --tally DIR   # D-<condition>-<seed>.jsonl: bench_regional.py's
-                                                                # records; F-<condition>-<seed>.jsonl: this script's
+                                                                # records; F- or G-<condition>-<seed>.jsonl: this
+                                                                # script's (G: with --runs-agree)
 
 Screens as ``bench_regional.py`` does, with one change on the screening's path: where the near-divide decision gives
 a segment no direction because it falls below the confidence threshold, the segment is judged again by the
@@ -12,9 +13,14 @@ that decision was fitted on). The segment takes that decision's direction, basis
 names a side; its probabilities, and so its score, instability, probability of motion and tier, stay the near-divide
 decision's. Records gain ``run_direction`` (1 on the segments so given a direction).
 
-``--tally`` prints round 74's counts per condition, default (D) against F: the deciding cases (training cases but the
-partial base-level falls of master seeds up to :data:`READ_PBLF_LAST`, which round 72 read) and, beside them, those
-partial base-level falls; then each case where F changes a target, and how many segments F gave a direction.
+Round 75's candidate G (``--runs-agree``) is F only where the screening is told less than
+``PROMOTE_TOLD_ERROR_M`` of DEM error and the per-outlet-basin run does not move the divide the other way from the
+side F names (``forward_shift_basin_cells`` finite, and 0 or more toward that side).
+
+``--tally`` prints round 74's and 75's counts per condition, default (D) against each candidate: the deciding cases
+(training cases but the partial base-level falls of master seeds up to :data:`READ_PBLF_LAST`, which round 72 read)
+and, beside them, those partial base-level falls; how many main segments the candidate gave a direction and how many
+of steady landscapes have one; then each case where the candidate changes a target.
 """
 
 from __future__ import annotations
@@ -39,8 +45,9 @@ BELOW_THRESHOLD = "below the confidence threshold"
 READ_PBLF_LAST = 140
 
 
-def run_direction(row: dict, min_confidence: float = DEFAULT_THRESHOLD) -> dict:
-    """The keys of a screened ``row`` that candidate F changes (empty where it changes none)."""
+def run_direction(row: dict, min_confidence: float = DEFAULT_THRESHOLD, *, runs_agree: bool = False) -> dict:
+    """The keys of a screened ``row`` that candidate F (G with ``runs_agree``, told error aside) changes (empty where
+    it changes none)."""
     shift = row.get("forward_shift_cells")
     if row.get("reason") != BELOW_THRESHOLD or shift is None or not math.isfinite(shift):
         return {}
@@ -48,18 +55,24 @@ def run_direction(row: dict, min_confidence: float = DEFAULT_THRESHOLD) -> dict:
                forward_in_decision=True)
     if v.moves_toward not in ("a", "b"):
         return {}
+    if runs_agree:
+        basin = row.get("forward_shift_basin_cells")
+        if basin is None or not math.isfinite(basin) or (basin if v.moves_toward == "b" else -basin) < 0.0:
+            return {}
     return {"verdict": v.moves_toward, "moves_toward": v.moves_toward, "basis": v.basis, "reason": v.reason,
             "confidence": v.confidence, "run_direction": True}
 
 
-def _patch() -> None:
-    """Make every screening of this process apply candidate F just before it ranks its segments."""
+def _patch(runs_agree: bool) -> None:
+    """Make every screening of this process apply candidate F (G with ``runs_agree``) just before it ranks its
+    segments."""
     ranked = screening.rank_segments
 
     def with_run_direction(rows, lengths, near, *, dem_error_m):
-        if near is not None:  # only with the landscape evidence: the runs measured the shift
+        told_much = runs_agree and dem_error_m >= screening.PROMOTE_TOLD_ERROR_M
+        if near is not None and not told_much:  # only with the landscape evidence: the runs measured the shift
             for r in rows:
-                r.update(run_direction(r))
+                r.update(run_direction(r, runs_agree=runs_agree))
         return ranked(rows, lengths, near, dem_error_m=dem_error_m)
 
     screening.rank_segments = with_run_direction
@@ -83,26 +96,35 @@ def _outcomes(r: dict) -> tuple:
 def tally(out: Path) -> None:
     """Print round 74's counts from the records in ``out`` (see the module's docstring)."""
     conditions = sorted({p.stem.split("-")[1] for p in out.glob("D-*.jsonl")})
+    candidates = sorted({p.stem.split("-")[0] for p in out.glob("*.jsonl")} - {"D"})
     for condition in conditions:
-        by_variant = {v: _records(out, v, condition) for v in ("D", "F")}
+        by_variant = {v: _records(out, v, condition) for v in ("D", *candidates)}
         for part, keep in (("deciding", lambda r: not _read_pblf(r)), ("round 72's", _read_pblf)):
             for v, rows in by_variant.items():
-                t, _ = targets_met([r for r in rows if keep(r)])
-                given = sum(bool(m.get("run_direction")) for r in rows if keep(r) for m in r.get("main", []))
+                kept = [r for r in rows if keep(r)]
+                t, _ = targets_met(kept)
+                given = sum(bool(m.get("run_direction")) for r in kept for m in r.get("main", []))
+                steady = [m for r in kept if r["family"].startswith("steady_") for m in r.get("main", [])]
+                pointing = sum(m["verdict"] in ("a", "b") for m in steady)
                 print(f"{condition} {part} {v}: {t['cases']} cases ({t['refused']} refused); top {t['top']}/"
                       f"{t['top_n']}, order {t['order']}/{t['order_n']}, no alarm {t['no_alarm']}/"
-                      f"{t['no_alarm_n']}; main segments given a direction by F {given}")
+                      f"{t['no_alarm_n']}; main segments given a direction by the candidate {given}; main segments "
+                      f"of steady landscapes with a direction {pointing}/{len(steady)}")
         default = {(r["master_seed"], r["index"]): r for r in by_variant["D"]}
-        for r in by_variant["F"]:
-            d = default.get((r["master_seed"], r["index"]))
-            if d is not None and _outcomes(d) != _outcomes(r):
-                print(f"  {condition} {r['family']} {r['master_seed']}/{r['index']}: top, order, no alarm "
-                      f"{_outcomes(d)} -> {_outcomes(r)}")
+        for v in candidates:
+            for r in by_variant[v]:
+                d = default.get((r["master_seed"], r["index"]))
+                if d is not None and _outcomes(d) != _outcomes(r):
+                    print(f"  {condition} {v} {r['family']} {r['master_seed']}/{r['index']}: top, order, no alarm "
+                          f"{_outcomes(d)} -> {_outcomes(r)}")
 
 
 if __name__ == "__main__":
     if sys.argv[1:2] == ["--tally"]:
         tally(Path(sys.argv[2]))
     else:
-        _patch()
+        agree = "--runs-agree" in sys.argv
+        if agree:
+            sys.argv.remove("--runs-agree")
+        _patch(agree)
         bench_regional.main()
