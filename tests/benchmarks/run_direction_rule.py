@@ -1,4 +1,4 @@
-"""Round 74's candidate F (docs/validation.md, *Regional screening*; run by hand, not a test).
+"""Rounds 74's and 75's candidates F and G (docs/validation.md, *Regional screening*; run by hand, not a test).
 
     python tests/benchmarks/run_direction_rule.py [--runs-agree] [the options of bench_regional.py]
     python tests/benchmarks/run_direction_rule.py --tally DIR   # D-<condition>-<seed>.jsonl: bench_regional.py's
@@ -94,7 +94,7 @@ def _outcomes(r: dict) -> tuple:
 
 
 def tally(out: Path) -> None:
-    """Print round 74's counts from the records in ``out`` (see the module's docstring)."""
+    """Print round 74's or 75's counts from the records in ``out`` (see the module's docstring)."""
     conditions = sorted({p.stem.split("-")[1] for p in out.glob("D-*.jsonl")})
     candidates = sorted({p.stem.split("-")[0] for p in out.glob("*.jsonl")} - {"D"})
     for condition in conditions:
