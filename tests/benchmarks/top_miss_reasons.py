@@ -19,6 +19,7 @@ import glob
 import json
 import sys
 
+from divides.assess.segment_motion import RUNS_AGREE_CELLS
 from divides.model.regional_benchmark import TARGETS, azimuth_error
 
 #: The target's azimuth tolerance (issue 14).
@@ -47,7 +48,7 @@ def leans_right(m: dict) -> bool:
     return (p["b"] > p["a"]) == _toward_b(m)
 
 
-def run_way(m: dict, key: str, cells: float = 0.5) -> str:
+def run_way(m: dict, key: str, cells: float = RUNS_AGREE_CELLS) -> str:
     """Whether a landscape run's shift of the divide (``key``, model cells into the screening's side b) heads the
     measured way: "toward", "away", "under <cells>" (the screening's
     :data:`~divides.assess.segment_motion.RUNS_AGREE_CELLS`) or "none"."""
