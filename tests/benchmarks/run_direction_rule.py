@@ -1,9 +1,9 @@
-"""Rounds 74's and 75's candidates F and G (docs/validation.md, *Regional screening*; run by hand, not a test).
+"""Rounds 74's to 76's candidates F, G and J (docs/validation.md, *Regional screening*; run by hand, not a test).
 
-    python tests/benchmarks/run_direction_rule.py [--runs-agree] [the options of bench_regional.py]
+    python tests/benchmarks/run_direction_rule.py [--runs-agree | --after-ranking] [the options of bench_regional.py]
     python tests/benchmarks/run_direction_rule.py --tally DIR   # D-<condition>-<seed>.jsonl: bench_regional.py's
-                                                                # records; F- or G-<condition>-<seed>.jsonl: this
-                                                                # script's (G: with --runs-agree)
+                                                                # records; F-, G- or J-<condition>-<seed>.jsonl:
+                                                                # this script's (G: --runs-agree; J: --after-ranking)
 
 Screens as ``bench_regional.py`` does, with one change on the screening's path: where the near-divide decision gives
 a segment no direction because it falls below the confidence threshold, the segment is judged again by the
@@ -17,7 +17,11 @@ Round 75's candidate G (``--runs-agree``) is F only where the screening is told 
 ``PROMOTE_TOLD_ERROR_M`` of DEM error and the per-outlet-basin run does not move the divide the other way from the
 side F names (``forward_shift_basin_cells`` finite, and 0 or more toward that side).
 
-``--tally`` prints round 74's and 75's counts per condition, default (D) against each candidate: the deciding cases
+Round 76's candidate J (``--after-ranking``) is G applied once the segments are ranked: the ranking is the
+default's, segment for segment, and only the directions (with their basis, reason and confidence, and so the motion
+azimuths) of the segments G names a side change.
+
+``--tally`` prints each round's counts per condition, default (D) against each candidate: the deciding cases
 (training cases but the partial base-level falls of master seeds up to :data:`READ_PBLF_LAST`, which round 72 read)
 and, beside them, those partial base-level falls; how many main segments the candidate gave a direction and how many
 of steady landscapes have one; then each case where the candidate changes a target.
@@ -63,17 +67,23 @@ def run_direction(row: dict, min_confidence: float = DEFAULT_THRESHOLD, *, runs_
             "confidence": v.confidence, "run_direction": True}
 
 
-def _patch(runs_agree: bool) -> None:
+def _patch(runs_agree: bool, after_ranking: bool = False) -> None:
     """Make every screening of this process apply candidate F (G with ``runs_agree``) just before it ranks its
-    segments."""
+    segments, or G just after (J, ``after_ranking``)."""
     ranked = screening.rank_segments
+    runs_agree = runs_agree or after_ranking
 
     def with_run_direction(rows, lengths, near, *, dem_error_m):
         told_much = runs_agree and dem_error_m >= screening.PROMOTE_TOLD_ERROR_M
-        if near is not None and not told_much:  # only with the landscape evidence: the runs measured the shift
+        applies = near is not None and not told_much  # only with the landscape evidence: the runs measured the shift
+        if applies and not after_ranking:
             for r in rows:
                 r.update(run_direction(r, runs_agree=runs_agree))
-        return ranked(rows, lengths, near, dem_error_m=dem_error_m)
+        rows = ranked(rows, lengths, near, dem_error_m=dem_error_m)
+        if applies and after_ranking:
+            for r in rows:
+                r.update(run_direction(r, runs_agree=True))
+        return rows
 
     screening.rank_segments = with_run_direction
     screening.EVIDENCE_KEYS = (*screening.EVIDENCE_KEYS, "run_direction")
@@ -94,22 +104,29 @@ def _outcomes(r: dict) -> tuple:
 
 
 def tally(out: Path) -> None:
-    """Print round 74's or 75's counts from the records in ``out`` (see the module's docstring)."""
+    """Print round 74's, 75's or 76's counts from the records in ``out`` (see the module's docstring)."""
     conditions = sorted({p.stem.split("-")[1] for p in out.glob("D-*.jsonl")})
     candidates = sorted({p.stem.split("-")[0] for p in out.glob("*.jsonl")} - {"D"})
     for condition in conditions:
         by_variant = {v: _records(out, v, condition) for v in ("D", *candidates)}
         for part, keep in (("deciding", lambda r: not _read_pblf(r)), ("round 72's", _read_pblf)):
+            if not any(keep(r) for r in by_variant["D"]):
+                continue
             for v, rows in by_variant.items():
                 kept = [r for r in rows if keep(r)]
                 t, _ = targets_met(kept)
-                given = sum(bool(m.get("run_direction")) for r in kept for m in r.get("main", []))
+                given = [(r, m) for r in kept for m in r.get("main", []) if m.get("run_direction")]
+                moving = [m for _, m in given if m["in_moving"]]
+                right = sum((benchmark.azimuth_error(m) or 180.0) <= benchmark.TARGETS["azimuth_deg"] for m in moving)
+                still = sum(m["in_stable"] and not r["family"].startswith("steady_") for r, m in given)
                 steady = [m for r in kept if r["family"].startswith("steady_") for m in r.get("main", [])]
                 pointing = sum(m["verdict"] in ("a", "b") for m in steady)
                 print(f"{condition} {part} {v}: {t['cases']} cases ({t['refused']} refused); top {t['top']}/"
                       f"{t['top_n']}, order {t['order']}/{t['order_n']}, no alarm {t['no_alarm']}/"
-                      f"{t['no_alarm_n']}; main segments given a direction by the candidate {given}; main segments "
-                      f"of steady landscapes with a direction {pointing}/{len(steady)}")
+                      f"{t['no_alarm_n']}; main segments given a direction by the candidate {len(given)} (in moving "
+                      f"stretches {len(moving)}, within 45 degrees {right}; in still stretches of transient "
+                      f"landscapes {still}); main segments of steady landscapes with a direction "
+                      f"{pointing}/{len(steady)}")
         default = {(r["master_seed"], r["index"]): r for r in by_variant["D"]}
         for v in candidates:
             for r in by_variant[v]:
@@ -123,8 +140,7 @@ if __name__ == "__main__":
     if sys.argv[1:2] == ["--tally"]:
         tally(Path(sys.argv[2]))
     else:
-        agree = "--runs-agree" in sys.argv
-        if agree:
-            sys.argv.remove("--runs-agree")
-        _patch(agree)
+        flags = {f: f in sys.argv for f in ("--runs-agree", "--after-ranking")}
+        sys.argv = [a for a in sys.argv if a not in flags]
+        _patch(flags["--runs-agree"], flags["--after-ranking"])
         bench_regional.main()
