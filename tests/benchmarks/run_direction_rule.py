@@ -19,7 +19,8 @@ side F names (``forward_shift_basin_cells`` finite, and 0 or more toward that si
 
 Round 76's candidate J (``--after-ranking``) is G applied once the segments are ranked: the ranking is the
 default's, segment for segment, and only the directions (with their basis, reason and confidence, and so the motion
-azimuths) of the segments G names a side change.
+azimuths) of the segments G names a side change. Since round 78 J changes main divides only (round 76 changed
+lateral ones too).
 
 ``--tally`` prints each round's counts per condition, default (D) against each candidate: the deciding cases
 (training cases but the partial base-level falls of master seeds up to :data:`READ_PBLF_LAST`, which round 72 read)
@@ -80,9 +81,10 @@ def _patch(runs_agree: bool, after_ranking: bool = False) -> None:
             for r in rows:
                 r.update(run_direction(r, runs_agree=runs_agree))
         rows = ranked(rows, lengths, near, dem_error_m=dem_error_m)
-        if applies and after_ranking:
+        if applies and after_ranking:  # round 78: main divides only
             for r in rows:
-                r.update(run_direction(r, runs_agree=True))
+                if r["divide_kind"] == "main":
+                    r.update(run_direction(r, runs_agree=True))
         return rows
 
     screening.rank_segments = with_run_direction
@@ -121,12 +123,14 @@ def tally(out: Path) -> None:
                 still = sum(m["in_stable"] and not r["family"].startswith("steady_") for r, m in given)
                 steady = [m for r in kept if r["family"].startswith("steady_") for m in r.get("main", [])]
                 pointing = sum(m["verdict"] in ("a", "b") for m in steady)
+                lateral = [m for r in kept if r["family"].startswith("steady_") for m in r.get("lateral", [])]
+                lateral_pointing = sum(m["verdict"] in ("a", "b") for m in lateral)
                 print(f"{condition} {part} {v}: {t['cases']} cases ({t['refused']} refused); top {t['top']}/"
                       f"{t['top_n']}, order {t['order']}/{t['order_n']}, no alarm {t['no_alarm']}/"
                       f"{t['no_alarm_n']}; main segments given a direction by the candidate {len(given)} (in moving "
                       f"stretches {len(moving)}, within 45 degrees {right}; in still stretches of transient "
                       f"landscapes {still}); main segments of steady landscapes with a direction "
-                      f"{pointing}/{len(steady)}")
+                      f"{pointing}/{len(steady)}; lateral ones {lateral_pointing}/{len(lateral)}")
         default = {(r["master_seed"], r["index"]): r for r in by_variant["D"]}
         for v in candidates:
             for r in by_variant[v]:
