@@ -1,4 +1,4 @@
-"""Rounds 74's to 76's candidates F, G and J (docs/validation.md, *Regional screening*; run by hand, not a test).
+"""Rounds 74's to 78's candidates F, G and J (docs/validation.md, *Regional screening*; run by hand, not a test).
 
     python tests/benchmarks/run_direction_rule.py [--runs-agree | --after-ranking] [the options of bench_regional.py]
     python tests/benchmarks/run_direction_rule.py --tally DIR   # D-<condition>-<seed>.jsonl: bench_regional.py's
@@ -106,7 +106,7 @@ def _outcomes(r: dict) -> tuple:
 
 
 def tally(out: Path) -> None:
-    """Print round 74's, 75's or 76's counts from the records in ``out`` (see the module's docstring)."""
+    """Print the counts of rounds 74 to 78 from the records in ``out`` (see the module's docstring)."""
     conditions = sorted({p.stem.split("-")[1] for p in out.glob("D-*.jsonl")})
     candidates = sorted({p.stem.split("-")[0] for p in out.glob("*.jsonl")} - {"D"})
     for condition in conditions:
