@@ -433,6 +433,10 @@ TOP_MISSES: dict[int, str] = {
          "no direction; second in a moving stretch, no direction; third in a moving stretch, no direction)",
     133: "top target in 4 of 5 cases (partial_base_level_fall case 0: main segments ranked first outside moving "
          "stretches, no direction; second outside moving stretches, no direction)",
+    138: "top target in 7 of 8 cases (partial_base_level_fall case 8: main segments ranked second 18 % in moving "
+         "stretches)",
+    140: "top target in 9 of 10 cases (partial_base_level_fall case 16: main segments ranked first 63 % in moving "
+         "stretches)",
 }
 
 ORDER_MISSES: dict[int, str] = {
@@ -494,6 +498,9 @@ ORDER_MISSES: dict[int, str] = {
     133: "order in 2 of 3 cases (partial_base_level_fall case 0: 10 pairs)",
     135: "order in 3 of 4 cases (erodibility_patch case 9: 1 pair)",
     136: "order in 4 of 5 cases (partial_base_level_fall case 0: 1 pair)",
+    137: "order in 2 of 3 cases (erodibility_patch case 1: 4 pairs)",
+    139: "order in 2 of 3 cases (partial_base_level_fall case 16: 7 pairs)",
+    140: "order in 6 of 7 cases (partial_base_level_fall case 0: 8 pairs)",
 }
 
 ALARM_MISSES: dict[int, str] = {
