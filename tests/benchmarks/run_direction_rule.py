@@ -84,7 +84,7 @@ def _patch(runs_agree: bool, after_ranking: bool = False) -> None:
         if applies and after_ranking:  # round 78: main divides only
             for r in rows:
                 if r["divide_kind"] == "main":
-                    r.update(run_direction(r, runs_agree=True))
+                    r.update(run_direction(r, runs_agree=runs_agree))
         return rows
 
     screening.rank_segments = with_run_direction
@@ -119,7 +119,8 @@ def tally(out: Path) -> None:
                 t, _ = targets_met(kept)
                 given = [(r, m) for r in kept for m in r.get("main", []) if m.get("run_direction")]
                 moving = [m for _, m in given if m["in_moving"]]
-                right = sum((benchmark.azimuth_error(m) or 180.0) <= benchmark.TARGETS["azimuth_deg"] for m in moving)
+                errors = [benchmark.azimuth_error(m) for m in moving]  # None: no direction; 0.0 is a right one
+                right = sum(e is not None and e <= benchmark.TARGETS["azimuth_deg"] for e in errors)
                 still = sum(m["in_stable"] and not r["family"].startswith("steady_") for r, m in given)
                 steady = [m for r in kept if r["family"].startswith("steady_") for m in r.get("main", [])]
                 pointing = sum(m["verdict"] in ("a", "b") for m in steady)
