@@ -20,7 +20,7 @@ from scipy import ndimage
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
 from divides.assess.screen import (CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS,
                                    SCREENED_SHARE_CAUTION)
-from divides.assess.segment_motion import run_size
+from divides.assess.segment_motion import LIKELY_MOTION, run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
@@ -358,10 +358,6 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
         return f"B{label}"
     return f"B{label} ({edge} edge)" if long else f"B{label} {edge}"
 
-
-#: P(moving) from which a segment's arrow is drawn as motion; below it, as the direction the near-divide measures
-#: favour, with its own legend entry (a probability under one half says the segment more likely does not move).
-LIKELY_MOTION = 0.5
 
 
 def likely_motion(segment: dict) -> bool:
