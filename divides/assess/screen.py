@@ -20,6 +20,7 @@ from divides.assess.missing_data import raster_holes_cells
 from divides.assess.segment_motion import (
     INSTABILITY_EVIDENCE,
     INSTABILITY_SCALING,
+    LIKELY_MOTION,
     MAIN_ONE_U_CELLS,
     RUNS_AGREE_CELLS,
     TRANSIENT_BASIN,
@@ -49,6 +50,7 @@ from divides.terrain.routing import FlowGraph, route
 from divides.terrain.voids import VoidFill, fill_voids
 
 __all__ = ["Screening", "screen", "SEGMENT_PROPERTIES", "LATERAL_REASON", "SMALL_BASINS_REASON", "motion_azimuth",
+           "UNLIKELY_LATERAL_REASON", "withhold_unlikely_lateral",
            "instability_of", "evidence_features", "rank_key", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE",
            "MIN_JUDGED_CELLS", "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "RUN_ORDER_BELOW", "EVIDENCE_KEYS",
            "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "NEIGHBOUR_CELLS", "NEIGHBOUR_SCORE", "CHAIN_CELLS",
@@ -153,6 +155,10 @@ EVIDENCE_KEYS = ("forward_shift_cells", "forward_shift_basin_cells", "hilltop_co
 #: Why divides between tributaries of the same trunk are not judged.
 LATERAL_REASON = ("lateral divide between tributaries of the same trunk: not assessed (the decision model "
                   "is calibrated on divides between basins that drain apart)")
+
+#: Why a lateral segment whose decision names a side is given no direction (:func:`withhold_unlikely_lateral`).
+UNLIKELY_LATERAL_REASON = (f"lateral divide unlikely to move (probability of motion under {LIKELY_MOTION:g}): no "
+                           "direction given")
 
 #: The reason of a gap beside land in basins below the minimum area (basin 0 in the gaps layer).
 SMALL_BASINS_REASON = ("beside basins smaller than the minimum basin area: not screened (a smaller minimum "
@@ -641,7 +647,8 @@ def rank_segments(rows: list[dict], lengths: Sequence[float], near: Sequence[Seq
         landscape evidence the fields of :data:`EVIDENCE_KEYS` but ``neighbour_instability``. Each gets
         ``instability`` (the ranking score, :func:`instability_of`), with the evidence ``neighbour_instability`` (main
         segments: :func:`neighbour_scores`; None on other kinds, whose own truth was not read for this term), and
-        ``motion_probability``.
+        ``motion_probability``; a lateral segment unlikely to move loses its direction
+        (:func:`withhold_unlikely_lateral`).
     lengths : sequence of float
         Each segment's length (m): longer first among equals.
     near : sequence of sequences of int, or None
@@ -664,6 +671,7 @@ def rank_segments(rows: list[dict], lengths: Sequence[float], near: Sequence[Seq
     for r in rows:  # calibrated on the benchmark's training cases (round 42); the instability ranks
         r["motion_probability"] = motion_probability(r["probabilities"], r["divide_kind"], r if evidence else None,
                                                      beside=beside_scored(r), dem_error_m=dem_error_m)
+        withhold_unlikely_lateral(r)  # before the ranking, which puts the segments given a direction first
     # ranked by the score (below RUN_ORDER_BELOW by neighbours, then the runs' shifts); abstentions last
     promote = dem_error_m >= PROMOTE_TOLD_ERROR_M
     order = sorted(range(len(rows)), key=lambda i: (
@@ -673,6 +681,38 @@ def rank_segments(rows: list[dict], lengths: Sequence[float], near: Sequence[Seq
         rows = [rows[i] for i in interleave_kinds([r["divide_kind"] for r in rows],
                                                   [r["motion_probability"] for r in rows])]
     return rows
+
+
+def withhold_unlikely_lateral(row: dict) -> None:
+    """Read a lateral segment as undetermined where its decision names a side but its probability of motion is under
+    :data:`LIKELY_MOTION` (round 79, docs/validation.md, *Regional screening*).
+
+    Between two valleys that drain the same way the near-divide decision, fitted on divides between basins that
+    drain apart, named a side on about one lateral segment in ten of steady model landscapes; most of those were
+    measured still and had a probability of motion, calibrated on lateral divides, under one half. The segment keeps
+    its probabilities, confidence (the largest of the decision's probabilities, as where the decision abstains),
+    score and probability of motion; only its verdict, basis and reason change.
+
+    Parameters
+    ----------
+    row : dict
+        A judged segment's row with ``divide_kind``, ``verdict``, ``moves_toward``, ``basis``, ``reason`` and
+        ``motion_probability``; changed in place.
+
+    Examples
+    --------
+    >>> row = {"divide_kind": "lateral", "verdict": "b", "moves_toward": "b", "basis": "near-divide",
+    ...        "reason": "near-divide evidence", "motion_probability": 0.2}
+    >>> withhold_unlikely_lateral(row); row["verdict"], row["moves_toward"], row["basis"]
+    ('undetermined', 'undetermined', 'undetermined')
+    >>> main = {**row, "divide_kind": "main", "verdict": "b", "moves_toward": "b"}
+    >>> withhold_unlikely_lateral(main); main["verdict"]  # main divides keep the decision's outcome
+    'b'
+    """
+    p = row.get("motion_probability")
+    if row["divide_kind"] == "lateral" and row["verdict"] in ("a", "b") and p is not None and p < LIKELY_MOTION:
+        row.update(verdict="undetermined", moves_toward="undetermined", basis="undetermined",
+                   reason=UNLIKELY_LATERAL_REASON)
 
 
 def neighbour_scores(near: Sequence[Sequence[int]], scores: Sequence[float | None], moved: Sequence[float | None],

@@ -15,7 +15,11 @@ __all__ = ["instability_of", "bounded_instability", "evidence_features",
            "motion_features", "motion_probability", "run_shifts",
            "run_size", "finite_or_none", "INSTABILITY_SCALING", "INSTABILITY_EVIDENCE", "MOTION_PROBABILITY",
            "RUNS_AGREE_CELLS", "MAIN_ONE_U_CELLS", "TRANSIENT_BASIN", "TRANSIENT_SPREADS", "RUN_SIZE_CAP",
-           "TOLD_ERROR_CAP_M", "LATERAL_HILLS_AGAINST_MAX"]
+           "TOLD_ERROR_CAP_M", "LATERAL_HILLS_AGAINST_MAX", "LIKELY_MOTION"]
+
+#: A probability of motion from which a segment is read as likely to move (under one half it more likely does not):
+#: the report draws its direction as motion, and a lateral divide keeps its direction only from here (round 79).
+LIKELY_MOTION = 0.5
 
 #: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth
 #: of the regional benchmark, one per kind of divide (:mod:`divides.assess.divide_kind`):

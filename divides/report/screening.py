@@ -20,7 +20,7 @@ from scipy import ndimage
 from divides.assess.missing_data import interior_nodata_note, raster_holes_note
 from divides.assess.screen import (CHAIN_CELLS, EVIDENCE_KEYS, NEIGHBOUR_CELLS, NEIGHBOUR_SCORE, RUN_BASIN_CELLS,
                                    SCREENED_SHARE_CAUTION)
-from divides.assess.segment_motion import run_size
+from divides.assess.segment_motion import LIKELY_MOTION, run_size
 from divides.assess.verdict import CAUTION
 from divides.io.writing import atomic_write, write_feature_collection, write_json, write_text
 from divides.report import html as _html
@@ -359,10 +359,6 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
     return f"B{label} ({edge} edge)" if long else f"B{label} {edge}"
 
 
-#: P(moving) from which a segment's arrow is drawn as motion; below it, as the direction the near-divide measures
-#: favour, with its own legend entry (a probability under one half says the segment more likely does not move).
-LIKELY_MOTION = 0.5
-
 
 def likely_motion(segment: dict) -> bool:
     """Whether a segment's direction is drawn and written as motion: its probability of motion is at least
@@ -690,7 +686,9 @@ def _report(result: Screening, png: bytes, rows: list[dict], document: dict, sid
         "and hillslope relief (Forte &amp; Whipple 2018; Scherler &amp; Schwanghart 2020) and χ from the pair's "
         "common base level (Willett et al. 2014), turned into P(toward either basin) and P(stable); a "
         f"direction needs a probability of at least {p['min_confidence']:g}, otherwise the verdict is "
-        "undetermined. A segment shorter than "
+        "undetermined; on a lateral divide (basins that drain the same way) also where P(moving) is under "
+        f"{LIKELY_MOTION:g}: there the decision, fitted on divides between basins that drain apart, named a side on "
+        "many divides of model landscapes measured still. A segment shorter than "
         f"{p.get('min_judged_m', 0.0) / 1000:.3g} km is judged on the samples of the divides of other pairs of "
         "basins that continue it, pooled up to that length (pieces of one divide cut at the maximum length are "
         "judged alone). <b>Instability</b> is P(toward a) + P(toward b) rescaled "

@@ -184,6 +184,21 @@ def test_no_false_alarm_on_a_steady_landscape(steady):
     assert scored["alarms"] == 0
 
 
+def test_lateral_divides_of_a_steady_landscape_get_no_direction(steady):
+    # Issue 14 item 3: a lateral divide never gets a confident direction at a verified steady state (uniform forcing
+    # at a steady state checked by continuing the run; Willett et al. 2014). Before round 79 the near-divide decision
+    # named a side on three lateral segments here, one of them measured still at confidence 0.85 (probabilities of
+    # motion 0.05-0.15); a lateral segment now keeps a direction only where its probability of motion is >= 0.5.
+    _, result, scored, _ = steady
+    lateral = [s for s in result.segments if s["divide_kind"] == "lateral"]
+    assert len(lateral) >= 3
+    for s in lateral:
+        if s["motion_probability"] is None or s["motion_probability"] < 0.5:
+            assert s["moves_toward_basin"] is None and s["motion_azimuth_deg"] is None
+            assert s["verdict"] not in ("a", "b")
+    assert not any(m["verdict"] in ("a", "b") for m in scored["lateral"] if m["in_stable"])
+
+
 def test_the_default_channel_area_keeps_the_targets_of_the_steady_case(steady):
     # Round 64: without --channel-area a screening raises the DEM's slope-area value to 50 cells and caps it at 0.2 %
     # of the valid area, the cap winning (here 23 cells; unbounded, the fallback's 1 % of this small DEM). Issue 14's
