@@ -6,7 +6,7 @@
 Reads ``bench_regional.py --json`` records named ``<anything>-<condition>-<seed>.jsonl`` and prints, per condition,
 the targets and the lateral segments the screening gave a direction, as recorded (D) and as candidate L would leave
 them: a lateral segment whose verdict names a side but whose probability of motion is under
-:data:`~divides.report.screening.LIKELY_MOTION` reads "undetermined". Counted on lateral segments: those of steady
+:data:`~divides.assess.segment_motion.LIKELY_MOTION` reads "undetermined". Counted on lateral segments: those of steady
 landscapes measured still with a direction; of those with a direction and a measured truth (moving or still), the
 share in moving stretches; and those in moving stretches pointing the measured way (their verdict is the side the
 continued run moved the divide toward).
@@ -19,7 +19,7 @@ import json
 import os
 import sys
 
-from divides.report.screening import LIKELY_MOTION
+from divides.assess.segment_motion import LIKELY_MOTION
 
 
 def directed(m: dict, rule: str) -> bool:
