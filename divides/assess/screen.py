@@ -685,7 +685,7 @@ def rank_segments(rows: list[dict], lengths: Sequence[float], near: Sequence[Seq
 
 def withhold_unlikely_lateral(row: dict) -> None:
     """Read a lateral segment as undetermined where its decision names a side but its probability of motion is under
-    :data:`LIKELY_MOTION` (round 79, docs/validation.md, *Regional screening*).
+    :data:`LIKELY_MOTION` (round 80, docs/validation.md, *Regional screening*).
 
     Between two valleys that drain the same way the near-divide decision, fitted on divides between basins that
     drain apart, named a side on about one lateral segment in ten of steady model landscapes; most of those were

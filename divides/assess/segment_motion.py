@@ -18,7 +18,7 @@ __all__ = ["instability_of", "bounded_instability", "evidence_features",
            "TOLD_ERROR_CAP_M", "LATERAL_HILLS_AGAINST_MAX", "LIKELY_MOTION"]
 
 #: A probability of motion from which a segment is read as likely to move (under one half it more likely does not):
-#: the report draws its direction as motion, and a lateral divide keeps its direction only from here (round 79).
+#: the report draws its direction as motion, and a lateral divide keeps its direction only from here (round 80).
 LIKELY_MOTION = 0.5
 
 #: Platt scaling (Platt 1999) of the decision's probability of motion, P(a) + P(b), to the measured truth

@@ -359,7 +359,6 @@ def basin_text(label: int, level: str | None, *, long: bool = False) -> str:
     return f"B{label} ({edge} edge)" if long else f"B{label} {edge}"
 
 
-
 def likely_motion(segment: dict) -> bool:
     """Whether a segment's direction is drawn and written as motion: its probability of motion is at least
     :data:`LIKELY_MOTION` (or it has none). Otherwise the direction is the one the near-divide measures favour.
