@@ -188,7 +188,7 @@ def test_lateral_divides_of_a_steady_landscape_get_no_direction(steady):
     # Issue 14 item 3: a lateral divide never gets a confident direction at a verified steady state (uniform forcing
     # at a steady state checked by continuing the run; Willett et al. 2014). Before round 80 the near-divide decision
     # named a side on three lateral segments here, one of them measured still at confidence 0.85 (probabilities of
-    # motion 0.05-0.15); a lateral segment now keeps a direction only where its probability of motion is >= 0.5.
+    # motion 0.04-0.15); a lateral segment now keeps a direction only where its probability of motion is >= 0.5.
     _, result, scored, _ = steady
     lateral = [s for s in result.segments if s["divide_kind"] == "lateral"]
     assert len(lateral) >= 3
