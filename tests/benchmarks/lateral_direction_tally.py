@@ -4,9 +4,9 @@
     python tests/benchmarks/lateral_direction_tally.py DIR [DIR ...]
 
 Reads ``bench_regional.py --json`` records named ``<anything>-<condition>-<seed>.jsonl`` and prints, per condition,
-the targets and the lateral segments the screening gave a direction, as recorded (D) and as candidate L would leave
-them: a lateral segment whose verdict names a side but whose probability of motion is under
-:data:`~divides.assess.segment_motion.LIKELY_MOTION` reads "undetermined". Counted on lateral segments: those of steady
+the targets (``targets_met.py``) and the lateral segments the screening gave a direction, as recorded (D) and as
+candidate L, shipped since round 80, would leave them (:func:`divides.assess.screen.withhold_unlikely_lateral`).
+Counted on lateral segments: those of steady
 landscapes measured still with a direction; of those with a direction and a measured truth (moving or still), the
 share in moving stretches; and those in moving stretches pointing the measured way (their verdict is the side the
 continued run moved the divide toward).
@@ -19,29 +19,26 @@ import json
 import os
 import sys
 
-from divides.assess.segment_motion import LIKELY_MOTION
+from targets_met import targets_met
+
+from divides.assess.screen import withhold_unlikely_lateral
 
 
 def directed(m: dict, rule: str) -> bool:
     """Whether lateral segment record ``m`` has a direction under ``rule`` ("D": as recorded, "L": candidate L)."""
-    if m["verdict"] not in ("a", "b"):
-        return False
-    p = m.get("motion_probability")
-    return rule == "D" or p is None or p >= LIKELY_MOTION
+    if rule == "D":
+        return m["verdict"] in ("a", "b")
+    row = {"divide_kind": "lateral", "verdict": m["verdict"], "moves_toward": m["verdict"], "basis": None,
+           "reason": None, "motion_probability": m.get("motion_probability")}
+    withhold_unlikely_lateral(row)
+    return row["verdict"] in ("a", "b")
 
 
-def tally(records: list[dict], rule: str) -> dict:
-    """Round 79's counts over ``records`` (one condition) under ``rule``."""
-    out = collections.Counter()
+def tally(records: list[dict], rule: str) -> collections.Counter:
+    """Round 80's counts over ``records`` (one condition) under ``rule``."""
+    out, _ = targets_met(records)
     for r in records:
         steady = r["family"].startswith("steady_")
-        out["cases"] += 1
-        out["top"] += bool(r.get("top_ok"))
-        out["top of"] += r.get("top_ok") is not None
-        out["order"] += bool(r.get("order_ok"))
-        out["order of"] += r.get("order_ok") is not None
-        out["no alarm"] += bool(steady and r.get("alarm_ok"))
-        out["no alarm of"] += steady
         for m in r.get("lateral", []):
             if not directed(m, rule):
                 continue
@@ -68,8 +65,8 @@ def main(dirs: list[str]) -> None:
             known = t["moving"] + t["still"]
             share = f"{t['moving'] / known:.1%}" if known else "n/a"
             kept[rule] += t["moving, measured way"]
-            print(f"{condition} {rule}: {t['cases']} cases; top {t['top']}/{t['top of']}, order {t['order']}/"
-                  f"{t['order of']}, no alarm {t['no alarm']}/{t['no alarm of']}; lateral segments with a direction "
+            print(f"{condition} {rule}: {t['cases']} cases; top {t['top']}/{t['top_n']}, order {t['order']}/"
+                  f"{t['order_n']}, no alarm {t['no_alarm']}/{t['no_alarm_n']}; lateral segments with a direction "
                   f"{t['directed']}: of steady landscapes measured still {t['steady still']}; in moving stretches "
                   f"{t['moving']} of {known} measured ({share}), pointing the measured way {t['moving, measured way']}")
     if kept["D"]:
