@@ -1,4 +1,4 @@
-"""Round 79's tally of the directions given on lateral divides (run by hand, not a test; docs/validation.md,
+"""Rounds 79's and 80's tally of the directions given on lateral divides (run by hand, not a test; docs/validation.md,
 *Regional screening*).
 
     python tests/benchmarks/lateral_direction_tally.py DIR [DIR ...]
@@ -6,10 +6,9 @@
 Reads ``bench_regional.py --json`` records named ``<anything>-<condition>-<seed>.jsonl`` and prints, per condition,
 the targets (``targets_met.py``) and the lateral segments the screening gave a direction, as recorded (D) and as
 candidate L, shipped since round 80, would leave them (:func:`divides.assess.screen.withhold_unlikely_lateral`).
-Counted on lateral segments: those of steady
-landscapes measured still with a direction; of those with a direction and a measured truth (moving or still), the
-share in moving stretches; and those in moving stretches pointing the measured way (their verdict is the side the
-continued run moved the divide toward).
+Counted on lateral segments: those of steady landscapes measured still with a direction; of those with a direction
+and a measured truth (moving or still), the share in moving stretches; and those in moving stretches pointing the
+measured way (their verdict is the side the continued run moved the divide toward).
 """
 from __future__ import annotations
 
